@@ -1,0 +1,207 @@
+"""Bound states of the 1D BenDaniel–Duke equation on a nonuniform finite-volume mesh.
+
+    -d/dz( hbar^2 / (2 m(z)) dpsi/dz ) + V(z) psi = E psi,   psi = 0 at both ends.
+
+Discretisation (see selfcon/kernels/schrodinger.py): one mass per cell, potential
+at nodes (dual-cell averages), lumped mass matrix W = diag(w), symmetrised into a
+real symmetric tridiagonal matrix B = W^{-1/2} A W^{-1/2}.  The lowest k eigenpairs
+of B come from LAPACK bisection (dstebz) plus inverse iteration (dstein): both
+are O(N) per eigenpair, dstein re-orthogonalises eigenvectors whose eigenvalues
+are close (tunnel-split doublets), and no N x N array is ever formed.  Measured
+with tools/bench_eigen.py.  (The multiple-relatively-robust-representations
+driver dstemr is *not* used: scipy allocates an N x N eigenvector array for it,
+which makes it quadratic in N.)
+
+Units: nm, eV, masses in m0.
+"""
+import numpy as np
+
+from .constants import HBAR2_2M0  # noqa: F401  (documented unit of the operator)
+
+__all__ = ["EigenWorkspace", "solve_region", "bound_states", "bound_states_cells",
+           "in_plane_mass", "dual_widths"]
+
+
+def _kernels():
+    # imported lazily so that `import selfcon.quantum` compiles nothing
+    from .kernels import schrodinger
+    return schrodinger
+
+
+def dual_widths(h):
+    """Dual-cell widths w_i = (h_{i-1} + h_i)/2 (half cells at the two ends)."""
+    h = np.asarray(h, dtype=float)
+    w = np.zeros(h.size + 1)
+    w[:-1] += 0.5 * h
+    w[1:] += 0.5 * h
+    return w
+
+
+class EigenWorkspace:
+    """Reusable buffers for repeated solves on the same sub-mesh size.
+
+    The self-consistent loop solves the same region ~20 times per run; passing one
+    workspace avoids re-allocating the tridiagonal arrays and re-looking-up the
+    LAPACK routines.  A workspace silently resizes itself if the mesh size changes.
+    """
+
+    def __init__(self, n_nodes=0):
+        from scipy.linalg import get_lapack_funcs
+        probe = np.zeros(1)
+        self._stebz, self._stein = get_lapack_funcs(("stebz", "stein"), (probe, probe))
+        self.n = -1
+        self.resize(n_nodes)
+
+    def resize(self, n_nodes):
+        n_nodes = int(n_nodes)
+        if n_nodes == self.n:
+            return
+        self.n = n_nodes
+        m = max(n_nodes - 2, 0)
+        self.d = np.empty(m)
+        self.e = np.empty(max(m - 1, 0))
+
+    def eigh(self, k):
+        """Lowest k eigenpairs of the tridiagonal (self.d, self.e): (values (k,), vectors (m, k))."""
+        m = self.d.size
+        if m == 1:
+            return self.d.copy(), np.ones((1, 1))
+        # range=2 (by index), il..iu 1-based; abstol 0 -> LAPACK default eps*|B|;
+        # order 'B' (by block) is what dstein expects.
+        nfound, w, iblock, isplit, info = self._stebz(self.d, self.e, 2, 0.0, 1.0, 1, k, 0.0, "B")
+        if info != 0:
+            raise RuntimeError(f"tridiagonal bisection (LAPACK dstebz) failed, info={info}")
+        w = w[:nfound]  # dstein takes m = len(w); iblock/isplit stay full length
+        v, info = self._stein(self.d, self.e, w, iblock, isplit)
+        if info != 0:
+            raise RuntimeError(f"inverse iteration (LAPACK dstein) failed to converge, info={info}")
+        order = np.argsort(w, kind="stable")
+        return w[order], v[:, order]
+
+
+def solve_region(h_cell, w, v_node, inv_mass_cell, n_states, workspace=None):
+    """Lowest ``n_states`` states on a sub-mesh with psi = 0 at its two end nodes.
+
+    h_cell, inv_mass_cell: (n-1,) cell widths (nm) and inverse masses (1/m0);
+    w, v_node: (n,) dual widths (nm) and node potential (eV, already dual-averaged).
+    Returns (energies (k,) eV ascending, psi (n, k) in nm^-1/2 with
+    sum_i w_i psi_i^2 = 1); k = min(n_states, n-2).  No input checking here beyond
+    shapes: this is the inner-loop call; use :func:`bound_states` for checked input.
+    """
+    h_cell = np.ascontiguousarray(h_cell, dtype=float)
+    w = np.ascontiguousarray(w, dtype=float)
+    v_node = np.ascontiguousarray(v_node, dtype=float)
+    inv_mass_cell = np.ascontiguousarray(inv_mass_cell, dtype=float)
+    n = w.size
+    if v_node.size != n or h_cell.size != n - 1 or inv_mass_cell.size != n - 1:
+        raise ValueError(f"solve_region: shape mismatch (w {w.size}, v_node {v_node.size}, "
+                         f"h_cell {h_cell.size}, inv_mass_cell {inv_mass_cell.size}); "
+                         "node arrays need n values and cell arrays n-1")
+    m = max(n - 2, 0)
+    k = min(int(n_states), m)
+    if k <= 0:
+        return np.empty(0), np.zeros((n, 0))
+    if workspace is None:
+        workspace = EigenWorkspace(n)
+    else:
+        workspace.resize(n)
+    kern = _kernels()
+    kern.assemble_tridiagonal(h_cell, w, v_node, inv_mass_cell, workspace.d, workspace.e)
+    energies, u = workspace.eigh(k)
+    psi = np.empty((n, k))
+    kern.vectors_to_wavefunctions(np.ascontiguousarray(u), w, psi)
+    return energies, psi
+
+
+def _check_mesh(z):
+    z = np.asarray(z, dtype=float)
+    if z.ndim != 1 or z.size < 3:
+        raise ValueError(f"z_nm must be a 1-D array of at least 3 nodes (got shape {z.shape})")
+    if not np.all(np.isfinite(z)):
+        raise ValueError("z_nm contains non-finite values")
+    h = np.diff(z)
+    if np.any(h <= 0.0):
+        bad = int(np.argmax(h <= 0.0))
+        raise ValueError(f"z_nm must be strictly increasing (z[{bad + 1}] = {z[bad + 1]!r} "
+                         f"<= z[{bad}] = {z[bad]!r})")
+    return z, h
+
+
+def _check_states(n_states):
+    if isinstance(n_states, bool) or not isinstance(n_states, (int, np.integer)):
+        raise ValueError(f"n_states must be an integer >= 1 (got {n_states!r})")
+    if n_states < 1:
+        raise ValueError(f"n_states must be >= 1 (got {n_states})")
+    return int(n_states)
+
+
+def _check_array(name, a, sizes, what):
+    a = np.asarray(a, dtype=float)
+    if a.ndim != 1 or a.size not in sizes:
+        raise ValueError(f"{name} must be {what} (got shape {a.shape})")
+    if not np.all(np.isfinite(a)):
+        raise ValueError(f"{name} contains non-finite values")
+    return a
+
+
+def _mass_to_cells(mass_m0, n):
+    m = _check_array("mass_m0", mass_m0, (n - 1, n),
+                     f"per cell ({n - 1},) or per node ({n},)")
+    if np.any(m <= 0.0):
+        raise ValueError(f"mass_m0 must be positive (min {m.min()!r})")
+    if m.size == n:
+        m = 0.5 * (m[:-1] + m[1:])
+    return m
+
+
+def bound_states(z_nm, band_edge_eV, mass_m0, n_states):
+    """Lowest ``n_states`` BenDaniel–Duke states of a band edge given per node.
+
+    z_nm (N,) strictly increasing node positions in nm; band_edge_eV (N,) the
+    potential at the nodes (at an interface node give the dual-cell average, or
+    use :func:`bound_states_cells`); mass_m0 per cell (N-1,) or per node (N,)
+    (node masses are averaged onto cells, m_c = (m_c + m_{c+1})/2).
+    psi = 0 at z[0] and z[-1].  Returns (energies_eV (k,), psi (N, k)), k =
+    min(n_states, N-2), psi normalised so that sum_i w_i psi_i^2 = 1 (w the dual
+    widths) and signed so its first significant lobe is positive.
+    """
+    z, h = _check_mesh(z_nm)
+    n = z.size
+    k = _check_states(n_states)
+    v = _check_array("band_edge_eV", band_edge_eV, (n,), f"per node ({n},)")
+    m_cell = _mass_to_cells(mass_m0, n)
+    return solve_region(h, dual_widths(h), v, 1.0 / m_cell, k)
+
+
+def bound_states_cells(z_nm, band_edge_cell_eV, mass_cell_m0, n_states):
+    """As :func:`bound_states` with the band edge and mass given per cell (N-1,).
+
+    The node potential is the dual-cell average V_i = (h_{i-1} V_{i-1} + h_i V_i) /
+    (h_{i-1} + h_i): at an interface node the step is shared by its two half cells,
+    which keeps the error of a step potential O(h^2).
+    """
+    z, h = _check_mesh(z_nm)
+    n = z.size
+    k = _check_states(n_states)
+    v_cell = _check_array("band_edge_cell_eV", band_edge_cell_eV, (n - 1,), f"per cell ({n - 1},)")
+    m_cell = _check_array("mass_cell_m0", mass_cell_m0, (n - 1,), f"per cell ({n - 1},)")
+    if np.any(m_cell <= 0.0):
+        raise ValueError(f"mass_cell_m0 must be positive (min {m_cell.min()!r})")
+    v_node = np.empty(n)
+    _kernels().dual_average(h, v_cell, v_node)
+    return solve_region(h, dual_widths(h), v_node, 1.0 / m_cell, k)
+
+
+def in_plane_mass(psi, w, mass_node):
+    """Wavefunction-weighted in-plane mass per state: 1 / sum_i w_i psi_i^2 / m_i.
+
+    psi (n, k), w (n,), mass_node (n,) in m0.  Returns (k,) in m0.  Divided by
+    sum_i w_i psi_i^2 so that an unnormalised psi gives the same answer.
+    """
+    psi = np.asarray(psi, dtype=float)
+    w = np.asarray(w, dtype=float)
+    mass_node = np.asarray(mass_node, dtype=float)
+    if psi.ndim == 1:
+        psi = psi[:, None]
+    p2 = psi * psi
+    return (w @ p2) / ((w / mass_node) @ p2)
