@@ -1,0 +1,187 @@
+"""Mixers for the self-consistent loop: they know no physics.
+
+A mixer sees a vector ``x`` (the potential the loop used) and the residual
+``r = g(x) - x`` (what one Schrödinger + Poisson pass proposes, minus ``x``),
+and returns the next ``x``.  The loop never knows which mixer it has; it only
+asks one thing of it, :attr:`Mixer.predictor`, which says whether the Poisson
+pass should already contain the carriers' response to the potential change
+(the predictor–corrector coupling of Trellakis et al., J. Appl. Phys. 81, 7880
+(1997)) or hold the quantum density frozen (classic mixing).
+
+How to add a mixer
+------------------
+1. Subclass :class:`Mixer`; set ``name`` (the deck's ``solver.method`` value)
+   and ``predictor`` (True if it expects the predictor Poisson pass).
+2. Take every option as a keyword in ``__init__``; keep defaults safe for a
+   4 K modulation-doped heterojunction.
+3. Implement ``update(x, r) -> x_next``.  Do not modify ``x`` or ``r``;
+   keep whatever history you need on ``self``.
+4. Implement ``reset()`` (called when the loop restarts from a damped state)
+   and optionally ``damp()`` (called when the residual grew: become more
+   cautious; return False if there is nothing left to damp).
+5. Register it with ``@register`` and add it to the parametrised tests in
+   tests/test_mixing.py (toy linear problem vs numpy.linalg.solve) and
+   tests/test_scf.py (same answer on the example decks).
+"""
+from __future__ import annotations
+
+import numpy as np
+
+_REGISTRY: dict[str, type] = {}
+
+
+def register(cls):
+    _REGISTRY[cls.name] = cls
+    return cls
+
+
+def available_methods() -> tuple[str, ...]:
+    return tuple(_REGISTRY)
+
+
+def get_mixer(name: str, **options) -> "Mixer":
+    """Instantiate the mixer registered under ``name``; unknown options are rejected by name."""
+    try:
+        cls = _REGISTRY[name]
+    except KeyError:
+        raise ValueError(f"unknown solver method {name!r} (allowed: {', '.join(_REGISTRY)})") from None
+    options = {k: v for k, v in options.items() if v is not None}
+    allowed = cls.option_names
+    bad = sorted(set(options) - set(allowed))
+    if bad:
+        raise ValueError(f"solver method {name!r} does not take option(s) {', '.join(bad)} "
+                         f"(allowed: {', '.join(allowed) or 'none'})")
+    return cls(**options)
+
+
+class Mixer:
+    name = "base"
+    predictor = False
+    option_names: tuple[str, ...] = ()
+
+    def update(self, x: np.ndarray, r: np.ndarray) -> np.ndarray:  # pragma: no cover - abstract
+        raise NotImplementedError
+
+    def reset(self) -> None:
+        pass
+
+    def damp(self) -> bool:
+        return False
+
+    @property
+    def factor(self) -> float:
+        return getattr(self, "_factor", 1.0)
+
+
+@register
+class PredictorCorrector(Mixer):
+    """Take the predictor–corrector Poisson pass as it comes, damped only when the residual grows.
+
+    Because the Poisson pass already contains the linearised carrier response,
+    the plain step ``x + r`` is the right one; ``mixing`` (default 1) is the
+    starting factor and ``damp()`` halves it down to 1/64.
+    """
+
+    name = "predictor-corrector"
+    predictor = True
+    option_names = ("mixing",)
+
+    def __init__(self, mixing: float = 1.0):
+        self._factor0 = float(mixing)
+        self._factor = float(mixing)
+
+    def update(self, x, r):
+        return x + self._factor * r
+
+    def reset(self):
+        self._factor = self._factor0
+
+    def damp(self):
+        if self._factor <= 1.0 / 64:
+            return False
+        self._factor *= 0.5
+        return True
+
+    def relax(self):
+        """Grow the factor back towards its start after a run of good steps."""
+        self._factor = min(self._factor0, 2.0 * self._factor)
+
+
+@register
+class Linear(Mixer):
+    """Simple mixing x_next = x + a r (a = ``mixing``, default 0.05)."""
+
+    name = "linear"
+    predictor = False
+    option_names = ("mixing",)
+
+    def __init__(self, mixing: float = 0.05):
+        self._factor0 = float(mixing)
+        self._factor = float(mixing)
+
+    def update(self, x, r):
+        return x + self._factor * r
+
+    def reset(self):
+        self._factor = self._factor0
+
+    def damp(self):
+        if self._factor <= 1e-4:
+            return False
+        self._factor *= 0.5
+        return True
+
+
+@register
+class Anderson(Mixer):
+    """Anderson (Pulay) mixing over the last ``history`` iterates.
+
+    With residual differences dR_j = r_j - r_{j-1} and iterate differences
+    dX_j = x_j - x_{j-1}, solve min |r - dR g| in least squares and step
+    x_next = x + a r - (dX + a dR) g  (Anderson, J. ACM 12, 547 (1965);
+    the same extrapolation as Pulay's DIIS).  On a linear fixed-point problem it
+    converges like GMRES, in at most n+1 steps.
+    """
+
+    name = "anderson"
+    predictor = False
+    option_names = ("mixing", "history")
+
+    def __init__(self, mixing: float = 0.1, history: int = 6):
+        self._factor0 = float(mixing)
+        self._factor = float(mixing)
+        self.history = int(history)
+        self.reset()
+
+    def reset(self):
+        self._factor = self._factor0
+        self._xs: list[np.ndarray] = []
+        self._rs: list[np.ndarray] = []
+
+    def damp(self):
+        self._xs.clear()
+        self._rs.clear()
+        if self._factor <= 1e-4:
+            return False
+        self._factor *= 0.5
+        return True
+
+    def update(self, x, r):
+        x = np.asarray(x, dtype=float)
+        r = np.asarray(r, dtype=float)
+        self._xs.append(x.copy())
+        self._rs.append(r.copy())
+        if len(self._xs) > self.history + 1:
+            self._xs.pop(0)
+            self._rs.pop(0)
+        a = self._factor
+        if len(self._xs) == 1:
+            return x + a * r
+        dX = np.stack([self._xs[j] - self._xs[j - 1] for j in range(1, len(self._xs))], axis=1)
+        dR = np.stack([self._rs[j] - self._rs[j - 1] for j in range(1, len(self._rs))], axis=1)
+        # scale columns for conditioning, then least squares
+        norms = np.linalg.norm(dR, axis=0)
+        norms[norms == 0] = 1.0
+        g, *_ = np.linalg.lstsq(dR / norms, r, rcond=1e-12)
+        g = g / norms
+        return x + a * r - (dX + a * dR) @ g
