@@ -1,0 +1,293 @@
+"""Rules: temperature (Varshni), alloy interpolation with bowing, deck-local
+materials, and the derived per-cell quantities.
+
+Everything works on numpy arrays shaped like the per-cell alloy fraction x.
+The intermediate form is a dict "primitives": the library's parameter names
+(``band_gap``, ``electron_mass``, …; the gaps at 0 K) as arrays, plus
+``eg_gamma``, ``eg_x``, ``eg_l``: the gaps at the temperature asked for.
+:func:`derived` turns primitives into the per-cell keys the structure uses.
+"""
+import difflib
+
+import numpy as np
+
+from ..errors import MaterialError
+from .library import ALLOYS, BINARIES, BOWED, PARAMETERS
+
+#: (valley suffix, gap key, alpha key, beta key)
+VALLEYS = (
+    ("gamma", "band_gap", "varshni_alpha", "varshni_beta"),
+    ("x", "x_gap", "x_varshni_alpha", "x_varshni_beta"),
+    ("l", "l_gap", "l_varshni_alpha", "l_varshni_beta"),
+)
+
+#: output key -> unit, for cell_parameters
+OUTPUT_UNITS = {
+    "eg_gamma": "eV", "eg_x": "eV", "eg_l": "eV", "vbo": "eV",
+    "ec_gamma": "eV", "ec_x": "eV", "ec_l": "eV", "ev_hh": "eV", "ev_lh": "eV",
+    "m_e": "m0", "m_x_l": "m0", "m_x_t": "m0", "m_l_l": "m0", "m_l_t": "m0",
+    "gamma1": "1", "gamma2": "1", "gamma3": "1",
+    "m_hh_z": "m0", "m_lh_z": "m0", "m_hh_par": "m0", "m_lh_par": "m0",
+    "m_c_dos": "m0", "m_v_dos": "m0",
+    "eps": "1", "donor_binding": "eV", "acceptor_binding": "eV", "delta_so": "eV",
+}
+
+#: what a deck-local material without ``base`` gets when an optional group is absent
+#: (documented in DEVELOPERS.md via cell_parameters' docstring)
+FILL_VALLEY_OFFSET = 10.0   # eV: absent X/L valley sits this far above the Γ edge
+FILL_MASS = 1.0             # m0: absent X/L masses; absent Luttinger -> γ1 = 1, γ2 = γ3 = 0
+
+_REQUIRED_NO_BASE = ("band_gap", "valence_band_offset", "electron_mass", "permittivity")
+_LUTTINGER = ("luttinger_gamma1", "luttinger_gamma2", "luttinger_gamma3")
+
+
+def varshni(eg0, alpha, beta, temperature):
+    """Eg(T) = Eg(0) - alpha T^2 / (T + beta); with beta = 0 this is Eg(0) - alpha T."""
+    t = np.asarray(temperature, dtype=float)
+    den = t + beta
+    safe = np.where(den > 0.0, den, 1.0)
+    return eg0 - np.where(den > 0.0, alpha * t * t / safe, 0.0)
+
+
+# ---------------------------------------------------------------- library
+def _suggest(name, choices):
+    lower = {c.lower(): c for c in choices}
+    close = difflib.get_close_matches(name.lower(), list(lower), n=1, cutoff=0.5)
+    return f"; did you mean {lower[close[0]]!r}?" if close else ""
+
+
+def unknown_material(name, local_names=()):
+    allowed = tuple(BINARIES) + tuple(ALLOYS) + tuple(local_names)
+    return MaterialError(f"unknown material {name!r}{_suggest(str(name), allowed)}",
+                         key="material", allowed=", ".join(allowed))
+
+
+def check_x(name, x):
+    """x for a library alloy: every cell finite and in [0, 1]."""
+    bad = ~np.isfinite(x)
+    if bad.any():
+        raise MaterialError(f"{name} is an alloy and needs the alloy fraction x "
+                            f"({ALLOYS[name].meaning_of_x})", key="x", allowed="0 <= x <= 1")
+    out = (x < 0.0) | (x > 1.0)
+    if out.any():
+        raise MaterialError(f"alloy fraction x = {float(x[out][0]):g} of {name} is outside [0, 1]",
+                            key="x", allowed="0 <= x <= 1")
+
+
+def binary_primitives(name, shape, temperature):
+    prim = {k: np.full(shape, v.value, dtype=float) for k, v in BINARIES[name].items()}
+    for suffix, gap, alpha, beta in VALLEYS:
+        prim["eg_" + suffix] = varshni(prim[gap], prim[alpha], prim[beta], temperature)
+    return prim
+
+
+def bowing_value(bow, x):
+    return bow.c0 + bow.c1 * x
+
+
+def alloy_primitives(name, x, temperature):
+    """Endpoints at T, then P(x) = (1-x) P0 + x P1 - x(1-x) C(x) (C = 0: linear)."""
+    alloy = ALLOYS[name]
+    x = np.asarray(x, dtype=float)
+    check_x(name, x)
+    p0 = binary_primitives(alloy.end0, x.shape, temperature)
+    p1 = binary_primitives(alloy.end1, x.shape, temperature)
+    prim = {k: (1.0 - x) * p0[k] + x * p1[k] for k in p0}
+    bowed_keys = {key: key for key in BOWED}
+    for suffix, gap, _, _ in VALLEYS:      # the gap at T bows like the gap at 0 K
+        bowed_keys["eg_" + suffix] = gap
+    for key, bkey in bowed_keys.items():
+        bow = alloy.bowing[bkey]
+        if bow.c0 or bow.c1:
+            prim[key] = prim[key] - x * (1.0 - x) * bowing_value(bow, x)
+    return prim
+
+
+# ---------------------------------------------------------------- deck-local
+def _def_params(d):
+    params = getattr(d, "params", ())
+    if isinstance(params, dict):
+        return dict(params)
+    return {k: float(v) for k, v in params}
+
+
+def _where(d):
+    return {"file": getattr(d, "file", None), "line": getattr(d, "line", None)}
+
+
+def _check_keys(d, params):
+    for key in params:
+        if key not in PARAMETERS:
+            close = difflib.get_close_matches(key, list(PARAMETERS), n=1, cutoff=0.6)
+            hint = f"; did you mean {close[0]!r}?" if close else ""
+            raise MaterialError(f"unknown material parameter {key!r}{hint}",
+                                key=f"material.{d.name}.{key}", allowed=", ".join(PARAMETERS),
+                                **_where(d))
+
+
+def apply_overrides(prim, params, temperature):
+    """Override primitives by deck keys.  A new 0 K gap keeps the base's
+    temperature shift unless the deck also gives a Varshni term, in which case
+    the Varshni form is used with the given term(s) and the base's other one."""
+    shape = prim["band_gap"].shape
+    for suffix, gap, alpha, beta in VALLEYS:
+        if not (gap in params or alpha in params or beta in params):
+            continue
+        old0, old_t = prim[gap], prim["eg_" + suffix]
+        new0 = np.full(shape, params[gap]) if gap in params else old0
+        if alpha in params or beta in params:
+            a = np.full(shape, params[alpha]) if alpha in params else prim[alpha]
+            b = np.full(shape, params[beta]) if beta in params else prim[beta]
+            prim[alpha], prim[beta] = a, b
+            prim["eg_" + suffix] = varshni(new0, a, b, temperature)
+        else:
+            prim["eg_" + suffix] = new0 + (old_t - old0)
+        prim[gap] = new0
+    skip = {k for v in VALLEYS for k in v[1:]}
+    for key, value in params.items():
+        if key not in skip:
+            prim[key] = np.full(shape, float(value))
+    return prim
+
+
+def _missing(d, param, why):
+    return MaterialError(f"material {d.name!r} has no base and does not give {param!r}{why}",
+                         key=f"material.{d.name}.{param}", **_where(d))
+
+
+def standalone_primitives(d, params, shape, temperature, needs):
+    """A deck-local material without base: required keys, optional groups filled."""
+    for key in _REQUIRED_NO_BASE:
+        if key not in params:
+            raise _missing(d, key, " (required without base)")
+    p = dict(params)
+    p.setdefault("varshni_alpha", 0.0)
+    p.setdefault("varshni_beta", 0.0)
+    p.setdefault("spin_orbit", 0.0)
+    # holes
+    if "heavy_hole" in needs or "light_hole" in needs:
+        for key in _LUTTINGER[:2]:
+            if key not in p:
+                raise _missing(d, key, " (needed for hole carriers)")
+    else:
+        p.setdefault("luttinger_gamma1", 1.0)
+        p.setdefault("luttinger_gamma2", 0.0)
+    p.setdefault("luttinger_gamma3", p["luttinger_gamma2"])   # spherical approximation
+    # X and L valleys
+    for valley, gap, mass_keys in (("x_valley", "x_gap", ("x_mass_long", "x_mass_trans")),
+                                   ("l_valley", "l_gap", ("l_mass_long", "l_mass_trans"))):
+        pre = gap[0]
+        if valley in needs:
+            for key in (gap,) + mass_keys:
+                if key not in p:
+                    raise _missing(d, key, f" (needed for the {valley.replace('_', ' ')})")
+        if gap not in p:
+            # far above Γ at every T: same Varshni terms as Γ, offset by FILL_VALLEY_OFFSET
+            p[gap] = p["band_gap"] + FILL_VALLEY_OFFSET
+            p.setdefault(f"{pre}_varshni_alpha", p["varshni_alpha"])
+            p.setdefault(f"{pre}_varshni_beta", p["varshni_beta"])
+        p.setdefault(f"{pre}_varshni_alpha", 0.0)
+        p.setdefault(f"{pre}_varshni_beta", 0.0)
+        for key in mass_keys:
+            p.setdefault(key, FILL_MASS)
+    # dopant levels
+    for key in ("donor_binding", "acceptor_binding"):
+        if "thermal_ionization" in needs and key not in p:
+            raise _missing(d, key, " (needed for thermal ionization)")
+        p.setdefault(key, 0.0)
+    prim = {k: np.full(shape, float(p[k])) for k in PARAMETERS}
+    for suffix, gap, alpha, beta in VALLEYS:
+        prim["eg_" + suffix] = varshni(prim[gap], prim[alpha], prim[beta], temperature)
+    return prim
+
+
+def resolve(name, x, temperature, local, needs, chain=()):
+    """Primitives of ``name`` (library or deck-local) on cells with fractions ``x``."""
+    if name in chain:
+        loop = " -> ".join(chain + (name,))
+        raise MaterialError(f"deck-local materials form a cycle: {loop}",
+                            key=f"material.{chain[0]}.base", **_where(local[chain[0]]))
+    d = local.get(name)
+    if d is None:
+        if name in BINARIES:
+            return binary_primitives(name, x.shape, temperature)
+        if name in ALLOYS:
+            return alloy_primitives(name, x, temperature)
+        err = unknown_material(name, local)
+        if chain:
+            err = MaterialError(err.message, key=f"material.{chain[-1]}.base",
+                                allowed=err.allowed, **_where(local[chain[-1]]))
+        raise err
+    if name in BINARIES or name in ALLOYS:
+        raise MaterialError(f"deck-local material {name!r} has the name of a library material; "
+                            "give it its own name and base = " + repr(name),
+                            key=f"material.{name}", **_where(d))
+    params = _def_params(d)
+    _check_keys(d, params)
+    base = getattr(d, "base", None)
+    if base is None:
+        return standalone_primitives(d, params, x.shape, temperature, needs)
+    dx = getattr(d, "x", None)
+    if dx is not None:
+        given = np.isfinite(x)
+        if given.any() and not np.allclose(x[given], dx, rtol=0.0, atol=1e-12):
+            raise MaterialError(
+                f"material {name!r} fixes x = {dx:g}; the layer gives x = {float(x[given][0]):g} "
+                "(leave the layer's x out or make it equal)", key=f"material.{name}.x", **_where(d))
+        x = np.full(x.shape, float(dx))
+    prim = resolve(base, x, temperature, local, needs, chain + (name,))
+    return apply_overrides(prim, params, temperature)
+
+
+# ---------------------------------------------------------------- derived
+_CHECK_POSITIVE = (
+    ("electron_mass", "electron_mass"), ("x_mass_long", "x_mass_long"),
+    ("x_mass_trans", "x_mass_trans"), ("l_mass_long", "l_mass_long"),
+    ("l_mass_trans", "l_mass_trans"), ("permittivity", "permittivity"),
+)
+
+
+def validate(name, prim):
+    for key, label in _CHECK_POSITIVE:
+        if not (prim[key] > 0.0).all():
+            raise MaterialError(f"{label} of {name} must be positive, got {float(prim[key].min()):g}",
+                                key=f"material.{name}.{key}")
+    g1, g2 = prim["luttinger_gamma1"], prim["luttinger_gamma2"]
+    for den, text in ((g1 - 2 * g2, "gamma1 - 2 gamma2 (1/m_hh along z)"),
+                      (g1 + 2 * g2, "gamma1 + 2 gamma2 (1/m_lh along z)"),
+                      (g1 + g2, "gamma1 + gamma2 (1/m_hh in plane)"),
+                      (g1 - g2, "gamma1 - gamma2 (1/m_lh in plane)")):
+        if not (den > 0.0).all():
+            raise MaterialError(f"Luttinger parameters of {name} give {text} = "
+                                f"{float(den.min()):g} <= 0 (a negative or infinite hole mass)",
+                                key=f"material.{name}.luttinger_gamma2")
+    for key in ("donor_binding", "acceptor_binding", "spin_orbit"):
+        if (prim[key] < 0.0).any():
+            raise MaterialError(f"{key} of {name} must not be negative",
+                                key=f"material.{name}.{key}")
+
+
+def derived(prim):
+    """Per-cell quantities from primitives (no strain: ev_hh = ev_lh = vbo)."""
+    g1, g2, g3 = prim["luttinger_gamma1"], prim["luttinger_gamma2"], prim["luttinger_gamma3"]
+    vbo = prim["valence_band_offset"]
+    m_hh_z, m_lh_z = 1.0 / (g1 - 2 * g2), 1.0 / (g1 + 2 * g2)
+    m_hh_par, m_lh_par = 1.0 / (g1 + g2), 1.0 / (g1 - g2)   # axial approximation
+    m_hh = np.cbrt(m_hh_z * m_hh_par ** 2)
+    m_lh = np.cbrt(m_lh_z * m_lh_par ** 2)
+    out = {
+        "eg_gamma": prim["eg_gamma"], "eg_x": prim["eg_x"], "eg_l": prim["eg_l"], "vbo": vbo,
+        "ec_gamma": vbo + prim["eg_gamma"], "ec_x": vbo + prim["eg_x"], "ec_l": vbo + prim["eg_l"],
+        "ev_hh": vbo.copy(), "ev_lh": vbo.copy(),
+        "m_e": prim["electron_mass"],
+        "m_x_l": prim["x_mass_long"], "m_x_t": prim["x_mass_trans"],
+        "m_l_l": prim["l_mass_long"], "m_l_t": prim["l_mass_trans"],
+        "gamma1": g1, "gamma2": g2, "gamma3": g3,
+        "m_hh_z": m_hh_z, "m_lh_z": m_lh_z, "m_hh_par": m_hh_par, "m_lh_par": m_lh_par,
+        "m_c_dos": prim["electron_mass"].copy(),
+        "m_v_dos": (m_hh ** 1.5 + m_lh ** 1.5) ** (2.0 / 3.0),
+        "eps": prim["permittivity"],
+        "donor_binding": prim["donor_binding"], "acceptor_binding": prim["acceptor_binding"],
+        "delta_so": prim["spin_orbit"],
+    }
+    return {k: np.array(v, dtype=float) for k, v in out.items()}
