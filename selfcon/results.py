@@ -1,0 +1,434 @@
+"""Result files: the HDF5 layout of DESIGN.md §4 (schema "selfcon.result", version 1).
+
+The file is the :class:`selfcon.result.Result` written out, readable with plain
+h5py, HDF5's own tools, MATLAB or Julia.  Every dataset carries ``units``
+(UDUNITS-style strings: ``nm``, ``eV``, ``V``, ``V/cm``, ``cm-3``, ``cm-2``,
+``nm-1/2``, ``m0``, ``s``, ``1``) and ``description`` attributes.
+
+Layout (§4, with the extensions marked +)::
+
+    /                       attrs: schema, schema_version, selfcon_version, created, title,
+                                   temperature_K, converged, iterations, residual_V, message, deck,
+                                   + provenance keys (numpy_version, ..., deck_hash, wall_time_s),
+                                   + provenance_keys (names of the provenance attributes)
+    /mesh/z                 (N,)
+    /mesh/quantum_regions + (R, 2) nm, [top, bottom] of each quantum region
+    /profile/<field>        (N,)   every key of Result.profile, plus layer_index
+    /layers                 compound table, one row per layer
+    /subbands/<band>/energy, occupation, in_plane_mass (k,), wavefunction (N, k),
+                     + region, degeneracy (k,)
+    /convergence/residual   (iterations,)
+    /convergence/<name> +   per-iteration record (charge_residual, newton_steps, seconds, damping, ...)
+    /summary                attrs: Result.summary, plus warnings (array of strings)
+
+Writing is atomic: a temporary file in the target folder, flushed and fsync'ed,
+then ``os.replace``.  Any failure removes the temporary file and leaves an
+existing output untouched.
+"""
+from __future__ import annotations
+
+import datetime as _dt
+import os
+import tempfile
+from pathlib import Path
+
+import numpy as np
+
+from .errors import ResultFileError
+from .result import PROFILE_FIELDS, Result, Subbands
+
+SCHEMA = "selfcon.result"
+SCHEMA_VERSION = 1
+
+#: subband datasets: name -> (units, description)
+SUBBAND_FIELDS = {
+    "energy": ("eV", "subband edge energy relative to EF (hole states in electron energy)"),
+    "occupation": ("cm-2", "sheet density held by the subband"),
+    "wavefunction": ("nm-1/2", "envelope function psi(z) per state (columns), "
+                               "integral of |psi|^2 dz = 1, zero outside its quantum region"),
+    "in_plane_mass": ("m0", "in-plane effective mass used for the 2D density of states"),
+    "region": ("1", "index of the quantum region (/mesh/quantum_regions) holding the state"),
+    "degeneracy": ("1", "valley degeneracy used for the occupation (spin excluded)"),
+}
+
+#: per-iteration record datasets under /convergence: name -> (units, description)
+RECORD_FIELDS = {
+    "residual": ("V", "max |delta phi| between successive iterations"),
+    "charge_residual": ("1", "charge-balance residual of the iteration"),
+    "newton_steps": ("1", "inner Newton steps of the nonlinear Poisson solve"),
+    "seconds": ("s", "wall time spent in the iteration"),
+    "damping": ("1", "damping / mixing factor applied in the iteration"),
+}
+
+#: extra profile fields other contributors may add: name -> (units, description)
+EXTRA_PROFILE_FIELDS = {
+    "layer_index": ("1", "index into /layers of the layer holding each node"),
+    "conduction_band_x": ("eV", "X-valley conduction band edge with electrostatics, relative to EF"),
+    "conduction_band_l": ("eV", "L-valley conduction band edge with electrostatics, relative to EF"),
+    "heavy_hole_band": ("eV", "heavy-hole band edge with electrostatics, relative to EF"),
+    "light_hole_band": ("eV", "light-hole band edge with electrostatics, relative to EF"),
+    "charge_density": ("cm-3", "net charge density p - n + Nd+ - Na- in units of q"),
+}
+
+#: units of the /layers columns (others: derived from the column name)
+LAYER_UNITS = {
+    "name": "1", "material": "1", "x_top": "1", "x_bottom": "1",
+    "top_nm": "nm", "bottom_nm": "nm", "thickness_nm": "nm",
+    "electron_sheet_density_cm2": "cm-2", "hole_sheet_density_cm2": "cm-2",
+}
+
+LAYER_DESCRIPTIONS = {
+    "name": "layer name from the deck (or its index when unnamed)",
+    "material": "material name",
+    "x_top": "alloy fraction at the top of the layer",
+    "x_bottom": "alloy fraction at the bottom of the layer",
+    "top_nm": "depth of the top interface",
+    "bottom_nm": "depth of the bottom interface",
+    "electron_sheet_density_cm2": "electrons integrated over the layer",
+    "hole_sheet_density_cm2": "holes integrated over the layer",
+}
+
+ROOT_ATTRS = ("schema", "schema_version", "selfcon_version", "created", "title", "temperature_K",
+              "converged", "iterations", "residual_V", "message", "deck")
+
+_STR = None  # h5py.string_dtype(), set lazily
+
+
+def _h5py():
+    import h5py
+    global _STR
+    if _STR is None:
+        _STR = h5py.string_dtype("utf-8")
+    return h5py
+
+
+def _guess_units(name: str) -> str:
+    """Units of a column or dataset named by the project's conventions (suffix rules)."""
+    if name.endswith("_cm2"):
+        return "cm-2"
+    if name.endswith("_cm3") or name.endswith("_density") or name.startswith("ionized_"):
+        return "cm-3"
+    if name.endswith("_nm"):
+        return "nm"
+    if name.endswith("_eV") or name.endswith("_band"):
+        return "eV"
+    if name.endswith("_V"):
+        return "V"
+    if name.endswith("_s"):
+        return "s"
+    if name.endswith("_K"):
+        return "K"
+    return "1"
+
+
+# --------------------------------------------------------------------------- writing
+
+def _attr_value(value):
+    """A Python/numpy value as an HDF5-attribute-friendly value (strings as UTF-8 vlen)."""
+    if isinstance(value, (bool, np.bool_)):
+        return np.bool_(value)
+    if isinstance(value, str):
+        return value
+    if isinstance(value, (int, np.integer)):
+        return np.int64(value)
+    if isinstance(value, (float, np.floating)):
+        return np.float64(value)
+    if value is None:
+        return "None"
+    if isinstance(value, (list, tuple, np.ndarray)):
+        arr = np.asarray(value)
+        if arr.dtype.kind in "USO":
+            return np.array([str(v) for v in arr.ravel()], dtype=_STR).reshape(arr.shape)
+        return arr
+    raise TypeError(f"cannot store attribute value of type {type(value).__name__}")
+
+
+def _dataset(group, name, data, units, description):
+    ds = group.create_dataset(name, data=np.asarray(data), track_order=True)
+    ds.attrs["units"] = units
+    ds.attrs["description"] = description
+    return ds
+
+
+def _utc_now() -> str:
+    """Now as ISO 8601 UTC, seconds resolution: 2024-05-01T12:00:00Z."""
+    now = _dt.datetime.now(_dt.timezone.utc).replace(microsecond=0)
+    return now.isoformat().replace("+00:00", "Z")
+
+
+def _write_root(f, result: Result) -> None:
+    from . import __version__
+    prov = dict(result.provenance or {})
+    created = prov.get("created") or _utc_now()
+    a = f.attrs
+    a["schema"] = SCHEMA
+    a["schema_version"] = np.int64(SCHEMA_VERSION)
+    a["selfcon_version"] = str(prov.get("selfcon_version", __version__))
+    a["created"] = str(created)
+    a["title"] = str(result.title)
+    a["temperature_K"] = np.float64(result.temperature)
+    a["converged"] = np.bool_(result.converged)
+    a["iterations"] = np.int64(result.iterations)
+    a["residual_V"] = np.float64(result.residual)
+    a["message"] = str(result.message)
+    a["deck"] = str(result.deck_text)
+    keys = []
+    for key, value in prov.items():
+        if (key in ROOT_ATTRS and key not in ("selfcon_version", "created")) or key == "provenance_keys":
+            raise ValueError(f"provenance key {key!r} collides with a root attribute of the result file")
+        a[key] = _attr_value(value)
+        keys.append(key)
+    a["provenance_keys"] = np.array(keys, dtype=_STR)
+
+
+def _write_mesh(f, result: Result) -> None:
+    g = f.create_group("mesh", track_order=True)
+    g.attrs["description"] = "finite-volume mesh; every profile is aligned with /mesh/z"
+    _dataset(g, "z", result.z, "nm", "node depth, z = 0 at the top surface, growing into the wafer")
+    regions = np.asarray(result.regions_nm, dtype=np.float64).reshape(-1, 2)
+    _dataset(g, "quantum_regions", regions, "nm",
+             "[top, bottom] of each quantum region; states are solved there, classical densities elsewhere")
+
+
+def _write_profile(f, result: Result) -> None:
+    g = f.create_group("profile", track_order=True)
+    g.attrs["description"] = "profiles at the nodes of /mesh/z; energies relative to EF = 0 eV"
+    for name, data in result.profile.items():
+        if name in PROFILE_FIELDS:
+            units, desc = PROFILE_FIELDS[name]
+        elif name in EXTRA_PROFILE_FIELDS:
+            units, desc = EXTRA_PROFILE_FIELDS[name]
+        else:
+            units, desc = _guess_units(name), f"profile {name}"
+        _dataset(g, name, data, units, desc)
+    _dataset(g, "layer_index", result.layer_index, *EXTRA_PROFILE_FIELDS["layer_index"])
+
+
+def _layer_table(layers):
+    """Rows (dicts) -> numpy structured array with fixed-length UTF-8 strings and float/int numbers."""
+    h5py = _h5py()
+    columns: list[str] = []
+    for row in layers:
+        for key in row:
+            if key not in columns:
+                columns.append(key)
+    fields = []
+    for key in columns:
+        values = [row.get(key) for row in layers]
+        present = [v for v in values if v is not None]
+        if present and all(isinstance(v, str) for v in present):
+            length = max([len(v.encode("utf-8")) for v in present] + [1])
+            fields.append((key, h5py.string_dtype("utf-8", length)))
+        elif present and all(isinstance(v, (bool, np.bool_)) for v in present):
+            fields.append((key, np.bool_))
+        elif present and all(isinstance(v, (int, np.integer)) and not isinstance(v, (bool, np.bool_))
+                             for v in present):
+            fields.append((key, np.int64))
+        else:
+            fields.append((key, np.float64))
+    table = np.zeros(len(layers), dtype=fields)
+    for i, row in enumerate(layers):
+        for key, dt in fields:
+            v = row.get(key)
+            if np.dtype(dt).kind == "S":
+                table[key][i] = (v or "").encode("utf-8")
+            elif v is None:
+                table[key][i] = np.nan if np.dtype(dt).kind == "f" else 0
+            else:
+                table[key][i] = v
+    return table
+
+
+def _write_layers(f, result: Result) -> None:
+    table = _layer_table(result.layers)
+    names = list(table.dtype.names or ())
+    ds = f.create_dataset("layers", data=table, track_order=True)
+    ds.attrs["units"] = np.array([LAYER_UNITS.get(n, _guess_units(n)) for n in names], dtype=_STR)
+    ds.attrs["columns"] = np.array(names, dtype=_STR)
+    ds.attrs["column_descriptions"] = np.array([LAYER_DESCRIPTIONS.get(n, n.replace("_", " ")) for n in names],
+                                               dtype=_STR)
+    ds.attrs["description"] = ("one row per deck layer, top to bottom; 'units' and 'column_descriptions' "
+                               "list one entry per column, in column order")
+
+
+def _write_subbands(f, result: Result) -> None:
+    g = f.create_group("subbands", track_order=True)
+    g.attrs["description"] = "bound states per band, ordered by energy"
+    for band, sb in result.subbands.items():
+        gb = g.create_group(band, track_order=True)
+        for name, (units, desc) in SUBBAND_FIELDS.items():
+            _dataset(gb, name, getattr(sb, name), units, desc)
+
+
+def _write_convergence(f, result: Result) -> None:
+    g = f.create_group("convergence", track_order=True)
+    g.attrs["description"] = "history of the self-consistent loop, one entry per iteration"
+    history = np.asarray(result.residual_history)
+    _dataset(g, "residual", history, *RECORD_FIELDS["residual"])
+    record_keys = []
+    for key, values in (result.record or {}).items():
+        values = np.asarray(values)
+        if key == "residual" and values.shape == history.shape and values.dtype == history.dtype \
+                and np.array_equal(values, history, equal_nan=values.dtype.kind == "f"):
+            record_keys.append(key)        # same data as /convergence/residual
+            continue
+        name = "record_residual" if key == "residual" else key
+        units, desc = RECORD_FIELDS.get(key, (_guess_units(key), f"per-iteration record {key}"))
+        _dataset(g, name, values, units, desc)
+        record_keys.append(key)
+    g.attrs["record_keys"] = np.array(record_keys, dtype=_STR)
+
+
+def _write_summary(f, result: Result) -> None:
+    g = f.create_group("summary", track_order=True)
+    g.attrs["description"] = "headline figures of the solution (sheet densities in cm-2, energies in eV)"
+    for key, value in (result.summary or {}).items():
+        if key in ("warnings", "description"):
+            raise ValueError(f"summary key {key!r} is reserved in the result file")
+        g.attrs[key] = _attr_value(value)
+    g.attrs["warnings"] = np.array([str(w) for w in result.warnings], dtype=_STR)
+
+
+_WRITERS = (_write_root, _write_mesh, _write_profile, _write_layers, _write_subbands,
+            _write_convergence, _write_summary)
+
+
+def _write_file(path: str, result: Result) -> None:
+    h5py = _h5py()
+    with h5py.File(path, "w", track_order=True) as f:
+        for write in _WRITERS:
+            write(f, result)
+        f.flush()
+
+
+def _fsync(path) -> None:
+    fd = os.open(path, os.O_RDONLY)
+    try:
+        os.fsync(fd)
+    finally:
+        os.close(fd)
+
+
+def save_result(result: Result, path, *, force: bool = False) -> None:
+    """Write ``result`` to ``path`` (HDF5, DESIGN.md §4) atomically.
+
+    Raises :class:`ResultFileError` if ``path`` exists and ``force`` is false, or if its
+    folder does not exist.  On any failure the temporary file is removed and an existing
+    ``path`` is left as it was.
+    """
+    path = Path(path)
+    folder = path.parent if str(path.parent) else Path(".")
+    if not folder.is_dir():
+        raise ResultFileError("output folder does not exist", file=str(path))
+    if path.is_dir():
+        raise ResultFileError("output path is a folder", file=str(path))
+    if path.exists() and not force:
+        raise ResultFileError("output file exists; pass --force (or force=True) to overwrite it",
+                              file=str(path))
+    fd, tmp = tempfile.mkstemp(prefix=f".{path.name}.", suffix=".tmp", dir=folder)
+    os.close(fd)
+    try:
+        _write_file(tmp, result)
+        _fsync(tmp)
+        os.replace(tmp, path)
+    except BaseException:
+        try:
+            os.unlink(tmp)
+        except FileNotFoundError:
+            pass
+        raise
+    try:  # make the rename itself durable; not possible everywhere
+        _fsync(folder)
+    except OSError:
+        pass
+
+
+# --------------------------------------------------------------------------- reading
+
+def _py(value):
+    """HDF5 attribute value -> plain Python (str, bool, int, float, list)."""
+    if isinstance(value, bytes):
+        return value.decode("utf-8")
+    if isinstance(value, np.bool_):
+        return bool(value)
+    if isinstance(value, np.integer):
+        return int(value)
+    if isinstance(value, np.floating):
+        return float(value)
+    if isinstance(value, np.ndarray):
+        if value.dtype.kind in "OSU":
+            return [v.decode("utf-8") if isinstance(v, bytes) else str(v) for v in value.ravel()]
+        return value.tolist()
+    return value
+
+
+def _strings(value) -> list[str]:
+    if value is None:
+        return []
+    return [v.decode("utf-8") if isinstance(v, bytes) else str(v) for v in np.asarray(value).ravel()]
+
+
+def _need(f, name, path):
+    if name not in f:
+        raise ResultFileError(f"incomplete result file: {name} is missing", file=str(path))
+    return f[name]
+
+
+def load_result(path) -> Result:
+    """Read a result file written by :func:`save_result` back into a :class:`Result`."""
+    h5py = _h5py()
+    path = Path(path)
+    if not path.exists():
+        raise ResultFileError("no such result file", file=str(path))
+    if not h5py.is_hdf5(str(path)):
+        raise ResultFileError("not an HDF5 file (expected a selfcon result .h5)", file=str(path))
+    with h5py.File(path, "r") as f:
+        a = f.attrs
+        schema = _py(a.get("schema"))
+        if schema != SCHEMA:
+            raise ResultFileError(f"not a selfcon result file (schema={schema!r}, expected {SCHEMA!r})",
+                                  file=str(path))
+        version = _py(a.get("schema_version"))
+        if not isinstance(version, int):
+            raise ResultFileError("result file has no valid schema_version", file=str(path))
+        if version > SCHEMA_VERSION:
+            raise ResultFileError(
+                f"result file has schema_version {version}, newer than this selfcon reads "
+                f"({SCHEMA_VERSION}); upgrade selfcon to read it", file=str(path))
+        z = _need(f, "mesh/z", path)[()]
+        regions = f["mesh/quantum_regions"][()] if "mesh/quantum_regions" in f else np.zeros((0, 2))
+        gp = _need(f, "profile", path)
+        profile = {name: gp[name][()] for name in gp if name != "layer_index"}
+        layer_index = _need(f, "profile/layer_index", path)[()]
+        table = _need(f, "layers", path)[()]
+        layers = []
+        for row in table:
+            rec = {}
+            for key in table.dtype.names:
+                v = row[key]
+                if isinstance(v, bytes):
+                    rec[key] = v.decode("utf-8")
+                else:
+                    rec[key] = _py(v)
+            layers.append(rec)
+        subbands = {}
+        for band, gb in _need(f, "subbands", path).items():
+            subbands[band] = Subbands(**{name: gb[name][()] for name in SUBBAND_FIELDS})
+        gc = _need(f, "convergence", path)
+        history = gc["residual"][()]
+        record = {}
+        for key in _strings(gc.attrs.get("record_keys")):
+            name = "record_residual" if key == "residual" and "record_residual" in gc else key
+            record[key] = gc[name][()]
+        gs = _need(f, "summary", path)
+        summary = {k: _py(v) for k, v in gs.attrs.items() if k not in ("warnings", "description")}
+        warnings = _strings(gs.attrs.get("warnings"))
+        provenance = {k: _py(a[k]) for k in _strings(a.get("provenance_keys"))}
+        return Result(
+            title=_py(a["title"]), temperature=_py(a["temperature_K"]), converged=_py(a["converged"]),
+            iterations=_py(a["iterations"]), residual=_py(a["residual_V"]), message=_py(a["message"]),
+            deck_text=_py(a["deck"]), z=z, profile=profile, layer_index=layer_index, layers=layers,
+            subbands=subbands, residual_history=history, summary=summary, warnings=warnings,
+            provenance=provenance, record=record,
+            regions_nm=[(float(t), float(b)) for t, b in np.asarray(regions).reshape(-1, 2)],
+        )
