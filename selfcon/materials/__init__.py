@@ -22,6 +22,10 @@ __all__ = ["names", "is_alloy", "describe", "cell_parameters", "PARAMETERS", "OU
 
 #: the words ``needs`` understands
 NEEDS = frozenset({"heavy_hole", "light_hole", "x_valley", "l_valley", "thermal_ionization"})
+#: carrier names a deck may use for the X and L valleys; any other word in ``needs``
+#: (e.g. "electron": Γ electrons need nothing optional) is ignored
+_NEED_ALIASES = {"x_electron": "x_valley", "l_electron": "l_valley",
+                 "thermal": "thermal_ionization"}
 
 
 def names():
@@ -49,7 +53,7 @@ def cell_parameters(name, x, temperature, local_defs=(), needs=frozenset()):
     ``x``: ndarray of alloy fractions per cell (ignored for binaries; NaN means
     "not given").  ``temperature`` in K.  ``local_defs``: deck-local materials
     (objects with ``.name``, ``.base``, ``.x``, ``.params`` = ((key, value), …)).
-    ``needs`` ⊆ NEEDS makes optional groups of a base-less deck-local material
+    Words of ``needs`` in NEEDS make optional groups of a base-less deck-local material
     required; when absent and not needed they are filled: X/L gaps
     FILL_VALLEY_OFFSET (10 eV) above the Γ gap with the Γ Varshni terms, X/L
     masses FILL_MASS (1 m0), Luttinger γ1 = 1, γ2 = γ3 = 0 (hole masses 1 m0),
@@ -63,12 +67,10 @@ def cell_parameters(name, x, temperature, local_defs=(), needs=frozenset()):
     t = float(temperature)
     if not np.isfinite(t) or t < 0.0:
         raise MaterialError(f"temperature must be >= 0 K, got {temperature!r}", key="temperature")
-    unknown_needs = set(needs) - NEEDS
-    if unknown_needs:
-        raise ValueError(f"unknown needs {sorted(unknown_needs)}; allowed {sorted(NEEDS)}")
+    needs = frozenset(_NEED_ALIASES.get(w, w) for w in needs) & NEEDS   # others ("electron"): no-op
     local = _local_map(local_defs)
     _lookup_error(name, local)
-    prim = _rules.resolve(name, x, t, local, frozenset(needs))
+    prim = _rules.resolve(name, x, t, local, needs)
     _rules.validate(name, prim)
     return _rules.derived(prim)
 
