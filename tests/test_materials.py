@@ -245,6 +245,8 @@ def test_local_with_alloy_base_layer_x_and_chain():
     e = Def("Softer", base="SoftAlGaAs", params=(("electron_mass", 0.1),))
     p = one("Softer", 0.2, defs=[d, e])
     assert p["eps"] == 11.0 and p["m_e"] == 0.1
+    q = one("Softer", 0.2, defs={"SoftAlGaAs": d, "Softer": e})   # a mapping name -> def works too
+    assert q == p
 
 
 # ---------------------------------------------------------------- errors

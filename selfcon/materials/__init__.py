@@ -39,6 +39,11 @@ def is_alloy(name):
 
 
 def _local_map(local_defs):
+    """Deck-local definitions by name; accepts an iterable of defs or a mapping name -> def."""
+    if local_defs is None:
+        return {}
+    if hasattr(local_defs, "values"):
+        local_defs = local_defs.values()
     return {d.name: d for d in local_defs}
 
 
