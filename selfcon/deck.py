@@ -1,0 +1,1184 @@
+"""Deck reader: a TOML deck (DESIGN.md §3) into validated, immutable objects.
+
+    deck = load_deck("inputs/hemt.toml", overrides=["layer.spacer.thickness=12"])
+    deck.layer("spacer").thickness      # 12.0 (nm)
+    deck.to_toml()                      # canonical text of the effective deck
+    deck.hash()                         # sha256 of that text
+
+Units are those of the deck and are kept here: nm, cm^-3, cm^-2, eV, V, K.
+Conversion to internal units (nm^-3, nm^-2) happens in structure.py.
+Every key, its type, unit, default and meaning is in :data:`KEYS`;
+:func:`deck_reference` lists them as rows for the README.
+
+Choices made here (they are part of the deck contract):
+
+* ``[surface]`` is required: the top contact decides the band bending, so it
+  must be written down.  ``[substrate]`` may be left out and then means
+  ``contact = "ohmic"`` (local neutrality at the bottom): a designer's stack
+  usually ends in a thick buffer on a conducting or thick substrate.
+* ``barrier`` (eV) is required for ``schottky`` and ``pinned`` contacts and
+  refused for ``ohmic`` and ``free``; ``bias`` (V) is accepted only for
+  ``schottky`` (default 0).
+* Layers are numbered from 0 in key paths (``layer[2].x``) and overrides
+  (``layer.2.x``), the same numbering as /profile/layer_index in results.
+  An unnamed layer is called ``layer<index>``.  Names are letters, digits,
+  ``_`` and ``-``, not all digits, unique.
+* A deck-local ``[material.NAME]`` may not reuse a library name (write
+  ``[material.MyGaAs] base = "GaAs"`` to start from a library entry).
+* Doping above 1e22 cm^-3 or sheets above 1e16 cm^-2 are refused as unit
+  mistakes (they exceed the density of atoms).
+* Numbers: int or float accepted, bool refused, inf/nan refused.  Integer
+  keys accept integral floats (a study sweeping 4.0, 5.0, ... states).
+
+Errors are :class:`selfcon.errors.DeckError`, one line:
+``FILE:LINE: KEY: what is wrong (allowed: ...)``.
+"""
+from __future__ import annotations
+
+import copy
+import dataclasses
+import difflib
+import hashlib
+import math
+import numbers
+import os
+import re
+import tomllib
+from dataclasses import dataclass, field
+from typing import Any
+
+from .errors import DeckError
+
+__all__ = ["load_deck", "parse_override", "deck_reference", "dumps_toml", "KEYS",
+           "Deck", "Contact", "Layer", "MaterialDef", "Params", "Physics",
+           "QuantumSpec", "MeshSpec", "SolverSpec", "DeckError"]
+
+TEXT_NAME = "<deck>"
+
+# ---------------------------------------------------------------------------
+# key table: the single source for validation, defaults and documentation
+# ---------------------------------------------------------------------------
+
+
+class _Required:
+    def __repr__(self):
+        return "required"
+
+
+REQUIRED = _Required()
+
+
+@dataclass(frozen=True)
+class KeySpec:
+    """One deck key.  ``kind``: number | integer | string | fraction | carriers | regions."""
+
+    kind: str
+    unit: str
+    default: Any
+    doc: str
+    lo: float | None = None          # lower limit
+    lo_open: bool = False            # True: value must be > lo, else >= lo
+    hi: float | None = None
+    hi_open: bool = False
+    choices: tuple | None = None     # for strings (None: free text); a callable name for lazy lists
+
+
+CONTACT_KINDS = ("schottky", "ohmic", "pinned", "free")
+BARRIER_KINDS = ("schottky", "pinned")
+CARRIERS = ("electron", "heavy_hole", "light_hole")
+IONIZATION = ("thermal", "full")
+SOLVER_METHODS = ("predictor-corrector", "anderson", "linear")
+LIBRARY_FALLBACK = ("GaAs", "AlAs", "InAs", "InP", "AlGaAs", "InGaAs", "InAlAs")
+
+_TOP = {
+    "title": KeySpec("string", "-", "", "free text, shown in reports and stored in results"),
+    "temperature": KeySpec("number", "K", REQUIRED, "lattice and carrier temperature",
+                           lo=0.0, lo_open=True, hi=1000.0),
+}
+_CONTACT = {
+    "contact": KeySpec("string", "-", REQUIRED,
+                       "boundary kind: schottky (metal; Ec - EF = barrier - bias), ohmic (local "
+                       "neutrality), pinned (Fermi level pinned, Ec - EF = barrier), free (zero field)",
+                       choices=CONTACT_KINDS),
+    "barrier": KeySpec("number", "eV", None, "Ec - EF at the contact; required for schottky and "
+                       "pinned, refused for ohmic and free"),
+    "bias": KeySpec("number", "V", 0.0, "voltage on a schottky gate; positive bias lowers Ec at "
+                    "the contact (schottky only)"),
+}
+_LAYER = {
+    "name": KeySpec("string", "-", "layer<index>", "unique name used by overrides and studies "
+                    "(letters, digits, _ and -, not all digits)"),
+    "material": KeySpec("string", "-", REQUIRED, "library material or a [material.NAME] of this deck"),
+    "x": KeySpec("fraction", "-", None, "alloy fraction in [0, 1]; graded: [top, bottom], linear in z",
+                 lo=0.0, hi=1.0),
+    "thickness": KeySpec("number", "nm", REQUIRED, "layer thickness", lo=0.0, lo_open=True),
+    "donors": KeySpec("number", "cm^-3", 0.0, "uniform donor density", lo=0.0, hi=1e22),
+    "acceptors": KeySpec("number", "cm^-3", 0.0, "uniform acceptor density", lo=0.0, hi=1e22),
+    "sheet_donors": KeySpec("number", "cm^-2", 0.0, "delta sheet of donors at the layer centre",
+                            lo=0.0, hi=1e16),
+    "sheet_acceptors": KeySpec("number", "cm^-2", 0.0, "delta sheet of acceptors at the layer centre",
+                               lo=0.0, hi=1e16),
+}
+
+
+def _p(unit, doc, **kw):
+    return KeySpec("number", unit, None, doc, **kw)
+
+
+_POS = dict(lo=0.0, lo_open=True)
+_NONNEG = dict(lo=0.0)
+
+#: deck-local material parameters (all optional here; completeness is checked by selfcon.materials)
+MATERIAL_PARAMS = {
+    "band_gap": _p("eV", "Gamma gap at 0 K", **_POS),
+    "varshni_alpha": _p("eV/K", "Varshni alpha of the Gamma gap"),
+    "varshni_beta": _p("K", "Varshni beta of the Gamma gap", **_NONNEG),
+    "valence_band_offset": _p("eV", "valence band maximum on the common scale; Ec = VBO + Eg(T)"),
+    "electron_mass": _p("m0", "Gamma electron effective mass", **_POS),
+    "permittivity": _p("-", "static relative permittivity", **_POS),
+    "luttinger_gamma1": _p("-", "Luttinger gamma1 (hole masses along [001])", **_POS),
+    "luttinger_gamma2": _p("-", "Luttinger gamma2"),
+    "luttinger_gamma3": _p("-", "Luttinger gamma3"),
+    "x_gap": _p("eV", "X-valley gap at 0 K", **_POS),
+    "l_gap": _p("eV", "L-valley gap at 0 K", **_POS),
+    "x_mass_long": _p("m0", "X-valley longitudinal mass", **_POS),
+    "x_mass_trans": _p("m0", "X-valley transverse mass", **_POS),
+    "l_mass_long": _p("m0", "L-valley longitudinal mass", **_POS),
+    "l_mass_trans": _p("m0", "L-valley transverse mass", **_POS),
+    "donor_binding": _p("eV", "donor binding energy below Ec", **_NONNEG),
+    "acceptor_binding": _p("eV", "acceptor binding energy above Ev", **_NONNEG),
+    "spin_orbit": _p("eV", "spin-orbit split-off energy", **_NONNEG),
+    "x_varshni_alpha": _p("eV/K", "Varshni alpha of the X gap"),
+    "x_varshni_beta": _p("K", "Varshni beta of the X gap", **_NONNEG),
+    "l_varshni_alpha": _p("eV/K", "Varshni alpha of the L gap"),
+    "l_varshni_beta": _p("K", "Varshni beta of the L gap", **_NONNEG),
+}
+_MATERIAL = {
+    "base": KeySpec("string", "-", None, "library material to start from (its parameters, then "
+                    "the ones given here)"),
+    "x": KeySpec("number", "-", None, "alloy fraction of the base, in [0, 1]", lo=0.0, hi=1.0),
+    **MATERIAL_PARAMS,
+}
+_PHYSICS = {
+    "carriers": KeySpec("carriers", "-", CARRIERS, "bands solved for: any non-empty subset",
+                        choices=CARRIERS),
+    "ionization": KeySpec("string", "-", "thermal", "thermal (donor/acceptor levels, "
+                          "Fermi-Dirac occupied) | full (all dopants ionised)", choices=IONIZATION),
+}
+_QUANTUM = {
+    "regions": KeySpec("regions", "nm", None, "quantum regions [[top, bottom], ...], sorted, "
+                       "non-overlapping; default the whole stack; [] = fully classical"),
+    "states": KeySpec("integer", "-", 10, "bound states per band and region", lo=1),
+}
+_MESH = {
+    "step": KeySpec("number", "nm", 0.5, "largest step inside quantum regions", **_POS),
+    "fine": KeySpec("number", "nm", None, "step at interfaces and sheets (default: mesher's choice)",
+                    **_POS),
+    "bulk_step": KeySpec("number", "nm", None, "largest step in classical bulk (default: mesher's "
+                         "choice)", **_POS),
+    "growth": KeySpec("number", "-", None, "largest ratio of neighbouring steps (default: mesher's "
+                      "choice)", lo=1.0, lo_open=True, hi=2.0),
+}
+_SOLVER = {
+    "method": KeySpec("string", "-", "predictor-corrector", "coupling scheme",
+                      choices=SOLVER_METHODS),
+    "tolerance": KeySpec("number", "V", 1e-6, "max |dphi| between iterations", **_POS),
+    "max_iterations": KeySpec("integer", "-", 100, "iteration limit (then converged = false)", lo=1),
+    "charge_tolerance": KeySpec("number", "-", 1e-6, "relative change of the sheet charge", **_POS),
+    "mixing": KeySpec("number", "-", None, "mixing factor in (0, 1] (default: the method's own)",
+                      lo=0.0, lo_open=True, hi=1.0),
+    "history": KeySpec("integer", "-", 6, "Anderson history depth", lo=1),
+}
+
+#: table name -> {key: KeySpec}; "" is the top level, "material" is per [material.NAME]
+KEYS = {"": _TOP, "surface": _CONTACT, "substrate": _CONTACT, "layer": _LAYER,
+        "material": _MATERIAL, "physics": _PHYSICS, "quantum": _QUANTUM, "mesh": _MESH,
+        "solver": _SOLVER}
+TABLES = ("surface", "substrate", "layer", "material", "physics", "quantum", "mesh", "solver")
+TOP_KEYS = tuple(_TOP) + TABLES
+_SIMPLE_TABLES = ("surface", "substrate", "physics", "quantum", "mesh", "solver")
+
+_TYPE_NAMES = {"number": "number", "integer": "integer", "string": "string",
+               "fraction": "number or [top, bottom]", "carriers": "list of strings",
+               "regions": "list of [top, bottom]"}
+
+
+def deck_reference():
+    """Rows ``(path, type, unit, default, description)`` for every deck key, in deck order."""
+    def dflt(spec):
+        d = spec.default
+        if d is REQUIRED:
+            return "required"
+        if d is None:
+            return "-"
+        if isinstance(d, tuple):
+            return "[" + ", ".join(_toml_value(v) for v in d) + "]"
+        return d if isinstance(d, str) and d.startswith("layer<") else _toml_value(d)
+
+    def doc(spec):
+        unit = "" if spec.unit == "-" else " " + spec.unit
+        if spec.kind == "fraction":
+            return spec.doc
+        if spec.lo is not None and spec.hi is not None:
+            rng = (f"in {'(' if spec.lo_open else '['}{_num(spec.lo)}, "
+                   f"{_num(spec.hi)}{')' if spec.hi_open else ']'}{unit}")
+        elif spec.lo is not None:
+            rng = f"{'>' if spec.lo_open else '>='} {_num(spec.lo)}{unit}"
+        else:
+            return spec.doc
+        return f"{spec.doc}; {rng}"
+
+    rows = []
+    for key, spec in _TOP.items():
+        rows.append((key, _TYPE_NAMES[spec.kind], spec.unit, dflt(spec), doc(spec)))
+    rows.append(("surface", "table", "-", "required", "the contact at z = 0 (top surface)"))
+    for key, spec in _CONTACT.items():
+        rows.append((f"surface.{key}", _TYPE_NAMES[spec.kind], spec.unit, dflt(spec), doc(spec)))
+    rows.append(("substrate", "table", "-", 'contact = "ohmic"', "the contact at the bottom; "
+                 "same keys as surface"))
+    rows.append(("layer", "array of tables", "-", "required", "the stack, top to bottom ([[layer]])"))
+    for key, spec in _LAYER.items():
+        rows.append((f"layer.{key}", _TYPE_NAMES[spec.kind], spec.unit, dflt(spec), doc(spec)))
+    rows.append(("material.NAME", "table", "-", "-", "deck-local material named NAME"))
+    for key, spec in _MATERIAL.items():
+        rows.append((f"material.NAME.{key}", _TYPE_NAMES[spec.kind], spec.unit, dflt(spec), doc(spec)))
+    for table in ("physics", "quantum", "mesh", "solver"):
+        for key, spec in KEYS[table].items():
+            rows.append((f"{table}.{key}", _TYPE_NAMES[spec.kind], spec.unit, dflt(spec), doc(spec)))
+    return rows
+
+
+# ---------------------------------------------------------------------------
+# the immutable deck objects
+# ---------------------------------------------------------------------------
+
+
+class Choices(tuple):
+    """The ``allowed`` of an error: a tuple that prints as ``a, b, c``."""
+
+    __slots__ = ()
+
+    def __str__(self):
+        return ", ".join(str(c) for c in self)
+
+
+class Params(tuple):
+    """Ordered ``((key, value), ...)`` of material parameters (floats)."""
+
+    __slots__ = ()
+
+    def get(self, key, default=None):
+        for k, v in self:
+            if k == key:
+                return v
+        return default
+
+    def names(self):
+        return tuple(k for k, _ in self)
+
+    def as_dict(self):
+        return {k: v for k, v in self}
+
+
+@dataclass(frozen=True)
+class Contact:
+    kind: str                     # schottky | ohmic | pinned | free
+    barrier: float | None         # eV, Ec - EF at the contact (schottky, pinned)
+    bias: float = 0.0             # V (schottky only; 0.0 otherwise)
+
+
+@dataclass(frozen=True)
+class Layer:
+    index: int                    # 0-based, as /profile/layer_index
+    name: str
+    material: str
+    x_top: float | None           # alloy fraction at the top, None if not given
+    x_bottom: float | None        # at the bottom (== x_top unless graded)
+    thickness: float              # nm
+    donors: float = 0.0           # cm^-3
+    acceptors: float = 0.0        # cm^-3
+    sheet_donors: float = 0.0     # cm^-2 at the layer centre
+    sheet_acceptors: float = 0.0  # cm^-2
+    line: int | None = field(default=None, compare=False)   # [[layer]] line in the deck file
+
+    @property
+    def graded(self):
+        return self.x_top is not None and self.x_top != self.x_bottom
+
+
+@dataclass(frozen=True)
+class MaterialDef:
+    name: str
+    base: str | None
+    x: float | None
+    params: Params                # only the parameters given in the deck
+
+
+@dataclass(frozen=True)
+class Physics:
+    carriers: tuple = CARRIERS
+    ionization: str = "thermal"
+
+
+@dataclass(frozen=True)
+class QuantumSpec:
+    regions: tuple | None = None  # ((top, bottom), ...) nm; None = whole stack; () = classical
+    states: int = 10
+
+
+@dataclass(frozen=True)
+class MeshSpec:
+    step: float = 0.5
+    fine: float | None = None
+    bulk_step: float | None = None
+    growth: float | None = None
+
+
+@dataclass(frozen=True)
+class SolverSpec:
+    method: str = "predictor-corrector"
+    tolerance: float = 1e-6
+    max_iterations: int = 100
+    charge_tolerance: float = 1e-6
+    mixing: float | None = None
+    history: int = 6
+
+
+@dataclass(frozen=True)
+class Deck:
+    title: str
+    temperature: float            # K
+    surface: Contact
+    substrate: Contact
+    layers: tuple                 # of Layer, top to bottom
+    materials: tuple              # of MaterialDef (deck-local), in deck order
+    physics: Physics
+    quantum: QuantumSpec
+    mesh: MeshSpec
+    solver: SolverSpec
+    text: str = field(default="", compare=False, repr=False)
+    path: str | None = field(default=None, compare=False)
+    overrides: tuple = field(default=(), compare=False)     # ((canonical key, value), ...)
+    _raw: dict = field(default_factory=dict, compare=False, repr=False)
+    _source: str = field(default="", compare=False, repr=False)
+
+    # -- look-ups ---------------------------------------------------------
+    @property
+    def total_thickness(self):
+        """Stack thickness in nm."""
+        return math.fsum(l.thickness for l in self.layers)
+
+    def layer_bounds(self):
+        """``((top, bottom), ...)`` of every layer in nm, z = 0 at the surface."""
+        out, z = [], 0.0
+        for l in self.layers:
+            out.append((z, z + l.thickness))
+            z += l.thickness
+        return tuple(out)
+
+    def layer(self, name_or_index):
+        """The Layer with that name or 0-based index (DeckError listing the names otherwise)."""
+        if isinstance(name_or_index, numbers.Integral) and not isinstance(name_or_index, bool):
+            i = int(name_or_index)
+            if 0 <= i < len(self.layers):
+                return self.layers[i]
+            raise DeckError(f"no layer {i} (the stack has {len(self.layers)})", file=self._file,
+                            key=f"layer.{i}", allowed=Choices(range(len(self.layers))))
+        for l in self.layers:
+            if l.name == name_or_index:
+                return l
+        names = [l.name for l in self.layers]
+        raise DeckError(f"no layer named {name_or_index!r}{_did_you_mean(str(name_or_index), names)}",
+                        file=self._file, key=f"layer.{name_or_index}", allowed=Choices(names))
+
+    def material(self, name):
+        """The deck-local MaterialDef called ``name``, or None (a library material)."""
+        for m in self.materials:
+            if m.name == name:
+                return m
+        return None
+
+    # -- locations, for errors raised by other modules -----------------------
+    @property
+    def _file(self):
+        return self.path or TEXT_NAME
+
+    def line_of(self, key):
+        """Line of a key path (``layer[2].x``, ``surface.barrier``) in the deck file, or None."""
+        return _locate(self._source, key)
+
+    def error(self, key, message, allowed=None, cls=DeckError):
+        """An exception (not raised) located at ``key`` in this deck's file.
+
+        For other modules: ``raise deck.error("layer[2].x", "AlGaAs needs x", cls=MaterialError)``.
+        """
+        line = None if _is_overridden(key, self.overrides) else self.line_of(key)
+        if line is None and _is_overridden(key, self.overrides):
+            message += " (value set by override)"
+        return cls(_one_line(message), file=self._file, line=line, key=key, allowed=allowed)
+
+    # -- derived decks and serialisation ---------------------------------------
+    def with_overrides(self, items):
+        """A new validated Deck with ``items`` ("PATH=VALUE" strings or {path: value}) applied."""
+        pairs = _override_pairs(items)
+        raw = copy.deepcopy(self._raw)
+        done = list(self.overrides)
+        for path, value in pairs:
+            done.append((_apply_override(raw, path, value, self._file), value))
+        return _build(raw, self._source, self.path, tuple(done))
+
+    def to_toml(self):
+        """Canonical TOML of the effective deck (defaults filled in; None values left out)."""
+        return dumps_toml(self._canonical())
+
+    def hash(self):
+        """sha256 hex digest of :meth:`to_toml`."""
+        return hashlib.sha256(self.to_toml().encode("utf-8")).hexdigest()
+
+    def _canonical(self):
+        def contact(c):
+            d = {"contact": c.kind}
+            if c.barrier is not None:
+                d["barrier"] = c.barrier
+            if c.kind == "schottky":
+                d["bias"] = c.bias
+            return d
+
+        def layer(l):
+            d = {"name": l.name, "material": l.material}
+            if l.x_top is not None:
+                d["x"] = [l.x_top, l.x_bottom] if l.graded else l.x_top
+            for k in ("thickness", "donors", "acceptors", "sheet_donors", "sheet_acceptors"):
+                d[k] = getattr(l, k)
+            return d
+
+        def table(obj):
+            return {f.name: getattr(obj, f.name) for f in dataclasses.fields(obj)
+                    if getattr(obj, f.name) is not None}
+
+        out = {"title": self.title, "temperature": self.temperature,
+               "surface": contact(self.surface), "substrate": contact(self.substrate),
+               "layer": [layer(l) for l in self.layers]}
+        if self.materials:
+            mats = {}
+            for m in self.materials:
+                d = {}
+                if m.base is not None:
+                    d["base"] = m.base
+                if m.x is not None:
+                    d["x"] = m.x
+                d.update(m.params.as_dict())
+                mats[m.name] = d
+            out["material"] = mats
+        out["physics"] = {"carriers": list(self.physics.carriers),
+                          "ionization": self.physics.ionization}
+        q = {}
+        if self.quantum.regions is not None:
+            q["regions"] = [list(r) for r in self.quantum.regions]
+        q["states"] = self.quantum.states
+        out["quantum"] = q
+        out["mesh"] = table(self.mesh)
+        out["solver"] = table(self.solver)
+        return out
+
+
+# ---------------------------------------------------------------------------
+# loading
+# ---------------------------------------------------------------------------
+
+
+def load_deck(path_or_text, overrides=()):
+    """Read and validate a deck.
+
+    ``path_or_text``: an ``os.PathLike`` is a path; a ``str`` holding a newline or ``=``
+    is TOML text (shown as ``<deck>`` in errors); any other ``str`` is a path.
+    ``overrides``: "PATH=VALUE" strings or a {path: value} dict, applied before validation.
+    """
+    if isinstance(path_or_text, os.PathLike) or (
+            isinstance(path_or_text, str) and "\n" not in path_or_text and "=" not in path_or_text):
+        path = os.fspath(path_or_text)
+        try:
+            with open(path, "rb") as fh:
+                data = fh.read()
+        except FileNotFoundError:
+            raise DeckError("deck file not found", file=path) from None
+        except IsADirectoryError:
+            raise DeckError("is a directory, not a deck file", file=path) from None
+        except OSError as exc:
+            raise DeckError(f"cannot read deck: {exc.strerror or exc}", file=path) from None
+        try:
+            text = data.decode("utf-8")
+        except UnicodeDecodeError as exc:
+            raise DeckError(f"not UTF-8 text (byte {exc.start})", file=path) from None
+    elif isinstance(path_or_text, str):
+        path, text = None, path_or_text
+    else:
+        raise DeckError(f"load_deck wants a path or TOML text, got {type(path_or_text).__name__}")
+    file = path or TEXT_NAME
+    raw = _parse_toml(text, file)
+    done = []
+    for p, value in _override_pairs(overrides):
+        done.append((_apply_override(raw, p, value, file), value))
+    return _build(raw, text, path, tuple(done))
+
+
+def _parse_toml(text, file):
+    try:
+        return tomllib.loads(text)
+    except tomllib.TOMLDecodeError as exc:
+        msg = str(exc)
+        line = None
+        m = re.search(r"\s*\(at line (\d+), column (\d+)\)\s*$", msg)
+        if m:
+            line = int(m.group(1))
+            msg = msg[:m.start()] + f" (column {m.group(2)})"
+        elif msg.endswith("(at end of document)"):
+            line = text.count("\n") + (0 if text.endswith("\n") else 1) or 1
+            msg = msg[:-len("(at end of document)")].rstrip() + " (at end of file)"
+        raise DeckError(_one_line(f"TOML syntax: {msg}"), file=file, line=line) from None
+
+
+# ---------------------------------------------------------------------------
+# overrides
+# ---------------------------------------------------------------------------
+
+_PATH_PART = re.compile(r"^[A-Za-z0-9_-]+$")
+
+
+def parse_override(item):
+    """``"layer.spacer.thickness=12"`` -> ``("layer.spacer.thickness", 12)``.
+
+    The value is read as a TOML value (numbers, booleans, "strings", [lists]); anything
+    else is taken as a bare string (``surface.contact=ohmic``).
+    """
+    if not isinstance(item, str) or "=" not in item:
+        raise DeckError(f"override {item!r} must be PATH=VALUE, e.g. layer.spacer.thickness=12",
+                        key=str(item))
+    path, _, text = item.partition("=")
+    path, text = path.strip(), text.strip()
+    if not path or not all(_PATH_PART.match(p) for p in path.split(".")):
+        raise DeckError(_one_line(f"override path {path!r} must be dot-separated names, e.g. "
+                                  "layer.spacer.thickness or surface.bias"), key=path or item)
+    if not text:
+        raise DeckError("override has no value after '='", key=path)
+    try:
+        parsed = tomllib.loads("v = " + text)
+        if set(parsed) != {"v"}:
+            raise tomllib.TOMLDecodeError("more than one value")
+        value = parsed["v"]
+    except tomllib.TOMLDecodeError:
+        if text[0] in "[{\"'" or "\n" in text:
+            raise DeckError(_one_line(f"override value {text!r} is not a valid TOML value"),
+                            key=path) from None
+        value = text
+    return path, value
+
+
+def _override_pairs(items):
+    if items is None:
+        return []
+    if isinstance(items, dict):
+        return [(str(k).strip(), v) for k, v in items.items()]
+    if isinstance(items, str):
+        items = [items]
+    out = []
+    for it in items:
+        if isinstance(it, tuple) and len(it) == 2:
+            out.append((str(it[0]).strip(), it[1]))
+        else:
+            out.append(parse_override(it))
+    return out
+
+
+def _apply_override(raw, path, value, file):
+    """Apply one override to the raw dict in place; returns the canonical key path."""
+    parts = path.split(".")
+    root = parts[0]
+
+    def bad(msg, allowed):
+        return DeckError(_one_line(msg), file=file, key=path, allowed=Choices(allowed))
+
+    def put(table, key, canon):
+        if value is None:
+            table.pop(key, None)
+        else:
+            table[key] = value
+        return canon
+
+    if root in _TOP:
+        if len(parts) != 1:
+            raise bad(f"{root} is a value, not a table", ())
+        return put(raw, root, root)
+    if root in _SIMPLE_TABLES:
+        keys = list(KEYS[root])
+        if len(parts) != 2:
+            raise bad(f"override path must be {root}.KEY", keys)
+        key = parts[1]
+        if key not in keys:
+            raise bad(f"unknown key {key!r} in [{root}]{_did_you_mean(key, keys)}", keys)
+        table = raw.setdefault(root, {})
+        if not isinstance(table, dict):
+            raise bad(f"{root} in the deck is not a table", ())
+        return put(table, key, f"{root}.{key}")
+    if root == "layer":
+        layers = raw.get("layer")
+        if not isinstance(layers, list) or not all(isinstance(l, dict) for l in layers):
+            raise bad("the deck has no [[layer]] stack to override", ())
+        names = [l.get("name", f"layer{i}") for i, l in enumerate(layers)]
+        if len(parts) != 3:
+            raise bad("override path must be layer.NAME.KEY or layer.INDEX.KEY", names)
+        sel, key = parts[1], parts[2]
+        if sel.isdigit():
+            i = int(sel)
+            if i >= len(layers):
+                raise bad(f"no layer {i}: the stack has {len(layers)} layers, numbered from 0",
+                          [str(j) for j in range(len(layers))])
+        elif sel in names:
+            i = names.index(sel)
+        else:
+            raise bad(f"no layer named {sel!r}{_did_you_mean(sel, names)}", names)
+        keys = list(_LAYER)
+        if key not in keys:
+            raise bad(f"unknown layer key {key!r}{_did_you_mean(key, keys)}", keys)
+        return put(layers[i], key, f"layer[{i}].{key}")
+    if root == "material":
+        mats = raw.get("material")
+        local = list(mats) if isinstance(mats, dict) else []
+        if len(parts) != 3:
+            raise bad("override path must be material.NAME.KEY", local)
+        name, key = parts[1], parts[2]
+        if name not in local:
+            hint = (" (library materials cannot be changed: define [material.MyName] "
+                    "with base = ... in the deck)") if name in _library_names() else ""
+            raise bad(f"no deck-local material {name!r}{_did_you_mean(name, local)}{hint}", local)
+        keys = list(_MATERIAL)
+        if key not in keys:
+            raise bad(f"unknown material key {key!r}{_did_you_mean(key, keys)}", keys)
+        if not isinstance(mats[name], dict):
+            raise bad(f"material.{name} in the deck is not a table", ())
+        return put(mats[name], key, f"material.{name}.{key}")
+    raise bad(f"unknown override root {root!r}{_did_you_mean(root, TOP_KEYS)}", TOP_KEYS)
+
+
+def _is_overridden(key, overrides):
+    for k, _ in overrides:
+        if key == k or key.startswith(k + "[") or key.startswith(k + "."):
+            return True
+    return False
+
+
+# ---------------------------------------------------------------------------
+# lazy look-ups of other modules' registries
+# ---------------------------------------------------------------------------
+
+
+def _library_names():
+    try:
+        from . import materials
+        return tuple(materials.names())
+    except (ImportError, AttributeError):
+        return LIBRARY_FALLBACK
+
+
+def _solver_methods():
+    try:
+        from . import mixing
+        return tuple(mixing.available_methods())
+    except (ImportError, AttributeError):
+        return SOLVER_METHODS
+
+
+# ---------------------------------------------------------------------------
+# validation
+# ---------------------------------------------------------------------------
+
+_NAME = re.compile(r"^[A-Za-z0-9_-]+$")
+
+
+def _one_line(s):
+    return " ".join(str(s).splitlines())
+
+
+def _did_you_mean(word, choices):
+    choices = [str(c) for c in choices]
+    lower = [c for c in choices if c.lower() == str(word).lower() and c != word]
+    close = lower or difflib.get_close_matches(str(word), choices, n=1, cutoff=0.6)
+    return f" (did you mean {close[0]!r}?)" if close else ""
+
+
+def _show(v):
+    if isinstance(v, str):
+        return repr(v)
+    if isinstance(v, bool):
+        return "true" if v else "false"
+    if isinstance(v, dict):
+        return "a table"
+    if isinstance(v, list):
+        return _one_line(repr(v))[:60]
+    return repr(v)
+
+
+def _type_of(v):
+    if isinstance(v, bool):
+        return "boolean"
+    if isinstance(v, str):
+        return "string"
+    if isinstance(v, numbers.Real):
+        return "number"
+    if isinstance(v, dict):
+        return "table"
+    if isinstance(v, (list, tuple)):
+        return "list"
+    return type(v).__name__
+
+
+class _Ctx:
+    def __init__(self, text, path, overrides):
+        self.text = text
+        self.file = path or TEXT_NAME
+        self.overrides = overrides
+
+    def error(self, key, message, allowed=None):
+        over = _is_overridden(key, self.overrides) if key else False
+        line = None if over else _locate(self.text, key)
+        if over:
+            message += " (value set by override)"
+        return DeckError(_one_line(message), file=self.file, line=line, key=key,
+                         allowed=Choices(allowed) if allowed is not None else None)
+
+    def check_keys(self, table, spec, prefix, label):
+        for k in table:
+            if k not in spec:
+                hint = _did_you_mean(k, spec)
+                if not hint and k in TOP_KEYS and prefix:
+                    hint = f" ({k!r} is a top-level key: put it before the first [table] header)"
+                raise self.error(f"{prefix}{k}" if prefix else k,
+                                 f"unknown key {k!r} in {label}{hint}", allowed=list(spec))
+
+    def number(self, key, v, spec):
+        if isinstance(v, bool) or not isinstance(v, numbers.Real):
+            raise self.error(key, f"must be a number ({_unit(spec)}), got {_type_of(v)} {_show(v)}")
+        v = float(v)
+        if not math.isfinite(v):
+            raise self.error(key, f"must be a finite number ({_unit(spec)}), got {v!r}")
+        self.limits(key, v, spec)
+        return v
+
+    def integer(self, key, v, spec):
+        if isinstance(v, bool) or not isinstance(v, numbers.Real) or (
+                not isinstance(v, numbers.Integral) and not float(v).is_integer()):
+            raise self.error(key, f"must be an integer, got {_type_of(v)} {_show(v)}")
+        v = int(v)
+        self.limits(key, v, spec)
+        return v
+
+    def string(self, key, v, spec, choices=None):
+        if not isinstance(v, str):
+            raise self.error(key, f"must be a string, got {_type_of(v)} {_show(v)}",
+                             allowed=choices)
+        if choices is not None and v not in choices:
+            raise self.error(key, f"unknown value {v!r}{_did_you_mean(v, choices)}", allowed=choices)
+        return v
+
+    def limits(self, key, v, spec):
+        lo_ok = spec.lo is None or (v > spec.lo if spec.lo_open else v >= spec.lo)
+        hi_ok = spec.hi is None or (v < spec.hi if spec.hi_open else v <= spec.hi)
+        if lo_ok and hi_ok:
+            return
+        unit = "" if spec.unit == "-" else " " + spec.unit
+        if spec.lo is not None and spec.hi is not None:
+            rng = (f"in {'(' if spec.lo_open else '['}{_num(spec.lo)}, "
+                   f"{_num(spec.hi)}{')' if spec.hi_open else ']'}{unit}")
+        elif spec.lo is not None:
+            rng = f"{'>' if spec.lo_open else '>='} {_num(spec.lo)}{unit}"
+        else:
+            rng = f"{'<' if spec.hi_open else '<='} {_num(spec.hi)}{unit}"
+        raise self.error(key, f"must be {rng}, got {_num(v)}")
+
+    def get(self, table, name, spec, prefix, choices=None):
+        """Value of ``table[name]`` checked against ``spec``, or its default."""
+        key = f"{prefix}{name}"
+        if name not in table:
+            if spec.default is REQUIRED:
+                what = f" ({_unit(spec)})" if spec.kind == "number" else ""
+                raise self.error(key, f"is required{what}: {spec.doc}",
+                                 allowed=choices or spec.choices)
+            return spec.default
+        v = table[name]
+        if spec.kind == "number":
+            return self.number(key, v, spec)
+        if spec.kind == "integer":
+            return self.integer(key, v, spec)
+        if spec.kind == "string":
+            return self.string(key, v, spec, choices or spec.choices)
+        raise AssertionError(spec.kind)
+
+
+def _num(v):
+    if isinstance(v, float) and v.is_integer() and abs(v) < 1e16:
+        return str(int(v))
+    return repr(v)
+
+
+def _unit(spec):
+    return "dimensionless" if spec.unit == "-" else spec.unit
+
+
+def _table(ctx, raw, name, required=False, default=None):
+    if name not in raw:
+        if required:
+            raise ctx.error(name, f"[{name}] table is required")
+        return dict(default or {})
+    t = raw[name]
+    if not isinstance(t, dict):
+        raise ctx.error(name, f"must be a table [{name}], got {_type_of(t)} {_show(t)}")
+    return t
+
+
+def _build(raw, text, path, overrides):
+    ctx = _Ctx(text, path, overrides)
+    ctx.check_keys(raw, {k: None for k in TOP_KEYS}, "", "the deck (top level)")
+
+    title = ctx.get(raw, "title", _TOP["title"], "")
+    temperature = ctx.get(raw, "temperature", _TOP["temperature"], "")
+
+    surface = _contact(ctx, _table(ctx, raw, "surface", required=True), "surface")
+    substrate = _contact(ctx, _table(ctx, raw, "substrate", default={"contact": "ohmic"}),
+                         "substrate")
+
+    materials = _materials(ctx, raw)
+    layers = _layers(ctx, raw, materials)
+    total = math.fsum(l.thickness for l in layers)
+
+    physics = _physics(ctx, _table(ctx, raw, "physics"))
+    quantum = _quantum(ctx, _table(ctx, raw, "quantum"), total)
+    mesh = _mesh(ctx, _table(ctx, raw, "mesh"))
+    solver = _solver(ctx, _table(ctx, raw, "solver"))
+
+    deck = Deck(title=title, temperature=temperature, surface=surface, substrate=substrate,
+                layers=layers, materials=materials, physics=physics, quantum=quantum,
+                mesh=mesh, solver=solver, text="", path=path, overrides=overrides,
+                _raw=copy.deepcopy(raw), _source=text)
+    object.__setattr__(deck, "text", text if not overrides else deck.to_toml())
+    return deck
+
+
+def _contact(ctx, t, name):
+    p = f"{name}."
+    ctx.check_keys(t, _CONTACT, p, f"[{name}]")
+    kind = ctx.get(t, "contact", _CONTACT["contact"], p)
+    if kind in BARRIER_KINDS:
+        if "barrier" not in t:
+            raise ctx.error(f"{p}barrier", f"is required for a {kind} contact "
+                            "(eV, Ec - EF at the contact)")
+        barrier = ctx.get(t, "barrier", _CONTACT["barrier"], p)
+    else:
+        if "barrier" in t:
+            raise ctx.error(f"{p}barrier", f"is not used by a {kind} contact; only "
+                            f"{' and '.join(BARRIER_KINDS)} contacts take a barrier")
+        barrier = None
+    if "bias" in t and kind != "schottky":
+        raise ctx.error(f"{p}bias", f"is not used by a {kind} contact; only schottky contacts "
+                        "take a bias")
+    bias = ctx.get(t, "bias", _CONTACT["bias"], p)
+    return Contact(kind=kind, barrier=barrier, bias=bias)
+
+
+def _materials(ctx, raw):
+    t = _table(ctx, raw, "material")
+    library = set(_library_names())
+    out = []
+    for name, m in t.items():
+        key = f"material.{name}"
+        if not isinstance(m, dict):
+            raise ctx.error(key, f"must be a table [material.{name}], got {_type_of(m)} {_show(m)}")
+        if not _NAME.match(name):
+            raise ctx.error(key, f"material name {name!r} may hold only letters, digits, _ and -")
+        if name in library:
+            raise ctx.error(key, f"{name!r} is a library material; give the deck-local one "
+                            f"another name and write base = \"{name}\"")
+        p = f"{key}."
+        ctx.check_keys(m, _MATERIAL, p, f"[material.{name}]")
+        base = ctx.get(m, "base", _MATERIAL["base"], p)
+        x = ctx.get(m, "x", _MATERIAL["x"], p)
+        params = Params((k, ctx.get(m, k, spec, p)) for k, spec in MATERIAL_PARAMS.items() if k in m)
+        out.append(MaterialDef(name=name, base=base, x=x, params=params))
+    return tuple(out)
+
+
+def _layers(ctx, raw, materials):
+    if "layer" not in raw:
+        raise ctx.error("layer", "the stack is empty: give at least one [[layer]] "
+                        "(material and thickness)")
+    arr = raw["layer"]
+    if isinstance(arr, dict):
+        raise ctx.error("layer", "must be an array of tables: write [[layer]], not [layer]")
+    if not isinstance(arr, list) or not all(isinstance(l, dict) for l in arr):
+        raise ctx.error("layer", f"must be an array of tables [[layer]], got {_type_of(arr)}")
+    if not arr:
+        raise ctx.error("layer", "the stack is empty: give at least one [[layer]]")
+    local = [m.name for m in materials]
+    known = local + sorted(set(_library_names()))
+    out, seen = [], {}
+    for i, t in enumerate(arr):
+        p = f"layer[{i}]."
+        ctx.check_keys(t, _LAYER, p, f"[[layer]] {i}")
+        if "name" in t:
+            name = ctx.string(f"{p}name", t["name"], _LAYER["name"])
+            if not _NAME.match(name) or name.isdigit():
+                raise ctx.error(f"{p}name", f"layer name {name!r} must be letters, digits, _ and "
+                                "-, not all digits (so layer.NAME and layer.INDEX differ)")
+        else:
+            name = f"layer{i}"
+        if name in seen:
+            raise ctx.error(f"{p}name", f"duplicate layer name {name!r} (also layer {seen[name]}; "
+                            "unnamed layers are called layer<index>)")
+        seen[name] = i
+        material = ctx.get(t, "material", _LAYER["material"], p)
+        if material not in known:
+            raise ctx.error(f"{p}material", f"unknown material {material!r}"
+                            f"{_did_you_mean(material, known)}", allowed=known)
+        x_top = x_bottom = None
+        if "x" in t:
+            x_top, x_bottom = _fraction(ctx, f"{p}x", t["x"], _LAYER["x"])
+        thickness = ctx.get(t, "thickness", _LAYER["thickness"], p)
+        dens = {k: ctx.get(t, k, _LAYER[k], p)
+                for k in ("donors", "acceptors", "sheet_donors", "sheet_acceptors")}
+        out.append(Layer(index=i, name=name, material=material, x_top=x_top, x_bottom=x_bottom,
+                         thickness=thickness, line=_locate(ctx.text, f"layer[{i}]"), **dens))
+    return tuple(out)
+
+
+def _fraction(ctx, key, v, spec):
+    if isinstance(v, (list, tuple)):
+        if len(v) != 2:
+            raise ctx.error(key, f"must be a number or [top, bottom] (graded), got a list of "
+                            f"{len(v)} values")
+        return ctx.number(key, v[0], spec), ctx.number(key, v[1], spec)
+    if isinstance(v, bool) or not isinstance(v, numbers.Real):
+        raise ctx.error(key, f"must be a number or [top, bottom] in [0, 1], got {_type_of(v)} "
+                        f"{_show(v)}")
+    x = ctx.number(key, v, spec)
+    return x, x
+
+
+def _physics(ctx, t):
+    p = "physics."
+    ctx.check_keys(t, _PHYSICS, p, "[physics]")
+    carriers = CARRIERS
+    if "carriers" in t:
+        v, key = t["carriers"], "physics.carriers"
+        if isinstance(v, str):
+            v = [v]
+        if not isinstance(v, (list, tuple)):
+            raise ctx.error(key, f"must be a list of strings, got {_type_of(v)} {_show(v)}",
+                            allowed=CARRIERS)
+        if not v:
+            raise ctx.error(key, "must name at least one carrier", allowed=CARRIERS)
+        for c in v:
+            ctx.string(key, c, _PHYSICS["carriers"], CARRIERS)
+        dup = [c for c in v if list(v).count(c) > 1]
+        if dup:
+            raise ctx.error(key, f"{dup[0]!r} is listed twice", allowed=CARRIERS)
+        carriers = tuple(v)
+    ionization = ctx.get(t, "ionization", _PHYSICS["ionization"], p)
+    return Physics(carriers=carriers, ionization=ionization)
+
+
+def _quantum(ctx, t, total):
+    p = "quantum."
+    ctx.check_keys(t, _QUANTUM, p, "[quantum]")
+    regions = None
+    if "regions" in t:
+        v, key = t["regions"], "quantum.regions"
+        if not isinstance(v, (list, tuple)):
+            raise ctx.error(key, f"must be a list of [top, bottom] pairs in nm, got {_type_of(v)}")
+        spec = KeySpec("number", "nm", None, "")
+        regs = []
+        tol = 1e-9 * max(total, 1.0)
+        for j, r in enumerate(v):
+            k = f"{key}[{j}]"
+            if not isinstance(r, (list, tuple)) or len(r) != 2:
+                raise ctx.error(k, f"must be a [top, bottom] pair in nm, got {_show(r)}")
+            top, bot = ctx.number(k, r[0], spec), ctx.number(k, r[1], spec)
+            if not 0.0 <= top < bot:
+                raise ctx.error(k, f"needs 0 <= top < bottom (nm), got [{_num(top)}, {_num(bot)}]")
+            if bot > total + tol:
+                raise ctx.error(k, f"bottom {_num(bot)} nm lies below the stack "
+                                f"(total thickness {_num(total)} nm)")
+            if regs and top < regs[-1][1]:
+                raise ctx.error(k, f"[{_num(top)}, {_num(bot)}] overlaps or precedes "
+                                f"[{_num(regs[-1][0])}, {_num(regs[-1][1])}]: regions must be "
+                                "sorted top to bottom and must not overlap")
+            regs.append((top, min(bot, total) if bot > total else bot))
+        regions = tuple(regs)
+    states = ctx.get(t, "states", _QUANTUM["states"], p)
+    return QuantumSpec(regions=regions, states=states)
+
+
+def _mesh(ctx, t):
+    p = "mesh."
+    ctx.check_keys(t, _MESH, p, "[mesh]")
+    vals = {k: ctx.get(t, k, spec, p) for k, spec in _MESH.items()}
+    step, fine, bulk = vals["step"], vals["fine"], vals["bulk_step"]
+    if fine is not None and fine > step:
+        raise ctx.error("mesh.fine", f"must be <= mesh.step ({_num(step)} nm), got {_num(fine)} nm")
+    if bulk is not None and bulk < step:
+        raise ctx.error("mesh.bulk_step", f"must be >= mesh.step ({_num(step)} nm), got "
+                        f"{_num(bulk)} nm")
+    return MeshSpec(**vals)
+
+
+def _solver(ctx, t):
+    p = "solver."
+    ctx.check_keys(t, _SOLVER, p, "[solver]")
+    vals = {}
+    for k, spec in _SOLVER.items():
+        choices = _solver_methods() if k == "method" else None
+        vals[k] = ctx.get(t, k, spec, p, choices=choices)
+    return SolverSpec(**vals)
+
+
+# ---------------------------------------------------------------------------
+# locating a key path in the source text
+# ---------------------------------------------------------------------------
+
+_HEADER = re.compile(r"^\s*(\[\[?)\s*([A-Za-z0-9_\-.\"' ]+?)\s*\]\]?\s*(?:#.*)?$")
+
+
+def _norm(name):
+    return ".".join(part.strip().strip("\"'") for part in name.split("."))
+
+
+def _split_key(key):
+    """``layer[2].x`` -> ("layer", 2, "x"); ``material.M.band_gap`` -> ("material.M", None,
+    "band_gap"); ``surface`` -> ("surface", None, None); ``temperature`` -> ("", None, ...)."""
+    key = re.sub(r"(\.\w+)\[\d+\]$", r"\1", key)       # quantum.regions[1] -> quantum.regions
+    m = re.match(r"^(\w+)\[(\d+)\](?:\.(.+))?$", key)
+    if m:
+        return m.group(1), int(m.group(2)), m.group(3)
+    parts = key.split(".")
+    if parts[0] == "material":
+        if len(parts) == 1:
+            return "material", None, None
+        return "material." + parts[1], None, ".".join(parts[2:]) or None
+    if parts[0] in TABLES:
+        return parts[0], None, ".".join(parts[1:]) or None
+    return "", None, key
+
+
+def _locate(text, key):
+    """1-based line of ``key`` in ``text`` (its ``key =`` line, else its table header), or None."""
+    if not text or not key:
+        return None
+    table, index, leaf = _split_key(key)
+    leaf_re = re.compile(r"^\s*([\"']?)" + re.escape(leaf) + r"\1\s*=") if leaf else None
+    current, count, inside, header_line = "", {}, table == "", None
+    for n, line in enumerate(text.splitlines(), 1):
+        m = _HEADER.match(line)
+        if m and "=" not in line:
+            name = _norm(m.group(2))
+            is_array = m.group(1) == "[["
+            if is_array:
+                count[name] = count.get(name, -1) + 1
+            current = name
+            inside = (name == table) and (index is None or (is_array and count[name] == index))
+            if inside and header_line is None:
+                header_line = n
+                if leaf_re is None:
+                    return n
+            elif not inside and header_line is not None and index is not None:
+                break
+            continue
+        if inside and leaf_re is not None and leaf_re.match(line):
+            return n
+        if current == "" and table and index is None:
+            # dotted keys or inline tables at the top level: surface.bias = ... / surface = {...}
+            head = re.escape(table.split(".")[0])
+            if re.match(r"^\s*" + head + r"\s*[.=]", line) and header_line is None:
+                header_line = n
+    return header_line
+
+
+# ---------------------------------------------------------------------------
+# a small TOML writer (canonical, deterministic)
+# ---------------------------------------------------------------------------
+
+_BARE = re.compile(r"^[A-Za-z0-9_-]+$")
+
+
+def _toml_key(k):
+    return k if _BARE.match(k) else _toml_str(k)
+
+
+def _toml_str(s):
+    out = ['"']
+    for ch in s:
+        o = ord(ch)
+        if ch == '"':
+            out.append('\\"')
+        elif ch == "\\":
+            out.append("\\\\")
+        elif ch == "\n":
+            out.append("\\n")
+        elif ch == "\t":
+            out.append("\\t")
+        elif o < 0x20 or o == 0x7F:
+            out.append(f"\\u{o:04x}")
+        else:
+            out.append(ch)
+    out.append('"')
+    return "".join(out)
+
+
+def _toml_value(v):
+    if isinstance(v, bool):
+        return "true" if v else "false"
+    if isinstance(v, str):
+        return _toml_str(v)
+    if isinstance(v, numbers.Integral):
+        return str(int(v))
+    if isinstance(v, numbers.Real):
+        f = float(v)
+        if math.isnan(f):
+            return "nan"
+        if math.isinf(f):
+            return "inf" if f > 0 else "-inf"
+        return repr(f)
+    if isinstance(v, (list, tuple)):
+        return "[" + ", ".join(_toml_value(x) for x in v) + "]"
+    if isinstance(v, dict):
+        return "{" + ", ".join(f"{_toml_key(k)} = {_toml_value(x)}" for k, x in v.items()) + "}"
+    raise TypeError(f"cannot write {type(v).__name__} to TOML")
+
+
+def _is_table_array(v):
+    return isinstance(v, (list, tuple)) and len(v) > 0 and all(isinstance(x, dict) for x in v)
+
+
+def dumps_toml(data):
+    """Serialise a dict (str/int/float/bool, lists, tables, arrays of tables) to TOML text."""
+    lines = []
+    _dump_table(data, [], lines)
+    return "\n".join(lines).strip("\n") + "\n"
+
+
+def _dump_table(data, prefix, lines, header=None):
+    scalars = [(k, v) for k, v in data.items() if not isinstance(v, dict) and not _is_table_array(v)]
+    if header is not None and (scalars or not any(isinstance(v, dict) or _is_table_array(v)
+                                                  for v in data.values())):
+        lines.append("")
+        lines.append(header)
+    for k, v in scalars:
+        lines.append(f"{_toml_key(k)} = {_toml_value(v)}")
+    for k, v in data.items():
+        path = prefix + [_toml_key(k)]
+        if isinstance(v, dict):
+            _dump_table(v, path, lines, "[" + ".".join(path) + "]")
+        elif _is_table_array(v):
+            for item in v:
+                lines.append("")
+                lines.append("[[" + ".".join(path) + "]]")
+                sub = []
+                _dump_table(item, path, sub)
+                lines.extend(sub)
