@@ -1,0 +1,22 @@
+"""`python -m selfcon.batch batch|queue ...`: the batch commands on their own (same as `selfcon batch`)."""
+import argparse
+import sys
+
+from ..errors import SelfconInputError
+from .commands import register
+
+
+def main(argv=None):
+    parser = argparse.ArgumentParser(prog="python -m selfcon.batch")
+    sub = parser.add_subparsers(dest="command", required=True)
+    register(sub)
+    args = parser.parse_args(argv)
+    try:
+        return args.func(args)
+    except SelfconInputError as exc:
+        print(f"error: {exc}", file=sys.stderr)
+        return 2
+
+
+if __name__ == "__main__":
+    sys.exit(main())

@@ -1,0 +1,279 @@
+"""The job queue: one SQLite file (WAL mode) in the study's output folder.
+
+Only the coordinator writes (it holds ``coordinator.lock`` while it runs); the
+workers never see the database.  Status values:
+
+    queued -> running -> done | not_converged | failed
+    retired: a job that is no longer part of the study (kept, never run)
+
+A claim is a single ``UPDATE ... WHERE status = 'queued' ... RETURNING`` so it
+is atomic even if another writer appeared.  Keep the folder on a local disk:
+SQLite's locking is unreliable on network file systems.
+"""
+from __future__ import annotations
+
+import fcntl
+import json
+import os
+import sqlite3
+import time
+from contextlib import contextmanager
+from pathlib import Path
+
+from ..errors import StudyError
+
+SCHEMA_VERSION = 1
+STATUSES = ("queued", "running", "done", "not_converged", "failed", "retired")
+FINISHED = ("done", "not_converged", "failed")
+
+_SCHEMA = """
+CREATE TABLE IF NOT EXISTS meta (key TEXT PRIMARY KEY, value TEXT NOT NULL);
+CREATE TABLE IF NOT EXISTS jobs (
+    id           INTEGER PRIMARY KEY,
+    study_index  INTEGER,
+    deck_hash    TEXT NOT NULL UNIQUE,
+    deck_text    TEXT NOT NULL,
+    varied       TEXT NOT NULL,
+    status       TEXT NOT NULL DEFAULT 'queued'
+                 CHECK (status IN ('queued','running','done','not_converged','failed','retired')),
+    attempts     INTEGER NOT NULL DEFAULT 0,
+    error        TEXT,
+    message      TEXT,
+    neighbour    INTEGER,
+    queued_at    REAL,
+    started_at   REAL,
+    finished_at  REAL,
+    seconds      REAL,
+    result_path  TEXT,
+    iterations   INTEGER,
+    converged    INTEGER,
+    warm_start   INTEGER NOT NULL DEFAULT 0,
+    summary      TEXT
+);
+CREATE INDEX IF NOT EXISTS jobs_status ON jobs(status, study_index);
+"""
+
+
+def db_path(out_dir) -> Path:
+    return Path(out_dir) / "queue.sqlite"
+
+
+def connect(out_dir, *, readonly=False) -> sqlite3.Connection:
+    path = db_path(out_dir)
+    if readonly:
+        if not path.is_file():
+            raise StudyError("no queue here (queue.sqlite missing)", file=str(out_dir))
+        con = sqlite3.connect(f"file:{path}?mode=ro", uri=True, timeout=30)
+    else:
+        Path(out_dir).mkdir(parents=True, exist_ok=True)
+        con = sqlite3.connect(path, timeout=30, isolation_level=None)   # autocommit; explicit BEGINs
+        con.execute("PRAGMA journal_mode=WAL")
+        con.execute("PRAGMA synchronous=NORMAL")
+        con.executescript(_SCHEMA)
+        con.execute("INSERT OR IGNORE INTO meta VALUES ('schema_version', ?)", (str(SCHEMA_VERSION),))
+    con.row_factory = sqlite3.Row
+    return con
+
+
+@contextmanager
+def transaction(con):
+    con.execute("BEGIN IMMEDIATE")
+    try:
+        yield con
+    except BaseException:
+        con.execute("ROLLBACK")
+        raise
+    else:
+        con.execute("COMMIT")
+
+
+class CoordinatorLock:
+    """An exclusive flock on OUTDIR/coordinator.lock; released by the OS if the process dies."""
+
+    def __init__(self, out_dir):
+        self.path = Path(out_dir) / "coordinator.lock"
+        self.fd = None
+
+    def acquire(self):
+        self.path.parent.mkdir(parents=True, exist_ok=True)
+        fd = os.open(self.path, os.O_RDWR | os.O_CREAT, 0o644)
+        try:
+            fcntl.flock(fd, fcntl.LOCK_EX | fcntl.LOCK_NB)
+        except BlockingIOError:
+            os.close(fd)
+            raise StudyError("another selfcon batch is running on this folder", file=str(self.path.parent)) from None
+        os.ftruncate(fd, 0)
+        os.write(fd, f"{os.getpid()}\n".encode())
+        self.fd = fd
+        return self
+
+    def release(self):
+        if self.fd is not None:
+            fcntl.flock(self.fd, fcntl.LOCK_UN)
+            os.close(self.fd)
+            self.fd = None
+
+    def __enter__(self):
+        return self.acquire()
+
+    def __exit__(self, *exc):
+        self.release()
+
+
+def set_meta(con, **items):
+    with transaction(con):
+        for k, v in items.items():
+            con.execute("INSERT INTO meta VALUES (?, ?) ON CONFLICT(key) DO UPDATE SET value = excluded.value",
+                        (k, json.dumps(v)))
+
+
+def get_meta(con, key, default=None):
+    row = con.execute("SELECT value FROM meta WHERE key = ?", (key,)).fetchone()
+    return json.loads(row[0]) if row else default
+
+
+def sync(con, jobs, *, retries) -> dict:
+    """Bring the queue in line with the expanded study.
+
+    New decks are added as queued; decks already done or not_converged are kept;
+    failed jobs with attempts <= retries are requeued; jobs left 'running' by a
+    coordinator that died are requeued; jobs no longer in the study are retired.
+    Returns counts of what changed.
+    """
+    now = time.time()
+    counts = dict(added=0, kept=0, requeued=0, retired=0, revived=0)
+    with transaction(con):
+        existing = {r["deck_hash"]: r for r in con.execute("SELECT id, deck_hash, status, attempts FROM jobs")}
+        hash_to_id = {}
+        for spec in jobs:
+            row = existing.get(spec.deck_hash)
+            varied = json.dumps(spec.values)
+            if row is None:
+                status = "failed" if spec.error else "queued"
+                cur = con.execute(
+                    "INSERT INTO jobs (study_index, deck_hash, deck_text, varied, status, error, queued_at, "
+                    "finished_at) VALUES (?, ?, ?, ?, ?, ?, ?, ?)",
+                    (spec.index, spec.deck_hash, spec.deck_text, varied, status, spec.error, now,
+                     now if spec.error else None))
+                hash_to_id[spec.deck_hash] = cur.lastrowid
+                counts["added"] += 1
+                continue
+            hash_to_id[spec.deck_hash] = row["id"]
+            con.execute("UPDATE jobs SET study_index = ?, varied = ? WHERE id = ?", (spec.index, varied, row["id"]))
+            st = row["status"]
+            if spec.error:
+                con.execute("UPDATE jobs SET status = 'failed', error = ? WHERE id = ?", (spec.error, row["id"]))
+                counts["kept"] += 1
+            elif st == "retired":
+                con.execute("UPDATE jobs SET status = 'queued', attempts = 0, error = NULL, queued_at = ? "
+                            "WHERE id = ?", (now, row["id"]))
+                counts["revived"] += 1
+            elif st == "running":
+                # left over by a coordinator that was killed: that attempt never finished
+                con.execute("UPDATE jobs SET status = 'queued', attempts = MAX(attempts - 1, 0), started_at = NULL "
+                            "WHERE id = ?", (row["id"],))
+                counts["requeued"] += 1
+            elif st == "failed" and not spec.error and row["attempts"] <= retries:
+                con.execute("UPDATE jobs SET status = 'queued', queued_at = ? WHERE id = ?", (now, row["id"]))
+                counts["requeued"] += 1
+            else:
+                counts["kept"] += 1
+        wanted = set(hash_to_id)
+        for h, row in existing.items():
+            if h not in wanted and row["status"] != "retired":
+                con.execute("UPDATE jobs SET status = 'retired', study_index = NULL WHERE id = ?", (row["id"],))
+                counts["retired"] += 1
+        for spec in jobs:
+            nb = hash_to_id[jobs[spec.neighbour].deck_hash] if spec.neighbour is not None else None
+            con.execute("UPDATE jobs SET neighbour = ? WHERE id = ?", (nb, hash_to_id[spec.deck_hash]))
+    return counts
+
+
+def requeue_stale(con):
+    """Jobs left 'running' (coordinator killed) go back to 'queued'."""
+    with transaction(con):
+        n = con.execute("UPDATE jobs SET status = 'queued', attempts = MAX(attempts - 1, 0), started_at = NULL "
+                        "WHERE status = 'running'").rowcount
+    return n
+
+
+def claim(con, *, exclude=()):
+    """Atomically take the next runnable queued job (its neighbour, if any, finished) -> Row or None."""
+    excl = ",".join(str(int(i)) for i in exclude) or "-1"
+    row = con.execute(
+        f"""UPDATE jobs SET status = 'running', attempts = attempts + 1, started_at = ?
+            WHERE id = (SELECT j.id FROM jobs j
+                        WHERE j.status = 'queued' AND j.id NOT IN ({excl})
+                          AND (j.neighbour IS NULL OR
+                               (SELECT n.status FROM jobs n WHERE n.id = j.neighbour)
+                               IN ('done', 'not_converged', 'failed', 'retired'))
+                        ORDER BY j.study_index LIMIT 1)
+              AND status = 'queued'
+            RETURNING id, deck_text, neighbour, attempts, varied""",
+        (time.time(),)).fetchone()
+    return row
+
+
+def claim_id(con, job_id):
+    """Atomically take one given queued job -> Row or None."""
+    return con.execute(
+        "UPDATE jobs SET status = 'running', attempts = attempts + 1, started_at = ? "
+        "WHERE id = ? AND status = 'queued' RETURNING id, deck_text, neighbour, attempts, varied",
+        (time.time(), job_id)).fetchone()
+
+
+def finish(con, job_id, *, status, seconds=None, error=None, message=None, result_path=None,
+           iterations=None, converged=None, summary=None, warm_start=False):
+    assert status in FINISHED
+    con.execute(
+        "UPDATE jobs SET status = ?, finished_at = ?, seconds = ?, error = ?, message = ?, result_path = ?, "
+        "iterations = ?, converged = ?, summary = ?, warm_start = ? WHERE id = ? AND status = 'running'",
+        (status, time.time(), seconds, error, message, result_path, iterations,
+         None if converged is None else int(bool(converged)),
+         json.dumps(summary) if summary is not None else None, int(bool(warm_start)), job_id))
+
+
+def requeue(con, job_id, *, count_attempt=True, error=None):
+    """Put a running job back in the queue (worker died: the attempt counts; interrupted: it does not)."""
+    con.execute(
+        "UPDATE jobs SET status = 'queued', started_at = NULL, error = COALESCE(?, error), "
+        "attempts = attempts - ? WHERE id = ? AND status = 'running'",
+        (error, 0 if count_attempt else 1, job_id))
+
+
+def counts(con) -> dict:
+    out = {s: 0 for s in STATUSES}
+    for status, n in con.execute("SELECT status, COUNT(*) FROM jobs GROUP BY status"):
+        out[status] = n
+    return out
+
+
+def rows(con, *, status=None, include_retired=False):
+    sql = "SELECT * FROM jobs"
+    where, args = [], []
+    if status:
+        where.append(f"status IN ({','.join('?' * len(status))})")
+        args += list(status)
+    elif not include_retired:
+        where.append("status != 'retired'")
+    if where:
+        sql += " WHERE " + " AND ".join(where)
+    sql += " ORDER BY study_index IS NULL, study_index, id"
+    return con.execute(sql, args).fetchall()
+
+
+def retry(con, *, statuses=("failed",), ids=()):
+    """Requeue finished jobs (attempts reset) -> number requeued."""
+    now = time.time()
+    with transaction(con):
+        if ids:
+            q = ",".join("?" * len(ids))
+            n = con.execute(f"UPDATE jobs SET status = 'queued', attempts = 0, queued_at = ? "
+                            f"WHERE id IN ({q}) AND status IN ('done','not_converged','failed') "
+                            f"AND deck_hash NOT LIKE 'invalid-%'",
+                            (now, *ids)).rowcount
+        else:
+            q = ",".join("?" * len(statuses))
+            n = con.execute(f"UPDATE jobs SET status = 'queued', attempts = 0, queued_at = ? "
+                            f"WHERE status IN ({q}) AND deck_hash NOT LIKE 'invalid-%'", (now, *statuses)).rowcount
+    return n
