@@ -312,6 +312,8 @@ class MaterialDef:
     base: str | None
     x: float | None
     params: Params                # only the parameters given in the deck
+    file: str | None = field(default=None, compare=False)   # for located MaterialErrors
+    line: int | None = field(default=None, compare=False)   # [material.NAME] line in the deck
 
 
 @dataclass(frozen=True)
@@ -815,9 +817,13 @@ class _Ctx:
 
 
 def _num(v):
-    if isinstance(v, float) and v.is_integer() and abs(v) < 1e16:
-        return str(int(v))
+    if isinstance(v, float):
+        return f"{v:.12g}"
     return repr(v)
+
+
+def _a(word):
+    return ("an " if word[:1] in "aeiou" else "a ") + word
 
 
 def _unit(spec):
@@ -869,16 +875,16 @@ def _contact(ctx, t, name):
     kind = ctx.get(t, "contact", _CONTACT["contact"], p)
     if kind in BARRIER_KINDS:
         if "barrier" not in t:
-            raise ctx.error(f"{p}barrier", f"is required for a {kind} contact "
+            raise ctx.error(f"{p}barrier", f"is required for {_a(kind)} contact "
                             "(eV, Ec - EF at the contact)")
         barrier = ctx.get(t, "barrier", _CONTACT["barrier"], p)
     else:
         if "barrier" in t:
-            raise ctx.error(f"{p}barrier", f"is not used by a {kind} contact; only "
+            raise ctx.error(f"{p}barrier", f"is not used by {_a(kind)} contact; only "
                             f"{' and '.join(BARRIER_KINDS)} contacts take a barrier")
         barrier = None
     if "bias" in t and kind != "schottky":
-        raise ctx.error(f"{p}bias", f"is not used by a {kind} contact; only schottky contacts "
+        raise ctx.error(f"{p}bias", f"is not used by {_a(kind)} contact; only schottky contacts "
                         "take a bias")
     bias = ctx.get(t, "bias", _CONTACT["bias"], p)
     return Contact(kind=kind, barrier=barrier, bias=bias)
@@ -902,7 +908,9 @@ def _materials(ctx, raw):
         base = ctx.get(m, "base", _MATERIAL["base"], p)
         x = ctx.get(m, "x", _MATERIAL["x"], p)
         params = Params((k, ctx.get(m, k, spec, p)) for k, spec in MATERIAL_PARAMS.items() if k in m)
-        out.append(MaterialDef(name=name, base=base, x=x, params=params))
+        out.append(MaterialDef(name=name, base=base, x=x, params=params, file=ctx.file,
+                               line=None if _is_overridden(key, ctx.overrides)
+                               else _locate(ctx.text, key)))
     return tuple(out)
 
 
@@ -1083,7 +1091,10 @@ def _locate(text, key):
                 count[name] = count.get(name, -1) + 1
             current = name
             inside = (name == table) and (index is None or (is_array and count[name] == index))
-            if inside and header_line is None:
+            if table == "" and leaf and header_line is None and (
+                    name == leaf or name.startswith(leaf + ".")):
+                header_line = n                        # an unknown [table] at the top level
+            if inside and header_line is None and table:
                 header_line = n
                 if leaf_re is None:
                     return n
