@@ -30,6 +30,14 @@ Choices made here (they are part of the deck contract):
 * Numbers: int or float accepted, bool refused, inf/nan refused.  Integer
   keys accept integral floats (a study sweeping 4.0, 5.0, ... states).
 
+Override paths (``--set PATH=VALUE``, studies): ``title``, ``temperature``,
+``surface.KEY``, ``substrate.KEY``, ``layer.NAME.KEY`` or ``layer.INDEX.KEY``,
+``material.NAME.KEY`` (deck-local materials; the key may be new), ``physics.KEY``,
+``quantum.KEY``, ``mesh.KEY``, ``solver.KEY``.  Values are TOML values, else bare
+strings; in the dict form a value of None removes the key.  Overrides are applied
+to the raw deck, then the whole deck is validated again; an error in an overridden
+value carries no file line and says "(value set by override)".
+
 Errors are :class:`selfcon.errors.DeckError`, one line:
 ``FILE:LINE: KEY: what is wrong (allowed: ...)``.
 """
