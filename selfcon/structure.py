@@ -1,0 +1,194 @@
+"""Deck -> Structure: the mesh and every per-cell / per-node array the physics needs.
+
+All arrays are in internal units (nm, eV, nm^-3, nm^-2) and read-only.  Material
+properties are per cell (each cell lies in one layer); sheets sit on nodes.
+Quantum regions are stored as inclusive node-index ranges whose end nodes carry
+the Dirichlet condition psi = 0.
+"""
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+from typing import Any
+
+import numpy as np
+
+from .constants import CM2_PER_NM2, CM3_PER_NM3, KB_EV, NC_PER_M0_K
+from .errors import DeckError
+from .mesh import Mesh, build_mesh
+
+#: per-cell arrays taken from the material library (selfcon.materials.cell_parameters keys)
+MATERIAL_KEYS = ("eps", "ec_gamma", "ec_x", "ec_l", "ev_hh", "ev_lh", "m_e", "m_hh_z", "m_lh_z",
+                 "m_hh_par", "m_lh_par", "m_x_l", "m_x_t", "m_l_l", "m_l_t", "m_c_dos", "m_v_dos",
+                 "donor_binding", "acceptor_binding", "eg_gamma")
+
+
+@dataclass(frozen=True)
+class Contact:
+    kind: str            # schottky | ohmic | pinned | free
+    barrier: float | None
+    bias: float
+
+
+@dataclass(frozen=True)
+class LayerInfo:
+    index: int
+    name: str
+    material: str
+    x_top: float | None
+    x_bottom: float | None
+    top: float           # nm
+    bottom: float        # nm
+    donors: float        # cm^-3
+    acceptors: float     # cm^-3
+    sheet_donors: float  # cm^-2
+    sheet_acceptors: float
+
+
+@dataclass(frozen=True)
+class Structure:
+    mesh: Mesh
+    temperature: float
+    layers: tuple[LayerInfo, ...]
+    cell_layer: np.ndarray          # (N-1,) layer index of each cell
+    layer_index: np.ndarray         # (N,) layer of the node's right cell (last node: last layer)
+    x_cell: np.ndarray              # (N-1,) alloy fraction (NaN for binaries)
+    cell: dict[str, np.ndarray]     # per-cell material arrays (MATERIAL_KEYS) + nc, nv, donors, acceptors
+    sheet_donors: np.ndarray        # (N,) nm^-2
+    sheet_acceptors: np.ndarray     # (N,) nm^-2
+    sheet_ed: np.ndarray            # (N,) donor binding energy at sheet nodes, eV
+    sheet_ea: np.ndarray            # (N,) acceptor binding energy at sheet nodes, eV
+    regions: tuple[tuple[int, int], ...]   # inclusive node ranges
+    regions_nm: tuple[tuple[float, float], ...]
+    carriers: tuple[str, ...]
+    full_ionization: bool
+    states: int
+    surface: Contact
+    substrate: Contact
+    extras: dict[str, Any] = field(default_factory=dict)
+
+    @property
+    def z(self) -> np.ndarray:
+        return self.mesh.z
+
+    @property
+    def n_nodes(self) -> int:
+        return self.mesh.z.size
+
+    @property
+    def kT(self) -> float:
+        return KB_EV * self.temperature
+
+    def node_average(self, cell_values: np.ndarray) -> np.ndarray:
+        """Dual-cell average of a per-cell array onto the nodes."""
+        m = self.mesh
+        out = np.zeros(m.n)
+        out[1:] += m.wl[1:] * cell_values
+        out[:-1] += m.wr[:-1] * cell_values
+        return out / m.w
+
+
+def _contact(spec) -> Contact:
+    return Contact(kind=spec.kind, barrier=spec.barrier, bias=float(spec.bias or 0.0))
+
+
+def _needs(carriers, ionization) -> frozenset:
+    needs = set(carriers)
+    if ionization == "thermal":
+        needs.add("thermal_ionization")
+    return frozenset(needs)
+
+
+def build_structure(deck) -> Structure:
+    """Mesh the deck's stack and fill every array from the material library."""
+    from . import materials
+
+    T = float(deck.temperature)
+    layers = []
+    top = 0.0
+    for L in deck.layers:
+        bottom = top + float(L.thickness)
+        layers.append(LayerInfo(index=L.index, name=L.name, material=L.material,
+                                x_top=L.x_top, x_bottom=L.x_bottom, top=top, bottom=bottom,
+                                donors=float(L.donors), acceptors=float(L.acceptors),
+                                sheet_donors=float(L.sheet_donors),
+                                sheet_acceptors=float(L.sheet_acceptors)))
+        top = bottom
+    total = top
+
+    # quantum regions in nm (default: the whole stack)
+    if deck.quantum.regions is None:
+        regions_nm = ((0.0, total),)
+    else:
+        regions_nm = tuple((float(a), float(b)) for a, b in deck.quantum.regions)
+    for k, (a, b) in enumerate(regions_nm):
+        if not (0.0 <= a < b <= total + 1e-9):
+            raise DeckError(f"region [{a}, {b}] nm lies outside the stack (0 to {total:g} nm)",
+                            file=deck.path, key=f"quantum.regions[{k}]")
+
+    key_points = {0.0, total}
+    for Li in layers:
+        key_points.update((Li.top, Li.bottom))
+        if Li.sheet_donors or Li.sheet_acceptors:
+            key_points.add(0.5 * (Li.top + Li.bottom))
+    for a, b in regions_nm:
+        key_points.update((a, min(b, total)))
+    ms = deck.mesh
+    mesh = build_mesh(sorted(key_points), regions_nm, step=ms.step, fine=ms.fine,
+                      bulk_step=ms.bulk_step, growth=ms.growth)
+    z, n = mesh.z, mesh.z.size
+    zc = 0.5 * (z[:-1] + z[1:])
+
+    bounds = np.array([Li.bottom for Li in layers])
+    cell_layer = np.minimum(np.searchsorted(bounds, zc), len(layers) - 1).astype(np.int64)
+    layer_index = np.empty(n, dtype=np.int64)
+    layer_index[:-1] = cell_layer
+    layer_index[-1] = cell_layer[-1]
+
+    needs = _needs(deck.physics.carriers, deck.physics.ionization)
+    x_cell = np.full(n - 1, np.nan)
+    cell = {k: np.empty(n - 1) for k in MATERIAL_KEYS}
+    cell["donors"] = np.zeros(n - 1)
+    cell["acceptors"] = np.zeros(n - 1)
+    for Li in layers:
+        sel = cell_layer == Li.index
+        if not np.any(sel):
+            continue
+        if Li.x_top is not None:
+            xb = Li.x_bottom if Li.x_bottom is not None else Li.x_top
+            frac = (zc[sel] - Li.top) / (Li.bottom - Li.top)
+            x_cell[sel] = Li.x_top + (xb - Li.x_top) * frac
+        params = materials.cell_parameters(Li.material, x_cell[sel], T, deck.materials, needs)
+        for k in MATERIAL_KEYS:
+            cell[k][sel] = params[k]
+        cell["donors"][sel] = Li.donors / CM3_PER_NM3
+        cell["acceptors"][sel] = Li.acceptors / CM3_PER_NM3
+    if deck.physics.ionization != "thermal":
+        cell["donor_binding"][:] = 0.0
+        cell["acceptor_binding"][:] = 0.0
+    cell["nc"] = NC_PER_M0_K * (cell["m_c_dos"] * T) ** 1.5
+    cell["nv"] = NC_PER_M0_K * (cell["m_v_dos"] * T) ** 1.5
+    cell["ev0"] = np.maximum(cell["ev_hh"], cell["ev_lh"])
+
+    sheet_d = np.zeros(n)
+    sheet_a = np.zeros(n)
+    sheet_ed = np.zeros(n)
+    sheet_ea = np.zeros(n)
+    for Li in layers:
+        if Li.sheet_donors or Li.sheet_acceptors:
+            i = mesh.index_of(0.5 * (Li.top + Li.bottom))
+            c = min(i, n - 2)
+            sheet_d[i] += Li.sheet_donors / CM2_PER_NM2
+            sheet_a[i] += Li.sheet_acceptors / CM2_PER_NM2
+            sheet_ed[i] = cell["donor_binding"][c]
+            sheet_ea[i] = cell["acceptor_binding"][c]
+
+    regions = tuple((mesh.index_of(a), mesh.index_of(b)) for a, b in regions_nm)
+    for arr in list(cell.values()) + [x_cell, cell_layer, layer_index, sheet_d, sheet_a, sheet_ed, sheet_ea]:
+        arr.flags.writeable = False
+    return Structure(mesh=mesh, temperature=T, layers=tuple(layers), cell_layer=cell_layer,
+                     layer_index=layer_index, x_cell=x_cell, cell=cell, sheet_donors=sheet_d,
+                     sheet_acceptors=sheet_a, sheet_ed=sheet_ed, sheet_ea=sheet_ea,
+                     regions=regions, regions_nm=regions_nm, carriers=tuple(deck.physics.carriers),
+                     full_ionization=deck.physics.ionization != "thermal",
+                     states=int(deck.quantum.states), surface=_contact(deck.surface),
+                     substrate=_contact(deck.substrate))
