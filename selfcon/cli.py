@@ -1,0 +1,493 @@
+"""The ``selfcon`` command line (DESIGN.md §5).
+
+    selfcon run DECK [-o OUT.h5] [--set PATH=VALUE]... [--plot FIG] [--json] [--quiet] [--force]
+    selfcon check DECK [--set PATH=VALUE]... [--json]
+    selfcon show RESULT.h5 [--json]
+    selfcon plot RESULT.h5 -o FIG [--size WxH | --width-px W --height-px H] [--depth A:B|full]
+    selfcon export RESULT.h5 --csv DIR [--force]
+    selfcon materials [NAME] [--x X] [--temperature T] [--json]
+
+Exit codes: 0 converged / ok, 2 bad input (one line ``selfcon: error: ...`` on
+stderr, no traceback), 3 not converged (result still written, converged =
+false), 1 internal error (set SELFCON_DEBUG=1 for the traceback).
+
+Other packages add subcommands through :data:`EXTRA_COMMANDS`: each module
+listed there, if it exists, has ``register(subparsers)`` adding parsers with
+``set_defaults(func=handler)``, ``handler(args) -> int``.
+"""
+from __future__ import annotations
+
+import argparse
+import importlib
+import json
+import os
+import sys
+import traceback
+from pathlib import Path
+
+from .errors import ResultFileError, SelfconInputError
+
+#: modules whose ``register(subparsers)`` adds subcommands, imported if they exist
+EXTRA_COMMANDS = ("selfcon.batch.commands", "selfcon.design.commands")
+
+EXIT_OK, EXIT_INTERNAL, EXIT_INPUT, EXIT_NOT_CONVERGED = 0, 1, 2, 3
+
+PLOT_FORMATS = (".png", ".svg", ".pdf")
+
+
+class _Parser(argparse.ArgumentParser):
+    """argparse with usage errors on one line and exit code 2 (argparse's own)."""
+
+    def error(self, message):
+        self.print_usage(sys.stderr)
+        self.exit(EXIT_INPUT, f"selfcon: error: {message}\n")
+
+
+def _console(stderr=False):
+    from rich.console import Console
+    stream = sys.stderr if stderr else sys.stdout
+    kw = {}
+    if not stream.isatty():
+        kw["width"] = 110        # tables do not wrap in logs; no colour codes (rich: not a terminal)
+    return Console(file=stream, highlight=False, **kw)
+
+
+def _require_file(path: Path, what: str):
+    if not path.exists():
+        raise SelfconInputError(f"no such {what}", file=str(path))
+    if path.is_dir():
+        raise SelfconInputError(f"is a folder, expected a {what}", file=str(path))
+
+
+# --------------------------------------------------------------------------- progress
+
+class Progress:
+    """The ``progress(iteration, residual)`` callback of selfcon.solve, shown on stderr.
+
+    mode "rich": a spinner and a bar of log10 progress towards the tolerance (terminals only);
+    "plain": one line per iteration (pipes, logs, CI); "off": nothing.
+    """
+
+    def __init__(self, mode: str, tolerance: float | None = None, max_iterations: int | None = None):
+        self.mode = mode
+        self.tolerance = tolerance
+        self.max_iterations = max_iterations
+        self._progress = None
+        self._task = None
+        self._first = None
+
+    def __enter__(self):
+        if self.mode == "rich":
+            from rich.progress import BarColumn, Progress as RichProgress, SpinnerColumn, TextColumn
+            self._progress = RichProgress(SpinnerColumn(), TextColumn("solving"), BarColumn(),
+                                          TextColumn("{task.fields[text]}"), console=_console(stderr=True),
+                                          transient=True)
+            self._progress.__enter__()
+            self._task = self._progress.add_task("solve", total=1.0, text="initial guess")
+        return self
+
+    def __exit__(self, *exc):
+        if self._progress is not None:
+            self._progress.__exit__(*exc)
+        return False
+
+    def __call__(self, iteration: int, residual: float) -> None:
+        limit = f"/{self.max_iterations}" if self.max_iterations else ""
+        text = f"iteration {iteration}{limit}  max |dphi| = {residual:.2e} V"
+        if self.mode == "plain":
+            print(text, file=sys.stderr, flush=True)
+        elif self.mode == "rich":
+            import math
+            done = 0.0
+            if self._first is None and residual > 0 and math.isfinite(residual):
+                self._first = residual
+            tol = self.tolerance
+            if self._first and tol and residual > 0 and math.isfinite(residual) and self._first > tol:
+                done = min(1.0, max(0.0, math.log(self._first / residual) / math.log(self._first / tol)))
+            self._progress.update(self._task, completed=done, text=text)
+
+
+def _progress_mode(args) -> str:
+    if getattr(args, "quiet", False):
+        return "off"
+    return "rich" if sys.stderr.isatty() else "plain"
+
+
+# --------------------------------------------------------------------------- commands
+
+def cmd_run(args) -> int:
+    import selfcon
+    from . import report
+    deck_path = Path(args.deck)
+    _require_file(deck_path, "deck file")
+    deck = selfcon.load_deck(deck_path, overrides=tuple(args.set or ()))
+    out = Path(args.output) if args.output else deck_path.with_suffix(".h5")
+    if out.exists() and not args.force:
+        raise ResultFileError("output file exists; pass --force to overwrite it", file=str(out))
+    if not (out.parent if str(out.parent) else Path(".")).is_dir():
+        raise ResultFileError("output folder does not exist", file=str(out))
+    if args.plot:
+        _check_plot_path(Path(args.plot))
+    spec = getattr(deck, "solver", None)
+    with Progress(_progress_mode(args), tolerance=getattr(spec, "tolerance", None),
+                  max_iterations=getattr(spec, "max_iterations", None)) as progress:
+        result = selfcon.solve(deck, progress=progress)
+    result.save(out, force=args.force)
+    if args.plot:
+        from .plot import plot_result
+        plot_result(result, args.plot)
+    fig = report.summary_figures(result, output=str(out))
+    if args.plot:
+        fig["plot"] = str(args.plot)
+    if args.json:
+        print(report.to_json(fig))
+    elif args.quiet:
+        print("\n".join(report.plain_summary(fig)))
+    else:
+        report.print_summary(fig, _console())
+        if args.plot:
+            print(f"band diagram written to {args.plot}")
+    if not result.converged:
+        print(f"selfcon: not converged: {result.message}; result written to {out} (converged = false)",
+              file=sys.stderr)
+        return EXIT_NOT_CONVERGED
+    return EXIT_OK
+
+
+def _fmt(v, unit=""):
+    from .report import sci
+    if v is None:
+        return "–"
+    if isinstance(v, float) and (abs(v) >= 1e5 or (0 < abs(v) < 1e-3)):
+        return sci(v) + unit
+    return f"{v:g}{unit}" if isinstance(v, (int, float)) else str(v)
+
+
+def check_figures(deck, structure) -> dict:
+    """What `selfcon check` reports: stack, contacts, mesh statistics, quantum regions."""
+    import numpy as np
+    layers = []
+    for L in structure.layers:
+        layers.append({"index": L.index, "name": L.name, "material": L.material, "x_top": L.x_top,
+                       "x_bottom": L.x_bottom, "top_nm": L.top, "bottom_nm": L.bottom,
+                       "thickness_nm": L.bottom - L.top, "donors_cm3": L.donors, "acceptors_cm3": L.acceptors,
+                       "sheet_donors_cm2": L.sheet_donors, "sheet_acceptors_cm2": L.sheet_acceptors})
+    z = np.asarray(structure.z)
+    h = np.diff(z)
+    regions = [{"top_nm": float(a), "bottom_nm": float(b), "nodes": int(i1 - i0 + 1)}
+               for (a, b), (i0, i1) in zip(structure.regions_nm, structure.regions)]
+    contacts = {}
+    for side in ("surface", "substrate"):
+        c = getattr(structure, side)
+        contacts[side] = {"contact": c.kind, "barrier_eV": c.barrier, "bias_V": c.bias}
+    from .report import _clean
+    return _clean({"title": deck.title, "temperature_K": deck.temperature, "file": deck.path,
+                   "overrides": [f"{k}={v}" for k, v in getattr(deck, "overrides", ())],
+                   "carriers": list(structure.carriers), "layers": layers, "contacts": contacts,
+                   "mesh": {"nodes": int(z.size), "min_step_nm": float(h.min()) if h.size else None,
+                            "max_step_nm": float(h.max()) if h.size else None,
+                            "thickness_nm": float(z[-1] - z[0]) if z.size else 0.0},
+                   "quantum_regions": regions})
+
+
+def cmd_check(args) -> int:
+    import selfcon
+    deck_path = Path(args.deck)
+    _require_file(deck_path, "deck file")
+    deck = selfcon.load_deck(deck_path, overrides=tuple(args.set or ()))
+    structure = selfcon.build_structure(deck)
+    fig = check_figures(deck, structure)
+    if args.json:
+        print(json.dumps(fig, indent=2, ensure_ascii=False))
+        return EXIT_OK
+    from rich.table import Table
+    console = _console()
+    console.print(f"[bold]{fig['title']}[/bold]  T = {fig['temperature_K']:g} K  ({deck_path}: valid)")
+    if fig["overrides"]:
+        console.print("overrides: " + ", ".join(fig["overrides"]))
+    t = Table(title="Stack (top to bottom)", title_justify="left")
+    for col, just in (("#", "right"), ("layer", "left"), ("material", "left"), ("x", "right"),
+                      ("top–bottom (nm)", "right"), ("thickness (nm)", "right"), ("Nd (cm⁻³)", "right"),
+                      ("Na (cm⁻³)", "right"), ("sheet Nd (cm⁻²)", "right"), ("sheet Na (cm⁻²)", "right")):
+        t.add_column(col, justify=just)
+    for L in fig["layers"]:
+        if L["x_top"] is None:
+            x = "–"
+        elif L["x_bottom"] is not None and L["x_bottom"] != L["x_top"]:
+            x = f"{L['x_top']:g}→{L['x_bottom']:g}"
+        else:
+            x = f"{L['x_top']:g}"
+        t.add_row(str(L["index"]), L["name"], L["material"], x, f"{L['top_nm']:g}–{L['bottom_nm']:g}",
+                  f"{L['thickness_nm']:g}", _fmt(L["donors_cm3"]), _fmt(L["acceptors_cm3"]),
+                  _fmt(L["sheet_donors_cm2"]), _fmt(L["sheet_acceptors_cm2"]))
+    console.print(t)
+    for side, c in fig["contacts"].items():
+        extra = "" if c["barrier_eV"] is None else f", barrier {c['barrier_eV']:g} eV"
+        if c["contact"] == "schottky":
+            extra += f", bias {c['bias_V']:g} V"
+        console.print(f"{side}: {c['contact']}{extra}")
+    m = fig["mesh"]
+    console.print(f"mesh: {m['nodes']} nodes over {m['thickness_nm']:g} nm, step {_fmt(m['min_step_nm'])}"
+                  f" to {_fmt(m['max_step_nm'])} nm")
+    if fig["quantum_regions"]:
+        for r in fig["quantum_regions"]:
+            console.print(f"quantum region {r['top_nm']:g}–{r['bottom_nm']:g} nm: {r['nodes']} nodes")
+    else:
+        console.print("no quantum region: all carriers classical")
+    console.print("carriers: " + ", ".join(fig["carriers"]))
+    return EXIT_OK
+
+
+def cmd_show(args) -> int:
+    from . import report
+    from .results import load_result
+    path = Path(args.result)
+    result = load_result(path)
+    fig = report.summary_figures(result, output=None)
+    fig["file"] = str(path)
+    if args.json:
+        print(report.to_json(fig))
+        return EXIT_OK
+    console = _console()
+    prov = result.provenance
+    console.print(f"{path}: selfcon result, written by selfcon {prov.get('selfcon_version', '?')}"
+                  + (f", deck hash {str(prov['deck_hash'])[:12]}" if prov.get("deck_hash") else ""))
+    report.print_summary(fig, console)
+    return EXIT_OK
+
+
+def _parse_size(args):
+    size = None
+    if args.size:
+        text = args.size.lower().replace("×", "x")
+        parts = text.split("x")
+        try:
+            w, h = (int(p) for p in parts)
+        except ValueError:
+            raise SelfconInputError(f"bad size {args.size!r}", key="--size", allowed="WIDTHxHEIGHT in pixels, "
+                                    "e.g. 1200x900") from None
+        size = (w, h)
+    if args.width_px is not None or args.height_px is not None:
+        if size is not None:
+            raise SelfconInputError("give either --size or --width-px/--height-px", key="--size")
+        from .plot import DEFAULT_SIZE
+        size = (args.width_px or DEFAULT_SIZE[0], args.height_px or DEFAULT_SIZE[1])
+    if size is not None and not (50 <= size[0] <= 20000 and 50 <= size[1] <= 20000):
+        raise SelfconInputError(f"figure size {size[0]}x{size[1]} px out of range", key="--size",
+                                allowed="50 to 20000 px per side")
+    return size
+
+
+def _parse_depth(text):
+    if text is None:
+        return None
+    if text.strip().lower() == "full":
+        return "full"
+    try:
+        a, b = (float(p) for p in text.split(":"))
+    except ValueError:
+        raise SelfconInputError(f"bad depth range {text!r}", key="--depth",
+                                allowed="TOP:BOTTOM in nm, e.g. 0:200, or full") from None
+    if not b > a:
+        raise SelfconInputError(f"bad depth range {text!r}: bottom must exceed top", key="--depth")
+    return (a, b)
+
+
+def _check_plot_path(path: Path):
+    if path.suffix.lower() not in PLOT_FORMATS:
+        raise SelfconInputError(f"unknown figure format {path.suffix or '(none)'!r}", file=str(path),
+                                allowed=", ".join(PLOT_FORMATS))
+    parent = path.parent if str(path.parent) else Path(".")
+    if not parent.is_dir():
+        raise SelfconInputError("figure folder does not exist", file=str(path))
+
+
+def cmd_plot(args) -> int:
+    from .plot import plot_result
+    from .results import load_result
+    out = Path(args.output)
+    _check_plot_path(out)
+    size = _parse_size(args)
+    depth = _parse_depth(args.depth)
+    result = load_result(args.result)
+    plot_result(result, out, size=size, depth=depth)
+    if not args.quiet:
+        print(f"band diagram written to {out}")
+    return EXIT_OK
+
+
+def cmd_export(args) -> int:
+    from .export import export_csv
+    from .results import load_result
+    result = load_result(args.result)
+    paths = export_csv(result, args.csv, force=args.force)
+    for p in paths:
+        print(f"wrote {p}")
+    return EXIT_OK
+
+
+def cmd_materials(args) -> int:
+    from . import materials
+    if args.name is None:
+        names = list(materials.names())
+        if args.json:
+            print(json.dumps([{"name": n, "alloy": bool(materials.is_alloy(n))} for n in names], indent=2))
+            return EXIT_OK
+        from rich.table import Table
+        t = Table(title="Material library", title_justify="left")
+        t.add_column("name")
+        t.add_column("kind")
+        for n in names:
+            t.add_row(n, "alloy (needs x)" if materials.is_alloy(n) else "binary")
+        console = _console()
+        console.print(t)
+        console.print("selfcon materials NAME lists every value with its source")
+        return EXIT_OK
+    kw = {}
+    if args.x is not None:
+        kw["x"] = args.x
+    if args.temperature is not None:
+        kw["temperature"] = args.temperature
+    rows = materials.describe(args.name, **kw)
+    if args.json:
+        from .report import _clean
+        print(json.dumps(_clean({"name": args.name, **kw, "parameters": list(rows)}), indent=2,
+                         ensure_ascii=False))
+        return EXIT_OK
+    from rich.table import Table
+    title = args.name + "".join(f", {k} = {v:g}" for k, v in kw.items())
+    t = Table(title=title, title_justify="left")
+    t.add_column("parameter")
+    t.add_column("value", justify="right")
+    t.add_column("unit")
+    t.add_column("source")
+    for r in rows:
+        v = r["value"]
+        t.add_row(str(r["parameter"]), f"{v:.6g}" if isinstance(v, (int, float)) else str(v),
+                  str(r.get("unit") or ""), str(r.get("source") or ""))
+    _console().print(t)
+    return EXIT_OK
+
+
+# --------------------------------------------------------------------------- parser
+
+def build_parser() -> argparse.ArgumentParser:
+    from . import __version__
+    p = _Parser(prog="selfcon", description="Self-consistent Schrödinger–Poisson solutions for layered "
+                "semiconductor structures.",
+                epilog="exit codes: 0 ok/converged, 1 internal error, 2 bad input, 3 not converged "
+                       "(result still written). SELFCON_DEBUG=1 shows tracebacks.")
+    p.add_argument("--version", action="version", version=f"selfcon {__version__}")
+    sub = p.add_subparsers(dest="command", metavar="COMMAND", parser_class=_Parser)
+    sub.required = True
+
+    r = sub.add_parser("run", help="solve one deck and write the result file",
+                       description="Solve one deck self-consistently, write the HDF5 result atomically and "
+                                   "print a summary. Exit 3 when the solve does not converge (the result is "
+                                   "still written, marked converged = false).")
+    r.add_argument("deck", metavar="DECK", help="deck file (TOML)")
+    r.add_argument("-o", "--output", metavar="OUT.h5",
+                   help="result file (default: beside the deck, same stem, .h5: inputs/a.toml -> inputs/a.h5)")
+    r.add_argument("--set", action="append", metavar="PATH=VALUE", default=[],
+                   help="override a deck value, repeatable: temperature=77, surface.bias=-0.2, "
+                        "layer.spacer.thickness=15, layer.2.x=0.25")
+    r.add_argument("--plot", metavar="FIG", help="also draw the band diagram (.png, .svg or .pdf)")
+    r.add_argument("--json", action="store_true", help="print the summary as one JSON object and nothing else")
+    r.add_argument("--quiet", action="store_true", help="no progress display; a few plain summary lines")
+    r.add_argument("--force", action="store_true", help="overwrite an existing result file")
+    r.set_defaults(func=cmd_run)
+
+    c = sub.add_parser("check", help="validate a deck and show the stack and mesh without solving")
+    c.add_argument("deck", metavar="DECK")
+    c.add_argument("--set", action="append", metavar="PATH=VALUE", default=[], help="as for run")
+    c.add_argument("--json", action="store_true", help="print the stack and mesh as JSON")
+    c.set_defaults(func=cmd_check)
+
+    s = sub.add_parser("show", help="summarise a result file")
+    s.add_argument("result", metavar="RESULT.h5")
+    s.add_argument("--json", action="store_true", help="print the summary as one JSON object")
+    s.set_defaults(func=cmd_show)
+
+    pl = sub.add_parser("plot", help="draw the band diagram of a result file")
+    pl.add_argument("result", metavar="RESULT.h5")
+    pl.add_argument("-o", "--output", metavar="FIG", required=True, help="figure file: .png, .svg or .pdf")
+    pl.add_argument("--size", metavar="WxH", help="figure size in pixels (default 1200x900)")
+    pl.add_argument("--width-px", type=int, metavar="W", help="figure width in pixels")
+    pl.add_argument("--height-px", type=int, metavar="H", help="figure height in pixels")
+    pl.add_argument("--depth", metavar="TOP:BOTTOM",
+                    help="depth range in nm, or 'full' (default: the whole stack, or up to a little below "
+                         "the quantum regions when a thick classical substrate layer would crowd them)")
+    pl.add_argument("--quiet", action="store_true", help="print nothing")
+    pl.set_defaults(func=cmd_plot)
+
+    e = sub.add_parser("export", help="write a result's profiles and subbands as CSV tables")
+    e.add_argument("result", metavar="RESULT.h5")
+    e.add_argument("--csv", metavar="DIR", required=True,
+                   help="folder for profile.csv and subbands.csv (created if missing)")
+    e.add_argument("--force", action="store_true", help="overwrite existing CSV files")
+    e.set_defaults(func=cmd_export)
+
+    m = sub.add_parser("materials", help="list the material library, or one material with every source")
+    m.add_argument("name", metavar="NAME", nargs="?")
+    m.add_argument("--x", type=float, help="alloy fraction (alloys): show the interpolated values")
+    m.add_argument("--temperature", type=float, metavar="K", help="temperature for temperature-dependent values")
+    m.add_argument("--json", action="store_true", help="print as JSON")
+    m.set_defaults(func=cmd_materials)
+
+    for modname in EXTRA_COMMANDS:
+        module = _import_optional(modname)
+        if module is not None:
+            module.register(sub)
+    return p
+
+
+def _import_optional(modname: str):
+    """Import ``modname`` if it exists; a missing module (or package) is skipped, other errors raise."""
+    try:
+        return importlib.import_module(modname)
+    except ModuleNotFoundError as exc:
+        missing = exc.name or ""
+        if missing == modname or modname.startswith(missing + "."):
+            return None
+        raise
+
+
+def _one_line(text: str) -> str:
+    return " ".join(str(text).split())
+
+
+def main(argv=None) -> int:
+    """Entry point of the ``selfcon`` console script and ``python -m selfcon``; returns the exit code."""
+    debug = os.environ.get("SELFCON_DEBUG", "") not in ("", "0")
+    try:
+        parser = build_parser()
+        try:
+            args = parser.parse_args(argv)
+        except SystemExit as exc:       # --help, --version, usage errors (2)
+            return exc.code if isinstance(exc.code, int) else (0 if exc.code is None else EXIT_INPUT)
+        return int(args.func(args))
+    except SelfconInputError as exc:
+        if debug:
+            traceback.print_exc()
+        print(f"selfcon: error: {_one_line(exc)}", file=sys.stderr)
+        return EXIT_INPUT
+    except (FileNotFoundError, PermissionError, IsADirectoryError, NotADirectoryError) as exc:
+        if debug:
+            traceback.print_exc()
+        where = f"{exc.filename}: " if exc.filename else ""
+        print(f"selfcon: error: {where}{_one_line(exc.strerror or exc)}", file=sys.stderr)
+        return EXIT_INPUT
+    except KeyboardInterrupt:
+        print("selfcon: interrupted", file=sys.stderr)
+        return 130
+    except Exception as exc:  # noqa: BLE001 - the one place unexpected errors become exit 1
+        if debug:
+            traceback.print_exc()
+        print(f"selfcon: internal error: {type(exc).__name__}: {_one_line(exc)}", file=sys.stderr)
+        if not debug:
+            print("selfcon: rerun with SELFCON_DEBUG=1 to see the traceback", file=sys.stderr)
+        return EXIT_INTERNAL
+
+
+if __name__ == "__main__":  # pragma: no cover
+    sys.exit(main())

@@ -1,0 +1,255 @@
+"""Band diagram of a Result: selfcon's own figure design (matplotlib, headless).
+
+Two panels sharing the depth axis:
+
+* top: conduction and valence band edges (eV, relative to EF), the layers as
+  tinted bands (one tint family per material, alternating shades so neighbouring
+  layers of one material stay distinct) named along the top edge, EF as a
+  dash-dot line, and each bound state as a level spanning its classically allowed
+  extent with |psi|^2 drawn on it (filled, scaled per band);
+* bottom: electron, hole, ionised donor and ionised acceptor densities (cm^-3)
+  on a log scale, over the same layer tints.
+
+No pyplot and no global state: a bare :class:`matplotlib.figure.Figure` is
+rendered by the Agg/SVG/PDF canvas chosen from the file extension.
+"""
+from __future__ import annotations
+
+from pathlib import Path
+
+import numpy as np
+
+from .errors import SelfconInputError
+
+DEFAULT_SIZE = (1200, 900)     # pixels
+DPI = 100
+FORMATS = {".png": "png", ".svg": "svg", ".pdf": "pdf"}
+
+# selfcon palette: pairs of light tints (shade A, shade B) per material, in order of first appearance
+LAYER_TINTS = (
+    ("#f4ead2", "#ebdcb8"),    # sand
+    ("#dcecdf", "#c9e2ce"),    # sage
+    ("#e2e4f3", "#d0d4ec"),    # mist blue
+    ("#f3e0e6", "#ead0d9"),    # blush
+    ("#e3eeee", "#cfe3e3"),    # glacier
+    ("#ece6da", "#ded5c4"),    # linen
+)
+EDGE_COLOURS = {"conduction_band": "#17365d", "valence_band": "#8a3b12"}
+FERMI_COLOUR = "#2e7d4f"
+BAND_COLOURS = {"electron": "#2f6fb8", "heavy_hole": "#c4572a", "light_hole": "#b88a10"}
+DENSITY_STYLE = {
+    "electron_density": ("#17365d", "-", "electrons n"),
+    "hole_density": ("#8a3b12", "-", "holes p"),
+    "ionized_donors": ("#3f7f3a", "--", "ionised donors N$_D^+$"),
+    "ionized_acceptors": ("#6b4a9b", "--", "ionised acceptors N$_A^-$"),
+}
+BAND_NAMES = {"electron": "electron states", "heavy_hole": "heavy-hole states", "light_hole": "light-hole states"}
+
+#: per band: occupied states plus this many empty ones above them are drawn, at most MAX_STATES_DRAWN
+EMPTY_STATES_DRAWN = 2
+MAX_STATES_DRAWN = 8
+OCCUPIED_CM2 = 1e8
+
+
+def auto_depth(result) -> tuple[float, float]:
+    """Default depth range: the whole stack, unless a thick bottom layer would crowd the quantum regions.
+
+    Then the view ends a little below the last quantum region (and below the channel layer), so
+    the wells are wide enough to read; the axis label says the stack continues.
+    """
+    z = np.asarray(result.z)
+    top, bottom = float(z[0]), float(z[-1])
+    ends = [b for _, b in result.regions_nm]
+    if result.layers:
+        dens = [float(r.get("electron_sheet_density_cm2", 0) or 0) + float(r.get("hole_sheet_density_cm2", 0) or 0)
+                for r in result.layers]
+        i = int(np.argmax(dens))
+        if dens[i] > 0:
+            ends.append(float(result.layers[i].get("bottom_nm", bottom)))
+    if not ends:
+        return top, bottom
+    focus = max(ends)
+    view = focus + 0.25 * (focus - top)
+    if view < 0.6 * bottom:
+        return top, view
+    return top, bottom
+
+
+def _allowed_span(z, edge, energy, sign, region):
+    """[z0, z1] where the state is classically allowed (electrons: Ec <= E; holes: Ev >= E) in its region."""
+    inside = (z >= region[0]) & (z <= region[1])
+    ok = inside & ((edge <= energy) if sign > 0 else (edge >= energy))
+    if not np.any(ok):
+        return region
+    zz = z[ok]
+    return float(zz.min()), float(zz.max())
+
+
+def _states_to_draw(sb):
+    occ = np.asarray(sb.occupation)
+    n_occ = int(np.sum(occ >= OCCUPIED_CM2))
+    count = min(np.asarray(sb.energy).size, n_occ + EMPTY_STATES_DRAWN, MAX_STATES_DRAWN)
+    return list(range(count)), n_occ
+
+
+def _layer_patches(ax, result, x0, x1, with_labels, fontsize):
+    tint_of = {}
+    last_material, shade = None, 0
+    bounds = []
+    for row in result.layers:
+        mat = str(row.get("material", ""))
+        if mat not in tint_of:
+            tint_of[mat] = LAYER_TINTS[len(tint_of) % len(LAYER_TINTS)]
+        shade = 1 - shade if mat == last_material else 0
+        last_material = mat
+        a, b = float(row["top_nm"]), float(row["bottom_nm"])
+        bounds.append((a, b))
+        if b <= x0 or a >= x1:
+            continue
+        ax.axvspan(max(a, x0), min(b, x1), color=tint_of[mat][shade], zorder=0, linewidth=0)
+        if a > x0:
+            ax.axvline(a, color="#9a9a9a", linewidth=0.6, zorder=0.5)
+        if with_labels:
+            mid = 0.5 * (max(a, x0) + min(b, x1))
+            frac = (min(b, x1) - max(a, x0)) / (x1 - x0)
+            name = str(row.get("name", ""))
+            label = name if frac > 0.06 else name[:10]
+            ax.text(mid, 0.985, label, transform=ax.get_xaxis_transform(), ha="center", va="top",
+                    rotation=0 if frac > 0.02 * max(len(label), 1) else 90, fontsize=fontsize,
+                    color="#3a3a3a", zorder=5, clip_on=True)
+    return bounds
+
+
+def _tex_sci(v: float) -> str:
+    """4.11e11 -> '$4.11\\times10^{11}$' (mathtext)."""
+    if v == 0 or not np.isfinite(v):
+        return f"{v:g}"
+    exp = int(np.floor(np.log10(abs(v))))
+    return f"${v / 10 ** exp:.3g}\\times10^{{{exp}}}$"
+
+
+def draw_band_diagram(fig, result, depth=None):
+    """Draw the two panels of the band diagram on a matplotlib Figure."""
+    z = np.asarray(result.z, dtype=float)
+    ec = np.asarray(result.profile["conduction_band"], dtype=float)
+    ev = np.asarray(result.profile["valence_band"], dtype=float)
+    if depth is None:
+        x0, x1 = auto_depth(result)
+    elif depth == "full":
+        x0, x1 = float(z[0]), float(z[-1])
+    else:
+        x0, x1 = float(depth[0]), float(depth[1])
+    width_px = fig.get_figwidth() * fig.dpi
+    fs = float(np.clip(width_px / 110.0, 7.0, 13.0))
+
+    top, bottom = fig.subplots(2, 1, sharex=True, gridspec_kw={"height_ratios": [3, 2]})
+    view = (z >= x0) & (z <= x1)
+    if not np.any(view):
+        view = np.ones_like(z, dtype=bool)
+
+    # --- top panel: band edges, EF, states
+    _layer_patches(top, result, x0, x1, True, fs * 0.85)
+    lo = float(min(ev[view].min(), 0.0))
+    hi = float(max(ec[view].max(), 0.0))
+    span = max(hi - lo, 1e-3)
+    top.plot(z, ec, color=EDGE_COLOURS["conduction_band"], linewidth=2.0, label="conduction band E$_c$", zorder=3)
+    top.plot(z, ev, color=EDGE_COLOURS["valence_band"], linewidth=2.0, label="valence band E$_v$", zorder=3)
+    top.axhline(0.0, color=FERMI_COLOUR, linestyle="-.", linewidth=1.3, label="Fermi level E$_F$ = 0", zorder=2)
+
+    regions = list(result.regions_nm) or [(float(z[0]), float(z[-1]))]
+    from matplotlib.patches import Patch
+    handles_extra = []
+    for band, sb in result.subbands.items():
+        idx, n_occ = _states_to_draw(sb)
+        if not idx:
+            continue
+        sign = +1 if band == "electron" else -1
+        edge = ec if sign > 0 else ev
+        colour = BAND_COLOURS.get(band, "#555555")
+        e = np.asarray(sb.energy)[idx]
+        gaps = np.diff(np.sort(e))
+        step = float(np.median(gaps)) if gaps.size else 0.05 * span
+        amp = float(np.clip(0.7 * step, 0.03 * span, 0.10 * span))
+        psi2 = np.asarray(sb.wavefunction)[:, idx] ** 2
+        peak = float(psi2.max()) if psi2.size else 0.0
+        if peak <= 0:
+            continue
+        for j, k in enumerate(idx):
+            r = int(sb.region[k]) if k < len(sb.region) else 0
+            region = regions[r] if 0 <= r < len(regions) else regions[0]
+            a, b = _allowed_span(z, edge, e[j], sign, region)
+            occupied = j < n_occ
+            top.hlines(e[j], a, b, colors=colour, linewidth=1.3 if occupied else 0.9,
+                       linestyles="-" if occupied else ":", zorder=4)
+            w = psi2[:, j] / peak * amp
+            mask = (z >= region[0]) & (z <= region[1])
+            zz = z[mask]
+            top.fill_between(zz, e[j], e[j] + sign * w[mask], color=colour,
+                             alpha=0.35 if occupied else 0.15, linewidth=0, zorder=3.5)
+            top.plot(zz, e[j] + sign * w[mask], color=colour, linewidth=0.8, alpha=0.9 if occupied else 0.5,
+                     zorder=4)
+        handles_extra.append(Patch(facecolor=colour, alpha=0.5,
+                                   label=f"{BAND_NAMES.get(band, band)} ({n_occ} occupied)"))
+
+    top.set_ylim(lo - 0.06 * span, hi + 0.14 * span)     # headroom for the layer names
+    top.set_ylabel("energy relative to E$_F$ (eV)", fontsize=fs)
+    handles, _ = top.get_legend_handles_labels()
+    top.legend(handles=handles + handles_extra, loc="lower left", fontsize=fs * 0.8, framealpha=0.92,
+               ncol=2 if len(handles) + len(handles_extra) > 4 else 1)
+
+    # --- bottom panel: densities, log scale
+    _layer_patches(bottom, result, x0, x1, False, fs)
+    vmax = 0.0
+    for name in DENSITY_STYLE:
+        if name in result.profile:
+            vals = np.asarray(result.profile[name], dtype=float)[view]
+            if vals.size:
+                vmax = max(vmax, float(np.nanmax(vals)))
+    floor = max(1e8, vmax * 1e-9) if vmax > 0 else 1e8
+    for name, (colour, style, label) in DENSITY_STYLE.items():
+        if name not in result.profile:
+            continue
+        vals = np.asarray(result.profile[name], dtype=float)
+        if not np.any(vals[view] > floor):
+            continue
+        shown = np.where(vals > floor, vals, np.nan)
+        bottom.plot(z, shown, color=colour, linestyle=style, linewidth=1.6, label=label)
+    bottom.set_yscale("log")
+    bottom.set_ylim(floor, max(vmax, floor * 10) * 3.0)
+    bottom.set_ylabel("density (cm$^{-3}$)", fontsize=fs)
+    if bottom.get_legend_handles_labels()[0]:
+        bottom.legend(loc="upper right", fontsize=fs * 0.8, framealpha=0.92)
+    more = f"   (stack continues to {z[-1]:g} nm)" if x1 < z[-1] - 1e-9 else ""
+    bottom.set_xlabel(f"depth z (nm){more}", fontsize=fs)
+    bottom.set_xlim(x0, x1)
+    for ax in (top, bottom):
+        ax.tick_params(labelsize=fs * 0.9)
+        ax.grid(True, which="major", color="#ffffff", linewidth=0.8, alpha=0.7, zorder=1)
+
+    ns = result.summary.get("electron_sheet_density_cm2")
+    bits = [f"T = {result.temperature:g} K"]
+    if isinstance(ns, (int, float)):
+        bits.append(f"n$_s$ = {_tex_sci(ns)} cm$^{{-2}}$")
+    bits.append(f"{result.iterations} iterations" + ("" if result.converged else " — NOT CONVERGED"))
+    fig.suptitle(f"{result.title}\n" + "   ·   ".join(bits), fontsize=fs * 1.05,
+                 color="#222222" if result.converged else "#a01010")
+    return top, bottom
+
+
+def plot_result(result, path, size=None, depth=None, dpi: int = DPI) -> Path:
+    """Write the band diagram of ``result`` to ``path`` (.png, .svg or .pdf).
+
+    ``size``: (width, height) in pixels (default 1200 x 900; at ``dpi`` for vector formats).
+    ``depth``: (top, bottom) in nm, "full", or None for :func:`auto_depth`.
+    """
+    path = Path(path)
+    fmt = FORMATS.get(path.suffix.lower())
+    if fmt is None:
+        raise SelfconInputError(f"unknown figure format {path.suffix or '(none)'!r}", file=str(path),
+                                allowed=", ".join(FORMATS))
+    w, h = size or DEFAULT_SIZE
+    from matplotlib.figure import Figure
+    fig = Figure(figsize=(w / dpi, h / dpi), dpi=dpi, layout="constrained")
+    draw_band_diagram(fig, result, depth=depth)
+    fig.savefig(path, format=fmt, dpi=dpi, metadata=None if fmt != "png" else {"Software": "selfcon"})
+    return path
