@@ -48,6 +48,7 @@ CREATE TABLE IF NOT EXISTS jobs (
     iterations   INTEGER,
     converged    INTEGER,
     warm_start   INTEGER NOT NULL DEFAULT 0,
+    prev_status  TEXT,
     summary      TEXT
 );
 CREATE INDEX IF NOT EXISTS jobs_status ON jobs(status, study_index);
@@ -165,8 +166,11 @@ def sync(con, jobs, *, retries) -> dict:
                 con.execute("UPDATE jobs SET status = 'failed', error = ? WHERE id = ?", (spec.error, row["id"]))
                 counts["kept"] += 1
             elif st == "retired":
-                con.execute("UPDATE jobs SET status = 'queued', attempts = 0, error = NULL, queued_at = ? "
-                            "WHERE id = ?", (now, row["id"]))
+                # back in the study: a finished result is still valid; anything else runs again
+                con.execute("UPDATE jobs SET status = CASE WHEN prev_status IN ('done', 'not_converged') "
+                            "THEN prev_status ELSE 'queued' END, "
+                            "attempts = CASE WHEN prev_status IN ('done', 'not_converged') THEN attempts ELSE 0 END, "
+                            "queued_at = ? WHERE id = ?", (now, row["id"]))
                 counts["revived"] += 1
             elif st == "running":
                 # left over by a coordinator that was killed: that attempt never finished
@@ -181,7 +185,8 @@ def sync(con, jobs, *, retries) -> dict:
         wanted = set(hash_to_id)
         for h, row in existing.items():
             if h not in wanted and row["status"] != "retired":
-                con.execute("UPDATE jobs SET status = 'retired', study_index = NULL WHERE id = ?", (row["id"],))
+                con.execute("UPDATE jobs SET prev_status = CASE WHEN status = 'running' THEN 'queued' ELSE status END, "
+                            "status = 'retired', study_index = NULL WHERE id = ?", (row["id"],))
                 counts["retired"] += 1
         for spec in jobs:
             nb = hash_to_id[jobs[spec.neighbour].deck_hash] if spec.neighbour is not None else None
