@@ -280,10 +280,9 @@ def _write_convergence(f, result: Result) -> None:
 
 
 def _write_summary(f, result: Result) -> None:
-    g = f.create_group("summary", track_order=True)
-    g.attrs["description"] = "headline figures of the solution (sheet densities in cm-2, energies in eV)"
+    g = f.create_group("summary", track_order=True)      # attributes: figures only (no description)
     for key, value in (result.summary or {}).items():
-        if key in ("warnings", "description"):
+        if key == "warnings":
             raise ValueError(f"summary key {key!r} is reserved in the result file")
         g.attrs[key] = _attr_value(value)
     g.attrs["warnings"] = np.array([str(w) for w in result.warnings], dtype=_STR)
@@ -421,7 +420,7 @@ def load_result(path) -> Result:
             name = "record_residual" if key == "residual" and "record_residual" in gc else key
             record[key] = gc[name][()]
         gs = _need(f, "summary", path)
-        summary = {k: _py(v) for k, v in gs.attrs.items() if k not in ("warnings", "description")}
+        summary = {k: _py(v) for k, v in gs.attrs.items() if k != "warnings"}
         warnings = _strings(gs.attrs.get("warnings"))
         provenance = {k: _py(a[k]) for k in _strings(a.get("provenance_keys"))}
         return Result(

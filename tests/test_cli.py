@@ -1,0 +1,307 @@
+"""The command line (DESIGN.md §5): exit codes, messages, --set, --json, show/export/materials.
+
+Most cases call ``cli.main(argv)`` in-process (fast); a few go through a real
+subprocess (``python -m selfcon``) to see exactly what a shell sees.
+"""
+import csv
+import json
+import os
+import subprocess
+import sys
+
+import h5py
+import numpy as np
+import pytest
+
+from bad_decks import BAD_DECKS, GOOD_DECK
+from selfcon import cli
+from selfcon.results import save_result
+from test_results import make_result
+
+
+def run_cli(capsys, *argv):
+    code = cli.main(list(argv))
+    out, err = capsys.readouterr()
+    return code, out, err
+
+
+def run_sub(*argv, cwd=None, env=None):
+    full_env = dict(os.environ)
+    full_env.pop("SELFCON_DEBUG", None)
+    full_env.update(env or {})
+    return subprocess.run([sys.executable, "-m", "selfcon", *argv], capture_output=True, text=True,
+                          cwd=cwd, env=full_env, timeout=600)
+
+
+@pytest.fixture
+def good_deck(tmp_path):
+    p = tmp_path / "good.toml"
+    p.write_text(GOOD_DECK)
+    return p
+
+
+@pytest.fixture
+def result_file(tmp_path):
+    p = tmp_path / "fake.h5"
+    save_result(make_result(), p)
+    return p
+
+
+# --------------------------------------------------------------------------- check and bad decks
+
+def test_check_good_deck(capsys, good_deck):
+    code, out, err = run_cli(capsys, "check", str(good_deck))
+    assert code == 0, err
+    for word in ("cap", "barrier", "channel", "AlGaAs", "nodes", "quantum region"):
+        assert word in out, word
+
+
+def test_check_json_mesh_stats(capsys, good_deck):
+    code, out, _ = run_cli(capsys, "check", str(good_deck), "--json")
+    assert code == 0
+    fig = json.loads(out)
+    assert [L["name"] for L in fig["layers"]] == ["cap", "barrier", "channel"]
+    m = fig["mesh"]
+    assert m["nodes"] > 10 and 0 < m["min_step_nm"] <= m["max_step_nm"]
+    assert m["thickness_nm"] == pytest.approx(150.0)          # 10 + 40 + 100 nm in GOOD_DECK
+
+
+def _assert_one_line_error(code, err, key, line):
+    assert code == 2, err
+    assert "Traceback" not in err
+    lines = err.strip().splitlines()
+    assert len(lines) == 1, err
+    assert lines[0].startswith("selfcon: error: ")
+    if key is not None:
+        assert key in lines[0], (key, lines[0])
+    if line is not None:
+        assert f":{line}:" in lines[0], (line, lines[0])
+
+
+@pytest.mark.parametrize("case_id, text, key, line", BAD_DECKS, ids=[c[0] for c in BAD_DECKS])
+def test_bad_deck_check_exit_2(capsys, tmp_path, case_id, text, key, line):
+    deck = tmp_path / f"{case_id}.toml"
+    deck.write_text(text)
+    code, out, err = run_cli(capsys, "check", str(deck))
+    _assert_one_line_error(code, err, key, line)
+    assert str(deck) in err
+
+
+@pytest.mark.parametrize("case_id", ["toml_syntax", "unknown_layer_key", "unknown_material"])
+def test_bad_deck_check_exit_2_subprocess(tmp_path, case_id):
+    _, text, key, line = next(c for c in BAD_DECKS if c[0] == case_id)
+    deck = tmp_path / "bad.toml"
+    deck.write_text(text)
+    proc = run_sub("check", str(deck))
+    _assert_one_line_error(proc.returncode, proc.stderr, key, line)
+    assert proc.stdout == ""
+
+
+def test_missing_deck_file_exit_2(capsys, tmp_path):
+    code, _, err = run_cli(capsys, "check", str(tmp_path / "nope.toml"))
+    _assert_one_line_error(code, err, None, None)
+    assert "no such deck file" in err
+
+
+def test_usage_errors_exit_2(capsys):
+    assert run_cli(capsys, "run")[0] == 2                     # missing DECK
+    assert run_cli(capsys, "frobnicate")[0] == 2              # unknown command
+    assert run_cli(capsys, "plot", "x.h5")[0] == 2            # -o is required
+    code, out, _ = run_cli(capsys, "--help")
+    assert code == 0 and "run" in out and "materials" in out
+
+
+def test_set_reaches_layers_by_name_and_index(capsys, good_deck):
+    code, out, err = run_cli(capsys, "check", str(good_deck), "--json", "--set", "layer.channel.thickness=55",
+                             "--set", "layer.1.x=0.25", "--set", "temperature=77",
+                             "--set", "quantum.regions=[[10.0, 100.0]]")
+    assert code == 0, err
+    fig = json.loads(out)
+    assert fig["layers"][2]["thickness_nm"] == 55.0
+    assert fig["layers"][1]["x_top"] == 0.25
+    assert fig["temperature_K"] == 77.0
+    assert fig["mesh"]["thickness_nm"] == pytest.approx(10 + 40 + 55)
+
+
+@pytest.mark.parametrize("override, key, allowed", [
+    ("layer.chanel.thickness=5", "layer.chanel", "cap, barrier, channel"),
+    ("layer.7.thickness=5", "layer.7", "0, 1, 2"),
+    ("layer.cap.thikness=5", "thikness", "thickness"),
+])
+def test_set_bad_path_lists_choices(capsys, good_deck, override, key, allowed):
+    code, _, err = run_cli(capsys, "check", str(good_deck), "--set", override)
+    _assert_one_line_error(code, err, key, None)
+    assert "allowed" in err and allowed in err
+
+
+# --------------------------------------------------------------------------- run (plumbing)
+
+def test_run_existing_output_needs_force(capsys, good_deck, tmp_path):
+    out = tmp_path / "good.h5"
+    out.write_bytes(b"precious")
+    code, _, err = run_cli(capsys, "run", str(good_deck))
+    _assert_one_line_error(code, err, None, None)
+    assert "--force" in err and str(out) in err
+    assert out.read_bytes() == b"precious"
+
+
+def test_run_internal_error_exit_1(capsys, good_deck, monkeypatch):
+    import selfcon
+
+    def broken(deck, **options):
+        raise RuntimeError("the loop fell over")
+    monkeypatch.setattr(selfcon, "solve", broken)
+    monkeypatch.delenv("SELFCON_DEBUG", raising=False)
+    code, out, err = run_cli(capsys, "run", str(good_deck), "--quiet")
+    assert code == 1
+    assert "internal error: RuntimeError: the loop fell over" in err
+    assert "SELFCON_DEBUG=1" in err and "Traceback" not in err
+    assert not good_deck.with_suffix(".h5").exists()
+    monkeypatch.setenv("SELFCON_DEBUG", "1")
+    code, out, err = run_cli(capsys, "run", str(good_deck), "--quiet")
+    assert code == 1 and "Traceback" in err
+
+
+def test_run_bad_plot_extension_exit_2_before_solving(capsys, good_deck, monkeypatch):
+    import selfcon
+    monkeypatch.setattr(selfcon, "solve", lambda *a, **k: pytest.fail("solve must not run"))
+    code, _, err = run_cli(capsys, "run", str(good_deck), "--plot", "fig.bmp")
+    _assert_one_line_error(code, err, None, None)
+    assert ".png" in err
+
+
+# --------------------------------------------------------------------------- show / plot / export / materials
+
+def test_show_and_json_match_hdf5_summary(capsys, result_file):
+    code, out, err = run_cli(capsys, "show", str(result_file))
+    assert code == 0, err
+    assert "Sheet density per layer" in out and "channel" in out and "warning:" in out
+    code, out, err = run_cli(capsys, "show", str(result_file), "--json")
+    assert code == 0, err
+    fig = json.loads(out)
+    with h5py.File(result_file, "r") as f:
+        attrs = dict(f["summary"].attrs)
+        layers = f["layers"][()]
+    assert set(fig["summary"]) == set(attrs)
+    for k, v in attrs.items():
+        if k == "warnings":
+            assert fig["summary"][k] == [w.decode() if isinstance(w, bytes) else w for w in v]
+        elif isinstance(v, (bytes, str)):
+            assert fig["summary"][k] == (v.decode() if isinstance(v, bytes) else v)
+        else:
+            assert fig["summary"][k] == pytest.approx(float(v), rel=0, abs=0), k
+    for row, h5row in zip(fig["layers"], layers):
+        assert row["name"] == h5row["name"].decode()
+        assert row["electron_sheet_density_cm2"] == h5row["electron_sheet_density_cm2"]
+    # channel = layer holding most electrons ("channel", 4.1e11 cm-2 in make_result)
+    assert fig["channel"]["layer"] == "channel"
+    assert fig["occupied_subbands"] == 1
+
+
+def test_show_rejects_non_result(capsys, tmp_path, good_deck):
+    code, _, err = run_cli(capsys, "show", str(good_deck))
+    _assert_one_line_error(code, err, None, None)
+    assert "not an HDF5 file" in err
+
+
+def _png_size(path):
+    """(width, height) from the PNG IHDR chunk (PNG specification: bytes 16-24, big-endian)."""
+    data = path.read_bytes()
+    assert data[:8] == b"\x89PNG\r\n\x1a\n"
+    return int.from_bytes(data[16:20], "big"), int.from_bytes(data[20:24], "big")
+
+
+@pytest.mark.parametrize("size_args, expected", [
+    (["--size", "640x480"], (640, 480)),
+    (["--width-px", "800", "--height-px", "500"], (800, 500)),
+    ([], (1200, 900)),                                            # plot.DEFAULT_SIZE
+])
+def test_plot_png_of_asked_size(capsys, tmp_path, result_file, size_args, expected):
+    fig = tmp_path / "bands.png"
+    code, _, err = run_cli(capsys, "plot", str(result_file), "-o", str(fig), *size_args)
+    assert code == 0, err
+    assert fig.stat().st_size > 10_000
+    assert _png_size(fig) == expected
+
+
+@pytest.mark.parametrize("args", [["--size", "big"], ["--size", "10x10"], ["--size", "600x400", "--width-px", "5"],
+                                  ["--depth", "50:10"]])
+def test_plot_bad_options_exit_2(capsys, tmp_path, result_file, args):
+    code, _, err = run_cli(capsys, "plot", str(result_file), "-o", str(tmp_path / "f.png"), *args)
+    _assert_one_line_error(code, err, None, None)
+
+
+def test_plot_unknown_format_exit_2(capsys, tmp_path, result_file):
+    code, _, err = run_cli(capsys, "plot", str(result_file), "-o", str(tmp_path / "f.jpeg"))
+    _assert_one_line_error(code, err, None, None)
+    assert ".svg" in err
+
+
+def test_export_csv(capsys, tmp_path, result_file):
+    out = tmp_path / "tables"
+    code, _, err = run_cli(capsys, "export", str(result_file), "--csv", str(out))
+    assert code == 0, err
+    r = make_result()
+    with open(out / "profile.csv", newline="") as fh:
+        rows = list(csv.reader(fh))
+    header = rows[0]
+    assert header[0] == "z [nm]" and "conduction_band [eV]" in header and "electron_density [cm-3]" in header
+    assert "electric_field [V/cm]" in header and "layer_index [1]" in header
+    assert len(rows) == 1 + r.z.size
+    col = header.index("electron_density [cm-3]")
+    assert np.array_equal([float(x[col]) for x in rows[1:]], r.profile["electron_density"])   # repr: exact
+    assert rows[-1][-1] == "channel"
+    with open(out / "subbands.csv", newline="") as fh:
+        sub = list(csv.DictReader(fh))
+    assert [s["band"] for s in sub] == ["electron", "electron", "heavy_hole"]
+    assert float(sub[0]["energy [eV]"]) == r.subbands["electron"].energy[0]
+    assert float(sub[0]["occupation [cm-2]"]) == 4.1e11 and sub[0]["region"] == "0"
+    code, _, err = run_cli(capsys, "export", str(result_file), "--csv", str(out))
+    _assert_one_line_error(code, err, None, None)
+    assert "--force" in err
+    assert run_cli(capsys, "export", str(result_file), "--csv", str(out), "--force")[0] == 0
+
+
+def test_materials(capsys):
+    code, out, _ = run_cli(capsys, "materials")
+    assert code == 0 and "GaAs" in out and "AlGaAs" in out
+    code, out, _ = run_cli(capsys, "materials", "GaAs", "--json")
+    assert code == 0
+    rows = json.loads(out)["parameters"]
+    gap = next(r for r in rows if r["parameter"] == "band_gap")
+    assert gap["value"] == pytest.approx(1.519)      # Vurgaftman, Meyer, Ram-Mohan, JAP 89, 5815 (2001), GaAs Eg(0 K)
+    assert all(r["source"] for r in rows)
+    code, _, err = run_cli(capsys, "materials", "Unobtainium")
+    _assert_one_line_error(code, err, None, None)
+    assert "GaAs" in err                              # the choices are listed
+
+
+def test_extra_command_modules_optional(monkeypatch):
+    monkeypatch.setattr(cli, "EXTRA_COMMANDS", ("selfcon.no_such_module.commands", "selfcon.no_such_module"))
+    assert cli.build_parser() is not None             # missing modules are skipped silently
+    monkeypatch.setattr(cli, "EXTRA_COMMANDS", ("selfcon._test_broken_commands",))
+    import types
+    broken = types.ModuleType("selfcon._test_broken_commands")
+
+    def register(sub):
+        raise ValueError("broken register")
+    broken.register = register
+    monkeypatch.setitem(sys.modules, "selfcon._test_broken_commands", broken)
+    with pytest.raises(ValueError, match="broken register"):
+        cli.build_parser()
+
+
+def test_extra_command_import_error_inside_module_raises(monkeypatch, tmp_path):
+    pkg = tmp_path / "cli_extra_pkg"
+    pkg.mkdir()
+    (pkg / "__init__.py").write_text("")
+    (pkg / "commands.py").write_text("import a_dependency_that_is_not_installed_xyz\n")
+    monkeypatch.syspath_prepend(str(tmp_path))
+    monkeypatch.setattr(cli, "EXTRA_COMMANDS", ("cli_extra_pkg.commands",))
+    with pytest.raises(ModuleNotFoundError, match="a_dependency_that_is_not_installed_xyz"):
+        cli.build_parser()
+
+
+def test_python_m_selfcon_version():
+    proc = run_sub("--version")
+    assert proc.returncode == 0 and proc.stdout.startswith("selfcon ")
