@@ -48,7 +48,6 @@ BAND_NAMES = {"electron": "electron states", "heavy_hole": "heavy-hole states", 
 #: per band: occupied states plus this many empty ones above them are drawn, at most MAX_STATES_DRAWN
 EMPTY_STATES_DRAWN = 2
 MAX_STATES_DRAWN = 8
-OCCUPIED_CM2 = 1e8
 
 
 def auto_depth(result) -> tuple[float, float]:
@@ -86,8 +85,9 @@ def _allowed_span(z, edge, energy, sign, region):
 
 
 def _states_to_draw(sb):
+    from .assemble import OCCUPIED_CM2, OCCUPIED_FRACTION     # the /summary rule for "occupied"
     occ = np.asarray(sb.occupation)
-    n_occ = int(np.sum(occ >= OCCUPIED_CM2))
+    n_occ = int(np.sum((occ > OCCUPIED_CM2) & (occ > OCCUPIED_FRACTION * max(float(occ.sum()), 1e-300))))
     count = min(np.asarray(sb.energy).size, n_occ + EMPTY_STATES_DRAWN, MAX_STATES_DRAWN)
     return list(range(count)), n_occ
 

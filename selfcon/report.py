@@ -14,9 +14,9 @@ from typing import Any
 
 import numpy as np
 
-#: a subband holding at least this sheet density counts as occupied (cm^-2)  [common practice:
-#: far below any measurable Hall density, far above the Boltzmann tail of empty states at 4 K]
-OCCUPIED_CM2 = 1e8
+# a subband counts as occupied above OCCUPIED_CM2 (cm^-2) and OCCUPIED_FRACTION of its band's total:
+# the same rule as the /summary counts written by selfcon.assemble
+from .assemble import OCCUPIED_CM2, OCCUPIED_FRACTION  # noqa: E402
 
 BAND_LABELS = {"electron": "electron", "heavy_hole": "heavy hole", "light_hole": "light hole"}
 
@@ -39,6 +39,11 @@ def _clean(value):
     return value
 
 
+def _meV(v):
+    v = float(v) * 1e3
+    return v if math.isfinite(v) else None
+
+
 def channel_figures(result) -> dict | None:
     """Where the carriers sit: the layer holding most electrons (or holes, if there are no electrons).
 
@@ -47,6 +52,19 @@ def channel_figures(result) -> dict | None:
     """
     if not result.layers:
         return None
+    s = result.summary
+    names = [str(row.get("name", i)) for i, row in enumerate(result.layers)]
+    if s.get("channel_layer") in names:             # the solver's own figures (/summary)
+        i = names.index(s["channel_layer"])
+        n_i = float(result.layers[i].get("electron_sheet_density_cm2", 0.0) or 0.0)
+        p_i = float(result.layers[i].get("hole_sheet_density_cm2", 0.0) or 0.0)
+        electrons = float(s.get("electron_sheet_density_cm2", 0.0) or 0.0) > 0.0
+        if electrons and "ef_minus_ec_channel_eV" in s:
+            return {"layer": names[i], "index": i, "carrier": "electron", "sheet_density_cm2": n_i,
+                    "ef_minus_ec_meV": _meV(s["ef_minus_ec_channel_eV"])}
+        if not electrons and "ev_minus_ef_channel_eV" in s:
+            return {"layer": names[i], "index": i, "carrier": "hole", "sheet_density_cm2": p_i,
+                    "ev_minus_ef_meV": _meV(s["ev_minus_ef_channel_eV"])}
     idx = np.asarray(result.layer_index)
     for carrier, key in (("electron", "electron_sheet_density_cm2"), ("hole", "hole_sheet_density_cm2")):
         dens = np.array([float(row.get(key, 0.0) or 0.0) for row in result.layers])
@@ -70,11 +88,13 @@ def subband_rows(result) -> list[dict]:
     """Every bound state: band, index (0 = lowest), energy relative to EF (meV), population (cm^-2)."""
     rows = []
     for band, sb in result.subbands.items():
+        total = float(np.sum(sb.occupation))
         for k in range(np.asarray(sb.energy).size):
             occ = float(sb.occupation[k])
+            occupied = occ > OCCUPIED_CM2 and occ > OCCUPIED_FRACTION * max(total, 1e-300)
             rows.append({"band": band, "index": k, "energy_meV": float(sb.energy[k]) * 1e3,
                          "occupation_cm2": occ, "in_plane_mass_m0": float(sb.in_plane_mass[k]),
-                         "region": int(sb.region[k]), "occupied": bool(occ >= OCCUPIED_CM2)})
+                         "region": int(sb.region[k]), "occupied": bool(occupied)})
     return rows
 
 

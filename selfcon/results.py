@@ -19,7 +19,8 @@ Layout (§4, with the extensions marked +)::
                      + region, degeneracy (k,)
     /convergence/residual   (iterations,)
     /convergence/<name> +   per-iteration record (charge_residual, newton_steps, seconds, damping, ...)
-    /summary                attrs: Result.summary, plus warnings (array of strings)
+    /summary                attrs: Result.summary, with warnings (array of strings) = Result.warnings;
+                            a loaded Result has summary["warnings"] == warnings
 
 Writing is atomic: a temporary file in the target folder, flushed and fsync'ed,
 then ``os.replace``.  Any failure removes the temporary file and leaves an
@@ -282,9 +283,8 @@ def _write_convergence(f, result: Result) -> None:
 def _write_summary(f, result: Result) -> None:
     g = f.create_group("summary", track_order=True)      # attributes: figures only (no description)
     for key, value in (result.summary or {}).items():
-        if key == "warnings":
-            raise ValueError(f"summary key {key!r} is reserved in the result file")
-        g.attrs[key] = _attr_value(value)
+        if key != "warnings":          # Result.warnings is the one source of the warnings attribute
+            g.attrs[key] = _attr_value(value)
     g.attrs["warnings"] = np.array([str(w) for w in result.warnings], dtype=_STR)
 
 
@@ -420,8 +420,8 @@ def load_result(path) -> Result:
             name = "record_residual" if key == "residual" and "record_residual" in gc else key
             record[key] = gc[name][()]
         gs = _need(f, "summary", path)
-        summary = {k: _py(v) for k, v in gs.attrs.items() if k != "warnings"}
         warnings = _strings(gs.attrs.get("warnings"))
+        summary = {k: (list(warnings) if k == "warnings" else _py(v)) for k, v in gs.attrs.items()}
         provenance = {k: _py(a[k]) for k in _strings(a.get("provenance_keys"))}
         return Result(
             title=_py(a["title"]), temperature=_py(a["temperature_K"]), converged=_py(a["converged"]),

@@ -46,7 +46,7 @@ def make_result(n=41, converged=True):
                     in_plane_mass=np.array([0.11]), region=np.array([0], dtype=np.int64),
                     degeneracy=np.array([1], dtype=np.int64))
     layers = [
-        {"name": "cap", "material": "GaAs", "x_top": 0.0, "x_bottom": 0.0, "top_nm": 0.0, "bottom_nm": 10.0,
+        {"name": "cap", "material": "GaAs", "x_top": float("nan"), "x_bottom": float("nan"), "top_nm": 0.0, "bottom_nm": 10.0,
          "electron_sheet_density_cm2": 0.0, "hole_sheet_density_cm2": 0.0},
         {"name": "barrier", "material": "AlGaAs", "x_top": 0.3, "x_bottom": 0.3, "top_nm": 10.0,
          "bottom_nm": 20.0, "electron_sheet_density_cm2": 1.0e9, "hole_sheet_density_cm2": 0.0},
@@ -62,10 +62,11 @@ def make_result(n=41, converged=True):
         layers=layers, subbands={"electron": electron, "heavy_hole": hole}, residual_history=history,
         summary={"electron_sheet_density_cm2": 4.11e11, "hole_sheet_density_cm2": 0.0,
                  "donor_sheet_density_cm2": 1.0e12, "gauss_residual": 1e-9, "occupied_subbands": 1,
-                 "channel_layer": "channel"},
+                 "channel_layer": "channel", "ef_minus_ec_channel_eV": 0.0123, "E1_minus_E0_eV": float("nan"),
+                 "warnings": ["charge left in a doping layer: barrier holds 1e+09 cm-2"]},
         warnings=["charge left in a doping layer: barrier holds 1e+09 cm-2"],
         provenance={"selfcon_version": "0.1.0", "numpy_version": np.__version__, "deck_hash": "abc123",
-                    "wall_time_s": 0.25},
+                    "wall_time_s": 0.25, "created": "2024-01-02T03:04:05Z"},
         record={"residual": history.copy(), "seconds": np.array([0.1, 0.05, 0.05, 0.05]),
                 "newton_steps": np.array([5, 3, 2, 1], dtype=np.int64)},
         regions_nm=[(20.0, 40.0)],
@@ -185,14 +186,14 @@ def test_h5dump_lists_the_layout(tmp_path):
 
 
 def _tree(path):
-    """Every dataset (dtype, value) and attribute of a file, except the write timestamp."""
+    """Every dataset and attribute of a file as (dtype, bytes), so NaN compares equal to NaN."""
     import h5py
     items = {}
     with h5py.File(path, "r") as f:
         def grab(name, obj):
-            attrs = {k: (v.tolist() if isinstance(v, np.ndarray) else v) for k, v in obj.attrs.items()}
-            if name == "/":
-                attrs.pop("created")
+            attrs = {k: (v if isinstance(v, (str, bytes)) else (str(np.asarray(v).dtype), np.asarray(v).tolist()
+                         if np.asarray(v).dtype.kind in "OSU" else np.asarray(v).tobytes()))
+                     for k, v in obj.attrs.items()}
             entry = {"attrs": attrs}
             if isinstance(obj, h5py.Dataset):
                 entry["dtype"] = str(obj.dtype)
@@ -203,11 +204,23 @@ def _tree(path):
     return items
 
 
+def _same(x, y):
+    """Equal values of equal types, NaN equal to NaN, recursing into lists, tuples and dicts."""
+    if type(x) is not type(y):
+        return False
+    if isinstance(x, dict):
+        return list(x) == list(y) and all(_same(x[k], y[k]) for k in x)
+    if isinstance(x, (list, tuple)):
+        return len(x) == len(y) and all(_same(u, v) for u, v in zip(x, y))
+    if isinstance(x, float) and np.isnan(x):
+        return bool(np.isnan(y))
+    return x == y
+
+
 def assert_results_equal(a: Result, b: Result):
     for name in ("title", "temperature", "converged", "iterations", "residual", "message", "deck_text",
                  "layers", "summary", "warnings", "provenance", "regions_nm"):
-        assert getattr(a, name) == getattr(b, name), name
-        assert type(getattr(a, name)) is type(getattr(b, name)), name
+        assert _same(getattr(a, name), getattr(b, name)), name
     for name in ("z", "layer_index", "residual_history"):
         x, y = getattr(a, name), getattr(b, name)
         assert x.dtype == y.dtype and np.array_equal(x, y), name
