@@ -1,0 +1,332 @@
+"""Nonlinear Poisson kernels (numba): finite volumes on a nonuniform mesh, Newton with a
+tridiagonal (Thomas) solve.  Arrays in, arrays out; nothing compiled at import.
+
+Mesh (INTERFACES.md): nodes i = 0..N-1, cells c = 0..N-2 of width h[c], half-cell
+widths wl[i] = h[i-1]/2 (0 at i = 0), wr[i] = h[i]/2 (0 at i = N-1), w = wl + wr.
+Material data is per cell; every cell is one material.
+
+Charge model at node i, potential phi_i (V), EF = 0, densities nm^-3, in units of q:
+  each half cell c in {i-1, i} is evaluated with ITS OWN parameters at phi_i:
+    Ec = ec0[c] - phi_i, Ev = ev0[c] - phi_i,
+    n_c = nc[c] F_{1/2}(-Ec/kT), p_c = nv[c] F_{1/2}(Ev/kT),
+    Nd+_c = nd[c]/(1 + 2 exp((Ed - Ec)/kT)), Na-_c = na[c]/(1 + 4 exp((Ev + Ea)/kT))
+    (or Nd+ = nd, Na- = na with full ionisation);
+  classical node density = (wl * x_{i-1} + wr * x_i) / w.
+  Sheets (nm^-2 at the node): ionised fraction = the wl/wr-weighted mean of the two
+  half cells' fractions (each with its cell's Ec and binding energy); contributes s f / w.
+  Quantum part (predictor-corrector of Trellakis et al., J. Appl. Phys. 81, 7880 (1997)):
+    n_q,i = sum_k psi2[i,k] dos_e[k] kT ln(1 + exp((-E_k + dphi_i)/kT)),
+    p_q,i = sum_k psi2h[i,k] dos_h[k] kT ln(1 + exp((E_k - dphi_i)/kT)),  dphi = phi - phi_ref,
+  i.e. the subbands move rigidly with the local potential change, so d rho_i / d phi_i is
+  local (the Jacobian stays tridiagonal).
+  Mixing of the two: n_i = cls_e[i] n_classical,i + (1 - cls_e[i]) n_q,i (same for holes
+  with cls_h); masks are 1 for classical nodes, 0 for quantum ones (fractions allowed).
+  rho_i = p_i - n_i + Nd+_i - Na-_i.
+
+Equation at node i (V nm^-1 x eps_r, integrated over the dual cell):
+  R_i = eps[i](phi_{i+1}-phi_i)/h[i] - eps[i-1](phi_i-phi_{i-1})/h[i-1] + Q_EPS0 rho_i w_i = 0.
+Boundaries: kind 0 Dirichlet (phi = value), kind 1 zero field (the outer flux term is
+absent, i.e. the half-cell balance).  The FV boundary flux eps dphi/dz at an end is defined
+by the same half-cell balance (fv_boundary_flux), so Gauss's law
+  eps dphi/dz |_L - eps dphi/dz |_0 = -Q_EPS0 sum_i rho_i w_i
+holds to the Newton residual.
+
+Damping rule: the Newton step is scaled uniformly (direction kept) so that
+max_i |dphi_i| <= max_step (V), then halved until the residual norm ||R||_2 decreases
+(backtracking line search, at most 50 halvings); a step already below tol is accepted.
+Near the solution full steps pass, so convergence is quadratic.
+Convergence: max |applied step| < tol (V).
+"""
+import math
+
+import numpy as np
+from numba import njit
+
+from ..constants import Q_EPS0
+from .statistics import (acceptor_ionized, donor_ionized, expit, fermi_half, fermi_mhalf,
+                         log1pexp)
+
+
+@njit(cache=True)
+def _cell_terms(c, phi, ec0, ev0, nc, nv, nd, ed, na, ea, kT, full):
+    """Classical densities of cell c at potential phi and their d/dphi, plus the ionised
+    fractions of a unit sheet (donor, acceptor) with d/dphi."""
+    ec = ec0[c] - phi
+    ev = ev0[c] - phi
+    n = 0.0
+    dn = 0.0
+    if nc[c] > 0.0:
+        eta = -ec / kT
+        n = nc[c] * fermi_half(eta)
+        dn = nc[c] * fermi_mhalf(eta) / kT
+    p = 0.0
+    dp = 0.0
+    if nv[c] > 0.0:
+        eta = ev / kT
+        p = nv[c] * fermi_half(eta)
+        dp = -nv[c] * fermi_mhalf(eta) / kT
+    # d/dphi = -d/dEc = -d/dEv
+    fd, dfd = donor_ionized(1.0, ec, ed[c], kT, full)
+    fa, dfa = acceptor_ionized(1.0, ev, ea[c], kT, full)
+    return n, dn, p, dp, fd, -dfd, fa, -dfa
+
+
+@njit(cache=True)
+def _node(i, phi_i, h, wl, wr, ec0, ev0, nc, nv, nd, ed, na, ea, sheet_nd, sheet_na, kT, full,
+          cls_e, cls_h, psi2, ek, dos_e, psi2h, ekh, dos_h, phi_ref):
+    """Node densities n, p, Nd+, Na- (nm^-3) at phi_i and d rho/d phi."""
+    w = wl[i] + wr[i]
+    n = 0.0
+    dn = 0.0
+    p = 0.0
+    dp = 0.0
+    ndp = 0.0
+    dndp = 0.0
+    nam = 0.0
+    dnam = 0.0
+    fsd = 0.0
+    dfsd = 0.0
+    fsa = 0.0
+    dfsa = 0.0
+    for side in range(2):
+        if side == 0:
+            c = i - 1
+            wt = wl[i]
+        else:
+            c = i
+            wt = wr[i]
+        if wt == 0.0:
+            continue
+        cn, cdn, cp, cdp, fd, dfd, fa, dfa = _cell_terms(c, phi_i, ec0, ev0, nc, nv, nd, ed,
+                                                         na, ea, kT, full)
+        n += wt * cn
+        dn += wt * cdn
+        p += wt * cp
+        dp += wt * cdp
+        ndp += wt * nd[c] * fd
+        dndp += wt * nd[c] * dfd
+        nam += wt * na[c] * fa
+        dnam += wt * na[c] * dfa
+        fsd += wt * fd
+        dfsd += wt * dfd
+        fsa += wt * fa
+        dfsa += wt * dfa
+    n /= w
+    dn /= w
+    p /= w
+    dp /= w
+    # sheets: s * (wl f_l + wr f_r)/w is the ionised sheet; spread over the dual cell (/w)
+    ndp = (ndp + sheet_nd[i] * fsd / w) / w
+    dndp = (dndp + sheet_nd[i] * dfsd / w) / w
+    nam = (nam + sheet_na[i] * fsa / w) / w
+    dnam = (dnam + sheet_na[i] * dfsa / w) / w
+    # quantum electrons / holes with rigidly shifted subbands
+    dphi = phi_i - phi_ref[i]
+    ce = cls_e[i]
+    if ce < 1.0:
+        nq = 0.0
+        dnq = 0.0
+        for k in range(ek.shape[0]):
+            a = psi2[i, k] * dos_e[k]
+            if a != 0.0:
+                x = (dphi - ek[k]) / kT
+                nq += a * kT * log1pexp(x)
+                dnq += a * expit(x)
+        n = ce * n + (1.0 - ce) * nq
+        dn = ce * dn + (1.0 - ce) * dnq
+    ch = cls_h[i]
+    if ch < 1.0:
+        pq = 0.0
+        dpq = 0.0
+        for k in range(ekh.shape[0]):
+            a = psi2h[i, k] * dos_h[k]
+            if a != 0.0:
+                x = (ekh[k] - dphi) / kT
+                pq += a * kT * log1pexp(x)
+                dpq -= a * expit(x)
+        p = ch * p + (1.0 - ch) * pq
+        dp = ch * dp + (1.0 - ch) * dpq
+    drho = dp - dn + dndp - dnam
+    return n, p, ndp, nam, drho
+
+
+@njit(cache=True)
+def node_densities(phi, h, wl, wr, eps, ec0, ev0, nc, nv, nd, ed, na, ea, sheet_nd, sheet_na,
+                   kT, full, cls_e, cls_h, psi2, ek, dos_e, psi2h, ekh, dos_h, phi_ref):
+    """Node densities at phi: (n, p, nd_plus, na_minus, drho_dphi), each (N,), nm^-3
+    (sheets included as s/w).  rho = p - n + nd_plus - na_minus.  eps is unused (kept so
+    every kernel takes the same model argument list)."""
+    N = phi.shape[0]
+    n = np.empty(N)
+    p = np.empty(N)
+    ndp = np.empty(N)
+    nam = np.empty(N)
+    drho = np.empty(N)
+    for i in range(N):
+        n[i], p[i], ndp[i], nam[i], drho[i] = _node(
+            i, phi[i], h, wl, wr, ec0, ev0, nc, nv, nd, ed, na, ea, sheet_nd, sheet_na, kT,
+            full, cls_e, cls_h, psi2, ek, dos_e, psi2h, ekh, dos_h, phi_ref)
+    return n, p, ndp, nam, drho
+
+
+@njit(cache=True)
+def fv_boundary_flux(phi, h, eps, rho, w):
+    """FV fluxes D = eps_r dphi/dz (V/nm) at z[0] and z[N-1], from the half-cell balances
+    D_0 = eps[0](phi1-phi0)/h0 + Q_EPS0 rho_0 w_0 and
+    D_L = eps[-1](phi_N-1 - phi_N-2)/h[-1] - Q_EPS0 rho_N-1 w_N-1."""
+    N = phi.shape[0]
+    d0 = eps[0] * (phi[1] - phi[0]) / h[0] + Q_EPS0 * rho[0] * w[0]
+    dl = eps[N - 2] * (phi[N - 1] - phi[N - 2]) / h[N - 2] - Q_EPS0 * rho[N - 1] * w[N - 1]
+    return d0, dl
+
+
+@njit(cache=True)
+def total_charge(rho, w):
+    """FV integral sum_i rho_i w_i (nm^-2, units of q)."""
+    s = 0.0
+    for i in range(rho.shape[0]):
+        s += rho[i] * w[i]
+    return s
+
+
+@njit(cache=True)
+def thomas(a, b, c, d, cp, x):
+    """Solve the tridiagonal system a[i] x[i-1] + b[i] x[i] + c[i] x[i+1] = d[i] (a[0], c[-1]
+    ignored) into x, using cp as scratch.  No pivoting (the Poisson Jacobian is diagonally
+    dominant).  d is overwritten."""
+    N = b.shape[0]
+    beta = b[0]
+    cp[0] = c[0] / beta
+    d[0] = d[0] / beta
+    for i in range(1, N):
+        beta = b[i] - a[i] * cp[i - 1]
+        if i < N - 1:
+            cp[i] = c[i] / beta
+        d[i] = (d[i] - a[i] * d[i - 1]) / beta
+    x[N - 1] = d[N - 1]
+    for i in range(N - 2, -1, -1):
+        x[i] = d[i] - cp[i] * x[i + 1]
+
+
+@njit(cache=True)
+def _assemble(phi, g, h, wl, wr, ec0, ev0, nc, nv, nd, ed, na, ea, sheet_nd, sheet_na, kT, full,
+              cls_e, cls_h, psi2, ek, dos_e, psi2h, ekh, dos_h, phi_ref, kind_top, kind_bottom,
+              a, b, c, r):
+    """Fill the tridiagonal Jacobian (a, b, c) and r = -R at phi; return ||R||_2."""
+    N = phi.shape[0]
+    for i in range(N):
+        nn, pp, ndp, nam, drho = _node(i, phi[i], h, wl, wr, ec0, ev0, nc, nv, nd, ed, na,
+                                       ea, sheet_nd, sheet_na, kT, full, cls_e, cls_h,
+                                       psi2, ek, dos_e, psi2h, ekh, dos_h, phi_ref)
+        w = wl[i] + wr[i]
+        res = Q_EPS0 * (pp - nn + ndp - nam) * w
+        diag = Q_EPS0 * drho * w
+        if i < N - 1:
+            res += g[i] * (phi[i + 1] - phi[i])
+            diag -= g[i]
+            c[i] = g[i]
+        else:
+            c[i] = 0.0
+        if i > 0:
+            res -= g[i - 1] * (phi[i] - phi[i - 1])
+            diag -= g[i - 1]
+            a[i] = g[i - 1]
+        else:
+            a[i] = 0.0
+        b[i] = diag
+        r[i] = -res
+    if kind_top == 0:
+        a[0] = 0.0
+        b[0] = 1.0
+        c[0] = 0.0
+        r[0] = 0.0
+    if kind_bottom == 0:
+        a[N - 1] = 0.0
+        b[N - 1] = 1.0
+        c[N - 1] = 0.0
+        r[N - 1] = 0.0
+    s = 0.0
+    for i in range(N):
+        s += r[i] * r[i]
+    return math.sqrt(s)
+
+
+@njit(cache=True)
+def poisson_newton(phi0, h, wl, wr, eps, ec0, ev0, nc, nv, nd, ed, na, ea, sheet_nd, sheet_na,
+                   kT, full, cls_e, cls_h, psi2, ek, dos_e, psi2h, ekh, dos_h, phi_ref,
+                   kind_top, value_top, kind_bottom, value_bottom, tol, max_iter, max_step,
+                   history):
+    """Newton solve of the nonlinear FV Poisson equation (see module docstring).
+
+    phi0 (N,) initial guess (not modified); kind_* 0 Dirichlet (phi = value_*), 1 zero field;
+    tol (V) on max |step|; max_step (V) step-length limit; history (>= max_iter,) receives
+    max |step| of each Newton step.  Returns (phi, newton_steps, converged, max_update).
+    Damping: step scaled to max |dphi| <= max_step, then halved (up to 50 times) until
+    ||R||_2 decreases (backtracking); a step already below tol is taken as is.
+    Work arrays are allocated once per call, none inside the loop.
+    """
+    N = phi0.shape[0]
+    phi = phi0.copy()
+    if kind_top == 0:
+        phi[0] = value_top
+    if kind_bottom == 0:
+        phi[N - 1] = value_bottom
+    a = np.empty(N)
+    b = np.empty(N)
+    c = np.empty(N)
+    r = np.empty(N)
+    a2 = np.empty(N)
+    b2 = np.empty(N)
+    c2 = np.empty(N)
+    r2 = np.empty(N)
+    cp = np.empty(N)
+    dx = np.empty(N)
+    trial = np.empty(N)
+    g = np.empty(N - 1)            # eps/h per cell
+    for k in range(N - 1):
+        g[k] = eps[k] / h[k]
+    steps = 0
+    converged = False
+    upd = np.inf
+    norm = _assemble(phi, g, h, wl, wr, ec0, ev0, nc, nv, nd, ed, na, ea, sheet_nd, sheet_na,
+                     kT, full, cls_e, cls_h, psi2, ek, dos_e, psi2h, ekh, dos_h, phi_ref,
+                     kind_top, kind_bottom, a, b, c, r)
+    for it in range(max_iter):
+        if not math.isfinite(norm):
+            upd = np.nan
+            break
+        thomas(a, b, c, r, cp, dx)
+        big = 0.0
+        for i in range(N):
+            v = abs(dx[i])
+            if not v <= big:        # also catches NaN
+                big = v
+        steps = it + 1
+        if not math.isfinite(big):
+            upd = big
+            break
+        scale = 1.0
+        if big > max_step:
+            scale = max_step / big
+        for _ in range(50):
+            for i in range(N):
+                trial[i] = phi[i] + scale * dx[i]
+            new = _assemble(trial, g, h, wl, wr, ec0, ev0, nc, nv, nd, ed, na, ea, sheet_nd,
+                            sheet_na, kT, full, cls_e, cls_h, psi2, ek, dos_e, psi2h, ekh,
+                            dos_h, phi_ref, kind_top, kind_bottom, a2, b2, c2, r2)
+            if new < norm or scale * big < tol:
+                break
+            scale *= 0.5
+        for i in range(N):
+            phi[i] = trial[i]
+            a[i] = a2[i]
+            b[i] = b2[i]
+            c[i] = c2[i]
+            r[i] = r2[i]
+        norm = new
+        upd = scale * big
+        history[it] = upd
+        if upd < tol:
+            converged = True
+            break
+    return phi, steps, converged, upd

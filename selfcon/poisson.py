@@ -1,0 +1,261 @@
+"""Nonlinear Poisson, Python side: the problem record, the solve front, densities,
+neutral level, field and Gauss check.  The model and the discretisation are documented
+in selfcon/kernels/poisson.py.
+
+Units: nm, eV, V, K, nm^-3, nm^-2 (INTERFACES.md).  EF = 0, Ec = ec0 - phi, Ev = ev0 - phi.
+Boundary kinds: DIRICHLET (phi fixed; schottky, pinned and ohmic contacts) and
+ZERO_FIELD (free surface: no outer flux).
+"""
+from dataclasses import dataclass, field, replace
+
+import numpy as np
+
+from .constants import KB_EV, Q_EPS0, NM_PER_CM
+
+DIRICHLET = 0
+ZERO_FIELD = 1
+
+
+def _f(a):
+    return np.ascontiguousarray(a, dtype=float)
+
+
+@dataclass(frozen=True)
+class PoissonProblem:
+    """Everything the Poisson kernels need.  Per-cell arrays have length N-1, per-node N.
+
+    Cells: eps, ec0, ev0 (eV), nc, nv (nm^-3, effective DOS; 0 switches a carrier off),
+    nd, na (nm^-3), ed, ea (binding energies, eV).  Nodes: sheet_nd, sheet_na (nm^-2).
+    Quantum part (predictor-corrector): cls_e, cls_h (N,) masks (1 classical, 0 quantum),
+    psi2 (N, Ke) |psi|^2 (nm^-1), ek (Ke,) eV, dos_e (Ke,) nm^-2 eV^-1; psi2h, ekh, dos_h
+    for holes (hole levels in electron energy); phi_ref (N,) the potential the subbands
+    belong to.  Boundaries: (kind, value) with kind DIRICHLET or ZERO_FIELD, value in V.
+    """
+    z: np.ndarray
+    eps: np.ndarray
+    ec0: np.ndarray
+    ev0: np.ndarray
+    nc: np.ndarray
+    nv: np.ndarray
+    nd: np.ndarray
+    ed: np.ndarray
+    na: np.ndarray
+    ea: np.ndarray
+    temperature: float
+    sheet_nd: np.ndarray = None
+    sheet_na: np.ndarray = None
+    full_ionization: bool = False
+    top: tuple = (ZERO_FIELD, 0.0)
+    bottom: tuple = (ZERO_FIELD, 0.0)
+    cls_e: np.ndarray = None
+    cls_h: np.ndarray = None
+    psi2: np.ndarray = None
+    ek: np.ndarray = None
+    dos_e: np.ndarray = None
+    psi2h: np.ndarray = None
+    ekh: np.ndarray = None
+    dos_h: np.ndarray = None
+    phi_ref: np.ndarray = None
+    h: np.ndarray = field(init=False)
+    wl: np.ndarray = field(init=False)
+    wr: np.ndarray = field(init=False)
+    w: np.ndarray = field(init=False)
+
+    def __post_init__(self):
+        set_ = lambda k, v: object.__setattr__(self, k, v)
+        z = _f(self.z)
+        N = z.shape[0]
+        if N < 2 or np.any(np.diff(z) <= 0):
+            raise ValueError("PoissonProblem: z must be increasing with at least 2 nodes")
+        set_("z", z)
+        for k in ("eps", "ec0", "ev0", "nc", "nv", "nd", "ed", "na", "ea"):
+            a = _f(getattr(self, k))
+            if a.shape != (N - 1,):
+                raise ValueError(f"PoissonProblem: {k} must be per cell, shape ({N - 1},)")
+            set_(k, a)
+        for k in ("sheet_nd", "sheet_na", "phi_ref"):
+            a = getattr(self, k)
+            set_(k, np.zeros(N) if a is None else _f(a))
+        for k in ("cls_e", "cls_h"):
+            a = getattr(self, k)
+            set_(k, np.ones(N) if a is None else _f(a))
+        for p, e, d in (("psi2", "ek", "dos_e"), ("psi2h", "ekh", "dos_h")):
+            if getattr(self, p) is None:
+                set_(p, np.zeros((N, 0)))
+                set_(e, np.zeros(0))
+                set_(d, np.zeros(0))
+            else:
+                set_(p, _f(getattr(self, p)).reshape(N, -1))
+                set_(e, _f(getattr(self, e)))
+                set_(d, _f(getattr(self, d)))
+        h = np.diff(z)
+        wl = np.concatenate([[0.0], h / 2])
+        wr = np.concatenate([h / 2, [0.0]])
+        set_("h", h)
+        set_("wl", wl)
+        set_("wr", wr)
+        set_("w", wl + wr)
+        set_("top", (int(self.top[0]), float(self.top[1])))
+        set_("bottom", (int(self.bottom[0]), float(self.bottom[1])))
+
+    @property
+    def kT(self):
+        return KB_EV * self.temperature
+
+    def with_quantum(self, *, phi_ref, cls_e=None, psi2=None, ek=None, dos_e=None,
+                     cls_h=None, psi2h=None, ekh=None, dos_h=None):
+        """Copy with the quantum (predictor) part replaced; omitted parts are kept."""
+        kw = dict(phi_ref=phi_ref)
+        for k, v in (("cls_e", cls_e), ("psi2", psi2), ("ek", ek), ("dos_e", dos_e),
+                     ("cls_h", cls_h), ("psi2h", psi2h), ("ekh", ekh), ("dos_h", dos_h)):
+            if v is not None:
+                kw[k] = v
+        return replace(self, **kw)
+
+    def with_boundaries(self, top=None, bottom=None):
+        return replace(self, top=self.top if top is None else top,
+                       bottom=self.bottom if bottom is None else bottom)
+
+    def model_args(self):
+        """The kernel model argument tuple (order of selfcon.kernels.poisson)."""
+        return (self.h, self.wl, self.wr, self.eps, self.ec0, self.ev0, self.nc, self.nv,
+                self.nd, self.ed, self.na, self.ea, self.sheet_nd, self.sheet_na, self.kT,
+                bool(self.full_ionization), self.cls_e, self.cls_h, self.psi2, self.ek,
+                self.dos_e, self.psi2h, self.ekh, self.dos_h, self.phi_ref)
+
+
+ChargeModel = PoissonProblem
+
+
+@dataclass
+class PoissonSolution:
+    phi: np.ndarray
+    steps: int
+    converged: bool
+    update: float                      # last max |step| (V)
+    history: np.ndarray = None         # max |step| of each Newton step (V)
+
+
+def solve_poisson(problem, phi0, *, tol=1e-9, max_iter=200, max_step=0.3):
+    """Newton solve; returns PoissonSolution (never raises on non-convergence).
+
+    tol: V on max |Newton step|; max_step: V, the step is scaled so that no node moves
+    more than this in one step (direction kept)."""
+    from .kernels.poisson import poisson_newton
+    hist = np.zeros(max_iter)
+    phi, steps, conv, upd = poisson_newton(
+        _f(phi0), *problem.model_args(), problem.top[0], problem.top[1], problem.bottom[0],
+        problem.bottom[1], float(tol), int(max_iter), float(max_step), hist)
+    return PoissonSolution(phi, int(steps), bool(conv), float(upd), hist[:steps].copy())
+
+
+@dataclass
+class Densities:
+    """Node densities in nm^-3 (sheets spread as s/w), charge rho = p - n + nd_plus - na_minus."""
+    n: np.ndarray
+    p: np.ndarray
+    nd_plus: np.ndarray
+    na_minus: np.ndarray
+
+    @property
+    def rho(self):
+        return self.p - self.n + self.nd_plus - self.na_minus
+
+
+def densities(problem, phi):
+    from .kernels.poisson import node_densities
+    n, p, ndp, nam, _ = node_densities(_f(phi), *problem.model_args())
+    return Densities(n, p, ndp, nam)
+
+
+def total_charge(problem, phi):
+    """FV integral of rho (nm^-2, units of q), sheets included."""
+    return float(np.sum(densities(problem, phi).rho * problem.w))
+
+
+def neutral_potential(ec0, ev0, nc, nv, nd, ed, na, ea, kT, full_ionization=False):
+    """phi (V) at which bulk material with these (one cell's) parameters is neutral.
+
+    rho(phi) = p - n + Nd+ - Na- decreases strictly with phi; a bracket around the band
+    gap is widened until rho changes sign, then brentq (xtol 1e-13 V)."""
+    from scipy.optimize import brentq
+    from .kernels import statistics as ks
+    full = bool(full_ionization)
+
+    def rho(phi):
+        ec = ec0 - phi
+        ev = ev0 - phi
+        n = nc * ks.fermi_half(-ec / kT) if nc > 0 else 0.0
+        p = nv * ks.fermi_half(ev / kT) if nv > 0 else 0.0
+        return (p - n + ks.donor_ionized(nd, ec, ed, kT, full)[0]
+                - ks.acceptor_ionized(na, ev, ea, kT, full)[0])
+
+    lo, hi = min(ec0, ev0) - 0.5, max(ec0, ev0) + 0.5
+    for _ in range(60):
+        if rho(lo) > 0:
+            break
+        lo -= 1.0 + (hi - lo)
+    for _ in range(60):
+        if rho(hi) < 0:
+            break
+        hi += 1.0 + (hi - lo)
+    r_lo, r_hi = rho(lo), rho(hi)
+    if r_lo == 0.0:
+        return lo
+    if r_hi == 0.0:
+        return hi
+    if not (r_lo > 0 > r_hi):
+        raise ValueError("neutral_potential: no carriers can neutralise this material "
+                         "(nc and nv both zero with net doping?)")
+    return brentq(rho, lo, hi, xtol=1e-13, rtol=4 * np.finfo(float).eps, maxiter=500)
+
+
+def cell_neutral_potential(problem, c):
+    """neutral_potential for cell c of a problem."""
+    p = problem
+    return neutral_potential(p.ec0[c], p.ev0[c], p.nc[c], p.nv[c], p.nd[c], p.ed[c], p.na[c],
+                             p.ea[c], p.kT, p.full_ionization)
+
+
+def electric_field(z, phi):
+    """E = -dphi/dz at nodes in V/cm: second-order three-point differences on the
+    nonuniform mesh inside, one-sided at the two ends."""
+    z = _f(z)
+    phi = _f(phi)
+    d = np.empty_like(phi)
+    h = np.diff(z)
+    s = np.diff(phi) / h
+    d[0] = s[0]
+    d[-1] = s[-1]
+    if len(z) > 2:
+        hl, hr = h[:-1], h[1:]
+        d[1:-1] = (hr * s[:-1] + hl * s[1:]) / (hl + hr)
+    return -d * NM_PER_CM
+
+
+def boundary_flux(problem, phi):
+    """FV fluxes eps_r dphi/dz (V/nm) at the top and the bottom node, from the half-cell
+    balances (consistent with the discretisation; zero at a converged ZERO_FIELD side)."""
+    from .kernels.poisson import fv_boundary_flux
+    rho = densities(problem, phi).rho
+    return fv_boundary_flux(_f(phi), problem.h, problem.eps, rho, problem.w)
+
+
+def boundary_field(problem, phi):
+    """Electric field (V/cm) just inside the top and bottom boundaries, from the FV fluxes
+    (E = -D/eps of the end cell)."""
+    d0, dl = boundary_flux(problem, phi)
+    return -d0 / problem.eps[0] * NM_PER_CM, -dl / problem.eps[-1] * NM_PER_CM
+
+
+def gauss_residual(problem, phi):
+    """Relative violation of Gauss's law with the FV boundary fluxes.
+
+    With E = -dphi/dz, d(eps E)/dz = Q_EPS0 rho, so
+        eps E|_bottom - eps E|_top = Q_EPS0 * int rho dz      (sheets included).
+    Returns |lhs - rhs| / max(|eps E_top|, |eps E_bottom|, |rhs|, tiny)."""
+    d0, dl = boundary_flux(problem, phi)
+    lhs = (-dl) - (-d0)
+    rhs = Q_EPS0 * total_charge(problem, phi)
+    scale = max(abs(d0), abs(dl), abs(rhs), 1e-300)
+    return abs(lhs - rhs) / scale
