@@ -1,0 +1,364 @@
+"""The self-consistent Schrödinger–Poisson loop.
+
+:func:`solve` is the front function; :func:`run_loop` is the loop itself, one
+plain function of named steps::
+
+    phi = initial_guess(...)                       # classical nonlinear Poisson
+    repeat:
+        states  = solve_states(structure, phi)     # Schrödinger in every quantum region, every band
+        phi_out = poisson_pass(structure, phi, states, predictor=mixer.predictor)
+        r = phi_out - phi                          # residual (V)
+        check convergence (max|r|, charge change)  # -> done
+        control (damp on growth, stop on divergence / stagnation)
+        phi = mixer.update(phi, r)
+
+The mixer (selfcon.mixing) is chosen by name and knows no physics.  With the
+predictor–corrector coupling (Trellakis et al., J. Appl. Phys. 81, 7880, 1997)
+the Poisson pass lets the quantum density follow the potential,
+n(z) = sum_k |psi_k(z)|^2 D_k kT ln(1 + exp((EF - E_k + dphi(z))/kT)), so the
+loop converges in a handful of iterations; classic mixers get the frozen
+quantum density instead.
+
+Non-convergence is a result (``converged=False`` with a message), never an
+exception.  Bad input raises :class:`selfcon.errors.SelfconInputError`.
+"""
+from __future__ import annotations
+
+import time
+from dataclasses import dataclass
+
+import numpy as np
+
+from .constants import CM2_PER_NM2, CM3_PER_NM3, NM_PER_CM
+from .mixing import get_mixer
+from .structure import Structure, build_structure
+
+#: band name -> (edge key, mass along z, in-plane mass, sign: +1 electrons, -1 holes, valley degeneracy)
+BAND_SPECS = {
+    "electron": ("ec_gamma", "m_e", "m_e", +1, 1),
+    "heavy_hole": ("ev_hh", "m_hh_z", "m_hh_par", -1, 1),
+    "light_hole": ("ev_lh", "m_lh_z", "m_lh_par", -1, 1),
+}
+
+#: a band whose classical sheet density in a region is below this (nm^-2) is left classical there
+NEGLIGIBLE_SHEET = 1e-12 / CM2_PER_NM2
+#: grow the number of states while the top state still holds this fraction of the band's charge
+TOP_STATE_FRACTION = 1e-4
+MAX_STATES = 200
+POISSON_TOL = 1e-10       # V, inner Newton tolerance
+POISSON_MAX_ITER = 200
+
+
+# --------------------------------------------------------------------------- data
+
+@dataclass
+class BandStates:
+    """Bound states of one band, all regions stacked; psi is (N, k) on the full mesh."""
+
+    band: str
+    energy: np.ndarray        # (k,) eV, electron energy scale
+    psi: np.ndarray           # (N, k)
+    m_par: np.ndarray         # (k,)
+    dos: np.ndarray           # (k,) nm^-2 eV^-1 (valley degeneracy and spin included)
+    region: np.ndarray        # (k,) int
+    degeneracy: np.ndarray    # (k,)
+    sign: int
+    quantum_nodes: np.ndarray  # (N,) bool: nodes whose density of this carrier comes from these states
+
+
+@dataclass
+class Iteration:
+    residual: float
+    charge_residual: float
+    newton_steps: int
+    seconds: float
+    damping: float
+
+
+# --------------------------------------------------------------------------- front function
+
+def solve(deck, *, initial_potential=None, progress=None, structure: Structure | None = None,
+          method: str | None = None, tolerance: float | None = None,
+          max_iterations: int | None = None):
+    """Solve one deck self-consistently and return a :class:`selfcon.result.Result`.
+
+    ``deck``: a Deck, a path or TOML text.  ``initial_potential``: phi (V) on this
+    deck's mesh, or ``(z_nm, phi_V)`` to interpolate from another mesh (warm
+    start, continuation).  ``progress``: callable(iteration, residual_V).
+    ``method``/``tolerance``/``max_iterations`` override the deck's [solver].
+    """
+    from .deck import Deck, load_deck
+    t0 = time.perf_counter()
+    if not isinstance(deck, Deck):
+        deck = load_deck(deck)
+    st = structure if structure is not None else build_structure(deck)
+    spec = deck.solver
+    method = method or spec.method
+    tol = float(tolerance if tolerance is not None else spec.tolerance)
+    max_it = int(max_iterations if max_iterations is not None else spec.max_iterations)
+    ctol = float(getattr(spec, "charge_tolerance", None) or 1e-6)
+    mixer = make_mixer(method, spec)
+    bc = boundary_conditions(st)
+    phi0 = None
+    if initial_potential is not None:
+        phi0 = _interpolate_guess(st, initial_potential)
+    loop = run_loop(st, bc, mixer, phi0=phi0, tol=tol, charge_tol=ctol, max_iter=max_it,
+                    progress=progress)
+    from .assemble import build_result
+    return build_result(deck, st, bc, loop, wall_time=time.perf_counter() - t0, method=method)
+
+
+def make_mixer(method: str, spec):
+    from .mixing import _REGISTRY
+    cls = _REGISTRY.get(method)
+    opts = {}
+    if cls is not None:
+        for name in cls.option_names:
+            val = getattr(spec, name, None)
+            if val is not None:
+                opts[name] = val
+    return get_mixer(method, **opts)
+
+
+def warm_up():
+    """Compile (or load from the numba cache) every kernel the loop uses, on a tiny deck."""
+    from .deck import load_deck
+    text = """
+title = "warm-up"
+temperature = 77.0
+[surface]
+contact = "schottky"
+barrier = 0.7
+[substrate]
+contact = "ohmic"
+[[layer]]
+material = "AlGaAs"
+x = 0.3
+thickness = 10.0
+sheet_donors = 1e12
+[[layer]]
+material = "GaAs"
+thickness = 20.0
+donors = 1e15
+[mesh]
+step = 2.0
+"""
+    solve(load_deck(text))
+
+
+# --------------------------------------------------------------------------- the loop
+
+@dataclass
+class LoopOutcome:
+    phi: np.ndarray
+    states: dict
+    converged: bool
+    message: str
+    iterations: list
+    classical_steps: int
+
+
+def run_loop(st: Structure, bc, mixer, *, phi0=None, tol=1e-6, charge_tol=1e-6, max_iter=100,
+             progress=None) -> LoopOutcome:
+    from . import quantum
+    workspaces = {}
+    phi, classical_steps = initial_guess(st, bc, phi0)
+    n_states = {band: st.states for band in BAND_SPECS}
+    history: list[Iteration] = []
+    prev_mobile = None
+    best = (np.inf, phi.copy())
+    growth_count = 0
+    converged = False
+    message = ""
+    for it in range(1, max_iter + 1):
+        t_it = time.perf_counter()
+        states = solve_states(st, phi, n_states, workspaces, quantum)
+        phi_out, newton_steps = poisson_pass(st, bc, phi, states, predictor=mixer.predictor)
+        r = phi_out - phi
+        res = float(np.max(np.abs(r))) if r.size else 0.0
+        mobile = _mobile_sheet(st, bc, phi, states)
+        if prev_mobile is None:
+            cres = 1.0
+        else:
+            cres = abs(mobile - prev_mobile) / max(mobile, 1e-6 / CM2_PER_NM2)
+        prev_mobile = mobile
+        history.append(Iteration(res, cres, newton_steps, time.perf_counter() - t_it, mixer.factor))
+        if progress is not None:
+            progress(it, res)
+        if not np.isfinite(res):
+            message = ("diverged: the potential became non-finite; try solver.method = "
+                       "\"predictor-corrector\", a smaller solver.mixing, or a coarser start")
+            phi = best[1]
+            break
+        if res < tol and cres < max(charge_tol, 10 * tol):
+            converged = True
+            message = f"converged in {it} iterations (max |dphi| = {res:.2e} V)"
+            break
+        if res < best[0]:
+            best = (res, phi.copy())
+        # convergence control: damp when the residual grows, stop on divergence
+        if len(history) > 1 and res > history[-2].residual * 1.0001:
+            growth_count += 1
+            if not mixer.damp() and growth_count > 8:
+                message = ("stopped: the residual keeps growing even at the smallest mixing "
+                           "factor; the structure may have no stable solution at this bias, or try "
+                           "another solver.method")
+                phi = best[1]
+                break
+        else:
+            growth_count = max(0, growth_count - 1)
+            relax = getattr(mixer, "relax", None)
+            if relax is not None and len(history) > 2 and res < 0.5 * history[-2].residual:
+                relax()
+        if res > 1e3 * max(history[0].residual, 1e-3):
+            message = ("diverged: max |dphi| grew above 1000x its first value; try "
+                       "solver.method = \"predictor-corrector\" or a smaller solver.mixing")
+            phi = best[1]
+            break
+        if _oscillating(history):
+            if not mixer.damp():
+                message = "stopped: the residual oscillates without decreasing; try a smaller solver.mixing"
+                break
+        phi = mixer.update(phi, r)
+    else:
+        last = history[-1].residual if history else float("nan")
+        message = (f"not converged after {max_iter} iterations (max |dphi| = {last:.2e} V, "
+                   f"tolerance {tol:.1e} V); raise solver.max_iterations or try solver.method = "
+                   "\"predictor-corrector\"")
+    states = solve_states(st, phi, n_states, workspaces, quantum)
+    return LoopOutcome(phi=phi, states=states, converged=converged, message=message,
+                       iterations=history, classical_steps=classical_steps)
+
+
+def _oscillating(history, window=8) -> bool:
+    """True when the last ``window`` residuals neither fell by 2x nor trended down."""
+    if len(history) < window:
+        return False
+    r = np.array([h.residual for h in history[-window:]])
+    return bool(r[-1] > 0.5 * r[0] and np.sum(np.diff(r) > 0) >= window // 2 - 1)
+
+
+# --------------------------------------------------------------------------- named steps
+
+def boundary_conditions(st: Structure):
+    """Per side (kind, value): kind 0 Dirichlet phi = value, kind 1 zero field."""
+    from . import coupling
+    out = []
+    for contact, c in ((st.surface, 0), (st.substrate, st.n_nodes - 2)):
+        ec0 = st.cell["ec_gamma"][c]
+        if contact.kind == "schottky":
+            out.append((0, ec0 - (contact.barrier - contact.bias)))
+        elif contact.kind == "pinned":
+            out.append((0, ec0 - contact.barrier))
+        elif contact.kind == "ohmic":
+            out.append((0, coupling.neutral_potential_cell(st, c)))
+        else:  # free
+            out.append((1, 0.0))
+    return tuple(out)
+
+
+def initial_guess(st: Structure, bc, phi0=None):
+    """The classical nonlinear Poisson solution (every carrier classical), or a warm start."""
+    from . import coupling
+    if phi0 is not None:
+        phi = np.array(phi0, dtype=float)
+        for side, idx in ((0, 0), (1, -1)):
+            if bc[side][0] == 0:
+                phi[idx] = bc[side][1]
+        return phi, 0
+    phi = coupling.linear_start(st, bc)
+    sol = coupling.solve_classical(st, bc, phi, tol=POISSON_TOL, max_iter=POISSON_MAX_ITER)
+    return sol.phi, sol.steps
+
+
+def _interpolate_guess(st: Structure, guess):
+    if isinstance(guess, tuple) and len(guess) == 2:
+        z_old, phi_old = (np.asarray(a, dtype=float) for a in guess)
+        return np.interp(st.z, z_old, phi_old)
+    arr = np.asarray(guess, dtype=float)
+    if arr.shape != st.z.shape:
+        raise ValueError(f"initial_potential has {arr.size} values but the mesh has {st.z.size} nodes; "
+                         "pass (z_nm, phi_V) to interpolate")
+    return arr
+
+
+def solve_states(st: Structure, phi, n_states, workspaces, quantum) -> dict:
+    """Schrödinger in every quantum region for every quantum band at potential phi."""
+    from . import coupling
+    out = {}
+    n = st.n_nodes
+    for band, (edge_key, mass_key, par_key, sign, gval) in BAND_SPECS.items():
+        if band not in st.carriers or not st.regions:
+            continue
+        edge_node = st.node_average(st.cell[edge_key]) - phi      # band edge with electrostatics
+        energies, psis, mpar, regs = [], [], [], []
+        qnodes = np.zeros(n, dtype=bool)
+        for r_idx, (i0, i1) in enumerate(st.regions):
+            if i1 - i0 < 3:
+                continue
+            if coupling.classical_sheet(st, phi, band, i0, i1) < NEGLIGIBLE_SHEET:
+                continue           # this carrier is absent here: leave it classical (negligible)
+            qnodes[i0:i1 + 1] = True
+            sl = slice(i0, i1 + 1)
+            h = st.mesh.h[i0:i1]
+            w = st.mesh.w[sl].copy()
+            w[0] = st.mesh.wr[i0]
+            w[-1] = st.mesh.wl[i1]
+            v = sign * edge_node[sl]                  # holes: kinetic energy up = -Ev
+            inv_m = 1.0 / st.cell[mass_key][i0:i1]
+            ws = workspaces.get((band, r_idx))
+            if ws is None:
+                ws = workspaces[(band, r_idx)] = quantum.EigenWorkspace(i1 - i0 + 1)
+            k = n_states[band]
+            while True:
+                e, p = quantum.solve_region(h, w, v, inv_m, k, workspace=ws)
+                occ = _occupation(sign * e, sign, st.kT, 1.0)
+                if (e.size < k or k >= MAX_STATES or occ.sum() <= 0
+                        or occ[-1] < TOP_STATE_FRACTION * occ.sum()):
+                    break
+                k = min(2 * k, MAX_STATES)
+                n_states[band] = k
+            full = np.zeros((n, e.size))
+            full[sl, :] = p
+            energies.append(sign * e)
+            psis.append(full)
+            m_par_node = st.node_average(st.cell[par_key])
+            mpar.append(quantum.in_plane_mass(full, st.mesh.w, m_par_node))
+            regs.append(np.full(e.size, r_idx))
+        if not energies:
+            continue
+        E = np.concatenate(energies)
+        order = np.argsort(sign * E, kind="stable")     # lowest kinetic energy first
+        psi = np.concatenate(psis, axis=1)[:, order]
+        m_par = np.concatenate(mpar)[order]
+        from .constants import DOS2D_PER_M0
+        deg = np.full(E.size, float(gval))
+        out[band] = BandStates(band=band, energy=E[order], psi=psi, m_par=m_par,
+                               dos=deg * DOS2D_PER_M0 * m_par, region=np.concatenate(regs)[order],
+                               degeneracy=deg, sign=sign, quantum_nodes=qnodes)
+    return out
+
+
+def _occupation(energy, sign, kT, dos):
+    """Sheet density per state (nm^-2) for unit DOS: kT ln(1 + exp(-sign*E/kT)), safe form."""
+    x = -sign * np.asarray(energy) / kT
+    return dos * kT * (np.maximum(x, 0.0) + np.log1p(np.exp(-np.abs(x))))
+
+
+def poisson_pass(st: Structure, bc, phi, states, *, predictor: bool):
+    """One nonlinear Poisson solve with the quantum density from ``states`` (predictor or frozen)."""
+    from . import coupling
+    sol = coupling.solve_with_states(st, bc, phi, states, predictor=predictor,
+                                    tol=POISSON_TOL, max_iter=POISSON_MAX_ITER)
+    return sol.phi, sol.steps
+
+
+def _mobile_sheet(st, bc, phi, states) -> float:
+    from . import coupling
+    n, p, _, _ = coupling.densities_with_states(st, phi, states)
+    return float(np.sum((n + p) * st.mesh.w))
+
+
+__all__ = ["solve", "run_loop", "warm_up", "solve_states", "poisson_pass", "initial_guess",
+           "boundary_conditions", "BAND_SPECS", "BandStates"]
+_ = (CM3_PER_NM3, NM_PER_CM)
