@@ -128,38 +128,23 @@ def _tex_sci(v: float) -> str:
     return f"${v / 10 ** exp:.3g}\\times10^{{{exp}}}$"
 
 
-def draw_band_diagram(fig, result, depth=None):
-    """Draw the two panels of the band diagram on a matplotlib Figure."""
-    z = np.asarray(result.z, dtype=float)
-    ec = np.asarray(result.profile["conduction_band"], dtype=float)
-    ev = np.asarray(result.profile["valence_band"], dtype=float)
-    if depth is None:
-        x0, x1 = auto_depth(result)
-    elif depth == "full":
-        x0, x1 = float(z[0]), float(z[-1])
-    else:
-        x0, x1 = float(depth[0]), float(depth[1])
-    width_px = fig.get_figwidth() * fig.dpi
-    fs = float(np.clip(width_px / 110.0, 7.0, 13.0))
+def _state_support(z, psi2, region, frac=1e-3):
+    """[z0, z1] where |psi|^2 exceeds ``frac`` of its peak (the drawn extent of the curve)."""
+    peak = float(psi2.max()) if psi2.size else 0.0
+    ok = (psi2 > frac * peak) & (z >= region[0]) & (z <= region[1]) if peak > 0 else np.zeros_like(z, bool)
+    if not np.any(ok):
+        return region
+    zz = z[ok]
+    return float(zz.min()), float(zz.max())
 
-    top, bottom = fig.subplots(2, 1, sharex=True, gridspec_kw={"height_ratios": [3, 2]})
-    view = (z >= x0) & (z <= x1)
-    if not np.any(view):
-        view = np.ones_like(z, dtype=bool)
 
-    # --- top panel: band edges, EF, states
-    _layer_patches(top, result, x0, x1, True, fs * 0.85)
-    lo = float(min(ev[view].min(), 0.0))
-    hi = float(max(ec[view].max(), 0.0))
-    span = max(hi - lo, 1e-3)
-    top.plot(z, ec, color=EDGE_COLOURS["conduction_band"], linewidth=2.0, label="conduction band E$_c$", zorder=3)
-    top.plot(z, ev, color=EDGE_COLOURS["valence_band"], linewidth=2.0, label="valence band E$_v$", zorder=3)
-    top.axhline(0.0, color=FERMI_COLOUR, linestyle="-.", linewidth=1.3, label="Fermi level E$_F$ = 0", zorder=2)
-
-    regions = list(result.regions_nm) or [(float(z[0]), float(z[-1]))]
+def _draw_states(ax, result, z, ec, ev, span, regions, fs, labels=False, only=None):
+    """Levels and |psi|^2 of every drawn state on ``ax``; returns legend patches and the drawn extents."""
     from matplotlib.patches import Patch
-    handles_extra = []
+    handles, drawn = [], []
     for band, sb in result.subbands.items():
+        if only is not None and band != only:
+            continue
         idx, n_occ = _states_to_draw(sb)
         if not idx:
             continue
@@ -178,26 +163,133 @@ def draw_band_diagram(fig, result, depth=None):
             r = int(sb.region[k]) if k < len(sb.region) else 0
             region = regions[r] if 0 <= r < len(regions) else regions[0]
             a, b = _allowed_span(z, edge, e[j], sign, region)
+            c0, c1 = _state_support(z, psi2[:, j], region)
             occupied = j < n_occ
-            top.hlines(e[j], a, b, colors=colour, linewidth=1.3 if occupied else 0.9,
-                       linestyles="-" if occupied else ":", zorder=4)
-            w = psi2[:, j] / peak * amp
-            mask = (z >= region[0]) & (z <= region[1])
-            zz = z[mask]
-            top.fill_between(zz, e[j], e[j] + sign * w[mask], color=colour,
-                             alpha=0.35 if occupied else 0.15, linewidth=0, zorder=3.5)
-            top.plot(zz, e[j] + sign * w[mask], color=colour, linewidth=0.8, alpha=0.9 if occupied else 0.5,
-                     zorder=4)
-        handles_extra.append(Patch(facecolor=colour, alpha=0.5,
-                                   label=f"{BAND_NAMES.get(band, band)} ({n_occ} occupied)"))
+            ax.hlines(e[j], a, b, colors=colour, linewidth=1.4 if occupied else 0.9,
+                      linestyles="-" if occupied else ":", zorder=4)
+            mask = (z >= c0) & (z <= c1)
+            zz, w = z[mask], psi2[mask, j] / peak * amp
+            ax.fill_between(zz, e[j], e[j] + sign * w, color=colour, alpha=0.35 if occupied else 0.15,
+                            linewidth=0, zorder=3.5)
+            ax.plot(zz, e[j] + sign * w, color=colour, linewidth=0.9, alpha=0.9 if occupied else 0.5, zorder=4)
+            drawn.append((band, k, e[j], c0, c1, amp, occupied))
+            if labels:
+                from matplotlib.transforms import blended_transform_factory
+                ax.text(0.98, e[j], f"{'E' if sign > 0 else 'H'}{k}  {e[j] * 1e3:+.1f} meV",
+                        transform=blended_transform_factory(ax.transAxes, ax.transData), fontsize=fs * 0.75,
+                        color=colour, va="bottom", ha="right", zorder=6, clip_on=True)
+        handles.append(Patch(facecolor=colour, alpha=0.5,
+                             label=f"{BAND_NAMES.get(band, band)} ({n_occ} occupied)"))
+    return handles, drawn
 
+
+def _figures_card(ax, result, fs):
+    """Bottom-right panel: the headline figures as a small text card."""
+    from .report import sci, summary_figures
+    fig = summary_figures(result)
+    ax.set_axis_off()
+    lines = [("converged" if fig["converged"] else "NOT CONVERGED") + f" · {fig['iterations']} iterations",
+             f"residual {sci(fig['residual_V'])} V"]
+    lines.append(f"n total  {sci(fig['total']['electron_sheet_density_cm2'])} cm⁻²")
+    if fig["total"]["hole_sheet_density_cm2"]:
+        lines.append(f"p total  {sci(fig['total']['hole_sheet_density_cm2'])} cm⁻²")
+    ch = fig.get("channel")
+    if ch:
+        lines.append(f"channel  {ch['layer']}  {sci(ch['sheet_density_cm2'])} cm⁻²")
+        v = ch.get("ef_minus_ec_meV", ch.get("ev_minus_ef_meV"))
+        if v is not None:
+            lines.append(("E_F − Ec,min" if ch["carrier"] == "electron" else "Ev,max − E_F") + f"  {v:+.1f} meV")
+    occ = [r for r in fig["subbands"] if r["occupied"]]
+    for r in occ[:6]:
+        tag = "E" if r["band"] == "electron" else ("HH" if r["band"] == "heavy_hole" else "LH")
+        lines.append(f"{tag}{r['index']}  {r['energy_meV']:+.1f} meV  {sci(r['occupation_cm2'])} cm⁻²")
+    if len(occ) > 6:
+        lines.append(f"… {len(occ) - 6} more occupied")
+    if fig["warnings"]:
+        lines.append(f"{len(fig['warnings'])} warning(s): see selfcon show")
+    ax.text(0.04, 0.96, "\n".join(lines), transform=ax.transAxes, va="top", ha="left", fontsize=fs * 0.8,
+            family="monospace", color="#222222" if fig["converged"] else "#a01010",
+            bbox={"boxstyle": "round,pad=0.6", "facecolor": "#f7f7f4", "edgecolor": "#c8c8c0"})
+
+
+def draw_band_diagram(fig, result, depth=None):
+    """Draw the band diagram on a matplotlib Figure; returns the axes (bands, densities, close-up, card)."""
+    z = np.asarray(result.z, dtype=float)
+    ec = np.asarray(result.profile["conduction_band"], dtype=float)
+    ev = np.asarray(result.profile["valence_band"], dtype=float)
+    if depth is None:
+        x0, x1 = auto_depth(result)
+    elif depth == "full":
+        x0, x1 = float(z[0]), float(z[-1])
+    else:
+        x0, x1 = float(depth[0]), float(depth[1])
+    width_px = fig.get_figwidth() * fig.dpi
+    fs = float(np.clip(width_px / 110.0, 7.0, 13.0))
+
+    gs = fig.add_gridspec(2, 2, height_ratios=[3, 2], width_ratios=[2.4, 1])
+    top = fig.add_subplot(gs[0, 0])
+    bottom = fig.add_subplot(gs[1, 0], sharex=top)
+    zoom = fig.add_subplot(gs[0, 1])
+    card = fig.add_subplot(gs[1, 1])
+    view = (z >= x0) & (z <= x1)
+    if not np.any(view):
+        view = np.ones_like(z, dtype=bool)
+
+    # --- band diagram: band edges, EF, states
+    _layer_patches(top, result, x0, x1, True, fs * 0.85)
+    lo = float(min(ev[view].min(), 0.0))
+    hi = float(max(ec[view].max(), 0.0))
+    span = max(hi - lo, 1e-3)
+    top.plot(z, ec, color=EDGE_COLOURS["conduction_band"], linewidth=2.0, label="conduction band E$_c$", zorder=3)
+    top.plot(z, ev, color=EDGE_COLOURS["valence_band"], linewidth=2.0, label="valence band E$_v$", zorder=3)
+    top.axhline(0.0, color=FERMI_COLOUR, linestyle="-.", linewidth=1.3, label="Fermi level E$_F$ = 0", zorder=2)
+    regions = list(result.regions_nm) or [(float(z[0]), float(z[-1]))]
+    handles_extra, drawn = _draw_states(top, result, z, ec, ev, span, regions, fs)
     top.set_ylim(lo - 0.06 * span, hi + 0.14 * span)     # headroom for the layer names
     top.set_ylabel("energy relative to E$_F$ (eV)", fontsize=fs)
     handles, _ = top.get_legend_handles_labels()
-    top.legend(handles=handles + handles_extra, loc="lower left", fontsize=fs * 0.8, framealpha=0.92,
-               ncol=2 if len(handles) + len(handles_extra) > 4 else 1)
+    top.legend(handles=handles + handles_extra, loc="best", fontsize=fs * 0.75, framealpha=0.92)
+    top.tick_params(labelbottom=False)
 
-    # --- bottom panel: densities, log scale
+    # --- close-up of the most populated band's states
+    occ_by_band = {b: float(np.sum(sb.occupation)) for b, sb in result.subbands.items()}
+    focus = max(occ_by_band, key=occ_by_band.get) if occ_by_band else None
+    mine = [d for d in drawn if d[0] == focus]
+    if mine:
+        shown = [d for d in mine if d[6]] or mine[:1]
+        c0 = min(d[3] for d in shown)
+        c1 = max(d[4] for d in shown)
+        pad = 0.15 * max(c1 - c0, 1.0)
+        c0, c1 = max(c0 - pad, float(z[0])), min(c1 + pad, float(z[-1]))
+        sign = +1 if focus == "electron" else -1
+        edge = ec if sign > 0 else ev
+        inwin = (z >= c0) & (z <= c1)
+        energies = [d[2] for d in mine]
+        if sign > 0:
+            zlo = min(float(edge[inwin].min()), 0.0, min(energies))
+            zhi = max(max(energies) + mine[0][5], 0.0)
+        else:
+            zhi = max(float(edge[inwin].max()), 0.0, max(energies))
+            zlo = min(min(energies) - mine[0][5], 0.0)
+        zspan = max(zhi - zlo, 1e-3)
+        _layer_patches(zoom, result, c0, c1, False, fs)
+        zoom.plot(z, edge, color=EDGE_COLOURS["conduction_band" if sign > 0 else "valence_band"], linewidth=2.0,
+                  zorder=3)
+        zoom.axhline(0.0, color=FERMI_COLOUR, linestyle="-.", linewidth=1.3, zorder=2)
+        _draw_states(zoom, result, z, ec, ev, zspan * 2.0, regions, fs, labels=True, only=focus)
+        zoom.set_xlim(c0, c1)
+        zoom.set_ylim(zlo - 0.12 * zspan, zhi + 0.12 * zspan)
+        zoom.set_title(f"close-up: {BAND_NAMES.get(focus, focus)}", fontsize=fs * 0.85)
+        zoom.set_xlabel("depth z (nm)", fontsize=fs * 0.85)
+        zoom.tick_params(labelsize=fs * 0.8)
+        top.axvspan(c0, c1, ymin=0, ymax=1, facecolor="none", edgecolor="#777777", linewidth=0.8,
+                    linestyle="--", zorder=2.5)
+    else:
+        zoom.set_axis_off()
+        zoom.text(0.5, 0.5, "no bound states", ha="center", va="center", transform=zoom.transAxes,
+                  fontsize=fs * 0.9, color="#666666")
+
+    # --- densities, log scale
     _layer_patches(bottom, result, x0, x1, False, fs)
     vmax = 0.0
     for name in DENSITY_STYLE:
@@ -212,19 +304,20 @@ def draw_band_diagram(fig, result, depth=None):
         vals = np.asarray(result.profile[name], dtype=float)
         if not np.any(vals[view] > floor):
             continue
-        shown = np.where(vals > floor, vals, np.nan)
-        bottom.plot(z, shown, color=colour, linestyle=style, linewidth=1.6, label=label)
+        # values under the floor are drawn just below the axis, so spikes (delta sheets) stay whole lines
+        bottom.plot(z, np.maximum(vals, floor * 0.1), color=colour, linestyle=style, linewidth=1.6, label=label)
     bottom.set_yscale("log")
     bottom.set_ylim(floor, max(vmax, floor * 10) * 3.0)
     bottom.set_ylabel("density (cm$^{-3}$)", fontsize=fs)
     if bottom.get_legend_handles_labels()[0]:
-        bottom.legend(loc="upper right", fontsize=fs * 0.8, framealpha=0.92)
+        bottom.legend(loc="upper right", fontsize=fs * 0.75, framealpha=0.92)
     more = f"   (stack continues to {z[-1]:g} nm)" if x1 < z[-1] - 1e-9 else ""
     bottom.set_xlabel(f"depth z (nm){more}", fontsize=fs)
     bottom.set_xlim(x0, x1)
     for ax in (top, bottom):
         ax.tick_params(labelsize=fs * 0.9)
         ax.grid(True, which="major", color="#ffffff", linewidth=0.8, alpha=0.7, zorder=1)
+    _figures_card(card, result, fs)
 
     ns = result.summary.get("electron_sheet_density_cm2")
     bits = [f"T = {result.temperature:g} K"]
@@ -233,7 +326,7 @@ def draw_band_diagram(fig, result, depth=None):
     bits.append(f"{result.iterations} iterations" + ("" if result.converged else " — NOT CONVERGED"))
     fig.suptitle(f"{result.title}\n" + "   ·   ".join(bits), fontsize=fs * 1.05,
                  color="#222222" if result.converged else "#a01010")
-    return top, bottom
+    return top, bottom, zoom, card
 
 
 def plot_result(result, path, size=None, depth=None, dpi: int = DPI) -> Path:
