@@ -72,6 +72,8 @@ to = 4e12
 points = 4
 """
 
+#: the command line under test (`python -m selfcon`; SELFCON_TEST_CLI=selfcon.batch tests the batch commands alone)
+CLI = os.environ.get("SELFCON_TEST_CLI", "selfcon")
 REAL = os.environ.get("SELFCON_TEST_BATCH_JOB") is None
 ENV = dict(os.environ)
 if not REAL:
@@ -102,7 +104,7 @@ def run(study, **kw):
 
 
 def cli(*args, **kw):
-    return subprocess.Popen([sys.executable, "-m", "selfcon", *args], env=ENV, stdout=subprocess.PIPE,
+    return subprocess.Popen([sys.executable, "-m", CLI, *args], env=ENV, stdout=subprocess.PIPE,
                             stderr=subprocess.PIPE, text=True, **kw)
 
 
@@ -223,22 +225,22 @@ def test_not_converged_and_failed_jobs_do_not_stop_the_others(tmp_path):
         assert rows[k]["status"] == "failed" and "thickness" in rows[k]["message"]
 
 
-def test_job_that_raises_in_the_worker_is_failed_with_its_error(tmp_path):
-    if REAL:
-        # a quantum region beyond the stack passes the override but fails when the structure is built
-        study = make(tmp_path, """
-            deck = "base.toml"
-            [[vary]]
-            path = "quantum.regions"
-            values = [[[40.0, 110.0]], [[400.0, 500.0]]]
-        """)
-    else:
-        study = make(tmp_path, 'deck = "base.toml"\n[[vary]]\npath = "title"\nvalues = ["fine", "raise=boom"]\n')
+def test_deck_that_raises_is_failed_with_its_error(tmp_path):
+    # an alloy fraction the deck rejects: failed with the deck's message, the other job runs
+    study = make(tmp_path, 'deck = "base.toml"\n[[vary]]\npath = "layer.0.x"\nvalues = [0.3, 1.2]\n')
     code, counts, out = run(study, workers=2)
+    assert code == 3 and counts["done"] == 1 and counts["failed"] == 1
+    failed = [r for r in read_table(out) if r["status"] == "failed"][0]
+    assert failed["layer.0.x"] == "1.2" and "must be in [0, 1]" in failed["message"]
+
+
+def test_job_that_raises_in_the_worker_is_failed_with_its_error(tmp_path):
+    # the worker-side path: a job function returning an exception (stand-in job, raise=boom in the title)
+    study = make(tmp_path, 'deck = "base.toml"\n[[vary]]\npath = "title"\nvalues = ["fine", "raise=boom"]\n')
+    code, counts, out = run_study(study, workers=2, job_fn="selfcon.batch.worker:sleepy_job")
     assert counts["done"] == 1 and counts["failed"] == 1
     failed = [r for r in read_table(out) if r["status"] == "failed"][0]
-    assert failed["message"]
-    assert db(out).execute("SELECT error FROM jobs WHERE status='failed'").fetchone()[0]
+    assert failed["title"] == "raise=boom" and "RuntimeError: boom" in failed["message"]
 
 
 def test_sample_mode_with_seed_gives_the_same_table(tmp_path):
@@ -351,10 +353,10 @@ def test_sigkill_coordinator_then_resume(tmp_path):
     assert all(after[i] == t for i, t in done_before.items())     # done jobs were not recomputed
     assert len(read_table(out)) == 18
     # queue commands read the folder
-    st = subprocess.run([sys.executable, "-m", "selfcon", "queue", "status", str(out), "--json"], env=ENV,
+    st = subprocess.run([sys.executable, "-m", CLI, "queue", "status", str(out), "--json"], env=ENV,
                         capture_output=True, text=True)
     assert st.returncode == 0 and json.loads(st.stdout)["done"] == 18
-    li = subprocess.run([sys.executable, "-m", "selfcon", "queue", "list", str(out)], env=ENV,
+    li = subprocess.run([sys.executable, "-m", CLI, "queue", "list", str(out)], env=ENV,
                         capture_output=True, text=True)
     assert li.returncode == 0 and len(li.stdout.strip().splitlines()) == 19
 
@@ -363,13 +365,13 @@ def test_queue_retry_and_bad_study_exit_codes(tmp_path):
     study = make(tmp_path, 'deck = "base.toml"\n[[vary]]\npath = "layer.spacer.thickness"\nvalues = [15.0, -1.0]\n')
     code, counts, out = run(study, workers=1)
     assert counts["failed"] == 1
-    r = subprocess.run([sys.executable, "-m", "selfcon", "queue", "retry", str(out), "--status", "done"],
+    r = subprocess.run([sys.executable, "-m", CLI, "queue", "retry", str(out), "--status", "done"],
                        env=ENV, capture_output=True, text=True)
     assert r.returncode == 0 and "1 jobs requeued" in r.stdout
     assert db(out).execute("SELECT COUNT(*) FROM jobs WHERE status='queued'").fetchone()[0] == 1
     bad = make(tmp_path, 'deck = "base.toml"\n[[vary]]\npath = "layer.nope.thickness"\nvalues = [1.0]\n',
                name="bad.toml")
-    r = subprocess.run([sys.executable, "-m", "selfcon", "batch", str(bad)], env=ENV, capture_output=True, text=True)
+    r = subprocess.run([sys.executable, "-m", CLI, "batch", str(bad)], env=ENV, capture_output=True, text=True)
     assert r.returncode == 2
     assert "vary[0].path" in r.stderr and "bad.toml" in r.stderr and "Traceback" not in r.stderr
 

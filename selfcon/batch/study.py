@@ -178,7 +178,7 @@ def parse_study(data: dict, path: Path) -> Study:
         if mode == "sample":
             vary.append(_parse_sample_vary(path, key, r))
         else:
-            vary.append(Vary(p, _parse_values(path, key, r)))
+            vary.append(Vary(p, _parse_values(path, key, r, mode)))
 
     samples, seed = 0, None
     if mode == "sample":
@@ -221,7 +221,7 @@ def parse_study(data: dict, path: Path) -> Study:
     return Study(path, deck_file, mode, vary, dict(fixed), samples, seed, continuation, along, title)
 
 
-def _parse_values(path, key, r):
+def _parse_values(path, key, r, mode="grid"):
     has_list = "values" in r
     rng_keys = [k for k in ("from", "to", "points", "scale") if k in r]
     if has_list and rng_keys:
@@ -230,9 +230,9 @@ def _parse_values(path, key, r):
         values = r["values"]
         if not isinstance(values, list) or not values:
             raise _err(path, f"{key}.values", "must be a non-empty list")
-        if any(isinstance(v, (dict, list)) for v in values):
-            raise _err(path, f"{key}.values", "must be a list of numbers, strings or booleans")
-        if len({json.dumps(v) for v in values}) != len(values):
+        if any(isinstance(v, dict) for v in values):
+            raise _err(path, f"{key}.values", "must be a list of numbers, strings, booleans or lists")
+        if mode == "grid" and len({json.dumps(v) for v in values}) != len(values):
             raise _err(path, f"{key}.values", "has repeated values (each would be the same job)")
         return list(values)
     missing = [k for k in ("from", "to", "points") if k not in r]
