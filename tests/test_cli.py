@@ -6,12 +6,14 @@ subprocess (``python -m selfcon``) to see exactly what a shell sees.
 import csv
 import json
 import os
+import shutil
 import subprocess
 import sys
 
 import h5py
 import numpy as np
 import pytest
+from pathlib import Path
 
 from bad_decks import BAD_DECKS, GOOD_DECK
 from selfcon import cli
@@ -307,3 +309,117 @@ def test_extra_command_import_error_inside_module_raises(monkeypatch, tmp_path):
 def test_python_m_selfcon_version():
     proc = run_sub("--version")
     assert proc.returncode == 0 and proc.stdout.startswith("selfcon ")
+
+
+# --------------------------------------------------------------------------- end to end on the shipped decks
+
+EXAMPLES = Path(__file__).resolve().parent.parent / "inputs"
+
+
+def assert_json_matches_summary(fig, h5path):
+    """The --json object carries the /summary attributes exactly (NaN as null)."""
+    with h5py.File(h5path, "r") as f:
+        attrs = dict(f["summary"].attrs)
+    assert set(fig["summary"]) == set(attrs)
+    for k, v in attrs.items():
+        got = fig["summary"][k]
+        if k == "warnings":
+            assert got == [w.decode() if isinstance(w, bytes) else w for w in v]
+        elif isinstance(v, (bytes, str)):
+            assert got == (v.decode() if isinstance(v, bytes) else v), k
+        elif np.isnan(v):
+            assert got is None, k
+        else:
+            assert got == v.item() and type(got) is type(v.item()), k
+
+
+@pytest.fixture(scope="module")
+def hemt_run(tmp_path_factory):
+    """One real `selfcon run` of inputs/hemt_4K.toml in a subprocess (stdout/stderr are pipes)."""
+    d = tmp_path_factory.mktemp("hemt")
+    deck = d / "hemt_4K.toml"
+    shutil.copy(EXAMPLES / "hemt_4K.toml", deck)
+    proc = run_sub("run", str(deck), "--json", "--plot", str(d / "bands.png"), cwd=d)
+    return d, deck, proc
+
+
+def test_run_example_exit_0_json_and_default_output(hemt_run):
+    d, deck, proc = hemt_run
+    assert proc.returncode == 0, proc.stderr
+    out = d / "hemt_4K.h5"                                   # default: beside the deck, same stem
+    assert out.exists()
+    fig = json.loads(proc.stdout)                           # stdout is the JSON object and nothing else
+    assert fig["converged"] is True and fig["output"] == str(out)
+    assert_json_matches_summary(fig, out)
+    assert fig["channel"]["layer"] == "channel"             # the GaAs layer under the spacer holds the 2DEG
+    assert fig["total"]["electron_sheet_density_cm2"] > 1e11  # a 3e12 cm-2 delta sheet 20 nm away: a real 2DEG
+    # not a terminal: plain progress lines on stderr, no colour codes or spinners anywhere
+    assert "iteration 1" in proc.stderr
+    assert "\x1b" not in proc.stderr and "\x1b" not in proc.stdout
+
+
+def test_run_example_file_layout_plain_h5py(hemt_run):
+    from test_results import check_layout, plain_read
+    d, _, proc = hemt_run
+    assert proc.returncode == 0, proc.stderr
+    info = plain_read(d / "hemt_4K.h5")
+    check_layout(info, ["electron"])
+    assert info["layer_names"] == ["cap", "barrier", "doping", "spacer", "channel", "buffer"]
+    for key in ("numpy_version", "scipy_version", "numba_version", "h5py_version", "deck_hash", "wall_time_s"):
+        assert key in info["root"], key
+
+
+def test_run_example_round_trip(hemt_run, tmp_path):
+    from selfcon import load_result
+    from test_results import _tree, assert_results_equal
+    d, _, proc = hemt_run
+    first = load_result(d / "hemt_4K.h5")
+    first.save(tmp_path / "again.h5")
+    assert_results_equal(first, load_result(tmp_path / "again.h5"))
+    assert _tree(d / "hemt_4K.h5") == _tree(tmp_path / "again.h5")
+
+
+def test_run_example_plot(hemt_run):
+    d, _, proc = hemt_run
+    assert proc.returncode == 0, proc.stderr
+    png = d / "bands.png"
+    assert png.stat().st_size > 20_000 and _png_size(png) == (1200, 900)    # plot.DEFAULT_SIZE
+
+
+def test_run_not_converged_exit_3(capsys, tmp_path):
+    deck = tmp_path / "hemt.toml"
+    shutil.copy(EXAMPLES / "hemt_4K.toml", deck)
+    out = tmp_path / "short.h5"
+    code, stdout, err = run_cli(capsys, "run", str(deck), "-o", str(out), "--quiet",
+                                "--set", "solver.max_iterations=1")
+    assert code == 3, err
+    assert "not converged" in err and str(out) in err
+    with h5py.File(out, "r") as f:                          # the result is written, and marked
+        assert bool(f.attrs["converged"]) is False
+        assert f.attrs["iterations"] == 1
+        assert f["convergence/residual"].shape == (1,)
+
+
+def test_run_set_reaches_the_solve(capsys, tmp_path):
+    """A thinner spacer puts more electrons in the channel (charge control: Delagebeaudeuf and Linh,
+    IEEE Trans. Electron Devices 29, 955, 1982: n_s falls as the donor-channel distance grows)."""
+    deck = tmp_path / "hemt.toml"
+    shutil.copy(EXAMPLES / "hemt_4K.toml", deck)
+    ns = {}
+    for spacer in (10, 30):
+        out = tmp_path / f"s{spacer}.h5"
+        code, stdout, err = run_cli(capsys, "run", str(deck), "-o", str(out), "--json",
+                                    "--set", f"layer.spacer.thickness={spacer}", "--set", "layer.3.donors=0")
+        assert code == 0, err
+        ns[spacer] = json.loads(stdout)["total"]["electron_sheet_density_cm2"]
+    assert ns[10] > ns[30] > 0
+
+
+def test_run_then_show_and_export(capsys, hemt_run, tmp_path):
+    d, _, proc = hemt_run
+    code, out, err = run_cli(capsys, "show", str(d / "hemt_4K.h5"), "--json")
+    assert code == 0, err
+    assert_json_matches_summary(json.loads(out), d / "hemt_4K.h5")
+    code, out, err = run_cli(capsys, "export", str(d / "hemt_4K.h5"), "--csv", str(tmp_path / "csv"))
+    assert code == 0, err
+    assert (tmp_path / "csv" / "profile.csv").stat().st_size > 0
