@@ -56,6 +56,7 @@ class PoissonProblem:
     ekh: np.ndarray = None
     dos_h: np.ndarray = None
     phi_ref: np.ndarray = None
+    qshift: float = 1.0
     h: np.ndarray = field(init=False)
     wl: np.ndarray = field(init=False)
     wr: np.ndarray = field(init=False)
@@ -112,6 +113,10 @@ class PoissonProblem:
                 kw[k] = v
         return replace(self, **kw)
 
+    def with_shift(self, qshift):
+        """Copy with the predictor shift factor: 1 subbands follow dphi, 0 frozen density."""
+        return replace(self, qshift=float(qshift))
+
     def with_boundaries(self, top=None, bottom=None):
         return replace(self, top=self.top if top is None else top,
                        bottom=self.bottom if bottom is None else bottom)
@@ -121,7 +126,8 @@ class PoissonProblem:
         return (self.h, self.wl, self.wr, self.eps, self.ec0, self.ev0, self.nc, self.nv,
                 self.nd, self.ed, self.na, self.ea, self.sheet_nd, self.sheet_na, self.kT,
                 bool(self.full_ionization), self.cls_e, self.cls_h, self.psi2, self.ek,
-                self.dos_e, self.psi2h, self.ekh, self.dos_h, self.phi_ref)
+                self.dos_e, self.psi2h, self.ekh, self.dos_h, self.phi_ref,
+                float(self.qshift))
 
 
 ChargeModel = PoissonProblem

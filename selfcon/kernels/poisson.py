@@ -18,7 +18,8 @@ Charge model at node i, potential phi_i (V), EF = 0, densities nm^-3, in units o
     n_q,i = sum_k psi2[i,k] dos_e[k] kT ln(1 + exp((-E_k + dphi_i)/kT)),
     p_q,i = sum_k psi2h[i,k] dos_h[k] kT ln(1 + exp((E_k - dphi_i)/kT)),  dphi = phi - phi_ref,
   i.e. the subbands move rigidly with the local potential change, so d rho_i / d phi_i is
-  local (the Jacobian stays tridiagonal).
+  local (the Jacobian stays tridiagonal).  qshift scales dphi: 1 is the predictor, 0 holds the
+  quantum density frozen at phi_ref (the Poisson pass of classic mixing schemes).
   Mixing of the two: n_i = cls_e[i] n_classical,i + (1 - cls_e[i]) n_q,i (same for holes
   with cls_h); masks are 1 for classical nodes, 0 for quantum ones (fractions allowed).
   rho_i = p_i - n_i + Nd+_i - Na-_i.
@@ -47,6 +48,10 @@ from .statistics import (acceptor_ionized, donor_ionized, expit, fermi_half, fer
                          log1pexp)
 
 
+#: below this reduced energy F_{1/2}(eta) = F_{-1/2}(eta) = e^eta (1 + O(e^eta)), O(e^-40) ~ 4e-18
+_BOLTZMANN_ETA = -40.0
+
+
 @njit(cache=True)
 def _cell_terms(c, phi, ec0, ev0, nc, nv, nd, ed, na, ea, kT, full):
     """Classical densities of cell c at potential phi and their d/dphi, plus the ionised
@@ -57,14 +62,24 @@ def _cell_terms(c, phi, ec0, ev0, nc, nv, nd, ed, na, ea, kT, full):
     dn = 0.0
     if nc[c] > 0.0:
         eta = -ec / kT
-        n = nc[c] * fermi_half(eta)
-        dn = nc[c] * fermi_mhalf(eta) / kT
+        if eta < _BOLTZMANN_ETA:
+            # deep non-degenerate limit: F_{1/2} = F_{-1/2} = e^eta to < 1e-17 relative;
+            # also avoids the series' slow path when e^eta underflows (cold, wide gaps)
+            n = nc[c] * math.exp(eta)
+            dn = n / kT
+        else:
+            n = nc[c] * fermi_half(eta)
+            dn = nc[c] * fermi_mhalf(eta) / kT
     p = 0.0
     dp = 0.0
     if nv[c] > 0.0:
         eta = ev / kT
-        p = nv[c] * fermi_half(eta)
-        dp = -nv[c] * fermi_mhalf(eta) / kT
+        if eta < _BOLTZMANN_ETA:
+            p = nv[c] * math.exp(eta)
+            dp = -p / kT
+        else:
+            p = nv[c] * fermi_half(eta)
+            dp = -nv[c] * fermi_mhalf(eta) / kT
     # d/dphi = -d/dEc = -d/dEv
     fd, dfd = donor_ionized(1.0, ec, ed[c], kT, full)
     fa, dfa = acceptor_ionized(1.0, ev, ea[c], kT, full)
@@ -73,7 +88,7 @@ def _cell_terms(c, phi, ec0, ev0, nc, nv, nd, ed, na, ea, kT, full):
 
 @njit(cache=True)
 def _node(i, phi_i, h, wl, wr, ec0, ev0, nc, nv, nd, ed, na, ea, sheet_nd, sheet_na, kT, full,
-          cls_e, cls_h, psi2, ek, dos_e, psi2h, ekh, dos_h, phi_ref):
+          cls_e, cls_h, psi2, ek, dos_e, psi2h, ekh, dos_h, phi_ref, qshift):
     """Node densities n, p, Nd+, Na- (nm^-3) at phi_i and d rho/d phi."""
     w = wl[i] + wr[i]
     n = 0.0
@@ -121,7 +136,7 @@ def _node(i, phi_i, h, wl, wr, ec0, ev0, nc, nv, nd, ed, na, ea, sheet_nd, sheet
     nam = (nam + sheet_na[i] * fsa / w) / w
     dnam = (dnam + sheet_na[i] * dfsa / w) / w
     # quantum electrons / holes with rigidly shifted subbands
-    dphi = phi_i - phi_ref[i]
+    dphi = qshift * (phi_i - phi_ref[i])
     ce = cls_e[i]
     if ce < 1.0:
         nq = 0.0
@@ -131,7 +146,7 @@ def _node(i, phi_i, h, wl, wr, ec0, ev0, nc, nv, nd, ed, na, ea, sheet_nd, sheet
             if a != 0.0:
                 x = (dphi - ek[k]) / kT
                 nq += a * kT * log1pexp(x)
-                dnq += a * expit(x)
+                dnq += qshift * a * expit(x)
         n = ce * n + (1.0 - ce) * nq
         dn = ce * dn + (1.0 - ce) * dnq
     ch = cls_h[i]
@@ -143,7 +158,7 @@ def _node(i, phi_i, h, wl, wr, ec0, ev0, nc, nv, nd, ed, na, ea, sheet_nd, sheet
             if a != 0.0:
                 x = (ekh[k] - dphi) / kT
                 pq += a * kT * log1pexp(x)
-                dpq -= a * expit(x)
+                dpq -= qshift * a * expit(x)
         p = ch * p + (1.0 - ch) * pq
         dp = ch * dp + (1.0 - ch) * dpq
     drho = dp - dn + dndp - dnam
@@ -152,7 +167,7 @@ def _node(i, phi_i, h, wl, wr, ec0, ev0, nc, nv, nd, ed, na, ea, sheet_nd, sheet
 
 @njit(cache=True)
 def node_densities(phi, h, wl, wr, eps, ec0, ev0, nc, nv, nd, ed, na, ea, sheet_nd, sheet_na,
-                   kT, full, cls_e, cls_h, psi2, ek, dos_e, psi2h, ekh, dos_h, phi_ref):
+                   kT, full, cls_e, cls_h, psi2, ek, dos_e, psi2h, ekh, dos_h, phi_ref, qshift):
     """Node densities at phi: (n, p, nd_plus, na_minus, drho_dphi), each (N,), nm^-3
     (sheets included as s/w).  rho = p - n + nd_plus - na_minus.  eps is unused (kept so
     every kernel takes the same model argument list)."""
@@ -165,7 +180,7 @@ def node_densities(phi, h, wl, wr, eps, ec0, ev0, nc, nv, nd, ed, na, ea, sheet_
     for i in range(N):
         n[i], p[i], ndp[i], nam[i], drho[i] = _node(
             i, phi[i], h, wl, wr, ec0, ev0, nc, nv, nd, ed, na, ea, sheet_nd, sheet_na, kT,
-            full, cls_e, cls_h, psi2, ek, dos_e, psi2h, ekh, dos_h, phi_ref)
+            full, cls_e, cls_h, psi2, ek, dos_e, psi2h, ekh, dos_h, phi_ref, qshift)
     return n, p, ndp, nam, drho
 
 
@@ -210,14 +225,14 @@ def thomas(a, b, c, d, cp, x):
 
 @njit(cache=True)
 def _assemble(phi, g, h, wl, wr, ec0, ev0, nc, nv, nd, ed, na, ea, sheet_nd, sheet_na, kT, full,
-              cls_e, cls_h, psi2, ek, dos_e, psi2h, ekh, dos_h, phi_ref, kind_top, kind_bottom,
+              cls_e, cls_h, psi2, ek, dos_e, psi2h, ekh, dos_h, phi_ref, qshift, kind_top, kind_bottom,
               a, b, c, r):
     """Fill the tridiagonal Jacobian (a, b, c) and r = -R at phi; return ||R||_2."""
     N = phi.shape[0]
     for i in range(N):
         nn, pp, ndp, nam, drho = _node(i, phi[i], h, wl, wr, ec0, ev0, nc, nv, nd, ed, na,
                                        ea, sheet_nd, sheet_na, kT, full, cls_e, cls_h,
-                                       psi2, ek, dos_e, psi2h, ekh, dos_h, phi_ref)
+                                       psi2, ek, dos_e, psi2h, ekh, dos_h, phi_ref, qshift)
         w = wl[i] + wr[i]
         res = Q_EPS0 * (pp - nn + ndp - nam) * w
         diag = Q_EPS0 * drho * w
@@ -253,7 +268,7 @@ def _assemble(phi, g, h, wl, wr, ec0, ev0, nc, nv, nd, ed, na, ea, sheet_nd, she
 
 @njit(cache=True)
 def poisson_newton(phi0, h, wl, wr, eps, ec0, ev0, nc, nv, nd, ed, na, ea, sheet_nd, sheet_na,
-                   kT, full, cls_e, cls_h, psi2, ek, dos_e, psi2h, ekh, dos_h, phi_ref,
+                   kT, full, cls_e, cls_h, psi2, ek, dos_e, psi2h, ekh, dos_h, phi_ref, qshift,
                    kind_top, value_top, kind_bottom, value_bottom, tol, max_iter, max_step,
                    history):
     """Newton solve of the nonlinear FV Poisson equation (see module docstring).
@@ -289,7 +304,7 @@ def poisson_newton(phi0, h, wl, wr, eps, ec0, ev0, nc, nv, nd, ed, na, ea, sheet
     converged = False
     upd = np.inf
     norm = _assemble(phi, g, h, wl, wr, ec0, ev0, nc, nv, nd, ed, na, ea, sheet_nd, sheet_na,
-                     kT, full, cls_e, cls_h, psi2, ek, dos_e, psi2h, ekh, dos_h, phi_ref,
+                     kT, full, cls_e, cls_h, psi2, ek, dos_e, psi2h, ekh, dos_h, phi_ref, qshift,
                      kind_top, kind_bottom, a, b, c, r)
     for it in range(max_iter):
         if not math.isfinite(norm):
@@ -313,7 +328,7 @@ def poisson_newton(phi0, h, wl, wr, eps, ec0, ev0, nc, nv, nd, ed, na, ea, sheet
                 trial[i] = phi[i] + scale * dx[i]
             new = _assemble(trial, g, h, wl, wr, ec0, ev0, nc, nv, nd, ed, na, ea, sheet_nd,
                             sheet_na, kT, full, cls_e, cls_h, psi2, ek, dos_e, psi2h, ekh,
-                            dos_h, phi_ref, kind_top, kind_bottom, a2, b2, c2, r2)
+                            dos_h, phi_ref, qshift, kind_top, kind_bottom, a2, b2, c2, r2)
             if new < norm or scale * big < tol:
                 break
             scale *= 0.5

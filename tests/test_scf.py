@@ -1,0 +1,263 @@
+"""The self-consistent loop against closed forms, invariants and its own contract."""
+from pathlib import Path
+
+import numpy as np
+import pytest
+
+import selfcon
+from selfcon.constants import CM2_PER_NM2, DOS2D_PER_M0, KB_EV
+from selfcon.mixing import available_methods
+
+INPUTS = Path(__file__).resolve().parent.parent / "inputs"
+
+
+@pytest.fixture(scope="module")
+def hemt4():
+    return selfcon.load_deck(INPUTS / "hemt_4K.toml")
+
+
+@pytest.fixture(scope="module")
+def hemt4_result(hemt4):
+    return selfcon.solve(hemt4, tolerance=1e-9)
+
+
+@pytest.fixture(scope="module")
+def hemt300():
+    return selfcon.load_deck(INPUTS / "hemt_300K.toml")
+
+
+# A small symmetric double well: two 8 nm GaAs wells, a 2.5 nm Al0.3GaAs barrier,
+# donor sheets on both sides, equal pinned boundaries -> mirror-symmetric problem.
+DOUBLE_WELL = """
+title = "double well"
+temperature = 10.0
+[surface]
+contact = "pinned"
+barrier = 0.7
+[substrate]
+contact = "pinned"
+barrier = 0.7
+[[layer]]
+name = "outer_top"
+material = "AlGaAs"
+x = 0.3
+thickness = 40.0
+sheet_donors = 1.5e12
+[[layer]]
+name = "spacer_top"
+material = "AlGaAs"
+x = 0.3
+thickness = 15.0
+[[layer]]
+name = "well_a"
+material = "GaAs"
+thickness = 8.0
+[[layer]]
+name = "tunnel"
+material = "AlGaAs"
+x = 0.3
+thickness = 2.5
+[[layer]]
+name = "well_b"
+material = "GaAs"
+thickness = 8.0
+[[layer]]
+name = "spacer_bottom"
+material = "AlGaAs"
+x = 0.3
+thickness = 15.0
+[[layer]]
+name = "outer_bottom"
+material = "AlGaAs"
+x = 0.3
+thickness = 40.0
+sheet_donors = 1.5e12
+[physics]
+carriers = ["electron"]
+[quantum]
+regions = [[45.0, 83.5]]
+states = 6
+[mesh]
+step = 0.25
+"""
+
+# p-type modulation doping: a carbon-like acceptor sheet in Al0.5GaAs above a GaAs channel.
+P_CHANNEL = """
+title = "2D hole gas"
+temperature = 4.0
+[surface]
+contact = "pinned"
+barrier = 1.0
+[substrate]
+contact = "pinned"
+barrier = 0.9
+[[layer]]
+name = "cap"
+material = "GaAs"
+thickness = 5.0
+[[layer]]
+name = "barrier"
+material = "AlGaAs"
+x = 0.5
+thickness = 30.0
+[[layer]]
+name = "doping"
+material = "AlGaAs"
+x = 0.5
+thickness = 4.0
+sheet_acceptors = 4e12
+[[layer]]
+name = "spacer"
+material = "AlGaAs"
+x = 0.5
+thickness = 15.0
+[[layer]]
+name = "channel"
+material = "GaAs"
+thickness = 60.0
+[[layer]]
+name = "buffer"
+material = "GaAs"
+thickness = 300.0
+[quantum]
+regions = [[40.0, 130.0]]
+"""
+
+
+def test_low_temperature_single_subband_follows_2d_dos(hemt4_result):
+    r = hemt4_result
+    assert r.converged
+    e = r.subbands["electron"]
+    kT = KB_EV * 4.0
+    assert e.energy[0] < -20 * kT < 0 < e.energy[1]          # one subband below EF
+    # n_0 = (m*/pi hbar^2)(EF - E0) (textbook 2D density of states, T -> 0)
+    n0_expected = DOS2D_PER_M0 * e.in_plane_mass[0] * (0.0 - e.energy[0]) * CM2_PER_NM2
+    assert e.occupation[0] == pytest.approx(n0_expected, rel=1e-6)
+    # about 2.8e10 cm^-2 per meV for m* = 0.067 (textbook value)
+    assert DOS2D_PER_M0 * 0.067 * CM2_PER_NM2 * 1e-3 == pytest.approx(2.8e10, rel=0.01)
+    # in-plane mass slightly above the GaAs value (barrier penetration into heavier AlGaAs)
+    assert 0.067 <= e.in_plane_mass[0] < 0.070
+
+
+def test_sum_of_occupations_equals_integrated_density(hemt4_result):
+    r = hemt4_result
+    w = np.gradient(r.z)  # not used for the exact check below
+    z = r.z
+    wd = np.zeros_like(z)
+    wd[1:] += 0.5 * np.diff(z)
+    wd[:-1] += 0.5 * np.diff(z)
+    (a, b), = r.regions_nm
+    inside = (z > a) & (z < b)
+    n_in = np.sum(r.profile["electron_density"][inside] * wd[inside]) * 1e-7  # cm^-3 * nm -> cm^-2
+    assert n_in == pytest.approx(r.subbands["electron"].occupation.sum(), rel=1e-9)  # invariant
+    assert w.size == z.size
+
+
+def test_gauss_law_and_neutrality(hemt4_result):
+    r = hemt4_result
+    # Gauss's law with the finite-volume boundary fluxes (invariant), converged to 1e-9 V
+    assert r.summary["gauss_residual"] < 1e-6
+    s = r.summary
+    # the layer table partitions the total exactly (invariant)
+    assert sum(L["electron_sheet_density_cm2"] for L in r.layers) == pytest.approx(
+        s["electron_sheet_density_cm2"], rel=1e-12)
+    # donors minus acceptors minus electrons is the charge the surface gate holds (> 0 here)
+    assert s["donor_sheet_density_cm2"] > s["electron_sheet_density_cm2"]
+
+
+@pytest.mark.parametrize("method", available_methods())
+@pytest.mark.parametrize("deck_name", ["hemt_4K.toml", "hemt_300K.toml"])
+def test_every_method_reaches_the_same_answer(method, deck_name):
+    deck = selfcon.load_deck(INPUTS / deck_name)
+    ref = selfcon.solve(deck)
+    r = selfcon.solve(deck, method=method, max_iterations=400)
+    assert r.converged, r.message
+    ns_ref = ref.summary["electron_sheet_density_cm2"]
+    assert r.summary["electron_sheet_density_cm2"] == pytest.approx(ns_ref, rel=1e-4)
+    np.testing.assert_allclose(r.potential, ref.potential, atol=2e-5)
+
+
+def test_predictor_corrector_iterations(hemt4, hemt300):
+    # issue 3 target: <= 15 iterations to 1e-6 V from the default start
+    for deck in (hemt4, hemt300):
+        r = selfcon.solve(deck)
+        assert r.converged and r.iterations <= 15
+
+
+def test_mesh_halving_changes_ns_little(hemt4):
+    a = selfcon.solve(hemt4)
+    b = selfcon.solve(hemt4.with_overrides({"mesh.step": 0.25}))
+    ns_a = a.summary["electron_sheet_density_cm2"]
+    ns_b = b.summary["electron_sheet_density_cm2"]
+    assert abs(ns_a - ns_b) / ns_b < 1e-3                      # issue 3: 0.1 %
+    assert b.z.size > a.z.size
+
+
+def test_region_cut_does_not_matter(hemt4):
+    a = selfcon.solve(hemt4)
+    b = selfcon.solve(hemt4.with_overrides({"quantum.regions": [[20.0, 260.0]]}))
+    ns_a = a.summary["electron_sheet_density_cm2"]
+    ns_b = b.summary["electron_sheet_density_cm2"]
+    assert ns_b == pytest.approx(ns_a, rel=2e-3)
+    assert b.subbands["electron"].energy[0] == pytest.approx(a.subbands["electron"].energy[0], abs=2e-4)
+
+
+def test_double_well_has_tunnel_split_symmetric_and_antisymmetric_states():
+    r = selfcon.solve(selfcon.load_deck(DOUBLE_WELL))
+    assert r.converged
+    e = r.subbands["electron"]
+    z = r.z
+    centre = 40 + 15 + 8 + 1.25
+    psi0 = e.wavefunction[:, 0]
+    psi1 = e.wavefunction[:, 1]
+    mirror0 = np.interp(2 * centre - z, z, psi0)
+    mirror1 = np.interp(2 * centre - z, z, psi1)
+    sel = (z > centre - 20) & (z < centre + 20)
+    c0 = np.dot(psi0[sel], mirror0[sel]) / np.dot(psi0[sel], psi0[sel])
+    c1 = np.dot(psi1[sel], mirror1[sel]) / np.dot(psi1[sel], psi1[sel])
+    assert c0 > 0.99          # symmetric (even) ground state
+    assert c1 < -0.99         # antisymmetric (odd) first excited state
+    split = e.energy[1] - e.energy[0]
+    assert 1e-3 < split < 3e-2   # a few meV through a 2.5 nm Al0.3GaAs barrier (order of magnitude, from memory)
+
+
+def test_p_type_modulation_doping_gives_heavy_hole_2dhg():
+    r = selfcon.solve(selfcon.load_deck(P_CHANNEL))
+    assert r.converged, r.message
+    s = r.summary
+    assert s["hole_sheet_density_cm2"] > 1e11
+    assert s["electron_sheet_density_cm2"] < 1e3
+    hh = r.subbands["heavy_hole"].energy
+    lh = r.subbands["light_hole"].energy
+    # hole levels in electron energy: the highest is the lowest hole state; heavy holes lie
+    # closest to the band edge because of their larger mass along [001] (common practice)
+    assert hh[0] > lh[0]
+    assert r.subbands["heavy_hole"].occupation[0] > r.subbands["light_hole"].occupation[0]
+    assert s["channel_layer"] == "channel"
+
+
+def test_non_convergence_is_a_result_not_an_exception(hemt4):
+    r = selfcon.solve(hemt4, max_iterations=2)
+    assert r.converged is False and r.status == 1 and not r.success
+    assert "not converged" in r.message and "max_iterations" in r.message
+    assert r.iterations == 2 and r.residual_history.size == 2
+
+
+def test_warm_start_converges_at_once(hemt4, hemt4_result):
+    r = selfcon.solve(hemt4, initial_potential=hemt4_result.potential)
+    assert r.converged and r.iterations <= 2
+    r2 = selfcon.solve(hemt4, initial_potential=(hemt4_result.z, hemt4_result.potential))
+    assert r2.converged and r2.iterations <= 2
+
+
+def test_two_quantum_regions():
+    deck = selfcon.load_deck(DOUBLE_WELL).with_overrides({"quantum.regions": [[45.0, 64.0], [64.5, 83.5]]})
+    r = selfcon.solve(deck)
+    assert r.converged
+    e = r.subbands["electron"]
+    assert set(e.region.tolist()) == {0, 1}
+    # every state lives in exactly one region
+    for k in range(e.energy.size):
+        a, b = r.regions_nm[e.region[k]]
+        outside = (r.z < a - 1e-9) | (r.z > b + 1e-9)
+        assert np.all(e.wavefunction[outside, k] == 0.0)
