@@ -1,0 +1,578 @@
+"""Gate-bias sweeps: n_s(V) per layer, subbands versus V, gate charge, C-V and threshold.
+
+    sw = sweep_bias(deck, np.arange(-1.0, 0.31, 0.05), threshold_cm2=1e10)
+    sw.analysis["threshold_extrapolated_V"], sw.capacitance, sw.save("cv.h5")
+
+Every point is a full self-consistent solve of the deck with ``surface.bias`` set,
+started from the converged potential of the previous point (continuation; a point
+that fails to converge from the warm start is retried from a cold start).
+
+Definitions (stated in the file and in docs/README-design.md):
+
+* gate charge Q(V) = -q * integral of (p - n + Nd+ - Na-) dz over the semiconductor
+  (C/cm^2): the charge on the gate that balances the semiconductor's, assuming the
+  substrate contact holds none of it.
+* capacitance C = dQ/dV (F/cm^2) by ``numpy.gradient`` of the converged Q over the
+  bias points (second order inside, first order at the ends).
+* threshold (a), extrapolated: a straight line through the channel n_s(V) over the
+  steepest window of ``LINEAR_POINTS`` consecutive points whose largest deviation from
+  their own line is below ``LINEARITY`` (2 %) of the rise across the window; V_T is where
+  that line reaches n_s = 0.  (b), crossing: the bias at which the channel n_s falls
+  below the user threshold, interpolated linearly in log10(n_s) between the bracketing
+  points.
+* parallel-conduction onset: the lowest bias above which the electrons in the doping
+  layers (layers with donors, the channel excluded; free electrons plus electrons bound
+  on neutral donors, Nd - Nd+, so "the doping layer starts to fill") exceed ``fraction`` (1 %) of the
+  channel n_s and 1e8 cm^-2 at every higher point; interpolated linearly.
+* charge-control figures (Delagebeaudeuf and Linh, IEEE Trans. Electron Devices 29, 955,
+  1982: n_s = eps/(q (d + dd)) (V - V_T)): d is the gate-to-channel distance, taken as
+  the capacitive thickness eps_b * integral dz/eps(z) from the gate to the top of the
+  channel layer, eps_b the permittivity just above the channel; dd = eps_b/(q slope) - d.
+"""
+from __future__ import annotations
+
+import math
+import os
+import tempfile
+from dataclasses import dataclass, field
+from pathlib import Path
+from typing import Any
+
+import numpy as np
+
+from ..constants import CM2_PER_NM2, EPS0, NM_PER_CM, Q, Q_EPS0
+from ..errors import DeckError, SelfconInputError
+
+LINEAR_POINTS = 4
+LINEARITY = 0.02
+PARALLEL_FRACTION = 0.01
+FLOOR_CM2 = 1e8
+DEFAULT_THRESHOLD_CM2 = 1e10
+MAX_POINTS = 2001
+MAX_STATES = 10
+
+SCHEMA = "selfcon.bias_sweep"
+SCHEMA_VERSION = 1
+
+
+class SweepError(SelfconInputError):
+    """Bad sweep options (bias range, step, threshold)."""
+
+
+@dataclass
+class BiasSweep:
+    """Everything one bias sweep produced.  Arrays are indexed by bias point (sweep order)."""
+
+    title: str
+    deck_text: str
+    temperature: float
+    bias: np.ndarray                      # (M,) V
+    layer_names: list[str]
+    layer_electrons: np.ndarray           # (M, L) cm^-2
+    layer_holes: np.ndarray               # (M, L) cm^-2
+    layer_donors: np.ndarray              # (M, L) cm^-2 ionised donors
+    total_electrons: np.ndarray           # (M,) cm^-2
+    total_holes: np.ndarray               # (M,) cm^-2
+    channel_layer: str
+    channel_density: np.ndarray           # (M,) cm^-2
+    doping_layers: list[str]
+    doping_free_electrons: np.ndarray     # (M,) cm^-2 free electrons in the doping layers
+    doping_electrons: np.ndarray          # (M,) cm^-2 free electrons + electrons bound on neutral donors
+    gate_charge: np.ndarray               # (M,) C/cm^2
+    capacitance: np.ndarray               # (M,) F/cm^2
+    subband_energy: dict[str, np.ndarray]      # band -> (M, K) eV (NaN padded)
+    subband_occupation: dict[str, np.ndarray]  # band -> (M, K) cm^-2
+    converged: np.ndarray                 # (M,) bool
+    iterations: np.ndarray                # (M,) int
+    warm_start: np.ndarray                # (M,) bool: converged from the previous point's potential
+    z: np.ndarray                         # (N,) nm
+    potential: np.ndarray                 # (M, N) V
+    conduction_band: np.ndarray           # (M, N) eV
+    warnings: list[list[str]]             # design warnings per point
+    threshold_cm2: float
+    fraction: float
+    analysis: dict[str, Any] = field(default_factory=dict)
+    results: list = field(default_factory=list)   # the Results, if keep_results=True
+
+    @property
+    def all_converged(self) -> bool:
+        return bool(np.all(self.converged))
+
+    def save(self, path, *, force: bool = True) -> None:
+        save_sweep(self, path, force=force)
+
+    def plot(self, path) -> None:
+        plot_sweep(self, path)
+
+    def lines(self) -> list[str]:
+        """The analysis in plain lines (what the CLI prints)."""
+        return analysis_lines(self)
+
+
+# --------------------------------------------------------------------------- helpers
+
+def bias_points(start: float, stop: float, step: float) -> np.ndarray:
+    """Biases from ``start`` to ``stop`` inclusive every ``|step|`` (direction from start to stop)."""
+    for name, v in (("--from", start), ("--to", stop), ("--step", step)):
+        if not math.isfinite(v):
+            raise SweepError(f"must be a finite number, got {v!r}", key=name)
+    if step == 0:
+        raise SweepError("must not be zero", key="--step")
+    if start == stop:
+        return np.array([float(start)])
+    n = int(math.floor(abs(stop - start) / abs(step) + 1e-9)) + 1
+    if n > MAX_POINTS:
+        raise SweepError(f"gives {n} points (more than {MAX_POINTS}); use a larger step", key="--step")
+    if n < 2:
+        raise SweepError(f"is larger than the range {start:g} to {stop:g} V", key="--step")
+    direction = 1.0 if stop > start else -1.0
+    pts = start + direction * abs(step) * np.arange(n)
+    if abs(pts[-1] - stop) > 1e-6 * abs(step):
+        pts = np.append(pts, stop)        # the range is not a whole number of steps: end on `stop`
+    pts[-1] = stop
+    return np.round(pts, 12)
+
+
+def node_weights(z: np.ndarray) -> np.ndarray:
+    h = np.diff(z)
+    w = np.zeros(z.size)
+    w[:-1] += 0.5 * h
+    w[1:] += 0.5 * h
+    return w
+
+
+def semiconductor_charge(result) -> float:
+    """q * integral of (p - n + Nd+ - Na-) dz in C/cm^2."""
+    p = result.profile
+    rho = p["hole_density"] - p["electron_density"] + p["ionized_donors"] - p["ionized_acceptors"]
+    return float(Q * np.sum(rho * node_weights(result.z)) / NM_PER_CM)
+
+
+def _schottky_check(deck):
+    if deck.surface.kind != "schottky":
+        raise DeckError(f"a bias sweep needs a schottky gate at the surface, the deck has "
+                        f"contact = {deck.surface.kind!r}", file=deck.path, key="surface.contact",
+                        allowed="schottky")
+
+
+def _doping_layer_indices(structure, channel: int) -> list[int]:
+    return [L.index for L in structure.layers if (L.donors > 0 or L.sheet_donors > 0) and L.index != channel]
+
+
+def capacitive_thickness(structure, channel: int) -> tuple[float, float]:
+    """(d, eps_b): eps_b * integral dz/eps from the gate to the channel top (nm), eps_b above the channel."""
+    top = structure.layers[channel].top
+    h = np.asarray(structure.mesh.h)
+    zc = 0.5 * (structure.z[:-1] + structure.z[1:])
+    eps = np.asarray(structure.cell["eps"])
+    above = zc < top
+    if not np.any(above):
+        return 0.0, float(eps[0])
+    eps_b = float(eps[np.flatnonzero(above)[-1]])
+    return float(eps_b * np.sum(h[above] / eps[above])), eps_b
+
+
+# --------------------------------------------------------------------------- analysis
+
+def linear_window(v: np.ndarray, n: np.ndarray, *, points: int = LINEAR_POINTS, linearity: float = LINEARITY):
+    """Steepest well-conditioned straight window of n(v).  Returns dict or None.
+
+    ``v`` ascending.  A window of ``points`` consecutive points is well conditioned when
+    every point lies within ``linearity`` times the rise of the fitted line across the
+    window, the slope is positive and every n is positive.
+    """
+    v = np.asarray(v, float)
+    n = np.asarray(n, float)
+    m = v.size
+    k = min(points, m)
+    if k < 2:
+        return None
+    best = None
+    fallback = None
+    for i in range(m - k + 1):
+        vv, nn = v[i:i + k], n[i:i + k]
+        if not np.all(np.isfinite(nn)):
+            continue
+        a, b = np.polyfit(vv, nn, 1)
+        rise = a * (vv[-1] - vv[0])
+        if a <= 0 or rise <= 0:
+            continue
+        dev = float(np.max(np.abs(nn - (a * vv + b))) / rise)
+        cand = {"slope": float(a), "intercept": float(b), "window": (float(vv[0]), float(vv[-1])),
+                "deviation": dev, "well_conditioned": bool(dev <= linearity and np.all(nn > 0))}
+        if cand["well_conditioned"]:
+            if best is None or a > best["slope"]:
+                best = cand
+        elif fallback is None or dev < fallback["deviation"]:
+            fallback = cand
+    return best if best is not None else fallback
+
+
+def threshold_crossing(v: np.ndarray, n: np.ndarray, threshold: float):
+    """Bias (V) where n falls below ``threshold`` coming down from the top bias; None if it does not."""
+    v = np.asarray(v, float)
+    n = np.asarray(n, float)
+    above = n >= threshold
+    if not np.any(above) or np.all(above):
+        return None
+    for i in range(v.size - 1, 0, -1):       # from the top bias down
+        if above[i] and not above[i - 1]:
+            n0, n1 = n[i - 1], n[i]
+            if n0 > 0:
+                t = (math.log10(threshold) - math.log10(n0)) / (math.log10(n1) - math.log10(n0))
+            else:
+                t = (threshold - n0) / (n1 - n0)
+            return float(v[i - 1] + t * (v[i] - v[i - 1]))
+    return None
+
+
+def parallel_onset(v: np.ndarray, n_dop: np.ndarray, n_ch: np.ndarray, fraction: float):
+    """(onset bias or None, 'between'|'below-range'|'none') — see the module docstring."""
+    v = np.asarray(v, float)
+    excess = np.asarray(n_dop, float) - np.maximum(fraction * np.asarray(n_ch, float), FLOOR_CM2)
+    on = excess > 0
+    if not on[-1]:
+        return None, "none"
+    i = v.size - 1
+    while i > 0 and on[i - 1]:
+        i -= 1
+    if i == 0:
+        return float(v[0]), "below-range"
+    e0, e1 = excess[i - 1], excess[i]
+    return float(v[i - 1] + (-e0) / (e1 - e0) * (v[i] - v[i - 1])), "between"
+
+
+def analyse(sw: BiasSweep, structure) -> dict:
+    order = np.argsort(sw.bias)
+    v = sw.bias[order]
+    ns = sw.channel_density[order]
+    out: dict[str, Any] = {}
+    ch = sw.layer_names.index(sw.channel_layer)
+    d_nm, eps_b = capacitive_thickness(structure, ch)
+    out["gate_channel_distance_nm"] = d_nm
+    out["barrier_permittivity"] = eps_b
+    lin = linear_window(v, ns)
+    nan = float("nan")
+    if lin is not None:
+        slope = lin["slope"]
+        out["linear_slope_cm2_per_V"] = slope
+        out["linear_window_V"] = lin["window"]
+        out["linear_deviation"] = lin["deviation"]
+        out["linear_well_conditioned"] = lin["well_conditioned"]
+        out["threshold_extrapolated_V"] = -lin["intercept"] / slope
+        d_tot = eps_b / (Q_EPS0 * slope / CM2_PER_NM2)          # nm
+        out["charge_control_thickness_nm"] = d_tot
+        out["delta_d_nm"] = d_tot - d_nm
+        out["linear_capacitance_F_cm2"] = Q * slope             # q dn_s/dV
+        out["series_capacitance_F_cm2"] = eps_b * EPS0 / (d_tot * 1e-9) / 1e4
+    else:
+        out.update(linear_slope_cm2_per_V=nan, linear_window_V=(nan, nan), linear_deviation=nan,
+                   linear_well_conditioned=False, threshold_extrapolated_V=nan,
+                   charge_control_thickness_nm=nan, delta_d_nm=nan, linear_capacitance_F_cm2=nan,
+                   series_capacitance_F_cm2=nan)
+    vc = threshold_crossing(v, ns, sw.threshold_cm2)
+    out["threshold_crossing_V"] = nan if vc is None else vc
+    onset, how = parallel_onset(v, sw.doping_electrons[order], ns, sw.fraction)
+    out["parallel_onset_V"] = nan if onset is None else onset
+    out["parallel_onset_kind"] = how
+    return out
+
+
+def analysis_lines(sw: BiasSweep) -> list[str]:
+    a = sw.analysis
+    lines = []
+    if math.isfinite(a.get("threshold_extrapolated_V", float("nan"))):
+        w0, w1 = a["linear_window_V"]
+        cond = "" if a.get("linear_well_conditioned") else " (no window was straight within 2 %: rough)"
+        lines.append(f"threshold (linear extrapolation of channel n_s over {w0:+.3f} .. {w1:+.3f} V): "
+                     f"V_T = {a['threshold_extrapolated_V']:+.3f} V, dn_s/dV = {a['linear_slope_cm2_per_V']:.4g} "
+                     f"cm^-2/V{cond}")
+        lines.append(f"charge control: d = {a['gate_channel_distance_nm']:.1f} nm gate to channel, "
+                     f"d + dd = {a['charge_control_thickness_nm']:.1f} nm, dd = {a['delta_d_nm']:.1f} nm, "
+                     f"C = {a['linear_capacitance_F_cm2']:.4g} F/cm^2")
+    else:
+        lines.append("threshold (linear extrapolation): n_s(V) has no rising straight part in this range")
+    if math.isfinite(a.get("threshold_crossing_V", float("nan"))):
+        lines.append(f"threshold (channel n_s falls below {sw.threshold_cm2:.3g} cm^-2): "
+                     f"V = {a['threshold_crossing_V']:+.3f} V")
+    else:
+        lo, hi = np.nanmin(sw.channel_density), np.nanmax(sw.channel_density)
+        lines.append(f"threshold (n_s below {sw.threshold_cm2:.3g} cm^-2): not crossed in this range "
+                     f"(channel n_s from {lo:.3g} to {hi:.3g} cm^-2)")
+    kind = a.get("parallel_onset_kind")
+    if kind == "between":
+        lines.append(f"parallel conduction onset (doping-layer electrons above {100 * sw.fraction:g} % of the "
+                     f"channel): V = {a['parallel_onset_V']:+.3f} V")
+    elif kind == "below-range":
+        lines.append(f"parallel conduction: the doping layers hold more than {100 * sw.fraction:g} % of the "
+                     f"channel over the whole sweep (onset at or below {a['parallel_onset_V']:+.3f} V)")
+    else:
+        lines.append("parallel conduction: none in this range (doping layers below "
+                     f"{100 * sw.fraction:g} % of the channel at the top bias)")
+    return lines
+
+
+# --------------------------------------------------------------------------- the sweep
+
+def sweep_bias(deck, biases, *, progress=None, threshold_cm2: float = DEFAULT_THRESHOLD_CM2,
+               fraction: float = PARALLEL_FRACTION, keep_results: bool = False,
+               continuation: bool = True) -> BiasSweep:
+    """Solve ``deck`` at every bias (V, on the surface gate) with continuation.
+
+    ``progress``: callable(index, bias, result) after each point.
+    """
+    from ..deck import Deck, load_deck
+    from ..scf import solve
+    from ..structure import build_structure
+    if not isinstance(deck, Deck):
+        deck = load_deck(deck)
+    _schottky_check(deck)
+    biases = np.asarray(biases, dtype=float).ravel()
+    if biases.size == 0:
+        raise SweepError("no bias points", key="biases")
+    if not np.all(np.isfinite(biases)):
+        raise SweepError("bias points must be finite", key="biases")
+    if np.unique(biases).size != biases.size:
+        raise SweepError("bias points repeat", key="biases")
+    if not (threshold_cm2 > 0 and math.isfinite(threshold_cm2)):
+        raise SweepError(f"must be a positive sheet density in cm^-2, got {threshold_cm2!r}", key="--threshold")
+    if not (0 < fraction < 1):
+        raise SweepError(f"must lie between 0 and 1, got {fraction!r}", key="--fraction")
+    structure = build_structure(deck)
+    results, warm = [], []
+    phi_prev = None
+    for k, vb in enumerate(biases):
+        dk = deck.with_overrides({"surface.bias": float(vb)})
+        st = build_structure(dk)
+        r = None
+        if continuation and phi_prev is not None and phi_prev[0].shape == st.z.shape and np.allclose(phi_prev[0], st.z):
+            r = solve(dk, structure=st, initial_potential=phi_prev[1])
+            warm.append(bool(r.converged))
+            if not r.converged:
+                cold = solve(dk, structure=st)
+                if cold.converged or cold.residual < r.residual:
+                    r = cold
+        if r is None:
+            r = solve(dk, structure=st)
+            warm.append(False)
+        if r.converged:
+            phi_prev = (r.z, r.profile["potential"])
+        results.append(r)
+        if progress is not None:
+            progress(k, float(vb), r)
+    sw = _collect(deck, structure, biases, results, np.array(warm), threshold_cm2, fraction)
+    if keep_results:
+        sw.results = results
+    return sw
+
+
+def _collect(deck, structure, biases, results, warm, threshold_cm2, fraction) -> BiasSweep:
+    m = len(results)
+    names = [row["name"] for row in results[0].layers]
+    L = len(names)
+    e = np.array([[row["electron_sheet_density_cm2"] for row in r.layers] for r in results]).reshape(m, L)
+    h = np.array([[row["hole_sheet_density_cm2"] for row in r.layers] for r in results]).reshape(m, L)
+    dn = np.array([[row.get("ionized_donor_sheet_density_cm2", np.nan) for row in r.layers]
+                   for r in results]).reshape(m, L)
+    # the channel: the layer with the most electrons at the point of largest total
+    top = int(np.argmax([r.summary["electron_sheet_density_cm2"] for r in results]))
+    ch = int(np.argmax(e[top]))
+    dop = _doping_layer_indices(structure, ch)
+    nd_total = np.array([Li.donors * (Li.bottom - Li.top) / NM_PER_CM + Li.sheet_donors for Li in structure.layers])
+    bound = np.clip(nd_total[None, :] - np.nan_to_num(dn), 0.0, None)      # electrons on neutral donors
+    q_gate = -np.array([semiconductor_charge(r) for r in results])
+    if m >= 2:
+        cap = np.gradient(q_gate, biases)
+    else:
+        cap = np.full(1, np.nan)
+    sub_e, sub_o = {}, {}
+    for band in ("electron", "heavy_hole", "light_hole"):
+        if not any(band in r.subbands for r in results):
+            continue
+        K = min(MAX_STATES, max(r.subbands[band].energy.size for r in results if band in r.subbands))
+        E = np.full((m, K), np.nan)
+        O = np.full((m, K), np.nan)
+        for i, r in enumerate(results):
+            sb = r.subbands.get(band)
+            if sb is None:
+                continue
+            k = min(K, sb.energy.size)
+            E[i, :k] = sb.energy[:k]
+            O[i, :k] = sb.occupation[:k]
+        sub_e[band], sub_o[band] = E, O
+    z = results[0].z
+    same_mesh = all(r.z.shape == z.shape for r in results)
+    pot = np.array([r.profile["potential"] for r in results]) if same_mesh else np.zeros((m, 0))
+    cb = np.array([r.profile["conduction_band"] for r in results]) if same_mesh else np.zeros((m, 0))
+    sw = BiasSweep(
+        title=deck.title, deck_text=deck.to_toml(), temperature=float(deck.temperature), bias=biases.copy(),
+        layer_names=names, layer_electrons=e, layer_holes=h, layer_donors=dn,
+        total_electrons=np.array([r.summary["electron_sheet_density_cm2"] for r in results]),
+        total_holes=np.array([r.summary["hole_sheet_density_cm2"] for r in results]),
+        channel_layer=names[ch], channel_density=e[:, ch].copy(), doping_layers=[names[i] for i in dop],
+        doping_free_electrons=e[:, dop].sum(axis=1) if dop else np.zeros(m),
+        doping_electrons=(e[:, dop] + bound[:, dop]).sum(axis=1) if dop else np.zeros(m), gate_charge=q_gate, capacitance=cap,
+        subband_energy=sub_e, subband_occupation=sub_o,
+        converged=np.array([bool(r.converged) for r in results]),
+        iterations=np.array([int(r.iterations) for r in results]), warm_start=warm.astype(bool),
+        z=z.copy(), potential=pot, conduction_band=cb, warnings=[list(r.warnings) for r in results],
+        threshold_cm2=float(threshold_cm2), fraction=float(fraction))
+    sw.analysis = analyse(sw, structure)
+    return sw
+
+
+# --------------------------------------------------------------------------- file
+
+DEFINITIONS = {
+    "gate_charge": "Q = -q * integral (p - n + Nd+ - Na-) dz over the semiconductor (gate side of the balance)",
+    "capacitance": "C = dQ/dV by numpy.gradient of the converged gate charge over the bias points",
+    "threshold_extrapolated": ("bias where the straight line through the steepest window of "
+                               f"{LINEAR_POINTS} consecutive points (deviation <= {100 * LINEARITY:g} % of the "
+                               "rise) of channel n_s(V) reaches zero"),
+    "threshold_crossing": "bias where channel n_s falls below threshold_cm2, interpolated in log10(n_s)",
+    "parallel_onset": ("lowest bias above which doping-layer electrons exceed fraction * channel n_s "
+                       f"(and {FLOOR_CM2:g} cm^-2) at every higher point, interpolated"),
+}
+
+
+def save_sweep(sw: BiasSweep, path, *, force: bool = True) -> None:
+    """Write the sweep as one HDF5 file, atomically (temp file, fsync, os.replace)."""
+    import h5py
+    from datetime import datetime, timezone
+    from .. import __version__
+    path = Path(path)
+    folder = path.parent if str(path.parent) else Path(".")
+    if not folder.is_dir():
+        raise SweepError("output folder does not exist", file=str(path))
+    if path.exists() and not force:
+        raise SweepError("output file exists", file=str(path))
+    fd, tmp = tempfile.mkstemp(prefix=f".{path.name}.", suffix=".tmp", dir=folder)
+    os.close(fd)
+    try:
+        with h5py.File(tmp, "w") as f:
+            f.attrs["schema"] = SCHEMA
+            f.attrs["schema_version"] = SCHEMA_VERSION
+            f.attrs["selfcon_version"] = __version__
+            f.attrs["created"] = datetime.now(timezone.utc).strftime("%Y-%m-%dT%H:%M:%SZ")
+            f.attrs["title"] = sw.title
+            f.attrs["temperature_K"] = sw.temperature
+            f.attrs["deck"] = sw.deck_text
+            f.attrs["channel_layer"] = sw.channel_layer
+            f.attrs["doping_layers"] = list(sw.doping_layers) or [""]
+            f.attrs["all_converged"] = sw.all_converged
+
+            def ds(name, data, units, desc):
+                d = f.create_dataset(name, data=data)
+                d.attrs["units"] = units
+                d.attrs["description"] = desc
+                return d
+
+            ds("bias", sw.bias, "V", "gate bias on the surface contact, in sweep order")
+            ds("converged", sw.converged.astype(np.int8), "1", "1 if the point converged")
+            ds("iterations", sw.iterations, "1", "self-consistent iterations of the point")
+            ds("warm_start", sw.warm_start.astype(np.int8), "1",
+               "1 if the point converged from the previous point's potential")
+            sd = "sheet_density"
+            ds(f"{sd}/electrons_total", sw.total_electrons, "cm-2", "electrons per area in the whole stack")
+            ds(f"{sd}/holes_total", sw.total_holes, "cm-2", "holes per area in the whole stack")
+            ds(f"{sd}/channel", sw.channel_density, "cm-2", f"electrons per area in the channel layer "
+               f"{sw.channel_layer!r}")
+            ds(f"{sd}/doping_layers", sw.doping_electrons, "cm-2",
+               "electrons per area in the doping layers (donor-doped layers other than the channel): "
+               "free electrons plus electrons bound on neutral donors (Nd - Nd+)")
+            ds(f"{sd}/doping_layers_free", sw.doping_free_electrons, "cm-2",
+               "free (conduction-band) electrons per area in the doping layers")
+            d = f.create_dataset("layers/name", data=sw.layer_names, dtype=h5py.string_dtype("utf-8"))
+            d.attrs["units"] = ""
+            d.attrs["description"] = "layer names, top to bottom (columns of the per-layer datasets)"
+            ds("layers/electrons", sw.layer_electrons, "cm-2", "electrons per area in each layer, (bias, layer)")
+            ds("layers/holes", sw.layer_holes, "cm-2", "holes per area in each layer, (bias, layer)")
+            ds("layers/ionized_donors", sw.layer_donors, "cm-2", "ionised donors per area, (bias, layer)")
+            for band in sw.subband_energy:
+                ds(f"subbands/{band}/energy", sw.subband_energy[band], "eV",
+                   "subband energies relative to EF, (bias, state), NaN where absent")
+                ds(f"subbands/{band}/occupation", sw.subband_occupation[band], "cm-2",
+                   "subband sheet densities, (bias, state), NaN where absent")
+            ds("gate_charge", sw.gate_charge, "C/cm2", DEFINITIONS["gate_charge"])
+            ds("capacitance", sw.capacitance, "F/cm2", DEFINITIONS["capacitance"])
+            ds("mesh/z", sw.z, "nm", "mesh nodes, z = 0 at the surface")
+            if sw.potential.size:
+                ds("profile/potential", sw.potential, "V", "electrostatic potential, (bias, node)")
+                ds("profile/conduction_band", sw.conduction_band, "eV",
+                   "Gamma conduction band edge relative to EF, (bias, node)")
+            a = sw.analysis
+            g = "analysis"
+            ds(f"{g}/threshold_extrapolated", a["threshold_extrapolated_V"], "V", DEFINITIONS["threshold_extrapolated"])
+            ds(f"{g}/linear_window", np.array(a["linear_window_V"], float), "V",
+               "bias range of the window used for the extrapolation")
+            ds(f"{g}/linear_slope", a["linear_slope_cm2_per_V"], "cm-2/V", "dn_s/dV of the channel in that window")
+            ds(f"{g}/threshold_crossing", a["threshold_crossing_V"], "V", DEFINITIONS["threshold_crossing"])
+            ds(f"{g}/threshold_cm2", sw.threshold_cm2, "cm-2", "user threshold for threshold_crossing")
+            ds(f"{g}/parallel_onset", a["parallel_onset_V"], "V", DEFINITIONS["parallel_onset"]
+               + f"; here: {a['parallel_onset_kind']}")
+            ds(f"{g}/parallel_fraction", sw.fraction, "1", "fraction of the channel n_s for parallel_onset")
+            ds(f"{g}/gate_channel_distance", a["gate_channel_distance_nm"], "nm",
+               "capacitive gate-to-channel distance d = eps_b * integral dz/eps(z)")
+            ds(f"{g}/delta_d", a["delta_d_nm"], "nm",
+               "charge-control offset dd = eps_b/(q dn_s/dV) - d (Delagebeaudeuf and Linh 1982)")
+            ds(f"{g}/linear_capacitance", a["linear_capacitance_F_cm2"], "F/cm2", "q dn_s/dV in the linear window")
+            f.flush()
+        fd = os.open(tmp, os.O_RDONLY)
+        try:
+            os.fsync(fd)
+        finally:
+            os.close(fd)
+        os.replace(tmp, path)
+    except BaseException:
+        try:
+            os.unlink(tmp)
+        except FileNotFoundError:
+            pass
+        raise
+
+
+def plot_sweep(sw: BiasSweep, path) -> None:
+    """Two panels: sheet density per layer versus bias (log scale) and C-V."""
+    import matplotlib
+    matplotlib.use("Agg", force=False)
+    import matplotlib.pyplot as plt
+    order = np.argsort(sw.bias)
+    v = sw.bias[order]
+    fig, (ax1, ax2) = plt.subplots(1, 2, figsize=(10, 4), constrained_layout=True)
+    for j, name in enumerate(sw.layer_names):
+        y = sw.layer_electrons[order, j]
+        if np.nanmax(y) > FLOOR_CM2:
+            ax1.semilogy(v, np.maximum(y, 1e6), marker="o", ms=3, label=name)
+    ax1.axhline(sw.threshold_cm2, color="0.5", lw=0.8, ls=":")
+    vt = sw.analysis.get("threshold_extrapolated_V", float("nan"))
+    if math.isfinite(vt):
+        ax1.axvline(vt, color="0.3", lw=0.8, ls="--", label=f"V_T (extrap.) {vt:+.2f} V")
+    po = sw.analysis.get("parallel_onset_V", float("nan"))
+    if math.isfinite(po):
+        ax1.axvline(po, color="tab:red", lw=0.8, ls="-.", label=f"parallel onset {po:+.2f} V")
+    ax1.set_xlabel("gate bias (V)")
+    ax1.set_ylabel("electrons per layer (cm$^{-2}$)")
+    ax1.set_ylim(bottom=1e8)
+    ax1.legend(fontsize=8)
+    ax2.plot(v, sw.capacitance[order] * 1e9, marker="s", ms=3, color="k")
+    ax2.set_xlabel("gate bias (V)")
+    ax2.set_ylabel("C = dQ/dV (nF/cm$^2$)")
+    fig.suptitle(sw.title, fontsize=10)
+    fig.savefig(path, dpi=120)
+    plt.close(fig)
+
+
+def load_sweep_file(path) -> dict:
+    """A sweep file as a flat dict of arrays (for scripts and tests)."""
+    import h5py
+    out = {}
+    with h5py.File(path, "r") as f:
+        if f.attrs.get("schema") != SCHEMA:
+            raise SweepError("not a selfcon bias-sweep file", file=str(path))
+        out["attrs"] = dict(f.attrs)
+
+        def visit(name, obj):
+            if isinstance(obj, h5py.Dataset):
+                out[name] = obj[()]
+        f.visititems(visit)
+    return out

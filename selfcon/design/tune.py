@@ -1,0 +1,226 @@
+"""Target-seeking: the value of one deck parameter that makes a summary quantity hit a target.
+
+    tr = tune(deck, "layer.spacer.thickness", "ns", 3e11, (5.0, 60.0))
+    tr.value, tr.achieved, tr.solves
+
+A bracketing root finder (``scipy.optimize.brentq``) drives full self-consistent
+solves of ``deck.with_overrides({path: x})``.  Each solve starts from the converged
+potential of the evaluated point nearest in ``x`` (warm start), passed as
+``(z, phi)`` so that it is interpolated onto the new mesh when ``x`` is a
+thickness.  A warm-started solve that does not converge is retried from a cold start.
+
+Quantities (``QUANTITIES``): ``ns`` channel electrons (cm^-2), ``ns_total`` electrons in
+the whole stack (cm^-2), ``e10`` E1 - E0 (eV), ``e0f`` E0 - EF (eV), ``doping_charge``
+electrons taken back by the doping layers (free plus bound on neutral donors, cm^-2),
+``doping_free`` free electrons in the doping layers (cm^-2), or any numeric key of
+``Result.summary``.
+"""
+from __future__ import annotations
+
+import math
+import tomllib
+from dataclasses import dataclass, field
+from typing import Any
+
+import numpy as np
+
+from ..errors import DeckError, SelfconInputError
+
+
+class TuneError(SelfconInputError):
+    """The tuning problem is ill posed (unknown quantity, target outside the bracket, ...)."""
+
+
+#: short name -> (description, units, function(result, structure) -> float)
+def _summary(key):
+    return lambda r, st: float(r.summary[key])
+
+
+def _doping(bound):
+    def f(r, st):
+        from ..diagnostics import doping_layer_electrons
+        return doping_layer_electrons(r, st, bound=bound)
+    return f
+
+
+QUANTITIES = {
+    "ns": ("electrons in the channel layer", "cm^-2", _summary("channel_electron_sheet_density_cm2")),
+    "ns_total": ("electrons in the whole stack", "cm^-2", _summary("electron_sheet_density_cm2")),
+    "e10": ("E1 - E0 of the electron subbands", "eV", _summary("E1_minus_E0_eV")),
+    "e0f": ("E0 - EF, lowest electron subband below (-) or above (+) EF", "eV", _summary("E0_minus_EF_eV")),
+    "doping_charge": ("electrons in the doping layers (free + on neutral donors)", "cm^-2", _doping(True)),
+    "doping_free": ("free electrons in the doping layers", "cm^-2", _doping(False)),
+}
+
+
+@dataclass
+class TuneResult:
+    path: str
+    quantity: str
+    target: float
+    value: float                     # the parameter value found (deck units)
+    achieved: float                  # the quantity at that value
+    bracket: tuple[float, float]
+    ends: tuple[float, float]        # the quantity at the bracket ends
+    solves: int
+    converged: bool                  # root finder converged and the final solve converged
+    message: str
+    evaluations: list[tuple[float, float]] = field(default_factory=list)   # (x, quantity) in order
+    result: Any = None               # the Result at ``value``
+    units: str = ""
+
+    @property
+    def success(self) -> bool:
+        return self.converged
+
+
+def quantity_function(name: str):
+    """(function(result, structure) -> float, description, units) for a quantity name."""
+    if name in QUANTITIES:
+        desc, units, fn = QUANTITIES[name]
+        return fn, desc, units
+    return _summary(name), f"summary figure {name}", ""
+
+
+def _check_quantity(name, result):
+    if name in QUANTITIES:
+        return
+    v = (result.summary or {}).get(name)
+    numeric = [k for k, x in (result.summary or {}).items()
+               if isinstance(x, (int, float)) and not isinstance(x, bool)]
+    if v is None or isinstance(v, (bool, str, list)):
+        raise TuneError(f"unknown quantity {name!r}", key="--target",
+                        allowed=", ".join(list(QUANTITIES) + sorted(numeric)))
+
+
+def path_value(deck, path: str):
+    """Current value of a deck path (None if the deck leaves it at a default it does not write)."""
+    from ..batch.study import base_value
+    try:
+        return base_value(tomllib.loads(deck.to_toml()), path)
+    except KeyError:
+        return None
+
+
+def path_units(path: str) -> str:
+    from ..deck import KEYS
+    parts = path.split(".")
+    table = parts[0] if len(parts) > 1 else ""
+    key = parts[-1]
+    spec = KEYS.get(table, {}).get(key) if table in KEYS else KEYS[""].get(key)
+    if spec is None or spec.unit in ("-", ""):
+        return ""
+    return spec.unit
+
+
+def tune(deck, path: str, target_name: str, target_value: float, bracket, *, xtol: float | None = None,
+         rtol: float = 1e-10, maxiter: int = 60, progress=None) -> TuneResult:
+    """Find ``x`` in ``bracket`` with quantity(solve(deck with path = x)) == target_value.
+
+    ``progress``: callable(x, quantity_value, result) after each solve.
+    Raises TuneError (exit 2 in the CLI) when the target is outside the range reached at the
+    bracket ends, and DeckError for a bad path or a value the deck rejects.
+    """
+    from scipy.optimize import brentq
+
+    from ..deck import Deck, load_deck
+    from ..scf import solve
+    from ..structure import build_structure
+    if not isinstance(deck, Deck):
+        deck = load_deck(deck)
+    a, b = (float(v) for v in bracket)
+    if not (math.isfinite(a) and math.isfinite(b)) or a == b:
+        raise TuneError(f"needs two different finite values, got {bracket!r}", key="--bracket")
+    if a > b:
+        a, b = b, a
+    target_value = float(target_value)
+    if not math.isfinite(target_value):
+        raise TuneError(f"target must be finite, got {target_value!r}", key="--target")
+    if xtol is None:
+        xtol = 1e-4 * (b - a)
+    fn, desc, units = quantity_function(target_name)
+    # a bad path fails here, before any solve
+    for x in (a, b):
+        deck.with_overrides({path: x})
+
+    cache: dict[float, tuple[float, Any]] = {}
+    warm: list[tuple[float, tuple]] = []
+    evals: list[tuple[float, float]] = []
+    checked = [False]
+
+    def evaluate(x: float) -> float:
+        if x in cache:
+            return cache[x][0] - target_value
+        dk = deck.with_overrides({path: float(x)})
+        st = build_structure(dk)
+        r = None
+        if warm:
+            xs = np.array([w[0] for w in warm])
+            guess = warm[int(np.argmin(np.abs(xs - x)))][1]
+            r = solve(dk, structure=st, initial_potential=guess)
+            if not r.converged:
+                cold = solve(dk, structure=st)
+                if cold.converged or cold.residual < r.residual:
+                    r = cold
+        if r is None:
+            r = solve(dk, structure=st)
+        if not checked[0]:
+            _check_quantity(target_name, r)
+            checked[0] = True
+        q = float(fn(r, st))
+        if r.converged:
+            warm.append((x, (r.z.copy(), r.profile["potential"].copy())))
+        cache[x] = (q, r)
+        evals.append((float(x), q))
+        if progress is not None:
+            progress(float(x), q, r)
+        if not math.isfinite(q):
+            raise TuneError(f"{target_name} is not defined at {path} = {x:g} ({desc}: {q}); "
+                            "choose another bracket or quantity", key="--target")
+        return q - target_value
+
+    fa = evaluate(a)
+    fb = evaluate(b)
+    qa, qb = fa + target_value, fb + target_value
+    unit = f" {units}" if units else ""
+    if fa == 0.0 or fb == 0.0:
+        x = a if fa == 0.0 else b
+        root, ok, msg = x, True, "the target is met at a bracket end"
+    elif fa * fb > 0:
+        lo, hi = min(qa, qb), max(qa, qb)
+        raise TuneError(f"target {target_name} = {target_value:.6g}{unit} is outside the range reached over "
+                        f"the bracket: {target_name} = {qa:.6g}{unit} at {path} = {a:g} and {qb:.6g}{unit} at "
+                        f"{b:g} (range {lo:.6g} to {hi:.6g}); widen --bracket", key="--target")
+    else:
+        root, info = brentq(evaluate, a, b, xtol=xtol, rtol=rtol, maxiter=maxiter, full_output=True,
+                            disp=False)
+        ok = bool(info.converged)
+        msg = (f"brentq converged in {info.iterations} iterations" if ok
+               else f"brentq stopped: {info.flag}")
+    evaluate(root)                          # cached unless brentq's answer is a new point
+    q_root, r_root = cache[root]
+    ok = ok and bool(r_root.converged)
+    if not r_root.converged:
+        msg += f"; the solve at the answer did not converge: {r_root.message}"
+    return TuneResult(path=path, quantity=target_name, target=target_value, value=float(root), achieved=q_root,
+                      bracket=(a, b), ends=(qa, qb), solves=len(evals), converged=ok, message=msg,
+                      evaluations=evals, result=r_root, units=units)
+
+
+def parse_target(text: str) -> tuple[str, float]:
+    """``"ns=3e11"`` -> ("ns", 3e11)."""
+    if not isinstance(text, str) or "=" not in text:
+        raise TuneError(f"must be QUANTITY=VALUE, e.g. ns=3e11, got {text!r}", key="--target",
+                        allowed=", ".join(QUANTITIES) + ", or a summary key")
+    name, _, val = text.partition("=")
+    name = name.strip()
+    try:
+        value = float(val)
+    except ValueError:
+        raise TuneError(f"value {val.strip()!r} is not a number", key="--target") from None
+    if not name:
+        raise TuneError("missing quantity name", key="--target", allowed=", ".join(QUANTITIES))
+    return name, value
+
+
+_ = DeckError

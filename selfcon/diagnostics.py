@@ -1,0 +1,321 @@
+"""Design warnings: plain-English notes on a solved structure that a grower would want to see.
+
+:func:`design_warnings` is called by ``selfcon.assemble.build_result`` on every solve;
+its lines end up in ``Result.warnings``, the ``run``/``show`` output, the JSON and the
+``/summary`` attribute ``warnings`` of the result file.  Each check is a plain function
+``check_*(result, structure) -> list[str]`` so it can be tested on its own.
+
+Thresholds (our own choices, stated here and in docs/README-design.md):
+
+* second subband: the second *channel* electron subband (states with most of their
+  weight in the channel layer) holds more than ``SECOND_SUBBAND_FRACTION`` = 1 % of the
+  channel's subband electrons.
+* parallel conduction: a doping layer (a layer with bulk or sheet donors that is not the
+  channel) holds more electrons than ``PARALLEL_FRACTION`` = 1 % of the channel sheet
+  density, and at least ``FLOOR_CM2`` = 1e8 cm^-2.
+* DX-centre regime: a donor-doped AlGaAs layer with Al fraction above ``DX_MIN_X`` = 0.2
+  (Si donors form DX centres there; common practice) where the Fermi level lies less
+  than ``max(DX_WINDOW_KT * kT, DX_WINDOW_EV)`` = max(3 kT, 50 meV) below the donor
+  level Ec - E_bind, or above it.  50 meV applies below about 190 K, 3 kT above.
+* quantum region cut: at a region end that is not a contact, the electron (or hole)
+  density within ``CUT_DISTANCE_NM`` = 2 nm of the end node, on either side, exceeds
+  ``CUT_FRACTION`` = 1e-3 of that carrier's peak density.
+* buffer carriers: electrons plus holes in the last ``BUFFER_DEPTH_NM`` = 100 nm above the
+  bottom contact exceed 1 % of the channel sheet density (and 1e8 cm^-2), unless the
+  bottom layer is the channel itself.
+* not converged: the self-consistent loop did not converge (its message is repeated).
+"""
+from __future__ import annotations
+
+import tomllib
+
+import numpy as np
+
+from .constants import KB_EV, NM_PER_CM
+
+SECOND_SUBBAND_FRACTION = 0.01
+PARALLEL_FRACTION = 0.01
+FLOOR_CM2 = 1e8
+DX_MIN_X = 0.2
+DX_WINDOW_KT = 3.0
+DX_WINDOW_EV = 0.050
+CUT_FRACTION = 1e-3
+CUT_DISTANCE_NM = 2.0
+BUFFER_DEPTH_NM = 100.0
+BUFFER_FRACTION = 0.01
+
+__all__ = ["design_warnings", "check_not_converged", "check_second_subband",
+           "check_parallel_conduction", "check_dx_centres", "check_region_cut",
+           "check_buffer_carriers", "doping_layers", "doping_layer_electrons",
+           "node_weights", "CHECKS"]
+
+
+# --------------------------------------------------------------------------- helpers
+
+def node_weights(z: np.ndarray) -> np.ndarray:
+    """Dual-cell widths w (nm) of the nodes: sum(density * w) is the sheet density."""
+    z = np.asarray(z, dtype=float)
+    h = np.diff(z)
+    w = np.zeros(z.size)
+    w[:-1] += 0.5 * h
+    w[1:] += 0.5 * h
+    return w
+
+
+def _layer_rows(result) -> list[dict]:
+    return list(result.layers or [])
+
+
+def channel_index(result) -> int | None:
+    name = (result.summary or {}).get("channel_layer")
+    rows = _layer_rows(result)
+    for i, row in enumerate(rows):
+        if row.get("name") == name:
+            return i
+    if not rows:
+        return None
+    return int(np.argmax([r.get("electron_sheet_density_cm2", 0.0) for r in rows]))
+
+
+def channel_density(result) -> float:
+    s = result.summary or {}
+    v = s.get("channel_electron_sheet_density_cm2")
+    if v is None:
+        i = channel_index(result)
+        v = _layer_rows(result)[i]["electron_sheet_density_cm2"] if i is not None else 0.0
+    return float(v)
+
+
+def doping_layers(result, structure=None) -> list[int]:
+    """Indices of layers with bulk or sheet donors, the channel excluded."""
+    ch = channel_index(result)
+    out = []
+    if structure is not None:
+        for Li in structure.layers:
+            if (Li.donors > 0 or Li.sheet_donors > 0) and Li.index != ch:
+                out.append(Li.index)
+        return out
+    data = _deck_data(result)
+    for i, lay in enumerate(data.get("layer", [])):
+        if (lay.get("donors", 0) or lay.get("sheet_donors", 0)) and i != ch:
+            out.append(i)
+    return out
+
+
+def _donors_per_layer(result, structure=None) -> list[float]:
+    """Donors per area (cm^-2) of every layer: bulk density times thickness plus the sheet."""
+    if structure is not None:
+        return [Li.donors * (Li.bottom - Li.top) / NM_PER_CM + Li.sheet_donors for Li in structure.layers]
+    out = []
+    for lay in _deck_data(result).get("layer", []):
+        out.append(float(lay.get("donors", 0.0)) * float(lay["thickness"]) / NM_PER_CM
+                   + float(lay.get("sheet_donors", 0.0)))
+    return out
+
+
+def doping_layer_electrons(result, structure=None, *, bound: bool = False) -> float:
+    """Electrons per area (cm^-2) in all doping layers (the channel excluded).
+
+    ``bound=False``: free (conduction-band) electrons only, the ones that conduct in
+    parallel.  ``bound=True``: plus the electrons sitting on neutral donors (Nd - Nd+),
+    i.e. all the charge the doping layer has taken back from the channel.
+    """
+    rows = _layer_rows(result)
+    idx = doping_layers(result, structure)
+    total = sum(float(rows[i]["electron_sheet_density_cm2"]) for i in idx)
+    if bound:
+        nd = _donors_per_layer(result, structure)
+        for i in idx:
+            ion = rows[i].get("ionized_donor_sheet_density_cm2", nd[i])
+            total += max(nd[i] - float(ion), 0.0)
+    return float(total)
+
+
+def _deck_data(result) -> dict:
+    try:
+        return tomllib.loads(result.deck_text or "")
+    except tomllib.TOMLDecodeError:
+        return {}
+
+
+def _fmt_cm2(x: float) -> str:
+    return f"{x:.3g} cm^-2"
+
+
+# --------------------------------------------------------------------------- the checks
+
+def check_not_converged(result, structure=None) -> list[str]:
+    if result.converged:
+        return []
+    return [f"not converged after {result.iterations} iterations (residual {result.residual:.2e} V): "
+            f"{result.message}; the figures below are not a solution"]
+
+
+def channel_subbands(result, structure) -> np.ndarray:
+    """Indices of electron states with more than half their weight in the channel layer."""
+    sb = (result.subbands or {}).get("electron")
+    ch = channel_index(result)
+    if sb is None or ch is None or sb.energy.size == 0:
+        return np.zeros(0, dtype=int)
+    w = structure.mesh.w if structure is not None else node_weights(result.z)
+    in_ch = np.asarray(result.layer_index) == ch
+    weight = np.sum((sb.wavefunction ** 2) * (w * in_ch)[:, None], axis=0)
+    return np.flatnonzero(weight > 0.5)
+
+
+def check_second_subband(result, structure) -> list[str]:
+    sb = (result.subbands or {}).get("electron")
+    idx = channel_subbands(result, structure)
+    if sb is None or idx.size < 2:
+        return []
+    occ = sb.occupation[idx]
+    total = float(np.sum(occ))
+    if total <= 0:
+        return []
+    frac = float(occ[1] / total)
+    if frac <= SECOND_SUBBAND_FRACTION:
+        return []
+    e0, e1 = float(sb.energy[idx[0]]), float(sb.energy[idx[1]])
+    where = "below" if e1 < 0 else "above"
+    return [f"second electron subband occupied: E1 - EF = {1e3 * e1:+.1f} meV ({where} EF), "
+            f"n1 = {_fmt_cm2(float(occ[1]))} = {100 * frac:.1f} % of the channel subbands "
+            f"(E1 - E0 = {1e3 * (e1 - e0):.1f} meV); mobility drops from intersubband scattering"]
+
+
+def check_parallel_conduction(result, structure) -> list[str]:
+    rows = _layer_rows(result)
+    ns = channel_density(result)
+    limit = max(PARALLEL_FRACTION * ns, FLOOR_CM2)
+    out = []
+    for i in doping_layers(result, structure):
+        n = float(rows[i]["electron_sheet_density_cm2"])
+        if n > limit:
+            rel = f"{100 * n / ns:.1f} % of" if ns > 0 else "while"
+            out.append(f"parallel conduction: doping layer {rows[i]['name']!r} holds {_fmt_cm2(n)} electrons, "
+                       f"{rel} the channel's {_fmt_cm2(ns)} (limit {100 * PARALLEL_FRACTION:g} %); "
+                       "lower the doping or thin the spacer")
+    return out
+
+
+def _algaas_x(result, structure, layer) -> tuple[bool, np.ndarray]:
+    """(is AlGaAs, alloy fraction of its cells) for one layer."""
+    sel = np.asarray(structure.cell_layer) == layer.index
+    x = np.asarray(structure.x_cell)[sel]
+    name = layer.material
+    if name == "AlGaAs":
+        return True, x
+    mat = _deck_data(result).get("material", {}).get(name, {})
+    if isinstance(mat, dict) and mat.get("base") == "AlGaAs":
+        if np.all(~np.isfinite(x)) and mat.get("x") is not None:
+            x = np.full(x.size, float(mat["x"]))
+        return True, x
+    return False, x
+
+
+def dx_window(temperature: float) -> float:
+    """Fermi-level distance (eV) to the donor level below which the DX warning is raised."""
+    return max(DX_WINDOW_KT * KB_EV * temperature, DX_WINDOW_EV)
+
+
+def check_dx_centres(result, structure) -> list[str]:
+    window = dx_window(structure.temperature)
+    ec = np.asarray(result.profile["conduction_band"])
+    bind = np.asarray(structure.cell["donor_binding"])
+    cl = np.asarray(structure.cell_layer)
+    out = []
+    for Li in structure.layers:
+        if not (Li.donors > 0 or Li.sheet_donors > 0):
+            continue
+        is_algaas, x = _algaas_x(result, structure, Li)
+        if not is_algaas or x.size == 0 or not np.any(x > DX_MIN_X):
+            continue
+        # donor level Ed = Ec - E_bind at every doped node of the layer; EF = 0
+        levels = []
+        cells = np.flatnonzero((cl == Li.index) & (np.asarray(structure.x_cell) > DX_MIN_X))
+        if Li.donors > 0 and cells.size:
+            # node c (left end of each cell) carries the cell's band edge in the profile
+            levels.append(np.min(ec[cells] - bind[cells]))
+        if Li.sheet_donors > 0:
+            nodes = np.flatnonzero(np.asarray(structure.sheet_donors) > 0)
+            nodes = nodes[np.asarray(structure.layer_index)[nodes] == Li.index]
+            if nodes.size:
+                levels.append(np.min(ec[nodes] - np.asarray(structure.sheet_ed)[nodes]))
+        if not levels:
+            continue
+        ed = float(min(levels))          # Ed - EF (eV): > 0 means EF below the donor level
+        if ed < window:
+            pos = (f"{1e3 * ed:.0f} meV below the donor level" if ed >= 0 else
+                   f"{-1e3 * ed:.0f} meV above the donor level")
+            out.append(f"DX-centre regime: in {Li.name!r} (AlGaAs, x = {float(np.nanmax(x)):.2f} > {DX_MIN_X}) "
+                       f"EF lies {pos} (window {1e3 * window:.0f} meV = max(3 kT, 50 meV)); Si donors "
+                       "there trap electrons (persistent photoconductivity, freeze-out)")
+    return out
+
+
+def check_region_cut(result, structure) -> list[str]:
+    z = np.asarray(result.z)
+    n_nodes = z.size
+    out = []
+    for k, (i0, i1) in enumerate(structure.regions):
+        for end, label in ((i0, "top"), (i1, "bottom")):
+            if end == 0 or end == n_nodes - 1:
+                continue            # a contact: nothing is cut
+            near = np.flatnonzero(np.abs(z - z[end]) <= CUT_DISTANCE_NM)
+            near = near[near != end]
+            if near.size == 0:
+                near = np.array([end - 1, end + 1])
+            for carrier, key in (("electron", "electron_density"), ("hole", "hole_density")):
+                dens = np.asarray(result.profile[key])
+                peak = float(np.max(dens))
+                if peak <= 0:
+                    continue
+                local = float(np.max(dens[near]))
+                if local > CUT_FRACTION * peak:
+                    out.append(f"quantum region {k} [{structure.regions_nm[k][0]:g}, "
+                               f"{structure.regions_nm[k][1]:g}] nm cuts the {carrier}s at its {label} end "
+                               f"(z = {z[end]:g} nm): {local:.3g} cm^-3 within {CUT_DISTANCE_NM:g} nm, "
+                               f"{local / peak:.2g} of the peak {peak:.3g} cm^-3; widen the region")
+                    break
+    return out
+
+
+def check_buffer_carriers(result, structure) -> list[str]:
+    z = np.asarray(result.z)
+    ch = channel_index(result)
+    last = int(np.asarray(result.layer_index)[-1])
+    if ch is not None and last == ch:
+        return []
+    w = structure.mesh.w if structure is not None else node_weights(z)
+    sel = z >= z[-1] - BUFFER_DEPTH_NM
+    n = float(np.sum(np.asarray(result.profile["electron_density"])[sel] * w[sel])) / NM_PER_CM
+    p = float(np.sum(np.asarray(result.profile["hole_density"])[sel] * w[sel])) / NM_PER_CM
+    ns = channel_density(result)
+    limit = max(BUFFER_FRACTION * ns, FLOOR_CM2)
+    if n + p <= limit:
+        return []
+    name = _layer_rows(result)[last]["name"] if _layer_rows(result) else "bottom layer"
+    return [f"carriers near the bottom contact: {_fmt_cm2(n)} electrons and {_fmt_cm2(p)} holes in the last "
+            f"{BUFFER_DEPTH_NM:g} nm of {name!r} (limit {_fmt_cm2(limit)}, 1 % of the channel); "
+            "a conducting buffer or too short a buffer: thicken it or check the substrate contact"]
+
+
+#: name -> check, in the order warnings are listed
+CHECKS = {
+    "not_converged": check_not_converged,
+    "second_subband": check_second_subband,
+    "parallel_conduction": check_parallel_conduction,
+    "dx_centres": check_dx_centres,
+    "region_cut": check_region_cut,
+    "buffer_carriers": check_buffer_carriers,
+}
+
+
+def design_warnings(result, structure) -> list[str]:
+    """Every design warning for a solved structure (one line each, with the numbers)."""
+    out = []
+    for name, check in CHECKS.items():
+        try:
+            out.extend(check(result, structure))
+        except Exception as exc:      # a check must never break a solve
+            out.append(f"design check {name!r} could not run ({type(exc).__name__}: {exc})")
+    return out
