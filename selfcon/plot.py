@@ -159,6 +159,7 @@ def _draw_states(ax, result, z, ec, ev, span, regions, fs, labels=False, only=No
         peak = float(psi2.max()) if psi2.size else 0.0
         if peak <= 0:
             continue
+        labelled = []
         for j, k in enumerate(idx):
             r = int(sb.region[k]) if k < len(sb.region) else 0
             region = regions[r] if 0 <= r < len(regions) else regions[0]
@@ -173,7 +174,8 @@ def _draw_states(ax, result, z, ec, ev, span, regions, fs, labels=False, only=No
                             linewidth=0, zorder=3.5)
             ax.plot(zz, e[j] + sign * w, color=colour, linewidth=0.9, alpha=0.9 if occupied else 0.5, zorder=4)
             drawn.append((band, k, e[j], c0, c1, amp, occupied))
-            if labels:
+            if labels and all(abs(e[j] - lab) > 0.025 * span for lab in labelled):   # no overlapping labels
+                labelled.append(e[j])
                 from matplotlib.transforms import blended_transform_factory
                 ax.text(0.98, e[j], f"{'E' if sign > 0 else 'H'}{k}  {e[j] * 1e3:+.1f} meV",
                         transform=blended_transform_factory(ax.transAxes, ax.transData), fontsize=fs * 0.75,
