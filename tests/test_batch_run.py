@@ -27,12 +27,13 @@ contact = "schottky"
 barrier = 0.7
 bias = 0.0
 [substrate]
-contact = "ohmic"
+contact = "pinned"
+barrier = 0.75
 [[layer]]
 name = "barrier"
 material = "AlGaAs"
 x = 0.3
-thickness = 30.0
+thickness = 50.0
 [[layer]]
 name = "doping"
 material = "AlGaAs"
@@ -48,11 +49,11 @@ thickness = 15.0
 name = "channel"
 material = "GaAs"
 thickness = 100.0
-acceptors = 1e15
+acceptors = 1e14
 [physics]
 carriers = ["electron"]
 [quantum]
-regions = [[40.0, 110.0]]
+regions = [[55.0, 130.0]]
 states = 3
 [mesh]
 step = {step}
@@ -67,8 +68,8 @@ path = "layer.spacer.thickness"
 values = [10.0, 15.0, 20.0]
 [[vary]]
 path = "layer.doping.sheet_donors"
-from = 1e12
-to = 4e12
+from = 2e12
+to = 5e12
 points = 4
 """
 
@@ -181,8 +182,8 @@ def test_grid_3x4_with_two_local_workers(tmp_path):
         ns = {(float(r["layer.spacer.thickness"]), float(r["layer.doping.sheet_donors"])):
               float(r["electron_sheet_density_cm2"]) for r in rows}
         # more donors, more electrons; a thicker spacer, fewer (charge control, Delagebeaudeuf & Linh 1982)
-        assert ns[(15.0, 4e12)] > ns[(15.0, 1e12)]
-        assert ns[(10.0, 4e12)] > ns[(20.0, 4e12)]
+        assert ns[(15.0, 5e12)] > ns[(15.0, 2e12)] > 0
+        assert ns[(10.0, 5e12)] > ns[(20.0, 5e12)]
     # rerun: nothing to do, nothing recomputed
     con = db(out)
     before = {r["id"]: r["finished_at"] for r in con.execute("SELECT id, finished_at FROM jobs")}
@@ -300,7 +301,7 @@ def test_continuation_same_answer_fewer_iterations(tmp_path):
 def kill_study(tmp_path):
     # enough jobs, each slow enough, that a kill lands mid-run
     study = GRID.replace("points = 4", "points = 6")
-    return make(tmp_path, study, step=0.25 if REAL else 2.0, words="sleep=0.3")
+    return make(tmp_path, study, step=0.05 if REAL else 2.0, words="sleep=0.3")
 
 
 def test_sigkill_one_worker_mid_run(tmp_path):
