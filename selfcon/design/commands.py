@@ -1,0 +1,223 @@
+"""`selfcon sweep-bias`, `selfcon tune` and `selfcon study-summary` (registered by selfcon.cli).
+
+    selfcon sweep-bias DECK --from V1 --to V2 --step DV [-o OUT.h5] [--threshold NS_CM2]
+                       [--fraction F] [--plot FIG] [--set PATH=VALUE]... [--json] [--quiet]
+    selfcon tune DECK --vary PATH --target QUANTITY=VALUE [--bracket A B] [--xtol X]
+                 [-o OUT.h5] [--set PATH=VALUE]... [--json] [--quiet]
+    selfcon study-summary OUTDIR [--quantity NAME]... [--plot FIG] [--table-only] [--json]
+
+Exit codes: 0 ok, 2 bad input (one line), 3 some solve did not converge (files still written).
+"""
+from __future__ import annotations
+
+import json
+import math
+import sys
+from pathlib import Path
+
+from ..errors import SelfconInputError
+
+EXIT_OK, EXIT_INPUT, EXIT_NOT_CONVERGED = 0, 2, 3
+
+
+class DesignOptionError(SelfconInputError):
+    """A bad option of a design command."""
+
+
+def register(subparsers):
+    s = subparsers.add_parser("sweep-bias", help="solve along the gate bias: n_s(V), C-V, threshold",
+                              description="Solve the deck at every gate bias from --from to --to (continuation "
+                              "from the previous point); report threshold voltages, parallel-conduction onset "
+                              "and capacitance; write one HDF5 file.")
+    s.add_argument("deck")
+    s.add_argument("--from", dest="v_from", type=float, required=True, metavar="V1", help="first bias (V)")
+    s.add_argument("--to", dest="v_to", type=float, required=True, metavar="V2", help="last bias (V)")
+    s.add_argument("--step", type=float, required=True, metavar="DV", help="bias step (V, > 0)")
+    s.add_argument("-o", "--output", default=None, metavar="OUT.h5", help="sweep file (HDF5)")
+    s.add_argument("--threshold", type=float, default=1e10, metavar="NS_CM2",
+                   help="channel n_s (cm^-2) defining the crossing threshold (default 1e10)")
+    s.add_argument("--fraction", type=float, default=0.01,
+                   help="doping-layer electrons / channel n_s that marks parallel conduction (default 0.01)")
+    s.add_argument("--plot", default=None, metavar="FIG", help="n_s(V) per layer and C-V figure (.png/.svg/.pdf)")
+    s.add_argument("--set", action="append", default=[], metavar="PATH=VALUE", help="deck override")
+    s.add_argument("--force", action="store_true", help="overwrite an existing output file")
+    s.add_argument("--json", action="store_true", help="print the analysis as JSON")
+    s.add_argument("--quiet", action="store_true", help="no per-point lines")
+    s.set_defaults(func=cmd_sweep_bias)
+
+    t = subparsers.add_parser("tune", help="find the deck value that makes a quantity hit a target",
+                              description="Bracketing root finder (brentq) over full solves with warm starts. "
+                              "Quantities: ns, ns_total, e10, e0f, doping_charge, doping_free, or any summary key.")
+    t.add_argument("deck")
+    t.add_argument("--vary", required=True, metavar="PATH", help="deck path, e.g. layer.spacer.thickness")
+    t.add_argument("--target", required=True, metavar="QUANTITY=VALUE", help="e.g. ns=3e11 (cm^-2)")
+    t.add_argument("--bracket", type=float, nargs=2, metavar=("A", "B"), default=None,
+                   help="search interval (default: half to twice the deck's value)")
+    t.add_argument("--xtol", type=float, default=None, help="absolute tolerance on the value (default 1e-4 of the bracket)")
+    t.add_argument("-o", "--output", default=None, metavar="OUT.h5", help="write the solution's result file")
+    t.add_argument("--set", action="append", default=[], metavar="PATH=VALUE", help="deck override")
+    t.add_argument("--force", action="store_true", help="overwrite an existing output file")
+    t.add_argument("--json", action="store_true")
+    t.add_argument("--quiet", action="store_true", help="no per-solve lines")
+    t.set_defaults(func=cmd_tune)
+
+    u = subparsers.add_parser("study-summary", help="statistics and sensitivities of a finished study",
+                              description="Mean, standard deviation, 5/50/95 percentiles of every summary "
+                              "quantity of a study folder and its linear sensitivity to each varied parameter.")
+    u.add_argument("outdir", help="the study's output folder (holding table.h5 / table.csv)")
+    u.add_argument("--quantity", action="append", default=[], metavar="NAME", help="only these quantities")
+    u.add_argument("--plot", default=None, metavar="FIG", help="histograms and sensitivity bars")
+    u.add_argument("--table-only", action="store_true", help="do not read the job result files")
+    u.add_argument("--json", action="store_true")
+    u.set_defaults(func=cmd_study_summary)
+
+
+def _plot_path(path):
+    if path is None:
+        return
+    p = Path(path)
+    if p.suffix.lower() not in (".png", ".svg", ".pdf"):
+        raise DesignOptionError(f"unknown figure format {p.suffix!r}", key="--plot", allowed=".png, .svg, .pdf")
+    if not (p.parent if str(p.parent) else Path(".")).is_dir():
+        raise DesignOptionError("folder does not exist", file=str(p), key="--plot")
+
+
+def _out_path(path, force):
+    if path is None:
+        return None
+    p = Path(path)
+    if p.exists() and not force:
+        raise DesignOptionError("output file exists; pass --force to overwrite it", file=str(p))
+    if not (p.parent if str(p.parent) else Path(".")).is_dir():
+        raise DesignOptionError("output folder does not exist", file=str(p))
+    return p
+
+
+def _load(args):
+    import selfcon
+    p = Path(args.deck)
+    if not p.is_file():
+        raise DesignOptionError("no such deck file", file=str(p))
+    return selfcon.load_deck(p, overrides=tuple(args.set or ()))
+
+
+def _jsonable(x):
+    if isinstance(x, float) and not math.isfinite(x):
+        return None
+    if isinstance(x, dict):
+        return {k: _jsonable(v) for k, v in x.items()}
+    if isinstance(x, (list, tuple)):
+        return [_jsonable(v) for v in x]
+    if hasattr(x, "item"):
+        return _jsonable(x.item())
+    return x
+
+
+# --------------------------------------------------------------------------- sweep-bias
+
+def cmd_sweep_bias(args) -> int:
+    from .sweep import bias_points, sweep_bias
+    deck = _load(args)
+    if args.step <= 0:
+        raise DesignOptionError(f"must be > 0 (the direction comes from --from and --to), got {args.step:g}",
+                                key="--step")
+    biases = bias_points(args.v_from, args.v_to, args.step)
+    out = _out_path(args.output, args.force)
+    _plot_path(args.plot)
+    loud = not (args.quiet or args.json)
+
+    def progress(k, v, r):
+        if loud:
+            ns = r.summary.get("channel_electron_sheet_density_cm2", float("nan"))
+            flag = "" if r.converged else "  NOT CONVERGED"
+            print(f"[{k + 1}/{biases.size}] V = {v:+.4f} V  n_s(channel) = {ns:.4g} cm^-2  "
+                  f"{r.iterations} it{flag}", file=sys.stderr, flush=True)
+
+    sw = sweep_bias(deck, biases, progress=progress, threshold_cm2=args.threshold, fraction=args.fraction)
+    if out is not None:
+        sw.save(out, force=True)
+    if args.plot:
+        sw.plot(args.plot)
+    if args.json:
+        print(json.dumps(_jsonable({"bias_V": sw.bias.tolist(), "channel_cm2": sw.channel_density.tolist(),
+                                    "capacitance_F_cm2": sw.capacitance.tolist(),
+                                    "converged": sw.converged.tolist(), "channel_layer": sw.channel_layer,
+                                    "analysis": sw.analysis, "output": str(out) if out else None}), indent=1))
+    else:
+        print(f"{'bias V':>8} {'n_s channel':>12} {'n doping':>10} {'Q C/cm2':>10} {'C F/cm2':>10} {'it':>3}")
+        for i in range(sw.bias.size):
+            print(f"{sw.bias[i]:>+8.3f} {sw.channel_density[i]:>12.4g} {sw.doping_electrons[i]:>10.3g} "
+                  f"{sw.gate_charge[i]:>10.4g} {sw.capacitance[i]:>10.4g} {sw.iterations[i]:>3}"
+                  + ("" if sw.converged[i] else "  not converged"))
+        for line in sw.lines():
+            print(line)
+        if out is not None:
+            print(f"sweep written to {out}")
+        if args.plot:
+            print(f"figure written to {args.plot}")
+    if not sw.all_converged:
+        bad = ", ".join(f"{v:+.3f}" for v in sw.bias[~sw.converged])
+        print(f"selfcon: not converged at V = {bad}", file=sys.stderr)
+        return EXIT_NOT_CONVERGED
+    return EXIT_OK
+
+
+# --------------------------------------------------------------------------- tune
+
+def cmd_tune(args) -> int:
+    from .tune import TuneError, parse_target, path_units, path_value, tune
+    deck = _load(args)
+    name, value = parse_target(args.target)
+    if args.bracket is None:
+        x0 = path_value(deck, args.vary)
+        if isinstance(x0, bool) or not isinstance(x0, (int, float)) or x0 == 0:
+            raise TuneError(f"the deck's value of {args.vary} is {x0!r}: give --bracket A B", key="--bracket")
+        bracket = tuple(sorted((0.5 * x0, 2.0 * x0)))
+    else:
+        bracket = tuple(args.bracket)
+    out = _out_path(args.output, args.force)
+    unit = path_units(args.vary)
+    loud = not (args.quiet or args.json)
+
+    def progress(x, q, r):
+        if loud:
+            flag = "" if r.converged else "  not converged"
+            print(f"  {args.vary} = {x:.6g} {unit} -> {name} = {q:.6g}  ({r.iterations} it){flag}",
+                  file=sys.stderr, flush=True)
+
+    tr = tune(deck, args.vary, name, value, bracket, xtol=args.xtol, progress=progress)
+    if out is not None and tr.result is not None:
+        tr.result.save(out, force=True)
+    if args.json:
+        print(json.dumps(_jsonable({"path": tr.path, "value": tr.value, "units": unit, "quantity": tr.quantity,
+                                    "target": tr.target, "achieved": tr.achieved, "bracket": list(tr.bracket),
+                                    "ends": list(tr.ends), "solves": tr.solves, "converged": tr.converged,
+                                    "message": tr.message, "evaluations": tr.evaluations,
+                                    "output": str(out) if out else None}), indent=1))
+    else:
+        qu = f" {tr.units}" if tr.units else ""
+        print(f"{tr.path} = {tr.value:.6g} {unit} gives {tr.quantity} = {tr.achieved:.6g}{qu} "
+              f"(target {tr.target:.6g}) after {tr.solves} solves; {tr.message}")
+        for w in (tr.result.warnings if tr.result is not None else []):
+            print(f"warning: {w}")
+        if out is not None:
+            print(f"result at the solution written to {out}")
+    return EXIT_OK if tr.converged else EXIT_NOT_CONVERGED
+
+
+# --------------------------------------------------------------------------- study-summary
+
+def cmd_study_summary(args) -> int:
+    from .tolerance import plot_summary, summarize_study
+    _plot_path(args.plot)
+    s = summarize_study(args.outdir, quantities=args.quantity or None, from_results=not args.table_only)
+    if args.plot:
+        plot_summary(s, args.plot, quantities=args.quantity or None)
+    if args.json:
+        print(json.dumps(_jsonable(s.as_dict()), indent=1))
+    else:
+        for line in s.lines():
+            print(line)
+        if args.plot:
+            print(f"figure written to {args.plot}")
+    return EXIT_OK

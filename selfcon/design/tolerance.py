@@ -1,0 +1,261 @@
+"""Growth-tolerance summaries of a finished study: statistics and linear sensitivities.
+
+    s = summarize_study("inputs/design/tolerance_hall")     # the study's output folder
+    s.stats["channel_density_cm2"]["std"], s.sensitivity["channel_density_cm2"]["layer.spacer.thickness"]
+
+Reads the table the study runner wrote (``table.h5``, else ``table.csv``): the varied
+paths are the columns between ``job`` and ``status``; the summary quantities are its
+numeric figure columns, plus every numeric ``/summary`` attribute of the job result
+files (``jobs/<id>.h5``) when they are there.  Only jobs with status ``done`` count.
+
+For each quantity y: mean, standard deviation (ddof = 1), percentiles 5/50/95, and the
+least-squares fit y = b0 + sum_j b_j x_j over the varied parameters (``numpy.linalg.lstsq``).
+``b_j`` is in quantity units per deck unit; the standardised coefficient is
+b_j * std(x_j) / std(y) (its square is the share of the variance of y explained by x_j
+when the parameters are drawn independently).  A parameter without spread in the table
+gets coefficient 0 (it cannot explain anything); a quantity without spread gets 0 for all.
+"""
+from __future__ import annotations
+
+import csv
+import math
+from dataclasses import dataclass, field
+from pathlib import Path
+
+import numpy as np
+
+from ..errors import StudyError
+
+#: table columns that are bookkeeping, not figures
+BOOKKEEPING = ("job", "status", "attempts", "converged", "iterations", "seconds", "warm_start", "result",
+               "message", "residual_V")
+#: /summary attributes of result files that are bookkeeping, not design figures
+SUMMARY_SKIP = ("converged", "iterations", "residual_V", "nodes", "wall_time_s", "gauss_residual")
+PERCENTILES = (5, 50, 95)
+
+
+@dataclass
+class ToleranceSummary:
+    folder: str
+    paths: list[str]                       # varied parameters
+    quantities: list[str]
+    n_done: int
+    n_total: int
+    stats: dict[str, dict[str, float]]     # quantity -> mean, std, p5, p50, p95, n
+    sensitivity: dict[str, dict[str, float]]        # quantity -> path -> b_j (units per deck unit)
+    standardized: dict[str, dict[str, float]]       # quantity -> path -> b_j std(x_j)/std(y)
+    r_squared: dict[str, float]
+    parameter_stats: dict[str, dict[str, float]] = field(default_factory=dict)   # path -> mean, std
+    columns: dict[str, np.ndarray] = field(default_factory=dict, repr=False)
+
+    def lines(self) -> list[str]:
+        out = [f"{self.folder}: {self.n_done} of {self.n_total} jobs done; varied: "
+               + ", ".join(f"{p} (mean {self.parameter_stats[p]['mean']:.4g}, std {self.parameter_stats[p]['std']:.3g})"
+                           for p in self.paths)]
+        w = max(len(q) for q in self.quantities) if self.quantities else 8
+        out.append(f"{'quantity':<{w}}  {'mean':>11} {'std':>10} {'p5':>11} {'p50':>11} {'p95':>11}  {'R^2':>5}")
+        for q in self.quantities:
+            s = self.stats[q]
+            r2 = self.r_squared[q]
+            out.append(f"{q:<{w}}  {s['mean']:>11.5g} {s['std']:>10.4g} {s['p5']:>11.5g} {s['p50']:>11.5g} "
+                       f"{s['p95']:>11.5g}  {r2:>5.3f}" if math.isfinite(r2) else
+                       f"{q:<{w}}  {s['mean']:>11.5g} {s['std']:>10.4g} {s['p5']:>11.5g} {s['p50']:>11.5g} "
+                       f"{s['p95']:>11.5g}  {'-':>5}")
+        out.append("sensitivity d(quantity)/d(parameter) [standardised: share of the spread]")
+        for q in self.quantities:
+            parts = [f"{p}: {self.sensitivity[q][p]:+.4g} [{self.standardized[q][p]:+.3f}]" for p in self.paths]
+            out.append(f"  {q}: " + "; ".join(parts))
+        return out
+
+    def as_dict(self) -> dict:
+        return {"folder": self.folder, "paths": self.paths, "quantities": self.quantities, "n_done": self.n_done,
+                "n_total": self.n_total, "stats": self.stats, "sensitivity": self.sensitivity,
+                "standardized": self.standardized, "r_squared": self.r_squared,
+                "parameter_stats": self.parameter_stats}
+
+
+# --------------------------------------------------------------------------- reading
+
+def _float(v):
+    if v is None or v == "":
+        return math.nan
+    if isinstance(v, (bytes, np.bytes_)):
+        v = v.decode()
+    if isinstance(v, str) and v.lower() in ("true", "false"):
+        return 1.0 if v.lower() == "true" else 0.0
+    try:
+        return float(v)
+    except (TypeError, ValueError):
+        return math.nan
+
+
+def read_table(folder) -> tuple[list[str], dict[str, list]]:
+    """(column names, column -> list of values) of a study folder's table (h5 preferred)."""
+    folder = Path(folder)
+    if not folder.is_dir():
+        raise StudyError("not a study output folder", file=str(folder))
+    h5 = folder / "table.h5"
+    if h5.is_file():
+        import h5py
+        with h5py.File(h5, "r") as f:
+            if "table" not in f:
+                raise StudyError("table.h5 has no /table group", file=str(h5))
+            g = f["table"]
+            cols = [c.decode() if isinstance(c, bytes) else str(c) for c in g.attrs["columns"]]
+            data = {}
+            for c in cols:
+                arr = g[c][()]
+                data[c] = [x.decode() if isinstance(x, bytes) else x for x in arr.tolist()]
+        return cols, data
+    path = folder / "table.csv"
+    if not path.is_file():
+        raise StudyError("no table.csv or table.h5 here (run `selfcon batch STUDY.toml` first)", file=str(folder))
+    with open(path, newline="", encoding="utf-8") as fh:
+        rows = list(csv.reader(fh))
+    if not rows:
+        raise StudyError("empty table", file=str(path))
+    cols = rows[0]
+    data = {c: [r[i] if i < len(r) else "" for r in rows[1:]] for i, c in enumerate(cols)}
+    return cols, data
+
+
+def _result_summaries(folder: Path, files: list[str]) -> list[dict]:
+    """Numeric /summary attributes of each job file ({} where the file is missing)."""
+    import h5py
+    out = []
+    for rel in files:
+        p = folder / rel if rel else None
+        d = {}
+        if p is not None and p.is_file():
+            try:
+                with h5py.File(p, "r") as f:
+                    if "summary" in f:
+                        for k, v in f["summary"].attrs.items():
+                            if k in SUMMARY_SKIP:
+                                continue
+                            if isinstance(v, (bool, np.bool_)):
+                                continue
+                            if isinstance(v, (int, float, np.integer, np.floating)):
+                                d[k] = float(v)
+            except OSError:
+                pass
+        out.append(d)
+    return out
+
+
+# --------------------------------------------------------------------------- statistics
+
+def summarize_table(paths: list[str], quantities: dict[str, np.ndarray], parameters: dict[str, np.ndarray],
+                    *, folder: str = "", n_total: int | None = None) -> ToleranceSummary:
+    """Statistics and regression of ``quantities`` (name -> (n,)) on ``parameters`` (path -> (n,))."""
+    n = len(next(iter(parameters.values()))) if parameters else 0
+    X = np.column_stack([np.asarray(parameters[p], float) for p in paths]) if paths else np.zeros((n, 0))
+    pstats = {p: {"mean": float(np.mean(X[:, j])) if n else math.nan,
+                  "std": float(np.std(X[:, j], ddof=1)) if n > 1 else 0.0} for j, p in enumerate(paths)}
+    stats, sens, std_sens, r2 = {}, {}, {}, {}
+    for q, y in quantities.items():
+        y = np.asarray(y, float)
+        ok = np.isfinite(y) & np.all(np.isfinite(X), axis=1)
+        yy, XX = y[ok], X[ok]
+        m = yy.size
+        if m == 0:
+            stats[q] = {"mean": math.nan, "std": math.nan, "p5": math.nan, "p50": math.nan, "p95": math.nan, "n": 0}
+        else:
+            pc = np.percentile(yy, PERCENTILES)
+            stats[q] = {"mean": float(np.mean(yy)), "std": float(np.std(yy, ddof=1)) if m > 1 else 0.0,
+                        "p5": float(pc[0]), "p50": float(pc[1]), "p95": float(pc[2]), "n": int(m)}
+        coef = {p: 0.0 for p in paths}
+        scoef = {p: 0.0 for p in paths}
+        sy = float(np.std(yy, ddof=1)) if m > 1 else 0.0
+        spread = [j for j in range(len(paths)) if m > 1 and np.ptp(XX[:, j]) > 0]
+        r2[q] = math.nan
+        if spread and m > len(spread) and sy > 0:
+            xm = XX[:, spread].mean(axis=0)
+            A = np.column_stack([np.ones(m), XX[:, spread] - xm])
+            beta, *_ = np.linalg.lstsq(A, yy, rcond=None)
+            fit = A @ beta
+            ss_res = float(np.sum((yy - fit) ** 2))
+            ss_tot = float(np.sum((yy - yy.mean()) ** 2))
+            r2[q] = 1.0 - ss_res / ss_tot if ss_tot > 0 else math.nan
+            for k, j in enumerate(spread):
+                b = float(beta[k + 1])
+                coef[paths[j]] = b
+                scoef[paths[j]] = b * float(np.std(XX[:, j], ddof=1)) / sy
+        sens[q], std_sens[q] = coef, scoef
+    return ToleranceSummary(folder=folder, paths=list(paths), quantities=list(quantities), n_done=n,
+                            n_total=n if n_total is None else n_total, stats=stats, sensitivity=sens,
+                            standardized=std_sens, r_squared=r2, parameter_stats=pstats,
+                            columns={**{p: X[:, j] for j, p in enumerate(paths)},
+                                     **{q: np.asarray(v, float) for q, v in quantities.items()}})
+
+
+def summarize_study(folder, *, quantities=None, from_results: bool = True) -> ToleranceSummary:
+    """Read a finished study folder and summarise it (see the module docstring)."""
+    folder = Path(folder)
+    cols, data = read_table(folder)
+    if "job" not in cols or "status" not in cols:
+        raise StudyError("table has no job/status columns (not written by selfcon batch?)", file=str(folder))
+    paths = cols[cols.index("job") + 1:cols.index("status")]
+    status = [str(s) for s in data["status"]]
+    done = [i for i, s in enumerate(status) if s == "done"]
+    if not done:
+        raise StudyError(f"no finished (done) jobs among {len(status)}", file=str(folder))
+    params = {}
+    for p in paths:
+        vals = np.array([_float(data[p][i]) for i in done])
+        if not np.all(np.isfinite(vals)):
+            raise StudyError(f"varied column {p!r} is not numeric", file=str(folder))
+        params[p] = vals
+    figures: dict[str, np.ndarray] = {}
+    for c in cols[cols.index("status") + 1:]:
+        if c in BOOKKEEPING:
+            continue
+        vals = np.array([_float(data[c][i]) for i in done])
+        if np.any(np.isfinite(vals)):
+            figures[c] = vals
+    if from_results and "result" in data:
+        summ = _result_summaries(folder, [str(data["result"][i]) for i in done])
+        keys = []
+        for d in summ:
+            for k in d:
+                if k not in keys and k not in figures:
+                    keys.append(k)
+        for k in keys:
+            vals = np.array([d.get(k, math.nan) for d in summ])
+            if np.any(np.isfinite(vals)):
+                figures[k] = vals
+    if quantities:
+        missing = [q for q in quantities if q not in figures]
+        if missing:
+            raise StudyError(f"no quantity {missing[0]!r} in this study", key="--quantity",
+                             allowed=", ".join(figures))
+        figures = {q: figures[q] for q in quantities}
+    return summarize_table(paths, figures, params, folder=str(folder), n_total=len(status))
+
+
+def plot_summary(s: ToleranceSummary, path, *, quantities=None) -> None:
+    """One row per quantity: histogram of its spread and bars of the standardised sensitivities."""
+    import matplotlib
+    matplotlib.use("Agg", force=False)
+    import matplotlib.pyplot as plt
+    qs = list(quantities or [q for q in s.quantities if s.stats[q]["std"] > 0][:6] or s.quantities[:6])
+    fig, axes = plt.subplots(len(qs), 2, figsize=(9, 2.4 * len(qs) + 0.4), squeeze=False, constrained_layout=True)
+    for row, q in zip(axes, qs):
+        y = s.columns[q]
+        y = y[np.isfinite(y)]
+        row[0].hist(y, bins=max(5, min(30, y.size // 3)), color="0.6", edgecolor="k", lw=0.5)
+        st = s.stats[q]
+        for key, ls in (("p5", ":"), ("p50", "-"), ("p95", ":")):
+            row[0].axvline(st[key], color="k", ls=ls, lw=0.8)
+        row[0].set_xlabel(q)
+        row[0].set_ylabel("jobs")
+        vals = [s.standardized[q][p] for p in s.paths]
+        row[1].barh(range(len(s.paths)), vals, color=["tab:blue" if v >= 0 else "tab:orange" for v in vals])
+        row[1].set_yticks(range(len(s.paths)))
+        row[1].set_yticklabels(s.paths, fontsize=7)
+        row[1].axvline(0, color="k", lw=0.5)
+        row[1].set_xlim(-1.05, 1.05)
+        row[1].set_xlabel("standardised sensitivity")
+    fig.suptitle(f"{Path(s.folder).name}: {s.n_done} samples", fontsize=10)
+    fig.savefig(path, dpi=110)
+    plt.close(fig)
