@@ -543,6 +543,9 @@ def plot_sweep(sw: BiasSweep, path) -> None:
         y = sw.layer_electrons[order, j]
         if np.nanmax(y) > FLOOR_CM2:
             ax1.semilogy(v, np.maximum(y, 1e6), marker="o", ms=3, label=name)
+    if sw.doping_layers and np.nanmax(sw.doping_electrons) > FLOOR_CM2:
+        ax1.semilogy(v, np.maximum(sw.doping_electrons[order], 1e6), color="k", ls="--", lw=1,
+                     label="doping layers (free + on donors)")
     ax1.axhline(sw.threshold_cm2, color="0.5", lw=0.8, ls=":")
     vt = sw.analysis.get("threshold_extrapolated_V", float("nan"))
     if math.isfinite(vt):

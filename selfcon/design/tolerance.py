@@ -61,7 +61,7 @@ class ToleranceSummary:
                        f"{s['p95']:>11.5g}  {r2:>5.3f}" if math.isfinite(r2) else
                        f"{q:<{w}}  {s['mean']:>11.5g} {s['std']:>10.4g} {s['p5']:>11.5g} {s['p50']:>11.5g} "
                        f"{s['p95']:>11.5g}  {'-':>5}")
-        out.append("sensitivity d(quantity)/d(parameter) [standardised: share of the spread]")
+        out.append("sensitivity d(quantity)/d(parameter) per deck unit [standardised: b * std(x) / std(y)]")
         for q in self.quantities:
             parts = [f"{p}: {self.sensitivity[q][p]:+.4g} [{self.standardized[q][p]:+.3f}]" for p in self.paths]
             out.append(f"  {q}: " + "; ".join(parts))
@@ -170,17 +170,18 @@ def summarize_table(paths: list[str], quantities: dict[str, np.ndarray], paramet
         spread = [j for j in range(len(paths)) if m > 1 and np.ptp(XX[:, j]) > 0]
         r2[q] = math.nan
         if spread and m > len(spread) and sy > 0:
+            # regress on standardised columns (thicknesses in nm and dopings in cm^-3 differ by 1e18)
             xm = XX[:, spread].mean(axis=0)
-            A = np.column_stack([np.ones(m), XX[:, spread] - xm])
+            xs = XX[:, spread].std(axis=0, ddof=1)
+            A = np.column_stack([np.ones(m), (XX[:, spread] - xm) / xs])
             beta, *_ = np.linalg.lstsq(A, yy, rcond=None)
             fit = A @ beta
             ss_res = float(np.sum((yy - fit) ** 2))
             ss_tot = float(np.sum((yy - yy.mean()) ** 2))
             r2[q] = 1.0 - ss_res / ss_tot if ss_tot > 0 else math.nan
             for k, j in enumerate(spread):
-                b = float(beta[k + 1])
-                coef[paths[j]] = b
-                scoef[paths[j]] = b * float(np.std(XX[:, j], ddof=1)) / sy
+                coef[paths[j]] = float(beta[k + 1] / xs[k])
+                scoef[paths[j]] = float(beta[k + 1]) / sy
         sens[q], std_sens[q] = coef, scoef
     return ToleranceSummary(folder=folder, paths=list(paths), quantities=list(quantities), n_done=n,
                             n_total=n if n_total is None else n_total, stats=stats, sensitivity=sens,
