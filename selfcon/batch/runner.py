@@ -10,6 +10,7 @@ twice (or SIGTERM): requeue the running jobs and stop now.  Exit code 130.
 """
 from __future__ import annotations
 
+import concurrent.futures as cf
 import json
 import math
 import os
@@ -178,6 +179,8 @@ class Coordinator:
         self.potentials = {}          # job id -> (z, phi) of converged results, for continuation
         self.suspects = set()         # jobs in flight when a worker died
         self.interrupted = False
+        self.writer = cf.ThreadPoolExecutor(max_workers=2, thread_name_prefix="selfcon-write")
+        self.pending = {}             # write future -> (job id, path, result, outcome, warm, varied)
 
     # -- bits -----------------------------------------------------------------
     def _initial(self, con, neighbour):
@@ -217,10 +220,20 @@ class Coordinator:
         result = payload["result"]
         rel = f"jobs/{job_id}.h5"
         self.jobs_dir.mkdir(parents=True, exist_ok=True)
+        # the file is written by a writer thread (fsync is slow); the row is finished once it is on disk
+        fut = self.writer.submit(self._save, result, self.out_dir / rel)
+        self.pending[fut] = (job_id, rel, result, payload, warm, varied)
+        return None
+
+    @staticmethod
+    def _save(result, path):
         from ..results import save_result
-        try:
-            save_result(result, self.out_dir / rel, force=True)
-        except Exception as exc:
+        save_result(result, path, force=True)
+
+    def _finalize(self, con, fut):
+        job_id, rel, result, payload, warm, varied = self.pending.pop(fut)
+        exc = fut.exception()
+        if exc is not None:
             q.finish(con, job_id, status="failed", seconds=payload.get("seconds"),
                      error=f"cannot write {rel}: {type(exc).__name__}: {exc}")
             return f"job {job_id} failed: cannot write {rel}: {exc}"
@@ -233,6 +246,14 @@ class Coordinator:
         secs = payload.get("seconds")
         tail = f" {secs:.2f} s" if secs is not None else ""
         return f"job {job_id} {status.replace('_', ' ')}: {result.iterations} it{tail}  {varied}"
+
+    def _drain_writes(self, con, timeout=0.0):
+        if not self.pending:
+            return
+        done, _ = cf.wait(list(self.pending), timeout=timeout)
+        for fut in done:
+            line = self._finalize(con, fut)
+            self.progress.event(line, q.counts(con))
 
     def _claim(self, con, in_flight):
         """Next job to submit, keeping a suspect (a job seen when a worker died) alone in the pool."""
@@ -272,6 +293,8 @@ class Coordinator:
                     ex.shutdown(cancel=True)
                 else:
                     ex.shutdown()
+                self._drain_writes(con, timeout=None)
+                self.writer.shutdown(wait=True)
                 self.progress.stop()
             self.interrupted = sig.stopping
         return q.counts(con)
@@ -296,7 +319,9 @@ class Coordinator:
         if initial is not None:
             self._warm_started.add(row["id"])
         line = self._handle(con, row["id"], "ok", self.fn(row["deck_text"], initial))
-        self.progress.event(line, q.counts(con))
+        if line:
+            self.progress.event(line, q.counts(con))
+        self._drain_writes(con, timeout=None)
 
     def _loop(self, con, ex, sig):
         while True:
@@ -307,7 +332,7 @@ class Coordinator:
                 return
             if not sig.stopping:
                 in_flight = ex.in_flight
-                while len(in_flight) < ex.capacity:
+                while len(in_flight) < ex.capacity + 1:
                     row = self._claim(con, in_flight)
                     if row is None:
                         break
@@ -321,10 +346,16 @@ class Coordinator:
                 self.progress.note(f"interrupted: waiting for {len(ex.in_flight)} running jobs "
                                    "(Ctrl-C again to requeue them and stop now)")
             if not ex.in_flight:
-                return
-            for job, kind, payload in ex.poll(0.2):
+                had_writes = bool(self.pending)
+                self._drain_writes(con, timeout=None)
+                if sig.stopping or not had_writes:      # finished writes may free a continuation chain
+                    return
+                continue
+            for job, kind, payload in ex.poll(0.05 if self.pending else 0.2):
                 line = self._handle(con, job, kind, payload)
-                self.progress.event(line, q.counts(con))
+                if line:
+                    self.progress.event(line, q.counts(con))
+            self._drain_writes(con)
 
 
 # --------------------------------------------------------------------------- tables
