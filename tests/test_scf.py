@@ -261,3 +261,20 @@ def test_two_quantum_regions():
         a, b = r.regions_nm[e.region[k]]
         outside = (r.z < a - 1e-9) | (r.z > b + 1e-9)
         assert np.all(e.wavefunction[outside, k] == 0.0)
+
+
+def test_adaptive_damping_when_the_residual_grows(hemt4):
+    # plain linear mixing with factor 1 overshoots at 4 K: the loop must halve the factor
+    # instead of diverging, and end as a result with a message (issue 3, convergence control)
+    deck = hemt4.with_overrides({"solver.mixing": 1.0})
+    r = selfcon.solve(deck, method="linear", max_iterations=30)
+    d = r.record["damping"]
+    assert d[0] == 1.0 and d[-1] <= 0.125
+    assert np.all(np.diff(d) <= 0)              # only ever damped in this run
+    assert np.isfinite(r.residual) and r.residual < r.residual_history.max()
+    assert not r.converged and "max_iterations" in r.message
+    # Anderson recovers from the same bad start and converges
+    r2 = selfcon.solve(deck, method="anderson", max_iterations=150)
+    assert r2.converged
+    assert r2.summary["electron_sheet_density_cm2"] == pytest.approx(
+        selfcon.solve(hemt4).summary["electron_sheet_density_cm2"], rel=1e-4)
