@@ -8,6 +8,7 @@ so that sum(n * w) is exactly the sheet density.
 from __future__ import annotations
 
 import hashlib
+from functools import lru_cache
 from datetime import datetime, timezone
 from importlib import metadata
 
@@ -48,14 +49,20 @@ def electric_field(z: np.ndarray, phi: np.ndarray) -> np.ndarray:
     return -g * NM_PER_CM
 
 
-def _versions() -> dict:
+@lru_cache(maxsize=1)
+def _package_versions() -> tuple:
+    # importlib.metadata reads distribution files (~10 ms): once per process is enough
     out = {}
     for pkg in ("selfcon", "numpy", "scipy", "numba", "h5py"):
         try:
             out[f"{pkg}_version"] = metadata.version(pkg)
         except metadata.PackageNotFoundError:
             out[f"{pkg}_version"] = "unknown"
-    return out
+    return tuple(out.items())
+
+
+def _versions() -> dict:
+    return dict(_package_versions())
 
 
 def build_result(deck, st, bc, loop, *, wall_time: float, method: str) -> Result:
