@@ -1,0 +1,443 @@
+"""selfcon speed benchmarks (issue 7), one entry point, sub-benchmarks by name.
+
+    python tools/bench.py [NAMES...] [--json PATH] [--strict]
+
+NAMES (default: all): floor scaling mesh iterations startup batch
+
+  floor       warm solve time of each example deck / kernel floor, where the floor is
+              iterations x (one eigensolve of every quantum band and region, with the
+              converged number of states + one Newton step of the Poisson kernel, i.e. one
+              Jacobian assembly with the same charge model and one tridiagonal solve).
+              Target <= 2.
+  scaling     solve time vs nodes as the stack grows (buffer 60 nm .. 20 um at fixed
+              step, bulk step = step) and as the step shrinks; fitted exponent <= 1.1.
+  mesh        nodes and time for 0.1 % accuracy in n_s, graded vs uniform mesh, on the
+              4 K deck with a 1 um buffer; target >= 5x fewer nodes.
+  iterations  predictor-corrector vs Anderson vs linear mixing (linear at its best stable
+              factor from a small scan) on both decks; targets PC <= 15 iterations,
+              linear/PC >= 5.
+  startup     new-process wall time of `import selfcon` and of `selfcon run` with the numba
+              cache warm and cold; targets 0.5 s and 1.5 s (warm).
+  batch       runs tools/bench_batch.py if it exists.
+
+Each benchmark checks the physics it times (convergence, equal n_s to 1e-4 across
+methods, 0.1 % across meshes that claim it).  The exit code is 1 if any such check fails;
+a missed speed target is reported in the table (and fails only with --strict).
+Results: a rich table on stdout and JSON (default bench-results/bench.json).
+"""
+from __future__ import annotations
+
+import argparse
+import json
+import os
+import platform
+import shutil
+import subprocess
+import sys
+import tempfile
+import time
+from pathlib import Path
+
+import numpy as np
+
+ROOT = Path(__file__).resolve().parents[1]
+DECKS = {"4K": ROOT / "inputs" / "hemt_4K.toml", "300K": ROOT / "inputs" / "hemt_300K.toml"}
+PY = sys.executable
+
+ROWS: list[dict] = []
+FAILURES: list[str] = []
+
+
+# --------------------------------------------------------------------------- bookkeeping
+
+def row(bench, case, metric, value, unit="", target=None, met=None, note=""):
+    ROWS.append(dict(bench=bench, case=case, metric=metric, value=value, unit=unit,
+                     target=target, met=met, note=note))
+
+
+def check(cond, what):
+    """A physics check of a timed result; a failure makes the exit code 1."""
+    if not cond:
+        FAILURES.append(what)
+        print(f"CHECK FAILED: {what}", file=sys.stderr)
+    return bool(cond)
+
+
+def best_time(fn, repeat=3):
+    best, out = np.inf, None
+    for _ in range(repeat):
+        t = time.perf_counter()
+        out = fn()
+        best = min(best, time.perf_counter() - t)
+    return best, out
+
+
+def ns(result):
+    return float(result.summary["electron_sheet_density_cm2"])
+
+
+def rel(a, b):
+    return abs(a - b) / max(abs(b), 1e-300)
+
+
+def deck(name_or_path, *overrides):
+    import selfcon
+    path = DECKS.get(name_or_path, name_or_path)
+    return selfcon.load_deck(str(path), list(overrides))
+
+
+def solve_timed(d, repeat=1, **kw):
+    import selfcon
+    return best_time(lambda: selfcon.solve(d, **kw), repeat)
+
+
+def fit_exponent(nodes, times):
+    x, y = np.log(np.asarray(nodes, float)), np.log(np.asarray(times, float))
+    return float(np.polyfit(x, y, 1)[0])
+
+
+# --------------------------------------------------------------------------- floor
+
+def bench_floor():
+    import selfcon
+    from selfcon import coupling, quantum, scf
+    from selfcon.kernels import poisson as KP
+    for name in DECKS:
+        d = deck(name)
+        selfcon.solve(d)                                   # warm (JIT cache, imports)
+        t_solve, r = solve_timed(d, repeat=3)
+        check(r.converged, f"floor {name}: converged")
+        st = selfcon.build_structure(d)
+        bc = scf.boundary_conditions(st)
+        phi = np.asarray(r.profile["potential"], float)
+        # the converged number of states per band (the loop's adaptive count)
+        n_states = {b: st.states for b in scf.BAND_SPECS}
+        for b, sb in r.subbands.items():
+            n_states[b] = max(int(np.max(np.bincount(sb.region))), 1)
+        states = scf.solve_states(st, phi, dict(n_states), {}, quantum)
+        # one eigensolve of every band/region that the loop treats quantum-mechanically
+        t_eig = 0.0
+        for band, bs in states.items():
+            edge_key, mass_key, _, sign, _ = scf.BAND_SPECS[band]
+            edge = st.node_average(st.cell[edge_key]) - phi
+            for r_idx in np.unique(bs.region):
+                i0, i1 = st.regions[int(r_idx)]
+                sl = slice(i0, i1 + 1)
+                w = st.mesh.w[sl].copy()
+                w[0], w[-1] = st.mesh.wr[i0], st.mesh.wl[i1]
+                args = (st.mesh.h[i0:i1], w, sign * edge[sl], 1.0 / st.cell[mass_key][i0:i1],
+                        int(np.sum(bs.region == r_idx)))
+                ws = quantum.EigenWorkspace(i1 - i0 + 1)
+                quantum.solve_region(*args, workspace=ws)
+                t, _ = best_time(lambda: quantum.solve_region(*args, workspace=ws), 5)
+                t_eig += t
+        # one Newton step: poisson_newton(max_iter=1) minus its initial assembly (max_iter=0)
+        prob = coupling.problem_with_states(st, bc, phi, states, shift=1.0)
+        margs = prob.model_args()
+        tail = (prob.top[0], prob.top[1], prob.bottom[0], prob.bottom[1], np.inf)
+        hist = np.zeros(4)
+        run = lambda k: KP.poisson_newton(phi, *margs, *tail, k, 0.3, hist)  # noqa: E731
+        run(1)
+        t1, _ = best_time(lambda: run(1), 20)
+        t0, _ = best_time(lambda: run(0), 20)
+        t_newton = max(t1 - t0, 0.0)
+        floor = r.iterations * (t_eig + t_newton)
+        ratio = t_solve / floor
+        case = f"hemt_{name}"
+        row("floor", case, "warm solve", t_solve * 1e3, "ms",
+            note=f"{r.iterations} it, {st.n_nodes} nodes, states "
+                 + ",".join(f"{b[:2]}{v.energy.size}" for b, v in r.subbands.items()))
+        row("floor", case, "eigensolves / it", t_eig * 1e3, "ms")
+        row("floor", case, "Newton step", t_newton * 1e3, "ms")
+        row("floor", case, "solve / floor", ratio, "x", "<= 2", ratio <= 2.0)
+        check(np.isfinite(ns(r)) and ns(r) > 1e10, f"floor {name}: n_s = {ns(r):.3e} cm^-2 plausible")
+        check(r.summary["gauss_residual"] < 1e-6, f"floor {name}: Gauss residual {r.summary['gauss_residual']:.1e}")
+
+
+# --------------------------------------------------------------------------- scaling
+
+def bench_scaling(quick=False):
+    step = 0.5
+    # stack grows: buffer thickness (the rest of the deck is 139 nm)
+    buffers = [61.0, 400.0, 2000.0, 6000.0, 19861.0] if not quick else [61.0, 2000.0, 6000.0]
+    nodes, times = [], []
+    for b in buffers:
+        d = deck("4K", f"layer.buffer.thickness={b}", f"mesh.bulk_step={step}")
+        solve_timed(d) if b == buffers[0] else None
+        t, r = solve_timed(d, repeat=2)
+        check(r.converged, f"scaling length {b + 139:.0f} nm: converged")
+        nodes.append(r.summary["nodes"])
+        times.append(t)
+        row("scaling", f"L = {(b + 139) / 1000:.2f} um", "solve", t * 1e3, "ms",
+            note=f"{nodes[-1]} nodes, {r.iterations} it, n_s {ns(r):.4e}")
+    e = fit_exponent(nodes, times)
+    row("scaling", "length (fixed step 0.5 nm)", "exponent t ~ N^a", e, "", "<= 1.1", e <= 1.1)
+    steps = [1.0, 0.5, 0.25, 0.125, 0.0625] if not quick else [1.0, 0.5, 0.25]
+    nodes, times, dens = [], [], []
+    for s in steps:
+        d = deck("4K", f"mesh.step={s}")
+        t, r = solve_timed(d, repeat=2)
+        check(r.converged, f"scaling step {s}: converged")
+        nodes.append(r.summary["nodes"])
+        times.append(t)
+        dens.append(ns(r))
+        row("scaling", f"step = {s} nm", "solve", t * 1e3, "ms",
+            note=f"{nodes[-1]} nodes, {r.iterations} it, n_s {dens[-1]:.5e}")
+    e = fit_exponent(nodes, times)
+    row("scaling", "step refinement", "exponent t ~ N^a", e, "", "<= 1.1", e <= 1.1)
+    check(rel(dens[-1], dens[-2]) < 1e-3, f"scaling: n_s converges with the step "
+          f"({dens[-2]:.5e} vs {dens[-1]:.5e})")
+
+
+# --------------------------------------------------------------------------- mesh
+
+def _key_points(st):
+    kp = {0.0, float(st.z[-1])}
+    for L in st.layers:
+        kp.update((L.top, L.bottom))
+        if L.sheet_donors or L.sheet_acceptors:
+            kp.add(0.5 * (L.top + L.bottom))
+    for a, b in st.regions_nm:
+        kp.update((a, b))
+    return sorted(kp)
+
+
+def bench_mesh():
+    import selfcon
+    from selfcon.mesh import uniform_mesh
+    from selfcon.structure import build_structure
+    buf = "layer.buffer.thickness=1000"           # 1 um buffer (stack 1.139 um)
+    ref_d = deck("4K", buf, "mesh.step=0.03125")
+    t, ref = solve_timed(ref_d)
+    check(ref.converged, "mesh: reference converged")
+    n_ref = ns(ref)
+    row("mesh", "reference graded 0.03125 nm", "n_s", n_ref, "cm^-2", note=f"{ref.summary['nodes']} nodes")
+
+    def coarsest(make, steps, label):
+        found = None
+        for s in steps:                          # coarse to fine; first within 0.1 % wins
+            d, st = make(s)
+            selfcon.solve(d, structure=st)
+            t, r = solve_timed(d, repeat=2, structure=st)
+            err = rel(ns(r), n_ref)
+            row("mesh", f"{label} step {s} nm", "n_s error", err * 100, "%",
+                note=f"{st.n_nodes} nodes, {t * 1e3:.1f} ms, {r.iterations} it")
+            if r.converged and err <= 1e-3:
+                found = (s, st.n_nodes, t, ns(r))
+                break
+        return found
+
+    def graded(s):
+        d = deck("4K", buf, f"mesh.step={s}")
+        return d, build_structure(d)
+
+    def uniform(s):
+        d = deck("4K", buf)
+        st0 = build_structure(d)
+        return d, build_structure(d, mesh=uniform_mesh(float(st0.z[-1]), s, _key_points(st0)))
+
+    steps = [2.0, 1.0, 0.5, 0.25, 0.125, 0.0625]
+    g = coarsest(graded, steps, "graded")
+    u = coarsest(uniform, steps, "uniform")
+    if check(g is not None and u is not None, "mesh: both meshes reach 0.1 % in n_s"):
+        ratio = u[1] / g[1]
+        row("mesh", "graded vs uniform at 0.1 %", "node ratio", ratio, "x", ">= 5", ratio >= 5.0,
+            note=f"graded {g[1]} nodes ({g[0]} nm), uniform {u[1]} nodes ({u[0]} nm)")
+        row("mesh", "graded vs uniform at 0.1 %", "time ratio", u[2] / g[2], "x",
+            note=f"graded {g[2] * 1e3:.1f} ms, uniform {u[2] * 1e3:.1f} ms")
+        check(rel(g[3], u[3]) < 2e-3, "mesh: graded and uniform n_s agree to 0.2 %")
+
+
+# --------------------------------------------------------------------------- iterations
+
+def bench_iterations(quick=False):
+    import selfcon
+    for name in DECKS:
+        d = deck(name)
+        selfcon.solve(d)
+        out = {}
+        for method in ("predictor-corrector", "anderson"):
+            t, r = solve_timed(deck(name, f"solver.method={method}", "solver.max_iterations=300"))
+            out[method] = (r, t)
+            row("iterations", f"hemt_{name}", method, r.iterations, "it",
+                "<= 15" if method == "predictor-corrector" else None,
+                (r.iterations <= 15) if method == "predictor-corrector" else None,
+                note=f"{t * 1e3:.0f} ms, converged={r.converged}")
+            check(r.converged, f"iterations {name} {method}: converged ({r.message})")
+        best = None
+        for f in ([0.5, 0.3, 0.2, 0.1, 0.05] if not quick else [0.3, 0.1]):
+            t, r = solve_timed(deck(name, "solver.method=linear", f"solver.mixing={f}",
+                                    "solver.max_iterations=400"))
+            row("iterations", f"hemt_{name}", f"linear {f}", r.iterations, "it",
+                note=f"{t * 1e3:.0f} ms, converged={r.converged}")
+            if r.converged and (best is None or r.iterations < best[1].iterations):
+                best = (f, r, t)
+            elif best is not None:
+                break                       # smaller factors only take longer
+        pc = out["predictor-corrector"][0]
+        if check(best is not None, f"iterations {name}: linear mixing converges at some factor"):
+            f, r, t = best
+            out["linear"] = (r, t)
+            ratio = r.iterations / pc.iterations
+            row("iterations", f"hemt_{name}", "linear(best)/PC", ratio, "x", ">= 5", ratio >= 5.0,
+                note=f"best factor {f}: {r.iterations} it, {t * 1e3:.0f} ms")
+        ref = ns(pc)
+        for m, (r, _) in out.items():
+            if r.converged:
+                check(rel(ns(r), ref) < 1e-4, f"iterations {name}: n_s {m} {ns(r):.6e} vs PC {ref:.6e}")
+
+
+# --------------------------------------------------------------------------- startup
+
+def _wall(cmd, env=None, repeat=3):
+    best, proc = np.inf, None
+    for _ in range(repeat):
+        t = time.perf_counter()
+        proc = subprocess.run(cmd, env=env, capture_output=True, text=True, cwd=ROOT)
+        best = min(best, time.perf_counter() - t)
+    return best, proc
+
+
+def bench_startup():
+    import selfcon
+    env = dict(os.environ)
+    t, p = _wall([PY, "-c", "import selfcon, sys; print(sorted(m for m in ('numba', 'h5py', "
+                  "'matplotlib', 'dask', 'rich', 'scipy') if m in sys.modules))"], env, 5)
+    check(p.returncode == 0, "startup: import selfcon works")
+    row("startup", "python -c 'import selfcon'", "wall", t, "s", "<= 0.5", t <= 0.5,
+        note=f"heavy modules loaded: {p.stdout.strip()}")
+    tmp = Path(tempfile.mkdtemp(prefix="selfcon-bench-"))
+    try:
+        exe = shutil.which("selfcon", path=str(Path(PY).parent)) or "selfcon"
+        cmd = [exe, "run", str(DECKS["4K"]), "-o", str(tmp / "r.h5"), "--quiet", "--force"]
+        subprocess.run(cmd, env=env, capture_output=True, cwd=ROOT)     # fill the cache
+        t, p = _wall(cmd, env, 3)
+        check(p.returncode == 0, f"startup: selfcon run exits 0 (got {p.returncode}: {p.stderr[-300:]})")
+        row("startup", "selfcon run hemt_4K (cache warm)", "wall", t, "s", "<= 1.5", t <= 1.5)
+        cold = dict(env, NUMBA_CACHE_DIR=str(tmp / "numba-cache"))
+        t, p = _wall(cmd, cold, 1)
+        check(p.returncode == 0, "startup: cold-cache run exits 0")
+        row("startup", "selfcon run hemt_4K (cache cold)", "wall", t, "s",
+            note="JIT compiles every kernel on first use")
+        r = selfcon.load_result(str(tmp / "r.h5"))
+        direct = selfcon.solve(deck("4K"))
+        check(rel(ns(r), ns(direct)) < 1e-4, "startup: CLI result equals the in-process solve")
+    finally:
+        shutil.rmtree(tmp, ignore_errors=True)
+
+
+# --------------------------------------------------------------------------- batch
+
+def bench_batch(out_dir):
+    script = ROOT / "tools" / "bench_batch.py"
+    if not script.exists():
+        row("batch", "-", "skipped", float("nan"), note="tools/bench_batch.py not present")
+        return
+    out = Path(out_dir)
+    t = time.perf_counter()
+    p = subprocess.run([PY, str(script), "--out", str(out)], capture_output=True, text=True, cwd=ROOT)
+    t = time.perf_counter() - t
+    check(p.returncode == 0, f"batch: tools/bench_batch.py exit {p.returncode}: {p.stderr[-300:]}")
+    data = None
+    for cand in (out / "batch.json", out / "bench_batch.json"):
+        if cand.exists():
+            data = json.loads(cand.read_text())
+            break
+    row("batch", "tools/bench_batch.py", "wall", t, "s", note="see its own table/JSON")
+    if isinstance(data, dict):
+        for k, v in data.items():
+            if isinstance(v, (int, float)) and not isinstance(v, bool):
+                row("batch", "bench_batch", k, float(v))
+            elif isinstance(v, dict) and "value" in v:
+                row("batch", "bench_batch", k, float(v["value"]), target=v.get("target"),
+                    met=v.get("met"))
+
+
+# --------------------------------------------------------------------------- main
+
+BENCHES = ("floor", "scaling", "mesh", "iterations", "startup", "batch")
+
+
+def machine():
+    info = {"nproc": os.cpu_count(), "python": platform.python_version(), "platform": platform.platform()}
+    try:
+        for line in open("/proc/cpuinfo"):
+            if line.startswith("model name"):
+                info["cpu"] = line.split(":", 1)[1].strip()
+                break
+        for line in open("/proc/meminfo"):
+            if line.startswith("MemTotal"):
+                info["ram_GiB"] = round(int(line.split()[1]) / 2 ** 20, 1)
+                break
+    except OSError:
+        pass
+    return info
+
+
+def print_table(rows):
+    try:
+        from rich.console import Console
+        from rich.table import Table
+    except ImportError:
+        for r in rows:
+            print(r)
+        return
+    tab = Table(title="selfcon benchmarks")
+    for col in ("bench", "case", "metric", "value", "target", "met", "note"):
+        tab.add_column(col, overflow="fold")
+    for r in rows:
+        v = r["value"]
+        vs = f"{v:.4g} {r['unit']}".strip() if isinstance(v, float) else f"{v} {r['unit']}".strip()
+        met = "" if r["met"] is None else ("yes" if r["met"] else "NO")
+        tab.add_row(r["bench"], r["case"], r["metric"], vs, r["target"] or "", met, r["note"])
+    Console(width=160).print(tab)
+
+
+def main(argv=None):
+    ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
+    ap.add_argument("names", nargs="*", metavar="NAME",
+                    help=f"sub-benchmarks to run (default all): {' '.join(BENCHES)}")
+    ap.add_argument("--json", default=str(ROOT / "bench-results" / "bench.json"))
+    ap.add_argument("--quick", action="store_true", help="fewer points (smoke test of the tool)")
+    ap.add_argument("--strict", action="store_true", help="also exit 1 when a speed target is missed")
+    a = ap.parse_args(argv)
+    names = a.names or list(BENCHES)
+    bad = [n for n in names if n not in BENCHES]
+    if bad:
+        ap.error(f"unknown benchmark(s) {', '.join(bad)}; choose from {', '.join(BENCHES)}")
+    t0 = time.perf_counter()
+    for n in names:
+        t = time.perf_counter()
+        if n == "floor":
+            bench_floor()
+        elif n == "scaling":
+            bench_scaling(a.quick)
+        elif n == "mesh":
+            bench_mesh()
+        elif n == "iterations":
+            bench_iterations(a.quick)
+        elif n == "startup":
+            bench_startup()
+        elif n == "batch":
+            bench_batch(Path(a.json).parent)
+        print(f"[{n}: {time.perf_counter() - t:.1f} s]", file=sys.stderr)
+    total = time.perf_counter() - t0
+    print_table(ROWS)
+    missed = [r for r in ROWS if r["met"] is False]
+    out = {"machine": machine(), "total_seconds": total, "rows": ROWS, "check_failures": FAILURES,
+           "targets_missed": [f"{r['bench']}/{r['case']}/{r['metric']}" for r in missed]}
+    path = Path(a.json)
+    path.parent.mkdir(parents=True, exist_ok=True)
+    path.write_text(json.dumps(out, indent=1, default=float))
+    print(f"total {total:.1f} s; JSON -> {path}")
+    if FAILURES:
+        print(f"{len(FAILURES)} physics check(s) failed:\n  " + "\n  ".join(FAILURES), file=sys.stderr)
+        return 1
+    if a.strict and missed:
+        print(f"{len(missed)} target(s) missed", file=sys.stderr)
+        return 1
+    return 0
+
+
+if __name__ == "__main__":
+    sys.exit(main())
