@@ -99,6 +99,15 @@ def densities_with_states(st, phi, states):
     return d.n, d.p, d.nd_plus, d.na_minus
 
 
+def mobile_sheets(st, phi_ref, phi, states):
+    """(electron, hole) sheet densities (nm^-2) at ``phi`` with the subbands of ``phi_ref``
+    shifted by the local potential change (the predictor density)."""
+    prob = problem_with_states(st, None, phi_ref, states)
+    d = P.densities(prob, phi)
+    w = st.mesh.w
+    return float(np.dot(d.n, w)), float(np.dot(d.p, w))
+
+
 def classical_sheet(st, phi, band, i0, i1) -> float:
     """Classical sheet density (nm^-2) of a carrier over nodes i0..i1 at potential phi."""
     cache = st.extras.setdefault("classical_cache", {})

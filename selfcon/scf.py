@@ -108,6 +108,32 @@ def solve(deck, *, initial_potential=None, progress=None, structure: Structure |
     return build_result(deck, st, bc, loop, wall_time=time.perf_counter() - t0, method=method)
 
 
+def extrapolate_potential(previous, value):
+    """Continuation guess at parameter ``value`` from converged neighbours.
+
+    ``previous``: up to two ``(z_nm, phi_V, parameter_value)`` tuples, nearest first.
+    With one, its potential is returned; with two on the same mesh and distinct
+    values, the linear (secant) extrapolation phi_1 + (v - v_1)/(v_1 - v_2) (phi_1 - phi_2),
+    whose error is second order in the step, so the loop starts much closer.
+    Returns ``(z_nm, phi_V)`` for ``solve(..., initial_potential=...)``.
+    """
+    if not previous:
+        return None
+    z1, p1, v1 = previous[0]
+    if len(previous) < 2:
+        return (z1, p1)
+    z2, p2, v2 = previous[1]
+    try:
+        v, v1f, v2f = float(value), float(v1), float(v2)
+    except (TypeError, ValueError):
+        return (z1, p1)
+    if (np.shape(z1) != np.shape(z2) or not np.allclose(z1, z2, rtol=0, atol=1e-9)
+            or v1f == v2f or not np.isfinite(v - v1f)):
+        return (z1, p1)
+    t = (v - v1f) / (v1f - v2f)
+    return (z1, np.asarray(p1) + t * (np.asarray(p1) - np.asarray(p2)))
+
+
 def make_mixer(method: str, spec):
     from .mixing import _REGISTRY
     cls = _REGISTRY.get(method)
@@ -165,7 +191,6 @@ def run_loop(st: Structure, bc, mixer, *, phi0=None, tol=1e-6, charge_tol=1e-6, 
     phi, classical_steps = initial_guess(st, bc, phi0)
     n_states = {band: st.states for band in BAND_SPECS}
     history: list[Iteration] = []
-    prev_mobile = None
     best = (np.inf, phi.copy())
     growth_count = 0
     converged = False
@@ -176,12 +201,7 @@ def run_loop(st: Structure, bc, mixer, *, phi0=None, tol=1e-6, charge_tol=1e-6, 
         phi_out, newton_steps = poisson_pass(st, bc, phi, states, predictor=mixer.predictor)
         r = phi_out - phi
         res = float(np.max(np.abs(r))) if r.size else 0.0
-        mobile = _mobile_sheet(st, bc, phi, states)
-        if prev_mobile is None:
-            cres = 1.0
-        else:
-            cres = abs(mobile - prev_mobile) / max(mobile, 1e-6 / CM2_PER_NM2)
-        prev_mobile = mobile
+        cres = charge_residual(st, bc, phi, phi_out, states)
         history.append(Iteration(res, cres, newton_steps, time.perf_counter() - t_it, mixer.factor))
         if progress is not None:
             progress(it, res)
@@ -353,12 +373,16 @@ def poisson_pass(st: Structure, bc, phi, states, *, predictor: bool):
     return sol.phi, sol.steps
 
 
-def _mobile_sheet(st, bc, phi, states) -> float:
+def charge_residual(st, bc, phi, phi_out, states) -> float:
+    """Relative change of the mobile sheet charge over one step: subband density at phi
+    against the (predicted) density at phi_out, both with the same states."""
     from . import coupling
-    n, p, _, _ = coupling.densities_with_states(st, phi, states)
-    return float(np.sum((n + p) * st.mesh.w))
+    n0, p0 = coupling.mobile_sheets(st, phi, phi, states)
+    n1, p1 = coupling.mobile_sheets(st, phi, phi_out, states)
+    total = n0 + p0
+    return abs((n1 + p1) - total) / max(total, 1e-6 / CM2_PER_NM2)
 
 
-__all__ = ["solve", "run_loop", "warm_up", "solve_states", "poisson_pass", "initial_guess",
+__all__ = ["solve", "run_loop", "warm_up", "extrapolate_potential", "solve_states", "poisson_pass", "initial_guess",
            "boundary_conditions", "BAND_SPECS", "BandStates"]
 _ = (CM3_PER_NM3, NM_PER_CM)

@@ -177,18 +177,18 @@ class Coordinator:
         self.memory_limit = memory_limit
         self.warm = warm
         self.potentials = {}          # job id -> (z, phi) of converged results, for continuation
+        self.along = None             # the continuation axis (a deck path), set by run()
         self.suspects = set()         # jobs in flight when a worker died
         self.interrupted = False
         self.writer = cf.ThreadPoolExecutor(max_workers=2, thread_name_prefix="selfcon-write")
         self.pending = {}             # write future -> (job id, path, result, outcome, warm, varied)
 
     # -- bits -----------------------------------------------------------------
-    def _initial(self, con, neighbour):
-        if neighbour is None:
-            return None
-        if neighbour in self.potentials:
-            return self.potentials[neighbour]
-        row = con.execute("SELECT status, converged, result_path FROM jobs WHERE id = ?", (neighbour,)).fetchone()
+    def _potential(self, con, job_id):
+        """(z, phi) of a finished job, from memory or its result file; None if unavailable."""
+        if job_id in self.potentials:
+            return self.potentials[job_id]
+        row = con.execute("SELECT status, converged, result_path FROM jobs WHERE id = ?", (job_id,)).fetchone()
         if row is None or row["status"] != "done" or not row["result_path"]:
             return None
         try:
@@ -197,8 +197,34 @@ class Coordinator:
                 pair = (f["mesh/z"][()], f["profile/potential"][()])
         except Exception:
             return None
-        self.potentials[neighbour] = pair
+        self.potentials[job_id] = pair
         return pair
+
+    def _along_value(self, con, job_id):
+        row = con.execute("SELECT varied, neighbour FROM jobs WHERE id = ?", (job_id,)).fetchone()
+        if row is None:
+            return None, None
+        return json.loads(row["varied"]).get(self.along), row["neighbour"]
+
+    def _initial(self, con, neighbour, job_id=None):
+        """Warm start from the neighbour along the continuation axis, extrapolated linearly
+        through the neighbour's own neighbour when both are done (selfcon.scf.extrapolate_potential)."""
+        if neighbour is None:
+            return None
+        first = self._potential(con, neighbour)
+        if first is None:
+            return None
+        from ..scf import extrapolate_potential
+        value = None
+        points = [(first[0], first[1], None)]
+        if job_id is not None and self.along is not None:
+            value, _ = self._along_value(con, job_id)
+            v1, nn = self._along_value(con, neighbour)
+            second = self._potential(con, nn) if nn is not None else None
+            if second is not None and value is not None and v1 is not None:
+                v2, _ = self._along_value(con, nn)
+                points = [(first[0], first[1], v1), (second[0], second[1], v2)]
+        return extrapolate_potential(points, value)
 
     def _handle(self, con, job_id, kind, payload):
         row = con.execute("SELECT attempts, varied FROM jobs WHERE id = ?", (job_id,)).fetchone()
@@ -269,8 +295,9 @@ class Coordinator:
         return q.claim(con)
 
     # -- main loop ------------------------------------------------------------
-    def run(self, con, *, continuation=False):
+    def run(self, con, *, continuation=False, along=None):
         self.continuation = continuation
+        self.along = along
         self._warm_started = set()
         counts = q.counts(con)
         total = sum(counts.values()) - counts["retired"]
@@ -315,7 +342,7 @@ class Coordinator:
         self._submit_local(con, row)
 
     def _submit_local(self, con, row):
-        initial = self._initial(con, row["neighbour"])
+        initial = self._initial(con, row["neighbour"], row["id"])
         if initial is not None:
             self._warm_started.add(row["id"])
         line = self._handle(con, row["id"], "ok", self.fn(row["deck_text"], initial))
@@ -336,7 +363,7 @@ class Coordinator:
                     row = self._claim(con, in_flight)
                     if row is None:
                         break
-                    initial = self._initial(con, row["neighbour"])
+                    initial = self._initial(con, row["neighbour"], row["id"])
                     if initial is not None:
                         self._warm_started.add(row["id"])
                     ex.submit(row["id"], row["attempts"], row["deck_text"], initial)
@@ -479,7 +506,7 @@ def run_study(study_file, *, workers=None, out=None, scheduler=None, retries=2, 
             coord = Coordinator(out_dir, workers=workers, scheduler=scheduler, retries=retries, job_fn=job_fn,
                                 progress=prog, memory_limit=memory_limit, warm=warm)
             try:
-                counts = coord.run(con, continuation=study.continuation)
+                counts = coord.run(con, continuation=study.continuation, along=study.along)
             finally:
                 write_tables(con, out_dir)
         finally:
