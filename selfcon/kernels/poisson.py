@@ -44,8 +44,7 @@ import numpy as np
 from numba import njit
 
 from ..constants import Q_EPS0
-from .statistics import (acceptor_ionized, donor_ionized, expit, fermi_half, fermi_mhalf,
-                         log1pexp)
+from .statistics import acceptor_ionized, donor_ionized, fermi_half, fermi_mhalf
 
 
 #: below this reduced energy F_{1/2}(eta) = F_{-1/2}(eta) = e^eta (1 + O(e^eta)), O(e^-40) ~ 4e-18
@@ -53,14 +52,16 @@ _BOLTZMANN_ETA = -40.0
 
 
 @njit(cache=True)
-def _cell_terms(c, phi, ec0, ev0, nc, nv, nd, ed, na, ea, kT, full):
+def _cell_terms(c, phi, ec0, ev0, nc, nv, nd, ed, na, ea, kT, full, want_e=True, want_h=True,
+                want_d=True, want_a=True):
     """Classical densities of cell c at potential phi and their d/dphi, plus the ionised
-    fractions of a unit sheet (donor, acceptor) with d/dphi."""
+    fractions of a unit sheet (donor, acceptor) with d/dphi.  want_*: False skips a term
+    the caller will not use (returned as 0): quantum nodes, undoped cells."""
     ec = ec0[c] - phi
     ev = ev0[c] - phi
     n = 0.0
     dn = 0.0
-    if nc[c] > 0.0:
+    if want_e and nc[c] > 0.0:
         eta = -ec / kT
         if eta < _BOLTZMANN_ETA:
             # deep non-degenerate limit: F_{1/2} = F_{-1/2} = e^eta to < 1e-17 relative;
@@ -72,7 +73,7 @@ def _cell_terms(c, phi, ec0, ev0, nc, nv, nd, ed, na, ea, kT, full):
             dn = nc[c] * fermi_mhalf(eta) / kT
     p = 0.0
     dp = 0.0
-    if nv[c] > 0.0:
+    if want_h and nv[c] > 0.0:
         eta = ev / kT
         if eta < _BOLTZMANN_ETA:
             p = nv[c] * math.exp(eta)
@@ -81,9 +82,26 @@ def _cell_terms(c, phi, ec0, ev0, nc, nv, nd, ed, na, ea, kT, full):
             p = nv[c] * fermi_half(eta)
             dp = -nv[c] * fermi_mhalf(eta) / kT
     # d/dphi = -d/dEc = -d/dEv
-    fd, dfd = donor_ionized(1.0, ec, ed[c], kT, full)
-    fa, dfa = acceptor_ionized(1.0, ev, ea[c], kT, full)
+    fd = 0.0
+    dfd = 0.0
+    fa = 0.0
+    dfa = 0.0
+    if want_d:
+        fd, dfd = donor_ionized(1.0, ec, ed[c], kT, full)
+    if want_a:
+        fa, dfa = acceptor_ionized(1.0, ev, ea[c], kT, full)
     return n, dn, p, dp, fd, -dfd, fa, -dfa
+
+
+@njit(cache=True)
+def _log1pexp_expit(x):
+    """(ln(1 + e^x), 1/(1 + e^-x)) from one exponential, safe for all x
+    (same values as statistics.log1pexp and statistics.expit)."""
+    e = math.exp(-abs(x))
+    lg = math.log1p(e)
+    if x > 0.0:
+        return x + lg, 1.0 / (1.0 + e)
+    return lg, e / (1.0 + e)
 
 
 @njit(cache=True)
@@ -103,6 +121,9 @@ def _node(i, phi_i, h, wl, wr, ec0, ev0, nc, nv, nd, ed, na, ea, sheet_nd, sheet
     dfsd = 0.0
     fsa = 0.0
     dfsa = 0.0
+    # classical carriers are not needed on fully quantum nodes (mask 0)
+    want_e = cls_e[i] > 0.0
+    want_h = cls_h[i] > 0.0
     for side in range(2):
         if side == 0:
             c = i - 1
@@ -112,8 +133,9 @@ def _node(i, phi_i, h, wl, wr, ec0, ev0, nc, nv, nd, ed, na, ea, sheet_nd, sheet
             wt = wr[i]
         if wt == 0.0:
             continue
-        cn, cdn, cp, cdp, fd, dfd, fa, dfa = _cell_terms(c, phi_i, ec0, ev0, nc, nv, nd, ed,
-                                                         na, ea, kT, full)
+        cn, cdn, cp, cdp, fd, dfd, fa, dfa = _cell_terms(
+            c, phi_i, ec0, ev0, nc, nv, nd, ed, na, ea, kT, full, want_e, want_h,
+            nd[c] != 0.0 or sheet_nd[i] != 0.0, na[c] != 0.0 or sheet_na[i] != 0.0)
         n += wt * cn
         dn += wt * cdn
         p += wt * cp
@@ -145,8 +167,9 @@ def _node(i, phi_i, h, wl, wr, ec0, ev0, nc, nv, nd, ed, na, ea, sheet_nd, sheet
             a = psi2[i, k] * dos_e[k]
             if a != 0.0:
                 x = (dphi - ek[k]) / kT
-                nq += a * kT * log1pexp(x)
-                dnq += qshift * a * expit(x)
+                lg, sg = _log1pexp_expit(x)
+                nq += a * kT * lg
+                dnq += qshift * a * sg
         n = ce * n + (1.0 - ce) * nq
         dn = ce * dn + (1.0 - ce) * dnq
     ch = cls_h[i]
@@ -157,8 +180,9 @@ def _node(i, phi_i, h, wl, wr, ec0, ev0, nc, nv, nd, ed, na, ea, sheet_nd, sheet
             a = psi2h[i, k] * dos_h[k]
             if a != 0.0:
                 x = (ekh[k] - dphi) / kT
-                pq += a * kT * log1pexp(x)
-                dpq -= qshift * a * expit(x)
+                lg, sg = _log1pexp_expit(x)
+                pq += a * kT * lg
+                dpq -= qshift * a * sg
         p = ch * p + (1.0 - ch) * pq
         dp = ch * dp + (1.0 - ch) * dpq
     drho = dp - dn + dndp - dnam
