@@ -236,7 +236,7 @@ def bench_mesh():
         st0 = build_structure(d)
         return d, build_structure(d, mesh=uniform_mesh(float(st0.z[-1]), s, _key_points(st0)))
 
-    steps = [2.0, 1.0, 0.5, 0.25, 0.125, 0.0625]
+    steps = [4.0, 2.0, 1.0, 0.5, 0.25, 0.125, 0.0625]
     g = coarsest(graded, steps, "graded")
     u = coarsest(uniform, steps, "uniform")
     if check(g is not None and u is not None, "mesh: both meshes reach 0.1 % in n_s"):
