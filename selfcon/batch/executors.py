@@ -43,8 +43,9 @@ class LocalPool:
         self._start()
 
     def _start(self):
+        initargs = (os.getpid(),) if self.initializer is not None else ()
         self.pool = cf.ProcessPoolExecutor(max_workers=self.workers, mp_context=self.context,
-                                           initializer=self.initializer)
+                                           initializer=self.initializer, initargs=initargs)
 
     @property
     def capacity(self):

@@ -18,8 +18,32 @@ import time
 import traceback
 
 
-def init_worker():
-    """Process-pool initializer: leave Ctrl-C to the coordinator, preload the solver."""
+def _watch_parent(parent_pid, period=1.0):
+    """Exit this worker when the coordinator process is gone (e.g. killed with SIGKILL).
+
+    Pool workers hold both ends of their queue pipes, so they never see EOF when the
+    coordinator dies; without this they would wait forever and compete with the
+    rerun for the CPU."""
+    import threading
+
+    def watch():
+        while True:
+            time.sleep(period)
+            try:
+                os.kill(parent_pid, 0)
+            except ProcessLookupError:
+                os._exit(0)
+            except PermissionError:      # the pid exists (recycled by another user): keep going
+                pass
+
+    threading.Thread(target=watch, name="selfcon-parent-watch", daemon=True).start()
+
+
+def init_worker(parent_pid=None):
+    """Process-pool initializer: leave Ctrl-C to the coordinator, preload the solver, and
+    exit when the coordinator ``parent_pid`` disappears."""
+    if parent_pid is not None:
+        _watch_parent(int(parent_pid))
     try:
         signal.signal(signal.SIGINT, signal.SIG_IGN)
     except (ValueError, OSError):     # not the main thread (e.g. a Dask worker thread)
