@@ -6,6 +6,7 @@ Units: nm, eV, V, K, nm^-3, nm^-2 (INTERFACES.md).  EF = 0, Ec = ec0 - phi, Ev =
 Boundary kinds: DIRICHLET (phi fixed; schottky, pinned and ohmic contacts) and
 ZERO_FIELD (free surface: no outer flux).
 """
+import copy
 from dataclasses import dataclass, field, replace
 
 import numpy as np
@@ -106,12 +107,28 @@ class PoissonProblem:
     def with_quantum(self, *, phi_ref, cls_e=None, psi2=None, ek=None, dos_e=None,
                      cls_h=None, psi2h=None, ekh=None, dos_h=None):
         """Copy with the quantum (predictor) part replaced; omitted parts are kept."""
-        kw = dict(phi_ref=phi_ref)
-        for k, v in (("cls_e", cls_e), ("psi2", psi2), ("ek", ek), ("dos_e", dos_e),
-                     ("cls_h", cls_h), ("psi2h", psi2h), ("ekh", ekh), ("dos_h", dos_h)):
+        # called every iteration: copy without re-running the validation of the
+        # unchanged material arrays; check only the shapes of what is replaced
+        new = copy.copy(self)
+        N = self.z.shape[0]
+        set_ = lambda k, v: object.__setattr__(new, k, v)
+        set_("phi_ref", _f(phi_ref))
+        for k, v in (("cls_e", cls_e), ("cls_h", cls_h)):
             if v is not None:
-                kw[k] = v
-        return replace(self, **kw)
+                set_(k, _f(v))
+        for p, e, d, (pv, ev, dv) in (("psi2", "ek", "dos_e", (psi2, ek, dos_e)),
+                                      ("psi2h", "ekh", "dos_h", (psi2h, ekh, dos_h))):
+            if pv is not None:
+                pv = _f(pv).reshape(N, -1)
+                ev, dv = _f(ev), _f(dv)
+                if ev.shape != (pv.shape[1],) or dv.shape != ev.shape:
+                    raise ValueError(f"PoissonProblem: {p}, {e}, {d} shapes disagree")
+                set_(p, pv)
+                set_(e, ev)
+                set_(d, dv)
+        if new.phi_ref.shape != (N,) or new.cls_e.shape != (N,) or new.cls_h.shape != (N,):
+            raise ValueError("PoissonProblem: phi_ref, cls_e and cls_h must be per node")
+        return new
 
     def with_shift(self, qshift):
         """Copy with the predictor shift factor: 1 subbands follow dphi, 0 frozen density."""

@@ -55,7 +55,7 @@ SUBBAND_FIELDS = {
 #: per-iteration record datasets under /convergence: name -> (units, description)
 RECORD_FIELDS = {
     "residual": ("V", "max |delta phi| between successive iterations"),
-    "charge_residual": ("1", "charge-balance residual of the iteration"),
+    "charge_residual": ("1", "relative change of the mobile sheet charge over the iteration (NaN: not evaluated, the potential was still far from converged)"),
     "newton_steps": ("1", "inner Newton steps of the nonlinear Poisson solve"),
     "seconds": ("s", "wall time spent in the iteration"),
     "damping": ("1", "damping / mixing factor applied in the iteration"),

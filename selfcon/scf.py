@@ -40,12 +40,22 @@ BAND_SPECS = {
     "light_hole": ("ev_lh", "m_lh_z", "m_lh_par", -1, 1),
 }
 
-#: a band whose classical sheet density in a region is below this (nm^-2) is left classical there
-NEGLIGIBLE_SHEET = 1e-12 / CM2_PER_NM2
+#: a band whose classical sheet density in a region is below this (nm^-2), and below
+#: NEGLIGIBLE_FRACTION of the structure's fixed sheet charge, is left classical there
+NEGLIGIBLE_SHEET = 1e3 / CM2_PER_NM2
+NEGLIGIBLE_FRACTION = 1e-8
 #: grow the number of states while the top state still holds this fraction of the band's charge
 TOP_STATE_FRACTION = 1e-4
 MAX_STATES = 200
-POISSON_TOL = 1e-10       # V, inner Newton tolerance
+POISSON_TOL = 1e-10       # V, inner Newton tolerance of the final passes
+START_TOL = 1e-6          # V, the classical starting solution needs no more
+#: compute the charge residual once max |dphi| is below this multiple of the tolerance
+CHARGE_CHECK_FACTOR = 100.0
+#: a residual above this multiple of the previous one damps the mixer (Anderson and
+#: linear mixing are not monotone: smaller rises are normal and left alone)
+GROWTH_FACTOR = 1.5
+#: a residual above this multiple of the best one so far sends the loop back to the best iterate
+BACKTRACK_FACTOR = 10.0
 POISSON_MAX_ITER = 200
 
 
@@ -191,17 +201,20 @@ def run_loop(st: Structure, bc, mixer, *, phi0=None, tol=1e-6, charge_tol=1e-6, 
     phi, classical_steps = initial_guess(st, bc, phi0)
     n_states = {band: st.states for band in BAND_SPECS}
     history: list[Iteration] = []
-    best = (np.inf, phi.copy())
+    best = (np.inf, phi.copy(), np.zeros_like(phi))
     growth_count = 0
     converged = False
     message = ""
     for it in range(1, max_iter + 1):
         t_it = time.perf_counter()
         states = solve_states(st, phi, n_states, workspaces, quantum)
-        phi_out, newton_steps = poisson_pass(st, bc, phi, states, predictor=mixer.predictor)
+        inner_tol = POISSON_TOL if not history else min(max(1e-3 * history[-1].residual, POISSON_TOL), 1e-8)
+        phi_out, newton_steps = poisson_pass(st, bc, phi, states, predictor=mixer.predictor, tol=inner_tol)
         r = phi_out - phi
         res = float(np.max(np.abs(r))) if r.size else 0.0
-        cres = charge_residual(st, bc, phi, phi_out, states)
+        # the charge check only decides convergence: evaluate it once the potential is close
+        cres = (charge_residual(st, bc, phi, phi_out, states) if res < CHARGE_CHECK_FACTOR * tol
+                else float("nan"))
         history.append(Iteration(res, cres, newton_steps, time.perf_counter() - t_it, mixer.factor))
         if progress is not None:
             progress(it, res)
@@ -210,14 +223,15 @@ def run_loop(st: Structure, bc, mixer, *, phi0=None, tol=1e-6, charge_tol=1e-6, 
                        "\"predictor-corrector\", a smaller solver.mixing, or a coarser start")
             phi = best[1]
             break
-        if res < tol and cres < max(charge_tol, 10 * tol):
+        if res < tol and cres < max(charge_tol, 10 * tol):     # (NaN compares False)
             converged = True
             message = f"converged in {it} iterations (max |dphi| = {res:.2e} V)"
             break
         if res < best[0]:
-            best = (res, phi.copy())
-        # convergence control: damp when the residual grows, stop on divergence
-        if len(history) > 1 and res > history[-2].residual * 1.0001:
+            best = (res, phi.copy(), r.copy())
+        # convergence control: damp when the residual grows; after a step that made things
+        # much worse, go back to the best iterate so far and take a damped step from there
+        if len(history) > 1 and res > GROWTH_FACTOR * history[-2].residual:
             growth_count += 1
             if not mixer.damp() and growth_count > 8:
                 message = ("stopped: the residual keeps growing even at the smallest mixing "
@@ -225,6 +239,8 @@ def run_loop(st: Structure, bc, mixer, *, phi0=None, tol=1e-6, charge_tol=1e-6, 
                            "another solver.method")
                 phi = best[1]
                 break
+            if res > BACKTRACK_FACTOR * best[0]:
+                phi, r = best[1].copy(), best[2].copy()
         else:
             growth_count = max(0, growth_count - 1)
             relax = getattr(mixer, "relax", None)
@@ -238,7 +254,9 @@ def run_loop(st: Structure, bc, mixer, *, phi0=None, tol=1e-6, charge_tol=1e-6, 
         if _oscillating(history):
             if not mixer.damp():
                 message = "stopped: the residual oscillates without decreasing; try a smaller solver.mixing"
+                phi = best[1]
                 break
+            phi, r = best[1].copy(), best[2].copy()
         phi = mixer.update(phi, r)
     else:
         last = history[-1].residual if history else float("nan")
@@ -287,7 +305,7 @@ def initial_guess(st: Structure, bc, phi0=None):
                 phi[idx] = bc[side][1]
         return phi, 0
     phi = coupling.linear_start(st, bc)
-    sol = coupling.solve_classical(st, bc, phi, tol=POISSON_TOL, max_iter=POISSON_MAX_ITER)
+    sol = coupling.solve_classical(st, bc, phi, tol=START_TOL, max_iter=POISSON_MAX_ITER)
     return sol.phi, sol.steps
 
 
@@ -316,7 +334,10 @@ def solve_states(st: Structure, phi, n_states, workspaces, quantum) -> dict:
         for r_idx, (i0, i1) in enumerate(st.regions):
             if i1 - i0 < 3:
                 continue
-            if coupling.classical_sheet(st, phi, band, i0, i1) < NEGLIGIBLE_SHEET:
+            key = ("negligible", band, r_idx)
+            if key not in workspaces:        # decided once per solve, at the starting potential
+                workspaces[key] = coupling.classical_sheet(st, phi, band, i0, i1) < negligible_sheet(st)
+            if workspaces[key]:
                 continue           # this carrier is absent here: leave it classical (negligible)
             qnodes[i0:i1 + 1] = True
             sl = slice(i0, i1 + 1)
@@ -359,17 +380,28 @@ def solve_states(st: Structure, phi, n_states, workspaces, quantum) -> dict:
     return out
 
 
+def negligible_sheet(st: Structure) -> float:
+    """Classical sheet density (nm^-2) below which a band is not worth an eigensolve."""
+    val = st.extras.get("negligible_sheet")
+    if val is None:
+        m = st.mesh
+        fixed = (np.sum((st.cell["donors"] + st.cell["acceptors"]) * m.h)
+                 + np.sum(st.sheet_donors + st.sheet_acceptors))
+        val = st.extras["negligible_sheet"] = max(NEGLIGIBLE_SHEET, NEGLIGIBLE_FRACTION * float(fixed))
+    return val
+
+
 def _occupation(energy, sign, kT, dos):
     """Sheet density per state (nm^-2) for unit DOS: kT ln(1 + exp(-sign*E/kT)), safe form."""
     x = -sign * np.asarray(energy) / kT
     return dos * kT * (np.maximum(x, 0.0) + np.log1p(np.exp(-np.abs(x))))
 
 
-def poisson_pass(st: Structure, bc, phi, states, *, predictor: bool):
+def poisson_pass(st: Structure, bc, phi, states, *, predictor: bool, tol: float = POISSON_TOL):
     """One nonlinear Poisson solve with the quantum density from ``states`` (predictor or frozen)."""
     from . import coupling
     sol = coupling.solve_with_states(st, bc, phi, states, predictor=predictor,
-                                    tol=POISSON_TOL, max_iter=POISSON_MAX_ITER)
+                                    tol=tol, max_iter=POISSON_MAX_ITER)
     return sol.phi, sol.steps
 
 

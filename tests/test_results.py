@@ -234,7 +234,7 @@ def assert_results_equal(a: Result, b: Result):
             assert x.dtype == y.dtype and x.shape == y.shape and np.array_equal(x, y), (band, f)
     assert list(a.record) == list(b.record)
     for k in a.record:
-        assert a.record[k].dtype == b.record[k].dtype and np.array_equal(a.record[k], b.record[k]), k
+        assert a.record[k].dtype == b.record[k].dtype and np.array_equal(a.record[k], b.record[k], equal_nan=True), k
 
 
 def test_round_trip_exact(tmp_path):
