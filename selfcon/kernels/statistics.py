@@ -45,7 +45,7 @@ def _series(eta, s):
     for k in range(1, 200):
         term = xk / k ** s
         total += sign * term
-        if term < 1e-17 * total:
+        if term <= 1e-17 * total:     # '<=': when e^eta underflows both are 0
             break
         xk *= x
         sign = -sign
