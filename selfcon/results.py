@@ -315,6 +315,34 @@ def save_result(result: Result, path, *, force: bool = False) -> None:
     folder does not exist.  On any failure the temporary file is removed and an existing
     ``path`` is left as it was.
     """
+    _atomic_write(path, force, lambda tmp: _write_file(tmp, result))
+
+
+def result_image(result: Result) -> bytes:
+    """The complete HDF5 file of ``result`` as bytes, built in memory (no file is touched).
+
+    Batch workers build the image (the costly part: ~100 attributes and ~20 datasets)
+    in parallel; the coordinator only writes the bytes with :func:`save_image`.
+    """
+    import io
+    h5py = _h5py()
+    buf = io.BytesIO()
+    with h5py.File(buf, "w", track_order=True) as f:
+        for write in _WRITERS:
+            write(f, result)
+    return buf.getvalue()
+
+
+def save_image(image: bytes, path, *, force: bool = False) -> None:
+    """Write a file image from :func:`result_image` to ``path``, atomically like save_result."""
+    def fill(tmp):
+        with open(tmp, "wb") as fh:
+            fh.write(image)
+            fh.flush()
+    _atomic_write(path, force, fill)
+
+
+def _atomic_write(path, force, fill) -> None:
     path = Path(path)
     folder = path.parent if str(path.parent) else Path(".")
     if not folder.is_dir():
@@ -327,7 +355,7 @@ def save_result(result: Result, path, *, force: bool = False) -> None:
     fd, tmp = tempfile.mkstemp(prefix=f".{path.name}.", suffix=".tmp", dir=folder)
     os.close(fd)
     try:
-        _write_file(tmp, result)
+        fill(tmp)
         _fsync(tmp)
         os.replace(tmp, path)
     except BaseException:

@@ -329,3 +329,16 @@ def test_crash_mid_write_leaves_nothing_behind(tmp_path, monkeypatch, where):
 def test_missing_output_folder(tmp_path):
     with pytest.raises(ResultFileError, match="folder does not exist"):
         results.save_result(make_result(), tmp_path / "nope" / "r.h5")
+
+
+def test_file_image_built_in_memory_is_the_same_file(tmp_path):
+    # batch workers build the HDF5 image in memory; the coordinator only writes the bytes
+    from selfcon.results import load_result, result_image, save_image, save_result
+    r = make_result()
+    save_result(r, tmp_path / "direct.h5")
+    save_image(result_image(r), tmp_path / "image.h5")
+    assert_results_equal(load_result(tmp_path / "direct.h5"), load_result(tmp_path / "image.h5"))
+    assert_results_equal(r, load_result(tmp_path / "image.h5"))
+    with pytest.raises(ResultFileError, match="--force"):
+        save_image(result_image(r), tmp_path / "image.h5")
+    assert not [p for p in tmp_path.iterdir() if p.name.startswith(".")]     # no temp files left

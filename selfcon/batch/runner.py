@@ -247,14 +247,17 @@ class Coordinator:
         rel = f"jobs/{job_id}.h5"
         self.jobs_dir.mkdir(parents=True, exist_ok=True)
         # the file is written by a writer thread (fsync is slow); the row is finished once it is on disk
-        fut = self.writer.submit(self._save, result, self.out_dir / rel)
+        fut = self.writer.submit(self._save, result, self.out_dir / rel, payload.get("image"))
         self.pending[fut] = (job_id, rel, result, payload, warm, varied)
         return None
 
     @staticmethod
-    def _save(result, path):
-        from ..results import save_result
-        save_result(result, path, force=True)
+    def _save(result, path, image=None):
+        from ..results import save_image, save_result
+        if image is not None:
+            save_image(image, path, force=True)
+        else:
+            save_result(result, path, force=True)
 
     def _finalize(self, con, fut):
         job_id, rel, result, payload, warm, varied = self.pending.pop(fut)
@@ -436,7 +439,7 @@ def _write_table_h5(con, out_dir, cols, rows):
     desc = {c[0]: c[2] for c in SUMMARY_COLUMNS}
     desc.update(job="job id (jobs/<id>.h5)", status="queued | running | done | not_converged | failed",
                 attempts="attempts made", converged="1 converged, 0 not, -1 no result",
-                iterations="self-consistent iterations (-1: no result)", seconds="solve time in the worker",
+                iterations="self-consistent iterations (-1: no result)", seconds="time in the worker: the solve and building its result file",
                 warm_start="1 if started from a neighbour's potential", result="result file, relative to the folder",
                 message="solver message or error text (first line)")
     units.update(seconds="s")

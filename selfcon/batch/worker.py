@@ -2,10 +2,13 @@
 
 ``run_job(deck_text, initial=None) -> outcome dict``::
 
-    {"ok": True,  "result": Result, "seconds": float, "pid": int}
+    {"ok": True,  "result": Result, "image": bytes, "seconds": float, "pid": int}
     {"ok": False, "error": "DeckError: ...", "seconds": float, "pid": int}
 
 ``initial`` is ``None`` or a ``(z_nm, phi_V)`` pair (continuation warm start).
+``image`` is the result's HDF5 file as bytes (selfcon.results.result_image): building it
+is most of the cost of a result file, so it happens in the worker, in parallel; the
+coordinator writes it to disk atomically.
 A job whose solve does not converge is ``ok`` (the Result says converged =
 False); only an exception is ``ok = False``.  A worker process that dies is the
 executor's business, not this function's.
@@ -73,7 +76,12 @@ def run_job(deck_text, initial=None):
             result = solve(deck, initial_potential=initial)
         else:
             result = solve(deck)
-        return {"ok": True, "result": result, "seconds": time.perf_counter() - t0, "pid": os.getpid()}
+        # the HDF5 file image is built here, in parallel; the coordinator only writes the bytes.
+        # "seconds" is the job's own work: the solve and building its result file.
+        from ..results import result_image
+        image = result_image(result)
+        return {"ok": True, "result": result, "image": image, "seconds": time.perf_counter() - t0,
+                "pid": os.getpid()}
     except Exception as exc:  # the job failed; the worker lives on
         return {"ok": False, "error": _error_text(exc), "seconds": time.perf_counter() - t0, "pid": os.getpid()}
 
