@@ -73,8 +73,32 @@ class Mixer:
         return getattr(self, "_factor", 1.0)
 
 
+class _Damped(Mixer):
+    """x_next = x + a r with a factor a that damp() halves down to ``smallest``."""
+
+    option_names = ("mixing",)
+    default_mixing = 1.0
+    smallest = 1e-4
+
+    def __init__(self, mixing: float | None = None):
+        self._factor0 = float(self.default_mixing if mixing is None else mixing)
+        self._factor = self._factor0
+
+    def update(self, x, r):
+        return x + self._factor * r
+
+    def reset(self):
+        self._factor = self._factor0
+
+    def damp(self):
+        if self._factor <= self.smallest:
+            return False
+        self._factor *= 0.5
+        return True
+
+
 @register
-class PredictorCorrector(Mixer):
+class PredictorCorrector(_Damped):
     """Take the predictor–corrector Poisson pass as it comes, damped only when the residual grows.
 
     Because the Poisson pass already contains the linearised carrier response,
@@ -84,23 +108,8 @@ class PredictorCorrector(Mixer):
 
     name = "predictor-corrector"
     predictor = True
-    option_names = ("mixing",)
-
-    def __init__(self, mixing: float = 1.0):
-        self._factor0 = float(mixing)
-        self._factor = float(mixing)
-
-    def update(self, x, r):
-        return x + self._factor * r
-
-    def reset(self):
-        self._factor = self._factor0
-
-    def damp(self):
-        if self._factor <= 1.0 / 64:
-            return False
-        self._factor *= 0.5
-        return True
+    default_mixing = 1.0
+    smallest = 1.0 / 64
 
     def relax(self):
         """Grow the factor back towards its start after a run of good steps."""
@@ -108,28 +117,12 @@ class PredictorCorrector(Mixer):
 
 
 @register
-class Linear(Mixer):
+class Linear(_Damped):
     """Simple mixing x_next = x + a r (a = ``mixing``, default 0.05)."""
 
     name = "linear"
     predictor = False
-    option_names = ("mixing",)
-
-    def __init__(self, mixing: float = 0.05):
-        self._factor0 = float(mixing)
-        self._factor = float(mixing)
-
-    def update(self, x, r):
-        return x + self._factor * r
-
-    def reset(self):
-        self._factor = self._factor0
-
-    def damp(self):
-        if self._factor <= 1e-4:
-            return False
-        self._factor *= 0.5
-        return True
+    default_mixing = 0.05
 
 
 @register

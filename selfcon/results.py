@@ -315,7 +315,7 @@ def save_result(result: Result, path, *, force: bool = False) -> None:
     folder does not exist.  On any failure the temporary file is removed and an existing
     ``path`` is left as it was.
     """
-    _atomic_write(path, force, lambda tmp: _write_file(tmp, result))
+    atomic_write(path, lambda tmp: _write_file(tmp, result), force=force)
 
 
 def result_image(result: Result) -> bytes:
@@ -339,19 +339,23 @@ def save_image(image: bytes, path, *, force: bool = False) -> None:
         with open(tmp, "wb") as fh:
             fh.write(image)
             fh.flush()
-    _atomic_write(path, force, fill)
+    atomic_write(path, fill, force=force)
 
 
-def _atomic_write(path, force, fill) -> None:
+def atomic_write(path, fill, *, force: bool = False, error=ResultFileError) -> None:
+    """Create ``path`` atomically: ``fill(tmp)`` writes a temporary file in the same folder,
+    which is fsync'ed and renamed over ``path``; on any failure it is removed and an
+    existing ``path`` is left as it was.  Every selfcon output file is written this way.
+    ``error`` is the SelfconInputError subclass raised for a bad or existing path."""
     path = Path(path)
     folder = path.parent if str(path.parent) else Path(".")
     if not folder.is_dir():
-        raise ResultFileError("output folder does not exist", file=str(path))
+        raise error("output folder does not exist", file=str(path))
     if path.is_dir():
-        raise ResultFileError("output path is a folder", file=str(path))
+        raise error("output path is a folder", file=str(path))
     if path.exists() and not force:
-        raise ResultFileError("output file exists; pass --force (or force=True) to overwrite it",
-                              file=str(path))
+        raise error("output file exists; pass --force (or force=True) to overwrite it",
+                    file=str(path))
     fd, tmp = tempfile.mkstemp(prefix=f".{path.name}.", suffix=".tmp", dir=folder)
     os.close(fd)
     try:

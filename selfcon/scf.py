@@ -144,6 +144,21 @@ def extrapolate_potential(previous, value):
     return (z1, np.asarray(p1) + t * (np.asarray(p1) - np.asarray(p2)))
 
 
+def solve_warm(deck, initial_potential, *, structure: Structure | None = None):
+    """Solve from a warm start; if that fails to converge, solve cold and keep the better.
+
+    Returns ``(result, warm_used)``; with ``initial_potential=None`` it is a cold solve.
+    Used by continuation along bias sweeps and by target seeking.
+    """
+    if initial_potential is not None:
+        r = solve(deck, structure=structure, initial_potential=initial_potential)
+        if r.converged:
+            return r, True
+        cold = solve(deck, structure=structure)
+        return (cold, False) if (cold.converged or cold.residual < r.residual) else (r, True)
+    return solve(deck, structure=structure), False
+
+
 def make_mixer(method: str, spec):
     from .mixing import _REGISTRY
     cls = _REGISTRY.get(method)
@@ -415,6 +430,6 @@ def charge_residual(st, bc, phi, phi_out, states) -> float:
     return abs((n1 + p1) - total) / max(total, 1e-6 / CM2_PER_NM2)
 
 
-__all__ = ["solve", "run_loop", "warm_up", "extrapolate_potential", "solve_states", "poisson_pass", "initial_guess",
+__all__ = ["solve", "solve_warm", "run_loop", "warm_up", "extrapolate_potential", "solve_states", "poisson_pass", "initial_guess",
            "boundary_conditions", "BAND_SPECS", "BandStates"]
 _ = (CM3_PER_NM3, NM_PER_CM)

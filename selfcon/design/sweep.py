@@ -4,8 +4,9 @@
     sw.analysis["threshold_extrapolated_V"], sw.capacitance, sw.save("cv.h5")
 
 Every point is a full self-consistent solve of the deck with ``surface.bias`` set,
-started from the converged potential of the previous point (continuation; a point
-that fails to converge from the warm start is retried from a cold start).
+started from the converged potentials of the previous points, extrapolated linearly
+through the last two (continuation, selfcon.scf.extrapolate_potential; a point that
+fails to converge from the warm start is retried from a cold start).
 
 Definitions (stated in the file and in docs/README-design.md):
 
@@ -32,8 +33,6 @@ Definitions (stated in the file and in docs/README-design.md):
 from __future__ import annotations
 
 import math
-import os
-import tempfile
 from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any
@@ -322,7 +321,7 @@ def sweep_bias(deck, biases, *, progress=None, threshold_cm2: float = DEFAULT_TH
     ``progress``: callable(index, bias, result) after each point.
     """
     from ..deck import Deck, load_deck
-    from ..scf import solve
+    from ..scf import extrapolate_potential, solve_warm
     from ..structure import build_structure
     if not isinstance(deck, Deck):
         deck = load_deck(deck)
@@ -340,23 +339,15 @@ def sweep_bias(deck, biases, *, progress=None, threshold_cm2: float = DEFAULT_TH
         raise SweepError(f"must lie between 0 and 1, got {fraction!r}", key="--fraction")
     structure = build_structure(deck)
     results, warm = [], []
-    phi_prev = None
+    previous = []                  # converged (z, phi, bias) of the last points, nearest first
     for k, vb in enumerate(biases):
         dk = deck.with_overrides({"surface.bias": float(vb)})
         st = build_structure(dk)
-        r = None
-        if continuation and phi_prev is not None and phi_prev[0].shape == st.z.shape and np.allclose(phi_prev[0], st.z):
-            r = solve(dk, structure=st, initial_potential=phi_prev[1])
-            warm.append(bool(r.converged))
-            if not r.converged:
-                cold = solve(dk, structure=st)
-                if cold.converged or cold.residual < r.residual:
-                    r = cold
-        if r is None:
-            r = solve(dk, structure=st)
-            warm.append(False)
+        guess = extrapolate_potential(previous, float(vb)) if continuation else None
+        r, used_warm = solve_warm(dk, guess, structure=st)
+        warm.append(used_warm)
         if r.converged:
-            phi_prev = (r.z, r.profile["potential"])
+            previous = [(r.z, r.profile["potential"], float(vb))] + previous[:1]
         results.append(r)
         if progress is not None:
             progress(k, float(vb), r)
@@ -440,15 +431,9 @@ def save_sweep(sw: BiasSweep, path, *, force: bool = True) -> None:
     import h5py
     from datetime import datetime, timezone
     from .. import __version__
-    path = Path(path)
-    folder = path.parent if str(path.parent) else Path(".")
-    if not folder.is_dir():
-        raise SweepError("output folder does not exist", file=str(path))
-    if path.exists() and not force:
-        raise SweepError("output file exists", file=str(path))
-    fd, tmp = tempfile.mkstemp(prefix=f".{path.name}.", suffix=".tmp", dir=folder)
-    os.close(fd)
-    try:
+    from ..results import atomic_write
+
+    def fill(tmp):
         with h5py.File(tmp, "w") as f:
             f.attrs["schema"] = SCHEMA
             f.attrs["schema_version"] = SCHEMA_VERSION
@@ -517,18 +502,8 @@ def save_sweep(sw: BiasSweep, path, *, force: bool = True) -> None:
                "charge-control offset dd = eps_b/(q dn_s/dV) - d (Delagebeaudeuf and Linh 1982)")
             ds(f"{g}/linear_capacitance", a["linear_capacitance_F_cm2"], "F/cm2", "q dn_s/dV in the linear window")
             f.flush()
-        fd = os.open(tmp, os.O_RDONLY)
-        try:
-            os.fsync(fd)
-        finally:
-            os.close(fd)
-        os.replace(tmp, path)
-    except BaseException:
-        try:
-            os.unlink(tmp)
-        except FileNotFoundError:
-            pass
-        raise
+
+    atomic_write(path, fill, force=force, error=SweepError)
 
 
 def plot_sweep(sw: BiasSweep, path) -> None:

@@ -124,7 +124,7 @@ def tune(deck, path: str, target_name: str, target_value: float, bracket, *, xto
     from scipy.optimize import brentq
 
     from ..deck import Deck, load_deck
-    from ..scf import solve
+    from ..scf import solve_warm
     from ..structure import build_structure
     if not isinstance(deck, Deck):
         deck = load_deck(deck)
@@ -153,17 +153,11 @@ def tune(deck, path: str, target_name: str, target_value: float, bracket, *, xto
             return cache[x][0] - target_value
         dk = deck.with_overrides({path: float(x)})
         st = build_structure(dk)
-        r = None
+        guess = None
         if warm:
             xs = np.array([w[0] for w in warm])
             guess = warm[int(np.argmin(np.abs(xs - x)))][1]
-            r = solve(dk, structure=st, initial_potential=guess)
-            if not r.converged:
-                cold = solve(dk, structure=st)
-                if cold.converged or cold.residual < r.residual:
-                    r = cold
-        if r is None:
-            r = solve(dk, structure=st)
+        r, _ = solve_warm(dk, guess, structure=st)
         if not checked[0]:
             _check_quantity(target_name, r)
             checked[0] = True
