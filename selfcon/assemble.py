@@ -40,6 +40,18 @@ def per_layer(st, node_density: np.ndarray) -> np.ndarray:
                        minlength=len(st.layers))
 
 
+def valley_density(st, phi, edge_cell, nc_cell) -> np.ndarray:
+    """Classical density (nm^-3) of one conduction valley at the nodes, dual-cell averaged
+    with each half cell's own edge (the Poisson kernel's model)."""
+    from .statistics import fermi_half
+    m = st.mesh
+    left = np.zeros(m.n)
+    right = np.zeros(m.n)
+    left[1:] = nc_cell * fermi_half((phi[1:] - edge_cell) / st.kT)
+    right[:-1] = nc_cell * fermi_half((phi[:-1] - edge_cell) / st.kT)
+    return (m.wl * left + m.wr * right) / m.w
+
+
 def electric_field(z: np.ndarray, phi: np.ndarray) -> np.ndarray:
     """-dphi/dz at the nodes in V/cm (second-order one-sided at the ends)."""
     if z.size < 3:
@@ -74,6 +86,8 @@ def build_result(deck, st, bc, loop, *, wall_time: float, method: str) -> Result
     ev = right_cell_values(st.cell["ev0"]) - phi
     profile = {
         "conduction_band": ec,
+        "conduction_band_x": right_cell_values(st.cell["ec_x"]) - phi,
+        "conduction_band_l": right_cell_values(st.cell["ec_l"]) - phi,
         "valence_band": ev,
         "potential": phi.copy(),
         "electric_field": electric_field(st.z, phi),
@@ -82,6 +96,13 @@ def build_result(deck, st, bc, loop, *, wall_time: float, method: str) -> Result
         "ionized_donors": ndp * CM3_PER_NM3,
         "ionized_acceptors": nam * CM3_PER_NM3,
     }
+
+    valley_sheets = {}
+    for name, (edge, dos) in coupling.VALLEYS.items():
+        if name in st.carriers:
+            nv = valley_density(st, phi, st.cell[edge], st.cell[dos])
+            profile[name + "_density"] = nv * CM3_PER_NM3
+            valley_sheets[name] = float(np.sum(nv * st.mesh.w)) * CM2_PER_NM2
 
     subbands = {}
     for band in BANDS:
@@ -148,6 +169,9 @@ def build_result(deck, st, bc, loop, *, wall_time: float, method: str) -> Result
             summary[f"{band}_occupied_subbands"] = int(np.sum(occd))
         else:
             summary[f"{band}_occupied_subbands"] = 0
+    for name in coupling.VALLEYS:
+        if name in valley_sheets:
+            summary[f"{name}_sheet_density_cm2"] = valley_sheets[name]
     e = subbands.get("electron")
     summary["E1_minus_E0_eV"] = (float(e.energy[1] - e.energy[0]) if e is not None and e.energy.size > 1
                                  else float("nan"))

@@ -29,13 +29,29 @@ def base_problem(st, bc=None):
     nc = c["nc"] if "electron" in carriers else np.zeros_like(c["nc"])
     nv = c["nv"] if any(b in carriers for b in _HOLE_BANDS) else np.zeros_like(c["nv"])
     top, bottom = bc if bc is not None else ((P.ZERO_FIELD, 0.0), (P.ZERO_FIELD, 0.0))
+    ec_v, nc_v = valley_arrays(st)
     prob = P.PoissonProblem(z=st.z, eps=c["eps"], ec0=c["ec_gamma"], ev0=c["ev0"], nc=nc, nv=nv,
                             nd=c["donors"], ed=c["donor_binding"], na=c["acceptors"],
                             ea=c["acceptor_binding"], temperature=st.temperature,
                             sheet_nd=st.sheet_donors, sheet_na=st.sheet_acceptors,
-                            full_ionization=st.full_ionization, top=top, bottom=bottom)
+                            full_ionization=st.full_ionization, top=top, bottom=bottom,
+                            ec0_v=ec_v, nc_v=nc_v)
     cache[key] = prob
     return prob
+
+
+#: carrier name -> (band-edge key, effective-DOS key) of the classical conduction valleys
+VALLEYS = {"x_electron": ("ec_x", "nc_x"), "l_electron": ("ec_l", "nc_l")}
+
+
+def valley_arrays(st):
+    """(ec0_v, nc_v), each (V, N-1), of the X/L valleys the deck's carriers include."""
+    rows = [name for name in VALLEYS if name in st.carriers]
+    n = st.n_nodes - 1
+    if not rows:
+        return np.zeros((0, n)), np.zeros((0, n))
+    return (np.stack([st.cell[VALLEYS[r][0]] for r in rows]),
+            np.stack([st.cell[VALLEYS[r][1]] for r in rows]))
 
 
 def problem_with_states(st, bc, phi_ref, states, *, shift=1.0):

@@ -94,6 +94,9 @@ class KeySpec:
 CONTACT_KINDS = ("schottky", "ohmic", "pinned", "free")
 BARRIER_KINDS = ("schottky", "pinned")
 CARRIERS = ("electron", "heavy_hole", "light_hole")
+#: every carrier a deck may ask for: the default set plus the X and L conduction valleys
+#: (classical, 3D density of states; opt-in because they need the X/L material data)
+ALL_CARRIERS = CARRIERS + ("x_electron", "l_electron")
 IONIZATION = ("thermal", "full")
 SOLVER_METHODS = ("predictor-corrector", "anderson", "linear")
 LIBRARY_FALLBACK = ("GaAs", "AlAs", "InAs", "InP", "AlGaAs", "InGaAs", "InAlAs")
@@ -168,8 +171,10 @@ _MATERIAL = {
     **MATERIAL_PARAMS,
 }
 _PHYSICS = {
-    "carriers": KeySpec("carriers", "-", CARRIERS, "bands solved for: any non-empty subset",
-                        choices=CARRIERS),
+    "carriers": KeySpec("carriers", "-", CARRIERS, "carriers included: any non-empty subset of "
+                        "electron (Gamma), heavy_hole, light_hole (subbands in quantum regions), "
+                        "x_electron, l_electron (X and L valleys, classical everywhere)",
+                        choices=ALL_CARRIERS),
     "ionization": KeySpec("string", "-", "thermal", "thermal (donor/acceptor levels, "
                           "Fermi-Dirac occupied) | full (all dopants ionised)", choices=IONIZATION),
 }
@@ -988,14 +993,14 @@ def _physics(ctx, t):
             v = [v]
         if not isinstance(v, (list, tuple)):
             raise ctx.error(key, f"must be a list of strings, got {_type_of(v)} {_show(v)}",
-                            allowed=CARRIERS)
+                            allowed=ALL_CARRIERS)
         if not v:
-            raise ctx.error(key, "must name at least one carrier", allowed=CARRIERS)
+            raise ctx.error(key, "must name at least one carrier", allowed=ALL_CARRIERS)
         for c in v:
-            ctx.string(key, c, _PHYSICS["carriers"], CARRIERS)
+            ctx.string(key, c, _PHYSICS["carriers"], ALL_CARRIERS)
         dup = [c for c in v if list(v).count(c) > 1]
         if dup:
-            raise ctx.error(key, f"{dup[0]!r} is listed twice", allowed=CARRIERS)
+            raise ctx.error(key, f"{dup[0]!r} is listed twice", allowed=ALL_CARRIERS)
         carriers = tuple(v)
     ionization = ctx.get(t, "ionization", _PHYSICS["ionization"], p)
     return Physics(carriers=carriers, ionization=ionization)

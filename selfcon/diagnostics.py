@@ -299,6 +299,35 @@ def check_buffer_carriers(result, structure) -> list[str]:
             "a conducting buffer or too short a buffer: thicken it or check the substrate contact"]
 
 
+#: an X or L edge closer than this many kT above EF (or below it) would hold electrons
+VALLEY_KT = 10.0
+
+
+def check_uncounted_valleys(result, structure) -> list[str]:
+    """X or L valley near or below EF in some layer while the deck does not count its electrons."""
+    if structure is None:
+        return []
+    kT = 8.617333262e-5 * float(result.temperature)
+    rows = _layer_rows(result)
+    li = np.asarray(result.layer_index)
+    out = []
+    for carrier, key, label in (("x_electron", "conduction_band_x", "X"),
+                                ("l_electron", "conduction_band_l", "L")):
+        if carrier in structure.carriers or key not in result.profile:
+            continue
+        edge = np.asarray(result.profile[key])
+        gamma = np.asarray(result.profile["conduction_band"])
+        hit = np.nonzero((edge < VALLEY_KT * kT) & (edge < gamma + VALLEY_KT * kT))[0]
+        if hit.size == 0:
+            continue
+        layers = sorted({int(li[i]) for i in hit})
+        names = ", ".join(repr(rows[k]["name"]) for k in layers) if rows else "some layers"
+        out.append(f"{label} valley within {VALLEY_KT:g} kT of EF (lowest {label} edge "
+                   f"{1e3 * float(edge[hit].min()):+.0f} meV) in {names}, but {label}-valley electrons "
+                   f"are not counted: add \"{carrier}\" to physics.carriers")
+    return out
+
+
 #: name -> check, in the order warnings are listed
 CHECKS = {
     "not_converged": check_not_converged,
@@ -307,6 +336,7 @@ CHECKS = {
     "dx_centres": check_dx_centres,
     "region_cut": check_region_cut,
     "buffer_carriers": check_buffer_carriers,
+    "uncounted_valleys": check_uncounted_valleys,
 }
 
 

@@ -29,7 +29,8 @@ class PoissonProblem:
     nd, na (nm^-3), ed, ea (binding energies, eV).  Nodes: sheet_nd, sheet_na (nm^-2).
     Quantum part (predictor-corrector): cls_e, cls_h (N,) masks (1 classical, 0 quantum),
     psi2 (N, Ke) |psi|^2 (nm^-1), ek (Ke,) eV, dos_e (Ke,) nm^-2 eV^-1; psi2h, ekh, dos_h
-    for holes (hole levels in electron energy); phi_ref (N,) the potential the subbands
+    for holes (hole levels in electron energy); ec0_v, nc_v (V, N-1) further classical
+    conduction valleys (X, L; V = 0 by default); phi_ref (N,) the potential the subbands
     belong to.  Boundaries: (kind, value) with kind DIRICHLET or ZERO_FIELD, value in V.
     """
     z: np.ndarray
@@ -58,6 +59,8 @@ class PoissonProblem:
     dos_h: np.ndarray = None
     phi_ref: np.ndarray = None
     qshift: float = 1.0
+    ec0_v: np.ndarray = None
+    nc_v: np.ndarray = None
     h: np.ndarray = field(init=False)
     wl: np.ndarray = field(init=False)
     wr: np.ndarray = field(init=False)
@@ -81,6 +84,12 @@ class PoissonProblem:
         for k in ("cls_e", "cls_h"):
             a = getattr(self, k)
             set_(k, np.ones(N) if a is None else _f(a))
+        for k in ("ec0_v", "nc_v"):          # further conduction valleys (X, L), (V, N-1)
+            a = getattr(self, k)
+            a = np.zeros((0, N - 1)) if a is None else _f(a).reshape(-1, N - 1)
+            set_(k, a)
+        if self.ec0_v.shape != self.nc_v.shape:
+            raise ValueError("PoissonProblem: ec0_v and nc_v must have the same shape (valleys, N-1)")
         for p, e, d in (("psi2", "ek", "dos_e"), ("psi2h", "ekh", "dos_h")):
             if getattr(self, p) is None:
                 set_(p, np.zeros((N, 0)))
@@ -144,7 +153,7 @@ class PoissonProblem:
                 self.nd, self.ed, self.na, self.ea, self.sheet_nd, self.sheet_na, self.kT,
                 bool(self.full_ionization), self.cls_e, self.cls_h, self.psi2, self.ek,
                 self.dos_e, self.psi2h, self.ekh, self.dos_h, self.phi_ref,
-                float(self.qshift))
+                float(self.qshift), self.ec0_v, self.nc_v)
 
 
 ChargeModel = PoissonProblem
@@ -196,7 +205,7 @@ def total_charge(problem, phi):
     return float(np.sum(densities(problem, phi).rho * problem.w))
 
 
-def neutral_potential(ec0, ev0, nc, nv, nd, ed, na, ea, kT, full_ionization=False):
+def neutral_potential(ec0, ev0, nc, nv, nd, ed, na, ea, kT, full_ionization=False, valleys=()):
     """phi (V) at which bulk material with these (one cell's) parameters is neutral.
 
     rho(phi) = p - n + Nd+ - Na- decreases strictly with phi; a bracket around the band
@@ -210,6 +219,9 @@ def neutral_potential(ec0, ev0, nc, nv, nd, ed, na, ea, kT, full_ionization=Fals
         ev = ev0 - phi
         n = nc * ks.fermi_half(-ec / kT) if nc > 0 else 0.0
         p = nv * ks.fermi_half(ev / kT) if nv > 0 else 0.0
+        for ecv, ncv in valleys:           # further conduction valleys (X, L)
+            if ncv > 0:
+                n += ncv * ks.fermi_half((phi - ecv) / kT)
         return (p - n + ks.donor_ionized(nd, ec, ed, kT, full)[0]
                 - ks.acceptor_ionized(na, ev, ea, kT, full)[0])
 
@@ -236,8 +248,9 @@ def neutral_potential(ec0, ev0, nc, nv, nd, ed, na, ea, kT, full_ionization=Fals
 def cell_neutral_potential(problem, c):
     """neutral_potential for cell c of a problem."""
     p = problem
+    valleys = [(p.ec0_v[v, c], p.nc_v[v, c]) for v in range(p.ec0_v.shape[0])]
     return neutral_potential(p.ec0[c], p.ev0[c], p.nc[c], p.nv[c], p.nd[c], p.ed[c], p.na[c],
-                             p.ea[c], p.kT, p.full_ionization)
+                             p.ea[c], p.kT, p.full_ionization, valleys)
 
 
 def electric_field(z, phi):

@@ -69,6 +69,8 @@ EXTRA_PROFILE_FIELDS = {
     "heavy_hole_band": ("eV", "heavy-hole band edge with electrostatics, relative to EF"),
     "light_hole_band": ("eV", "light-hole band edge with electrostatics, relative to EF"),
     "charge_density": ("cm-3", "net charge density p - n + Nd+ - Na- in units of q"),
+    "x_electron_density": ("cm-3", "X-valley electrons (classical; part of electron_density)"),
+    "l_electron_density": ("cm-3", "L-valley electrons (classical; part of electron_density)"),
 }
 
 #: units of the /layers columns (others: derived from the column name)

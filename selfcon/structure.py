@@ -22,6 +22,11 @@ MATERIAL_KEYS = ("eps", "ec_gamma", "ec_x", "ec_l", "ev_hh", "ev_lh", "m_e", "m_
                  "donor_binding", "acceptor_binding", "eg_gamma")
 
 
+#: equivalent conduction valleys in bulk zinc-blende (common practice)
+X_VALLEYS = 3
+L_VALLEYS = 4
+
+
 @dataclass(frozen=True)
 class Contact:
     kind: str            # schottky | ohmic | pinned | free
@@ -177,6 +182,11 @@ def build_structure(deck, *, mesh: Mesh | None = None) -> Structure:
         cell["donor_binding"][:] = 0.0
         cell["acceptor_binding"][:] = 0.0
     cell["nc"] = NC_PER_M0_K * (cell["m_c_dos"] * T) ** 1.5
+    # X and L valleys: 3 and 4 equivalent valleys of DOS mass (m_l m_t^2)^(1/3) each
+    # (common practice for the cubic III-V's); used only when physics.carriers asks for them
+    for v, g in (("x", X_VALLEYS), ("l", L_VALLEYS)):
+        m_dos = (cell[f"m_{v}_l"] * cell[f"m_{v}_t"] ** 2) ** (1.0 / 3.0)
+        cell[f"nc_{v}"] = g * NC_PER_M0_K * (m_dos * T) ** 1.5
     cell["nv"] = NC_PER_M0_K * (cell["m_v_dos"] * T) ** 1.5
     cell["ev0"] = np.maximum(cell["ev_hh"], cell["ev_lh"])
 

@@ -165,3 +165,12 @@ def test_design_warnings_never_raise(clean):
 def test_node_weights_integrate_exactly():
     z = np.array([0.0, 1.0, 3.0, 6.0])
     assert dg.node_weights(z).sum() == pytest.approx(6.0)      # analytic: total length
+
+
+def test_uncounted_valley_check_is_silent_on_the_cold_example():
+    # at 4 K the X and L edges of Al0.32GaAs stay far above EF in kT: no valley warning
+    import selfcon
+    from pathlib import Path
+    deck = selfcon.load_deck(Path(__file__).resolve().parent.parent / "inputs" / "hemt_4K.toml")
+    r = selfcon.solve(deck)
+    assert not any("valley" in w for w in r.warnings)

@@ -22,6 +22,8 @@ Charge model at node i, potential phi_i (V), EF = 0, densities nm^-3, in units o
   quantum density frozen at phi_ref (the Poisson pass of classic mixing schemes).
   Mixing of the two: n_i = cls_e[i] n_classical,i + (1 - cls_e[i]) n_q,i (same for holes
   with cls_h); masks are 1 for classical nodes, 0 for quantum ones (fractions allowed).
+  Further conduction valleys v (X, L; rows of ec0_v, nc_v, shape (V, N-1), V may be 0)
+  are classical everywhere and added to n after the masks: n_v = nc_v F_{1/2}((phi - ec0_v)/kT).
   rho_i = p_i - n_i + Nd+_i - Na-_i.
 
 Equation at node i (V nm^-1 x eps_r, integrated over the dual cell):
@@ -106,7 +108,7 @@ def _log1pexp_expit(x):
 
 @njit(cache=True)
 def _node(i, phi_i, h, wl, wr, ec0, ev0, nc, nv, nd, ed, na, ea, sheet_nd, sheet_na, kT, full,
-          cls_e, cls_h, psi2, ek, dos_e, psi2h, ekh, dos_h, phi_ref, qshift):
+          cls_e, cls_h, psi2, ek, dos_e, psi2h, ekh, dos_h, phi_ref, qshift, ec0_v, nc_v):
     """Node densities n, p, Nd+, Na- (nm^-3) at phi_i and d rho/d phi."""
     w = wl[i] + wr[i]
     n = 0.0
@@ -185,13 +187,36 @@ def _node(i, phi_i, h, wl, wr, ec0, ev0, nc, nv, nd, ed, na, ea, sheet_nd, sheet
                 dpq -= qshift * a * sg
         p = ch * p + (1.0 - ch) * pq
         dp = ch * dp + (1.0 - ch) * dpq
+    # further conduction valleys (X, L): classical everywhere, never masked
+    for v in range(ec0_v.shape[0]):
+        nvl = 0.0
+        dnvl = 0.0
+        for side in range(2):
+            if side == 0:
+                c = i - 1
+                wt = wl[i]
+            else:
+                c = i
+                wt = wr[i]
+            if wt == 0.0 or nc_v[v, c] <= 0.0:
+                continue
+            eta = (phi_i - ec0_v[v, c]) / kT
+            if eta < _BOLTZMANN_ETA:
+                x = nc_v[v, c] * math.exp(eta)
+                nvl += wt * x
+                dnvl += wt * x / kT
+            else:
+                nvl += wt * nc_v[v, c] * fermi_half(eta)
+                dnvl += wt * nc_v[v, c] * fermi_mhalf(eta) / kT
+        n += nvl / w
+        dn += dnvl / w
     drho = dp - dn + dndp - dnam
     return n, p, ndp, nam, drho
 
 
 @njit(cache=True)
 def node_densities(phi, h, wl, wr, eps, ec0, ev0, nc, nv, nd, ed, na, ea, sheet_nd, sheet_na,
-                   kT, full, cls_e, cls_h, psi2, ek, dos_e, psi2h, ekh, dos_h, phi_ref, qshift):
+                   kT, full, cls_e, cls_h, psi2, ek, dos_e, psi2h, ekh, dos_h, phi_ref, qshift, ec0_v, nc_v):
     """Node densities at phi: (n, p, nd_plus, na_minus, drho_dphi), each (N,), nm^-3
     (sheets included as s/w).  rho = p - n + nd_plus - na_minus.  eps is unused (kept so
     every kernel takes the same model argument list)."""
@@ -204,7 +229,7 @@ def node_densities(phi, h, wl, wr, eps, ec0, ev0, nc, nv, nd, ed, na, ea, sheet_
     for i in range(N):
         n[i], p[i], ndp[i], nam[i], drho[i] = _node(
             i, phi[i], h, wl, wr, ec0, ev0, nc, nv, nd, ed, na, ea, sheet_nd, sheet_na, kT,
-            full, cls_e, cls_h, psi2, ek, dos_e, psi2h, ekh, dos_h, phi_ref, qshift)
+            full, cls_e, cls_h, psi2, ek, dos_e, psi2h, ekh, dos_h, phi_ref, qshift, ec0_v, nc_v)
     return n, p, ndp, nam, drho
 
 
@@ -249,14 +274,14 @@ def thomas(a, b, c, d, cp, x):
 
 @njit(cache=True)
 def _assemble(phi, g, h, wl, wr, ec0, ev0, nc, nv, nd, ed, na, ea, sheet_nd, sheet_na, kT, full,
-              cls_e, cls_h, psi2, ek, dos_e, psi2h, ekh, dos_h, phi_ref, qshift, kind_top, kind_bottom,
+              cls_e, cls_h, psi2, ek, dos_e, psi2h, ekh, dos_h, phi_ref, qshift, ec0_v, nc_v, kind_top, kind_bottom,
               a, b, c, r):
     """Fill the tridiagonal Jacobian (a, b, c) and r = -R at phi; return ||R||_2."""
     N = phi.shape[0]
     for i in range(N):
         nn, pp, ndp, nam, drho = _node(i, phi[i], h, wl, wr, ec0, ev0, nc, nv, nd, ed, na,
                                        ea, sheet_nd, sheet_na, kT, full, cls_e, cls_h,
-                                       psi2, ek, dos_e, psi2h, ekh, dos_h, phi_ref, qshift)
+                                       psi2, ek, dos_e, psi2h, ekh, dos_h, phi_ref, qshift, ec0_v, nc_v)
         w = wl[i] + wr[i]
         res = Q_EPS0 * (pp - nn + ndp - nam) * w
         diag = Q_EPS0 * drho * w
@@ -292,7 +317,7 @@ def _assemble(phi, g, h, wl, wr, ec0, ev0, nc, nv, nd, ed, na, ea, sheet_nd, she
 
 @njit(cache=True)
 def poisson_newton(phi0, h, wl, wr, eps, ec0, ev0, nc, nv, nd, ed, na, ea, sheet_nd, sheet_na,
-                   kT, full, cls_e, cls_h, psi2, ek, dos_e, psi2h, ekh, dos_h, phi_ref, qshift,
+                   kT, full, cls_e, cls_h, psi2, ek, dos_e, psi2h, ekh, dos_h, phi_ref, qshift, ec0_v, nc_v,
                    kind_top, value_top, kind_bottom, value_bottom, tol, max_iter, max_step,
                    history):
     """Newton solve of the nonlinear FV Poisson equation (see module docstring).
@@ -328,7 +353,7 @@ def poisson_newton(phi0, h, wl, wr, eps, ec0, ev0, nc, nv, nd, ed, na, ea, sheet
     converged = False
     upd = np.inf
     norm = _assemble(phi, g, h, wl, wr, ec0, ev0, nc, nv, nd, ed, na, ea, sheet_nd, sheet_na,
-                     kT, full, cls_e, cls_h, psi2, ek, dos_e, psi2h, ekh, dos_h, phi_ref, qshift,
+                     kT, full, cls_e, cls_h, psi2, ek, dos_e, psi2h, ekh, dos_h, phi_ref, qshift, ec0_v, nc_v,
                      kind_top, kind_bottom, a, b, c, r)
     for it in range(max_iter):
         if not math.isfinite(norm):
@@ -352,7 +377,7 @@ def poisson_newton(phi0, h, wl, wr, eps, ec0, ev0, nc, nv, nd, ed, na, ea, sheet
                 trial[i] = phi[i] + scale * dx[i]
             new = _assemble(trial, g, h, wl, wr, ec0, ev0, nc, nv, nd, ed, na, ea, sheet_nd,
                             sheet_na, kT, full, cls_e, cls_h, psi2, ek, dos_e, psi2h, ekh,
-                            dos_h, phi_ref, qshift, kind_top, kind_bottom, a2, b2, c2, r2)
+                            dos_h, phi_ref, qshift, ec0_v, nc_v, kind_top, kind_bottom, a2, b2, c2, r2)
             if new < norm or scale * big < tol:
                 break
             scale *= 0.5
