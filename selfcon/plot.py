@@ -43,6 +43,12 @@ DENSITY_STYLE = {
     "ionized_donors": ("#3f7f3a", "--", "ionised donors N$_D^+$"),
     "ionized_acceptors": ("#6b4a9b", "--", "ionised acceptors N$_A^-$"),
 }
+#: X and L conduction-band edges are drawn where they lie less than this above the Gamma edge (eV)
+VALLEY_SHOWN = 0.3
+VALLEY_STYLE = {
+    "conduction_band_x": ("#4f7fb0", (0, (5, 2)), "X-valley edge"),
+    "conduction_band_l": ("#7aa3c8", (0, (1.5, 1.5)), "L-valley edge"),
+}
 BAND_NAMES = {"electron": "electron states", "heavy_hole": "heavy-hole states", "light_hole": "light-hole states"}
 
 #: per band: occupied states plus this many empty ones above them are drawn, at most MAX_STATES_DRAWN
@@ -245,6 +251,15 @@ def draw_band_diagram(fig, result, depth=None):
     top.plot(z, ec, color=EDGE_COLOURS["conduction_band"], linewidth=2.0, label="conduction band E$_c$", zorder=3)
     top.plot(z, ev, color=EDGE_COLOURS["valence_band"], linewidth=2.0, label="valence band E$_v$", zorder=3)
     top.axhline(0.0, color=FERMI_COLOUR, linestyle="-.", linewidth=1.3, label="Fermi level E$_F$ = 0", zorder=2)
+    # X and L edges, thin, wherever they come within VALLEY_SHOWN eV of the Gamma edge in view
+    for key, (colour, style, label) in VALLEY_STYLE.items():
+        if key not in result.profile:
+            continue
+        edge = np.asarray(result.profile[key], dtype=float)
+        near = view & (edge - ec < VALLEY_SHOWN)
+        if np.any(near):
+            top.plot(z, np.where(edge - ec < VALLEY_SHOWN + 0.2, edge, np.nan), color=colour,
+                     linestyle=style, linewidth=1.1, label=label, zorder=2.5)
     regions = list(result.regions_nm) or [(float(z[0]), float(z[-1]))]
     handles_extra, drawn = _draw_states(top, result, z, ec, ev, span, regions, fs)
     top.set_ylim(lo - 0.06 * span, hi + 0.14 * span)     # headroom for the layer names
