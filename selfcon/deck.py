@@ -229,17 +229,8 @@ def deck_reference():
         return d if isinstance(d, str) and d.startswith("layer<") else _toml_value(d)
 
     def doc(spec):
-        unit = "" if spec.unit == "-" else " " + spec.unit
-        if spec.kind == "fraction":
-            return spec.doc
-        if spec.lo is not None and spec.hi is not None:
-            rng = (f"in {'(' if spec.lo_open else '['}{_num(spec.lo)}, "
-                   f"{_num(spec.hi)}{')' if spec.hi_open else ']'}{unit}")
-        elif spec.lo is not None:
-            rng = f"{'>' if spec.lo_open else '>='} {_num(spec.lo)}{unit}"
-        else:
-            return spec.doc
-        return f"{spec.doc}; {rng}"
+        rng = None if spec.kind == "fraction" else _range_text(spec)
+        return f"{spec.doc}; {rng}" if rng else spec.doc
 
     rows = []
     for key, spec in _TOP.items():
@@ -800,15 +791,7 @@ class _Ctx:
         hi_ok = spec.hi is None or (v < spec.hi if spec.hi_open else v <= spec.hi)
         if lo_ok and hi_ok:
             return
-        unit = "" if spec.unit == "-" else " " + spec.unit
-        if spec.lo is not None and spec.hi is not None:
-            rng = (f"in {'(' if spec.lo_open else '['}{_num(spec.lo)}, "
-                   f"{_num(spec.hi)}{')' if spec.hi_open else ']'}{unit}")
-        elif spec.lo is not None:
-            rng = f"{'>' if spec.lo_open else '>='} {_num(spec.lo)}{unit}"
-        else:
-            rng = f"{'<' if spec.hi_open else '<='} {_num(spec.hi)}{unit}"
-        raise self.error(key, f"must be {rng}, got {_num(v)}")
+        raise self.error(key, f"must be {_range_text(spec)}, got {_num(v)}")
 
     def get(self, table, name, spec, prefix, choices=None):
         """Value of ``table[name]`` checked against ``spec``, or its default."""
@@ -834,6 +817,19 @@ def _num(v):
         return f"{v:.12g}"
     return repr(v)
 
+
+
+def _range_text(spec):
+    """'in [lo, hi] unit', '> lo unit' or '<= hi unit' for a KeySpec's limits (None if none)."""
+    unit = "" if spec.unit == "-" else " " + spec.unit
+    if spec.lo is not None and spec.hi is not None:
+        return (f"in {'(' if spec.lo_open else '['}{_num(spec.lo)}, "
+                f"{_num(spec.hi)}{')' if spec.hi_open else ']'}{unit}")
+    if spec.lo is not None:
+        return f"{'>' if spec.lo_open else '>='} {_num(spec.lo)}{unit}"
+    if spec.hi is not None:
+        return f"{'<' if spec.hi_open else '<='} {_num(spec.hi)}{unit}"
+    return None
 
 def _a(word):
     return ("an " if word[:1] in "aeiou" else "a ") + word

@@ -123,6 +123,8 @@ def _node(i, phi_i, h, wl, wr, ec0, ev0, nc, nv, nd, ed, na, ea, sheet_nd, sheet
     dfsd = 0.0
     fsa = 0.0
     dfsa = 0.0
+    nvl = 0.0
+    dnvl = 0.0
     # classical carriers are not needed on fully quantum nodes (mask 0)
     want_e = cls_e[i] > 0.0
     want_h = cls_h[i] > 0.0
@@ -150,6 +152,17 @@ def _node(i, phi_i, h, wl, wr, ec0, ev0, nc, nv, nd, ed, na, ea, sheet_nd, sheet
         dfsd += wt * dfd
         fsa += wt * fa
         dfsa += wt * dfa
+        # further conduction valleys (X, L): classical everywhere, never masked
+        for v in range(ec0_v.shape[0]):
+            if nc_v[v, c] > 0.0:
+                eta = (phi_i - ec0_v[v, c]) / kT
+                if eta < _BOLTZMANN_ETA:
+                    x = nc_v[v, c] * math.exp(eta)
+                    nvl += wt * x
+                    dnvl += wt * x / kT
+                else:
+                    nvl += wt * nc_v[v, c] * fermi_half(eta)
+                    dnvl += wt * nc_v[v, c] * fermi_mhalf(eta) / kT
     n /= w
     dn /= w
     p /= w
@@ -187,29 +200,8 @@ def _node(i, phi_i, h, wl, wr, ec0, ev0, nc, nv, nd, ed, na, ea, sheet_nd, sheet
                 dpq -= qshift * a * sg
         p = ch * p + (1.0 - ch) * pq
         dp = ch * dp + (1.0 - ch) * dpq
-    # further conduction valleys (X, L): classical everywhere, never masked
-    for v in range(ec0_v.shape[0]):
-        nvl = 0.0
-        dnvl = 0.0
-        for side in range(2):
-            if side == 0:
-                c = i - 1
-                wt = wl[i]
-            else:
-                c = i
-                wt = wr[i]
-            if wt == 0.0 or nc_v[v, c] <= 0.0:
-                continue
-            eta = (phi_i - ec0_v[v, c]) / kT
-            if eta < _BOLTZMANN_ETA:
-                x = nc_v[v, c] * math.exp(eta)
-                nvl += wt * x
-                dnvl += wt * x / kT
-            else:
-                nvl += wt * nc_v[v, c] * fermi_half(eta)
-                dnvl += wt * nc_v[v, c] * fermi_mhalf(eta) / kT
-        n += nvl / w
-        dn += dnvl / w
+    n += nvl / w               # the X/L valleys, after the quantum/classical blend of Gamma
+    dn += dnvl / w
     drho = dp - dn + dndp - dnam
     return n, p, ndp, nam, drho
 
