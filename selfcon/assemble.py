@@ -16,6 +16,7 @@ import numpy as np
 
 from .constants import CM2_PER_NM2, CM3_PER_NM3, NM_PER_CM
 from .result import BANDS, Result, Subbands
+from .statistics import subband_density
 
 #: an electron subband counts as occupied above this sheet density (cm^-2) and fraction of n_s
 OCCUPIED_CM2 = 1e8
@@ -81,7 +82,6 @@ def build_result(deck, st, bc, loop, *, wall_time: float, method: str) -> Result
     from . import coupling
     phi = loop.phi
     n, p, ndp, nam = coupling.densities_with_states(st, phi, loop.states)
-    kT = st.kT
     ec = right_cell_values(st.cell["ec_gamma"]) - phi
     ev = right_cell_values(st.cell["ev0"]) - phi
     profile = {
@@ -109,8 +109,7 @@ def build_result(deck, st, bc, loop, *, wall_time: float, method: str) -> Result
         bs = loop.states.get(band)
         if bs is None:
             continue
-        x = -bs.sign * bs.energy / kT
-        occ = bs.dos * kT * (np.maximum(x, 0.0) + np.log1p(np.exp(-np.abs(x))))
+        occ = subband_density(bs.energy, bs.dos, st.temperature, bs.sign)
         subbands[band] = Subbands(energy=bs.energy.copy(), occupation=occ * CM2_PER_NM2,
                                   wavefunction=bs.psi.copy(), in_plane_mass=bs.m_par.copy(),
                                   region=bs.region.astype(np.int64), degeneracy=bs.degeneracy.copy())

@@ -29,8 +29,9 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from .constants import CM2_PER_NM2, CM3_PER_NM3, NM_PER_CM
+from .constants import CM2_PER_NM2
 from .mixing import get_mixer
+from .statistics import subband_density
 from .structure import Structure, build_structure
 
 #: band name -> (edge key, mass along z, in-plane mass, sign: +1 electrons, -1 holes, valley degeneracy)
@@ -368,7 +369,7 @@ def solve_states(st: Structure, phi, n_states, workspaces, quantum) -> dict:
             k = n_states[band]
             while True:
                 e, p = quantum.solve_region(h, w, v, inv_m, k, workspace=ws)
-                occ = _occupation(sign * e, sign, st.kT, 1.0)
+                occ = subband_density(sign * e, np.ones(e.size), st.temperature, sign)
                 if (e.size < k or k >= MAX_STATES or occ.sum() <= 0
                         or occ[-1] < TOP_STATE_FRACTION * occ.sum()):
                     break
@@ -406,12 +407,6 @@ def negligible_sheet(st: Structure) -> float:
     return val
 
 
-def _occupation(energy, sign, kT, dos):
-    """Sheet density per state (nm^-2) for unit DOS: kT ln(1 + exp(-sign*E/kT)), safe form."""
-    x = -sign * np.asarray(energy) / kT
-    return dos * kT * (np.maximum(x, 0.0) + np.log1p(np.exp(-np.abs(x))))
-
-
 def poisson_pass(st: Structure, bc, phi, states, *, predictor: bool, tol: float = POISSON_TOL):
     """One nonlinear Poisson solve with the quantum density from ``states`` (predictor or frozen)."""
     from . import coupling
@@ -430,6 +425,5 @@ def charge_residual(st, bc, phi, phi_out, states) -> float:
     return abs((n1 + p1) - total) / max(total, 1e-6 / CM2_PER_NM2)
 
 
-__all__ = ["solve", "solve_warm", "run_loop", "warm_up", "extrapolate_potential", "solve_states", "poisson_pass", "initial_guess",
-           "boundary_conditions", "BAND_SPECS", "BandStates"]
-_ = (CM3_PER_NM3, NM_PER_CM)
+__all__ = ["solve", "solve_warm", "run_loop", "warm_up", "extrapolate_potential", "solve_states",
+           "poisson_pass", "initial_guess", "boundary_conditions", "BAND_SPECS", "BandStates"]

@@ -15,7 +15,7 @@ import pytest
 
 from selfcon import results
 from selfcon.errors import ResultFileError
-from selfcon.result import PROFILE_FIELDS, Result, Subbands
+from selfcon.result import Result, Subbands
 
 
 def make_result(n=41, converged=True):

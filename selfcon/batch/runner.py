@@ -16,7 +16,6 @@ import math
 import os
 import signal
 import sys
-import time
 from pathlib import Path
 
 from . import queue as q
