@@ -213,3 +213,48 @@ def build_structure(deck, *, mesh: Mesh | None = None) -> Structure:
                      full_ionization=deck.physics.ionization != "thermal",
                      states=int(deck.quantum.states), surface=_contact(deck.surface),
                      substrate=_contact(deck.substrate))
+
+
+def key_nodes(st: Structure) -> np.ndarray:
+    """Boolean mask of the nodes a mesh of this structure must keep: the two ends,
+    every interface (the cell's layer changes), every sheet and every region end."""
+    n = st.n_nodes
+    key = np.zeros(n, dtype=bool)
+    key[0] = key[-1] = True
+    key[1:-1] |= st.cell_layer[1:] != st.cell_layer[:-1]
+    key |= (st.sheet_donors != 0) | (st.sheet_acceptors != 0)
+    for i0, i1 in st.regions:
+        key[i0] = key[i1] = True
+    return key
+
+
+def coarsened(st: Structure, factor: int = 4) -> tuple[Structure, np.ndarray]:
+    """The same stack on every ``factor``-th node (key nodes always kept).
+
+    Each coarse cell lies inside one layer and takes the properties of its middle fine
+    cell (the exact value in uniform layers, the mid-cell value in graded ones).  Used
+    for a cheap starting potential; returns (coarse structure, kept fine-node indices).
+    """
+    from dataclasses import replace
+    from .mesh import half_widths
+    key = key_nodes(st)
+    keep = key.copy()
+    idx = np.flatnonzero(key)
+    for a, b in zip(idx[:-1], idx[1:]):
+        keep[a:b:factor] = True
+    nodes = np.flatnonzero(keep)
+    mid = (nodes[:-1] + nodes[1:] - 1) // 2            # a fine cell inside each coarse cell
+    z = st.z[nodes].copy()
+    h, wl, wr, w = half_widths(z)
+    cell = {k: v[mid] for k, v in st.cell.items()}
+    regions = tuple((int(np.searchsorted(nodes, i0)), int(np.searchsorted(nodes, i1)))
+                    for i0, i1 in st.regions)
+    picked = dict(cell_layer=st.cell_layer[mid], layer_index=st.layer_index[nodes],
+                  x_cell=st.x_cell[mid], sheet_donors=st.sheet_donors[nodes],
+                  sheet_acceptors=st.sheet_acceptors[nodes], sheet_ed=st.sheet_ed[nodes],
+                  sheet_ea=st.sheet_ea[nodes])
+    for arr in [z, h, wl, wr, w, *cell.values(), *picked.values()]:
+        arr.flags.writeable = False     # read-only like every structure array (one numba signature)
+    coarse = replace(st, mesh=Mesh(z=z, h=h, wl=wl, wr=wr, w=w), cell=cell, regions=regions,
+                     extras={}, **picked)
+    return coarse, nodes
