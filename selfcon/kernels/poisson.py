@@ -51,6 +51,8 @@ from .statistics import acceptor_ionized, donor_ionized, fermi_half, fermi_mhalf
 
 #: below this reduced energy F_{1/2}(eta) = F_{-1/2}(eta) = e^eta (1 + O(e^eta)), O(e^-40) ~ 4e-18
 _BOLTZMANN_ETA = -40.0
+#: a subband more than 45 kT above the local Fermi level adds ln(1 + e^x) < 3e-20 of its DOS
+_NEGLIGIBLE_X = -45.0
 
 
 @njit(cache=True)
@@ -182,6 +184,8 @@ def _node(i, phi_i, h, wl, wr, ec0, ev0, nc, nv, nd, ed, na, ea, sheet_nd, sheet
             a = psi2[i, k] * dos_e[k]
             if a != 0.0:
                 x = (dphi - ek[k]) / kT
+                if x < _NEGLIGIBLE_X:       # ln(1 + e^x) < 3e-20: the subband is empty here
+                    continue
                 lg, sg = _log1pexp_expit(x)
                 nq += a * kT * lg
                 dnq += qshift * a * sg
@@ -195,6 +199,8 @@ def _node(i, phi_i, h, wl, wr, ec0, ev0, nc, nv, nd, ed, na, ea, sheet_nd, sheet
             a = psi2h[i, k] * dos_h[k]
             if a != 0.0:
                 x = (ekh[k] - dphi) / kT
+                if x < _NEGLIGIBLE_X:
+                    continue
                 lg, sg = _log1pexp_expit(x)
                 pq += a * kT * lg
                 dpq -= qshift * a * sg
