@@ -77,7 +77,7 @@ def close(a, b, rel=1e-4, abs_=1e-6):
 def main(argv=None):
     ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     ap.add_argument("--deck", default=str(ROOT / "inputs" / "hemt_4K.toml"))
-    ap.add_argument("--jobs", type=int, default=40, help="grid size for the throughput runs (even)")
+    ap.add_argument("--jobs", type=int, default=60, help="grid size for the throughput runs (even)")
     ap.add_argument("--points", type=int, default=20, help="points of the bias sweep")
     ap.add_argument("--out", default="bench-results")
     ap.add_argument("--job", default=None, help=argparse.SUPPRESS)   # stand-in job function (testing the tool)
