@@ -62,6 +62,8 @@ GROWTH_FACTOR = 1.5
 #: a residual above this multiple of the best one so far sends the loop back to the best iterate
 BACKTRACK_FACTOR = 10.0
 POISSON_MAX_ITER = 200
+#: predictor passes take a single Newton step once the outer residual is below this (V)
+ONE_STEP_BELOW = 0.1
 
 
 # --------------------------------------------------------------------------- data
@@ -232,7 +234,12 @@ def run_loop(st: Structure, bc, mixer, *, phi0=None, tol=1e-6, charge_tol=1e-6, 
         # Poisson pass need only be a little tighter than the current outer residual
         inner_tol = (START_TOL if not history
                      else min(max(INNER_FACTOR * history[-1].residual, POISSON_TOL), START_TOL))
-        phi_out, newton_steps = poisson_pass(st, bc, phi, states, predictor=mixer.predictor, tol=inner_tol)
+        # with the predictor the Poisson Jacobian already carries the subbands' response, so
+        # once the loop is under way one Newton step per pass is enough (inexact Newton): the
+        # outer iteration count stays the same and each pass costs one tridiagonal solve
+        one_step = mixer.predictor and bool(history) and history[-1].residual < ONE_STEP_BELOW
+        phi_out, newton_steps = poisson_pass(st, bc, phi, states, predictor=mixer.predictor, tol=inner_tol,
+                                             max_newton=1 if one_step else POISSON_MAX_ITER)
         r = phi_out - phi
         res = float(np.max(np.abs(r))) if r.size else 0.0
         # the charge check only decides convergence: evaluate it once the potential is close
@@ -426,11 +433,13 @@ def negligible_sheet(st: Structure) -> float:
     return val
 
 
-def poisson_pass(st: Structure, bc, phi, states, *, predictor: bool, tol: float = POISSON_TOL):
-    """One nonlinear Poisson solve with the quantum density from ``states`` (predictor or frozen)."""
+def poisson_pass(st: Structure, bc, phi, states, *, predictor: bool, tol: float = POISSON_TOL,
+                 max_newton: int = POISSON_MAX_ITER):
+    """Nonlinear Poisson with the quantum density from ``states`` (predictor or frozen):
+    Newton to ``tol`` or at most ``max_newton`` steps."""
     from . import coupling
     sol = coupling.solve_with_states(st, bc, phi, states, predictor=predictor,
-                                    tol=tol, max_iter=POISSON_MAX_ITER)
+                                    tol=tol, max_iter=max_newton)
     return sol.phi, sol.steps
 
 

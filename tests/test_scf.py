@@ -27,22 +27,23 @@ def hemt300():
 
 
 # A small symmetric double well: two 8 nm GaAs wells, a 2.5 nm Al0.3GaAs barrier,
-# donor sheets on both sides, equal pinned boundaries -> mirror-symmetric problem.
+# donor sheets on both sides, equal pinned boundaries -> mirror-symmetric problem,
+# with both tunnel-split states occupied.
 DOUBLE_WELL = """
 title = "double well"
 temperature = 10.0
 [surface]
 contact = "pinned"
-barrier = 0.7
+barrier = 0.5
 [substrate]
 contact = "pinned"
-barrier = 0.7
+barrier = 0.5
 [[layer]]
 name = "outer_top"
 material = "AlGaAs"
 x = 0.3
 thickness = 40.0
-sheet_donors = 1.5e12
+sheet_donors = 3e12
 [[layer]]
 name = "spacer_top"
 material = "AlGaAs"
@@ -71,7 +72,7 @@ name = "outer_bottom"
 material = "AlGaAs"
 x = 0.3
 thickness = 40.0
-sheet_donors = 1.5e12
+sheet_donors = 3e12
 [physics]
 carriers = ["electron"]
 [quantum]
@@ -219,6 +220,10 @@ def test_double_well_has_tunnel_split_symmetric_and_antisymmetric_states():
     assert c1 < -0.99         # antisymmetric (odd) first excited state
     split = e.energy[1] - e.energy[0]
     assert 1e-3 < split < 3e-2   # a few meV through a 2.5 nm Al0.3GaAs barrier (order of magnitude, from memory)
+    # both states below EF and populated; by mirror symmetry (invariant) the wells hold equal charge
+    assert e.energy[1] < 0 and e.occupation[1] > 1e11
+    rows = {L["name"]: L["electron_sheet_density_cm2"] for L in r.layers}
+    assert rows["well_a"] == pytest.approx(rows["well_b"], rel=1e-6)
 
 
 def test_p_type_modulation_doping_gives_heavy_hole_2dhg():
