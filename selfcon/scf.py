@@ -50,10 +50,8 @@ TOP_STATE_FRACTION = 1e-4
 MAX_STATES = 200
 POISSON_TOL = 1e-10       # V, inner Newton tolerance of the final passes
 START_TOL = 1e-6          # V, the classical starting solution needs no more
-#: the classical start is first solved on every COARSE_START_FACTOR-th node (meshes above
-#: COARSE_START_MIN_NODES nodes), then finished on the full mesh
-COARSE_START_FACTOR = 4
-COARSE_START_MIN_NODES = 200
+#: the nested classical start begins on a mesh of about this many nodes (see start_levels)
+COARSE_START_NODES = 32
 #: inner Newton tolerance as a fraction of the last outer residual (capped by START_TOL)
 INNER_FACTOR = 0.02
 #: a residual above this multiple of the previous one damps the mixer (Anderson and
@@ -334,21 +332,34 @@ def initial_guess(st: Structure, bc, phi0=None):
             if bc[side][0] == 0:
                 phi[idx] = bc[side][1]
         return phi, 0
-    # solve the classical problem on a coarsened copy of the mesh first (a quarter of the
-    # nodes, every interface and sheet kept), then finish it on the full mesh from there
+    # nested start: solve the classical problem on coarsened copies of the mesh (every
+    # interface, sheet and region end kept), coarsest first, each level starting from the
+    # one before; the damped, expensive Newton phase then happens on a few dozen nodes
     steps = 0
-    phi = None
-    if st.n_nodes > COARSE_START_MIN_NODES:
-        coarse, nodes = coarsened(st, COARSE_START_FACTOR)
-        sol = coupling.solve_classical(coarse, bc, coupling.linear_start(coarse, bc),
-                                       tol=START_TOL, max_iter=POISSON_MAX_ITER)
+    previous = None                   # (z, phi) of the last level solved
+    for factor in start_levels(st.n_nodes):
+        level = coarsened(st, factor)[0] if factor > 1 else st
+        phi = (coupling.linear_start(level, bc) if previous is None
+               else np.interp(level.z, *previous))
+        sol = coupling.solve_classical(level, bc, phi, tol=START_TOL, max_iter=POISSON_MAX_ITER)
         steps += sol.steps
-        if sol.converged:
-            phi = np.interp(st.z, coarse.z, sol.phi)
-    if phi is None:
-        phi = coupling.linear_start(st, bc)
-    sol = coupling.solve_classical(st, bc, phi, tol=START_TOL, max_iter=POISSON_MAX_ITER)
-    return sol.phi, steps + sol.steps
+        if not sol.converged and factor > 1:
+            continue                  # a coarse level that fails is skipped, not trusted
+        previous = (level.z, sol.phi)
+    return sol.phi, steps
+
+
+def start_levels(n_nodes: int) -> list[int]:
+    """Coarsening factors of the nested classical start, coarsest first, ending with 1:
+    the largest power of 4 leaving >= COARSE_START_NODES nodes, then 16x finer each level."""
+    f = 1
+    while n_nodes / (4 * f) >= COARSE_START_NODES:
+        f *= 4
+    levels = []
+    while f > 1:
+        levels.append(f)
+        f //= 16
+    return levels + [1]
 
 
 def _interpolate_guess(st: Structure, guess):
