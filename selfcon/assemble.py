@@ -145,7 +145,7 @@ def build_result(deck, st, bc, loop, *, wall_time: float, method: str) -> Result
         "hole_sheet_density_cm2": ps,
         "donor_sheet_density_cm2": float(np.sum(ndp * w)) * CM2_PER_NM2,
         "acceptor_sheet_density_cm2": float(np.sum(nam * w)) * CM2_PER_NM2,
-        "gauss_residual": float(coupling.gauss_residual(st, bc, phi, loop.states)),
+        "gauss_residual": float(coupling.gauss_residual(st, bc, phi, loop.states, rho=p - n + ndp - nam)),
         "channel_layer": st.layers[ch].name,
         "channel_electron_sheet_density_cm2": float(e_layer[ch]),
         "channel_hole_sheet_density_cm2": float(h_layer[ch]),

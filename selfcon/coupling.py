@@ -139,5 +139,6 @@ def classical_sheet(st, phi, band, i0, i1) -> float:
     return float(np.sum(arr[i0:i1 + 1] * st.mesh.w[i0:i1 + 1]))
 
 
-def gauss_residual(st, bc, phi, states) -> float:
-    return P.gauss_residual(problem_with_states(st, bc, phi, states), phi)
+def gauss_residual(st, bc, phi, states, rho=None) -> float:
+    """Gauss's law check of the solution (rho: its node charge, if already computed)."""
+    return P.gauss_residual(problem_with_states(st, bc, phi, states), phi, rho)
