@@ -103,9 +103,9 @@ def solve_classical(st, bc, phi0, *, tol, max_iter):
     return P.solve_poisson(base_problem(st, bc), phi0, tol=tol, max_iter=max_iter)
 
 
-def solve_with_states(st, bc, phi, states, *, predictor, tol, max_iter):
+def solve_with_states(st, bc, phi, states, *, predictor, tol, max_iter, backtrack=True):
     prob = problem_with_states(st, bc, phi, states, shift=1.0 if predictor else 0.0)
-    return P.solve_poisson(prob, phi, tol=tol, max_iter=max_iter)
+    return P.solve_poisson(prob, phi, tol=tol, max_iter=max_iter, backtrack=backtrack)
 
 
 def densities_with_states(st, phi, states):

@@ -168,16 +168,18 @@ class PoissonSolution:
     history: np.ndarray = None         # max |step| of each Newton step (V)
 
 
-def solve_poisson(problem, phi0, *, tol=1e-9, max_iter=200, max_step=0.3):
+def solve_poisson(problem, phi0, *, tol=1e-9, max_iter=200, max_step=0.3, backtrack=True):
     """Newton solve; returns PoissonSolution (never raises on non-convergence).
 
     tol: V on max |Newton step|; max_step: V, the step is scaled so that no node moves
-    more than this in one step (direction kept)."""
+    more than this in one step (direction kept); backtrack=False: no residual check of
+    the step (see selfcon.kernels.poisson.poisson_newton)."""
     from .kernels.poisson import poisson_newton
     hist = np.zeros(max_iter)
     phi, steps, conv, upd = poisson_newton(
         _f(phi0), *problem.model_args(), problem.top[0], problem.top[1], problem.bottom[0],
-        problem.bottom[1], float(tol), int(max_iter), float(max_step), hist)
+        problem.bottom[1], float(tol), int(max_iter), float(max_step), hist,
+        bool(backtrack))
     return PoissonSolution(phi, int(steps), bool(conv), float(upd), hist[:steps].copy())
 
 

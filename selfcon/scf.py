@@ -52,16 +52,18 @@ POISSON_TOL = 1e-10       # V, inner Newton tolerance of the final passes
 START_TOL = 1e-6          # V, the classical starting solution needs no more
 #: the nested classical start begins on a mesh of about this many nodes (see start_levels)
 COARSE_START_NODES = 32
-#: inner Newton tolerance as a fraction of the last outer residual (capped by START_TOL)
-INNER_FACTOR = 0.02
+#: inner Newton tolerance as a fraction of the last outer residual (capped by START_TOL);
+#: the first pass, whose residual is not known yet, solves to FIRST_PASS_TOL
+INNER_FACTOR = 0.1
+FIRST_PASS_TOL = 1e-3
 #: a residual above this multiple of the previous one damps the mixer (Anderson and
 #: linear mixing are not monotone: smaller rises are normal and left alone)
 GROWTH_FACTOR = 1.5
 #: a residual above this multiple of the best one so far sends the loop back to the best iterate
 BACKTRACK_FACTOR = 10.0
 POISSON_MAX_ITER = 200
-#: predictor passes take a single Newton step once the outer residual is below this (V)
-ONE_STEP_BELOW = 0.1
+#: predictor passes take a single clamped Newton step while the outer residual is below this (V)
+ONE_STEP_BELOW = 3e-3
 
 
 # --------------------------------------------------------------------------- data
@@ -230,14 +232,16 @@ def run_loop(st: Structure, bc, mixer, *, phi0=None, tol=1e-6, charge_tol=1e-6, 
         states = solve_states(st, phi, n_states, workspaces, quantum)
         # inexact inner solves: the outer loop shrinks the residual ~10x per pass, so the
         # Poisson pass need only be a little tighter than the current outer residual
-        inner_tol = (START_TOL if not history
+        inner_tol = (FIRST_PASS_TOL if not history
                      else min(max(INNER_FACTOR * history[-1].residual, POISSON_TOL), START_TOL))
         # with the predictor the Poisson Jacobian already carries the subbands' response, so
-        # once the loop is under way one Newton step per pass is enough (inexact Newton): the
-        # outer iteration count stays the same and each pass costs one tridiagonal solve
+        # one clamped Newton step per pass is enough (inexact Newton): the outer iteration
+        # count stays the same, each pass costs one assembly and one tridiagonal solve, and
+        # the loop's own damping guards the step.  Classic mixers need the true Poisson map.
         one_step = mixer.predictor and bool(history) and history[-1].residual < ONE_STEP_BELOW
         phi_out, newton_steps = poisson_pass(st, bc, phi, states, predictor=mixer.predictor, tol=inner_tol,
-                                             max_newton=1 if one_step else POISSON_MAX_ITER)
+                                             max_newton=1 if one_step else POISSON_MAX_ITER,
+                                             backtrack=not one_step)
         r = phi_out - phi
         res = float(np.max(np.abs(r))) if r.size else 0.0
         # the charge check only decides convergence: evaluate it once the potential is close
@@ -445,12 +449,12 @@ def negligible_sheet(st: Structure) -> float:
 
 
 def poisson_pass(st: Structure, bc, phi, states, *, predictor: bool, tol: float = POISSON_TOL,
-                 max_newton: int = POISSON_MAX_ITER):
+                 max_newton: int = POISSON_MAX_ITER, backtrack: bool = True):
     """Nonlinear Poisson with the quantum density from ``states`` (predictor or frozen):
     Newton to ``tol`` or at most ``max_newton`` steps."""
     from . import coupling
     sol = coupling.solve_with_states(st, bc, phi, states, predictor=predictor,
-                                    tol=tol, max_iter=max_newton)
+                                    tol=tol, max_iter=max_newton, backtrack=backtrack)
     return sol.phi, sol.steps
 
 

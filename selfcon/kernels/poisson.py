@@ -317,7 +317,7 @@ def _assemble(phi, g, h, wl, wr, ec0, ev0, nc, nv, nd, ed, na, ea, sheet_nd, she
 def poisson_newton(phi0, h, wl, wr, eps, ec0, ev0, nc, nv, nd, ed, na, ea, sheet_nd, sheet_na,
                    kT, full, cls_e, cls_h, psi2, ek, dos_e, psi2h, ekh, dos_h, phi_ref, qshift, ec0_v, nc_v,
                    kind_top, value_top, kind_bottom, value_bottom, tol, max_iter, max_step,
-                   history):
+                   history, backtrack=True):
     """Newton solve of the nonlinear FV Poisson equation (see module docstring).
 
     phi0 (N,) initial guess (not modified); kind_* 0 Dirichlet (phi = value_*), 1 zero field;
@@ -325,6 +325,9 @@ def poisson_newton(phi0, h, wl, wr, eps, ec0, ev0, nc, nv, nd, ed, na, ea, sheet
     max |step| of each Newton step.  Returns (phi, newton_steps, converged, max_update).
     Damping: step scaled to max |dphi| <= max_step, then halved (up to 50 times) until
     ||R||_2 decreases (backtracking); a step already below tol is taken as is.
+    backtrack=False takes each (clamped) step without evaluating the residual at the new
+    point: for callers with their own safeguard (the predictor passes of the outer loop,
+    one step each, damped by the loop when its residual grows).
     Work arrays are allocated once per call, none inside the loop.
     """
     N = phi0.shape[0]
@@ -370,6 +373,19 @@ def poisson_newton(phi0, h, wl, wr, eps, ec0, ev0, nc, nv, nd, ed, na, ea, sheet
         scale = 1.0
         if big > max_step:
             scale = max_step / big
+        if not backtrack:
+            for i in range(N):
+                phi[i] += scale * dx[i]
+            upd = scale * big
+            history[it] = upd
+            if upd < tol:
+                converged = True
+                break
+            if it + 1 < max_iter:
+                norm = _assemble(phi, g, h, wl, wr, ec0, ev0, nc, nv, nd, ed, na, ea, sheet_nd,
+                                 sheet_na, kT, full, cls_e, cls_h, psi2, ek, dos_e, psi2h, ekh,
+                                 dos_h, phi_ref, qshift, ec0_v, nc_v, kind_top, kind_bottom, a, b, c, r)
+            continue
         for _ in range(50):
             for i in range(N):
                 trial[i] = phi[i] + scale * dx[i]
