@@ -7,6 +7,7 @@ the Dirichlet condition psi = 0.
 """
 from __future__ import annotations
 
+import functools
 from dataclasses import dataclass, field
 from typing import Any
 
@@ -96,6 +97,15 @@ def _contact(spec) -> Contact:
     return Contact(kind=spec.kind, barrier=spec.barrier, bias=float(spec.bias or 0.0))
 
 
+@functools.lru_cache(maxsize=512)
+def _uniform_parameters(name, x, temperature, local_defs, needs) -> dict:
+    """Material parameters of one composition (scalars); cached, since studies solve the
+    same materials at the same temperature over and over.  Errors are not cached."""
+    from . import materials
+    params = materials.cell_parameters(name, np.array([x]), temperature, local_defs, needs)
+    return {k: float(v[0]) for k, v in params.items()}
+
+
 def _needs(carriers, ionization) -> frozenset:
     needs = set(carriers)
     if ionization == "thermal":
@@ -173,7 +183,12 @@ def build_structure(deck, *, mesh: Mesh | None = None) -> Structure:
             xb = Li.x_bottom if Li.x_bottom is not None else Li.x_top
             frac = (zc[sel] - Li.top) / (Li.bottom - Li.top)
             x_cell[sel] = Li.x_top + (xb - Li.x_top) * frac
-        params = materials.cell_parameters(Li.material, x_cell[sel], T, deck.materials, needs)
+        graded = Li.x_top is not None and Li.x_bottom is not None and Li.x_bottom != Li.x_top
+        if graded:
+            params = materials.cell_parameters(Li.material, x_cell[sel], T, deck.materials, needs)
+        else:       # one composition: evaluate once (cached across solves) and broadcast
+            x0 = float("nan") if Li.x_top is None else float(Li.x_top)
+            params = _uniform_parameters(Li.material, x0, T, deck.materials, needs)
         for k in MATERIAL_KEYS:
             cell[k][sel] = params[k]
         cell["donors"][sel] = Li.donors / CM3_PER_NM3
