@@ -328,7 +328,8 @@ def boundary_conditions(st: Structure):
 
 
 def initial_guess(st: Structure, bc, phi0=None):
-    """The classical nonlinear Poisson solution (every carrier classical), or a warm start."""
+    """Starting potential: the classical nonlinear Poisson solution (every carrier
+    classical) on the coarsened meshes, interpolated to the full mesh; or a warm start."""
     from . import coupling
     if phi0 is not None:
         phi = np.array(phi0, dtype=float)
@@ -338,10 +339,15 @@ def initial_guess(st: Structure, bc, phi0=None):
         return phi, 0
     # nested start: solve the classical problem on coarsened copies of the mesh (every
     # interface, sheet and region end kept), coarsest first, each level starting from the
-    # one before; the damped, expensive Newton phase then happens on a few dozen nodes
+    # one before; the damped, expensive Newton phase then happens on a few dozen nodes.
+    # Small meshes (one level) solve it on the mesh itself.
     steps = 0
     previous = None                   # (z, phi) of the last level solved
     for factor in start_levels(st.n_nodes):
+        if factor == 1 and previous is not None:
+            # the first predictor pass is a full nonlinear solve on the fine mesh anyway:
+            # finishing the classical problem there first would only repeat its work
+            return np.interp(st.z, *previous), steps
         level = coarsened(st, factor)[0] if factor > 1 else st
         phi = (coupling.linear_start(level, bc) if previous is None
                else np.interp(level.z, *previous))
