@@ -5,7 +5,7 @@ its lines end up in ``Result.warnings``, the ``run``/``show`` output, the JSON a
 ``/summary`` attribute ``warnings`` of the result file.  Each check is a plain function
 ``check_*(result, structure) -> list[str]`` so it can be tested on its own.
 
-Thresholds (our own choices, stated here and in docs/README-design.md):
+Thresholds (our own choices, stated here and in README.md, "Design recipes"):
 
 * second subband: the second *channel* electron subband (states with most of their
   weight in the channel layer) holds more than ``SECOND_SUBBAND_FRACTION`` = 1 % of the

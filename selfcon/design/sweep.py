@@ -8,7 +8,7 @@ started from the converged potentials of the previous points, extrapolated linea
 through the last two (continuation, selfcon.scf.extrapolate_potential; a point that
 fails to converge from the warm start is retried from a cold start).
 
-Definitions (stated in the file and in docs/README-design.md):
+Definitions (stated in the file and in README.md, "Design recipes"):
 
 * gate charge Q(V) = -q * integral of (p - n + Nd+ - Na-) dz over the semiconductor
   (C/cm^2): the charge on the gate that balances the semiconductor's, assuming the
