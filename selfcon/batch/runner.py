@@ -31,11 +31,14 @@ SUMMARY_COLUMNS = [
     # name, units, description
     ("electron_sheet_density_cm2", "cm-2", "electrons per area in the whole stack"),
     ("hole_sheet_density_cm2", "cm-2", "holes per area in the whole stack"),
-    ("channel_density_cm2", "cm-2", "electrons per area in bound subbands (the channel)"),
+    ("channel_density_cm2", "cm-2", "electrons per area in the channel layer (the layer holding most)"),
     ("E0_eV", "eV", "lowest electron subband energy, relative to EF"),
     ("E1_eV", "eV", "second electron subband energy, relative to EF"),
+    ("E1_minus_E0_eV", "eV", "subband spacing E1 - E0"),
+    ("E0_minus_EF_eV", "eV", "lowest electron subband relative to EF (negative: occupied)"),
     ("hole_E0_eV", "eV", "highest hole subband energy (electron energy), relative to EF"),
     ("residual_V", "V", "last max |dphi| of the self-consistent loop"),
+    ("warnings", "1", "number of design warnings of the solve (see the job's result file)"),
 ]
 
 
@@ -61,8 +64,11 @@ def summarize(result) -> dict:
         out["E1_eV"] = float(el.energy[1]) if len(el.energy) > 1 else nan
     else:
         out.update(channel_density_cm2=0.0 if el is not None else nan, E0_eV=nan, E1_eV=nan)
-    if "channel_electron_density_cm2" in s:
-        out["channel_density_cm2"] = num(s["channel_electron_density_cm2"])
+    if "channel_electron_sheet_density_cm2" in s:      # electrons in the channel layer itself
+        out["channel_density_cm2"] = num(s["channel_electron_sheet_density_cm2"])
+    out["E1_minus_E0_eV"] = num(s.get("E1_minus_E0_eV", nan))
+    out["E0_minus_EF_eV"] = num(s.get("E0_minus_EF_eV", nan))
+    out["warnings"] = len(result.warnings or [])
     holes = [result.subbands[b].energy for b in ("heavy_hole", "light_hole")
              if result.subbands and b in result.subbands and len(result.subbands[b].energy)]
     out["hole_E0_eV"] = float(max(e[0] for e in holes)) if holes else nan
