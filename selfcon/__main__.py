@@ -1,7 +1,7 @@
 """``python -m selfcon ...``: the same as the ``selfcon`` console script."""
 import sys
 
-from .cli import main
+from selfcon.cli import main
 
 if __name__ == "__main__":
     sys.exit(main())

@@ -25,7 +25,7 @@ import sys
 import traceback
 from pathlib import Path
 
-from .errors import ResultFileError, SelfconInputError
+from selfcon.errors import ResultFileError, SelfconInputError
 
 #: modules whose ``register(subparsers)`` adds subcommands, imported if they exist
 EXTRA_COMMANDS = ("selfcon.batch.commands", "selfcon.design.commands")
@@ -116,11 +116,11 @@ def _progress_mode(args) -> str:
 # --------------------------------------------------------------------------- commands
 
 def cmd_run(args) -> int:
-    import selfcon
-    from . import report
+    from selfcon import api
+    from selfcon.output import report
     deck_path = Path(args.deck)
     _require_file(deck_path, "deck file")
-    deck = selfcon.load_deck(deck_path, overrides=tuple(args.set or ()))
+    deck = api.load_deck(deck_path, overrides=tuple(args.set or ()))
     out = Path(args.output) if args.output else deck_path.with_suffix(".h5")
     if out.exists() and not args.force:
         raise ResultFileError("output file exists; pass --force to overwrite it", file=str(out))
@@ -131,10 +131,10 @@ def cmd_run(args) -> int:
     spec = getattr(deck, "solver", None)
     with Progress(_progress_mode(args), tolerance=getattr(spec, "tolerance", None),
                   max_iterations=getattr(spec, "max_iterations", None)) as progress:
-        result = selfcon.solve(deck, progress=progress)
+        result = api.solve(deck, progress=progress)
     result.save(out, force=args.force)
     if args.plot:
-        from .plot import plot_result
+        from selfcon.output.plot import plot_result
         plot_result(result, args.plot)
     fig = report.summary_figures(result, output=str(out))
     if args.plot:
@@ -155,7 +155,7 @@ def cmd_run(args) -> int:
 
 
 def _fmt(v, unit=""):
-    from .report import sci
+    from selfcon.output.report import sci
     if v is None:
         return "–"
     if isinstance(v, float) and (abs(v) >= 1e5 or (0 < abs(v) < 1e-3)):
@@ -180,7 +180,7 @@ def check_figures(deck, structure) -> dict:
     for side in ("surface", "substrate"):
         c = getattr(structure, side)
         contacts[side] = {"contact": c.kind, "barrier_eV": c.barrier, "bias_V": c.bias}
-    from .report import _clean
+    from selfcon.output.report import _clean
     return _clean({"title": deck.title, "temperature_K": deck.temperature, "file": deck.path,
                    "overrides": [f"{k}={v}" for k, v in getattr(deck, "overrides", ())],
                    "carriers": list(structure.carriers), "layers": layers, "contacts": contacts,
@@ -191,11 +191,11 @@ def check_figures(deck, structure) -> dict:
 
 
 def cmd_check(args) -> int:
-    import selfcon
+    from selfcon import api
     deck_path = Path(args.deck)
     _require_file(deck_path, "deck file")
-    deck = selfcon.load_deck(deck_path, overrides=tuple(args.set or ()))
-    structure = selfcon.build_structure(deck)
+    deck = api.load_deck(deck_path, overrides=tuple(args.set or ()))
+    structure = api.build_structure(deck)
     fig = check_figures(deck, structure)
     if args.json:
         print(json.dumps(fig, indent=2, ensure_ascii=False))
@@ -239,8 +239,8 @@ def cmd_check(args) -> int:
 
 
 def cmd_show(args) -> int:
-    from . import report
-    from .results import load_result
+    from selfcon.output import report
+    from selfcon.output.result import load_result
     path = Path(args.result)
     result = load_result(path)
     fig = report.summary_figures(result, output=None)
@@ -270,7 +270,7 @@ def _parse_size(args):
     if args.width_px is not None or args.height_px is not None:
         if size is not None:
             raise SelfconInputError("give either --size or --width-px/--height-px", key="--size")
-        from .plot import DEFAULT_SIZE
+        from selfcon.output.plot import DEFAULT_SIZE
         size = (args.width_px or DEFAULT_SIZE[0], args.height_px or DEFAULT_SIZE[1])
     if size is not None and not (50 <= size[0] <= 20000 and 50 <= size[1] <= 20000):
         raise SelfconInputError(f"figure size {size[0]}x{size[1]} px out of range", key="--size",
@@ -303,8 +303,8 @@ def _check_plot_path(path: Path):
 
 
 def cmd_plot(args) -> int:
-    from .plot import plot_result
-    from .results import load_result
+    from selfcon.output.plot import plot_result
+    from selfcon.output.result import load_result
     out = Path(args.output)
     _check_plot_path(out)
     size = _parse_size(args)
@@ -317,8 +317,8 @@ def cmd_plot(args) -> int:
 
 
 def cmd_export(args) -> int:
-    from .export import export_csv
-    from .results import load_result
+    from selfcon.output.export import export_csv
+    from selfcon.output.result import load_result
     result = load_result(args.result)
     paths = export_csv(result, args.csv, force=args.force)
     for p in paths:
@@ -327,7 +327,7 @@ def cmd_export(args) -> int:
 
 
 def cmd_materials(args) -> int:
-    from . import materials
+    from selfcon.input import materials
     if args.name is None:
         names = list(materials.names())
         if args.json:
@@ -350,7 +350,7 @@ def cmd_materials(args) -> int:
         kw["temperature"] = args.temperature
     rows = materials.describe(args.name, **kw)
     if args.json:
-        from .report import _clean
+        from selfcon.output.report import _clean
         print(json.dumps(_clean({"name": args.name, **kw, "parameters": list(rows)}), indent=2,
                          ensure_ascii=False))
         return EXIT_OK
@@ -372,7 +372,7 @@ def cmd_materials(args) -> int:
 # --------------------------------------------------------------------------- parser
 
 def build_parser() -> argparse.ArgumentParser:
-    from . import __version__
+    from selfcon.version import __version__
     p = _Parser(prog="selfcon", description="Self-consistent Schrödinger–Poisson solutions for layered "
                 "semiconductor structures.",
                 epilog="exit codes: 0 ok/converged, 1 internal error, 2 bad input, 3 not converged "

@@ -6,7 +6,7 @@ import textwrap
 import pytest
 
 from selfcon.batch.study import base_value, expand, load_study
-from selfcon.deck import load_deck
+from selfcon.input.deck import load_deck
 from selfcon.errors import StudyError
 
 BASE = """

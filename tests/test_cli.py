@@ -17,7 +17,7 @@ from pathlib import Path
 
 from bad_decks import BAD_DECKS, GOOD_DECK
 from selfcon import cli
-from selfcon.results import save_result
+from selfcon.output.result import save_result
 from test_results import make_result
 
 
@@ -148,11 +148,11 @@ def test_run_existing_output_needs_force(capsys, good_deck, tmp_path):
 
 
 def test_run_internal_error_exit_1(capsys, good_deck, monkeypatch):
-    import selfcon
+    from selfcon import api
 
     def broken(deck, **options):
         raise RuntimeError("the loop fell over")
-    monkeypatch.setattr(selfcon, "solve", broken)
+    monkeypatch.setattr(api, "solve", broken)
     monkeypatch.delenv("SELFCON_DEBUG", raising=False)
     code, out, err = run_cli(capsys, "run", str(good_deck), "--quiet")
     assert code == 1
@@ -165,8 +165,8 @@ def test_run_internal_error_exit_1(capsys, good_deck, monkeypatch):
 
 
 def test_run_bad_plot_extension_exit_2_before_solving(capsys, good_deck, monkeypatch):
-    import selfcon
-    monkeypatch.setattr(selfcon, "solve", lambda *a, **k: pytest.fail("solve must not run"))
+    from selfcon import api
+    monkeypatch.setattr(api, "solve", lambda *a, **k: pytest.fail("solve must not run"))
     code, _, err = run_cli(capsys, "run", str(good_deck), "--plot", "fig.bmp")
     _assert_one_line_error(code, err, None, None)
     assert ".png" in err

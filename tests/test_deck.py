@@ -11,7 +11,7 @@ import tomllib
 import pytest
 
 from bad_decks import BAD_DECKS, GOOD_DECK
-from selfcon.deck import (KEYS, Deck, DeckError, deck_reference, dumps_toml, load_deck,
+from selfcon.input.deck import (KEYS, Deck, DeckError, deck_reference, dumps_toml, load_deck,
                           parse_override)
 
 

@@ -9,8 +9,8 @@ import numpy as np
 import pytest
 
 import selfcon
-from selfcon import diagnostics as dg
-from selfcon.structure import build_structure
+from selfcon.output import diagnostics as dg
+from selfcon.model.structure import build_structure
 
 DESIGN = Path(__file__).resolve().parents[1] / "inputs" / "design"
 HALL = DESIGN / "hall_wafer_77K.toml"

@@ -8,9 +8,9 @@ from dataclasses import dataclass
 import numpy as np
 import pytest
 
-from selfcon import materials as M
+from selfcon.input import materials as M
 from selfcon.errors import MaterialError
-from selfcon.materials.library import ALLOYS, BINARIES, PARAMETERS
+from selfcon.input.materials.library import ALLOYS, BINARIES, PARAMETERS
 
 
 @dataclass(frozen=True)
@@ -194,7 +194,7 @@ def test_describe_local_material():
 
 
 def test_import_is_light():
-    code = ("import sys, selfcon.materials; "
+    code = ("import sys, selfcon.input.materials; "
             "bad = [m for m in ('numba', 'h5py', 'matplotlib', 'scipy', 'dask') if m in sys.modules]; "
             "print(bad); sys.exit(1 if bad else 0)")
     r = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True)

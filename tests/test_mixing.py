@@ -3,7 +3,7 @@ whose solution numpy.linalg.solve((I - A), b) is the reference (numpy)."""
 import numpy as np
 import pytest
 
-from selfcon.mixing import available_methods, get_mixer
+from selfcon.solver.mixers import available_methods, get_mixer
 
 
 def toy_problem(n=12, seed=3, contraction=0.6):

@@ -6,7 +6,7 @@ import numpy as np
 import pytest
 
 from selfcon.errors import SelfconInputError
-from selfcon.plot import DEFAULT_SIZE, auto_depth, plot_result
+from selfcon.output.plot import DEFAULT_SIZE, auto_depth, plot_result
 from test_results import make_result
 
 
@@ -58,7 +58,7 @@ def test_auto_depth_crops_a_thick_substrate():
 def test_headless_without_pyplot(tmp_path):
     code = ("import sys; sys.path.insert(0, %r)\n"
             "from test_results import make_result\n"
-            "from selfcon.plot import plot_result\n"
+            "from selfcon.output.plot import plot_result\n"
             "plot_result(make_result(), %r)\n"
             "assert 'matplotlib.pyplot' not in sys.modules\n") % (str(__import__('pathlib').Path(__file__).parent),
                                                                    str(tmp_path / "h.png"))

@@ -7,10 +7,10 @@ import pytest
 from scipy import integrate, optimize, special
 
 from selfcon import constants as C
-from selfcon import poisson as P
-from selfcon import statistics as st
-from selfcon.kernels import poisson as kp
-from selfcon.kernels import statistics as ks
+from selfcon.solver import poisson as P
+from selfcon.solver import statistics as st
+from selfcon.solver.kernels import poisson as kp
+from selfcon.solver.kernels import statistics as ks
 
 EG_GAAS = 1.424        # eV, GaAs gap at 300 K (Sze, Physics of Semiconductor Devices)
 EPS_GAAS = 12.9        # GaAs static permittivity (Sze)

@@ -1,4 +1,4 @@
-"""Checks of the BenDaniel–Duke bound-state solver (selfcon.quantum).
+"""Checks of the BenDaniel–Duke bound-state solver (selfcon.solver.schrodinger).
 
 Every reference value names its source beside it.  Meshes are small; the whole
 file runs in a few seconds.
@@ -9,7 +9,7 @@ from scipy.optimize import brentq
 from scipy.special import ai_zeros
 
 from selfcon.constants import HBAR2_2M0
-from selfcon.quantum import (EigenWorkspace, bound_states, bound_states_cells,
+from selfcon.solver.schrodinger import (EigenWorkspace, bound_states, bound_states_cells,
                              dual_widths, in_plane_mass, solve_region)
 
 # GaAs-like well / Al0.3Ga0.7As-like barrier used throughout (values for the test

@@ -13,9 +13,9 @@ import sys
 import numpy as np
 import pytest
 
-from selfcon import results
+from selfcon.output import result as results
 from selfcon.errors import ResultFileError
-from selfcon.result import Result, Subbands
+from selfcon.output.result import Result, Subbands
 
 
 def make_result(n=41, converged=True):
@@ -333,7 +333,7 @@ def test_missing_output_folder(tmp_path):
 
 def test_file_image_built_in_memory_is_the_same_file(tmp_path):
     # batch workers build the HDF5 image in memory; the coordinator only writes the bytes
-    from selfcon.results import load_result, result_image, save_image, save_result
+    from selfcon.output.result import load_result, result_image, save_image, save_result
     r = make_result()
     save_result(r, tmp_path / "direct.h5")
     save_image(result_image(r), tmp_path / "image.h5")

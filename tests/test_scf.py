@@ -6,7 +6,7 @@ import pytest
 
 import selfcon
 from selfcon.constants import CM2_PER_NM2, DOS2D_PER_M0, KB_EV
-from selfcon.mixing import available_methods
+from selfcon.solver.mixers import available_methods
 
 INPUTS = Path(__file__).resolve().parent.parent / "inputs"
 

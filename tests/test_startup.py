@@ -41,26 +41,27 @@ def test_importing_kernels_compiles_nothing(module):
     # a numba dispatcher with no signatures has compiled (or loaded) nothing
     code = (
         "import json, importlib, numba, selfcon\n"
-        f"m = importlib.import_module('selfcon.kernels.{module}')\n"
+        f"m = importlib.import_module('selfcon.solver.kernels.{module}')\n"
         "from numba.core.registry import CPUDispatcher\n"
         "d = {k: len(v.signatures) for k, v in vars(m).items() if isinstance(v, CPUDispatcher)}\n"
         "print(json.dumps(d))\n")
     out = _run(code)
-    assert out, f"selfcon.kernels.{module} defines no numba dispatcher (test would be vacuous)"
+    assert out, f"selfcon.solver.kernels.{module} defines no numba dispatcher (test would be vacuous)"
     compiled = {k: n for k, n in out.items() if n}
     assert compiled == {}, f"compiled at import: {compiled}"
 
 
 def test_importing_all_kernels_and_glue_compiles_nothing():
-    # the glue modules (quantum, poisson, statistics, coupling) may import kernels, never call them
+    # the glue modules (schrodinger, poisson, statistics, charge, loop) may import kernels, never call them
     code = (
         "import json, importlib, selfcon\n"
-        "for g in ('quantum', 'poisson', 'statistics', 'coupling', 'scf', 'structure', 'mesh'):\n"
+        "for g in ('solver.schrodinger', 'solver.poisson', 'solver.statistics', 'solver.charge',\n"
+        "          'solver.loop', 'model.structure', 'model.mesh', 'api'):\n"
         "    importlib.import_module('selfcon.' + g)\n"
         "from numba.core.registry import CPUDispatcher\n"
         "d = {}\n"
         f"for name in {KERNELS!r}:\n"
-        "    m = importlib.import_module('selfcon.kernels.' + name)\n"
+        "    m = importlib.import_module('selfcon.solver.kernels.' + name)\n"
         "    d.update({name + '.' + k: len(v.signatures) for k, v in vars(m).items()\n"
         "              if isinstance(v, CPUDispatcher)})\n"
         "print(json.dumps(d))\n")

@@ -6,8 +6,8 @@ import pytest
 from scipy import integrate, special
 
 from selfcon import constants as C
-from selfcon import statistics as st
-from selfcon.kernels import statistics as ks
+from selfcon.solver import statistics as st
+from selfcon.solver.kernels import statistics as ks
 
 
 def _fd_quad(eta, j):

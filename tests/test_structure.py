@@ -4,7 +4,7 @@ import numpy as np
 import pytest
 
 import selfcon
-from selfcon.mesh import build_mesh, graded_steps, uniform_mesh
+from selfcon.model.mesh import build_mesh, graded_steps, uniform_mesh
 
 DECK = """
 title = "structure test"

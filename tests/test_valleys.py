@@ -7,7 +7,7 @@ from scipy.integrate import quad
 from scipy.optimize import brentq
 
 import selfcon
-from selfcon import materials
+from selfcon.input import materials
 from selfcon.errors import SelfconInputError
 
 BULK_ALAS = """

@@ -100,8 +100,8 @@ def fit_exponent(nodes, times):
 
 def bench_floor():
     import selfcon
-    from selfcon import coupling, quantum, scf
-    from selfcon.kernels import poisson as KP
+    from selfcon.solver import charge as coupling, schrodinger as quantum, loop as scf
+    from selfcon.solver.kernels import poisson as KP
     for name in DECKS:
         d = deck(name)
         selfcon.solve(d)                                   # warm (JIT cache, imports)
@@ -204,8 +204,8 @@ def _key_points(st):
 
 def bench_mesh():
     import selfcon
-    from selfcon.mesh import uniform_mesh
-    from selfcon.structure import build_structure
+    from selfcon.model.mesh import uniform_mesh
+    from selfcon.model.structure import build_structure
     buf = "layer.buffer.thickness=1000"           # 1 um buffer (stack 1.139 um)
     ref_d = deck("4K", buf, "mesh.step=0.03125")
     t, ref = solve_timed(ref_d)

@@ -83,7 +83,7 @@ def main(argv=None):
     ap.add_argument("--job", default=None, help=argparse.SUPPRESS)   # stand-in job function (testing the tool)
     args = ap.parse_args(argv)
 
-    from selfcon.scf import warm_up
+    from selfcon.api import warm_up
     warm_up()                                     # the numba cache is warm before any timing
     work = Path(tempfile.mkdtemp(prefix="bench_batch_"))
     problems = []

@@ -1,5 +1,5 @@
 #!/usr/bin/env python
-"""Benchmark the bound-state solver: tridiagonal (selfcon.quantum) versus dense eigh, and
+"""Benchmark the bound-state solver: tridiagonal (selfcon.solver.schrodinger) versus dense eigh, and
 the growth of its cost with the number of nodes.
 
     python tools/bench_eigen.py [--states 10] [--out bench-results/eigen.json]
@@ -30,7 +30,7 @@ def structure(n_nodes):
     """A 200 nm structure with a field, three wells of different widths (a double well with
     a thin barrier among them) and GaAs/AlGaAs-like masses; interfaces on nodes, mesh
     nonuniform (graded, finer in the wells)."""
-    from selfcon.kernels.schrodinger import dual_average
+    from selfcon.solver.kernels.schrodinger import dual_average
     # layers: (thickness nm, band edge eV at the layer start, mass m0)
     layers = [(40.0, 0.30, 0.092), (8.0, 0.0, 0.067), (2.0, 0.30, 0.092), (8.0, 0.0, 0.067),
               (30.0, 0.30, 0.092), (12.0, 0.0, 0.067), (100.0, 0.30, 0.092)]
@@ -75,7 +75,7 @@ def time_call(fn, min_time=0.2, max_repeat=50):
 
 
 def dense_matrix(h, w, v_node, inv_m):
-    from selfcon.kernels.schrodinger import assemble_tridiagonal
+    from selfcon.solver.kernels.schrodinger import assemble_tridiagonal
     m = w.size - 2
     d = np.empty(m)
     e = np.empty(m - 1)
@@ -95,7 +95,7 @@ def main(argv=None):
     from rich.console import Console
     from rich.table import Table
 
-    from selfcon.quantum import EigenWorkspace, solve_region
+    from selfcon.solver.schrodinger import EigenWorkspace, solve_region
 
     console = Console(width=max(Console().width, 100))
     ok = True
@@ -155,7 +155,7 @@ def main(argv=None):
     p_all = float(np.polyfit(np.log(ns), np.log(ts), 1)[0])
     big = ns >= 1e4               # above the fixed per-call overhead
     p_big = float(np.polyfit(np.log(ns[big]), np.log(ts[big]), 1)[0])
-    tab2 = Table(title=f"Time per node, lowest {k} states (LAPACK dstebz + dstein via selfcon.quantum)")
+    tab2 = Table(title=f"Time per node, lowest {k} states (LAPACK dstebz + dstein via selfcon.solver.schrodinger)")
     for col in ("nodes", "time (ms)", "ns / node", "local exponent"):
         tab2.add_column(col, justify="right")
     for i, r in enumerate(scaling):
@@ -173,7 +173,7 @@ def main(argv=None):
     mrrr = []
     for n in (1000, 4000):
         h, w, v, im = structure(n)
-        from selfcon.kernels.schrodinger import assemble_tridiagonal
+        from selfcon.solver.kernels.schrodinger import assemble_tridiagonal
         d, e = np.empty(n - 2), np.empty(n - 3)
         assemble_tridiagonal(h, w, v, im, d, e)
         t, _ = time_call(lambda: eigh_tridiagonal(d, e, select="i", select_range=(0, k - 1),

@@ -11,15 +11,18 @@ Python use::
 
     from selfcon.batch import run_study
     code, counts, out_dir = run_study("inputs/studies/spacer_doping.toml", workers=2)
+
+Stage 6 (beside ``selfcon.design``). May import: every lower stage, through the front
+functions of :mod:`selfcon.api` for solving; never ``selfcon.design`` or the command line.
 """
 
 
 def run_study(study_file, **options):
     """Run or resume a study; see :func:`selfcon.batch.runner.run_study`."""
-    from .runner import run_study as _run
+    from selfcon.batch.runner import run_study as _run
     return _run(study_file, **options)
 
 
 def load_study(path):
-    from .study import load_study as _load
+    from selfcon.batch.study import load_study as _load
     return _load(path)

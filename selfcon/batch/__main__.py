@@ -2,8 +2,8 @@
 import argparse
 import sys
 
-from ..errors import SelfconInputError
-from .commands import register
+from selfcon.errors import SelfconInputError
+from selfcon.batch.commands import register
 
 
 def main(argv=None):

@@ -5,7 +5,7 @@ import json
 import sys
 from pathlib import Path
 
-from ..errors import StudyError
+from selfcon.errors import StudyError
 
 BATCH_HELP = """Run a study (a base deck plus variations) as queued jobs; rerunning resumes.
 
@@ -47,28 +47,28 @@ def register(subparsers):
 
 
 def batch_command(args) -> int:
-    from .runner import run_study
+    from selfcon.batch.runner import run_study
     if args.workers is not None and args.workers < 1:
         raise StudyError("must be >= 1", key="--workers")
     if args.retries < 0:
         raise StudyError("must be >= 0", key="--retries")
     code, counts, out_dir = run_study(args.study, workers=args.workers, out=args.out, scheduler=args.scheduler,
                                       retries=args.retries, quiet=args.quiet, memory_limit=args.memory_limit)
-    from .runner import _fmt_counts
+    from selfcon.batch.runner import _fmt_counts
     tail = {0: "", 3: "  (see table.csv)", 130: "  (interrupted: rerun to continue)"}.get(code, "")
     print(f"{out_dir}: {_fmt_counts(counts)}{tail}")
     return code
 
 
 def _open(outdir):
-    from . import queue as q
+    from selfcon.batch import queue as q
     if not Path(outdir).is_dir():
         raise StudyError("not a folder", file=str(outdir))
     return q.connect(outdir, readonly=True)
 
 
 def queue_status(args) -> int:
-    from . import queue as q
+    from selfcon.batch import queue as q
     con = _open(args.outdir)
     c = q.counts(con)
     total = sum(c.values()) - c["retired"]
@@ -81,7 +81,7 @@ def queue_status(args) -> int:
 
 
 def queue_list(args) -> int:
-    from . import queue as q
+    from selfcon.batch import queue as q
     con = _open(args.outdir)
     statuses = tuple(s.strip() for s in args.status.split(",")) if args.status else None
     if statuses:
@@ -110,7 +110,7 @@ def queue_list(args) -> int:
 
 
 def queue_retry(args) -> int:
-    from . import queue as q
+    from selfcon.batch import queue as q
     if not (Path(args.outdir) / "queue.sqlite").is_file():
         raise StudyError("no queue here (queue.sqlite missing)", file=str(args.outdir))
     statuses = tuple(s.strip() for s in args.status.split(","))

@@ -211,5 +211,5 @@ class DaskPool:
 def make_executor(scheduler, workers, fn, *, memory_limit="4GiB"):
     if scheduler:
         return DaskPool(scheduler, workers, fn, memory_limit=memory_limit)
-    from .worker import init_worker
+    from selfcon.batch.worker import init_worker
     return LocalPool(workers, fn, initializer=init_worker)

@@ -20,7 +20,7 @@ import time
 from contextlib import contextmanager
 from pathlib import Path
 
-from ..errors import StudyError
+from selfcon.errors import StudyError
 
 SCHEMA_VERSION = 1
 STATUSES = ("queued", "running", "done", "not_converged", "failed", "retired")

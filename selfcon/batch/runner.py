@@ -18,10 +18,10 @@ import signal
 import sys
 from pathlib import Path
 
-from . import queue as q
-from .executors import DIED, make_executor
-from .study import default_out_dir, expand, load_study
-from .worker import resolve
+from selfcon.batch import queue as q
+from selfcon.batch.executors import DIED, make_executor
+from selfcon.batch.study import default_out_dir, expand, load_study
+from selfcon.batch.worker import resolve
 
 DEFAULT_JOB = "selfcon.batch.worker:run_job"
 #: test/benchmark seam: the job function, as "module:function"
@@ -213,13 +213,13 @@ class Coordinator:
 
     def _initial(self, con, neighbour, job_id=None):
         """Warm start from the neighbour along the continuation axis, extrapolated linearly
-        through the neighbour's own neighbour when both are done (selfcon.scf.extrapolate_potential)."""
+        through the neighbour's own neighbour when both are done (selfcon.solver.loop.extrapolate_potential)."""
         if neighbour is None:
             return None
         first = self._potential(con, neighbour)
         if first is None:
             return None
-        from ..scf import extrapolate_potential
+        from selfcon.solver.loop import extrapolate_potential
         value = None
         points = [(first[0], first[1], None)]
         if job_id is not None and self.along is not None:
@@ -258,7 +258,7 @@ class Coordinator:
 
     @staticmethod
     def _save(result, path, image=None):
-        from ..results import save_image, save_result
+        from selfcon.output.result import save_image, save_result
         if image is not None:
             save_image(image, path, force=True)
         else:
@@ -336,7 +336,7 @@ class Coordinator:
 
     def _warm_up(self, con):
         """Fill the numba cache before workers start (else every worker compiles on its own)."""
-        from .worker import warm_up
+        from selfcon.batch.worker import warm_up
         try:
             if warm_up():
                 return

@@ -51,7 +51,7 @@ from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any
 
-from ..errors import DeckError, SelfconInputError, StudyError
+from selfcon.errors import DeckError, SelfconInputError, StudyError
 
 MODES = ("grid", "zip", "sample")
 SCALES = ("linear", "log")
@@ -299,29 +299,10 @@ def _parse_sample_vary(path, key, r):
 # --------------------------------------------------------------------------- base values
 
 def base_value(deck_data: dict, path: str):
-    """Value of a deck path (DESIGN.md §3) in the parsed base deck TOML, or raise KeyError."""
-    parts = path.split(".")
-    if parts[0] == "layer" and len(parts) == 3:
-        layers = deck_data.get("layer", [])
-        if parts[1].isdigit():
-            i = int(parts[1])
-            if i >= len(layers):
-                raise KeyError(f"the deck has {len(layers)} layers")
-            layer = layers[i]
-        else:
-            match = [lay for lay in layers if lay.get("name") == parts[1]]
-            if not match:
-                raise KeyError(f"no layer named {parts[1]!r}")
-            layer = match[0]
-        if parts[2] not in layer:
-            raise KeyError(f"the layer does not set {parts[2]!r}")
-        return layer[parts[2]]
-    node = deck_data
-    for part in parts:
-        if not isinstance(node, dict) or part not in node:
-            raise KeyError(f"the deck does not set {path!r}")
-        node = node[part]
-    return node
+    """Value of a deck path in the parsed base deck TOML, or raise KeyError (see
+    :func:`selfcon.input.deck.get_path`)."""
+    from selfcon.input.deck import get_path
+    return get_path(deck_data, path)
 
 
 # --------------------------------------------------------------------------- expansion
@@ -381,7 +362,7 @@ def _neighbours(study: Study, combos):
 
 def load_base_deck(study: Study):
     """The base deck as a Deck, with the study's [fixed] overrides applied."""
-    from ..deck import load_deck
+    from selfcon.input.deck import load_deck
     if not study.deck_file.is_file():
         raise _err(study.file, "deck", f"base deck {str(study.deck_file)!r} not found")
     deck = load_deck(study.deck_file)

@@ -6,7 +6,7 @@
     {"ok": False, "error": "DeckError: ...", "seconds": float, "pid": int}
 
 ``initial`` is ``None`` or a ``(z_nm, phi_V)`` pair (continuation warm start).
-``image`` is the result's HDF5 file as bytes (selfcon.results.result_image): building it
+``image`` is the result's HDF5 file as bytes (selfcon.output.result.result_image): building it
 is most of the cost of a result file, so it happens in the worker, in parallel; the
 coordinator writes it to disk atomically.
 A job whose solve does not converge is ``ok`` (the Result says converged =
@@ -52,13 +52,13 @@ def init_worker(parent_pid=None):
     except (ValueError, OSError):     # not the main thread (e.g. a Dask worker thread)
         pass
     try:
-        import selfcon.scf  # noqa: F401  (imports numba; kernels load from the warmed cache)
+        import selfcon.solver.loop  # noqa: F401  (imports numba; kernels load from the warmed cache)
     except Exception:
         pass
 
 
 def _error_text(exc):
-    from ..errors import SelfconInputError
+    from selfcon.errors import SelfconInputError
     if isinstance(exc, SelfconInputError):
         return f"{type(exc).__name__}: {exc}"
     tb = traceback.format_exception(type(exc), exc, exc.__traceback__)
@@ -69,8 +69,8 @@ def run_job(deck_text, initial=None):
     """Solve one deck (TOML text); see the module docstring for the outcome."""
     t0 = time.perf_counter()
     try:
-        from ..deck import load_deck
-        from ..scf import solve
+        from selfcon.input.deck import load_deck
+        from selfcon.api import solve
         deck = load_deck(deck_text)
         if initial is not None:
             result = solve(deck, initial_potential=initial)
@@ -78,7 +78,7 @@ def run_job(deck_text, initial=None):
             result = solve(deck)
         # the HDF5 file image is built here, in parallel; the coordinator only writes the bytes.
         # "seconds" is the job's own work: the solve and building its result file.
-        from ..results import result_image
+        from selfcon.output.result import result_image
         image = result_image(result)
         return {"ok": True, "result": result, "image": image, "seconds": time.perf_counter() - t0,
                 "pid": os.getpid()}
@@ -89,11 +89,11 @@ def run_job(deck_text, initial=None):
 def warm_up():
     """Compile (or load from the on-disk cache) the numba kernels in this process.
 
-    Uses ``selfcon.scf.warm_up()`` when the solver provides it; returns False if it
+    Uses ``selfcon.api.warm_up()`` when the solver provides it; returns False if it
     does not (the coordinator then solves its first job in-process instead).
     """
     try:
-        from .. import scf
+        from selfcon import api as scf
     except ImportError:
         return False
     fn = getattr(scf, "warm_up", None)
@@ -112,7 +112,8 @@ def warm_up():
 def synthetic_result(deck_text, *, iterations=3, converged=True, phi0=0.0):
     """A small but complete Result (for stand-in jobs)."""
     import numpy as np
-    from ..result import PROFILE_FIELDS, Result, Subbands
+    from selfcon.output.result import Result, Subbands
+    from selfcon.output.schema import PROFILE_FIELDS
     z = np.linspace(0.0, 50.0, 21)
     prof = {k: np.zeros_like(z) for k in PROFILE_FIELDS}
     prof["potential"] = phi0 + 0.01 * z

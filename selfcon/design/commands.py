@@ -15,7 +15,7 @@ import math
 import sys
 from pathlib import Path
 
-from ..errors import SelfconInputError
+from selfcon.errors import SelfconInputError
 
 EXIT_OK, EXIT_INPUT, EXIT_NOT_CONVERGED = 0, 2, 3
 
@@ -94,11 +94,11 @@ def _out_path(path, force):
 
 
 def _load(args):
-    import selfcon
+    from selfcon import api
     p = Path(args.deck)
     if not p.is_file():
         raise DesignOptionError("no such deck file", file=str(p))
-    return selfcon.load_deck(p, overrides=tuple(args.set or ()))
+    return api.load_deck(p, overrides=tuple(args.set or ()))
 
 
 def _jsonable(x):
@@ -116,7 +116,7 @@ def _jsonable(x):
 # --------------------------------------------------------------------------- sweep-bias
 
 def cmd_sweep_bias(args) -> int:
-    from .sweep import bias_points, sweep_bias
+    from selfcon.design.sweep import bias_points, sweep_bias
     deck = _load(args)
     if args.step <= 0:
         raise DesignOptionError(f"must be > 0 (the direction comes from --from and --to), got {args.step:g}",
@@ -165,7 +165,7 @@ def cmd_sweep_bias(args) -> int:
 # --------------------------------------------------------------------------- tune
 
 def cmd_tune(args) -> int:
-    from .tune import TuneError, parse_target, path_units, path_value, tune
+    from selfcon.design.tune import TuneError, parse_target, path_units, path_value, tune
     deck = _load(args)
     name, value = parse_target(args.target)
     if args.bracket is None:
@@ -208,7 +208,7 @@ def cmd_tune(args) -> int:
 # --------------------------------------------------------------------------- study-summary
 
 def cmd_study_summary(args) -> int:
-    from .tolerance import plot_summary, summarize_study
+    from selfcon.design.tolerance import plot_summary, summarize_study
     _plot_path(args.plot)
     s = summarize_study(args.outdir, quantities=args.quantity or None, from_results=not args.table_only)
     if args.plot:

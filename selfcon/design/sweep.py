@@ -5,7 +5,7 @@
 
 Every point is a full self-consistent solve of the deck with ``surface.bias`` set,
 started from the converged potentials of the previous points, extrapolated linearly
-through the last two (continuation, selfcon.scf.extrapolate_potential; a point that
+through the last two (continuation, selfcon.solver.loop.extrapolate_potential; a point that
 fails to converge from the warm start is retried from a cold start).
 
 Definitions (stated in the file and in README.md, "Design recipes"):
@@ -38,8 +38,8 @@ from typing import Any
 
 import numpy as np
 
-from ..constants import CM2_PER_NM2, EPS0, NM_PER_CM, Q, Q_EPS0
-from ..errors import DeckError, SelfconInputError
+from selfcon.constants import CM2_PER_NM2, EPS0, NM_PER_CM, Q, Q_EPS0
+from selfcon.errors import DeckError, SelfconInputError
 
 LINEAR_POINTS = 4
 LINEARITY = 0.02
@@ -319,9 +319,9 @@ def sweep_bias(deck, biases, *, progress=None, threshold_cm2: float = DEFAULT_TH
 
     ``progress``: callable(index, bias, result) after each point.
     """
-    from ..deck import Deck, load_deck
-    from ..scf import extrapolate_potential, solve_warm
-    from ..structure import build_structure
+    from selfcon.input.deck import Deck, load_deck
+    from selfcon.api import extrapolate_potential, solve_warm
+    from selfcon.model.structure import build_structure
     if not isinstance(deck, Deck):
         deck = load_deck(deck)
     _schottky_check(deck)
@@ -429,8 +429,8 @@ def save_sweep(sw: BiasSweep, path, *, force: bool = True) -> None:
     """Write the sweep as one HDF5 file, atomically (temp file, fsync, os.replace)."""
     import h5py
     from datetime import datetime, timezone
-    from .. import __version__
-    from ..results import atomic_write
+    from selfcon.version import __version__
+    from selfcon.output.result import atomic_write
 
     def fill(tmp):
         with h5py.File(tmp, "w") as f:

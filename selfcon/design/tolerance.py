@@ -24,7 +24,7 @@ from pathlib import Path
 
 import numpy as np
 
-from ..errors import StudyError
+from selfcon.errors import StudyError
 
 #: table columns that are bookkeeping, not figures
 BOOKKEEPING = ("job", "status", "attempts", "converged", "iterations", "seconds", "warm_start", "result",

@@ -24,7 +24,7 @@ from typing import Any
 
 import numpy as np
 
-from ..errors import DeckError, SelfconInputError
+from selfcon.errors import DeckError, SelfconInputError
 
 
 class TuneError(SelfconInputError):
@@ -38,7 +38,7 @@ def _summary(key):
 
 def _doping(bound):
     def f(r, st):
-        from ..diagnostics import doping_layer_electrons
+        from selfcon.output.diagnostics import doping_layer_electrons
         return doping_layer_electrons(r, st, bound=bound)
     return f
 
@@ -95,15 +95,11 @@ def _check_quantity(name, result):
 
 def path_value(deck, path: str):
     """Current value of a deck path (None if the deck leaves it at a default it does not write)."""
-    from ..batch.study import base_value
-    try:
-        return base_value(tomllib.loads(deck.to_toml()), path)
-    except KeyError:
-        return None
+    return deck.get(path)
 
 
 def path_units(path: str) -> str:
-    from ..deck import KEYS
+    from selfcon.input.deck import KEYS
     parts = path.split(".")
     table = parts[0] if len(parts) > 1 else ""
     key = parts[-1]
@@ -123,9 +119,9 @@ def tune(deck, path: str, target_name: str, target_value: float, bracket, *, xto
     """
     from scipy.optimize import brentq
 
-    from ..deck import Deck, load_deck
-    from ..scf import solve_warm
-    from ..structure import build_structure
+    from selfcon.input.deck import Deck, load_deck
+    from selfcon.api import solve_warm
+    from selfcon.model.structure import build_structure
     if not isinstance(deck, Deck):
         deck = load_deck(deck)
     a, b = (float(v) for v in bracket)

@@ -1,7 +1,7 @@
 """Structure + subbands -> the Poisson problem: the glue between the loop and the kernels.
 
-The loop (selfcon.scf) speaks in Structures and BandStates; the Poisson code
-(selfcon.poisson, selfcon.kernels.poisson) speaks in arrays.  This module
+The loop (selfcon.solver.loop) speaks in Structures and BandStates; the Poisson code
+(selfcon.solver.poisson, selfcon.solver.kernels.poisson) speaks in arrays.  This module
 translates, and nothing else: which nodes are quantum for which carrier, the
 |psi|^2 weights and subband DOS of every state, the boundary conditions.
 """
@@ -9,7 +9,7 @@ from __future__ import annotations
 
 import numpy as np
 
-from . import poisson as P
+from selfcon.solver import poisson as P
 
 _HOLE_BANDS = ("heavy_hole", "light_hole")
 

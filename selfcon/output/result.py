@@ -1,6 +1,6 @@
-"""Result files: the HDF5 layout of DESIGN.md §4 (schema "selfcon.result", version 1).
+"""The Result of one solve and its file: the HDF5 layout of DESIGN.md §4 (schema "selfcon.result", version 1).
 
-The file is the :class:`selfcon.result.Result` written out, readable with plain
+The file is the :class:`selfcon.output.result.Result` written out, readable with plain
 h5py, HDF5's own tools, MATLAB or Julia.  Every dataset carries ``units``
 (UDUNITS-style strings: ``nm``, ``eV``, ``V``, ``V/cm``, ``cm-3``, ``cm-2``,
 ``nm-1/2``, ``m0``, ``s``, ``1``) and ``description`` attributes.
@@ -35,64 +35,74 @@ from pathlib import Path
 
 import numpy as np
 
-from .errors import ResultFileError
-from .result import PROFILE_FIELDS, Result, Subbands
+from selfcon.errors import ResultFileError
+from selfcon.output.schema import (EXTRA_PROFILE_FIELDS, LAYER_DESCRIPTIONS, LAYER_UNITS,
+                                   PROFILE_FIELDS, RECORD_FIELDS, ROOT_ATTRS, SCHEMA,
+                                   SCHEMA_VERSION, SUBBAND_FIELDS, guess_units as _guess_units)
+from dataclasses import dataclass, field
+from typing import Any
 
-SCHEMA = "selfcon.result"
-SCHEMA_VERSION = 1
 
-#: subband datasets: name -> (units, description)
-SUBBAND_FIELDS = {
-    "energy": ("eV", "subband edge energy relative to EF (hole states in electron energy)"),
-    "occupation": ("cm-2", "sheet density held by the subband"),
-    "wavefunction": ("nm-1/2", "envelope function psi(z) per state (columns), "
-                               "integral of |psi|^2 dz = 1, zero outside its quantum region"),
-    "in_plane_mass": ("m0", "in-plane effective mass used for the 2D density of states"),
-    "region": ("1", "index of the quantum region (/mesh/quantum_regions) holding the state"),
-    "degeneracy": ("1", "valley degeneracy used for the occupation (spin excluded)"),
-}
+@dataclass
+class Subbands:
+    """Bound states of one band in all quantum regions, ordered by energy."""
 
-#: per-iteration record datasets under /convergence: name -> (units, description)
-RECORD_FIELDS = {
-    "residual": ("V", "max |delta phi| between successive iterations"),
-    "charge_residual": ("1", "relative change of the mobile sheet charge over the iteration (NaN: not evaluated, the potential was still far from converged)"),
-    "newton_steps": ("1", "inner Newton steps of the nonlinear Poisson solve"),
-    "seconds": ("s", "wall time spent in the iteration"),
-    "damping": ("1", "damping / mixing factor applied in the iteration"),
-}
+    energy: np.ndarray          # (k,) eV relative to EF (hole states in electron energy)
+    occupation: np.ndarray      # (k,) cm^-2
+    wavefunction: np.ndarray    # (N, k) nm^-1/2, zero outside its region
+    in_plane_mass: np.ndarray   # (k,) m0
+    region: np.ndarray          # (k,) int, index of the quantum region holding the state
+    degeneracy: np.ndarray      # (k,) valley degeneracy used for the occupation (spin excluded)
 
-#: extra profile fields other contributors may add: name -> (units, description)
-EXTRA_PROFILE_FIELDS = {
-    "layer_index": ("1", "index into /layers of the layer holding each node"),
-    "conduction_band_x": ("eV", "X-valley conduction band edge with electrostatics, relative to EF"),
-    "conduction_band_l": ("eV", "L-valley conduction band edge with electrostatics, relative to EF"),
-    "heavy_hole_band": ("eV", "heavy-hole band edge with electrostatics, relative to EF"),
-    "light_hole_band": ("eV", "light-hole band edge with electrostatics, relative to EF"),
-    "charge_density": ("cm-3", "net charge density p - n + Nd+ - Na- in units of q"),
-    "x_electron_density": ("cm-3", "X-valley electrons (classical; part of electron_density)"),
-    "l_electron_density": ("cm-3", "L-valley electrons (classical; part of electron_density)"),
-}
 
-#: units of the /layers columns (others: derived from the column name)
-LAYER_UNITS = {
-    "name": "1", "material": "1", "x_top": "1", "x_bottom": "1",
-    "top_nm": "nm", "bottom_nm": "nm", "thickness_nm": "nm",
-    "electron_sheet_density_cm2": "cm-2", "hole_sheet_density_cm2": "cm-2",
-}
+@dataclass
+class Result:
+    """Outcome of :func:`selfcon.solve`.  ``converged = False`` is a result, not an error."""
 
-LAYER_DESCRIPTIONS = {
-    "name": "layer name from the deck (or its index when unnamed)",
-    "material": "material name",
-    "x_top": "alloy fraction at the top of the layer",
-    "x_bottom": "alloy fraction at the bottom of the layer",
-    "top_nm": "depth of the top interface",
-    "bottom_nm": "depth of the bottom interface",
-    "electron_sheet_density_cm2": "electrons integrated over the layer",
-    "hole_sheet_density_cm2": "holes integrated over the layer",
-}
+    title: str
+    temperature: float
+    converged: bool
+    iterations: int
+    residual: float                     # V, last max |dphi|
+    message: str
+    deck_text: str
+    z: np.ndarray                       # (N,) nm
+    profile: dict[str, np.ndarray]      # keys of PROFILE_FIELDS, each (N,)
+    layer_index: np.ndarray             # (N,) int
+    layers: list[dict[str, Any]]        # rows: name, material, x_top, x_bottom, top_nm, bottom_nm,
+                                        #       electron_sheet_density_cm2, hole_sheet_density_cm2, ...
+    subbands: dict[str, Subbands]
+    residual_history: np.ndarray        # (iterations,) V
+    summary: dict[str, Any]             # /summary attributes (floats, ints, strings)
+    warnings: list[str] = field(default_factory=list)
+    provenance: dict[str, Any] = field(default_factory=dict)
+    record: dict[str, np.ndarray] = field(default_factory=dict)   # per-iteration: residual, charge_residual,
+                                                                   # newton_steps, seconds, damping
+    regions_nm: list[tuple[float, float]] = field(default_factory=list)
 
-ROOT_ATTRS = ("schema", "schema_version", "selfcon_version", "created", "title", "temperature_K",
-              "converged", "iterations", "residual_V", "message", "deck")
+    # SciPy-style status fields
+    @property
+    def success(self) -> bool:
+        return bool(self.converged)
+
+    @property
+    def status(self) -> int:
+        """0 converged, 1 not converged (mirrors the CLI exit codes 0 / 3)."""
+        return 0 if self.converged else 1
+
+    @property
+    def potential(self) -> np.ndarray:
+        return self.profile["potential"]
+
+    def save(self, path, *, force: bool = False) -> None:
+        """Write the DESIGN.md §4 HDF5 file atomically (see save_result)."""
+        save_result(self, path, force=force)
+
+    def __repr__(self) -> str:  # keep reprs short: arrays are large
+        ns = self.summary.get("electron_sheet_density_cm2", float("nan"))
+        return (f"Result(title={self.title!r}, converged={self.converged}, iterations={self.iterations}, "
+                f"residual={self.residual:.2e} V, n_s={ns:.4g} cm^-2, nodes={self.z.size})")
+
 
 _STR = None  # h5py.string_dtype(), set lazily
 
@@ -103,25 +113,6 @@ def _h5py():
     if _STR is None:
         _STR = h5py.string_dtype("utf-8")
     return h5py
-
-
-def _guess_units(name: str) -> str:
-    """Units of a column or dataset named by the project's conventions (suffix rules)."""
-    if name.endswith("_cm2"):
-        return "cm-2"
-    if name.endswith("_cm3") or name.endswith("_density") or name.startswith("ionized_"):
-        return "cm-3"
-    if name.endswith("_nm"):
-        return "nm"
-    if name.endswith("_eV") or name.endswith("_band"):
-        return "eV"
-    if name.endswith("_V"):
-        return "V"
-    if name.endswith("_s"):
-        return "s"
-    if name.endswith("_K"):
-        return "K"
-    return "1"
 
 
 # --------------------------------------------------------------------------- writing
@@ -160,7 +151,7 @@ def _utc_now() -> str:
 
 
 def _write_root(f, result: Result) -> None:
-    from . import __version__
+    from selfcon.version import __version__
     prov = dict(result.provenance or {})
     created = prov.get("created") or _utc_now()
     a = f.attrs

@@ -11,7 +11,7 @@ from dataclasses import dataclass, field, replace
 
 import numpy as np
 
-from .constants import KB_EV, Q_EPS0, NM_PER_CM
+from selfcon.constants import KB_EV, Q_EPS0, NM_PER_CM
 
 DIRICHLET = 0
 ZERO_FIELD = 1
@@ -148,7 +148,7 @@ class PoissonProblem:
                        bottom=self.bottom if bottom is None else bottom)
 
     def model_args(self):
-        """The kernel model argument tuple (order of selfcon.kernels.poisson)."""
+        """The kernel model argument tuple (order of selfcon.solver.kernels.poisson)."""
         return (self.h, self.wl, self.wr, self.eps, self.ec0, self.ev0, self.nc, self.nv,
                 self.nd, self.ed, self.na, self.ea, self.sheet_nd, self.sheet_na, self.kT,
                 bool(self.full_ionization), self.cls_e, self.cls_h, self.psi2, self.ek,
@@ -173,8 +173,8 @@ def solve_poisson(problem, phi0, *, tol=1e-9, max_iter=200, max_step=0.3, backtr
 
     tol: V on max |Newton step|; max_step: V, the step is scaled so that no node moves
     more than this in one step (direction kept); backtrack=False: no residual check of
-    the step (see selfcon.kernels.poisson.poisson_newton)."""
-    from .kernels.poisson import poisson_newton
+    the step (see selfcon.solver.kernels.poisson.poisson_newton)."""
+    from selfcon.solver.kernels.poisson import poisson_newton
     hist = np.zeros(max_iter)
     phi, steps, conv, upd = poisson_newton(
         _f(phi0), *problem.model_args(), problem.top[0], problem.top[1], problem.bottom[0],
@@ -197,7 +197,7 @@ class Densities:
 
 
 def densities(problem, phi):
-    from .kernels.poisson import node_densities
+    from selfcon.solver.kernels.poisson import node_densities
     n, p, ndp, nam, _ = node_densities(_f(phi), *problem.model_args())
     return Densities(n, p, ndp, nam)
 
@@ -213,7 +213,7 @@ def neutral_potential(ec0, ev0, nc, nv, nd, ed, na, ea, kT, full_ionization=Fals
     rho(phi) = p - n + Nd+ - Na- decreases strictly with phi; a bracket around the band
     gap is widened until rho changes sign, then brentq (xtol 1e-13 V)."""
     from scipy.optimize import brentq
-    from .kernels import statistics as ks
+    from selfcon.solver.kernels import statistics as ks
     full = bool(full_ionization)
 
     def rho(phi):
@@ -275,7 +275,7 @@ def boundary_flux(problem, phi, rho=None):
     """FV fluxes eps_r dphi/dz (V/nm) at the top and the bottom node, from the half-cell
     balances (consistent with the discretisation; zero at a converged ZERO_FIELD side).
     ``rho``: the node charge at ``phi`` if the caller has it already."""
-    from .kernels.poisson import fv_boundary_flux
+    from selfcon.solver.kernels.poisson import fv_boundary_flux
     if rho is None:
         rho = densities(problem, phi).rho
     return fv_boundary_flux(_f(phi), problem.h, problem.eps, _f(rho), problem.w)

@@ -1,15 +1,15 @@
-"""Carrier statistics, Python side: thin array wrappers over selfcon.kernels.statistics.
+"""Carrier statistics, Python side: thin array wrappers over selfcon.solver.kernels.statistics.
 
 Internal units (INTERFACES.md): eV, K, nm^-3, nm^-2; EF = 0.  numba is imported
 only when one of these functions is first called.
 """
 import numpy as np
 
-from .constants import DOS2D_PER_M0, KB_EV, NC_PER_M0_K
+from selfcon.constants import DOS2D_PER_M0, KB_EV, NC_PER_M0_K
 
 
 def _k():
-    from .kernels import statistics as ks
+    from selfcon.solver.kernels import statistics as ks
     return ks
 
 

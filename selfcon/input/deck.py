@@ -55,9 +55,9 @@ import tomllib
 from dataclasses import dataclass, field
 from typing import Any
 
-from .errors import DeckError
+from selfcon.errors import DeckError
 
-__all__ = ["load_deck", "parse_override", "deck_reference", "dumps_toml", "KEYS",
+__all__ = ["load_deck", "parse_override", "get_path", "register_method_name", "deck_reference", "dumps_toml", "KEYS",
            "Deck", "Contact", "Layer", "MaterialDef", "Params", "Physics",
            "QuantumSpec", "MeshSpec", "SolverSpec", "DeckError"]
 
@@ -139,7 +139,7 @@ def _p(unit, doc, **kw):
 _POS = dict(lo=0.0, lo_open=True)
 _NONNEG = dict(lo=0.0)
 
-#: deck-local material parameters (all optional here; completeness is checked by selfcon.materials)
+#: deck-local material parameters (all optional here; completeness is checked by selfcon.input.materials)
 MATERIAL_PARAMS = {
     "band_gap": _p("eV", "Gamma gap at 0 K", **_POS),
     "varshni_alpha": _p("eV/K", "Varshni alpha of the Gamma gap"),
@@ -397,6 +397,19 @@ class Deck:
         raise DeckError(f"no layer named {name_or_index!r}{_did_you_mean(str(name_or_index), names)}",
                         file=self._file, key=f"layer.{name_or_index}", allowed=Choices(names))
 
+    def get(self, path, default=None):
+        """Value of a deck path (``temperature``, ``surface.bias``, ``layer.spacer.thickness``,
+        ``layer.2.x``, ``material.M.electron_mass``) in the effective deck, defaults filled in;
+        ``default`` when the deck leaves the key unset.
+
+        >>> deck.get("layer.spacer.thickness")
+        20.0
+        """
+        try:
+            return get_path(self._canonical(), path)
+        except KeyError:
+            return default
+
     def material(self, name):
         """The deck-local MaterialDef called ``name``, or None (a library material)."""
         for m in self.materials:
@@ -526,6 +539,33 @@ def load_deck(path_or_text, overrides=()):
     for p, value in _override_pairs(overrides):
         done.append((_apply_override(raw, p, value, file), value))
     return _build(raw, text, path, tuple(done))
+
+
+def get_path(deck_data: dict, path: str):
+    """Value of a deck path (DESIGN of the override paths above) in a parsed deck dict, or
+    raise KeyError with the reason.  ``layer.NAME.KEY`` and ``layer.INDEX.KEY`` select a layer."""
+    parts = path.split(".")
+    if parts[0] == "layer" and len(parts) == 3:
+        layers = deck_data.get("layer", [])
+        if parts[1].isdigit():
+            i = int(parts[1])
+            if i >= len(layers):
+                raise KeyError(f"the deck has {len(layers)} layers")
+            layer = layers[i]
+        else:
+            match = [lay for lay in layers if lay.get("name") == parts[1]]
+            if not match:
+                raise KeyError(f"no layer named {parts[1]!r}")
+            layer = match[0]
+        if parts[2] not in layer:
+            raise KeyError(f"the layer does not set {parts[2]!r}")
+        return layer[parts[2]]
+    node = deck_data
+    for part in parts:
+        if not isinstance(node, dict) or part not in node:
+            raise KeyError(f"the deck does not set {path!r}")
+        node = node[part]
+    return node
 
 
 def _parse_toml(text, file):
@@ -680,18 +720,25 @@ def _is_overridden(key, overrides):
 
 def _library_names():
     try:
-        from . import materials
+        from selfcon.input import materials
         return tuple(materials.names())
     except (ImportError, AttributeError):
         return LIBRARY_FALLBACK
 
 
+#: method names registered by the solver stage (selfcon.solver.mixers.register adds each mixer
+#: it registers here): the deck stage validates ``solver.method`` without importing the solver
+_REGISTERED_METHODS: list[str] = []
+
+
+def register_method_name(name: str) -> None:
+    """Make ``name`` an allowed ``solver.method`` (called by selfcon.solver.mixers.register)."""
+    if name not in _REGISTERED_METHODS:
+        _REGISTERED_METHODS.append(name)
+
+
 def _solver_methods():
-    try:
-        from . import mixing
-        return tuple(mixing.available_methods())
-    except (ImportError, AttributeError):
-        return SOLVER_METHODS
+    return tuple(dict.fromkeys(SOLVER_METHODS + tuple(_REGISTERED_METHODS)))
 
 
 # ---------------------------------------------------------------------------

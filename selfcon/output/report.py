@@ -15,8 +15,8 @@ from typing import Any
 import numpy as np
 
 # a subband counts as occupied above OCCUPIED_CM2 (cm^-2) and OCCUPIED_FRACTION of its band's total:
-# the same rule as the /summary counts written by selfcon.assemble
-from .assemble import OCCUPIED_CM2, OCCUPIED_FRACTION  # noqa: E402
+# the same rule as the /summary counts written by selfcon.output.assemble
+from selfcon.output.assemble import OCCUPIED_CM2, OCCUPIED_FRACTION  # noqa: E402
 
 BAND_LABELS = {"electron": "electron", "heavy_hole": "heavy hole", "light_hole": "light hole"}
 

@@ -11,8 +11,8 @@ from pathlib import Path
 
 import numpy as np
 
-from .errors import SelfconInputError
-from .result import PROFILE_FIELDS
+from selfcon.errors import SelfconInputError
+from selfcon.output.schema import PROFILE_FIELDS
 
 PROFILE_CSV = "profile.csv"
 SUBBANDS_CSV = "subbands.csv"
@@ -25,7 +25,7 @@ def _num(v) -> str:
 
 
 def _profile_units(name):
-    from .results import EXTRA_PROFILE_FIELDS, _guess_units
+    from selfcon.output.schema import EXTRA_PROFILE_FIELDS, guess_units as _guess_units
     if name in PROFILE_FIELDS:
         return PROFILE_FIELDS[name][0]
     if name in EXTRA_PROFILE_FIELDS:

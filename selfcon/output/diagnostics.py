@@ -1,6 +1,6 @@
 """Design warnings: plain-English notes on a solved structure that a grower would want to see.
 
-:func:`design_warnings` is called by ``selfcon.assemble.build_result`` on every solve;
+:func:`design_warnings` is called by ``selfcon.output.assemble.build_result`` on every solve;
 its lines end up in ``Result.warnings``, the ``run``/``show`` output, the JSON and the
 ``/summary`` attribute ``warnings`` of the result file.  Each check is a plain function
 ``check_*(result, structure) -> list[str]`` so it can be tested on its own.
@@ -31,7 +31,7 @@ import tomllib
 
 import numpy as np
 
-from .constants import KB_EV, NM_PER_CM
+from selfcon.constants import KB_EV, NM_PER_CM
 
 SECOND_SUBBAND_FRACTION = 0.01
 PARALLEL_FRACTION = 0.01

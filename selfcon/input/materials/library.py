@@ -5,7 +5,7 @@ Parameter names are the deck's own keys (DESIGN.md §3), so a deck-local
 
 Binaries: ``BINARIES[name][key] -> Value``.  Alloys: ``ALLOYS[name] -> Alloy``,
 with the two end binaries and the bowing parameters; the interpolation rules
-themselves live in :mod:`selfcon.materials.alloys`.
+themselves live in :mod:`selfcon.input.materials.alloys`.
 
 Band parameters are from I. Vurgaftman, J. R. Meyer and L. R. Ram-Mohan,
 J. Appl. Phys. 89, 5815 (2001), recalled from memory (no copy of the paper was

@@ -18,7 +18,7 @@ Arrays in, arrays out; nothing here is compiled at import time.
 import numba
 import numpy as np
 
-from ..constants import HBAR2_2M0
+from selfcon.constants import HBAR2_2M0
 
 
 @numba.njit(cache=True)

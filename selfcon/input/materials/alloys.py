@@ -11,8 +11,8 @@ import difflib
 
 import numpy as np
 
-from ..errors import MaterialError
-from .library import ALLOYS, BINARIES, BOWED, PARAMETERS
+from selfcon.errors import MaterialError
+from selfcon.input.materials.library import ALLOYS, BINARIES, BOWED, PARAMETERS
 
 #: (valley suffix, gap key, alpha key, beta key)
 VALLEYS = (

@@ -16,15 +16,15 @@ Units: nm, eV, masses in m0.
 """
 import numpy as np
 
-from .constants import HBAR2_2M0  # noqa: F401  (documented unit of the operator)
+from selfcon.constants import HBAR2_2M0  # noqa: F401  (documented unit of the operator)
 
 __all__ = ["EigenWorkspace", "solve_region", "bound_states", "bound_states_cells",
            "in_plane_mass", "dual_widths"]
 
 
 def _kernels():
-    # imported lazily so that `import selfcon.quantum` compiles nothing
-    from .kernels import schrodinger
+    # imported lazily so that `import selfcon.solver.schrodinger` compiles nothing
+    from selfcon.solver.kernels import schrodinger
     return schrodinger
 
 

@@ -45,8 +45,8 @@ import math
 import numpy as np
 from numba import njit
 
-from ..constants import Q_EPS0
-from .statistics import acceptor_ionized, donor_ionized, fermi_half, fermi_mhalf
+from selfcon.constants import Q_EPS0
+from selfcon.solver.kernels.statistics import acceptor_ionized, donor_ionized, fermi_half, fermi_mhalf
 
 
 #: below this reduced energy F_{1/2}(eta) = F_{-1/2}(eta) = e^eta (1 + O(e^eta)), O(e^-40) ~ 4e-18

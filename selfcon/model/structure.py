@@ -13,11 +13,11 @@ from typing import Any
 
 import numpy as np
 
-from .constants import CM2_PER_NM2, CM3_PER_NM3, KB_EV, NC_PER_M0_K
-from .errors import DeckError
-from .mesh import Mesh, build_mesh
+from selfcon.constants import CM2_PER_NM2, CM3_PER_NM3, KB_EV, NC_PER_M0_K
+from selfcon.errors import DeckError
+from selfcon.model.mesh import Mesh, build_mesh
 
-#: per-cell arrays taken from the material library (selfcon.materials.cell_parameters keys)
+#: per-cell arrays taken from the material library (selfcon.input.materials.cell_parameters keys)
 MATERIAL_KEYS = ("eps", "ec_gamma", "ec_x", "ec_l", "ev_hh", "ev_lh", "m_e", "m_hh_z", "m_lh_z",
                  "m_hh_par", "m_lh_par", "m_x_l", "m_x_t", "m_l_l", "m_l_t", "m_c_dos", "m_v_dos",
                  "donor_binding", "acceptor_binding", "eg_gamma")
@@ -101,7 +101,7 @@ def _contact(spec) -> Contact:
 def _uniform_parameters(name, x, temperature, local_defs, needs) -> dict:
     """Material parameters of one composition (scalars); cached, since studies solve the
     same materials at the same temperature over and over.  Errors are not cached."""
-    from . import materials
+    from selfcon.input import materials
     params = materials.cell_parameters(name, np.array([x]), temperature, local_defs, needs)
     return {k: float(v[0]) for k, v in params.items()}
 
@@ -117,10 +117,10 @@ def build_structure(deck, *, mesh: Mesh | None = None) -> Structure:
     """Mesh the deck's stack and fill every array from the material library.
 
     ``mesh``: use this mesh instead of the deck's graded one (benchmarks compare a
-    uniform mesh, selfcon.mesh.uniform_mesh); it must span the stack and carry every
+    uniform mesh, selfcon.model.mesh.uniform_mesh); it must span the stack and carry every
     interface, sheet and region end as a node.
     """
-    from . import materials
+    from selfcon.input import materials
 
     T = float(deck.temperature)
     layers = []
@@ -251,7 +251,7 @@ def coarsened(st: Structure, factor: int = 4) -> tuple[Structure, np.ndarray]:
     for a cheap starting potential; returns (coarse structure, kept fine-node indices).
     """
     from dataclasses import replace
-    from .mesh import half_widths
+    from selfcon.model.mesh import half_widths
     key = key_nodes(st)
     keep = key.copy()
     idx = np.flatnonzero(key)

@@ -21,7 +21,7 @@ import math
 import numpy as np
 from numba import njit
 
-from . import _fermi_table as _T
+from selfcon.solver.kernels import _fermi_table as _T
 
 _SERIES_ETA = _T.SERIES_ETA
 _SOMM_ETA = _T.SOMMERFELD_ETA

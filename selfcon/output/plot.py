@@ -19,7 +19,7 @@ from pathlib import Path
 
 import numpy as np
 
-from .errors import SelfconInputError
+from selfcon.errors import SelfconInputError
 
 DEFAULT_SIZE = (1200, 900)     # pixels
 DPI = 100
@@ -91,7 +91,7 @@ def _allowed_span(z, edge, energy, sign, region):
 
 
 def _states_to_draw(sb):
-    from .assemble import OCCUPIED_CM2, OCCUPIED_FRACTION     # the /summary rule for "occupied"
+    from selfcon.output.assemble import OCCUPIED_CM2, OCCUPIED_FRACTION     # the /summary rule for "occupied"
     occ = np.asarray(sb.occupation)
     n_occ = int(np.sum((occ > OCCUPIED_CM2) & (occ > OCCUPIED_FRACTION * max(float(occ.sum()), 1e-300))))
     count = min(np.asarray(sb.energy).size, n_occ + EMPTY_STATES_DRAWN, MAX_STATES_DRAWN)
@@ -193,7 +193,7 @@ def _draw_states(ax, result, z, ec, ev, span, regions, fs, labels=False, only=No
 
 def _figures_card(ax, result, fs):
     """Bottom-right panel: the headline figures as a small text card."""
-    from .report import sci, summary_figures
+    from selfcon.output.report import sci, summary_figures
     fig = summary_figures(result)
     ax.set_axis_off()
     lines = [("converged" if fig["converged"] else "NOT CONVERGED") + f" · {fig['iterations']} iterations",

@@ -31,7 +31,10 @@ _REGISTRY: dict[str, type] = {}
 
 
 def register(cls):
+    """Class decorator: make ``cls`` available as ``solver.method = cls.name``."""
+    from selfcon.input.deck import register_method_name
     _REGISTRY[cls.name] = cls
+    register_method_name(cls.name)
     return cls
 
 

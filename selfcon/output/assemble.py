@@ -14,9 +14,10 @@ from importlib import metadata
 
 import numpy as np
 
-from .constants import CM2_PER_NM2, CM3_PER_NM3, NM_PER_CM
-from .result import BANDS, Result, Subbands
-from .statistics import subband_density
+from selfcon.constants import CM2_PER_NM2, CM3_PER_NM3, NM_PER_CM
+from selfcon.output.result import Result, Subbands
+from selfcon.output.schema import BANDS
+from selfcon.solver.statistics import subband_density
 
 #: an electron subband counts as occupied above this sheet density (cm^-2) and fraction of n_s
 OCCUPIED_CM2 = 1e8
@@ -44,7 +45,7 @@ def per_layer(st, node_density: np.ndarray) -> np.ndarray:
 def valley_density(st, phi, edge_cell, nc_cell) -> np.ndarray:
     """Classical density (nm^-3) of one conduction valley at the nodes, dual-cell averaged
     with each half cell's own edge (the Poisson kernel's model)."""
-    from .statistics import fermi_half
+    from selfcon.solver.statistics import fermi_half
     m = st.mesh
     left = np.zeros(m.n)
     right = np.zeros(m.n)
@@ -79,7 +80,7 @@ def _versions() -> dict:
 
 
 def build_result(deck, st, bc, loop, *, wall_time: float, method: str) -> Result:
-    from . import coupling
+    from selfcon.solver import charge as coupling
     phi = loop.phi
     n, p, ndp, nam = coupling.densities_with_states(st, phi, loop.states)
     ec = right_cell_values(st.cell["ec_gamma"]) - phi
@@ -197,7 +198,7 @@ def build_result(deck, st, bc, loop, *, wall_time: float, method: str) -> Result
         summary=summary, warnings=[], provenance=provenance, record=record,
         regions_nm=[tuple(map(float, r)) for r in st.regions_nm])
     try:
-        from .diagnostics import design_warnings
+        from selfcon.output.diagnostics import design_warnings
     except ImportError:
         design_warnings = None
     if design_warnings is not None:

@@ -12,7 +12,7 @@ plain function of named steps::
         control (damp on growth, stop on divergence / stagnation)
         phi = mixer.update(phi, r)
 
-The mixer (selfcon.mixing) is chosen by name and knows no physics.  With the
+The mixer (selfcon.solver.mixers) is chosen by name and knows no physics.  With the
 predictor–corrector coupling (Trellakis et al., J. Appl. Phys. 81, 7880, 1997)
 the Poisson pass lets the quantum density follow the potential,
 n(z) = sum_k |psi_k(z)|^2 D_k kT ln(1 + exp((EF - E_k + dphi(z))/kT)), so the
@@ -29,10 +29,10 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from .constants import CM2_PER_NM2
-from .mixing import get_mixer
-from .statistics import subband_density
-from .structure import Structure, build_structure, coarsened
+from selfcon.constants import CM2_PER_NM2
+from selfcon.solver.mixers import get_mixer
+from selfcon.solver.statistics import subband_density
+from selfcon.model.structure import Structure, build_structure, coarsened
 
 #: band name -> (edge key, mass along z, in-plane mass, sign: +1 electrons, -1 holes, valley degeneracy)
 BAND_SPECS = {
@@ -92,37 +92,19 @@ class Iteration:
     damping: float
 
 
-# --------------------------------------------------------------------------- front function
+# --------------------------------------------------------------------------- set-up
 
-def solve(deck, *, initial_potential=None, progress=None, structure: Structure | None = None,
-          method: str | None = None, tolerance: float | None = None,
-          max_iterations: int | None = None):
-    """Solve one deck self-consistently and return a :class:`selfcon.result.Result`.
+def make_mixer(method: str, spec):
+    from selfcon.solver.mixers import _REGISTRY
+    cls = _REGISTRY.get(method)
+    opts = {}
+    if cls is not None:
+        for name in cls.option_names:
+            val = getattr(spec, name, None)
+            if val is not None:
+                opts[name] = val
+    return get_mixer(method, **opts)
 
-    ``deck``: a Deck, a path or TOML text.  ``initial_potential``: phi (V) on this
-    deck's mesh, or ``(z_nm, phi_V)`` to interpolate from another mesh (warm
-    start, continuation).  ``progress``: callable(iteration, residual_V).
-    ``method``/``tolerance``/``max_iterations`` override the deck's [solver].
-    """
-    from .deck import Deck, load_deck
-    t0 = time.perf_counter()
-    if not isinstance(deck, Deck):
-        deck = load_deck(deck)
-    st = structure if structure is not None else build_structure(deck)
-    spec = deck.solver
-    method = method or spec.method
-    tol = float(tolerance if tolerance is not None else spec.tolerance)
-    max_it = int(max_iterations if max_iterations is not None else spec.max_iterations)
-    ctol = float(getattr(spec, "charge_tolerance", None) or 1e-6)
-    mixer = make_mixer(method, spec)
-    bc = boundary_conditions(st)
-    phi0 = None
-    if initial_potential is not None:
-        phi0 = _interpolate_guess(st, initial_potential)
-    loop = run_loop(st, bc, mixer, phi0=phi0, tol=tol, charge_tol=ctol, max_iter=max_it,
-                    progress=progress)
-    from .assemble import build_result
-    return build_result(deck, st, bc, loop, wall_time=time.perf_counter() - t0, method=method)
 
 
 def extrapolate_potential(previous, value):
@@ -151,58 +133,6 @@ def extrapolate_potential(previous, value):
     return (z1, np.asarray(p1) + t * (np.asarray(p1) - np.asarray(p2)))
 
 
-def solve_warm(deck, initial_potential, *, structure: Structure | None = None):
-    """Solve from a warm start; if that fails to converge, solve cold and keep the better.
-
-    Returns ``(result, warm_used)``; with ``initial_potential=None`` it is a cold solve.
-    Used by continuation along bias sweeps and by target seeking.
-    """
-    if initial_potential is not None:
-        r = solve(deck, structure=structure, initial_potential=initial_potential)
-        if r.converged:
-            return r, True
-        cold = solve(deck, structure=structure)
-        return (cold, False) if (cold.converged or cold.residual < r.residual) else (r, True)
-    return solve(deck, structure=structure), False
-
-
-def make_mixer(method: str, spec):
-    from .mixing import _REGISTRY
-    cls = _REGISTRY.get(method)
-    opts = {}
-    if cls is not None:
-        for name in cls.option_names:
-            val = getattr(spec, name, None)
-            if val is not None:
-                opts[name] = val
-    return get_mixer(method, **opts)
-
-
-def warm_up():
-    """Compile (or load from the numba cache) every kernel the loop uses, on a tiny deck."""
-    from .deck import load_deck
-    text = """
-title = "warm-up"
-temperature = 77.0
-[surface]
-contact = "schottky"
-barrier = 0.7
-[substrate]
-contact = "ohmic"
-[[layer]]
-material = "AlGaAs"
-x = 0.3
-thickness = 10.0
-sheet_donors = 1e12
-[[layer]]
-material = "GaAs"
-thickness = 20.0
-donors = 1e15
-[mesh]
-step = 2.0
-"""
-    solve(load_deck(text))
-
 
 # --------------------------------------------------------------------------- the loop
 
@@ -218,7 +148,7 @@ class LoopOutcome:
 
 def run_loop(st: Structure, bc, mixer, *, phi0=None, tol=1e-6, charge_tol=1e-6, max_iter=100,
              progress=None) -> LoopOutcome:
-    from . import quantum
+    from selfcon.solver import schrodinger as quantum
     workspaces = {}
     phi, classical_steps = initial_guess(st, bc, phi0)
     n_states = {band: st.states for band in BAND_SPECS}
@@ -312,7 +242,7 @@ def _oscillating(history, window=8) -> bool:
 
 def boundary_conditions(st: Structure):
     """Per side (kind, value): kind 0 Dirichlet phi = value, kind 1 zero field."""
-    from . import coupling
+    from selfcon.solver import charge as coupling
     out = []
     for contact, c in ((st.surface, 0), (st.substrate, st.n_nodes - 2)):
         ec0 = st.cell["ec_gamma"][c]
@@ -330,7 +260,7 @@ def boundary_conditions(st: Structure):
 def initial_guess(st: Structure, bc, phi0=None):
     """Starting potential: the classical nonlinear Poisson solution (every carrier
     classical) on the coarsened meshes, interpolated to the full mesh; or a warm start."""
-    from . import coupling
+    from selfcon.solver import charge as coupling
     if phi0 is not None:
         phi = np.array(phi0, dtype=float)
         for side, idx in ((0, 0), (1, -1)):
@@ -385,7 +315,7 @@ def _interpolate_guess(st: Structure, guess):
 
 def solve_states(st: Structure, phi, n_states, workspaces, quantum) -> dict:
     """Schrödinger in every quantum region for every quantum band at potential phi."""
-    from . import coupling
+    from selfcon.solver import charge as coupling
     out = {}
     n = st.n_nodes
     for band, (edge_key, mass_key, par_key, sign, gval) in BAND_SPECS.items():
@@ -435,7 +365,7 @@ def solve_states(st: Structure, phi, n_states, workspaces, quantum) -> dict:
         order = np.argsort(sign * E, kind="stable")     # lowest kinetic energy first
         psi = np.concatenate(psis, axis=1)[:, order]
         m_par = np.concatenate(mpar)[order]
-        from .constants import DOS2D_PER_M0
+        from selfcon.constants import DOS2D_PER_M0
         deg = np.full(E.size, float(gval))
         out[band] = BandStates(band=band, energy=E[order], psi=psi, m_par=m_par,
                                dos=deg * DOS2D_PER_M0 * m_par, region=np.concatenate(regs)[order],
@@ -458,7 +388,7 @@ def poisson_pass(st: Structure, bc, phi, states, *, predictor: bool, tol: float 
                  max_newton: int = POISSON_MAX_ITER, backtrack: bool = True):
     """Nonlinear Poisson with the quantum density from ``states`` (predictor or frozen):
     Newton to ``tol`` or at most ``max_newton`` steps."""
-    from . import coupling
+    from selfcon.solver import charge as coupling
     sol = coupling.solve_with_states(st, bc, phi, states, predictor=predictor,
                                     tol=tol, max_iter=max_newton, backtrack=backtrack)
     return sol.phi, sol.steps
@@ -467,12 +397,12 @@ def poisson_pass(st: Structure, bc, phi, states, *, predictor: bool, tol: float 
 def charge_residual(st, bc, phi, phi_out, states) -> float:
     """Relative change of the mobile sheet charge over one step: subband density at phi
     against the (predicted) density at phi_out, both with the same states."""
-    from . import coupling
+    from selfcon.solver import charge as coupling
     n0, p0 = coupling.mobile_sheets(st, phi, phi, states)
     n1, p1 = coupling.mobile_sheets(st, phi, phi_out, states)
     total = n0 + p0
     return abs((n1 + p1) - total) / max(total, 1e-6 / CM2_PER_NM2)
 
 
-__all__ = ["solve", "solve_warm", "run_loop", "warm_up", "extrapolate_potential", "solve_states",
+__all__ = ["run_loop", "make_mixer", "extrapolate_potential", "solve_states",
            "poisson_pass", "initial_guess", "boundary_conditions", "BAND_SPECS", "BandStates"]

@@ -7,15 +7,15 @@
     cell_parameters(name, x, temperature, local_defs=(), needs=frozenset())
                                  per-cell arrays (keys: OUTPUT_UNITS)
 
-Data with sources: :mod:`selfcon.materials.library`.  Rules (Varshni, bowing,
-deck-local materials): :mod:`selfcon.materials.alloys`.  Imports numpy only.
+Data with sources: :mod:`selfcon.input.materials.library`.  Rules (Varshni, bowing,
+deck-local materials): :mod:`selfcon.input.materials.alloys`.  Imports numpy only.
 """
 import numpy as np
 
-from ..errors import MaterialError
-from . import alloys as _rules
-from .library import ALLOY_RULES, ALLOYS, BINARIES, PARAMETERS, Bowing, Value  # noqa: F401
-from .alloys import OUTPUT_UNITS, FILL_MASS, FILL_VALLEY_OFFSET  # noqa: F401
+from selfcon.errors import MaterialError
+from selfcon.input.materials import alloys as _rules
+from selfcon.input.materials.library import ALLOY_RULES, ALLOYS, BINARIES, PARAMETERS, Bowing, Value  # noqa: F401
+from selfcon.input.materials.alloys import OUTPUT_UNITS, FILL_MASS, FILL_VALLEY_OFFSET  # noqa: F401
 
 __all__ = ["names", "is_alloy", "describe", "cell_parameters", "PARAMETERS", "OUTPUT_UNITS",
            "NEEDS", "Value", "Bowing"]
@@ -111,7 +111,7 @@ def _computed_rows(name, x, temperature, local_defs):
     t = 0.0 if temperature is None else float(temperature)
     vals = cell_parameters(name, xs, t, local_defs)
     where = f"T = {t:g} K" + ("" if x is None else f", x = {float(x):g}")
-    src = f"computed at {where} from the values above (selfcon.materials.alloys rules)"
+    src = f"computed at {where} from the values above (selfcon.input.materials.alloys rules)"
     return [_row(k, float(v[0]), OUTPUT_UNITS[k], src) for k, v in vals.items()]
 
 
@@ -143,7 +143,7 @@ def describe(name, x=None, temperature=None, local_defs=()):
             rows.append(_row(f"{current}.{key}", float(value), unit, src))
         if d.base is None:
             rows.append(_row(f"{current}.defaults", "see cell_parameters", "",
-                             "absent optional parameters are filled (selfcon.materials."
+                             "absent optional parameters are filled (selfcon.input.materials."
                              "cell_parameters docstring)"))
             current = None
             break
