@@ -9,7 +9,8 @@
 
 Exit codes: 0 converged / ok, 2 bad input (one line ``selfcon: error: ...`` on
 stderr, no traceback), 3 not converged (result still written, converged =
-false), 1 internal error (set SELFCON_DEBUG=1 for the traceback).
+false), 4 environment failure (lost scheduler, workers of another version, ...),
+1 internal error (set SELFCON_DEBUG=1 for the traceback).
 
 Other packages add subcommands through :data:`EXTRA_COMMANDS`: each module
 listed there, if it exists, has ``register(subparsers)`` adding parsers with
@@ -25,7 +26,7 @@ import sys
 import traceback
 from pathlib import Path
 
-from selfcon.errors import ResultFileError, SelfconInputError
+from selfcon.errors import EXIT_ENVIRONMENT, ResultFileError, SelfconEnvironmentError, SelfconInputError
 
 #: modules whose ``register(subparsers)`` adds subcommands, imported if they exist
 EXTRA_COMMANDS = ("selfcon.batch.commands", "selfcon.design.commands")
@@ -376,7 +377,8 @@ def build_parser() -> argparse.ArgumentParser:
     p = _Parser(prog="selfcon", description="Self-consistent Schrödinger–Poisson solutions for layered "
                 "semiconductor structures.",
                 epilog="exit codes: 0 ok/converged, 1 internal error, 2 bad input, 3 not converged "
-                       "(result still written). SELFCON_DEBUG=1 shows tracebacks.")
+                       "(result still written), 4 environment failure (e.g. lost scheduler). "
+                       "SELFCON_DEBUG=1 shows tracebacks.")
     p.add_argument("--version", action="version", version=f"selfcon {__version__}")
     sub = p.add_subparsers(dest="command", metavar="COMMAND", parser_class=_Parser)
     sub.required = True
@@ -477,6 +479,11 @@ def main(argv=None) -> int:
         where = f"{exc.filename}: " if exc.filename else ""
         print(f"selfcon: error: {where}{_one_line(exc.strerror or exc)}", file=sys.stderr)
         return EXIT_INPUT
+    except SelfconEnvironmentError as exc:
+        if debug:
+            traceback.print_exc()
+        print(f"selfcon: error: {_one_line(exc)}", file=sys.stderr)
+        return EXIT_ENVIRONMENT
     except KeyboardInterrupt:
         print("selfcon: interrupted", file=sys.stderr)
         return 130

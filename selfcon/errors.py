@@ -45,3 +45,16 @@ class StudyError(SelfconInputError):
 
 class ResultFileError(SelfconInputError):
     """A result file cannot be read (missing, not a selfcon result, newer schema)."""
+
+
+#: exit code of an environment or file-system failure (lost or unreachable scheduler,
+#: worker-version mismatch, disk full, ...): not the user's input, not a bug
+EXIT_ENVIRONMENT = 4
+
+
+class SelfconEnvironmentError(RuntimeError):
+    """The environment failed, not the input and not the code: a lost or unreachable
+    scheduler, workers running another selfcon, a full disk.  CLI exit code 4.
+
+    ``str(err)`` is one line saying what failed and where.
+    """

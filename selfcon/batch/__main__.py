@@ -2,7 +2,7 @@
 import argparse
 import sys
 
-from selfcon.errors import SelfconInputError
+from selfcon.errors import EXIT_ENVIRONMENT, SelfconEnvironmentError, SelfconInputError
 from selfcon.batch.commands import register
 
 
@@ -16,6 +16,9 @@ def main(argv=None):
     except SelfconInputError as exc:
         print(f"error: {exc}", file=sys.stderr)
         return 2
+    except SelfconEnvironmentError as exc:
+        print(f"error: {exc}", file=sys.stderr)
+        return EXIT_ENVIRONMENT
 
 
 if __name__ == "__main__":
