@@ -5,7 +5,8 @@
 The expected line is the 1-based line of the offending text, found by a plain
 substring search in the fixture itself (``_line``), not by selfcon's locator.
 
-Import from a test module in tests/: ``from bad_decks import BAD_DECKS, GOOD_DECK``.
+Only tests/conftest.py imports this module; tests take the ``good_deck_text``, ``good_deck``,
+``bad_deck`` and ``bad_deck_table`` fixtures it defines.
 """
 
 GOOD_DECK = '''\

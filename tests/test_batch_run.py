@@ -391,17 +391,60 @@ def test_dask_local_cluster_matches_the_pool(tmp_path):
     assert _comparable(read_table(op)) == _comparable(read_table(od))
 
 
+#: a job function wrapping the real one (or the stand-in under test) that logs "start PID KEY" and
+#: "end PID KEY" around each job, so a test can see which worker process holds which job
+PROBE = """
+import hashlib, importlib, os
+
+def job(deck_text, initial=None):
+    key = hashlib.sha256(deck_text.encode()).hexdigest()[:16]
+    mod, _, name = os.environ["SELFCON_TEST_PROBE_INNER"].partition(":")
+    inner = getattr(importlib.import_module(mod), name)
+    with open(os.environ["SELFCON_TEST_PROBE_LOG"], "a") as fh:
+        fh.write(f"start {os.getpid()} {key}\\n")
+    out = inner(deck_text, initial)
+    with open(os.environ["SELFCON_TEST_PROBE_LOG"], "a") as fh:
+        fh.write(f"end {os.getpid()} {key}\\n")
+    return out
+"""
+
+
+def probe_env(tmp_path):
+    """ENV with the job function replaced by PROBE (importable from tmp_path by coordinator and workers)."""
+    (tmp_path / "selfcon_test_probe.py").write_text(PROBE)
+    log = tmp_path / "probe.log"
+    env = dict(ENV, PYTHONPATH=os.pathsep.join(filter(None, [str(tmp_path), ENV.get("PYTHONPATH")])),
+               SELFCON_TEST_PROBE_LOG=str(log),
+               SELFCON_TEST_PROBE_INNER=ENV.get("SELFCON_BATCH_JOB", "selfcon.batch.worker:run_job"),
+               SELFCON_BATCH_JOB="selfcon_test_probe:job")
+    return env, log
+
+
+def probe_jobs(log):
+    """{pid: key of the job it is running now, or None}, from the probe log."""
+    holding = {}
+    for line in log.read_text().splitlines():
+        what, pid, key = line.split()
+        holding[int(pid)] = key if what == "start" else None
+    return holding
+
+
 def test_dask_worker_killed_mid_run_still_completes(tmp_path):
     pytest.importorskip("distributed")
     study = kill_study(tmp_path)
     out = tmp_path / "study"
-    proc = cli("batch", str(study), "--workers", "2", "--scheduler", "local", "--memory-limit", "2GiB")
+    env, log = probe_env(tmp_path)
+    proc = subprocess.Popen([sys.executable, "-m", CLI, "batch", str(study), "--workers", "2", "--scheduler",
+                             "local", "--memory-limit", "2GiB"], env=env, stdout=subprocess.PIPE,
+                            stderr=subprocess.PIPE, text=True)
     try:
         wait_done(out, 2, proc=proc)
-        victims = [p for p, (pp, cmd) in descendants(proc.pid).items()
+        workers = [p for p, (pp, cmd) in descendants(proc.pid).items()
                    if "spawn_main" in cmd and "resource_tracker" not in cmd]
-        assert victims
-        os.kill(victims[0], signal.SIGKILL)
+        busy = {pid: key for pid, key in probe_jobs(log).items() if key is not None and pid in workers}
+        assert busy, (workers, log.read_text())              # a worker process is inside a job right now
+        victim, job = next(iter(busy.items()))
+        os.kill(victim, signal.SIGKILL)
         stdout, stderr = proc.communicate(timeout=240)
     finally:
         if proc.poll() is None:
@@ -409,3 +452,7 @@ def test_dask_worker_killed_mid_run_still_completes(tmp_path):
     assert proc.returncode == 0, stderr
     rows = read_table(out)
     assert len(rows) == 18 and all(r["status"] == "done" for r in rows)
+    # the kill hit a running job: the victim never finished it, another worker ran it to the end
+    events = [line.split() for line in log.read_text().splitlines()]
+    assert ["end", str(victim), job] not in events
+    assert any(e[0] == "end" and e[2] == job and e[1] != str(victim) for e in events)

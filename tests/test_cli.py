@@ -1,13 +1,11 @@
-"""The command line (DESIGN.md §5): exit codes, messages, --set, --json, show/export/materials.
+"""The command line (README, "Command line"): exit codes, messages, --set, --json, show/export/materials.
 
 Most cases call ``cli.main(argv)`` in-process (fast); a few go through a real
 subprocess (``python -m selfcon``) to see exactly what a shell sees.
 """
 import csv
 import json
-import os
 import shutil
-import subprocess
 import sys
 
 import h5py
@@ -15,51 +13,20 @@ import numpy as np
 import pytest
 from pathlib import Path
 
-from bad_decks import BAD_DECKS, GOOD_DECK
 from selfcon import cli
-from selfcon.output.result import save_result
-from test_results import make_result
-
-
-def run_cli(capsys, *argv):
-    code = cli.main(list(argv))
-    out, err = capsys.readouterr()
-    return code, out, err
-
-
-def run_sub(*argv, cwd=None, env=None):
-    full_env = dict(os.environ)
-    full_env.pop("SELFCON_DEBUG", None)
-    full_env.update(env or {})
-    return subprocess.run([sys.executable, "-m", "selfcon", *argv], capture_output=True, text=True,
-                          cwd=cwd, env=full_env, timeout=600)
-
-
-@pytest.fixture
-def good_deck(tmp_path):
-    p = tmp_path / "good.toml"
-    p.write_text(GOOD_DECK)
-    return p
-
-
-@pytest.fixture
-def result_file(tmp_path):
-    p = tmp_path / "fake.h5"
-    save_result(make_result(), p)
-    return p
 
 
 # --------------------------------------------------------------------------- check and bad decks
 
-def test_check_good_deck(capsys, good_deck):
-    code, out, err = run_cli(capsys, "check", str(good_deck))
+def test_check_good_deck(run_cli, good_deck):
+    code, out, err = run_cli("check", str(good_deck))
     assert code == 0, err
     for word in ("cap", "barrier", "channel", "AlGaAs", "nodes", "quantum region"):
         assert word in out, word
 
 
-def test_check_json_mesh_stats(capsys, good_deck):
-    code, out, _ = run_cli(capsys, "check", str(good_deck), "--json")
+def test_check_json_mesh_stats(run_cli, good_deck):
+    code, out, _ = run_cli("check", str(good_deck), "--json")
     assert code == 0
     fig = json.loads(out)
     assert [L["name"] for L in fig["layers"]] == ["cap", "barrier", "channel"]
@@ -80,18 +47,18 @@ def _assert_one_line_error(code, err, key, line):
         assert f":{line}:" in lines[0], (line, lines[0])
 
 
-@pytest.mark.parametrize("case_id, text, key, line", BAD_DECKS, ids=[c[0] for c in BAD_DECKS])
-def test_bad_deck_check_exit_2(capsys, tmp_path, case_id, text, key, line):
+def test_bad_deck_check_exit_2(run_cli, tmp_path, bad_deck):
+    case_id, text, key, line = bad_deck
     deck = tmp_path / f"{case_id}.toml"
     deck.write_text(text)
-    code, out, err = run_cli(capsys, "check", str(deck))
+    code, out, err = run_cli("check", str(deck))
     _assert_one_line_error(code, err, key, line)
     assert str(deck) in err
 
 
-@pytest.mark.parametrize("case_id", ["toml_syntax", "unknown_layer_key", "unknown_material"])
-def test_bad_deck_check_exit_2_subprocess(tmp_path, case_id):
-    _, text, key, line = next(c for c in BAD_DECKS if c[0] == case_id)
+@pytest.mark.bad_decks("toml_syntax", "unknown_layer_key", "unknown_material")
+def test_bad_deck_check_exit_2_subprocess(run_sub, tmp_path, bad_deck):
+    _, text, key, line = bad_deck
     deck = tmp_path / "bad.toml"
     deck.write_text(text)
     proc = run_sub("check", str(deck))
@@ -99,22 +66,22 @@ def test_bad_deck_check_exit_2_subprocess(tmp_path, case_id):
     assert proc.stdout == ""
 
 
-def test_missing_deck_file_exit_2(capsys, tmp_path):
-    code, _, err = run_cli(capsys, "check", str(tmp_path / "nope.toml"))
+def test_missing_deck_file_exit_2(run_cli, tmp_path):
+    code, _, err = run_cli("check", str(tmp_path / "nope.toml"))
     _assert_one_line_error(code, err, None, None)
     assert "no such deck file" in err
 
 
-def test_usage_errors_exit_2(capsys):
-    assert run_cli(capsys, "run")[0] == 2                     # missing DECK
-    assert run_cli(capsys, "frobnicate")[0] == 2              # unknown command
-    assert run_cli(capsys, "plot", "x.h5")[0] == 2            # -o is required
-    code, out, _ = run_cli(capsys, "--help")
+def test_usage_errors_exit_2(run_cli):
+    assert run_cli("run")[0] == 2                     # missing DECK
+    assert run_cli("frobnicate")[0] == 2              # unknown command
+    assert run_cli("plot", "x.h5")[0] == 2            # -o is required
+    code, out, _ = run_cli("--help")
     assert code == 0 and "run" in out and "materials" in out
 
 
-def test_set_reaches_layers_by_name_and_index(capsys, good_deck):
-    code, out, err = run_cli(capsys, "check", str(good_deck), "--json", "--set", "layer.channel.thickness=55",
+def test_set_reaches_layers_by_name_and_index(run_cli, good_deck):
+    code, out, err = run_cli("check", str(good_deck), "--json", "--set", "layer.channel.thickness=55",
                              "--set", "layer.1.x=0.25", "--set", "temperature=77",
                              "--set", "quantum.regions=[[10.0, 100.0]]")
     assert code == 0, err
@@ -130,55 +97,55 @@ def test_set_reaches_layers_by_name_and_index(capsys, good_deck):
     ("layer.7.thickness=5", "layer.7", "0, 1, 2"),
     ("layer.cap.thikness=5", "thikness", "thickness"),
 ])
-def test_set_bad_path_lists_choices(capsys, good_deck, override, key, allowed):
-    code, _, err = run_cli(capsys, "check", str(good_deck), "--set", override)
+def test_set_bad_path_lists_choices(run_cli, good_deck, override, key, allowed):
+    code, _, err = run_cli("check", str(good_deck), "--set", override)
     _assert_one_line_error(code, err, key, None)
     assert "allowed" in err and allowed in err
 
 
 # --------------------------------------------------------------------------- run (plumbing)
 
-def test_run_existing_output_needs_force(capsys, good_deck, tmp_path):
+def test_run_existing_output_needs_force(run_cli, good_deck, tmp_path):
     out = tmp_path / "good.h5"
     out.write_bytes(b"precious")
-    code, _, err = run_cli(capsys, "run", str(good_deck))
+    code, _, err = run_cli("run", str(good_deck))
     _assert_one_line_error(code, err, None, None)
     assert "--force" in err and str(out) in err
     assert out.read_bytes() == b"precious"
 
 
-def test_run_internal_error_exit_1(capsys, good_deck, monkeypatch):
+def test_run_internal_error_exit_1(run_cli, good_deck, monkeypatch):
     from selfcon import api
 
     def broken(deck, **options):
         raise RuntimeError("the loop fell over")
     monkeypatch.setattr(api, "solve", broken)
     monkeypatch.delenv("SELFCON_DEBUG", raising=False)
-    code, out, err = run_cli(capsys, "run", str(good_deck), "--quiet")
+    code, out, err = run_cli("run", str(good_deck), "--quiet")
     assert code == 1
     assert "internal error: RuntimeError: the loop fell over" in err
     assert "SELFCON_DEBUG=1" in err and "Traceback" not in err
     assert not good_deck.with_suffix(".h5").exists()
     monkeypatch.setenv("SELFCON_DEBUG", "1")
-    code, out, err = run_cli(capsys, "run", str(good_deck), "--quiet")
+    code, out, err = run_cli("run", str(good_deck), "--quiet")
     assert code == 1 and "Traceback" in err
 
 
-def test_run_bad_plot_extension_exit_2_before_solving(capsys, good_deck, monkeypatch):
+def test_run_bad_plot_extension_exit_2_before_solving(run_cli, good_deck, monkeypatch):
     from selfcon import api
     monkeypatch.setattr(api, "solve", lambda *a, **k: pytest.fail("solve must not run"))
-    code, _, err = run_cli(capsys, "run", str(good_deck), "--plot", "fig.bmp")
+    code, _, err = run_cli("run", str(good_deck), "--plot", "fig.bmp")
     _assert_one_line_error(code, err, None, None)
     assert ".png" in err
 
 
 # --------------------------------------------------------------------------- show / plot / export / materials
 
-def test_show_and_json_match_hdf5_summary(capsys, result_file):
-    code, out, err = run_cli(capsys, "show", str(result_file))
+def test_show_and_json_match_hdf5_summary(run_cli, result_file):
+    code, out, err = run_cli("show", str(result_file))
     assert code == 0, err
     assert "Sheet density per layer" in out and "channel" in out and "warning:" in out
-    code, out, err = run_cli(capsys, "show", str(result_file), "--json")
+    code, out, err = run_cli("show", str(result_file), "--json")
     assert code == 0, err
     fig = json.loads(out)
     with h5py.File(result_file, "r") as f:
@@ -202,8 +169,8 @@ def test_show_and_json_match_hdf5_summary(capsys, result_file):
     assert fig["occupied_subbands"] == 1
 
 
-def test_show_rejects_non_result(capsys, tmp_path, good_deck):
-    code, _, err = run_cli(capsys, "show", str(good_deck))
+def test_show_rejects_non_result(run_cli, tmp_path, good_deck):
+    code, _, err = run_cli("show", str(good_deck))
     _assert_one_line_error(code, err, None, None)
     assert "not an HDF5 file" in err
 
@@ -220,9 +187,9 @@ def _png_size(path):
     (["--width-px", "800", "--height-px", "500"], (800, 500)),
     ([], (1200, 900)),                                            # plot.DEFAULT_SIZE
 ])
-def test_plot_png_of_asked_size(capsys, tmp_path, result_file, size_args, expected):
+def test_plot_png_of_asked_size(run_cli, tmp_path, result_file, size_args, expected):
     fig = tmp_path / "bands.png"
-    code, _, err = run_cli(capsys, "plot", str(result_file), "-o", str(fig), *size_args)
+    code, _, err = run_cli("plot", str(result_file), "-o", str(fig), *size_args)
     assert code == 0, err
     assert fig.stat().st_size > 10_000
     assert _png_size(fig) == expected
@@ -230,20 +197,20 @@ def test_plot_png_of_asked_size(capsys, tmp_path, result_file, size_args, expect
 
 @pytest.mark.parametrize("args", [["--size", "big"], ["--size", "10x10"], ["--size", "600x400", "--width-px", "5"],
                                   ["--depth", "50:10"]])
-def test_plot_bad_options_exit_2(capsys, tmp_path, result_file, args):
-    code, _, err = run_cli(capsys, "plot", str(result_file), "-o", str(tmp_path / "f.png"), *args)
+def test_plot_bad_options_exit_2(run_cli, tmp_path, result_file, args):
+    code, _, err = run_cli("plot", str(result_file), "-o", str(tmp_path / "f.png"), *args)
     _assert_one_line_error(code, err, None, None)
 
 
-def test_plot_unknown_format_exit_2(capsys, tmp_path, result_file):
-    code, _, err = run_cli(capsys, "plot", str(result_file), "-o", str(tmp_path / "f.jpeg"))
+def test_plot_unknown_format_exit_2(run_cli, tmp_path, result_file):
+    code, _, err = run_cli("plot", str(result_file), "-o", str(tmp_path / "f.jpeg"))
     _assert_one_line_error(code, err, None, None)
     assert ".svg" in err
 
 
-def test_export_csv(capsys, tmp_path, result_file):
+def test_export_csv(run_cli, make_result, tmp_path, result_file):
     out = tmp_path / "tables"
-    code, _, err = run_cli(capsys, "export", str(result_file), "--csv", str(out))
+    code, _, err = run_cli("export", str(result_file), "--csv", str(out))
     assert code == 0, err
     r = make_result()
     with open(out / "profile.csv", newline="") as fh:
@@ -260,22 +227,22 @@ def test_export_csv(capsys, tmp_path, result_file):
     assert [s["band"] for s in sub] == ["electron", "electron", "heavy_hole"]
     assert float(sub[0]["energy [eV]"]) == r.subbands["electron"].energy[0]
     assert float(sub[0]["occupation [cm-2]"]) == 4.1e11 and sub[0]["region"] == "0"
-    code, _, err = run_cli(capsys, "export", str(result_file), "--csv", str(out))
+    code, _, err = run_cli("export", str(result_file), "--csv", str(out))
     _assert_one_line_error(code, err, None, None)
     assert "--force" in err
-    assert run_cli(capsys, "export", str(result_file), "--csv", str(out), "--force")[0] == 0
+    assert run_cli("export", str(result_file), "--csv", str(out), "--force")[0] == 0
 
 
-def test_materials(capsys):
-    code, out, _ = run_cli(capsys, "materials")
+def test_materials(run_cli):
+    code, out, _ = run_cli("materials")
     assert code == 0 and "GaAs" in out and "AlGaAs" in out
-    code, out, _ = run_cli(capsys, "materials", "GaAs", "--json")
+    code, out, _ = run_cli("materials", "GaAs", "--json")
     assert code == 0
     rows = json.loads(out)["parameters"]
     gap = next(r for r in rows if r["parameter"] == "band_gap")
     assert gap["value"] == pytest.approx(1.519)      # Vurgaftman, Meyer, Ram-Mohan, JAP 89, 5815 (2001), GaAs Eg(0 K)
     assert all(r["source"] for r in rows)
-    code, _, err = run_cli(capsys, "materials", "Unobtainium")
+    code, _, err = run_cli("materials", "Unobtainium")
     _assert_one_line_error(code, err, None, None)
     assert "GaAs" in err                              # the choices are listed
 
@@ -306,7 +273,7 @@ def test_extra_command_import_error_inside_module_raises(monkeypatch, tmp_path):
         cli.build_parser()
 
 
-def test_python_m_selfcon_version():
+def test_python_m_selfcon_version(run_sub):
     proc = run_sub("--version")
     assert proc.returncode == 0 and proc.stdout.startswith("selfcon ")
 
@@ -334,7 +301,7 @@ def assert_json_matches_summary(fig, h5path):
 
 
 @pytest.fixture(scope="module")
-def hemt_run(tmp_path_factory):
+def hemt_run(run_sub, tmp_path_factory):
     """One real `selfcon run` of inputs/hemt_4K.toml in a subprocess (stdout/stderr are pipes)."""
     d = tmp_path_factory.mktemp("hemt")
     deck = d / "hemt_4K.toml"
@@ -358,8 +325,7 @@ def test_run_example_exit_0_json_and_default_output(hemt_run):
     assert "\x1b" not in proc.stderr and "\x1b" not in proc.stdout
 
 
-def test_run_example_file_layout_plain_h5py(hemt_run):
-    from test_results import check_layout, plain_read
+def test_run_example_file_layout_plain_h5py(plain_read, check_layout, hemt_run):
     d, _, proc = hemt_run
     assert proc.returncode == 0, proc.stderr
     info = plain_read(d / "hemt_4K.h5")
@@ -369,14 +335,13 @@ def test_run_example_file_layout_plain_h5py(hemt_run):
         assert key in info["root"], key
 
 
-def test_run_example_round_trip(hemt_run, tmp_path):
+def test_run_example_round_trip(h5_tree, assert_results_equal, hemt_run, tmp_path):
     from selfcon import load_result
-    from test_results import _tree, assert_results_equal
     d, _, proc = hemt_run
     first = load_result(d / "hemt_4K.h5")
     first.save(tmp_path / "again.h5")
     assert_results_equal(first, load_result(tmp_path / "again.h5"))
-    assert _tree(d / "hemt_4K.h5") == _tree(tmp_path / "again.h5")
+    assert h5_tree(d / "hemt_4K.h5") == h5_tree(tmp_path / "again.h5")
 
 
 def test_run_example_plot(hemt_run):
@@ -386,11 +351,11 @@ def test_run_example_plot(hemt_run):
     assert png.stat().st_size > 20_000 and _png_size(png) == (1200, 900)    # plot.DEFAULT_SIZE
 
 
-def test_run_not_converged_exit_3(capsys, tmp_path):
+def test_run_not_converged_exit_3(run_cli, tmp_path):
     deck = tmp_path / "hemt.toml"
     shutil.copy(EXAMPLES / "hemt_4K.toml", deck)
     out = tmp_path / "short.h5"
-    code, stdout, err = run_cli(capsys, "run", str(deck), "-o", str(out), "--quiet",
+    code, stdout, err = run_cli("run", str(deck), "-o", str(out), "--quiet",
                                 "--set", "solver.max_iterations=1")
     assert code == 3, err
     assert "not converged" in err and str(out) in err
@@ -400,7 +365,7 @@ def test_run_not_converged_exit_3(capsys, tmp_path):
         assert f["convergence/residual"].shape == (1,)
 
 
-def test_run_set_reaches_the_solve(capsys, tmp_path):
+def test_run_set_reaches_the_solve(run_cli, tmp_path):
     """A thinner spacer puts more electrons in the channel (charge control: Delagebeaudeuf and Linh,
     IEEE Trans. Electron Devices 29, 955, 1982: n_s falls as the donor-channel distance grows)."""
     deck = tmp_path / "hemt.toml"
@@ -408,18 +373,18 @@ def test_run_set_reaches_the_solve(capsys, tmp_path):
     ns = {}
     for spacer in (10, 30):
         out = tmp_path / f"s{spacer}.h5"
-        code, stdout, err = run_cli(capsys, "run", str(deck), "-o", str(out), "--json",
+        code, stdout, err = run_cli("run", str(deck), "-o", str(out), "--json",
                                     "--set", f"layer.spacer.thickness={spacer}", "--set", "layer.3.donors=0")
         assert code == 0, err
         ns[spacer] = json.loads(stdout)["total"]["electron_sheet_density_cm2"]
     assert ns[10] > ns[30] > 0
 
 
-def test_run_then_show_and_export(capsys, hemt_run, tmp_path):
+def test_run_then_show_and_export(run_cli, hemt_run, tmp_path):
     d, _, proc = hemt_run
-    code, out, err = run_cli(capsys, "show", str(d / "hemt_4K.h5"), "--json")
+    code, out, err = run_cli("show", str(d / "hemt_4K.h5"), "--json")
     assert code == 0, err
     assert_json_matches_summary(json.loads(out), d / "hemt_4K.h5")
-    code, out, err = run_cli(capsys, "export", str(d / "hemt_4K.h5"), "--csv", str(tmp_path / "csv"))
+    code, out, err = run_cli("export", str(d / "hemt_4K.h5"), "--csv", str(tmp_path / "csv"))
     assert code == 0, err
     assert (tmp_path / "csv" / "profile.csv").stat().st_size > 0

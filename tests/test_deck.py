@@ -10,19 +10,18 @@ import tomllib
 
 import pytest
 
-from bad_decks import BAD_DECKS, GOOD_DECK
 from selfcon.input.deck import (KEYS, Deck, DeckError, deck_reference, dumps_toml, load_deck,
                           parse_override)
 
 
 @pytest.fixture
-def deck():
-    return load_deck(GOOD_DECK)
+def deck(good_deck_text):
+    return load_deck(good_deck_text)
 
 
 # --- a good deck -------------------------------------------------------------
 
-def test_good_deck_values_and_defaults(deck):
+def test_good_deck_values_and_defaults(good_deck_text, deck):
     assert isinstance(deck, Deck)
     assert deck.title == "test HEMT"
     assert deck.temperature == 4.2
@@ -45,18 +44,18 @@ def test_good_deck_values_and_defaults(deck):
     s = deck.solver
     assert (s.method, s.tolerance, s.max_iterations, s.charge_tolerance, s.mixing, s.history) == \
         ("predictor-corrector", 1e-6, 100, 1e-6, None, 6)
-    assert deck.text == GOOD_DECK and deck.path is None
-    # the [[layer]] header lines of GOOD_DECK (counted by hand: lines 8, 13, 20)
+    assert deck.text == good_deck_text and deck.path is None
+    # the [[layer]] header lines of good_deck_text (counted by hand: lines 8, 13, 20)
     assert [l.line for l in deck.layers] == [8, 13, 20]
 
 
-def test_deck_is_immutable(deck):
+def test_deck_is_immutable(good_deck_text, deck):
     with pytest.raises(dataclasses.FrozenInstanceError):
         deck.temperature = 300.0
     with pytest.raises(dataclasses.FrozenInstanceError):
         deck.layers[0].thickness = 1.0
     assert isinstance(deck.layers, tuple)
-    assert hash(deck) == hash(load_deck(GOOD_DECK))
+    assert hash(deck) == hash(load_deck(good_deck_text))
 
 
 def test_round_trip_and_hash(deck):
@@ -70,8 +69,8 @@ def test_round_trip_and_hash(deck):
     assert deck.with_overrides(["temperature=4.3"]).hash() != deck.hash()
 
 
-def test_round_trip_with_everything():
-    text = GOOD_DECK.replace('x = 0.3', 'x = [0.1, 0.3]') + '''
+def test_round_trip_with_everything(good_deck_text):
+    text = good_deck_text.replace('x = 0.3', 'x = [0.1, 0.3]') + '''
 [substrate]
 contact = "pinned"
 barrier = 0.7
@@ -108,29 +107,29 @@ history = 4
     assert again == d and again.hash() == d.hash()
 
 
-def test_classical_and_default_regions():
-    d = load_deck(GOOD_DECK.replace("regions = [[10.0, 150.0]]", "regions = []"))
+def test_classical_and_default_regions(good_deck_text):
+    d = load_deck(good_deck_text.replace("regions = [[10.0, 150.0]]", "regions = []"))
     assert d.quantum.regions == ()
     assert load_deck(d.to_toml()).quantum.regions == ()
-    d = load_deck(GOOD_DECK.replace("regions = [[10.0, 150.0]]\n", ""))
+    d = load_deck(good_deck_text.replace("regions = [[10.0, 150.0]]\n", ""))
     assert d.quantum.regions is None                  # None = the whole stack
     assert load_deck(d.to_toml()).quantum.regions is None
 
 
-def test_ints_accepted_for_floats_and_unnamed_layers():
-    d = load_deck(GOOD_DECK.replace("thickness = 40.0", "thickness = 40")
+def test_ints_accepted_for_floats_and_unnamed_layers(good_deck_text):
+    d = load_deck(good_deck_text.replace("thickness = 40.0", "thickness = 40")
                   .replace('name = "channel"\n', ""))
     assert d.layers[1].thickness == 40.0 and isinstance(d.layers[1].thickness, float)
     assert d.layers[2].name == "layer2"               # default name layer<index>
     assert d.layer("layer2") is d.layers[2]
 
 
-def test_load_from_path(tmp_path):
+def test_load_from_path(good_deck_text, tmp_path):
     p = tmp_path / "hemt.toml"
-    p.write_text(GOOD_DECK)
+    p.write_text(good_deck_text)
     for arg in (p, str(p)):
         d = load_deck(arg)
-        assert d.path == str(p) and d == load_deck(GOOD_DECK)
+        assert d.path == str(p) and d == load_deck(good_deck_text)
     with pytest.raises(DeckError) as e:
         load_deck(str(tmp_path / "missing.toml"))
     assert "missing.toml" in str(e.value) and e.value.file == str(tmp_path / "missing.toml")
@@ -138,9 +137,9 @@ def test_load_from_path(tmp_path):
         load_deck(pathlib.Path(tmp_path))             # a directory
 
 
-def test_errors_name_the_file(tmp_path):
+def test_errors_name_the_file(good_deck_text, tmp_path):
     p = tmp_path / "bad.toml"
-    p.write_text(GOOD_DECK.replace("thickness = 10.0", "thickness = 0.0"))
+    p.write_text(good_deck_text.replace("thickness = 10.0", "thickness = 0.0"))
     with pytest.raises(DeckError) as e:
         load_deck(p)
     assert str(e.value).startswith(f"{p}:11: layer[0].thickness: ")
@@ -148,9 +147,8 @@ def test_errors_name_the_file(tmp_path):
 
 # --- bad decks -----------------------------------------------------------------
 
-@pytest.mark.parametrize("text,key,line", [row[1:] for row in BAD_DECKS],
-                         ids=[row[0] for row in BAD_DECKS])
-def test_bad_deck(text, key, line):
+def test_bad_deck(bad_deck):
+    _, text, key, line = bad_deck
     with pytest.raises(DeckError) as e:
         load_deck(text)
     msg = str(e.value)
@@ -165,7 +163,8 @@ def test_bad_deck(text, key, line):
         assert msg.startswith(f"<deck>:{line}: ")
 
 
-def test_bad_deck_list_is_broad():
+def test_bad_deck_list_is_broad(bad_deck_table):
+    BAD_DECKS = bad_deck_table
     assert len({row[0] for row in BAD_DECKS}) == len(BAD_DECKS) >= 15
 
 
@@ -176,39 +175,39 @@ def test_bad_deck_list_is_broad():
     ("temperature = 4.2", "temprature = 4.2", "did you mean 'temperature'?"),
     ('contact = "schottky"', 'contact = "Schottky"', "did you mean 'schottky'?"),
 ])
-def test_did_you_mean(old, new, hint):
+def test_did_you_mean(good_deck_text, old, new, hint):
     with pytest.raises(DeckError) as e:
-        load_deck(GOOD_DECK.replace(old, new))
+        load_deck(good_deck_text.replace(old, new))
     assert hint in str(e.value)
 
 
-def test_unknown_key_lists_allowed_keys():
+def test_unknown_key_lists_allowed_keys(good_deck_text):
     with pytest.raises(DeckError) as e:
-        load_deck(GOOD_DECK.replace("thickness = 40.0", "thicknes = 40.0"))
+        load_deck(good_deck_text.replace("thickness = 40.0", "thicknes = 40.0"))
     assert "thickness" in e.value.allowed and "sheet_donors" in e.value.allowed
     assert "(allowed: name, material, x, thickness," in str(e.value)
 
 
-def test_top_level_key_after_a_table_gets_a_hint():
+def test_top_level_key_after_a_table_gets_a_hint(good_deck_text):
     with pytest.raises(DeckError) as e:
-        load_deck(GOOD_DECK + "title = \"late\"\n")
+        load_deck(good_deck_text + "title = \"late\"\n")
     assert e.value.key == "quantum.title" and "top-level key" in str(e.value)
 
 
-def test_error_messages_carry_units():
+def test_error_messages_carry_units(good_deck_text):
     cases = {"thickness = 10.0": ("thickness = -1", "> 0 nm"),
              "temperature = 4.2": ("temperature = 2000", "(0, 1000] K"),
              "sheet_donors = 4e12": ("sheet_donors = -1", "cm^-2"),
              'thickness = 40.0': ('thickness = "x"', "number (nm)")}
     for old, (new, unit) in cases.items():
         with pytest.raises(DeckError) as e:
-            load_deck(GOOD_DECK.replace(old, new))
+            load_deck(good_deck_text.replace(old, new))
         assert unit in str(e.value), str(e.value)
 
 
-def test_non_finite_numbers_refused():
+def test_non_finite_numbers_refused(good_deck_text):
     with pytest.raises(DeckError) as e:
-        load_deck(GOOD_DECK.replace("thickness = 40.0", "thickness = inf"))
+        load_deck(good_deck_text.replace("thickness = 40.0", "thickness = inf"))
     assert "finite" in str(e.value) and e.value.line == 17
 
 
@@ -228,7 +227,7 @@ def test_parse_override():
         assert "\n" not in str(e.value)
 
 
-def test_overrides_by_name_index_and_nested(deck):
+def test_overrides_by_name_index_and_nested(good_deck_text, deck):
     d = deck.with_overrides(["layer.barrier.thickness=50", "layer.0.x=[0, 0.3]",
                              "surface.bias=-0.2", "temperature=300", "solver.method=anderson",
                              "physics.carriers=[\"electron\"]"])
@@ -237,26 +236,26 @@ def test_overrides_by_name_index_and_nested(deck):
     assert d.surface.bias == -0.2 and d.temperature == 300.0
     assert d.solver.method == "anderson" and d.physics.carriers == ("electron",)
     # the original is untouched, the new text is the canonical one
-    assert deck.layer("barrier").thickness == 40.0 and deck.text == GOOD_DECK
+    assert deck.layer("barrier").thickness == 40.0 and deck.text == good_deck_text
     assert d.text == d.to_toml() and load_deck(d.text) == d
     # dict form, chained, and via load_deck
     e = d.with_overrides({"layer.2.donors": 1e15, "mesh.step": 0.25})
     assert e.layers[2].donors == 1e15 and e.mesh.step == 0.25 and e.layer("barrier").thickness == 50
-    assert load_deck(GOOD_DECK, overrides=["layer.barrier.thickness=50", "layer.0.x=[0, 0.3]",
+    assert load_deck(good_deck_text, overrides=["layer.barrier.thickness=50", "layer.0.x=[0, 0.3]",
                                            "surface.bias=-0.2", "temperature=300",
                                            "solver.method=anderson",
                                            "physics.carriers=[\"electron\"]"]) == d
 
 
-def test_override_material_creates_key():
-    d = load_deck(GOOD_DECK + '\n[material.MyBarrier]\nbase = "AlGaAs"\nx = 0.3\n')
+def test_override_material_creates_key(good_deck_text):
+    d = load_deck(good_deck_text + '\n[material.MyBarrier]\nbase = "AlGaAs"\nx = 0.3\n')
     e = d.with_overrides(["material.MyBarrier.electron_mass=0.09"])
     assert e.material("MyBarrier").params.get("electron_mass") == 0.09
     assert d.material("MyBarrier").params.get("electron_mass") is None
 
 
-def test_override_can_fix_an_incomplete_deck():
-    text = GOOD_DECK.replace("temperature = 4.2\n", "")
+def test_override_can_fix_an_incomplete_deck(good_deck_text):
+    text = good_deck_text.replace("temperature = 4.2\n", "")
     assert load_deck(text, overrides=["temperature=77"]).temperature == 77.0
 
 
@@ -306,7 +305,7 @@ def test_layer_lookup_errors(deck):
 
 
 def test_line_of_and_error(deck):
-    assert deck.line_of("layer[1].x") == 16           # GOOD_DECK line 16: x = 0.3
+    assert deck.line_of("layer[1].x") == 16           # good_deck_text line 16: x = 0.3
     assert deck.line_of("quantum.regions[0]") == 26
     assert deck.line_of("surface") == 4
     assert deck.line_of("temperature") == 2
@@ -315,10 +314,10 @@ def test_line_of_and_error(deck):
     assert isinstance(err, DeckError) and str(err) == "<deck>:16: layer[1].x: AlGaAs needs x"
 
 
-def test_material_def_location():
-    d = load_deck(GOOD_DECK + '\n[material.MyBarrier]\nbase = "AlGaAs"\n')
+def test_material_def_location(good_deck_text):
+    d = load_deck(good_deck_text + '\n[material.MyBarrier]\nbase = "AlGaAs"\n')
     m = d.material("MyBarrier")
-    assert (m.file, m.line) == ("<deck>", 29)         # GOOD_DECK has 27 lines + blank + header
+    assert (m.file, m.line) == ("<deck>", 29)         # good_deck_text has 27 lines + blank + header
 
 
 def test_deck_reference_documents_every_key():

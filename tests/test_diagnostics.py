@@ -153,13 +153,33 @@ step = 1.0
     assert r.subbands["electron"].energy[1] < 0          # E1 below EF: the definition of "occupied" at 4 K
 
 
-def test_design_warnings_never_raise(clean):
-    r, st = clean
+def test_design_warnings_never_raise(monkeypatch):
+    # a design that really warns: 1.5e18 cm^-3 over 40 nm (6e12 cm^-2) leaves electrons in the doping
+    # layer (parallel conduction, as in test_parallel_conduction), stopped after one iteration
+    deck = selfcon.load_deck(HALL, overrides=["layer.doping.donors=1.5e18", "layer.doping.thickness=40",
+                                              "solver.max_iterations=1"])
+    r, st = solve(deck)
+    real = dg.design_warnings(r, st)
+    assert any("not converged" in w for w in real)
+    assert any("parallel conduction" in w and "'doping'" in w for w in real)
+    assert not any("could not run" in w for w in real)
+    assert real == r.warnings                 # the solve ran the same checks
 
+    # a check that raises becomes one warning line naming it; the other checks still report
+    def planted(result, structure):
+        raise ZeroDivisionError("planted fault")
+    monkeypatch.setitem(dg.CHECKS, "planted", planted)
+    out = dg.design_warnings(r, st)
+    assert [w for w in out if "planted" not in w] == real
+    bad = [w for w in out if "planted" in w]
+    assert len(bad) == 1 and "could not run" in bad[0] and "ZeroDivisionError" in bad[0]
+
+    # a structure without the arrays: the checks that need them report that, none raises
     class Broken:
         pass
-    out = dg.design_warnings(r, Broken())     # a structure without the arrays: checks report, not raise
+    out = dg.design_warnings(r, Broken())
     assert all(isinstance(x, str) for x in out)
+    assert any("could not run" in x and "AttributeError" in x for x in out)
 
 
 def test_node_weights_integrate_exactly():
@@ -167,10 +187,7 @@ def test_node_weights_integrate_exactly():
     assert dg.node_weights(z).sum() == pytest.approx(6.0)      # analytic: total length
 
 
-def test_uncounted_valley_check_is_silent_on_the_cold_example():
+def test_uncounted_valley_check_is_silent_on_the_cold_example(hemt4_result):
     # at 4 K the X and L edges of Al0.32GaAs stay far above EF in kT: no valley warning
-    import selfcon
-    from pathlib import Path
-    deck = selfcon.load_deck(Path(__file__).resolve().parent.parent / "inputs" / "hemt_4K.toml")
-    r = selfcon.solve(deck)
+    r = hemt4_result
     assert not any("valley" in w for w in r.warnings)

@@ -16,9 +16,7 @@ def hemt4():
     return selfcon.load_deck(INPUTS / "hemt_4K.toml")
 
 
-@pytest.fixture(scope="module")
-def hemt4_result(hemt4):
-    return selfcon.solve(hemt4, tolerance=1e-9)
+# hemt4_result (inputs/hemt_4K.toml solved to 1e-9 V, shared per session) is in conftest.py
 
 
 @pytest.fixture(scope="module")
