@@ -7,10 +7,12 @@
     selfcon export RESULT.h5 --csv DIR [--force]
     selfcon materials [NAME] [--x X] [--temperature T] [--json]
 
-Exit codes: 0 converged / ok, 2 bad input (one line ``selfcon: error: ...`` on
-stderr, no traceback), 3 not converged (result still written, converged =
-false), 4 environment failure (lost scheduler, workers of another version, ...),
-1 internal error (set SELFCON_DEBUG=1 for the traceback).
+Exit codes (:data:`EXIT_CODES`, the table of README and ``--help``): 0 converged / ok,
+2 bad input (one line ``selfcon: error: ...`` on stderr, no traceback), 3 not
+converged (result still written, converged = false), 4 the environment failed
+(disk full, permissions, corrupt queue, scheduler: one line ``selfcon: error: ...``
+saying what and where), 1 internal error (set SELFCON_DEBUG=1 for the traceback).
+A closed stdout (``selfcon show r.h5 | head``) ends the command quietly with 0.
 
 Other packages add subcommands through :data:`EXTRA_COMMANDS`: each module
 listed there, if it exists, has ``register(subparsers)`` adding parsers with
@@ -19,6 +21,7 @@ listed there, if it exists, has ``register(subparsers)`` adding parsers with
 from __future__ import annotations
 
 import argparse
+import errno
 import importlib
 import json
 import os
@@ -26,12 +29,25 @@ import sys
 import traceback
 from pathlib import Path
 
-from selfcon.errors import EXIT_ENVIRONMENT, ResultFileError, SelfconEnvironmentError, SelfconInputError
+from selfcon.errors import (EXIT_ENVIRONMENT, EXIT_INPUT, EXIT_INTERNAL, EXIT_INTERRUPTED,
+                            EXIT_NOT_CONVERGED, EXIT_OK, SelfconEnvironmentError, ResultFileError,
+                            SelfconInputError, os_reason)
 
 #: modules whose ``register(subparsers)`` adds subcommands, imported if they exist
 EXTRA_COMMANDS = ("selfcon.batch.commands", "selfcon.design.commands")
 
-EXIT_OK, EXIT_INTERNAL, EXIT_INPUT, EXIT_NOT_CONVERGED = 0, 1, 2, 3
+#: (code, meaning): the exit-code table of ``selfcon --help`` and README
+EXIT_CODES = (
+    (EXIT_OK, "converged / command succeeded"),
+    (EXIT_INTERNAL, "internal error (a bug); SELFCON_DEBUG=1 shows the traceback"),
+    (EXIT_INPUT, "bad input: deck, study, option, output path, or a result file that is damaged "
+                 "or not selfcon's"),
+    (EXIT_NOT_CONVERGED, "not converged, or a result failed a sanity check (files still written, "
+                         "converged = false)"),
+    (EXIT_ENVIRONMENT, "environment failure: disk full, permissions, corrupt queue, scheduler lost "
+                       "or unreachable, worker-version mismatch"),
+    (EXIT_INTERRUPTED, "interrupted (batch: rerun to continue)"),
+)
 
 PLOT_FORMATS = (".png", ".svg", ".pdf")
 
@@ -46,11 +62,17 @@ class _Parser(argparse.ArgumentParser):
 
 def _console(stderr=False):
     from rich.console import Console
+
+    class _Console(Console):
+        def on_broken_pipe(self):        # rich would exit 1; a closed stdout is no failure (main: 0)
+            self.quiet = True
+            raise BrokenPipeError(errno.EPIPE, "broken pipe")
+
     stream = sys.stderr if stderr else sys.stdout
     kw = {}
     if not stream.isatty():
         kw["width"] = 110        # tables do not wrap in logs; no colour codes (rich: not a terminal)
-    return Console(file=stream, highlight=False, **kw)
+    return _Console(file=stream, highlight=False, **kw)
 
 
 def _require_file(path: Path, what: str):
@@ -376,9 +398,8 @@ def build_parser() -> argparse.ArgumentParser:
     from selfcon.version import __version__
     p = _Parser(prog="selfcon", description="Self-consistent Schrödinger–Poisson solutions for layered "
                 "semiconductor structures.",
-                epilog="exit codes: 0 ok/converged, 1 internal error, 2 bad input, 3 not converged "
-                       "(result still written), 4 environment failure (e.g. lost scheduler). "
-                       "SELFCON_DEBUG=1 shows tracebacks.")
+                formatter_class=argparse.RawDescriptionHelpFormatter,
+                epilog="exit codes:\n" + "\n".join(f"  {c:>3}  {m}" for c, m in EXIT_CODES))
     p.add_argument("--version", action="version", version=f"selfcon {__version__}")
     sub = p.add_subparsers(dest="command", metavar="COMMAND", parser_class=_Parser)
     sub.required = True
@@ -458,6 +479,28 @@ def _one_line(text: str) -> str:
     return " ".join(str(text).split())
 
 
+def _stdout_gone() -> int:
+    """stdout's reader went away (``selfcon show r.h5 | head``): stop quietly, exit 0.
+
+    Later writes (and the interpreter's final flush) go to /dev/null instead of raising."""
+    try:
+        devnull = os.open(os.devnull, os.O_WRONLY)
+        os.dup2(devnull, sys.stdout.fileno())
+        os.close(devnull)
+    except (OSError, ValueError):
+        pass
+    return EXIT_OK
+
+
+def _error(debug, text) -> None:
+    if debug:
+        traceback.print_exc()
+    try:
+        print(f"selfcon: error: {_one_line(text)}", file=sys.stderr)
+    except (BrokenPipeError, ValueError):
+        pass
+
+
 def main(argv=None) -> int:
     """Entry point of the ``selfcon`` console script and ``python -m selfcon``; returns the exit code."""
     debug = os.environ.get("SELFCON_DEBUG", "") not in ("", "0")
@@ -467,26 +510,26 @@ def main(argv=None) -> int:
             args = parser.parse_args(argv)
         except SystemExit as exc:       # --help, --version, usage errors (2)
             return exc.code if isinstance(exc.code, int) else (0 if exc.code is None else EXIT_INPUT)
-        return int(args.func(args))
+        code = int(args.func(args))
+        sys.stdout.flush()              # a closed pipe shows here, not at interpreter exit
+        return code
+    except BrokenPipeError:
+        return _stdout_gone()
     except SelfconInputError as exc:
-        if debug:
-            traceback.print_exc()
-        print(f"selfcon: error: {_one_line(exc)}", file=sys.stderr)
-        return EXIT_INPUT
-    except (FileNotFoundError, PermissionError, IsADirectoryError, NotADirectoryError) as exc:
-        if debug:
-            traceback.print_exc()
-        where = f"{exc.filename}: " if exc.filename else ""
-        print(f"selfcon: error: {where}{_one_line(exc.strerror or exc)}", file=sys.stderr)
+        _error(debug, exc)
         return EXIT_INPUT
     except SelfconEnvironmentError as exc:
-        if debug:
-            traceback.print_exc()
-        print(f"selfcon: error: {_one_line(exc)}", file=sys.stderr)
+        _error(debug, exc)
+        return EXIT_ENVIRONMENT
+    except OSError as exc:
+        # the operating system refused something selfcon did not expect to fail (inputs
+        # are checked first and give exit 2): disk full, permissions, I/O errors
+        where = f"{exc.filename}: " if getattr(exc, "filename", None) else ""
+        _error(debug, f"{where}{os_reason(exc)}")
         return EXIT_ENVIRONMENT
     except KeyboardInterrupt:
         print("selfcon: interrupted", file=sys.stderr)
-        return 130
+        return EXIT_INTERRUPTED
     except Exception as exc:  # noqa: BLE001 - the one place unexpected errors become exit 1
         if debug:
             traceback.print_exc()

@@ -1,5 +1,24 @@
-"""Exceptions.  Bad input is an exception with a location; non-convergence is not
-an exception at all (it is a Result with converged=False)."""
+"""Exceptions and exit codes.  Bad input is an exception with a location; a failing
+environment (disk, permissions, queue database, scheduler) is another; non-convergence
+is not an exception at all (it is a Result with converged=False).
+
+Exit codes of every command (README, "Exit codes"; ``selfcon --help``):
+"""
+import errno as _errno
+
+#: 0 converged / command succeeded (also: the reader of stdout went away, e.g. ``| head``)
+EXIT_OK = 0
+#: 1 internal error: a bug in selfcon (SELFCON_DEBUG=1 shows the traceback)
+EXIT_INTERNAL = 1
+#: 2 bad input: deck, study, option, or a result file that is damaged or not selfcon's
+EXIT_INPUT = 2
+#: 3 not converged (or a result failed a sanity check): files are still written
+EXIT_NOT_CONVERGED = 3
+#: 4 the environment failed: disk full, permissions, read-only folder, corrupt queue,
+#: lost or unreachable scheduler, worker-version mismatch
+EXIT_ENVIRONMENT = 4
+#: stopped by Ctrl-C / SIGTERM (128 + SIGINT); a batch reruns to continue
+EXIT_INTERRUPTED = 130
 
 
 class SelfconInputError(ValueError):
@@ -47,14 +66,41 @@ class ResultFileError(SelfconInputError):
     """A result file cannot be read (missing, not a selfcon result, newer schema)."""
 
 
-#: exit code of an environment or file-system failure (lost or unreachable scheduler,
-#: worker-version mismatch, disk full, ...): not the user's input, not a bug
-EXIT_ENVIRONMENT = 4
-
-
 class SelfconEnvironmentError(RuntimeError):
-    """The environment failed, not the input and not the code: a lost or unreachable
-    scheduler, workers running another selfcon, a full disk.  CLI exit code 4.
+    """The environment failed, not the input and not the code: disk full, no permission,
+    a read-only folder, a corrupt queue database, a lost or unreachable scheduler,
+    workers running another selfcon.  CLI exit code 4 (:data:`EXIT_ENVIRONMENT`).
 
-    ``str(err)`` is one line saying what failed and where.
+    ``str(err)`` is one line saying what failed and where, the system's reason, and
+    (``hint``) how to recover when there is something to do:
+    ``cannot write out/a.h5: No space left on device (ENOSPC)``.
+    ``SelfconEnvironmentError("scheduler tcp://h:8786 lost")`` (message only) works too.
     """
+
+    def __init__(self, message, *, path=None, reason=None, hint=None):
+        self.message = message
+        self.path = None if path is None else str(path)
+        self.reason = reason
+        self.hint = hint
+        super().__init__(self.format())
+
+    def format(self):
+        where = f" {self.path}" if self.path else ""
+        reason = f": {self.reason}" if self.reason else ""
+        hint = f"; {self.hint}" if self.hint else ""
+        return f"{self.message}{where}{reason}{hint}"
+
+    @classmethod
+    def from_os_error(cls, exc, action, path=None, hint=None):
+        """``action`` (``"cannot write"``) + path + the OSError's reason with its errno name."""
+        if path is None:
+            path = getattr(exc, "filename", None)
+        return cls(action, path=path, reason=os_reason(exc), hint=hint)
+
+
+def os_reason(exc):
+    """An OSError's reason as ``strerror (ENAME)``: ``No space left on device (ENOSPC)``."""
+    code = getattr(exc, "errno", None)
+    text = getattr(exc, "strerror", None) or str(exc) or type(exc).__name__
+    name = _errno.errorcode.get(code) if isinstance(code, int) else None
+    return f"{text} ({name})" if name else text
