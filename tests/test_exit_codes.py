@@ -13,16 +13,8 @@ import pytest
 from selfcon import cli
 from selfcon.errors import (EXIT_ENVIRONMENT, EXIT_INPUT, EXIT_INTERNAL, EXIT_NOT_CONVERGED, EXIT_OK,
                             SelfconEnvironmentError)
-from selfcon.output.result import save_result
-from test_results import make_result
 
 ROOT = Path(__file__).resolve().parent.parent
-
-
-def run_cli(capsys, *argv):
-    code = cli.main(list(argv))
-    out, err = capsys.readouterr()
-    return code, out, err
 
 
 def test_codes_are_the_documented_ones():
@@ -53,11 +45,11 @@ def test_environment_failure_is_one_line_with_reason():
     (SelfconEnvironmentError("cannot reach the Dask scheduler", path="tcp://h:1", reason="timed out"), EXIT_ENVIRONMENT),
     (RuntimeError("a bug"), EXIT_INTERNAL),
 ])
-def test_unexpected_os_errors_are_environment_bugs_are_1(capsys, monkeypatch, exc, code):
+def test_unexpected_os_errors_are_environment_bugs_are_1(run_cli, monkeypatch, exc, code):
     def boom(args):
         raise exc
     monkeypatch.setattr(cli, "cmd_materials", boom)
-    got, out, err = run_cli(capsys, "materials")
+    got, out, err = run_cli("materials")
     assert got == code, err
     assert "Traceback" not in err and len(err.strip().splitlines()) <= 2
     if code == EXIT_ENVIRONMENT:
@@ -65,10 +57,9 @@ def test_unexpected_os_errors_are_environment_bugs_are_1(capsys, monkeypatch, ex
         assert "x.h5" in err or "tcp://h:1" in err
 
 
-def test_broken_pipe_exits_0_quietly(tmp_path):
+def test_broken_pipe_exits_0_quietly(result_file):
     """`selfcon show r.h5 | head -1`: the reader closes the pipe early."""
-    path = tmp_path / "r.h5"
-    save_result(make_result(), path)
+    path = result_file
     env = dict(os.environ)
     env.pop("SELFCON_DEBUG", None)
     proc = subprocess.Popen([sys.executable, "-m", "selfcon", "show", str(path)], stdout=subprocess.PIPE,
