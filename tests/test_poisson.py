@@ -199,7 +199,7 @@ def test_jacobian_matches_finite_difference():
     pr, phib = two_material_problem(T=77.0)
     rng = np.random.default_rng(1)
     phi = phib + 0.2 * rng.standard_normal(len(pr.z))
-    args = pr.model_args()
+    args = pr.kernel_args()
     drho = kp.node_densities(phi, *args)[4]
     hstep = 1e-7
     rp = P.densities(pr, phi + hstep).rho

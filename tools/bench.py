@@ -2,7 +2,7 @@
 
     python tools/bench.py [NAMES...] [--json PATH] [--strict]
 
-NAMES (default: all): floor scaling mesh iterations startup batch
+NAMES (default: all but compare): floor scaling mesh iterations startup batch compare
 
   floor       warm solve time of each example deck / kernel floor, where the floor is
               iterations x (one eigensolve of every quantum band and region, with the
@@ -19,6 +19,10 @@ NAMES (default: all): floor scaling mesh iterations startup batch
   startup     new-process wall time of `import selfcon` and of `selfcon run` with the numba
               cache warm and cold; targets 0.5 s and 1.5 s (warm).
   batch       runs tools/bench_batch.py if it exists.
+  compare     (by name only) warm solve times of this checkout and of --base (default
+              main, checked out into a temporary git worktree) side by side: hemt_4K,
+              hemt_300K and a three-well deck, alternating fresh processes; medians and
+              the run-to-run spread; target: new - old <= the spread.
 
 Each benchmark checks the physics it times (convergence, equal n_s to 1e-4 across
 methods, 0.1 % across meshes that claim it).  The exit code is 1 if any such check fails;
@@ -102,6 +106,7 @@ def bench_floor():
     import selfcon
     from selfcon.solver import charge as coupling, schrodinger as quantum, loop as scf
     from selfcon.solver.kernels import poisson as KP
+    from selfcon.solver.kernels.bundles import NewtonOptions
     for name in DECKS:
         d = deck(name)
         selfcon.solve(d)                                   # warm (JIT cache, imports)
@@ -133,10 +138,11 @@ def bench_floor():
                 t_eig += t
         # one Newton step: poisson_newton(max_iter=1) minus its initial assembly (max_iter=0)
         prob = coupling.problem_with_states(st, bc, phi, states, shift=1.0)
-        margs = prob.model_args()
-        tail = (prob.top[0], prob.top[1], prob.bottom[0], prob.bottom[1], np.inf)
+        margs = prob.kernel_args()
+        bounds = prob.boundaries()
         hist = np.zeros(4)
-        run = lambda k: KP.poisson_newton(phi, *margs, *tail, k, 0.3, hist)  # noqa: E731
+        run = lambda k: KP.poisson_newton(phi, *margs, bounds,  # noqa: E731
+                                          NewtonOptions(np.inf, k, 0.3, True), hist)
         run(1)
         t1, _ = best_time(lambda: run(1), 20)
         t0, _ = best_time(lambda: run(0), 20)
@@ -357,9 +363,159 @@ def bench_batch(out_dir):
                     met=v.get("met"))
 
 
+# --------------------------------------------------------------------------- compare
+
+#: a third case for `compare`: three coupled GaAs wells between Al0.3GaAs barriers, donor
+#: sheets on both sides, pinned ends (our own demo scenario); several regions of charge
+MULTI_WELL = """
+title = "three coupled wells"
+temperature = 10.0
+[surface]
+contact = "pinned"
+barrier = 0.6
+[substrate]
+contact = "pinned"
+barrier = 0.6
+[[layer]]
+material = "AlGaAs"
+x = 0.3
+thickness = 40.0
+sheet_donors = 4e12
+[[layer]]
+material = "AlGaAs"
+x = 0.3
+thickness = 12.0
+[[layer]]
+name = "well_1"
+material = "GaAs"
+thickness = 8.0
+[[layer]]
+material = "AlGaAs"
+x = 0.3
+thickness = 3.0
+[[layer]]
+name = "well_2"
+material = "GaAs"
+thickness = 8.0
+[[layer]]
+material = "AlGaAs"
+x = 0.3
+thickness = 3.0
+[[layer]]
+name = "well_3"
+material = "GaAs"
+thickness = 8.0
+[[layer]]
+material = "AlGaAs"
+x = 0.3
+thickness = 12.0
+[[layer]]
+material = "AlGaAs"
+x = 0.3
+thickness = 40.0
+sheet_donors = 4e12
+[physics]
+carriers = ["electron"]
+[quantum]
+regions = [[45.0, 104.0]]
+states = 8
+[mesh]
+step = 0.25
+"""
+
+#: the child process of `compare`: time warm solves of one case in the checkout at ROOTDIR
+_COMPARE_CHILD = r"""
+import json, statistics, sys, time
+root, case, repeat = sys.argv[1], sys.argv[2], int(sys.argv[3])
+sys.path.insert(0, root)
+import selfcon
+assert selfcon.__file__.startswith(root), (selfcon.__file__, root)
+text = sys.stdin.read()
+deck = selfcon.load_deck(text if case == "multi_well" else case)
+r = selfcon.solve(deck)
+selfcon.solve(deck)
+times = []
+for _ in range(repeat):
+    t = time.perf_counter()
+    r = selfcon.solve(deck)
+    times.append(time.perf_counter() - t)
+print(json.dumps({"median": statistics.median(times), "converged": bool(r.converged),
+                  "iterations": int(r.iterations),
+                  "ns": float(r.summary["electron_sheet_density_cm2"])}))
+"""
+
+
+def _git(*args, cwd=ROOT):
+    return subprocess.run(["git", *args], cwd=cwd, capture_output=True, text=True, check=True).stdout.strip()
+
+
+def bench_compare(base="main", rounds=7, repeat=15):
+    """Warm solve times of this checkout against commit ``base``, side by side in one run.
+
+    ``base`` is checked out into a temporary git worktree (removed afterwards).  Each round
+    runs one fresh process per (checkout, case), alternating which checkout goes first; a
+    process solves twice to warm up (numba cache, imports) and then times ``repeat`` warm
+    solves, reporting their median.  Per case and checkout the table gives the median of
+    the per-process medians and their spread (max - min over the rounds): the run-to-run
+    spread of the machine.  The target: the new median is not above the old one by more
+    than the larger of the two spreads."""
+    import statistics
+    head = _git("rev-parse", "--short", "HEAD")
+    base_id = _git("rev-parse", "--short", base)
+    dirty = bool(_git("status", "--porcelain", "--untracked-files=no"))
+    tmp = Path(tempfile.mkdtemp(prefix="selfcon-compare-"))
+    old_root = tmp / "old"
+    _git("worktree", "add", "--detach", str(old_root), base_id)
+    try:
+        roots = {"old": str(old_root), "new": str(ROOT)}
+        cases = {"hemt_4K": str(DECKS["4K"]), "hemt_300K": str(DECKS["300K"]), "multi_well": "multi_well"}
+
+        def child(which, case):
+            p = subprocess.run([PY, "-c", _COMPARE_CHILD, roots[which], cases[case], str(repeat)],
+                               input=MULTI_WELL, capture_output=True, text=True, cwd=roots[which])
+            if p.returncode != 0:
+                raise RuntimeError(f"compare child {which}/{case} failed: {p.stderr[-500:]}")
+            return json.loads(p.stdout.strip().splitlines()[-1])
+
+        for which in roots:             # compile / load the numba cache of each checkout once
+            for case in cases:
+                child(which, case)
+        got = {(w, c): [] for w in roots for c in cases}
+        for k in range(rounds):
+            order = ("old", "new") if k % 2 == 0 else ("new", "old")
+            for case in cases:
+                for which in order:
+                    got[(which, case)].append(child(which, case))
+        for case in cases:
+            med, spread = {}, {}
+            for which in roots:
+                ms = [g["median"] for g in got[(which, case)]]
+                med[which] = statistics.median(ms)
+                spread[which] = max(ms) - min(ms)
+                last = got[(which, case)][-1]
+                check(last["converged"], f"compare {case} {which}: converged")
+                row("compare", case, f"warm solve, {which}", med[which] * 1e3, "ms",
+                    note=(f"{base_id}" if which == "old" else f"{head}{' + local changes' if dirty else ''}")
+                    + f", spread {spread[which] * 1e3:.2f} ms over {rounds} processes, "
+                      f"{last['iterations']} it")
+            allowed = max(spread.values())
+            diff = med["new"] - med["old"]
+            row("compare", case, "new - old", diff * 1e3, "ms", f"<= spread {allowed * 1e3:.2f} ms",
+                diff <= allowed, note=f"new/old = {med['new'] / med['old']:.3f}")
+            ns_old = got[("old", case)][-1]["ns"]
+            ns_new = got[("new", case)][-1]["ns"]
+            check(rel(ns_new, ns_old) < 1e-8, f"compare {case}: n_s new {ns_new:.9e} vs old {ns_old:.9e}")
+    finally:
+        subprocess.run(["git", "worktree", "remove", "--force", str(old_root)], cwd=ROOT,
+                       capture_output=True)
+        shutil.rmtree(tmp, ignore_errors=True)
+
+
 # --------------------------------------------------------------------------- main
 
-BENCHES = ("floor", "scaling", "mesh", "iterations", "startup", "batch")
+BENCHES = ("floor", "scaling", "mesh", "iterations", "startup", "batch", "compare")
+#: run when no name is given (compare needs a base commit and a few minutes: by name only)
+DEFAULT_BENCHES = ("floor", "scaling", "mesh", "iterations", "startup", "batch")
 
 
 def machine():
@@ -404,8 +560,12 @@ def main(argv=None):
     ap.add_argument("--json", default=str(ROOT / "bench-results" / "bench.json"))
     ap.add_argument("--quick", action="store_true", help="fewer points (smoke test of the tool)")
     ap.add_argument("--strict", action="store_true", help="also exit 1 when a speed target is missed")
+    ap.add_argument("--base", default="main",
+                    help="compare: the commit to time against this checkout (default main)")
+    ap.add_argument("--rounds", type=int, default=7,
+                    help="compare: processes per checkout and case (default 7)")
     a = ap.parse_args(argv)
-    names = a.names or list(BENCHES)
+    names = a.names or list(DEFAULT_BENCHES)
     bad = [n for n in names if n not in BENCHES]
     if bad:
         ap.error(f"unknown benchmark(s) {', '.join(bad)}; choose from {', '.join(BENCHES)}")
@@ -424,6 +584,8 @@ def main(argv=None):
             bench_startup()
         elif n == "batch":
             bench_batch(Path(a.json).parent)
+        elif n == "compare":
+            bench_compare(a.base, a.rounds)
         print(f"[{n}: {time.perf_counter() - t:.1f} s]", file=sys.stderr)
     total = time.perf_counter() - t0
     print_table(ROWS)

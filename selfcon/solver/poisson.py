@@ -12,6 +12,7 @@ from dataclasses import dataclass, field, replace
 import numpy as np
 
 from selfcon.constants import KB_EV, Q_EPS0, NM_PER_CM
+from selfcon.solver.kernels.bundles import Boundaries, Grid, Material, NewtonOptions, Quantum
 
 DIRICHLET = 0
 ZERO_FIELD = 1
@@ -147,16 +148,19 @@ class PoissonProblem:
         return replace(self, top=self.top if top is None else top,
                        bottom=self.bottom if bottom is None else bottom)
 
-    def model_args(self):
-        """The kernel model argument tuple (order of selfcon.solver.kernels.poisson)."""
-        return (self.h, self.wl, self.wr, self.eps, self.ec0, self.ev0, self.nc, self.nv,
-                self.nd, self.ed, self.na, self.ea, self.sheet_nd, self.sheet_na, self.kT,
-                bool(self.full_ionization), self.cls_e, self.cls_h, self.psi2, self.ek,
-                self.dos_e, self.psi2h, self.ekh, self.dos_h, self.phi_ref,
-                float(self.qshift), self.ec0_v, self.nc_v)
+    def kernel_args(self):
+        """The (Grid, Material, Quantum) bundles of the kernels (selfcon.solver.kernels.bundles)."""
+        return (Grid(self.h, self.wl, self.wr),
+                Material(self.eps, self.ec0, self.ev0, self.nc, self.nv, self.nd, self.ed,
+                         self.na, self.ea, self.sheet_nd, self.sheet_na, self.ec0_v, self.nc_v,
+                         float(self.kT), bool(self.full_ionization)),
+                Quantum(self.cls_e, self.cls_h, self.psi2, self.ek, self.dos_e, self.psi2h,
+                        self.ekh, self.dos_h, self.phi_ref, float(self.qshift)))
 
-
-ChargeModel = PoissonProblem
+    def boundaries(self):
+        """The Boundaries bundle of the kernels."""
+        return Boundaries(int(self.top[0]), float(self.top[1]), int(self.bottom[0]),
+                          float(self.bottom[1]))
 
 
 @dataclass
@@ -176,10 +180,9 @@ def solve_poisson(problem, phi0, *, tol=1e-9, max_iter=200, max_step=0.3, backtr
     the step (see selfcon.solver.kernels.poisson.poisson_newton)."""
     from selfcon.solver.kernels.poisson import poisson_newton
     hist = np.zeros(max_iter)
-    phi, steps, conv, upd = poisson_newton(
-        _f(phi0), *problem.model_args(), problem.top[0], problem.top[1], problem.bottom[0],
-        problem.bottom[1], float(tol), int(max_iter), float(max_step), hist,
-        bool(backtrack))
+    opts = NewtonOptions(float(tol), int(max_iter), float(max_step), bool(backtrack))
+    phi, steps, conv, upd = poisson_newton(_f(phi0), *problem.kernel_args(),
+                                           problem.boundaries(), opts, hist)
     return PoissonSolution(phi, int(steps), bool(conv), float(upd), hist[:steps].copy())
 
 
@@ -198,7 +201,7 @@ class Densities:
 
 def densities(problem, phi):
     from selfcon.solver.kernels.poisson import node_densities
-    n, p, ndp, nam, _ = node_densities(_f(phi), *problem.model_args())
+    n, p, ndp, nam, _ = node_densities(_f(phi), *problem.kernel_args())
     return Densities(n, p, ndp, nam)
 
 

@@ -1,6 +1,11 @@
 """Nonlinear Poisson kernels (numba): finite volumes on a nonuniform mesh, Newton with a
 tridiagonal (Thomas) solve.  Arrays in, arrays out; nothing compiled at import.
 
+The arrays travel in named bundles (selfcon/solver/kernels/bundles.py): ``grid`` (Grid:
+h, wl, wr), ``mat`` (Material: the classical charge model), ``q`` (Quantum: the subband
+part), ``bounds`` (Boundaries) and ``opts`` (NewtonOptions).  The names below are their
+fields.
+
 Mesh (INTERFACES.md): nodes i = 0..N-1, cells c = 0..N-2 of width h[c], half-cell
 widths wl[i] = h[i-1]/2 (0 at i = 0), wr[i] = h[i]/2 (0 at i = N-1), w = wl + wr.
 Material data is per cell; every cell is one material.
@@ -55,45 +60,47 @@ _BOLTZMANN_ETA = -40.0
 _NEGLIGIBLE_X = -45.0
 
 
-@njit(cache=True)
-def _cell_terms(c, phi, ec0, ev0, nc, nv, nd, ed, na, ea, kT, full, want_e=True, want_h=True,
-                want_d=True, want_a=True):
+@njit(cache=True, inline='always')
+def _cell_terms(c, phi, mat, want_e=True, want_h=True, want_d=True, want_a=True):
     """Classical densities of cell c at potential phi and their d/dphi, plus the ionised
     fractions of a unit sheet (donor, acceptor) with d/dphi.  want_*: False skips a term
     the caller will not use (returned as 0): quantum nodes, undoped cells."""
-    ec = ec0[c] - phi
-    ev = ev0[c] - phi
+    kT = mat.kT
+    ec = mat.ec0[c] - phi
+    ev = mat.ev0[c] - phi
+    nc = mat.nc[c]
+    nv = mat.nv[c]
     n = 0.0
     dn = 0.0
-    if want_e and nc[c] > 0.0:
+    if want_e and nc > 0.0:
         eta = -ec / kT
         if eta < _BOLTZMANN_ETA:
             # deep non-degenerate limit: F_{1/2} = F_{-1/2} = e^eta to < 1e-17 relative;
             # also avoids the series' slow path when e^eta underflows (cold, wide gaps)
-            n = nc[c] * math.exp(eta)
+            n = nc * math.exp(eta)
             dn = n / kT
         else:
-            n = nc[c] * fermi_half(eta)
-            dn = nc[c] * fermi_mhalf(eta) / kT
+            n = nc * fermi_half(eta)
+            dn = nc * fermi_mhalf(eta) / kT
     p = 0.0
     dp = 0.0
-    if want_h and nv[c] > 0.0:
+    if want_h and nv > 0.0:
         eta = ev / kT
         if eta < _BOLTZMANN_ETA:
-            p = nv[c] * math.exp(eta)
+            p = nv * math.exp(eta)
             dp = -p / kT
         else:
-            p = nv[c] * fermi_half(eta)
-            dp = -nv[c] * fermi_mhalf(eta) / kT
+            p = nv * fermi_half(eta)
+            dp = -nv * fermi_mhalf(eta) / kT
     # d/dphi = -d/dEc = -d/dEv
     fd = 0.0
     dfd = 0.0
     fa = 0.0
     dfa = 0.0
     if want_d:
-        fd, dfd = donor_ionized(1.0, ec, ed[c], kT, full)
+        fd, dfd = donor_ionized(1.0, ec, mat.ed[c], kT, mat.full)
     if want_a:
-        fa, dfa = acceptor_ionized(1.0, ev, ea[c], kT, full)
+        fa, dfa = acceptor_ionized(1.0, ev, mat.ea[c], kT, mat.full)
     return n, dn, p, dp, fd, -dfd, fa, -dfa
 
 
@@ -108,11 +115,15 @@ def _log1pexp_expit(x):
     return lg, e / (1.0 + e)
 
 
-@njit(cache=True)
-def _node(i, phi_i, h, wl, wr, ec0, ev0, nc, nv, nd, ed, na, ea, sheet_nd, sheet_na, kT, full,
-          cls_e, cls_h, psi2, ek, dos_e, psi2h, ekh, dos_h, phi_ref, qshift, ec0_v, nc_v):
+@njit(cache=True, inline='always')
+def _node(i, phi_i, grid, mat, q):
     """Node densities n, p, Nd+, Na- (nm^-3) at phi_i and d rho/d phi."""
-    w = wl[i] + wr[i]
+    wl = grid.wl[i]
+    wr = grid.wr[i]
+    w = wl + wr
+    kT = mat.kT
+    sheet_nd = mat.sheet_nd[i]
+    sheet_na = mat.sheet_na[i]
     n = 0.0
     dn = 0.0
     p = 0.0
@@ -128,60 +139,64 @@ def _node(i, phi_i, h, wl, wr, ec0, ev0, nc, nv, nd, ed, na, ea, sheet_nd, sheet
     nvl = 0.0
     dnvl = 0.0
     # classical carriers are not needed on fully quantum nodes (mask 0)
-    want_e = cls_e[i] > 0.0
-    want_h = cls_h[i] > 0.0
+    want_e = q.cls_e[i] > 0.0
+    want_h = q.cls_h[i] > 0.0
     for side in range(2):
         if side == 0:
             c = i - 1
-            wt = wl[i]
+            wt = wl
         else:
             c = i
-            wt = wr[i]
+            wt = wr
         if wt == 0.0:
             continue
+        nd = mat.nd[c]
+        na = mat.na[c]
         cn, cdn, cp, cdp, fd, dfd, fa, dfa = _cell_terms(
-            c, phi_i, ec0, ev0, nc, nv, nd, ed, na, ea, kT, full, want_e, want_h,
-            nd[c] != 0.0 or sheet_nd[i] != 0.0, na[c] != 0.0 or sheet_na[i] != 0.0)
+            c, phi_i, mat, want_e, want_h, nd != 0.0 or sheet_nd != 0.0, na != 0.0 or sheet_na != 0.0)
         n += wt * cn
         dn += wt * cdn
         p += wt * cp
         dp += wt * cdp
-        ndp += wt * nd[c] * fd
-        dndp += wt * nd[c] * dfd
-        nam += wt * na[c] * fa
-        dnam += wt * na[c] * dfa
+        ndp += wt * nd * fd
+        dndp += wt * nd * dfd
+        nam += wt * na * fa
+        dnam += wt * na * dfa
         fsd += wt * fd
         dfsd += wt * dfd
         fsa += wt * fa
         dfsa += wt * dfa
         # further conduction valleys (X, L): classical everywhere, never masked
-        for v in range(ec0_v.shape[0]):
-            if nc_v[v, c] > 0.0:
-                eta = (phi_i - ec0_v[v, c]) / kT
+        for v in range(mat.ec0_v.shape[0]):
+            ncv = mat.nc_v[v, c]
+            if ncv > 0.0:
+                eta = (phi_i - mat.ec0_v[v, c]) / kT
                 if eta < _BOLTZMANN_ETA:
-                    x = nc_v[v, c] * math.exp(eta)
+                    x = ncv * math.exp(eta)
                     nvl += wt * x
                     dnvl += wt * x / kT
                 else:
-                    nvl += wt * nc_v[v, c] * fermi_half(eta)
-                    dnvl += wt * nc_v[v, c] * fermi_mhalf(eta) / kT
+                    nvl += wt * ncv * fermi_half(eta)
+                    dnvl += wt * ncv * fermi_mhalf(eta) / kT
     n /= w
     dn /= w
     p /= w
     dp /= w
     # sheets: s * (wl f_l + wr f_r)/w is the ionised sheet; spread over the dual cell (/w)
-    ndp = (ndp + sheet_nd[i] * fsd / w) / w
-    dndp = (dndp + sheet_nd[i] * dfsd / w) / w
-    nam = (nam + sheet_na[i] * fsa / w) / w
-    dnam = (dnam + sheet_na[i] * dfsa / w) / w
+    ndp = (ndp + sheet_nd * fsd / w) / w
+    dndp = (dndp + sheet_nd * dfsd / w) / w
+    nam = (nam + sheet_na * fsa / w) / w
+    dnam = (dnam + sheet_na * dfsa / w) / w
     # quantum electrons / holes with rigidly shifted subbands
-    dphi = qshift * (phi_i - phi_ref[i])
-    ce = cls_e[i]
+    qshift = q.qshift
+    dphi = qshift * (phi_i - q.phi_ref[i])
+    ce = q.cls_e[i]
     if ce < 1.0:
         nq = 0.0
         dnq = 0.0
+        ek = q.ek
         for k in range(ek.shape[0]):
-            a = psi2[i, k] * dos_e[k]
+            a = q.psi2[i, k] * q.dos_e[k]
             if a != 0.0:
                 x = (dphi - ek[k]) / kT
                 if x < _NEGLIGIBLE_X:       # ln(1 + e^x) < 3e-20: the subband is empty here
@@ -191,12 +206,13 @@ def _node(i, phi_i, h, wl, wr, ec0, ev0, nc, nv, nd, ed, na, ea, sheet_nd, sheet
                 dnq += qshift * a * sg
         n = ce * n + (1.0 - ce) * nq
         dn = ce * dn + (1.0 - ce) * dnq
-    ch = cls_h[i]
+    ch = q.cls_h[i]
     if ch < 1.0:
         pq = 0.0
         dpq = 0.0
+        ekh = q.ekh
         for k in range(ekh.shape[0]):
-            a = psi2h[i, k] * dos_h[k]
+            a = q.psi2h[i, k] * q.dos_h[k]
             if a != 0.0:
                 x = (ekh[k] - dphi) / kT
                 if x < _NEGLIGIBLE_X:
@@ -213,11 +229,10 @@ def _node(i, phi_i, h, wl, wr, ec0, ev0, nc, nv, nd, ed, na, ea, sheet_nd, sheet
 
 
 @njit(cache=True)
-def node_densities(phi, h, wl, wr, eps, ec0, ev0, nc, nv, nd, ed, na, ea, sheet_nd, sheet_na,
-                   kT, full, cls_e, cls_h, psi2, ek, dos_e, psi2h, ekh, dos_h, phi_ref, qshift, ec0_v, nc_v):
+def node_densities(phi, grid, mat, q):
     """Node densities at phi: (n, p, nd_plus, na_minus, drho_dphi), each (N,), nm^-3
-    (sheets included as s/w).  rho = p - n + nd_plus - na_minus.  eps is unused (kept so
-    every kernel takes the same model argument list)."""
+    (sheets included as s/w).  rho = p - n + nd_plus - na_minus.
+    grid, mat, q: the Grid, Material and Quantum bundles (selfcon.solver.kernels.bundles)."""
     N = phi.shape[0]
     n = np.empty(N)
     p = np.empty(N)
@@ -225,9 +240,7 @@ def node_densities(phi, h, wl, wr, eps, ec0, ev0, nc, nv, nd, ed, na, ea, sheet_
     nam = np.empty(N)
     drho = np.empty(N)
     for i in range(N):
-        n[i], p[i], ndp[i], nam[i], drho[i] = _node(
-            i, phi[i], h, wl, wr, ec0, ev0, nc, nv, nd, ed, na, ea, sheet_nd, sheet_na, kT,
-            full, cls_e, cls_h, psi2, ek, dos_e, psi2h, ekh, dos_h, phi_ref, qshift, ec0_v, nc_v)
+        n[i], p[i], ndp[i], nam[i], drho[i] = _node(i, phi[i], grid, mat, q)
     return n, p, ndp, nam, drho
 
 
@@ -271,16 +284,13 @@ def thomas(a, b, c, d, cp, x):
 
 
 @njit(cache=True)
-def _assemble(phi, g, h, wl, wr, ec0, ev0, nc, nv, nd, ed, na, ea, sheet_nd, sheet_na, kT, full,
-              cls_e, cls_h, psi2, ek, dos_e, psi2h, ekh, dos_h, phi_ref, qshift, ec0_v, nc_v, kind_top, kind_bottom,
-              a, b, c, r):
-    """Fill the tridiagonal Jacobian (a, b, c) and r = -R at phi; return ||R||_2."""
+def _assemble(phi, g, grid, mat, q, bounds, a, b, c, r):
+    """Fill the tridiagonal Jacobian (a, b, c) and r = -R at phi; return ||R||_2.
+    g (N-1,): eps/h of every cell."""
     N = phi.shape[0]
     for i in range(N):
-        nn, pp, ndp, nam, drho = _node(i, phi[i], h, wl, wr, ec0, ev0, nc, nv, nd, ed, na,
-                                       ea, sheet_nd, sheet_na, kT, full, cls_e, cls_h,
-                                       psi2, ek, dos_e, psi2h, ekh, dos_h, phi_ref, qshift, ec0_v, nc_v)
-        w = wl[i] + wr[i]
+        nn, pp, ndp, nam, drho = _node(i, phi[i], grid, mat, q)
+        w = grid.wl[i] + grid.wr[i]
         res = Q_EPS0 * (pp - nn + ndp - nam) * w
         diag = Q_EPS0 * drho * w
         if i < N - 1:
@@ -297,12 +307,12 @@ def _assemble(phi, g, h, wl, wr, ec0, ev0, nc, nv, nd, ed, na, ea, sheet_nd, she
             a[i] = 0.0
         b[i] = diag
         r[i] = -res
-    if kind_top == 0:
+    if bounds.kind_top == 0:
         a[0] = 0.0
         b[0] = 1.0
         c[0] = 0.0
         r[0] = 0.0
-    if kind_bottom == 0:
+    if bounds.kind_bottom == 0:
         a[N - 1] = 0.0
         b[N - 1] = 1.0
         c[N - 1] = 0.0
@@ -314,28 +324,29 @@ def _assemble(phi, g, h, wl, wr, ec0, ev0, nc, nv, nd, ed, na, ea, sheet_nd, she
 
 
 @njit(cache=True)
-def poisson_newton(phi0, h, wl, wr, eps, ec0, ev0, nc, nv, nd, ed, na, ea, sheet_nd, sheet_na,
-                   kT, full, cls_e, cls_h, psi2, ek, dos_e, psi2h, ekh, dos_h, phi_ref, qshift, ec0_v, nc_v,
-                   kind_top, value_top, kind_bottom, value_bottom, tol, max_iter, max_step,
-                   history, backtrack=True):
+def poisson_newton(phi0, grid, mat, q, bounds, opts, history):
     """Newton solve of the nonlinear FV Poisson equation (see module docstring).
 
-    phi0 (N,) initial guess (not modified); kind_* 0 Dirichlet (phi = value_*), 1 zero field;
-    tol (V) on max |step|; max_step (V) step-length limit; history (>= max_iter,) receives
-    max |step| of each Newton step.  Returns (phi, newton_steps, converged, max_update).
-    Damping: step scaled to max |dphi| <= max_step, then halved (up to 50 times) until
-    ||R||_2 decreases (backtracking); a step already below tol is taken as is.
-    backtrack=False takes each (clamped) step without evaluating the residual at the new
-    point: for callers with their own safeguard (the predictor passes of the outer loop,
-    one step each, damped by the loop when its residual grows).
+    phi0 (N,) initial guess (not modified); grid, mat, q, bounds, opts: the Grid,
+    Material, Quantum, Boundaries and NewtonOptions bundles
+    (selfcon.solver.kernels.bundles); history (>= opts.max_iter,) receives max |step| of
+    each Newton step.  Returns (phi, newton_steps, converged, max_update).
+    Damping: step scaled to max |dphi| <= opts.max_step, then halved (up to 50 times)
+    until ||R||_2 decreases (backtracking); a step already below opts.tol is taken as is.
+    opts.backtrack = False takes each (clamped) step without evaluating the residual at
+    the new point: for callers with their own safeguard (the predictor passes of the outer
+    loop, one step each, damped by the loop when its residual grows).
     Work arrays are allocated once per call, none inside the loop.
     """
+    tol = opts.tol
+    max_iter = opts.max_iter
+    max_step = opts.max_step
     N = phi0.shape[0]
     phi = phi0.copy()
-    if kind_top == 0:
-        phi[0] = value_top
-    if kind_bottom == 0:
-        phi[N - 1] = value_bottom
+    if bounds.kind_top == 0:
+        phi[0] = bounds.value_top
+    if bounds.kind_bottom == 0:
+        phi[N - 1] = bounds.value_bottom
     a = np.empty(N)
     b = np.empty(N)
     c = np.empty(N)
@@ -349,13 +360,11 @@ def poisson_newton(phi0, h, wl, wr, eps, ec0, ev0, nc, nv, nd, ed, na, ea, sheet
     trial = np.empty(N)
     g = np.empty(N - 1)            # eps/h per cell
     for k in range(N - 1):
-        g[k] = eps[k] / h[k]
+        g[k] = mat.eps[k] / grid.h[k]
     steps = 0
     converged = False
     upd = np.inf
-    norm = _assemble(phi, g, h, wl, wr, ec0, ev0, nc, nv, nd, ed, na, ea, sheet_nd, sheet_na,
-                     kT, full, cls_e, cls_h, psi2, ek, dos_e, psi2h, ekh, dos_h, phi_ref, qshift, ec0_v, nc_v,
-                     kind_top, kind_bottom, a, b, c, r)
+    norm = _assemble(phi, g, grid, mat, q, bounds, a, b, c, r)
     for it in range(max_iter):
         if not math.isfinite(norm):
             upd = np.nan
@@ -373,7 +382,7 @@ def poisson_newton(phi0, h, wl, wr, eps, ec0, ev0, nc, nv, nd, ed, na, ea, sheet
         scale = 1.0
         if big > max_step:
             scale = max_step / big
-        if not backtrack:
+        if not opts.backtrack:
             for i in range(N):
                 phi[i] += scale * dx[i]
             upd = scale * big
@@ -382,16 +391,12 @@ def poisson_newton(phi0, h, wl, wr, eps, ec0, ev0, nc, nv, nd, ed, na, ea, sheet
                 converged = True
                 break
             if it + 1 < max_iter:
-                norm = _assemble(phi, g, h, wl, wr, ec0, ev0, nc, nv, nd, ed, na, ea, sheet_nd,
-                                 sheet_na, kT, full, cls_e, cls_h, psi2, ek, dos_e, psi2h, ekh,
-                                 dos_h, phi_ref, qshift, ec0_v, nc_v, kind_top, kind_bottom, a, b, c, r)
+                norm = _assemble(phi, g, grid, mat, q, bounds, a, b, c, r)
             continue
         for _ in range(50):
             for i in range(N):
                 trial[i] = phi[i] + scale * dx[i]
-            new = _assemble(trial, g, h, wl, wr, ec0, ev0, nc, nv, nd, ed, na, ea, sheet_nd,
-                            sheet_na, kT, full, cls_e, cls_h, psi2, ek, dos_e, psi2h, ekh,
-                            dos_h, phi_ref, qshift, ec0_v, nc_v, kind_top, kind_bottom, a2, b2, c2, r2)
+            new = _assemble(trial, g, grid, mat, q, bounds, a2, b2, c2, r2)
             if new < norm or scale * big < tol:
                 break
             scale *= 0.5
