@@ -99,7 +99,9 @@ CARRIERS = ("electron", "heavy_hole", "light_hole")
 ALL_CARRIERS = CARRIERS + ("x_electron", "l_electron")
 IONIZATION = ("thermal", "full")
 SOLVER_METHODS = ("predictor-corrector", "anderson", "linear")
-LIBRARY_FALLBACK = ("GaAs", "AlAs", "InAs", "InP", "AlGaAs", "InGaAs", "InAlAs")
+LIBRARY_FALLBACK = ("GaAs", "AlAs", "InAs", "InP", "GaSb", "AlSb", "InSb", "GaP", "AlP",
+                    "AlGaAs", "InGaAs", "InAlAs", "AlGaSb", "InGaSb", "InAsSb", "GaAsSb",
+                    "AlAsSb", "InGaP", "AlInP", "GaAsP", "InAsP", "InGaAsP", "AlGaInAs")
 
 _TOP = {
     "title": KeySpec("string", "-", "", "free text, shown in reports and stored in results"),
@@ -163,6 +165,23 @@ MATERIAL_PARAMS = {
     "x_varshni_beta": _p("K", "Varshni beta of the X gap", **_NONNEG),
     "l_varshni_alpha": _p("eV/K", "Varshni alpha of the L gap"),
     "l_varshni_beta": _p("K", "Varshni beta of the L gap", **_NONNEG),
+    "lattice_constant": _p("nm", "lattice constant at 300 K (strained stacks)", **_POS),
+    "lattice_expansion": _p("nm/K", "da/dT: a(T) = a(300 K) + da/dT (T - 300 K)"),
+    "elastic_c11": _p("GPa", "elastic stiffness C11", **_POS),
+    "elastic_c12": _p("GPa", "elastic stiffness C12", **_POS),
+    "elastic_c44": _p("GPa", "elastic stiffness C44", **_POS),
+    "deformation_ac": _p("eV", "Gamma conduction-band hydrostatic deformation potential a_c "
+                         "(dEc = a_c Tr eps)"),
+    "deformation_av": _p("eV", "valence-band hydrostatic deformation potential a_v, sign of "
+                         "Van de Walle 1989 (dEv = +a_v Tr eps; a_c - a_v is the gap potential)"),
+    "deformation_b": _p("eV", "valence-band shear deformation potential b"),
+    "deformation_d": _p("eV", "valence-band shear deformation potential d"),
+    "x_deformation_gap": _p("eV", "hydrostatic deformation potential of the X gap "
+                            "(Xi_d + Xi_u/3 - a_v)"),
+    "x_deformation_u": _p("eV", "X-valley uniaxial deformation potential Xi_u"),
+    "l_deformation_gap": _p("eV", "hydrostatic deformation potential of the L gap "
+                            "(Xi_d + Xi_u/3 - a_v)"),
+    "l_deformation_u": _p("eV", "L-valley uniaxial deformation potential Xi_u"),
 }
 _MATERIAL = {
     "base": KeySpec("string", "-", None, "library material to start from (its parameters, then "

@@ -4,7 +4,9 @@ materials, and the derived per-cell quantities.
 Everything works on numpy arrays shaped like the per-cell alloy fraction x.
 The intermediate form is a dict "primitives": the library's parameter names
 (``band_gap``, ``electron_mass``, …; the gaps at 0 K) as arrays, plus
-``eg_gamma``, ``eg_x``, ``eg_l``: the gaps at the temperature asked for.
+``eg_gamma``, ``eg_x``, ``eg_l``: the gaps at the temperature asked for, and
+``lattice_t``: the lattice constant at that temperature (nm).  Quaternaries are
+interpolated from the primitives of their ternaries (:func:`quaternary_primitives`).
 :func:`derived` turns primitives into the per-cell keys the structure uses.
 """
 import difflib
@@ -12,7 +14,7 @@ import difflib
 import numpy as np
 
 from selfcon.errors import MaterialError
-from selfcon.input.materials.library import ALLOYS, BINARIES, BOWED, PARAMETERS
+from selfcon.input.materials.library import ALLOYS, BINARIES, BOWED, PARAMETERS, QUATERNARIES
 
 #: (valley suffix, gap key, alpha key, beta key)
 VALLEYS = (
@@ -30,7 +32,14 @@ OUTPUT_UNITS = {
     "m_hh_z": "m0", "m_lh_z": "m0", "m_hh_par": "m0", "m_lh_par": "m0",
     "m_c_dos": "m0", "m_v_dos": "m0",
     "eps": "1", "donor_binding": "eV", "acceptor_binding": "eV", "delta_so": "eV",
+    "m_hh_dos": "m0", "m_lh_dos": "m0",
+    "lattice": "nm", "c11": "GPa", "c12": "GPa", "c44": "GPa",
+    "ac": "eV", "av": "eV", "b_dp": "eV", "d_dp": "eV",
+    "xi_x_gap": "eV", "xi_x_u": "eV", "xi_l_gap": "eV", "xi_l_u": "eV",
 }
+
+#: the temperature of the tabulated lattice constants (a(T) = a(T_LATTICE) + da/dT (T - T_LATTICE))
+T_LATTICE = 300.0
 
 #: what a deck-local material without ``base`` gets when an optional group is absent
 #: (documented in DEVELOPERS.md via cell_parameters' docstring)
@@ -38,6 +47,9 @@ FILL_VALLEY_OFFSET = 10.0   # eV: absent X/L valley sits this far above the Γ e
 FILL_MASS = 1.0             # m0: absent X/L masses; absent Luttinger -> γ1 = 1, γ2 = γ3 = 0
 
 _REQUIRED_NO_BASE = ("band_gap", "valence_band_offset", "electron_mass", "permittivity")
+#: what a deck-local material without base must give when its layer is strained
+_REQUIRED_STRAIN = ("lattice_constant", "elastic_c11", "elastic_c12", "deformation_ac",
+                    "deformation_av", "deformation_b")
 _LUTTINGER = ("luttinger_gamma1", "luttinger_gamma2", "luttinger_gamma3")
 
 
@@ -57,7 +69,7 @@ def _suggest(name, choices):
 
 
 def unknown_material(name, local_names=()):
-    allowed = tuple(BINARIES) + tuple(ALLOYS) + tuple(local_names)
+    allowed = tuple(BINARIES) + tuple(ALLOYS) + tuple(QUATERNARIES) + tuple(local_names)
     return MaterialError(f"unknown material {name!r}{_suggest(str(name), allowed)}",
                          key="material", allowed=", ".join(allowed))
 
@@ -74,10 +86,16 @@ def check_x(name, x):
                             key="x", allowed="0 <= x <= 1")
 
 
+def lattice_at(prim, temperature):
+    """a(T) = a(300 K) + da/dT (T - 300 K), the linear form of the review's tables."""
+    return prim["lattice_constant"] + prim["lattice_expansion"] * (float(temperature) - T_LATTICE)
+
+
 def binary_primitives(name, shape, temperature):
     prim = {k: np.full(shape, v.value, dtype=float) for k, v in BINARIES[name].items()}
     for suffix, gap, alpha, beta in VALLEYS:
         prim["eg_" + suffix] = varshni(prim[gap], prim[alpha], prim[beta], temperature)
+    prim["lattice_t"] = lattice_at(prim, temperature)
     return prim
 
 
@@ -100,6 +118,94 @@ def alloy_primitives(name, x, temperature):
         bow = alloy.bowing[bkey]
         if bow.c0 or bow.c1:
             prim[key] = prim[key] - x * (1.0 - x) * bowing_value(bow, x)
+    return prim
+
+
+def check_xy(name, x, y):
+    """x and y of a library quaternary: every cell finite, in [0, 1] (x + y <= 1 for the
+    one-sublattice kind)."""
+    q = QUATERNARIES[name]
+    for key, v, meaning in (("x", x, q.meaning_of_x), ("y", y, q.meaning_of_y)):
+        if (~np.isfinite(v)).any():
+            raise MaterialError(f"{name} is a quaternary and needs {key} ({meaning}); or give "
+                                "lattice_matched and one of x, y", key=key,
+                                allowed="0 <= " + key + " <= 1")
+        out = (v < 0.0) | (v > 1.0)
+        if out.any():
+            raise MaterialError(f"{key} = {float(v[out][0]):g} of {name} is outside [0, 1]",
+                                key=key, allowed=f"0 <= {key} <= 1")
+    if q.kind == "one-sublattice":
+        over = x + y > 1.0 + 1e-12
+        if over.any():
+            i = int(np.flatnonzero(over)[0])
+            raise MaterialError(f"x + y = {float(x[i] + y[i]):g} of {name} exceeds 1 "
+                                f"({q.meaning_of_x})", key="y", allowed="x + y <= 1")
+
+
+def _blend(parts, weights, den):
+    """sum_k w_k P_k / den over every primitive key."""
+    out = {}
+    for key in parts[0]:
+        acc = 0.0
+        for p, w in zip(parts, weights):
+            acc = acc + w * p[key]
+        out[key] = acc / den
+    return out
+
+
+def quaternary_primitives(name, x, y, temperature):
+    """Primitives of a library quaternary from its ternaries (bowing included).
+
+    Two mixed sublattices, A_x B_(1-x) C_y D_(1-y) (Glisson et al.):
+      Q = [x(1-x)(y T_y1(x) + (1-y) T_y0(x)) + y(1-y)(x T_x1(y) + (1-x) T_x0(y))]
+          / [x(1-x) + y(1-y)]
+    Three elements on one sublattice, A_x B_y C_z D with z = 1-x-y (Williams et al.):
+      Q = [x y T_AB(u) + y z T_BC(v) + x z T_AC(w)] / (xy + yz + xz),
+    each ternary at the perpendicular projection of (x, y, z) onto its edge
+    (A share x + z/2 on AB, and so on).  Both reduce to the ternaries on the edges and to
+    the binaries at the corners, and to plain (bi)linear interpolation where no ternary bows.
+    """
+    q = QUATERNARIES[name]
+    x = np.asarray(x, dtype=float)
+    y = np.asarray(y, dtype=float)
+    check_xy(name, x, y)
+    if q.kind == "two-sublattice":
+        t = {e: alloy_primitives(q.edges[e], x if e.startswith("y") else y, temperature)
+             for e in ("y=1", "y=0", "x=1", "x=0")}
+        wx, wy = x * (1.0 - x), y * (1.0 - y)
+        den = wx + wy
+        corner = den <= 0.0
+        den = np.where(corner, 1.0, den)
+        wx = np.where(corner, 1.0, wx)          # at a corner x(1-x) = y(1-y) = 0: the edge
+        prim = _blend([t["y=1"], t["y=0"], t["x=1"], t["x=0"]],
+                      [wx * y, wx * (1.0 - y), wy * x, wy * (1.0 - x)], den)
+        return _quaternary_gap_bowing(q, prim, x * (1.0 - x) * y * (1.0 - y))
+    z = 1.0 - x - y
+    share = {"A": x, "B": y, "C": z}
+    parts, weights = [], []
+    for pair in ("AB", "BC", "AC"):
+        ternary, counted = q.edges[pair]
+        p, r = pair[0], pair[1]
+        other = ({"A", "B", "C"} - {p, r}).pop()
+        frac = share[counted] + 0.5 * share[other]      # projection onto the edge
+        parts.append(alloy_primitives(ternary, np.clip(frac, 0.0, 1.0), temperature))
+        weights.append(share[p] * share[r])
+    den = weights[0] + weights[1] + weights[2]
+    corner = den <= 0.0
+    if corner.any():
+        binaries = [binary_primitives(q.corners[c], x.shape, temperature) for c in "ABC"]
+        cw = [np.where(corner, share[c], 0.0) for c in "ABC"]
+        parts += binaries
+        weights = [np.where(corner, 0.0, w) for w in weights] + cw
+        den = np.where(corner, 1.0, den)
+    return _quaternary_gap_bowing(q, _blend(parts, weights, den), x * y * z)
+
+
+def _quaternary_gap_bowing(q, prim, w):
+    if q.gap_bowing:
+        c = q.gap_bowing[0]
+        prim["band_gap"] = prim["band_gap"] - c * w
+        prim["eg_gamma"] = prim["eg_gamma"] - c * w
     return prim
 
 
@@ -147,6 +253,8 @@ def apply_overrides(prim, params, temperature):
     for key, value in params.items():
         if key not in skip:
             prim[key] = np.full(shape, float(value))
+    if "lattice_constant" in params or "lattice_expansion" in params:
+        prim["lattice_t"] = lattice_at(prim, temperature)
     return prim
 
 
@@ -195,14 +303,35 @@ def standalone_primitives(d, params, shape, temperature, needs):
         if "thermal_ionization" in needs and key not in p:
             raise _missing(d, key, " (needed for thermal ionization)")
         p.setdefault(key, 0.0)
+    # lattice, elasticity, deformation potentials: needed only in a strained stack; else
+    # the lattice and elastic constants are unknown (NaN) and the potentials 0
+    if "strain" in needs:
+        for key in _REQUIRED_STRAIN:
+            if key not in p:
+                raise _missing(d, key, " (needed in a strained stack: [substrate] material "
+                                       "or lattice_constant, or a relaxed layer)")
+    for key in ("lattice_constant", "elastic_c11", "elastic_c12", "elastic_c44"):
+        p.setdefault(key, float("nan"))
+    for key in ("lattice_expansion", "deformation_ac", "deformation_av", "deformation_b",
+                "deformation_d", "x_deformation_gap", "x_deformation_u", "l_deformation_gap",
+                "l_deformation_u"):
+        p.setdefault(key, 0.0)
     prim = {k: np.full(shape, float(p[k])) for k in PARAMETERS}
+    prim["lattice_t"] = lattice_at(prim, temperature)
     for suffix, gap, alpha, beta in VALLEYS:
         prim["eg_" + suffix] = varshni(prim[gap], prim[alpha], prim[beta], temperature)
     return prim
 
 
-def resolve(name, x, temperature, local, needs, chain=()):
-    """Primitives of ``name`` (library or deck-local) on cells with fractions ``x``."""
+def _no_y(name, y, what):
+    if y is not None and np.isfinite(y).any():
+        raise MaterialError(f"{name} is {what}: it takes no second composition y (only "
+                            "InGaAsP and AlGaInAs do)", key="y")
+
+
+def resolve(name, x, temperature, local, needs, chain=(), y=None):
+    """Primitives of ``name`` (library or deck-local) on cells with fractions ``x`` (and
+    ``y`` for quaternaries; None or NaN: not given)."""
     if name in chain:
         loop = " -> ".join(chain + (name,))
         raise MaterialError(f"deck-local materials form a cycle: {loop}",
@@ -210,15 +339,20 @@ def resolve(name, x, temperature, local, needs, chain=()):
     d = local.get(name)
     if d is None:
         if name in BINARIES:
+            _no_y(name, y, "a binary")
             return binary_primitives(name, x.shape, temperature)
         if name in ALLOYS:
+            _no_y(name, y, "a ternary (x = " + ALLOYS[name].meaning_of_x + ")")
             return alloy_primitives(name, x, temperature)
+        if name in QUATERNARIES:
+            yy = np.full(x.shape, np.nan) if y is None else np.asarray(y, dtype=float)
+            return quaternary_primitives(name, x, yy, temperature)
         err = unknown_material(name, local)
         if chain:
             err = MaterialError(err.message, key=f"material.{chain[-1]}.base",
                                 allowed=err.allowed, **_where(local[chain[-1]]))
         raise err
-    if name in BINARIES or name in ALLOYS:
+    if name in BINARIES or name in ALLOYS or name in QUATERNARIES:
         raise MaterialError(f"deck-local material {name!r} has the name of a library material; "
                             "give it its own name and base = " + repr(name),
                             key=f"material.{name}", **_where(d))
@@ -226,16 +360,22 @@ def resolve(name, x, temperature, local, needs, chain=()):
     _check_keys(d, params)
     base = getattr(d, "base", None)
     if base is None:
+        _no_y(name, y, "a deck-local material without base")
         return standalone_primitives(d, params, x.shape, temperature, needs)
-    dx = getattr(d, "x", None)
-    if dx is not None:
-        given = np.isfinite(x)
-        if given.any() and not np.allclose(x[given], dx, rtol=0.0, atol=1e-12):
-            raise MaterialError(
-                f"material {name!r} fixes x = {dx:g}; the layer gives x = {float(x[given][0]):g} "
-                "(leave the layer's x out or make it equal)", key=f"material.{name}.x", **_where(d))
-        x = np.full(x.shape, float(dx))
-    prim = resolve(base, x, temperature, local, needs, chain + (name,))
+    fixed = {}
+    for key, v in (("x", x), ("y", y)):
+        dv = getattr(d, key, None)
+        if dv is not None:
+            given = np.isfinite(v) if v is not None else np.zeros(x.shape, dtype=bool)
+            if given.any() and not np.allclose(v[given], dv, rtol=0.0, atol=1e-12):
+                raise MaterialError(
+                    f"material {name!r} fixes {key} = {dv:g}; the layer gives {key} = "
+                    f"{float(v[given][0]):g} (leave the layer's {key} out or make it equal)",
+                    key=f"material.{name}.{key}", **_where(d))
+            fixed[key] = np.full(x.shape, float(dv))
+    x = fixed.get("x", x)
+    y = fixed.get("y", y)
+    prim = resolve(base, x, temperature, local, needs, chain + (name,), y)
     return apply_overrides(prim, params, temperature)
 
 
@@ -265,10 +405,19 @@ def validate(name, prim):
         if (prim[key] < 0.0).any():
             raise MaterialError(f"{key} of {name} must not be negative",
                                 key=f"material.{name}.{key}")
+    for key in ("lattice_constant", "elastic_c11", "elastic_c12", "elastic_c44"):
+        v = prim[key]
+        if (np.isfinite(v) & ~(v > 0.0)).any():          # NaN: not given (unstrained use only)
+            raise MaterialError(f"{key} of {name} must be positive, got {float(np.nanmin(v)):g}",
+                                key=f"material.{name}.{key}")
+    if (np.isfinite(prim["lattice_t"]) & ~(prim["lattice_t"] > 0.0)).any():
+        raise MaterialError(f"lattice_expansion of {name} makes the lattice constant negative at "
+                            "this temperature", key=f"material.{name}.lattice_expansion")
 
 
 def derived(prim):
-    """Per-cell quantities from primitives (no strain: ev_hh = ev_lh = vbo)."""
+    """Per-cell quantities from primitives, unstrained: ev_hh = ev_lh = vbo (the strain shifts
+    of biaxially strained layers are added by selfcon.model.strain)."""
     g1, g2, g3 = prim["luttinger_gamma1"], prim["luttinger_gamma2"], prim["luttinger_gamma3"]
     vbo = prim["valence_band_offset"]
     m_hh_z, m_lh_z = 1.0 / (g1 - 2 * g2), 1.0 / (g1 + 2 * g2)
@@ -289,5 +438,11 @@ def derived(prim):
         "eps": prim["permittivity"],
         "donor_binding": prim["donor_binding"], "acceptor_binding": prim["acceptor_binding"],
         "delta_so": prim["spin_orbit"],
+        "m_hh_dos": m_hh, "m_lh_dos": m_lh,
+        "lattice": prim["lattice_t"], "c11": prim["elastic_c11"], "c12": prim["elastic_c12"],
+        "c44": prim["elastic_c44"], "ac": prim["deformation_ac"], "av": prim["deformation_av"],
+        "b_dp": prim["deformation_b"], "d_dp": prim["deformation_d"],
+        "xi_x_gap": prim["x_deformation_gap"], "xi_x_u": prim["x_deformation_u"],
+        "xi_l_gap": prim["l_deformation_gap"], "xi_l_u": prim["l_deformation_u"],
     }
     return {k: np.array(v, dtype=float) for k, v in out.items()}
