@@ -1,4 +1,4 @@
-"""The ``selfcon`` command line (DESIGN.md §5).
+"""The ``selfcon`` command line (README.md, "Command line").
 
     selfcon run DECK [-o OUT.h5] [--set PATH=VALUE]... [--plot FIG] [--json] [--quiet] [--force]
     selfcon check DECK [--set PATH=VALUE]... [--json]

@@ -1,6 +1,6 @@
 """Deck reader: validation, located one-line errors, overrides, canonical TOML.
 
-Check values here are the deck contract itself (DESIGN.md §3 and selfcon/deck.py's
+Check values here are the deck contract itself (README.md "Deck reference" and selfcon/input/deck.py's
 docstring): "analytic" in the sense that they follow from the rules, no physics data.
 """
 import dataclasses

@@ -210,7 +210,7 @@ STANDALONE = Def("Mine", params=(("band_gap", 1.6), ("valence_band_offset", -0.9
 
 def test_local_without_base():
     p = one("Mine", T=300.0, defs=[STANDALONE])
-    assert p["eg_gamma"] == 1.6                        # Varshni terms default to 0 (DESIGN §3)
+    assert p["eg_gamma"] == 1.6                        # Varshni terms default to 0 (selfcon/input/materials/alloys.py, standalone_primitives)
     assert p["ec_gamma"] == pytest.approx(0.7)         # -0.9 + 1.6, analytic
     assert p["m_e"] == 0.07 and p["eps"] == 12.0
     assert p["eg_x"] == pytest.approx(1.6 + M.FILL_VALLEY_OFFSET)  # documented fill

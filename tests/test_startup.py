@@ -19,7 +19,7 @@ def _run(code: str) -> dict:
 
 
 def test_import_selfcon_loads_no_heavy_module():
-    # the contract of INTERFACES.md ("import lazily"); common practice for CLI start-up
+    # DEVELOPERS.md, "Conventions" (heavy modules load on first use); common practice for CLI start-up
     out = _run("import sys, json, selfcon\n"
                f"print(json.dumps(sorted(m for m in {HEAVY!r} if m in sys.modules)))")
     assert out == []

@@ -1,4 +1,4 @@
-"""Design studies as queued batch jobs (DESIGN.md §2, §5).
+"""Design studies as queued batch jobs (README.md, "Design studies").
 
     study.py      study TOML -> Study -> expand() -> one JobSpec (deck text + hash) per job
     queue.py      the SQLite job queue in the output folder (coordinator is the only writer)

@@ -1,4 +1,4 @@
-"""Deck reader: a TOML deck (DESIGN.md §3) into validated, immutable objects.
+"""Deck reader: a TOML deck (README.md, "Deck reference") into validated, immutable objects.
 
     deck = load_deck("inputs/hemt.toml", overrides=["layer.spacer.thickness=12"])
     deck.layer("spacer").thickness      # 12.0 (nm)
@@ -561,7 +561,7 @@ def load_deck(path_or_text, overrides=()):
 
 
 def get_path(deck_data: dict, path: str):
-    """Value of a deck path (DESIGN of the override paths above) in a parsed deck dict, or
+    """Value of a deck path (the override paths described above) in a parsed deck dict, or
     raise KeyError with the reason.  ``layer.NAME.KEY`` and ``layer.INDEX.KEY`` select a layer."""
     parts = path.split(".")
     if parts[0] == "layer" and len(parts) == 3:

@@ -1,11 +1,11 @@
-"""The Result of one solve and its file: the HDF5 layout of DESIGN.md §4 (schema "selfcon.result", version 1).
+"""The Result of one solve and its file: the HDF5 layout of README.md, "Result file (HDF5)" (schema "selfcon.result", version 1).
 
 The file is the :class:`selfcon.output.result.Result` written out, readable with plain
 h5py, HDF5's own tools, MATLAB or Julia.  Every dataset carries ``units``
 (UDUNITS-style strings: ``nm``, ``eV``, ``V``, ``V/cm``, ``cm-3``, ``cm-2``,
 ``nm-1/2``, ``m0``, ``s``, ``1``) and ``description`` attributes.
 
-Layout (§4, with the extensions marked +)::
+Layout (README.md, "Result file (HDF5)"; + marks additions to the first layout)::
 
     /                       attrs: schema, schema_version, selfcon_version, created, title,
                                    temperature_K, converged, iterations, residual_V, message, deck,
@@ -95,7 +95,7 @@ class Result:
         return self.profile["potential"]
 
     def save(self, path, *, force: bool = False) -> None:
-        """Write the DESIGN.md §4 HDF5 file atomically (see save_result)."""
+        """Write the HDF5 result file atomically (see save_result)."""
         save_result(self, path, force=force)
 
     def __repr__(self) -> str:  # keep reprs short: arrays are large
@@ -302,7 +302,7 @@ def _fsync(path) -> None:
 
 
 def save_result(result: Result, path, *, force: bool = False) -> None:
-    """Write ``result`` to ``path`` (HDF5, DESIGN.md §4) atomically.
+    """Write ``result`` to ``path`` (HDF5, README.md "Result file (HDF5)") atomically.
 
     Raises :class:`ResultFileError` if ``path`` exists and ``force`` is false, or if its
     folder does not exist.  On any failure the temporary file is removed and an existing

@@ -2,7 +2,7 @@
 neutral level, field and Gauss check.  The model and the discretisation are documented
 in selfcon/kernels/poisson.py.
 
-Units: nm, eV, V, K, nm^-3, nm^-2 (INTERFACES.md).  EF = 0, Ec = ec0 - phi, Ev = ev0 - phi.
+Units: nm, eV, V, K, nm^-3, nm^-2 (DEVELOPERS.md, "Conventions").  EF = 0, Ec = ec0 - phi, Ev = ev0 - phi.
 Boundary kinds: DIRICHLET (phi fixed; schottky, pinned and ohmic contacts) and
 ZERO_FIELD (free surface: no outer flux).
 """

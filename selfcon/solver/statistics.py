@@ -1,6 +1,6 @@
 """Carrier statistics, Python side: thin array wrappers over selfcon.solver.kernels.statistics.
 
-Internal units (INTERFACES.md): eV, K, nm^-3, nm^-2; EF = 0.  numba is imported
+Internal units (DEVELOPERS.md, "Conventions"): eV, K, nm^-3, nm^-2; EF = 0.  numba is imported
 only when one of these functions is first called.
 """
 import numpy as np

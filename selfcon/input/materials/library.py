@@ -1,6 +1,6 @@
 """Material data: every number with its unit and its source.
 
-Parameter names are the deck's own keys (DESIGN.md §3), so a deck-local
+Parameter names are the deck's own keys (README.md, "Deck reference", ``material.NAME.*``), so a deck-local
 ``[material.NAME]`` overrides a library value under the same name.
 
 Binaries: ``BINARIES[name][key] -> Value``.  Ternaries: ``ALLOYS[name] -> Alloy``,

@@ -6,7 +6,8 @@ h, wl, wr), ``mat`` (Material: the classical charge model), ``q`` (Quantum: the 
 part), ``bounds`` (Boundaries) and ``opts`` (NewtonOptions).  The names below are their
 fields.
 
-Mesh (INTERFACES.md): nodes i = 0..N-1, cells c = 0..N-2 of width h[c], half-cell
+Mesh (DEVELOPERS.md, "Conventions", finite volumes): nodes i = 0..N-1, cells c = 0..N-2 of
+width h[c], half-cell
 widths wl[i] = h[i-1]/2 (0 at i = 0), wr[i] = h[i]/2 (0 at i = N-1), w = wl + wr.
 Material data is per cell; every cell is one material.
 

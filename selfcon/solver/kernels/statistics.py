@@ -1,7 +1,7 @@
 """Carrier statistics kernels (numba): Fermi-Dirac integrals, 2D subband occupation,
 donor/acceptor ionisation.  Arrays in, arrays out; nothing is compiled at import.
 
-Energies in eV, EF = 0 (INTERFACES.md).  All F_j are normalised with 1/Gamma(j+1)
+Energies in eV, EF = 0 (DEVELOPERS.md, "Conventions").  All F_j are normalised with 1/Gamma(j+1)
 (Blakemore), F_{1/2}(eta) = (2/sqrt(pi)) int_0^inf sqrt(t)/(1+exp(t-eta)) dt,
 so F_j -> e^eta for eta -> -inf and dF_{1/2}/deta = F_{-1/2}.
 
