@@ -7,8 +7,8 @@ part), ``bounds`` (Boundaries) and ``opts`` (NewtonOptions).  The names below ar
 fields.
 
 Mesh (DEVELOPERS.md, "Conventions", finite volumes): nodes i = 0..N-1, cells c = 0..N-2 of
-width h[c], half-cell
-widths wl[i] = h[i-1]/2 (0 at i = 0), wr[i] = h[i]/2 (0 at i = N-1), w = wl + wr.
+width h[c], half-cell widths wl[i] = h[i-1]/2 (0 at i = 0), wr[i] = h[i]/2 (0 at i = N-1),
+w = wl + wr.
 Material data is per cell; every cell is one material.
 
 Charge model at node i, potential phi_i (V), EF = 0, densities nm^-3, in units of q:
