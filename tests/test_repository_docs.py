@@ -39,7 +39,7 @@ def test_sections_cited_in_code_exist(doc):
     headings = {re.sub(r"^#+\s*", "", h).strip()
                 for h in (ROOT / doc).read_text(encoding="utf-8").splitlines() if h.startswith("#")}
     bad = []
-    pattern = re.compile(re.escape(doc) + r'[,:]?\s*\(?"([^"]+)"')
+    pattern = re.compile(re.escape(doc) + r',?\s+"([^"]+)"')          # README.md, "Deck reference"
     for p in SOURCES:
         for n, line in enumerate(p.read_text(encoding="utf-8").splitlines(), 1):
             for section in pattern.findall(line):
