@@ -103,10 +103,34 @@ def test_gaas_hole_masses_along_001():
     assert g["m_lh_z"] == pytest.approx(0.0901, abs=5e-5)
     assert g["m_hh_par"] == pytest.approx(1 / (6.98 + 2.06))   # axial approximation, analytic
     assert g["m_lh_par"] == pytest.approx(1 / (6.98 - 2.06))
-    mhh = (g["m_hh_z"] * g["m_hh_par"] ** 2) ** (1 / 3)         # DOS masses, analytic rule
-    mlh = (g["m_lh_z"] * g["m_lh_par"] ** 2) ** (1 / 3)
-    assert g["m_v_dos"] == pytest.approx((mhh**1.5 + mlh**1.5) ** (2 / 3))
     assert g["m_c_dos"] == g["m_e"] == 0.067                      # V2001 GaAs Γ mass 0.067
+
+
+def test_valence_dos_mass_is_the_spherical_average():
+    # closed form, spherical approximation (Lipari and Baldereschi, Phys. Rev. Lett. 25, 1660
+    # (1970)) with V2001's GaAs gamma1..3 = 6.98, 2.06, 2.93: gamma_bar = (2*2.06 + 3*2.93)/5
+    # = 2.582, m_hh = 1/(6.98 - 5.164) = 0.55066, m_lh = 1/(6.98 + 5.164) = 0.082345,
+    # m_v = (m_hh^1.5 + m_lh^1.5)^(2/3) = 0.57169 (the old axial rule gave 0.25 m0)
+    g = one("GaAs")
+    assert g["m_hh_dos"] == pytest.approx(1 / (6.98 - 2 * 2.582), rel=1e-12)
+    assert g["m_lh_dos"] == pytest.approx(1 / (6.98 + 2 * 2.582), rel=1e-12)
+    assert g["m_v_dos"] == pytest.approx(0.57169, abs=1e-5)
+    # an alloy evaluates the same closed form on its linearly interpolated gammas (V2001)
+    a = one("AlGaAs", 0.3)
+    g1, g2, g3 = (0.7 * b + 0.3 * c for b, c in ((6.98, 3.76), (2.06, 0.82), (2.93, 1.42)))
+    gbar = (2 * g2 + 3 * g3) / 5
+    mv = ((1 / (g1 - 2 * gbar)) ** 1.5 + (1 / (g1 + 2 * gbar)) ** 1.5) ** (2 / 3)
+    assert a["m_v_dos"] == pytest.approx(mv, rel=1e-12)
+
+
+def test_gaas_valence_effective_dos_at_300K():
+    # Sze and Ng, Physics of Semiconductor Devices, 3rd ed. (2007), Appendix G:
+    # N_v(GaAs, 300 K) = 9.0e18 cm^-3 (from memory); the spherical DOS mass must land within 40 %
+    from selfcon.solver.statistics import effective_dos
+    nv = effective_dos(one("GaAs", T=300.0)["m_v_dos"], 300.0) * 1e21
+    assert nv == pytest.approx(9.0e18, rel=0.40)
+    # the prefactor: 2 (m0 kT / 2 pi hbar^2)^(3/2) = 2.509e19 cm^-3 at 300 K (common practice)
+    assert effective_dos(1.0, 300.0) * 1e21 == pytest.approx(2.509e19, rel=1e-3)
 
 
 def test_algaas_gamma_x_crossover():
@@ -294,6 +318,10 @@ def test_error_negative_mass_and_bad_luttinger():
     _err(one, "Zero", defs=[z], match="positive", key="material.Zero.x_mass_trans")
     b = Def("BadHoles", base="GaAs", params=(("luttinger_gamma2", 3.5),))   # 6.98 - 7 < 0
     _err(one, "BadHoles", defs=[b], match="gamma1 - 2 gamma2", key="material.BadHoles.luttinger_gamma2")
+    # analytic: gamma3 = 4.5 gives gamma1 - 2 (2 gamma2 + 3 gamma3)/5 = 6.98 - 2 (4.12 + 13.5)/5
+    # = -0.068 < 0: a negative heavy-hole DOS mass although the [001] masses are fine
+    w = Def("Warped", base="GaAs", params=(("luttinger_gamma3", 4.5),))
+    _err(one, "Warped", defs=[w], match="density of states", key="material.Warped.luttinger_gamma3")
 
 
 def test_error_cycle_unknown_base_unknown_key_shadow():

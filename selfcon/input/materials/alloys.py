@@ -14,7 +14,7 @@ import difflib
 import numpy as np
 
 from selfcon.errors import MaterialError
-from selfcon.input.materials.library import ALLOYS, BINARIES, BOWED, PARAMETERS, QUATERNARIES
+from selfcon.input.materials.library import ALLOYS, BINARIES, BOWED, PARAMETERS, QUATERNARIES, hole_dos_masses
 
 #: (valley suffix, gap key, alpha key, beta key)
 VALLEYS = (
@@ -392,15 +392,21 @@ def validate(name, prim):
         if not (prim[key] > 0.0).all():
             raise MaterialError(f"{label} of {name} must be positive, got {float(prim[key].min()):g}",
                                 key=f"material.{name}.{key}")
-    g1, g2 = prim["luttinger_gamma1"], prim["luttinger_gamma2"]
-    for den, text in ((g1 - 2 * g2, "gamma1 - 2 gamma2 (1/m_hh along z)"),
-                      (g1 + 2 * g2, "gamma1 + 2 gamma2 (1/m_lh along z)"),
-                      (g1 + g2, "gamma1 + gamma2 (1/m_hh in plane)"),
-                      (g1 - g2, "gamma1 - gamma2 (1/m_lh in plane)")):
+    g1, g2, g3 = prim["luttinger_gamma1"], prim["luttinger_gamma2"], prim["luttinger_gamma3"]
+    gbar = (2 * g2 + 3 * g3) / 5
+    for den, text, key in (
+            (g1 - 2 * g2, "gamma1 - 2 gamma2 (1/m_hh along z)", "luttinger_gamma2"),
+            (g1 + 2 * g2, "gamma1 + 2 gamma2 (1/m_lh along z)", "luttinger_gamma2"),
+            (g1 + g2, "gamma1 + gamma2 (1/m_hh in plane)", "luttinger_gamma2"),
+            (g1 - g2, "gamma1 - gamma2 (1/m_lh in plane)", "luttinger_gamma2"),
+            (g1 - 2 * gbar, "gamma1 - 2 (2 gamma2 + 3 gamma3)/5 (1/m_hh, density of states)",
+             "luttinger_gamma3"),
+            (g1 + 2 * gbar, "gamma1 + 2 (2 gamma2 + 3 gamma3)/5 (1/m_lh, density of states)",
+             "luttinger_gamma3")):
         if not (den > 0.0).all():
             raise MaterialError(f"Luttinger parameters of {name} give {text} = "
                                 f"{float(den.min()):g} <= 0 (a negative or infinite hole mass)",
-                                key=f"material.{name}.luttinger_gamma2")
+                                key=f"material.{name}.{key}")
     for key in ("donor_binding", "acceptor_binding", "spin_orbit"):
         if (prim[key] < 0.0).any():
             raise MaterialError(f"{key} of {name} must not be negative",
@@ -422,8 +428,9 @@ def derived(prim):
     vbo = prim["valence_band_offset"]
     m_hh_z, m_lh_z = 1.0 / (g1 - 2 * g2), 1.0 / (g1 + 2 * g2)
     m_hh_par, m_lh_par = 1.0 / (g1 + g2), 1.0 / (g1 - g2)   # axial approximation
-    m_hh = np.cbrt(m_hh_z * m_hh_par ** 2)
-    m_lh = np.cbrt(m_lh_z * m_lh_par ** 2)
+    # bulk DOS masses: spherical average of the warped bands (Lipari and Baldereschi 1970),
+    # not the axial subband masses (those give 0.25 m0 for GaAs, half the handbook value)
+    m_hh, m_lh = hole_dos_masses(g1, g2, g3)
     out = {
         "eg_gamma": prim["eg_gamma"], "eg_x": prim["eg_x"], "eg_l": prim["eg_l"], "vbo": vbo,
         "ec_gamma": vbo + prim["eg_gamma"], "ec_x": vbo + prim["eg_x"], "ec_l": vbo + prim["eg_l"],

@@ -370,11 +370,21 @@ def _strain_values(name):
     }
 
 
-def _hole_dos_mass(g1, g2):
-    """Combined hh + lh density-of-states mass (same rule as alloys.derived)."""
-    mhh = (1.0 / (g1 - 2 * g2) / (g1 + g2) ** 2) ** (1 / 3)
-    mlh = (1.0 / (g1 + 2 * g2) / (g1 - g2) ** 2) ** (1 / 3)
-    return (mhh ** 1.5 + mlh ** 1.5) ** (2 / 3)
+def hole_dos_masses(g1, g2, g3):
+    """Heavy- and light-hole density-of-states masses (m0) from the Luttinger parameters,
+    spherical approximation of Lipari and Baldereschi, Phys. Rev. Lett. 25, 1660 (1970):
+    gamma_bar = (2 gamma2 + 3 gamma3)/5, m_hh = 1/(gamma1 - 2 gamma_bar),
+    m_lh = 1/(gamma1 + 2 gamma_bar).  Scalars or arrays.  The bulk valence DOS mass is
+    m_v = (m_hh^(3/2) + m_lh^(3/2))^(2/3) (:func:`valence_dos_mass`)."""
+    gbar = (2.0 * g2 + 3.0 * g3) / 5.0
+    return 1.0 / (g1 - 2.0 * gbar), 1.0 / (g1 + 2.0 * gbar)
+
+
+def valence_dos_mass(g1, g2, g3):
+    """Combined hh + lh DOS mass (m0): m_v^(3/2) = m_hh^(3/2) + m_lh^(3/2), both from
+    :func:`hole_dos_masses` (the one rule, used by alloys.derived too)."""
+    mhh, mlh = hole_dos_masses(g1, g2, g3)
+    return (mhh ** 1.5 + mlh ** 1.5) ** (2.0 / 3.0)
 
 
 def _add_hydrogenic(d):
@@ -389,7 +399,8 @@ def _add_hydrogenic(d):
             round(_RYD * me / eps ** 2, 6), "eV",
             "hydrogenic estimate 13.6 eV m_e/eps^2 from the mass and permittivity above")
     if "acceptor_binding" not in d:
-        mv = _hole_dos_mass(d["luttinger_gamma1"].value, d["luttinger_gamma2"].value)
+        mv = valence_dos_mass(d["luttinger_gamma1"].value, d["luttinger_gamma2"].value,
+                              d["luttinger_gamma3"].value)
         d["acceptor_binding"] = Value(
             round(_RYD * mv / eps ** 2, 6), "eV",
             "hydrogenic estimate 13.6 eV m_v_dos/eps^2 from the Luttinger parameters and "
