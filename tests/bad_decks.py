@@ -82,6 +82,17 @@ BAD_DECKS = [
           "thickness = 0.0"),
     _case("negative_thickness", _swap("thickness = 100.0", "thickness = -5.0"),
           "layer[2].thickness", "thickness = -5.0"),
+    # a thickness typed in metres (20 nm as 2.0e-8): under 0.1 nm, half a GaAs monolayer
+    # (a/2 = 0.283 nm, common practice), so a unit mistake
+    _case("thickness_in_metres", _swap("thickness = 10.0", "thickness = 2.0e-8"),
+          "layer[0].thickness", "thickness = 2.0e-8"),
+    _case("x_on_binary", _swap('name = "cap"\nmaterial = "GaAs"',
+                               'name = "cap"\nmaterial = "GaAs"\nx = 0.3'), "layer[0].x", "x = 0.3"),
+    _case("x_on_local_binary", _swap('material = "AlGaAs"', 'material = "MyCap"') +
+          '\n[material.MyCap]\nbase = "GaAs"\nelectron_mass = 0.07\n', "layer[1].x", "x = 0.3"),
+    _case("x_on_local_material_of_binary",
+          GOOD_DECK + '\n[material.MyCap]\nbase = "GaAs"\nx = 0.2\n', "material.MyCap.x",
+          "x = 0.2"),
     _case("missing_thickness", _swap("thickness = 10.0\n", ""), "layer[0].thickness",
           "[[layer]]", 1),
     _case("x_out_of_range", _swap("x = 0.3", "x = 1.3"), "layer[1].x", "x = 1.3"),

@@ -66,6 +66,25 @@ def test_bad_deck_check_exit_2_subprocess(run_sub, tmp_path, bad_deck):
     assert proc.stdout == ""
 
 
+_UNIT_AND_ALLOY_MISTAKES = {
+    "thickness_in_metres": "less than half a monolayer; thicknesses are in nm",
+    "x_on_binary": "GaAs is a binary",
+    "x_on_local_binary": "based on the binary GaAs",
+    "x_on_local_material_of_binary": "based on the binary GaAs"}
+
+
+@pytest.mark.bad_decks(*_UNIT_AND_ALLOY_MISTAKES)
+def test_run_refuses_unit_and_alloy_mistakes_and_writes_nothing(run_cli, tmp_path, bad_deck):
+    # issue 12: a thickness in metres and x on a binary are exit 2 naming the key, no file
+    case_id, text, key, line = bad_deck
+    deck = tmp_path / "bad.toml"
+    deck.write_text(text)
+    code, out, err = run_cli("run", str(deck), "-o", str(tmp_path / "out.h5"))
+    _assert_one_line_error(code, err, key, line)
+    assert _UNIT_AND_ALLOY_MISTAKES[case_id] in err
+    assert sorted(p.name for p in tmp_path.iterdir()) == ["bad.toml"]
+
+
 def test_missing_deck_file_exit_2(run_cli, tmp_path):
     code, _, err = run_cli("check", str(tmp_path / "nope.toml"))
     _assert_one_line_error(code, err, None, None)

@@ -195,7 +195,7 @@ def test_top_level_key_after_a_table_gets_a_hint(good_deck_text):
 
 
 def test_error_messages_carry_units(good_deck_text):
-    cases = {"thickness = 10.0": ("thickness = -1", "> 0 nm"),
+    cases = {"thickness = 10.0": ("thickness = -1", ">= 0.1 nm"),   # half a monolayer, issue 12
              "temperature = 4.2": ("temperature = 2000", "(0, 1000] K"),
              "sheet_donors = 4e12": ("sheet_donors = -1", "cm^-2"),
              'thickness = 40.0': ('thickness = "x"', "number (nm)")}
@@ -228,11 +228,11 @@ def test_parse_override():
 
 
 def test_overrides_by_name_index_and_nested(good_deck_text, deck):
-    d = deck.with_overrides(["layer.barrier.thickness=50", "layer.0.x=[0, 0.3]",
+    d = deck.with_overrides(["layer.barrier.thickness=50", "layer.1.x=[0, 0.3]",
                              "surface.bias=-0.2", "temperature=300", "solver.method=anderson",
                              "physics.carriers=[\"electron\"]"])
     assert d.layer("barrier").thickness == 50.0
-    assert (d.layers[0].x_top, d.layers[0].x_bottom) == (0.0, 0.3)
+    assert (d.layers[1].x_top, d.layers[1].x_bottom) == (0.0, 0.3)   # (x on the GaAs cap: refused)
     assert d.surface.bias == -0.2 and d.temperature == 300.0
     assert d.solver.method == "anderson" and d.physics.carriers == ("electron",)
     # the original is untouched, the new text is the canonical one
@@ -241,7 +241,7 @@ def test_overrides_by_name_index_and_nested(good_deck_text, deck):
     # dict form, chained, and via load_deck
     e = d.with_overrides({"layer.2.donors": 1e15, "mesh.step": 0.25})
     assert e.layers[2].donors == 1e15 and e.mesh.step == 0.25 and e.layer("barrier").thickness == 50
-    assert load_deck(good_deck_text, overrides=["layer.barrier.thickness=50", "layer.0.x=[0, 0.3]",
+    assert load_deck(good_deck_text, overrides=["layer.barrier.thickness=50", "layer.1.x=[0, 0.3]",
                                            "surface.bias=-0.2", "temperature=300",
                                            "solver.method=anderson",
                                            "physics.carriers=[\"electron\"]"]) == d

@@ -27,6 +27,9 @@ Choices made here (they are part of the deck contract):
   ``[material.MyGaAs] base = "GaAs"`` to start from a library entry).
 * Doping above 1e22 cm^-3 or sheets above 1e16 cm^-2 are refused as unit
   mistakes (they exceed the density of atoms).
+* A layer thinner than 0.1 nm (half a monolayer) is refused as a unit mistake (a
+  thickness typed in metres); ``x`` on a binary, or on a deck-local material whose base
+  chain ends in a binary (or in no library material), is refused rather than ignored.
 * Numbers: int or float accepted, bool refused, inf/nan refused.  Integer
   keys accept integral floats (a study sweeping 4.0, 5.0, ... states).
 
@@ -89,6 +92,7 @@ class KeySpec:
     hi: float | None = None
     hi_open: bool = False
     choices: tuple | None = None     # for strings (None: free text); a callable name for lazy lists
+    below: str | None = None         # what a value under ``lo`` most likely means (appended)
 
 
 CONTACT_KINDS = ("schottky", "ohmic", "pinned", "free")
@@ -102,6 +106,11 @@ SOLVER_METHODS = ("predictor-corrector", "anderson", "linear")
 LIBRARY_FALLBACK = ("GaAs", "AlAs", "InAs", "InP", "GaSb", "AlSb", "InSb", "GaP", "AlP",
                     "AlGaAs", "InGaAs", "InAlAs", "AlGaSb", "InGaSb", "InAsSb", "GaAsSb",
                     "AlAsSb", "InGaP", "AlInP", "GaAsP", "InAsP", "InGaAsP", "AlGaInAs")
+ALLOY_FALLBACK = ("AlGaAs", "InGaAs", "InAlAs", "AlGaSb", "InGaSb", "InAsSb", "GaAsSb",
+                  "AlAsSb", "InGaP", "AlInP", "GaAsP", "InAsP", "InGaAsP", "AlGaInAs")
+#: nm, the thinnest layer accepted: about half a monolayer (a GaAs monolayer is a/2 = 0.283 nm,
+#: common practice); anything thinner is a unit mistake (a thickness typed in metres or cm)
+MIN_THICKNESS = 0.1
 
 _TOP = {
     "title": KeySpec("string", "-", "", "free text, shown in reports and stored in results"),
@@ -122,9 +131,11 @@ _LAYER = {
     "name": KeySpec("string", "-", "layer<index>", "unique name used by overrides and studies "
                     "(letters, digits, _ and -, not all digits)"),
     "material": KeySpec("string", "-", REQUIRED, "library material or a [material.NAME] of this deck"),
-    "x": KeySpec("fraction", "-", None, "alloy fraction in [0, 1]; graded: [top, bottom], linear in z",
-                 lo=0.0, hi=1.0),
-    "thickness": KeySpec("number", "nm", REQUIRED, "layer thickness", lo=0.0, lo_open=True),
+    "x": KeySpec("fraction", "-", None, "alloy fraction in [0, 1]; graded: [top, bottom], linear in z; "
+                 "alloys only (refused on a binary)", lo=0.0, hi=1.0),
+    "thickness": KeySpec("number", "nm", REQUIRED, "layer thickness (at least half a "
+                         "monolayer)", lo=MIN_THICKNESS,
+                         below="less than half a monolayer; thicknesses are in nm"),
     "donors": KeySpec("number", "cm^-3", 0.0, "uniform donor density", lo=0.0, hi=1e22),
     "acceptors": KeySpec("number", "cm^-3", 0.0, "uniform acceptor density", lo=0.0, hi=1e22),
     "sheet_donors": KeySpec("number", "cm^-2", 0.0, "delta sheet of donors at the layer centre",
@@ -745,6 +756,14 @@ def _library_names():
         return LIBRARY_FALLBACK
 
 
+def _library_alloys():
+    try:
+        from selfcon.input import materials
+        return tuple(n for n in materials.names() if materials.is_alloy(n))
+    except (ImportError, AttributeError):
+        return ALLOY_FALLBACK
+
+
 #: method names registered by the solver stage (selfcon.solver.mixers.register adds each mixer
 #: it registers here): the deck stage validates ``solver.method`` without importing the solver
 _REGISTERED_METHODS: list[str] = []
@@ -857,7 +876,8 @@ class _Ctx:
         hi_ok = spec.hi is None or (v < spec.hi if spec.hi_open else v <= spec.hi)
         if lo_ok and hi_ok:
             return
-        raise self.error(key, f"must be {_range_text(spec)}, got {_num(v)}")
+        why = f": {spec.below}" if spec.below and not lo_ok else ""
+        raise self.error(key, f"must be {_range_text(spec)}, got {_num(v)}{why}")
 
     def get(self, table, name, spec, prefix, choices=None):
         """Value of ``table[name]`` checked against ``spec``, or its default."""
@@ -969,6 +989,7 @@ def _materials(ctx, raw):
     t = _table(ctx, raw, "material")
     library = set(_library_names())
     out = []
+    pending_x = []          # (key, name) of materials giving x: checked once every base is known
     for name, m in t.items():
         key = f"material.{name}"
         if not isinstance(m, dict):
@@ -982,10 +1003,14 @@ def _materials(ctx, raw):
         ctx.check_keys(m, _MATERIAL, p, f"[material.{name}]")
         base = ctx.get(m, "base", _MATERIAL["base"], p)
         x = ctx.get(m, "x", _MATERIAL["x"], p)
+        if x is not None:
+            pending_x.append((f"{p}x", name))
         params = Params((k, ctx.get(m, k, spec, p)) for k, spec in MATERIAL_PARAMS.items() if k in m)
         out.append(MaterialDef(name=name, base=base, x=x, params=params, file=ctx.file,
                                line=None if _is_overridden(key, ctx.overrides)
                                else _locate(ctx.text, key)))
+    for key, name in pending_x:
+        _refuse_x_without_alloy(ctx, key, name, out)
     return tuple(out)
 
 
@@ -1024,12 +1049,42 @@ def _layers(ctx, raw, materials):
         x_top = x_bottom = None
         if "x" in t:
             x_top, x_bottom = _fraction(ctx, f"{p}x", t["x"], _LAYER["x"])
+            _refuse_x_without_alloy(ctx, f"{p}x", material, materials)
         thickness = ctx.get(t, "thickness", _LAYER["thickness"], p)
         dens = {k: ctx.get(t, k, _LAYER[k], p)
                 for k in ("donors", "acceptors", "sheet_donors", "sheet_acceptors")}
         out.append(Layer(index=i, name=name, material=material, x_top=x_top, x_bottom=x_bottom,
                          thickness=thickness, line=_locate(ctx.text, f"layer[{i}]"), **dens))
     return tuple(out)
+
+
+def _alloy_root(name, materials):
+    """(root, chain): the library material a deck-local chain ends in (None for a base-less
+    material or a cycle, which the material library reports) and the local names passed."""
+    local = {m.name: m for m in materials}
+    chain = []
+    while name in local and name not in chain:
+        chain.append(name)
+        name = local[name].base
+        if name is None:
+            return None, chain
+    return (None if name in chain else name), chain
+
+
+def _refuse_x_without_alloy(ctx, key, material, materials):
+    """An alloy fraction on a binary (or on a deck-local material built on one) would be
+    silently ignored: refuse it, naming the key."""
+    root, chain = _alloy_root(material, materials)
+    if root in _library_alloys():
+        return
+    if root is None:
+        what = f"material {material!r} has no library alloy as its base"
+    elif chain:
+        what = f"material {material!r} is based on the binary {root}"
+    else:
+        what = f"{root} is a binary"
+    raise ctx.error(key, f"x is given but {what}, which has no alloy fraction; remove x or "
+                    "use an alloy", allowed=_library_alloys())
 
 
 def _fraction(ctx, key, v, spec):
