@@ -15,6 +15,7 @@ import numpy as np
 
 from selfcon.constants import CM2_PER_NM2, CM3_PER_NM3, KB_EV, NC_PER_M0_K
 from selfcon.errors import DeckError
+from selfcon.model import dopants
 from selfcon.model.mesh import Mesh, build_mesh
 
 #: per-cell arrays taken from the material library (selfcon.input.materials.cell_parameters keys)
@@ -196,6 +197,14 @@ def build_structure(deck, *, mesh: Mesh | None = None) -> Structure:
     if deck.physics.ionization != "thermal":
         cell["donor_binding"][:] = 0.0
         cell["acceptor_binding"][:] = 0.0
+    # heavy doping: binding energies fall with the total impurity density (Pearson-Bardeen)
+    # and vanish above the Mott density (selfcon.model.dopants); materials give dilute values
+    n_imp = cell["donors"] + cell["acceptors"]
+    dilute_ed, dilute_ea = cell["donor_binding"], cell["acceptor_binding"]
+    n_mott_d = dopants.mott_density(cell["eps"], cell["m_e"])
+    n_mott_a = dopants.mott_density(cell["eps"], cell["m_v_dos"])
+    cell["donor_binding"] = dopants.binding_energy(cell["donor_binding"], n_imp, n_mott_d)
+    cell["acceptor_binding"] = dopants.binding_energy(cell["acceptor_binding"], n_imp, n_mott_a)
     cell["nc"] = NC_PER_M0_K * (cell["m_c_dos"] * T) ** 1.5
     # X and L valleys: 3 and 4 equivalent valleys of DOS mass (m_l m_t^2)^(1/3) each
     # (common practice for the cubic III-V's); used only when physics.carriers asks for them
@@ -215,8 +224,11 @@ def build_structure(deck, *, mesh: Mesh | None = None) -> Structure:
             c = min(i, n - 2)
             sheet_d[i] += Li.sheet_donors / CM2_PER_NM2
             sheet_a[i] += Li.sheet_acceptors / CM2_PER_NM2
-            sheet_ed[i] = cell["donor_binding"][c]
-            sheet_ea[i] = cell["acceptor_binding"][c]
+            # the sheet's own density (its impurity spacing, dopants.sheet_equivalent_density)
+            # plus its host cell's volume doping sets its binding; dilute values of the host
+            n_sheet = n_imp[c] + dopants.sheet_equivalent_density(sheet_d[i] + sheet_a[i])
+            sheet_ed[i] = dopants.binding_energy(dilute_ed[c], n_sheet, n_mott_d[c])
+            sheet_ea[i] = dopants.binding_energy(dilute_ea[c], n_sheet, n_mott_a[c])
 
     regions = tuple((mesh.index_of(a), mesh.index_of(b)) for a, b in regions_nm)
     for arr in list(cell.values()) + [x_cell, cell_layer, layer_index, sheet_d, sheet_a, sheet_ed, sheet_ea]:

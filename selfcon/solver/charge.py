@@ -9,6 +9,7 @@ from __future__ import annotations
 
 import numpy as np
 
+from selfcon.model.dopants import statistics_binding
 from selfcon.solver import poisson as P
 
 _HOLE_BANDS = ("heavy_hole", "light_hole")
@@ -31,8 +32,9 @@ def base_problem(st, bc=None):
     top, bottom = bc if bc is not None else ((P.ZERO_FIELD, 0.0), (P.ZERO_FIELD, 0.0))
     ec_v, nc_v = valley_arrays(st)
     prob = P.PoissonProblem(z=st.z, eps=c["eps"], ec0=c["ec_gamma"], ev0=c["ev0"], nc=nc, nv=nv,
-                            nd=c["donors"], ed=c["donor_binding"], na=c["acceptors"],
-                            ea=c["acceptor_binding"], temperature=st.temperature,
+                            nd=c["donors"], ed=statistics_binding(c["donor_binding"]),
+                            na=c["acceptors"], ea=statistics_binding(c["acceptor_binding"]),
+                            temperature=st.temperature,
                             sheet_nd=st.sheet_donors, sheet_na=st.sheet_acceptors,
                             full_ionization=st.full_ionization, top=top, bottom=bottom,
                             ec0_v=ec_v, nc_v=nc_v)
