@@ -13,46 +13,188 @@ stage (``input`` -> ``model`` -> ``solver`` -> ``output``, then ``design`` and
 ``batch``), see DEVELOPERS.md.  Importing selfcon compiles nothing and imports neither
 numba, h5py nor matplotlib; they load on first use.
 """
+from __future__ import annotations
+
+import os
+from collections.abc import Iterable, Mapping
+from typing import TYPE_CHECKING, Any
+
 from selfcon.version import __version__  # noqa: F401
 from selfcon.errors import SelfconInputError, DeckError  # noqa: F401  (light modules)
+
+if TYPE_CHECKING:       # names for the type hints only: importing selfcon loads none of them
+    import numpy as np
+    from numpy.typing import ArrayLike
+
+    from selfcon.input.deck import Deck
+    from selfcon.model.structure import Structure
+    from selfcon.output.result import Result
 
 __all__ = ["load_deck", "solve", "load_result", "bound_states", "build_structure",
            "Result", "Deck", "Mixer", "register_mixer", "SelfconInputError", "DeckError",
            "__version__"]
 
 
-def load_deck(path_or_text, overrides=()):
-    """Read and validate a deck (a path or TOML text); ``overrides`` are ``"PATH=VALUE"`` strings.
+def load_deck(path_or_text: str | os.PathLike, overrides: Iterable[str] | Mapping[str, Any] = ()) -> Deck:
+    """Read and validate a deck.
 
-    See :func:`selfcon.api.load_deck`.
+    Parameters
+    ----------
+    path_or_text : str or path-like
+        A deck file, or the TOML text itself (README.md, "Deck reference").
+    overrides : iterable of str or mapping, optional
+        ``"PATH=VALUE"`` strings (as ``--set`` takes them) or a ``{path: value}`` dict.
+
+    Returns
+    -------
+    Deck
+        Frozen and validated; ``deck.get("layer.spacer.thickness")`` reads one value.
+
+    Raises
+    ------
+    DeckError
+        Bad input, with the file, line and key (``selfcon`` exits 2 with it).
+
+    See Also
+    --------
+    selfcon.api.load_deck : the same function, where it is implemented.
+
+    Examples
+    --------
+    >>> import selfcon
+    >>> deck = selfcon.load_deck("inputs/hemt_4K.toml", overrides=["layer.spacer.thickness=30"])
+    >>> deck.get("layer.spacer.thickness")
+    30.0
     """
     from selfcon.api import load_deck as _load
     return _load(path_or_text, overrides)
 
 
-def solve(deck, **options):
-    """Solve one deck self-consistently; returns a :class:`Result` (never raises on
-    non-convergence).  See :func:`selfcon.api.solve`."""
+def solve(deck: Deck | str | os.PathLike, **options: Any) -> Result:
+    """Solve one deck self-consistently (Schrödinger and Poisson to agreement).
+
+    Parameters
+    ----------
+    deck : Deck, str or path-like
+        A loaded deck, a deck file or TOML text.
+    **options
+        ``initial_potential``, ``progress``, ``structure``, ``method``, ``tolerance``,
+        ``max_iterations``: see :func:`selfcon.api.solve`.
+
+    Returns
+    -------
+    Result
+        Never raises on non-convergence: ``result.converged`` is False and
+        ``result.message`` says why and what to try.
+
+    Examples
+    --------
+    >>> import selfcon
+    >>> result = selfcon.solve(selfcon.load_deck("inputs/hemt_4K.toml"))
+    >>> result.converged
+    True
+    >>> result.summary["electron_sheet_density_cm2"] > 1e11      # a 2DEG in the channel
+    True
+    """
     from selfcon.api import solve as _solve
     return _solve(deck, **options)
 
 
-def build_structure(deck):
-    """Turn a Deck into a Structure (mesh and per-cell/per-node arrays)."""
+def build_structure(deck: Deck) -> Structure:
+    """Turn a Deck into a Structure: the mesh and the per-cell arrays the solver uses.
+
+    Parameters
+    ----------
+    deck : Deck
+        A loaded deck (:func:`load_deck`).
+
+    Returns
+    -------
+    Structure
+        Frozen; internal units (nm, eV, nm^-3, nm^-2).  See
+        :func:`selfcon.model.structure.build_structure`.
+
+    Examples
+    --------
+    >>> import selfcon
+    >>> st = selfcon.build_structure(selfcon.load_deck("inputs/hemt_4K.toml"))
+    >>> [layer.name for layer in st.layers]
+    ['cap', 'barrier', 'doping', 'spacer', 'channel', 'buffer']
+    >>> float(st.z[-1])          # nm: 10 + 25 + 4 + 20 + 80 + 900, the deck's thicknesses
+    1039.0
+    """
     from selfcon.api import build_structure as _build
     return _build(deck)
 
 
-def load_result(path):
-    """Read a result file written by :meth:`Result.save` back into a :class:`Result`."""
+def load_result(path: str | os.PathLike) -> Result:
+    """Read a result file written by :meth:`Result.save` back into a :class:`Result`.
+
+    Parameters
+    ----------
+    path : str or path-like
+        An HDF5 result file (README.md, "Result file (HDF5)").
+
+    Returns
+    -------
+    Result
+
+    Raises
+    ------
+    ResultFileError
+        Missing, not a selfcon result, or written by a newer schema.
+
+    Examples
+    --------
+    >>> import selfcon
+    >>> result = selfcon.solve(selfcon.load_deck("inputs/hemt_4K.toml"))
+    >>> result.save("hemt_4K.h5", force=True)
+    >>> again = selfcon.load_result("hemt_4K.h5")
+    >>> again.summary["electron_sheet_density_cm2"] == result.summary["electron_sheet_density_cm2"]
+    True
+    """
     from selfcon.api import load_result as _load
     return _load(path)
 
 
-def bound_states(z_nm, band_edge_eV, mass_m0, n_states):
+def bound_states(z_nm: ArrayLike, band_edge_eV: ArrayLike, mass_m0: ArrayLike,
+                 n_states: int) -> tuple[np.ndarray, np.ndarray]:
     """Lowest ``n_states`` BenDaniel–Duke states of a 1D band edge, psi = 0 beyond both ends.
 
-    See :func:`selfcon.api.bound_states`.
+    Parameters
+    ----------
+    z_nm : array_like, (N,)
+        Strictly increasing node positions (nm).
+    band_edge_eV : array_like, (N,)
+        The band edge at the nodes (eV).
+    mass_m0 : array_like, (N,) or (N-1,)
+        Effective mass per node or per cell (free-electron masses).
+    n_states : int
+        How many states (at most N-2).
+
+    Returns
+    -------
+    energies : ndarray, (k,)
+        eV, ascending.
+    psi : ndarray, (N, k)
+        nm^-1/2, normalised so that sum(w * psi**2) = 1 with the dual-cell widths w.
+
+    See Also
+    --------
+    selfcon.solver.schrodinger.bound_states : the implementation, with its mesh rules.
+
+    Examples
+    --------
+    A 10 nm infinite well of GaAs-like mass 0.067: E_n = n^2 hbar^2 pi^2 / (2 m L^2) =
+    56.12 meV and 224.5 meV (analytic).
+
+    >>> import numpy as np, selfcon
+    >>> z = np.linspace(0.0, 10.0, 401)
+    >>> energies, psi = selfcon.bound_states(z, np.zeros(z.size), np.full(z.size, 0.067), 2)
+    >>> [round(1e3 * float(e), 1) for e in energies]
+    [56.1, 224.5]
+    >>> psi.shape
+    (401, 2)
     """
     from selfcon.api import bound_states as _bs
     return _bs(z_nm, band_edge_eV, mass_m0, n_states)

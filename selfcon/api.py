@@ -8,46 +8,186 @@ above the solver and output stages and below design, batch and the command line:
 """
 from __future__ import annotations
 
+import os
 import time
+from collections.abc import Callable, Iterable, Mapping
+from typing import TYPE_CHECKING, Any
 
 from selfcon.input.deck import Deck
 from selfcon.model.structure import Structure, build_structure
 from selfcon.solver.loop import (_interpolate_guess, boundary_conditions, extrapolate_potential,
                                  make_mixer, run_loop)
 
+if TYPE_CHECKING:
+    import numpy as np
+    from numpy.typing import ArrayLike
+
+    from selfcon.output.result import Result
+
 __all__ = ["load_deck", "build_structure", "solve", "solve_warm", "warm_up", "load_result",
            "bound_states", "extrapolate_potential"]
 
 
-def load_deck(path_or_text, overrides=()):
-    """Read and validate a deck (a path or TOML text); ``overrides`` are ``"PATH=VALUE"``
-    strings or a ``{path: value}`` dict.  Raises :class:`selfcon.errors.DeckError` (with file,
-    line and key) on bad input."""
+def load_deck(path_or_text: str | os.PathLike, overrides: Iterable[str] | Mapping[str, Any] = ()) -> Deck:
+    """Read and validate a deck.
+
+    Parameters
+    ----------
+    path_or_text : str or path-like
+        A deck file, or the TOML text itself (README.md, "Deck reference").
+    overrides : iterable of str or mapping, optional
+        ``"PATH=VALUE"`` strings (as ``--set`` takes them) or a ``{path: value}`` dict;
+        paths like ``temperature``, ``surface.bias``, ``layer.spacer.thickness``,
+        ``layer.2.x``.
+
+    Returns
+    -------
+    Deck
+        Frozen and validated; ``deck.get(path)`` reads one value, ``deck.with_overrides``
+        makes a changed copy.
+
+    Raises
+    ------
+    selfcon.errors.DeckError
+        Bad input, with the file, line and key.
+
+    Examples
+    --------
+    >>> from selfcon.api import load_deck
+    >>> deck = load_deck("inputs/hemt_4K.toml", overrides={"temperature": 77.0})
+    >>> deck.temperature
+    77.0
+    >>> load_deck("inputs/hemt_4K.toml", overrides=["layer.spacr.thickness=5"])
+    Traceback (most recent call last):
+        ...
+    selfcon.errors.DeckError: inputs/hemt_4K.toml: layer.spacr.thickness: no layer named 'spacr' (did you mean 'spacer'?) (allowed: cap, barrier, doping, spacer, channel, buffer)
+    """
     from selfcon.input.deck import load_deck as _load
     return _load(path_or_text, overrides)
 
 
-def load_result(path):
-    """Read a result file back into a Result (see selfcon.output)."""
+def load_result(path: str | os.PathLike) -> Result:
+    """Read a result file written by :meth:`Result.save` back into a Result.
+
+    Parameters
+    ----------
+    path : str or path-like
+        An HDF5 result file (README.md, "Result file (HDF5)").
+
+    Returns
+    -------
+    Result
+        Equal to the saved one, field by field.
+
+    Raises
+    ------
+    selfcon.errors.ResultFileError
+        Missing, not HDF5, not a selfcon result, or written by a newer schema.
+
+    Examples
+    --------
+    >>> from selfcon.api import load_deck, load_result, solve
+    >>> solve(load_deck("inputs/hemt_300K.toml")).save("hemt_300K.h5", force=True)
+    >>> result = load_result("hemt_300K.h5")
+    >>> result.converged, result.temperature
+    (True, 300.0)
+    """
     from selfcon.output.result import load_result as _load
     return _load(path)
 
 
-def bound_states(z_nm, band_edge_eV, mass_m0, n_states):
-    """Lowest ``n_states`` BenDaniel–Duke states of a 1D band edge, psi = 0 beyond both ends."""
+def bound_states(z_nm: ArrayLike, band_edge_eV: ArrayLike, mass_m0: ArrayLike,
+                 n_states: int) -> tuple[np.ndarray, np.ndarray]:
+    """Lowest ``n_states`` BenDaniel–Duke states of a 1D band edge, psi = 0 beyond both ends.
+
+    The building block of the solver's quantum regions, usable on any band edge.
+
+    Parameters
+    ----------
+    z_nm : array_like, (N,)
+        Strictly increasing node positions (nm).
+    band_edge_eV : array_like, (N,)
+        The band edge at the nodes (eV); at an interface node give the dual-cell average.
+    mass_m0 : array_like, (N,) or (N-1,)
+        Effective mass per node (averaged onto cells) or per cell, in free-electron masses.
+    n_states : int
+        How many states (at most N-2).
+
+    Returns
+    -------
+    energies : ndarray, (k,)
+        eV, ascending.
+    psi : ndarray, (N, k)
+        nm^-1/2, normalised so that sum(w * psi**2) = 1 with the dual-cell widths w, signed
+        so that the first lobe is positive.
+
+    Raises
+    ------
+    ValueError
+        Arrays of the wrong shape, a mesh that does not increase, a mass <= 0.
+
+    See Also
+    --------
+    selfcon.solver.schrodinger.bound_states_cells : band edge and mass given per cell.
+
+    Examples
+    --------
+    A 10 nm infinite well with m = 0.067: E_n = n^2 hbar^2 pi^2 / (2 m L^2), 56.12 and
+    224.5 meV (analytic).
+
+    >>> import numpy as np
+    >>> from selfcon.api import bound_states
+    >>> z = np.linspace(0.0, 10.0, 401)
+    >>> energies, psi = bound_states(z, np.zeros(z.size), np.full(z.size, 0.067), 2)
+    >>> [round(1e3 * float(e), 1) for e in energies]
+    [56.1, 224.5]
+    """
     from selfcon.solver.schrodinger import bound_states as _bs
     return _bs(z_nm, band_edge_eV, mass_m0, n_states)
 
 
-def solve(deck, *, initial_potential=None, progress=None, structure: Structure | None = None,
+def solve(deck: Deck | str | os.PathLike, *, initial_potential: Any = None,
+          progress: Callable[..., Any] | None = None, structure: Structure | None = None,
           method: str | None = None, tolerance: float | None = None,
-          max_iterations: int | None = None):
-    """Solve one deck self-consistently and return a :class:`selfcon.output.result.Result`.
+          max_iterations: int | None = None) -> Result:
+    """Solve one deck self-consistently: Schrödinger and Poisson iterated to agreement.
 
-    ``deck``: a Deck, a path or TOML text.  ``initial_potential``: phi (V) on this
-    deck's mesh, or ``(z_nm, phi_V)`` to interpolate from another mesh (warm
-    start, continuation).  ``progress``: callable(iteration, residual_V).
-    ``method``/``tolerance``/``max_iterations`` override the deck's [solver].
+    Parameters
+    ----------
+    deck : Deck, str or path-like
+        A loaded deck, a deck file or TOML text.
+    initial_potential : ndarray or (z_nm, phi_V), optional
+        Start from this potential (V): on this deck's mesh, or as a pair to interpolate
+        from another mesh (warm start, continuation).  Default: the classical solution.
+    progress : callable, optional
+        ``progress(iteration, residual_V)`` after every iteration.
+    structure : Structure, optional
+        ``build_structure(deck)`` done already (sweeps reuse it).
+    method, tolerance, max_iterations : optional
+        Override the deck's ``solver.method`` (a registered mixer name),
+        ``solver.tolerance`` (V) and ``solver.max_iterations``.
+
+    Returns
+    -------
+    Result
+        Profiles, subbands, per-layer charge, the summary figures and design warnings.
+        Non-convergence is not an exception: ``converged`` is False and ``message`` says
+        why and what to try.
+
+    Raises
+    ------
+    selfcon.errors.DeckError
+        Only for bad input (a deck given as a path or text that does not validate).
+
+    Examples
+    --------
+    >>> from selfcon.api import load_deck, solve
+    >>> result = solve(load_deck("inputs/hemt_4K.toml"))
+    >>> result.converged, result.summary["channel_layer"]
+    (True, 'channel')
+    >>> short = solve(load_deck("inputs/hemt_4K.toml"), max_iterations=1)
+    >>> short.converged, short.status
+    (False, 1)
     """
     t0 = time.perf_counter()
     if not isinstance(deck, Deck):
@@ -70,11 +210,41 @@ def solve(deck, *, initial_potential=None, progress=None, structure: Structure |
 
 
 
-def solve_warm(deck, initial_potential, *, structure: Structure | None = None):
+def solve_warm(deck: Deck, initial_potential: Any, *,
+               structure: Structure | None = None) -> tuple[Result, bool]:
     """Solve from a warm start; if that fails to converge, solve cold and keep the better.
 
-    Returns ``(result, warm_used)``; with ``initial_potential=None`` it is a cold solve.
     Used by continuation along bias sweeps and by target seeking.
+
+    Parameters
+    ----------
+    deck : Deck
+        The deck to solve.
+    initial_potential : ndarray, (z_nm, phi_V) or None
+        As for :func:`solve`; None makes this a cold solve.
+    structure : Structure, optional
+        ``build_structure(deck)`` done already.
+
+    Returns
+    -------
+    result : Result
+        The converged one if either converged, else the one with the smaller residual.
+    warm_used : bool
+        True when ``result`` came from the warm start.
+
+    Examples
+    --------
+    Step the gate of the 4 K wafer by 50 mV, starting from the solution at zero bias:
+
+    >>> from selfcon.api import load_deck, solve, solve_warm
+    >>> deck = load_deck("inputs/hemt_4K.toml")
+    >>> zero = solve(deck)
+    >>> stepped, warm = solve_warm(deck.with_overrides({"surface.bias": -0.05}),
+    ...                            (zero.z, zero.potential))
+    >>> stepped.converged, warm
+    (True, True)
+    >>> bool(stepped.iterations <= zero.iterations)
+    True
     """
     if initial_potential is not None:
         r = solve(deck, structure=structure, initial_potential=initial_potential)
@@ -86,8 +256,17 @@ def solve_warm(deck, initial_potential, *, structure: Structure | None = None):
 
 
 
-def warm_up():
-    """Compile (or load from the numba cache) every kernel the loop uses, on a tiny deck."""
+def warm_up() -> None:
+    """Compile (or load from the numba cache) every kernel the loop uses, on a tiny deck.
+
+    The first solve in a fresh process otherwise pays for it; the batch coordinator calls
+    this once before it starts its workers so they all load the cache.
+
+    Examples
+    --------
+    >>> from selfcon.api import warm_up
+    >>> warm_up()
+    """
     from selfcon.input.deck import load_deck
     text = """
 title = "warm-up"

@@ -25,7 +25,24 @@ class SelfconInputError(ValueError):
     """Bad user input (deck, study, override, command option).  CLI exit code 2.
 
     ``str(err)`` is one line: ``FILE:LINE: KEY: what is wrong (allowed: ...)``,
-    with the parts that are unknown left out.
+    with the parts that are unknown left out.  The parts are attributes too.
+
+    Parameters
+    ----------
+    message : str
+        What is wrong, with the value found.
+    file, line, key, allowed : optional
+        Where (file path, 1-based line, deck key path) and what would be accepted.
+
+    Examples
+    --------
+    >>> from selfcon.errors import SelfconInputError
+    >>> err = SelfconInputError("must be > 0 nm, got -5", file="wafer.toml", line=12,
+    ...                         key="layer[3].thickness")
+    >>> print(err)
+    wafer.toml:12: layer[3].thickness: must be > 0 nm, got -5
+    >>> isinstance(err, ValueError), err.key
+    (True, 'layer[3].thickness')
     """
 
     def __init__(self, message, *, file=None, line=None, key=None, allowed=None):
@@ -51,7 +68,20 @@ class SelfconInputError(ValueError):
 
 
 class DeckError(SelfconInputError):
-    """A deck (TOML) or a --set override is invalid."""
+    """A deck (TOML) or a --set override is invalid.
+
+    Raised by :func:`selfcon.load_deck` and by ``Deck.error(key, message)``, which finds the
+    key's line in the deck file.
+
+    Examples
+    --------
+    >>> import selfcon
+    >>> try:
+    ...     selfcon.load_deck("inputs/hemt_4K.toml", overrides=["solver.method=newton"])
+    ... except selfcon.DeckError as err:
+    ...     print(err.line, err.key, "anderson" in str(err))
+    None solver.method True
+    """
 
 
 class MaterialError(SelfconInputError):

@@ -33,13 +33,21 @@ Definitions (stated in the file and in README.md, "Design recipes"):
 from __future__ import annotations
 
 import math
+import os
+from collections.abc import Callable
 from dataclasses import dataclass, field
-from typing import Any
+from typing import TYPE_CHECKING, Any
 
 import numpy as np
 
 from selfcon.constants import CM2_PER_NM2, EPS0, NM_PER_CM, Q, Q_EPS0
 from selfcon.errors import DeckError, SelfconInputError
+
+if TYPE_CHECKING:
+    from numpy.typing import ArrayLike
+
+    from selfcon.input.deck import Deck
+    from selfcon.output.result import Result
 
 LINEAR_POINTS = 4
 LINEARITY = 0.02
@@ -312,12 +320,51 @@ def analysis_lines(sw: BiasSweep) -> list[str]:
 
 # --------------------------------------------------------------------------- the sweep
 
-def sweep_bias(deck, biases, *, progress=None, threshold_cm2: float = DEFAULT_THRESHOLD_CM2,
-               fraction: float = PARALLEL_FRACTION, keep_results: bool = False,
-               continuation: bool = True) -> BiasSweep:
-    """Solve ``deck`` at every bias (V, on the surface gate) with continuation.
+def sweep_bias(deck: Deck | str | os.PathLike, biases: ArrayLike, *,
+               progress: Callable[[int, float, Result], None] | None = None,
+               threshold_cm2: float = DEFAULT_THRESHOLD_CM2, fraction: float = PARALLEL_FRACTION,
+               keep_results: bool = False, continuation: bool = True) -> BiasSweep:
+    """Solve ``deck`` at every gate bias, each point starting from its neighbours' potential.
 
-    ``progress``: callable(index, bias, result) after each point.
+    Parameters
+    ----------
+    deck : Deck, str or path-like
+        A deck with a Schottky surface contact (the gate); the bias replaces ``surface.bias``.
+    biases : array_like
+        Gate biases in V, in sweep order; finite and without repeats.
+    progress : callable, optional
+        ``progress(index, bias, result)`` after each point.
+    threshold_cm2 : float, optional
+        Channel density (cm^-2) that defines the threshold voltage.
+    fraction : float, optional
+        Doping-layer share of the channel density at which parallel conduction starts.
+    keep_results : bool, optional
+        Keep every point's :class:`~selfcon.output.result.Result` in ``sweep.results``.
+    continuation : bool, optional
+        Start each point from the extrapolated potential of the previous ones (default);
+        False solves every point cold.
+
+    Returns
+    -------
+    BiasSweep
+        Per-bias arrays (densities per layer, gate charge, C = dQ/dV, subbands, band
+        edges) and ``analysis`` (charge-control slope, threshold, parallel-conduction
+        onset); ``save(path)`` writes the sweep file, ``plot(path)`` the figure.
+
+    Raises
+    ------
+    SweepError
+        No Schottky gate, or bad bias points or options (exit 2 in the command line).
+
+    Examples
+    --------
+    >>> import selfcon
+    >>> from selfcon.design import sweep_bias
+    >>> sweep = sweep_bias(selfcon.load_deck("inputs/design/gated_delta_10K.toml"), [-0.8, -0.7, -0.6])
+    >>> bool(sweep.all_converged)
+    True
+    >>> bool(sweep.channel_density[0] < sweep.channel_density[1] < sweep.channel_density[2])
+    True
     """
     from selfcon.input.deck import Deck, load_deck
     from selfcon.api import extrapolate_potential, solve_warm

@@ -19,6 +19,8 @@ from __future__ import annotations
 
 import csv
 import math
+import os
+from collections.abc import Iterable
 from dataclasses import dataclass, field
 from pathlib import Path
 
@@ -190,8 +192,43 @@ def summarize_table(paths: list[str], quantities: dict[str, np.ndarray], paramet
                                      **{q: np.asarray(v, float) for q, v in quantities.items()}})
 
 
-def summarize_study(folder, *, quantities=None, from_results: bool = True) -> ToleranceSummary:
-    """Read a finished study folder and summarise it (see the module docstring)."""
+def summarize_study(folder: str | os.PathLike, *, quantities: Iterable[str] | None = None,
+                    from_results: bool = True) -> ToleranceSummary:
+    """Statistics and linear sensitivities of a finished study (see the module docstring).
+
+    Parameters
+    ----------
+    folder : str or path-like
+        The study's output folder (``selfcon batch`` wrote ``table.h5``/``table.csv`` there).
+    quantities : iterable of str, optional
+        Figures to summarise (default: every numeric figure column and result summary value).
+    from_results : bool, optional
+        Also read the numeric ``/summary`` attributes of the job result files.
+
+    Returns
+    -------
+    ToleranceSummary
+        ``stats[q]`` (mean, std, p5, p50, p95, n), ``sensitivity[q][path]`` (units of q per
+        deck unit), ``standardized[q][path]`` and ``r_squared[q]``; ``lines()`` is the table
+        ``selfcon study-summary`` prints.
+
+    Raises
+    ------
+    StudyError
+        No table, or no finished job in it.
+
+    Examples
+    --------
+    Run the 40-wafer growth-tolerance study, then summarise it (a few minutes on 2 cores):
+
+    >>> from selfcon.batch import run_study
+    >>> from selfcon.design import summarize_study
+    >>> code, counts, out = run_study("inputs/design/tolerance_hall.toml", workers=2)   # doctest: +SKIP
+    >>> s = summarize_study(out)                                                        # doctest: +SKIP
+    >>> s.stats["channel_density_cm2"]["std"]                                           # doctest: +SKIP
+    >>> s.sensitivity["channel_density_cm2"]["layer.spacer.thickness"]                  # doctest: +SKIP
+    >>> for line in s.lines(): print(line)                                              # doctest: +SKIP
+    """
     folder = Path(folder)
     cols, data = read_table(folder)
     if "job" not in cols or "status" not in cols:

@@ -18,13 +18,18 @@ electrons taken back by the doping layers (free plus bound on neutral donors, cm
 from __future__ import annotations
 
 import math
+import os
 import tomllib
+from collections.abc import Callable
 from dataclasses import dataclass, field
-from typing import Any
+from typing import TYPE_CHECKING, Any
 
 import numpy as np
 
 from selfcon.errors import DeckError, SelfconInputError
+
+if TYPE_CHECKING:
+    from selfcon.input.deck import Deck
 
 
 class TuneError(SelfconInputError):
@@ -109,13 +114,57 @@ def path_units(path: str) -> str:
     return spec.unit
 
 
-def tune(deck, path: str, target_name: str, target_value: float, bracket, *, xtol: float | None = None,
-         rtol: float = 1e-10, maxiter: int = 60, progress=None) -> TuneResult:
-    """Find ``x`` in ``bracket`` with quantity(solve(deck with path = x)) == target_value.
+def tune(deck: Deck | str | os.PathLike, path: str, target_name: str, target_value: float,
+         bracket: tuple[float, float], *, xtol: float | None = None, rtol: float = 1e-10,
+         maxiter: int = 60, progress: Callable[[float, float, Any], None] | None = None) -> TuneResult:
+    """Find the deck value that gives a target figure: ``quantity(solve(deck with path = x)) == target``.
 
-    ``progress``: callable(x, quantity_value, result) after each solve.
-    Raises TuneError (exit 2 in the CLI) when the target is outside the range reached at the
-    bracket ends, and DeckError for a bad path or a value the deck rejects.
+    Each trial is a full self-consistent solve (warm-started from the nearest earlier
+    one); the root is bracketed and found with :func:`scipy.optimize.brentq`.
+
+    Parameters
+    ----------
+    deck : Deck, str or path-like
+        The design to tune.
+    path : str
+        The deck path to vary, as ``--set`` takes it (``layer.spacer.thickness``).
+    target_name : str
+        A name of :data:`QUANTITIES` (``ns``, ``ns_total``, ``e10``, ``e0f``,
+        ``doping_charge``, ``doping_free``) or any numeric ``Result.summary`` key.
+    target_value : float
+        The value wanted, in the quantity's units (cm^-2, eV).
+    bracket : (float, float)
+        Two deck values of ``path`` (deck units) whose results lie on either side of the target.
+    xtol, rtol, maxiter : optional
+        Passed to :func:`scipy.optimize.brentq` (``xtol`` defaults to 1e-4 of the bracket).
+    progress : callable, optional
+        ``progress(x, quantity_value, result)`` after each solve.
+
+    Returns
+    -------
+    TuneResult
+        ``value`` (the deck value found), ``achieved``, ``ends`` (the quantity at the bracket
+        ends), ``solves``, ``converged`` and the final ``result``.
+
+    Raises
+    ------
+    TuneError
+        The target lies outside the range reached at the bracket ends (exit 2 in the CLI).
+    DeckError
+        A bad path, or a bracket value the deck rejects.
+
+    Examples
+    --------
+    Which spacer gives 2e11 cm^-2 in the channel of the 77 K Hall-bar wafer?
+
+    >>> import selfcon
+    >>> from selfcon.design import tune
+    >>> wafer = selfcon.load_deck("inputs/design/hall_wafer_77K.toml")
+    >>> found = tune(wafer, "layer.spacer.thickness", "ns", 2e11, (5.0, 60.0))
+    >>> found.converged, round(found.achieved / 1e11, 3)
+    (True, 2.0)
+    >>> bool(5.0 < found.value < 60.0)
+    True
     """
     from scipy.optimize import brentq
 

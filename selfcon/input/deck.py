@@ -382,6 +382,28 @@ class SolverSpec:
 
 @dataclass(frozen=True)
 class Deck:
+    """A validated deck: frozen, hashable, every value in deck units (nm, K, V, cm^-3, cm^-2).
+
+    Made by :func:`load_deck` (never directly).  The tables of the TOML are typed fields
+    (``surface``, ``substrate``, ``layers``, ``materials``, ``physics``, ``quantum``,
+    ``mesh``, ``solver``); ``get(path)`` reads any value by its ``--set`` path,
+    ``with_overrides`` makes a changed copy, ``error(key, message)`` raises a
+    :class:`~selfcon.errors.DeckError` located at the key's line, and ``to_toml``/``hash``
+    give the canonical text and its SHA-256 (the same deck always hashes the same).
+
+    Examples
+    --------
+    >>> import selfcon
+    >>> deck = selfcon.load_deck("inputs/hemt_4K.toml")
+    >>> deck.layer("spacer").thickness, deck.get("surface.contact")
+    (20.0, 'schottky')
+    >>> thinner = deck.with_overrides({"layer.spacer.thickness": 10.0})
+    >>> thinner.total_thickness - deck.total_thickness
+    -10.0
+    >>> thinner == deck, thinner.hash() == deck.hash()
+    (False, False)
+    """
+
     title: str
     temperature: float            # K
     surface: Contact

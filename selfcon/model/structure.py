@@ -9,7 +9,7 @@ from __future__ import annotations
 
 import functools
 from dataclasses import dataclass, field
-from typing import Any
+from typing import TYPE_CHECKING, Any
 
 import numpy as np
 
@@ -17,6 +17,9 @@ from selfcon.constants import CM2_PER_NM2, CM3_PER_NM3, KB_EV, NC_PER_M0_K
 from selfcon.errors import DeckError
 from selfcon.model import dopants
 from selfcon.model.mesh import Mesh, build_mesh
+
+if TYPE_CHECKING:
+    from selfcon.input.deck import Deck
 
 #: per-cell arrays taken from the material library (selfcon.input.materials.cell_parameters keys)
 MATERIAL_KEYS = ("eps", "ec_gamma", "ec_x", "ec_l", "ev_hh", "ev_lh", "m_e", "m_hh_z", "m_lh_z",
@@ -114,12 +117,39 @@ def _needs(carriers, ionization) -> frozenset:
     return frozenset(needs)
 
 
-def build_structure(deck, *, mesh: Mesh | None = None) -> Structure:
+def build_structure(deck: Deck, *, mesh: Mesh | None = None) -> Structure:
     """Mesh the deck's stack and fill every array from the material library.
 
-    ``mesh``: use this mesh instead of the deck's graded one (benchmarks compare a
-    uniform mesh, selfcon.model.mesh.uniform_mesh); it must span the stack and carry every
-    interface, sheet and region end as a node.
+    Parameters
+    ----------
+    deck : Deck
+        A loaded deck.
+    mesh : Mesh, optional
+        Use this mesh instead of the deck's graded one (benchmarks compare a uniform mesh,
+        :func:`selfcon.model.mesh.uniform_mesh`); it must span the stack and carry every
+        interface, sheet and region end as a node.
+
+    Returns
+    -------
+    Structure
+        Frozen: the mesh, per-cell material arrays (band edges, masses, permittivity,
+        doping in nm^-3), sheets on nodes (nm^-2), quantum regions as node ranges and the
+        contacts, in internal units (nm, eV, V, K).
+
+    Raises
+    ------
+    selfcon.errors.MaterialError
+        A material or composition the library cannot evaluate, located at its deck key.
+
+    Examples
+    --------
+    >>> import selfcon
+    >>> from selfcon.model.structure import build_structure
+    >>> st = build_structure(selfcon.load_deck("inputs/hemt_4K.toml"))
+    >>> float(st.z[-1]), st.regions_nm
+    (1039.0, ((30.0, 200.0),))
+    >>> st.cell["eps"].shape == (st.z.size - 1,)          # one value per cell
+    True
     """
     from selfcon.input import materials
 
