@@ -347,3 +347,58 @@ def test_dumps_toml_round_trips_awkward_values():
     assert back == data
     assert math.copysign(1.0, back["neg0"]) == -1.0
     assert dumps_toml(data) == dumps_toml(back)
+
+
+# --- [[channel]] tables ---------------------------------------------------------
+
+def _with_channels(text):
+    return load_deck(GOOD_DECK + "\n" + text)
+
+
+def test_channel_tables_names_indices_and_ranges():
+    d = _with_channels('[[channel]]\nname = "2deg"\ncarrier = "electron"\nlayers = ["channel"]\n'
+                       '[[channel]]\nname = "upper"\ncarrier = "hole"\nlayers = ["0:1"]\n'
+                       '[[channel]]\nname = "cap_e"\ncarrier = "electron"\nlayers = [0]\n')
+    assert [(c.name, c.carrier, c.layers) for c in d.channels] == [
+        ("2deg", "electron", (2,)), ("upper", "hole", (0, 1)), ("cap_e", "electron", (0,))]
+    # GOOD_DECK has 27 lines, then a blank line: the first [[channel]] header is line 29
+    assert d.channels[0].line == 29
+    again = load_deck(d.to_toml())                  # canonical text keeps them (by layer name)
+    assert again.channels == d.channels
+    assert load_deck(GOOD_DECK).channels == ()
+
+
+@pytest.mark.parametrize("body, key, words", [
+    ('name = "a"\ncarrier = "electrons"\nlayers = [2]', "channel[0].carrier", "did you mean 'electron'"),
+    ('name = "a"\ncarrier = "hole"\nlayers = ["chanel"]', "channel[0].layers", "did you mean 'channel'"),
+    ('name = "a"\ncarrier = "hole"\nlayers = [3]', "channel[0].layers", "no layer 3"),
+    ('name = "a"\ncarrier = "hole"\nlayers = ["2:0"]', "channel[0].layers", "runs upwards"),
+    ('name = "a"\ncarrier = "hole"\nlayers = [0, 2]', "channel[0].layers", "contiguous"),
+    ('name = "a"\ncarrier = "hole"\nlayers = []', "channel[0].layers", "non-empty"),
+    ('name = "a"\ncarrier = "hole"', "channel[0].layers", "is required"),
+    ('name = "electron2"\ncarrier = "hole"\nlayers = [1]', "channel[0].name", "reserved"),
+    ('name = "a b"\ncarrier = "hole"\nlayers = [1]', "channel[0].name", "letters, digits"),
+    ('name = "a"\ncarrier = "hole"\nlayer = [1]', "channel[0].layer", "did you mean 'layers'"),
+])
+def test_bad_channel_tables(body, key, words):
+    with pytest.raises(DeckError) as e:
+        _with_channels("[[channel]]\n" + body + "\n")
+    assert e.value.key == key and words in str(e.value)
+    assert e.value.line is not None                  # located in the deck file
+
+
+def test_channels_of_one_carrier_may_not_share_a_layer():
+    with pytest.raises(DeckError, match="overlaps channel 'a'"):
+        _with_channels('[[channel]]\nname = "a"\ncarrier = "electron"\nlayers = ["1:2"]\n'
+                       '[[channel]]\nname = "b"\ncarrier = "electron"\nlayers = ["channel"]\n')
+    d = _with_channels('[[channel]]\nname = "a"\ncarrier = "electron"\nlayers = ["1:2"]\n'
+                       '[[channel]]\nname = "b"\ncarrier = "hole"\nlayers = ["channel"]\n')
+    assert len(d.channels) == 2                      # another carrier may
+    with pytest.raises(DeckError, match="duplicate channel name"):
+        _with_channels('[[channel]]\nname = "a"\ncarrier = "electron"\nlayers = [1]\n'
+                       '[[channel]]\nname = "a"\ncarrier = "hole"\nlayers = [2]\n')
+
+
+def test_channel_tables_are_not_overridden():
+    with pytest.raises(DeckError, match="cannot be set by an override"):
+        load_deck(GOOD_DECK, ["channel.a.layers=[1]"])

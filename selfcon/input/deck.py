@@ -61,7 +61,7 @@ from typing import Any
 from selfcon.errors import DeckError
 
 __all__ = ["load_deck", "parse_override", "get_path", "register_method_name", "deck_reference", "dumps_toml", "KEYS",
-           "Deck", "Contact", "Layer", "MaterialDef", "Params", "Physics",
+           "Deck", "Contact", "Layer", "MaterialDef", "Params", "Physics", "ChannelSpec",
            "QuantumSpec", "MeshSpec", "SolverSpec", "DeckError"]
 
 TEXT_NAME = "<deck>"
@@ -232,18 +232,29 @@ _SOLVER = {
                       lo=0.0, lo_open=True, hi=1.0),
     "history": KeySpec("integer", "-", 6, "Anderson history depth", lo=1),
 }
+CHANNEL_CARRIERS = ("electron", "hole")
+_CHANNEL = {
+    "name": KeySpec("string", "-", REQUIRED, "unique channel name (letters, digits, _ and -; "
+                    "electron<N> and hole<N> are the names of auto-detected channels)"),
+    "carrier": KeySpec("string", "-", REQUIRED, "the carrier confined in it",
+                       choices=CHANNEL_CARRIERS),
+    "layers": KeySpec("layers", "-", REQUIRED, "its layers, one contiguous block: layer names, "
+                      "0-based indices or \"A:B\" ranges (both ends included)"),
+}
 
 #: table name -> {key: KeySpec}; "" is the top level, "material" is per [material.NAME]
 KEYS = {"": _TOP, "surface": _CONTACT, "substrate": _CONTACT, "layer": _LAYER,
         "material": _MATERIAL, "physics": _PHYSICS, "quantum": _QUANTUM, "mesh": _MESH,
-        "solver": _SOLVER}
-TABLES = ("surface", "substrate", "layer", "material", "physics", "quantum", "mesh", "solver")
+        "solver": _SOLVER, "channel": _CHANNEL}
+TABLES = ("surface", "substrate", "layer", "material", "physics", "quantum", "mesh", "solver",
+          "channel")
 TOP_KEYS = tuple(_TOP) + TABLES
 _SIMPLE_TABLES = ("surface", "substrate", "physics", "quantum", "mesh", "solver")
 
 _TYPE_NAMES = {"number": "number", "integer": "integer", "string": "string",
                "fraction": "number or [top, bottom]", "carriers": "list of strings",
-               "regions": "list of [top, bottom]"}
+               "regions": "list of [top, bottom]",
+               "layers": "list of names, indices or \"A:B\""}
 
 
 def deck_reference():
@@ -279,6 +290,10 @@ def deck_reference():
     for table in ("physics", "quantum", "mesh", "solver"):
         for key, spec in KEYS[table].items():
             rows.append((f"{table}.{key}", _TYPE_NAMES[spec.kind], spec.unit, dflt(spec), doc(spec)))
+    rows.append(("channel", "array of tables", "-", "-", "named channels ([[channel]]): each replaces "
+                 "the auto-detected channels of its carrier it overlaps; the first is the main channel"))
+    for key, spec in _CHANNEL.items():
+        rows.append((f"channel.{key}", _TYPE_NAMES[spec.kind], spec.unit, dflt(spec), doc(spec)))
     return rows
 
 
@@ -381,6 +396,14 @@ class SolverSpec:
 
 
 @dataclass(frozen=True)
+class ChannelSpec:
+    name: str
+    carrier: str                  # electron | hole
+    layers: tuple                 # 0-based layer indices, contiguous, ascending
+    line: int | None = field(default=None, compare=False)   # [[channel]] line in the deck file
+
+
+@dataclass(frozen=True)
 class Deck:
     """A validated deck: frozen, hashable, every value in deck units (nm, K, V, cm^-3, cm^-2).
 
@@ -414,6 +437,7 @@ class Deck:
     quantum: QuantumSpec
     mesh: MeshSpec
     solver: SolverSpec
+    channels: tuple = ()          # of ChannelSpec, in deck order (the first is the main channel)
     text: str = field(default="", compare=False, repr=False)
     path: str | None = field(default=None, compare=False)
     overrides: tuple = field(default=(), compare=False)     # ((canonical key, value), ...)
@@ -550,6 +574,9 @@ class Deck:
         out["quantum"] = q
         out["mesh"] = table(self.mesh)
         out["solver"] = table(self.solver)
+        if self.channels:
+            out["channel"] = [{"name": c.name, "carrier": c.carrier,
+                               "layers": [self.layers[i].name for i in c.layers]} for c in self.channels]
         return out
 
 
@@ -755,6 +782,8 @@ def _apply_override(raw, path, value, file):
         if not isinstance(mats[name], dict):
             raise bad(f"material.{name} in the deck is not a table", ())
         return put(mats[name], key, f"material.{name}.{key}")
+    if root == "channel":
+        raise bad("[[channel]] tables cannot be set by an override; edit the deck", ())
     raise bad(f"unknown override root {root!r}{_did_you_mean(root, TOP_KEYS)}", TOP_KEYS)
 
 
@@ -977,10 +1006,11 @@ def _build(raw, text, path, overrides):
     quantum = _quantum(ctx, _table(ctx, raw, "quantum"), total)
     mesh = _mesh(ctx, _table(ctx, raw, "mesh"))
     solver = _solver(ctx, _table(ctx, raw, "solver"))
+    channels = _channels(ctx, raw, layers)
 
     deck = Deck(title=title, temperature=temperature, surface=surface, substrate=substrate,
                 layers=layers, materials=materials, physics=physics, quantum=quantum,
-                mesh=mesh, solver=solver, text="", path=path, overrides=overrides,
+                mesh=mesh, solver=solver, channels=channels, text="", path=path, overrides=overrides,
                 _raw=copy.deepcopy(raw), _source=text)
     object.__setattr__(deck, "text", text if not overrides else deck.to_toml())
     return deck
@@ -1187,6 +1217,87 @@ def _mesh(ctx, t):
         raise ctx.error("mesh.bulk_step", f"must be >= mesh.step ({_num(step)} nm), got "
                         f"{_num(bulk)} nm")
     return MeshSpec(**vals)
+
+
+_AUTO_CHANNEL_NAME = re.compile(r"^(electron|hole)[0-9]+$")
+
+
+def _layer_ref(ctx, key, item, layers):
+    """One entry of channel.layers -> a tuple of layer indices."""
+    names = [l.name for l in layers]
+
+    def one(ref):
+        if isinstance(ref, bool):
+            raise ctx.error(key, f"layer reference must be a name or an index, got {_show(ref)}",
+                            allowed=names)
+        if isinstance(ref, numbers.Integral) or (isinstance(ref, str) and ref.strip().isdigit()):
+            i = int(ref)
+            if not 0 <= i < len(layers):
+                raise ctx.error(key, f"no layer {i}: the stack has {len(layers)} layers, numbered "
+                                "from 0", allowed=list(range(len(layers))))
+            return i
+        if isinstance(ref, str) and ref.strip() in names:
+            return names.index(ref.strip())
+        if isinstance(ref, str):
+            raise ctx.error(key, f"no layer named {ref.strip()!r}{_did_you_mean(ref.strip(), names)}",
+                            allowed=names)
+        raise ctx.error(key, f"layer reference must be a name, an index or \"A:B\", got "
+                        f"{_type_of(ref)} {_show(ref)}", allowed=names)
+
+    if isinstance(item, str) and ":" in item:
+        a, _, b = item.partition(":")
+        i, j = one(a), one(b)
+        if j < i:
+            raise ctx.error(key, f"range {item!r} runs upwards (layer {j} lies above layer {i}); "
+                            "write the top layer first")
+        return tuple(range(i, j + 1))
+    return (one(item),)
+
+
+def _channels(ctx, raw, layers):
+    if "channel" not in raw:
+        return ()
+    arr = raw["channel"]
+    if isinstance(arr, dict):
+        raise ctx.error("channel", "must be an array of tables: write [[channel]], not [channel]")
+    if not isinstance(arr, list) or not all(isinstance(c, dict) for c in arr):
+        raise ctx.error("channel", f"must be an array of tables [[channel]], got {_type_of(arr)}")
+    out, seen = [], {}
+    for k, t in enumerate(arr):
+        p = f"channel[{k}]."
+        ctx.check_keys(t, _CHANNEL, p, f"[[channel]] {k}")
+        name = ctx.get(t, "name", _CHANNEL["name"], p)
+        if not _NAME.match(name) or name.isdigit():
+            raise ctx.error(f"{p}name", f"channel name {name!r} must be letters, digits, _ and -, "
+                            "not all digits")
+        if _AUTO_CHANNEL_NAME.match(name):
+            raise ctx.error(f"{p}name", f"{name!r} is reserved for auto-detected channels "
+                            "(electron<N>, hole<N>); choose another name")
+        if name in seen:
+            raise ctx.error(f"{p}name", f"duplicate channel name {name!r} (also channel {seen[name]})")
+        seen[name] = k
+        carrier = ctx.get(t, "carrier", _CHANNEL["carrier"], p)
+        key = f"{p}layers"
+        if "layers" not in t:
+            raise ctx.error(key, f"is required: {_CHANNEL['layers'].doc}", allowed=[l.name for l in layers])
+        v = t["layers"]
+        if isinstance(v, (str, numbers.Integral)) and not isinstance(v, bool):
+            v = [v]
+        if not isinstance(v, list) or not v:
+            raise ctx.error(key, f"must be a non-empty list of layer names, indices or \"A:B\" ranges, "
+                            f"got {_show(v)}", allowed=[l.name for l in layers])
+        idx = sorted({i for item in v for i in _layer_ref(ctx, key, item, layers)})
+        if idx != list(range(idx[0], idx[-1] + 1)):
+            missing = [layers[i].name for i in range(idx[0], idx[-1] + 1) if i not in idx]
+            raise ctx.error(key, "a channel is one depth interval: its layers must be contiguous "
+                            f"(missing {', '.join(repr(m) for m in missing)})")
+        for other in out:
+            if other.carrier == carrier and set(other.layers) & set(idx):
+                raise ctx.error(key, f"overlaps channel {other.name!r} of the same carrier "
+                                f"({carrier}); one layer belongs to one {carrier} channel")
+        out.append(ChannelSpec(name=name, carrier=carrier, layers=tuple(idx),
+                               line=_locate(ctx.text, f"channel[{k}]")))
+    return tuple(out)
 
 
 def _solver(ctx, t):
