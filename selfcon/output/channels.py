@@ -1,0 +1,563 @@
+"""Channels: where each kind of carrier is confined, which subbands belong where, and their figures.
+
+A *channel* is a depth interval where one carrier kind (``"electron"`` or ``"hole"``) is
+confined.  Everything here works on plain arrays of the converged solution (depths in
+nm, densities in cm^-3, populations in cm^-2, energies in eV relative to EF = 0), so it
+can be tested on its own; :mod:`selfcon.output.assemble` feeds it a solved structure.
+
+Auto-detection (:func:`detect`), for each carrier, on its band edge U(z) (Ec for
+electrons, -Ev for holes, so that carriers sit in the minima of U) and density d(z):
+
+1. the nodes are split into *basins* at the local maxima of U (a flat top is split at
+   its middle);
+2. in each basin, the channel candidate is the run of nodes around the basin's density
+   peak where d exceeds ``PEAK_FRACTION`` = 1e-3 of that peak;
+3. candidates holding less than ``FALLBACK_FLOOR_CM2`` = 1e3 cm^-2 are dropped;
+4. neighbouring candidates are merged (across layer boundaries) while the barrier between
+   them, max U between them minus the higher of their two minima, is below
+   ``MERGE_KT`` = 2 kT;
+5. after attribution (below), a candidate is a channel when it holds at least
+   ``CHANNEL_FLOOR_CM2`` = 1e8 cm^-2 of its own carriers (its subbands and classical
+   carriers; the tail of a neighbour's subbands beyond a barrier top is not its own).
+   When none does, the one holding most is kept if it holds at least 1e3 cm^-2, so a
+   nearly depleted channel keeps its figures down to pinch-off.
+
+Named channels (``[[channel]]`` tables of the deck, see :class:`Request`) span their
+layers and replace the auto-detected channels of the same carrier they overlap.
+
+Attribution: every subband goes to the channel of its carrier (electron states to
+electron channels, heavy and light holes to hole channels) that holds the largest part
+of its |psi|^2, provided that part exceeds ``ATTRIBUTION_SHARE`` = 1/2; otherwise to no
+channel (index -1).
+
+A channel's sheet density is the population of its subbands, their tails outside the
+interval included, plus the classical carriers (the density not held by subbands:
+outside the quantum regions, X/L valleys) inside its interval.  So, per carrier,
+sum over channels + subbands in no channel + classical carriers outside every channel
+= integral of the density (:attr:`ChannelAnalysis.balance`).
+
+Names: named channels keep the deck's name.  Auto-detected ones are ``electron1``,
+``electron2``, ... and ``hole1``, ... numbered from the surface; a channel holding at
+least ``LAYER_SHARE`` = 90 % of its carriers in one layer with a name of its own (not
+the default ``layer<index>``) takes that layer's name, unless another channel would
+take the same name.
+
+The main channel: the first ``[[channel]]`` of the deck; without named channels, the
+channel with the most carriers of the majority kind (the kind whose channels hold more).
+
+Occupied subbands (:func:`occupied`, the one definition every output uses): a subband
+is occupied when its population is at least ``OCCUPIED_FRACTION`` = 1 % of its
+channel's sheet density and at least ``OCCUPIED_CM2`` = 1e8 cm^-2 (a subband in no
+channel is measured against all subband carriers of its kind).
+"""
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass, field
+
+import numpy as np
+
+from selfcon.constants import NM_PER_CM
+
+__all__ = ["CARRIERS", "BAND_CARRIER", "Levels", "CarrierProfile", "LayerSpan", "Request", "Channel",
+           "ChannelAnalysis", "occupied", "occupied_states", "basins", "detect", "analyse", "transitions",
+           "PEAK_FRACTION", "MERGE_KT", "CHANNEL_FLOOR_CM2", "FALLBACK_FLOOR_CM2", "ATTRIBUTION_SHARE", "LAYER_SHARE",
+           "OCCUPIED_FRACTION", "OCCUPIED_CM2"]
+
+CARRIERS = ("electron", "hole")
+#: band -> the carrier kind of its states
+BAND_CARRIER = {"electron": "electron", "heavy_hole": "hole", "light_hole": "hole"}
+#: +1: the carrier's kinetic energy grows with the electron energy; -1: it falls (holes)
+CARRIER_SIGN = {"electron": +1, "hole": -1}
+
+PEAK_FRACTION = 1e-3          # a channel's run: density above this fraction of its basin's peak
+MERGE_KT = 2.0                # neighbouring runs merge unless a barrier of this many kT separates them
+CHANNEL_FLOOR_CM2 = 1e8       # an auto-detected channel holds at least this sheet density ...
+FALLBACK_FLOOR_CM2 = 1e3      # ... except the largest, when none does, down to this one
+ATTRIBUTION_SHARE = 0.5       # a subband belongs to a channel holding more than this part of |psi|^2
+LAYER_SHARE = 0.9             # an auto-detected channel takes the name of a layer holding this part
+OCCUPIED_FRACTION = 0.01      # occupied: population >= 1 % of its channel's ...
+OCCUPIED_CM2 = 1e8            # ... and >= 1e8 cm^-2
+
+
+def occupied(population, reference):
+    """True where a subband is occupied: its population (cm^-2) is at least 1 % of
+    ``reference`` (its channel's sheet density, cm^-2) and at least 1e8 cm^-2."""
+    pop = np.asarray(population, dtype=float)
+    ref = np.asarray(reference, dtype=float)
+    return (pop >= OCCUPIED_CM2) & (pop >= OCCUPIED_FRACTION * ref)
+
+
+def occupied_states(band: str, subbands: dict, channel_rows) -> np.ndarray:
+    """:func:`occupied` for the states of one band of a result: each state against its
+    channel's sheet density (``subbands[band].channel`` indexes ``channel_rows``, the rows of
+    /channels); a state in no channel against all subband carriers of its kind (electrons,
+    or heavy plus light holes)."""
+    sb = subbands[band]
+    kind = BAND_CARRIER[band]
+    kind_total = sum(float(np.sum(v.occupation)) for b, v in subbands.items() if BAND_CARRIER.get(b) == kind)
+    ch = np.asarray(getattr(sb, "channel", None) if getattr(sb, "channel", None) is not None
+                    else np.full(np.asarray(sb.energy).size, -1))
+    rows = list(channel_rows or [])
+    ref = np.array([float(rows[c]["sheet_density"]) if 0 <= c < len(rows) else kind_total for c in ch])
+    return occupied(sb.occupation, ref)
+
+
+# --------------------------------------------------------------------------- inputs
+
+@dataclass
+class Levels:
+    """One band's states: energies (eV, electron scale), populations (cm^-2),
+    wavefunctions (N, k) with sum_i w_i psi_i^2 = 1, in-plane masses (m0)."""
+
+    band: str
+    energy: np.ndarray
+    occupation: np.ndarray
+    psi: np.ndarray
+    in_plane_mass: np.ndarray
+
+
+@dataclass
+class CarrierProfile:
+    """One carrier kind at the nodes: its band edge (eV, electron scale: Ec for electrons,
+    Ev for holes), its total density and the part of it not held by subbands (cm^-3)."""
+
+    edge: np.ndarray
+    density: np.ndarray
+    classical: np.ndarray
+
+
+@dataclass(frozen=True)
+class LayerSpan:
+    name: str
+    top_nm: float
+    bottom_nm: float
+    named: bool = True        # False: the default name layer<index>, never given to a channel
+
+
+@dataclass(frozen=True)
+class Request:
+    """A channel named in the deck: its name, carrier and depth span (its layers)."""
+
+    name: str
+    carrier: str
+    top_nm: float
+    bottom_nm: float
+
+
+# --------------------------------------------------------------------------- results
+
+@dataclass
+class Channel:
+    name: str
+    carrier: str
+    i0: int                    # first and last node of the interval (inclusive)
+    i1: int
+    top_nm: float
+    bottom_nm: float
+    named: bool                # from a [[channel]] table of the deck
+    sheet_density: float = 0.0           # cm^-2, subbands (tails included) + classical inside
+    subband_density: float = 0.0         # cm^-2, population of its subbands
+    classical_density: float = 0.0       # cm^-2, classical carriers inside the interval
+    ground_energy: float = math.nan      # eV, E0 - EF in the carrier's own sense (> 0: empty side)
+    spacing: float = math.nan            # eV, E1 - E0 of its own subbands (> 0)
+    occupied_subbands: int = 0
+    centroid_nm: float = math.nan
+    in_plane_mass: float = math.nan      # m0, of its ground subband
+    layer: str = ""                      # the layer holding most of its carriers
+    states: list = field(default_factory=list)    # [(band, index), ...] lowest kinetic energy first
+
+    def as_row(self) -> dict:
+        return {"name": self.name, "carrier": self.carrier, "top_nm": self.top_nm,
+                "bottom_nm": self.bottom_nm, "sheet_density": self.sheet_density,
+                "ground_energy": self.ground_energy, "spacing": self.spacing,
+                "occupied_subbands": int(self.occupied_subbands), "centroid_nm": self.centroid_nm,
+                "in_plane_mass": self.in_plane_mass, "layer": self.layer, "named": bool(self.named)}
+
+
+@dataclass
+class ChannelAnalysis:
+    channels: list                       # of Channel, by depth (top first)
+    main: int                            # index of the main channel, -1 without channels
+    attribution: dict                    # band -> (k,) int, index into channels or -1
+    unattributed: dict                   # carrier -> cm^-2 held by subbands in no channel
+    classical_outside: dict              # carrier -> cm^-2 classical carriers outside every channel
+    total: dict                          # carrier -> cm^-2, integral of the density
+
+    @property
+    def main_channel(self) -> Channel | None:
+        return self.channels[self.main] if self.main >= 0 else None
+
+    def balance(self, carrier: str) -> float:
+        """sum of channel densities + unattributed + classical outside - total (cm^-2)."""
+        s = sum(c.sheet_density for c in self.channels if c.carrier == carrier)
+        return s + self.unattributed.get(carrier, 0.0) + self.classical_outside.get(carrier, 0.0) \
+            - self.total.get(carrier, 0.0)
+
+    def by_name(self, name: str) -> Channel | None:
+        for c in self.channels:
+            if c.name == name:
+                return c
+        return None
+
+
+# --------------------------------------------------------------------------- detection
+
+def _sheet(w, dens, i0, i1) -> float:
+    """Sheet density (cm^-2) of a node density (cm^-3) over nodes i0..i1 with dual widths w (nm)."""
+    return float(np.dot(w[i0:i1 + 1], dens[i0:i1 + 1])) / NM_PER_CM
+
+
+def basins(u) -> list[tuple[int, int]]:
+    """Node ranges (inclusive) between the local maxima of ``u``, top to bottom.
+
+    A maximum is where u stops rising and starts falling; a flat top is split at its
+    middle node, which goes to the basin above it.  The ranges cover every node once.
+    """
+    u = np.asarray(u, dtype=float)
+    n = u.size
+    if n < 3:
+        return [(0, n - 1)] if n else []
+    d = np.diff(u)
+    scale = max(float(np.max(np.abs(u))), 1.0)
+    s = np.sign(np.where(np.abs(d) > 1e-12 * scale, d, 0.0))
+    nz = np.flatnonzero(s)
+    cuts = []
+    for a, b in zip(nz[:-1], nz[1:]):
+        if s[a] > 0 and s[b] < 0:                # rising cell a, then flat, then falling cell b
+            cuts.append((a + 1 + b) // 2)        # nodes a+1..b are the top
+    out, start = [], 0
+    for c in cuts:
+        out.append((start, c))
+        start = c + 1
+    out.append((start, n - 1))
+    return out
+
+
+def detect(z, w, edge, density, carrier: str, kT: float, *, floor_cm2: float = CHANNEL_FLOOR_CM2,
+           peak_fraction: float = PEAK_FRACTION, merge_kt: float = MERGE_KT) -> list[tuple[int, int]]:
+    """Auto-detected channels of one carrier as inclusive node ranges, top to bottom.
+
+    ``edge``: the carrier's band edge at the nodes (eV, electron scale: Ec or Ev);
+    ``density``: its density (cm^-3); ``w``: dual widths (nm).  See the module docstring.
+    """
+    w = np.asarray(w, dtype=float)
+    dens = np.asarray(density, dtype=float)
+    u = CARRIER_SIGN[carrier] * np.asarray(edge, dtype=float)
+    runs = []
+    for a, b in basins(u):
+        seg = dens[a:b + 1]
+        if seg.size == 0 or not np.any(seg > 0):
+            continue
+        p = a + int(np.argmax(seg))
+        thr = peak_fraction * dens[p]
+        i0 = p
+        while i0 > a and dens[i0 - 1] > thr:
+            i0 -= 1
+        i1 = p
+        while i1 < b and dens[i1 + 1] > thr:
+            i1 += 1
+        if _sheet(w, dens, i0, i1) >= floor_cm2:
+            runs.append([i0, i1])
+    merged = True
+    while merged and len(runs) > 1:
+        merged = False
+        for j in range(len(runs) - 1):
+            (a0, a1), (b0, b1) = runs[j], runs[j + 1]
+            top = float(np.max(u[a1:b0 + 1]))
+            floor = max(float(np.min(u[a0:a1 + 1])), float(np.min(u[b0:b1 + 1])))
+            if top - floor < merge_kt * kT:
+                runs[j] = [a0, b1]
+                del runs[j + 1]
+                merged = True
+                break
+    return [(int(a), int(b)) for a, b in runs]
+
+
+def _node_range(z, top_nm, bottom_nm) -> tuple[int, int]:
+    z = np.asarray(z, dtype=float)
+    i0 = int(np.argmin(np.abs(z - top_nm)))
+    i1 = int(np.argmin(np.abs(z - bottom_nm)))
+    return i0, max(i1, i0)
+
+
+# --------------------------------------------------------------------------- analysis
+
+def _layer_shares(z, rho, layers) -> np.ndarray:
+    """Part of the integral of rho (trapezoid per cell) in each layer."""
+    z = np.asarray(z, dtype=float)
+    h = np.diff(z)
+    cell = 0.5 * h * (rho[:-1] + rho[1:])
+    zc = 0.5 * (z[:-1] + z[1:])
+    bottoms = np.array([L.bottom_nm for L in layers])
+    idx = np.minimum(np.searchsorted(bottoms, zc), len(layers) - 1)
+    per = np.bincount(idx, weights=cell, minlength=len(layers))
+    tot = float(per.sum())
+    return per / tot if tot > 0 else per
+
+
+def analyse(z, w, kT: float, profiles: dict, levels, layers=(), requests=()) -> ChannelAnalysis:
+    """Channels of a converged solution.
+
+    ``profiles``: carrier -> :class:`CarrierProfile` (carriers left out have no channels);
+    ``levels``: the bands' :class:`Levels`; ``layers``: :class:`LayerSpan` rows top to bottom
+    (for names); ``requests``: the deck's named channels in deck order (:class:`Request`).
+    """
+    z = np.asarray(z, dtype=float)
+    w = np.asarray(w, dtype=float)
+    levels = list(levels)
+    requests = list(requests)
+    # 1. intervals: named ones, then auto-detected ones that overlap no named channel of their carrier
+    chans: list[Channel] = []
+    for q in requests:
+        i0, i1 = _node_range(z, q.top_nm, q.bottom_nm)
+        chans.append(Channel(name=q.name, carrier=q.carrier, i0=i0, i1=i1, top_nm=float(z[i0]),
+                             bottom_nm=float(z[i1]), named=True))
+    for carrier in CARRIERS:
+        prof = profiles.get(carrier)
+        if prof is None:
+            continue
+        taken = [(c.i0, c.i1) for c in chans if c.named and c.carrier == carrier]
+        for i0, i1 in detect(z, w, prof.edge, prof.density, carrier, kT, floor_cm2=FALLBACK_FLOOR_CM2):
+            if any(i0 <= b and a <= i1 for a, b in taken):
+                continue
+            chans.append(Channel(name="", carrier=carrier, i0=i0, i1=i1, top_nm=float(z[i0]),
+                                 bottom_nm=float(z[i1]), named=False))
+    chans.sort(key=lambda c: (c.i0, c.i1, c.carrier))
+
+    # 2. attribution of every subband; an auto-detected candidate that then holds less than
+    # the floor of its own carriers (say, the tail of a neighbour's subbands beyond the
+    # barrier top) is no channel: drop it and attribute again
+    while True:
+        attribution = _attribute(chans, levels, w)
+        own = _own_sheets(chans, levels, attribution, profiles, w)
+        keep = [c.named or own[j] >= CHANNEL_FLOOR_CM2 for j, c in enumerate(chans)]
+        if not any(keep) and not requests:
+            # nothing reaches the floor (a nearly depleted stack): keep the candidate holding
+            # most carriers of its own, if it holds at least FALLBACK_FLOOR_CM2, so that the
+            # main channel's figures stay defined down to pinch-off
+            j = int(np.argmax(own)) if own else -1
+            keep = [k == j and own[j] >= FALLBACK_FLOOR_CM2 for k in range(len(chans))]
+        if all(keep):
+            break
+        chans = [c for c, k in zip(chans, keep) if k]
+
+    # 3. figures of every channel
+    total, unattributed, outside = {}, {}, {}
+    for carrier in CARRIERS:
+        prof = profiles.get(carrier)
+        if prof is None:
+            continue
+        dens = np.asarray(prof.density, dtype=float)
+        cl = np.asarray(prof.classical, dtype=float)
+        total[carrier] = float(np.dot(w, dens)) / NM_PER_CM
+        mask = np.zeros(z.size, dtype=bool)
+        for c in chans:
+            if c.carrier == carrier:
+                mask[c.i0:c.i1 + 1] = True
+        outside[carrier] = float(np.dot(w[~mask], cl[~mask])) / NM_PER_CM
+        unattributed[carrier] = 0.0
+    for lv in levels:
+        carrier = BAND_CARRIER[lv.band]
+        if carrier in unattributed:
+            occ = np.asarray(lv.occupation, dtype=float)
+            unattributed[carrier] += float(occ[attribution[lv.band] < 0].sum())
+    layer_share = []                 # part of each channel's carriers in its layer c.layer
+    for j, c in enumerate(chans):
+        prof = profiles.get(c.carrier)
+        cl = np.zeros(z.size) if prof is None else np.asarray(prof.classical, dtype=float)
+        rho = np.zeros(z.size)
+        rho[c.i0:c.i1 + 1] = cl[c.i0:c.i1 + 1]
+        c.classical_density = _sheet(w, cl, c.i0, c.i1)
+        mine = []             # (kinetic energy, band, index, energy, population, mass, psi)
+        sign = CARRIER_SIGN[c.carrier]
+        for lv in levels:
+            if BAND_CARRIER[lv.band] != c.carrier:
+                continue
+            for k in np.flatnonzero(attribution[lv.band] == j):
+                e = float(lv.energy[k])
+                mine.append((sign * e, lv.band, int(k), e, float(lv.occupation[k]),
+                             float(lv.in_plane_mass[k])))
+                rho += float(lv.occupation[k]) * NM_PER_CM * np.asarray(lv.psi[:, k], dtype=float) ** 2
+        mine.sort(key=lambda t: t[0])
+        c.states = [(t[1], t[2]) for t in mine]
+        c.subband_density = float(sum(t[4] for t in mine))
+        c.sheet_density = c.subband_density + c.classical_density
+        if mine:
+            c.ground_energy = mine[0][0]                 # sign * (E0 - EF), EF = 0
+            c.in_plane_mass = mine[0][5]
+            if len(mine) > 1:
+                c.spacing = mine[1][0] - mine[0][0]
+        c.occupied_subbands = int(np.sum(occupied([t[4] for t in mine], c.sheet_density)))
+        norm = float(np.dot(w, rho))
+        if norm > 0:
+            c.centroid_nm = float(np.dot(w, rho * z)) / norm
+        elif mine:                                       # an empty channel: its ground state's <z>
+            band, k = c.states[0]
+            lv = next(v for v in levels if v.band == band)
+            p2 = np.asarray(lv.psi[:, k], dtype=float) ** 2 * w
+            c.centroid_nm = float(np.dot(p2, z) / max(float(p2.sum()), 1e-300))
+        shares = _layer_shares(z, rho, layers) if layers and norm > 0 else None
+        if shares is not None:
+            c.layer = layers[int(np.argmax(shares))].name
+            layer_share.append(float(np.max(shares)))
+        else:
+            layer_share.append(0.0)
+            if layers:
+                mid = 0.5 * (c.top_nm + c.bottom_nm)
+                c.layer = next((L.name for L in layers if L.top_nm <= mid <= L.bottom_nm), layers[-1].name)
+
+    # 4. names of the auto-detected channels
+    _name_auto(chans, layers, layer_share)
+
+    # 5. the main channel
+    main = -1
+    if requests:
+        main = next(j for j, c in enumerate(chans) if c.named and c.name == requests[0].name)
+    elif chans:
+        kind_total = {k: sum(c.sheet_density for c in chans if c.carrier == k) for k in CARRIERS}
+        kind = max(CARRIERS, key=lambda k: kind_total[k])
+        cand = [j for j, c in enumerate(chans) if c.carrier == kind]
+        main = max(cand, key=lambda j: chans[j].sheet_density)
+    return ChannelAnalysis(channels=chans, main=main, attribution=attribution, unattributed=unattributed,
+                           classical_outside=outside, total=total)
+
+
+def _attribute(chans, levels, w) -> dict:
+    """band -> (k,) index of the channel of its carrier holding most of each state's |psi|^2
+    (more than ATTRIBUTION_SHARE), else -1."""
+    attribution = {}
+    for lv in levels:
+        carrier = BAND_CARRIER[lv.band]
+        k = np.asarray(lv.energy).size
+        idx = [j for j, c in enumerate(chans) if c.carrier == carrier]
+        att = np.full(k, -1, dtype=np.int64)
+        if idx and k:
+            p2 = np.asarray(lv.psi, dtype=float) ** 2 * w[:, None]
+            shares = np.array([p2[chans[j].i0:chans[j].i1 + 1].sum(axis=0) for j in idx])   # (C, k)
+            best = np.argmax(shares, axis=0)
+            ok = shares[best, np.arange(k)] > ATTRIBUTION_SHARE
+            att[ok] = np.asarray(idx)[best[ok]]
+        attribution[lv.band] = att
+    return attribution
+
+
+def _own_sheets(chans, levels, attribution, profiles, w) -> list[float]:
+    """Each channel's sheet density (cm^-2): its subbands' population + classical inside."""
+    out = []
+    for j, c in enumerate(chans):
+        prof = profiles.get(c.carrier)
+        s = _sheet(w, np.asarray(prof.classical, dtype=float), c.i0, c.i1) if prof is not None else 0.0
+        for lv in levels:
+            if BAND_CARRIER[lv.band] == c.carrier:
+                s += float(np.asarray(lv.occupation, dtype=float)[attribution[lv.band] == j].sum())
+        out.append(s)
+    return out
+
+
+def _name_auto(chans, layers, layer_share) -> None:
+    named_layers = {L.name for L in layers if L.named}
+    taken = {c.name for c in chans if c.named}
+    count = {k: 0 for k in CARRIERS}
+    wanted = {}
+    for j, c in enumerate(chans):
+        if c.named:
+            continue
+        count[c.carrier] += 1
+        c.name = f"{c.carrier}{count[c.carrier]}"
+        if c.layer in named_layers and layer_share[j] >= LAYER_SHARE:
+            wanted.setdefault(c.layer, []).append(j)
+    for layer, js in wanted.items():
+        if len(js) == 1 and layer not in taken and layer not in {c.name for c in chans}:
+            chans[js[0]].name = layer
+
+
+# --------------------------------------------------------------------------- transitions
+
+def transitions(levels, w) -> dict:
+    """Every e_n - hh_m and e_n - lh_m pair of the given bands.
+
+    Returns arrays ``electron_state`` (index into the electron states), ``hole_band``
+    (``"heavy_hole"`` or ``"light_hole"``), ``hole_state``, ``energy`` (E_e - E_h, eV) and
+    ``overlap`` (|<psi_e|psi_h>|^2 = |sum_i w_i psi_e,i psi_h,i|^2).
+    """
+    by = {lv.band: lv for lv in levels}
+    w = np.asarray(w, dtype=float)
+    cols = {"electron_state": [], "hole_band": [], "hole_state": [], "energy": [], "overlap": []}
+    e = by.get("electron")
+    if e is not None and np.asarray(e.energy).size:
+        pe = np.asarray(e.psi, dtype=float) * w[:, None]
+        for band in ("heavy_hole", "light_hole"):
+            h = by.get(band)
+            if h is None or np.asarray(h.energy).size == 0:
+                continue
+            ov = (pe.T @ np.asarray(h.psi, dtype=float)) ** 2          # (ke, kh)
+            ke, kh = ov.shape
+            cols["electron_state"].append(np.repeat(np.arange(ke), kh))
+            cols["hole_state"].append(np.tile(np.arange(kh), ke))
+            cols["hole_band"].extend([band] * (ke * kh))
+            cols["energy"].append((np.asarray(e.energy, float)[:, None]
+                                   - np.asarray(h.energy, float)[None, :]).ravel())
+            cols["overlap"].append(ov.ravel())
+    out = {}
+    for key in ("electron_state", "hole_state"):
+        out[key] = np.concatenate(cols[key]).astype(np.int64) if cols[key] else np.zeros(0, np.int64)
+    for key in ("energy", "overlap"):
+        out[key] = np.concatenate(cols[key]) if cols[key] else np.zeros(0)
+    out["hole_band"] = np.array(cols["hole_band"], dtype=object)
+    return out
+
+
+# --------------------------------------------------------------------------- from a solved structure
+
+@dataclass
+class SolvedChannels:
+    """What the result assembly needs: every band's states, their populations, the channels."""
+
+    spectrum: dict          # band -> selfcon.solver.spectrum.BandSpectrum
+    occupation: dict        # band -> (k,) cm^-2 (0 for states the loop did not populate)
+    analysis: ChannelAnalysis
+    transitions: dict
+
+
+def requests_of(deck, structure) -> list[Request]:
+    """The deck's ``[[channel]]`` tables as :class:`Request` rows (depths from the structure)."""
+    out = []
+    for spec in getattr(deck, "channels", ()) or ():
+        top = structure.layers[spec.layers[0]].top
+        bottom = structure.layers[spec.layers[-1]].bottom
+        out.append(Request(name=spec.name, carrier=spec.carrier, top_nm=float(top), bottom_nm=float(bottom)))
+    return out
+
+
+def layer_spans(structure) -> list[LayerSpan]:
+    return [LayerSpan(L.name, float(L.top), float(L.bottom), named=L.name != f"layer{L.index}")
+            for L in structure.layers]
+
+
+def from_structure(structure, phi, loop_states, *, n, p, classical_n, classical_p, edges,
+                   requests=()) -> SolvedChannels:
+    """Channels of a converged solve.
+
+    ``n``, ``p``: node densities (cm^-3); ``classical_n``, ``classical_p``: their parts not
+    held by the loop's subbands (cm^-3); ``edges``: {"electron": Ec, "hole": Ev} at the nodes
+    (eV).  Every band is solved in every quantum region (selfcon.solver.spectrum).
+    """
+    from selfcon.constants import CM2_PER_NM2
+    from selfcon.solver.spectrum import full_spectrum
+    from selfcon.solver.statistics import subband_density
+    st = structure
+    spectrum = full_spectrum(st, phi, loop_states)
+    occupation, levels = {}, []
+    for band, bs in spectrum.items():
+        occ = np.zeros(bs.energy.size)
+        if np.any(bs.populated):
+            sel = bs.populated
+            occ[sel] = subband_density(bs.energy[sel], bs.dos[sel], st.temperature, bs.sign) * CM2_PER_NM2
+        occupation[band] = occ
+        levels.append(Levels(band, bs.energy, occ, bs.psi, bs.m_par))
+    profiles = {"electron": CarrierProfile(edges["electron"], n, classical_n),
+                "hole": CarrierProfile(edges["hole"], p, classical_p)}
+    an = analyse(st.z, st.mesh.w, st.kT, profiles, levels, layer_spans(st), requests)
+    return SolvedChannels(spectrum=spectrum, occupation=occupation, analysis=an,
+                          transitions=transitions(levels, st.mesh.w))

@@ -1,0 +1,139 @@
+"""Every band's states in every quantum region at one potential: the spectrum a result reports.
+
+The self-consistent loop (selfcon.solver.loop.solve_states) solves only what the charge
+needs: it leaves out the bands ``physics.carriers`` does not list, and a band whose
+classical charge in a region is negligible stays classical there.  A designer still
+wants e1, hh1 and lh1 of an undoped well.  :func:`full_spectrum` therefore, after
+convergence and without touching what the loop iterates on,
+
+* keeps the loop's own states wherever the loop solved a band in a region (they carry
+  the self-consistent charge, unbound box states included), marked ``populated``;
+* solves every other (band, region) pair at the final potential, up to ``quantum.states``
+  states, keeps only the *bound* ones and gives them zero occupation.
+
+A state is bound when its energy lies below the band edge (in the band's own kinetic
+sense: above Ev for holes) at both ends of its quantum region; ``bound`` flags it for
+every state, the loop's included.
+
+Units: nm, eV (electron energy scale, EF = 0), masses in m0.
+"""
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numpy as np
+
+from selfcon.constants import DOS2D_PER_M0
+
+__all__ = ["BandSpectrum", "full_spectrum", "region_states", "region_edges", "bound_mask"]
+
+
+@dataclass
+class BandSpectrum:
+    """States of one band in all quantum regions, lowest kinetic energy first."""
+
+    band: str
+    energy: np.ndarray        # (k,) eV, electron energy scale
+    psi: np.ndarray           # (N, k) nm^-1/2, zero outside its region
+    m_par: np.ndarray         # (k,) m0
+    dos: np.ndarray           # (k,) nm^-2 eV^-1 (valley degeneracy and spin included)
+    region: np.ndarray        # (k,) int
+    degeneracy: np.ndarray    # (k,)
+    sign: int                 # +1 electrons, -1 holes
+    populated: np.ndarray     # (k,) bool: solved by the loop (its occupation is the charge)
+    bound: np.ndarray         # (k,) bool: below the band edge at both region ends
+
+
+def _specs():
+    from selfcon.solver.loop import BAND_SPECS
+    return BAND_SPECS
+
+
+def region_edges(st, phi, band: str, r_idx: int) -> tuple[float, float]:
+    """Band edge with electrostatics (eV, electron scale) just inside both ends of a region."""
+    edge_key = _specs()[band][0]
+    i0, i1 = st.regions[r_idx]
+    cell = st.cell[edge_key]
+    return float(cell[i0] - phi[i0]), float(cell[i1 - 1] - phi[i1])
+
+
+def bound_mask(st, phi, band: str, energy, region) -> np.ndarray:
+    """True for the states below the band edge at both ends of their region (holes: above Ev)."""
+    sign = _specs()[band][3]
+    energy = np.asarray(energy, dtype=float)
+    out = np.zeros(energy.size, dtype=bool)
+    for k, (e, r) in enumerate(zip(energy, np.asarray(region))):
+        top, bottom = region_edges(st, phi, band, int(r))
+        out[k] = sign * e < sign * top and sign * e < sign * bottom
+    return out
+
+
+def region_states(st, phi, band: str, r_idx: int, n_states: int, workspace=None):
+    """Lowest ``n_states`` states of ``band`` in quantum region ``r_idx`` at potential ``phi``.
+
+    The same discretisation as the loop (selfcon.solver.schrodinger.solve_region on the
+    region's nodes, psi = 0 at both end nodes).  Returns (energy (k,) eV electron scale,
+    psi (N, k) on the full mesh, in-plane mass (k,) m0), lowest kinetic energy first.
+    """
+    from selfcon.solver import schrodinger as quantum
+    edge_key, mass_key, par_key, sign, _ = _specs()[band]
+    i0, i1 = st.regions[r_idx]
+    n = st.n_nodes
+    if i1 - i0 < 3:
+        return np.empty(0), np.zeros((n, 0)), np.empty(0)
+    sl = slice(i0, i1 + 1)
+    edge_node = st.node_average(st.cell[edge_key]) - phi
+    w = st.mesh.w[sl].copy()
+    w[0] = st.mesh.wr[i0]
+    w[-1] = st.mesh.wl[i1]
+    e, p = quantum.solve_region(st.mesh.h[i0:i1], w, sign * edge_node[sl],
+                                1.0 / st.cell[mass_key][i0:i1], n_states, workspace=workspace)
+    full = np.zeros((n, e.size))
+    full[sl, :] = p
+    m_par = quantum.in_plane_mass(full, st.mesh.w, st.node_average(st.cell[par_key]))
+    return sign * e, full, m_par
+
+
+def full_spectrum(st, phi, loop_states: dict, n_states: int | None = None) -> dict[str, BandSpectrum]:
+    """Every band of the loop's BAND_SPECS in every quantum region (see the module docstring).
+
+    ``loop_states``: the loop's ``{band: BandStates}`` at ``phi``; ``n_states``: states per
+    band and region for the pairs the loop did not solve (default ``st.states``).
+    Bands with no state anywhere are left out.
+    """
+    k_extra = int(st.states if n_states is None else n_states)
+    out = {}
+    for band, (_, _, _, sign, gval) in _specs().items():
+        bs = loop_states.get(band)
+        solved = set() if bs is None else {int(r) for r in np.asarray(bs.region)}
+        parts = []          # (energy, psi, m_par, region, populated)
+        if bs is not None and bs.energy.size:
+            parts.append((np.asarray(bs.energy, float), np.asarray(bs.psi, float),
+                          np.asarray(bs.m_par, float), np.asarray(bs.region, np.int64),
+                          np.ones(bs.energy.size, dtype=bool)))
+        for r_idx in range(len(st.regions)):
+            if r_idx in solved:
+                continue
+            e, psi, m_par = region_states(st, phi, band, r_idx, k_extra)
+            if e.size == 0:
+                continue
+            keep = bound_mask(st, phi, band, e, np.full(e.size, r_idx))
+            if not np.any(keep):
+                continue
+            parts.append((e[keep], psi[:, keep], m_par[keep], np.full(int(keep.sum()), r_idx, np.int64),
+                          np.zeros(int(keep.sum()), dtype=bool)))
+        if not parts:
+            continue
+        energy = np.concatenate([p[0] for p in parts])
+        order = np.argsort(sign * energy, kind="stable")
+        energy = energy[order]
+        psi = np.concatenate([p[1] for p in parts], axis=1)[:, order]
+        m_par = np.concatenate([p[2] for p in parts])[order]
+        region = np.concatenate([p[3] for p in parts])[order]
+        populated = np.concatenate([p[4] for p in parts])[order]
+        deg = np.full(energy.size, float(gval))
+        out[band] = BandSpectrum(band=band, energy=energy, psi=psi, m_par=m_par,
+                                 dos=deg * DOS2D_PER_M0 * m_par, region=region, degeneracy=deg,
+                                 sign=sign, populated=populated,
+                                 bound=bound_mask(st, phi, band, energy, region))
+    return out
