@@ -15,13 +15,10 @@ from importlib import metadata
 import numpy as np
 
 from selfcon.constants import CM2_PER_NM2, CM3_PER_NM3, NM_PER_CM
+from selfcon.output import channels as chx
+from selfcon.output.channels import OCCUPIED_CM2, OCCUPIED_FRACTION  # noqa: F401  (the one rule)
 from selfcon.output.result import Result, Subbands
 from selfcon.output.schema import BANDS
-from selfcon.solver.statistics import subband_density
-
-#: an electron subband counts as occupied above this sheet density (cm^-2) and fraction of n_s
-OCCUPIED_CM2 = 1e8
-OCCUPIED_FRACTION = 1e-3
 
 
 def right_cell_values(cell_values: np.ndarray) -> np.ndarray:
@@ -79,6 +76,59 @@ def _versions() -> dict:
     return dict(_package_versions())
 
 
+def solve_channels(deck, st, loop, n, p, n_valleys, ec, ev) -> chx.SolvedChannels:
+    """Every band's states in every quantum region and the channels of a converged loop.
+
+    n, p, n_valleys: node densities (nm^-3); ec, ev: band edges at the nodes (eV)."""
+    qn_e = np.zeros(st.n_nodes, dtype=bool)
+    qn_h = np.zeros(st.n_nodes, dtype=bool)
+    for band, bs in loop.states.items():
+        if band == "electron":
+            qn_e |= bs.quantum_nodes
+        else:
+            qn_h |= bs.quantum_nodes
+    classical_n = np.where(qn_e, n_valleys, n)
+    classical_p = np.where(qn_h, 0.0, p)
+    return chx.from_structure(st, loop.phi, loop.states, n=n * CM3_PER_NM3, p=p * CM3_PER_NM3,
+                              classical_n=classical_n * CM3_PER_NM3, classical_p=classical_p * CM3_PER_NM3,
+                              edges={"electron": ec, "hole": ev}, requests=chx.requests_of(deck, st))
+
+
+def main_channel_summary(an, st, n, p, ec, ev) -> dict:
+    """The /summary figures of the main channel (kept names of earlier versions)."""
+    c = an.main_channel
+    nan = float("nan")
+    if c is None:
+        return {"main_channel": "", "channel_layer": "", "channel_electron_sheet_density_cm2": 0.0,
+                "channel_hole_sheet_density_cm2": 0.0, "ef_minus_ec_channel_eV": nan,
+                "ev_minus_ef_channel_eV": nan, "E1_minus_E0_eV": nan, "E0_minus_EF_eV": nan}
+    sl = slice(c.i0, c.i1 + 1)
+    w = st.mesh.w
+    inside_n = float(np.dot(w[sl], n[sl])) * CM2_PER_NM2
+    inside_p = float(np.dot(w[sl], p[sl])) * CM2_PER_NM2
+    return {
+        "main_channel": c.name,
+        "channel_layer": c.layer,
+        "channel_electron_sheet_density_cm2": c.sheet_density if c.carrier == "electron" else inside_n,
+        "channel_hole_sheet_density_cm2": c.sheet_density if c.carrier == "hole" else inside_p,
+        "ef_minus_ec_channel_eV": float(-np.min(ec[sl])),
+        "ev_minus_ef_channel_eV": float(np.max(ev[sl])),
+        "E1_minus_E0_eV": float(c.spacing),
+        "E0_minus_EF_eV": float(c.ground_energy),
+    }
+
+
+def channel_summary(an) -> dict:
+    """Per-channel /summary figures: ``channel.NAME.<figure>`` for every channel."""
+    out = {}
+    for c in an.channels:
+        out[f"channel.{c.name}.sheet_density_cm2"] = float(c.sheet_density)
+        out[f"channel.{c.name}.E1_minus_E0_eV"] = float(c.spacing)
+        out[f"channel.{c.name}.ground_energy_eV"] = float(c.ground_energy)
+        out[f"channel.{c.name}.occupied_subbands"] = int(c.occupied_subbands)
+    return out
+
+
 def build_result(deck, st, bc, loop, *, wall_time: float, method: str) -> Result:
     from selfcon.solver import charge as coupling
     phi = loop.phi
@@ -99,21 +149,27 @@ def build_result(deck, st, bc, loop, *, wall_time: float, method: str) -> Result
     }
 
     valley_sheets = {}
+    n_valleys = np.zeros(st.n_nodes)
     for name, (edge, dos) in coupling.VALLEYS.items():
         if name in st.carriers:
             nv = valley_density(st, phi, st.cell[edge], st.cell[dos])
+            n_valleys += nv
             profile[name + "_density"] = nv * CM3_PER_NM3
             valley_sheets[name] = float(np.sum(nv * st.mesh.w)) * CM2_PER_NM2
 
+    # every band in every quantum region, and the channels (selfcon.output.channels); the
+    # classical carriers are those at nodes the loop kept classical, plus the X/L valleys
+    solved = solve_channels(deck, st, loop, n, p, n_valleys, ec, ev)
+    an = solved.analysis
     subbands = {}
     for band in BANDS:
-        bs = loop.states.get(band)
+        bs = solved.spectrum.get(band)
         if bs is None:
             continue
-        occ = subband_density(bs.energy, bs.dos, st.temperature, bs.sign)
-        subbands[band] = Subbands(energy=bs.energy.copy(), occupation=occ * CM2_PER_NM2,
+        subbands[band] = Subbands(energy=bs.energy.copy(), occupation=solved.occupation[band].copy(),
                                   wavefunction=bs.psi.copy(), in_plane_mass=bs.m_par.copy(),
-                                  region=bs.region.astype(np.int64), degeneracy=bs.degeneracy.copy())
+                                  region=bs.region.astype(np.int64), degeneracy=bs.degeneracy.copy(),
+                                  channel=an.attribution[band].copy(), bound=bs.bound.copy())
 
     e_layer = per_layer(st, n) * CM2_PER_NM2
     h_layer = per_layer(st, p) * CM2_PER_NM2
@@ -136,22 +192,13 @@ def build_result(deck, st, bc, loop, *, wall_time: float, method: str) -> Result
     w = st.mesh.w
     ns = float(np.sum(n * w)) * CM2_PER_NM2
     ps = float(np.sum(p * w)) * CM2_PER_NM2
-    ch = int(np.argmax(e_layer)) if ns > 0 else int(np.argmax(h_layer))
-    ch_cells = st.cell_layer == ch
-    ch_nodes = np.zeros(st.n_nodes, dtype=bool)
-    ch_nodes[:-1] |= ch_cells
-    ch_nodes[1:] |= ch_cells
     summary = {
         "electron_sheet_density_cm2": ns,
         "hole_sheet_density_cm2": ps,
         "donor_sheet_density_cm2": float(np.sum(ndp * w)) * CM2_PER_NM2,
         "acceptor_sheet_density_cm2": float(np.sum(nam * w)) * CM2_PER_NM2,
         "gauss_residual": float(coupling.gauss_residual(st, bc, phi, loop.states, rho=p - n + ndp - nam)),
-        "channel_layer": st.layers[ch].name,
-        "channel_electron_sheet_density_cm2": float(e_layer[ch]),
-        "channel_hole_sheet_density_cm2": float(h_layer[ch]),
-        "ef_minus_ec_channel_eV": float(-np.min(ec[ch_nodes])),
-        "ev_minus_ef_channel_eV": float(np.max(ev[ch_nodes])),
+        **main_channel_summary(an, st, n, p, ec, ev),
         "converged": bool(loop.converged),
         "iterations": len(loop.iterations),
         "residual_V": float(loop.iterations[-1].residual) if loop.iterations else float("nan"),
@@ -159,23 +206,17 @@ def build_result(deck, st, bc, loop, *, wall_time: float, method: str) -> Result
         "nodes": int(st.n_nodes),
         "wall_time_s": float(wall_time),
     }
+    rows = [dict(c.as_row(), main=(j == an.main)) for j, c in enumerate(an.channels)]
     for band in BANDS:
         sb = subbands.get(band)
-        tot = float(sb.occupation.sum()) if sb is not None else 0.0
         for k in range(3):
             summary[f"{band}_E{k}_eV"] = float(sb.energy[k]) if sb is not None and sb.energy.size > k else float("nan")
-        if sb is not None:
-            occd = (sb.occupation > OCCUPIED_CM2) & (sb.occupation > OCCUPIED_FRACTION * max(tot, 1e-300))
-            summary[f"{band}_occupied_subbands"] = int(np.sum(occd))
-        else:
-            summary[f"{band}_occupied_subbands"] = 0
+        summary[f"{band}_occupied_subbands"] = (int(np.sum(chx.occupied_states(band, subbands, rows)))
+                                                if sb is not None else 0)
     for name in coupling.VALLEYS:
         if name in valley_sheets:
             summary[f"{name}_sheet_density_cm2"] = valley_sheets[name]
-    e = subbands.get("electron")
-    summary["E1_minus_E0_eV"] = (float(e.energy[1] - e.energy[0]) if e is not None and e.energy.size > 1
-                                 else float("nan"))
-    summary["E0_minus_EF_eV"] = float(e.energy[0]) if e is not None and e.energy.size else float("nan")
+    summary.update(channel_summary(an))
 
     record = {
         "residual": np.array([h.residual for h in loop.iterations]),
@@ -196,7 +237,8 @@ def build_result(deck, st, bc, loop, *, wall_time: float, method: str) -> Result
         deck_text=text, z=st.z.copy(), profile=profile, layer_index=st.layer_index.astype(np.int64),
         layers=layers, subbands=subbands, residual_history=record["residual"].copy(),
         summary=summary, warnings=[], provenance=provenance, record=record,
-        regions_nm=[tuple(map(float, r)) for r in st.regions_nm])
+        regions_nm=[tuple(map(float, r)) for r in st.regions_nm], channels=rows,
+        transitions=solved.transitions)
     try:
         from selfcon.output.diagnostics import design_warnings
     except ImportError:

@@ -90,10 +90,9 @@ def _allowed_span(z, edge, energy, sign, region):
     return float(zz.min()), float(zz.max())
 
 
-def _states_to_draw(sb):
-    from selfcon.output.assemble import OCCUPIED_CM2, OCCUPIED_FRACTION     # the /summary rule for "occupied"
-    occ = np.asarray(sb.occupation)
-    n_occ = int(np.sum((occ > OCCUPIED_CM2) & (occ > OCCUPIED_FRACTION * max(float(occ.sum()), 1e-300))))
+def _states_to_draw(sb, band, result):
+    from selfcon.output.channels import occupied_states     # the one rule for "occupied"
+    n_occ = int(np.sum(occupied_states(band, result.subbands, result.channels)))
     count = min(np.asarray(sb.energy).size, n_occ + EMPTY_STATES_DRAWN, MAX_STATES_DRAWN)
     return list(range(count)), n_occ
 
@@ -151,7 +150,7 @@ def _draw_states(ax, result, z, ec, ev, span, regions, fs, labels=False, only=No
     for band, sb in result.subbands.items():
         if only is not None and band != only:
             continue
-        idx, n_occ = _states_to_draw(sb)
+        idx, n_occ = _states_to_draw(sb, band, result)
         if not idx:
             continue
         sign = +1 if band == "electron" else -1

@@ -14,9 +14,8 @@ from typing import Any
 
 import numpy as np
 
-# a subband counts as occupied above OCCUPIED_CM2 (cm^-2) and OCCUPIED_FRACTION of its band's total:
-# the same rule as the /summary counts written by selfcon.output.assemble
-from selfcon.output.assemble import OCCUPIED_CM2, OCCUPIED_FRACTION  # noqa: E402
+# "occupied": the one rule of selfcon.output.channels (>= 1 % of its channel and >= 1e8 cm^-2)
+from selfcon.output.channels import OCCUPIED_CM2, occupied_states  # noqa: E402
 
 BAND_LABELS = {"electron": "electron", "heavy_hole": "heavy hole", "light_hole": "light hole"}
 
@@ -88,13 +87,15 @@ def subband_rows(result) -> list[dict]:
     """Every bound state: band, index (0 = lowest), energy relative to EF (meV), population (cm^-2)."""
     rows = []
     for band, sb in result.subbands.items():
-        total = float(np.sum(sb.occupation))
+        occupied = occupied_states(band, result.subbands, result.channels)
+        names = [str(c.get("name", "")) for c in result.channels]
         for k in range(np.asarray(sb.energy).size):
-            occ = float(sb.occupation[k])
-            occupied = occ > OCCUPIED_CM2 and occ > OCCUPIED_FRACTION * max(total, 1e-300)
+            ch = int(sb.channel[k])
             rows.append({"band": band, "index": k, "energy_meV": float(sb.energy[k]) * 1e3,
-                         "occupation_cm2": occ, "in_plane_mass_m0": float(sb.in_plane_mass[k]),
-                         "region": int(sb.region[k]), "occupied": bool(occupied)})
+                         "occupation_cm2": float(sb.occupation[k]),
+                         "in_plane_mass_m0": float(sb.in_plane_mass[k]), "region": int(sb.region[k]),
+                         "channel": names[ch] if 0 <= ch < len(names) else None,
+                         "bound": bool(sb.bound[k]), "occupied": bool(occupied[k])})
     return rows
 
 

@@ -16,7 +16,9 @@ Layout (README.md, "Result file (HDF5)"; + marks additions to the first layout):
     /profile/<field>        (N,)   every key of Result.profile, plus layer_index
     /layers                 compound table, one row per layer
     /subbands/<band>/energy, occupation, in_plane_mass (k,), wavefunction (N, k),
-                     + region, degeneracy (k,)
+                     + region, degeneracy, channel, bound (k,)
+    /channels/<field> +     (C,) one entry per channel (schema.CHANNEL_FIELDS)
+    /transitions/<field> +  (T,) every e_n - hh_m / e_n - lh_m pair (schema.TRANSITION_FIELDS)
     /convergence/residual   (iterations,)
     /convergence/<name> +   per-iteration record (charge_residual, newton_steps, seconds, damping, ...)
     /summary                attrs: Result.summary, with warnings (array of strings) = Result.warnings;
@@ -36,9 +38,10 @@ from pathlib import Path
 import numpy as np
 
 from selfcon.errors import ResultFileError
-from selfcon.output.schema import (EXTRA_PROFILE_FIELDS, LAYER_DESCRIPTIONS, LAYER_UNITS,
-                                   PROFILE_FIELDS, RECORD_FIELDS, ROOT_ATTRS, SCHEMA,
-                                   SCHEMA_VERSION, SUBBAND_FIELDS, guess_units as _guess_units)
+from selfcon.output.schema import (CHANNEL_FIELDS, EXTRA_PROFILE_FIELDS, LAYER_DESCRIPTIONS,
+                                   LAYER_UNITS, PROFILE_FIELDS, RECORD_FIELDS, ROOT_ATTRS, SCHEMA,
+                                   SCHEMA_VERSION, SUBBAND_FIELDS, TRANSITION_FIELDS,
+                                   guess_units as _guess_units)
 from dataclasses import dataclass, field
 from typing import Any
 
@@ -53,6 +56,15 @@ class Subbands:
     in_plane_mass: np.ndarray   # (k,) m0
     region: np.ndarray          # (k,) int, index of the quantum region holding the state
     degeneracy: np.ndarray      # (k,) valley degeneracy used for the occupation (spin excluded)
+    channel: np.ndarray = None  # (k,) int, index into Result.channels, -1 for none
+    bound: np.ndarray = None    # (k,) bool, below the band edge at both region ends
+
+    def __post_init__(self):
+        k = np.asarray(self.energy).size
+        if self.channel is None:
+            self.channel = np.full(k, -1, dtype=np.int64)
+        if self.bound is None:
+            self.bound = np.ones(k, dtype=bool)
 
 
 @dataclass
@@ -79,6 +91,17 @@ class Result:
     record: dict[str, np.ndarray] = field(default_factory=dict)   # per-iteration: residual, charge_residual,
                                                                    # newton_steps, seconds, damping
     regions_nm: list[tuple[float, float]] = field(default_factory=list)
+    channels: list[dict[str, Any]] = field(default_factory=list)   # rows of /channels, top first
+    transitions: dict[str, np.ndarray] = field(default_factory=dict)  # /transitions columns
+
+    @property
+    def main_channel(self) -> dict | None:
+        """The row of the main channel in :attr:`channels` (None without channels)."""
+        return next((c for c in self.channels if c.get("main")), None)
+
+    def channel(self, name: str) -> dict | None:
+        """The row of the channel called ``name`` (None if there is none)."""
+        return next((c for c in self.channels if c.get("name") == name), None)
 
     # SciPy-style status fields
     @property
@@ -251,7 +274,39 @@ def _write_subbands(f, result: Result) -> None:
     for band, sb in result.subbands.items():
         gb = g.create_group(band, track_order=True)
         for name, (units, desc) in SUBBAND_FIELDS.items():
-            _dataset(gb, name, getattr(sb, name), units, desc)
+            value = getattr(sb, name)
+            if name == "bound":
+                value = np.asarray(value, dtype=np.int8)
+            _dataset(gb, name, value, units, desc)
+
+
+def _column(name, values):
+    """A /channels or /transitions column as an HDF5-ready array (strings as UTF-8)."""
+    if name in ("name", "carrier", "layer", "hole_band"):
+        h5py = _h5py()
+        data = [str(v).encode("utf-8") for v in values]
+        length = max([len(b) for b in data] + [1])       # fixed length: byte-identical rewrites
+        return np.array(data, dtype=h5py.string_dtype("utf-8", length))
+    if name in ("occupied_subbands", "main", "named", "electron_state", "hole_state"):
+        return np.asarray([int(v) for v in values], dtype=np.int64)
+    return np.asarray(values, dtype=np.float64)
+
+
+def _write_channels(f, result: Result) -> None:
+    g = f.create_group("channels", track_order=True)
+    g.attrs["description"] = ("channels: depth intervals where one carrier kind is confined, one entry "
+                              "per channel along the 'channel' dimension, top first")
+    for name, (units, desc) in CHANNEL_FIELDS.items():
+        _dataset(g, name, _column(name, [row.get(name) for row in result.channels]), units, desc)
+
+
+def _write_transitions(f, result: Result) -> None:
+    g = f.create_group("transitions", track_order=True)
+    g.attrs["description"] = ("interband transitions: every electron - heavy-hole and electron - "
+                              "light-hole pair of the stored states, along the 'transition' dimension")
+    t = result.transitions or {}
+    for name, (units, desc) in TRANSITION_FIELDS.items():
+        _dataset(g, name, _column(name, t.get(name, [])), units, desc)
 
 
 def _write_convergence(f, result: Result) -> None:
@@ -282,7 +337,7 @@ def _write_summary(f, result: Result) -> None:
 
 
 _WRITERS = (_write_root, _write_mesh, _write_profile, _write_layers, _write_subbands,
-            _write_convergence, _write_summary)
+            _write_channels, _write_transitions, _write_convergence, _write_summary)
 
 
 def _write_file(path: str, result: Result) -> None:
@@ -437,7 +492,32 @@ def load_result(path) -> Result:
             layers.append(rec)
         subbands = {}
         for band, gb in _need(f, "subbands", path).items():
-            subbands[band] = Subbands(**{name: gb[name][()] for name in SUBBAND_FIELDS})
+            fields = {name: gb[name][()] for name in SUBBAND_FIELDS if name in gb}   # older files: fewer
+            if "bound" in fields:
+                fields["bound"] = fields["bound"].astype(bool)
+            subbands[band] = Subbands(**fields)
+        channels = []
+        if "channels" in f:
+            gch = f["channels"]
+            cols = {name: gch[name][()] for name in CHANNEL_FIELDS if name in gch}
+            m = len(next(iter(cols.values()))) if cols else 0
+            for i in range(m):
+                row = {}
+                for name, values in cols.items():
+                    v = values[i]
+                    row[name] = v.decode("utf-8") if isinstance(v, bytes) else _py(v)
+                for flag in ("main", "named"):
+                    if flag in row:
+                        row[flag] = bool(row[flag])
+                channels.append(row)
+        transitions = {}
+        if "transitions" in f:
+            gt = f["transitions"]
+            for name in TRANSITION_FIELDS:
+                if name in gt:
+                    v = gt[name][()]
+                    transitions[name] = (np.array([x.decode("utf-8") if isinstance(x, bytes) else str(x)
+                                                   for x in v], dtype=object) if name == "hole_band" else v)
         gc = _need(f, "convergence", path)
         history = gc["residual"][()]
         record = {}
@@ -455,4 +535,5 @@ def load_result(path) -> Result:
             subbands=subbands, residual_history=history, summary=summary, warnings=warnings,
             provenance=provenance, record=record,
             regions_nm=[(float(t), float(b)) for t, b in np.asarray(regions).reshape(-1, 2)],
+            channels=channels, transitions=transitions,
         )

@@ -19,6 +19,44 @@ SUBBAND_FIELDS = {
     "in_plane_mass": ("m0", "in-plane effective mass used for the 2D density of states"),
     "region": ("1", "index of the quantum region (/mesh/quantum_regions) holding the state"),
     "degeneracy": ("1", "valley degeneracy used for the occupation (spin excluded)"),
+    "channel": ("1", "index into /channels of the channel holding most of the state's |psi|^2 "
+                     "(more than half of it), -1 for none"),
+    "bound": ("1", "1 if the energy lies below the band edge at both ends of the quantum region "
+                   "(holes: above it), 0 for a state of the region's box above a barrier"),
+}
+
+#: /channels datasets, 1-D over the ``channel`` dimension (one entry per channel, top first):
+#: name -> (units, description)
+CHANNEL_FIELDS = {
+    "name": ("1", "channel name: a [[channel]] of the deck, the layer holding it, or "
+                  "electron<N> / hole<N> numbered from the surface"),
+    "carrier": ("1", "carrier confined in the channel: electron or hole"),
+    "top_nm": ("nm", "depth of the top of the channel's interval"),
+    "bottom_nm": ("nm", "depth of the bottom of the channel's interval"),
+    "sheet_density": ("cm-2", "population of its subbands (tails included) plus the classical "
+                              "carriers inside its interval"),
+    "ground_energy": ("eV", "E0 minus the carrier's Fermi level, in the carrier's own sense: "
+                            "positive when the ground subband lies on the empty side"),
+    "spacing": ("eV", "E1 - E0 of the channel's own subbands (positive), NaN with one state"),
+    "occupied_subbands": ("1", "subbands holding at least 1 % of the channel's sheet density "
+                               "and at least 1e8 cm-2"),
+    "centroid_nm": ("nm", "mean depth of the channel's carriers"),
+    "in_plane_mass": ("m0", "in-plane effective mass of the channel's ground subband"),
+    "layer": ("1", "the layer holding most of the channel's carriers"),
+    "named": ("1", "1 for a channel named in a [[channel]] table of the deck, 0 for an "
+                   "auto-detected one"),
+    "main": ("1", "1 for the main channel (the first [[channel]] of the deck, else the one "
+                  "with most carriers of the majority kind), 0 otherwise"),
+}
+
+#: /transitions datasets, 1-D over the ``transition`` dimension: every e_n - hh_m and
+#: e_n - lh_m pair of the stored states: name -> (units, description)
+TRANSITION_FIELDS = {
+    "electron_state": ("1", "index of the electron state in /subbands/electron"),
+    "hole_band": ("1", "band of the hole state: heavy_hole or light_hole"),
+    "hole_state": ("1", "index of the hole state in /subbands/<hole_band>"),
+    "energy": ("eV", "transition energy E_e - E_h"),
+    "overlap": ("1", "envelope overlap |<psi_e|psi_h>|^2"),
 }
 
 #: per-iteration record datasets under /convergence: name -> (units, description)
