@@ -351,12 +351,13 @@ def test_dumps_toml_round_trips_awkward_values():
 
 # --- [[channel]] tables ---------------------------------------------------------
 
-def _with_channels(text):
-    return load_deck(GOOD_DECK + "\n" + text)
+@pytest.fixture
+def with_channels(good_deck_text):
+    return lambda text: load_deck(good_deck_text + "\n" + text)
 
 
-def test_channel_tables_names_indices_and_ranges():
-    d = _with_channels('[[channel]]\nname = "2deg"\ncarrier = "electron"\nlayers = ["channel"]\n'
+def test_channel_tables_names_indices_and_ranges(good_deck_text, with_channels):
+    d = with_channels('[[channel]]\nname = "2deg"\ncarrier = "electron"\nlayers = ["channel"]\n'
                        '[[channel]]\nname = "upper"\ncarrier = "hole"\nlayers = ["0:1"]\n'
                        '[[channel]]\nname = "cap_e"\ncarrier = "electron"\nlayers = [0]\n')
     assert [(c.name, c.carrier, c.layers) for c in d.channels] == [
@@ -365,7 +366,7 @@ def test_channel_tables_names_indices_and_ranges():
     assert d.channels[0].line == 29
     again = load_deck(d.to_toml())                  # canonical text keeps them (by layer name)
     assert again.channels == d.channels
-    assert load_deck(GOOD_DECK).channels == ()
+    assert load_deck(good_deck_text).channels == ()
 
 
 @pytest.mark.parametrize("body, key, words", [
@@ -380,25 +381,25 @@ def test_channel_tables_names_indices_and_ranges():
     ('name = "a b"\ncarrier = "hole"\nlayers = [1]', "channel[0].name", "letters, digits"),
     ('name = "a"\ncarrier = "hole"\nlayer = [1]', "channel[0].layer", "did you mean 'layers'"),
 ])
-def test_bad_channel_tables(body, key, words):
+def test_bad_channel_tables(body, key, words, with_channels):
     with pytest.raises(DeckError) as e:
-        _with_channels("[[channel]]\n" + body + "\n")
+        with_channels("[[channel]]\n" + body + "\n")
     assert e.value.key == key and words in str(e.value)
     assert e.value.line is not None                  # located in the deck file
 
 
-def test_channels_of_one_carrier_may_not_share_a_layer():
+def test_channels_of_one_carrier_may_not_share_a_layer(with_channels):
     with pytest.raises(DeckError, match="overlaps channel 'a'"):
-        _with_channels('[[channel]]\nname = "a"\ncarrier = "electron"\nlayers = ["1:2"]\n'
+        with_channels('[[channel]]\nname = "a"\ncarrier = "electron"\nlayers = ["1:2"]\n'
                        '[[channel]]\nname = "b"\ncarrier = "electron"\nlayers = ["channel"]\n')
-    d = _with_channels('[[channel]]\nname = "a"\ncarrier = "electron"\nlayers = ["1:2"]\n'
+    d = with_channels('[[channel]]\nname = "a"\ncarrier = "electron"\nlayers = ["1:2"]\n'
                        '[[channel]]\nname = "b"\ncarrier = "hole"\nlayers = ["channel"]\n')
     assert len(d.channels) == 2                      # another carrier may
     with pytest.raises(DeckError, match="duplicate channel name"):
-        _with_channels('[[channel]]\nname = "a"\ncarrier = "electron"\nlayers = [1]\n'
+        with_channels('[[channel]]\nname = "a"\ncarrier = "electron"\nlayers = [1]\n'
                        '[[channel]]\nname = "a"\ncarrier = "hole"\nlayers = [2]\n')
 
 
-def test_channel_tables_are_not_overridden():
+def test_channel_tables_are_not_overridden(good_deck_text):
     with pytest.raises(DeckError, match="cannot be set by an override"):
-        load_deck(GOOD_DECK, ["channel.a.layers=[1]"])
+        load_deck(good_deck_text, ["channel.a.layers=[1]"])

@@ -11,7 +11,7 @@ from dataclasses import dataclass, field, replace
 
 import numpy as np
 
-from selfcon.constants import KB_EV, Q_EPS0, NM_PER_CM
+from selfcon.constants import CM2_PER_NM2, KB_EV, Q_EPS0, NM_PER_CM
 from selfcon.solver.kernels.bundles import Boundaries, Grid, Material, NewtonOptions, Quantum
 
 DIRICHLET = 0
@@ -291,17 +291,23 @@ def boundary_field(problem, phi):
     return -d0 / problem.eps[0] * NM_PER_CM, -dl / problem.eps[-1] * NM_PER_CM
 
 
+#: charge (cm^-2) below which the Gauss check compares with a fixed scale (see gauss_residual)
+GAUSS_FLOOR_CM2 = 1e6
+
+
 def gauss_residual(problem, phi, rho=None):
     """Relative violation of Gauss's law with the FV boundary fluxes.
 
     With E = -dphi/dz, d(eps E)/dz = Q_EPS0 rho, so
         eps E|_bottom - eps E|_top = Q_EPS0 * int rho dz      (sheets included).
-    Returns |lhs - rhs| / max(|eps E_top|, |eps E_bottom|, |rhs|, tiny).
+    Returns |lhs - rhs| / max(|eps E_top|, |eps E_bottom|, |rhs|, floor), the floor being the
+    flux of GAUSS_FLOOR_CM2 of charge: in an uncharged stack (an undoped well between
+    neutral contacts) the fluxes are round-off of phi, and their ratio would measure nothing.
     ``rho``: the node charge at ``phi`` if the caller has it already."""
     if rho is None:
         rho = densities(problem, phi).rho
     d0, dl = boundary_flux(problem, phi, rho)
     lhs = (-dl) - (-d0)
     rhs = Q_EPS0 * float(np.sum(rho * problem.w))
-    scale = max(abs(d0), abs(dl), abs(rhs), 1e-300)
+    scale = max(abs(d0), abs(dl), abs(rhs), Q_EPS0 * GAUSS_FLOOR_CM2 / CM2_PER_NM2)
     return abs(lhs - rhs) / scale
