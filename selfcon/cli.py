@@ -3,7 +3,7 @@
     selfcon run DECK [-o OUT.h5] [--set PATH=VALUE]... [--plot FIG] [--json] [--quiet] [--force]
     selfcon check DECK [--set PATH=VALUE]... [--json]
     selfcon show RESULT.h5 [--json]
-    selfcon plot RESULT.h5 -o FIG [--size WxH | --width-px W --height-px H] [--depth A:B|full]
+    selfcon plot RESULT.h5 -o FIG [--size WxH | --width-px W --height-px H] [--depth A:B|full] [--force]
     selfcon export RESULT.h5 --csv DIR [--force]
     selfcon materials [NAME] [--x X] [--temperature T] [--json]
 
@@ -138,19 +138,23 @@ def _progress_mode(args) -> str:
 
 # --------------------------------------------------------------------------- commands
 
+def _default_result_path(deck_path: Path) -> Path:
+    return deck_path.with_suffix(".h5")
+
+
 def cmd_run(args) -> int:
     from selfcon import api
     from selfcon.output import report
+    from selfcon.output.files import check_outputs, output
     deck_path = Path(args.deck)
     _require_file(deck_path, "deck file")
+    out = Path(args.output) if args.output else _default_result_path(deck_path)
+    # every output is checked before the solve: nothing existing is replaced unasked
+    check_outputs([output(args.output if args.output else out, "result", "-o" if args.output else
+                          "-o (default: beside the deck)"),
+                   output(args.plot, "figure", "--plot") if args.plot else None],
+                  inputs=[(deck_path, "the deck")], force=args.force, error=ResultFileError)
     deck = api.load_deck(deck_path, overrides=tuple(args.set or ()))
-    out = Path(args.output) if args.output else deck_path.with_suffix(".h5")
-    if out.exists() and not args.force:
-        raise ResultFileError("output file exists; pass --force to overwrite it", file=str(out))
-    if not (out.parent if str(out.parent) else Path(".")).is_dir():
-        raise ResultFileError("output folder does not exist", file=str(out))
-    if args.plot:
-        _check_plot_path(Path(args.plot))
     spec = getattr(deck, "solver", None)
     with Progress(_progress_mode(args), tolerance=getattr(spec, "tolerance", None),
                   max_iterations=getattr(spec, "max_iterations", None)) as progress:
@@ -158,7 +162,7 @@ def cmd_run(args) -> int:
     result.save(out, force=args.force)
     if args.plot:
         from selfcon.output.plot import plot_result
-        plot_result(result, args.plot)
+        plot_result(result, args.plot, force=args.force)
     fig = report.summary_figures(result, output=str(out))
     if args.plot:
         fig["plot"] = str(args.plot)
@@ -316,32 +320,28 @@ def _parse_depth(text):
     return (a, b)
 
 
-def _check_plot_path(path: Path):
-    if path.suffix.lower() not in PLOT_FORMATS:
-        raise SelfconInputError(f"unknown figure format {path.suffix or '(none)'!r}", file=str(path),
-                                allowed=", ".join(PLOT_FORMATS))
-    parent = path.parent if str(path.parent) else Path(".")
-    if not parent.is_dir():
-        raise SelfconInputError("figure folder does not exist", file=str(path))
-
-
 def cmd_plot(args) -> int:
+    from selfcon.output.files import check_outputs, output
     from selfcon.output.plot import plot_result
     from selfcon.output.result import load_result
     out = Path(args.output)
-    _check_plot_path(out)
+    check_outputs([output(args.output, "figure", "-o")], inputs=[(args.result, "the result file")],
+                  force=args.force)
     size = _parse_size(args)
     depth = _parse_depth(args.depth)
     result = load_result(args.result)
-    plot_result(result, out, size=size, depth=depth)
+    plot_result(result, out, size=size, depth=depth, force=args.force)
     if not args.quiet:
         print(f"band diagram written to {out}")
     return EXIT_OK
 
 
 def cmd_export(args) -> int:
-    from selfcon.output.export import export_csv
+    from selfcon.output.export import PROFILE_CSV, SUBBANDS_CSV, export_csv
+    from selfcon.output.files import check_outputs, output
     from selfcon.output.result import load_result
+    check_outputs([output(args.csv, "folder", "--csv", files=(PROFILE_CSV, SUBBANDS_CSV))],
+                  inputs=[(args.result, "the result file")], force=args.force)
     result = load_result(args.result)
     paths = export_csv(result, args.csv, force=args.force)
     for p in paths:
@@ -417,7 +417,8 @@ def build_parser() -> argparse.ArgumentParser:
     r.add_argument("--plot", metavar="FIG", help="also draw the band diagram (.png, .svg or .pdf)")
     r.add_argument("--json", action="store_true", help="print the summary as one JSON object and nothing else")
     r.add_argument("--quiet", action="store_true", help="no progress display; a few plain summary lines")
-    r.add_argument("--force", action="store_true", help="overwrite an existing result file")
+    r.add_argument("--force", action="store_true",
+                   help="overwrite an existing result file and figure (never the deck itself)")
     r.set_defaults(func=cmd_run)
 
     c = sub.add_parser("check", help="validate a deck and show the stack and mesh without solving")
@@ -441,6 +442,7 @@ def build_parser() -> argparse.ArgumentParser:
                     help="depth range in nm, or 'full' (default: the whole stack, or up to a little below "
                          "the quantum regions when a thick classical substrate layer would crowd them)")
     pl.add_argument("--quiet", action="store_true", help="print nothing")
+    pl.add_argument("--force", action="store_true", help="overwrite an existing figure")
     pl.set_defaults(func=cmd_plot)
 
     e = sub.add_parser("export", help="write a result's profiles and subbands as CSV tables")

@@ -10,6 +10,7 @@ import numpy as np
 import pytest
 
 from selfcon.output import result as results
+from selfcon.output import files
 from selfcon.errors import ResultFileError
 
 
@@ -119,9 +120,9 @@ def test_crash_mid_write_leaves_nothing_behind(make_result, tmp_path, monkeypatc
         writers = tuple(_boom if w is results._write_subbands else w for w in results._WRITERS)
         monkeypatch.setattr(results, "_WRITERS", writers)
     elif where == "fsync":
-        monkeypatch.setattr(results, "_fsync", _boom)
+        monkeypatch.setattr(files, "_fsync", _boom)       # the one atomic writer
     else:
-        monkeypatch.setattr(results.os, "replace", _boom)
+        monkeypatch.setattr(files.os, "replace", _boom)
     for target in (out, fresh):
         with pytest.raises(RuntimeError, match="simulated crash"):
             results.save_result(make_result(converged=False), target, force=True)

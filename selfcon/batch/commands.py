@@ -9,16 +9,23 @@ from selfcon.errors import StudyError
 
 BATCH_HELP = """Run a study (a base deck plus variations) as queued jobs; rerunning resumes.
 
+The output folder (--out) must be new, empty, or the folder of this same study (the study
+file and base deck recorded in its queue): nothing else is ever written into.
+
 Exit codes: 0 every job done, 3 some jobs not converged or failed, 130 interrupted (rerun to
-continue), 2 bad study or deck, 1 internal error."""
+continue), 2 bad study, deck or output folder, 4 the environment failed (disk full,
+permissions, corrupt queue.sqlite, scheduler), 1 internal error."""
 
 
 def register(subparsers):
+    import argparse
     b = subparsers.add_parser("batch", help="run a study of many decks (resumable job queue)",
-                              description=BATCH_HELP)
+                              description=BATCH_HELP, formatter_class=argparse.RawDescriptionHelpFormatter)
     b.add_argument("study", help="study file (TOML)")
     b.add_argument("--workers", "-j", type=int, default=None, help="worker processes (default: CPU count)")
-    b.add_argument("--out", "-o", default=None, help="output folder (default: beside the study, named after it)")
+    b.add_argument("--out", "-o", default=None,
+                   help="output folder: new, empty, or this study's earlier one (default: beside the study, "
+                        "named after it)")
     b.add_argument("--scheduler", default=None,
                    help="Dask: 'local' starts a LocalCluster on 127.0.0.1, or tcp://HOST:PORT of a running one")
     b.add_argument("--retries", type=int, default=2,

@@ -20,7 +20,7 @@ import time
 from contextlib import contextmanager
 from pathlib import Path
 
-from selfcon.errors import StudyError
+from selfcon.errors import SelfconEnvironmentError, StudyError
 
 SCHEMA_VERSION = 1
 STATUSES = ("queued", "running", "done", "not_converged", "failed", "retired")
@@ -60,20 +60,104 @@ def db_path(out_dir) -> Path:
 
 
 def connect(out_dir, *, readonly=False) -> sqlite3.Connection:
+    """Open (``readonly=False``: create) the queue of ``out_dir``.  A damaged database or one
+    the system will not let us use is a SelfconEnvironmentError (exit 4, see queue_failure)."""
     path = db_path(out_dir)
-    if readonly:
-        if not path.is_file():
-            raise StudyError("no queue here (queue.sqlite missing)", file=str(out_dir))
-        con = sqlite3.connect(f"file:{path}?mode=ro", uri=True, timeout=30)
-    else:
-        Path(out_dir).mkdir(parents=True, exist_ok=True)
-        con = sqlite3.connect(path, timeout=30, isolation_level=None)   # autocommit; explicit BEGINs
-        con.execute("PRAGMA journal_mode=WAL")
-        con.execute("PRAGMA synchronous=NORMAL")
-        con.executescript(_SCHEMA)
-        con.execute("INSERT OR IGNORE INTO meta VALUES ('schema_version', ?)", (str(SCHEMA_VERSION),))
+    con = None
+    try:
+        if readonly:
+            if not path.is_file():
+                raise StudyError("no queue here (queue.sqlite missing)", file=str(out_dir))
+            # with no write-ahead log left (no coordinator running, none killed) the file is read
+            # as immutable, so looking creates no -wal/-shm files in the folder
+            wal = path.with_name(path.name + "-wal")
+            mode = "ro" if wal.exists() else "ro&immutable=1"
+            from urllib.request import pathname2url
+            con = sqlite3.connect(f"file:{pathname2url(str(path))}?mode={mode}", uri=True, timeout=30)
+            con.execute("SELECT COUNT(*) FROM jobs").fetchone()       # a damaged file fails here
+        else:
+            Path(out_dir).mkdir(parents=True, exist_ok=True)
+            con = sqlite3.connect(path, timeout=30, isolation_level=None)   # autocommit; explicit BEGINs
+            con.execute("PRAGMA journal_mode=WAL")
+            con.execute("PRAGMA synchronous=NORMAL")
+            con.executescript(_SCHEMA)
+            con.execute("INSERT OR IGNORE INTO meta VALUES ('schema_version', ?)", (str(SCHEMA_VERSION),))
+    except (sqlite3.DatabaseError, OSError) as exc:
+        if con is not None:
+            con.close()
+        raise queue_failure(out_dir, exc) from None
     con.row_factory = sqlite3.Row
     return con
+
+
+#: files a study folder holds besides jobs/ and the tables; a folder holding only these is "ours"
+QUEUE_FILES = ("queue.sqlite", "queue.sqlite-wal", "queue.sqlite-shm", "coordinator.lock")
+
+
+def is_environment_failure(exc) -> bool:
+    """True for SQLite errors that are the database file's or the system's fault (not a bug in
+    the SQL): damaged file, disk full, read-only, I/O error, locked."""
+    return isinstance(exc, (sqlite3.DatabaseError, OSError)) and not isinstance(
+        exc, (sqlite3.IntegrityError, sqlite3.ProgrammingError, sqlite3.InterfaceError))
+
+
+def queue_failure(out_dir, exc) -> SelfconEnvironmentError:
+    """The SelfconEnvironmentError (exit 4) for a queue database that failed: what, where,
+    and for a damaged file how to recover."""
+    path = db_path(out_dir)
+    if isinstance(exc, OSError):
+        return SelfconEnvironmentError.from_os_error(exc, "cannot use the job queue", path)
+    text = " ".join(str(exc).split()) or type(exc).__name__
+    damaged = not isinstance(exc, sqlite3.OperationalError) or any(
+        w in text.lower() for w in ("malformed", "not a database", "corrupt"))
+    if damaged:
+        return SelfconEnvironmentError(
+            "corrupt job queue", path=path, reason=text,
+            hint=f"to recover, move the folder {out_dir} aside (its jobs/*.h5 stay readable with "
+                 "`selfcon show`) and rerun `selfcon batch` on the study: every job runs again")
+    return SelfconEnvironmentError("cannot use the job queue", path=path, reason=text)
+
+
+def check_out_folder(out_dir, study_file, base_deck, *, option="--out") -> None:
+    """A study's output folder must be new, empty, or hold this study's own queue.
+
+    The identity of a queue is the study file's path and its base deck's path (both
+    resolved), stored in its meta table.  Anything else is refused (StudyError, exit 2)
+    naming what is there; nothing in the folder is touched.  A queue from before the base
+    deck was recorded matches on the study file alone."""
+    out_dir = Path(out_dir)
+    if not out_dir.exists():
+        if out_dir.is_symlink():
+            raise StudyError("is a dangling link; give a new or empty folder", file=str(out_dir), key=option)
+        return
+    if not out_dir.is_dir():
+        raise StudyError("is a file, not a folder; give a new or empty folder", file=str(out_dir), key=option)
+    try:
+        entries = sorted(os.listdir(out_dir))
+    except OSError as exc:
+        raise SelfconEnvironmentError.from_os_error(exc, "cannot list folder", out_dir) from None
+    if not [e for e in entries if e not in ("coordinator.lock",)]:
+        return
+    if "queue.sqlite" not in entries:
+        shown = ", ".join(e + ("/" if (out_dir / e).is_dir() else "") for e in entries[:6])
+        more = f" and {len(entries) - 6} more" if len(entries) > 6 else ""
+        raise StudyError(f"folder is not empty and holds no study queue (it has {shown}{more}); "
+                         "give a new or empty folder, or the folder of this study's earlier run",
+                         file=str(out_dir), key=option)
+    con = connect(out_dir, readonly=True)
+    try:
+        have_study = get_meta(con, "study_file")
+        have_deck = get_meta(con, "base_deck")
+    except sqlite3.DatabaseError as exc:
+        raise queue_failure(out_dir, exc) from None
+    finally:
+        con.close()
+    want_study, want_deck = str(Path(study_file).resolve()), str(Path(base_deck).resolve())
+    if have_study == want_study and have_deck in (None, want_deck):
+        return
+    theirs = f"study {have_study!r}" + (f" with base deck {have_deck!r}" if have_deck else "")
+    raise StudyError(f"holds the queue of another study ({theirs}), not of {want_study!r} with base deck "
+                     f"{want_deck!r}; give a new or empty folder", file=str(out_dir), key=option)
 
 
 @contextmanager

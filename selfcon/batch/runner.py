@@ -15,6 +15,7 @@ import json
 import math
 import os
 import signal
+import sqlite3
 import sys
 from pathlib import Path
 
@@ -22,6 +23,7 @@ from selfcon.batch import queue as q
 from selfcon.batch.executors import DIED, make_executor
 from selfcon.batch.study import default_out_dir, expand, load_study
 from selfcon.batch.worker import resolve
+from selfcon.errors import SelfconEnvironmentError
 
 DEFAULT_JOB = "selfcon.batch.worker:run_job"
 #: test/benchmark seam: the job function, as "module:function"
@@ -185,6 +187,7 @@ class Coordinator:
         self.along = None             # the continuation axis (a deck path), set by run()
         self.suspects = set()         # jobs in flight when a worker died
         self.interrupted = False
+        self.fatal = None             # a SelfconEnvironmentError that stops the run (disk full, ...)
         self.writer = cf.ThreadPoolExecutor(max_workers=2, thread_name_prefix="selfcon-write")
         self.pending = {}             # write future -> (job id, path, result, outcome, warm, varied)
 
@@ -267,6 +270,15 @@ class Coordinator:
     def _finalize(self, con, fut):
         job_id, rel, result, payload, warm, varied = self.pending.pop(fut)
         exc = fut.exception()
+        if isinstance(exc, (SelfconEnvironmentError, OSError)):
+            # the folder cannot take the file (disk full, permissions): not the job's fault.  The
+            # job goes back to the queue uncharged and the run stops (exit 4); rerun when fixed.
+            q.requeue(con, job_id, count_attempt=False, error=None)
+            if self.fatal is None:
+                self.fatal = (exc if isinstance(exc, SelfconEnvironmentError) else
+                              SelfconEnvironmentError.from_os_error(exc, "cannot write", self.out_dir / rel))
+                self.progress.note(f"stopping: {self.fatal}; job {job_id} requeued, rerun when fixed")
+            return None
         if exc is not None:
             q.finish(con, job_id, status="failed", seconds=payload.get("seconds"),
                      error=f"cannot write {rel}: {type(exc).__name__}: {exc}")
@@ -365,7 +377,7 @@ class Coordinator:
                     q.requeue(con, job, count_attempt=False, error=None)
                 self.progress.note("interrupted: running jobs requeued; rerun the command to continue")
                 return
-            if not sig.stopping:
+            if not sig.stopping and self.fatal is None:
                 in_flight = ex.in_flight
                 while len(in_flight) < ex.capacity + 1:
                     row = self._claim(con, in_flight)
@@ -383,8 +395,8 @@ class Coordinator:
             if not ex.in_flight:
                 had_writes = bool(self.pending)
                 self._drain_writes(con, timeout=None)
-                if sig.stopping or not had_writes:      # finished writes may free a continuation chain
-                    return
+                if sig.stopping or self.fatal is not None or not had_writes:
+                    return                  # (finished writes may free a continuation chain)
                 continue
             for job, kind, payload in ex.poll(0.05 if self.pending else 0.2):
                 line = self._handle(con, job, kind, payload)
@@ -426,17 +438,19 @@ def write_tables(con, out_dir):
     out_dir = Path(out_dir)
     cols = table_columns(con)
     rows = table_rows(con)
-    tmp = out_dir / ".table.csv.tmp"
-    with open(tmp, "w", newline="", encoding="utf-8") as fh:
-        w = csv.writer(fh)
-        w.writerow(cols)
-        for r in rows:
-            w.writerow(["" if r[c] is None else (repr(r[c]) if isinstance(r[c], float) else r[c]) for c in cols])
-    os.replace(tmp, out_dir / "table.csv")
-    _write_table_h5(con, out_dir, cols, rows)
+    from selfcon.output.files import atomic_write
+
+    def fill(tmp):
+        with open(tmp, "w", newline="", encoding="utf-8") as fh:
+            w = csv.writer(fh)
+            w.writerow(cols)
+            for r in rows:
+                w.writerow(["" if r[c] is None else (repr(r[c]) if isinstance(r[c], float) else r[c]) for c in cols])
+    atomic_write(out_dir / "table.csv", fill, force=True)
+    atomic_write(out_dir / "table.h5", lambda tmp: _write_table_h5(con, tmp, cols, rows), force=True)
 
 
-def _write_table_h5(con, out_dir, cols, rows):
+def _write_table_h5(con, tmp, cols, rows):
     import h5py
     import numpy as np
     paths = q.get_meta(con, "paths", [])
@@ -448,7 +462,6 @@ def _write_table_h5(con, out_dir, cols, rows):
                 warm_start="1 if started from a neighbour's potential", result="result file, relative to the folder",
                 message="solver message or error text (first line)")
     units.update(seconds="s")
-    tmp = out_dir / ".table.h5.tmp"
     with h5py.File(tmp, "w") as f:
         f.attrs["schema"] = "selfcon.batch_table"
         f.attrs["schema_version"] = 1
@@ -483,7 +496,6 @@ def _write_table_h5(con, out_dir, cols, rows):
                 ds = g.create_dataset(c, data=data)
             ds.attrs["units"] = u
             ds.attrs["description"] = d
-    os.replace(tmp, out_dir / "table.h5")
 
 
 # --------------------------------------------------------------------------- front function
@@ -495,32 +507,66 @@ def run_study(study_file, *, workers=None, out=None, scheduler=None, retries=2, 
     exit code: 0 every job done, 3 some not converged or failed, 130 interrupted.
     """
     study = load_study(study_file)
-    jobs = expand(study)
     out_dir = Path(out) if out else default_out_dir(study_file)
+    # the folder is checked before anything is computed or written: new, empty, or this study's own
+    q.check_out_folder(out_dir, study_file, study.deck_file,
+                       option="--out" if out else "--out (default: beside the study)")
+    _check_writable_folder(out_dir)
+    jobs = expand(study)
     if workers is None:
         workers = max(1, min(len(jobs), os.cpu_count() or 1))
-    out_dir.mkdir(parents=True, exist_ok=True)
+    try:
+        out_dir.mkdir(parents=True, exist_ok=True)
+    except OSError as exc:
+        raise SelfconEnvironmentError.from_os_error(exc, "cannot create the study folder", out_dir) from None
     lock = q.CoordinatorLock(out_dir).acquire()
     try:
-        con = q.connect(out_dir)
-        try:
-            q.set_meta(con, study_file=str(Path(study_file).resolve()), paths=study.paths, mode=study.mode,
-                       continuation=study.continuation, along=study.along)
-            changes = q.sync(con, jobs, retries=retries)
-            prog = progress or make_progress(quiet)
-            if changes["retired"] or changes["requeued"] or changes["revived"]:
-                prog.note(f"queue: {changes['added']} new, {changes['kept']} kept, {changes['requeued']} requeued, "
-                          f"{changes['retired']} retired, {changes['revived']} back in the study")
-            coord = Coordinator(out_dir, workers=workers, scheduler=scheduler, retries=retries, job_fn=job_fn,
-                                progress=prog, memory_limit=memory_limit, warm=warm)
-            try:
-                counts = coord.run(con, continuation=study.continuation, along=study.along)
-            finally:
-                write_tables(con, out_dir)
-        finally:
-            con.close()
+        return _run_locked(study, study_file, jobs, out_dir, workers=workers, scheduler=scheduler,
+                           retries=retries, quiet=quiet, job_fn=job_fn, progress=progress,
+                           memory_limit=memory_limit, warm=warm)
+    except sqlite3.DatabaseError as exc:
+        if q.is_environment_failure(exc):
+            raise q.queue_failure(out_dir, exc) from None
+        raise
     finally:
         lock.release()
+
+
+def _check_writable_folder(out_dir):
+    """Exit 4 before any work when the study folder (or, if new, its nearest existing parent)
+    cannot be written."""
+    from selfcon.output.files import check_writable
+    folder = Path(out_dir)
+    while not folder.exists() and folder.parent != folder:
+        folder = folder.parent
+    check_writable(folder)
+
+
+def _run_locked(study, study_file, jobs, out_dir, *, workers, scheduler, retries, quiet, job_fn, progress,
+                memory_limit, warm):
+    con = q.connect(out_dir)
+    try:
+        q.set_meta(con, study_file=str(Path(study_file).resolve()), base_deck=str(study.deck_file),
+                   paths=study.paths, mode=study.mode, continuation=study.continuation, along=study.along)
+        changes = q.sync(con, jobs, retries=retries)
+        prog = progress or make_progress(quiet)
+        if changes["retired"] or changes["requeued"] or changes["revived"]:
+            prog.note(f"queue: {changes['added']} new, {changes['kept']} kept, {changes['requeued']} requeued, "
+                      f"{changes['retired']} retired, {changes['revived']} back in the study")
+        coord = Coordinator(out_dir, workers=workers, scheduler=scheduler, retries=retries, job_fn=job_fn,
+                            progress=prog, memory_limit=memory_limit, warm=warm)
+        try:
+            counts = coord.run(con, continuation=study.continuation, along=study.along)
+        finally:
+            try:
+                write_tables(con, out_dir)
+            except (SelfconEnvironmentError, OSError):
+                if coord.fatal is None:       # the first failure is the one to report
+                    raise
+    finally:
+        con.close()
+    if coord.fatal is not None:
+        raise coord.fatal
     if coord.interrupted and (counts["queued"] or counts["running"]):
         code = 130
     elif counts["not_converged"] or counts["failed"]:

@@ -6,7 +6,9 @@
                  [-o OUT.h5] [--set PATH=VALUE]... [--json] [--quiet]
     selfcon study-summary OUTDIR [--quantity NAME]... [--plot FIG] [--table-only] [--json]
 
-Exit codes: 0 ok, 2 bad input (one line), 3 some solve did not converge (files still written).
+Exit codes: 0 ok, 2 bad input (one line), 3 some solve did not converge (files still written),
+4 the environment failed (disk full, permissions).  Outputs follow the rules of
+selfcon.output.files: checked before the first solve, never an input, never replaced without --force.
 """
 from __future__ import annotations
 
@@ -15,9 +17,7 @@ import math
 import sys
 from pathlib import Path
 
-from selfcon.errors import SelfconInputError
-
-EXIT_OK, EXIT_INPUT, EXIT_NOT_CONVERGED = 0, 2, 3
+from selfcon.errors import EXIT_INPUT, EXIT_NOT_CONVERGED, EXIT_OK, SelfconInputError  # noqa: F401
 
 
 class DesignOptionError(SelfconInputError):
@@ -40,7 +40,7 @@ def register(subparsers):
                    help="doping-layer electrons / channel n_s that marks parallel conduction (default 0.01)")
     s.add_argument("--plot", default=None, metavar="FIG", help="n_s(V) per layer and C-V figure (.png/.svg/.pdf)")
     s.add_argument("--set", action="append", default=[], metavar="PATH=VALUE", help="deck override")
-    s.add_argument("--force", action="store_true", help="overwrite an existing output file")
+    s.add_argument("--force", action="store_true", help="overwrite an existing output file or figure")
     s.add_argument("--json", action="store_true", help="print the analysis as JSON")
     s.add_argument("--quiet", action="store_true", help="no per-point lines")
     s.set_defaults(func=cmd_sweep_bias)
@@ -68,29 +68,21 @@ def register(subparsers):
     u.add_argument("--quantity", action="append", default=[], metavar="NAME", help="only these quantities")
     u.add_argument("--plot", default=None, metavar="FIG", help="histograms and sensitivity bars")
     u.add_argument("--table-only", action="store_true", help="do not read the job result files")
+    u.add_argument("--force", action="store_true", help="overwrite an existing figure")
     u.add_argument("--json", action="store_true")
     u.set_defaults(func=cmd_study_summary)
 
 
-def _plot_path(path):
-    if path is None:
-        return
-    p = Path(path)
-    if p.suffix.lower() not in (".png", ".svg", ".pdf"):
-        raise DesignOptionError(f"unknown figure format {p.suffix!r}", key="--plot", allowed=".png, .svg, .pdf")
-    if not (p.parent if str(p.parent) else Path(".")).is_dir():
-        raise DesignOptionError("folder does not exist", file=str(p), key="--plot")
-
-
-def _out_path(path, force):
-    if path is None:
-        return None
-    p = Path(path)
-    if p.exists() and not force:
-        raise DesignOptionError("output file exists; pass --force to overwrite it", file=str(p))
-    if not (p.parent if str(p.parent) else Path(".")).is_dir():
-        raise DesignOptionError("output folder does not exist", file=str(p))
-    return p
+def _check_outputs(args, *, result=None, plot=None, inputs=()):
+    """The command's outputs (``-o`` and ``--plot``), checked before any solve."""
+    from selfcon.output.files import check_outputs, output
+    outs = []
+    if result is not None:
+        outs.append(output(result, "result", "-o"))
+    if plot is not None:
+        outs.append(output(plot, "figure", "--plot"))
+    check_outputs(outs, inputs=inputs, force=getattr(args, "force", False), error=DesignOptionError)
+    return Path(result) if result is not None else None
 
 
 def _load(args):
@@ -122,8 +114,7 @@ def cmd_sweep_bias(args) -> int:
         raise DesignOptionError(f"must be > 0 (the direction comes from --from and --to), got {args.step:g}",
                                 key="--step")
     biases = bias_points(args.v_from, args.v_to, args.step)
-    out = _out_path(args.output, args.force)
-    _plot_path(args.plot)
+    out = _check_outputs(args, result=args.output, plot=args.plot, inputs=[(args.deck, "the deck")])
     loud = not (args.quiet or args.json)
 
     def progress(k, v, r):
@@ -135,9 +126,9 @@ def cmd_sweep_bias(args) -> int:
 
     sw = sweep_bias(deck, biases, progress=progress, threshold_cm2=args.threshold, fraction=args.fraction)
     if out is not None:
-        sw.save(out, force=True)
+        sw.save(out, force=args.force)
     if args.plot:
-        sw.plot(args.plot)
+        sw.plot(args.plot, force=args.force)
     if args.json:
         print(json.dumps(_jsonable({"bias_V": sw.bias.tolist(), "channel_cm2": sw.channel_density.tolist(),
                                     "capacitance_F_cm2": sw.capacitance.tolist(),
@@ -175,7 +166,7 @@ def cmd_tune(args) -> int:
         bracket = tuple(sorted((0.5 * x0, 2.0 * x0)))
     else:
         bracket = tuple(args.bracket)
-    out = _out_path(args.output, args.force)
+    out = _check_outputs(args, result=args.output, inputs=[(args.deck, "the deck")])
     unit = path_units(args.vary)
     loud = not (args.quiet or args.json)
 
@@ -187,7 +178,7 @@ def cmd_tune(args) -> int:
 
     tr = tune(deck, args.vary, name, value, bracket, xtol=args.xtol, progress=progress)
     if out is not None and tr.result is not None:
-        tr.result.save(out, force=True)
+        tr.result.save(out, force=args.force)
     if args.json:
         print(json.dumps(_jsonable({"path": tr.path, "value": tr.value, "units": unit, "quantity": tr.quantity,
                                     "target": tr.target, "achieved": tr.achieved, "bracket": list(tr.bracket),
@@ -209,10 +200,12 @@ def cmd_tune(args) -> int:
 
 def cmd_study_summary(args) -> int:
     from selfcon.design.tolerance import plot_summary, summarize_study
-    _plot_path(args.plot)
+    folder = Path(args.outdir)
+    _check_outputs(args, plot=args.plot, inputs=[(folder / name, "a file of the study folder") for name in
+                                                  ("table.h5", "table.csv", "queue.sqlite")])
     s = summarize_study(args.outdir, quantities=args.quantity or None, from_results=not args.table_only)
     if args.plot:
-        plot_summary(s, args.plot, quantities=args.quantity or None)
+        plot_summary(s, args.plot, quantities=args.quantity or None, force=args.force)
     if args.json:
         print(json.dumps(_jsonable(s.as_dict()), indent=1))
     else:

@@ -107,8 +107,8 @@ class BiasSweep:
     def save(self, path, *, force: bool = True) -> None:
         save_sweep(self, path, force=force)
 
-    def plot(self, path) -> None:
-        plot_sweep(self, path)
+    def plot(self, path, *, force: bool = True) -> None:
+        plot_sweep(self, path, force=force)
 
     def lines(self) -> list[str]:
         """The analysis in plain lines (what the CLI prints)."""
@@ -552,7 +552,7 @@ def save_sweep(sw: BiasSweep, path, *, force: bool = True) -> None:
     atomic_write(path, fill, force=force, error=SweepError)
 
 
-def plot_sweep(sw: BiasSweep, path) -> None:
+def plot_sweep(sw: BiasSweep, path, *, force: bool = True) -> None:
     """Two panels: sheet density per layer versus bias (log scale) and C-V."""
     import matplotlib
     matplotlib.use("Agg", force=False)
@@ -582,8 +582,11 @@ def plot_sweep(sw: BiasSweep, path) -> None:
     ax2.set_xlabel("gate bias (V)")
     ax2.set_ylabel("C = dQ/dV (nF/cm$^2$)")
     fig.suptitle(sw.title, fontsize=10)
-    fig.savefig(path, dpi=120)
-    plt.close(fig)
+    from selfcon.output.files import save_figure
+    try:
+        save_figure(fig, path, force=force, error=SweepError, dpi=120)
+    finally:
+        plt.close(fig)
 
 
 def load_sweep_file(path) -> dict:

@@ -271,7 +271,7 @@ def summarize_study(folder: str | os.PathLike, *, quantities: Iterable[str] | No
     return summarize_table(paths, figures, params, folder=str(folder), n_total=len(status))
 
 
-def plot_summary(s: ToleranceSummary, path, *, quantities=None) -> None:
+def plot_summary(s: ToleranceSummary, path, *, quantities=None, force: bool = True) -> None:
     """One row per quantity: histogram of its spread and bars of the standardised sensitivities."""
     import matplotlib
     matplotlib.use("Agg", force=False)
@@ -295,5 +295,8 @@ def plot_summary(s: ToleranceSummary, path, *, quantities=None) -> None:
         row[1].set_xlim(-1.05, 1.05)
         row[1].set_xlabel("standardised sensitivity")
     fig.suptitle(f"{Path(s.folder).name}: {s.n_done} samples", fontsize=10)
-    fig.savefig(path, dpi=110)
-    plt.close(fig)
+    from selfcon.output.files import save_figure
+    try:
+        save_figure(fig, path, force=force, dpi=110)
+    finally:
+        plt.close(fig)

@@ -12,6 +12,7 @@ from pathlib import Path
 import numpy as np
 
 from selfcon.errors import SelfconInputError
+from selfcon.output.files import atomic_write
 from selfcon.output.schema import PROFILE_FIELDS
 
 PROFILE_CSV = "profile.csv"
@@ -46,25 +47,37 @@ def export_csv(result, dirpath, *, force: bool = True) -> list[Path]:
         existing = [str(p) for p in targets if p.exists()]
         if existing:
             raise SelfconInputError("CSV table exists; pass --force to overwrite it", file=existing[0])
-    folder.mkdir(parents=True, exist_ok=True)
+    try:
+        folder.mkdir(parents=True, exist_ok=True)
+    except OSError as exc:
+        from selfcon.errors import SelfconEnvironmentError
+        raise SelfconEnvironmentError.from_os_error(exc, "cannot create folder", folder) from None
 
     names = list(result.profile)
     layer_names = [str(row.get("name", i)) for i, row in enumerate(result.layers)]
-    with open(targets[0], "w", newline="", encoding="utf-8") as fh:
-        w = csv.writer(fh)
-        w.writerow(["z [nm]"] + [f"{n} [{_profile_units(n)}]" for n in names] + ["layer_index [1]", "layer"])
-        cols = [np.asarray(result.profile[n]) for n in names]
-        for i, z in enumerate(np.asarray(result.z)):
-            li = int(result.layer_index[i])
-            w.writerow([_num(z)] + [_num(c[i]) for c in cols] + [str(li), layer_names[li] if 0 <= li < len(
-                layer_names) else ""])
 
-    with open(targets[1], "w", newline="", encoding="utf-8") as fh:
-        w = csv.writer(fh)
-        w.writerow(["band", "index", "energy [eV]", "occupation [cm-2]", "in_plane_mass [m0]", "region",
-                    "degeneracy"])
-        for band, sb in result.subbands.items():
-            for k in range(np.asarray(sb.energy).size):
-                w.writerow([band, k, _num(sb.energy[k]), _num(sb.occupation[k]), _num(sb.in_plane_mass[k]),
-                            int(sb.region[k]), _num(sb.degeneracy[k])])
+    def profile(tmp):
+        with open(tmp, "w", newline="", encoding="utf-8") as fh:
+            w = csv.writer(fh)
+            w.writerow(["z [nm]"] + [f"{n} [{_profile_units(n)}]" for n in names] + ["layer_index [1]", "layer"])
+            cols = [np.asarray(result.profile[n]) for n in names]
+            for i, z in enumerate(np.asarray(result.z)):
+                li = int(result.layer_index[i])
+                w.writerow([_num(z)] + [_num(c[i]) for c in cols] + [str(li), layer_names[li] if 0 <= li < len(
+                    layer_names) else ""])
+
+    def subbands(tmp):
+        with open(tmp, "w", newline="", encoding="utf-8") as fh:
+            w = csv.writer(fh)
+            w.writerow(["band", "index", "energy [eV]", "occupation [cm-2]", "in_plane_mass [m0]", "region",
+                        "degeneracy"])
+            for band, sb in result.subbands.items():
+                for k in range(np.asarray(sb.energy).size):
+                    w.writerow([band, k, _num(sb.energy[k]), _num(sb.occupation[k]), _num(sb.in_plane_mass[k]),
+                                int(sb.region[k]), _num(sb.degeneracy[k])])
+
+    # each table atomically (temporary file, fsync, rename): an interrupted or failed export
+    # leaves an existing table as it was
+    atomic_write(targets[0], profile, force=force)
+    atomic_write(targets[1], subbands, force=force)
     return targets

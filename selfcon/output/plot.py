@@ -345,11 +345,12 @@ def draw_band_diagram(fig, result, depth=None):
     return top, bottom, zoom, card
 
 
-def plot_result(result, path, size=None, depth=None, dpi: int = DPI) -> Path:
-    """Write the band diagram of ``result`` to ``path`` (.png, .svg or .pdf).
+def plot_result(result, path, size=None, depth=None, dpi: int = DPI, *, force: bool = True) -> Path:
+    """Write the band diagram of ``result`` to ``path`` (.png, .svg or .pdf), atomically.
 
     ``size``: (width, height) in pixels (default 1200 x 900; at ``dpi`` for vector formats).
     ``depth``: (top, bottom) in nm, "full", or None for :func:`auto_depth`.
+    ``force``: False refuses to replace an existing file (SelfconInputError).
     """
     path = Path(path)
     fmt = FORMATS.get(path.suffix.lower())
@@ -360,5 +361,8 @@ def plot_result(result, path, size=None, depth=None, dpi: int = DPI) -> Path:
     from matplotlib.figure import Figure
     fig = Figure(figsize=(w / dpi, h / dpi), dpi=dpi, layout="constrained")
     draw_band_diagram(fig, result, depth=depth)
-    fig.savefig(path, format=fmt, dpi=dpi, metadata=None if fmt != "png" else {"Software": "selfcon"})
+    from selfcon.output.files import atomic_write
+    atomic_write(path, lambda tmp: fig.savefig(tmp, format=fmt, dpi=dpi,
+                                               metadata=None if fmt != "png" else {"Software": "selfcon"}),
+                 force=force)
     return path

@@ -31,13 +31,12 @@ existing output untouched.
 from __future__ import annotations
 
 import datetime as _dt
-import os
-import tempfile
 from pathlib import Path
 
 import numpy as np
 
 from selfcon.errors import ResultFileError
+from selfcon.output.files import atomic_write as _atomic_write
 from selfcon.output.schema import (CHANNEL_FIELDS, EXTRA_PROFILE_FIELDS, LAYER_DESCRIPTIONS,
                                    LAYER_UNITS, PROFILE_FIELDS, RECORD_FIELDS, ROOT_ATTRS, SCHEMA,
                                    SCHEMA_VERSION, SUBBAND_FIELDS, TRANSITION_FIELDS,
@@ -348,14 +347,6 @@ def _write_file(path: str, result: Result) -> None:
         f.flush()
 
 
-def _fsync(path) -> None:
-    fd = os.open(path, os.O_RDONLY)
-    try:
-        os.fsync(fd)
-    finally:
-        os.close(fd)
-
-
 def save_result(result: Result, path, *, force: bool = False) -> None:
     """Write ``result`` to ``path`` (HDF5, README.md "Result file (HDF5)") atomically.
 
@@ -364,6 +355,11 @@ def save_result(result: Result, path, *, force: bool = False) -> None:
     ``path`` is left as it was.
     """
     atomic_write(path, lambda tmp: _write_file(tmp, result), force=force)
+
+
+def atomic_write(path, fill, *, force: bool = False, error=ResultFileError) -> None:
+    """:func:`selfcon.output.files.atomic_write` (the one writer), with result-file errors."""
+    _atomic_write(path, fill, force=force, error=error)
 
 
 def result_image(result: Result) -> bytes:
@@ -388,38 +384,6 @@ def save_image(image: bytes, path, *, force: bool = False) -> None:
             fh.write(image)
             fh.flush()
     atomic_write(path, fill, force=force)
-
-
-def atomic_write(path, fill, *, force: bool = False, error=ResultFileError) -> None:
-    """Create ``path`` atomically: ``fill(tmp)`` writes a temporary file in the same folder,
-    which is fsync'ed and renamed over ``path``; on any failure it is removed and an
-    existing ``path`` is left as it was.  Every selfcon output file is written this way.
-    ``error`` is the SelfconInputError subclass raised for a bad or existing path."""
-    path = Path(path)
-    folder = path.parent if str(path.parent) else Path(".")
-    if not folder.is_dir():
-        raise error("output folder does not exist", file=str(path))
-    if path.is_dir():
-        raise error("output path is a folder", file=str(path))
-    if path.exists() and not force:
-        raise error("output file exists; pass --force (or force=True) to overwrite it",
-                    file=str(path))
-    fd, tmp = tempfile.mkstemp(prefix=f".{path.name}.", suffix=".tmp", dir=folder)
-    os.close(fd)
-    try:
-        fill(tmp)
-        _fsync(tmp)
-        os.replace(tmp, path)
-    except BaseException:
-        try:
-            os.unlink(tmp)
-        except FileNotFoundError:
-            pass
-        raise
-    try:  # make the rename itself durable; not possible everywhere
-        _fsync(folder)
-    except OSError:
-        pass
 
 
 # --------------------------------------------------------------------------- reading
@@ -454,11 +418,33 @@ def _need(f, name, path):
 
 
 def load_result(path) -> Result:
-    """Read a result file written by :func:`save_result` back into a :class:`Result`."""
-    h5py = _h5py()
+    """Read a result file written by :func:`save_result` back into a :class:`Result`.
+
+    A missing, foreign or damaged (truncated, overwritten) file is a :class:`ResultFileError`
+    (bad input, exit 2); a file the system will not let us read is a
+    :class:`selfcon.errors.SelfconEnvironmentError` (exit 4)."""
     path = Path(path)
     if not path.exists():
         raise ResultFileError("no such result file", file=str(path))
+    if path.is_dir():
+        raise ResultFileError("is a folder, expected a result file", file=str(path))
+    try:
+        return _read_result(path)
+    except ResultFileError:
+        raise
+    except PermissionError as exc:
+        from selfcon.errors import SelfconEnvironmentError
+        raise SelfconEnvironmentError.from_os_error(exc, "cannot read", path) from None
+    except (OSError, KeyError, ValueError, TypeError, IndexError, AttributeError, RuntimeError) as exc:
+        # h5py reports a truncated or scribbled-over file as OSError/KeyError from deep inside
+        raise ResultFileError(f"damaged result file, cannot be read ({type(exc).__name__}: "
+                              f"{' '.join(str(exc).split())[:160]})", file=str(path)) from None
+
+
+def _read_result(path: Path) -> Result:
+    h5py = _h5py()
+    with open(path, "rb"):           # no permission shows here (PermissionError), not as "not HDF5"
+        pass
     if not h5py.is_hdf5(str(path)):
         raise ResultFileError("not an HDF5 file (expected a selfcon result .h5)", file=str(path))
     with h5py.File(path, "r") as f:
