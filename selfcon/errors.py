@@ -2,7 +2,7 @@
 environment (disk, permissions, queue database, scheduler) is another; non-convergence
 is not an exception at all (it is a Result with converged=False).
 
-Exit codes of every command (README, "Exit codes"; ``selfcon --help``):
+Exit codes of every command (README.md, "Command line"; ``selfcon --help``):
 """
 import errno as _errno
 

@@ -1,4 +1,4 @@
-"""Exit codes that tell a script what happened (README, "Exit codes"): 0 ok, 1 a bug,
+"""Exit codes that tell a script what happened (README.md, "Command line"): 0 ok, 1 a bug,
 2 bad input, 3 not converged, 4 the environment failed, 130 interrupted; a closed stdout
 ends quietly with 0.  Expected codes and texts come from that table (the contract)."""
 import errno

@@ -1,5 +1,5 @@
-"""No file is ever overwritten unasked, and a failing environment is exit 4 (README, "Output files"
-and "Exit codes").  Every case asserts the exit code, the message, and that nothing that
+"""No file is ever overwritten unasked, and a failing environment is exit 4 (README.md, "Output files"
+and "Command line").  Every case asserts the exit code, the message, and that nothing that
 existed before changed (byte for byte) and nothing new appeared.
 
 The expected behaviour is the rule list of README "Output files" (the contract); the

@@ -1,6 +1,6 @@
 """Output files: the rules every command's outputs obey, and the one atomic writer.
 
-Rules (README, "Output files"), checked by :func:`check_outputs` before any work starts:
+Rules (README.md, "Output files"), checked by :func:`check_outputs` before any work starts:
 
 * an output must not exist, unless ``--force`` is given;
 * an output is never an input of the same command, even with ``--force``;
