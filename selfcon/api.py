@@ -15,8 +15,9 @@ from typing import TYPE_CHECKING, Any
 
 from selfcon.input.deck import Deck
 from selfcon.model.structure import Structure, build_structure
-from selfcon.solver.loop import (_interpolate_guess, boundary_conditions, extrapolate_potential,
-                                 make_mixer, run_loop)
+from selfcon.solver.loop import extrapolate_potential, run_loop
+from selfcon.solver.mixers import make_mixer
+from selfcon.solver.steps import boundary_conditions, interpolate_guess
 
 if TYPE_CHECKING:
     import numpy as np
@@ -148,7 +149,7 @@ def bound_states(z_nm: ArrayLike, band_edge_eV: ArrayLike, mass_m0: ArrayLike,
 
 def solve(deck: Deck | str | os.PathLike, *, initial_potential: Any = None,
           progress: Callable[..., Any] | None = None, structure: Structure | None = None,
-          method: str | None = None, tolerance: float | None = None,
+          method: str | type | Any = None, tolerance: float | None = None,
           max_iterations: int | None = None) -> Result:
     """Solve one deck self-consistently: Schrödinger and Poisson iterated to agreement.
 
@@ -160,19 +161,27 @@ def solve(deck: Deck | str | os.PathLike, *, initial_potential: Any = None,
         Start from this potential (V): on this deck's mesh, or as a pair to interpolate
         from another mesh (warm start, continuation).  Default: the classical solution.
     progress : callable, optional
-        ``progress(iteration, residual_V)`` after every iteration.
+        ``progress(record)`` after every iteration, with a
+        :class:`selfcon.solver.loop.IterationRecord` (iteration, residual, charge
+        residual, Newton steps, damping, seconds).  Raising ``StopIteration`` in it
+        stops the loop (``status`` 5, not converged).  The older
+        ``progress(iteration, residual_V)`` still works, with a DeprecationWarning.
     structure : Structure, optional
         ``build_structure(deck)`` done already (sweeps reuse it).
-    method, tolerance, max_iterations : optional
-        Override the deck's ``solver.method`` (a registered mixer name),
-        ``solver.tolerance`` (V) and ``solver.max_iterations``.
+    method : str, Mixer subclass or Mixer instance, optional
+        Override the deck's ``solver.method``: a registered mixer name, a
+        :class:`selfcon.Mixer` subclass (given the deck's mixer options it declares) or
+        an instance (used as it is).
+    tolerance, max_iterations : optional
+        Override the deck's ``solver.tolerance`` (V) and ``solver.max_iterations``.
 
     Returns
     -------
     Result
         Profiles, subbands, per-layer charge, the summary figures and design warnings.
-        Non-convergence is not an exception: ``converged`` is False and ``message`` says
-        why and what to try.
+        Non-convergence is not an exception: ``converged`` is False, ``status`` says how
+        the loop ended (:class:`selfcon.solver.control.Status`) and ``message`` why and
+        what to try.
 
     Raises
     ------
@@ -194,20 +203,15 @@ def solve(deck: Deck | str | os.PathLike, *, initial_potential: Any = None,
         deck = load_deck(deck)
     st = structure if structure is not None else build_structure(deck)
     spec = deck.solver
-    method = method or spec.method
     tol = float(tolerance if tolerance is not None else spec.tolerance)
     max_it = int(max_iterations if max_iterations is not None else spec.max_iterations)
     ctol = float(getattr(spec, "charge_tolerance", None) or 1e-6)
-    mixer = make_mixer(method, spec)
-    bc = boundary_conditions(st)
-    phi0 = None
-    if initial_potential is not None:
-        phi0 = _interpolate_guess(st, initial_potential)
-    loop = run_loop(st, bc, mixer, phi0=phi0, tol=tol, charge_tol=ctol, max_iter=max_it,
-                    progress=progress)
+    mixer = make_mixer(method if method is not None else spec.method, spec)
+    phi0 = interpolate_guess(st, initial_potential) if initial_potential is not None else None
+    outcome = run_loop(st, boundary_conditions(st), mixer, phi0=phi0, tol=tol, charge_tol=ctol,
+                       max_iter=max_it, progress=progress)
     from selfcon.output.assemble import build_result
-    return build_result(deck, st, bc, loop, wall_time=time.perf_counter() - t0, method=method)
-
+    return build_result(deck, st, outcome, wall_time=time.perf_counter() - t0)
 
 
 def solve_warm(deck: Deck, initial_potential: Any, *,

@@ -168,7 +168,7 @@ def test_design_warnings_never_raise(monkeypatch):
     assert real == r.warnings                 # the solve ran the same checks
 
     # a check that raises becomes one warning line naming it; the other checks still report
-    def planted(result, structure):
+    def planted(result, structure, deck=None):
         raise ZeroDivisionError("planted fault")
     monkeypatch.setitem(dg.CHECKS, "planted", planted)
     out = dg.design_warnings(r, st)

@@ -52,10 +52,10 @@ def test_importing_kernels_compiles_nothing(module):
 
 
 def test_importing_all_kernels_and_glue_compiles_nothing():
-    # the glue modules (schrodinger, poisson, statistics, charge, loop) may import kernels, never call them
+    # the glue modules (schrodinger, poisson, statistics, steps, control, loop) may import kernels, never call them
     code = (
         "import json, importlib, selfcon\n"
-        "for g in ('solver.schrodinger', 'solver.poisson', 'solver.statistics', 'solver.charge',\n"
+        "for g in ('solver.schrodinger', 'solver.poisson', 'solver.statistics', 'solver.steps', 'solver.control',\n"
         "          'solver.loop', 'model.structure', 'model.mesh', 'api'):\n"
         "    importlib.import_module('selfcon.' + g)\n"
         "from numba.core.registry import CPUDispatcher\n"

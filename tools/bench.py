@@ -104,7 +104,7 @@ def fit_exponent(nodes, times):
 
 def bench_floor():
     import selfcon
-    from selfcon.solver import charge as coupling, schrodinger as quantum, loop as scf
+    from selfcon.solver import schrodinger as quantum, steps
     from selfcon.solver.kernels import poisson as KP
     from selfcon.solver.kernels.bundles import NewtonOptions
     for name in DECKS:
@@ -113,17 +113,18 @@ def bench_floor():
         t_solve, r = solve_timed(d, repeat=10)     # best of 10, like the floor parts (5 and 20)
         check(r.converged, f"floor {name}: converged")
         st = selfcon.build_structure(d)
-        bc = scf.boundary_conditions(st)
+        ws = steps.Workspace(st, steps.boundary_conditions(st))
         phi = np.asarray(r.profile["potential"], float)
         # the converged number of states per band (the loop's adaptive count)
-        n_states = {b: st.states for b in scf.BAND_SPECS}
+        n_states = {b: st.states for b in steps.BAND_SPECS}
         for b, sb in r.subbands.items():
             n_states[b] = max(int(np.max(np.bincount(sb.region))), 1)
-        states = scf.solve_states(st, phi, dict(n_states), {}, quantum)
+        ws.n_states = dict(n_states)
+        states = steps.solve_states(ws, phi)
         # one eigensolve of every band/region that the loop treats quantum-mechanically
         t_eig = 0.0
         for band, bs in states.items():
-            edge_key, mass_key, _, sign, _ = scf.BAND_SPECS[band]
+            edge_key, mass_key, _, sign, _ = steps.BAND_SPECS[band]
             edge = st.node_average(st.cell[edge_key]) - phi
             for r_idx in np.unique(bs.region):
                 i0, i1 = st.regions[int(r_idx)]
@@ -137,7 +138,7 @@ def bench_floor():
                 t, _ = best_time(lambda: quantum.solve_region(*args, workspace=ws), 5)
                 t_eig += t
         # one Newton step: poisson_newton(max_iter=1) minus its initial assembly (max_iter=0)
-        prob = coupling.problem_with_states(st, bc, phi, states, shift=1.0)
+        prob = ws.problem(phi, states, shift=1.0)
         margs = prob.kernel_args()
         bounds = prob.boundaries()
         hist = np.zeros(4)

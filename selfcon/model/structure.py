@@ -8,8 +8,8 @@ the Dirichlet condition psi = 0.
 from __future__ import annotations
 
 import functools
-from dataclasses import dataclass, field
-from typing import TYPE_CHECKING, Any
+from dataclasses import dataclass
+from typing import TYPE_CHECKING
 
 import numpy as np
 
@@ -74,7 +74,6 @@ class Structure:
     states: int
     surface: Contact
     substrate: Contact
-    extras: dict[str, Any] = field(default_factory=dict)
 
     @property
     def z(self) -> np.ndarray:
@@ -313,5 +312,5 @@ def coarsened(st: Structure, factor: int = 4) -> tuple[Structure, np.ndarray]:
     for arr in [z, h, wl, wr, w, *cell.values(), *picked.values()]:
         arr.flags.writeable = False     # read-only like every structure array (one numba signature)
     coarse = replace(st, mesh=Mesh(z=z, h=h, wl=wl, wr=wr, w=w), cell=cell, regions=regions,
-                     extras={}, **picked)
+                     **picked)
     return coarse, nodes

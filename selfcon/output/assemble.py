@@ -17,6 +17,7 @@ import numpy as np
 from selfcon.constants import CM2_PER_NM2, CM3_PER_NM3, NM_PER_CM
 from selfcon.output import channels as chx
 from selfcon.output.channels import OCCUPIED_CM2, OCCUPIED_FRACTION  # noqa: F401  (the one rule)
+from selfcon.output.diagnostics import design_warnings
 from selfcon.output.result import Result, Subbands
 from selfcon.output.schema import BANDS
 
@@ -129,10 +130,14 @@ def channel_summary(an) -> dict:
     return out
 
 
-def build_result(deck, st, bc, loop, *, wall_time: float, method: str) -> Result:
-    from selfcon.solver import charge as coupling
+def build_result(deck, st, loop, *, wall_time: float) -> Result:
+    """The Result of one solve: ``deck`` (the Deck solved), ``st`` (its Structure), ``loop``
+    (the :class:`selfcon.solver.loop.LoopOutcome`, whose workspace holds the densities of
+    the final potential), ``wall_time`` (s) of the whole solve."""
+    from selfcon.solver import steps
     phi = loop.phi
-    n, p, ndp, nam = coupling.densities_with_states(st, phi, loop.states)
+    ws = loop.workspace
+    n, p, ndp, nam = steps.densities(ws, phi, loop.states)
     ec = right_cell_values(st.cell["ec_gamma"]) - phi
     ev = right_cell_values(st.cell["ev0"]) - phi
     profile = {
@@ -150,7 +155,7 @@ def build_result(deck, st, bc, loop, *, wall_time: float, method: str) -> Result
 
     valley_sheets = {}
     n_valleys = np.zeros(st.n_nodes)
-    for name, (edge, dos) in coupling.VALLEYS.items():
+    for name, (edge, dos) in steps.VALLEYS.items():
         if name in st.carriers:
             nv = valley_density(st, phi, st.cell[edge], st.cell[dos])
             n_valleys += nv
@@ -197,12 +202,13 @@ def build_result(deck, st, bc, loop, *, wall_time: float, method: str) -> Result
         "hole_sheet_density_cm2": ps,
         "donor_sheet_density_cm2": float(np.sum(ndp * w)) * CM2_PER_NM2,
         "acceptor_sheet_density_cm2": float(np.sum(nam * w)) * CM2_PER_NM2,
-        "gauss_residual": float(coupling.gauss_residual(st, bc, phi, loop.states, rho=p - n + ndp - nam)),
+        "gauss_residual": float(steps.gauss_residual(ws, phi, loop.states, rho=p - n + ndp - nam)),
         **main_channel_summary(an, st, n, p, ec, ev),
         "converged": bool(loop.converged),
+        "status": int(loop.status),
         "iterations": len(loop.iterations),
         "residual_V": float(loop.iterations[-1].residual) if loop.iterations else float("nan"),
-        "method": method,
+        "method": loop.method,
         "nodes": int(st.n_nodes),
         "wall_time_s": float(wall_time),
     }
@@ -213,7 +219,7 @@ def build_result(deck, st, bc, loop, *, wall_time: float, method: str) -> Result
             summary[f"{band}_E{k}_eV"] = float(sb.energy[k]) if sb is not None and sb.energy.size > k else float("nan")
         summary[f"{band}_occupied_subbands"] = (int(np.sum(chx.occupied_states(band, subbands, rows)))
                                                 if sb is not None else 0)
-    for name in coupling.VALLEYS:
+    for name in steps.VALLEYS:
         if name in valley_sheets:
             summary[f"{name}_sheet_density_cm2"] = valley_sheets[name]
     summary.update(channel_summary(an))
@@ -239,13 +245,6 @@ def build_result(deck, st, bc, loop, *, wall_time: float, method: str) -> Result
         summary=summary, warnings=[], provenance=provenance, record=record,
         regions_nm=[tuple(map(float, r)) for r in st.regions_nm], channels=rows,
         transitions=solved.transitions)
-    try:
-        from selfcon.output.diagnostics import design_warnings
-    except ImportError:
-        design_warnings = None
-    if design_warnings is not None:
-        result.warnings = list(design_warnings(result, st))
-    elif not loop.converged:
-        result.warnings = [loop.message]
+    result.warnings = list(design_warnings(result, st, deck))
     result.summary["warnings"] = list(result.warnings)
     return result

@@ -3,7 +3,11 @@
 :func:`design_warnings` is called by ``selfcon.output.assemble.build_result`` on every solve;
 its lines end up in ``Result.warnings``, the ``run``/``show`` output, the JSON and the
 ``/summary`` attribute ``warnings`` of the result file.  Each check is a plain function
-``check_*(result, structure) -> list[str]`` so it can be tested on its own.
+``check(result, structure, deck=None) -> list[str]`` (one line per finding, with the
+numbers), registered in :data:`CHECKS` with :func:`register_check`, so it can be tested
+on its own.  ``deck`` is the Deck solved (selfcon.input.deck.Deck); a check that needs a
+deck value reads it with ``deck.get(path)`` or ``deck.material(name)``, and gets the
+Deck of ``result.deck_text`` when called without one (:func:`deck_of`).
 
 Thresholds (our own choices, stated here and in README.md, "Design recipes"):
 
@@ -24,10 +28,28 @@ Thresholds (our own choices, stated here and in README.md, "Design recipes"):
   bottom contact exceed 1 % of the channel sheet density (and 1e8 cm^-2), unless the
   bottom layer is the channel itself.
 * not converged: the self-consistent loop did not converge (its message is repeated).
+
+How to add a design warning
+---------------------------
+1. Write ``check_<name>(result, structure, deck=None) -> list[str]`` in this module (or
+   in any module imported before the solve): ``result`` is the assembled Result (output
+   units: cm^-2, cm^-3, eV), ``structure`` the Structure (internal units, per-cell arrays,
+   ``structure.mesh.w`` the node weights), ``deck`` the Deck.  Return one line per
+   finding that names the layer and the numbers and says what to change; return ``[]``
+   when all is well.  A check must not raise on a sound result: if it does,
+   :func:`design_warnings` reports "design check NAME could not run" instead.
+2. Put its threshold in a module constant and state it, with its source ("common
+   practice", a paper, ...), in the list above and in README.md ("Design recipes").
+3. Decorate it with ``@register_check("<name>")``; warnings are listed in registration
+   order (``before="<other>"`` puts it earlier).  ``unregister_check("<name>")`` removes it.
+4. Test it in tests/test_diagnostics.py with a deck built to trigger it, and check that
+   the clean demo design stays silent; the line reaches ``Result.warnings``, the
+   ``warnings`` attribute of ``/summary`` in the result file and ``selfcon show``.
+   tests/test_recipes.py follows these steps for a throwaway check.
 """
 from __future__ import annotations
 
-import tomllib
+from typing import Callable
 
 import numpy as np
 
@@ -44,10 +66,46 @@ CUT_DISTANCE_NM = 2.0
 BUFFER_DEPTH_NM = 100.0
 BUFFER_FRACTION = 0.01
 
-__all__ = ["design_warnings", "check_not_converged", "check_second_subband",
-           "check_parallel_conduction", "check_dx_centres", "check_region_cut",
-           "check_buffer_carriers", "doping_layers", "doping_layer_electrons",
+__all__ = ["design_warnings", "register_check", "unregister_check", "deck_of",
+           "check_not_converged", "check_second_subband", "check_parallel_conduction",
+           "check_dx_centres", "check_region_cut", "check_buffer_carriers",
+           "check_uncounted_valleys", "doping_layers", "doping_layer_electrons",
            "node_weights", "CHECKS"]
+
+#: name -> check, in the order warnings are listed (filled by register_check)
+CHECKS: dict[str, Callable] = {}
+
+
+def register_check(name: str, *, before: str | None = None):
+    """Decorator: list ``check(result, structure, deck=None) -> list[str]`` among the
+    design warnings under ``name``, after the checks registered so far (or just before
+    the check ``before``).  Registering a taken name is an error."""
+    def add(check):
+        if name in CHECKS:
+            raise ValueError(f"a design check named {name!r} is already registered")
+        if before is not None and before not in CHECKS:
+            raise ValueError(f"no design check named {before!r} (registered: {', '.join(CHECKS)})")
+        items = list(CHECKS.items())
+        at = len(items) if before is None else [k for k, _ in items].index(before)
+        items.insert(at, (name, check))
+        CHECKS.clear()
+        CHECKS.update(items)
+        return check
+    return add
+
+
+def unregister_check(name: str) -> None:
+    """Remove the design check ``name`` (KeyError if there is none)."""
+    del CHECKS[name]
+
+
+def deck_of(result, deck=None):
+    """``deck`` if given, else the Deck of ``result.deck_text`` (the effective deck every
+    result stores; a result read back from its file has no other)."""
+    if deck is not None:
+        return deck
+    from selfcon.input.deck import load_deck
+    return load_deck(result.deck_text)
 
 
 # --------------------------------------------------------------------------- helpers
@@ -86,34 +144,19 @@ def channel_density(result) -> float:
     return float(v)
 
 
-def doping_layers(result, structure=None) -> list[int]:
+def doping_layers(result, structure) -> list[int]:
     """Indices of layers with bulk or sheet donors, the channel excluded."""
     ch = channel_index(result)
-    out = []
-    if structure is not None:
-        for Li in structure.layers:
-            if (Li.donors > 0 or Li.sheet_donors > 0) and Li.index != ch:
-                out.append(Li.index)
-        return out
-    data = _deck_data(result)
-    for i, lay in enumerate(data.get("layer", [])):
-        if (lay.get("donors", 0) or lay.get("sheet_donors", 0)) and i != ch:
-            out.append(i)
-    return out
+    return [Li.index for Li in structure.layers
+            if (Li.donors > 0 or Li.sheet_donors > 0) and Li.index != ch]
 
 
-def _donors_per_layer(result, structure=None) -> list[float]:
+def _donors_per_layer(structure) -> list[float]:
     """Donors per area (cm^-2) of every layer: bulk density times thickness plus the sheet."""
-    if structure is not None:
-        return [Li.donors * (Li.bottom - Li.top) / NM_PER_CM + Li.sheet_donors for Li in structure.layers]
-    out = []
-    for lay in _deck_data(result).get("layer", []):
-        out.append(float(lay.get("donors", 0.0)) * float(lay["thickness"]) / NM_PER_CM
-                   + float(lay.get("sheet_donors", 0.0)))
-    return out
+    return [Li.donors * (Li.bottom - Li.top) / NM_PER_CM + Li.sheet_donors for Li in structure.layers]
 
 
-def doping_layer_electrons(result, structure=None, *, bound: bool = False) -> float:
+def doping_layer_electrons(result, structure, *, bound: bool = False) -> float:
     """Electrons per area (cm^-2) in all doping layers (the channel excluded).
 
     ``bound=False``: free (conduction-band) electrons only, the ones that conduct in
@@ -124,18 +167,11 @@ def doping_layer_electrons(result, structure=None, *, bound: bool = False) -> fl
     idx = doping_layers(result, structure)
     total = sum(float(rows[i]["electron_sheet_density_cm2"]) for i in idx)
     if bound:
-        nd = _donors_per_layer(result, structure)
+        nd = _donors_per_layer(structure)
         for i in idx:
             ion = rows[i].get("ionized_donor_sheet_density_cm2", nd[i])
             total += max(nd[i] - float(ion), 0.0)
     return float(total)
-
-
-def _deck_data(result) -> dict:
-    try:
-        return tomllib.loads(result.deck_text or "")
-    except tomllib.TOMLDecodeError:
-        return {}
 
 
 def _fmt_cm2(x: float) -> str:
@@ -144,11 +180,14 @@ def _fmt_cm2(x: float) -> str:
 
 # --------------------------------------------------------------------------- the checks
 
-def check_not_converged(result, structure=None) -> list[str]:
+@register_check("not_converged")
+def check_not_converged(result, structure=None, deck=None) -> list[str]:
+    """The loop did not converge: repeat its message (it says what to try)."""
     if result.converged:
         return []
-    return [f"not converged after {result.iterations} iterations (residual {result.residual:.2e} V): "
-            f"{result.message}; the figures below are not a solution"]
+    text = result.message if result.message.startswith("not converged") else f"not converged: {result.message}"
+    return [f"{text}; the profiles and subbands of this result are the loop's last iterate, "
+            "not a solution"]
 
 
 def channel_subbands(result, structure) -> np.ndarray:
@@ -163,7 +202,8 @@ def channel_subbands(result, structure) -> np.ndarray:
     return np.flatnonzero(weight > 0.5)
 
 
-def check_second_subband(result, structure) -> list[str]:
+@register_check("second_subband")
+def check_second_subband(result, structure, deck=None) -> list[str]:
     sb = (result.subbands or {}).get("electron")
     idx = channel_subbands(result, structure)
     if sb is None or idx.size < 2:
@@ -182,7 +222,8 @@ def check_second_subband(result, structure) -> list[str]:
             f"(E1 - E0 = {1e3 * (e1 - e0):.1f} meV); mobility drops from intersubband scattering"]
 
 
-def check_parallel_conduction(result, structure) -> list[str]:
+@register_check("parallel_conduction")
+def check_parallel_conduction(result, structure, deck=None) -> list[str]:
     rows = _layer_rows(result)
     ns = channel_density(result)
     limit = max(PARALLEL_FRACTION * ns, FLOOR_CM2)
@@ -197,17 +238,18 @@ def check_parallel_conduction(result, structure) -> list[str]:
     return out
 
 
-def _algaas_x(result, structure, layer) -> tuple[bool, np.ndarray]:
-    """(is AlGaAs, alloy fraction of its cells) for one layer."""
+def _algaas_x(result, deck, structure, layer) -> tuple[bool, np.ndarray]:
+    """(is AlGaAs, alloy fraction of its cells) for one layer; a deck-local material
+    counts when its base is AlGaAs."""
     sel = np.asarray(structure.cell_layer) == layer.index
     x = np.asarray(structure.x_cell)[sel]
     name = layer.material
     if name == "AlGaAs":
         return True, x
-    mat = _deck_data(result).get("material", {}).get(name, {})
-    if isinstance(mat, dict) and mat.get("base") == "AlGaAs":
-        if np.all(~np.isfinite(x)) and mat.get("x") is not None:
-            x = np.full(x.size, float(mat["x"]))
+    mat = deck_of(result, deck).material(name)
+    if mat is not None and mat.base == "AlGaAs":
+        if np.all(~np.isfinite(x)) and mat.x is not None:
+            x = np.full(x.size, float(mat.x))
         return True, x
     return False, x
 
@@ -217,7 +259,8 @@ def dx_window(temperature: float) -> float:
     return max(DX_WINDOW_KT * KB_EV * temperature, DX_WINDOW_EV)
 
 
-def check_dx_centres(result, structure) -> list[str]:
+@register_check("dx_centres")
+def check_dx_centres(result, structure, deck=None) -> list[str]:
     window = dx_window(structure.temperature)
     ec = np.asarray(result.profile["conduction_band"])
     bind = np.asarray(structure.cell["donor_binding"])
@@ -226,7 +269,7 @@ def check_dx_centres(result, structure) -> list[str]:
     for Li in structure.layers:
         if not (Li.donors > 0 or Li.sheet_donors > 0):
             continue
-        is_algaas, x = _algaas_x(result, structure, Li)
+        is_algaas, x = _algaas_x(result, deck, structure, Li)
         if not is_algaas or x.size == 0 or not np.any(x > DX_MIN_X):
             continue
         # donor level Ed = Ec - E_bind at every doped node of the layer; EF = 0
@@ -252,7 +295,8 @@ def check_dx_centres(result, structure) -> list[str]:
     return out
 
 
-def check_region_cut(result, structure) -> list[str]:
+@register_check("region_cut")
+def check_region_cut(result, structure, deck=None) -> list[str]:
     z = np.asarray(result.z)
     n_nodes = z.size
     out = []
@@ -279,7 +323,8 @@ def check_region_cut(result, structure) -> list[str]:
     return out
 
 
-def check_buffer_carriers(result, structure) -> list[str]:
+@register_check("buffer_carriers")
+def check_buffer_carriers(result, structure, deck=None) -> list[str]:
     z = np.asarray(result.z)
     ch = channel_index(result)
     last = int(np.asarray(result.layer_index)[-1])
@@ -303,7 +348,8 @@ def check_buffer_carriers(result, structure) -> list[str]:
 VALLEY_KT = 10.0
 
 
-def check_uncounted_valleys(result, structure) -> list[str]:
+@register_check("uncounted_valleys")
+def check_uncounted_valleys(result, structure, deck=None) -> list[str]:
     """X or L valley near or below EF in some layer while the deck does not count its electrons."""
     if structure is None:
         return []
@@ -328,24 +374,14 @@ def check_uncounted_valleys(result, structure) -> list[str]:
     return out
 
 
-#: name -> check, in the order warnings are listed
-CHECKS = {
-    "not_converged": check_not_converged,
-    "second_subband": check_second_subband,
-    "parallel_conduction": check_parallel_conduction,
-    "dx_centres": check_dx_centres,
-    "region_cut": check_region_cut,
-    "buffer_carriers": check_buffer_carriers,
-    "uncounted_valleys": check_uncounted_valleys,
-}
-
-
-def design_warnings(result, structure) -> list[str]:
-    """Every design warning for a solved structure (one line each, with the numbers)."""
+def design_warnings(result, structure, deck=None) -> list[str]:
+    """Every design warning for a solved structure (one line each, with the numbers), from
+    every registered check in order.  ``deck``: the Deck solved (read from
+    ``result.deck_text`` by the checks that need it when not given)."""
     out = []
-    for name, check in CHECKS.items():
+    for name, check in list(CHECKS.items()):
         try:
-            out.extend(check(result, structure))
+            out.extend(check(result, structure, deck))
         except Exception as exc:      # a check must never break a solve
             out.append(f"design check {name!r} could not run ({type(exc).__name__}: {exc})")
     return out

@@ -109,8 +109,17 @@ class Result:
 
     @property
     def status(self) -> int:
-        """0 converged, 1 not converged (mirrors the CLI exit codes 0 / 3)."""
-        return 0 if self.converged else 1
+        """How the solve ended, a :class:`selfcon.solver.control.Status` (an int): 0
+        ``CONVERGED``, 1 ``MAX_ITERATIONS``, 2 ``DIVERGED``, 3 ``OSCILLATING``, 4
+        ``NO_PROGRESS``, 5 ``STOPPED`` (by the progress callback).  Stored as the summary
+        attribute ``status``; a file without it gives 0 or 1 from ``converged``."""
+        from selfcon.solver.control import Status
+        code = (self.summary or {}).get("status")
+        code = (0 if self.converged else 1) if code is None else int(code)
+        try:
+            return Status(code)
+        except ValueError:              # a code from a newer selfcon
+            return code
 
     @property
     def potential(self) -> np.ndarray:

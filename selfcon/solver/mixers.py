@@ -16,10 +16,13 @@ How to add a mixer
    4 K modulation-doped heterojunction.
 3. Implement ``update(x, r) -> x_next``.  Do not modify ``x`` or ``r``;
    keep whatever history you need on ``self``.
-4. Implement ``reset()`` (called when the loop restarts from a damped state)
-   and optionally ``damp()`` (called when the residual grew: become more
-   cautious; return False if there is nothing left to damp).
-5. Register it with ``@register`` and add it to the parametrised tests in
+4. Implement ``reset()`` (called before the first iteration of every solve, so an
+   instance passed as ``solve(method=...)`` can be reused) and optionally
+   ``damp()`` (called when the residual grew: become more cautious; return False
+   if there is nothing left to damp).
+5. Register it with ``@register`` (then the deck's ``solver.method`` accepts its
+   name; ``selfcon.solve(deck, method=MyMixer)`` or ``method=MyMixer(...)`` works
+   without registering) and add it to the parametrised tests in
    tests/test_mixing.py (toy linear problem vs numpy.linalg.solve) and
    tests/test_scf.py (same answer on the example decks).
 """
@@ -40,6 +43,33 @@ def register(cls):
 
 def available_methods() -> tuple[str, ...]:
     return tuple(_REGISTRY)
+
+
+def make_mixer(method, spec=None) -> "Mixer":
+    """The mixer a solve uses: ``method`` is a registered name, a :class:`Mixer` subclass
+    or a :class:`Mixer` instance.
+
+    A name or a class is instantiated with the options of the deck's ``[solver]`` table
+    ``spec`` that the class declares in ``option_names`` and the deck sets; an instance is
+    used as it is (the loop calls its ``reset()`` before the first iteration).
+    """
+    if isinstance(method, Mixer):
+        return method
+    if isinstance(method, type) and issubclass(method, Mixer):
+        cls = method
+    elif isinstance(method, str):
+        if method not in _REGISTRY:
+            return get_mixer(method)          # raises, naming the registered methods
+        cls = _REGISTRY[method]
+    else:
+        raise TypeError(f"method must be a registered name ({', '.join(_REGISTRY)}), a Mixer "
+                        f"subclass or a Mixer instance, not {method!r}")
+    opts = {}
+    for name in cls.option_names:
+        val = getattr(spec, name, None)
+        if val is not None:
+            opts[name] = val
+    return cls(**opts)
 
 
 def get_mixer(name: str, **options) -> "Mixer":

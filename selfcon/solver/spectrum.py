@@ -1,6 +1,6 @@
 """Every band's states in every quantum region at one potential: the spectrum a result reports.
 
-The self-consistent loop (selfcon.solver.loop.solve_states) solves only what the charge
+The self-consistent loop (selfcon.solver.steps.solve_states) solves only what the charge
 needs: it leaves out the bands ``physics.carriers`` does not list, and a band whose
 classical charge in a region is negligible stays classical there.  A designer still
 wants e1, hh1 and lh1 of an undoped well.  :func:`full_spectrum` therefore, after
@@ -45,7 +45,7 @@ class BandSpectrum:
 
 
 def _specs():
-    from selfcon.solver.loop import BAND_SPECS
+    from selfcon.solver.steps import BAND_SPECS
     return BAND_SPECS
 
 

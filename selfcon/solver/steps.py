@@ -1,0 +1,391 @@
+"""The named steps of the self-consistent loop, and the workspace they share.
+
+:func:`selfcon.solver.loop.run_loop` calls these, in this order::
+
+    bc = boundary_conditions(structure)              # contacts -> (kind, value) per side
+    ws = Workspace(structure, bc)                    # every cache of one solve
+    phi = initial_guess(ws, phi0)                    # classical nonlinear Poisson, nested meshes
+    states = solve_states(ws, phi)                   # Schrödinger: every quantum band and region
+    phi_out, steps = poisson_pass(ws, phi, states)   # nonlinear Poisson with that charge
+    charge_residual(ws, phi, phi_out, states)        # did the sheet charge stop moving?
+
+and the result assembly (selfcon.output.assemble) asks the same workspace for the
+densities of the final potential (:func:`densities`) and the Gauss check
+(:func:`gauss_residual`).
+
+This module is also the translation between the two vocabularies: the loop speaks in
+Structures and :class:`BandStates`, the Poisson solver (selfcon.solver.poisson and its
+kernels) in arrays.  :func:`classical_problem` and :meth:`Workspace.problem` build the
+:class:`~selfcon.solver.poisson.PoissonProblem`: which nodes are quantum for which carrier,
+the |psi|^2 weights and subband DOS of every state, the classical X/L valleys.
+
+A :class:`~selfcon.model.structure.Structure` is immutable and shared (design studies
+solve one structure many times); everything one solve computes once and reuses lives in
+its :class:`Workspace`, created by the loop and handed on in the loop's outcome.
+"""
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numpy as np
+
+from selfcon.constants import CM2_PER_NM2, DOS2D_PER_M0
+from selfcon.model.dopants import statistics_binding
+from selfcon.model.structure import Structure, coarsened
+from selfcon.solver import poisson as P
+from selfcon.solver.control import POISSON_MAX_ITER, POISSON_TOL, START_TOL
+from selfcon.solver.statistics import subband_density
+
+#: band name -> (edge key, mass along z, in-plane mass, sign: +1 electrons, -1 holes, valley degeneracy)
+BAND_SPECS = {
+    "electron": ("ec_gamma", "m_e", "m_e", +1, 1),
+    "heavy_hole": ("ev_hh", "m_hh_z", "m_hh_par", -1, 1),
+    "light_hole": ("ev_lh", "m_lh_z", "m_lh_par", -1, 1),
+}
+HOLE_BANDS = ("heavy_hole", "light_hole")
+
+#: carrier name -> (band-edge key, effective-DOS key) of the classical conduction valleys
+VALLEYS = {"x_electron": ("ec_x", "nc_x"), "l_electron": ("ec_l", "nc_l")}
+
+#: a band whose classical sheet density in a region is below this (nm^-2), and below
+#: NEGLIGIBLE_FRACTION of the structure's fixed sheet charge, is left classical there
+NEGLIGIBLE_SHEET = 1e3 / CM2_PER_NM2
+NEGLIGIBLE_FRACTION = 1e-8
+#: grow the number of states while the top state still holds this fraction of the band's charge
+TOP_STATE_FRACTION = 1e-4
+MAX_STATES = 200
+#: the nested classical start begins on a mesh of about this many nodes (see start_levels)
+COARSE_START_NODES = 32
+
+
+@dataclass
+class BandStates:
+    """Bound states of one band, all regions stacked; psi is (N, k) on the full mesh."""
+
+    band: str
+    energy: np.ndarray        # (k,) eV, electron energy scale
+    psi: np.ndarray           # (N, k)
+    m_par: np.ndarray         # (k,)
+    dos: np.ndarray           # (k,) nm^-2 eV^-1 (valley degeneracy and spin included)
+    region: np.ndarray        # (k,) int
+    degeneracy: np.ndarray    # (k,)
+    sign: int
+    quantum_nodes: np.ndarray  # (N,) bool: nodes whose density of this carrier comes from these states
+
+
+# --------------------------------------------------------------------------- the workspace
+
+class Workspace:
+    """Everything one solve of one structure computes once and reuses.
+
+    Owned by :func:`selfcon.solver.loop.run_loop` (one per solve) and passed to every
+    step; the loop hands it on in its ``LoopOutcome`` so the result assembly reuses the
+    last density evaluation.  Holds:
+
+    * ``problem_classical`` / ``problem_free``: the classical Poisson problem with the
+      solve's boundary conditions and with free ends (for density evaluations);
+    * ``n_states``: the number of states asked of each band (grown while the top state
+      still holds charge, kept for the next iteration);
+    * which (band, region) pairs hold negligible charge and stay classical (decided once,
+      at the starting potential), and the eigen-solver buffers of the others;
+    * the last density evaluation (by identity of phi and the states).
+    """
+
+    def __init__(self, structure: Structure, bc):
+        self.structure = structure
+        self.bc = tuple(bc)
+        self.problem_classical = classical_problem(structure, self.bc)
+        self.problem_free = self.problem_classical.with_boundaries(
+            (P.ZERO_FIELD, 0.0), (P.ZERO_FIELD, 0.0))
+        self.n_states = {band: structure.states for band in BAND_SPECS}
+        self.negligible: dict = {}       # (band, region) -> bool
+        self.eigen: dict = {}            # (band, region) -> EigenWorkspace
+        self._last = None                # (phi, states, (n, p, nd+, na-))
+        self._classical = None           # (phi, Densities) with every carrier classical
+        m = structure.mesh
+        fixed = (np.sum((structure.cell["donors"] + structure.cell["acceptors"]) * m.h)
+                 + np.sum(structure.sheet_donors + structure.sheet_acceptors))
+        #: classical sheet density (nm^-2) below which a band is not worth an eigensolve
+        self.negligible_sheet = max(NEGLIGIBLE_SHEET, NEGLIGIBLE_FRACTION * float(fixed))
+
+    def problem(self, phi_ref, states, *, shift=1.0, boundaries=True):
+        """Poisson problem whose quantum nodes take their density from ``states``.
+
+        ``shift`` = 1: predictor (subbands follow the local potential change);
+        ``shift`` = 0: frozen quantum density (classic mixing).  ``boundaries``: the
+        solve's boundary conditions (True) or free ends (False: density evaluations).
+        """
+        base = self.problem_classical if boundaries else self.problem_free
+        return with_states(base, self.structure.n_nodes, phi_ref, states, shift)
+
+    def classical_densities(self, phi) -> P.Densities:
+        """Densities with every carrier classical at ``phi`` (the last one is remembered)."""
+        if self._classical is None or self._classical[0] is not phi:
+            self._classical = (phi, P.densities(self.problem_free, phi))
+        return self._classical[1]
+
+
+def classical_problem(st: Structure, bc=None) -> P.PoissonProblem:
+    """The classical Poisson problem of a structure (every carrier classical, no states)."""
+    c = st.cell
+    carriers = st.carriers
+    nc = c["nc"] if "electron" in carriers else np.zeros_like(c["nc"])
+    nv = c["nv"] if any(b in carriers for b in HOLE_BANDS) else np.zeros_like(c["nv"])
+    top, bottom = bc if bc is not None else ((P.ZERO_FIELD, 0.0), (P.ZERO_FIELD, 0.0))
+    ec_v, nc_v = valley_arrays(st)
+    return P.PoissonProblem(z=st.z, eps=c["eps"], ec0=c["ec_gamma"], ev0=c["ev0"], nc=nc, nv=nv,
+                            nd=c["donors"], ed=statistics_binding(c["donor_binding"]),
+                            na=c["acceptors"], ea=statistics_binding(c["acceptor_binding"]),
+                            temperature=st.temperature,
+                            sheet_nd=st.sheet_donors, sheet_na=st.sheet_acceptors,
+                            full_ionization=st.full_ionization, top=top, bottom=bottom,
+                            ec0_v=ec_v, nc_v=nc_v)
+
+
+def valley_arrays(st: Structure):
+    """(ec0_v, nc_v), each (V, N-1), of the X/L valleys the deck's carriers include."""
+    rows = [name for name in VALLEYS if name in st.carriers]
+    n = st.n_nodes - 1
+    if not rows:
+        return np.zeros((0, n)), np.zeros((0, n))
+    return (np.stack([st.cell[VALLEYS[r][0]] for r in rows]),
+            np.stack([st.cell[VALLEYS[r][1]] for r in rows]))
+
+
+def with_states(base: P.PoissonProblem, n_nodes: int, phi_ref, states, shift=1.0):
+    """``base`` with the quantum part of ``states`` (the masks, |psi|^2, levels and DOS)."""
+    kw = {}
+    e = states.get("electron")
+    if e is not None:
+        kw.update(cls_e=np.where(e.quantum_nodes, 0.0, 1.0), psi2=np.ascontiguousarray(e.psi ** 2),
+                  ek=e.energy, dos_e=e.dos)
+    holes = [states[b] for b in HOLE_BANDS if b in states]
+    if holes:
+        qn = np.zeros(n_nodes, dtype=bool)
+        for hb in holes:
+            qn |= hb.quantum_nodes
+        kw.update(cls_h=np.where(qn, 0.0, 1.0),
+                  psi2h=np.ascontiguousarray(np.concatenate([hb.psi ** 2 for hb in holes], axis=1)),
+                  ekh=np.concatenate([hb.energy for hb in holes]),
+                  dos_h=np.concatenate([hb.dos for hb in holes]))
+    prob = base.with_quantum(phi_ref=np.asarray(phi_ref, dtype=float), **kw)
+    if shift != 1.0:
+        prob = prob.with_shift(shift)
+    return prob
+
+
+# --------------------------------------------------------------------------- the steps
+
+def boundary_conditions(st: Structure):
+    """Per side (kind, value): kind 0 Dirichlet phi = value (V), kind 1 zero field."""
+    out = []
+    free = None
+    for contact, c in ((st.surface, 0), (st.substrate, st.n_nodes - 2)):
+        ec0 = st.cell["ec_gamma"][c]
+        if contact.kind == "schottky":
+            out.append((P.DIRICHLET, ec0 - (contact.barrier - contact.bias)))
+        elif contact.kind == "pinned":
+            out.append((P.DIRICHLET, ec0 - contact.barrier))
+        elif contact.kind == "ohmic":
+            free = free or classical_problem(st)
+            out.append((P.DIRICHLET, P.cell_neutral_potential(free, c)))
+        else:  # free
+            out.append((P.ZERO_FIELD, 0.0))
+    return tuple(out)
+
+
+def initial_guess(ws: Workspace, phi0=None):
+    """Starting potential and its Newton step count: the classical nonlinear Poisson
+    solution (every carrier classical) on coarsened meshes, interpolated to the full
+    mesh; or ``phi0`` (a warm start) with the Dirichlet values imposed."""
+    st, bc = ws.structure, ws.bc
+    if phi0 is not None:
+        phi = np.array(phi0, dtype=float)
+        for side, idx in ((0, 0), (1, -1)):
+            if bc[side][0] == P.DIRICHLET:
+                phi[idx] = bc[side][1]
+        return phi, 0
+    # nested start: solve the classical problem on coarsened copies of the mesh (every
+    # interface, sheet and region end kept), coarsest first, each level starting from the
+    # one before; the damped, expensive Newton phase then happens on a few dozen nodes.
+    # Small meshes (one level) solve it on the mesh itself.
+    steps = 0
+    previous = None                   # (z, phi) of the last level solved
+    for factor in start_levels(st.n_nodes):
+        if factor == 1 and previous is not None:
+            # the first predictor pass is a full nonlinear solve on the fine mesh anyway:
+            # finishing the classical problem there first would only repeat its work
+            return np.interp(st.z, *previous), steps
+        level = coarsened(st, factor)[0] if factor > 1 else st
+        prob = classical_problem(level, bc) if factor > 1 else ws.problem_classical
+        phi = linear_start(level, bc) if previous is None else np.interp(level.z, *previous)
+        sol = P.solve_poisson(prob, phi, tol=START_TOL, max_iter=POISSON_MAX_ITER)
+        steps += sol.steps
+        if not sol.converged and factor > 1:
+            continue                  # a coarse level that fails is skipped, not trusted
+        previous = (level.z, sol.phi)
+    return sol.phi, steps
+
+
+def start_levels(n_nodes: int) -> list[int]:
+    """Coarsening factors of the nested classical start, coarsest first, ending with 1:
+    the largest power of 4 leaving >= COARSE_START_NODES nodes, then 16x finer each level."""
+    f = 1
+    while n_nodes / (4 * f) >= COARSE_START_NODES:
+        f *= 4
+    levels = []
+    while f > 1:
+        levels.append(f)
+        f //= 16
+    return levels + [1]
+
+
+def linear_start(st: Structure, bc):
+    """A first potential for Newton: the boundary values joined linearly (flat if both free)."""
+    z = st.z
+    (k0, v0), (k1, v1) = bc
+    if k0 == P.DIRICHLET and k1 == P.DIRICHLET:
+        return v0 + (v1 - v0) * (z - z[0]) / (z[-1] - z[0])
+    if k0 == P.DIRICHLET:
+        return np.full(z.size, v0)
+    if k1 == P.DIRICHLET:
+        return np.full(z.size, v1)
+    mid = st.n_nodes // 2 - 1 if st.n_nodes > 2 else 0
+    return np.full(z.size, P.cell_neutral_potential(classical_problem(st), mid))
+
+
+def interpolate_guess(st: Structure, guess):
+    """A starting potential on this structure's mesh from ``guess``: phi (V) per node, or
+    ``(z_nm, phi_V)`` from another mesh (linear interpolation)."""
+    if isinstance(guess, tuple) and len(guess) == 2:
+        z_old, phi_old = (np.asarray(a, dtype=float) for a in guess)
+        return np.interp(st.z, z_old, phi_old)
+    arr = np.asarray(guess, dtype=float)
+    if arr.shape != st.z.shape:
+        raise ValueError(f"initial_potential has {arr.size} values but the mesh has {st.z.size} nodes; "
+                         "pass (z_nm, phi_V) to interpolate")
+    return arr
+
+
+def solve_states(ws: Workspace, phi) -> dict:
+    """Schrödinger in every quantum region for every quantum band at potential ``phi``:
+    band name -> :class:`BandStates`."""
+    from selfcon.solver import schrodinger
+    st = ws.structure
+    out = {}
+    n = st.n_nodes
+    for band, (edge_key, mass_key, par_key, sign, gval) in BAND_SPECS.items():
+        if band not in st.carriers or not st.regions:
+            continue
+        edge_node = st.node_average(st.cell[edge_key]) - phi      # band edge with electrostatics
+        energies, psis, mpar, regs = [], [], [], []
+        qnodes = np.zeros(n, dtype=bool)
+        for r_idx, (i0, i1) in enumerate(st.regions):
+            if i1 - i0 < 3:
+                continue
+            key = (band, r_idx)
+            if key not in ws.negligible:        # decided once per solve, at the starting potential
+                ws.negligible[key] = classical_sheet(ws, phi, band, i0, i1) < ws.negligible_sheet
+            if ws.negligible[key]:
+                continue           # this carrier is absent here: leave it classical (negligible)
+            qnodes[i0:i1 + 1] = True
+            sl = slice(i0, i1 + 1)
+            h = st.mesh.h[i0:i1]
+            w = st.mesh.w[sl].copy()
+            w[0] = st.mesh.wr[i0]
+            w[-1] = st.mesh.wl[i1]
+            v = sign * edge_node[sl]                  # holes: kinetic energy up = -Ev
+            inv_m = 1.0 / st.cell[mass_key][i0:i1]
+            eig = ws.eigen.get(key)
+            if eig is None:
+                eig = ws.eigen[key] = schrodinger.EigenWorkspace(i1 - i0 + 1)
+            k = ws.n_states[band]
+            while True:
+                e, p = schrodinger.solve_region(h, w, v, inv_m, k, workspace=eig)
+                occ = subband_density(sign * e, np.ones(e.size), st.temperature, sign)
+                if (e.size < k or k >= MAX_STATES or occ.sum() <= 0
+                        or occ[-1] < TOP_STATE_FRACTION * occ.sum()):
+                    break
+                k = min(2 * k, MAX_STATES)
+                ws.n_states[band] = k
+            full = np.zeros((n, e.size))
+            full[sl, :] = p
+            energies.append(sign * e)
+            psis.append(full)
+            m_par_node = st.node_average(st.cell[par_key])
+            mpar.append(schrodinger.in_plane_mass(full, st.mesh.w, m_par_node))
+            regs.append(np.full(e.size, r_idx))
+        if not energies:
+            continue
+        E = np.concatenate(energies)
+        order = np.argsort(sign * E, kind="stable")     # lowest kinetic energy first
+        psi = np.concatenate(psis, axis=1)[:, order]
+        m_par = np.concatenate(mpar)[order]
+        deg = np.full(E.size, float(gval))
+        out[band] = BandStates(band=band, energy=E[order], psi=psi, m_par=m_par,
+                               dos=deg * DOS2D_PER_M0 * m_par, region=np.concatenate(regs)[order],
+                               degeneracy=deg, sign=sign, quantum_nodes=qnodes)
+    return out
+
+
+def classical_sheet(ws: Workspace, phi, band, i0, i1) -> float:
+    """Classical sheet density (nm^-2) of a carrier over nodes i0..i1 at potential phi."""
+    dens = ws.classical_densities(phi)
+    arr = dens.n if band == "electron" else dens.p
+    return float(np.sum(arr[i0:i1 + 1] * ws.structure.mesh.w[i0:i1 + 1]))
+
+
+def poisson_pass(ws: Workspace, phi, states, *, predictor: bool, tol: float = POISSON_TOL,
+                 max_newton: int = POISSON_MAX_ITER, backtrack: bool = True):
+    """Nonlinear Poisson with the quantum density of ``states``: with ``predictor`` the
+    subbands follow the potential change (Trellakis et al., J. Appl. Phys. 81, 7880 (1997)),
+    else their density is frozen.  Newton to ``tol`` (V) or at most ``max_newton`` steps;
+    returns (phi_out, Newton steps)."""
+    prob = ws.problem(phi, states, shift=1.0 if predictor else 0.0)
+    sol = P.solve_poisson(prob, phi, tol=tol, max_iter=max_newton, backtrack=backtrack)
+    return sol.phi, sol.steps
+
+
+def densities(ws: Workspace, phi, states):
+    """(n, p, Nd+, Na-) at the nodes in nm^-3, with the subband density where it applies.
+
+    The last evaluation is remembered (by identity of phi and states): the loop's charge
+    check and the result assembly ask for the same one."""
+    last = ws._last
+    if last is not None and last[0] is phi and last[1] is states:
+        return last[2]
+    d = P.densities(ws.problem(phi, states, boundaries=False), phi)
+    out = (d.n, d.p, d.nd_plus, d.na_minus)
+    ws._last = (phi, states, out)
+    return out
+
+
+def mobile_sheets(ws: Workspace, phi_ref, phi, states):
+    """(electron, hole) sheet densities (nm^-2) at ``phi`` with the subbands of ``phi_ref``
+    shifted by the local potential change (the predictor density)."""
+    w = ws.structure.mesh.w
+    if phi is phi_ref:
+        n, p, _, _ = densities(ws, phi, states)
+        return float(np.dot(n, w)), float(np.dot(p, w))
+    d = P.densities(ws.problem(phi_ref, states, boundaries=False), phi)
+    return float(np.dot(d.n, w)), float(np.dot(d.p, w))
+
+
+def charge_residual(ws: Workspace, phi, phi_out, states) -> float:
+    """Relative change of the mobile sheet charge over one step: subband density at phi
+    against the (predicted) density at phi_out, both with the same states."""
+    n0, p0 = mobile_sheets(ws, phi, phi, states)
+    n1, p1 = mobile_sheets(ws, phi, phi_out, states)
+    total = n0 + p0
+    return abs((n1 + p1) - total) / max(total, 1e-6 / CM2_PER_NM2)
+
+
+def gauss_residual(ws: Workspace, phi, states, rho=None) -> float:
+    """Gauss's law check of the solution (rho: its node charge, if already computed)."""
+    return P.gauss_residual(ws.problem(phi, states), phi, rho)
+
+
+__all__ = ["BAND_SPECS", "VALLEYS", "BandStates", "Workspace", "boundary_conditions",
+           "initial_guess", "start_levels", "linear_start", "interpolate_guess", "solve_states",
+           "poisson_pass", "charge_residual", "densities", "mobile_sheets", "gauss_residual",
+           "classical_problem", "valley_arrays", "with_states"]
