@@ -85,7 +85,7 @@ def _require_file(path: Path, what: str):
 # --------------------------------------------------------------------------- progress
 
 class Progress:
-    """The ``progress(iteration, residual)`` callback of selfcon.solve, shown on stderr.
+    """The ``progress(record)`` callback of selfcon.solve, shown on stderr.
 
     mode "rich": a spinner and a bar of log10 progress towards the tolerance (terminals only);
     "plain": one line per iteration (pipes, logs, CI); "off": nothing.
@@ -114,7 +114,9 @@ class Progress:
             self._progress.__exit__(*exc)
         return False
 
-    def __call__(self, iteration: int, residual: float) -> None:
+    def __call__(self, record) -> None:
+        """Show one iteration (a selfcon.solver.loop.IterationRecord)."""
+        iteration, residual = record.iteration, record.residual
         limit = f"/{self.max_iterations}" if self.max_iterations else ""
         text = f"iteration {iteration}{limit}  max |dphi| = {residual:.2e} V"
         if self.mode == "plain":
