@@ -195,8 +195,8 @@ def solve(deck: Deck | str | os.PathLike, *, initial_potential: Any = None,
     >>> result.converged, result.summary["channel_layer"]
     (True, 'channel')
     >>> short = solve(load_deck("inputs/hemt_4K.toml"), max_iterations=1)
-    >>> short.converged, short.status
-    (False, 1)
+    >>> short.converged, int(short.status), short.status.name
+    (False, 1, 'MAX_ITERATIONS')
     """
     t0 = time.perf_counter()
     if not isinstance(deck, Deck):
