@@ -2,9 +2,11 @@
 
     study.py      study TOML -> Study -> expand() -> one JobSpec (deck text + hash) per job
     queue.py      the SQLite job queue in the output folder (coordinator is the only writer)
-    executors.py  local process pool (default) and Dask distributed
-    worker.py     the pure job function run by the executors (deck text -> Result)
+    executors.py  local worker pool (default) and Dask distributed (LocalCluster, a scheduler, dask-jobqueue)
+    worker.py     the pure job function run by the executors (deck text -> result file image + figures)
+    summary.py    the table's summary figures of one Result (computed in the worker)
     runner.py     the coordinator: sync queue, feed the executor, write jobs/<id>.h5 and the tables
+    logs.py       --log FILE: the batch loggers (and Dask's) to a file
     commands.py   `selfcon batch` and `selfcon queue`
 
 Python use::

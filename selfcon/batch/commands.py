@@ -1,7 +1,9 @@
 """`selfcon batch` and `selfcon queue` (registered into the main CLI by selfcon.cli)."""
 from __future__ import annotations
 
+import argparse
 import json
+import os
 import sys
 from pathlib import Path
 
@@ -9,12 +11,19 @@ from selfcon.errors import StudyError
 
 BATCH_HELP = """Run a study (a base deck plus variations) as queued jobs; rerunning resumes.
 
+Where the jobs run: a pool of local worker processes (default, --workers); a Dask cluster
+on this machine (--scheduler local); a running Dask scheduler (--scheduler tcp://HOST:PORT
+or --scheduler-file FILE); or a SLURM/PBS/... cluster that selfcon starts itself with
+dask-jobqueue from the site's Dask configuration (--cluster slurm) and grows and shrinks
+between --min-workers and --max-workers.
+
 The output folder (--out) must be new, empty, or the folder of this same study (the study
 file and base deck recorded in its queue): nothing else is ever written into.
 
 Exit codes: 0 every job done, 3 some jobs not converged or failed, 130 interrupted (rerun to
-continue), 2 bad study, deck or output folder, 4 the environment failed (disk full,
-permissions, corrupt queue.sqlite, scheduler), 1 internal error."""
+continue), 2 bad study, deck, option or output folder, 4 the environment failed (disk full,
+permissions, corrupt queue.sqlite, Dask scheduler unreachable or lost, workers running another
+selfcon), 1 internal error."""
 
 
 def register(subparsers):
@@ -26,8 +35,27 @@ def register(subparsers):
     b.add_argument("--out", "-o", default=None,
                    help="output folder: new, empty, or this study's earlier one (default: beside the study, "
                         "named after it)")
-    b.add_argument("--scheduler", default=None,
-                   help="Dask: 'local' starts a LocalCluster on 127.0.0.1, or tcp://HOST:PORT of a running one")
+    where = b.add_mutually_exclusive_group()
+    where.add_argument("--scheduler", default=None,
+                       help="Dask: 'local' starts a LocalCluster on 127.0.0.1, or tcp://HOST:PORT of a running one")
+    where.add_argument("--scheduler-file", default=None, metavar="FILE",
+                       help="Dask: connect to the scheduler that wrote FILE (dask scheduler --scheduler-file FILE)")
+    from selfcon.batch.executors import DEFAULT_BACKLOG, JOBQUEUE_CLASSES
+    where.add_argument("--cluster", default=None, choices=sorted(JOBQUEUE_CLASSES), metavar="KIND",
+                       help="start a dask-jobqueue cluster of KIND (" + ", ".join(sorted(JOBQUEUE_CLASSES)) +
+                       ") from the Dask configuration (jobqueue.yaml) and adapt it to the study")
+    b.add_argument("--min-workers", type=int, default=0, help="--cluster: workers kept even when idle (default 0)")
+    b.add_argument("--max-workers", type=int, default=None,
+                   help="--cluster: most workers (single-threaded processes) asked for "
+                        "(default: the processes of one batch job, i.e. jobqueue.KIND.cores)")
+    b.add_argument("--backlog", type=float, default=DEFAULT_BACKLOG,
+                   help="Dask: tasks kept queued at the scheduler, as a multiple of its threads (or of "
+                        f"--max-workers), so an adaptive cluster sees the work (default {DEFAULT_BACKLOG:g})")
+    b.add_argument("--numba-cache", default=None, metavar="DIR",
+                   help="compiled-kernel cache shared by the coordinator and every worker (sets "
+                        "NUMBA_CACHE_DIR; default: $NUMBA_CACHE_DIR if set)")
+    b.add_argument("--log", default=None, metavar="FILE",
+                   help="append a line per job event (with times), and Dask's own lines, to FILE")
     b.add_argument("--retries", type=int, default=2,
                    help="attempts beyond the first for a job that failed or lost its worker (default 2)")
     b.add_argument("--memory-limit", default="4GiB", help="memory per Dask worker of --scheduler local")
@@ -59,8 +87,25 @@ def batch_command(args) -> int:
         raise StudyError("must be >= 1", key="--workers")
     if args.retries < 0:
         raise StudyError("must be >= 0", key="--retries")
+    if args.min_workers < 0:
+        raise StudyError("must be >= 0", key="--min-workers")
+    if args.max_workers is not None and args.max_workers < max(1, args.min_workers):
+        raise StudyError(f"must be >= 1 and >= --min-workers ({args.min_workers})", key="--max-workers")
+    if not (args.backlog >= 0):
+        raise StudyError("must be >= 0", key="--backlog")
+    if (args.min_workers or args.max_workers is not None) and not args.cluster:
+        raise StudyError("only with --cluster", key="--min-workers" if args.min_workers else "--max-workers")
+    if args.scheduler_file and not Path(args.scheduler_file).is_file():
+        raise StudyError("no such file (start the scheduler with --scheduler-file first)",
+                         key="--scheduler-file", file=args.scheduler_file)
+    numba_cache = args.numba_cache or os.environ.get("NUMBA_CACHE_DIR") or None
+    if numba_cache and not Path(numba_cache).is_dir():
+        raise StudyError("not a folder", key="--numba-cache", file=numba_cache)
     code, counts, out_dir = run_study(args.study, workers=args.workers, out=args.out, scheduler=args.scheduler,
-                                      retries=args.retries, quiet=args.quiet, memory_limit=args.memory_limit)
+                                      scheduler_file=args.scheduler_file, cluster=args.cluster,
+                                      min_workers=args.min_workers, max_workers=args.max_workers,
+                                      backlog=args.backlog, retries=args.retries, quiet=args.quiet,
+                                      memory_limit=args.memory_limit, log_file=args.log, numba_cache=numba_cache)
     from selfcon.batch.runner import _fmt_counts
     tail = {0: "", 3: "  (see table.csv)", 130: "  (interrupted: rerun to continue)"}.get(code, "")
     print(f"{out_dir}: {_fmt_counts(counts)}{tail}")

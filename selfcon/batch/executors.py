@@ -1,215 +1,581 @@
-"""Where the jobs run: a local process pool (default) or a Dask distributed cluster.
+"""Where the jobs run: a local pool of worker processes (default) or a Dask cluster.
 
-Both executors have the same small interface, used only by the coordinator::
+Both executors have one small interface, used only by the coordinator::
 
-    ex.capacity                 how many jobs to keep in flight
-    ex.submit(job_id, attempt, *args)
-    ex.poll(timeout) -> [(job_id, "ok", outcome) | (job_id, "died", message), ...]
-    ex.in_flight                set of job ids submitted and not yet reported
+    ex.parallelism              jobs that can run at once (workers, or Dask threads)
+    ex.chunk_target, ex.max_chunk   seconds of work per task, and a cap: the coordinator
+                                sends several short jobs per task (see Coordinator._chunk)
+    ex.slots(alone=False)       how many more tasks to submit now (alone: tasks that must
+                                have a worker to themselves)
+    ex.submit(jobs, alone=False)    jobs: [(job_id, deck_text, initial), ...], run in order
+    ex.poll(timeout) -> [(job_id, kind, payload), ...]
+    ex.busy                     how many jobs are in flight
+    ex.in_flight                {job_id: time.time() it started, or None if not known}
+    ex.kill_job(job_id)         stop the process running it (reported as "died")
     ex.shutdown(cancel=False)
 
-"ok" means the job function returned (its outcome may still say the job
-raised); "died" means the process running it disappeared (the job is
-requeued by the coordinator, with its attempt counted).
+Event kinds:
+
+    "ok"    the job function returned; payload is its outcome (which may say the job failed)
+    "died"     the process running this very job disappeared: the attempt counts, and the
+               job runs alone from then on
+    "suspect"  the job sat in a task of several jobs that Dask gave up on (which one killed
+               its workers is unknown): requeued, not counted, and it runs alone from then on
+    "lost"     the job had not started when its worker died: requeued, not counted
+
+An environment failure (a worker of another selfcon, an unreachable scheduler) raises
+:class:`selfcon.errors.SelfconEnvironmentError`.  Dask is imported only by :class:`DaskPool`.
 """
 from __future__ import annotations
 
-import concurrent.futures as cf
+import collections
+import logging
+import math
 import multiprocessing
+import multiprocessing.connection as mpc
 import os
+import queue
+import signal
+import threading
+import time
 import uuid
-from concurrent.futures.process import BrokenProcessPool
+
+from selfcon.errors import SelfconEnvironmentError, StudyError
+
+log = logging.getLogger("selfcon.batch")
 
 DIED = "worker process died"
 
+#: tasks kept at the Dask scheduler beyond its threads, as a multiple of its threads (or of
+#: --max-workers for an adaptive cluster): Dask's adaptive target is the queued work over
+#: distributed.adaptive.target-duration (5 s), capped by the number of tasks, so a cluster
+#: only grows to what it can see
+DEFAULT_BACKLOG = 4.0
+
+#: --cluster names and their dask-jobqueue classes
+JOBQUEUE_CLASSES = {"slurm": "SLURMCluster", "pbs": "PBSCluster", "sge": "SGECluster", "lsf": "LSFCluster",
+                    "htcondor": "HTCondorCluster", "oar": "OARCluster", "moab": "MoabCluster"}
+
+#: environment of every batch job that dask-jobqueue submits (one thread per worker process;
+#: the libraries' own variables too, since a Dask worker may load numpy before selfcon)
+THREAD_VARIABLES = ("SELFCON_THREADS", "OMP_NUM_THREADS", "OPENBLAS_NUM_THREADS", "MKL_NUM_THREADS",
+                    "NUMBA_NUM_THREADS")
+
+
+def _death_message(exitcode):
+    if exitcode is not None and exitcode < 0:
+        try:
+            name = signal.Signals(-exitcode).name
+        except ValueError:
+            name = f"signal {-exitcode}"
+        return f"{DIED} (killed by {name})"
+    return f"{DIED} (exit code {exitcode})"
+
+
+# --------------------------------------------------------------------------- local pool
+
+def _pool_main(task_r, result_w, job_spec, parent_pid):
+    """A local worker process: run the tasks sent on ``task_r``, send each job's outcome on ``result_w``.
+
+    A reader thread takes tasks off the pipe as they come, so the coordinator never blocks
+    sending one while this process is busy sending a large result back.  End of file on
+    the task pipe (the coordinator is gone) ends the process at once."""
+    from selfcon.batch.worker import init_worker, resolve, run_one
+    init_worker(parent_pid)
+    fn = resolve(job_spec)
+    inbox = queue.SimpleQueue()
+
+    def reader():
+        try:
+            while True:
+                inbox.put(task_r.recv())
+        except (EOFError, OSError):
+            os._exit(0)
+
+    threading.Thread(target=reader, name="selfcon-tasks", daemon=True).start()
+    while True:
+        task = inbox.get()
+        if task is None:
+            return
+        batch, sent = [], time.monotonic()
+        for job_id, deck_text, initial in task:
+            batch.append((job_id, run_one(fn, deck_text, initial)))
+            if time.monotonic() - sent >= SEND_EVERY:
+                _send(result_w, batch)
+                batch, sent = [], time.monotonic()
+        if batch:
+            _send(result_w, batch)
+
+
+#: a worker sends the outcomes of short jobs together, at most this many seconds late
+SEND_EVERY = 0.02
+
+
+def _send(conn, batch):
+    try:
+        conn.send(batch)
+    except Exception:       # an outcome that does not pickle: send the others, and an error for it
+        for job_id, out in batch:
+            try:
+                conn.send([(job_id, out)])
+            except Exception as exc:
+                conn.send([(job_id, {"ok": False, "error": f"cannot send the outcome: {type(exc).__name__}: {exc}",
+                                     "seconds": out.get("seconds") if isinstance(out, dict) else None,
+                                     "pid": os.getpid()})])
+
+
+class _Slot:
+    __slots__ = ("proc", "tx", "rx", "tasks", "alone", "started", "index")
+
+    def __init__(self, index, proc, tx, rx):
+        self.index, self.proc, self.tx, self.rx = index, proc, tx, rx
+        self.tasks = collections.deque()     # lists of job ids, in the order sent; tasks[0][0] is running
+        self.alone = False                   # the task it holds must have the process to itself
+        self.started = None                  # when tasks[0][0] started (its predecessor's result came)
+
 
 class LocalPool:
-    """ProcessPoolExecutor with a spawn/forkserver context (never fork: numba and threads).
+    """Worker processes of our own, one pipe pair each (spawn/forkserver, never fork: numba and threads).
 
-    A worker killed by a signal breaks the whole pool, failing every in-flight
-    future; the pool is rebuilt and the in-flight jobs come back as "died".
+    The pool knows which job each process runs, so a process that dies charges only that
+    job ("died"); the jobs queued behind it come back "lost" (not charged), a new process
+    takes its place, and the other processes carry on.
     """
 
-    def __init__(self, workers, fn, *, context=None, initializer=None):
+    chunk_target = 0.05
+    max_chunk = 64
+
+    def __init__(self, workers, job_spec, *, context=None):
         self.workers = max(1, int(workers))
-        self.fn = fn
+        self.job_spec = job_spec
         if context is None:
             context = "forkserver" if "forkserver" in multiprocessing.get_all_start_methods() else "spawn"
         self.context = multiprocessing.get_context(context)
-        self.initializer = initializer
-        self.pool = None
-        self.futures = {}            # future -> job id
-        self.rebuilds = 0
-        self._start()
+        self.prefetch = False                # a second task per process (set by the coordinator for tiny jobs)
+        self.closing = False
+        self.respawns = 0
+        self.slots_ = [self._spawn(i) for i in range(self.workers)]
 
-    def _start(self):
-        initargs = (os.getpid(),) if self.initializer is not None else ()
-        self.pool = cf.ProcessPoolExecutor(max_workers=self.workers, mp_context=self.context,
-                                           initializer=self.initializer, initargs=initargs)
+    def _spawn(self, index):
+        task_r, task_w = self.context.Pipe(duplex=False)
+        result_r, result_w = self.context.Pipe(duplex=False)
+        proc = self.context.Process(target=_pool_main, args=(task_r, result_w, self.job_spec, os.getpid()),
+                                    name=f"selfcon-worker-{index}", daemon=True)
+        proc.start()
+        task_r.close()
+        result_w.close()
+        log.debug("worker %d started (pid %d)", index, proc.pid)
+        return _Slot(index, proc, task_w, result_r)
 
     @property
-    def capacity(self):
+    def parallelism(self):
         return self.workers
 
     @property
+    def busy(self):
+        """Jobs in flight (a count; cheaper than in_flight)."""
+        return sum(len(t) for s in self.slots_ for t in s.tasks)
+
+    @property
     def in_flight(self):
-        return set(self.futures.values())
-
-    def worker_pids(self):
-        procs = getattr(self.pool, "_processes", None) or {}
-        return [p.pid for p in procs.values() if p.is_alive()]
-
-    def submit(self, job_id, attempt, *args):
-        try:
-            fut = self.pool.submit(self.fn, *args)
-        except BrokenProcessPool:
-            self._rebuild()
-            fut = self.pool.submit(self.fn, *args)
-        self.futures[fut] = job_id
-
-    def poll(self, timeout):
-        if not self.futures:
-            return []
-        done, _ = cf.wait(list(self.futures), timeout=timeout, return_when=cf.FIRST_COMPLETED)
-        out = []
-        broken = False
-        for fut in done:
-            exc = fut.exception()
-            if isinstance(exc, BrokenProcessPool):
-                broken = True
-                continue
-            job = self.futures.pop(fut)
-            if exc is None:
-                out.append((job, "ok", fut.result()))
-            else:   # the job function itself never raises; this is e.g. an unpicklable outcome
-                out.append((job, "ok", {"ok": False, "error": f"{type(exc).__name__}: {exc}", "seconds": None}))
-        if broken:
-            # every future still pending is lost with the pool; harvest those that did finish
-            cf.wait(list(self.futures), timeout=10)
-            for fut, job in list(self.futures.items()):
-                exc = fut.exception() if fut.done() else BrokenProcessPool()
-                if exc is None:
-                    out.append((job, "ok", fut.result()))
-                else:
-                    out.append((job, "died", DIED))
-            self.futures.clear()
-            self._rebuild()
+        out = {}
+        for s in self.slots_:
+            first = True
+            for task in s.tasks:
+                for job in task:
+                    out[job] = s.started if first else None
+                    first = False
         return out
 
-    def _rebuild(self):
-        try:
-            self.pool.shutdown(wait=False, cancel_futures=True)
-        except Exception:
-            pass
-        self.rebuilds += 1
-        self._start()
+    def worker_pids(self):
+        return [s.proc.pid for s in self.slots_ if s.proc.is_alive()]
 
-    def shutdown(self, cancel=False):
-        if self.pool is None:
-            return
-        if cancel:
-            for fut in self.futures:
-                fut.cancel()
-            # the running jobs are abandoned: stop their processes
-            for pid in self.worker_pids():
+    def slots(self, alone=False):
+        if alone:
+            return sum(1 for s in self.slots_ if not s.tasks)
+        depth = 2 if self.prefetch else 1
+        return sum(depth - len(s.tasks) for s in self.slots_ if not s.alone and len(s.tasks) < depth)
+
+    def submit(self, jobs, alone=False):
+        if alone:
+            free = [s for s in self.slots_ if not s.tasks]
+        else:
+            depth = 2 if self.prefetch else 1
+            free = sorted((s for s in self.slots_ if not s.alone and len(s.tasks) < depth), key=lambda s: len(s.tasks))
+        if not free:
+            raise RuntimeError("submit without a free slot")
+        s = free[0]
+        if not s.tasks:
+            s.started = time.time()
+        s.tasks.append([j[0] for j in jobs])
+        s.alone = alone
+        s.tx.send(list(jobs))
+        for j in jobs:
+            log.info("job %d sent to worker %d (pid %d)%s", j[0], s.index, s.proc.pid, " alone" if alone else "")
+
+    def poll(self, timeout):
+        busy = [s for s in self.slots_ if s.tasks]
+        if not busy:
+            return []
+        by_conn = {s.rx: s for s in busy}
+        by_sentinel = {s.proc.sentinel: s for s in busy}
+        ready = mpc.wait(list(by_conn) + list(by_sentinel), timeout)
+        out = []
+        dead = set()
+        for r in ready:
+            s = by_conn.get(r)
+            if s is not None:
+                if not self._drain(s, out):
+                    dead.add(s)
+            else:
+                dead.add(by_sentinel[r])
+        for s in dead:
+            self._drain(s, out)
+            self._bury(s, out)
+        return out
+
+    def _drain(self, s, out):
+        """Read every outcome waiting on ``s``'s pipe; False at end of file (the process is gone)."""
+        try:
+            while s.rx.poll():
+                for job_id, outcome in s.rx.recv():
+                    task = s.tasks[0]
+                    task.remove(job_id)
+                    if not task:
+                        s.tasks.popleft()
+                        if not s.tasks:
+                            s.alone = False
+                    s.started = time.time()
+                    out.append((job_id, "ok", outcome))
+        except (EOFError, OSError):
+            return False
+        return True
+
+    def _bury(self, s, out):
+        s.proc.join(timeout=5)
+        message = _death_message(s.proc.exitcode)
+        jobs = [j for task in s.tasks for j in task]
+        if jobs:
+            log.warning("worker %d (pid %d): %s while running job %d", s.index, s.proc.pid, message, jobs[0])
+            out.append((jobs[0], "died", message))
+            out.extend((j, "lost", f"{message} (not started)") for j in jobs[1:])
+        for c in (s.tx, s.rx):
+            try:
+                c.close()
+            except OSError:
+                pass
+        if not self.closing:
+            self.respawns += 1
+            self.slots_[s.index] = self._spawn(s.index)
+
+    def kill_job(self, job_id):
+        for s in self.slots_:
+            if s.tasks and s.tasks[0][0] == job_id:
                 try:
-                    os.kill(pid, 15)
+                    os.kill(s.proc.pid, signal.SIGKILL)
                 except OSError:
                     pass
-        self.pool.shutdown(wait=True, cancel_futures=cancel)
-        self.pool = None
+                return True
+        return False
+
+    def shutdown(self, cancel=False):
+        self.closing = True
+        for s in self.slots_:
+            if cancel and s.proc.is_alive():
+                try:
+                    os.kill(s.proc.pid, signal.SIGTERM)
+                except OSError:
+                    pass
+            else:
+                try:
+                    s.tx.send(None)
+                except OSError:
+                    pass
+        deadline = time.time() + (5 if cancel else 30)
+        for s in self.slots_:
+            s.proc.join(timeout=max(0.1, deadline - time.time()))
+            if s.proc.is_alive():
+                s.proc.kill()
+                s.proc.join(timeout=5)
+            for c in (s.tx, s.rx):
+                try:
+                    c.close()
+                except OSError:
+                    pass
+
+
+# --------------------------------------------------------------------------- Dask
+
+def _walltime_seconds(text):
+    """'HH:MM:SS', 'MM:SS', 'D-HH:MM:SS' or minutes -> seconds (None if unreadable)."""
+    try:
+        days = 0
+        if "-" in str(text):
+            d, text = str(text).split("-", 1)
+            days = int(d)
+        parts = [float(p) for p in str(text).split(":")]
+    except (TypeError, ValueError):
+        return None
+    if len(parts) == 1:
+        parts = [0.0, parts[0], 0.0]
+    elif len(parts) == 2:
+        parts = [0.0] + parts
+    h, m, s = parts[-3:]
+    return days * 86400 + h * 3600 + m * 60 + s
+
+
+def jobqueue_cluster(kind, *, numba_cache_dir=None, **overrides):
+    """A dask-jobqueue cluster of ``kind`` (slurm, pbs, ...) from the site's Dask configuration
+    (``jobqueue.yaml``, section ``jobqueue.<kind>``), with one single-threaded worker process per
+    core, ``SELFCON_THREADS=1`` (and the usual BLAS/OpenMP/numba variables) and, if given,
+    ``NUMBA_CACHE_DIR`` exported in every batch job, and a worker ``--lifetime`` ending 5 min
+    (or 5 %) before the walltime.  Nothing is submitted: that is ``adapt()``'s business.
+    """
+    if kind not in JOBQUEUE_CLASSES:
+        raise StudyError(f"unknown cluster kind {kind!r}", key="--cluster", allowed=" | ".join(JOBQUEUE_CLASSES))
+    try:
+        import dask
+        import dask_jobqueue
+    except ImportError as exc:
+        raise StudyError(f"needs dask-jobqueue ({exc}); install selfcon[cluster]", key="--cluster") from None
+    cls = getattr(dask_jobqueue, JOBQUEUE_CLASSES[kind])
+    conf = dask.config.get(f"jobqueue.{kind}", default={}) or {}
+    cores = overrides.get("cores", conf.get("cores"))
+    for key in ("cores", "memory"):
+        if overrides.get(key, conf.get(key)) in (None, ""):
+            raise StudyError(f"jobqueue.{kind}.{key} is not set in the Dask configuration "
+                             f"(e.g. ~/.config/dask/jobqueue.yaml, or DASK_CONFIG)", key="--cluster")
+    prologue = list(overrides.pop("job_script_prologue", None) or conf.get("job-script-prologue") or [])
+    prologue += [f"export {v}=1" for v in THREAD_VARIABLES]
+    if numba_cache_dir:
+        prologue.append(f"export NUMBA_CACHE_DIR={numba_cache_dir}")
+    extra = list(overrides.pop("worker_extra_args", None) or conf.get("worker-extra-args") or [])
+    walltime = _walltime_seconds(overrides.get("walltime", conf.get("walltime")))
+    if walltime and walltime > 600 and not any(str(a).startswith("--lifetime") for a in extra):
+        life = int(walltime - max(300, 0.05 * walltime))
+        stagger = int(min(300, 0.1 * life))
+        extra += ["--lifetime", f"{life}s", "--lifetime-stagger", f"{stagger}s"]
+    kwargs = dict(processes=int(cores), job_script_prologue=prologue, worker_extra_args=extra)
+    kwargs.update(overrides)
+    try:
+        cluster = cls(**kwargs)
+    except (ValueError, TypeError) as exc:
+        raise StudyError(f"dask-jobqueue refused the configuration of jobqueue.{kind}: {exc}",
+                         key="--cluster") from None
+    cluster.selfcon_processes = int(kwargs["processes"])     # workers per batch job
+    return cluster
 
 
 class DaskPool:
-    """Dask distributed: ``address = "local"`` starts a LocalCluster, else connects to a scheduler.
+    """Dask distributed: a LocalCluster (``address="local"``), a running scheduler (``address``
+    or ``scheduler_file``), or a dask-jobqueue cluster (``cluster="slurm"``, ...) that adapts
+    between ``min_workers`` and ``max_workers``.
 
-    Tasks are submitted with ``pure=False`` and a per-attempt key, so a retried job
-    is really recomputed; the scheduler reschedules tasks of a dead worker itself,
-    and a task that killed too many workers comes back as "died".
+    Keeps ``threads + ceil(backlog * max(threads, max_workers))`` tasks at the scheduler.
+    Every task has its own key (``pure=False``), so a retried job is really recomputed.
+    Before any job runs the workers' selfcon and Python are compared with the coordinator's;
+    every task checks again on the worker that runs it (workers that join later).
     """
 
-    def __init__(self, address, workers, fn, *, memory_limit="4GiB"):
-        from distributed import Client, LocalCluster
-        self.fn = fn
+    chunk_target = 0.5
+    max_chunk = 256
+
+    def __init__(self, job_spec, *, address=None, scheduler_file=None, cluster=None, workers=None,
+                 memory_limit="4GiB", min_workers=0, max_workers=None, backlog=DEFAULT_BACKLOG,
+                 numba_cache_dir=None, connect_timeout=30):
+        from selfcon.batch.worker import environment
+        self.job_spec = job_spec
+        self.backlog = float(backlog)
         self.cluster = None
-        if address == "local":
-            self.cluster = LocalCluster(n_workers=max(1, int(workers)), threads_per_worker=1, processes=True,
-                                        host="127.0.0.1", scheduler_port=0, dashboard_address=None,
-                                        memory_limit=memory_limit, silence_logs=40)
-            self.client = Client(self.cluster)
-        else:
-            self.client = Client(address, timeout="30s")
-        self.requested = workers
-        self.futures = {}
-        self._capacity = None
+        self.target_threads = 0
+        self.expected = environment()
+        try:
+            from distributed import Client, LocalCluster
+        except ImportError as exc:
+            raise StudyError(f"needs Dask distributed ({exc}); install selfcon[cluster]", key="--scheduler") from None
+        where = scheduler_file or address or cluster
+        try:
+            if cluster:
+                self.cluster = jobqueue_cluster(cluster, numba_cache_dir=numba_cache_dir)
+                self.client = Client(self.cluster)
+                top = max_workers if max_workers is not None else self.cluster.selfcon_processes
+                self.cluster.adapt(minimum=int(min_workers or 0), maximum=int(top))
+                self.target_threads = int(top)
+                where = f"the {cluster} cluster's scheduler {self.cluster.scheduler_address}"
+            elif address == "local":
+                self.cluster = LocalCluster(n_workers=max(1, int(workers or 1)), threads_per_worker=1,
+                                            processes=True, host="127.0.0.1", scheduler_port=0,
+                                            dashboard_address=":0", memory_limit=memory_limit, silence_logs=40)
+                self.client = Client(self.cluster)
+                log.info("Dask LocalCluster of %d workers, dashboard %s", int(workers or 1), self.cluster.dashboard_link)
+            elif scheduler_file:
+                self.client = Client(scheduler_file=str(scheduler_file), timeout=f"{connect_timeout}s")
+            else:
+                self.client = Client(address, timeout=f"{connect_timeout}s")
+        except (OSError, TimeoutError) as exc:
+            self._close()
+            raise SelfconEnvironmentError(f"cannot reach the Dask scheduler at {where}: "
+                                          f"{type(exc).__name__}: {exc}") from None
+        self.where = where
+        self.tasks = {}                      # future -> [job ids]
+        self._busy = 0
+        self.done = queue.SimpleQueue()      # futures, from their done callbacks (Dask's threads)
+        self._threads = (0.0, 0)
+        try:
+            self.check_versions()
+        except BaseException:
+            self._close()
+            raise
+
+    def check_versions(self):
+        """Stop (SelfconEnvironmentError) if a connected worker runs another selfcon or Python."""
+        from selfcon.batch.worker import environment, mismatch
+        try:
+            found = self.client.run(environment)
+        except Exception as exc:       # the worker cannot even import selfcon.batch
+            raise SelfconEnvironmentError(f"the Dask workers of {self.where} cannot run selfcon: "
+                                          f"{type(exc).__name__}: {exc}") from None
+        bad = {addr: mismatch(self.expected, env) for addr, env in found.items()}
+        bad = {a: m for a, m in bad.items() if m}
+        if bad:
+            addr, m = next(iter(bad.items()))
+            raise SelfconEnvironmentError(
+                f"{len(bad)} of {len(found)} Dask workers run another version: {addr} has {m}; "
+                "install the same selfcon on the workers (no job was started)")
+        log.info("Dask: %d workers at %s, all with selfcon %s", len(found), self.where, self.expected["selfcon"])
 
     @property
-    def capacity(self):
-        try:
-            threads = sum(self.client.nthreads().values())
-        except Exception:
-            threads = 0
-        if threads <= 0:
-            threads = self.requested or 1
-        return max(1, threads) + (1 if self.cluster is None else 0)
+    def threads(self):
+        """Worker threads connected now (asked of the scheduler at most once a second)."""
+        t, n = self._threads
+        if time.monotonic() - t > 1.0:
+            try:
+                n = sum(self.client.nthreads().values())
+            except Exception:
+                pass
+            self._threads = (time.monotonic(), n)
+        return n
+
+    @property
+    def parallelism(self):
+        return max(1, self.threads, self.target_threads)
+
+    @property
+    def wanted(self):
+        """Tasks to keep at the scheduler: its threads plus the backlog."""
+        threads = self.threads
+        return threads + math.ceil(self.backlog * max(threads, self.target_threads, 1))
+
+    @property
+    def busy(self):
+        return self._busy
 
     @property
     def in_flight(self):
-        return set(self.futures.values())
+        return {j: None for ids in self.tasks.values() for j in ids}
+
+    def slots(self, alone=False):
+        return max(0, self.wanted - len(self.tasks))
+
+    def submit(self, jobs, alone=False):
+        from selfcon.batch.worker import run_task
+        ids = [j[0] for j in jobs]
+        key = f"selfcon-job-{ids[0]}{'+' + str(len(ids) - 1) if len(ids) > 1 else ''}-{uuid.uuid4().hex[:12]}"
+        fut = self.client.submit(run_task, self.job_spec, self.expected, list(jobs), key=key, pure=False, retries=0)
+        self.tasks[fut] = ids
+        self._busy += len(ids)
+        fut.add_done_callback(self.done.put)
+        for j in ids:
+            log.info("job %d sent to Dask as task %s", j, key)
+
+    def poll(self, timeout):
+        if not self.tasks:
+            return []
+        try:
+            futs = [self.done.get(timeout=timeout)]
+        except queue.Empty:
+            if self.client.status in ("closed", "closing"):
+                raise SelfconEnvironmentError(f"lost the Dask scheduler at {self.where}") from None
+            return []
+        while True:
+            try:
+                futs.append(self.done.get_nowait())
+            except queue.Empty:
+                break
+        futs = [f for f in futs if f in self.tasks]
+        finished = [f for f in futs if f.status == "finished"]
+        values = {}
+        if finished:
+            try:
+                values = dict(zip(finished, self.client.gather(finished)))
+            except Exception:
+                for f in finished:          # one was lost between done and fetch: fetch one by one
+                    try:
+                        values[f] = f.result()
+                    except Exception:
+                        pass
+        out = []
+        for f in futs:
+            ids = self.tasks.pop(f)
+            self._busy -= len(ids)
+            if f in values:
+                value = values[f]
+                if "environment" in value:
+                    self.tasks[f] = ids
+                    self._busy += len(ids)
+                    raise SelfconEnvironmentError(f"a Dask worker of {self.where} runs another version: "
+                                                  f"{value['environment']}; install the same selfcon on the workers")
+                out.extend((j, "ok", o) for j, o in value["outcomes"])
+            elif f.status == "finished":
+                out.extend((j, "lost", f"{DIED} (result lost)") for j in ids)
+            else:
+                out.extend(self._failed(f, ids))
+            f.release()
+        return out
+
+    def _failed(self, f, ids):
+        from distributed import KilledWorker
+        try:
+            exc = f.exception()
+        except Exception as e:     # cancelled
+            exc = e
+        if isinstance(exc, KilledWorker) or f.status == "cancelled":
+            if len(ids) == 1:
+                return [(ids[0], "died", f"{DIED} (Dask gave up on the task: {type(exc).__name__})")]
+            return [(j, "suspect", f"{DIED} (in a task of {len(ids)} jobs)") for j in ids]
+        if isinstance(exc, (ImportError, AttributeError)):
+            raise SelfconEnvironmentError(f"a Dask worker of {self.where} cannot run the job function: "
+                                          f"{type(exc).__name__}: {exc}")
+        err = {"ok": False, "error": f"{type(exc).__name__}: {exc}", "seconds": None}
+        return [(j, "ok", err) for j in ids]
+
+    def kill_job(self, job_id):
+        return False
 
     def worker_pids(self):
         return list(self.client.run(os.getpid).values())
 
-    def submit(self, job_id, attempt, *args):
-        key = f"selfcon-job-{job_id}-attempt-{attempt}-{uuid.uuid4().hex[:8]}"
-        fut = self.client.submit(self.fn, *args, key=key, pure=False, retries=0)
-        self.futures[fut] = job_id
-
-    def poll(self, timeout):
-        if not self.futures:
-            return []
-        from distributed import wait
-        try:
-            wait(list(self.futures), timeout=timeout, return_when="FIRST_COMPLETED")
-        except Exception:       # TimeoutError flavours differ across versions
-            pass
-        from distributed import KilledWorker
-        out = []
-        for fut in [f for f in self.futures if f.done()]:
-            job = self.futures.pop(fut)
-            if fut.status == "finished":
+    def _close(self):
+        for thing in (getattr(self, "client", None), self.cluster):
+            if thing is not None:
                 try:
-                    out.append((job, "ok", fut.result()))
-                except Exception as exc:  # lost between done and fetch
-                    out.append((job, "died", f"{DIED} ({type(exc).__name__})"))
-                continue
-            try:
-                exc = fut.exception()
-            except Exception as e:   # cancelled
-                exc = e
-            if isinstance(exc, KilledWorker) or fut.status == "cancelled":
-                out.append((job, "died", DIED))
-            else:
-                out.append((job, "ok", {"ok": False, "error": f"{type(exc).__name__}: {exc}", "seconds": None}))
-            fut.release()
-        return out
+                    thing.close()
+                except Exception:
+                    pass
 
     def shutdown(self, cancel=False):
-        if cancel and self.futures:
+        if cancel and self.tasks:
             try:
-                self.client.cancel(list(self.futures))
+                self.client.cancel(list(self.tasks))
             except Exception:
                 pass
-        self.futures.clear()
-        try:
-            self.client.close()
-        finally:
-            if self.cluster is not None:
-                self.cluster.close()
+        self.tasks.clear()
+        self._busy = 0
+        self._close()
 
 
-def make_executor(scheduler, workers, fn, *, memory_limit="4GiB"):
-    if scheduler:
-        return DaskPool(scheduler, workers, fn, memory_limit=memory_limit)
-    from selfcon.batch.worker import init_worker
-    return LocalPool(workers, fn, initializer=init_worker)
+def make_executor(job_spec, workers, *, scheduler=None, scheduler_file=None, cluster=None, **dask_options):
+    if scheduler or scheduler_file or cluster:
+        return DaskPool(job_spec, address=scheduler, scheduler_file=scheduler_file, cluster=cluster,
+                        workers=workers, **dask_options)
+    return LocalPool(workers, job_spec)

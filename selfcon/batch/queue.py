@@ -303,6 +303,23 @@ def claim(con, *, exclude=()):
     return row
 
 
+def claim_many(con, n, *, exclude=()):
+    """Atomically take up to ``n`` runnable queued jobs, in study order -> list of Rows (one statement)."""
+    excl = ",".join(str(int(i)) for i in exclude) or "-1"
+    rows = con.execute(
+        f"""UPDATE jobs SET status = 'running', attempts = attempts + 1, started_at = ?
+            WHERE id IN (SELECT j.id FROM jobs j
+                         WHERE j.status = 'queued' AND j.id NOT IN ({excl})
+                           AND (j.neighbour IS NULL OR
+                                (SELECT n.status FROM jobs n WHERE n.id = j.neighbour)
+                                IN ('done', 'not_converged', 'failed', 'retired'))
+                         ORDER BY j.study_index LIMIT ?)
+              AND status = 'queued'
+            RETURNING id, deck_text, neighbour, attempts, varied, study_index""",
+        (time.time(), int(n))).fetchall()
+    return sorted(rows, key=lambda r: (r["study_index"] is None, r["study_index"] or 0))
+
+
 def claim_id(con, job_id):
     """Atomically take one given queued job -> Row or None."""
     return con.execute(
@@ -322,6 +339,20 @@ def finish(con, job_id, *, status, seconds=None, error=None, message=None, resul
          json.dumps(summary) if summary is not None else None, int(bool(warm_start)), job_id))
 
 
+def finish_many(con, items):
+    """Finish several running jobs in one transaction; ``items`` are dicts of :func:`finish`'s keywords
+    plus ``job_id``."""
+    now = time.time()
+    with transaction(con):
+        con.executemany(
+            "UPDATE jobs SET status = ?, finished_at = ?, seconds = ?, error = ?, message = ?, result_path = ?, "
+            "iterations = ?, converged = ?, summary = ?, warm_start = ? WHERE id = ? AND status = 'running'",
+            [(it["status"], now, it.get("seconds"), it.get("error"), it.get("message"), it.get("result_path"),
+              it.get("iterations"), None if it.get("converged") is None else int(bool(it["converged"])),
+              json.dumps(it["summary"]) if it.get("summary") is not None else None,
+              int(bool(it.get("warm_start"))), it["job_id"]) for it in items])
+
+
 def requeue(con, job_id, *, count_attempt=True, error=None):
     """Put a running job back in the queue (worker died: the attempt counts; interrupted: it does not)."""
     con.execute(
@@ -337,8 +368,8 @@ def counts(con) -> dict:
     return out
 
 
-def rows(con, *, status=None, include_retired=False):
-    sql = "SELECT * FROM jobs"
+def rows(con, *, status=None, include_retired=False, columns=None):
+    sql = f"SELECT {', '.join(columns) if columns else '*'} FROM jobs"
     where, args = [], []
     if status:
         where.append(f"status IN ({','.join('?' * len(status))})")

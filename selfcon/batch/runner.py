@@ -10,24 +10,38 @@ twice (or SIGTERM): requeue the running jobs and stop now.  Exit code 130.
 """
 from __future__ import annotations
 
+import collections
 import concurrent.futures as cf
 import json
+import logging
 import math
 import os
+import queue
 import signal
 import sqlite3
 import sys
+import time
 from pathlib import Path
 
+from selfcon.batch import logs
 from selfcon.batch import queue as q
-from selfcon.batch.executors import DIED, make_executor
+from selfcon.batch.executors import DEFAULT_BACKLOG, make_executor
 from selfcon.batch.study import default_out_dir, expand, load_study
+from selfcon.batch.summary import summarize  # noqa: F401  (the table's figures; computed in the workers)
 from selfcon.batch.worker import resolve
 from selfcon.errors import SelfconEnvironmentError
+
+log = logging.getLogger("selfcon.batch")
 
 DEFAULT_JOB = "selfcon.batch.worker:run_job"
 #: test/benchmark seam: the job function, as "module:function"
 JOB_ENV = "SELFCON_BATCH_JOB"
+#: seconds between two rewrites of table.csv / table.h5 during a run (and once at its end)
+TABLE_INTERVAL = 30.0
+#: threads writing result files (each file is fsync'ed: parallel writes overlap the waits)
+WRITER_THREADS = 8
+#: results waiting for their file to be written before no more jobs are sent (bounds the memory)
+MAX_PENDING_WRITES = 4 * WRITER_THREADS
 
 SUMMARY_COLUMNS = [
     # name, units, description
@@ -44,45 +58,12 @@ SUMMARY_COLUMNS = [
 ]
 
 
-def summarize(result) -> dict:
-    """The table's summary figures of one Result (NaN where the result has none)."""
-    s = result.summary or {}
-    nan = float("nan")
-
-    def num(x):
-        try:
-            return float(x)
-        except (TypeError, ValueError):
-            return nan
-
-    out = {
-        "electron_sheet_density_cm2": num(s.get("electron_sheet_density_cm2", nan)),
-        "hole_sheet_density_cm2": num(s.get("hole_sheet_density_cm2", nan)),
-    }
-    el = result.subbands.get("electron") if result.subbands else None
-    if el is not None and len(el.energy):
-        out["channel_density_cm2"] = float(sum(el.occupation))
-        out["E0_eV"] = float(el.energy[0])
-        out["E1_eV"] = float(el.energy[1]) if len(el.energy) > 1 else nan
-    else:
-        out.update(channel_density_cm2=0.0 if el is not None else nan, E0_eV=nan, E1_eV=nan)
-    if "channel_electron_sheet_density_cm2" in s:      # electrons in the channel layer itself
-        out["channel_density_cm2"] = num(s["channel_electron_sheet_density_cm2"])
-    out["E1_minus_E0_eV"] = num(s.get("E1_minus_E0_eV", nan))
-    out["E0_minus_EF_eV"] = num(s.get("E0_minus_EF_eV", nan))
-    out["warnings"] = len(result.warnings or [])
-    holes = [result.subbands[b].energy for b in ("heavy_hole", "light_hole")
-             if result.subbands and b in result.subbands and len(result.subbands[b].energy)]
-    out["hole_E0_eV"] = float(max(e[0] for e in holes)) if holes else nan
-    out["residual_V"] = num(result.residual)
-    return out
-
-
 # --------------------------------------------------------------------------- progress
 
 class _Plain:
     def __init__(self, quiet, stream=None):
         self.quiet = quiet
+        self.wants_lines = not quiet
         self.stream = stream or sys.stderr
 
     def start(self, total, counts):
@@ -104,6 +85,8 @@ class _Plain:
 
 
 class _Rich:
+    wants_lines = False
+
     def __init__(self):
         from rich.console import Console
         from rich.progress import BarColumn, MofNCompleteColumn, Progress, TextColumn, TimeRemainingColumn
@@ -171,32 +154,49 @@ class _Signals:
 
 
 class Coordinator:
-    def __init__(self, out_dir, *, workers, scheduler=None, retries=2, job_fn=None, progress=None,
-                 memory_limit="4GiB", warm=True):
+    """Feeds an executor from the queue and turns its events into files and rows.
+
+    Its cost per job is constant: claims and finishes go to SQLite in batches, the
+    counts are kept in memory, result files are written by a pool of writer threads
+    (each file is fsync'ed; the row is finished only once the file is on disk), and the
+    tables are rewritten at most every ``table_interval`` seconds and at the end.
+    Short jobs travel several to a task (:meth:`_chunk`).  A job whose worker died
+    (a *suspect*) runs again alone, on a worker of its own, while the others carry on.
+    """
+
+    def __init__(self, out_dir, *, workers, retries=2, job_fn=None, progress=None, warm=True,
+                 table_interval=TABLE_INTERVAL, executor_options=None):
         self.out_dir = Path(out_dir)
         self.jobs_dir = self.out_dir / "jobs"
         self.workers = workers
-        self.scheduler = scheduler
         self.retries = retries
         self.job_spec = job_fn or os.environ.get(JOB_ENV) or DEFAULT_JOB
         self.fn = resolve(self.job_spec)
         self.progress = progress or _Plain(True)
-        self.memory_limit = memory_limit
         self.warm = warm
-        self.potentials = {}          # job id -> (z, phi) of converged results, for continuation
+        self.table_interval = table_interval
+        self.executor_options = dict(executor_options or {})
         self.along = None             # the continuation axis (a deck path), set by run()
-        self.suspects = set()         # jobs in flight when a worker died
+        self.continuation = False
+        self.suspects = set()         # jobs whose worker died under them: they run alone
         self.interrupted = False
         self.fatal = None             # a SelfconEnvironmentError that stops the run (disk full, ...)
-        self.writer = cf.ThreadPoolExecutor(max_workers=2, thread_name_prefix="selfcon-write")
-        self.pending = {}             # write future -> (job id, path, result, outcome, warm, varied)
+        self.writer = cf.ThreadPoolExecutor(max_workers=WRITER_THREADS, thread_name_prefix="selfcon-write")
+        self.pending = {}             # job id -> (outcome, warm): files being written
+        self.written = queue.SimpleQueue()   # (job id, exception or None), from the writer threads
+        self.counts = None            # status -> count, kept in memory during the run
+        self.mean_seconds = None      # running mean of a job's own time (sizes the chunks)
+        self.warm_started = set()
+        self._potentials = collections.OrderedDict()   # small cache: job id -> (z, phi)
+        self._last_table = time.monotonic()
 
     # -- bits -----------------------------------------------------------------
     def _potential(self, con, job_id):
-        """(z, phi) of a finished job, from memory or its result file; None if unavailable."""
-        if job_id in self.potentials:
-            return self.potentials[job_id]
-        row = con.execute("SELECT status, converged, result_path FROM jobs WHERE id = ?", (job_id,)).fetchone()
+        """(z, phi) of a finished converged job, read from its result file; None if unavailable."""
+        if job_id in self._potentials:
+            self._potentials.move_to_end(job_id)
+            return self._potentials[job_id]
+        row = con.execute("SELECT status, result_path FROM jobs WHERE id = ?", (job_id,)).fetchone()
         if row is None or row["status"] != "done" or not row["result_path"]:
             return None
         try:
@@ -205,7 +205,9 @@ class Coordinator:
                 pair = (f["mesh/z"][()], f["profile/potential"][()])
         except Exception:
             return None
-        self.potentials[job_id] = pair
+        self._potentials[job_id] = pair
+        while len(self._potentials) > 64:
+            self._potentials.popitem(last=False)
         return pair
 
     def _along_value(self, con, job_id):
@@ -217,7 +219,7 @@ class Coordinator:
     def _initial(self, con, neighbour, job_id=None):
         """Warm start from the neighbour along the continuation axis, extrapolated linearly
         through the neighbour's own neighbour when both are done (selfcon.solver.loop.extrapolate_potential)."""
-        if neighbour is None:
+        if neighbour is None or not self.continuation:
             return None
         first = self._potential(con, neighbour)
         if first is None:
@@ -234,112 +236,204 @@ class Coordinator:
                 points = [(first[0], first[1], v1), (second[0], second[1], v2)]
         return extrapolate_potential(points, value)
 
+    def _varied(self, con, job_id):
+        row = con.execute("SELECT varied FROM jobs WHERE id = ?", (job_id,)).fetchone()
+        return _fmt_varied(row["varied"]) if row else ""
+
+    def _move(self, old, new, n=1):
+        self.counts[old] -= n
+        self.counts[new] += n
+
+    def _event(self, line, level=logging.INFO):
+        log.log(level, line)
+        self.progress.event(line, self.counts)
+
     def _handle(self, con, job_id, kind, payload):
-        row = con.execute("SELECT attempts, varied FROM jobs WHERE id = ?", (job_id,)).fetchone()
-        varied = ", ".join(f"{k}={v:.6g}" if isinstance(v, float) else f"{k}={v}"
-                           for k, v in json.loads(row["varied"]).items())
-        if kind == "died":
-            self.suspects.add(job_id)
-            if row["attempts"] > self.retries:
-                q.finish(con, job_id, status="failed", error=f"{DIED} ({row['attempts']} attempts)")
-                return f"job {job_id} failed: {DIED} ({row['attempts']} attempts)  {varied}"
-            q.requeue(con, job_id, count_attempt=True, error=DIED)
-            return f"job {job_id} requeued: {DIED} (attempt {row['attempts']})  {varied}"
-        warm = job_id in self._warm_started
-        self._warm_started.discard(job_id)
-        if not payload.get("ok"):
-            q.finish(con, job_id, status="failed", seconds=payload.get("seconds"), error=payload.get("error"))
-            first = (payload.get("error") or "").splitlines()[:1]
-            return f"job {job_id} failed: {first[0] if first else '?'}  {varied}"
-        result = payload["result"]
-        rel = f"jobs/{job_id}.h5"
-        self.jobs_dir.mkdir(parents=True, exist_ok=True)
-        # the file is written by a writer thread (fsync is slow); the row is finished once it is on disk
-        fut = self.writer.submit(self._save, result, self.out_dir / rel, payload.get("image"))
-        self.pending[fut] = (job_id, rel, result, payload, warm, varied)
-        return None
-
-    @staticmethod
-    def _save(result, path, image=None):
-        from selfcon.output.result import save_image, save_result
-        if image is not None:
-            save_image(image, path, force=True)
-        else:
-            save_result(result, path, force=True)
-
-    def _finalize(self, con, fut):
-        job_id, rel, result, payload, warm, varied = self.pending.pop(fut)
-        exc = fut.exception()
-        if isinstance(exc, (SelfconEnvironmentError, OSError)):
-            # the folder cannot take the file (disk full, permissions): not the job's fault.  The
-            # job goes back to the queue uncharged and the run stops (exit 4); rerun when fixed.
-            q.requeue(con, job_id, count_attempt=False, error=None)
-            if self.fatal is None:
-                self.fatal = (exc if isinstance(exc, SelfconEnvironmentError) else
-                              SelfconEnvironmentError.from_os_error(exc, "cannot write", self.out_dir / rel))
-                self.progress.note(f"stopping: {self.fatal}; job {job_id} requeued, rerun when fixed")
-            return None
-        if exc is not None:
-            q.finish(con, job_id, status="failed", seconds=payload.get("seconds"),
-                     error=f"cannot write {rel}: {type(exc).__name__}: {exc}")
-            return f"job {job_id} failed: cannot write {rel}: {exc}"
-        status = "done" if result.converged else "not_converged"
-        q.finish(con, job_id, status=status, seconds=payload.get("seconds"), message=result.message,
-                 result_path=rel, iterations=int(result.iterations), converged=result.converged,
-                 summary=summarize(result), warm_start=warm)
-        if result.converged and self.continuation:
-            self.potentials[job_id] = (result.z, result.profile["potential"])
+        """One executor event; a finished job's file goes to the writer threads."""
+        if kind in ("died", "suspect", "lost"):
+            if kind != "lost":
+                self.suspects.add(job_id)
+            row = con.execute("SELECT attempts FROM jobs WHERE id = ?", (job_id,)).fetchone()
+            attempts = row["attempts"]
+            if kind == "died" and attempts > self.retries:
+                q.finish(con, job_id, status="failed", error=f"{payload} ({attempts} attempts)")
+                self._move("running", "failed")
+                self._event(f"job {job_id} failed: {payload} ({attempts} attempts)  {self._varied(con, job_id)}",
+                            logging.WARNING)
+                return
+            q.requeue(con, job_id, count_attempt=(kind == "died"), error=payload)
+            self._move("running", "queued")
+            what = {"died": f"attempt {attempts} counted; it runs alone next",
+                    "suspect": "attempt not counted; it runs alone next", "lost": "attempt not counted"}[kind]
+            self._event(f"job {job_id} requeued: {payload} ({what})  {self._varied(con, job_id)}", logging.WARNING)
+            return
+        self.suspects.discard(job_id)
+        warm = job_id in self.warm_started
+        self.warm_started.discard(job_id)
         secs = payload.get("seconds")
-        tail = f" {secs:.2f} s" if secs is not None else ""
-        return f"job {job_id} {status.replace('_', ' ')}: {result.iterations} it{tail}  {varied}"
+        if secs is not None:
+            self.mean_seconds = secs if self.mean_seconds is None else 0.9 * self.mean_seconds + 0.1 * secs
+        if not payload.get("ok"):
+            q.finish(con, job_id, status="failed", seconds=secs, error=payload.get("error"))
+            self._move("running", "failed")
+            first = (payload.get("error") or "").splitlines()[:1]
+            self._event(f"job {job_id} failed: {first[0] if first else '?'}  {self._varied(con, job_id)}",
+                        logging.WARNING)
+            return
+        self.pending[job_id] = (payload, warm)
+        self.writer.submit(self._save, job_id, payload, self.out_dir / f"jobs/{job_id}.h5")
+
+    def _save(self, job_id, payload, path):
+        """Writer thread: the result file, atomically (fsync'ed); packs a bare Result first."""
+        try:
+            from selfcon.output.result import save_image
+            if "image" not in payload:          # a seam job function that returned a Result
+                from selfcon.batch.worker import pack
+                secs = payload.get("seconds")
+                payload.update(pack(payload.pop("result")), seconds=secs)
+            save_image(payload["image"], path, force=True)
+        except BaseException as exc:
+            self.written.put((job_id, exc))
+        else:
+            payload.pop("image", None)          # written: the bytes need not stay in memory
+            self.written.put((job_id, None))
 
     def _drain_writes(self, con, timeout=0.0):
+        """Finish, in one transaction, every job whose file is on disk.  ``timeout``: 0 takes
+        what is written now; seconds: wait that long for a first file; None: wait for all."""
         if not self.pending:
             return
-        done, _ = cf.wait(list(self.pending), timeout=timeout)
-        for fut in done:
-            line = self._finalize(con, fut)
-            self.progress.event(line, q.counts(con))
+        done = []
+        if timeout is None:
+            while len(done) < len(self.pending):
+                done.append(self.written.get())
+        else:
+            try:
+                done.append(self.written.get(timeout=timeout) if timeout > 0 else self.written.get_nowait())
+                while True:
+                    done.append(self.written.get_nowait())
+            except queue.Empty:
+                pass
+        if not done:
+            return
+        items, lines = [], []
+        for job_id, exc in done:
+            payload, warm = self.pending.pop(job_id)
+            rel = f"jobs/{job_id}.h5"
+            if isinstance(exc, (SelfconEnvironmentError, OSError)):
+                # the folder cannot take the file (disk full, permissions): not the job's fault.  The
+                # job goes back to the queue uncharged and the run stops (exit 4); rerun when fixed.
+                q.requeue(con, job_id, count_attempt=False, error=None)
+                self._move("running", "queued")
+                if self.fatal is None:
+                    self.fatal = (exc if isinstance(exc, SelfconEnvironmentError) else
+                                  SelfconEnvironmentError.from_os_error(exc, "cannot write", self.out_dir / rel))
+                    self.progress.note(f"stopping: {self.fatal}; job {job_id} requeued, rerun when fixed")
+                    log.error("stopping: %s; job %d requeued", self.fatal, job_id)
+                continue
+            if exc is not None:
+                items.append(dict(job_id=job_id, status="failed", seconds=payload.get("seconds"),
+                                  error=f"cannot write {rel}: {type(exc).__name__}: {exc}"))
+                lines.append((f"job {job_id} failed: cannot write {rel}: {exc}", logging.ERROR))
+                continue
+            status = "done" if payload["converged"] else "not_converged"
+            items.append(dict(job_id=job_id, status=status, seconds=payload.get("seconds"),
+                              message=payload.get("message"), result_path=rel, iterations=payload["iterations"],
+                              converged=payload["converged"], summary=payload.get("summary"), warm_start=warm))
+            secs = payload.get("seconds")
+            tail = f" {secs:.2f} s" if secs is not None else ""
+            lines.append((f"job {job_id} {status.replace('_', ' ')}: {payload['iterations']} it{tail}",
+                          logging.INFO))
+        q.finish_many(con, items)
+        for it, (line, level) in zip(items, lines):
+            self._move("running", it["status"])
+            if getattr(self.progress, "wants_lines", True) or log.isEnabledFor(level):
+                line = f"{line}  {self._varied(con, it['job_id'])}"
+            self._event(line, level)
 
-    def _claim(self, con, in_flight):
-        """Next job to submit, keeping a suspect (a job seen when a worker died) alone in the pool."""
-        if in_flight & self.suspects:
-            return None
-        queued_suspects = [r[0] for r in con.execute(
-            f"SELECT id FROM jobs WHERE status = 'queued' AND id IN ({','.join(map(str, self.suspects)) or '-1'})")]
-        if queued_suspects:
-            if in_flight:
-                row = q.claim(con, exclude=self.suspects)
-                return row
-            return q.claim_id(con, queued_suspects[0])
-        return q.claim(con)
+    def _chunk(self, ex, queued):
+        """Jobs per task: enough that a task takes about ``ex.chunk_target`` seconds (1 until a
+        job has finished), never more than a fair share of what is left to do."""
+        if self.mean_seconds is None or self.continuation:
+            return 1
+        k = int(ex.chunk_target / max(self.mean_seconds, 1e-6))
+        fair = math.ceil(queued / (2 * max(1, ex.parallelism)))
+        return max(1, min(k, ex.max_chunk, fair))
+
+    def _submit(self, con, ex):
+        """Fill the executor: suspects alone, one per free worker; then chunks of the others."""
+        if self.suspects:
+            running = ex.in_flight
+            waiting = sorted(i for i in self.suspects if i not in running)
+            for job_id in waiting:
+                if ex.slots(alone=True) <= 0:
+                    break
+                row = q.claim_id(con, job_id)
+                if row is None:
+                    continue
+                self._move("queued", "running")
+                ex.submit([self._job(con, row)], alone=True)
+        if len(self.pending) >= MAX_PENDING_WRITES:     # the disk is behind: results wait in the workers
+            return
+        if hasattr(ex, "prefetch"):
+            ex.prefetch = self.mean_seconds is not None and self.mean_seconds < 0.01
+        slots = ex.slots()
+        while slots > 0 and self.counts["queued"] > 0:
+            k = self._chunk(ex, self.counts["queued"])
+            rows = q.claim_many(con, k, exclude=self.suspects)
+            if not rows:
+                break
+            self._move("queued", "running", len(rows))
+            ex.submit([self._job(con, r) for r in rows])
+            slots -= 1
+
+    def _job(self, con, row):
+        initial = self._initial(con, row["neighbour"], row["id"])
+        if initial is not None:
+            self.warm_started.add(row["id"])
+        return (row["id"], row["deck_text"], initial)
+
+    def _tables(self, con):
+        """table.csv and table.h5, at most every ``table_interval`` seconds during the run."""
+        if self.fatal is None and time.monotonic() - self._last_table >= self.table_interval:
+            try:
+                write_tables(con, self.out_dir)
+            except (SelfconEnvironmentError, OSError) as exc:
+                self.fatal = (exc if isinstance(exc, SelfconEnvironmentError) else
+                              SelfconEnvironmentError.from_os_error(exc, "cannot write", self.out_dir / "table.csv"))
+                self.progress.note(f"stopping: {self.fatal}")
+            self._last_table = time.monotonic()
 
     # -- main loop ------------------------------------------------------------
     def run(self, con, *, continuation=False, along=None):
         self.continuation = continuation
         self.along = along
-        self._warm_started = set()
-        counts = q.counts(con)
-        total = sum(counts.values()) - counts["retired"]
-        self.progress.start(total, counts)
-        if counts["queued"] == 0:
+        self.counts = q.counts(con)
+        total = sum(self.counts.values()) - self.counts["retired"]
+        self.progress.start(total, self.counts)
+        log.info("study %s: %d jobs, %s", self.out_dir, total, _fmt_counts(self.counts))
+        if self.counts["queued"] == 0:
             self.progress.stop()
-            return counts
+            return q.counts(con)
+        self.jobs_dir.mkdir(parents=True, exist_ok=True)
         with _Signals() as sig:
-            if self.warm and self.job_spec == DEFAULT_JOB:
-                self._warm_up(con)
-            if sig.stopping:
-                self.interrupted = True
-                self.progress.stop()
-                return q.counts(con)
-            ex = make_executor(self.scheduler, self.workers, self.fn, memory_limit=self.memory_limit)
             try:
+                ex = make_executor(self.job_spec, self.workers, **self.executor_options)
+            except BaseException:
+                self.progress.stop()
+                raise
+            try:
+                if self.warm and self.job_spec == DEFAULT_JOB and not sig.stopping:
+                    self._warm_up(con)
                 self._loop(con, ex, sig)
+            except BaseException:
+                # an environment failure (or a bug): nothing in flight stays 'running'
+                for job in ex.in_flight:
+                    q.requeue(con, job, count_attempt=False, error=None)
+                sig.abandon = True
+                raise
             finally:
-                if sig.abandon:
-                    ex.shutdown(cancel=True)
-                else:
-                    ex.shutdown()
+                ex.shutdown(cancel=sig.abandon)
                 self._drain_writes(con, timeout=None)
                 self.writer.shutdown(wait=True)
                 self.progress.stop()
@@ -355,57 +449,46 @@ class Coordinator:
         except Exception as exc:   # warm-up is an optimisation only
             self.progress.note(f"warm-up failed ({type(exc).__name__}: {exc}); workers compile on their own")
             return
-        row = q.claim(con)
-        if row is None:
-            return
-        self.progress.note(f"warming the solver with job {row['id']} in the coordinator")
-        self._submit_local(con, row)
-
-    def _submit_local(self, con, row):
-        initial = self._initial(con, row["neighbour"], row["id"])
-        if initial is not None:
-            self._warm_started.add(row["id"])
-        line = self._handle(con, row["id"], "ok", self.fn(row["deck_text"], initial))
-        if line:
-            self.progress.event(line, q.counts(con))
-        self._drain_writes(con, timeout=None)
 
     def _loop(self, con, ex, sig):
+        said_stop = False
         while True:
             if sig.abandon:
                 for job in ex.in_flight:
                     q.requeue(con, job, count_attempt=False, error=None)
                 self.progress.note("interrupted: running jobs requeued; rerun the command to continue")
+                log.warning("interrupted: %d running jobs requeued", ex.busy)
                 return
             if not sig.stopping and self.fatal is None:
-                in_flight = ex.in_flight
-                while len(in_flight) < ex.capacity + 1:
-                    row = self._claim(con, in_flight)
-                    if row is None:
-                        break
-                    initial = self._initial(con, row["neighbour"], row["id"])
-                    if initial is not None:
-                        self._warm_started.add(row["id"])
-                    ex.submit(row["id"], row["attempts"], row["deck_text"], initial)
-                    in_flight = ex.in_flight
-            elif ex.in_flight and not getattr(self, "_said_stop", False):
-                self._said_stop = True
-                self.progress.note(f"interrupted: waiting for {len(ex.in_flight)} running jobs "
+                self._submit(con, ex)
+            elif ex.busy and not said_stop:
+                said_stop = True
+                self.progress.note(f"interrupted: waiting for {ex.busy} running jobs "
                                    "(Ctrl-C again to requeue them and stop now)")
-            if not ex.in_flight:
-                had_writes = bool(self.pending)
-                self._drain_writes(con, timeout=None)
-                if sig.stopping or self.fatal is not None or not had_writes:
-                    return                  # (finished writes may free a continuation chain)
-                continue
-            for job, kind, payload in ex.poll(0.05 if self.pending else 0.2):
-                line = self._handle(con, job, kind, payload)
-                if line:
-                    self.progress.event(line, q.counts(con))
-            self._drain_writes(con)
+                log.warning("interrupted: waiting for %d running jobs", ex.busy)
+            if ex.busy:
+                for job, kind, payload in ex.poll(0.005 if self.pending else 0.2):
+                    self._handle(con, job, kind, payload)
+                self._drain_writes(con)
+            elif self.pending:
+                # nothing runs: wait for a file (its job may free a continuation chain, or room
+                # for more results); when stopping, for all of them
+                self._drain_writes(con, timeout=None if sig.stopping else 0.2)
+            else:
+                return          # nothing runs, nothing is being written, nothing more to send
+            self._tables(con)
+
+
+def _fmt_varied(text):
+    return ", ".join(f"{k}={v:.6g}" if isinstance(v, float) else f"{k}={v}" for k, v in json.loads(text).items())
 
 
 # --------------------------------------------------------------------------- tables
+
+#: the queue columns a table is made of (never the deck text: the table of 1e5 jobs stays fast)
+TABLE_SOURCE = ("id", "varied", "summary", "status", "attempts", "converged", "iterations", "seconds",
+                "warm_start", "result_path", "error", "message")
+
 
 def table_columns(con):
     return ["job"] + q.get_meta(con, "paths", []) + ["status", "attempts", "converged", "iterations"] + \
@@ -415,7 +498,7 @@ def table_columns(con):
 def table_rows(con):
     paths = q.get_meta(con, "paths", [])
     out = []
-    for r in q.rows(con):
+    for r in q.rows(con, columns=TABLE_SOURCE):
         varied = json.loads(r["varied"])
         summ = json.loads(r["summary"]) if r["summary"] else {}
         row = {"job": r["id"]}
@@ -500,11 +583,20 @@ def _write_table_h5(con, tmp, cols, rows):
 
 # --------------------------------------------------------------------------- front function
 
-def run_study(study_file, *, workers=None, out=None, scheduler=None, retries=2, quiet=True, job_fn=None,
-              progress=None, memory_limit="4GiB", warm=True):
+def run_study(study_file, *, workers=None, out=None, scheduler=None, scheduler_file=None, cluster=None,
+              min_workers=0, max_workers=None, backlog=DEFAULT_BACKLOG, retries=2, quiet=True, job_fn=None,
+              progress=None, memory_limit="4GiB", warm=True, log_file=None, numba_cache=None,
+              table_interval=TABLE_INTERVAL):
     """Run (or resume) a study.  Returns ``(exit_code, counts, out_dir)``.
 
-    exit code: 0 every job done, 3 some not converged or failed, 130 interrupted.
+    Where the jobs run: the local process pool (``workers`` processes, default the CPU
+    count); ``scheduler="local"`` a Dask LocalCluster of ``workers``; ``scheduler``
+    (tcp://HOST:PORT) or ``scheduler_file`` a running Dask scheduler; ``cluster`` ("slurm",
+    "pbs", ...) a dask-jobqueue cluster from the Dask configuration, adapting between
+    ``min_workers`` and ``max_workers``.  ``log_file``: a line per job event, with times.
+
+    exit code: 0 every job done, 3 some not converged or failed, 130 interrupted.  An
+    environment failure raises :class:`selfcon.errors.SelfconEnvironmentError` (exit 4).
     """
     study = load_study(study_file)
     out_dir = Path(out) if out else default_out_dir(study_file)
@@ -512,18 +604,26 @@ def run_study(study_file, *, workers=None, out=None, scheduler=None, retries=2, 
     q.check_out_folder(out_dir, study_file, study.deck_file,
                        option="--out" if out else "--out (default: beside the study)")
     _check_writable_folder(out_dir)
+    if numba_cache:
+        os.environ["NUMBA_CACHE_DIR"] = str(Path(numba_cache).resolve())
     jobs = expand(study)
     if workers is None:
         workers = max(1, min(len(jobs), os.cpu_count() or 1))
+    options = {}
+    if scheduler or scheduler_file or cluster:
+        options = dict(scheduler=scheduler, scheduler_file=scheduler_file, cluster=cluster, memory_limit=memory_limit,
+                       min_workers=min_workers, max_workers=max_workers, backlog=backlog,
+                       numba_cache_dir=os.environ.get("NUMBA_CACHE_DIR"))
     try:
         out_dir.mkdir(parents=True, exist_ok=True)
     except OSError as exc:
         raise SelfconEnvironmentError.from_os_error(exc, "cannot create the study folder", out_dir) from None
     lock = q.CoordinatorLock(out_dir).acquire()
     try:
-        return _run_locked(study, study_file, jobs, out_dir, workers=workers, scheduler=scheduler,
-                           retries=retries, quiet=quiet, job_fn=job_fn, progress=progress,
-                           memory_limit=memory_limit, warm=warm)
+        with logs.to_file(log_file):
+            return _run_locked(study, study_file, jobs, out_dir, workers=workers, retries=retries, quiet=quiet,
+                               job_fn=job_fn, progress=progress, warm=warm, table_interval=table_interval,
+                               options=options)
     except sqlite3.DatabaseError as exc:
         if q.is_environment_failure(exc):
             raise q.queue_failure(out_dir, exc) from None
@@ -542,19 +642,22 @@ def _check_writable_folder(out_dir):
     check_writable(folder)
 
 
-def _run_locked(study, study_file, jobs, out_dir, *, workers, scheduler, retries, quiet, job_fn, progress,
-                memory_limit, warm):
+def _run_locked(study, study_file, jobs, out_dir, *, workers, retries, quiet, job_fn, progress, warm,
+                table_interval, options):
     con = q.connect(out_dir)
     try:
         q.set_meta(con, study_file=str(Path(study_file).resolve()), base_deck=str(study.deck_file),
                    paths=study.paths, mode=study.mode, continuation=study.continuation, along=study.along)
         changes = q.sync(con, jobs, retries=retries)
+        del jobs[:]                       # the queue holds them now
         prog = progress or make_progress(quiet)
         if changes["retired"] or changes["requeued"] or changes["revived"]:
-            prog.note(f"queue: {changes['added']} new, {changes['kept']} kept, {changes['requeued']} requeued, "
-                      f"{changes['retired']} retired, {changes['revived']} back in the study")
-        coord = Coordinator(out_dir, workers=workers, scheduler=scheduler, retries=retries, job_fn=job_fn,
-                            progress=prog, memory_limit=memory_limit, warm=warm)
+            line = (f"queue: {changes['added']} new, {changes['kept']} kept, {changes['requeued']} requeued, "
+                    f"{changes['retired']} retired, {changes['revived']} back in the study")
+            prog.note(line)
+            log.info(line)
+        coord = Coordinator(out_dir, workers=workers, retries=retries, job_fn=job_fn, progress=prog, warm=warm,
+                            table_interval=table_interval, executor_options=options)
         try:
             counts = coord.run(con, continuation=study.continuation, along=study.along)
         finally:
@@ -566,6 +669,7 @@ def _run_locked(study, study_file, jobs, out_dir, *, workers, scheduler, retries
     finally:
         con.close()
     if coord.fatal is not None:
+        log.error("study %s stopped: %s", out_dir, coord.fatal)
         raise coord.fatal
     if coord.interrupted and (counts["queued"] or counts["running"]):
         code = 130
@@ -573,4 +677,5 @@ def _run_locked(study, study_file, jobs, out_dir, *, workers, scheduler, retries
         code = 3
     else:
         code = 0
+    log.info("study %s ended: %s (exit code %d)", out_dir, _fmt_counts(counts), code)
     return code, counts, out_dir

@@ -397,7 +397,10 @@ def expand(study: Study) -> list[JobSpec]:
     for i, values in enumerate(combos):
         try:
             d = deck.with_overrides(dict(values))
-            text, h, error = d.to_toml(), d.hash(), None
+            # with overrides, the deck's text is its canonical TOML already (Deck.to_toml);
+            # Deck.hash() is the sha256 of that text
+            text = d.text if d.overrides else d.to_toml()
+            h, error = hashlib.sha256(text.encode("utf-8")).hexdigest(), None
         except SelfconInputError as exc:
             # a value the deck rejects (e.g. a negative thickness): the job is recorded as failed
             overrides = json.dumps(values, sort_keys=True)

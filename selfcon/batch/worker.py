@@ -2,16 +2,23 @@
 
 ``run_job(deck_text, initial=None) -> outcome dict``::
 
-    {"ok": True,  "result": Result, "image": bytes, "seconds": float, "pid": int}
+    {"ok": True,  "image": bytes, "converged": bool, "iterations": int, "message": str,
+     "summary": {column: value}, "seconds": float, "pid": int}
     {"ok": False, "error": "DeckError: ...", "seconds": float, "pid": int}
 
 ``initial`` is ``None`` or a ``(z_nm, phi_V)`` pair (continuation warm start).
 ``image`` is the result's HDF5 file as bytes (selfcon.output.result.result_image): building it
 is most of the cost of a result file, so it happens in the worker, in parallel; the
-coordinator writes it to disk atomically.
-A job whose solve does not converge is ``ok`` (the Result says converged =
-False); only an exception is ``ok = False``.  A worker process that dies is the
-executor's business, not this function's.
+coordinator writes it to disk atomically.  The result travels once, as that image: the
+table's figures (``summary``, :func:`selfcon.batch.summary.summarize`) are the only other
+thing sent back, and the coordinator reads a continuation potential from the file.
+A job whose solve does not converge is ``ok`` (``converged`` False); only an exception
+is ``ok = False``.  A worker process that dies is the executor's business, not this
+function's.  (A job function of the ``SELFCON_BATCH_JOB`` seam may still return
+``{"ok": True, "result": Result}``: the coordinator then packs it itself, slowly.)
+
+:func:`run_task` runs a list of jobs (a Dask task), after checking that this worker
+runs the coordinator's selfcon (:func:`environment`).
 """
 from __future__ import annotations
 
@@ -24,9 +31,8 @@ import traceback
 def _watch_parent(parent_pid, period=1.0):
     """Exit this worker when the coordinator process is gone (e.g. killed with SIGKILL).
 
-    Pool workers hold both ends of their queue pipes, so they never see EOF when the
-    coordinator dies; without this they would wait forever and compete with the
-    rerun for the CPU."""
+    A second guard beside the end of file on the task pipe (selfcon.batch.executors): a
+    worker left behind would compete with the rerun for the CPU."""
     import threading
 
     def watch():
@@ -42,9 +48,25 @@ def _watch_parent(parent_pid, period=1.0):
     threading.Thread(target=watch, name="selfcon-parent-watch", daemon=True).start()
 
 
+#: threads of the numerical libraries a selfcon process may use (1 in every batch job that
+#: ``--cluster`` submits: one single-threaded worker per core)
+THREADS_ENV = "SELFCON_THREADS"
+THREAD_LIBRARY_VARIABLES = ("OMP_NUM_THREADS", "OPENBLAS_NUM_THREADS", "MKL_NUM_THREADS", "NUMBA_NUM_THREADS")
+
+
+def limit_threads():
+    """Apply ``$SELFCON_THREADS`` to the BLAS/OpenMP/numba thread variables that are not set
+    (effective in a process that has not loaded numpy yet, as a fresh pool worker)."""
+    n = os.environ.get(THREADS_ENV, "").strip()
+    if n.isdigit() and int(n) > 0:
+        for var in THREAD_LIBRARY_VARIABLES:
+            os.environ.setdefault(var, n)
+
+
 def init_worker(parent_pid=None):
-    """Process-pool initializer: leave Ctrl-C to the coordinator, preload the solver, and
-    exit when the coordinator ``parent_pid`` disappears."""
+    """Process-pool initializer: apply $SELFCON_THREADS, leave Ctrl-C to the coordinator, preload
+    the solver, and exit when the coordinator ``parent_pid`` disappears."""
+    limit_threads()
     if parent_pid is not None:
         _watch_parent(int(parent_pid))
     try:
@@ -78,12 +100,64 @@ def run_job(deck_text, initial=None):
             result = solve(deck)
         # the HDF5 file image is built here, in parallel; the coordinator only writes the bytes.
         # "seconds" is the job's own work: the solve and building its result file.
-        from selfcon.output.result import result_image
-        image = result_image(result)
-        return {"ok": True, "result": result, "image": image, "seconds": time.perf_counter() - t0,
-                "pid": os.getpid()}
+        out = pack(result)
+        out["seconds"] = time.perf_counter() - t0
+        return out
     except Exception as exc:  # the job failed; the worker lives on
         return {"ok": False, "error": _error_text(exc), "seconds": time.perf_counter() - t0, "pid": os.getpid()}
+
+
+def pack(result) -> dict:
+    """A successful outcome from a Result: its file image and the table's figures, not the Result."""
+    from selfcon.batch.summary import summarize
+    from selfcon.output.result import result_image
+    return {"ok": True, "image": result_image(result), "converged": bool(result.converged),
+            "iterations": int(result.iterations), "message": str(result.message or ""),
+            "summary": summarize(result), "seconds": None, "pid": os.getpid()}
+
+
+def run_one(fn, deck_text, initial):
+    """``fn(deck_text, initial)``, with an exception of the job function itself turned into
+    an ``ok = False`` outcome (the real job function never raises; a seam function may)."""
+    try:
+        return fn(deck_text, initial)
+    except Exception as exc:
+        return {"ok": False, "error": _error_text(exc), "seconds": None, "pid": os.getpid()}
+
+
+# --------------------------------------------------------------------------- environment
+
+def environment() -> dict:
+    """What a worker runs, as compared by the coordinator before any job (and by every task)."""
+    import sys
+    from selfcon.version import __version__
+    return {"selfcon": __version__, "python": "%d.%d" % sys.version_info[:2]}
+
+
+def mismatch(expected: dict, found: dict) -> str | None:
+    """One line saying how ``found`` differs from ``expected`` (None if it does not)."""
+    diff = [f"{k} {found.get(k, 'missing')} (coordinator: {v})" for k, v in expected.items() if found.get(k) != v]
+    return ", ".join(diff) or None
+
+
+def _here():
+    import socket
+    return f"{socket.gethostname()} (pid {os.getpid()})"
+
+
+def run_task(job_spec, expected, jobs):
+    """A Dask task: run ``jobs`` (a list of ``(job_id, deck_text, initial)``) one after the other.
+
+    Returns ``{"environment": message}`` without running anything if this worker's
+    selfcon or Python differs from the coordinator's ``expected``, else
+    ``{"outcomes": [(job_id, outcome), ...]}``.
+    """
+    found = environment()
+    bad = mismatch(expected, found)
+    if bad:
+        return {"environment": f"{_here()} has {bad}"}
+    fn = resolve(job_spec)
+    return {"outcomes": [(job_id, run_one(fn, deck_text, initial)) for job_id, deck_text, initial in jobs]}
 
 
 def warm_up():
@@ -131,7 +205,8 @@ def synthetic_result(deck_text, *, iterations=3, converged=True, phi0=0.0):
 
 
 def sleepy_job(deck_text, initial=None):
-    """Stand-in: behaviour from words in the deck title (``sleep=0.2``, ``raise=MSG``); returns a Result.
+    """Stand-in: behaviour from words in the deck title (``sleep=0.2``, ``raise=MSG``, ``die``: the
+    worker process kills itself with SIGKILL); returns an outcome like :func:`run_job`'s.
 
     Not converged when ``[solver] max_iterations`` is below the 3 "iterations" it
     takes (1 with a warm start); the potential carries the first layer thickness.
@@ -141,6 +216,8 @@ def sleepy_job(deck_text, initial=None):
     data = tomllib.loads(deck_text)
     words = dict(w.partition("=")[::2] for w in str(data.get("title", "")).split())
     time.sleep(float(words.get("sleep", 0.0) or 0.0))
+    if "die" in words:
+        os.kill(os.getpid(), signal.SIGKILL)
     if "raise" in words:
         return {"ok": False, "error": f"RuntimeError: {words['raise']}", "seconds": time.perf_counter() - t0,
                 "pid": os.getpid()}
@@ -148,12 +225,30 @@ def sleepy_job(deck_text, initial=None):
     its = 3 if initial is None else 1
     thick = float(data.get("layer", [{}])[0].get("thickness", 0.0))
     result = synthetic_result(deck_text, iterations=min(its, maxit), converged=maxit >= its, phi0=thick)
-    return {"ok": True, "result": result, "seconds": time.perf_counter() - t0, "pid": os.getpid()}
+    out = pack(result)
+    out["seconds"] = time.perf_counter() - t0
+    return out
+
+
+#: seconds a :func:`noop_job` waits (read once per process); tools/bench_batch.py sets it
+NOOP_SECONDS_ENV = "SELFCON_NOOP_SECONDS"
+_NOOP = {}
 
 
 def noop_job(deck_text, initial=None):
-    """Stand-in that does no work at all (queue overhead measurement)."""
-    return {"ok": True, "result": synthetic_result(deck_text), "seconds": 0.0, "pid": os.getpid()}
+    """Stand-in that does no work but wait ``$SELFCON_NOOP_SECONDS`` (default 0): the coordinator's
+    own cost per job (queue, file write, tables) is what remains.
+
+    Returns the outcome of one small synthetic result, packed once per process (a real
+    worker builds its image while solving; here the image is the same every time).
+    """
+    if not _NOOP:
+        _NOOP["outcome"] = pack(synthetic_result("title = \"no-op\"\n"))
+        _NOOP["seconds"] = float(os.environ.get(NOOP_SECONDS_ENV, "0") or 0.0)
+    wait = _NOOP["seconds"]
+    if wait > 0:
+        time.sleep(wait)
+    return dict(_NOOP["outcome"], seconds=wait, pid=os.getpid())
 
 
 def resolve(spec):
