@@ -260,3 +260,58 @@ def test_channels_and_transitions_round_trip(optical, two_wells, tmp_path):
         for band, sb in r.subbands.items():
             assert np.array_equal(back.subbands[band].channel, sb.channel)
             assert np.array_equal(back.subbands[band].bound, sb.bound)
+
+
+# --------------------------------------------------------------------------- where the main channel's figures go
+
+def test_summary_lists_channels_and_three_states_per_band(inverted):
+    from rich.console import Console
+    from selfcon.output.report import print_summary, summary_figures
+    r, _ = inverted
+    fig = summary_figures(r)
+    assert fig["channel"]["name"] == "channel" and fig["channel"]["carrier"] == "electron"
+    assert [c["name"] for c in fig["channels"]] == ["channel", "buffer"]
+    assert fig["channel"]["spacing_meV"] == pytest.approx(1e3 * r.summary["E1_minus_E0_eV"])
+    console = Console(record=True, width=140)
+    print_summary(fig, console)
+    text = console.export_text()
+    assert "buffer" in text and "Channels" in text
+    # heavy and light holes have no bound state in this stack: listed as such, not left out
+    assert text.count("none bound") == 2
+
+
+def test_study_table_columns_are_the_main_channels(inverted):
+    from selfcon.batch.summary import summarize
+    r, _ = inverted
+    row = summarize(r)
+    sb = r.subbands["electron"]
+    own = sb.energy[sb.channel == 0]             # /channels row 0 is 'channel', the main one
+    assert r.channels[0]["name"] == "channel" and r.channels[0]["main"]
+    assert row["channel_density_cm2"] == r.channels[0]["sheet_density"]
+    assert (row["E0_eV"], row["E1_eV"]) == (own[0], own[1])
+    assert row["E1_minus_E0_eV"] == pytest.approx(own[1] - own[0])
+
+
+def test_tune_a_named_quantity_of_another_channel():
+    from selfcon.design.tune import TuneError, tune
+    deck = selfcon.load_deck(DESIGN / "inverted_4K.toml")
+    tr = tune(deck, "layer.lower_barrier.thickness", "ns:buffer", 1.0e11, (35.0, 80.0), xtol=0.01)
+    assert tr.converged
+    # the tuned figure is the buffer channel's sheet density in the result at the answer
+    assert tr.result.channel("buffer")["sheet_density"] == pytest.approx(tr.achieved)
+    assert tr.achieved == pytest.approx(1.0e11, rel=2e-3)
+    assert tr.result.main_channel["name"] == "channel"
+    with pytest.raises(TuneError, match="unknown channel 'bufer'.*allowed: channel, buffer"):
+        tune(deck, "layer.lower_barrier.thickness", "ns:bufer", 1.0e11, (35.0, 80.0))
+
+
+def test_sweep_follows_the_main_channel_to_pinch_off():
+    from selfcon.design.sweep import sweep_bias
+    sw = sweep_bias(selfcon.load_deck(DESIGN / "inverted_4K.toml"), np.arange(-0.8, 0.01, 0.2),
+                    keep_results=True)
+    assert sw.channel == "channel" and sw.channel_layer == "channel"
+    # at V = 0 the figure is the result's main channel; as the gate empties it, it falls
+    # monotonically (at -0.8 V it holds less than the 1e8 cm^-2 detection floor: the
+    # density integrated over the channel's interval is followed down)
+    assert sw.channel_density[-1] == sw.results[-1].main_channel["sheet_density"]
+    assert np.all(np.diff(sw.channel_density) > 0) and sw.channel_density[0] < 1e8

@@ -47,11 +47,13 @@ SUMMARY_COLUMNS = [
     # name, units, description
     ("electron_sheet_density_cm2", "cm-2", "electrons per area in the whole stack"),
     ("hole_sheet_density_cm2", "cm-2", "holes per area in the whole stack"),
-    ("channel_density_cm2", "cm-2", "electrons per area in the channel layer (the layer holding most)"),
-    ("E0_eV", "eV", "lowest electron subband energy, relative to EF"),
-    ("E1_eV", "eV", "second electron subband energy, relative to EF"),
-    ("E1_minus_E0_eV", "eV", "subband spacing E1 - E0"),
-    ("E0_minus_EF_eV", "eV", "lowest electron subband relative to EF (negative: occupied)"),
+    ("channel_density_cm2", "cm-2", "sheet density of the main channel (the first [[channel]] of the deck, "
+                                    "else the channel holding most carriers of the majority kind)"),
+    ("E0_eV", "eV", "ground subband energy of the main channel, relative to EF (electron energy scale)"),
+    ("E1_eV", "eV", "second subband energy of the main channel, relative to EF (electron energy scale)"),
+    ("E1_minus_E0_eV", "eV", "subband spacing E1 - E0 of the main channel's own subbands"),
+    ("E0_minus_EF_eV", "eV", "ground subband of the main channel relative to EF, in the carrier's own "
+                             "sense (negative: occupied)"),
     ("hole_E0_eV", "eV", "highest hole subband energy (electron energy), relative to EF"),
     ("residual_V", "V", "last max |dphi| of the self-consistent loop"),
     ("warnings", "1", "number of design warnings of the solve (see the job's result file)"),

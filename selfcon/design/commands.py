@@ -132,7 +132,7 @@ def cmd_sweep_bias(args) -> int:
     if args.json:
         print(json.dumps(_jsonable({"bias_V": sw.bias.tolist(), "channel_cm2": sw.channel_density.tolist(),
                                     "capacitance_F_cm2": sw.capacitance.tolist(),
-                                    "converged": sw.converged.tolist(), "channel_layer": sw.channel_layer,
+                                    "converged": sw.converged.tolist(), "channel": sw.channel, "channel_layer": sw.channel_layer,
                                     "analysis": sw.analysis, "output": str(out) if out else None}), indent=1))
     else:
         print(f"{'bias V':>8} {'n_s channel':>12} {'n doping':>10} {'Q C/cm2':>10} {'C F/cm2':>10} {'it':>3}")

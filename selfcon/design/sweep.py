@@ -79,8 +79,8 @@ class BiasSweep:
     layer_donors: np.ndarray              # (M, L) cm^-2 ionised donors
     total_electrons: np.ndarray           # (M,) cm^-2
     total_holes: np.ndarray               # (M,) cm^-2
-    channel_layer: str
-    channel_density: np.ndarray           # (M,) cm^-2
+    channel_layer: str                    # the layer holding most of the main channel's carriers
+    channel_density: np.ndarray           # (M,) cm^-2, the main channel's sheet density
     doping_layers: list[str]
     doping_free_electrons: np.ndarray     # (M,) cm^-2 free electrons in the doping layers
     doping_electrons: np.ndarray          # (M,) cm^-2 free electrons + electrons bound on neutral donors
@@ -99,6 +99,7 @@ class BiasSweep:
     fraction: float
     analysis: dict[str, Any] = field(default_factory=dict)
     results: list = field(default_factory=list)   # the Results, if keep_results=True
+    channel: str = ""                     # the main channel followed (selfcon.output.channels)
 
     @property
     def all_converged(self) -> bool:
@@ -411,9 +412,14 @@ def _collect(deck, structure, biases, results, warm, threshold_cm2, fraction) ->
     h = np.array([[row["hole_sheet_density_cm2"] for row in r.layers] for r in results]).reshape(m, L)
     dn = np.array([[row.get("ionized_donor_sheet_density_cm2", np.nan) for row in r.layers]
                    for r in results]).reshape(m, L)
-    # the channel: the layer with the most electrons at the point of largest total
+    # the channel: the main channel at the point of largest total (selfcon.output.channels),
+    # followed over the sweep by depth; results without channels: the layer with most electrons
     top = int(np.argmax([r.summary["electron_sheet_density_cm2"] for r in results]))
+    ref = results[top].main_channel if results[top].channels else None
     ch = int(np.argmax(e[top]))
+    if ref is not None and ref.get("layer") in names:
+        ch = names.index(ref["layer"])
+    ns = e[:, ch].copy() if ref is None else np.array([followed_density(r, ref) for r in results])
     dop = _doping_layer_indices(structure, ch)
     nd_total = np.array([Li.donors * (Li.bottom - Li.top) / NM_PER_CM + Li.sheet_donors for Li in structure.layers])
     bound = np.clip(nd_total[None, :] - np.nan_to_num(dn), 0.0, None)      # electrons on neutral donors
@@ -446,16 +452,41 @@ def _collect(deck, structure, biases, results, warm, threshold_cm2, fraction) ->
         layer_names=names, layer_electrons=e, layer_holes=h, layer_donors=dn,
         total_electrons=np.array([r.summary["electron_sheet_density_cm2"] for r in results]),
         total_holes=np.array([r.summary["hole_sheet_density_cm2"] for r in results]),
-        channel_layer=names[ch], channel_density=e[:, ch].copy(), doping_layers=[names[i] for i in dop],
+        channel_layer=names[ch], channel_density=ns, doping_layers=[names[i] for i in dop],
         doping_free_electrons=e[:, dop].sum(axis=1) if dop else np.zeros(m),
         doping_electrons=(e[:, dop] + bound[:, dop]).sum(axis=1) if dop else np.zeros(m), gate_charge=q_gate, capacitance=cap,
         subband_energy=sub_e, subband_occupation=sub_o,
         converged=np.array([bool(r.converged) for r in results]),
         iterations=np.array([int(r.iterations) for r in results]), warm_start=warm.astype(bool),
         z=z.copy(), potential=pot, conduction_band=cb, warnings=[list(r.warnings) for r in results],
-        threshold_cm2=float(threshold_cm2), fraction=float(fraction))
+        threshold_cm2=float(threshold_cm2), fraction=float(fraction),
+        channel=str(ref["name"]) if ref is not None else names[ch])
     sw.analysis = analyse(sw, structure)
     return sw
+
+
+def followed_density(result, ref: dict) -> float:
+    """Sheet density (cm^-2) at one sweep point of the channel ``ref`` (a /channels row of
+    another point): the channel of the same carrier overlapping ref's depth interval most,
+    else that carrier's density integrated over ref's interval (a channel emptied below the
+    detection floor still has a density, down to pinch-off)."""
+    best, overlap = None, 0.0
+    for row in result.channels:
+        if row["carrier"] != ref["carrier"]:
+            continue
+        o = min(row["bottom_nm"], ref["bottom_nm"]) - max(row["top_nm"], ref["top_nm"])
+        if o > overlap:
+            best, overlap = row, o
+    if best is not None:
+        return float(best["sheet_density"])
+    z = np.asarray(result.z)
+    dens = np.asarray(result.profile["electron_density" if ref["carrier"] == "electron" else "hole_density"])
+    h = np.diff(z)
+    w = np.zeros(z.size)
+    w[:-1] += 0.5 * h
+    w[1:] += 0.5 * h
+    inside = (z >= ref["top_nm"] - 1e-9) & (z <= ref["bottom_nm"] + 1e-9)
+    return float(np.dot(w[inside], dens[inside])) / NM_PER_CM
 
 
 # --------------------------------------------------------------------------- file
@@ -489,6 +520,7 @@ def save_sweep(sw: BiasSweep, path, *, force: bool = True) -> None:
             f.attrs["temperature_K"] = sw.temperature
             f.attrs["deck"] = sw.deck_text
             f.attrs["channel_layer"] = sw.channel_layer
+            f.attrs["channel"] = sw.channel
             f.attrs["doping_layers"] = list(sw.doping_layers) or [""]
             f.attrs["all_converged"] = sw.all_converged
 
@@ -506,8 +538,8 @@ def save_sweep(sw: BiasSweep, path, *, force: bool = True) -> None:
             sd = "sheet_density"
             ds(f"{sd}/electrons_total", sw.total_electrons, "cm-2", "electrons per area in the whole stack")
             ds(f"{sd}/holes_total", sw.total_holes, "cm-2", "holes per area in the whole stack")
-            ds(f"{sd}/channel", sw.channel_density, "cm-2", f"electrons per area in the channel layer "
-               f"{sw.channel_layer!r}")
+            ds(f"{sd}/channel", sw.channel_density, "cm-2", f"sheet density of the main channel "
+               f"{sw.channel!r} (in layer {sw.channel_layer!r}), followed by depth over the sweep")
             ds(f"{sd}/doping_layers", sw.doping_electrons, "cm-2",
                "electrons per area in the doping layers (donor-doped layers other than the channel): "
                "free electrons plus electrons bound on neutral donors (Nd - Nd+)")

@@ -9,11 +9,16 @@ potential of the evaluated point nearest in ``x`` (warm start), passed as
 ``(z, phi)`` so that it is interpolated onto the new mesh when ``x`` is a
 thickness.  A warm-started solve that does not converge is retried from a cold start.
 
-Quantities (``QUANTITIES``): ``ns`` channel electrons (cm^-2), ``ns_total`` electrons in
-the whole stack (cm^-2), ``e10`` E1 - E0 (eV), ``e0f`` E0 - EF (eV), ``doping_charge``
-electrons taken back by the doping layers (free plus bound on neutral donors, cm^-2),
-``doping_free`` free electrons in the doping layers (cm^-2), or any numeric key of
-``Result.summary``.
+Quantities (``QUANTITIES``): ``ns`` the main channel's sheet density (cm^-2, its own
+carriers: electrons, or holes in a hole channel), ``ns_total`` electrons in the whole stack
+(cm^-2), ``e10`` E1 - E0 of the main channel's own subbands (eV), ``e0f`` its E0 - EF (eV,
+in the carrier's own sense: negative when the ground subband is occupied),
+``doping_charge`` electrons taken back by the doping layers (free plus bound on neutral
+donors, cm^-2), ``doping_free`` free electrons in the doping layers (cm^-2), or any numeric
+key of ``Result.summary``.  ``ns:NAME``, ``e10:NAME`` and ``e0f:NAME`` are the same figures
+of the channel called NAME (selfcon.output.channels; ``selfcon run`` lists the channels).
+The main channel is the first ``[[channel]]`` of the deck, else the one holding most
+carriers of the majority kind.
 """
 from __future__ import annotations
 
@@ -48,11 +53,42 @@ def _doping(bound):
     return f
 
 
+#: per-channel quantities: short name -> (description, units, /channels field)
+CHANNEL_QUANTITIES = {
+    "ns": ("sheet density of the channel", "cm^-2", "sheet_density"),
+    "e10": ("E1 - E0 of the channel's own subbands", "eV", "spacing"),
+    "e0f": ("E0 - EF of the channel (carrier's own sense: negative = occupied)", "eV", "ground_energy"),
+}
+
+
+def _main(field, fallback):
+    """A figure of the main channel (summary key ``fallback`` for results without /channels)."""
+    def f(r, st):
+        if not r.channels:
+            return float(r.summary[fallback])
+        main = r.main_channel
+        return float(main[field]) if main is not None else (0.0 if field == "sheet_density" else math.nan)
+    return f
+
+
+def _channel(name, field):
+    """A figure of the channel ``name``; where it is gone (an auto-detected channel emptied
+    below the detection floor) its sheet density is 0 and its other figures undefined."""
+    def f(r, st):
+        row = r.channel(name)
+        if row is None:
+            return 0.0 if field == "sheet_density" else math.nan
+        return float(row[field])
+    return f
+
+
 QUANTITIES = {
-    "ns": ("electrons in the channel layer", "cm^-2", _summary("channel_electron_sheet_density_cm2")),
+    "ns": ("sheet density of the main channel", "cm^-2",
+           _main("sheet_density", "channel_electron_sheet_density_cm2")),
     "ns_total": ("electrons in the whole stack", "cm^-2", _summary("electron_sheet_density_cm2")),
-    "e10": ("E1 - E0 of the electron subbands", "eV", _summary("E1_minus_E0_eV")),
-    "e0f": ("E0 - EF, lowest electron subband below (-) or above (+) EF", "eV", _summary("E0_minus_EF_eV")),
+    "e10": ("E1 - E0 of the main channel's own subbands", "eV", _main("spacing", "E1_minus_E0_eV")),
+    "e0f": ("E0 - EF of the main channel, below (-, occupied) or above (+) EF", "eV",
+            _main("ground_energy", "E0_minus_EF_eV")),
     "doping_charge": ("electrons in the doping layers (free + on neutral donors)", "cm^-2", _doping(True)),
     "doping_free": ("free electrons in the doping layers", "cm^-2", _doping(False)),
 }
@@ -80,7 +116,14 @@ class TuneResult:
 
 
 def quantity_function(name: str):
-    """(function(result, structure) -> float, description, units) for a quantity name."""
+    """(function(result, structure) -> float, description, units) for a quantity name
+    (``ns``, ``ns:NAME``, ..., or a summary key)."""
+    short, sep, channel = name.partition(":")
+    if sep and short in CHANNEL_QUANTITIES:
+        desc, units, field = CHANNEL_QUANTITIES[short]
+        if not channel:
+            raise TuneError(f"{name!r} names no channel: write {short}:NAME", key="--target")
+        return _channel(channel, field), f"{desc} {channel!r}", units
     if name in QUANTITIES:
         desc, units, fn = QUANTITIES[name]
         return fn, desc, units
@@ -90,12 +133,19 @@ def quantity_function(name: str):
 def _check_quantity(name, result):
     if name in QUANTITIES:
         return
+    short, sep, channel = name.partition(":")
+    if sep and short in CHANNEL_QUANTITIES:
+        if result.channel(channel) is None:
+            raise TuneError(f"unknown channel {channel!r} in {name!r}", key="--target",
+                            allowed=", ".join(c["name"] for c in result.channels) or "no channel at all")
+        return
     v = (result.summary or {}).get(name)
     numeric = [k for k, x in (result.summary or {}).items()
                if isinstance(x, (int, float)) and not isinstance(x, bool)]
     if v is None or isinstance(v, (bool, str, list)):
         raise TuneError(f"unknown quantity {name!r}", key="--target",
-                        allowed=", ".join(list(QUANTITIES) + sorted(numeric)))
+                        allowed=", ".join(list(QUANTITIES) + [f"{q}:NAME" for q in CHANNEL_QUANTITIES]
+                                          + sorted(numeric)))
 
 
 def path_value(deck, path: str):
@@ -249,8 +299,9 @@ def tune(deck: Deck | str | os.PathLike, path: str, target_name: str, target_val
 def parse_target(text: str) -> tuple[str, float]:
     """``"ns=3e11"`` -> ("ns", 3e11)."""
     if not isinstance(text, str) or "=" not in text:
-        raise TuneError(f"must be QUANTITY=VALUE, e.g. ns=3e11, got {text!r}", key="--target",
-                        allowed=", ".join(QUANTITIES) + ", or a summary key")
+        raise TuneError(f"must be QUANTITY=VALUE, e.g. ns=3e11 or ns:NAME=3e11, got {text!r}",
+                        key="--target", allowed=", ".join(QUANTITIES) + ", ns:NAME, e10:NAME, e0f:NAME, "
+                        "or a summary key")
     name, _, val = text.partition("=")
     name = name.strip()
     try:

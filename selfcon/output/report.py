@@ -43,15 +43,52 @@ def _meV(v):
     return v if math.isfinite(v) else None
 
 
-def channel_figures(result) -> dict | None:
-    """Where the carriers sit: the layer holding most electrons (or holes, if there are no electrons).
+def channel_rows(result) -> list[dict]:
+    """Every channel of the result (/channels), figures in display units (meV, cm^-2)."""
+    out = []
+    for row in result.channels or []:
+        out.append({"name": str(row.get("name", "")), "carrier": str(row.get("carrier", "")),
+                    "top_nm": float(row.get("top_nm", math.nan)),
+                    "bottom_nm": float(row.get("bottom_nm", math.nan)),
+                    "sheet_density_cm2": float(row.get("sheet_density", 0.0)),
+                    "ground_energy_meV": _meV(row.get("ground_energy", math.nan)),
+                    "spacing_meV": _meV(row.get("spacing", math.nan)),
+                    "occupied_subbands": int(row.get("occupied_subbands", 0)),
+                    "centroid_nm": float(row.get("centroid_nm", math.nan)),
+                    "in_plane_mass_m0": float(row.get("in_plane_mass", math.nan)),
+                    "layer": str(row.get("layer", "")), "named": bool(row.get("named", False)),
+                    "main": bool(row.get("main", False))})
+    return out
 
-    Returns ``{"layer", "index", "carrier", "sheet_density_cm2", "ef_minus_ec_meV" | "ev_minus_ef_meV"}``
-    with the band edge taken at its extremum inside that layer (EF = 0 eV), or None without carriers.
+
+def channel_figures(result) -> dict | None:
+    """The main channel (selfcon.output.channels): its name, the layer holding most of its
+    carriers, carrier kind, sheet density, band-edge extremum relative to EF and own subband
+    figures.  Returns ``{"name", "layer", "index", "carrier", "sheet_density_cm2",
+    "ef_minus_ec_meV" | "ev_minus_ef_meV", "ground_energy_meV", "spacing_meV",
+    "occupied_subbands"}``, or None without channels.  A result without /channels (an older
+    file) falls back to the layer holding most electrons (or holes).
     """
     if not result.layers:
         return None
     s = result.summary
+    names = [str(row.get("name", i)) for i, row in enumerate(result.layers)]
+    main = result.main_channel if result.channels else None
+    if result.channels:
+        if main is None:
+            return None
+        layer = str(main.get("layer", ""))
+        out = {"name": str(main["name"]), "layer": layer,
+               "index": names.index(layer) if layer in names else None, "carrier": str(main["carrier"]),
+               "sheet_density_cm2": float(main["sheet_density"]),
+               "ground_energy_meV": _meV(main.get("ground_energy", math.nan)),
+               "spacing_meV": _meV(main.get("spacing", math.nan)),
+               "occupied_subbands": int(main.get("occupied_subbands", 0))}
+        if main["carrier"] == "electron":
+            out["ef_minus_ec_meV"] = _meV(s.get("ef_minus_ec_channel_eV", math.nan))
+        else:
+            out["ev_minus_ef_meV"] = _meV(s.get("ev_minus_ef_channel_eV", math.nan))
+        return out
     names = [str(row.get("name", i)) for i, row in enumerate(result.layers)]
     if s.get("channel_layer") in names:             # the solver's own figures (/summary)
         i = names.index(s["channel_layer"])
@@ -99,6 +136,44 @@ def subband_rows(result) -> list[dict]:
     return rows
 
 
+#: states listed per band in the summary (further occupied ones are listed too)
+LOWEST_STATES = 3
+#: transitions listed in the summary: among the lowest LOWEST_STATES states of each band,
+#: with an overlap of at least this (the others are in /transitions)
+TRANSITION_MIN_OVERLAP = 1e-3
+SUMMARY_TRANSITIONS = 6
+
+
+def state_label(band: str, index: int) -> str:
+    """E0, HH1, LH0, ...: the label of a state in tables (0-based, as /subbands)."""
+    return {"electron": "E", "heavy_hole": "HH", "light_hole": "LH"}.get(band, band) + str(index)
+
+
+def listed_states(rows) -> list[dict]:
+    """The subband rows the summary lists: per band its lowest LOWEST_STATES states and
+    every further occupied one."""
+    return [r for r in rows if r["index"] < LOWEST_STATES or r["occupied"]]
+
+
+def transition_rows(result) -> list[dict]:
+    """The strongest low transitions: between the lowest LOWEST_STATES electron states and the
+    lowest LOWEST_STATES states of each hole band, overlap >= TRANSITION_MIN_OVERLAP, lowest
+    energy first, at most SUMMARY_TRANSITIONS."""
+    t = result.transitions or {}
+    if not len(t.get("energy", [])):
+        return []
+    out = []
+    for ei, band, hi, en, ov in zip(t["electron_state"], t["hole_band"], t["hole_state"], t["energy"],
+                                    t["overlap"]):
+        if ei < LOWEST_STATES and hi < LOWEST_STATES and ov >= TRANSITION_MIN_OVERLAP:
+            out.append({"electron_state": int(ei), "hole_band": str(band), "hole_state": int(hi),
+                        "label": f"{state_label('electron', int(ei))}-{state_label(str(band), int(hi))}",
+                        "energy_eV": float(en), "wavelength_nm": 1239.841984 / float(en) if en > 0 else None,
+                        "overlap": float(ov)})
+    out.sort(key=lambda r: r["energy_eV"])
+    return out[:SUMMARY_TRANSITIONS]
+
+
 def summary_figures(result, output: str | None = None) -> dict[str, Any]:
     """The headline figures of a result as one plain dict (JSON-ready)."""
     layers = [{"index": i, "name": str(row.get("name", i)), "material": str(row.get("material", "")),
@@ -124,6 +199,8 @@ def summary_figures(result, output: str | None = None) -> dict[str, Any]:
         "occupied_subbands": sum(1 for r in subbands if r["occupied"]),
         "subbands": subbands,
         "channel": channel_figures(result),
+        "channels": channel_rows(result),
+        "transitions": transition_rows(result),
         "warnings": list(result.warnings),
         "summary": summary,
     }
@@ -149,6 +226,10 @@ def sci(value, digits=3) -> str:
     return f"{mant}e{int(exp)}"
 
 
+def _num(value, fmt) -> str:
+    return "–" if value is None or (isinstance(value, float) and not math.isfinite(value)) else format(value, fmt)
+
+
 def _status_line(fig) -> str:
     wall = fig.get("wall_time_s")
     wall_s = f", {wall:.2f} s" if isinstance(wall, (int, float)) else ""
@@ -160,14 +241,26 @@ def _status_line(fig) -> str:
 def _channel_line(fig) -> str | None:
     ch = fig.get("channel")
     if not ch:
-        return None
+        return ("no channel: no carrier kind is confined anywhere (each holds less than 1e8 cm-2)"
+                if fig.get("layers") else None)
+    name = ch.get("name", ch["layer"])
+    where = f"in layer '{ch['layer']}'" if ch.get("layer") else ""
+    if ch.get("index") is not None and "name" not in ch:           # an older result file
+        where = f"(layer {ch['index']})"
     if ch["carrier"] == "electron":
         v = ch.get("ef_minus_ec_meV")
-        return (f"channel '{ch['layer']}' (layer {ch['index']}): E_F - Ec,min = "
-                f"{v:+.1f} meV" if v is not None else f"channel '{ch['layer']}'")
-    v = ch.get("ev_minus_ef_meV")
-    return (f"hole channel '{ch['layer']}' (layer {ch['index']}): Ev,max - E_F = "
-            f"{v:+.1f} meV" if v is not None else f"hole channel '{ch['layer']}'")
+        head = f"main channel '{name}' {where}: n_s = {sci(ch['sheet_density_cm2'])} cm-2"
+        edge = f", E_F - Ec,min = {v:+.1f} meV" if v is not None else ""
+    else:
+        v = ch.get("ev_minus_ef_meV")
+        head = f"main channel '{name}' {where} (holes): p_s = {sci(ch['sheet_density_cm2'])} cm-2"
+        edge = f", Ev,max - E_F = {v:+.1f} meV" if v is not None else ""
+    sub = ""
+    if ch.get("ground_energy_meV") is not None:
+        sub = f", E0 - E_F = {ch['ground_energy_meV']:+.1f} meV"
+        if ch.get("spacing_meV") is not None:
+            sub += f", E1 - E0 = {ch['spacing_meV']:.1f} meV"
+    return " ".join((head + edge + sub).split())
 
 
 def plain_summary(fig) -> list[str]:
@@ -209,20 +302,53 @@ def print_summary(fig, console) -> None:
                   sci(row["hole_sheet_density_cm2"]), style=style)
     console.print(t)
 
-    occupied = [r for r in fig["subbands"] if r["occupied"]]
-    if occupied:
-        s = Table(title="Occupied subbands", title_justify="left")
-        s.add_column("band")
-        s.add_column("#", justify="right")
-        s.add_column("E - E_F (meV)", justify="right")
-        s.add_column("population (cm⁻²)", justify="right")
-        s.add_column("m∥ (m0)", justify="right")
-        for r in occupied:
-            s.add_row(BAND_LABELS.get(r["band"], r["band"]), str(r["index"]), f"{r['energy_meV']:+.2f}",
-                      sci(r["occupation_cm2"]), f"{r['in_plane_mass_m0']:.4g}")
-        console.print(s)
-    else:
-        console.print("no occupied subband")
+    if fig.get("channels"):
+        c = Table(title="Channels (* main; E0 - E_F in the carrier's own sense: negative = occupied)",
+                  title_justify="left")
+        c.add_column("channel")
+        c.add_column("carrier")
+        c.add_column("depth (nm)", justify="right")
+        c.add_column("sheet density (cm⁻²)", justify="right")
+        c.add_column("E0 - E_F (meV)", justify="right")
+        c.add_column("E1 - E0 (meV)", justify="right")
+        c.add_column("occupied", justify="right")
+        c.add_column("m∥ (m0)", justify="right")
+        for r in fig["channels"]:
+            c.add_row(r["name"] + (" *" if r["main"] else ""), r["carrier"],
+                      f"{r['top_nm']:.1f}–{r['bottom_nm']:.1f}", sci(r["sheet_density_cm2"]),
+                      _num(r["ground_energy_meV"], "+.1f"), _num(r["spacing_meV"], ".1f"),
+                      str(r["occupied_subbands"]), _num(r["in_plane_mass_m0"], ".4g"),
+                      style="bold" if r["main"] else None)
+        console.print(c)
+
+    s = Table(title=f"Subbands (lowest {LOWEST_STATES} per band and every occupied one)", title_justify="left")
+    s.add_column("state")
+    s.add_column("band")
+    s.add_column("E - E_F (meV)", justify="right")
+    s.add_column("population (cm⁻²)", justify="right")
+    s.add_column("channel")
+    s.add_column("m∥ (m0)", justify="right")
+    listed = listed_states(fig["subbands"])
+    for band in BAND_LABELS:
+        rows = [r for r in listed if r["band"] == band]
+        if not rows:
+            s.add_row("–", BAND_LABELS[band], "none bound", "", "", "")
+        for r in rows:
+            s.add_row(state_label(band, r["index"]), BAND_LABELS[band], f"{r['energy_meV']:+.2f}",
+                      sci(r["occupation_cm2"]), r.get("channel") or "–", f"{r['in_plane_mass_m0']:.4g}",
+                      style="bold" if r["occupied"] else None)
+    console.print(s)
+
+    if fig.get("transitions"):
+        t = Table(title="Interband transitions (overlap ≥ 0.001; all pairs in /transitions)",
+                  title_justify="left")
+        t.add_column("pair")
+        t.add_column("energy (eV)", justify="right")
+        t.add_column("wavelength (nm)", justify="right")
+        t.add_column("overlap |⟨e|h⟩|²", justify="right")
+        for r in fig["transitions"]:
+            t.add_row(r["label"], f"{r['energy_eV']:.4f}", _num(r["wavelength_nm"], ".1f"), f"{r['overlap']:.3f}")
+        console.print(t)
     line = _channel_line(fig)
     if line:
         console.print(line)
