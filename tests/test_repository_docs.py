@@ -47,3 +47,35 @@ def test_sections_cited_in_code_exist(doc):
                            for h in headings):
                     bad.append(f"{_rel(p)}:{n}: {doc} has no section {section!r}")
     assert bad == [], "\n".join(bad)
+
+
+def _defined_names(path):
+    """Top-level functions, classes and assigned names of a module, and Class.method pairs."""
+    import ast
+    tree = ast.parse(path.read_text(encoding="utf-8"))
+    names = set()
+    for node in tree.body:
+        if isinstance(node, (ast.FunctionDef, ast.AsyncFunctionDef, ast.ClassDef)):
+            names.add(node.name)
+            if isinstance(node, ast.ClassDef):
+                names.update(f"{node.name}.{m.name}" for m in node.body
+                             if isinstance(m, (ast.FunctionDef, ast.AsyncFunctionDef)))
+        elif isinstance(node, (ast.Assign, ast.AnnAssign)):
+            targets = node.targets if isinstance(node, ast.Assign) else [node.target]
+            names.update(t.id for t in targets if isinstance(t, ast.Name))
+    return names
+
+
+def test_files_and_functions_named_in_the_contributor_guide_exist():
+    """Every ``path.py`` and ``path.py::name`` in DEVELOPERS.md's code spans is in the tree."""
+    text = (ROOT / "DEVELOPERS.md").read_text(encoding="utf-8")
+    refs = re.findall(r"`((?:selfcon|tests|tools)/[\w/.]+?\.py)(?:::([\w.]+))?", text)
+    assert len(refs) > 30, "DEVELOPERS.md names few files (the check would be vacuous)"
+    bad = []
+    for path, name in refs:
+        p = ROOT / path
+        if not p.is_file():
+            bad.append(f"{path} does not exist")
+        elif name and name not in _defined_names(p):
+            bad.append(f"{path} defines no {name}")
+    assert bad == [], "\n".join(sorted(set(bad)))

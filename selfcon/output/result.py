@@ -31,6 +31,7 @@ existing output untouched.
 from __future__ import annotations
 
 import datetime as _dt
+import os
 from pathlib import Path
 
 import numpy as np
@@ -68,7 +69,28 @@ class Subbands:
 
 @dataclass
 class Result:
-    """Outcome of :func:`selfcon.solve`.  ``converged = False`` is a result, not an error."""
+    """Outcome of :func:`selfcon.solve`.  ``converged = False`` is a result, not an error.
+
+    Profiles are per node in output units (``profile["electron_density"]`` in cm^-3,
+    ``profile["conduction_band"]`` in eV relative to EF, ``profile["electric_field"]`` in
+    V/cm), ``subbands[band]`` holds the bound states, ``layers`` one row per layer with its
+    sheet densities, ``summary`` the headline figures (README.md, "Result file (HDF5)"),
+    ``warnings`` the design warnings.  ``save(path)`` writes the HDF5 file and
+    :func:`selfcon.load_result` reads it back.
+
+    Examples
+    --------
+    >>> import selfcon
+    >>> result = selfcon.solve("inputs/hemt_4K.toml")
+    >>> result.converged, int(result.status), result.summary["channel_layer"]
+    (True, 0, 'channel')
+    >>> [row["name"] for row in result.layers]
+    ['cap', 'barrier', 'doping', 'spacer', 'channel', 'buffer']
+    >>> result.z.shape == result.profile["electron_density"].shape
+    True
+    >>> bool(result.subbands["electron"].energy[0] < 0)      # the lowest subband lies below EF
+    True
+    """
 
     title: str
     temperature: float
@@ -125,8 +147,30 @@ class Result:
     def potential(self) -> np.ndarray:
         return self.profile["potential"]
 
-    def save(self, path, *, force: bool = False) -> None:
-        """Write the HDF5 result file atomically (see save_result)."""
+    def save(self, path: str | os.PathLike, *, force: bool = False) -> None:
+        """Write the HDF5 result file atomically (see :func:`save_result`).
+
+        Parameters
+        ----------
+        path : str or path-like
+            The file to write; its folder must exist.
+        force : bool, optional
+            Replace an existing file (else that is a :class:`ResultFileError`).
+
+        Raises
+        ------
+        ResultFileError
+            ``path`` exists and ``force`` is False, or its folder does not exist.
+
+        Examples
+        --------
+        >>> import h5py, selfcon
+        >>> result = selfcon.solve("inputs/hemt_300K.toml")
+        >>> result.save("hemt_300K.h5", force=True)
+        >>> with h5py.File("hemt_300K.h5") as f:            # plain h5py reads it
+        ...     print(f["profile/electron_density"].attrs["units"])
+        cm-3
+        """
         save_result(self, path, force=force)
 
     def __repr__(self) -> str:  # keep reprs short: arrays are large

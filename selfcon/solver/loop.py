@@ -18,6 +18,7 @@ import os
 import sys
 import time
 import warnings
+from collections.abc import Sequence
 from dataclasses import dataclass
 
 import numpy as np
@@ -142,14 +143,38 @@ def _outside_stacklevel() -> int:
     return level
 
 
-def extrapolate_potential(previous, value):
+def extrapolate_potential(previous: Sequence[tuple[np.ndarray, np.ndarray, float]],
+                          value: float) -> tuple[np.ndarray, np.ndarray] | None:
     """Continuation guess at parameter ``value`` from converged neighbours.
 
-    ``previous``: up to two ``(z_nm, phi_V, parameter_value)`` tuples, nearest first.
-    With one, its potential is returned; with two on the same mesh and distinct
+    With one neighbour its potential is returned; with two on the same mesh and distinct
     values, the linear (secant) extrapolation phi_1 + (v - v_1)/(v_1 - v_2) (phi_1 - phi_2),
     whose error is second order in the step, so the loop starts much closer.
-    Returns ``(z_nm, phi_V)`` for ``solve(..., initial_potential=...)``.
+
+    Parameters
+    ----------
+    previous : sequence of (z_nm, phi_V, parameter_value)
+        Up to two converged solutions, nearest first (more are ignored).
+    value : float
+        The parameter value (e.g. the gate bias in V) of the next solve.
+
+    Returns
+    -------
+    (z_nm, phi_V) or None
+        For ``solve(..., initial_potential=...)``; None when ``previous`` is empty.
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> from selfcon.api import extrapolate_potential
+    >>> z = np.array([0.0, 10.0, 20.0])
+    >>> at_0 = (z, np.array([0.0, 0.25, 0.5]), 0.0)           # (z, phi, gate bias)
+    >>> at_1 = (z, np.array([0.0, 0.5, 1.0]), -0.5)
+    >>> zz, phi = extrapolate_potential([at_1, at_0], -1.0)     # secant: one more step
+    >>> phi.tolist()
+    [0.0, 0.75, 1.5]
+    >>> extrapolate_potential([], -1.0) is None
+    True
     """
     if not previous:
         return None

@@ -33,8 +33,41 @@ import numpy as np
 _REGISTRY: dict[str, type] = {}
 
 
-def register(cls):
-    """Class decorator: make ``cls`` available as ``solver.method = cls.name``."""
+def register(cls: type[Mixer]) -> type[Mixer]:
+    """Class decorator: make a :class:`Mixer` subclass available as ``solver.method = cls.name``.
+
+    Exported as :func:`selfcon.register_mixer`.  After registration the deck key
+    ``solver.method``, ``--set solver.method=NAME`` and ``solve(deck, method="NAME")``
+    accept the name, and the parametrised mixer tests pick the class up.  An unregistered
+    class works too, passed as ``solve(deck, method=TheClass)``.
+
+    Parameters
+    ----------
+    cls : type
+        A :class:`Mixer` subclass with a unique ``name``.
+
+    Returns
+    -------
+    type
+        ``cls`` itself, so this is usable as a decorator.
+
+    Examples
+    --------
+    A registered name is what a deck may write as ``solver.method``:
+
+    >>> import selfcon
+    >>> from selfcon.solver.mixers import available_methods
+    >>> "anderson" in available_methods()
+    True
+    >>> @selfcon.register_mixer                      # doctest: +SKIP
+    ... class HalfStep(selfcon.Mixer):
+    ...     name = "half-step"
+    ...     predictor = True
+    ...     def update(self, x, r):
+    ...         return x + 0.5 * r
+    >>> selfcon.solve("inputs/hemt_4K.toml", method="half-step").converged   # doctest: +SKIP
+    True
+    """
     from selfcon.input.deck import register_method_name
     _REGISTRY[cls.name] = cls
     register_method_name(cls.name)
@@ -88,6 +121,35 @@ def get_mixer(name: str, **options) -> "Mixer":
 
 
 class Mixer:
+    """Base class of the mixers: propose the next potential from the last one and its residual.
+
+    A mixer knows no physics.  ``update(x, r)`` gets the potential ``x`` the loop used and
+    ``r = g(x) - x`` (what one Schrödinger + Poisson pass proposes, minus ``x``) and returns
+    the next potential; ``reset()`` is called before every solve, ``damp()`` when the
+    residual grew (return False when nothing is left to damp).  Class attributes: ``name``
+    (the deck's ``solver.method``), ``predictor`` (True: the Poisson pass lets the subbands
+    follow the potential, the predictor-corrector coupling) and ``option_names`` (the
+    ``[solver]`` options passed to ``__init__``).  The module docstring has the recipe.
+
+    Examples
+    --------
+    A fixed half step with the predictor pass, used without registering it:
+
+    >>> import selfcon
+    >>> class HalfStep(selfcon.Mixer):
+    ...     name = "half-step"
+    ...     predictor = True
+    ...     def update(self, x, r):
+    ...         return x + 0.5 * r
+    >>> result = selfcon.solve("inputs/hemt_4K.toml", method=HalfStep)
+    >>> result.converged
+    True
+    >>> reference = selfcon.solve("inputs/hemt_4K.toml")    # the default predictor-corrector
+    >>> n1, n2 = (r.summary["electron_sheet_density_cm2"] for r in (result, reference))
+    >>> bool(abs(n1 / n2 - 1) < 1e-4)                         # the same answer
+    True
+    """
+
     name = "base"
     predictor = False
     option_names: tuple[str, ...] = ()
