@@ -99,24 +99,34 @@ def well_levels(occ):
     return chx.Levels("electron", energy, np.asarray(occ, float), psi, np.array([0.067, 0.067, 0.068, 0.07]))
 
 
-def electron_profile(lv, classical):
+def electron_profile(lv, classical, edge=None):
     dens = (lv.psi ** 2) @ lv.occupation * 1e7 + classical
-    return chx.CarrierProfile(edge=two_wells(), density=dens, classical=classical)
+    return chx.CarrierProfile(edge=two_wells() if edge is None else edge, density=dens, classical=classical)
 
 
 def test_attribution_densities_and_balance():
-    lv = well_levels([3e11, 1e11, 5e9, 2e9])
-    cl = gauss(25, 1e15) + gauss(85, 1e15)            # classical: one bump in well A, one outside
-    an = chx.analyse(Z, W, KT, {"electron": electron_profile(lv, cl)}, [lv], layers())
+    lv = well_levels([3e11, 1e11, 5e9, 5e7])
+    # classical carriers: a bump in well A, and 3.5e7 cm^-2 (below the 1e8 floor) in a shallow
+    # third well of its own (80-90 nm, 0.1 eV): no channel, so classical outside every channel
+    edge = two_wells()
+    edge[(Z >= 80) & (Z <= 90)] = 0.1
+    cl = gauss(25, 1e15) + gauss(85, 1e14)
+    an = chx.analyse(Z, W, KT, {"electron": electron_profile(lv, cl, edge)}, [lv], layers())
     assert [c.name for c in an.channels] == ["well", "electron2"]     # layer3 has a default name
     a, b = an.channels
-    # A1, A2 -> well A; B1 -> well B; C has half its |psi|^2 in each: no channel (share not > 1/2)
+    # A1, A2 -> well A; B1 -> well B; C has half its |psi|^2 in each: no channel (share not > 1/2;
+    # it holds 5e7 cm^-2, below the 1e8 that would make the wells one coupled channel)
     assert an.attribution["electron"].tolist() == [0, 1, 0, -1]
     cl_a = float(np.dot(W[a.i0:a.i1 + 1], cl[a.i0:a.i1 + 1])) / 1e7
     assert a.sheet_density == pytest.approx(3e11 + 5e9 + cl_a, rel=1e-12)
     assert b.sheet_density == pytest.approx(1e11, rel=1e-12)
-    assert an.unattributed["electron"] == pytest.approx(2e9)
-    total = float(np.dot(W, electron_profile(lv, cl).density)) / 1e7
+    assert an.unattributed["electron"] == pytest.approx(5e7)
+    total = float(np.dot(W, electron_profile(lv, cl, edge).density)) / 1e7
+    inside = np.zeros(Z.size, bool)
+    for c in an.channels:
+        inside[c.i0:c.i1 + 1] = True
+    assert an.classical_outside["electron"] == pytest.approx(float(np.dot(W[~inside], cl[~inside])) / 1e7)
+    assert an.classical_outside["electron"] > 0.99 * 3.5449e7     # the third well's 1e14 * sqrt(2 pi) * sqrt(2) nm
     assert an.total["electron"] == pytest.approx(total, rel=1e-12)
     assert abs(an.balance("electron")) < 1e-9 * total
     # own figures: E1 - E0 from the channel's own states; one state -> NaN
@@ -129,18 +139,20 @@ def test_attribution_densities_and_balance():
 
 
 def test_tail_beyond_a_barrier_top_is_no_channel():
-    # a well state whose tail reaches past a barrier top into a lower plateau: the plateau's
-    # run holds only a neighbour's tail, no carriers of its own -> no second channel
+    # a well state whose tail reaches past a barrier top into a lower plateau, with a bump
+    # there: the bump's run holds only a neighbour's tail, no carriers of its own -> no channel
     u = np.full(Z.size, 0.3)
     u[(Z >= 20) & (Z <= 30)] = 0.0
     u[(Z > 31) & (Z < 60)] = 0.1
     psi = np.where((Z >= 20) & (Z <= 30), np.cos(np.pi * (Z - 25) / 12), 0.0)
-    psi = psi + np.where(Z > 30, np.cos(np.pi * 5 / 12) * np.exp(-0.3 * (Z - 30)), 0.0)
+    tail = np.cos(np.pi * 5 / 12) * np.exp(-0.3 * (Z - 30)) * (1 + 30 * np.exp(-((Z - 40) / 2) ** 2))
+    psi = psi + np.where(Z > 30, tail, 0.0)
     psi /= np.sqrt(np.dot(W, psi ** 2))
     lv = chx.Levels("electron", np.array([-0.01]), np.array([1e12]), psi[:, None], np.array([0.067]))
     dens = psi ** 2 * 1e12 * 1e7
     raw = chx.detect(Z, W, u, dens, "electron", KT)
-    assert len(raw) == 2                          # the tail forms a run of its own ...
+    assert len(raw) == 2                          # the bump forms a run of its own ...
+    assert chx.drop_tails(raw, W, dens, [lv]) == raw[:1]
     prof = chx.CarrierProfile(edge=u, density=dens, classical=np.zeros(Z.size))
     an = chx.analyse(Z, W, KT, {"electron": prof}, [lv], layers())
     assert len(an.channels) == 1                  # ... but it is nobody's channel
@@ -148,8 +160,22 @@ def test_tail_beyond_a_barrier_top_is_no_channel():
     assert abs(an.balance("electron")) < 1e-3
 
 
+def test_tunnel_coupled_bilayer_is_one_channel():
+    # symmetric and antisymmetric states of two wells, each half in either well: the wells
+    # share their subbands (a 0.2 eV barrier keeps them apart by the band edge alone)
+    a, b = box(20, 30, 1), box(60, 70, 1)
+    psi = np.column_stack([(a + b) / np.sqrt(2), (a - b) / np.sqrt(2)])
+    lv = chx.Levels("electron", np.array([-0.02, -0.019]), np.array([2e11, 1.5e11]), psi, np.array([0.067] * 2))
+    prof = electron_profile(lv, np.zeros(Z.size))
+    assert len(chx.detect(Z, W, prof.edge, prof.density, "electron", KT)) == 2
+    an = chx.analyse(Z, W, KT, {"electron": prof}, [lv], layers())
+    assert [(Z[c.i0], Z[c.i1]) for c in an.channels] == [(20.5, 69.5)]
+    assert an.channels[0].sheet_density == pytest.approx(3.5e11)
+    assert an.channels[0].spacing == pytest.approx(0.001)          # the tunnel splitting
+
+
 def test_named_channels_replace_overlapping_auto_ones_and_come_first():
-    lv = well_levels([3e11, 1e11, 5e9, 2e9])
+    lv = well_levels([3e11, 1e11, 5e9, 5e7])
     ehole = chx.Levels("heavy_hole", np.array([-0.5]), np.array([2e10]), box(60, 70, 1)[:, None],
                        np.array([0.1]))
     hole_prof = chx.CarrierProfile(edge=-0.6 - two_wells(), density=(box(60, 70, 1) ** 2) * 2e10 * 1e7,

@@ -56,8 +56,11 @@ def test_two_wells_channels_named_after_their_layers(two_wells):
     assert r.converged
     assert [c["name"] for c in r.channels] == ["well_upper", "well_lower"]
     assert all(c["carrier"] == "electron" and c["sheet_density"] > 1e11 for c in r.channels)
-    # no design warning: each well is a channel of its own, not a parasite of the other
-    assert not any("parasitic" in w for w in r.warnings)
+    # without [[channel]] tables nothing says the second well is intended: it is parasitic
+    # (holding more than 1 % of the main channel); test_named_channels_of_the_deck: no warning
+    assert r.main_channel["name"] == "well_upper"
+    w = [x for x in r.warnings if x.startswith("parasitic channel")]
+    assert len(w) == 1 and "'well_lower'" in w[0]
 
 
 def test_two_wells_sheet_densities_add_up(two_wells):
@@ -122,6 +125,12 @@ def test_inverted_main_channel_spacing_from_its_own_states(inverted):
     # donor sheet (116 nm) that closes the spacer below it, at the converged potential: 0.1 meV
     e = windowed_levels(r, st, 50.0, 116.0)
     assert abs(r.summary["E1_minus_E0_eV"] - (e[1] - e[0])) < 1e-4
+
+
+def test_inverted_buffer_channel_is_parasitic(inverted):
+    r, _ = inverted
+    w = [x for x in r.warnings if x.startswith("parasitic channel")]
+    assert len(w) == 1 and "'buffer'" in w[0]
 
 
 # --------------------------------------------------------------------------- the undoped well

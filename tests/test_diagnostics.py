@@ -14,6 +14,7 @@ from selfcon.model.structure import build_structure
 
 DESIGN = Path(__file__).resolve().parents[1] / "inputs" / "design"
 HALL = DESIGN / "hall_wafer_77K.toml"
+EXAMPLES = Path(__file__).resolve().parents[1] / "inputs"
 
 
 def solve(deck):
@@ -193,3 +194,44 @@ def test_uncounted_valley_check_is_silent_on_the_cold_example(hemt4_result):
     # at 4 K the X and L edges of Al0.32GaAs stay far above EF in kT: no valley warning
     r = hemt4_result
     assert not any("valley" in w for w in r.warnings)
+
+
+# --------------------------------------------------------------------------- channels (selfcon.output.channels)
+
+def test_no_false_alarm_from_the_channels_own_tail():
+    # the Hall wafer without its spacer: the 2DEG's own subband tail reaches into the doped
+    # layer next to it.  The doping layer then holds more than 1 % of the channel's electrons
+    # (a layer count would call it parallel conduction), but they are the channel's own.
+    import tomllib
+    from selfcon.input.deck import dumps_toml
+    data = tomllib.loads(HALL.read_text())
+    data["layer"] = [lay for lay in data["layer"] if lay["name"] != "spacer"]
+    data["quantum"]["regions"] = [[8.0, 120.0]]
+    r, st = solve(selfcon.load_deck(dumps_toml(data)))
+    doping = next(row for row in r.layers if row["name"] == "doping")["electron_sheet_density_cm2"]
+    assert doping > 0.01 * r.summary["channel_electron_sheet_density_cm2"]
+    assert [c["name"] for c in r.channels] == ["channel"]
+    assert dg.check_parasitic_channels(r, st) == [] and r.warnings == []
+
+
+def test_holes_in_a_p_doped_layer_are_parallel_conduction():
+    # the 2DHG deck with 2e19 cm^-3 acceptors over 20 nm (metallic, above the Mott density):
+    # free holes in the doping layer; the well is named as the main channel
+    deck = selfcon.load_deck(DESIGN / "2dhg_4K.toml")
+    text = deck.to_toml() + '\n[[channel]]\nname = "2dhg"\ncarrier = "hole"\nlayers = ["well"]\n'
+    deck = selfcon.load_deck(text, ["layer.doping.thickness=20", "layer.doping.acceptors=2e19",
+                                    "layer.doping.sheet_acceptors=0"])
+    r, st = solve(deck)
+    assert r.main_channel["name"] == "2dhg"
+    w = dg.check_parasitic_channels(r, st)
+    assert len(w) == 1 and "holes" in w[0] and "parallel conduction through the doped layer 'doping'" in w[0]
+
+
+def test_carriers_outside_quantum_regions():
+    # the 4 K wafer with its quantum region ending where the channel begins: the whole 2DEG
+    # is classical, outside every region
+    r, st = solve(selfcon.load_deck(EXAMPLES / "hemt_4K.toml", ["quantum.regions=[[30.0, 60.0]]"]))
+    w = dg.check_carriers_outside(r, st)
+    assert len(w) == 1 and "electrons" in w[0] and "widen quantum.regions" in w[0]
+    clean, st2 = solve(selfcon.load_deck(EXAMPLES / "hemt_4K.toml"))
+    assert dg.check_carriers_outside(clean, st2) == []

@@ -10,12 +10,16 @@ electrons, -Ev for holes, so that carriers sit in the minima of U) and density d
 
 1. the nodes are split into *basins* at the local maxima of U (a flat top is split at
    its middle);
-2. in each basin, the channel candidate is the run of nodes around the basin's density
-   peak where d exceeds ``PEAK_FRACTION`` = 1e-3 of that peak;
-3. candidates holding less than ``FALLBACK_FLOOR_CM2`` = 1e3 cm^-2 are dropped;
+2. in each basin, every local density peak, highest first, makes a candidate: the run of
+   nodes around it where d exceeds ``PEAK_FRACTION`` = 1e-3 of that peak (not entering an
+   earlier run); candidates holding less than ``FALLBACK_FLOOR_CM2`` = 1e3 cm^-2 are dropped;
+3. a candidate whose density is mostly held by subbands belonging to other candidates (the
+   tail of a neighbour's subbands beyond a barrier top) is dropped;
 4. neighbouring candidates are merged (across layer boundaries) while the barrier between
    them, max U between them minus the higher of their two minima, is below
-   ``MERGE_KT`` = 2 kT;
+   ``MERGE_KT`` = 2 kT, and when most of their carriers sit in subbands they share (at
+   most half of the |psi|^2 in either, more than half in both: a tunnel-coupled bilayer
+   is one quantum system);
 5. after attribution (below), a candidate is a channel when it holds at least
    ``CHANNEL_FLOOR_CM2`` = 1e8 cm^-2 of its own carriers (its subbands and classical
    carriers; the tail of a neighbour's subbands beyond a barrier top is not its own).
@@ -60,7 +64,8 @@ import numpy as np
 from selfcon.constants import NM_PER_CM
 
 __all__ = ["CARRIERS", "BAND_CARRIER", "Levels", "CarrierProfile", "LayerSpan", "Request", "Channel",
-           "ChannelAnalysis", "occupied", "occupied_states", "basins", "detect", "analyse", "transitions",
+           "ChannelAnalysis", "occupied", "occupied_states", "basins", "candidate_runs", "merge_runs",
+           "drop_tails", "merge_coupled", "detect", "analyse", "transitions",
            "PEAK_FRACTION", "MERGE_KT", "CHANNEL_FLOOR_CM2", "FALLBACK_FLOOR_CM2", "ATTRIBUTION_SHARE", "LAYER_SHARE",
            "OCCUPIED_FRACTION", "OCCUPIED_CM2"]
 
@@ -234,31 +239,44 @@ def basins(u) -> list[tuple[int, int]]:
     return out
 
 
-def detect(z, w, edge, density, carrier: str, kT: float, *, floor_cm2: float = CHANNEL_FLOOR_CM2,
-           peak_fraction: float = PEAK_FRACTION, merge_kt: float = MERGE_KT) -> list[tuple[int, int]]:
-    """Auto-detected channels of one carrier as inclusive node ranges, top to bottom.
+def candidate_runs(w, u, density, *, floor_cm2: float = FALLBACK_FLOOR_CM2,
+                   peak_fraction: float = PEAK_FRACTION) -> list[tuple[int, int]]:
+    """Runs of nodes around the local density peaks, inside the basins of ``u``, top to bottom.
 
-    ``edge``: the carrier's band edge at the nodes (eV, electron scale: Ec or Ev);
-    ``density``: its density (cm^-3); ``w``: dual widths (nm).  See the module docstring.
+    Peaks are taken from the highest down; each run spans the nodes around its peak where
+    the density exceeds ``peak_fraction`` of that peak, without leaving its basin or entering
+    an earlier run.  Runs holding less than ``floor_cm2`` are left out.
     """
     w = np.asarray(w, dtype=float)
     dens = np.asarray(density, dtype=float)
-    u = CARRIER_SIGN[carrier] * np.asarray(edge, dtype=float)
+    n = dens.size
     runs = []
+    taken = np.zeros(n, dtype=bool)
     for a, b in basins(u):
-        seg = dens[a:b + 1]
-        if seg.size == 0 or not np.any(seg > 0):
-            continue
-        p = a + int(np.argmax(seg))
-        thr = peak_fraction * dens[p]
-        i0 = p
-        while i0 > a and dens[i0 - 1] > thr:
-            i0 -= 1
-        i1 = p
-        while i1 < b and dens[i1 + 1] > thr:
-            i1 += 1
-        if _sheet(w, dens, i0, i1) >= floor_cm2:
-            runs.append([i0, i1])
+        seg = np.arange(a, b + 1)
+        left = np.r_[-np.inf, dens[:-1]][seg]
+        right = np.r_[dens[1:], -np.inf][seg]
+        peaks = seg[(dens[seg] > 0) & (dens[seg] >= left) & (dens[seg] >= right)]
+        for p in peaks[np.argsort(-dens[peaks], kind="stable")]:
+            if taken[p]:
+                continue
+            thr = peak_fraction * dens[p]
+            i0 = i1 = int(p)
+            while i0 > a and dens[i0 - 1] > thr and not taken[i0 - 1]:
+                i0 -= 1
+            while i1 < b and dens[i1 + 1] > thr and not taken[i1 + 1]:
+                i1 += 1
+            taken[i0:i1 + 1] = True
+            if _sheet(w, dens, i0, i1) >= floor_cm2:
+                runs.append((i0, i1))
+    return sorted(runs)
+
+
+def merge_runs(runs, u, kT: float, merge_kt: float = MERGE_KT) -> list[tuple[int, int]]:
+    """Merge neighbouring runs while the barrier between them (max u between them minus the
+    higher of their two minima) is below ``merge_kt`` kT."""
+    u = np.asarray(u, dtype=float)
+    runs = [list(r) for r in sorted(runs)]
     merged = True
     while merged and len(runs) > 1:
         merged = False
@@ -267,6 +285,75 @@ def detect(z, w, edge, density, carrier: str, kT: float, *, floor_cm2: float = C
             top = float(np.max(u[a1:b0 + 1]))
             floor = max(float(np.min(u[a0:a1 + 1])), float(np.min(u[b0:b1 + 1])))
             if top - floor < merge_kt * kT:
+                runs[j] = [a0, b1]
+                del runs[j + 1]
+                merged = True
+                break
+    return [(int(a), int(b)) for a, b in runs]
+
+
+def detect(z, w, edge, density, carrier: str, kT: float, *, floor_cm2: float = CHANNEL_FLOOR_CM2,
+           peak_fraction: float = PEAK_FRACTION, merge_kt: float = MERGE_KT) -> list[tuple[int, int]]:
+    """Channel intervals of one carrier from its band edge and density alone, as inclusive
+    node ranges, top to bottom: :func:`candidate_runs` merged by :func:`merge_runs`.
+
+    ``edge``: the carrier's band edge at the nodes (eV, electron scale: Ec or Ev);
+    ``density``: its density (cm^-3); ``w``: dual widths (nm).  :func:`analyse` also drops
+    the runs that only hold the tail of another channel's subbands before merging.
+    """
+    u = CARRIER_SIGN[carrier] * np.asarray(edge, dtype=float)
+    runs = candidate_runs(w, u, density, floor_cm2=floor_cm2, peak_fraction=peak_fraction)
+    return merge_runs(runs, u, kT, merge_kt)
+
+
+def drop_tails(runs, w, density, levels) -> list[tuple[int, int]]:
+    """Leave out the runs whose density is mostly (more than half) held by subbands that
+    belong to other runs: the tail of a neighbour beyond a barrier top is not a channel."""
+    w = np.asarray(w, dtype=float)
+    dens = np.asarray(density, dtype=float)
+    if not runs:
+        return []
+    foreign = np.zeros(len(runs))
+    for lv in levels:
+        k = np.asarray(lv.energy).size
+        if k == 0:
+            continue
+        p2 = np.asarray(lv.psi, dtype=float) ** 2 * w[:, None]
+        shares = np.array([p2[a:b + 1].sum(axis=0) for a, b in runs])          # (R, k)
+        best = np.argmax(shares, axis=0)
+        owned = shares[best, np.arange(k)] > ATTRIBUTION_SHARE
+        occ = np.asarray(lv.occupation, dtype=float)
+        for j in range(len(runs)):
+            other = owned & (best != j)
+            foreign[j] += float(np.sum(occ[other] * shares[j, other]))
+    raw = np.array([_sheet(w, dens, a, b) for a, b in runs])
+    return [r for r, f, t in zip(runs, foreign, raw) if not f > 0.5 * t]
+
+
+def merge_coupled(runs, w, density, levels) -> list[tuple[int, int]]:
+    """Merge neighbouring runs whose carriers mostly sit in subbands they share: states with
+    no more than half of their |psi|^2 in either run but more than half in the two together
+    (a tunnel-coupled bilayer: symmetric and antisymmetric states spread over both) holding
+    more than half of the two runs' carriers make them one channel.  A few warm states
+    spread above a barrier do not."""
+    w = np.asarray(w, dtype=float)
+    dens = np.asarray(density, dtype=float)
+    runs = [list(r) for r in sorted(runs)]
+    merged = True
+    while merged and len(runs) > 1:
+        merged = False
+        for j in range(len(runs) - 1):
+            (a0, a1), (b0, b1) = runs[j], runs[j + 1]
+            shared = 0.0
+            for lv in levels:
+                if np.asarray(lv.energy).size == 0:
+                    continue
+                p2 = np.asarray(lv.psi, dtype=float) ** 2 * w[:, None]
+                sa = p2[a0:a1 + 1].sum(axis=0)
+                sb = p2[b0:b1 + 1].sum(axis=0)
+                both = (sa <= ATTRIBUTION_SHARE) & (sb <= ATTRIBUTION_SHARE) & (sa + sb > ATTRIBUTION_SHARE)
+                shared += float(np.sum(np.asarray(lv.occupation, dtype=float)[both]))
+            if shared > 0.5 * (_sheet(w, dens, a0, a1) + _sheet(w, dens, b0, b1)):
                 runs[j] = [a0, b1]
                 del runs[j + 1]
                 merged = True
@@ -318,7 +405,11 @@ def analyse(z, w, kT: float, profiles: dict, levels, layers=(), requests=()) -> 
         if prof is None:
             continue
         taken = [(c.i0, c.i1) for c in chans if c.named and c.carrier == carrier]
-        for i0, i1 in detect(z, w, prof.edge, prof.density, carrier, kT, floor_cm2=FALLBACK_FLOOR_CM2):
+        u = CARRIER_SIGN[carrier] * np.asarray(prof.edge, dtype=float)
+        runs = candidate_runs(w, u, prof.density, floor_cm2=FALLBACK_FLOOR_CM2)
+        runs = drop_tails(runs, w, prof.density, [lv for lv in levels if BAND_CARRIER[lv.band] == carrier])
+        mine = [lv for lv in levels if BAND_CARRIER[lv.band] == carrier]
+        for i0, i1 in merge_coupled(merge_runs(runs, u, kT), w, prof.density, mine):
             if any(i0 <= b and a <= i1 for a, b in taken):
                 continue
             chans.append(Channel(name="", carrier=carrier, i0=i0, i1=i1, top_nm=float(z[i0]),

@@ -11,12 +11,19 @@ Deck of ``result.deck_text`` when called without one (:func:`deck_of`).
 
 Thresholds (our own choices, stated here and in README.md, "Design recipes"):
 
-* second subband: the second *channel* electron subband (states with most of their
-  weight in the channel layer) holds more than ``SECOND_SUBBAND_FRACTION`` = 1 % of the
-  channel's subband electrons.
-* parallel conduction: a doping layer (a layer with bulk or sheet donors that is not the
-  channel) holds more electrons than ``PARALLEL_FRACTION`` = 1 % of the channel sheet
-  density, and at least ``FLOOR_CM2`` = 1e8 cm^-2.
+* second subband: the second subband of the main channel (selfcon.output.channels) is
+  occupied by the one rule of the README: at least ``SECOND_SUBBAND_FRACTION`` = 1 % of
+  the channel's sheet density and at least 1e8 cm^-2.
+* parasitic channel: an auto-detected channel other than the main one (electrons or
+  holes, in a doping layer or anywhere else) holds more than ``PARALLEL_FRACTION`` = 1 %
+  of the main channel's sheet density, and at least ``FLOOR_CM2`` = 1e8 cm^-2.  A
+  channel's own subband tail belongs to that channel, so a 2DEG reaching into a doped
+  layer next to it (no spacer) is no alarm; channels named in ``[[channel]]`` tables are
+  intended and never parasitic.
+* carriers outside the quantum regions: electrons or holes at the nodes outside every
+  quantum region (counted classically, without subbands) exceed ``OUTSIDE_FRACTION`` =
+  1 % of the main channel's sheet density and 1e8 cm^-2 (not for a deck with no quantum
+  region at all: fully classical by choice).
 * DX-centre regime: a donor-doped AlGaAs layer with Al fraction above ``DX_MIN_X`` = 0.2
   (Si donors form DX centres there; common practice) where the Fermi level lies less
   than ``max(DX_WINDOW_KT * kT, DX_WINDOW_EV)`` = max(3 kT, 50 meV) below the donor
@@ -55,9 +62,10 @@ import numpy as np
 
 from selfcon.constants import KB_EV, NM_PER_CM
 
-SECOND_SUBBAND_FRACTION = 0.01
+SECOND_SUBBAND_FRACTION = 0.01      # the occupied rule of selfcon.output.channels
 PARALLEL_FRACTION = 0.01
 FLOOR_CM2 = 1e8
+OUTSIDE_FRACTION = 0.01
 DX_MIN_X = 0.2
 DX_WINDOW_KT = 3.0
 DX_WINDOW_EV = 0.050
@@ -67,7 +75,8 @@ BUFFER_DEPTH_NM = 100.0
 BUFFER_FRACTION = 0.01
 
 __all__ = ["design_warnings", "register_check", "unregister_check", "deck_of",
-           "check_not_converged", "check_second_subband", "check_parallel_conduction",
+           "check_not_converged", "check_second_subband", "check_parasitic_channels",
+           "check_parallel_conduction", "check_carriers_outside", "channel_subbands",
            "check_dx_centres", "check_region_cut", "check_buffer_carriers",
            "check_uncounted_valleys", "doping_layers", "doping_layer_electrons",
            "node_weights", "CHECKS"]
@@ -190,51 +199,114 @@ def check_not_converged(result, structure=None, deck=None) -> list[str]:
             "not a solution"]
 
 
-def channel_subbands(result, structure) -> np.ndarray:
-    """Indices of electron states with more than half their weight in the channel layer."""
-    sb = (result.subbands or {}).get("electron")
-    ch = channel_index(result)
-    if sb is None or ch is None or sb.energy.size == 0:
-        return np.zeros(0, dtype=int)
-    w = structure.mesh.w if structure is not None else node_weights(result.z)
-    in_ch = np.asarray(result.layer_index) == ch
-    weight = np.sum((sb.wavefunction ** 2) * (w * in_ch)[:, None], axis=0)
-    return np.flatnonzero(weight > 0.5)
+def channel_subbands(result, structure=None, channel: int | None = None) -> list[tuple[str, int]]:
+    """(band, index) of the states of a channel (default: the main one), lowest kinetic
+    energy first (electron states upwards, hole states downwards)."""
+    rows = list(result.channels or [])
+    if channel is None:
+        channel = next((j for j, c in enumerate(rows) if c.get("main")), -1)
+    if not 0 <= channel < len(rows):
+        return []
+    sign = 1.0 if rows[channel]["carrier"] == "electron" else -1.0
+    own = [(sign * float(sb.energy[k]), band, int(k)) for band, sb in (result.subbands or {}).items()
+           for k in np.flatnonzero(np.asarray(sb.channel) == channel)]
+    return [(band, k) for _, band, k in sorted(own)]
+
+
+_LABEL = {"electron": "E", "heavy_hole": "HH", "light_hole": "LH"}
 
 
 @register_check("second_subband")
 def check_second_subband(result, structure, deck=None) -> list[str]:
-    sb = (result.subbands or {}).get("electron")
-    idx = channel_subbands(result, structure)
-    if sb is None or idx.size < 2:
+    """The main channel's second subband is occupied (>= 1 % of the channel, >= 1e8 cm^-2)."""
+    main = result.main_channel if result.channels else None
+    states = channel_subbands(result, structure)
+    if main is None or len(states) < 2:
         return []
-    occ = sb.occupation[idx]
-    total = float(np.sum(occ))
-    if total <= 0:
+    from selfcon.output.channels import occupied
+    (b0, k0), (b1, k1) = states[:2]
+    n1 = float(result.subbands[b1].occupation[k1])
+    ns = float(main["sheet_density"])
+    if not occupied(n1, ns) or ns <= 0:
         return []
-    frac = float(occ[1] / total)
-    if frac <= SECOND_SUBBAND_FRACTION:
-        return []
-    e0, e1 = float(sb.energy[idx[0]]), float(sb.energy[idx[1]])
-    where = "below" if e1 < 0 else "above"
-    return [f"second electron subband occupied: E1 - EF = {1e3 * e1:+.1f} meV ({where} EF), "
-            f"n1 = {_fmt_cm2(float(occ[1]))} = {100 * frac:.1f} % of the channel subbands "
-            f"(E1 - E0 = {1e3 * (e1 - e0):.1f} meV); mobility drops from intersubband scattering"]
+    e0, e1 = float(result.subbands[b0].energy[k0]), float(result.subbands[b1].energy[k1])
+    holes = main["carrier"] == "hole"
+    kind = "hole" if holes else "electron"
+    where = ("above" if e1 > 0 else "below") if holes else ("below" if e1 < 0 else "above")
+    label = f" ({_LABEL[b1]}{k1})" if holes else ""
+    return [f"second {kind} subband occupied in the main channel {main['name']!r}{label}: E1 - EF = "
+            f"{1e3 * e1:+.1f} meV ({where} EF), n1 = {_fmt_cm2(n1)} = {100 * n1 / ns:.1f} % of the "
+            f"channel (E1 - E0 = {1e3 * abs(e1 - e0):.1f} meV); mobility drops from intersubband scattering"]
 
 
-@register_check("parallel_conduction")
-def check_parallel_conduction(result, structure, deck=None) -> list[str]:
-    rows = _layer_rows(result)
-    ns = channel_density(result)
+def _doped_layer_in(structure, top: float, bottom: float) -> str | None:
+    """Name of a doped layer (donors or acceptors, bulk or sheet) overlapping [top, bottom] nm."""
+    for Li in structure.layers:
+        if (Li.donors > 0 or Li.sheet_donors > 0 or Li.acceptors > 0 or Li.sheet_acceptors > 0) \
+                and Li.top < bottom and top < Li.bottom:
+            return Li.name
+    return None
+
+
+@register_check("parasitic_channel")
+def check_parasitic_channels(result, structure, deck=None) -> list[str]:
+    """An auto-detected channel other than the main one holds > 1 % of the main channel's carriers."""
+    main = result.main_channel if result.channels else None
+    if main is None:
+        return []
+    ns = float(main["sheet_density"])
     limit = max(PARALLEL_FRACTION * ns, FLOOR_CM2)
     out = []
-    for i in doping_layers(result, structure):
-        n = float(rows[i]["electron_sheet_density_cm2"])
-        if n > limit:
-            rel = f"{100 * n / ns:.1f} % of" if ns > 0 else "while"
-            out.append(f"parallel conduction: doping layer {rows[i]['name']!r} holds {_fmt_cm2(n)} electrons, "
-                       f"{rel} the channel's {_fmt_cm2(ns)} (limit {100 * PARALLEL_FRACTION:g} %); "
-                       "lower the doping or thin the spacer")
+    for c in result.channels:
+        if c.get("main") or c.get("named"):
+            continue
+        n = float(c["sheet_density"])
+        if n <= limit:
+            continue
+        kind = "electrons" if c["carrier"] == "electron" else "holes"
+        doped = _doped_layer_in(structure, c["top_nm"], c["bottom_nm"]) if structure is not None else None
+        if doped is not None:
+            advice = f"parallel conduction through the doped layer {doped!r}: lower the doping or thin the spacer"
+        else:
+            advice = (f"a second conducting sheet in {c['layer']!r}: thicken the barrier between it and the doping "
+                      "that feeds it, or lower that doping")
+        out.append(f"parasitic channel {c['name']!r}: {_fmt_cm2(n)} {kind} at {c['top_nm']:.0f}-"
+                   f"{c['bottom_nm']:.0f} nm (centroid {c['centroid_nm']:.0f} nm), {100 * n / ns:.1f} % of the "
+                   f"main channel {main['name']!r} ({_fmt_cm2(ns)}; limit {100 * PARALLEL_FRACTION:g} %); {advice}")
+    return out
+
+
+#: the earlier name of the parasitic-channel check (it covered doping layers only)
+check_parallel_conduction = check_parasitic_channels
+
+
+@register_check("carriers_outside")
+def check_carriers_outside(result, structure, deck=None) -> list[str]:
+    """Electrons or holes outside every quantum region above 1 % of the main channel."""
+    main = result.main_channel if result.channels else None
+    regions = list(result.regions_nm or [])
+    if main is None or not regions:
+        return []
+    z = np.asarray(result.z)
+    w = structure.mesh.w if structure is not None else node_weights(z)
+    outside = np.ones(z.size, dtype=bool)
+    for a, b in regions:
+        outside &= ~((z >= a - 1e-9) & (z <= b + 1e-9))
+    ns = float(main["sheet_density"])
+    limit = max(OUTSIDE_FRACTION * ns, FLOOR_CM2)
+    li = np.asarray(result.layer_index)
+    rows = _layer_rows(result)
+    out = []
+    for kind, key in (("electrons", "electron_density"), ("holes", "hole_density")):
+        dens = np.asarray(result.profile[key]) * w * outside
+        n = float(dens.sum()) / NM_PER_CM
+        if n <= limit:
+            continue
+        per = np.bincount(li, weights=dens, minlength=len(rows))
+        where = f", mostly in {rows[int(np.argmax(per))]['name']!r}" if rows else ""
+        out.append(f"carriers outside the quantum regions: {_fmt_cm2(n)} {kind}{where}, {100 * n / ns:.1f} % of "
+                   f"the main channel {main['name']!r} (limit {100 * OUTSIDE_FRACTION:g} %); they are counted "
+                   "classically, without subbands: widen quantum.regions to cover them")
     return out
 
 
