@@ -31,10 +31,29 @@ def table() -> str:
     return "\n".join(lines)
 
 
+def compositions() -> str:
+    """What x (and y) mean for every library material, from the library itself."""
+    from selfcon.input import materials
+    from selfcon.input.materials.library import ALLOYS, QUATERNARIES
+    lines = ["", "Compositions of the library materials (`layer.x`, `layer.y`; x counts the first-named "
+             "element of the mixed sublattice):", "",
+             "| material | kind | x | y |", "| --- | --- | --- | --- |"]
+    for name in materials.names():
+        kind = materials.kind(name)
+        if kind == "binary":
+            continue
+        if kind == "ternary":
+            lines.append(f"| {name} | ternary | {ALLOYS[name].meaning_of_x} | – |")
+        else:
+            q = QUATERNARIES[name]
+            lines.append(f"| {name} | quaternary | {q.meaning_of_x} | {q.meaning_of_y} |")
+    return "\n".join(lines)
+
+
 def render(text: str) -> str:
     a = text.index(BEGIN) + len(BEGIN)
     b = text.index(END)
-    return text[:a] + "\n" + table() + "\n" + text[b:]
+    return text[:a] + "\n" + table() + "\n" + compositions() + "\n" + text[b:]
 
 
 def main(argv):

@@ -15,7 +15,19 @@ Choices made here (they are part of the deck contract):
 * ``[surface]`` is required: the top contact decides the band bending, so it
   must be written down.  ``[substrate]`` may be left out and then means
   ``contact = "ohmic"`` (local neutrality at the bottom): a designer's stack
-  usually ends in a thick buffer on a conducting or thick substrate.
+  usually ends in a thick buffer on a conducting or thick substrate.  A
+  ``[substrate]`` table that gives only the growth lattice (``material`` or
+  ``lattice_constant``) also means ``contact = "ohmic"``.
+* Strain: ``[substrate] material`` (with ``x``, ``y`` for alloys) or
+  ``[substrate] lattice_constant`` (nm, at every temperature; exclusive with
+  ``material``) sets the in-plane lattice of the stack; ``layer.relaxed = true``
+  marks a metamorphic buffer whose lattice the layers above take.  Without any
+  of these the stack is unstrained, exactly as before these keys existed.
+* Compositions: ``x`` counts the first-named element of the mixed sublattice;
+  ``y`` is the second composition of a quaternary (InGaAsP, AlGaInAs) and is
+  refused on anything else; ``layer.lattice_matched = "InP"`` (a library binary)
+  solves the missing composition (a ternary's x, or one of a quaternary's x, y)
+  for lattice match at 300 K.
 * ``barrier`` (eV) is required for ``schottky`` and ``pinned`` contacts and
   refused for ``ohmic`` and ``free``; ``bias`` (V) is accepted only for
   ``schottky`` (default 0).
@@ -132,8 +144,9 @@ _LAYER = {
     "name": KeySpec("string", "-", "layer<index>", "unique name used by overrides and studies "
                     "(letters, digits, _ and -, not all digits)"),
     "material": KeySpec("string", "-", REQUIRED, "library material or a [material.NAME] of this deck"),
-    "x": KeySpec("fraction", "-", None, "alloy fraction in [0, 1]; graded: [top, bottom], linear in z; "
-                 "alloys only (refused on a binary)", lo=0.0, hi=1.0),
+    "x": KeySpec("fraction", "-", None, "alloy fraction in [0, 1], of the first-named element of "
+                 "the mixed sublattice (In in InGaP, As in GaAsSb; table below); graded: [top, "
+                 "bottom], linear in z; alloys only (refused on a binary)", lo=0.0, hi=1.0),
     "thickness": KeySpec("number", "nm", REQUIRED, "layer thickness (at least half a "
                          "monolayer)", lo=MIN_THICKNESS,
                          below="less than half a monolayer; thicknesses are in nm"),
@@ -143,6 +156,31 @@ _LAYER = {
                             lo=0.0, hi=1e16),
     "sheet_acceptors": KeySpec("number", "cm^-2", 0.0, "delta sheet of acceptors at the layer centre",
                                lo=0.0, hi=1e16),
+    "y": KeySpec("fraction", "-", None, "second composition of a quaternary in [0, 1] (InGaAsP: As "
+                 "fraction; AlGaInAs: Ga fraction); graded: [top, bottom]; refused on other "
+                 "materials", lo=0.0, hi=1.0),
+    "lattice_matched": KeySpec("string", "-", None, "library binary (e.g. \"InP\") the layer is "
+                               "lattice-matched to at 300 K: solves the composition not given "
+                               "(a ternary's x, or the one of a quaternary's x, y left out)"),
+    "relaxed": KeySpec("boolean", "-", False, "true: a relaxed (metamorphic) buffer or virtual "
+                       "substrate at its own lattice; the layers above grow on its lattice "
+                       "(a graded one passes on the lattice at its top)"),
+}
+
+#: [substrate]: the bottom contact and the lattice the stack grows on
+_SUBSTRATE = {
+    **{k: (KeySpec("string", "-", "ohmic", v.doc + "; default ohmic", choices=CONTACT_KINDS)
+           if k == "contact" else v) for k, v in _CONTACT.items()},
+    "material": KeySpec("string", "-", None, "substrate material: sets the in-plane lattice "
+                        "constant of the stack (at the deck temperature); without it and "
+                        "without lattice_constant or a relaxed layer the stack is unstrained"),
+    "x": KeySpec("number", "-", None, "alloy fraction of an alloy substrate material", lo=0.0,
+                 hi=1.0),
+    "y": KeySpec("number", "-", None, "second composition of a quaternary substrate material",
+                 lo=0.0, hi=1.0),
+    "lattice_constant": KeySpec("number", "nm", None, "explicit in-plane lattice constant of the "
+                                "stack, used at every temperature; exclusive with material",
+                                lo=0.0, lo_open=True),
 }
 
 
@@ -199,6 +237,8 @@ _MATERIAL = {
     "base": KeySpec("string", "-", None, "library material to start from (its parameters, then "
                     "the ones given here)"),
     "x": KeySpec("number", "-", None, "alloy fraction of the base, in [0, 1]", lo=0.0, hi=1.0),
+    "y": KeySpec("number", "-", None, "second composition of a quaternary base, in [0, 1]",
+                 lo=0.0, hi=1.0),
     **MATERIAL_PARAMS,
 }
 _PHYSICS = {
@@ -244,7 +284,7 @@ _CHANNEL = {
 }
 
 #: table name -> {key: KeySpec}; "" is the top level, "material" is per [material.NAME]
-KEYS = {"": _TOP, "surface": _CONTACT, "substrate": _CONTACT, "layer": _LAYER,
+KEYS = {"": _TOP, "surface": _CONTACT, "substrate": _SUBSTRATE, "layer": _LAYER,
         "material": _MATERIAL, "physics": _PHYSICS, "quantum": _QUANTUM, "mesh": _MESH,
         "solver": _SOLVER, "channel": _CHANNEL}
 TABLES = ("surface", "substrate", "layer", "material", "physics", "quantum", "mesh", "solver",
@@ -252,7 +292,7 @@ TABLES = ("surface", "substrate", "layer", "material", "physics", "quantum", "me
 TOP_KEYS = tuple(_TOP) + TABLES
 _SIMPLE_TABLES = ("surface", "substrate", "physics", "quantum", "mesh", "solver")
 
-_TYPE_NAMES = {"number": "number", "integer": "integer", "string": "string",
+_TYPE_NAMES = {"number": "number", "integer": "integer", "string": "string", "boolean": "boolean",
                "fraction": "number or [top, bottom]", "carriers": "list of strings",
                "regions": "list of [top, bottom]",
                "layers": "list of names, indices or \"A:B\""}
@@ -280,8 +320,12 @@ def deck_reference():
     rows.append(("surface", "table", "-", "required", "the contact at z = 0 (top surface)"))
     for key, spec in _CONTACT.items():
         rows.append((f"surface.{key}", _TYPE_NAMES[spec.kind], spec.unit, dflt(spec), doc(spec)))
-    rows.append(("substrate", "table", "-", 'contact = "ohmic"', "the contact at the bottom; "
-                 "same keys as surface"))
+    rows.append(("substrate", "table", "-", 'contact = "ohmic"', "the contact at the bottom "
+                 "(same keys as surface) and the lattice the stack grows on"))
+    for key, spec in _SUBSTRATE.items():
+        if key not in _CONTACT or key == "contact":
+            rows.append((f"substrate.{key}", _TYPE_NAMES[spec.kind], spec.unit, dflt(spec),
+                         doc(spec)))
     rows.append(("layer", "array of tables", "-", "required", "the stack, top to bottom ([[layer]])"))
     for key, spec in _LAYER.items():
         rows.append((f"layer.{key}", _TYPE_NAMES[spec.kind], spec.unit, dflt(spec), doc(spec)))
@@ -349,11 +393,16 @@ class Layer:
     acceptors: float = 0.0        # cm^-3
     sheet_donors: float = 0.0     # cm^-2 at the layer centre
     sheet_acceptors: float = 0.0  # cm^-2
+    y_top: float | None = None    # second composition (quaternaries), None if not given
+    y_bottom: float | None = None
+    lattice_matched: str | None = None   # binary the composition is matched to (300 K)
+    relaxed: bool = False         # a relaxed (metamorphic) buffer: the layers above take its lattice
     line: int | None = field(default=None, compare=False)   # [[layer]] line in the deck file
 
     @property
     def graded(self):
-        return self.x_top is not None and self.x_top != self.x_bottom
+        return ((self.x_top is not None and self.x_top != self.x_bottom)
+                or (self.y_top is not None and self.y_top != self.y_bottom))
 
 
 @dataclass(frozen=True)
@@ -362,8 +411,22 @@ class MaterialDef:
     base: str | None
     x: float | None
     params: Params                # only the parameters given in the deck
+    y: float | None = None        # second composition of a quaternary base
     file: str | None = field(default=None, compare=False)   # for located MaterialErrors
     line: int | None = field(default=None, compare=False)   # [material.NAME] line in the deck
+
+
+@dataclass(frozen=True)
+class Lattice:
+    """The lattice the stack grows on ([substrate] material / x / y or lattice_constant)."""
+    material: str | None = None
+    x: float | None = None
+    y: float | None = None
+    lattice_constant: float | None = None   # nm, at every temperature
+
+    @property
+    def given(self) -> bool:
+        return self.material is not None or self.lattice_constant is not None
 
 
 @dataclass(frozen=True)
@@ -439,6 +502,7 @@ class Deck:
     mesh: MeshSpec
     solver: SolverSpec
     channels: tuple = ()          # of ChannelSpec, in deck order (the first is the main channel)
+    lattice: Lattice = field(default_factory=Lattice)
     text: str = field(default="", compare=False, repr=False)
     path: str | None = field(default=None, compare=False)
     overrides: tuple = field(default=(), compare=False)     # ((canonical key, value), ...)
@@ -543,17 +607,30 @@ class Deck:
         def layer(l):
             d = {"name": l.name, "material": l.material}
             if l.x_top is not None:
-                d["x"] = [l.x_top, l.x_bottom] if l.graded else l.x_top
+                d["x"] = [l.x_top, l.x_bottom] if l.x_top != l.x_bottom else l.x_top
             for k in ("thickness", "donors", "acceptors", "sheet_donors", "sheet_acceptors"):
                 d[k] = getattr(l, k)
+            # keys of strained stacks: written only when set, so the text (and hash) of a
+            # deck without them is what it always was
+            if l.y_top is not None:
+                d["y"] = [l.y_top, l.y_bottom] if l.y_top != l.y_bottom else l.y_top
+            if l.lattice_matched is not None:
+                d["lattice_matched"] = l.lattice_matched
+            if l.relaxed:
+                d["relaxed"] = True
             return d
 
         def table(obj):
             return {f.name: getattr(obj, f.name) for f in dataclasses.fields(obj)
                     if getattr(obj, f.name) is not None}
 
+        sub = contact(self.substrate)
+        for k in ("material", "x", "y", "lattice_constant"):
+            v = getattr(self.lattice, k)
+            if v is not None:
+                sub[k] = v
         out = {"title": self.title, "temperature": self.temperature,
-               "surface": contact(self.surface), "substrate": contact(self.substrate),
+               "surface": contact(self.surface), "substrate": sub,
                "layer": [layer(l) for l in self.layers]}
         if self.materials:
             mats = {}
@@ -563,6 +640,8 @@ class Deck:
                     d["base"] = m.base
                 if m.x is not None:
                     d["x"] = m.x
+                if m.y is not None:
+                    d["y"] = m.y
                 d.update(m.params.as_dict())
                 mats[m.name] = d
             out["material"] = mats
@@ -947,6 +1026,10 @@ class _Ctx:
             return self.integer(key, v, spec)
         if spec.kind == "string":
             return self.string(key, v, spec, choices or spec.choices)
+        if spec.kind == "boolean":
+            if not isinstance(v, bool):
+                raise self.error(key, f"must be true or false, got {_type_of(v)} {_show(v)}")
+            return v
         raise AssertionError(spec.kind)
 
 
@@ -996,10 +1079,14 @@ def _build(raw, text, path, overrides):
     temperature = ctx.get(raw, "temperature", _TOP["temperature"], "")
 
     surface = _contact(ctx, _table(ctx, raw, "surface", required=True), "surface")
-    substrate = _contact(ctx, _table(ctx, raw, "substrate", default={"contact": "ohmic"}),
-                         "substrate")
+    sub_table = _table(ctx, raw, "substrate", default={"contact": "ohmic"})
+    ctx.check_keys(sub_table, _SUBSTRATE, "substrate.", "[substrate]")
+    contact_part = {k: v for k, v in sub_table.items() if k in _CONTACT}
+    contact_part.setdefault("contact", "ohmic")
+    substrate = _contact(ctx, contact_part, "substrate")
 
     materials = _materials(ctx, raw)
+    lattice = _lattice(ctx, sub_table, materials)
     layers = _layers(ctx, raw, materials)
     total = math.fsum(l.thickness for l in layers)
 
@@ -1011,8 +1098,8 @@ def _build(raw, text, path, overrides):
 
     deck = Deck(title=title, temperature=temperature, surface=surface, substrate=substrate,
                 layers=layers, materials=materials, physics=physics, quantum=quantum,
-                mesh=mesh, solver=solver, channels=channels, text="", path=path, overrides=overrides,
-                _raw=_clone(raw), _source=text)
+                mesh=mesh, solver=solver, channels=channels, lattice=lattice, text="", path=path,
+                overrides=overrides, _raw=_clone(raw), _source=text)
     object.__setattr__(deck, "text", text if not overrides else deck.to_toml())
     return deck
 
@@ -1058,13 +1145,113 @@ def _materials(ctx, raw):
         x = ctx.get(m, "x", _MATERIAL["x"], p)
         if x is not None:
             pending_x.append((f"{p}x", name))
+        y = ctx.get(m, "y", _MATERIAL["y"], p)
         params = Params((k, ctx.get(m, k, spec, p)) for k, spec in MATERIAL_PARAMS.items() if k in m)
-        out.append(MaterialDef(name=name, base=base, x=x, params=params, file=ctx.file,
+        out.append(MaterialDef(name=name, base=base, x=x, y=y, params=params, file=ctx.file,
                                line=None if _is_overridden(key, ctx.overrides)
                                else _locate(ctx.text, key)))
     for key, name in pending_x:
         _refuse_x_without_alloy(ctx, key, name, out)
     return tuple(out)
+
+
+def _composition_kind(material, materials):
+    """binary | ternary | quaternary | standalone | None (materials not importable)."""
+    try:
+        from selfcon.input.materials import kind
+    except ImportError:            # pragma: no cover - the deck stage without the library
+        return None
+    return kind(material, materials)
+
+
+def _lattice(ctx, t, materials):
+    """[substrate] material / x / y / lattice_constant -> Lattice (checked)."""
+    p = "substrate."
+    material = ctx.get(t, "material", _SUBSTRATE["material"], p)
+    x = ctx.get(t, "x", _SUBSTRATE["x"], p)
+    y = ctx.get(t, "y", _SUBSTRATE["y"], p)
+    a = ctx.get(t, "lattice_constant", _SUBSTRATE["lattice_constant"], p)
+    if a is not None and material is not None:
+        raise ctx.error(f"{p}lattice_constant", "is exclusive with substrate.material: give the "
+                        "substrate material (its lattice constant at the deck temperature) or "
+                        "an explicit lattice constant, not both")
+    if material is None:
+        for k, v in (("x", x), ("y", y)):
+            if v is not None:
+                raise ctx.error(f"{p}{k}", "needs substrate.material (the alloy it is the "
+                                "composition of)")
+        return Lattice(lattice_constant=a)
+    known = [m.name for m in materials] + list(_library_names())
+    if material not in known:
+        raise ctx.error(f"{p}material", f"unknown substrate material {material!r}"
+                        f"{_did_you_mean(material, known)}", allowed=known)
+    k = _composition_kind(material, materials)
+    _check_composition(ctx, p, k, material, x is not None, y is not None, False,
+                       _material_fixes(material, materials))
+    return Lattice(material=material, x=x, y=y)
+
+
+def _material_fixes(material, materials):
+    """Which compositions a deck-local material (chain) fixes itself: set of "x", "y"."""
+    by = {m.name: m for m in materials}
+    out, seen = set(), set()
+    while material in by and material not in seen:
+        seen.add(material)
+        m = by[material]
+        if m.x is not None:
+            out.add("x")
+        if m.y is not None:
+            out.add("y")
+        material = m.base
+    return out
+
+
+def _check_composition(ctx, p, kind, material, has_x, has_y, matched, fixed=()):
+    """x / y / lattice_matched against the material's kind; errors name the key."""
+    has_x = has_x or "x" in fixed
+    has_y = has_y or "y" in fixed
+    if kind in ("binary", "standalone"):
+        what = "a binary" if kind == "binary" else "a deck-local material without base"
+        if has_y:
+            raise ctx.error(f"{p}y", f"{material} is {what}: it takes no composition y (only the "
+                            "quaternaries InGaAsP and AlGaInAs do)")
+        if matched:
+            raise ctx.error(f"{p}lattice_matched", f"{material} is {what}: it has no "
+                            "composition to choose")
+    elif kind == "ternary":
+        if has_y:
+            raise ctx.error(f"{p}y", f"{material} is a ternary: it takes only x (the quaternaries "
+                            "InGaAsP and AlGaInAs take y)")
+        if matched and has_x:
+            raise ctx.error(f"{p}x", f"{material} with lattice_matched: the composition x is "
+                            "solved, leave x out")
+        if not matched and not has_x:
+            raise ctx.error(f"{p}x", f"{material} is an alloy and needs x (or lattice_matched)",
+                            allowed="0 <= x <= 1")
+    elif kind == "quaternary":
+        if matched and has_x and has_y:
+            raise ctx.error(f"{p}y", f"{material} with lattice_matched: give one of x and y, "
+                            "the other is solved")
+        if matched and not (has_x or has_y):
+            raise ctx.error(f"{p}x", f"{material} with lattice_matched needs one of x and y")
+        if not matched and not (has_x and has_y):
+            raise ctx.error(f"{p}{'y' if has_x else 'x'}", f"{material} is a quaternary and needs "
+                            "both x and y (or lattice_matched and one of them)")
+
+
+def _check_match(ctx, p, material, target, xs, ys, materials):
+    """The composition lattice_matched asks for exists (at both ends of a graded layer)."""
+    try:
+        from selfcon.errors import MaterialError
+        from selfcon.input.materials import lattice_matched
+    except ImportError:            # pragma: no cover - the deck stage without the library
+        return
+    for k in range(2):
+        try:
+            lattice_matched(material, target, x=xs[k], y=ys[k], local_defs=materials)
+        except MaterialError as err:
+            key = err.key if err.key in ("x", "y", "lattice_matched") else "lattice_matched"
+            raise ctx.error(f"{p}{key}", err.message) from None
 
 
 def _layers(ctx, raw, materials):
@@ -1103,11 +1290,30 @@ def _layers(ctx, raw, materials):
         if "x" in t:
             x_top, x_bottom = _fraction(ctx, f"{p}x", t["x"], _LAYER["x"])
             _refuse_x_without_alloy(ctx, f"{p}x", material, materials)
+        y_top = y_bottom = None
+        if "y" in t:
+            y_top, y_bottom = _fraction(ctx, f"{p}y", t["y"], _LAYER["y"])
+        matched = ctx.get(t, "lattice_matched", _LAYER["lattice_matched"], p)
+        if matched is not None:
+            binaries = [n for n in _library_names() if _composition_kind(n, ()) == "binary"]
+            if matched not in binaries:
+                raise ctx.error(f"{p}lattice_matched", f"unknown lattice-match target "
+                                f"{matched!r}{_did_you_mean(matched, binaries)}: give a library "
+                                "binary", allowed=binaries)
+        relaxed = ctx.get(t, "relaxed", _LAYER["relaxed"], p)
+        kind = _composition_kind(material, materials)
+        if "y" in t or matched is not None or kind in ("ternary", "quaternary"):
+            _check_composition(ctx, p, kind, material, x_top is not None, y_top is not None,
+                               matched is not None, _material_fixes(material, materials))
+        if matched is not None:
+            _check_match(ctx, p, material, matched, (x_top, x_bottom), (y_top, y_bottom), materials)
         thickness = ctx.get(t, "thickness", _LAYER["thickness"], p)
         dens = {k: ctx.get(t, k, _LAYER[k], p)
                 for k in ("donors", "acceptors", "sheet_donors", "sheet_acceptors")}
         out.append(Layer(index=i, name=name, material=material, x_top=x_top, x_bottom=x_bottom,
-                         thickness=thickness, line=_locate(ctx.text, f"layer[{i}]"), **dens))
+                         thickness=thickness, y_top=y_top, y_bottom=y_bottom,
+                         lattice_matched=matched, relaxed=relaxed,
+                         line=_locate(ctx.text, f"layer[{i}]"), **dens))
     return tuple(out)
 
 

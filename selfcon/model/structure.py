@@ -8,15 +8,18 @@ the Dirichlet condition psi = 0.
 from __future__ import annotations
 
 import functools
-from dataclasses import dataclass
-from typing import TYPE_CHECKING
+from dataclasses import dataclass, field, replace
+from typing import TYPE_CHECKING, Any
 
 import numpy as np
 
 from selfcon.constants import CM2_PER_NM2, CM3_PER_NM3, KB_EV, NC_PER_M0_K
-from selfcon.errors import DeckError
+from selfcon.errors import DeckError, MaterialError
 from selfcon.model import dopants
 from selfcon.model.mesh import Mesh, build_mesh
+from selfcon.model.strain import (X_VALLEY_SETS, LayerStrain, StrainSummary,
+                                  bulk_strained_edges, in_plane_lattice, poisson_ratio_001,
+                                  stack_critical_thickness)
 
 if TYPE_CHECKING:
     from selfcon.input.deck import Deck
@@ -24,7 +27,12 @@ if TYPE_CHECKING:
 #: per-cell arrays taken from the material library (selfcon.input.materials.cell_parameters keys)
 MATERIAL_KEYS = ("eps", "ec_gamma", "ec_x", "ec_l", "ev_hh", "ev_lh", "m_e", "m_hh_z", "m_lh_z",
                  "m_hh_par", "m_lh_par", "m_x_l", "m_x_t", "m_l_l", "m_l_t", "m_c_dos", "m_v_dos",
-                 "donor_binding", "acceptor_binding", "eg_gamma")
+                 "donor_binding", "acceptor_binding", "eg_gamma",
+                 # heavy- and light-hole DOS masses (the valence DOS mass rule combines them)
+                 "m_hh_dos", "m_lh_dos",
+                 # lattice, elasticity, deformation potentials (selfcon.model.strain)
+                 "vbo", "delta_so", "lattice", "c11", "c12", "c44", "ac", "av", "b_dp", "d_dp",
+                 "xi_x_gap", "xi_x_u", "xi_l_gap", "xi_l_u")
 
 
 #: equivalent conduction valleys in bulk zinc-blende (common practice)
@@ -44,7 +52,7 @@ class LayerInfo:
     index: int
     name: str
     material: str
-    x_top: float | None
+    x_top: float | None  # alloy fraction (solved when the deck says lattice_matched)
     x_bottom: float | None
     top: float           # nm
     bottom: float        # nm
@@ -52,6 +60,10 @@ class LayerInfo:
     acceptors: float     # cm^-3
     sheet_donors: float  # cm^-2
     sheet_acceptors: float
+    y_top: float | None = None      # second composition of a quaternary
+    y_bottom: float | None = None
+    relaxed: bool = False
+    lattice_matched: str | None = None
 
 
 @dataclass(frozen=True)
@@ -74,6 +86,9 @@ class Structure:
     states: int
     surface: Contact
     substrate: Contact
+    #: how the stack is strained (selfcon.model.strain.StrainSummary); the per-cell strain is
+    #: cell["eps_xx"], cell["eps_zz"], cell["a_par"] (in-plane lattice, nm)
+    strain: Any = None
 
     @property
     def z(self) -> np.ndarray:
@@ -101,12 +116,69 @@ def _contact(spec) -> Contact:
 
 
 @functools.lru_cache(maxsize=512)
-def _uniform_parameters(name, x, temperature, local_defs, needs) -> dict:
-    """Material parameters of one composition (scalars); cached, since studies solve the
-    same materials at the same temperature over and over.  Errors are not cached."""
+def _uniform_parameters(name, x, temperature, local_defs, needs, y=None) -> dict:
+    """Material parameters of one composition (scalars; x, y None when not given: None, not
+    NaN, so that the key compares equal); cached, since studies solve the same materials at
+    the same temperature over and over.  Errors are not cached."""
     from selfcon.input import materials
-    params = materials.cell_parameters(name, np.array([x]), temperature, local_defs, needs)
+    params = materials.cell_parameters(name, np.array([np.nan if x is None else x]), temperature,
+                                       local_defs, needs, y=None if y is None else np.array([y]))
     return {k: float(v[0]) for k, v in params.items()}
+
+
+def _located(deck, key_prefix, fn, *args, **kw):
+    """Run fn; a MaterialError about a bare composition key ("x", "y", "lattice_matched",
+    "material") is re-raised at ``key_prefix + key`` in the deck (file and line)."""
+    try:
+        return fn(*args, **kw)
+    except MaterialError as err:
+        if err.key in ("x", "y", "lattice_matched", "material", "temperature") and hasattr(deck, "error"):
+            raise deck.error(key_prefix + err.key, err.message, allowed=err.allowed,
+                             cls=MaterialError) from None
+        raise
+
+
+#: temperature at which ``layer.lattice_matched`` solves the composition (wafers are specified
+#: by room-temperature x-ray diffraction, common practice)
+LATTICE_MATCH_T = 300.0
+
+
+def _compositions(deck, L, zc_sel, top, bottom):
+    """(x per cell, y per cell, x_top, x_bottom, y_top, y_bottom) of one layer, with the
+    composition that ``lattice_matched`` leaves out solved per cell."""
+    from selfcon.input import materials
+    frac = (zc_sel - top) / (bottom - top)
+    xc = yc = None
+    if L.x_top is not None:
+        xb = L.x_bottom if L.x_bottom is not None else L.x_top
+        xc = L.x_top + (xb - L.x_top) * frac
+    y_top = getattr(L, "y_top", None)
+    y_bot = getattr(L, "y_bottom", None)
+    if y_top is not None:
+        yb = y_bot if y_bot is not None else y_top
+        yc = y_top + (yb - y_top) * frac
+    target = getattr(L, "lattice_matched", None)
+    ends = None
+    if target is not None:
+        p = f"layer[{L.index}]."
+
+        def solve(xv, yv):
+            return _located(deck, p, materials.lattice_matched, L.material, target, x=xv, y=yv,
+                            temperature=LATTICE_MATCH_T, local_defs=deck.materials)
+        xs, ys = solve(xc, yc)
+        xc = None if xs is None else np.broadcast_to(xs, zc_sel.shape).astype(float)
+        yc = None if ys is None else np.broadcast_to(ys, zc_sel.shape).astype(float)
+        ex = None if L.x_top is None else np.array([L.x_top, L.x_bottom if L.x_bottom is not None else L.x_top])
+        ey = None if y_top is None else np.array([y_top, y_bot if y_bot is not None else y_top])
+        xe, ye = solve(ex, ey)
+        xe = None if xe is None else np.broadcast_to(xe, (2,))
+        ye = None if ye is None else np.broadcast_to(ye, (2,))
+        ends = (None if xe is None else float(xe[0]), None if xe is None else float(xe[-1]),
+                None if ye is None else float(ye[0]), None if ye is None else float(ye[-1]))
+    if ends is None:
+        ends = (L.x_top, L.x_bottom if L.x_top is not None else None, y_top,
+                y_bot if y_top is not None else None)
+    return (xc, yc) + ends
 
 
 def _needs(carriers, ionization) -> frozenset:
@@ -161,7 +233,10 @@ def build_structure(deck: Deck, *, mesh: Mesh | None = None) -> Structure:
                                 x_top=L.x_top, x_bottom=L.x_bottom, top=top, bottom=bottom,
                                 donors=float(L.donors), acceptors=float(L.acceptors),
                                 sheet_donors=float(L.sheet_donors),
-                                sheet_acceptors=float(L.sheet_acceptors)))
+                                sheet_acceptors=float(L.sheet_acceptors),
+                                y_top=getattr(L, "y_top", None), y_bottom=getattr(L, "y_bottom", None),
+                                relaxed=bool(getattr(L, "relaxed", False)),
+                                lattice_matched=getattr(L, "lattice_matched", None)))
         top = bottom
     total = top
 
@@ -200,8 +275,14 @@ def build_structure(deck: Deck, *, mesh: Mesh | None = None) -> Structure:
     layer_index[:-1] = cell_layer
     layer_index[-1] = cell_layer[-1]
 
+    lattice_ref = getattr(deck, "lattice", None)
+    strained = bool((lattice_ref is not None and lattice_ref.given)
+                    or any(Li.relaxed for Li in layers))
     needs = _needs(deck.physics.carriers, deck.physics.ionization)
+    if strained:
+        needs = needs | {"strain"}
     x_cell = np.full(n - 1, np.nan)
+    y_cell = np.full(n - 1, np.nan)
     cell = {k: np.empty(n - 1) for k in MATERIAL_KEYS}
     cell["donors"] = np.zeros(n - 1)
     cell["acceptors"] = np.zeros(n - 1)
@@ -209,16 +290,23 @@ def build_structure(deck: Deck, *, mesh: Mesh | None = None) -> Structure:
         sel = cell_layer == Li.index
         if not np.any(sel):
             continue
-        if Li.x_top is not None:
-            xb = Li.x_bottom if Li.x_bottom is not None else Li.x_top
-            frac = (zc[sel] - Li.top) / (Li.bottom - Li.top)
-            x_cell[sel] = Li.x_top + (xb - Li.x_top) * frac
-        graded = Li.x_top is not None and Li.x_bottom is not None and Li.x_bottom != Li.x_top
+        xc, yc, xt, xb, yt, yb = _compositions(deck, Li, zc[sel], Li.top, Li.bottom)
+        if (xt, xb, yt, yb) != (Li.x_top, Li.x_bottom, Li.y_top, Li.y_bottom):
+            Li = layers[Li.index] = replace(Li, x_top=xt, x_bottom=xb, y_top=yt, y_bottom=yb)
+        if xc is not None:
+            x_cell[sel] = xc
+        if yc is not None:
+            y_cell[sel] = yc
+        graded = ((xc is not None and np.ptp(xc) > 0.0) or (yc is not None and np.ptp(yc) > 0.0))
+        where = f"layer[{Li.index}]."
         if graded:
-            params = materials.cell_parameters(Li.material, x_cell[sel], T, deck.materials, needs)
+            params = _located(deck, where, materials.cell_parameters, Li.material, x_cell[sel], T,
+                              deck.materials, needs, y=None if yc is None else y_cell[sel])
         else:       # one composition: evaluate once (cached across solves) and broadcast
-            x0 = float("nan") if Li.x_top is None else float(Li.x_top)
-            params = _uniform_parameters(Li.material, x0, T, deck.materials, needs)
+            x0 = None if xc is None else float(xc[0])
+            y0 = None if yc is None else float(yc[0])
+            params = _located(deck, where, _uniform_parameters, Li.material, x0, T, deck.materials,
+                              needs, y0)
         for k in MATERIAL_KEYS:
             cell[k][sel] = params[k]
         cell["donors"][sel] = Li.donors / CM3_PER_NM3
@@ -241,6 +329,19 @@ def build_structure(deck: Deck, *, mesh: Mesh | None = None) -> Structure:
         m_dos = (cell[f"m_{v}_l"] * cell[f"m_{v}_t"] ** 2) ** (1.0 / 3.0)
         cell[f"nc_{v}"] = g * NC_PER_M0_K * (m_dos * T) ** 1.5
     cell["nv"] = NC_PER_M0_K * (cell["m_v_dos"] * T) ** 1.5
+    cell["y"] = y_cell
+    if strained:
+        summary = _apply_strain(deck, layers, cell, cell_layer, T, needs, mesh.h)
+        # X valleys split by the strain: the one along z and the two in the plane, each with
+        # its share of the valley DOS (selfcon.model.strain.X_VALLEY_SETS)
+        m_dos = (cell["m_x_l"] * cell["m_x_t"] ** 2) ** (1.0 / 3.0)
+        for name, (g, _) in X_VALLEY_SETS.items():
+            cell[f"nc_{name}"] = g * NC_PER_M0_K * (m_dos * T) ** 1.5
+        # classical holes: heavy and light hole each at its own edge, with its own DOS mass
+        cell["nv_hh"] = NC_PER_M0_K * (cell["m_hh_dos"] * T) ** 1.5
+        cell["nv_lh"] = NC_PER_M0_K * (cell["m_lh_dos"] * T) ** 1.5
+    else:
+        summary = _unstrained(layers, cell, cell_layer)
     cell["ev0"] = np.maximum(cell["ev_hh"], cell["ev_lh"])
 
     sheet_d = np.zeros(n)
@@ -268,7 +369,100 @@ def build_structure(deck: Deck, *, mesh: Mesh | None = None) -> Structure:
                      regions=regions, regions_nm=regions_nm, carriers=tuple(deck.physics.carriers),
                      full_ionization=deck.physics.ionization != "thermal",
                      states=int(deck.quantum.states), surface=_contact(deck.surface),
-                     substrate=_contact(deck.substrate))
+                     substrate=_contact(deck.substrate), strain=summary)
+
+
+def _layer_means(layers, cell_layer, w, values):
+    """Width-weighted mean of a per-cell array over each layer."""
+    tot = np.bincount(cell_layer, weights=w, minlength=len(layers))
+    return np.bincount(cell_layer, weights=w * values, minlength=len(layers)) / np.where(tot > 0, tot, 1.0)
+
+
+def _unstrained(layers, cell, cell_layer) -> StrainSummary:
+    """Every layer at its own lattice: zero strain, no shifts (the arrays for the result)."""
+    zero = np.zeros(cell_layer.size)
+    cell["eps_xx"] = zero
+    cell["eps_zz"] = zero.copy()
+    cell["a_par"] = cell["lattice"].copy()
+    per = []
+    for Li in layers:
+        own = cell["lattice"][cell_layer == Li.index]
+        a = float(own[0]) if own.size else float("nan")
+        per.append(LayerStrain(index=Li.index, strained=False, relaxed=Li.relaxed, eps_xx=0.0,
+                               eps_zz=0.0, lattice_inplane=a, lattice_own=float(np.mean(own)) if own.size else a,
+                               critical_thickness=float("inf"), thickness=Li.bottom - Li.top))
+    return StrainSummary(mode="unstrained", reference="unstrained: no [substrate] material or "
+                         "lattice_constant and no relaxed layer, every layer at its own lattice "
+                         "constant", a_reference=None, layers=tuple(per))
+
+
+def _library_crystal(name, local):
+    from selfcon.input.materials import CRYSTAL
+    by = {d.name: d for d in local}
+    seen = set()
+    while name in by and name not in seen:
+        seen.add(name)
+        name = by[name].base
+    return CRYSTAL.get(name, "zincblende")
+
+
+def _apply_strain(deck, layers, cell, cell_layer, T, needs, h) -> StrainSummary:
+    """Strain every cell on the lattice it grows on and shift its band edges (in place)."""
+    from selfcon.input import materials
+    ref = deck.lattice
+    if ref.lattice_constant is not None:
+        a_ref = float(ref.lattice_constant)
+        mode, text = "lattice_constant", f"in-plane lattice constant {a_ref:.6g} nm (deck, every temperature)"
+    elif ref.material is not None:
+        p = _located(deck, "substrate.", _uniform_parameters, ref.material, ref.x, T,
+                     deck.materials, frozenset({"strain"}), ref.y)
+        a_ref = float(p["lattice"])
+        comp = "".join(f" {k} = {v:g}" for k, v in (("x", ref.x), ("y", ref.y)) if v is not None)
+        mode, text = "substrate", (f"substrate {ref.material}{comp}: a = {a_ref:.6g} nm at "
+                                   f"{T:g} K")
+        if not np.isfinite(a_ref):
+            raise deck.error("substrate.material", f"{ref.material} has no lattice constant",
+                             cls=MaterialError)
+    else:
+        a_ref = None
+        mode, text = "relaxed layers", ("relaxed layers set the lattice of the layers above them; "
+                                        "layers below the lowest relaxed one are unstrained")
+    relaxed = np.array([Li.relaxed for Li in layers], dtype=bool)
+    top_lattice = np.full(len(layers), np.nan)
+    for Li in layers:
+        if Li.relaxed:
+            p = _located(deck, f"layer[{Li.index}].", _uniform_parameters, Li.material, Li.x_top,
+                         T, deck.materials, needs, Li.y_top)
+            top_lattice[Li.index] = float(p["lattice"])
+    own = cell["lattice"]
+    a_par = in_plane_lattice(own, cell_layer, relaxed, top_lattice, a_ref)
+    crystals = {_library_crystal(Li.material, deck.materials) for Li in layers}
+    if crystals != {"zincblende"}:
+        raise deck.error("substrate", f"strain of {sorted(crystals - {'zincblende'})} layers is not "
+                         "modelled yet", cls=MaterialError)
+    e = bulk_strained_edges(cell, a_par)
+    exx, ezz = e["eps_xx"], e["eps_zz"]
+    for key in ("ec_gamma", "ev_hh", "ev_lh", "ec_x_z", "ec_x_xy", "ec_x", "ec_l"):
+        cell[key] = e[key]
+    cell["eg_gamma"] = cell["ec_gamma"] - np.maximum(cell["ev_hh"], cell["ev_lh"])
+    cell["eps_xx"], cell["eps_zz"], cell["a_par"] = exx, ezz, a_par
+    # per-layer summary (cell-width-weighted means) and critical thickness
+    nu = _layer_means(layers, cell_layer, h, poisson_ratio_001(cell["c11"], cell["c12"]))
+    a_mean = _layer_means(layers, cell_layer, h, own)
+    ex_mean = _layer_means(layers, cell_layer, h, exx)
+    ez_mean = _layer_means(layers, cell_layer, h, ezz)
+    per = []
+    for Li in layers:
+        sel = cell_layer == Li.index
+        per.append(LayerStrain(index=Li.index, strained=bool(not Li.relaxed and np.any(exx[sel] != 0.0)),
+                               relaxed=Li.relaxed, eps_xx=float(ex_mean[Li.index]),
+                               eps_zz=float(ez_mean[Li.index]),
+                               lattice_inplane=float(a_par[sel][0]),
+                               lattice_own=float(a_mean[Li.index]),
+                               critical_thickness=float("inf"), thickness=Li.bottom - Li.top))
+    hc, windows = stack_critical_thickness(per, nu, a_mean)
+    per = tuple(replace(L, critical_thickness=float(hc[L.index])) for L in per)
+    return StrainSummary(mode=mode, reference=text, a_reference=a_ref, layers=per, windows=windows)
 
 
 def key_nodes(st: Structure) -> np.ndarray:

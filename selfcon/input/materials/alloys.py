@@ -342,7 +342,7 @@ def resolve(name, x, temperature, local, needs, chain=(), y=None):
             _no_y(name, y, "a binary")
             return binary_primitives(name, x.shape, temperature)
         if name in ALLOYS:
-            _no_y(name, y, "a ternary (x = " + ALLOYS[name].meaning_of_x + ")")
+            _no_y(name, y, "a ternary (" + ALLOYS[name].meaning_of_x + ")")
             return alloy_primitives(name, x, temperature)
         if name in QUATERNARIES:
             yy = np.full(x.shape, np.nan) if y is None else np.asarray(y, dtype=float)
