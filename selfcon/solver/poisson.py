@@ -31,7 +31,9 @@ class PoissonProblem:
     Quantum part (predictor-corrector): cls_e, cls_h (N,) masks (1 classical, 0 quantum),
     psi2 (N, Ke) |psi|^2 (nm^-1), ek (Ke,) eV, dos_e (Ke,) nm^-2 eV^-1; psi2h, ekh, dos_h
     for holes (hole levels in electron energy); ec0_v, nc_v (V, N-1) further classical
-    conduction valleys (X, L; V = 0 by default); phi_ref (N,) the potential the subbands
+    conduction valleys (X, L; V = 0 by default); ev0_v, nv_v (W, N-1) further classical
+    valence bands (a strained layer's light hole; W = 0 by default, when ev0, nv hold both
+    hole bands at one edge); phi_ref (N,) the potential the subbands
     belong to.  Boundaries: (kind, value) with kind DIRICHLET or ZERO_FIELD, value in V.
     """
     z: np.ndarray
@@ -62,6 +64,8 @@ class PoissonProblem:
     qshift: float = 1.0
     ec0_v: np.ndarray = None
     nc_v: np.ndarray = None
+    ev0_v: np.ndarray = None
+    nv_v: np.ndarray = None
     h: np.ndarray = field(init=False)
     wl: np.ndarray = field(init=False)
     wr: np.ndarray = field(init=False)
@@ -85,12 +89,14 @@ class PoissonProblem:
         for k in ("cls_e", "cls_h"):
             a = getattr(self, k)
             set_(k, np.ones(N) if a is None else _f(a))
-        for k in ("ec0_v", "nc_v"):          # further conduction valleys (X, L), (V, N-1)
+        for k in ("ec0_v", "nc_v", "ev0_v", "nv_v"):   # further valleys / bands, (V, N-1)
             a = getattr(self, k)
             a = np.zeros((0, N - 1)) if a is None else _f(a).reshape(-1, N - 1)
             set_(k, a)
         if self.ec0_v.shape != self.nc_v.shape:
             raise ValueError("PoissonProblem: ec0_v and nc_v must have the same shape (valleys, N-1)")
+        if self.ev0_v.shape != self.nv_v.shape:
+            raise ValueError("PoissonProblem: ev0_v and nv_v must have the same shape (bands, N-1)")
         for p, e, d in (("psi2", "ek", "dos_e"), ("psi2h", "ekh", "dos_h")):
             if getattr(self, p) is None:
                 set_(p, np.zeros((N, 0)))
@@ -153,7 +159,7 @@ class PoissonProblem:
         return (Grid(self.h, self.wl, self.wr),
                 Material(self.eps, self.ec0, self.ev0, self.nc, self.nv, self.nd, self.ed,
                          self.na, self.ea, self.sheet_nd, self.sheet_na, self.ec0_v, self.nc_v,
-                         float(self.kT), bool(self.full_ionization)),
+                         self.ev0_v, self.nv_v, float(self.kT), bool(self.full_ionization)),
                 Quantum(self.cls_e, self.cls_h, self.psi2, self.ek, self.dos_e, self.psi2h,
                         self.ekh, self.dos_h, self.phi_ref, float(self.qshift)))
 
@@ -210,11 +216,13 @@ def total_charge(problem, phi):
     return float(np.sum(densities(problem, phi).rho * problem.w))
 
 
-def neutral_potential(ec0, ev0, nc, nv, nd, ed, na, ea, kT, full_ionization=False, valleys=()):
+def neutral_potential(ec0, ev0, nc, nv, nd, ed, na, ea, kT, full_ionization=False, valleys=(),
+                      holes=()):
     """phi (V) at which bulk material with these (one cell's) parameters is neutral.
 
     rho(phi) = p - n + Nd+ - Na- decreases strictly with phi; a bracket around the band
-    gap is widened until rho changes sign, then brentq (xtol 1e-13 V)."""
+    gap is widened until rho changes sign, then brentq (xtol 1e-13 V).  ``valleys``: further
+    conduction valleys (edge, effective DOS); ``holes``: further valence bands (edge, DOS)."""
     from scipy.optimize import brentq
     from selfcon.solver.kernels import statistics as ks
     full = bool(full_ionization)
@@ -227,6 +235,9 @@ def neutral_potential(ec0, ev0, nc, nv, nd, ed, na, ea, kT, full_ionization=Fals
         for ecv, ncv in valleys:           # further conduction valleys (X, L)
             if ncv > 0:
                 n += ncv * ks.fermi_half((phi - ecv) / kT)
+        for evv, nvv in holes:             # further valence bands (strained light hole)
+            if nvv > 0:
+                p += nvv * ks.fermi_half((evv - phi) / kT)
         return (p - n + ks.donor_ionized(nd, ec, ed, kT, full)[0]
                 - ks.acceptor_ionized(na, ev, ea, kT, full)[0])
 
@@ -254,8 +265,9 @@ def cell_neutral_potential(problem, c):
     """neutral_potential for cell c of a problem."""
     p = problem
     valleys = [(p.ec0_v[v, c], p.nc_v[v, c]) for v in range(p.ec0_v.shape[0])]
+    holes = [(p.ev0_v[v, c], p.nv_v[v, c]) for v in range(p.ev0_v.shape[0])]
     return neutral_potential(p.ec0[c], p.ev0[c], p.nc[c], p.nv[c], p.nd[c], p.ed[c], p.na[c],
-                             p.ea[c], p.kT, p.full_ionization, valleys)
+                             p.ea[c], p.kT, p.full_ionization, valleys, holes)
 
 
 def electric_field(z, phi):

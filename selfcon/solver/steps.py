@@ -46,6 +46,9 @@ HOLE_BANDS = ("heavy_hole", "light_hole")
 
 #: carrier name -> (band-edge key, effective-DOS key) of the classical conduction valleys
 VALLEYS = {"x_electron": ("ec_x", "nc_x"), "l_electron": ("ec_l", "nc_l")}
+#: the same valleys in a strained structure, split into sets of different edges
+#: (selfcon.model.strain.X_VALLEY_SETS: the X valley along z and the two in the plane)
+SPLIT_VALLEYS = {"x_electron": (("ec_x_z", "nc_x_z"), ("ec_x_xy", "nc_x_xy"))}
 
 #: a band whose classical sheet density in a region is below this (nm^-2), and below
 #: NEGLIGIBLE_FRACTION of the structure's fixed sheet charge, is left classical there
@@ -130,26 +133,54 @@ def classical_problem(st: Structure, bc=None) -> P.PoissonProblem:
     c = st.cell
     carriers = st.carriers
     nc = c["nc"] if "electron" in carriers else np.zeros_like(c["nc"])
-    nv = c["nv"] if any(b in carriers for b in HOLE_BANDS) else np.zeros_like(c["nv"])
+    ev0, nv, ev_v, nv_v = hole_arrays(st)
     top, bottom = bc if bc is not None else ((P.ZERO_FIELD, 0.0), (P.ZERO_FIELD, 0.0))
     ec_v, nc_v = valley_arrays(st)
-    return P.PoissonProblem(z=st.z, eps=c["eps"], ec0=c["ec_gamma"], ev0=c["ev0"], nc=nc, nv=nv,
+    return P.PoissonProblem(z=st.z, eps=c["eps"], ec0=c["ec_gamma"], ev0=ev0, nc=nc, nv=nv,
                             nd=c["donors"], ed=statistics_binding(c["donor_binding"]),
                             na=c["acceptors"], ea=statistics_binding(c["acceptor_binding"]),
                             temperature=st.temperature,
                             sheet_nd=st.sheet_donors, sheet_na=st.sheet_acceptors,
                             full_ionization=st.full_ionization, top=top, bottom=bottom,
-                            ec0_v=ec_v, nc_v=nc_v)
+                            ec0_v=ec_v, nc_v=nc_v, ev0_v=ev_v, nv_v=nv_v)
+
+
+def valley_rows(st: Structure, name):
+    """[(edge, effective DOS), ...] per cell of one classical conduction valley carrier: one
+    row, or one per valley set where strain splits them."""
+    split = SPLIT_VALLEYS.get(name)
+    if split is not None and split[0][0] in st.cell:
+        return [(st.cell[e], st.cell[d]) for e, d in split]
+    e, d = VALLEYS[name]
+    return [(st.cell[e], st.cell[d])]
 
 
 def valley_arrays(st: Structure):
     """(ec0_v, nc_v), each (V, N-1), of the X/L valleys the deck's carriers include."""
-    rows = [name for name in VALLEYS if name in st.carriers]
+    rows = [row for name in VALLEYS if name in st.carriers for row in valley_rows(st, name)]
     n = st.n_nodes - 1
     if not rows:
         return np.zeros((0, n)), np.zeros((0, n))
-    return (np.stack([st.cell[VALLEYS[r][0]] for r in rows]),
-            np.stack([st.cell[VALLEYS[r][1]] for r in rows]))
+    return np.stack([r[0] for r in rows]), np.stack([r[1] for r in rows])
+
+
+def hole_arrays(st: Structure):
+    """(ev0, nv, ev0_v, nv_v) of the classical holes.
+
+    Unstrained: heavy and light holes share the edge ev0 and one effective DOS nv of the
+    combined valence DOS mass, no further band.  Strained (the structure carries nv_hh,
+    nv_lh): the heavy hole at ev_hh with nv_hh and the light hole as a further band at ev_lh
+    with nv_lh, so each sits at its own edge.  Both bands count whenever the deck's carriers
+    include a hole band (as the combined DOS does)."""
+    c = st.cell
+    n = st.n_nodes - 1
+    on = any(b in st.carriers for b in HOLE_BANDS)
+    if "nv_hh" not in c:
+        nv = c["nv"] if on else np.zeros_like(c["nv"])
+        return c["ev0"], nv, np.zeros((0, n)), np.zeros((0, n))
+    if not on:
+        return c["ev0"], np.zeros(n), np.zeros((0, n)), np.zeros((0, n))
+    return c["ev_hh"], c["nv_hh"], c["ev_lh"][None, :], c["nv_lh"][None, :]
 
 
 def with_states(base: P.PoissonProblem, n_nodes: int, phi_ref, states, shift=1.0):

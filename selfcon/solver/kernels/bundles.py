@@ -40,7 +40,9 @@ class Material(NamedTuple):
     electrostatics (eV); ``nc``, ``nv`` effective densities of states (nm^-3, 0 switches the
     carrier off); ``nd``, ``na`` dopants (nm^-3); ``ed``, ``ea`` their binding energies (eV).
     Nodes (N,): ``sheet_nd``, ``sheet_na`` (nm^-2).  ``ec0_v``, ``nc_v`` (V, N-1): further
-    classical conduction valleys (X, L; V may be 0).  ``kT`` (eV); ``full``: full ionisation.
+    classical conduction valleys (X, L; V may be 0).  ``ev0_v``, ``nv_v`` (W, N-1): further
+    classical valence bands (the light hole of a strained layer, at its own edge; W may be 0).
+    ``kT`` (eV); ``full``: full ionisation.
     """
 
     eps: np.ndarray
@@ -56,6 +58,8 @@ class Material(NamedTuple):
     sheet_na: np.ndarray
     ec0_v: np.ndarray
     nc_v: np.ndarray
+    ev0_v: np.ndarray
+    nv_v: np.ndarray
     kT: float
     full: bool
 

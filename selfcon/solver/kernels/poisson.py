@@ -30,6 +30,9 @@ Charge model at node i, potential phi_i (V), EF = 0, densities nm^-3, in units o
   with cls_h); masks are 1 for classical nodes, 0 for quantum ones (fractions allowed).
   Further conduction valleys v (X, L; rows of ec0_v, nc_v, shape (V, N-1), V may be 0)
   are classical everywhere and added to n after the masks: n_v = nc_v F_{1/2}((phi - ec0_v)/kT).
+  Further valence bands w (rows of ev0_v, nv_v, shape (W, N-1), W may be 0: the light hole of
+  a strained layer at its own edge, the heavy hole being ev0, nv) are part of the classical
+  hole density, p_w = nv_v F_{1/2}((ev0_v - phi)/kT), and so take the hole mask cls_h.
   rho_i = p_i - n_i + Nd+_i - Na-_i.
 
 Equation at node i (V nm^-1 x eps_r, integrated over the dual cell):
@@ -93,6 +96,19 @@ def _cell_terms(c, phi, mat, want_e=True, want_h=True, want_d=True, want_a=True)
         else:
             p = nv * fermi_half(eta)
             dp = -nv * fermi_mhalf(eta) / kT
+    if want_h:
+        # further valence bands (a strained layer's light hole at its own edge)
+        for v in range(mat.ev0_v.shape[0]):
+            nvv = mat.nv_v[v, c]
+            if nvv > 0.0:
+                eta = (mat.ev0_v[v, c] - phi) / kT
+                if eta < _BOLTZMANN_ETA:
+                    x = nvv * math.exp(eta)
+                    p += x
+                    dp -= x / kT
+                else:
+                    p += nvv * fermi_half(eta)
+                    dp -= nvv * fermi_mhalf(eta) / kT
     # d/dphi = -d/dEc = -d/dEv
     fd = 0.0
     dfd = 0.0
