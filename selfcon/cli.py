@@ -193,14 +193,41 @@ def _fmt(v, unit=""):
 
 
 def check_figures(deck, structure) -> dict:
-    """What `selfcon check` reports: stack, contacts, mesh statistics, quantum regions."""
+    """What `selfcon check` reports: stack, contacts, mesh statistics, quantum regions, strain
+    (each layer's strain and critical-thickness margin) and non-type-I interfaces."""
     import numpy as np
+    from selfcon.output.diagnostics import interface_alignments
+    sm = structure.strain
+    per = {L.index: L for L in sm.layers} if sm is not None else {}
     layers = []
     for L in structure.layers:
-        layers.append({"index": L.index, "name": L.name, "material": L.material, "x_top": L.x_top,
-                       "x_bottom": L.x_bottom, "top_nm": L.top, "bottom_nm": L.bottom,
-                       "thickness_nm": L.bottom - L.top, "donors_cm3": L.donors, "acceptors_cm3": L.acceptors,
-                       "sheet_donors_cm2": L.sheet_donors, "sheet_acceptors_cm2": L.sheet_acceptors})
+        row = {"index": L.index, "name": L.name, "material": L.material, "x_top": L.x_top,
+               "x_bottom": L.x_bottom, "top_nm": L.top, "bottom_nm": L.bottom,
+               "thickness_nm": L.bottom - L.top, "donors_cm3": L.donors, "acceptors_cm3": L.acceptors,
+               "sheet_donors_cm2": L.sheet_donors, "sheet_acceptors_cm2": L.sheet_acceptors}
+        if L.y_top is not None:
+            row.update(y_top=L.y_top, y_bottom=L.y_bottom)
+        if L.lattice_matched is not None:
+            row["lattice_matched"] = L.lattice_matched
+        ls = per.get(L.index)
+        if sm is not None and sm.strained and ls is not None:
+            row.update(relaxed=ls.relaxed, strain_xx=ls.eps_xx, strain_zz=ls.eps_zz,
+                       lattice_inplane_nm=ls.lattice_inplane, lattice_own_nm=ls.lattice_own,
+                       critical_thickness_nm=ls.critical_thickness,
+                       thickness_over_critical=(ls.thickness / ls.critical_thickness
+                                                if ls.strained else 0.0))
+        layers.append(row)
+    strain = {"mode": sm.mode if sm is not None else "unstrained",
+              "reference": sm.reference if sm is not None else "unstrained",
+              "lattice_reference_nm": sm.a_reference if sm is not None else None,
+              "runs": [{"first": structure.layers[a].name, "last": structure.layers[b].name,
+                        "thickness_nm": hh, "critical_thickness_nm": hc, "mean_strain_xx": e}
+                       for a, b, hh, hc, e in (sm.windows if sm is not None else ())]}
+    interfaces = [dict(it, upper=structure.layers[it["upper"]].name,
+                       lower=structure.layers[it["lower"]].name,
+                       electrons=structure.layers[it["electrons"]].name,
+                       holes=structure.layers[it["holes"]].name)
+                  for it in interface_alignments(structure) if it["kind"] != "type I"]
     z = np.asarray(structure.z)
     h = np.diff(z)
     regions = [{"top_nm": float(a), "bottom_nm": float(b), "nodes": int(i1 - i0 + 1)}
@@ -216,7 +243,7 @@ def check_figures(deck, structure) -> dict:
                    "mesh": {"nodes": int(z.size), "min_step_nm": float(h.min()) if h.size else None,
                             "max_step_nm": float(h.max()) if h.size else None,
                             "thickness_nm": float(z[-1] - z[0]) if z.size else 0.0},
-                   "quantum_regions": regions})
+                   "quantum_regions": regions, "strain": strain, "interfaces": interfaces})
 
 
 def cmd_check(args) -> int:
@@ -234,22 +261,65 @@ def cmd_check(args) -> int:
     console.print(f"[bold]{fig['title']}[/bold]  T = {fig['temperature_K']:g} K  ({deck_path}: valid)")
     if fig["overrides"]:
         console.print("overrides: " + ", ".join(fig["overrides"]))
+    strained = fig["strain"]["mode"] != "unstrained"
+    has_y = any("y_top" in L for L in fig["layers"])
     t = Table(title="Stack (top to bottom)", title_justify="left")
-    for col, just in (("#", "right"), ("layer", "left"), ("material", "left"), ("x", "right"),
-                      ("top–bottom (nm)", "right"), ("thickness (nm)", "right"), ("Nd (cm⁻³)", "right"),
-                      ("Na (cm⁻³)", "right"), ("sheet Nd (cm⁻²)", "right"), ("sheet Na (cm⁻²)", "right")):
+    cols = [("#", "right"), ("layer", "left"), ("material", "left"), ("x", "right")]
+    if has_y:
+        cols.append(("y", "right"))
+    cols += [("top–bottom (nm)", "right"), ("thickness (nm)", "right"), ("Nd (cm⁻³)", "right"),
+             ("Na (cm⁻³)", "right"), ("sheet Nd (cm⁻²)", "right"), ("sheet Na (cm⁻²)", "right")]
+    for col, just in cols:
         t.add_column(col, justify=just)
+
+    def comp(a, b):
+        if a is None:
+            return "–"
+        return f"{a:.4g}→{b:.4g}" if b is not None and b != a else f"{a:.4g}"
+
     for L in fig["layers"]:
-        if L["x_top"] is None:
-            x = "–"
-        elif L["x_bottom"] is not None and L["x_bottom"] != L["x_top"]:
-            x = f"{L['x_top']:g}→{L['x_bottom']:g}"
-        else:
-            x = f"{L['x_top']:g}"
-        t.add_row(str(L["index"]), L["name"], L["material"], x, f"{L['top_nm']:g}–{L['bottom_nm']:g}",
-                  f"{L['thickness_nm']:g}", _fmt(L["donors_cm3"]), _fmt(L["acceptors_cm3"]),
-                  _fmt(L["sheet_donors_cm2"]), _fmt(L["sheet_acceptors_cm2"]))
+        row = [str(L["index"]), L["name"], L["material"], comp(L["x_top"], L["x_bottom"])]
+        if L.get("lattice_matched"):
+            row[3] += f" (≡{L['lattice_matched']})" if "y_top" not in L else ""
+        if has_y:
+            row.append(comp(L.get("y_top"), L.get("y_bottom")))
+        row += [f"{L['top_nm']:g}–{L['bottom_nm']:g}", f"{L['thickness_nm']:g}", _fmt(L["donors_cm3"]),
+                _fmt(L["acceptors_cm3"]), _fmt(L["sheet_donors_cm2"]), _fmt(L["sheet_acceptors_cm2"])]
+        t.add_row(*row)
     console.print(t)
+    sm = fig["strain"]
+    if not strained:
+        console.print("strain: unstrained (no \\[substrate] material or lattice_constant, no "
+                      "relaxed layer): every layer at its own lattice constant")
+    else:
+        st = Table(title=f"Strain ({sm['reference']})", title_justify="left")
+        for col in ("#", "layer", "a (nm)", "a_par (nm)", "ε_xx (%)", "ε_zz (%)", "h_c (nm)",
+                    "h / h_c"):
+            st.add_column(col, justify="left" if col == "layer" else "right")
+        for L in fig["layers"]:
+            hc = L.get("critical_thickness_nm")
+            ratio = L.get("thickness_over_critical") or 0.0
+            if L.get("relaxed"):
+                tail = ["relaxed", "–", "–", "–"]
+            else:
+                tail = [f"{100 * L.get('strain_xx', 0.0):+.3f}", f"{100 * L.get('strain_zz', 0.0):+.3f}",
+                        "∞" if hc is None else f"{hc:.1f}",
+                        "–" if not ratio else f"{ratio:.2f}" + (" beyond" if ratio > 1 else "")]
+            st.add_row(str(L["index"]), L["name"], f"{L.get('lattice_own_nm', float('nan')):.5f}",
+                       f"{L.get('lattice_inplane_nm', float('nan')):.5f}", *tail)
+        console.print(st)
+        console.print("ε_xx = (a_par − a)/a, ε_zz = −2 (C12/C11) ε_xx; h_c: Matthews–Blakeslee "
+                      "critical thickness (h / h_c > 1: beyond it)")
+        for r in sm["runs"]:
+            hc = r["critical_thickness_nm"]
+            over = hc is not None and r["thickness_nm"] > hc
+            console.print(f"  strained run {r['first']}…{r['last']}: {r['thickness_nm']:g} nm at mean "
+                          f"ε_xx {100 * r['mean_strain_xx']:+.3f} %, h_c {('∞' if hc is None else f'{hc:.1f}')} nm"
+                          + (" ⚠ beyond it" if over else ""))
+    for it in fig["interfaces"]:
+        console.print(f"interface {it['upper']}/{it['lower']} at {it['z_nm']:g} nm: {it['kind']} "
+                      f"(interface gap {1e3 * it['gap_eV']:.0f} meV; electrons in {it['electrons']}, "
+                      f"holes in {it['holes']}): single-band model only rough here")
     for side, c in fig["contacts"].items():
         extra = "" if c["barrier_eV"] is None else f", barrier {c['barrier_eV']:g} eV"
         if c["contact"] == "schottky":
@@ -363,7 +433,9 @@ def cmd_materials(args) -> int:
         t.add_column("name")
         t.add_column("kind")
         for n in names:
-            t.add_row(n, "alloy (needs x)" if materials.is_alloy(n) else "binary")
+            k = materials.kind(n)
+            t.add_row(n, {"ternary": "ternary (needs x)", "quaternary": "quaternary (needs x and y)"}
+                      .get(k, k))
         console = _console()
         console.print(t)
         console.print("selfcon materials NAME lists every value with its source")
@@ -371,8 +443,12 @@ def cmd_materials(args) -> int:
     kw = {}
     if args.x is not None:
         kw["x"] = args.x
+    if getattr(args, "y", None) is not None:
+        kw["y"] = args.y
     if args.temperature is not None:
         kw["temperature"] = args.temperature
+    if getattr(args, "on", None) is not None:
+        return _materials_on(args, kw)
     rows = materials.describe(args.name, **kw)
     if args.json:
         from selfcon.output.report import _clean
@@ -391,6 +467,112 @@ def cmd_materials(args) -> int:
         t.add_row(str(r["parameter"]), f"{v:.6g}" if isinstance(v, (int, float)) else str(v),
                   str(r.get("unit") or ""), str(r.get("source") or ""))
     _console().print(t)
+    return EXIT_OK
+
+
+def _parse_on(text):
+    """``--on`` value: a lattice constant in nm, or NAME, NAME:X or NAME:X:Y."""
+    try:
+        return None, None, None, float(text)
+    except ValueError:
+        pass
+    parts = text.split(":")
+    if not parts[0] or len(parts) > 3:
+        raise SelfconInputError(f"bad substrate {text!r}", key="--on",
+                                allowed="NAME, NAME:X, NAME:X:Y or a lattice constant in nm")
+    try:
+        nums = [float(v) for v in parts[1:]]
+    except ValueError:
+        raise SelfconInputError(f"bad composition in {text!r}", key="--on",
+                                allowed="NAME:X or NAME:X:Y with numbers in [0, 1]") from None
+    return parts[0], (nums[0] if nums else None), (nums[1] if len(nums) > 1 else None), None
+
+
+def strained_figures(name, x=None, y=None, temperature=300.0, on="GaAs") -> dict:
+    """What `selfcon materials NAME --on SUBSTRATE` shows: the band edges of bulk ``name``
+    unstrained and grown pseudomorphically on (001) of the substrate, and its critical
+    thickness there (selfcon.model.strain)."""
+    import numpy as np
+    from selfcon.errors import MaterialError
+    from selfcon.input import materials
+    from selfcon.model import strain as S
+    T = float(temperature)
+    sub, sx, sy, a_given = _parse_on(on) if isinstance(on, str) else (None, None, None, float(on))
+
+    def params(mat, mx, my, key):
+        try:
+            return materials.cell_parameters(mat, np.array([np.nan if mx is None else mx]), T,
+                                             needs={"strain"},
+                                             y=None if my is None else np.array([my]))
+        except MaterialError as err:
+            raise MaterialError(err.message, key=key if err.key in (None, "x", "y", "material") else err.key,
+                                allowed=err.allowed) from None
+
+    p = params(name, x, y, "NAME")
+    if a_given is not None:
+        a_par, label = a_given, f"a = {a_given:g} nm"
+    else:
+        a_par = float(params(sub, sx, sy, "--on")["lattice"][0])
+        label = sub + "".join(f" {k} = {v:g}" for k, v in (("x", sx), ("y", sy)) if v is not None)
+    e = S.bulk_strained_edges(p, np.array([a_par]))
+    eps = float(e["eps_xx"][0])
+    nu = float(S.poisson_ratio_001(p["c11"][0], p["c12"][0]))
+    a0 = float(p["lattice"][0])
+    rows = []
+
+    def add(q, unit, before, after, note=""):
+        rows.append({"quantity": q, "unit": unit, "unstrained": before, "strained": after, "note": note})
+
+    add("lattice constant", "nm", a0, a_par, "in-plane a_par on the substrate")
+    add("eps_xx", "1", 0.0, eps, "(a_par - a)/a")
+    add("eps_zz", "1", 0.0, float(e["eps_zz"][0]), "-2 (C12/C11) eps_xx")
+    for key, q in (("ec_gamma", "Gamma conduction edge"), ("ev_hh", "heavy-hole edge"),
+                   ("ev_lh", "light-hole edge")):
+        add(q, "eV", float(p[key][0]), float(e[key][0]), "common scale (InSb VBM = 0)")
+    add("split-off edge", "eV", float(p["vbo"][0] - p["delta_so"][0]), float(e["ev_so"][0]),
+        "light hole / split-off coupled by the shear strain")
+    add("X edge, valley along z", "eV", float(p["ec_x"][0]), float(e["ec_x_z"][0]), "1 valley")
+    add("X edge, valleys in plane", "eV", float(p["ec_x"][0]), float(e["ec_x_xy"][0]), "2 valleys")
+    add("L edge", "eV", float(p["ec_l"][0]), float(e["ec_l"][0]), "4 valleys, not split on (001)")
+    top0, top1 = float(p["vbo"][0]), float(max(e["ev_hh"][0], e["ev_lh"][0]))
+    add("Gamma gap", "eV", float(p["ec_gamma"][0]) - top0, float(e["ec_gamma"][0]) - top1,
+        "to the top valence edge")
+    add("heavy - light hole", "eV", 0.0, float(e["ev_hh"][0] - e["ev_lh"][0]),
+        "> 0: heavy hole on top (compressive)")
+    hc = {"buried": S.matthews_blakeslee(eps, a0, nu, capped=True),
+          "at the surface": S.matthews_blakeslee(eps, a0, nu, capped=False)}
+    from selfcon.output.report import _clean
+    return _clean({"name": name, "x": x, "y": y, "temperature_K": T, "substrate": label,
+                   "lattice_inplane_nm": a_par, "rows": rows,
+                   "critical_thickness_nm": hc,
+                   "sources": "strain: Van de Walle, Phys. Rev. B 39, 1871 (1989) deformation "
+                              "potentials (selfcon.model.strain); critical thickness: Matthews and "
+                              "Blakeslee, J. Cryst. Growth 27, 118 (1974), force balance"})
+
+
+def _materials_on(args, kw) -> int:
+    T = kw.get("temperature", 300.0)
+    fig = strained_figures(args.name, kw.get("x"), kw.get("y"), T, args.on)
+    if args.json:
+        print(json.dumps(fig, indent=2, ensure_ascii=False))
+        return EXIT_OK
+    from rich.table import Table
+    comp = "".join(f", {k} = {fig[k]:g}" for k in ("x", "y") if fig[k] is not None)
+    t = Table(title=f"{args.name}{comp} on {fig['substrate']} (001), T = {T:g} K", title_justify="left")
+    for col, just in (("quantity", "left"), ("unstrained", "right"), ("strained", "right"),
+                      ("unit", "left"), ("", "left")):
+        t.add_column(col, justify=just)
+    for r in fig["rows"]:
+        fmt = (lambda v: f"{100 * v:+.3f} %") if r["unit"] == "1" else (lambda v: f"{v:.5f}")
+        t.add_row(r["quantity"], fmt(r["unstrained"]), fmt(r["strained"]),
+                  "" if r["unit"] == "1" else r["unit"], r["note"])
+    console = _console()
+    console.print(t)
+    hc = fig["critical_thickness_nm"]
+    show = lambda v: "∞" if v is None else f"{v:.1f} nm"  # noqa: E731
+    console.print(f"Matthews–Blakeslee critical thickness: {show(hc['buried'])} buried under a cap, "
+                  f"{show(hc['at the surface'])} at the surface")
+    console.print(fig["sources"])
     return EXIT_OK
 
 
@@ -457,6 +639,10 @@ def build_parser() -> argparse.ArgumentParser:
     m = sub.add_parser("materials", help="list the material library, or one material with every source")
     m.add_argument("name", metavar="NAME", nargs="?")
     m.add_argument("--x", type=float, help="alloy fraction (alloys): show the interpolated values")
+    m.add_argument("--y", type=float, help="second composition (quaternaries InGaAsP, AlGaInAs)")
+    m.add_argument("--on", metavar="SUBSTRATE",
+                   help="show the band edges strained on this (001) substrate beside the unstrained "
+                        "ones: NAME, NAME:X, NAME:X:Y or a lattice constant in nm (default T 300 K)")
     m.add_argument("--temperature", type=float, metavar="K", help="temperature for temperature-dependent values")
     m.add_argument("--json", action="store_true", help="print as JSON")
     m.set_defaults(func=cmd_materials)

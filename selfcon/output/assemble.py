@@ -145,6 +145,10 @@ def build_result(deck, st, loop, *, wall_time: float) -> Result:
         "conduction_band_x": right_cell_values(st.cell["ec_x"]) - phi,
         "conduction_band_l": right_cell_values(st.cell["ec_l"]) - phi,
         "valence_band": ev,
+        "heavy_hole_band": right_cell_values(st.cell["ev_hh"]) - phi,
+        "light_hole_band": right_cell_values(st.cell["ev_lh"]) - phi,
+        "strain_xx": right_cell_values(st.cell["eps_xx"]),
+        "strain_zz": right_cell_values(st.cell["eps_zz"]),
         "potential": phi.copy(),
         "electric_field": electric_field(st.z, phi),
         "electron_density": n * CM3_PER_NM3,
@@ -155,9 +159,9 @@ def build_result(deck, st, loop, *, wall_time: float) -> Result:
 
     valley_sheets = {}
     n_valleys = np.zeros(st.n_nodes)
-    for name, (edge, dos) in steps.VALLEYS.items():
+    for name in steps.VALLEYS:
         if name in st.carriers:
-            nv = valley_density(st, phi, st.cell[edge], st.cell[dos])
+            nv = sum(valley_density(st, phi, edge, dos) for edge, dos in steps.valley_rows(st, name))
             n_valleys += nv
             profile[name + "_density"] = nv * CM3_PER_NM3
             valley_sheets[name] = float(np.sum(nv * st.mesh.w)) * CM2_PER_NM2
@@ -181,7 +185,9 @@ def build_result(deck, st, loop, *, wall_time: float) -> Result:
     d_layer = per_layer(st, ndp) * CM2_PER_NM2
     a_layer = per_layer(st, nam) * CM2_PER_NM2
     layers = []
+    strain_rows = {L.index: L for L in st.strain.layers} if st.strain is not None else {}
     for Li in st.layers:
+        ls = strain_rows.get(Li.index)
         layers.append({
             "name": Li.name, "material": Li.material,
             "x_top": float("nan") if Li.x_top is None else float(Li.x_top),
@@ -192,6 +198,15 @@ def build_result(deck, st, loop, *, wall_time: float) -> Result:
             "hole_sheet_density_cm2": float(h_layer[Li.index]),
             "ionized_donor_sheet_density_cm2": float(d_layer[Li.index]),
             "ionized_acceptor_sheet_density_cm2": float(a_layer[Li.index]),
+            "y_top": float("nan") if Li.y_top is None else float(Li.y_top),
+            "y_bottom": float("nan") if Li.y_top is None else
+            float(Li.y_bottom if Li.y_bottom is not None else Li.y_top),
+            "relaxed": bool(Li.relaxed),
+            "strain_xx": float("nan") if ls is None else ls.eps_xx,
+            "strain_zz": float("nan") if ls is None else ls.eps_zz,
+            "lattice_inplane_nm": float("nan") if ls is None else ls.lattice_inplane,
+            "lattice_own_nm": float("nan") if ls is None else ls.lattice_own,
+            "critical_thickness_nm": float("nan") if ls is None else ls.critical_thickness,
         })
 
     w = st.mesh.w
@@ -209,6 +224,7 @@ def build_result(deck, st, loop, *, wall_time: float) -> Result:
         "iterations": len(loop.iterations),
         "residual_V": float(loop.iterations[-1].residual) if loop.iterations else float("nan"),
         "method": loop.method,
+        "strain": st.strain.reference if st.strain is not None else "unstrained",
         "nodes": int(st.n_nodes),
         "wall_time_s": float(wall_time),
     }

@@ -35,6 +35,24 @@ Thresholds (our own choices, stated here and in README.md, "Design recipes"):
   bottom contact exceed 1 % of the channel sheet density (and 1e8 cm^-2), unless the
   bottom layer is the channel itself.
 * not converged: the self-consistent loop did not converge (its message is repeated).
+* critical thickness: a strained layer with |eps_xx| >= ``CRITICAL_MIN_STRAIN`` = 0.1 % is
+  thicker than its Matthews-Blakeslee critical thickness (selfcon.model.strain: a buried
+  layer has two misfit segments, the top layer one), or a run of strained layers is thicker
+  than the critical thickness of its thickness-weighted mean strain (the average-strain
+  approximation; runs start and end at layers above the 0.1 % floor; the worst run is
+  named).  Below 0.1 % misfit (AlGaAs on GaAs) Matthews-Blakeslee's equilibrium thickness
+  is microns and growth kinetics keep such layers coherent: no warning, but `check` lists
+  the numbers.
+* type-II / broken-gap interface: two neighbouring layers inside a quantum region whose
+  Gamma and top valence edges are staggered (type II: electrons on one side, holes on the
+  other) or broken (one layer's conduction edge below the other's valence edge, InAs/GaSb),
+  and the layers next to it hold more than ``FLOOR_CM2`` carriers.  The single-band model
+  treats electrons and holes as independent bands: it leaves out the coupling of the
+  electron states of one layer to the valence states of the other across the interface
+  (their energy distance, the interface gap, is smaller than either bulk gap; at a broken
+  gap the electron and hole subbands anticross and open a hybridisation gap), and the
+  conduction-band non-parabolicity that a small gap brings.  Subband energies, masses and
+  the charge transferred across a broken gap are therefore only rough.
 
 How to add a design warning
 ---------------------------
@@ -79,7 +97,8 @@ __all__ = ["design_warnings", "register_check", "unregister_check", "deck_of",
            "check_parallel_conduction", "check_carriers_outside", "channel_subbands",
            "check_dx_centres", "check_region_cut", "check_buffer_carriers",
            "check_uncounted_valleys", "doping_layers", "doping_layer_electrons",
-           "node_weights", "CHECKS"]
+           "node_weights", "CHECKS", "check_critical_thickness", "check_band_alignment",
+           "interface_alignments"]
 
 #: name -> check, in the order warnings are listed (filled by register_check)
 CHECKS: dict[str, Callable] = {}
@@ -443,6 +462,103 @@ def check_uncounted_valleys(result, structure, deck=None) -> list[str]:
         out.append(f"{label} valley within {VALLEY_KT:g} kT of EF (lowest {label} edge "
                    f"{1e3 * float(edge[hit].min()):+.0f} meV) in {names}, but {label}-valley electrons "
                    f"are not counted: add \"{carrier}\" to physics.carriers")
+    return out
+
+
+#: below this |eps_xx| no critical-thickness warning (see the module docstring)
+CRITICAL_MIN_STRAIN = 1e-3
+
+
+@register_check("critical_thickness")
+def check_critical_thickness(result, structure, deck=None) -> list[str]:
+    """Strained layers (and runs of them) thicker than their Matthews-Blakeslee thickness."""
+    sm = getattr(structure, "strain", None)
+    if sm is None or not sm.strained:
+        return []
+    rows = _layer_rows(result)
+    name = (lambda k: repr(rows[k]["name"])) if rows else (lambda k: f"layer {k}")
+    out = []
+    for L in sm.layers:
+        if L.strained and abs(L.eps_xx) >= CRITICAL_MIN_STRAIN and L.thickness > L.critical_thickness:
+            out.append(f"strained layer {name(L.index)} ({100 * L.eps_xx:+.2f} % in-plane strain) is "
+                       f"{L.thickness:g} nm thick, beyond its Matthews-Blakeslee critical thickness "
+                       f"{L.critical_thickness:.1f} nm: expect misfit dislocations (relaxation); thin it "
+                       "or lower the mismatch")
+    strained = {L.index for L in sm.layers if L.strained and abs(L.eps_xx) >= CRITICAL_MIN_STRAIN}
+    worst = None
+    for first, last, h, hc, eps in sm.windows:
+        if first in strained and last in strained and h > hc:
+            if worst is None or h / hc > worst[2] / worst[3]:
+                worst = (first, last, h, hc, eps)
+    if worst is not None:
+        first, last, h, hc, eps = worst
+        out.append(f"strained layers {name(first)} to {name(last)} together: {h:g} nm with mean strain "
+                   f"{100 * eps:+.2f} %, beyond the Matthews-Blakeslee critical thickness {hc:.1f} nm of "
+                   "that mean strain (average-strain approximation for a stack under one cap): the "
+                   "stack may relax; add strain-compensating layers or thin it")
+    return out
+
+
+def interface_alignments(structure) -> list[dict]:
+    """Band alignment of every interface between neighbouring layers, from the (strained)
+    Gamma edge and the top valence edge of the two cells at the interface: dicts with
+    ``upper``, ``lower`` (layer indices), ``z_nm``, ``kind`` ("type I", "type II" or "broken
+    gap"), ``gap_eV`` (the interface gap: the lower conduction edge minus the higher valence
+    edge of the pair; negative for a broken gap) and ``electrons``/``holes`` (index of the
+    layer whose conduction/valence edge confines the carrier)."""
+    cl = np.asarray(structure.cell_layer)
+    ec = np.asarray(structure.cell["ec_gamma"])
+    ev = np.asarray(structure.cell["ev0"])
+    z = np.asarray(structure.z)
+    out = []
+    for c in np.flatnonzero(cl[1:] != cl[:-1]):
+        a, b = c, c + 1                     # cells above and below the interface node c + 1
+        ia, ib = int(cl[a]), int(cl[b])
+        e_low = ia if ec[a] <= ec[b] else ib
+        h_high = ia if ev[a] >= ev[b] else ib
+        gap = float(min(ec[a], ec[b]) - max(ev[a], ev[b]))
+        if gap < 0.0:
+            kind = "broken gap"
+        elif e_low != h_high:
+            kind = "type II"
+        else:
+            kind = "type I"
+        out.append({"upper": ia, "lower": ib, "z_nm": float(z[c + 1]), "kind": kind,
+                    "gap_eV": gap, "electrons": e_low, "holes": h_high})
+    return out
+
+
+@register_check("band_alignment")
+def check_band_alignment(result, structure, deck=None) -> list[str]:
+    """Type-II and broken-gap interfaces inside a quantum region that hold carriers."""
+    if structure is None:
+        return []
+    rows = _layer_rows(result)
+    out = []
+    for it in interface_alignments(structure):
+        if it["kind"] == "type I":
+            continue
+        if not any(a - 1e-9 <= it["z_nm"] <= b + 1e-9 for a, b in structure.regions_nm):
+            continue
+        n = float(rows[it["electrons"]].get("electron_sheet_density_cm2", 0.0)) if rows else 0.0
+        p = float(rows[it["holes"]].get("hole_sheet_density_cm2", 0.0)) if rows else 0.0
+        if max(n, p) <= FLOOR_CM2:
+            continue
+        up, lo = rows[it["upper"]], rows[it["lower"]]
+        pair = f"{up['material']}/{lo['material']} ({up['name']!r}/{lo['name']!r}, z = {it['z_nm']:g} nm)"
+        if it["kind"] == "broken gap":
+            what = (f"broken-gap interface {pair}: the conduction edge of one layer lies "
+                    f"{-1e3 * it['gap_eV']:.0f} meV below the valence edge of the other")
+            miss = ("electron and hole subbands there anticross and hybridise (a gap of a few meV "
+                    "opens), which the single-band model, treating them as independent, leaves out; "
+                    "the charge transferred across the interface and the subband energies are rough")
+        else:
+            what = (f"type-II interface {pair}: electrons and holes are confined on opposite sides, "
+                    f"interface gap {1e3 * it['gap_eV']:.0f} meV")
+            miss = ("the single-band model leaves out the coupling of the electron states to the "
+                    "neighbour's valence band across the interface and the non-parabolicity of a "
+                    "small gap: subband energies and masses there are only rough")
+        out.append(f"{what}; {miss} (a multiband k.p model is needed for accurate numbers)")
     return out
 
 

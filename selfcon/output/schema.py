@@ -73,8 +73,13 @@ EXTRA_PROFILE_FIELDS = {
     "layer_index": ("1", "index into /layers of the layer holding each node"),
     "conduction_band_x": ("eV", "X-valley conduction band edge with electrostatics, relative to EF"),
     "conduction_band_l": ("eV", "L-valley conduction band edge with electrostatics, relative to EF"),
-    "heavy_hole_band": ("eV", "heavy-hole band edge with electrostatics, relative to EF"),
-    "light_hole_band": ("eV", "light-hole band edge with electrostatics, relative to EF"),
+    "heavy_hole_band": ("eV", "heavy-hole band edge with electrostatics, relative to EF "
+                              "(strain-shifted in strained layers)"),
+    "light_hole_band": ("eV", "light-hole band edge with electrostatics, relative to EF "
+                              "(strain-shifted in strained layers)"),
+    "strain_xx": ("1", "in-plane strain eps_xx = (a_par - a)/a of the cell to the right of each "
+                       "node (0 in an unstrained stack)"),
+    "strain_zz": ("1", "strain along the growth axis, eps_zz = -2 (C12/C11) eps_xx"),
     "charge_density": ("cm-3", "net charge density p - n + Nd+ - Na- in units of q"),
     "x_electron_density": ("cm-3", "X-valley electrons (classical; part of electron_density)"),
     "l_electron_density": ("cm-3", "L-valley electrons (classical; part of electron_density)"),
@@ -85,6 +90,8 @@ LAYER_UNITS = {
     "name": "1", "material": "1", "x_top": "1", "x_bottom": "1",
     "top_nm": "nm", "bottom_nm": "nm", "thickness_nm": "nm",
     "electron_sheet_density_cm2": "cm-2", "hole_sheet_density_cm2": "cm-2",
+    "y_top": "1", "y_bottom": "1", "relaxed": "1", "strain_xx": "1", "strain_zz": "1",
+    "lattice_inplane_nm": "nm", "lattice_own_nm": "nm", "critical_thickness_nm": "nm",
 }
 
 LAYER_DESCRIPTIONS = {
@@ -96,6 +103,17 @@ LAYER_DESCRIPTIONS = {
     "bottom_nm": "depth of the bottom interface",
     "electron_sheet_density_cm2": "electrons integrated over the layer",
     "hole_sheet_density_cm2": "holes integrated over the layer",
+    "y_top": "second composition (quaternaries) at the top of the layer",
+    "y_bottom": "second composition (quaternaries) at the bottom of the layer",
+    "relaxed": "true for a relaxed (metamorphic) layer: the layers above take its lattice",
+    "strain_xx": "in-plane strain, thickness-weighted mean over the layer (0: unstrained)",
+    "strain_zz": "strain along the growth axis, thickness-weighted mean over the layer",
+    "lattice_inplane_nm": "in-plane lattice constant the layer grows on (at its top; its own "
+                          "lattice constant in an unstrained stack or a relaxed layer)",
+    "lattice_own_nm": "the layer's own (relaxed) lattice constant at the temperature, mean",
+    "critical_thickness_nm": "Matthews-Blakeslee critical thickness of the layer on its own "
+                             "(inf: unstrained or relaxed); see the design warnings for runs "
+                             "of strained layers",
 }
 
 ROOT_ATTRS = ("schema", "schema_version", "selfcon_version", "created", "title", "temperature_K",
