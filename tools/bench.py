@@ -139,9 +139,9 @@ def bench_floor():
                 w[0], w[-1] = st.mesh.wr[i0], st.mesh.wl[i1]
                 args = (st.mesh.h[i0:i1], w, sign * edge[sl], 1.0 / st.cell[mass_key][i0:i1],
                         int(np.sum(bs.region == r_idx)))
-                ws = quantum.EigenWorkspace(i1 - i0 + 1)
-                quantum.solve_region(*args, workspace=ws)
-                t, _ = best_time(lambda: quantum.solve_region(*args, workspace=ws), 5)
+                ews = quantum.EigenWorkspace(i1 - i0 + 1)   # not `ws`: the loop workspace is used below
+                quantum.solve_region(*args, workspace=ews)
+                t, _ = best_time(lambda: quantum.solve_region(*args, workspace=ews), 5)
                 t_eig += t
         # one Newton step: poisson_newton(max_iter=1) minus its initial assembly (max_iter=0)
         prob = ws.problem(phi, states, shift=1.0)

@@ -219,6 +219,10 @@ def _figures_card(ax, result, fs):
             bbox={"boxstyle": "round,pad=0.6", "facecolor": "#f7f7f4", "edgecolor": "#c8c8c0"})
 
 
+#: eV: heavy- and light-hole edges further apart than this are drawn as two lines
+HOLE_SPLIT_SHOWN = 1e-3
+
+
 def draw_band_diagram(fig, result, depth=None):
     """Draw the band diagram on a matplotlib Figure; returns the axes (bands, densities, close-up, card)."""
     z = np.asarray(result.z, dtype=float)
@@ -250,6 +254,14 @@ def draw_band_diagram(fig, result, depth=None):
     top.plot(z, ec, color=EDGE_COLOURS["conduction_band"], linewidth=2.0, label="conduction band E$_c$", zorder=3)
     top.plot(z, ev, color=EDGE_COLOURS["valence_band"], linewidth=2.0, label="valence band E$_v$", zorder=3)
     top.axhline(0.0, color=FERMI_COLOUR, linestyle="-.", linewidth=1.3, label="Fermi level E$_F$ = 0", zorder=2)
+    # strained layers: the heavy- and light-hole edges split; the lower one, thin and dotted
+    if "heavy_hole_band" in result.profile and "light_hole_band" in result.profile:
+        hh = np.asarray(result.profile["heavy_hole_band"], dtype=float)
+        lh = np.asarray(result.profile["light_hole_band"], dtype=float)
+        split = np.abs(hh - lh) > HOLE_SPLIT_SHOWN
+        if np.any(view & split):
+            top.plot(z, np.where(split, np.minimum(hh, lh), np.nan), color=EDGE_COLOURS["valence_band"],
+                     linestyle=":", linewidth=1.1, label="lower hole edge (strain-split)", zorder=2.5)
     # X and L edges, thin, wherever they come within VALLEY_SHOWN eV of the Gamma edge in view
     for key, (colour, style, label) in VALLEY_STYLE.items():
         if key not in result.profile:
