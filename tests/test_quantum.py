@@ -10,7 +10,8 @@ from scipy.special import ai_zeros
 
 from selfcon.constants import HBAR2_2M0
 from selfcon.solver.schrodinger import (EigenWorkspace, bound_states, bound_states_cells,
-                             dual_widths, in_plane_mass, solve_region)
+                             dual_widths, in_plane_mass, in_plane_states, solve_region,
+                             thermal_in_plane_energy)
 
 # GaAs-like well / Al0.3Ga0.7As-like barrier used throughout (values for the test
 # only; the physics checks below hold for any masses and depth).
@@ -431,3 +432,61 @@ def test_public_entry_point():
     z = np.linspace(0.0, L_W, 401)
     E, psi = selfcon.bound_states(z, np.zeros_like(z), np.full(z.size, M_W), 1)
     assert E[0] == pytest.approx(infinite_well_exact(1, M_W, L_W), rel=1e-4)   # textbook
+
+
+def _two_material_pair():
+    """Two non-overlapping normalised states: A in the left half (mass M_W), B in the right
+    half (mass M_B) of a 40 nm mesh."""
+    z = np.linspace(0.0, 40.0, 401)
+    w = w_of(z)
+    m_node = np.where(z < 20.0, M_W, M_B)
+    a = np.where((z > 2) & (z < 18), np.sin(np.pi * (z - 2) / 16), 0.0)
+    b = np.where((z > 22) & (z < 38), np.sin(np.pi * (z - 22) / 16), 0.0)
+    a /= np.sqrt(w @ a ** 2)
+    b /= np.sqrt(w @ b ** 2)
+    return z, w, m_node, a, b
+
+
+@pytest.mark.parametrize("theta", [0.3, np.pi / 4, 1.1])
+@pytest.mark.parametrize("split", [0.0, 1e-5])
+def test_in_plane_states_separates_degenerate_states_of_two_materials(theta, split):
+    # degenerate perturbation theory in the in-plane kinetic energy (analytic): two states
+    # of equal z energy in different materials are separated by eps M, M_ij = <i|1/m|j>,
+    # whatever mixture the eigensolver returned; each keeps its own mass, 1/M_AA = M_W and
+    # 1/M_BB = M_B exactly (no overlap), and its z energy
+    z, w, m_node, a, b = _two_material_pair()
+    c, s = np.cos(theta), np.sin(theta)
+    psi = np.stack([c * a + s * b, -s * a + c * b], axis=1)
+    e = np.array([0.1, 0.1 + split])
+    e2, psi2, mpar = in_plane_states(e, psi, w, 1 / m_node, kT=0.0259)
+    # a splitting leaves a mixing angle ~ split / (eps (1/M_W - 1/M_B)) ~ 3e-4 (first-order
+    # perturbation), so weights within ~1e-7 of 0 and 1; exactly 0 and 1 when degenerate
+    tol = 1e-12 if split == 0.0 else 1e-6
+    left = (w * (z < 20.0)) @ psi2 ** 2
+    np.testing.assert_allclose(sorted(left), [0.0, 1.0], atol=tol)
+    order = np.argsort(left)                 # B (right, M_B), then A (left, M_W)
+    np.testing.assert_allclose(mpar[order], [M_B, M_W], rtol=tol)
+    np.testing.assert_allclose(e2, 0.1 + split / 2, atol=split / 2 + 1e-15)
+
+
+def test_in_plane_states_keep_well_split_subbands():
+    # subbands split far beyond the thermal in-plane energy keep their z eigenstates and
+    # their first-order masses (in_plane_mass, the definition), bit for bit in |psi|^2
+    z = layered_mesh([20.0, L_W, 20.0], 0.05)
+    v, m = well_cells(z, 20.0)
+    E, psi = bound_states_cells(z, v, m, 2)
+    w = w_of(z)
+    h = np.diff(z)
+    m_node = np.concatenate([[m[0]], (h[:-1] * m[:-1] + h[1:] * m[1:]) / (h[:-1] + h[1:]), [m[-1]]])
+    for kT in (0.00034, 0.0259):             # 4 K and 300 K
+        e2, psi2, mpar = in_plane_states(E, psi, w, 1 / m_node, kT)
+        np.testing.assert_array_equal(e2, E)
+        np.testing.assert_allclose(psi2 ** 2, psi ** 2, atol=1e-15)
+        np.testing.assert_allclose(mpar, in_plane_mass(psi, w, m_node), rtol=1e-12)
+
+
+def test_thermal_in_plane_energy_limits():
+    # mean in-plane kinetic energy of a 2D Fermi gas / kT: 1 non-degenerate, x/2 degenerate
+    # (analytic, Boltzmann and T = 0 limits); the smooth join used is 1 + ln(1 + e^x)/2
+    assert thermal_in_plane_energy(-40.0) == pytest.approx(1.0, abs=1e-12)
+    assert thermal_in_plane_energy(200.0) == pytest.approx(101.0, rel=1e-12)

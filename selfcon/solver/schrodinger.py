@@ -19,7 +19,7 @@ import numpy as np
 from selfcon.constants import HBAR2_2M0  # noqa: F401  (documented unit of the operator)
 
 __all__ = ["EigenWorkspace", "solve_region", "bound_states", "bound_states_cells",
-           "in_plane_mass", "dual_widths"]
+           "in_plane_mass", "in_plane_states", "dual_widths"]
 
 
 def _kernels():
@@ -205,3 +205,66 @@ def in_plane_mass(psi, w, mass_node):
         psi = psi[:, None]
     p2 = psi * psi
     return (w @ p2) / ((w / mass_node) @ p2)
+
+
+def thermal_in_plane_energy(x):
+    """Mean in-plane kinetic energy of a 2D subband's carriers in units of kT, as a smooth
+    function of x = (E_F - E)/kT: 1 in the non-degenerate limit (x -> -inf), x/2 + 1 in the
+    degenerate one (the exact mean is -Li2(-e^x)/ln(1 + e^x), which goes as x/2 + pi^2/(6x));
+    g(x) = 1 + ln(1 + e^x)/2 joins the two limits."""
+    return 1.0 + 0.5 * np.logaddexp(0.0, x)
+
+
+#: the in-plane coupling is applied between subbands split by less than about the thermal
+#: in-plane energy / IN_PLANE_TAPER (a Gaussian taper in the splitting)
+IN_PLANE_TAPER = 10.0
+
+
+def in_plane_states(energies, psi, w, inv_mass_node, kT, fermi=0.0):
+    """Subbands with their in-plane motion: near-degenerate states of different materials
+    separated into the states of each material; well separated subbands left as they are.
+
+    With a position-dependent mass the in-plane kinetic energy eps M (eps = hbar^2 k^2/2m0,
+    M_ij = sum_z w psi_i psi_j / m(z) in 1/m0) couples the eigenstates of the z problem.  For
+    well separated subbands the coupling is a small correction and the usual first-order
+    masses 1/M_ii hold (:func:`in_plane_mass`).  Nearly degenerate states in different
+    materials, though -- a level of a doping-sheet well in AlGaAs crossing a channel level
+    in GaAs, split by tunnelling far less than the coupling at thermal k -- are the case of
+    degenerate perturbation theory: the in-plane motion decides the basis, and each state
+    stays in its own well with its own mass.  The z problem alone gives an arbitrary,
+    potential-sensitive mixture there, whose density changes with the mixing through the
+    per-state mass: a sensitivity the charge has in no real system, and one that stalls the
+    self-consistent loop (the mixture swaps over a potential change of the tunnel splitting).
+
+    The states are rotated to the eigenvectors of H = diag(E) + eps (M o S) at the thermal
+    in-plane energy eps = kT g(x) / (tr M / k), x = (fermi - E_min)/kT
+    (:func:`thermal_in_plane_energy`), with the taper S_ij = exp(-((E_i - E_j)/D)^2),
+    D = kT g(x) / IN_PLANE_TAPER: within a group of levels closer than D the coupling is the
+    full in-plane operator, so the result does not depend on how the eigensolver mixed them;
+    between subbands split by much more than D it is absent, and they keep their eigenstates
+    and first-order masses exactly.  Everything is smooth in the potential.
+
+    energies (k,) eV on the carrier's kinetic scale (up = more energy), psi (n, k)
+    normalised with w, inv_mass_node (n,) 1/m at the nodes, kT (eV), fermi (eV) the
+    carrier's Fermi level on the same scale.  Returns (energies (k,) = <H_z> of each state,
+    psi (n, k), in-plane masses (k,) = 1/<1/m>), lowest energy first.
+    """
+    e = np.asarray(energies, dtype=float)
+    psi = np.asarray(psi, dtype=float)
+    w = np.asarray(w, dtype=float)
+    wm = w * np.asarray(inv_mass_node, dtype=float)
+    norm = w @ (psi * psi)
+    m = psi.T @ (wm[:, None] * psi)
+    m = 0.5 * (m + m.T)
+    if e.size < 2:
+        return e.copy(), psi.copy(), norm / np.diag(m)
+    thermal = kT * thermal_in_plane_energy((fermi - e.min()) / kT)      # eV
+    eps = thermal * e.size / np.trace(m)
+    de = (e[:, None] - e[None, :]) * (IN_PLANE_TAPER / thermal)
+    h = eps * m * np.exp(-de * de)
+    h[np.diag_indices_from(h)] += e
+    _, u = np.linalg.eigh(h)
+    e_new = (u * u).T @ e
+    m_new = np.einsum("ik,ij,jk->k", u, m, u)
+    order = np.argsort(e_new, kind="stable")
+    return e_new[order], (psi @ u)[:, order], (norm.mean() / m_new)[order]

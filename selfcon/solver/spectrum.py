@@ -90,7 +90,8 @@ def region_states(st, phi, band: str, r_idx: int, n_states: int, workspace=None)
                                 1.0 / st.cell[mass_key][i0:i1], n_states, workspace=workspace)
     full = np.zeros((n, e.size))
     full[sl, :] = p
-    m_par = quantum.in_plane_mass(full, st.mesh.w, st.node_average(st.cell[par_key]))
+    e, full, m_par = quantum.in_plane_states(e, full, st.mesh.w,
+                                             1.0 / st.node_average(st.cell[par_key]), st.kT)
     return sign * e, full, m_par
 
 

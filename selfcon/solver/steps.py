@@ -341,10 +341,13 @@ def solve_states(ws: Workspace, phi) -> dict:
                 ws.n_states[band] = k
             full = np.zeros((n, e.size))
             full[sl, :] = p
+            m_par_node = st.node_average(st.cell[par_key])
+            # in-plane motion: near-degenerate states of different materials separate into
+            # the states of each (schrodinger.in_plane_states); EF = 0 on the kinetic scale too
+            e, full, m_in = schrodinger.in_plane_states(e, full, st.mesh.w, 1.0 / m_par_node, st.kT)
             energies.append(sign * e)
             psis.append(full)
-            m_par_node = st.node_average(st.cell[par_key])
-            mpar.append(schrodinger.in_plane_mass(full, st.mesh.w, m_par_node))
+            mpar.append(m_in)
             regs.append(np.full(e.size, r_idx))
         if not energies:
             continue

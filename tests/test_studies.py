@@ -1,0 +1,44 @@
+"""Every shipped study runs to completion with every job converged (issue 12).
+
+The check value of each study is its own: all jobs converged (exit code 0).  The
+growth-tolerance study (64 solves at 300 K) takes over a minute and is marked slow; its
+job 15, which stalled at 3.3e-5 V before the in-plane treatment of near-degenerate
+subbands (selfcon.solver.schrodinger.in_plane_states), is solved in the default suite.
+"""
+from pathlib import Path
+
+import pytest
+
+import selfcon
+from selfcon.batch.runner import run_study
+from selfcon.batch.study import expand, load_study
+
+STUDIES = Path(__file__).resolve().parents[1] / "inputs" / "studies"
+SLOW = {"growth_tolerance"}          # over a minute on 2 cores
+
+
+def _params():
+    out = []
+    for f in sorted(STUDIES.glob("*.toml")):
+        marks = [pytest.mark.slow] if f.stem in SLOW else []
+        out.append(pytest.param(f, marks=marks, id=f.stem))
+    return out
+
+
+@pytest.mark.parametrize("study", _params())
+def test_every_study_job_converges(study, tmp_path):
+    n_jobs = len(expand(load_study(study)))
+    code, counts, _ = run_study(study, workers=2, out=tmp_path / study.stem, quiet=True)
+    assert counts["done"] == n_jobs, counts
+    assert code == 0
+
+
+def test_growth_tolerance_job_15_converges():
+    # issue 12: the sample with spacer 18.63 nm, x = 0.329, sheet 2.85e12 cm^-2 stalled at
+    # 3.3e-5 V: a level of the doping-sheet well in the AlGaAs crossed a channel level
+    # (split 0.09 meV) and their mixture swapped over a potential change of that size
+    job = expand(load_study(STUDIES / "growth_tolerance.toml"))[14]
+    assert job.values["layer.spacer.thickness"] == pytest.approx(18.633, abs=1e-3)
+    r = selfcon.solve(selfcon.load_deck(job.deck_text))
+    assert r.converged, r.message
+    assert r.summary["iterations"] <= 8          # the predictor's usual handful
