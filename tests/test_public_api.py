@@ -21,7 +21,9 @@ ROOT = Path(__file__).resolve().parent.parent
 NOT_DOCUMENTED = {"__version__"}
 #: the public functions of the design and batch stages and the Result's own methods
 OTHERS = ["selfcon.design.sweep_bias", "selfcon.design.tune", "selfcon.design.summarize_study",
-          "selfcon.batch.run_study", "selfcon.batch.load_study", "selfcon.output.result.Result.save"]
+          "selfcon.batch.run_study", "selfcon.batch.load_study"] + [
+    f"selfcon.output.result.Result.{m}" for m in ("save", "channel", "main_channel", "success",
+                                                   "status", "potential")]
 
 
 def _resolve(dotted):

@@ -117,16 +117,58 @@ class Result:
 
     @property
     def main_channel(self) -> dict | None:
-        """The row of the main channel in :attr:`channels` (None without channels)."""
+        """The row of the main channel in :attr:`channels` (None without channels).
+
+        The main channel is the first ``[[channel]]`` of the deck, else the one found holding
+        the most carriers; the summary figures are its figures.
+
+        Examples
+        --------
+        >>> import selfcon
+        >>> result = selfcon.solve("inputs/hemt_4K.toml")
+        >>> result.main_channel["layer"], result.main_channel["carrier"]
+        ('channel', 'electron')
+        """
         return next((c for c in self.channels if c.get("main")), None)
 
     def channel(self, name: str) -> dict | None:
-        """The row of the channel called ``name`` (None if there is none)."""
+        """The row of the channel called ``name`` (None if there is none).
+
+        Parameters
+        ----------
+        name : str
+            A channel name: a ``[[channel]]`` of the deck, or the layer name of a channel
+            found in the solution.
+
+        Returns
+        -------
+        dict or None
+            Depth range (nm), carrier, sheet density (cm^-2), ground-state energy and
+            spacing (eV), occupied subbands, centroid, in-plane mass, ...
+
+        Examples
+        --------
+        >>> import selfcon
+        >>> result = selfcon.solve("inputs/hemt_4K.toml")
+        >>> row = result.channel("channel")
+        >>> row["carrier"], row["occupied_subbands"]         # one subband at 4 K
+        ('electron', 1)
+        >>> result.channel("nowhere") is None
+        True
+        """
         return next((c for c in self.channels if c.get("name") == name), None)
 
     # SciPy-style status fields
     @property
     def success(self) -> bool:
+        """``converged`` under SciPy's name.
+
+        Examples
+        --------
+        >>> import selfcon
+        >>> selfcon.solve("inputs/hemt_4K.toml", max_iterations=1).success
+        False
+        """
         return bool(self.converged)
 
     @property
@@ -134,7 +176,15 @@ class Result:
         """How the solve ended, a :class:`selfcon.solver.control.Status` (an int): 0
         ``CONVERGED``, 1 ``MAX_ITERATIONS``, 2 ``DIVERGED``, 3 ``OSCILLATING``, 4
         ``NO_PROGRESS``, 5 ``STOPPED`` (by the progress callback).  Stored as the summary
-        attribute ``status``; a file without it gives 0 or 1 from ``converged``."""
+        attribute ``status``; a file without it gives 0 or 1 from ``converged``.
+
+        Examples
+        --------
+        >>> import selfcon
+        >>> short = selfcon.solve("inputs/hemt_4K.toml", max_iterations=1)
+        >>> short.status.name, int(short.status)
+        ('MAX_ITERATIONS', 1)
+        """
         from selfcon.solver.control import Status
         code = (self.summary or {}).get("status")
         code = (0 if self.converged else 1) if code is None else int(code)
@@ -145,6 +195,18 @@ class Result:
 
     @property
     def potential(self) -> np.ndarray:
+        """The electrostatic potential phi (V) per node, ``profile["potential"]``.
+
+        Band edges are ``Ec0 - phi``; pass ``(result.z, result.potential)`` as
+        ``initial_potential`` to start another solve from this one.
+
+        Examples
+        --------
+        >>> import selfcon
+        >>> result = selfcon.solve("inputs/hemt_4K.toml")
+        >>> result.potential.shape == result.z.shape
+        True
+        """
         return self.profile["potential"]
 
     def save(self, path: str | os.PathLike, *, force: bool = False) -> None:
