@@ -305,8 +305,8 @@ def cmd_check(args) -> int:
                 tail = [f"{100 * L.get('strain_xx', 0.0):+.3f}", f"{100 * L.get('strain_zz', 0.0):+.3f}",
                         "∞" if hc is None else f"{hc:.1f}",
                         "–" if not ratio else f"{ratio:.2f}" + (" beyond" if ratio > 1 else "")]
-            st.add_row(str(L["index"]), L["name"], f"{L.get('lattice_own_nm', float('nan')):.5f}",
-                       f"{L.get('lattice_inplane_nm', float('nan')):.5f}", *tail)
+            st.add_row(str(L["index"]), L["name"], f"{L.get('lattice_own_nm', float('nan')):.6f}",
+                       f"{L.get('lattice_inplane_nm', float('nan')):.6f}", *tail)
         console.print(st)
         console.print("ε_xx = (a_par − a)/a, ε_zz = −2 (C12/C11) ε_xx; h_c: Matthews–Blakeslee "
                       "critical thickness (h / h_c > 1: beyond it)")
