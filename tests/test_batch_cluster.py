@@ -227,11 +227,12 @@ def test_log_file_has_a_timestamped_line_per_job_event(tmp_path):
 
 
 class _Watch:
-    """Progress stand-in that looks at table.csv at every job event."""
+    """Progress stand-in that reads table.csv at every job event; from the second event on it
+    first waits for the file when ``wait`` (a table process was started by then)."""
     wants_lines = False
 
-    def __init__(self, out):
-        self.out = out
+    def __init__(self, out, wait=False):
+        self.out, self.wait = out, wait
         self.seen = []
 
     def start(self, total, counts):
@@ -239,6 +240,9 @@ class _Watch:
 
     def event(self, line, counts):
         p = self.out / "table.csv"
+        deadline = time.time() + (120 if self.wait and self.seen else 0)
+        while not p.is_file() and time.time() < deadline:
+            time.sleep(0.02)
         if p.is_file():
             with open(p, newline="") as fh:
                 self.seen.append(sum(r["status"] == "done" for r in csv.DictReader(fh)))
@@ -253,15 +257,17 @@ class _Watch:
 
 
 def test_tables_are_rewritten_at_the_interval_not_after_every_job(tmp_path):
-    study = make_study(tmp_path, [10.0 + i for i in range(6)])
+    titles = [f"job{i} sleep=0.05" for i in range(6)]
+    study = make_study(tmp_path, titles, path="title")
     watch = _Watch(tmp_path / "study")
-    run_study(study, workers=1, job_fn=SLEEPY, progress=watch)           # default: every 30 s, and at the end
-    assert watch.seen == [None] * 6
-    study2 = make_study(tmp_path, [10.0 + i for i in range(6)], name="again.toml")
-    watch = _Watch(tmp_path / "again")
+    run_study(study, workers=1, job_fn=SLEEPY, progress=watch, table_interval=3600)
+    assert watch.seen == [None] * 6                                     # only at the end
+    assert (tmp_path / "study" / "table.csv").is_file()
+    study2 = make_study(tmp_path, titles, path="title", name="again.toml")
+    watch = _Watch(tmp_path / "again", wait=True)
     run_study(study2, workers=1, job_fn=SLEEPY, progress=watch, table_interval=0)   # as often as it can
-    partial = [n for n in watch.seen if n is not None]
-    assert partial and all(0 <= n < 6 for n in partial)                  # tables during the run, behind it
+    during = [n for n in watch.seen if n is not None]
+    assert during and min(during) < 6                                    # tables during the run, behind it
 
 
 def test_local_pool_and_commands_work_without_dask(tmp_path):
@@ -290,3 +296,22 @@ def test_local_pool_and_commands_work_without_dask(tmp_path):
     assert codes == [0, 0, 2, 0] and loaded == []
     assert "install selfcon[cluster]" in r.stderr
     assert [s for _, s, _, _ in statuses(tmp_path / "study")] == ["done", "done"]
+
+
+def test_final_tables_of_a_large_study_come_from_a_table_process(tmp_path, monkeypatch):
+    # above TABLE_PROCESS_ROWS jobs the tables are written by a process of their own: same files
+    from selfcon.batch import runner
+    study = make_study(tmp_path, [10.0, 20.0, 30.0])
+    run_study(study, workers=1, job_fn=SLEEPY)
+    out = tmp_path / "study"
+    inproc = (out / "table.csv").read_bytes()
+    (out / "table.csv").unlink()
+    (out / "table.h5").unlink()
+    monkeypatch.setattr(runner, "TABLE_PROCESS_ROWS", 0)
+    from selfcon.batch import queue as q
+    con = q.connect(out)
+    try:
+        runner.final_tables(con, out)
+    finally:
+        con.close()
+    assert (out / "table.csv").read_bytes() == inproc and (out / "table.h5").is_file()

@@ -2,7 +2,7 @@
 
     python tools/bench.py [NAMES...] [--json PATH] [--strict]
 
-NAMES (default: all but compare): floor scaling mesh iterations startup batch compare
+NAMES (default: all but compare): floor scaling mesh iterations startup batch coordinator compare
 
   floor       warm solve time of each example deck (hemt_4K, hemt_300K and the strained
               pHEMT phemt_double_delta) / kernel floor, where the floor is
@@ -20,6 +20,10 @@ NAMES (default: all but compare): floor scaling mesh iterations startup batch co
   startup     new-process wall time of `import selfcon` and of `selfcon run` with the numba
               cache warm and cold; targets 0.5 s and 1.5 s (warm).
   batch       runs tools/bench_batch.py if it exists.
+  coordinator runs tools/bench_coordinator.py: no-op jobs through the batch coordinator, local
+              pool (2 workers) at 1e3, 1e4, 1e5 jobs and a Dask LocalCluster of 8 at 1e3, 1e4;
+              targets >= 1000 and >= 200 jobs/s, per-job cost flat (1e5 / 1e3 <= 1.5);
+              peak coordinator memory; memory of a Dask backlog of 4000 tasks.
   compare     (by name only) warm solve times of this checkout and of --base (default
               main, checked out into a temporary git worktree) side by side: hemt_4K,
               hemt_300K and a three-well deck, alternating fresh processes; medians and
@@ -369,6 +373,36 @@ def bench_batch(out_dir):
                     met=v.get("met"))
 
 
+def bench_coordinator(out_dir, quick=False):
+    script = ROOT / "tools" / "bench_coordinator.py"
+    out = Path(out_dir)
+    sizes, dask_sizes = ("1000,5000", "1000") if quick else ("1000,10000,100000", "1000,10000")
+    p = subprocess.run(["nice", PY, str(script), "--sizes", sizes, "--dask-sizes", dask_sizes, "--out", str(out)],
+                       capture_output=True, text=True, cwd=ROOT)
+    check(p.returncode == 0, f"coordinator: tools/bench_coordinator.py exit {p.returncode}: {p.stderr[-300:]}")
+    if p.returncode != 0:
+        return
+    data = json.loads((out / "coordinator.json").read_text())
+    for c in data["cases"]:
+        case = f"{c['executor']} {c['workers']} workers, {c['jobs']} jobs"
+        check(c["done"] == c["jobs"] and c["files"] == c["jobs"],
+              f"coordinator: {case}: {c['done']} done, {c['files']} files")
+        row("coordinator", case, "jobs/s (steady)", c["rate_jobs_per_s"], "1/s",
+            target=f">= {c['target_jobs_per_s']:.0f}", met=c["target_met"])
+        row("coordinator", case, "run per job", c["run_us_per_job"], "us")
+        row("coordinator", case, "setup per job (expand + queue)", c["setup_us_per_job"], "us")
+        row("coordinator", case, "peak memory", c["peak_rss_MB"], "MB")
+    for ex, sc in data["scaling"].items():
+        row("coordinator", f"{ex}, {sc['from_jobs']} -> {sc['to_jobs']} jobs", "steady cost per job ratio",
+            sc["steady_cost_ratio"], "x", target="<= 1.5", met=sc["steady_cost_ratio"] <= 1.5)
+        row("coordinator", f"{ex}, {sc['from_jobs']} -> {sc['to_jobs']} jobs", "whole-run cost per job ratio",
+            sc["run_cost_ratio"], "x", note="start-up amortized at the larger size")
+    b = data.get("backlog_memory")
+    if b:
+        row("coordinator", f"Dask backlog of {b['tasks']} tasks", "memory at the coordinator / scheduler",
+            b["coordinator_MB"], "MB", note=f"scheduler {b['scheduler_MB']:.1f} MB")
+
+
 # --------------------------------------------------------------------------- compare
 
 #: a third case for `compare`: three coupled GaAs wells between Al0.3GaAs barriers, donor
@@ -519,9 +553,9 @@ def bench_compare(base="main", rounds=7, repeat=15):
 
 # --------------------------------------------------------------------------- main
 
-BENCHES = ("floor", "scaling", "mesh", "iterations", "startup", "batch", "compare")
+BENCHES = ("floor", "scaling", "mesh", "iterations", "startup", "batch", "coordinator", "compare")
 #: run when no name is given (compare needs a base commit and a few minutes: by name only)
-DEFAULT_BENCHES = ("floor", "scaling", "mesh", "iterations", "startup", "batch")
+DEFAULT_BENCHES = ("floor", "scaling", "mesh", "iterations", "startup", "batch", "coordinator")
 
 
 def machine():
@@ -590,6 +624,8 @@ def main(argv=None):
             bench_startup()
         elif n == "batch":
             bench_batch(Path(a.json).parent)
+        elif n == "coordinator":
+            bench_coordinator(Path(a.json).parent, a.quick)
         elif n == "compare":
             bench_compare(a.base, a.rounds)
         print(f"[{n}: {time.perf_counter() - t:.1f} s]", file=sys.stderr)

@@ -191,6 +191,7 @@ class Coordinator:
         self.warm_started = set()
         self._potentials = collections.OrderedDict()   # small cache: job id -> (z, phi)
         self._last_table = time.monotonic()
+        self._table_proc = None       # the process writing the tables now, if any
 
     # -- bits -----------------------------------------------------------------
     def _potential(self, con, job_id):
@@ -395,16 +396,26 @@ class Coordinator:
             self.warm_started.add(row["id"])
         return (row["id"], row["deck_text"], initial)
 
-    def _tables(self, con):
-        """table.csv and table.h5, at most every ``table_interval`` seconds during the run."""
-        if self.fatal is None and time.monotonic() - self._last_table >= self.table_interval:
-            try:
-                write_tables(con, self.out_dir)
-            except (SelfconEnvironmentError, OSError) as exc:
-                self.fatal = (exc if isinstance(exc, SelfconEnvironmentError) else
-                              SelfconEnvironmentError.from_os_error(exc, "cannot write", self.out_dir / "table.csv"))
+    def _tables(self, con, wait=False):
+        """table.csv and table.h5, at most every ``table_interval`` seconds during the run, each
+        time by a process of its own (reading the queue through a read-only connection): the
+        tables of 1e5 jobs take seconds to write, and the coordinator must not stop for them.
+        ``wait``: only wait for a table process still running (the run is ending)."""
+        if self._table_proc is not None:
+            if self._table_proc.is_alive() and not wait:
+                return
+            kind, message = _end_table_process(self._table_proc)
+            self._table_proc = None
+            if kind == "environment" and self.fatal is None:
+                self.fatal = SelfconEnvironmentError(message)
                 self.progress.note(f"stopping: {self.fatal}")
-            self._last_table = time.monotonic()
+                log.error("stopping: %s", self.fatal)
+            elif kind == "bug":
+                log.error("table process: %s", message)
+        if wait or self.fatal is not None or time.monotonic() - self._last_table < self.table_interval:
+            return
+        self._table_proc = _start_table_process(self.out_dir)
+        self._last_table = time.monotonic()
 
     # -- main loop ------------------------------------------------------------
     def run(self, con, *, continuation=False, along=None):
@@ -438,6 +449,7 @@ class Coordinator:
                 ex.shutdown(cancel=sig.abandon)
                 self._drain_writes(con, timeout=None)
                 self.writer.shutdown(wait=True)
+                self._tables(con, wait=True)
                 self.progress.stop()
             self.interrupted = sig.stopping
         return q.counts(con)
@@ -479,6 +491,65 @@ class Coordinator:
             else:
                 return          # nothing runs, nothing is being written, nothing more to send
             self._tables(con)
+
+
+#: above this many jobs the final tables too are written by a process of their own (their
+#: memory, some 2 kB per job, stays out of the coordinator)
+TABLE_PROCESS_ROWS = 20000
+
+
+def _table_process(out_dir, msg):
+    """A table process (see Coordinator._tables): write the tables; on failure send
+    ("environment", line) for a failing disk or queue, ("bug", text) otherwise."""
+    try:
+        con = q.connect(out_dir, readonly=True)
+        try:
+            write_tables(con, out_dir)
+        finally:
+            con.close()
+    except (SelfconEnvironmentError, OSError, sqlite3.DatabaseError) as exc:
+        if isinstance(exc, OSError):
+            exc = SelfconEnvironmentError.from_os_error(exc, "cannot write the tables in", out_dir)
+        msg.send(("environment", str(exc)))
+    except Exception as exc:
+        msg.send(("bug", f"{type(exc).__name__}: {exc}"))
+    finally:
+        msg.close()
+
+
+def _start_table_process(out_dir):
+    import multiprocessing
+    ctx = multiprocessing.get_context("forkserver" if "forkserver" in multiprocessing.get_all_start_methods()
+                                      else "spawn")
+    msg, child = ctx.Pipe(duplex=False)
+    proc = ctx.Process(target=_table_process, args=(str(out_dir), child), name="selfcon-tables", daemon=True)
+    proc.start()
+    child.close()
+    proc.selfcon_msg = msg
+    return proc
+
+
+def _end_table_process(proc):
+    """Wait for a table process -> (None, None) if it wrote the tables, else (kind, message)."""
+    proc.join()
+    try:
+        kind, message = proc.selfcon_msg.recv()
+    except EOFError:
+        kind, message = (None, None) if proc.exitcode == 0 else ("bug", f"exit code {proc.exitcode}")
+    proc.selfcon_msg.close()
+    return kind, message
+
+
+def final_tables(con, out_dir):
+    """The tables at the end of a run: in this process for a small study, else by a table
+    process (whose failure to write is a SelfconEnvironmentError; a bug there is redone here)."""
+    if con.execute("SELECT COUNT(*) FROM jobs").fetchone()[0] > TABLE_PROCESS_ROWS:
+        kind, message = _end_table_process(_start_table_process(out_dir))
+        if kind is None:
+            return
+        if kind == "environment":
+            raise SelfconEnvironmentError(message)
+    write_tables(con, out_dir)
 
 
 def _fmt_varied(text):
@@ -664,7 +735,7 @@ def _run_locked(study, study_file, jobs, out_dir, *, workers, retries, quiet, jo
             counts = coord.run(con, continuation=study.continuation, along=study.along)
         finally:
             try:
-                write_tables(con, out_dir)
+                final_tables(con, out_dir)
             except (SelfconEnvironmentError, OSError):
                 if coord.fatal is None:       # the first failure is the one to report
                     raise
