@@ -10,11 +10,11 @@ import numpy as np
 import pytest
 
 from selfcon.output import channels as chx
-from selfcon.solver.schrodinger import dual_widths
+from selfcon.model.mesh import half_widths
 
 H = 0.5
 Z = np.arange(0.0, 100.0 + H / 2, H)
-W = dual_widths(np.diff(Z))
+W = half_widths(Z)[3]
 KT = 0.01          # eV
 
 

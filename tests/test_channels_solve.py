@@ -14,7 +14,7 @@ import selfcon
 from selfcon.constants import HBAR2_2M0
 from selfcon.input.deck import dumps_toml
 from selfcon.model.structure import build_structure
-from selfcon.solver.schrodinger import dual_widths
+from selfcon.model.mesh import half_widths
 
 DESIGN = Path(__file__).resolve().parents[1] / "inputs" / "design"
 
@@ -68,7 +68,7 @@ def test_two_wells_sheet_densities_add_up(two_wells):
     # channel = integral of n dz (of the profile the loop converged on), to 1e-6
     r, _ = two_wells
     z = r.z
-    w = dual_widths(np.diff(z))
+    w = half_widths(z)[3]
     n = r.profile["electron_density"]
     total = float(np.dot(w, n)) / 1e7
     in_channel = np.zeros(z.size, bool)

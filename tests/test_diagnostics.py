@@ -187,7 +187,8 @@ def test_design_warnings_never_raise(monkeypatch):
 
 def test_node_weights_integrate_exactly():
     z = np.array([0.0, 1.0, 3.0, 6.0])
-    assert dg.node_weights(z).sum() == pytest.approx(6.0)      # analytic: total length
+    from selfcon.model.mesh import half_widths             # the one dual-cell rule
+    assert half_widths(z)[3].sum() == pytest.approx(6.0)       # analytic: total length
 
 
 def test_uncounted_valley_check_is_silent_on_the_cold_example(hemt4_result):

@@ -9,9 +9,10 @@ from scipy.optimize import brentq
 from scipy.special import ai_zeros
 
 from selfcon.constants import HBAR2_2M0
+from selfcon.model.mesh import half_widths
 from selfcon.solver.schrodinger import (EigenWorkspace, bound_states, bound_states_cells,
-                             dual_widths, in_plane_mass, in_plane_states, solve_region,
-                             thermal_in_plane_energy)
+                                        in_plane_mass, in_plane_states, solve_region,
+                                        thermal_in_plane_energy)
 
 # GaAs-like well / Al0.3Ga0.7As-like barrier used throughout (values for the test
 # only; the physics checks below hold for any masses and depth).
@@ -115,7 +116,7 @@ def assert_second_order(hs, errs, label):
 
 
 def w_of(z):
-    return dual_widths(np.diff(z))
+    return half_widths(z)[3]
 
 
 # ----------------------------------------------------------------------------- infinite well

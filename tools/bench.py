@@ -139,9 +139,8 @@ def bench_floor():
             for r_idx in np.unique(bs.region):
                 i0, i1 = st.regions[int(r_idx)]
                 sl = slice(i0, i1 + 1)
-                w = st.mesh.w[sl].copy()
-                w[0], w[-1] = st.mesh.wr[i0], st.mesh.wl[i1]
-                args = (st.mesh.h[i0:i1], w, sign * edge[sl], 1.0 / st.cell[mass_key][i0:i1],
+                part = st.mesh.part(i0, i1)
+                args = (part.h, part.w, sign * edge[sl], 1.0 / st.cell[mass_key][i0:i1],
                         int(np.sum(bs.region == r_idx)))
                 ews = quantum.EigenWorkspace(i1 - i0 + 1)   # not `ws`: the loop workspace is used below
                 quantum.solve_region(*args, workspace=ews)

@@ -30,6 +30,7 @@ def structure(n_nodes):
     """A 200 nm structure with a field, three wells of different widths (a double well with
     a thin barrier among them) and GaAs/AlGaAs-like masses; interfaces on nodes, mesh
     nonuniform (graded, finer in the wells)."""
+    from selfcon.model.mesh import half_widths
     from selfcon.solver.kernels.schrodinger import dual_average
     # layers: (thickness nm, band edge eV at the layer start, mass m0)
     layers = [(40.0, 0.30, 0.092), (8.0, 0.0, 0.067), (2.0, 0.30, 0.092), (8.0, 0.0, 0.067),
@@ -51,9 +52,7 @@ def structure(n_nodes):
     layer = np.clip(np.searchsorted(edges, zc) - 1, 0, len(layers) - 1)
     v_cell = np.array([layers[i][1] for i in layer]) + field * (total - zc)
     m_cell = np.array([layers[i][2] for i in layer])
-    w = np.zeros(z.size)
-    w[:-1] += 0.5 * h
-    w[1:] += 0.5 * h
+    w = half_widths(z)[3]
     v_node = np.empty(z.size)
     dual_average(h, v_cell, v_node)
     return h, w, v_node, 1.0 / m_cell

@@ -42,6 +42,7 @@ import numpy as np
 
 from selfcon.constants import CM2_PER_NM2, EPS0, NM_PER_CM, Q, Q_EPS0
 from selfcon.errors import DeckError, SelfconInputError
+from selfcon.model.mesh import Mesh
 
 if TYPE_CHECKING:
     from numpy.typing import ArrayLike
@@ -140,19 +141,11 @@ def bias_points(start: float, stop: float, step: float) -> np.ndarray:
     return np.round(pts, 12)
 
 
-def node_weights(z: np.ndarray) -> np.ndarray:
-    h = np.diff(z)
-    w = np.zeros(z.size)
-    w[:-1] += 0.5 * h
-    w[1:] += 0.5 * h
-    return w
-
-
 def semiconductor_charge(result) -> float:
     """q * integral of (p - n + Nd+ - Na-) dz in C/cm^2."""
     p = result.profile
     rho = p["hole_density"] - p["electron_density"] + p["ionized_donors"] - p["ionized_acceptors"]
-    return float(Q * np.sum(rho * node_weights(result.z)) / NM_PER_CM)
+    return float(Q * np.sum(rho * Mesh.from_nodes(result.z).w) / NM_PER_CM)
 
 
 def _schottky_check(deck):
@@ -506,16 +499,15 @@ DEFINITIONS = {
 def save_sweep(sw: BiasSweep, path, *, force: bool = True) -> None:
     """Write the sweep as one HDF5 file, atomically (temp file, fsync, os.replace)."""
     import h5py
-    from datetime import datetime, timezone
     from selfcon.version import __version__
-    from selfcon.output.result import atomic_write
+    from selfcon.output.result import atomic_write, utc_now
 
     def fill(tmp):
         with h5py.File(tmp, "w") as f:
             f.attrs["schema"] = SCHEMA
             f.attrs["schema_version"] = SCHEMA_VERSION
             f.attrs["selfcon_version"] = __version__
-            f.attrs["created"] = datetime.now(timezone.utc).strftime("%Y-%m-%dT%H:%M:%SZ")
+            f.attrs["created"] = utc_now()
             f.attrs["title"] = sw.title
             f.attrs["temperature_K"] = sw.temperature
             f.attrs["deck"] = sw.deck_text

@@ -27,11 +27,20 @@ GROWTH = 1.2
 
 @dataclass(frozen=True)
 class Mesh:
+    """Nodes ``z`` (N,) and the finite-volume widths of :func:`half_widths`: ``h`` (N-1,)
+    cells, ``wl``, ``wr``, ``w`` (N,) half and dual cells (nm)."""
+
     z: np.ndarray
     h: np.ndarray
     wl: np.ndarray
     wr: np.ndarray
     w: np.ndarray
+
+    @classmethod
+    def from_nodes(cls, z) -> "Mesh":
+        """The mesh of node positions ``z`` (strictly increasing, nm)."""
+        z = np.asarray(z, dtype=float)
+        return cls(z, *half_widths(z))
 
     @property
     def n(self) -> int:
@@ -42,9 +51,18 @@ class Mesh:
         i = int(np.argmin(np.abs(self.z - z_nm)))
         return i
 
+    def part(self, i0: int, i1: int) -> "Mesh":
+        """The mesh of nodes i0..i1 on their own (a quantum region: psi = 0 beyond its end
+        nodes, so each end node has one half cell)."""
+        return Mesh.from_nodes(self.z[i0:i1 + 1])
+
 
 def half_widths(z: np.ndarray):
-    """(h, wl, wr, w) for node positions z."""
+    """(h, wl, wr, w) for node positions z: the one definition of the finite-volume widths.
+
+    ``h[c] = z[c+1] - z[c]`` (cells); ``wl[i] = h[i-1]/2`` and ``wr[i] = h[i]/2`` (half
+    cells, 0 beyond the two ends); ``w = wl + wr`` (dual cells), so that ``sum(f * w)`` is
+    the integral of a node density and ``sum(w) = z[-1] - z[0]``."""
     z = np.asarray(z, dtype=float)
     h = np.diff(z)
     wl = np.zeros_like(z)

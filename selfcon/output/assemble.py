@@ -9,7 +9,6 @@ from __future__ import annotations
 
 import hashlib
 from functools import lru_cache
-from datetime import datetime, timezone
 from importlib import metadata
 
 import numpy as np
@@ -18,8 +17,9 @@ from selfcon.constants import CM2_PER_NM2, CM3_PER_NM3, NM_PER_CM
 from selfcon.output import channels as chx
 from selfcon.output.channels import OCCUPIED_CM2, OCCUPIED_FRACTION  # noqa: F401  (the one rule)
 from selfcon.output.diagnostics import design_warnings
-from selfcon.output.result import Result, Subbands
+from selfcon.output.result import Result, Subbands, utc_now
 from selfcon.output.schema import BANDS
+from selfcon.solver.poisson import electric_field
 
 
 def right_cell_values(cell_values: np.ndarray) -> np.ndarray:
@@ -50,15 +50,6 @@ def valley_density(st, phi, edge_cell, nc_cell) -> np.ndarray:
     left[1:] = nc_cell * fermi_half((phi[1:] - edge_cell) / st.kT)
     right[:-1] = nc_cell * fermi_half((phi[:-1] - edge_cell) / st.kT)
     return (m.wl * left + m.wr * right) / m.w
-
-
-def electric_field(z: np.ndarray, phi: np.ndarray) -> np.ndarray:
-    """-dphi/dz at the nodes in V/cm (second-order one-sided at the ends)."""
-    if z.size < 3:
-        g = np.gradient(phi, z)
-    else:
-        g = np.gradient(phi, z, edge_order=2)
-    return -g * NM_PER_CM
 
 
 @lru_cache(maxsize=1)
@@ -150,7 +141,7 @@ def build_result(deck, st, loop, *, wall_time: float) -> Result:
         "strain_xx": right_cell_values(st.cell["eps_xx"]),
         "strain_zz": right_cell_values(st.cell["eps_zz"]),
         "potential": phi.copy(),
-        "electric_field": electric_field(st.z, phi),
+        "electric_field": electric_field(st.z, phi),     # the one field rule (selfcon.solver.poisson)
         "electron_density": n * CM3_PER_NM3,
         "hole_density": p * CM3_PER_NM3,
         "ionized_donors": ndp * CM3_PER_NM3,
@@ -251,7 +242,7 @@ def build_result(deck, st, loop, *, wall_time: float) -> Result:
     provenance = dict(_versions())
     provenance["deck_hash"] = hashlib.sha256(text.encode()).hexdigest()
     provenance["wall_time_s"] = float(wall_time)
-    provenance["created"] = datetime.now(timezone.utc).strftime("%Y-%m-%dT%H:%M:%SZ")
+    provenance["created"] = utc_now()
 
     result = Result(
         title=deck.title, temperature=float(deck.temperature), converged=bool(loop.converged),

@@ -97,7 +97,7 @@ __all__ = ["design_warnings", "register_check", "unregister_check", "deck_of",
            "check_parallel_conduction", "check_carriers_outside", "channel_subbands",
            "check_dx_centres", "check_region_cut", "check_buffer_carriers",
            "check_uncounted_valleys", "doping_layers", "doping_layer_electrons",
-           "node_weights", "CHECKS", "check_critical_thickness", "check_band_alignment",
+           "CHECKS", "check_critical_thickness", "check_band_alignment",
            "interface_alignments"]
 
 #: name -> check, in the order warnings are listed (filled by register_check)
@@ -137,16 +137,6 @@ def deck_of(result, deck=None):
 
 
 # --------------------------------------------------------------------------- helpers
-
-def node_weights(z: np.ndarray) -> np.ndarray:
-    """Dual-cell widths w (nm) of the nodes: sum(density * w) is the sheet density."""
-    z = np.asarray(z, dtype=float)
-    h = np.diff(z)
-    w = np.zeros(z.size)
-    w[:-1] += 0.5 * h
-    w[1:] += 0.5 * h
-    return w
-
 
 def _layer_rows(result) -> list[dict]:
     return list(result.layers or [])
@@ -421,7 +411,7 @@ def check_buffer_carriers(result, structure, deck=None) -> list[str]:
     last = int(np.asarray(result.layer_index)[-1])
     if ch is not None and last == ch:
         return []
-    w = structure.mesh.w if structure is not None else node_weights(z)
+    w = structure.mesh.w
     sel = z >= z[-1] - BUFFER_DEPTH_NM
     n = float(np.sum(np.asarray(result.profile["electron_density"])[sel] * w[sel])) / NM_PER_CM
     p = float(np.sum(np.asarray(result.profile["hole_density"])[sel] * w[sel])) / NM_PER_CM

@@ -281,8 +281,9 @@ def _dataset(group, name, data, units, description):
     return ds
 
 
-def _utc_now() -> str:
-    """Now as ISO 8601 UTC, seconds resolution: 2024-05-01T12:00:00Z."""
+def utc_now() -> str:
+    """Now as ISO 8601 UTC, seconds resolution: 2024-05-01T12:00:00Z (the ``created``
+    stamp of every file selfcon writes)."""
     now = _dt.datetime.now(_dt.timezone.utc).replace(microsecond=0)
     return now.isoformat().replace("+00:00", "Z")
 
@@ -290,7 +291,7 @@ def _utc_now() -> str:
 def _write_root(f, result: Result) -> None:
     from selfcon.version import __version__
     prov = dict(result.provenance or {})
-    created = prov.get("created") or _utc_now()
+    created = prov.get("created") or utc_now()
     a = f.attrs
     a["schema"] = SCHEMA
     a["schema_version"] = np.int64(SCHEMA_VERSION)

@@ -80,7 +80,6 @@ EXTRA_PROFILE_FIELDS = {
     "strain_xx": ("1", "in-plane strain eps_xx = (a_par - a)/a of the cell to the right of each "
                        "node (0 in an unstrained stack)"),
     "strain_zz": ("1", "strain along the growth axis, eps_zz = -2 (C12/C11) eps_xx"),
-    "charge_density": ("cm-3", "net charge density p - n + Nd+ - Na- in units of q"),
     "x_electron_density": ("cm-3", "X-valley electrons (classical; part of electron_density)"),
     "l_electron_density": ("cm-3", "L-valley electrons (classical; part of electron_density)"),
 }

@@ -12,6 +12,7 @@ from dataclasses import dataclass, field, replace
 import numpy as np
 
 from selfcon.constants import CM2_PER_NM2, KB_EV, Q_EPS0, NM_PER_CM
+from selfcon.model.mesh import half_widths
 from selfcon.solver.kernels.bundles import Boundaries, Grid, Material, NewtonOptions, Quantum
 
 DIRICHLET = 0
@@ -106,13 +107,11 @@ class PoissonProblem:
                 set_(p, _f(getattr(self, p)).reshape(N, -1))
                 set_(e, _f(getattr(self, e)))
                 set_(d, _f(getattr(self, d)))
-        h = np.diff(z)
-        wl = np.concatenate([[0.0], h / 2])
-        wr = np.concatenate([h / 2, [0.0]])
+        h, wl, wr, w = half_widths(z)
         set_("h", h)
         set_("wl", wl)
         set_("wr", wr)
-        set_("w", wl + wr)
+        set_("w", w)
         set_("top", (int(self.top[0]), float(self.top[1])))
         set_("bottom", (int(self.bottom[0]), float(self.bottom[1])))
 
@@ -271,19 +270,19 @@ def cell_neutral_potential(problem, c):
 
 
 def electric_field(z, phi):
-    """E = -dphi/dz at nodes in V/cm: second-order three-point differences on the
-    nonuniform mesh inside, one-sided at the two ends."""
+    """E = -dphi/dz at the nodes in V/cm (z in nm, phi in V), the field a result reports.
+
+    Second-order differences on the nonuniform mesh: inside, the three-point formula
+    (hr s_left + hl s_right)/(hl + hr) of the two neighbouring cell slopes; at the two
+    ends the one-sided three-point formula (numpy.gradient, edge_order=2); exact for a
+    quadratic potential, i.e. a uniform charge (two nodes: the one slope)."""
     z = _f(z)
     phi = _f(phi)
-    d = np.empty_like(phi)
-    h = np.diff(z)
-    s = np.diff(phi) / h
-    d[0] = s[0]
-    d[-1] = s[-1]
-    if len(z) > 2:
-        hl, hr = h[:-1], h[1:]
-        d[1:-1] = (hr * s[:-1] + hl * s[1:]) / (hl + hr)
-    return -d * NM_PER_CM
+    if z.size < 3:
+        g = np.gradient(phi, z)
+    else:
+        g = np.gradient(phi, z, edge_order=2)
+    return -g * NM_PER_CM
 
 
 def boundary_flux(problem, phi, rho=None):

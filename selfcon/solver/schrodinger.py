@@ -17,24 +17,16 @@ Units: nm, eV, masses in m0.
 import numpy as np
 
 from selfcon.constants import HBAR2_2M0  # noqa: F401  (documented unit of the operator)
+from selfcon.model.mesh import half_widths
 
 __all__ = ["EigenWorkspace", "solve_region", "bound_states", "bound_states_cells",
-           "in_plane_mass", "in_plane_states", "dual_widths"]
+           "in_plane_mass", "in_plane_states"]
 
 
 def _kernels():
     # imported lazily so that `import selfcon.solver.schrodinger` compiles nothing
     from selfcon.solver.kernels import schrodinger
     return schrodinger
-
-
-def dual_widths(h):
-    """Dual-cell widths w_i = (h_{i-1} + h_i)/2 (half cells at the two ends)."""
-    h = np.asarray(h, dtype=float)
-    w = np.zeros(h.size + 1)
-    w[:-1] += 0.5 * h
-    w[1:] += 0.5 * h
-    return w
 
 
 class EigenWorkspace:
@@ -170,7 +162,7 @@ def bound_states(z_nm, band_edge_eV, mass_m0, n_states):
     k = _check_states(n_states)
     v = _check_array("band_edge_eV", band_edge_eV, (n,), f"per node ({n},)")
     m_cell = _mass_to_cells(mass_m0, n)
-    return solve_region(h, dual_widths(h), v, 1.0 / m_cell, k)
+    return solve_region(h, half_widths(z)[3], v, 1.0 / m_cell, k)
 
 
 def bound_states_cells(z_nm, band_edge_cell_eV, mass_cell_m0, n_states):
@@ -189,7 +181,7 @@ def bound_states_cells(z_nm, band_edge_cell_eV, mass_cell_m0, n_states):
         raise ValueError(f"mass_cell_m0 must be positive (min {m_cell.min()!r})")
     v_node = np.empty(n)
     _kernels().dual_average(h, v_cell, v_node)
-    return solve_region(h, dual_widths(h), v_node, 1.0 / m_cell, k)
+    return solve_region(h, half_widths(z)[3], v_node, 1.0 / m_cell, k)
 
 
 def in_plane_mass(psi, w, mass_node):

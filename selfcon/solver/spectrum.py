@@ -24,6 +24,7 @@ from dataclasses import dataclass
 import numpy as np
 
 from selfcon.constants import DOS2D_PER_M0
+from selfcon.solver.steps import region_states  # noqa: F401  (the loop's region solve, re-exported)
 
 __all__ = ["BandSpectrum", "full_spectrum", "region_states", "region_edges", "bound_mask"]
 
@@ -66,33 +67,6 @@ def bound_mask(st, phi, band: str, energy, region) -> np.ndarray:
         top, bottom = region_edges(st, phi, band, int(r))
         out[k] = sign * e < sign * top and sign * e < sign * bottom
     return out
-
-
-def region_states(st, phi, band: str, r_idx: int, n_states: int, workspace=None):
-    """Lowest ``n_states`` states of ``band`` in quantum region ``r_idx`` at potential ``phi``.
-
-    The same discretisation as the loop (selfcon.solver.schrodinger.solve_region on the
-    region's nodes, psi = 0 at both end nodes).  Returns (energy (k,) eV electron scale,
-    psi (N, k) on the full mesh, in-plane mass (k,) m0), lowest kinetic energy first.
-    """
-    from selfcon.solver import schrodinger as quantum
-    edge_key, mass_key, par_key, sign, _ = _specs()[band]
-    i0, i1 = st.regions[r_idx]
-    n = st.n_nodes
-    if i1 - i0 < 3:
-        return np.empty(0), np.zeros((n, 0)), np.empty(0)
-    sl = slice(i0, i1 + 1)
-    edge_node = st.node_average(st.cell[edge_key]) - phi
-    w = st.mesh.w[sl].copy()
-    w[0] = st.mesh.wr[i0]
-    w[-1] = st.mesh.wl[i1]
-    e, p = quantum.solve_region(st.mesh.h[i0:i1], w, sign * edge_node[sl],
-                                1.0 / st.cell[mass_key][i0:i1], n_states, workspace=workspace)
-    full = np.zeros((n, e.size))
-    full[sl, :] = p
-    e, full, m_par = quantum.in_plane_states(e, full, st.mesh.w,
-                                             1.0 / st.node_average(st.cell[par_key]), st.kT)
-    return sign * e, full, m_par
 
 
 def full_spectrum(st, phi, loop_states: dict, n_states: int | None = None) -> dict[str, BandSpectrum]:

@@ -300,17 +300,16 @@ def interpolate_guess(st: Structure, guess):
 
 def solve_states(ws: Workspace, phi) -> dict:
     """Schrödinger in every quantum region for every quantum band at potential ``phi``:
-    band name -> :class:`BandStates`."""
+    band name -> :class:`BandStates`.  A (band, region) pair whose classical charge is
+    negligible stays classical; the number of states grows while the top one holds charge."""
     from selfcon.solver import schrodinger
     st = ws.structure
     out = {}
-    n = st.n_nodes
-    for band, (edge_key, mass_key, par_key, sign, gval) in BAND_SPECS.items():
+    for band, (_, _, _, sign, gval) in BAND_SPECS.items():
         if band not in st.carriers or not st.regions:
             continue
-        edge_node = st.node_average(st.cell[edge_key]) - phi      # band edge with electrostatics
         energies, psis, mpar, regs = [], [], [], []
-        qnodes = np.zeros(n, dtype=bool)
+        qnodes = np.zeros(st.n_nodes, dtype=bool)
         for r_idx, (i0, i1) in enumerate(st.regions):
             if i1 - i0 < 3:
                 continue
@@ -320,34 +319,22 @@ def solve_states(ws: Workspace, phi) -> dict:
             if ws.negligible[key]:
                 continue           # this carrier is absent here: leave it classical (negligible)
             qnodes[i0:i1 + 1] = True
-            sl = slice(i0, i1 + 1)
-            h = st.mesh.h[i0:i1]
-            w = st.mesh.w[sl].copy()
-            w[0] = st.mesh.wr[i0]
-            w[-1] = st.mesh.wl[i1]
-            v = sign * edge_node[sl]                  # holes: kinetic energy up = -Ev
-            inv_m = 1.0 / st.cell[mass_key][i0:i1]
             eig = ws.eigen.get(key)
             if eig is None:
                 eig = ws.eigen[key] = schrodinger.EigenWorkspace(i1 - i0 + 1)
             k = ws.n_states[band]
             while True:
-                e, p = schrodinger.solve_region(h, w, v, inv_m, k, workspace=eig)
-                occ = subband_density(sign * e, np.ones(e.size), st.temperature, sign)
+                e, psi = region_eigenstates(st, phi, band, r_idx, k, workspace=eig)
+                occ = subband_density(e, np.ones(e.size), st.temperature, sign)
                 if (e.size < k or k >= MAX_STATES or occ.sum() <= 0
                         or occ[-1] < TOP_STATE_FRACTION * occ.sum()):
                     break
                 k = min(2 * k, MAX_STATES)
                 ws.n_states[band] = k
-            full = np.zeros((n, e.size))
-            full[sl, :] = p
-            m_par_node = st.node_average(st.cell[par_key])
-            # in-plane motion: near-degenerate states of different materials separate into
-            # the states of each (schrodinger.in_plane_states); EF = 0 on the kinetic scale too
-            e, full, m_in = schrodinger.in_plane_states(e, full, st.mesh.w, 1.0 / m_par_node, st.kT)
-            energies.append(sign * e)
-            psis.append(full)
-            mpar.append(m_in)
+            e, psi, m_par = in_plane_motion(st, band, e, psi)
+            energies.append(e)
+            psis.append(psi)
+            mpar.append(m_par)
             regs.append(np.full(e.size, r_idx))
         if not energies:
             continue
@@ -360,6 +347,53 @@ def solve_states(ws: Workspace, phi) -> dict:
                                dos=deg * DOS2D_PER_M0 * m_par, region=np.concatenate(regs)[order],
                                degeneracy=deg, sign=sign, quantum_nodes=qnodes)
     return out
+
+
+def region_eigenstates(st: Structure, phi, band: str, r_idx: int, n_states: int, workspace=None):
+    """Lowest ``n_states`` eigenstates of the z problem of ``band`` in quantum region
+    ``r_idx`` at potential ``phi``.
+
+    BenDaniel–Duke on the region's nodes (selfcon.solver.schrodinger.solve_region) with
+    psi = 0 at both end nodes; the band edge with electrostatics is the dual-cell average
+    of the cells' edges minus phi.  Returns (energy (k,) eV on the electron scale, psi
+    (N, k) on the full mesh, zero outside the region), lowest kinetic energy first."""
+    from selfcon.solver import schrodinger
+    edge_key, mass_key, _, sign, _ = BAND_SPECS[band]
+    i0, i1 = st.regions[r_idx]
+    n = st.n_nodes
+    if i1 - i0 < 3:
+        return np.empty(0), np.zeros((n, 0))
+    sl = slice(i0, i1 + 1)
+    edge_node = st.node_average(st.cell[edge_key]) - phi      # band edge with electrostatics
+    part = st.mesh.part(i0, i1)
+    e, p = schrodinger.solve_region(part.h, part.w, sign * edge_node[sl],      # holes: kinetic up = -Ev
+                                    1.0 / st.cell[mass_key][i0:i1], n_states, workspace=workspace)
+    full = np.zeros((n, e.size))
+    full[sl, :] = p
+    return sign * e, full
+
+
+def in_plane_motion(st: Structure, band: str, energy, psi):
+    """The states of one region with their in-plane motion (selfcon.solver.schrodinger.
+    in_plane_states): near-degenerate states of different materials separate into the
+    states of each; returns (energy on the electron scale, psi, in-plane mass (k,) m0).
+    EF = 0 on the kinetic scale too."""
+    from selfcon.solver import schrodinger
+    par_key, sign = BAND_SPECS[band][2], BAND_SPECS[band][3]
+    m_par_node = st.node_average(st.cell[par_key])
+    e, psi, m_par = schrodinger.in_plane_states(sign * np.asarray(energy), psi, st.mesh.w,
+                                                1.0 / m_par_node, st.kT)
+    return sign * e, psi, m_par
+
+
+def region_states(st: Structure, phi, band: str, r_idx: int, n_states: int, workspace=None):
+    """The states the loop uses in one region: :func:`region_eigenstates` with
+    :func:`in_plane_motion`.  Returns (energy (k,) eV electron scale, psi (N, k), in-plane
+    mass (k,) m0), lowest kinetic energy first."""
+    e, psi = region_eigenstates(st, phi, band, r_idx, n_states, workspace)
+    if e.size == 0:
+        return e, psi, np.empty(0)
+    return in_plane_motion(st, band, e, psi)
 
 
 def classical_sheet(ws: Workspace, phi, band, i0, i1) -> float:
@@ -421,5 +455,6 @@ def gauss_residual(ws: Workspace, phi, states, rho=None) -> float:
 
 __all__ = ["BAND_SPECS", "VALLEYS", "BandStates", "Workspace", "boundary_conditions",
            "initial_guess", "start_levels", "linear_start", "interpolate_guess", "solve_states",
+           "region_states", "region_eigenstates", "in_plane_motion",
            "poisson_pass", "charge_residual", "densities", "mobile_sheets", "gauss_residual",
            "classical_problem", "valley_arrays", "with_states"]
