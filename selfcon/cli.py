@@ -15,7 +15,7 @@ saying what and where), 1 internal error (set SELFCON_DEBUG=1 for the traceback)
 A closed stdout (``selfcon show r.h5 | head``) ends the command quietly with 0.
 
 Other packages add subcommands through :data:`EXTRA_COMMANDS`: each module
-listed there, if it exists, has ``register(subparsers)`` adding parsers with
+listed there has ``register(subparsers)`` adding parsers with
 ``set_defaults(func=handler)``, ``handler(args) -> int``.
 """
 from __future__ import annotations
@@ -33,7 +33,7 @@ from selfcon.errors import (EXIT_ENVIRONMENT, EXIT_INPUT, EXIT_INTERNAL, EXIT_IN
                             EXIT_NOT_CONVERGED, EXIT_OK, SelfconEnvironmentError, ResultFileError,
                             SelfconInputError, os_reason)
 
-#: modules whose ``register(subparsers)`` adds subcommands, imported if they exist
+#: modules whose ``register(subparsers)`` adds subcommands
 EXTRA_COMMANDS = ("selfcon.batch.commands", "selfcon.design.commands")
 
 #: (code, meaning): the exit-code table of ``selfcon --help`` and README
@@ -84,58 +84,39 @@ def _require_file(path: Path, what: str):
 
 # --------------------------------------------------------------------------- progress
 
-class Progress:
-    """The ``progress(record)`` callback of selfcon.solve, shown on stderr.
+class SolveProgress:
+    """The ``progress(record)`` callback of ``selfcon run`` on the one progress display
+    (selfcon.output.progress): on a terminal a bar of the residual's log10 progress towards
+    the tolerance, else one line per iteration; nothing with ``--quiet``."""
 
-    mode "rich": a spinner and a bar of log10 progress towards the tolerance (terminals only);
-    "plain": one line per iteration (pipes, logs, CI); "off": nothing.
-    """
-
-    def __init__(self, mode: str, tolerance: float | None = None, max_iterations: int | None = None):
-        self.mode = mode
-        self.tolerance = tolerance
-        self.max_iterations = max_iterations
-        self._progress = None
-        self._task = None
+    def __init__(self, quiet: bool = False):
+        from selfcon.output.progress import ProgressDisplay, progress_mode
+        self.display = ProgressDisplay(progress_mode(quiet), label="solving", transient=True)
         self._first = None
 
     def __enter__(self):
-        if self.mode == "rich":
-            from rich.progress import BarColumn, Progress as RichProgress, SpinnerColumn, TextColumn
-            self._progress = RichProgress(SpinnerColumn(), TextColumn("solving"), BarColumn(),
-                                          TextColumn("{task.fields[text]}"), console=_console(stderr=True),
-                                          transient=True)
-            self._progress.__enter__()
-            self._task = self._progress.add_task("solve", total=1.0, text="initial guess")
+        self.display.start(1.0, "initial guess")
         return self
 
     def __exit__(self, *exc):
-        if self._progress is not None:
-            self._progress.__exit__(*exc)
+        self.display.stop()
         return False
 
     def __call__(self, record) -> None:
         """Show one iteration (a selfcon.solver.loop.IterationRecord)."""
-        iteration, residual = record.iteration, record.residual
-        limit = f"/{self.max_iterations}" if self.max_iterations else ""
-        text = f"iteration {iteration}{limit}  max |dphi| = {residual:.2e} V"
-        if self.mode == "plain":
-            print(text, file=sys.stderr, flush=True)
-        elif self.mode == "rich":
-            import math
-            done = 0.0
-            if self._first is None and residual > 0 and math.isfinite(residual):
-                self._first = residual
-            tol = self.tolerance
-            if self._first and tol and residual > 0 and math.isfinite(residual) and self._first > tol:
-                done = min(1.0, max(0.0, math.log(self._first / residual) / math.log(self._first / tol)))
-            self._progress.update(self._task, completed=done, text=text)
+        text = (f"iteration {record.iteration}/{record.max_iterations}  "
+                f"max |dphi| = {record.residual:.2e} V")
+        self.display.update(self.fraction(record), text, line=text)
 
-
-def _progress_mode(args) -> str:
-    if getattr(args, "quiet", False):
-        return "off"
-    return "rich" if sys.stderr.isatty() else "plain"
+    def fraction(self, record) -> float:
+        """log(first / residual) / log(first / tolerance), clipped to [0, 1]."""
+        import math
+        res, tol = record.residual, record.tolerance
+        if self._first is None and res > 0 and math.isfinite(res):
+            self._first = res
+        if self._first and tol and res > 0 and math.isfinite(res) and self._first > tol:
+            return min(1.0, max(0.0, math.log(self._first / res) / math.log(self._first / tol)))
+        return 0.0
 
 
 # --------------------------------------------------------------------------- commands
@@ -157,9 +138,7 @@ def cmd_run(args) -> int:
                    output(args.plot, "figure", "--plot") if args.plot else None],
                   inputs=[(deck_path, "the deck")], force=args.force, error=ResultFileError)
     deck = api.load_deck(deck_path, overrides=tuple(args.set or ()))
-    spec = getattr(deck, "solver", None)
-    with Progress(_progress_mode(args), tolerance=getattr(spec, "tolerance", None),
-                  max_iterations=getattr(spec, "max_iterations", None)) as progress:
+    with SolveProgress(quiet=args.quiet) as progress:
         result = api.solve(deck, progress=progress)
     result.save(out, force=args.force)
     if args.plot:
@@ -236,8 +215,8 @@ def check_figures(deck, structure) -> dict:
     for side in ("surface", "substrate"):
         c = getattr(structure, side)
         contacts[side] = {"contact": c.kind, "barrier_eV": c.barrier, "bias_V": c.bias}
-    from selfcon.output.report import _clean
-    return _clean({"title": deck.title, "temperature_K": deck.temperature, "file": deck.path,
+    from selfcon.output.report import jsonable
+    return jsonable({"title": deck.title, "temperature_K": deck.temperature, "file": deck.path,
                    "overrides": [f"{k}={v}" for k, v in getattr(deck, "overrides", ())],
                    "carriers": list(structure.carriers), "layers": layers, "contacts": contacts,
                    "mesh": {"nodes": int(z.size), "min_step_nm": float(h.min()) if h.size else None,
@@ -451,8 +430,8 @@ def cmd_materials(args) -> int:
         return _materials_on(args, kw)
     rows = materials.describe(args.name, **kw)
     if args.json:
-        from selfcon.output.report import _clean
-        print(json.dumps(_clean({"name": args.name, **kw, "parameters": list(rows)}), indent=2,
+        from selfcon.output.report import jsonable
+        print(json.dumps(jsonable({"name": args.name, **kw, "parameters": list(rows)}), indent=2,
                          ensure_ascii=False))
         return EXIT_OK
     from rich.table import Table
@@ -648,21 +627,8 @@ def build_parser() -> argparse.ArgumentParser:
     m.set_defaults(func=cmd_materials)
 
     for modname in EXTRA_COMMANDS:
-        module = _import_optional(modname)
-        if module is not None:
-            module.register(sub)
+        importlib.import_module(modname).register(sub)
     return p
-
-
-def _import_optional(modname: str):
-    """Import ``modname`` if it exists; a missing module (or package) is skipped, other errors raise."""
-    try:
-        return importlib.import_module(modname)
-    except ModuleNotFoundError as exc:
-        missing = exc.name or ""
-        if missing == modname or modname.startswith(missing + "."):
-            return None
-        raise
 
 
 def _one_line(text: str) -> str:

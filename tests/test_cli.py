@@ -266,9 +266,11 @@ def test_materials(run_cli):
     assert "GaAs" in err                              # the choices are listed
 
 
-def test_extra_command_modules_optional(monkeypatch):
-    monkeypatch.setattr(cli, "EXTRA_COMMANDS", ("selfcon.no_such_module.commands", "selfcon.no_such_module"))
-    assert cli.build_parser() is not None             # missing modules are skipped silently
+def test_extra_command_modules_are_required(monkeypatch):
+    # the command modules always ship (issue 10: no fallback for them): a missing one is an error
+    monkeypatch.setattr(cli, "EXTRA_COMMANDS", ("selfcon.no_such_module.commands",))
+    with pytest.raises(ModuleNotFoundError):
+        cli.build_parser()
     monkeypatch.setattr(cli, "EXTRA_COMMANDS", ("selfcon._test_broken_commands",))
     import types
     broken = types.ModuleType("selfcon._test_broken_commands")

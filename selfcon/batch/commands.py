@@ -106,9 +106,9 @@ def batch_command(args) -> int:
                                       min_workers=args.min_workers, max_workers=args.max_workers,
                                       backlog=args.backlog, retries=args.retries, quiet=args.quiet,
                                       memory_limit=args.memory_limit, log_file=args.log, numba_cache=numba_cache)
-    from selfcon.batch.runner import _fmt_counts
+    from selfcon.batch.runner import format_counts
     tail = {0: "", 3: "  (see table.csv)", 130: "  (interrupted: rerun to continue)"}.get(code, "")
-    print(f"{out_dir}: {_fmt_counts(counts)}{tail}")
+    print(f"{out_dir}: {format_counts(counts)}{tail}")
     return code
 
 

@@ -62,69 +62,52 @@ SUMMARY_COLUMNS = [
 
 # --------------------------------------------------------------------------- progress
 
-class _Plain:
+class BatchProgress:
+    """The coordinator's progress: job counts on the one progress display
+    (selfcon.output.progress): a bar with done/total and ETA on a terminal, one line per
+    finished job elsewhere, nothing when quiet."""
+
     def __init__(self, quiet, stream=None):
-        self.quiet = quiet
-        self.wants_lines = not quiet
-        self.stream = stream or sys.stderr
+        from selfcon.output.progress import ProgressDisplay, progress_mode
+        self.display = ProgressDisplay(progress_mode(quiet, stream), counted=True, stream=stream)
+        self.total = 0
+
+    @property
+    def wants_lines(self):
+        return self.display.wants_lines
 
     def start(self, total, counts):
         self.total = total
-        if not self.quiet:
-            print(f"batch: {total} jobs, {_fmt_counts(counts)}", file=self.stream, flush=True)
+        self.display.start(total, format_counts(counts), completed=_finished(counts),
+                           line=f"batch: {total} jobs, {format_counts(counts)}")
 
     def event(self, line, counts):
-        if not self.quiet:
-            finished = sum(counts[s] for s in q.FINISHED)
-            print(f"[{finished:>{len(str(self.total))}}/{self.total}] {line}", file=self.stream, flush=True)
+        finished = _finished(counts)
+        self.display.update(finished, format_counts(counts),
+                            line=f"[{finished:>{len(str(self.total))}}/{self.total}] {line}")
 
     def note(self, line):
-        if not self.quiet:
-            print(line, file=self.stream, flush=True)
+        self.display.note(line)
 
     def stop(self):
-        pass
+        self.display.stop()
 
 
-class _Rich:
-    wants_lines = False
-
-    def __init__(self):
-        from rich.console import Console
-        from rich.progress import BarColumn, MofNCompleteColumn, Progress, TextColumn, TimeRemainingColumn
-        self.console = Console(stderr=True)
-        self.progress = Progress(TextColumn("{task.description}"), BarColumn(), MofNCompleteColumn(),
-                                 TextColumn("ETA"), TimeRemainingColumn(), console=self.console, transient=False)
-
-    def start(self, total, counts):
-        self.progress.start()
-        self.task = self.progress.add_task(_fmt_counts(counts), total=total,
-                                           completed=sum(counts[s] for s in q.FINISHED))
-
-    def event(self, line, counts):
-        self.progress.update(self.task, completed=sum(counts[s] for s in q.FINISHED),
-                             description=_fmt_counts(counts))
-
-    def note(self, line):
-        self.progress.console.print(line)
-
-    def stop(self):
-        self.progress.stop()
+def _finished(counts):
+    return sum(counts.get(s, 0) for s in q.FINISHED)
 
 
-def _fmt_counts(c):
+def format_counts(c):
+    """Job counts as text: "12 done, 1 failed, 2 running" (the statuses that occur, in
+    this order: done, not converged, failed, running, queued)."""
     parts = [f"{c[s]} {s.replace('_', ' ')}" for s in ("done", "not_converged", "failed", "running", "queued")
              if c.get(s)]
     return ", ".join(parts) or "nothing to do"
 
 
 def make_progress(quiet):
-    if not quiet and sys.stderr.isatty():
-        try:
-            return _Rich()
-        except Exception:
-            pass
-    return _Plain(quiet)
+    """The progress shown by ``selfcon batch`` (quiet: nothing)."""
+    return BatchProgress(quiet)
 
 
 # --------------------------------------------------------------------------- coordinator
@@ -174,7 +157,7 @@ class Coordinator:
         self.retries = retries
         self.job_spec = job_fn or os.environ.get(JOB_ENV) or DEFAULT_JOB
         self.fn = resolve(self.job_spec)
-        self.progress = progress or _Plain(True)
+        self.progress = progress or BatchProgress(True)
         self.warm = warm
         self.table_interval = table_interval
         self.executor_options = dict(executor_options or {})
@@ -424,7 +407,7 @@ class Coordinator:
         self.counts = q.counts(con)
         total = sum(self.counts.values()) - self.counts["retired"]
         self.progress.start(total, self.counts)
-        log.info("study %s: %d jobs, %s", self.out_dir, total, _fmt_counts(self.counts))
+        log.info("study %s: %d jobs, %s", self.out_dir, total, format_counts(self.counts))
         if self.counts["queued"] == 0:
             self.progress.stop()
             return q.counts(con)
@@ -750,5 +733,5 @@ def _run_locked(study, study_file, jobs, out_dir, *, workers, retries, quiet, jo
         code = 3
     else:
         code = 0
-    log.info("study %s ended: %s (exit code %d)", out_dir, _fmt_counts(counts), code)
+    log.info("study %s ended: %s (exit code %d)", out_dir, format_counts(counts), code)
     return code, counts, out_dir

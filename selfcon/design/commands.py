@@ -13,11 +13,11 @@ selfcon.output.files: checked before the first solve, never an input, never repl
 from __future__ import annotations
 
 import json
-import math
 import sys
 from pathlib import Path
 
 from selfcon.errors import EXIT_INPUT, EXIT_NOT_CONVERGED, EXIT_OK, SelfconInputError  # noqa: F401
+from selfcon.output.report import jsonable
 
 
 class DesignOptionError(SelfconInputError):
@@ -93,18 +93,6 @@ def _load(args):
     return api.load_deck(p, overrides=tuple(args.set or ()))
 
 
-def _jsonable(x):
-    if isinstance(x, float) and not math.isfinite(x):
-        return None
-    if isinstance(x, dict):
-        return {k: _jsonable(v) for k, v in x.items()}
-    if isinstance(x, (list, tuple)):
-        return [_jsonable(v) for v in x]
-    if hasattr(x, "item"):
-        return _jsonable(x.item())
-    return x
-
-
 # --------------------------------------------------------------------------- sweep-bias
 
 def cmd_sweep_bias(args) -> int:
@@ -130,7 +118,7 @@ def cmd_sweep_bias(args) -> int:
     if args.plot:
         sw.plot(args.plot, force=args.force)
     if args.json:
-        print(json.dumps(_jsonable({"bias_V": sw.bias.tolist(), "channel_cm2": sw.channel_density.tolist(),
+        print(json.dumps(jsonable({"bias_V": sw.bias.tolist(), "channel_cm2": sw.channel_density.tolist(),
                                     "capacitance_F_cm2": sw.capacitance.tolist(),
                                     "converged": sw.converged.tolist(), "channel": sw.channel, "channel_layer": sw.channel_layer,
                                     "analysis": sw.analysis, "output": str(out) if out else None}), indent=1))
@@ -180,7 +168,7 @@ def cmd_tune(args) -> int:
     if out is not None and tr.result is not None:
         tr.result.save(out, force=args.force)
     if args.json:
-        print(json.dumps(_jsonable({"path": tr.path, "value": tr.value, "units": unit, "quantity": tr.quantity,
+        print(json.dumps(jsonable({"path": tr.path, "value": tr.value, "units": unit, "quantity": tr.quantity,
                                     "target": tr.target, "achieved": tr.achieved, "bracket": list(tr.bracket),
                                     "ends": list(tr.ends), "solves": tr.solves, "converged": tr.converged,
                                     "message": tr.message, "evaluations": tr.evaluations,
@@ -207,7 +195,7 @@ def cmd_study_summary(args) -> int:
     if args.plot:
         plot_summary(s, args.plot, quantities=args.quantity or None, force=args.force)
     if args.json:
-        print(json.dumps(_jsonable(s.as_dict()), indent=1))
+        print(json.dumps(jsonable(s.as_dict()), indent=1))
     else:
         for line in s.lines():
             print(line)

@@ -116,11 +116,6 @@ CARRIERS = ("electron", "heavy_hole", "light_hole")
 ALL_CARRIERS = CARRIERS + ("x_electron", "l_electron")
 IONIZATION = ("thermal", "full")
 SOLVER_METHODS = ("predictor-corrector", "anderson", "linear")
-LIBRARY_FALLBACK = ("GaAs", "AlAs", "InAs", "InP", "GaSb", "AlSb", "InSb", "GaP", "AlP",
-                    "AlGaAs", "InGaAs", "InAlAs", "AlGaSb", "InGaSb", "InAsSb", "GaAsSb",
-                    "AlAsSb", "InGaP", "AlInP", "GaAsP", "InAsP", "InGaAsP", "AlGaInAs")
-ALLOY_FALLBACK = ("AlGaAs", "InGaAs", "InAlAs", "AlGaSb", "InGaSb", "InAsSb", "GaAsSb",
-                  "AlAsSb", "InGaP", "AlInP", "GaAsP", "InAsP", "InGaAsP", "AlGaInAs")
 #: nm, the thinnest layer accepted: about half a monolayer (a GaAs monolayer is a/2 = 0.283 nm,
 #: common practice); anything thinner is a unit mistake (a thickness typed in metres or cm)
 MIN_THICKNESS = 0.1
@@ -880,19 +875,15 @@ def _is_overridden(key, overrides):
 
 
 def _library_names():
-    try:
-        from selfcon.input import materials
-        return tuple(materials.names())
-    except (ImportError, AttributeError):
-        return LIBRARY_FALLBACK
+    """Names of every library material (imported when a deck is validated, not before)."""
+    from selfcon.input import materials
+    return tuple(materials.names())
 
 
 def _library_alloys():
-    try:
-        from selfcon.input import materials
-        return tuple(n for n in materials.names() if materials.is_alloy(n))
-    except (ImportError, AttributeError):
-        return ALLOY_FALLBACK
+    """Names of the library's alloys."""
+    from selfcon.input import materials
+    return tuple(n for n in materials.names() if materials.is_alloy(n))
 
 
 #: method names registered by the solver stage (selfcon.solver.mixers.register adds each mixer

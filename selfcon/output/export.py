@@ -26,12 +26,12 @@ def _num(v) -> str:
 
 
 def _profile_units(name):
-    from selfcon.output.schema import EXTRA_PROFILE_FIELDS, guess_units as _guess_units
+    from selfcon.output.schema import EXTRA_PROFILE_FIELDS, guess_units
     if name in PROFILE_FIELDS:
         return PROFILE_FIELDS[name][0]
     if name in EXTRA_PROFILE_FIELDS:
         return EXTRA_PROFILE_FIELDS[name][0]
-    return _guess_units(name)
+    return guess_units(name)
 
 
 def export_csv(result, dirpath, *, force: bool = True) -> list[Path]:

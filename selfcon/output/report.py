@@ -20,14 +20,15 @@ from selfcon.output.channels import OCCUPIED_CM2, occupied_states  # noqa: E402
 BAND_LABELS = {"electron": "electron", "heavy_hole": "heavy hole", "light_hole": "light hole"}
 
 
-def _clean(value):
-    """JSON-safe: numpy scalars -> Python, NaN/inf -> None, arrays -> lists."""
+def jsonable(value):
+    """``value`` made JSON-safe, recursively: numpy scalars -> Python numbers, NaN and inf ->
+    None, arrays and tuples -> lists, dict keys -> strings (every JSON selfcon prints)."""
     if isinstance(value, dict):
-        return {str(k): _clean(v) for k, v in value.items()}
+        return {str(k): jsonable(v) for k, v in value.items()}
     if isinstance(value, (list, tuple)):
-        return [_clean(v) for v in value]
+        return [jsonable(v) for v in value]
     if isinstance(value, np.ndarray):
-        return [_clean(v) for v in value.tolist()]
+        return [jsonable(v) for v in value.tolist()]
     if isinstance(value, (np.bool_, bool)):
         return bool(value)
     if isinstance(value, np.integer):
@@ -204,11 +205,11 @@ def summary_figures(result, output: str | None = None) -> dict[str, Any]:
         "warnings": list(result.warnings),
         "summary": summary,
     }
-    return _clean(figures)
+    return jsonable(figures)
 
 
 def to_json(figures: dict) -> str:
-    return json.dumps(_clean(figures), indent=2, ensure_ascii=False)
+    return json.dumps(jsonable(figures), indent=2, ensure_ascii=False)
 
 
 # --------------------------------------------------------------------------- formatting

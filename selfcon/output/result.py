@@ -41,7 +41,7 @@ from selfcon.output.files import atomic_write as _atomic_write
 from selfcon.output.schema import (CHANNEL_FIELDS, EXTRA_PROFILE_FIELDS, LAYER_DESCRIPTIONS,
                                    LAYER_UNITS, PROFILE_FIELDS, RECORD_FIELDS, ROOT_ATTRS, SCHEMA,
                                    SCHEMA_VERSION, SUBBAND_FIELDS, TRANSITION_FIELDS,
-                                   guess_units as _guess_units)
+                                   guess_units)
 from dataclasses import dataclass, field
 from typing import Any
 
@@ -331,7 +331,7 @@ def _write_profile(f, result: Result) -> None:
         elif name in EXTRA_PROFILE_FIELDS:
             units, desc = EXTRA_PROFILE_FIELDS[name]
         else:
-            units, desc = _guess_units(name), f"profile {name}"
+            units, desc = guess_units(name), f"profile {name}"
         _dataset(g, name, data, units, desc)
     _dataset(g, "layer_index", result.layer_index, *EXTRA_PROFILE_FIELDS["layer_index"])
 
@@ -375,7 +375,7 @@ def _write_layers(f, result: Result) -> None:
     table = _layer_table(result.layers)
     names = list(table.dtype.names or ())
     ds = f.create_dataset("layers", data=table, track_order=True)
-    ds.attrs["units"] = np.array([LAYER_UNITS.get(n, _guess_units(n)) for n in names], dtype=_STR)
+    ds.attrs["units"] = np.array([LAYER_UNITS.get(n, guess_units(n)) for n in names], dtype=_STR)
     ds.attrs["columns"] = np.array(names, dtype=_STR)
     ds.attrs["column_descriptions"] = np.array([LAYER_DESCRIPTIONS.get(n, n.replace("_", " ")) for n in names],
                                                dtype=_STR)
@@ -437,7 +437,7 @@ def _write_convergence(f, result: Result) -> None:
             record_keys.append(key)        # same data as /convergence/residual
             continue
         name = "record_residual" if key == "residual" else key
-        units, desc = RECORD_FIELDS.get(key, (_guess_units(key), f"per-iteration record {key}"))
+        units, desc = RECORD_FIELDS.get(key, (guess_units(key), f"per-iteration record {key}"))
         _dataset(g, name, values, units, desc)
         record_keys.append(key)
     g.attrs["record_keys"] = np.array(record_keys, dtype=_STR)

@@ -103,9 +103,6 @@ def fermi_mhalf(eta):
     return _sommerfeld(_SOMM_FM12, eta, 0.5, _GAMMA_3_2)
 
 
-fermi_half_deriv = fermi_mhalf
-
-
 @njit(cache=True)
 def fermi_half_array(eta):
     """F_{1/2} elementwise on a 1D float array."""
