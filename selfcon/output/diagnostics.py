@@ -79,6 +79,7 @@ from typing import Callable
 import numpy as np
 
 from selfcon.constants import KB_EV, NM_PER_CM
+from selfcon.model.mesh import Mesh
 
 SECOND_SUBBAND_FRACTION = 0.01      # the occupied rule of selfcon.output.channels
 PARALLEL_FRACTION = 0.01
@@ -297,7 +298,7 @@ def check_carriers_outside(result, structure, deck=None) -> list[str]:
     if main is None or not regions:
         return []
     z = np.asarray(result.z)
-    w = structure.mesh.w if structure is not None else node_weights(z)
+    w = structure.mesh.w if structure is not None else Mesh.from_nodes(z).w
     outside = np.ones(z.size, dtype=bool)
     for a, b in regions:
         outside &= ~((z >= a - 1e-9) & (z <= b + 1e-9))
