@@ -520,8 +520,8 @@ def strained_figures(name, x=None, y=None, temperature=300.0, on="GaAs") -> dict
         "> 0: heavy hole on top (compressive)")
     hc = {"buried": S.matthews_blakeslee(eps, a0, nu, capped=True),
           "at the surface": S.matthews_blakeslee(eps, a0, nu, capped=False)}
-    from selfcon.output.report import _clean
-    return _clean({"name": name, "x": x, "y": y, "temperature_K": T, "substrate": label,
+    from selfcon.output.report import jsonable
+    return jsonable({"name": name, "x": x, "y": y, "temperature_K": T, "substrate": label,
                    "lattice_inplane_nm": a_par, "rows": rows,
                    "critical_thickness_nm": hc,
                    "sources": "strain: Van de Walle, Phys. Rev. B 39, 1871 (1989) deformation "
