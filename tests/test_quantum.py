@@ -491,3 +491,28 @@ def test_thermal_in_plane_energy_limits():
     # (analytic, Boltzmann and T = 0 limits); the smooth join used is 1 + ln(1 + e^x)/2
     assert thermal_in_plane_energy(-40.0) == pytest.approx(1.0, abs=1e-12)
     assert thermal_in_plane_energy(200.0) == pytest.approx(101.0, rel=1e-12)
+
+
+def test_states_below_a_limit_by_sturm_count():
+    # the finite well of the checks above: its bound levels from the BenDaniel-Duke roots
+    # (analytic); asking for the states below V0 gives exactly those, and none below the
+    # lowest level costs no eigensolve
+    from selfcon.solver.schrodinger import count_below
+    z = layered_mesh([30.0, L_W, 30.0], 0.1)
+    v_cell, m_cell = well_cells(z, 30.0)
+    h = np.diff(z)
+    v_node = np.empty(z.size)
+    from selfcon.solver.kernels import schrodinger as kern
+    kern.dual_average(h, v_cell, v_node)
+    exact, _ = bdd_finite_well_levels()
+    e, psi = solve_region(h, w_of(z), v_node, 1.0 / m_cell, 20, below=V0)
+    assert e.size == len(exact) and psi.shape == (z.size, len(exact))
+    assert np.allclose(e, exact, atol=2e-4)
+    e0, _ = solve_region(h, w_of(z), v_node, 1.0 / m_cell, 20, below=0.5 * exact[0])
+    assert e0.size == 0
+    # the Sturm count against a dense eigensolve (numpy.linalg.eigvalsh) of a small matrix
+    rng = np.random.default_rng(3)
+    d, off = rng.normal(size=12), rng.normal(size=11)
+    ev = np.linalg.eigvalsh(np.diag(d) + np.diag(off, 1) + np.diag(off, -1))
+    for x in (-3.0, -0.5, 0.0, 0.7, 4.0):
+        assert count_below(d, off, x) == int(np.sum(ev < x))

@@ -19,7 +19,7 @@ import numpy as np
 from selfcon.constants import HBAR2_2M0  # noqa: F401  (documented unit of the operator)
 from selfcon.model.mesh import half_widths
 
-__all__ = ["EigenWorkspace", "solve_region", "bound_states", "bound_states_cells",
+__all__ = ["EigenWorkspace", "solve_region", "count_below", "bound_states", "bound_states_cells",
            "in_plane_mass", "in_plane_states"]
 
 
@@ -71,14 +71,32 @@ class EigenWorkspace:
         return w[order], v[:, order]
 
 
-def solve_region(h_cell, w, v_node, inv_mass_cell, n_states, workspace=None):
+def count_below(d, e, x) -> int:
+    """Number of eigenvalues below ``x`` of the symmetric tridiagonal matrix with diagonal
+    ``d`` and off-diagonal ``e`` (Sturm sequence count: the negative pivots of the LDL^T
+    factorisation of T - x I; Golub and Van Loan, Matrix Computations, section 8.4)."""
+    count = 0
+    q = 1.0
+    tiny = 1e-300
+    for i in range(d.size):
+        q = d[i] - x - (e[i - 1] * e[i - 1] / q if i > 0 else 0.0)
+        if q == 0.0:
+            q = -tiny
+        if q < 0.0:
+            count += 1
+    return count
+
+
+def solve_region(h_cell, w, v_node, inv_mass_cell, n_states, workspace=None, below=None):
     """Lowest ``n_states`` states on a sub-mesh with psi = 0 at its two end nodes.
 
     h_cell, inv_mass_cell: (n-1,) cell widths (nm) and inverse masses (1/m0);
     w, v_node: (n,) dual widths (nm) and node potential (eV, already dual-averaged).
     Returns (energies (k,) eV ascending, psi (n, k) in nm^-1/2 with
-    sum_i w_i psi_i^2 = 1); k = min(n_states, n-2).  No input checking here beyond
-    shapes: this is the inner-loop call; use :func:`bound_states` for checked input.
+    sum_i w_i psi_i^2 = 1); k = min(n_states, n-2).  ``below``: only the states with an
+    energy below it (a Sturm count decides how many; none costs no eigensolve).  No input
+    checking here beyond shapes: this is the inner-loop call; use :func:`bound_states`
+    for checked input.
     """
     h_cell = np.ascontiguousarray(h_cell, dtype=float)
     w = np.ascontiguousarray(w, dtype=float)
@@ -99,6 +117,10 @@ def solve_region(h_cell, w, v_node, inv_mass_cell, n_states, workspace=None):
         workspace.resize(n)
     kern = _kernels()
     kern.assemble_tridiagonal(h_cell, w, v_node, inv_mass_cell, workspace.d, workspace.e)
+    if below is not None:
+        k = min(k, count_below(workspace.d, workspace.e, float(below)))
+        if k <= 0:
+            return np.empty(0), np.zeros((n, 0))
     energies, u = workspace.eigh(k)
     psi = np.empty((n, k))
     kern.vectors_to_wavefunctions(np.ascontiguousarray(u), w, psi)

@@ -9,7 +9,8 @@ convergence and without touching what the loop iterates on,
 * keeps the loop's own states wherever the loop solved a band in a region (they carry
   the self-consistent charge, unbound box states included), marked ``populated``;
 * solves every other (band, region) pair at the final potential, up to ``quantum.states``
-  states, keeps only the *bound* ones and gives them zero occupation.
+  states, keeps only the *bound* ones and gives them zero occupation (a Sturm count below
+  the lower region-end edge decides how many to solve; none costs no eigensolve).
 
 A state is bound when its energy lies below the band edge (in the band's own kinetic
 sense: above Ev for holes) at both ends of its quantum region; ``bound`` flags it for
@@ -89,7 +90,9 @@ def full_spectrum(st, phi, loop_states: dict, n_states: int | None = None) -> di
         for r_idx in range(len(st.regions)):
             if r_idx in solved:
                 continue
-            e, psi, m_par = region_states(st, phi, band, r_idx, k_extra)
+            # bound states only: none below the lower region-end edge costs no eigensolve
+            below = min(sign * edge for edge in region_edges(st, phi, band, r_idx))
+            e, psi, m_par = region_states(st, phi, band, r_idx, k_extra, below=below)
             if e.size == 0:
                 continue
             keep = bound_mask(st, phi, band, e, np.full(e.size, r_idx))

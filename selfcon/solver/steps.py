@@ -349,14 +349,16 @@ def solve_states(ws: Workspace, phi) -> dict:
     return out
 
 
-def region_eigenstates(st: Structure, phi, band: str, r_idx: int, n_states: int, workspace=None):
+def region_eigenstates(st: Structure, phi, band: str, r_idx: int, n_states: int, workspace=None,
+                       below=None):
     """Lowest ``n_states`` eigenstates of the z problem of ``band`` in quantum region
     ``r_idx`` at potential ``phi``.
 
     BenDaniel–Duke on the region's nodes (selfcon.solver.schrodinger.solve_region) with
     psi = 0 at both end nodes; the band edge with electrostatics is the dual-cell average
     of the cells' edges minus phi.  Returns (energy (k,) eV on the electron scale, psi
-    (N, k) on the full mesh, zero outside the region), lowest kinetic energy first."""
+    (N, k) on the full mesh, zero outside the region), lowest kinetic energy first.
+    ``below``: only the states of kinetic energy (sign * E) below it."""
     from selfcon.solver import schrodinger
     edge_key, mass_key, _, sign, _ = BAND_SPECS[band]
     i0, i1 = st.regions[r_idx]
@@ -367,7 +369,8 @@ def region_eigenstates(st: Structure, phi, band: str, r_idx: int, n_states: int,
     edge_node = st.node_average(st.cell[edge_key]) - phi      # band edge with electrostatics
     part = st.mesh.part(i0, i1)
     e, p = schrodinger.solve_region(part.h, part.w, sign * edge_node[sl],      # holes: kinetic up = -Ev
-                                    1.0 / st.cell[mass_key][i0:i1], n_states, workspace=workspace)
+                                    1.0 / st.cell[mass_key][i0:i1], n_states, workspace=workspace,
+                                    below=below)
     full = np.zeros((n, e.size))
     full[sl, :] = p
     return sign * e, full
@@ -386,11 +389,11 @@ def in_plane_motion(st: Structure, band: str, energy, psi):
     return sign * e, psi, m_par
 
 
-def region_states(st: Structure, phi, band: str, r_idx: int, n_states: int, workspace=None):
+def region_states(st: Structure, phi, band: str, r_idx: int, n_states: int, workspace=None, below=None):
     """The states the loop uses in one region: :func:`region_eigenstates` with
     :func:`in_plane_motion`.  Returns (energy (k,) eV electron scale, psi (N, k), in-plane
-    mass (k,) m0), lowest kinetic energy first."""
-    e, psi = region_eigenstates(st, phi, band, r_idx, n_states, workspace)
+    mass (k,) m0), lowest kinetic energy first (``below``: see region_eigenstates)."""
+    e, psi = region_eigenstates(st, phi, band, r_idx, n_states, workspace, below=below)
     if e.size == 0:
         return e, psi, np.empty(0)
     return in_plane_motion(st, band, e, psi)
