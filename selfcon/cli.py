@@ -388,10 +388,10 @@ def cmd_plot(args) -> int:
 
 
 def cmd_export(args) -> int:
-    from selfcon.output.export import PROFILE_CSV, SUBBANDS_CSV, export_csv
+    from selfcon.output.export import TABLES, export_csv
     from selfcon.output.files import check_outputs, output
     from selfcon.output.result import load_result
-    check_outputs([output(args.csv, "folder", "--csv", files=(PROFILE_CSV, SUBBANDS_CSV))],
+    check_outputs([output(args.csv, "folder", "--csv", files=TABLES)],
                   inputs=[(args.result, "the result file")], force=args.force)
     result = load_result(args.result)
     paths = export_csv(result, args.csv, force=args.force)
@@ -611,7 +611,7 @@ def build_parser() -> argparse.ArgumentParser:
     e = sub.add_parser("export", help="write a result's profiles and subbands as CSV tables")
     e.add_argument("result", metavar="RESULT.h5")
     e.add_argument("--csv", metavar="DIR", required=True,
-                   help="folder for profile.csv and subbands.csv (created if missing)")
+                   help="folder for profile.csv, subbands.csv, channels.csv and transitions.csv (created if missing)")
     e.add_argument("--force", action="store_true", help="overwrite existing CSV files")
     e.set_defaults(func=cmd_export)
 

@@ -324,3 +324,24 @@ def test_sweep_follows_the_main_channel_to_pinch_off():
     # density integrated over the channel's interval is followed down)
     assert sw.channel_density[-1] == sw.results[-1].main_channel["sheet_density"]
     assert np.all(np.diff(sw.channel_density) > 0) and sw.channel_density[0] < 1e8
+
+
+def test_csv_export_of_channels_and_transitions(optical, inverted, tmp_path):
+    import csv
+    from selfcon.output.export import export_csv
+    r, _ = inverted
+    paths = export_csv(r, tmp_path / "inv")
+    assert [p.name for p in paths] == ["profile.csv", "subbands.csv", "channels.csv", "transitions.csv"]
+    with open(tmp_path / "inv" / "channels.csv", newline="") as fh:
+        rows = list(csv.DictReader(fh))
+    assert [(x["name"], x["main [1]"]) for x in rows] == [("channel", "1"), ("buffer", "0")]
+    assert float(rows[1]["sheet_density [cm-2]"]) == r.channel("buffer")["sheet_density"]   # repr: exact
+    with open(tmp_path / "inv" / "subbands.csv", newline="") as fh:
+        sub = list(csv.DictReader(fh))
+    assert [x["channel"] for x in sub[:2]] == ["channel", "buffer"]
+    o, _ = optical
+    export_csv(o, tmp_path / "ow")
+    with open(tmp_path / "ow" / "transitions.csv", newline="") as fh:
+        t = list(csv.DictReader(fh))
+    assert len(t) == o.transitions["energy"].size
+    assert float(t[0]["overlap [1]"]) == o.transitions["overlap"][0]

@@ -1,4 +1,5 @@
-"""CSV tables of a Result: profile.csv (one row per node) and subbands.csv (one row per state).
+"""CSV tables of a Result: profile.csv (one row per node), subbands.csv (one row per state),
+channels.csv (one row per channel) and transitions.csv (one row per e_n - hh_m / e_n - lh_m pair).
 
 Headers carry the units, ``z [nm]``, ``conduction_band [eV]``, ``electron_density [cm-3]``,
 so a spreadsheet or ``numpy.genfromtxt(..., names=True)`` needs nothing else.
@@ -17,6 +18,10 @@ from selfcon.output.schema import PROFILE_FIELDS
 
 PROFILE_CSV = "profile.csv"
 SUBBANDS_CSV = "subbands.csv"
+CHANNELS_CSV = "channels.csv"
+TRANSITIONS_CSV = "transitions.csv"
+#: every table ``export_csv`` writes, in order
+TABLES = (PROFILE_CSV, SUBBANDS_CSV, CHANNELS_CSV, TRANSITIONS_CSV)
 
 
 def _num(v) -> str:
@@ -35,14 +40,14 @@ def _profile_units(name):
 
 
 def export_csv(result, dirpath, *, force: bool = True) -> list[Path]:
-    """Write profile.csv and subbands.csv into ``dirpath`` (created if missing); returns the two paths.
+    """Write the tables of :data:`TABLES` into ``dirpath`` (created if missing); returns their paths.
 
     With ``force=False`` existing tables are not overwritten (SelfconInputError).
     """
     folder = Path(dirpath)
     if folder.exists() and not folder.is_dir():
         raise SelfconInputError("is a file, expected a folder for the CSV tables", file=str(folder))
-    targets = [folder / PROFILE_CSV, folder / SUBBANDS_CSV]
+    targets = [folder / name for name in TABLES]
     if not force:
         existing = [str(p) for p in targets if p.exists()]
         if existing:
@@ -70,14 +75,38 @@ def export_csv(result, dirpath, *, force: bool = True) -> list[Path]:
         with open(tmp, "w", newline="", encoding="utf-8") as fh:
             w = csv.writer(fh)
             w.writerow(["band", "index", "energy [eV]", "occupation [cm-2]", "in_plane_mass [m0]", "region",
-                        "degeneracy"])
+                        "degeneracy", "channel", "bound"])
+            names = [str(c.get("name", "")) for c in result.channels]
             for band, sb in result.subbands.items():
                 for k in range(np.asarray(sb.energy).size):
+                    c = int(sb.channel[k])
                     w.writerow([band, k, _num(sb.energy[k]), _num(sb.occupation[k]), _num(sb.in_plane_mass[k]),
-                                int(sb.region[k]), _num(sb.degeneracy[k])])
+                                int(sb.region[k]), _num(sb.degeneracy[k]), names[c] if 0 <= c < len(names) else "",
+                                int(bool(sb.bound[k]))])
+
+    def channels(tmp):
+        from selfcon.output.schema import CHANNEL_FIELDS
+        fields = list(CHANNEL_FIELDS)
+        with open(tmp, "w", newline="", encoding="utf-8") as fh:
+            w = csv.writer(fh)
+            w.writerow([f if CHANNEL_FIELDS[f][0] == "1" and f in ("name", "carrier", "layer")
+                        else f"{f} [{CHANNEL_FIELDS[f][0]}]" for f in fields])
+            for row in result.channels:
+                w.writerow([row.get(f) if isinstance(row.get(f), str) else
+                            int(row.get(f)) if isinstance(row.get(f), (bool, np.bool_)) else _num(row.get(f, np.nan))
+                            for f in fields])
+
+    def transitions(tmp):
+        t = result.transitions or {}
+        with open(tmp, "w", newline="", encoding="utf-8") as fh:
+            w = csv.writer(fh)
+            w.writerow(["electron_state", "hole_band", "hole_state", "energy [eV]", "overlap [1]"])
+            for row in zip(*(t.get(k, []) for k in ("electron_state", "hole_band", "hole_state", "energy",
+                                                    "overlap"))):
+                w.writerow([int(row[0]), str(row[1]), int(row[2]), _num(row[3]), _num(row[4])])
 
     # each table atomically (temporary file, fsync, rename): an interrupted or failed export
     # leaves an existing table as it was
-    atomic_write(targets[0], profile, force=force)
-    atomic_write(targets[1], subbands, force=force)
+    for target, fill in zip(targets, (profile, subbands, channels, transitions)):
+        atomic_write(target, fill, force=force)
     return targets
