@@ -249,11 +249,13 @@ def check_second_subband(result, structure, deck=None) -> list[str]:
             f"channel (E1 - E0 = {1e3 * abs(e1 - e0):.1f} meV); mobility drops from intersubband scattering"]
 
 
-def _doped_layer_in(structure, top: float, bottom: float) -> str | None:
-    """Name of a doped layer (donors or acceptors, bulk or sheet) overlapping [top, bottom] nm."""
+def _doped_layer_in(structure, top: float, bottom: float, carrier: str) -> str | None:
+    """Name of a layer overlapping [top, bottom] nm doped with the dopant that supplies
+    ``carrier`` (donors for electrons, acceptors for holes; bulk or sheet), or None."""
     for Li in structure.layers:
-        if (Li.donors > 0 or Li.sheet_donors > 0 or Li.acceptors > 0 or Li.sheet_acceptors > 0) \
-                and Li.top < bottom and top < Li.bottom:
+        supplies = (Li.donors > 0 or Li.sheet_donors > 0) if carrier == "electron" else \
+            (Li.acceptors > 0 or Li.sheet_acceptors > 0)
+        if supplies and Li.top < bottom and top < Li.bottom:
             return Li.name
     return None
 
@@ -274,7 +276,8 @@ def check_parasitic_channels(result, structure, deck=None) -> list[str]:
         if n <= limit:
             continue
         kind = "electrons" if c["carrier"] == "electron" else "holes"
-        doped = _doped_layer_in(structure, c["top_nm"], c["bottom_nm"]) if structure is not None else None
+        doped = (_doped_layer_in(structure, c["top_nm"], c["bottom_nm"], c["carrier"])
+                 if structure is not None else None)
         if doped is not None:
             advice = f"parallel conduction through the doped layer {doped!r}: lower the doping or thin the spacer"
         else:
