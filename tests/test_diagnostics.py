@@ -236,3 +236,14 @@ def test_carriers_outside_quantum_regions():
     assert len(w) == 1 and "electrons" in w[0] and "widen quantum.regions" in w[0]
     clean, st2 = solve(selfcon.load_deck(EXAMPLES / "hemt_4K.toml"))
     assert dg.check_carriers_outside(clean, st2) == []
+
+
+def test_an_empty_named_main_channel_breaks_no_check():
+    # a [[channel]] naming a layer with no carriers at all (holes in the cap): it is the
+    # main channel with 0 cm^-2, and every other channel is parasitic next to it
+    deck = selfcon.load_deck((EXAMPLES / "hemt_4K.toml").read_text()
+                             + '\n[[channel]]\nname = "cap_holes"\ncarrier = "hole"\nlayers = ["cap"]\n')
+    r, st = solve(deck)
+    assert r.main_channel["name"] == "cap_holes" and r.main_channel["sheet_density"] == 0.0
+    assert not any("could not run" in w for w in r.warnings)
+    assert any(w.startswith("parasitic channel 'channel'") and "holds none" in w for w in r.warnings)

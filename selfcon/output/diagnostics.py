@@ -249,6 +249,16 @@ def check_second_subband(result, structure, deck=None) -> list[str]:
             f"channel (E1 - E0 = {1e3 * abs(e1 - e0):.1f} meV); mobility drops from intersubband scattering"]
 
 
+def _relative(n: float, main: dict, limit: float) -> str:
+    """'12.3 % of the main channel 'x' (4.1e+11 cm^-2; limit 1 %)', or, when the main channel
+    is empty, 'while the main channel 'x' holds none'."""
+    ns = float(main["sheet_density"])
+    if ns > 0:
+        return (f"{100 * n / ns:.1f} % of the main channel {main['name']!r} ({_fmt_cm2(ns)}; "
+                f"limit {100 * limit:g} %)")
+    return f"while the main channel {main['name']!r} holds none"
+
+
 def _doped_layer_in(structure, top: float, bottom: float, carrier: str) -> str | None:
     """Name of a layer overlapping [top, bottom] nm doped with the dopant that supplies
     ``carrier`` (donors for electrons, acceptors for holes; bulk or sheet), or None."""
@@ -284,8 +294,8 @@ def check_parasitic_channels(result, structure, deck=None) -> list[str]:
             advice = (f"a second conducting sheet in {c['layer']!r}: thicken the barrier between it and the doping "
                       "that feeds it, or lower that doping")
         out.append(f"parasitic channel {c['name']!r}: {_fmt_cm2(n)} {kind} at {c['top_nm']:.0f}-"
-                   f"{c['bottom_nm']:.0f} nm (centroid {c['centroid_nm']:.0f} nm), {100 * n / ns:.1f} % of the "
-                   f"main channel {main['name']!r} ({_fmt_cm2(ns)}; limit {100 * PARALLEL_FRACTION:g} %); {advice}")
+                   f"{c['bottom_nm']:.0f} nm (centroid {c['centroid_nm']:.0f} nm), "
+                   f"{_relative(n, main, PARALLEL_FRACTION)}; {advice}")
     return out
 
 
@@ -317,9 +327,9 @@ def check_carriers_outside(result, structure, deck=None) -> list[str]:
             continue
         per = np.bincount(li, weights=dens, minlength=len(rows))
         where = f", mostly in {rows[int(np.argmax(per))]['name']!r}" if rows else ""
-        out.append(f"carriers outside the quantum regions: {_fmt_cm2(n)} {kind}{where}, {100 * n / ns:.1f} % of "
-                   f"the main channel {main['name']!r} (limit {100 * OUTSIDE_FRACTION:g} %); they are counted "
-                   "classically, without subbands: widen quantum.regions to cover them")
+        out.append(f"carriers outside the quantum regions: {_fmt_cm2(n)} {kind}{where}, "
+                   f"{_relative(n, main, OUTSIDE_FRACTION)}; they are counted classically, without "
+                   "subbands: widen quantum.regions to cover them")
     return out
 
 
