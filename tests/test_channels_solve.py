@@ -345,3 +345,74 @@ def test_csv_export_of_channels_and_transitions(optical, inverted, tmp_path):
         t = list(csv.DictReader(fh))
     assert len(t) == o.transitions["energy"].size
     assert float(t[0]["overlap [1]"]) == o.transitions["overlap"][0]
+
+
+GRADED = """
+title = "V-graded AlGaAs well split over two layers, doped from both sides"
+temperature = 4.0
+[surface]
+contact = "pinned"
+barrier = 0.7
+[substrate]
+contact = "pinned"
+barrier = 0.7
+[[layer]]
+name = "top"
+material = "AlGaAs"
+x = 0.3
+thickness = 40.0
+[[layer]]
+name = "d1"
+material = "AlGaAs"
+x = 0.3
+thickness = 2.0
+sheet_donors = 2e12
+[[layer]]
+name = "s1"
+material = "AlGaAs"
+x = 0.3
+thickness = 10.0
+[[layer]]
+name = "grade_down"
+material = "AlGaAs"
+x = [0.2, 0.0]
+thickness = 12.0
+[[layer]]
+name = "grade_up"
+material = "AlGaAs"
+x = [0.0, 0.2]
+thickness = 12.0
+[[layer]]
+name = "s2"
+material = "AlGaAs"
+x = 0.3
+thickness = 10.0
+[[layer]]
+name = "d2"
+material = "AlGaAs"
+x = 0.3
+thickness = 2.0
+sheet_donors = 2e12
+[[layer]]
+name = "bottom"
+material = "AlGaAs"
+x = 0.3
+thickness = 60.0
+[physics]
+carriers = ["electron"]
+[quantum]
+regions = [[30.0, 110.0]]
+[mesh]
+step = 0.5
+"""
+
+
+def test_graded_well_split_over_two_layers_is_one_channel():
+    # a V-graded well whose two halves are two layers: one channel holding (nearly) all the
+    # electrons of the stack, not the half in the layer holding most
+    r, _ = solve(selfcon.load_deck(GRADED))
+    assert [c["name"] for c in r.channels] == ["electron1"]      # neither layer holds 90 %
+    halves = [row["electron_sheet_density_cm2"] for row in r.layers if row["name"].startswith("grade")]
+    assert min(halves) > 0.4 * sum(halves)                        # the well is split about evenly
+    assert r.summary["channel_electron_sheet_density_cm2"] > 0.99 * r.summary["electron_sheet_density_cm2"]
+    assert not any("bottom contact" in w or "parasitic" in w for w in r.warnings)

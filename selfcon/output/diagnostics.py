@@ -32,8 +32,8 @@ Thresholds (our own choices, stated here and in README.md, "Design recipes"):
   density within ``CUT_DISTANCE_NM`` = 2 nm of the end node, on either side, exceeds
   ``CUT_FRACTION`` = 1e-3 of that carrier's peak density.
 * buffer carriers: electrons plus holes in the last ``BUFFER_DEPTH_NM`` = 100 nm above the
-  bottom contact exceed 1 % of the channel sheet density (and 1e8 cm^-2), unless the
-  bottom layer is the channel itself.
+  bottom contact, other than those of the main channel's own subbands, exceed 1 % of the
+  channel sheet density (and 1e8 cm^-2), unless the bottom layer is the channel itself.
 * not converged: the self-consistent loop did not converge (its message is repeated).
 * critical thickness: a strained layer with |eps_xx| >= ``CRITICAL_MIN_STRAIN`` = 0.1 % is
   thicker than its Matthews-Blakeslee critical thickness (selfcon.model.strain: a buried
@@ -427,8 +427,17 @@ def check_buffer_carriers(result, structure, deck=None) -> list[str]:
         return []
     w = structure.mesh.w
     sel = z >= z[-1] - BUFFER_DEPTH_NM
-    n = float(np.sum(np.asarray(result.profile["electron_density"])[sel] * w[sel])) / NM_PER_CM
-    p = float(np.sum(np.asarray(result.profile["hole_density"])[sel] * w[sel])) / NM_PER_CM
+    # the main channel's own subbands near the contact (a short stack) are no buffer carriers
+    own = {"electron": np.zeros(z.size), "hole": np.zeros(z.size)}
+    j = next((k for k, c in enumerate(result.channels or []) if c.get("main")), -1)
+    if j >= 0:
+        kind = result.channels[j]["carrier"]
+        for band, sb in (result.subbands or {}).items():
+            mine = np.asarray(sb.channel) == j
+            if np.any(mine) and (band == "electron") == (kind == "electron"):
+                own[kind] += (np.asarray(sb.wavefunction)[:, mine] ** 2) @ np.asarray(sb.occupation)[mine] * NM_PER_CM
+    n = float(np.sum((np.asarray(result.profile["electron_density"]) - own["electron"])[sel] * w[sel])) / NM_PER_CM
+    p = float(np.sum((np.asarray(result.profile["hole_density"]) - own["hole"])[sel] * w[sel])) / NM_PER_CM
     ns = channel_density(result)
     limit = max(BUFFER_FRACTION * ns, FLOOR_CM2)
     if n + p <= limit:
