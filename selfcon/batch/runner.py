@@ -1,9 +1,11 @@
 """The coordinator: expands the study, syncs the queue, feeds an executor, writes every file.
 
-It is the only process that touches the output folder: the workers get deck
-text (and a warm-start potential) and hand back a Result.  Crash safety comes
-from the order of writes: a result file is written atomically first, then the
-job row is marked finished in one statement; a coordinator killed in between
+It is the only process that touches the output folder (with the table processes it
+starts): the workers get deck text (and a warm-start potential) and hand back the
+result's HDF5 file image and the table's figures.  Crash safety comes
+from the order of writes: a result file is written atomically first, then its
+row is marked finished (in one transaction with the others written meanwhile); a
+coordinator killed in between
 leaves a job 'running' that the next run requeues (its file is simply
 rewritten).  Ctrl-C once: stop submitting and let the running jobs finish;
 twice (or SIGTERM): requeue the running jobs and stop now.  Exit code 130.
