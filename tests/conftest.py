@@ -263,18 +263,31 @@ def _check_layout(info, bands):
 
 
 def _tree(path):
-    """Every dataset and attribute of a file as (dtype, bytes), so NaN compares equal to NaN."""
+    """Every dataset and attribute of a file as (dtype, bytes), so NaN compares equal to NaN;
+    object references (dimension scales) as the path of the object they point to."""
     import h5py
     items = {}
     with h5py.File(path, "r") as f:
+        def plain(v):
+            if isinstance(v, h5py.Reference):
+                return f[v].name
+            if isinstance(v, (list, tuple, np.void)) or (isinstance(v, np.ndarray) and v.dtype.kind in "OV"):
+                return [plain(x) for x in (v.tolist() if isinstance(v, np.ndarray) and v.dtype.kind == "V"
+                                           else list(v))]
+            return v
+
         def grab(name, obj):
-            attrs = {k: (v if isinstance(v, (str, bytes)) else (str(np.asarray(v).dtype), np.asarray(v).tolist()
-                         if np.asarray(v).dtype.kind in "OSU" else np.asarray(v).tobytes()))
-                     for k, v in obj.attrs.items()}
+            attrs = {}
+            for k, v in obj.attrs.items():
+                if isinstance(v, (str, bytes)):
+                    attrs[k] = v
+                else:
+                    a = np.asarray(v)
+                    attrs[k] = (str(a.dtype), plain(a) if a.dtype.kind in "OSUV" else a.tobytes())
             entry = {"attrs": attrs}
             if isinstance(obj, h5py.Dataset):
                 entry["dtype"] = str(obj.dtype)
-                entry["data"] = obj[()].tobytes()
+                entry["data"] = obj[()].tobytes() if obj.dtype.kind != "O" else plain(obj[()])
             items[name] = entry
         grab("/", f)
         f.visititems(grab)

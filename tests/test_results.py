@@ -3,8 +3,10 @@
 The ``make_result`` fixture (tests/conftest.py) builds a small, physically meaningless but
 well-formed Result, for I/O tests only; physics checks use real solves.
 """
-import shutil
+import json
 import subprocess
+import sys
+from pathlib import Path
 
 import numpy as np
 import pytest
@@ -27,21 +29,61 @@ def test_layout_readable_with_plain_h5py(make_result, plain_read, check_layout, 
     assert info["paths"]["convergence/seconds"]["units"] == "s"
 
 
-def test_h5dump_lists_the_layout(make_result, tmp_path):
-    h5dump = shutil.which("h5dump")
-    if h5dump is None:
-        pytest.skip("h5dump not installed (Debian package hdf5-tools)")
+# what `h5dump -H` lists (groups, datasets, attributes), read with h5py alone in a fresh interpreter
+HEADER_READER = r'''
+import json, sys
+import h5py
+groups, datasets, attributes = [], [], set(h5py.File(sys.argv[1], "r").attrs)
+def visit(name, obj):
+    (datasets if isinstance(obj, h5py.Dataset) else groups).append(name.rsplit("/", 1)[-1])
+    attributes.update(obj.attrs)
+h5py.File(sys.argv[1], "r").visititems(visit)
+print(json.dumps({"groups": groups, "datasets": datasets, "attributes": sorted(attributes),
+                  "selfcon_imported": any(m.startswith("selfcon") for m in sys.modules)}))
+'''
+
+
+def test_header_lists_the_layout_with_h5py_alone(make_result, tmp_path):
+    # the check `h5dump -H` made, with h5py only (CI installs Python packages only)
     out = tmp_path / "r.h5"
     results.save_result(make_result(), out)
-    proc = subprocess.run([h5dump, "-H", str(out)], capture_output=True, text=True, timeout=60)
+    proc = subprocess.run([sys.executable, "-c", HEADER_READER, str(out)], capture_output=True, text=True,
+                          timeout=120)
     assert proc.returncode == 0, proc.stderr
-    text = proc.stdout
-    for group in ("mesh", "profile", "subbands", "convergence", "summary", "electron", "heavy_hole"):
-        assert f'GROUP "{group}"' in text, group
+    head = json.loads(proc.stdout)
+    assert head["selfcon_imported"] is False
+    for group in ("mesh", "profile", "subbands", "convergence", "summary", "electron", "heavy_hole",
+                  "layer_table"):
+        assert group in head["groups"], group
     for name in ("z", "conduction_band", "electron_density", "layer_index", "layers", "energy",
-                 "wavefunction", "residual"):
-        assert f'DATASET "{name}"' in text, name
-    assert 'ATTRIBUTE "units"' in text and 'ATTRIBUTE "schema_version"' in text
+                 "wavefunction", "residual", "iteration", "state"):
+        assert name in head["datasets"], name
+    for attr in ("units", "long_name", "description", "schema_version", "DIMENSION_LIST", "CLASS"):
+        assert attr in head["attributes"], attr
+
+
+def test_file_written_before_dimension_scales_still_loads(make_result, assert_results_equal):
+    # tests/data/result_before_scales.h5: make_result(n=21) saved by the writer of commit 0ee4a81,
+    # which wrote no dimension scales, long_name or /layer_table
+    import h5py
+    old = Path(__file__).resolve().parent / "data" / "result_before_scales.h5"
+    with h5py.File(old, "r") as f:
+        assert "layer_table" not in f and "z" not in f["profile"]
+        assert "DIMENSION_LIST" not in f["profile/potential"].attrs
+    back = results.load_result(old)
+    want = make_result(n=21)
+    want.provenance["numpy_version"] = "2.4.6"              # as stored in the file
+    assert_results_equal(want, back)
+    tree = back.to_xarray()                                  # and it converts like a new one
+    assert np.array_equal(tree["profile"]["z"].values, want.z)
+
+
+def test_undeclared_dataset_is_refused(make_result, tmp_path):
+    r = make_result()
+    r.profile["made_up_field"] = np.zeros_like(r.z)
+    with pytest.raises(KeyError, match=r"profile/made_up_field.*selfcon/output/schema.py"):
+        results.save_result(r, tmp_path / "r.h5")
+    assert list(tmp_path.iterdir()) == []                   # nothing half-written
 
 
 def test_round_trip_exact(make_result, h5_tree, assert_results_equal, tmp_path):

@@ -32,6 +32,7 @@ from selfcon.batch.study import default_out_dir, expand, load_study
 from selfcon.batch.summary import summarize  # noqa: F401  (the table's figures; computed in the workers)
 from selfcon.batch.worker import resolve
 from selfcon.errors import SelfconEnvironmentError
+from selfcon.output.schema import TABLE, TABLE_SUMMARY
 
 log = logging.getLogger("selfcon.batch")
 
@@ -45,21 +46,8 @@ WRITER_THREADS = 8
 #: results waiting for their file to be written before no more jobs are sent (bounds the memory)
 MAX_PENDING_WRITES = 4 * WRITER_THREADS
 
-SUMMARY_COLUMNS = [
-    # name, units, description
-    ("electron_sheet_density_cm2", "cm-2", "electrons per area in the whole stack"),
-    ("hole_sheet_density_cm2", "cm-2", "holes per area in the whole stack"),
-    ("channel_density_cm2", "cm-2", "sheet density of the main channel (the first [[channel]] of the deck, "
-                                    "else the channel holding most carriers of the majority kind)"),
-    ("E0_eV", "eV", "ground subband energy of the main channel, relative to EF (electron energy scale)"),
-    ("E1_eV", "eV", "second subband energy of the main channel, relative to EF (electron energy scale)"),
-    ("E1_minus_E0_eV", "eV", "subband spacing E1 - E0 of the main channel's own subbands"),
-    ("E0_minus_EF_eV", "eV", "ground subband of the main channel relative to EF, in the carrier's own "
-                             "sense (negative: occupied)"),
-    ("hole_E0_eV", "eV", "highest hole subband energy (electron energy), relative to EF"),
-    ("residual_V", "V", "last max |dphi| of the self-consistent loop"),
-    ("warnings", "1", "number of design warnings of the solve (see the job's result file)"),
-]
+#: the summary figures of each job: (name, units, description), declared in selfcon/output/schema.py
+SUMMARY_COLUMNS = [(name, units, desc) for name, units, _, desc in TABLE_SUMMARY]
 
 
 # --------------------------------------------------------------------------- progress
@@ -591,52 +579,59 @@ def write_tables(con, out_dir):
     atomic_write(out_dir / "table.h5", lambda tmp: _write_table_h5(con, tmp, cols, rows), force=True)
 
 
+def path_units(path: str) -> str:
+    """Units of a varied deck path (``layer.spacer.thickness`` -> ``nm``): its unit in the deck
+    reference (selfcon.input.deck.deck_reference), spelled as in the files (``cm^-3`` ->
+    ``cm-3``; ``-``, no unit -> ``1``)."""
+    from selfcon.input.deck import deck_reference
+    parts = path.split(".")
+    if parts[0] == "layer" and len(parts) == 3:
+        key = f"layer.{parts[2]}"
+    elif parts[0] == "material" and len(parts) == 3:
+        key = f"material.NAME.{parts[2]}"
+    elif parts[0] == "substrate":
+        key = "surface." + ".".join(parts[1:])
+    else:
+        key = path
+    unit = {row[0]: row[2] for row in deck_reference()}.get(key, "-")
+    return "1" if unit in ("-", "") else unit.replace("^", "")
+
+
 def _write_table_h5(con, tmp, cols, rows):
+    """table.h5: the table as netCDF-compatible HDF5, one variable per column on the ``job``
+    dimension (declared in selfcon.output.schema.TABLE; varied columns take their path's unit)."""
     import h5py
     import numpy as np
+    from selfcon.output.netcdf import Group, set_attrs
     paths = q.get_meta(con, "paths", [])
-    units = {c[0]: c[1] for c in SUMMARY_COLUMNS}
-    desc = {c[0]: c[2] for c in SUMMARY_COLUMNS}
-    desc.update(job="job id (jobs/<id>.h5)", status="queued | running | done | not_converged | failed",
-                attempts="attempts made", converged="1 converged, 0 not, -1 no result",
-                iterations="self-consistent iterations (-1: no result)", seconds="time in the worker: the solve and building its result file",
-                warm_start="1 if started from a neighbour's potential", result="result file, relative to the folder",
-                message="solver message or error text (first line)")
-    units.update(seconds="s")
     with h5py.File(tmp, "w") as f:
-        f.attrs["schema"] = "selfcon.batch_table"
-        f.attrs["schema_version"] = 1
-        f.attrs["columns"] = cols
-        f.attrs["study"] = str(q.get_meta(con, "study_file", ""))
-        g = f.create_group("table")
-        g.attrs["columns"] = cols
+        set_attrs(f, [("schema", TABLE.schema), ("schema_version", TABLE.version), ("columns", cols),
+                      ("study", str(q.get_meta(con, "study_file", ""))),
+                      ("mode", str(q.get_meta(con, "mode", ""))),
+                      ("varied_paths", np.array(paths, dtype=h5py.string_dtype("utf-8")))])
+        g = Group.create(f, "table", TABLE)
+        set_attrs(g.h5, [("columns", cols)])
+        g.coord("job", np.array([r["job"] for r in rows], dtype=np.int64))
         for c in cols:
             vals = [r[c] for r in rows]
+            if c == "job":
+                continue
             if c in paths:
                 if all(isinstance(v, (int, float)) and not isinstance(v, bool) for v in vals):
                     data = np.array(vals, dtype=float)
                 else:
                     data = np.array([json.dumps(v) if not isinstance(v, str) else v for v in vals], dtype=object)
-                u, d = "deck units", f"varied deck path {c}"
-            elif c in ("job", "attempts"):
-                data, u, d = np.array(vals, dtype=np.int64), "1", desc[c]
+                g.var(c, data, units=path_units(c))
+            elif c == "attempts":
+                g.var(c, np.array(vals, dtype=np.int64))
             elif c == "iterations":
-                data, u, d = np.array([-1 if v is None else v for v in vals], dtype=np.int64), "1", desc[c]
+                g.var(c, np.array([-1 if v is None else v for v in vals], dtype=np.int64))
             elif c in ("converged", "warm_start"):
-                data = np.array([-1 if v is None else int(v) for v in vals], dtype=np.int8)
-                u, d = "1", desc[c]
+                g.var(c, np.array([-1 if v is None else int(v) for v in vals], dtype=np.int8))
             elif c in ("status", "result", "message"):
-                data, u, d = np.array(vals, dtype=object), "", desc[c]
+                g.var(c, np.array(["" if v is None else str(v) for v in vals], dtype=object))
             else:
-                data = np.array([math.nan if v is None else v for v in vals], dtype=float)
-                u, d = units.get(c, "1"), desc.get(c, c)
-            if data.dtype == object:
-                ds = g.create_dataset(c, data=data.astype(str).tolist() if len(data) else [],
-                                      dtype=h5py.string_dtype("utf-8"), shape=(len(data),))
-            else:
-                ds = g.create_dataset(c, data=data)
-            ds.attrs["units"] = u
-            ds.attrs["description"] = d
+                g.var(c, np.array([math.nan if v is None else v for v in vals], dtype=float))
 
 
 # --------------------------------------------------------------------------- front function

@@ -43,6 +43,7 @@ import numpy as np
 from selfcon.constants import CM2_PER_NM2, EPS0, NM_PER_CM, Q, Q_EPS0
 from selfcon.errors import DeckError, SelfconInputError
 from selfcon.model.mesh import Mesh
+from selfcon.output.schema import SWEEP
 
 if TYPE_CHECKING:
     from numpy.typing import ArrayLike
@@ -58,8 +59,8 @@ DEFAULT_THRESHOLD_CM2 = 1e10
 MAX_POINTS = 2001
 MAX_STATES = 10
 
-SCHEMA = "selfcon.bias_sweep"
-SCHEMA_VERSION = 1
+SCHEMA = SWEEP.schema
+SCHEMA_VERSION = SWEEP.version
 
 
 class SweepError(SelfconInputError):
@@ -484,93 +485,77 @@ def followed_density(result, ref: dict) -> float:
 
 # --------------------------------------------------------------------------- file
 
-DEFINITIONS = {
-    "gate_charge": "Q = -q * integral (p - n + Nd+ - Na-) dz over the semiconductor (gate side of the balance)",
-    "capacitance": "C = dQ/dV by numpy.gradient of the converged gate charge over the bias points",
-    "threshold_extrapolated": ("bias where the straight line through the steepest window of "
-                               f"{LINEAR_POINTS} consecutive points (deviation <= {100 * LINEARITY:g} % of the "
-                               "rise) of channel n_s(V) reaches zero"),
-    "threshold_crossing": "bias where channel n_s falls below threshold_cm2, interpolated in log10(n_s)",
-    "parallel_onset": ("lowest bias above which doping-layer electrons exceed fraction * channel n_s "
-                       f"(and {FLOOR_CM2:g} cm^-2) at every higher point, interpolated"),
-}
-
-
 def save_sweep(sw: BiasSweep, path, *, force: bool = True) -> None:
-    """Write the sweep as one HDF5 file, atomically (temp file, fsync, os.replace)."""
+    """Write the sweep as one HDF5 file, atomically (temp file, fsync, os.replace).
+
+    Its layout (every variable's units, long_name, description and dimensions) is declared
+    in ``selfcon.output.schema.SWEEP``; each group has its own ``bias`` coordinate (and
+    ``z``, ``layer``, ``state`` where used), so ``selfcon.open_sweep`` and netCDF readers
+    see a dataset on the bias dimension."""
     import h5py
     from selfcon.version import __version__
+    from selfcon.output.netcdf import Group, set_attrs
     from selfcon.output.result import atomic_write, utc_now
 
     def fill(tmp):
         with h5py.File(tmp, "w") as f:
-            f.attrs["schema"] = SCHEMA
-            f.attrs["schema_version"] = SCHEMA_VERSION
-            f.attrs["selfcon_version"] = __version__
-            f.attrs["created"] = utc_now()
-            f.attrs["title"] = sw.title
-            f.attrs["temperature_K"] = sw.temperature
-            f.attrs["deck"] = sw.deck_text
-            f.attrs["channel_layer"] = sw.channel_layer
-            f.attrs["channel"] = sw.channel
-            f.attrs["doping_layers"] = list(sw.doping_layers) or [""]
-            f.attrs["all_converged"] = sw.all_converged
-
-            def ds(name, data, units, desc):
-                d = f.create_dataset(name, data=data)
-                d.attrs["units"] = units
-                d.attrs["description"] = desc
-                return d
-
-            ds("bias", sw.bias, "V", "gate bias on the surface contact, in sweep order")
-            ds("converged", sw.converged.astype(np.int8), "1", "1 if the point converged")
-            ds("iterations", sw.iterations, "1", "self-consistent iterations of the point")
-            ds("warm_start", sw.warm_start.astype(np.int8), "1",
-               "1 if the point converged from the previous point's potential")
-            sd = "sheet_density"
-            ds(f"{sd}/electrons_total", sw.total_electrons, "cm-2", "electrons per area in the whole stack")
-            ds(f"{sd}/holes_total", sw.total_holes, "cm-2", "holes per area in the whole stack")
-            ds(f"{sd}/channel", sw.channel_density, "cm-2", f"sheet density of the main channel "
-               f"{sw.channel!r} (in layer {sw.channel_layer!r}), followed by depth over the sweep")
-            ds(f"{sd}/doping_layers", sw.doping_electrons, "cm-2",
-               "electrons per area in the doping layers (donor-doped layers other than the channel): "
-               "free electrons plus electrons bound on neutral donors (Nd - Nd+)")
-            ds(f"{sd}/doping_layers_free", sw.doping_free_electrons, "cm-2",
-               "free (conduction-band) electrons per area in the doping layers")
-            d = f.create_dataset("layers/name", data=sw.layer_names, dtype=h5py.string_dtype("utf-8"))
-            d.attrs["units"] = ""
-            d.attrs["description"] = "layer names, top to bottom (columns of the per-layer datasets)"
-            ds("layers/electrons", sw.layer_electrons, "cm-2", "electrons per area in each layer, (bias, layer)")
-            ds("layers/holes", sw.layer_holes, "cm-2", "holes per area in each layer, (bias, layer)")
-            ds("layers/ionized_donors", sw.layer_donors, "cm-2", "ionised donors per area, (bias, layer)")
+            set_attrs(f, [("schema", SWEEP.schema), ("schema_version", SWEEP.version),
+                          ("selfcon_version", __version__),
+                          ("created", utc_now()),
+                          ("title", sw.title), ("temperature_K", sw.temperature), ("deck", sw.deck_text),
+                          ("channel_layer", sw.channel_layer), ("channel", sw.channel),
+                          ("doping_layers", list(sw.doping_layers) or [""]),
+                          ("all_converged", sw.all_converged)])
+            root = Group(f, "", SWEEP)
+            root.coord("bias", sw.bias)
+            root.var("converged", sw.converged.astype(np.int8))
+            root.var("iterations", sw.iterations)
+            root.var("warm_start", sw.warm_start.astype(np.int8))
+            g = Group.create(f, "sheet_density", SWEEP)
+            g.coord("bias", sw.bias)
+            g.var("electrons_total", sw.total_electrons)
+            g.var("holes_total", sw.total_holes)
+            g.var("channel", sw.channel_density, note=f"{sw.channel!r} in layer {sw.channel_layer!r}")
+            g.var("doping_layers", sw.doping_electrons, note=", ".join(map(repr, sw.doping_layers)) or "none")
+            g.var("doping_layers_free", sw.doping_free_electrons)
+            g = Group.create(f, "layers", SWEEP)
+            g.coord("bias", sw.bias)
+            g.coord("layer", sw.layer_names)
+            g.var("name", sw.layer_names)
+            g.var("electrons", sw.layer_electrons)
+            g.var("holes", sw.layer_holes)
+            g.var("ionized_donors", sw.layer_donors)
+            top = Group.create(f, "subbands", SWEEP)
             for band in sw.subband_energy:
-                ds(f"subbands/{band}/energy", sw.subband_energy[band], "eV",
-                   "subband energies relative to EF, (bias, state), NaN where absent")
-                ds(f"subbands/{band}/occupation", sw.subband_occupation[band], "cm-2",
-                   "subband sheet densities, (bias, state), NaN where absent")
-            ds("gate_charge", sw.gate_charge, "C/cm2", DEFINITIONS["gate_charge"])
-            ds("capacitance", sw.capacitance, "F/cm2", DEFINITIONS["capacitance"])
-            ds("mesh/z", sw.z, "nm", "mesh nodes, z = 0 at the surface")
+                g = top.subgroup(band)
+                g.coord("bias", sw.bias)
+                g.var("energy", sw.subband_energy[band])
+                g.var("occupation", sw.subband_occupation[band])
+            root.var("gate_charge", sw.gate_charge)
+            root.var("capacitance", sw.capacitance)
+            g = Group.create(f, "mesh", SWEEP)
+            g.coord("z", sw.z)
             if sw.potential.size:
-                ds("profile/potential", sw.potential, "V", "electrostatic potential, (bias, node)")
-                ds("profile/conduction_band", sw.conduction_band, "eV",
-                   "Gamma conduction band edge relative to EF, (bias, node)")
+                g = Group.create(f, "profile", SWEEP)
+                g.coord("bias", sw.bias)
+                g.coord("z", sw.z)
+                g.var("potential", sw.potential)
+                g.var("conduction_band", sw.conduction_band)
             a = sw.analysis
-            g = "analysis"
-            ds(f"{g}/threshold_extrapolated", a["threshold_extrapolated_V"], "V", DEFINITIONS["threshold_extrapolated"])
-            ds(f"{g}/linear_window", np.array(a["linear_window_V"], float), "V",
-               "bias range of the window used for the extrapolation")
-            ds(f"{g}/linear_slope", a["linear_slope_cm2_per_V"], "cm-2/V", "dn_s/dV of the channel in that window")
-            ds(f"{g}/threshold_crossing", a["threshold_crossing_V"], "V", DEFINITIONS["threshold_crossing"])
-            ds(f"{g}/threshold_cm2", sw.threshold_cm2, "cm-2", "user threshold for threshold_crossing")
-            ds(f"{g}/parallel_onset", a["parallel_onset_V"], "V", DEFINITIONS["parallel_onset"]
-               + f"; here: {a['parallel_onset_kind']}")
-            ds(f"{g}/parallel_fraction", sw.fraction, "1", "fraction of the channel n_s for parallel_onset")
-            ds(f"{g}/gate_channel_distance", a["gate_channel_distance_nm"], "nm",
-               "capacitive gate-to-channel distance d = eps_b * integral dz/eps(z)")
-            ds(f"{g}/delta_d", a["delta_d_nm"], "nm",
-               "charge-control offset dd = eps_b/(q dn_s/dV) - d (Delagebeaudeuf and Linh 1982)")
-            ds(f"{g}/linear_capacitance", a["linear_capacitance_F_cm2"], "F/cm2", "q dn_s/dV in the linear window")
+            g = Group.create(f, "analysis", SWEEP)
+            g.var("threshold_extrapolated", a["threshold_extrapolated_V"],
+                  note=f"windows of {LINEAR_POINTS} consecutive points deviating <= {100 * LINEARITY:g} % of the "
+                       f"rise from their line")
+            g.var("linear_window", np.array(a["linear_window_V"], float))
+            g.var("linear_slope", a["linear_slope_cm2_per_V"])
+            g.var("threshold_crossing", a["threshold_crossing_V"])
+            g.var("threshold_cm2", sw.threshold_cm2)
+            g.var("parallel_onset", a["parallel_onset_V"],
+                  note=f"counted above {FLOOR_CM2:g} cm-2; {a['parallel_onset_kind']}")
+            g.var("parallel_fraction", sw.fraction)
+            g.var("gate_channel_distance", a["gate_channel_distance_nm"])
+            g.var("delta_d", a["delta_d_nm"])
+            g.var("linear_capacitance", a["linear_capacitance_F_cm2"])
             f.flush()
 
     atomic_write(path, fill, force=force, error=SweepError)

@@ -14,7 +14,7 @@ import numpy as np
 
 from selfcon.errors import SelfconInputError
 from selfcon.output.files import atomic_write
-from selfcon.output.schema import PROFILE_FIELDS
+from selfcon.output.schema import DIMS, RESULT
 
 PROFILE_CSV = "profile.csv"
 SUBBANDS_CSV = "subbands.csv"
@@ -30,13 +30,9 @@ def _num(v) -> str:
     return repr(float(v))
 
 
-def _profile_units(name):
-    from selfcon.output.schema import EXTRA_PROFILE_FIELDS, guess_units
-    if name in PROFILE_FIELDS:
-        return PROFILE_FIELDS[name][0]
-    if name in EXTRA_PROFILE_FIELDS:
-        return EXTRA_PROFILE_FIELDS[name][0]
-    return guess_units(name)
+def _units(path):
+    """Units of a result-file variable, from its declaration (selfcon/output/schema.py)."""
+    return RESULT.require(path).units
 
 
 def export_csv(result, dirpath, *, force: bool = True) -> list[Path]:
@@ -64,7 +60,8 @@ def export_csv(result, dirpath, *, force: bool = True) -> list[Path]:
     def profile(tmp):
         with open(tmp, "w", newline="", encoding="utf-8") as fh:
             w = csv.writer(fh)
-            w.writerow(["z [nm]"] + [f"{n} [{_profile_units(n)}]" for n in names] + ["layer_index [1]", "layer"])
+            w.writerow([f"z [{DIMS['z'].units}]"] + [f"{n} [{_units('profile/' + n)}]" for n in names]
+                       + [f"layer_index [{_units('profile/layer_index')}]", "layer"])
             cols = [np.asarray(result.profile[n]) for n in names]
             for i, z in enumerate(np.asarray(result.z)):
                 li = int(result.layer_index[i])
@@ -74,8 +71,9 @@ def export_csv(result, dirpath, *, force: bool = True) -> list[Path]:
     def subbands(tmp):
         with open(tmp, "w", newline="", encoding="utf-8") as fh:
             w = csv.writer(fh)
-            w.writerow(["band", "index", "energy [eV]", "occupation [cm-2]", "in_plane_mass [m0]", "region",
-                        "degeneracy", "channel", "bound"])
+            units = {n: _units(f"subbands/<band>/{n}") for n in ("energy", "occupation", "in_plane_mass")}
+            w.writerow(["band", "index"] + [f"{n} [{u}]" for n, u in units.items()]
+                       + ["region", "degeneracy", "channel", "bound"])
             names = [str(c.get("name", "")) for c in result.channels]
             for band, sb in result.subbands.items():
                 for k in range(np.asarray(sb.energy).size):
@@ -100,7 +98,8 @@ def export_csv(result, dirpath, *, force: bool = True) -> list[Path]:
         t = result.transitions or {}
         with open(tmp, "w", newline="", encoding="utf-8") as fh:
             w = csv.writer(fh)
-            w.writerow(["electron_state", "hole_band", "hole_state", "energy [eV]", "overlap [1]"])
+            w.writerow(["electron_state", "hole_band", "hole_state",
+                        f"energy [{_units('transitions/energy')}]", f"overlap [{_units('transitions/overlap')}]"])
             for row in zip(*(t.get(k, []) for k in ("electron_state", "hole_band", "hole_state", "energy",
                                                     "overlap"))):
                 w.writerow([int(row[0]), str(row[1]), int(row[2]), _num(row[3]), _num(row[4])])

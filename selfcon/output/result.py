@@ -1,32 +1,22 @@
-"""The Result of one solve and its file: the HDF5 layout of README.md, "Result file (HDF5)" (schema "selfcon.result", version 1).
+"""The Result of one solve and its file (schema "selfcon.result", version 1; README.md, "Result file (HDF5)").
 
-The file is the :class:`selfcon.output.result.Result` written out, readable with plain
-h5py, HDF5's own tools, MATLAB or Julia.  Every dataset carries ``units``
-(UDUNITS-style strings: ``nm``, ``eV``, ``V``, ``V/cm``, ``cm-3``, ``cm-2``,
-``nm-1/2``, ``m0``, ``s``, ``1``) and ``description`` attributes.
+The file is the :class:`Result` written out, readable with plain h5py, HDF5's own
+tools, MATLAB, Julia, and netCDF readers (h5netcdf, xarray, netCDF-C).  Its layout,
+every variable with its units, long_name, description and dimensions, is declared in
+:mod:`selfcon.output.schema` (README.md, "Result file (HDF5)", shows it).  Attributes::
 
-Layout (README.md, "Result file (HDF5)"; + marks additions to the first layout)::
+    /           schema, schema_version, selfcon_version, created, title, temperature_K,
+                converged, iterations, residual_V, message, deck, the provenance keys
+                (numpy_version, ..., deck_hash, wall_time_s) and provenance_keys (their names)
+    /summary    Result.summary, with warnings (array of strings) = Result.warnings;
+                a loaded Result has summary["warnings"] == warnings
 
-    /                       attrs: schema, schema_version, selfcon_version, created, title,
-                                   temperature_K, converged, iterations, residual_V, message, deck,
-                                   + provenance keys (numpy_version, ..., deck_hash, wall_time_s),
-                                   + provenance_keys (names of the provenance attributes)
-    /mesh/z                 (N,)
-    /mesh/quantum_regions + (R, 2) nm, [top, bottom] of each quantum region
-    /profile/<field>        (N,)   every key of Result.profile, plus layer_index
-    /layers                 compound table, one row per layer
-    /subbands/<band>/energy, occupation, in_plane_mass (k,), wavefunction (N, k),
-                     + region, degeneracy, channel, bound (k,)
-    /channels/<field> +     (C,) one entry per channel (schema.CHANNEL_FIELDS)
-    /transitions/<field> +  (T,) every e_n - hh_m / e_n - lh_m pair (schema.TRANSITION_FIELDS)
-    /convergence/residual   (iterations,)
-    /convergence/<name> +   per-iteration record (charge_residual, newton_steps, seconds, damping, ...)
-    /summary                attrs: Result.summary, with warnings (array of strings) = Result.warnings;
-                            a loaded Result has summary["warnings"] == warnings
-
-Writing is atomic: a temporary file in the target folder, flushed and fsync'ed,
-then ``os.replace``.  Any failure removes the temporary file and leaves an
-existing output untouched.
+Each group holds its own coordinate variables (``/mesh/z``, ``/profile/z``,
+``/subbands/<band>/z`` and ``state``, ``/channels/channel``, ``/transitions/transition``,
+``/convergence/iteration``, ``/layer``, ...), as
+netCDF-4 dimension scales.  Writing is atomic: a temporary file in the target folder,
+flushed and fsync'ed, then ``os.replace``.  Any failure removes the temporary file and
+leaves an existing output untouched.
 """
 from __future__ import annotations
 
@@ -38,10 +28,9 @@ import numpy as np
 
 from selfcon.errors import ResultFileError
 from selfcon.output.files import atomic_write as _atomic_write
-from selfcon.output.schema import (CHANNEL_FIELDS, EXTRA_PROFILE_FIELDS, LAYER_DESCRIPTIONS,
-                                   LAYER_UNITS, PROFILE_FIELDS, RECORD_FIELDS, ROOT_ATTRS, SCHEMA,
-                                   SCHEMA_VERSION, SUBBAND_FIELDS, TRANSITION_FIELDS,
-                                   guess_units)
+from selfcon.output.netcdf import Group, set_attrs
+from selfcon.output.schema import (CHANNEL_FIELDS, DIMS, RESULT, ROOT_ATTRS, SCHEMA, SCHEMA_VERSION,
+                                   SUBBAND_FIELDS, TRANSITION_FIELDS)
 from dataclasses import dataclass, field
 from typing import Any
 
@@ -235,6 +224,30 @@ class Result:
         """
         save_result(self, path, force=force)
 
+    def to_xarray(self):
+        """The result as an ``xarray.DataTree``: the result file's groups, with coordinates.
+
+        Exactly what ``xarray.open_datatree(path, engine="h5netcdf")`` gives for the saved
+        file (it is built from the same image, in memory), less the compound ``/layers``,
+        whose columns ``/layer_table`` holds one variable each.  Needs the ``xarray`` extra
+        (``pip install selfcon[xarray]``).
+
+        Examples
+        --------
+        >>> tree = selfcon.load_result("hemt_4K.h5").to_xarray()            # doctest: +SKIP
+        >>> tree["profile"].electron_density.sel(z=30.0, method="nearest")  # doctest: +SKIP
+        >>> tree["subbands/electron"].energy.sel(state=0)                   # doctest: +SKIP
+        """
+        import io
+        xr = _xarray()
+        tree = xr.open_datatree(io.BytesIO(result_image(self)), engine="h5netcdf")
+        try:
+            tree.load()
+        finally:
+            tree.close()
+        del tree["layers"]
+        return tree
+
     def __repr__(self) -> str:  # keep reprs short: arrays are large
         ns = self.summary.get("electron_sheet_density_cm2", float("nan"))
         return (f"Result(title={self.title!r}, converged={self.converged}, iterations={self.iterations}, "
@@ -242,6 +255,17 @@ class Result:
 
 
 _STR = None  # h5py.string_dtype(), set lazily
+
+
+def _xarray():
+    """xarray with its h5netcdf engine, or a clear ImportError naming the extra."""
+    try:
+        import h5netcdf  # noqa: F401
+        import xarray
+    except ImportError as exc:
+        raise ImportError(f"reading selfcon files into xarray needs xarray and h5netcdf "
+                          f"(pip install 'selfcon[xarray]'): {exc}") from None
+    return xarray
 
 
 def _h5py():
@@ -274,13 +298,6 @@ def _attr_value(value):
     raise TypeError(f"cannot store attribute value of type {type(value).__name__}")
 
 
-def _dataset(group, name, data, units, description):
-    ds = group.create_dataset(name, data=np.asarray(data), track_order=True)
-    ds.attrs["units"] = units
-    ds.attrs["description"] = description
-    return ds
-
-
 def utc_now() -> str:
     """Now as ISO 8601 UTC, seconds resolution: 2024-05-01T12:00:00Z (the ``created``
     stamp of every file selfcon writes)."""
@@ -292,48 +309,34 @@ def _write_root(f, result: Result) -> None:
     from selfcon.version import __version__
     prov = dict(result.provenance or {})
     created = prov.get("created") or utc_now()
-    a = f.attrs
-    a["schema"] = SCHEMA
-    a["schema_version"] = np.int64(SCHEMA_VERSION)
-    a["selfcon_version"] = str(prov.get("selfcon_version", __version__))
-    a["created"] = str(created)
-    a["title"] = str(result.title)
-    a["temperature_K"] = np.float64(result.temperature)
-    a["converged"] = np.bool_(result.converged)
-    a["iterations"] = np.int64(result.iterations)
-    a["residual_V"] = np.float64(result.residual)
-    a["message"] = str(result.message)
-    a["deck"] = str(result.deck_text)
+    items = [("schema", SCHEMA), ("schema_version", np.int64(SCHEMA_VERSION)),
+             ("selfcon_version", str(prov.get("selfcon_version", __version__))), ("created", str(created)),
+             ("title", str(result.title)), ("temperature_K", np.float64(result.temperature)),
+             ("converged", np.bool_(result.converged)), ("iterations", np.int64(result.iterations)),
+             ("residual_V", np.float64(result.residual)), ("message", str(result.message)),
+             ("deck", str(result.deck_text))]
     keys = []
     for key, value in prov.items():
         if (key in ROOT_ATTRS and key not in ("selfcon_version", "created")) or key == "provenance_keys":
             raise ValueError(f"provenance key {key!r} collides with a root attribute of the result file")
-        a[key] = _attr_value(value)
+        items.append((key, _attr_value(value)))
         keys.append(key)
-    a["provenance_keys"] = np.array(keys, dtype=_STR)
+    items.append(("provenance_keys", np.array(keys, dtype=_STR)))
+    set_attrs(f, items)
 
 
 def _write_mesh(f, result: Result) -> None:
-    g = f.create_group("mesh", track_order=True)
-    g.attrs["description"] = "finite-volume mesh; every profile is aligned with /mesh/z"
-    _dataset(g, "z", result.z, "nm", "node depth, z = 0 at the top surface, growing into the wafer")
-    regions = np.asarray(result.regions_nm, dtype=np.float64).reshape(-1, 2)
-    _dataset(g, "quantum_regions", regions, "nm",
-             "[top, bottom] of each quantum region; states are solved there, classical densities elsewhere")
+    g = Group.create(f, "mesh", RESULT)
+    g.coord("z", result.z)
+    g.var("quantum_regions", np.asarray(result.regions_nm, dtype=np.float64).reshape(-1, 2))
 
 
 def _write_profile(f, result: Result) -> None:
-    g = f.create_group("profile", track_order=True)
-    g.attrs["description"] = "profiles at the nodes of /mesh/z; energies relative to EF = 0 eV"
+    g = Group.create(f, "profile", RESULT)
+    g.coord("z", result.z)
     for name, data in result.profile.items():
-        if name in PROFILE_FIELDS:
-            units, desc = PROFILE_FIELDS[name]
-        elif name in EXTRA_PROFILE_FIELDS:
-            units, desc = EXTRA_PROFILE_FIELDS[name]
-        else:
-            units, desc = guess_units(name), f"profile {name}"
-        _dataset(g, name, data, units, desc)
-    _dataset(g, "layer_index", result.layer_index, *EXTRA_PROFILE_FIELDS["layer_index"])
+        g.var(name, data)
+    g.var("layer_index", result.layer_index)
 
 
 def _layer_table(layers):
@@ -371,64 +374,68 @@ def _layer_table(layers):
     return table
 
 
+def _layer_column(name: str):
+    return RESULT.require(f"layer_table/{name}")
+
+
 def _write_layers(f, result: Result) -> None:
     table = _layer_table(result.layers)
     names = list(table.dtype.names or ())
-    ds = f.create_dataset("layers", data=table, track_order=True)
-    ds.attrs["units"] = np.array([LAYER_UNITS.get(n, guess_units(n)) for n in names], dtype=_STR)
-    ds.attrs["columns"] = np.array(names, dtype=_STR)
-    ds.attrs["column_descriptions"] = np.array([LAYER_DESCRIPTIONS.get(n, n.replace("_", " ")) for n in names],
-                                               dtype=_STR)
-    ds.attrs["description"] = ("one row per deck layer, top to bottom; 'units' and 'column_descriptions' "
-                               "list one entry per column, in column order")
+    columns = [_layer_column(n) for n in names]
+    layer_names = [str(row.get("name", i)) for i, row in enumerate(result.layers)]
+    root = Group(f, "", RESULT)
+    root.coord("layer", layer_names)         # dimension only (schema: /channels/layer is a variable)
+    ds = root.var("layers", table, units=np.array([c.units for c in columns], dtype=_STR))
+    set_attrs(ds, [("columns", np.array(names, dtype=_STR)),
+                   ("column_descriptions", np.array([c.description for c in columns], dtype=_STR))])
+    g = Group.create(f, "layer_table", RESULT)
+    g.coord("layer", layer_names)
+    for name in names:
+        column = table[name]
+        if column.dtype.kind == "S":
+            column = [x.decode("utf-8") for x in column]
+        g.var(name, column)
 
 
 def _write_subbands(f, result: Result) -> None:
-    g = f.create_group("subbands", track_order=True)
-    g.attrs["description"] = "bound states per band, ordered by energy"
+    top = Group.create(f, "subbands", RESULT)
     for band, sb in result.subbands.items():
-        gb = g.create_group(band, track_order=True)
-        for name, (units, desc) in SUBBAND_FIELDS.items():
-            value = getattr(sb, name)
-            if name == "bound":
-                value = np.asarray(value, dtype=np.int8)
-            _dataset(gb, name, value, units, desc)
+        g = top.subgroup(band)
+        g.coord("z", result.z)
+        for v in RESULT.in_group(g.path):
+            g.var(v.name, getattr(sb, v.name))
 
 
 def _column(name, values):
-    """A /channels or /transitions column as an HDF5-ready array (strings as UTF-8)."""
-    if name in ("name", "carrier", "layer", "hole_band"):
-        h5py = _h5py()
-        data = [str(v).encode("utf-8") for v in values]
-        length = max([len(b) for b in data] + [1])       # fixed length: byte-identical rewrites
-        return np.array(data, dtype=h5py.string_dtype("utf-8", length))
-    if name in ("occupied_subbands", "main", "named", "electron_state", "hole_state"):
-        return np.asarray([int(v) for v in values], dtype=np.int64)
+    """A /channels or /transitions column as an array (text as str, flags and counts as int)."""
+    v = RESULT.require(name)
+    values = list(values)
+    if v.name in ("name", "carrier", "layer", "hole_band"):
+        return np.array([str(x) for x in values], dtype=object)
+    if v.name in ("occupied_subbands", "main", "named", "electron_state", "hole_state"):
+        return np.asarray([int(x) for x in values], dtype=np.int64)
     return np.asarray(values, dtype=np.float64)
 
 
 def _write_channels(f, result: Result) -> None:
-    g = f.create_group("channels", track_order=True)
-    g.attrs["description"] = ("channels: depth intervals where one carrier kind is confined, one entry "
-                              "per channel along the 'channel' dimension, top first")
-    for name, (units, desc) in CHANNEL_FIELDS.items():
-        _dataset(g, name, _column(name, [row.get(name) for row in result.channels]), units, desc)
+    g = Group.create(f, "channels", RESULT)
+    g.coord("channel", len(result.channels))
+    for v in RESULT.in_group("channels"):
+        g.var(v.name, _column(v.path, [row.get(v.name) for row in result.channels]))
 
 
 def _write_transitions(f, result: Result) -> None:
-    g = f.create_group("transitions", track_order=True)
-    g.attrs["description"] = ("interband transitions: every electron - heavy-hole and electron - "
-                              "light-hole pair of the stored states, along the 'transition' dimension")
+    g = Group.create(f, "transitions", RESULT)
     t = result.transitions or {}
-    for name, (units, desc) in TRANSITION_FIELDS.items():
-        _dataset(g, name, _column(name, t.get(name, [])), units, desc)
+    g.coord("transition", len(t.get("energy", [])))
+    for v in RESULT.in_group("transitions"):
+        g.var(v.name, _column(v.path, t.get(v.name, [])))
 
 
 def _write_convergence(f, result: Result) -> None:
-    g = f.create_group("convergence", track_order=True)
-    g.attrs["description"] = "history of the self-consistent loop, one entry per iteration"
+    g = Group.create(f, "convergence", RESULT)
     history = np.asarray(result.residual_history)
-    _dataset(g, "residual", history, *RECORD_FIELDS["residual"])
+    g.var("residual", history)
     record_keys = []
     for key, values in (result.record or {}).items():
         values = np.asarray(values)
@@ -436,19 +443,16 @@ def _write_convergence(f, result: Result) -> None:
                 and np.array_equal(values, history, equal_nan=values.dtype.kind == "f"):
             record_keys.append(key)        # same data as /convergence/residual
             continue
-        name = "record_residual" if key == "residual" else key
-        units, desc = RECORD_FIELDS.get(key, (guess_units(key), f"per-iteration record {key}"))
-        _dataset(g, name, values, units, desc)
+        g.var("record_residual" if key == "residual" else key, values)
         record_keys.append(key)
-    g.attrs["record_keys"] = np.array(record_keys, dtype=_STR)
+    g.h5.attrs["record_keys"] = np.array(record_keys, dtype=_STR)
 
 
 def _write_summary(f, result: Result) -> None:
     g = f.create_group("summary", track_order=True)      # attributes: figures only (no description)
-    for key, value in (result.summary or {}).items():
-        if key != "warnings":          # Result.warnings is the one source of the warnings attribute
-            g.attrs[key] = _attr_value(value)
-    g.attrs["warnings"] = np.array([str(w) for w in result.warnings], dtype=_STR)
+    set_attrs(g, [(key, _attr_value(value)) for key, value in (result.summary or {}).items()
+                  if key != "warnings"]            # Result.warnings is the one source of the warnings attribute
+              + [("warnings", np.array([str(w) for w in result.warnings], dtype=_STR))])
 
 
 _WRITERS = (_write_root, _write_mesh, _write_profile, _write_layers, _write_subbands,
@@ -464,7 +468,7 @@ def _write_file(path: str, result: Result) -> None:
 
 
 def save_result(result: Result, path, *, force: bool = False) -> None:
-    """Write ``result`` to ``path`` (HDF5, README.md "Result file (HDF5)") atomically.
+    """Write ``result`` to ``path`` (HDF5) atomically.
 
     Raises :class:`ResultFileError` if ``path`` exists and ``force`` is false, or if its
     folder does not exist.  On any failure the temporary file is removed and an existing
@@ -579,7 +583,7 @@ def _read_result(path: Path) -> Result:
         z = _need(f, "mesh/z", path)[()]
         regions = f["mesh/quantum_regions"][()] if "mesh/quantum_regions" in f else np.zeros((0, 2))
         gp = _need(f, "profile", path)
-        profile = {name: gp[name][()] for name in gp if name != "layer_index"}
+        profile = {name: gp[name][()] for name in gp if name != "layer_index" and name not in DIMS}
         layer_index = _need(f, "profile/layer_index", path)[()]
         table = _need(f, "layers", path)[()]
         layers = []
