@@ -6,12 +6,14 @@ Public API::
     result = selfcon.solve(deck)
     result.save("hemt.h5")
     again = selfcon.load_result("hemt.h5")
+    tree = again.to_xarray()                      # xarray.DataTree (the xarray extra)
+    cv, table = selfcon.open_sweep("cv.h5"), selfcon.open_study("study_dir")
     energies, psi = selfcon.bound_states(z_nm, band_edge_eV, mass_m0, n_states)
 
 The front functions live in :mod:`selfcon.api`; the package is grouped by pipeline
 stage (``input`` -> ``model`` -> ``solver`` -> ``output``, then ``design`` and
 ``batch``), see DEVELOPERS.md.  Importing selfcon compiles nothing and imports neither
-numba, h5py nor matplotlib; they load on first use.
+numba, h5py, matplotlib nor xarray; they load on first use.
 """
 from __future__ import annotations
 
@@ -31,6 +33,7 @@ if TYPE_CHECKING:       # names for the type hints only: importing selfcon loads
     from selfcon.output.result import Result
 
 __all__ = ["load_deck", "solve", "load_result", "bound_states", "build_structure",
+           "open_sweep", "open_study",
            "Result", "Deck", "Mixer", "register_mixer", "SelfconInputError", "DeckError",
            "__version__"]
 
@@ -198,6 +201,33 @@ def bound_states(z_nm: ArrayLike, band_edge_eV: ArrayLike, mass_m0: ArrayLike,
     """
     from selfcon.api import bound_states as _bs
     return _bs(z_nm, band_edge_eV, mass_m0, n_states)
+
+
+def open_sweep(path):
+    """A bias-sweep file as an ``xarray.Dataset`` on the ``bias`` dimension (needs the
+    ``xarray`` extra).  See :func:`selfcon.output.readers.open_sweep`.
+
+    Examples
+    --------
+    >>> cv = selfcon.open_sweep("cv.h5")                                   # doctest: +SKIP
+    >>> cv.channel_density.sel(bias=-0.6, method="nearest")                # doctest: +SKIP
+    """
+    from selfcon.output.readers import open_sweep as _open
+    return _open(path)
+
+
+def open_study(folder):
+    """A study folder's table as an ``xarray.Dataset``: a grid study on one dimension per
+    varied deck path, other studies on ``job`` (needs the ``xarray`` extra).  See
+    :func:`selfcon.output.readers.open_study`.
+
+    Examples
+    --------
+    >>> t = selfcon.open_study("inputs/studies/spacer_doping")             # doctest: +SKIP
+    >>> t.E0_eV.sel({"layer.spacer.thickness": 20.0})                      # doctest: +SKIP
+    """
+    from selfcon.output.readers import open_study as _open
+    return _open(folder)
 
 
 def __getattr__(name):
