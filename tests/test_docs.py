@@ -15,6 +15,13 @@ def test_deck_reference_table_is_current():
     assert r.returncode == 0, r.stdout + r.stderr
 
 
+def test_file_layout_tables_are_current():
+    # the README's HDF5 layout tables are generated from selfcon/output/schema.py
+    r = subprocess.run([sys.executable, str(ROOT / "tools" / "file_layout.py"), "--check"],
+                       capture_output=True, text=True)
+    assert r.returncode == 0, r.stdout + r.stderr
+
+
 def test_ci_runs_exactly_the_readme_test_command():
     readme = (ROOT / "README.md").read_text()
     blocks = re.findall(r"```bash\n(.*?)```", readme, flags=re.S)
