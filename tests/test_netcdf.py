@@ -18,7 +18,6 @@ import pytest
 
 import selfcon
 from selfcon.output.schema import DIMS, RESULT, SWEEP, TABLE
-from test_results import make_result
 
 ROOT = Path(__file__).resolve().parents[1]
 GATED = ROOT / "inputs" / "design" / "gated_delta_10K.toml"
@@ -26,7 +25,7 @@ HEMT = ROOT / "inputs" / "hemt_4K.toml"
 
 
 @pytest.fixture(scope="module")
-def result_file(tmp_path_factory):
+def result_h5(tmp_path_factory, make_result):
     path = tmp_path_factory.mktemp("result") / "r.h5"
     make_result().save(path)
     return path
@@ -102,12 +101,12 @@ def check_netcdf_layout(path, layout):
     return seen
 
 
-def test_result_file_is_netcdf_shaped(result_file):
-    seen = check_netcdf_layout(result_file, RESULT)
+def test_result_h5_is_netcdf_shaped(result_h5):
+    seen = check_netcdf_layout(result_h5, RESULT)
     for path in ("profile/z", "mesh/z", "subbands/electron/z", "subbands/electron/state", "convergence/iteration",
                  "layer", "layer_table/layer", "layer_table/material", "mesh/region", "mesh/side"):
         assert path in seen, path
-    with h5py.File(result_file, "r") as f:
+    with h5py.File(result_h5, "r") as f:
         assert np.array_equal(f["profile/z"][()], f["mesh/z"][()])
         assert [x.decode() for x in f["layer"][()]] == ["cap", "barrier", "channel"]
         assert list(f["convergence/iteration"][()]) == [1, 2, 3, 4]
@@ -138,10 +137,10 @@ def test_study_table_is_netcdf_shaped(grid_dir):
             ["layer.spacer.thickness", "layer.doping.sheet_donors"]
 
 
-def test_netcdf_c_reads_named_dimensions(result_file):
+def test_netcdf_c_reads_named_dimensions(result_h5):
     # the netCDF-C library itself (the netCDF4 package of the test extra)
     import netCDF4
-    with netCDF4.Dataset(result_file) as d:
+    with netCDF4.Dataset(result_h5) as d:
         assert d["profile"]["potential"].dimensions == ("z",)
         assert d["subbands"]["electron"]["wavefunction"].dimensions == ("z", "state")
         assert list(d["layer_table"]["material"][:]) == ["GaAs", "AlGaAs", "GaAs"]
@@ -183,12 +182,12 @@ def _compare_with_h5py(tree, path, skip=()):
     return checked
 
 
-def test_result_opens_in_xarray_with_coordinates(result_file):
-    tree = _open_tree(result_file)
-    assert _compare_with_h5py(tree, result_file, skip=("layers",)) > 40
+def test_result_opens_in_xarray_with_coordinates(result_h5):
+    tree = _open_tree(result_h5)
+    assert _compare_with_h5py(tree, result_h5, skip=("layers",)) > 40
     prof = tree["profile"].to_dataset()
     assert "z" in prof.coords and prof.sizes["z"] == 41
-    with h5py.File(result_file, "r") as f:
+    with h5py.File(result_h5, "r") as f:
         z, phi = f["mesh/z"][()], f["profile/potential"][()]
         k = int(np.argmin(np.abs(z - 12.3)))
         assert prof.potential.sel(z=12.3, method="nearest").item() == phi[k]
@@ -200,11 +199,11 @@ def test_result_opens_in_xarray_with_coordinates(result_file):
     assert list(tree["convergence"].to_dataset().iteration.values) == [1, 2, 3, 4]
 
 
-def test_to_xarray_is_the_file_view(result_file):
-    r = selfcon.load_result(result_file)
+def test_to_xarray_is_the_file_view(result_h5):
+    r = selfcon.load_result(result_h5)
     tree = r.to_xarray()
     assert "layers" not in tree.to_dataset()                # the compound table: see /layer_table
-    assert _compare_with_h5py(tree, result_file) > 40
+    assert _compare_with_h5py(tree, result_h5) > 40
     assert tree.attrs["title"] == r.title and tree["summary"].attrs["channel_layer"] == "channel"
 
 
@@ -274,9 +273,9 @@ def test_sample_study_is_indexed_by_job(tmp_path):
         assert np.array_equal(t.job.values, f["table/job"][()])
 
 
-def test_readers_refuse_other_files(result_file, tmp_path):
+def test_readers_refuse_other_files(result_h5, tmp_path):
     with pytest.raises(selfcon.SelfconInputError, match="not a selfcon bias-sweep file"):
-        selfcon.open_sweep(result_file)
+        selfcon.open_sweep(result_h5)
     with pytest.raises(selfcon.SelfconInputError, match="no such study table"):
         selfcon.open_study(tmp_path)
 
