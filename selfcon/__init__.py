@@ -203,28 +203,85 @@ def bound_states(z_nm: ArrayLike, band_edge_eV: ArrayLike, mass_m0: ArrayLike,
     return _bs(z_nm, band_edge_eV, mass_m0, n_states)
 
 
-def open_sweep(path):
-    """A bias-sweep file as an ``xarray.Dataset`` on the ``bias`` dimension (needs the
-    ``xarray`` extra).  See :func:`selfcon.output.readers.open_sweep`.
+def open_sweep(path: str | os.PathLike) -> Any:
+    """Read a bias-sweep file into an ``xarray.Dataset`` on the ``bias`` dimension.
+
+    Parameters
+    ----------
+    path : str or path-like
+        A file written by ``selfcon sweep-bias -o FILE`` or ``BiasSweep.save``.
+
+    Returns
+    -------
+    xarray.Dataset
+        Coordinates ``bias`` (V), ``layer``, ``band``, ``state``, ``z`` (nm); variables
+        such as ``channel_density`` (bias), ``layer_electrons`` (bias, layer),
+        ``subband_energy`` (bias, band, state), ``potential`` (bias, z), ``capacitance``
+        and the analysis figures (``threshold_extrapolated``, ...), each with ``units``,
+        ``long_name`` and ``description`` (README.md, "Result file (HDF5)").
+
+    Raises
+    ------
+    ResultFileError
+        Not a bias-sweep file (missing, not HDF5, another schema).
+    ImportError
+        xarray or h5netcdf missing: ``pip install "selfcon[xarray]"``.
+
+    See Also
+    --------
+    selfcon.output.readers.open_sweep : the same function, where it is implemented.
 
     Examples
     --------
-    >>> cv = selfcon.open_sweep("cv.h5")                                   # doctest: +SKIP
-    >>> cv.channel_density.sel(bias=-0.6, method="nearest")                # doctest: +SKIP
+    >>> import selfcon
+    >>> from selfcon.design import sweep_bias
+    >>> deck = selfcon.load_deck("inputs/design/gated_delta_10K.toml")
+    >>> sweep_bias(deck, [-0.8, -0.7, -0.6]).save("cv.h5")                  # doctest: +SKIP
+    >>> cv = selfcon.open_sweep("cv.h5")                                     # doctest: +SKIP
+    >>> cv.sizes["bias"], cv.channel_density.attrs["units"]                  # doctest: +SKIP
+    (3, 'cm-2')
+    >>> cv.channel_density.sel(bias=-0.65, method="nearest")                 # doctest: +SKIP
     """
     from selfcon.output.readers import open_sweep as _open
     return _open(path)
 
 
-def open_study(folder):
-    """A study folder's table as an ``xarray.Dataset``: a grid study on one dimension per
-    varied deck path, other studies on ``job`` (needs the ``xarray`` extra).  See
-    :func:`selfcon.output.readers.open_study`.
+def open_study(folder: str | os.PathLike) -> Any:
+    """Read a study's table (``FOLDER/table.h5``) into an ``xarray.Dataset``.
+
+    Parameters
+    ----------
+    folder : str or path-like
+        The study's output folder (``selfcon batch STUDY.toml`` writes ``STUDY/table.h5``).
+
+    Returns
+    -------
+    xarray.Dataset
+        A grid study on one dimension per varied deck path, each named by the path and
+        with its unit from the deck reference (``job`` is then a variable, -1 where a grid
+        point has no job); zip and sample studies on the ``job`` dimension, the varied
+        paths as coordinates along it.  One variable per table column, with units.
+
+    Raises
+    ------
+    ResultFileError
+        No study table in ``folder``, or not one written by selfcon.
+    ImportError
+        xarray or h5netcdf missing: ``pip install "selfcon[xarray]"``.
+
+    See Also
+    --------
+    selfcon.output.readers.open_study : the same function, where it is implemented.
 
     Examples
     --------
-    >>> t = selfcon.open_study("inputs/studies/spacer_doping")             # doctest: +SKIP
-    >>> t.E0_eV.sel({"layer.spacer.thickness": 20.0})                      # doctest: +SKIP
+    >>> import selfcon
+    >>> from selfcon.batch import run_study
+    >>> code, counts, out = run_study("inputs/studies/spacer_doping.toml", workers=2)  # doctest: +SKIP
+    >>> t = selfcon.open_study(out)                                                    # doctest: +SKIP
+    >>> dict(t.sizes)                                                                  # doctest: +SKIP
+    {'layer.spacer.thickness': 4, 'layer.doping.sheet_donors': 6}
+    >>> t.E0_eV.sel({"layer.spacer.thickness": 20.0})                                 # doctest: +SKIP
     """
     from selfcon.output.readers import open_study as _open
     return _open(folder)

@@ -228,15 +228,30 @@ class Result:
         """The result as an ``xarray.DataTree``: the result file's groups, with coordinates.
 
         Exactly what ``xarray.open_datatree(path, engine="h5netcdf")`` gives for the saved
-        file (it is built from the same image, in memory), less the compound ``/layers``,
-        whose columns ``/layer_table`` holds one variable each.  Needs the ``xarray`` extra
-        (``pip install selfcon[xarray]``).
+        file (it is built from the same file image, in memory), less the compound
+        ``/layers``, whose columns ``/layer_table`` holds one variable each.
+
+        Returns
+        -------
+        xarray.DataTree
+            One node per group (``profile``, ``subbands/electron``, ``layer_table``,
+            ``convergence``, ``summary``, ...); coordinates ``z`` (nm), ``state``,
+            ``layer``, ``iteration``, ...; every variable with ``units``, ``long_name``
+            and ``description``; the file's attributes as the nodes' attributes.
+
+        Raises
+        ------
+        ImportError
+            xarray or h5netcdf missing: ``pip install "selfcon[xarray]"``.
 
         Examples
         --------
-        >>> tree = selfcon.load_result("hemt_4K.h5").to_xarray()            # doctest: +SKIP
-        >>> tree["profile"].electron_density.sel(z=30.0, method="nearest")  # doctest: +SKIP
-        >>> tree["subbands/electron"].energy.sel(state=0)                   # doctest: +SKIP
+        >>> import selfcon
+        >>> tree = selfcon.solve(selfcon.load_deck("inputs/hemt_4K.toml")).to_xarray()   # doctest: +SKIP
+        >>> n = tree["profile"].electron_density.sel(z=30.0, method="nearest")           # doctest: +SKIP
+        >>> n.attrs["units"]                                                             # doctest: +SKIP
+        'cm-3'
+        >>> tree["subbands/electron"].energy.sel(state=0)                                # doctest: +SKIP
         """
         import io
         xr = _xarray()
