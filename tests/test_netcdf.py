@@ -17,6 +17,7 @@ import numpy as np
 import pytest
 
 import selfcon
+from selfcon.output.netcdf import NOT_A_VARIABLE
 from selfcon.output.schema import DIMS, RESULT, SWEEP, TABLE
 
 ROOT = Path(__file__).resolve().parents[1]
@@ -84,7 +85,10 @@ def check_netcdf_layout(path, layout):
             group, _, short = name.rpartition("/")
             if obj.attrs.get("CLASS") == b"DIMENSION_SCALE":
                 d = DIMS[short]
-                assert obj.ndim == 1 and obj.attrs["NAME"] == short.encode(), name
+                hidden = short in layout.hidden.get(group, ())
+                assert obj.ndim == 1, name
+                assert obj.attrs["NAME"].startswith(NOT_A_VARIABLE.encode()) if hidden else \
+                    obj.attrs["NAME"] == short.encode(), name
                 assert obj.attrs["units"] == d.units and obj.attrs["long_name"] == d.long_name, name
                 return
             v = layout.require(name)
@@ -287,3 +291,19 @@ def test_import_selfcon_stays_light():
     proc = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, timeout=120)
     assert proc.returncode == 0, proc.stderr
     assert proc.stdout.strip() == "[]"
+
+
+def test_solved_result_with_channels_and_transitions(hemt4_result, tmp_path):
+    # a real solve: /channels (channel dimension) and /transitions (transition dimension) too;
+    # /channels/layer is a variable of its own, not the layer coordinate
+    path = tmp_path / "hemt.h5"
+    hemt4_result.save(path)
+    seen = check_netcdf_layout(path, RESULT)
+    assert "channels/channel" in seen and "transitions/transition" in seen
+    tree = _open_tree(path)
+    assert _compare_with_h5py(tree, path, skip=("layers",)) > 50
+    ch = tree["channels"].to_dataset()
+    assert ch["layer"].dims == ("channel",) and ch.sizes["channel"] == len(hemt4_result.channels)
+    assert list(ch["layer"].values) == [c["layer"] for c in hemt4_result.channels]
+    assert tree["transitions"].to_dataset().energy.dims == ("transition",)
+    assert list(tree["layer_table"].to_dataset().layer.values) == [row["name"] for row in hemt4_result.layers]

@@ -46,8 +46,10 @@ def table(layout) -> str:
             d = DIMS[dim]
             how = (f"the index {d.start}, {d.start + 1}, ..." if d.start is not None else
                    ", ".join(f'"{x}"' for x in d.labels) if d.labels else "")
+            kind = ("*dimension:* (netCDF readers see the dimension only) "
+                    if dim in layout.hidden.get(g, ()) else "*coordinate:* ")
             lines.append(f"| `{prefix}{dim}` | {dim} | {_units(d.units)} | {_cell(d.long_name)} | "
-                         f"*coordinate:* {_cell(d.description)}{'; ' + how if how else ''} |")
+                         f"{kind}{_cell(d.description)}{'; ' + how if how else ''} |")
         for v in layout.vars.values():
             if v.group != g:
                 continue
