@@ -416,3 +416,31 @@ def test_graded_well_split_over_two_layers_is_one_channel():
     assert min(halves) > 0.4 * sum(halves)                        # the well is split about evenly
     assert r.summary["channel_electron_sheet_density_cm2"] > 0.99 * r.summary["electron_sheet_density_cm2"]
     assert not any("bottom contact" in w or "parasitic" in w for w in r.warnings)
+
+
+def test_study_summary_addresses_channels_like_tune(tmp_path):
+    # a two-job study of the inverted stack; study-summary's ns, ns:buffer and e10:channel are
+    # the main channel's column and the per-channel figures of each job's result file
+    import h5py
+    from selfcon.batch.runner import run_study
+    from selfcon.design.tolerance import quantity_key, summarize_study
+    assert quantity_key("ns") == "channel_density_cm2" and quantity_key("e0f") == "E0_minus_EF_eV"
+    assert quantity_key("ns:buffer") == "channel.buffer.sheet_density_cm2"
+    assert quantity_key("e10:channel") == "channel.channel.E1_minus_E0_eV"
+    assert quantity_key("ns_total") == "ns_total" and quantity_key("ns:") == "ns:"
+    (tmp_path / "study.toml").write_text(
+        f'deck = "{(DESIGN / "inverted_4K.toml").as_posix()}"\nmode = "grid"\n'
+        '[[vary]]\npath = "layer.lower_barrier.thickness"\nvalues = [40.0, 60.0]\n')
+    code, counts, out = run_study(tmp_path / "study.toml", workers=1, out=tmp_path / "out")
+    assert code == 0 and counts["done"] == 2
+    s = summarize_study(out, quantities=["ns", "ns:buffer", "e10:channel"])
+    files = sorted(out.rglob("*.h5"))
+    got = []
+    for f in files:
+        if f.name.startswith("table"):
+            continue
+        with h5py.File(f, "r") as fh:
+            a = fh["summary"].attrs
+            got.append((float(a["channel_electron_sheet_density_cm2"]), float(a["channel.buffer.sheet_density_cm2"]),
+                        float(a["channel.channel.E1_minus_E0_eV"])))
+    assert sorted(zip(s.columns["ns"], s.columns["ns:buffer"], s.columns["e10:channel"])) == sorted(got)

@@ -65,7 +65,9 @@ def register(subparsers):
                               description="Mean, standard deviation, 5/50/95 percentiles of every summary "
                               "quantity of a study folder and its linear sensitivity to each varied parameter.")
     u.add_argument("outdir", help="the study's output folder (holding table.h5 / table.csv)")
-    u.add_argument("--quantity", action="append", default=[], metavar="NAME", help="only these quantities")
+    u.add_argument("--quantity", action="append", default=[], metavar="NAME",
+                   help="only these quantities: a table column, a result summary key, or ns, e10, e0f, "
+                        "ns:CHANNEL, e10:CHANNEL, e0f:CHANNEL as in tune")
     u.add_argument("--plot", default=None, metavar="FIG", help="histograms and sensitivity bars")
     u.add_argument("--table-only", action="store_true", help="do not read the job result files")
     u.add_argument("--force", action="store_true", help="overwrite an existing figure")

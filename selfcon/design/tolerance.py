@@ -192,6 +192,21 @@ def summarize_table(paths: list[str], quantities: dict[str, np.ndarray], paramet
                                      **{q: np.asarray(v, float) for q, v in quantities.items()}})
 
 
+#: tune's short names (selfcon.design.tune) -> the study column or result summary key
+SHORT_NAMES = {"ns": "channel_density_cm2", "e10": "E1_minus_E0_eV", "e0f": "E0_minus_EF_eV"}
+#: ``short:NAME`` -> the per-channel result summary key ``channel.NAME.<figure>``
+CHANNEL_SHORT_NAMES = {"ns": "sheet_density_cm2", "e10": "E1_minus_E0_eV", "e0f": "ground_energy_eV"}
+
+
+def quantity_key(q: str) -> str:
+    """The table column or summary key of a quantity name: ``ns``, ``e10``, ``e0f`` (the main
+    channel's), ``ns:NAME``, ``e10:NAME``, ``e0f:NAME`` (channel NAME's), else ``q`` itself."""
+    short, sep, channel = q.partition(":")
+    if sep and short in CHANNEL_SHORT_NAMES and channel:
+        return f"channel.{channel}.{CHANNEL_SHORT_NAMES[short]}"
+    return SHORT_NAMES.get(q, q)
+
+
 def summarize_study(folder: str | os.PathLike, *, quantities: Iterable[str] | None = None,
                     from_results: bool = True) -> ToleranceSummary:
     """Statistics and linear sensitivities of a finished study (see the module docstring).
@@ -201,7 +216,8 @@ def summarize_study(folder: str | os.PathLike, *, quantities: Iterable[str] | No
     folder : str or path-like
         The study's output folder (``selfcon batch`` wrote ``table.h5``/``table.csv`` there).
     quantities : iterable of str, optional
-        Figures to summarise (default: every numeric figure column and result summary value).
+        Figures to summarise (default: every numeric figure column and result summary value);
+        ``ns``, ``e10``, ``e0f`` and ``ns:NAME``, ... as in ``tune`` (:func:`quantity_key`).
     from_results : bool, optional
         Also read the numeric ``/summary`` attributes of the job result files.
 
@@ -263,11 +279,11 @@ def summarize_study(folder: str | os.PathLike, *, quantities: Iterable[str] | No
             if np.any(np.isfinite(vals)):
                 figures[k] = vals
     if quantities:
-        missing = [q for q in quantities if q not in figures]
+        missing = [q for q in quantities if quantity_key(q) not in figures]
         if missing:
             raise StudyError(f"no quantity {missing[0]!r} in this study", key="--quantity",
                              allowed=", ".join(figures))
-        figures = {q: figures[q] for q in quantities}
+        figures = {q: figures[quantity_key(q)] for q in quantities}
     return summarize_table(paths, figures, params, folder=str(folder), n_total=len(status))
 
 
