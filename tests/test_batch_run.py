@@ -178,9 +178,16 @@ def test_grid_3x4_with_two_local_workers(tmp_path):
         assert [s.decode() for s in t["status"][()]] == ["done"] * 12
         assert t["E0_eV"].attrs["units"] == "eV"
     if REAL:
+        def channel_layer_ns(row):          # electrons in the GaAs channel layer (plain h5py)
+            with h5py.File(out / row["result"], "r") as f:
+                t = f["layers"][()]
+                return float(t["electron_sheet_density_cm2"][list(t["name"]).index(b"channel")])
         ns = {(float(r["layer.spacer.thickness"]), float(r["layer.doping.sheet_donors"])):
-              float(r["electron_sheet_density_cm2"]) for r in rows}
-        # more donors, more electrons; a thicker spacer, fewer (charge control, Delagebeaudeuf & Linh 1982)
+              channel_layer_ns(r) for r in rows}
+        # more donors, more electrons in the channel; a thicker spacer, fewer (charge control,
+        # Delagebeaudeuf & Linh 1982).  The channel layer's own electrons: the sheet's donors
+        # are metallic at these doses (issue 12), so electrons the channel cannot take stay
+        # at the sheet, and the stack's total no longer follows the spacer
         assert ns[(15.0, 5e12)] > ns[(15.0, 2e12)] > 0
         assert ns[(10.0, 5e12)] > ns[(20.0, 5e12)]
     # rerun: nothing to do, nothing recomputed

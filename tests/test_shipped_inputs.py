@@ -6,8 +6,10 @@ reference").  New files are picked up by the glob; a file that is neither fails 
 
 Check values: the job counts follow from each study's own definition (grid: the product of the
 value counts, zip: the common length, sample: ``samples``); a converged solve satisfies Gauss's
-law to the Newton residual (README "How it works": sum of n*w is exactly the sheet density), so
-a relative Gauss residual above 1e-6 is a wrong answer, not round-off.
+law to the accuracy the loop converges the mobile charge to (README "How it works": sum of n*w
+is exactly the sheet density; selfcon.solver.control stops when the charge moves by less than
+max(solver.charge_tolerance, 10 solver.tolerance), relative), so a larger relative Gauss
+residual is a wrong answer, not round-off.
 """
 import math
 import tomllib
@@ -87,6 +89,9 @@ def _deck_params():
 
 @pytest.mark.parametrize("path", _deck_params())
 def test_deck_solves_as_shipped(path):
-    r = selfcon.solve(selfcon.load_deck(path))
+    deck = selfcon.load_deck(path)
+    r = selfcon.solve(deck)
     assert r.converged, r.message
-    assert r.summary["gauss_residual"] < 1e-6
+    # (1e-6 for the default tolerances before issue 12; a pHEMT with metallic delta sheets at
+    # 300 K converged to 1e-6 V checks to 1.4e-6, within the loop's own charge criterion)
+    assert r.summary["gauss_residual"] < max(deck.solver.charge_tolerance, 10 * deck.solver.tolerance)

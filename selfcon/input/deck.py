@@ -115,6 +115,7 @@ CARRIERS = ("electron", "heavy_hole", "light_hole")
 #: (classical, 3D density of states; opt-in because they need the X/L material data)
 ALL_CARRIERS = CARRIERS + ("x_electron", "l_electron")
 IONIZATION = ("thermal", "full")
+CONTACTED = ("auto", "electron", "hole", "both")
 SOLVER_METHODS = ("predictor-corrector", "anderson", "linear")
 #: nm, the thinnest layer accepted: about half a monolayer (a GaAs monolayer is a/2 = 0.283 nm,
 #: common practice); anything thinner is a unit mistake (a thickness typed in metres or cm)
@@ -243,6 +244,12 @@ _PHYSICS = {
                         choices=ALL_CARRIERS),
     "ionization": KeySpec("string", "-", "thermal", "thermal (donor/acceptor levels, "
                           "Fermi-Dirac occupied) | full (all dopants ionised)", choices=IONIZATION),
+    "contacted_carrier": KeySpec(
+        "string", "-", "auto", "the carrier the channel's ohmic contacts reach: it keeps the "
+        "channel's Fermi level (0 eV); under a schottky surface the other carrier takes the gate "
+        "metal's level, -surface.bias (eV), so a reverse-biased gate does not invert.  auto: "
+        "electron when the stack's donors (sheets included) outnumber its acceptors, else hole; "
+        "both: one Fermi level for both carriers", choices=CONTACTED),
 }
 _QUANTUM = {
     "regions": KeySpec("regions", "nm", None, "quantum regions [[top, bottom], ...], sorted, "
@@ -428,6 +435,7 @@ class Lattice:
 class Physics:
     carriers: tuple = CARRIERS
     ionization: str = "thermal"
+    contacted_carrier: str = "auto"   # auto | electron | hole | both
 
 
 @dataclass(frozen=True)
@@ -642,6 +650,8 @@ class Deck:
             out["material"] = mats
         out["physics"] = {"carriers": list(self.physics.carriers),
                           "ionization": self.physics.ionization}
+        if self.physics.contacted_carrier != "auto":     # the default is left out: old hashes hold
+            out["physics"]["contacted_carrier"] = self.physics.contacted_carrier
         q = {}
         if self.quantum.regions is not None:
             q["regions"] = [list(r) for r in self.quantum.regions]
@@ -1370,7 +1380,8 @@ def _physics(ctx, t):
             raise ctx.error(key, f"{dup[0]!r} is listed twice", allowed=ALL_CARRIERS)
         carriers = tuple(v)
     ionization = ctx.get(t, "ionization", _PHYSICS["ionization"], p)
-    return Physics(carriers=carriers, ionization=ionization)
+    contacted = ctx.get(t, "contacted_carrier", _PHYSICS["contacted_carrier"], p)
+    return Physics(carriers=carriers, ionization=ionization, contacted_carrier=contacted)
 
 
 def _quantum(ctx, t, total):

@@ -13,7 +13,7 @@ from typing import TYPE_CHECKING, Any
 
 import numpy as np
 
-from selfcon.constants import CM2_PER_NM2, CM3_PER_NM3, KB_EV, NC_PER_M0_K
+from selfcon.constants import CM2_PER_NM2, CM3_PER_NM3, KB_EV, NC_PER_M0_K, NM_PER_CM
 from selfcon.errors import DeckError, MaterialError
 from selfcon.model import dopants
 from selfcon.model.mesh import Mesh, build_mesh
@@ -89,10 +89,27 @@ class Structure:
     #: how the stack is strained (selfcon.model.strain.StrainSummary); the per-cell strain is
     #: cell["eps_xx"], cell["eps_zz"], cell["a_par"] (in-plane lattice, nm)
     strain: Any = None
+    #: the carrier the channel's ohmic contacts reach ("electron", "hole"), or "both": one
+    #: Fermi level for both (deck physics.contacted_carrier, "auto" resolved by contacted_carrier)
+    contacted: str = "both"
 
     @property
     def z(self) -> np.ndarray:
         return self.mesh.z
+
+    @property
+    def fermi_levels(self) -> tuple[float, float]:
+        """(electron, hole) Fermi levels in eV on the electron energy scale.
+
+        The contacted carrier keeps the channel's level, 0 eV.  Under a schottky surface the
+        other carrier, the minority carrier under the gate, takes the gate metal's level,
+        -surface.bias, in the whole stack and at every bias (the gate, not the channel, is its
+        reservoir; no transport is modelled).  Otherwise both are 0.  Dopant levels are
+        occupied with the contacted carrier's level, 0."""
+        if self.surface.kind != "schottky" or self.contacted == "both":
+            return 0.0, 0.0
+        gate = 0.0 - float(self.surface.bias)          # (0.0 - 0.0 is +0.0, not -0.0)
+        return (0.0, gate) if self.contacted == "electron" else (gate, 0.0)
 
     @property
     def n_nodes(self) -> int:
@@ -369,7 +386,18 @@ def build_structure(deck: Deck, *, mesh: Mesh | None = None) -> Structure:
                      regions=regions, regions_nm=regions_nm, carriers=tuple(deck.physics.carriers),
                      full_ionization=deck.physics.ionization != "thermal",
                      states=int(deck.quantum.states), surface=_contact(deck.surface),
-                     substrate=_contact(deck.substrate), strain=summary)
+                     substrate=_contact(deck.substrate), strain=summary,
+                     contacted=contacted_carrier(deck.physics.contacted_carrier, layers))
+
+
+def contacted_carrier(choice: str, layers) -> str:
+    """The deck's physics.contacted_carrier with "auto" resolved: "electron" when the stack's
+    donors (volume density x thickness, plus sheets) outnumber its acceptors, else "hole"."""
+    if choice != "auto":
+        return choice
+    donors = sum(L.donors * (L.bottom - L.top) / NM_PER_CM + L.sheet_donors for L in layers)
+    acceptors = sum(L.acceptors * (L.bottom - L.top) / NM_PER_CM + L.sheet_acceptors for L in layers)
+    return "electron" if donors > acceptors else "hole"
 
 
 def _layer_means(layers, cell_layer, w, values):

@@ -42,13 +42,14 @@ def per_layer(st, node_density: np.ndarray) -> np.ndarray:
 
 def valley_density(st, phi, edge_cell, nc_cell) -> np.ndarray:
     """Classical density (nm^-3) of one conduction valley at the nodes, dual-cell averaged
-    with each half cell's own edge (the Poisson kernel's model)."""
+    with each half cell's own edge, at the electrons' Fermi level (the Poisson kernel's model)."""
     from selfcon.solver.statistics import fermi_half
     m = st.mesh
+    efn = st.fermi_levels[0]
     left = np.zeros(m.n)
     right = np.zeros(m.n)
-    left[1:] = nc_cell * fermi_half((phi[1:] - edge_cell) / st.kT)
-    right[:-1] = nc_cell * fermi_half((phi[:-1] - edge_cell) / st.kT)
+    left[1:] = nc_cell * fermi_half((phi[1:] - edge_cell + efn) / st.kT)
+    right[:-1] = nc_cell * fermi_half((phi[:-1] - edge_cell + efn) / st.kT)
     return (m.wl * left + m.wr * right) / m.w
 
 
@@ -103,8 +104,8 @@ def main_channel_summary(an, st, n, p, ec, ev) -> dict:
         "channel_layer": c.layer,
         "channel_electron_sheet_density_cm2": c.sheet_density if c.carrier == "electron" else inside_n,
         "channel_hole_sheet_density_cm2": c.sheet_density if c.carrier == "hole" else inside_p,
-        "ef_minus_ec_channel_eV": float(-np.min(ec[sl])),
-        "ev_minus_ef_channel_eV": float(np.max(ev[sl])),
+        "ef_minus_ec_channel_eV": float(st.fermi_levels[0] - np.min(ec[sl])),
+        "ev_minus_ef_channel_eV": float(np.max(ev[sl]) - st.fermi_levels[1]),
         "E1_minus_E0_eV": float(c.spacing),
         "E0_minus_EF_eV": float(c.ground_energy),
     }
@@ -209,6 +210,11 @@ def build_result(deck, st, loop, *, wall_time: float) -> Result:
         "donor_sheet_density_cm2": float(np.sum(ndp * w)) * CM2_PER_NM2,
         "acceptor_sheet_density_cm2": float(np.sum(nam * w)) * CM2_PER_NM2,
         "gauss_residual": float(steps.gauss_residual(ws, phi, loop.states, rho=p - n + ndp - nam)),
+        # each carrier's own Fermi level (the gate's for the minority carrier under a schottky
+        # surface); every energy in the file is relative to the contacted carrier's, 0 eV
+        "electron_fermi_level_eV": float(st.fermi_levels[0]),
+        "hole_fermi_level_eV": float(st.fermi_levels[1]),
+        "contacted_carrier": st.contacted,
         **main_channel_summary(an, st, n, p, ec, ev),
         "converged": bool(loop.converged),
         "status": int(loop.status),

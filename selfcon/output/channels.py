@@ -2,7 +2,8 @@
 
 A *channel* is a depth interval where one carrier kind (``"electron"`` or ``"hole"``) is
 confined.  Everything here works on plain arrays of the converged solution (depths in
-nm, densities in cm^-3, populations in cm^-2, energies in eV relative to EF = 0), so it
+nm, densities in cm^-3, populations in cm^-2, energies in eV relative to the contacted
+carrier's Fermi level, 0 eV; each carrier's own level is in its CarrierProfile), so it
 can be tested on its own; :mod:`selfcon.output.assemble` feeds it a solved structure.
 
 Auto-detection (:func:`detect`), for each carrier, on its band edge U(z) (Ec for
@@ -125,11 +126,13 @@ class Levels:
 @dataclass
 class CarrierProfile:
     """One carrier kind at the nodes: its band edge (eV, electron scale: Ec for electrons,
-    Ev for holes), its total density and the part of it not held by subbands (cm^-3)."""
+    Ev for holes), its total density and the part of it not held by subbands (cm^-3), and
+    its own Fermi level (eV, electron scale; the gate's for the minority carrier)."""
 
     edge: np.ndarray
     density: np.ndarray
     classical: np.ndarray
+    fermi: float = 0.0
 
 
 @dataclass(frozen=True)
@@ -462,12 +465,13 @@ def analyse(z, w, kT: float, profiles: dict, levels, layers=(), requests=()) -> 
         c.classical_density = _sheet(w, cl, c.i0, c.i1)
         mine = []             # (kinetic energy, band, index, energy, population, mass, psi)
         sign = CARRIER_SIGN[c.carrier]
+        fermi = 0.0 if prof is None else float(prof.fermi)
         for lv in levels:
             if BAND_CARRIER[lv.band] != c.carrier:
                 continue
             for k in np.flatnonzero(attribution[lv.band] == j):
                 e = float(lv.energy[k])
-                mine.append((sign * e, lv.band, int(k), e, float(lv.occupation[k]),
+                mine.append((sign * (e - fermi), lv.band, int(k), e, float(lv.occupation[k]),
                              float(lv.in_plane_mass[k])))
                 rho += float(lv.occupation[k]) * NM_PER_CM * np.asarray(lv.psi[:, k], dtype=float) ** 2
         mine.sort(key=lambda t: t[0])
@@ -475,7 +479,7 @@ def analyse(z, w, kT: float, profiles: dict, levels, layers=(), requests=()) -> 
         c.subband_density = float(sum(t[4] for t in mine))
         c.sheet_density = c.subband_density + c.classical_density
         if mine:
-            c.ground_energy = mine[0][0]                 # sign * (E0 - EF), EF = 0
+            c.ground_energy = mine[0][0]                 # sign * (E0 - EF), the carrier's own EF
             c.in_plane_mass = mine[0][5]
             if len(mine) > 1:
                 c.spacing = mine[1][0] - mine[0][0]
@@ -638,17 +642,19 @@ def from_structure(structure, phi, loop_states, *, n, p, classical_n, classical_
     from selfcon.solver.spectrum import full_spectrum
     from selfcon.solver.statistics import subband_density
     st = structure
+    efn, efp = st.fermi_levels                  # each carrier's own Fermi level
     spectrum = full_spectrum(st, phi, loop_states)
     occupation, levels = {}, []
     for band, bs in spectrum.items():
         occ = np.zeros(bs.energy.size)
         if np.any(bs.populated):
             sel = bs.populated
-            occ[sel] = subband_density(bs.energy[sel], bs.dos[sel], st.temperature, bs.sign) * CM2_PER_NM2
+            occ[sel] = subband_density(bs.energy[sel], bs.dos[sel], st.temperature, bs.sign,
+                                       efn if bs.sign > 0 else efp) * CM2_PER_NM2
         occupation[band] = occ
         levels.append(Levels(band, bs.energy, occ, bs.psi, bs.m_par))
-    profiles = {"electron": CarrierProfile(edges["electron"], n, classical_n),
-                "hole": CarrierProfile(edges["hole"], p, classical_p)}
+    profiles = {"electron": CarrierProfile(edges["electron"], n, classical_n, efn),
+                "hole": CarrierProfile(edges["hole"], p, classical_p, efp)}
     an = analyse(st.z, st.mesh.w, st.kT, profiles, levels, layer_spans(st), requests)
     return SolvedChannels(spectrum=spectrum, occupation=occupation, analysis=an,
                           transitions=transitions(levels, st.mesh.w))

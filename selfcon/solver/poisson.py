@@ -28,7 +28,10 @@ class PoissonProblem:
     """Everything the Poisson kernels need.  Per-cell arrays have length N-1, per-node N.
 
     Cells: eps, ec0, ev0 (eV), nc, nv (nm^-3, effective DOS; 0 switches a carrier off),
-    nd, na (nm^-3), ed, ea (binding energies, eV).  Nodes: sheet_nd, sheet_na (nm^-2).
+    nd, na (nm^-3), ed, ea (binding energies, eV).  Nodes: sheet_nd, sheet_na (nm^-2) with
+    their binding energies sheet_ed, sheet_ea (eV; default: those of the cell right of the
+    node, the left one at the last node).  efn, efp (eV, electron energy scale): the Fermi
+    levels of electrons and holes (default 0; the dopant levels are always occupied with 0).
     Quantum part (predictor-corrector): cls_e, cls_h (N,) masks (1 classical, 0 quantum),
     psi2 (N, Ke) |psi|^2 (nm^-1), ek (Ke,) eV, dos_e (Ke,) nm^-2 eV^-1; psi2h, ekh, dos_h
     for holes (hole levels in electron energy); ec0_v, nc_v (V, N-1) further classical
@@ -67,6 +70,10 @@ class PoissonProblem:
     nc_v: np.ndarray = None
     ev0_v: np.ndarray = None
     nv_v: np.ndarray = None
+    sheet_ed: np.ndarray = None
+    sheet_ea: np.ndarray = None
+    efn: float = 0.0
+    efp: float = 0.0
     h: np.ndarray = field(init=False)
     wl: np.ndarray = field(init=False)
     wr: np.ndarray = field(init=False)
@@ -87,6 +94,14 @@ class PoissonProblem:
         for k in ("sheet_nd", "sheet_na", "phi_ref"):
             a = getattr(self, k)
             set_(k, np.zeros(N) if a is None else _f(a))
+        for k, cell in (("sheet_ed", self.ed), ("sheet_ea", self.ea)):
+            a = getattr(self, k)
+            set_(k, np.append(cell, cell[-1]) if a is None else _f(a))
+        for k in ("sheet_nd", "sheet_na", "phi_ref", "sheet_ed", "sheet_ea"):
+            if getattr(self, k).shape != (N,):
+                raise ValueError(f"PoissonProblem: {k} must be per node, shape ({N},)")
+        set_("efn", float(self.efn))
+        set_("efp", float(self.efp))
         for k in ("cls_e", "cls_h"):
             a = getattr(self, k)
             set_(k, np.ones(N) if a is None else _f(a))
@@ -157,8 +172,9 @@ class PoissonProblem:
         """The (Grid, Material, Quantum) bundles of the kernels (selfcon.solver.kernels.bundles)."""
         return (Grid(self.h, self.wl, self.wr),
                 Material(self.eps, self.ec0, self.ev0, self.nc, self.nv, self.nd, self.ed,
-                         self.na, self.ea, self.sheet_nd, self.sheet_na, self.ec0_v, self.nc_v,
-                         self.ev0_v, self.nv_v, float(self.kT), bool(self.full_ionization)),
+                         self.na, self.ea, self.sheet_nd, self.sheet_na, self.sheet_ed,
+                         self.sheet_ea, self.ec0_v, self.nc_v, self.ev0_v, self.nv_v,
+                         float(self.kT), bool(self.full_ionization), self.efn, self.efp),
                 Quantum(self.cls_e, self.cls_h, self.psi2, self.ek, self.dos_e, self.psi2h,
                         self.ekh, self.dos_h, self.phi_ref, float(self.qshift)))
 
@@ -216,12 +232,14 @@ def total_charge(problem, phi):
 
 
 def neutral_potential(ec0, ev0, nc, nv, nd, ed, na, ea, kT, full_ionization=False, valleys=(),
-                      holes=()):
+                      holes=(), efn=0.0, efp=0.0):
     """phi (V) at which bulk material with these (one cell's) parameters is neutral.
 
     rho(phi) = p - n + Nd+ - Na- decreases strictly with phi; a bracket around the band
     gap is widened until rho changes sign, then brentq (xtol 1e-13 V).  ``valleys``: further
-    conduction valleys (edge, effective DOS); ``holes``: further valence bands (edge, DOS)."""
+    conduction valleys (edge, effective DOS); ``holes``: further valence bands (edge, DOS);
+    ``efn``, ``efp``: the electrons' and holes' Fermi levels (eV; dopants occupied with 0),
+    the same charge model as the kernels."""
     from scipy.optimize import brentq
     from selfcon.solver.kernels import statistics as ks
     full = bool(full_ionization)
@@ -229,14 +247,14 @@ def neutral_potential(ec0, ev0, nc, nv, nd, ed, na, ea, kT, full_ionization=Fals
     def rho(phi):
         ec = ec0 - phi
         ev = ev0 - phi
-        n = nc * ks.fermi_half(-ec / kT) if nc > 0 else 0.0
-        p = nv * ks.fermi_half(ev / kT) if nv > 0 else 0.0
+        n = nc * ks.fermi_half((efn - ec) / kT) if nc > 0 else 0.0
+        p = nv * ks.fermi_half((ev - efp) / kT) if nv > 0 else 0.0
         for ecv, ncv in valleys:           # further conduction valleys (X, L)
             if ncv > 0:
-                n += ncv * ks.fermi_half((phi - ecv) / kT)
+                n += ncv * ks.fermi_half((phi - ecv + efn) / kT)
         for evv, nvv in holes:             # further valence bands (strained light hole)
             if nvv > 0:
-                p += nvv * ks.fermi_half((evv - phi) / kT)
+                p += nvv * ks.fermi_half((evv - phi - efp) / kT)
         return (p - n + ks.donor_ionized(nd, ec, ed, kT, full)[0]
                 - ks.acceptor_ionized(na, ev, ea, kT, full)[0])
 
@@ -266,7 +284,7 @@ def cell_neutral_potential(problem, c):
     valleys = [(p.ec0_v[v, c], p.nc_v[v, c]) for v in range(p.ec0_v.shape[0])]
     holes = [(p.ev0_v[v, c], p.nv_v[v, c]) for v in range(p.ev0_v.shape[0])]
     return neutral_potential(p.ec0[c], p.ev0[c], p.nc[c], p.nv[c], p.nd[c], p.ed[c], p.na[c],
-                             p.ea[c], p.kT, p.full_ionization, valleys, holes)
+                             p.ea[c], p.kT, p.full_ionization, valleys, holes, p.efn, p.efp)
 
 
 def electric_field(z, phi):

@@ -20,7 +20,7 @@ from selfcon.constants import HBAR2_2M0  # noqa: F401  (documented unit of the o
 from selfcon.model.mesh import half_widths
 
 __all__ = ["EigenWorkspace", "solve_region", "count_below", "bound_states", "bound_states_cells",
-           "in_plane_mass", "in_plane_states"]
+           "in_plane_mass", "in_plane_weights", "thermal_in_plane_energy"]
 
 
 def _kernels():
@@ -229,56 +229,55 @@ def thermal_in_plane_energy(x):
     return 1.0 + 0.5 * np.logaddexp(0.0, x)
 
 
-#: the in-plane coupling is applied between subbands split by less than about the thermal
-#: in-plane energy / IN_PLANE_TAPER (a Gaussian taper in the splitting)
+#: subbands closer than the thermal in-plane energy / IN_PLANE_TAPER count as degenerate
+#: (a Gaussian weight in their splitting, see in_plane_weights)
 IN_PLANE_TAPER = 10.0
 
 
-def in_plane_states(energies, psi, w, inv_mass_node, kT, fermi=0.0):
-    """Subbands with their in-plane motion: near-degenerate states of different materials
-    separated into the states of each material; well separated subbands left as they are.
+def in_plane_weights(energies, psi, w, mass_node, kT, fermi=0.0):
+    """In-plane (2D density-of-states) masses and density weights of subbands, such that the
+    charge does not depend on how the eigensolver mixes nearly degenerate states.
 
-    With a position-dependent mass the in-plane kinetic energy eps M (eps = hbar^2 k^2/2m0,
-    M_ij = sum_z w psi_i psi_j / m(z) in 1/m0) couples the eigenstates of the z problem.  For
-    well separated subbands the coupling is a small correction and the usual first-order
-    masses 1/M_ii hold (:func:`in_plane_mass`).  Nearly degenerate states in different
-    materials, though -- a level of a doping-sheet well in AlGaAs crossing a channel level
-    in GaAs, split by tunnelling far less than the coupling at thermal k -- are the case of
-    degenerate perturbation theory: the in-plane motion decides the basis, and each state
-    stays in its own well with its own mass.  The z problem alone gives an arbitrary,
-    potential-sensitive mixture there, whose density changes with the mixing through the
-    per-state mass: a sensitivity the charge has in no real system, and one that stalls the
-    self-consistent loop (the mixture swaps over a potential change of the tunnel splitting).
+    A subband's in-plane dispersion is hbar^2 k^2/2 <1/m> to first order in k^2, so an
+    isolated subband has the harmonic mass m_h = 1/<1/m> (:func:`in_plane_mass`) and holds
+    the charge D(m_h) F |psi|^2.  That rule depends on the mixture of two nearly degenerate
+    states in different materials (a level of a doping-sheet well in AlGaAs crossing a
+    channel level in GaAs): the eigensolver's mixture swaps over a potential change of
+    their tunnel splitting, and with it the masses, so the charge jumps between the wells
+    over a few microvolts, which stalls the self-consistent loop.  For degenerate states the
+    in-plane motion itself decides (degenerate perturbation theory in hbar^2 k^2/2m(z)),
+    and the charge that does not depend on the mixture is the local one,
+    F m(z)/(pi hbar^2) sum |psi|^2: the arithmetic mass <m> with the density weight
+    |psi|^2 m(z)/<m>.
 
-    The states are rotated to the eigenvectors of H = diag(E) + eps (M o S) at the thermal
-    in-plane energy eps = kT g(x) / (tr M / k), x = (fermi - E_min)/kT
-    (:func:`thermal_in_plane_energy`), with the taper S_ij = exp(-((E_i - E_j)/D)^2),
-    D = kT g(x) / IN_PLANE_TAPER: within a group of levels closer than D the coupling is the
-    full in-plane operator, so the result does not depend on how the eigensolver mixed them;
-    between subbands split by much more than D it is absent, and they keep their eigenstates
-    and first-order masses exactly.  Everything is smooth in the potential.
+    Each state k takes c_k = 1 - prod_j (1 - exp(-((E_k - E_j)/D)^2)), its degeneracy with
+    the others on the scale D = kT g(x) / IN_PLANE_TAPER (g the mean in-plane kinetic energy
+    in kT, :func:`thermal_in_plane_energy`, x = (fermi - E_min)/kT), and blends the two:
+    mass (1 - c) m_h + c <m>, weight |psi|^2 ((1 - c) + c m(z)/<m>) (integral 1).  Isolated
+    subbands (split far beyond D, every ordinary case) keep exactly the first-order result;
+    degenerate ones the invariant local one; in between everything is smooth.  (A rotation
+    of the states by the in-plane operator at one thermal k, tried first, moves the sharp
+    mixing to another potential instead of removing it.)
 
-    energies (k,) eV on the carrier's kinetic scale (up = more energy), psi (n, k)
-    normalised with w, inv_mass_node (n,) 1/m at the nodes, kT (eV), fermi (eV) the
-    carrier's Fermi level on the same scale.  Returns (energies (k,) = <H_z> of each state,
-    psi (n, k), in-plane masses (k,) = 1/<1/m>), lowest energy first.
+    energies (k,) eV on the carrier's kinetic scale (up = more energy), psi (n, k) with
+    sum_z w psi^2 = 1, mass_node (n,) in-plane mass at the nodes (m0), kT (eV), fermi (eV)
+    the carrier's Fermi level on the same scale.  Returns (masses (k,) m0, weights (n, k)).
     """
     e = np.asarray(energies, dtype=float)
     psi = np.asarray(psi, dtype=float)
     w = np.asarray(w, dtype=float)
-    wm = w * np.asarray(inv_mass_node, dtype=float)
-    norm = w @ (psi * psi)
-    m = psi.T @ (wm[:, None] * psi)
-    m = 0.5 * (m + m.T)
+    m = np.asarray(mass_node, dtype=float)
+    p2 = psi * psi
+    norm = w @ p2
+    harmonic = norm / ((w / m) @ p2)
+    arithmetic = ((w * m) @ p2) / norm
     if e.size < 2:
-        return e.copy(), psi.copy(), norm / np.diag(m)
-    thermal = kT * thermal_in_plane_energy((fermi - e.min()) / kT)      # eV
-    eps = thermal * e.size / np.trace(m)
-    de = (e[:, None] - e[None, :]) * (IN_PLANE_TAPER / thermal)
-    h = eps * m * np.exp(-de * de)
-    h[np.diag_indices_from(h)] += e
-    _, u = np.linalg.eigh(h)
-    e_new = (u * u).T @ e
-    m_new = np.einsum("ik,ij,jk->k", u, m, u)
-    order = np.argsort(e_new, kind="stable")
-    return e_new[order], (psi @ u)[:, order], (norm.mean() / m_new)[order]
+        return harmonic, p2.copy()
+    spread = kT * thermal_in_plane_energy((fermi - e.min()) / kT) / IN_PLANE_TAPER
+    d = (e[:, None] - e[None, :]) / spread
+    s = np.exp(-d * d)
+    np.fill_diagonal(s, 0.0)
+    c = 1.0 - np.prod(1.0 - s, axis=1)
+    mass = (1.0 - c) * harmonic + c * arithmetic
+    weight = p2 * ((1.0 - c)[None, :] + c[None, :] * m[:, None] / arithmetic[None, :])
+    return mass, weight

@@ -1,6 +1,7 @@
 """Carrier statistics, Python side: thin array wrappers over selfcon.solver.kernels.statistics.
 
-Internal units (DEVELOPERS.md, "Conventions"): eV, K, nm^-3, nm^-2; EF = 0.  numba is imported
+Internal units (DEVELOPERS.md, "Conventions"): eV, K, nm^-3, nm^-2; EF = 0 unless a
+function takes the carrier's own Fermi level.  numba is imported
 only when one of these functions is first called.
 """
 import numpy as np
@@ -43,8 +44,9 @@ def dos2d(mass_par_m0, valleys=1):
     return valleys * DOS2D_PER_M0 * np.asarray(mass_par_m0, dtype=float)
 
 
-def subband_density(energies, dos, temperature, sign=1):
-    """Sheet density (nm^-2) per subband; sign +1 electrons, -1 holes (energies in eV)."""
+def subband_density(energies, dos, temperature, sign=1, fermi=0.0):
+    """Sheet density (nm^-2) per subband; sign +1 electrons, -1 holes (energies in eV, on the
+    electron energy scale); ``fermi``: the carrier's own Fermi level (eV, same scale)."""
     kT = KB_EV * temperature
-    return _k().subband_density(np.ascontiguousarray(energies, dtype=float),
+    return _k().subband_density(np.ascontiguousarray(np.asarray(energies, dtype=float) - fermi),
                                 np.ascontiguousarray(dos, dtype=float), kT, int(sign))

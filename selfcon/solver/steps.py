@@ -74,6 +74,8 @@ class BandStates:
     degeneracy: np.ndarray    # (k,)
     sign: int
     quantum_nodes: np.ndarray  # (N,) bool: nodes whose density of this carrier comes from these states
+    weight: np.ndarray = None  # (N, k) density weight per state (|psi|^2 but for nearly degenerate
+                               # states, schrodinger.in_plane_weights), sum_z w weight = 1
 
 
 # --------------------------------------------------------------------------- the workspace
@@ -136,13 +138,16 @@ def classical_problem(st: Structure, bc=None) -> P.PoissonProblem:
     ev0, nv, ev_v, nv_v = hole_arrays(st)
     top, bottom = bc if bc is not None else ((P.ZERO_FIELD, 0.0), (P.ZERO_FIELD, 0.0))
     ec_v, nc_v = valley_arrays(st)
+    efn, efp = st.fermi_levels
     return P.PoissonProblem(z=st.z, eps=c["eps"], ec0=c["ec_gamma"], ev0=ev0, nc=nc, nv=nv,
                             nd=c["donors"], ed=statistics_binding(c["donor_binding"]),
                             na=c["acceptors"], ea=statistics_binding(c["acceptor_binding"]),
                             temperature=st.temperature,
                             sheet_nd=st.sheet_donors, sheet_na=st.sheet_acceptors,
+                            sheet_ed=statistics_binding(st.sheet_ed),
+                            sheet_ea=statistics_binding(st.sheet_ea),
                             full_ionization=st.full_ionization, top=top, bottom=bottom,
-                            ec0_v=ec_v, nc_v=nc_v, ev0_v=ev_v, nv_v=nv_v)
+                            ec0_v=ec_v, nc_v=nc_v, ev0_v=ev_v, nv_v=nv_v, efn=efn, efp=efp)
 
 
 def valley_rows(st: Structure, name):
@@ -188,7 +193,7 @@ def with_states(base: P.PoissonProblem, n_nodes: int, phi_ref, states, shift=1.0
     kw = {}
     e = states.get("electron")
     if e is not None:
-        kw.update(cls_e=np.where(e.quantum_nodes, 0.0, 1.0), psi2=np.ascontiguousarray(e.psi ** 2),
+        kw.update(cls_e=np.where(e.quantum_nodes, 0.0, 1.0), psi2=np.ascontiguousarray(e.weight),
                   ek=e.energy, dos_e=e.dos)
     holes = [states[b] for b in HOLE_BANDS if b in states]
     if holes:
@@ -196,7 +201,7 @@ def with_states(base: P.PoissonProblem, n_nodes: int, phi_ref, states, shift=1.0
         for hb in holes:
             qn |= hb.quantum_nodes
         kw.update(cls_h=np.where(qn, 0.0, 1.0),
-                  psi2h=np.ascontiguousarray(np.concatenate([hb.psi ** 2 for hb in holes], axis=1)),
+                  psi2h=np.ascontiguousarray(np.concatenate([hb.weight for hb in holes], axis=1)),
                   ekh=np.concatenate([hb.energy for hb in holes]),
                   dos_h=np.concatenate([hb.dos for hb in holes]))
     prob = base.with_quantum(phi_ref=np.asarray(phi_ref, dtype=float), **kw)
@@ -308,7 +313,8 @@ def solve_states(ws: Workspace, phi) -> dict:
     for band, (_, _, _, sign, gval) in BAND_SPECS.items():
         if band not in st.carriers or not st.regions:
             continue
-        energies, psis, mpar, regs = [], [], [], []
+        fermi = st.fermi_levels[0 if sign > 0 else 1]             # the carrier's own level
+        energies, psis, mpar, regs, weights = [], [], [], [], []
         qnodes = np.zeros(st.n_nodes, dtype=bool)
         for r_idx, (i0, i1) in enumerate(st.regions):
             if i1 - i0 < 3:
@@ -325,27 +331,29 @@ def solve_states(ws: Workspace, phi) -> dict:
             k = ws.n_states[band]
             while True:
                 e, psi = region_eigenstates(st, phi, band, r_idx, k, workspace=eig)
-                occ = subband_density(e, np.ones(e.size), st.temperature, sign)
+                occ = subband_density(e, np.ones(e.size), st.temperature, sign, fermi)
                 if (e.size < k or k >= MAX_STATES or occ.sum() <= 0
                         or occ[-1] < TOP_STATE_FRACTION * occ.sum()):
                     break
                 k = min(2 * k, MAX_STATES)
                 ws.n_states[band] = k
-            e, psi, m_par = in_plane_motion(st, band, e, psi)
+            m_par, weight = in_plane_motion(st, band, e, psi)
             energies.append(e)
             psis.append(psi)
             mpar.append(m_par)
+            weights.append(weight)
             regs.append(np.full(e.size, r_idx))
         if not energies:
             continue
         E = np.concatenate(energies)
         order = np.argsort(sign * E, kind="stable")     # lowest kinetic energy first
         psi = np.concatenate(psis, axis=1)[:, order]
+        weight = np.concatenate(weights, axis=1)[:, order]
         m_par = np.concatenate(mpar)[order]
         deg = np.full(E.size, float(gval))
         out[band] = BandStates(band=band, energy=E[order], psi=psi, m_par=m_par,
                                dos=deg * DOS2D_PER_M0 * m_par, region=np.concatenate(regs)[order],
-                               degeneracy=deg, sign=sign, quantum_nodes=qnodes)
+                               degeneracy=deg, sign=sign, quantum_nodes=qnodes, weight=weight)
     return out
 
 
@@ -377,16 +385,15 @@ def region_eigenstates(st: Structure, phi, band: str, r_idx: int, n_states: int,
 
 
 def in_plane_motion(st: Structure, band: str, energy, psi):
-    """The states of one region with their in-plane motion (selfcon.solver.schrodinger.
-    in_plane_states): near-degenerate states of different materials separate into the
-    states of each; returns (energy on the electron scale, psi, in-plane mass (k,) m0).
-    EF = 0 on the kinetic scale too."""
+    """The in-plane motion of the states of one region (selfcon.solver.schrodinger.
+    in_plane_weights): the in-plane masses (k,) m0 and the density weights (N, k), such that
+    the charge of nearly degenerate states does not depend on their mixture.  ``energy``
+    on the electron scale; the carrier's own Fermi level."""
     from selfcon.solver import schrodinger
     par_key, sign = BAND_SPECS[band][2], BAND_SPECS[band][3]
-    m_par_node = st.node_average(st.cell[par_key])
-    e, psi, m_par = schrodinger.in_plane_states(sign * np.asarray(energy), psi, st.mesh.w,
-                                                1.0 / m_par_node, st.kT)
-    return sign * e, psi, m_par
+    fermi = st.fermi_levels[0 if sign > 0 else 1]
+    return schrodinger.in_plane_weights(sign * np.asarray(energy), psi, st.mesh.w,
+                                        st.node_average(st.cell[par_key]), st.kT, sign * fermi)
 
 
 def region_states(st: Structure, phi, band: str, r_idx: int, n_states: int, workspace=None, below=None):
@@ -396,7 +403,7 @@ def region_states(st: Structure, phi, band: str, r_idx: int, n_states: int, work
     e, psi = region_eigenstates(st, phi, band, r_idx, n_states, workspace, below=below)
     if e.size == 0:
         return e, psi, np.empty(0)
-    return in_plane_motion(st, band, e, psi)
+    return e, psi, in_plane_motion(st, band, e, psi)[0]
 
 
 def classical_sheet(ws: Workspace, phi, band, i0, i1) -> float:

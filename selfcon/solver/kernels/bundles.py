@@ -39,10 +39,13 @@ class Material(NamedTuple):
     Cells (N-1,): ``eps`` relative permittivity; ``ec0``, ``ev0`` band edges without
     electrostatics (eV); ``nc``, ``nv`` effective densities of states (nm^-3, 0 switches the
     carrier off); ``nd``, ``na`` dopants (nm^-3); ``ed``, ``ea`` their binding energies (eV).
-    Nodes (N,): ``sheet_nd``, ``sheet_na`` (nm^-2).  ``ec0_v``, ``nc_v`` (V, N-1): further
+    Nodes (N,): ``sheet_nd``, ``sheet_na`` (nm^-2) and their binding energies ``sheet_ed``,
+    ``sheet_ea`` (eV; -inf: no bound state, fully ionised).  ``ec0_v``, ``nc_v`` (V, N-1): further
     classical conduction valleys (X, L; V may be 0).  ``ev0_v``, ``nv_v`` (W, N-1): further
     classical valence bands (the light hole of a strained layer, at its own edge; W may be 0).
-    ``kT`` (eV); ``full``: full ionisation.
+    ``kT`` (eV); ``full``: full ionisation; ``efn``, ``efp`` (eV, electron energy scale): the
+    Fermi levels of the electrons and of the holes (0 and 0 unless the gate sets the minority
+    carrier's level); dopant levels are occupied with EF = 0.
     """
 
     eps: np.ndarray
@@ -56,12 +59,16 @@ class Material(NamedTuple):
     ea: np.ndarray
     sheet_nd: np.ndarray
     sheet_na: np.ndarray
+    sheet_ed: np.ndarray
+    sheet_ea: np.ndarray
     ec0_v: np.ndarray
     nc_v: np.ndarray
     ev0_v: np.ndarray
     nv_v: np.ndarray
     kT: float
     full: bool
+    efn: float
+    efp: float
 
 
 class Quantum(NamedTuple):

@@ -11,28 +11,33 @@ width h[c], half-cell widths wl[i] = h[i-1]/2 (0 at i = 0), wr[i] = h[i]/2 (0 at
 w = wl + wr.
 Material data is per cell; every cell is one material.
 
-Charge model at node i, potential phi_i (V), EF = 0, densities nm^-3, in units of q:
+Charge model at node i, potential phi_i (V), densities nm^-3, in units of q.  Fermi levels
+(eV, electron energy scale): efn of the electrons, efp of the holes (quasi-Fermi levels: they
+differ when the gate metal, not the channel, sets the minority carrier's level); the dopant
+levels are occupied with EF = 0, the contacted carrier's level:
   each half cell c in {i-1, i} is evaluated with ITS OWN parameters at phi_i:
     Ec = ec0[c] - phi_i, Ev = ev0[c] - phi_i,
-    n_c = nc[c] F_{1/2}(-Ec/kT), p_c = nv[c] F_{1/2}(Ev/kT),
+    n_c = nc[c] F_{1/2}((efn - Ec)/kT), p_c = nv[c] F_{1/2}((Ev - efp)/kT),
     Nd+_c = nd[c]/(1 + 2 exp((Ed - Ec)/kT)), Na-_c = na[c]/(1 + 4 exp((Ev + Ea)/kT))
-    (or Nd+ = nd, Na- = na with full ionisation);
+    (or Nd+ = nd, Na- = na with full ionisation; a binding energy of -inf is a dopant
+    without a bound state, fully ionised);
   classical node density = (wl * x_{i-1} + wr * x_i) / w.
   Sheets (nm^-2 at the node): ionised fraction = the wl/wr-weighted mean of the two
-  half cells' fractions (each with its cell's Ec and binding energy); contributes s f / w.
+  half cells' fractions (each with its cell's Ec and the sheet's own binding energy
+  sheet_ed[i], sheet_ea[i]); contributes s f / w.
   Quantum part (predictor-corrector of Trellakis et al., J. Appl. Phys. 81, 7880 (1997)):
-    n_q,i = sum_k psi2[i,k] dos_e[k] kT ln(1 + exp((-E_k + dphi_i)/kT)),
-    p_q,i = sum_k psi2h[i,k] dos_h[k] kT ln(1 + exp((E_k - dphi_i)/kT)),  dphi = phi - phi_ref,
+    n_q,i = sum_k psi2[i,k] dos_e[k] kT ln(1 + exp((efn - E_k + dphi_i)/kT)),
+    p_q,i = sum_k psi2h[i,k] dos_h[k] kT ln(1 + exp((E_k - dphi_i - efp)/kT)),  dphi = phi - phi_ref,
   i.e. the subbands move rigidly with the local potential change, so d rho_i / d phi_i is
   local (the Jacobian stays tridiagonal).  qshift scales dphi: 1 is the predictor, 0 holds the
   quantum density frozen at phi_ref (the Poisson pass of classic mixing schemes).
   Mixing of the two: n_i = cls_e[i] n_classical,i + (1 - cls_e[i]) n_q,i (same for holes
   with cls_h); masks are 1 for classical nodes, 0 for quantum ones (fractions allowed).
   Further conduction valleys v (X, L; rows of ec0_v, nc_v, shape (V, N-1), V may be 0)
-  are classical everywhere and added to n after the masks: n_v = nc_v F_{1/2}((phi - ec0_v)/kT).
+  are classical everywhere and added to n after the masks: n_v = nc_v F_{1/2}((phi - ec0_v + efn)/kT).
   Further valence bands w (rows of ev0_v, nv_v, shape (W, N-1), W may be 0: the light hole of
   a strained layer at its own edge, the heavy hole being ev0, nv) are part of the classical
-  hole density, p_w = nv_v F_{1/2}((ev0_v - phi)/kT), and so take the hole mask cls_h.
+  hole density, p_w = nv_v F_{1/2}((ev0_v - phi - efp)/kT), and so take the hole mask cls_h.
   rho_i = p_i - n_i + Nd+_i - Na-_i.
 
 Equation at node i (V nm^-1 x eps_r, integrated over the dual cell):
@@ -67,7 +72,7 @@ _NEGLIGIBLE_X = -45.0
 @njit(cache=True, inline='always')
 def _cell_terms(c, phi, mat, want_e=True, want_h=True, want_d=True, want_a=True):
     """Classical densities of cell c at potential phi and their d/dphi, plus the ionised
-    fractions of a unit sheet (donor, acceptor) with d/dphi.  want_*: False skips a term
+    fractions of the cell's donors and acceptors with d/dphi.  want_*: False skips a term
     the caller will not use (returned as 0): quantum nodes, undoped cells."""
     kT = mat.kT
     ec = mat.ec0[c] - phi
@@ -77,7 +82,7 @@ def _cell_terms(c, phi, mat, want_e=True, want_h=True, want_d=True, want_a=True)
     n = 0.0
     dn = 0.0
     if want_e and nc > 0.0:
-        eta = -ec / kT
+        eta = (mat.efn - ec) / kT
         if eta < _BOLTZMANN_ETA:
             # deep non-degenerate limit: F_{1/2} = F_{-1/2} = e^eta to < 1e-17 relative;
             # also avoids the series' slow path when e^eta underflows (cold, wide gaps)
@@ -89,7 +94,7 @@ def _cell_terms(c, phi, mat, want_e=True, want_h=True, want_d=True, want_a=True)
     p = 0.0
     dp = 0.0
     if want_h and nv > 0.0:
-        eta = ev / kT
+        eta = (ev - mat.efp) / kT
         if eta < _BOLTZMANN_ETA:
             p = nv * math.exp(eta)
             dp = -p / kT
@@ -101,7 +106,7 @@ def _cell_terms(c, phi, mat, want_e=True, want_h=True, want_d=True, want_a=True)
         for v in range(mat.ev0_v.shape[0]):
             nvv = mat.nv_v[v, c]
             if nvv > 0.0:
-                eta = (mat.ev0_v[v, c] - phi) / kT
+                eta = (mat.ev0_v[v, c] - phi - mat.efp) / kT
                 if eta < _BOLTZMANN_ETA:
                     x = nvv * math.exp(eta)
                     p += x
@@ -170,7 +175,7 @@ def _node(i, phi_i, grid, mat, q):
         nd = mat.nd[c]
         na = mat.na[c]
         cn, cdn, cp, cdp, fd, dfd, fa, dfa = _cell_terms(
-            c, phi_i, mat, want_e, want_h, nd != 0.0 or sheet_nd != 0.0, na != 0.0 or sheet_na != 0.0)
+            c, phi_i, mat, want_e, want_h, nd != 0.0, na != 0.0)
         n += wt * cn
         dn += wt * cdn
         p += wt * cp
@@ -179,15 +184,20 @@ def _node(i, phi_i, grid, mat, q):
         dndp += wt * nd * dfd
         nam += wt * na * fa
         dnam += wt * na * dfa
-        fsd += wt * fd
-        dfsd += wt * dfd
-        fsa += wt * fa
-        dfsa += wt * dfa
+        # sheets: the half cell's band edge with the sheet's own binding energy
+        if sheet_nd != 0.0:
+            f, df = donor_ionized(1.0, mat.ec0[c] - phi_i, mat.sheet_ed[i], kT, mat.full)
+            fsd += wt * f
+            dfsd -= wt * df
+        if sheet_na != 0.0:
+            f, df = acceptor_ionized(1.0, mat.ev0[c] - phi_i, mat.sheet_ea[i], kT, mat.full)
+            fsa += wt * f
+            dfsa -= wt * df
         # further conduction valleys (X, L): classical everywhere, never masked
         for v in range(mat.ec0_v.shape[0]):
             ncv = mat.nc_v[v, c]
             if ncv > 0.0:
-                eta = (phi_i - mat.ec0_v[v, c]) / kT
+                eta = (phi_i - mat.ec0_v[v, c] + mat.efn) / kT
                 if eta < _BOLTZMANN_ETA:
                     x = ncv * math.exp(eta)
                     nvl += wt * x
@@ -207,6 +217,8 @@ def _node(i, phi_i, grid, mat, q):
     # quantum electrons / holes with rigidly shifted subbands
     qshift = q.qshift
     dphi = qshift * (phi_i - q.phi_ref[i])
+    efn = mat.efn
+    efp = mat.efp
     ce = q.cls_e[i]
     if ce < 1.0:
         nq = 0.0
@@ -215,7 +227,7 @@ def _node(i, phi_i, grid, mat, q):
         for k in range(ek.shape[0]):
             a = q.psi2[i, k] * q.dos_e[k]
             if a != 0.0:
-                x = (dphi - ek[k]) / kT
+                x = (efn + dphi - ek[k]) / kT
                 if x < _NEGLIGIBLE_X:       # ln(1 + e^x) < 3e-20: the subband is empty here
                     continue
                 lg, sg = _log1pexp_expit(x)
@@ -231,7 +243,7 @@ def _node(i, phi_i, grid, mat, q):
         for k in range(ekh.shape[0]):
             a = q.psi2h[i, k] * q.dos_h[k]
             if a != 0.0:
-                x = (ekh[k] - dphi) / kT
+                x = (ekh[k] - dphi - efp) / kT
                 if x < _NEGLIGIBLE_X:
                     continue
                 lg, sg = _log1pexp_expit(x)
