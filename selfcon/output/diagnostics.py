@@ -239,8 +239,10 @@ def check_second_subband(result, structure, deck=None) -> list[str]:
     ns = float(main["sheet_density"])
     if not occupied(n1, ns) or ns <= 0:
         return []
-    e0, e1 = float(result.subbands[b0].energy[k0]), float(result.subbands[b1].energy[k1])
     holes = main["carrier"] == "hole"
+    ef = float((result.summary or {}).get("hole_fermi_level_eV" if holes else "electron_fermi_level_eV", 0.0))
+    e0 = float(result.subbands[b0].energy[k0]) - ef          # relative to the carrier's own level
+    e1 = float(result.subbands[b1].energy[k1]) - ef
     kind = "hole" if holes else "electron"
     where = ("above" if e1 > 0 else "below") if holes else ("below" if e1 < 0 else "above")
     label = f" ({_LABEL[b1]}{k1})" if holes else ""
@@ -465,8 +467,9 @@ def check_uncounted_valleys(result, structure, deck=None) -> list[str]:
                                 ("l_electron", "conduction_band_l", "L")):
         if carrier in structure.carriers or key not in result.profile:
             continue
-        edge = np.asarray(result.profile[key])
-        gamma = np.asarray(result.profile["conduction_band"])
+        efn = float((result.summary or {}).get("electron_fermi_level_eV", 0.0))
+        edge = np.asarray(result.profile[key]) - efn          # relative to the electrons' level
+        gamma = np.asarray(result.profile["conduction_band"]) - efn
         hit = np.nonzero((edge < VALLEY_KT * kT) & (edge < gamma + VALLEY_KT * kT))[0]
         if hit.size == 0:
             continue
