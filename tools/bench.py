@@ -166,7 +166,9 @@ def bench_floor():
         row("floor", case, "Newton step", t_newton * 1e3, "ms")
         row("floor", case, "solve / floor", ratio, "x", "<= 2", ratio <= 2.0)
         check(np.isfinite(ns(r)) and ns(r) > 1e10, f"floor {name}: n_s = {ns(r):.3e} cm^-2 plausible")
-        check(r.summary["gauss_residual"] < 1e-6, f"floor {name}: Gauss residual {r.summary['gauss_residual']:.1e}")
+        # Gauss's law holds to the loop's own charge criterion (tests/test_shipped_inputs.py)
+        gauss_tol = max(d.solver.charge_tolerance, 10 * d.solver.tolerance)
+        check(r.summary["gauss_residual"] < gauss_tol, f"floor {name}: Gauss residual {r.summary['gauss_residual']:.1e}")
 
 
 # --------------------------------------------------------------------------- scaling
