@@ -298,7 +298,12 @@ def _gap():
                  egl=2.72, al=0.5771, bl=372, vbo=-1.27, so=0.08, me=0.13,
                  g1=4.05, g2=0.49, g3=2.93, mxl=2.0, mxt=0.253, mll=1.2, mlt=0.15, eps=11.1,
                  extra={"varshni_alpha": Value(0.86 * _MEV, "eV/K", fit),
-                        "varshni_beta": Value(424.0, "K", fit)})
+                        "varshni_beta": Value(424.0, "K", fit),
+                        # stored, not the hydrogenic estimate: these Luttinger parameters give
+                        # a nearly flat heavy-hole band in the spherical average (gamma1 -
+                        # 2 gamma_bar = 0.14, m_hh = 7 m0), hence an absurd 0.78 eV estimate
+                        "acceptor_binding": Value(48e-3, "eV", "common practice: C acceptor in "
+                                                  "GaP, about 48 meV" + _MEM)})
 
 
 def _alp():
