@@ -49,8 +49,6 @@ EXIT_CODES = (
     (EXIT_INTERRUPTED, "interrupted (batch: rerun to continue)"),
 )
 
-PLOT_FORMATS = (".png", ".svg", ".pdf")
-
 
 class _Parser(argparse.ArgumentParser):
     """argparse with usage errors on one line and exit code 2 (argparse's own)."""

@@ -24,7 +24,8 @@ from selfcon.model.strain import (X_VALLEY_SETS, LayerStrain, StrainSummary,
 if TYPE_CHECKING:
     from selfcon.input.deck import Deck
 
-#: per-cell arrays taken from the material library (selfcon.input.materials.cell_parameters keys)
+#: per-cell arrays taken from the material library (selfcon.input.materials.cell_parameters
+#: keys; "How to add a material parameter" in selfcon/input/materials/__init__.py)
 MATERIAL_KEYS = ("eps", "ec_gamma", "ec_x", "ec_l", "ev_hh", "ev_lh", "m_e", "m_hh_z", "m_lh_z",
                  "m_hh_par", "m_lh_par", "m_x_l", "m_x_t", "m_l_l", "m_l_t", "m_c_dos", "m_v_dos",
                  "donor_binding", "acceptor_binding", "eg_gamma",
@@ -141,6 +142,12 @@ def _uniform_parameters(name, x, temperature, local_defs, needs, y=None) -> dict
     params = materials.cell_parameters(name, np.array([np.nan if x is None else x]), temperature,
                                        local_defs, needs, y=None if y is None else np.array([y]))
     return {k: float(v[0]) for k, v in params.items()}
+
+
+def clear_material_cache() -> None:
+    """Forget the material parameters computed so far in this process (after the library
+    data changed, e.g. in a test that adds a parameter)."""
+    _uniform_parameters.cache_clear()
 
 
 def _located(deck, key_prefix, fn, *args, **kw):

@@ -18,6 +18,7 @@ from selfcon.output import channels as chx
 from selfcon.output.channels import OCCUPIED_CM2, OCCUPIED_FRACTION  # noqa: F401  (the one rule)
 from selfcon.output.diagnostics import design_warnings
 from selfcon.output.result import Result, Subbands, utc_now
+from selfcon.output import schema
 from selfcon.output.schema import BANDS
 from selfcon.solver.poisson import electric_field
 
@@ -148,6 +149,8 @@ def build_result(deck, st, loop, *, wall_time: float) -> Result:
         "ionized_donors": ndp * CM3_PER_NM3,
         "ionized_acceptors": nam * CM3_PER_NM3,
     }
+    for key in schema.MATERIAL_PROFILES:        # material parameters the schema asks to report
+        profile[key] = right_cell_values(st.cell[key])
 
     valley_sheets = {}
     n_valleys = np.zeros(st.n_nodes)

@@ -243,6 +243,11 @@ _r("profile/l_electron_density", "cm-3", "L-valley electron density",
    when="physics.carriers has l_electron")
 _r("profile/layer_index", "1", "layer index", "index into /layers of the layer holding each node", dims=("z",))
 
+#: material parameters written as /profile/<key>: Structure.cell[key] of the cell to the right
+#: of each node, each declared above like the other profiles ("How to add a material
+#: parameter" in selfcon/input/materials/__init__.py)
+MATERIAL_PROFILES: tuple = ()
+
 RESULT.dimension_only("", "layer")
 _r("layers", None, "layer table (compound)",
    "one row per deck layer, top to bottom; 'units' and 'column_descriptions' list one entry per column, "

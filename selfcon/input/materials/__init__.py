@@ -13,6 +13,39 @@
 
 Data with sources: :mod:`selfcon.input.materials.library`.  Rules (Varshni, bowing,
 deck-local materials): :mod:`selfcon.input.materials.alloys`.  Imports numpy only.
+
+How to add a material parameter
+-------------------------------
+A new library number that the physics or the result needs, e.g. a thermal conductivity:
+
+1. ``library.py``: declare it in ``PARAMETERS`` (``key: (unit, meaning)``; the key is
+   also the deck key ``material.NAME.key``) and give every binary in ``BINARIES`` a
+   ``Value(value, unit, source)`` for it, with its source (tests/test_materials.py
+   checks that every value has a unit and a source).  Ternaries interpolate linearly
+   between their end binaries; for a bowed parameter add the key to ``BOWED`` and a
+   ``Bowing`` to every alloy.  Quaternaries follow from their ternaries.
+2. ``selfcon/input/deck.py``: declare the deck key in ``MATERIAL_PARAMS``
+   (``key: _p(unit, doc)``) so that a deck's ``[material.NAME]`` may set it, and run
+   ``python tools/deck_reference.py`` (README deck reference).  A deck-local material
+   without ``base`` must then give it, or gets the default you add in
+   ``alloys.standalone_primitives``.
+3. ``alloys.py``: list it in ``OUTPUT_UNITS`` (``key: unit``): :func:`cell_parameters`
+   then hands it through under its own name, per cell (or compute a derived quantity
+   from it in ``alloys.derived`` under a key of its own).  To have it in the
+   :class:`~selfcon.model.structure.Structure`, add the key to
+   ``selfcon.model.structure.MATERIAL_KEYS``: ``structure.cell[key]`` is then the per-cell
+   array (convert it there if its unit is not an internal one: nm, eV, nm^-3).
+4. To report it in the result file as a profile at the nodes (each node takes the
+   value of the cell to its right, like the band edges), declare it in
+   ``selfcon/output/schema.py`` beside the other profiles,
+   ``_r("profile/<key>", units, long_name, description, dims=("z",))``, and add the key
+   to ``MATERIAL_PROFILES`` there.  The writer, the reader, the CSV export and the
+   README layout table (``python tools/file_layout.py``; a test checks it) take it from
+   there.
+5. Check the values in tests/test_materials.py against the tables you used (quote each
+   value and its source).  tests/test_recipes.py follows steps 1, 3 and 4 for a
+   throwaway parameter; in a running process (a test) call
+   ``selfcon.model.structure.clear_material_cache()`` after changing the library.
 """
 import numpy as np
 
@@ -93,8 +126,8 @@ def cell_parameters(name, x, temperature, local_defs=(), needs=frozenset(), y=No
     elastic_c11, elastic_c12, deformation_ac, deformation_av and deformation_b required).
     γ3 defaults to γ2.  ``y``: second composition of a quaternary (NaN or None: not given).
 
-    Returns a dict of float arrays shaped like ``x`` (keys and units:
-    OUTPUT_UNITS).  Gaps at T: Varshni per binary, then alloy bowing
+    Returns a dict of float arrays shaped like ``x`` (keys and units: OUTPUT_UNITS; a
+    library parameter listed there under its own name is handed through as it is).  Gaps at T: Varshni per binary, then alloy bowing
     Eg(x, T) = (1-x) Eg0(T) + x Eg1(T) - x(1-x) C(x).  Raises MaterialError.
     """
     x = np.array(x, dtype=float, ndmin=1, copy=True)
@@ -108,7 +141,11 @@ def cell_parameters(name, x, temperature, local_defs=(), needs=frozenset(), y=No
     _lookup_error(name, local)
     prim = _rules.resolve(name, x, t, local, needs, y=y)
     _rules.validate(name, prim)
-    return _rules.derived(prim)
+    out = _rules.derived(prim)
+    for key in OUTPUT_UNITS:          # library parameters listed there: handed through as they are
+        if key not in out and key in prim:
+            out[key] = np.array(prim[key], dtype=float)
+    return out
 
 
 def _lattice_of(name, x, y, temperature, local):

@@ -189,21 +189,3 @@ def acceptor_ionized(na, ev, ea_bind, kT, full):
         return na, 0.0
     f, omf = occupied_fraction((ev + ea_bind) / kT, 4.0)
     return na * f, -na * f * omf / kT
-
-
-@njit(cache=True)
-def donor_ionized_array(nd, ec, ed_bind, kT, full):
-    """Elementwise Nd+ (arrays of equal length)."""
-    out = np.empty(nd.shape[0])
-    for i in range(nd.shape[0]):
-        out[i] = donor_ionized(nd[i], ec[i], ed_bind[i], kT, full)[0]
-    return out
-
-
-@njit(cache=True)
-def acceptor_ionized_array(na, ev, ea_bind, kT, full):
-    """Elementwise Na- (arrays of equal length)."""
-    out = np.empty(na.shape[0])
-    for i in range(na.shape[0]):
-        out[i] = acceptor_ionized(na[i], ev[i], ea_bind[i], kT, full)[0]
-    return out
