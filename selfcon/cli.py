@@ -196,6 +196,8 @@ def check_figures(deck, structure) -> dict:
         layers.append(row)
     strain = {"mode": sm.mode if sm is not None else "unstrained",
               "reference": sm.reference if sm is not None else "unstrained",
+              "crystal": getattr(sm, "crystal", "zincblende"),
+              "criterion": getattr(sm, "criterion", "Matthews-Blakeslee"),
               "lattice_reference_nm": sm.a_reference if sm is not None else None,
               "runs": [{"first": structure.layers[a].name, "last": structure.layers[b].name,
                         "thickness_nm": hh, "critical_thickness_nm": hc, "mean_strain_xx": e}
@@ -205,6 +207,22 @@ def check_figures(deck, structure) -> dict:
                        electrons=structure.layers[it["electrons"]].name,
                        holes=structure.layers[it["holes"]].name)
                   for it in interface_alignments(structure) if it["kind"] != "type I"]
+    polarization = None
+    if getattr(structure, "crystal", "zincblende") == "wurtzite":
+        from selfcon.constants import C_M2_PER_NM2, CM2_PER_NM2
+        pz = np.asarray(structure.cell["polarization"])
+        cl = np.asarray(structure.cell_layer)
+        for row in layers:
+            sel = cl == row["index"]
+            if sel.any():
+                row["polarization_C_m2"] = float(np.mean(pz[sel]))
+        polarization = {
+            "polarity": structure.polarity, "factor": structure.polarization_factor,
+            "interfaces": [{"upper": structure.layers[i["upper"]].name,
+                            "lower": structure.layers[i["lower"]].name, "z_nm": i["z_nm"],
+                            "sigma_cm2": i["sigma_nm2"] * CM2_PER_NM2,
+                            "sigma_C_m2": i["sigma_nm2"] * C_M2_PER_NM2}
+                           for i in structure.interfaces()]}
     z = np.asarray(structure.z)
     h = np.diff(z)
     regions = [{"top_nm": float(a), "bottom_nm": float(b), "nodes": int(i1 - i0 + 1)}
@@ -220,7 +238,8 @@ def check_figures(deck, structure) -> dict:
                    "mesh": {"nodes": int(z.size), "min_step_nm": float(h.min()) if h.size else None,
                             "max_step_nm": float(h.max()) if h.size else None,
                             "thickness_nm": float(z[-1] - z[0]) if z.size else 0.0},
-                   "quantum_regions": regions, "strain": strain, "interfaces": interfaces})
+                   "quantum_regions": regions, "strain": strain, "interfaces": interfaces,
+                   "polarization": polarization})
 
 
 def cmd_check(args) -> int:
@@ -285,14 +304,31 @@ def cmd_check(args) -> int:
             st.add_row(str(L["index"]), L["name"], f"{L.get('lattice_own_nm', float('nan')):.6f}",
                        f"{L.get('lattice_inplane_nm', float('nan')):.6f}", *tail)
         console.print(st)
-        console.print("ε_xx = (a_par − a)/a, ε_zz = −2 (C12/C11) ε_xx; h_c: Matthews–Blakeslee "
-                      "critical thickness (h / h_c > 1: beyond it)")
+        if sm.get("crystal") == "wurtzite":
+            console.print("ε_xx = (a_par − a)/a in the c plane, ε_zz = −2 (C13/C33) ε_xx; h_c: "
+                          "channel-cracking thickness of a layer under tension, K_Ic²/(Z σ²) "
+                          "(Hutchinson–Suo; compressed layers: ∞, no criterion); h / h_c > 1: beyond it")
+        else:
+            console.print("ε_xx = (a_par − a)/a, ε_zz = −2 (C12/C11) ε_xx; h_c: Matthews–Blakeslee "
+                          "critical thickness (h / h_c > 1: beyond it)")
         for r in sm["runs"]:
             hc = r["critical_thickness_nm"]
             over = hc is not None and r["thickness_nm"] > hc
             console.print(f"  strained run {r['first']}…{r['last']}: {r['thickness_nm']:g} nm at mean "
                           f"ε_xx {100 * r['mean_strain_xx']:+.3f} %, h_c {('∞' if hc is None else f'{hc:.1f}')} nm"
                           + (" ⚠ beyond it" if over else ""))
+    pol = fig.get("polarization")
+    if pol:
+        pt = Table(title=f"Polarization ({pol['polarity']}-face, factor {pol['factor']:g}): bound sheets "
+                         "σ = P_z(above) − P_z(below), P_z along +z (into the wafer)", title_justify="left")
+        for col in ("interface", "z (nm)", "σ (cm⁻²)", "σ (C/m²)"):
+            pt.add_column(col, justify="left" if col == "interface" else "right")
+        for i in pol["interfaces"]:
+            pt.add_row(f"{i['upper']}/{i['lower']}", f"{i['z_nm']:g}", f"{i['sigma_cm2']:+.4g}",
+                       f"{i['sigma_C_m2']:+.5f}")
+        console.print(pt)
+        console.print("P_z per layer (C/m²): " + ", ".join(
+            f"{L['name']} {L['polarization_C_m2']:+.5f}" for L in fig["layers"] if "polarization_C_m2" in L))
     for it in fig["interfaces"]:
         console.print(f"interface {it['upper']}/{it['lower']} at {it['z_nm']:g} nm: {it['kind']} "
                       f"(interface gap {1e3 * it['gap_eV']:.0f} meV; electrons in {it['electrons']}, "
@@ -491,6 +527,12 @@ def strained_figures(name, x=None, y=None, temperature=300.0, on="GaAs") -> dict
     else:
         a_par = float(params(sub, sx, sy, "--on")["lattice"][0])
         label = sub + "".join(f" {k} = {v:g}" for k, v in (("x", sx), ("y", sy)) if v is not None)
+    if materials.crystal(name) != materials.crystal(sub) and sub is not None:
+        raise MaterialError(f"{name} is {materials.crystal(name)} and {sub} is "
+                            f"{materials.crystal(sub)}: a substrate of the same crystal is needed",
+                            key="--on")
+    if materials.crystal(name) == "wurtzite":
+        return _wurtzite_on(name, x, y, T, p, a_par, label)
     e = S.bulk_strained_edges(p, np.array([a_par]))
     eps = float(e["eps_xx"][0])
     nu = float(S.poisson_ratio_001(p["c11"][0], p["c12"][0]))
@@ -527,6 +569,49 @@ def strained_figures(name, x=None, y=None, temperature=300.0, on="GaAs") -> dict
                               "Blakeslee, J. Cryst. Growth 27, 118 (1974), force balance"})
 
 
+def _wurtzite_on(name, x, y, T, p, a_par, label) -> dict:
+    """strained_figures of a wurtzite material on the c plane of ``a_par``: edges of the three
+    valence bands, hole masses, polarization (metal face, along [0001]) and the cracking
+    thickness (selfcon.model.strain, selfcon.model.polarization)."""
+    import numpy as np
+    from selfcon.model import polarization as PZ
+    from selfcon.model import strain as S
+    e = S.bulk_strained_edges(p, np.array([a_par]))
+    eps = float(e["eps_xx"][0])
+    v = lambda d, k: float(d[k][0])  # noqa: E731
+    rows = []
+
+    def add(q, unit, before, after, note=""):
+        rows.append({"quantity": q, "unit": unit, "unstrained": before, "strained": after, "note": note})
+
+    add("lattice constant a", "nm", v(p, "lattice"), a_par, "in-plane a_par on the substrate")
+    add("eps_xx", "1", 0.0, eps, "(a_par - a)/a in the c plane")
+    add("eps_zz", "1", 0.0, v(e, "eps_zz"), "-2 (C13/C33) eps_xx")
+    for key, q in (("ec_gamma", "Gamma conduction edge"), ("ev_hh", "heavy-hole edge (A)"),
+                   ("ev_lh", "light-hole edge (B)"), ("ev_ch", "split-off hole edge (C)")):
+        add(q, "eV", v(p, key), v(e, key), "common scale (InSb VBM = 0)")
+    top0, top1 = max(v(p, "ev_hh"), v(p, "ev_lh")), max(v(e, "ev_hh"), v(e, "ev_lh"))
+    add("Gamma gap", "eV", v(p, "ec_gamma") - top0, v(e, "ec_gamma") - top1, "to the top valence edge")
+    for b, q in (("hh", "heavy"), ("lh", "light"), ("ch", "split-off")):
+        add(f"{q} hole mass along c", "m0", v(p, f"m_{b}_z"), v(e, f"m_{b}_z"), "Chuang-Chang k = 0")
+        add(f"{q} hole mass in the c plane", "m0", v(p, f"m_{b}_par"), v(e, f"m_{b}_par"), "")
+    ppz = float(PZ.piezoelectric(eps, p["e31"][0], p["e33"][0], p["c13"][0], p["c33"][0]))
+    add("P_sp along [0001]", "C/m^2", v(p, "psp"), v(p, "psp"), "spontaneous")
+    add("P_pz along [0001]", "C/m^2", 0.0, ppz, "2 eps_xx (e31 - e33 C13/C33)")
+    stress = float(S.biaxial_stress_c_plane(eps, p["c11"][0], p["c12"][0], p["c13"][0], p["c33"][0]))
+    add("biaxial stress", "GPa", 0.0, stress, "> 0: tension")
+    hc = S.channel_cracking_thickness(stress)
+    from selfcon.output.report import jsonable
+    return jsonable({"name": name, "x": x, "y": y, "temperature_K": T, "substrate": label,
+                     "crystal": "wurtzite", "lattice_inplane_nm": a_par, "rows": rows,
+                     "critical_thickness_nm": {"channel cracking": hc},
+                     "sources": "strain: Chuang and Chang, Phys. Rev. B 54, 2491 (1996) with the "
+                                "potentials of Vurgaftman and Meyer, J. Appl. Phys. 94, 3675 (2003) "
+                                "(selfcon.model.strain); polarization: Ambacher et al., J. Phys.: "
+                                "Condens. Matter 14, 3399 (2002); critical thickness: channel "
+                                "cracking, Hutchinson and Suo, Adv. Appl. Mech. 29, 63 (1992)"})
+
+
 def _materials_on(args, kw) -> int:
     T = kw.get("temperature", 300.0)
     fig = strained_figures(args.name, kw.get("x"), kw.get("y"), T, args.on)
@@ -535,20 +620,26 @@ def _materials_on(args, kw) -> int:
         return EXIT_OK
     from rich.table import Table
     comp = "".join(f", {k} = {fig[k]:g}" for k in ("x", "y") if fig[k] is not None)
-    t = Table(title=f"{args.name}{comp} on {fig['substrate']} (001), T = {T:g} K", title_justify="left")
+    plane = "c plane" if fig.get("crystal") == "wurtzite" else "(001)"
+    t = Table(title=f"{args.name}{comp} on {fig['substrate']} {plane}, T = {T:g} K", title_justify="left")
     for col, just in (("quantity", "left"), ("unstrained", "right"), ("strained", "right"),
                       ("unit", "left"), ("", "left")):
         t.add_column(col, justify=just)
     for r in fig["rows"]:
-        fmt = (lambda v: f"{100 * v:+.3f} %") if r["unit"] == "1" else (lambda v: f"{v:.5f}")
+        fmt = ((lambda v: f"{100 * v:+.3f} %") if r["unit"] == "1" else
+               (lambda v: f"{v:+.5f}") if r["unit"] == "C/m^2" else (lambda v: f"{v:.5f}"))
         t.add_row(r["quantity"], fmt(r["unstrained"]), fmt(r["strained"]),
                   "" if r["unit"] == "1" else r["unit"], r["note"])
     console = _console()
     console.print(t)
     hc = fig["critical_thickness_nm"]
     show = lambda v: "∞" if v is None else f"{v:.1f} nm"  # noqa: E731
-    console.print(f"Matthews–Blakeslee critical thickness: {show(hc['buried'])} buried under a cap, "
-                  f"{show(hc['at the surface'])} at the surface")
+    if "channel cracking" in hc:
+        console.print(f"critical thickness for channel cracking: {show(hc['channel cracking'])}"
+                      + (" (under compression: no cracking)" if hc["channel cracking"] is None else ""))
+    else:
+        console.print(f"Matthews–Blakeslee critical thickness: {show(hc['buried'])} buried under a cap, "
+                      f"{show(hc['at the surface'])} at the surface")
     console.print(fig["sources"])
     return EXIT_OK
 

@@ -30,6 +30,8 @@ NC_PER_M0_K = 2.0 * (KB_EV / (4.0 * math.pi * HBAR2_2M0)) ** 1.5
 CM3_PER_NM3 = 1e21             # 1 nm^-3 = 1e21 cm^-3
 CM2_PER_NM2 = 1e14             # 1 nm^-2 = 1e14 cm^-2
 NM_PER_CM = 1e7
+#: C/m^2 of one elementary charge per nm^2 (= 0.1602...): sigma[nm^-2] = P[C/m^2] / C_M2_PER_NM2
+C_M2_PER_NM2 = Q * 1e18
 
 #: Bohr radius a_0 in nm (CODATA 2018: 5.29177210903e-11 m)
 BOHR_RADIUS_NM = 0.0529177210903

@@ -155,7 +155,7 @@ def test_alloy_ends_equal_binaries():
         for x, end in ((0.0, alloy.end0), (1.0, alloy.end1)):
             a, b = one(name, x, 250.0), one(end, T=250.0)
             for k in a:
-                assert a[k] == pytest.approx(b[k], abs=1e-12), (name, x, k)
+                assert a[k] == pytest.approx(b[k], abs=1e-12, nan_ok=True), (name, x, k)
 
 
 def test_permittivity_and_dopants():
@@ -192,7 +192,8 @@ def test_every_library_value_has_unit_and_source():
 
 def test_describe_rows():
     rows = M.describe("GaAs")
-    assert {r["parameter"] for r in rows} == set(PARAMETERS)
+    # the wurtzite-only parameters of a zincblende material are hidden (not applicable)
+    assert {r["parameter"] for r in rows} == set(PARAMETERS) - set(M.WURTZITE_ONLY)
     assert all(set(r) == {"parameter", "value", "unit", "source"} and r["source"] for r in rows)
     gap = next(r for r in rows if r["parameter"] == "band_gap")
     assert gap["value"] == 1.519 and gap["unit"] == "eV" and "Vurgaftman" in gap["source"]

@@ -10,7 +10,8 @@ fails to converge from the warm start is retried from a cold start).
 
 Definitions (stated in the file and in README.md, "Design recipes"):
 
-* gate charge Q(V) = -q * integral of (p - n + Nd+ - Na-) dz over the semiconductor
+* gate charge Q(V) = -q * integral of (p - n + Nd+ - Na- + the bound polarization charge of
+  wurtzite interfaces) dz over the semiconductor
   (C/cm^2): the charge on the gate that balances the semiconductor's, assuming the
   substrate contact holds none of it.
 * capacitance C = dQ/dV (F/cm^2) by ``numpy.gradient`` of the converged Q over the
@@ -143,9 +144,11 @@ def bias_points(start: float, stop: float, step: float) -> np.ndarray:
 
 
 def semiconductor_charge(result) -> float:
-    """q * integral of (p - n + Nd+ - Na-) dz in C/cm^2."""
+    """q * integral of (p - n + Nd+ - Na- + bound polarization charge) dz in C/cm^2."""
     p = result.profile
     rho = p["hole_density"] - p["electron_density"] + p["ionized_donors"] - p["ionized_acceptors"]
+    if "bound_charge" in p:            # wurtzite interfaces (results before them have none)
+        rho = rho + p["bound_charge"]
     return float(Q * np.sum(rho * Mesh.from_nodes(result.z).w) / NM_PER_CM)
 
 

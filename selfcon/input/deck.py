@@ -116,6 +116,7 @@ CARRIERS = ("electron", "heavy_hole", "light_hole")
 ALL_CARRIERS = CARRIERS + ("x_electron", "l_electron")
 IONIZATION = ("thermal", "full")
 CONTACTED = ("auto", "electron", "hole", "both")
+POLARITIES = ("metal", "nitrogen")
 SOLVER_METHODS = ("predictor-corrector", "anderson", "linear")
 #: nm, the thinnest layer accepted: about half a monolayer (a GaAs monolayer is a/2 = 0.283 nm,
 #: common practice); anything thinner is a unit mistake (a thickness typed in metres or cm)
@@ -228,6 +229,27 @@ MATERIAL_PARAMS = {
     "l_deformation_gap": _p("eV", "hydrostatic deformation potential of the L gap "
                             "(Xi_d + Xi_u/3 - a_v)"),
     "l_deformation_u": _p("eV", "L-valley uniaxial deformation potential Xi_u"),
+    "lattice_constant_c": _p("nm", "wurtzite: lattice constant c at 300 K (lattice_constant is "
+                             "a)", **_POS),
+    "elastic_c13": _p("GPa", "wurtzite: elastic stiffness C13", **_POS),
+    "elastic_c33": _p("GPa", "wurtzite: elastic stiffness C33", **_POS),
+    "piezo_e31": _p("C/m^2", "wurtzite: piezoelectric constant e31"),
+    "piezo_e33": _p("C/m^2", "wurtzite: piezoelectric constant e33"),
+    "spontaneous_polarization": _p("C/m^2", "wurtzite: spontaneous polarization along [0001]"),
+    "crystal_field": _p("eV", "wurtzite: crystal-field splitting of the valence band"),
+    "electron_mass_perp": _p("m0", "wurtzite: electron mass perpendicular to c (in the growth "
+                             "plane)", **_POS),
+    "valence_a1": _p("-", "wurtzite: valence-band parameter A1 (hbar^2/2m0)"),
+    "valence_a2": _p("-", "wurtzite: valence-band parameter A2 (hbar^2/2m0)"),
+    "valence_a3": _p("-", "wurtzite: valence-band parameter A3 (hbar^2/2m0)"),
+    "valence_a4": _p("-", "wurtzite: valence-band parameter A4 (hbar^2/2m0)"),
+    "deformation_a1": _p("eV", "wurtzite: interband deformation potential a1 (strain along c)"),
+    "deformation_a2": _p("eV", "wurtzite: interband deformation potential a2 (strain in the c "
+                         "plane)"),
+    "deformation_d1": _p("eV", "wurtzite: valence-band deformation potential D1"),
+    "deformation_d2": _p("eV", "wurtzite: valence-band deformation potential D2"),
+    "deformation_d3": _p("eV", "wurtzite: valence-band deformation potential D3"),
+    "deformation_d4": _p("eV", "wurtzite: valence-band deformation potential D4"),
 }
 _MATERIAL = {
     "base": KeySpec("string", "-", None, "library material to start from (its parameters, then "
@@ -250,6 +272,12 @@ _PHYSICS = {
         "metal's level, -surface.bias (eV), so a reverse-biased gate does not invert.  auto: "
         "electron when the stack's donors (sheets included) outnumber its acceptors, else hole; "
         "both: one Fermi level for both carriers", choices=CONTACTED),
+    "polarity": KeySpec("string", "-", "metal", "growth polarity of wurtzite layers along c: "
+                        "metal (Ga/Al/In-face, [0001] points to the surface, the usual HEMT) | "
+                        "nitrogen (N-face); zincblende stacks ignore it", choices=POLARITIES),
+    "polarization": KeySpec("number", "-", 1.0, "factor on the spontaneous and piezoelectric "
+                            "polarization of wurtzite layers (0 switches the interface sheets "
+                            "off)", lo=0.0),
 }
 _QUANTUM = {
     "regions": KeySpec("regions", "nm", None, "quantum regions [[top, bottom], ...], sorted, "
@@ -436,6 +464,8 @@ class Physics:
     carriers: tuple = CARRIERS
     ionization: str = "thermal"
     contacted_carrier: str = "auto"   # auto | electron | hole | both
+    polarity: str = "metal"         # wurtzite growth polarity: metal | nitrogen
+    polarization: float = 1.0       # factor on the wurtzite polarization
 
 
 @dataclass(frozen=True)
@@ -652,6 +682,11 @@ class Deck:
                           "ionization": self.physics.ionization}
         if self.physics.contacted_carrier != "auto":     # the default is left out: old hashes hold
             out["physics"]["contacted_carrier"] = self.physics.contacted_carrier
+        # written only when not the default, so that older decks keep their canonical text
+        if self.physics.polarity != "metal":
+            out["physics"]["polarity"] = self.physics.polarity
+        if self.physics.polarization != 1.0:
+            out["physics"]["polarization"] = self.physics.polarization
         q = {}
         if self.quantum.regions is not None:
             q["regions"] = [list(r) for r in self.quantum.regions]
@@ -1381,7 +1416,10 @@ def _physics(ctx, t):
         carriers = tuple(v)
     ionization = ctx.get(t, "ionization", _PHYSICS["ionization"], p)
     contacted = ctx.get(t, "contacted_carrier", _PHYSICS["contacted_carrier"], p)
-    return Physics(carriers=carriers, ionization=ionization, contacted_carrier=contacted)
+    polarity = ctx.get(t, "polarity", _PHYSICS["polarity"], p)
+    polarization = ctx.get(t, "polarization", _PHYSICS["polarization"], p)
+    return Physics(carriers=carriers, ionization=ionization, contacted_carrier=contacted,
+                   polarity=polarity, polarization=float(polarization))
 
 
 def _quantum(ctx, t, total):

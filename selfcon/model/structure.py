@@ -17,9 +17,11 @@ from selfcon.constants import CM2_PER_NM2, CM3_PER_NM3, KB_EV, NC_PER_M0_K, NM_P
 from selfcon.errors import DeckError, MaterialError
 from selfcon.model import dopants
 from selfcon.model.mesh import Mesh, build_mesh
+from selfcon.model.polarization import polarization_z, sheets_nm2
 from selfcon.model.strain import (X_VALLEY_SETS, LayerStrain, StrainSummary,
-                                  bulk_strained_edges, in_plane_lattice, poisson_ratio_001,
-                                  stack_critical_thickness)
+                                  biaxial_stress_c_plane, bulk_strained_edges, in_plane_lattice,
+                                  poisson_ratio_001, stack_critical_thickness,
+                                  wurtzite_stack_cracking)
 
 if TYPE_CHECKING:
     from selfcon.input.deck import Deck
@@ -33,7 +35,12 @@ MATERIAL_KEYS = ("eps", "ec_gamma", "ec_x", "ec_l", "ev_hh", "ev_lh", "m_e", "m_
                  "m_hh_dos", "m_lh_dos",
                  # lattice, elasticity, deformation potentials (selfcon.model.strain)
                  "vbo", "delta_so", "lattice", "c11", "c12", "c44", "ac", "av", "b_dp", "d_dp",
-                 "xi_x_gap", "xi_x_u", "xi_l_gap", "xi_l_u")
+                 "xi_x_gap", "xi_x_u", "xi_l_gap", "xi_l_u",
+                 # wurtzite: in-plane electron mass, the crystal-field split-off hole, and the
+                 # constants of the c-plane strain and polarization (selfcon.model.polarization)
+                 "m_e_par", "ev_ch", "m_ch_z", "m_ch_par", "m_ch_dos", "wurtzite", "lattice_c",
+                 "c13", "c33", "e31", "e33", "psp", "delta_cr", "va1", "va2", "va3", "va4",
+                 "da1", "da2", "dd1", "dd2", "dd3", "dd4")
 
 
 #: equivalent conduction valleys in bulk zinc-blende (common practice)
@@ -93,6 +100,14 @@ class Structure:
     #: the carrier the channel's ohmic contacts reach ("electron", "hole"), or "both": one
     #: Fermi level for both (deck physics.contacted_carrier, "auto" resolved by contacted_carrier)
     contacted: str = "both"
+    #: (N,) nm^-2, fixed charge on the nodes in units of q: the bound polarization sheets of
+    #: wurtzite layers (selfcon.model.polarization; cell["polarization"] holds P_z in C/m^2)
+    sheet_fixed: np.ndarray = None
+    #: the growth polarity and polarization factor of the deck (physics.polarity, .polarization)
+    polarity: str = "metal"
+    polarization_factor: float = 1.0
+    #: "zincblende" or "wurtzite": the crystal of every layer (a stack is one or the other)
+    crystal: str = "zincblende"
 
     @property
     def z(self) -> np.ndarray:
@@ -119,6 +134,27 @@ class Structure:
     @property
     def kT(self) -> float:
         return KB_EV * self.temperature
+
+    @property
+    def fixed_charge(self) -> np.ndarray:
+        """(N,) nm^-3: the fixed sheets (polarization) spread over their dual cells, as the
+        Poisson charge counts them (rho includes it)."""
+        if self.sheet_fixed is None:
+            return np.zeros(self.n_nodes)
+        return self.sheet_fixed / self.mesh.w
+
+    def interfaces(self) -> list[dict]:
+        """The bound polarization sheet of every layer interface: dicts with ``upper``,
+        ``lower`` (layer indices), ``node``, ``z_nm`` and ``sigma_nm2`` (elementary charges
+        per nm^2, positive: positive bound charge); zero in zincblende stacks."""
+        cl = self.cell_layer
+        sheets = self.sheet_fixed if self.sheet_fixed is not None else np.zeros(self.n_nodes)
+        out = []
+        for c in np.flatnonzero(cl[1:] != cl[:-1]):
+            i = int(c + 1)
+            out.append({"upper": int(cl[c]), "lower": int(cl[c + 1]), "node": i,
+                        "z_nm": float(self.z[i]), "sigma_nm2": float(sheets[i])})
+        return out
 
     def node_average(self, cell_values: np.ndarray) -> np.ndarray:
         """Dual-cell average of a per-cell array onto the nodes."""
@@ -302,6 +338,7 @@ def build_structure(deck: Deck, *, mesh: Mesh | None = None) -> Structure:
     lattice_ref = getattr(deck, "lattice", None)
     strained = bool((lattice_ref is not None and lattice_ref.given)
                     or any(Li.relaxed for Li in layers))
+    crystal = _stack_crystal(deck, layers, strained)
     needs = _needs(deck.physics.carriers, deck.physics.ionization)
     if strained:
         needs = needs | {"strain"}
@@ -364,9 +401,20 @@ def build_structure(deck: Deck, *, mesh: Mesh | None = None) -> Structure:
         # classical holes: heavy and light hole each at its own edge, with its own DOS mass
         cell["nv_hh"] = NC_PER_M0_K * (cell["m_hh_dos"] * T) ** 1.5
         cell["nv_lh"] = NC_PER_M0_K * (cell["m_lh_dos"] * T) ** 1.5
+        if crystal == "wurtzite":
+            # the crystal-field split-off hole, a third classical band at its own edge
+            cell["nv_ch"] = NC_PER_M0_K * (cell["m_ch_dos"] * T) ** 1.5
     else:
         summary = _unstrained(layers, cell, cell_layer)
     cell["ev0"] = np.maximum(cell["ev_hh"], cell["ev_lh"])
+    # polarization along +z and its bound sheets (selfcon.model.polarization)
+    physics = deck.physics
+    polarity = getattr(physics, "polarity", "metal")
+    factor = float(getattr(physics, "polarization", 1.0))
+    cell["polarization"] = polarization_z(cell["wurtzite"], cell["psp"], cell["eps_xx"], cell["e31"],
+                                          cell["e33"], cell["c13"], cell["c33"], polarity=polarity,
+                                          factor=factor)
+    sheet_fixed = sheets_nm2(cell["polarization"])
 
     sheet_d = np.zeros(n)
     sheet_a = np.zeros(n)
@@ -385,7 +433,8 @@ def build_structure(deck: Deck, *, mesh: Mesh | None = None) -> Structure:
             sheet_ea[i] = dopants.binding_energy(dilute_ea[c], n_sheet, n_mott_a[c])
 
     regions = tuple((mesh.index_of(a), mesh.index_of(b)) for a, b in regions_nm)
-    for arr in list(cell.values()) + [x_cell, cell_layer, layer_index, sheet_d, sheet_a, sheet_ed, sheet_ea]:
+    for arr in list(cell.values()) + [x_cell, cell_layer, layer_index, sheet_d, sheet_a, sheet_ed,
+                                      sheet_ea, sheet_fixed]:
         arr.flags.writeable = False
     return Structure(mesh=mesh, temperature=T, layers=tuple(layers), cell_layer=cell_layer,
                      layer_index=layer_index, x_cell=x_cell, cell=cell, sheet_donors=sheet_d,
@@ -393,7 +442,8 @@ def build_structure(deck: Deck, *, mesh: Mesh | None = None) -> Structure:
                      regions=regions, regions_nm=regions_nm, carriers=tuple(deck.physics.carriers),
                      full_ionization=deck.physics.ionization != "thermal",
                      states=int(deck.quantum.states), surface=_contact(deck.surface),
-                     substrate=_contact(deck.substrate), strain=summary,
+                     substrate=_contact(deck.substrate), strain=summary, sheet_fixed=sheet_fixed,
+                     polarity=polarity, polarization_factor=factor, crystal=crystal,
                      contacted=contacted_carrier(deck.physics.contacted_carrier, layers))
 
 
@@ -432,13 +482,48 @@ def _unstrained(layers, cell, cell_layer) -> StrainSummary:
 
 
 def _library_crystal(name, local):
-    from selfcon.input.materials import CRYSTAL
-    by = {d.name: d for d in local}
-    seen = set()
-    while name in by and name not in seen:
-        seen.add(name)
-        name = by[name].base
-    return CRYSTAL.get(name, "zincblende")
+    from selfcon.input.materials import crystal
+    return crystal(name, local)
+
+
+def _stack_crystal(deck, layers, strained) -> str:
+    """The crystal of the stack ("zincblende" or "wurtzite"); refuses (exit 2) a stack that
+    mixes the two, a wurtzite stack without the lattice it grows on, a substrate of the other
+    crystal, and the X/L valleys (zincblende only) in a wurtzite stack."""
+    crystals = [_library_crystal(Li.material, deck.materials) for Li in layers]
+    if len(set(crystals)) > 1:
+        k = next(i for i, c in enumerate(crystals) if c != crystals[0])
+        raise deck.error(f"layer[{k}].material",
+                         f"{layers[k].material} is {crystals[k]} but {layers[0].material} above it "
+                         f"is {crystals[0]}: a stack of wurtzite and zincblende layers (their "
+                         "interface, polarity and strain) is not modelled",
+                         allowed=f"{crystals[0]} materials in this stack", cls=MaterialError)
+    crystal = crystals[0] if crystals else "zincblende"
+    if crystal != "wurtzite":
+        ref = getattr(deck, "lattice", None)
+        if ref is not None and ref.material is not None and \
+                _library_crystal(ref.material, deck.materials) == "wurtzite":
+            raise deck.error("substrate.material", f"{ref.material} is wurtzite but the stack is "
+                             "zincblende", allowed="a zincblende substrate material",
+                             cls=MaterialError)
+        return crystal
+    if not strained:
+        raise deck.error("substrate.material",
+                         "a wurtzite stack needs the lattice it grows on (there is no unstrained "
+                         "default: the polarization sheets depend on the strain): give "
+                         "[substrate] material (e.g. \"GaN\") or lattice_constant (a, nm), or "
+                         "mark a buffer layer relaxed = true", allowed="GaN, AlN, InN, AlGaN, "
+                         "InGaN, InAlN or a deck-local wurtzite material", cls=MaterialError)
+    ref = deck.lattice
+    if ref.material is not None and _library_crystal(ref.material, deck.materials) != "wurtzite":
+        raise deck.error("substrate.material", f"{ref.material} is zincblende but the stack is "
+                         "wurtzite (c-plane growth)", allowed="GaN, AlN, InN, AlGaN, InGaN, InAlN",
+                         cls=MaterialError)
+    valleys = [c for c in deck.physics.carriers if c in ("x_electron", "l_electron")]
+    if valleys:
+        raise deck.error("physics.carriers", f"{valleys[0]}: the wurtzite model has no X or L "
+                         "valleys", allowed="electron, heavy_hole, light_hole", cls=MaterialError)
+    return crystal
 
 
 def _apply_strain(deck, layers, cell, cell_layer, T, needs, h) -> StrainSummary:
@@ -471,14 +556,22 @@ def _apply_strain(deck, layers, cell, cell_layer, T, needs, h) -> StrainSummary:
             top_lattice[Li.index] = float(p["lattice"])
     own = cell["lattice"]
     a_par = in_plane_lattice(own, cell_layer, relaxed, top_lattice, a_ref)
-    crystals = {_library_crystal(Li.material, deck.materials) for Li in layers}
-    if crystals != {"zincblende"}:
-        raise deck.error("substrate", f"strain of {sorted(crystals - {'zincblende'})} layers is not "
-                         "modelled yet", cls=MaterialError)
+    wurtzite = bool(np.any(cell["wurtzite"] > 0.5))
     e = bulk_strained_edges(cell, a_par)
     exx, ezz = e["eps_xx"], e["eps_zz"]
     for key in ("ec_gamma", "ev_hh", "ev_lh", "ec_x_z", "ec_x_xy", "ec_x", "ec_l"):
         cell[key] = e[key]
+    if wurtzite:        # the strained edge of the split-off hole and the strained hole masses
+        for key in ("ev_ch", "m_hh_z", "m_hh_par", "m_lh_z", "m_lh_par", "m_ch_z", "m_ch_par",
+                    "m_hh_dos", "m_lh_dos", "m_ch_dos"):
+            cell[key] = e[key]
+        bad = ~(np.isfinite(cell["m_lh_z"]) & (cell["m_lh_z"] > 0) & (cell["m_ch_z"] > 0)
+                & (cell["m_lh_par"] > 0) & (cell["m_ch_par"] > 0))
+        if bad.any():
+            Li = layers[int(cell_layer[np.flatnonzero(bad)[0]])]
+            raise deck.error(f"layer[{Li.index}].material", f"{Li.material} under this strain "
+                             "gets a non-positive hole mass from valence_a1..a4 (check the "
+                             "deck-local parameters)", cls=MaterialError)
     cell["eg_gamma"] = cell["ec_gamma"] - np.maximum(cell["ev_hh"], cell["ev_lh"])
     cell["eps_xx"], cell["eps_zz"], cell["a_par"] = exx, ezz, a_par
     # per-layer summary (cell-width-weighted means) and critical thickness
@@ -495,9 +588,19 @@ def _apply_strain(deck, layers, cell, cell_layer, T, needs, h) -> StrainSummary:
                                lattice_inplane=float(a_par[sel][0]),
                                lattice_own=float(a_mean[Li.index]),
                                critical_thickness=float("inf"), thickness=Li.bottom - Li.top))
-    hc, windows = stack_critical_thickness(per, nu, a_mean)
+    if wurtzite:
+        # c-plane layers: the channel-cracking criterion (selfcon.model.strain)
+        stress = biaxial_stress_c_plane(exx, cell["c11"], cell["c12"], cell["c13"], cell["c33"])
+        s_mean = _layer_means(layers, cell_layer, h, stress)
+        per = [replace(L, stress=float(s_mean[L.index]), criterion="channel cracking") for L in per]
+        hc, windows = wurtzite_stack_cracking(per, s_mean)
+        crystal, criterion = "wurtzite", "channel cracking"
+    else:
+        hc, windows = stack_critical_thickness(per, nu, a_mean)
+        crystal, criterion = "zincblende", "Matthews-Blakeslee"
     per = tuple(replace(L, critical_thickness=float(hc[L.index])) for L in per)
-    return StrainSummary(mode=mode, reference=text, a_reference=a_ref, layers=per, windows=windows)
+    return StrainSummary(mode=mode, reference=text, a_reference=a_ref, layers=per, windows=windows,
+                         crystal=crystal, criterion=criterion)
 
 
 def key_nodes(st: Structure) -> np.ndarray:
@@ -538,6 +641,10 @@ def coarsened(st: Structure, factor: int = 4) -> tuple[Structure, np.ndarray]:
                   x_cell=st.x_cell[mid], sheet_donors=st.sheet_donors[nodes],
                   sheet_acceptors=st.sheet_acceptors[nodes], sheet_ed=st.sheet_ed[nodes],
                   sheet_ea=st.sheet_ea[nodes])
+    if "polarization" in cell:
+        # the bound sheets of the coarse cells' polarization: exact at the interfaces (kept
+        # nodes), a graded layer's bulk bound charge on the coarse nodes
+        picked["sheet_fixed"] = sheets_nm2(cell["polarization"])
     for arr in [z, h, wl, wr, w, *cell.values(), *picked.values()]:
         arr.flags.writeable = False     # read-only like every structure array (one numba signature)
     coarse = replace(st, mesh=Mesh(z=z, h=h, wl=wl, wr=wr, w=w), cell=cell, regions=regions,

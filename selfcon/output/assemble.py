@@ -13,7 +13,7 @@ from importlib import metadata
 
 import numpy as np
 
-from selfcon.constants import CM2_PER_NM2, CM3_PER_NM3, NM_PER_CM
+from selfcon.constants import C_M2_PER_NM2, CM2_PER_NM2, CM3_PER_NM3, NM_PER_CM
 from selfcon.output import channels as chx
 from selfcon.output.channels import OCCUPIED_CM2, OCCUPIED_FRACTION  # noqa: F401  (the one rule)
 from selfcon.output.diagnostics import design_warnings
@@ -123,6 +123,18 @@ def channel_summary(an) -> dict:
     return out
 
 
+def interface_columns(st) -> dict:
+    """The /interfaces columns of a structure: every layer interface, top first, with its
+    depth and bound polarization sheet (cm^-2 and C/m^2) and the two layers' names."""
+    rows = st.interfaces()
+    sigma = np.array([r["sigma_nm2"] for r in rows], dtype=float)
+    return {"depth_nm": np.array([r["z_nm"] for r in rows], dtype=float),
+            "sigma_cm2": sigma * CM2_PER_NM2,
+            "sigma_C_m2": sigma * C_M2_PER_NM2,
+            "upper": np.array([st.layers[r["upper"]].name for r in rows], dtype=object),
+            "lower": np.array([st.layers[r["lower"]].name for r in rows], dtype=object)}
+
+
 def build_result(deck, st, loop, *, wall_time: float) -> Result:
     """The Result of one solve: ``deck`` (the Deck solved), ``st`` (its Structure), ``loop``
     (the :class:`selfcon.solver.loop.LoopOutcome`, whose workspace holds the densities of
@@ -148,6 +160,9 @@ def build_result(deck, st, loop, *, wall_time: float) -> Result:
         "hole_density": p * CM3_PER_NM3,
         "ionized_donors": ndp * CM3_PER_NM3,
         "ionized_acceptors": nam * CM3_PER_NM3,
+        # wurtzite polarization and its bound sheets (selfcon.model.polarization; 0 otherwise)
+        "polarization": right_cell_values(st.cell["polarization"]),
+        "bound_charge": st.fixed_charge * CM3_PER_NM3,
     }
     for key in schema.MATERIAL_PROFILES:        # material parameters the schema asks to report
         profile[key] = right_cell_values(st.cell[key])
@@ -212,7 +227,8 @@ def build_result(deck, st, loop, *, wall_time: float) -> Result:
         "hole_sheet_density_cm2": ps,
         "donor_sheet_density_cm2": float(np.sum(ndp * w)) * CM2_PER_NM2,
         "acceptor_sheet_density_cm2": float(np.sum(nam * w)) * CM2_PER_NM2,
-        "gauss_residual": float(steps.gauss_residual(ws, phi, loop.states, rho=p - n + ndp - nam)),
+        "gauss_residual": float(steps.gauss_residual(ws, phi, loop.states,
+                                                     rho=p - n + ndp - nam + st.fixed_charge)),
         # each carrier's own Fermi level (the gate's for the minority carrier under a schottky
         # surface); every energy in the file is relative to the contacted carrier's, 0 eV
         "electron_fermi_level_eV": float(st.fermi_levels[0]),
@@ -254,6 +270,7 @@ def build_result(deck, st, loop, *, wall_time: float) -> Result:
     provenance["created"] = utc_now()
 
     result = Result(
+        interfaces=interface_columns(st),
         title=deck.title, temperature=float(deck.temperature), converged=bool(loop.converged),
         iterations=len(loop.iterations), residual=summary["residual_V"], message=loop.message,
         deck_text=text, z=st.z.copy(), profile=profile, layer_index=st.layer_index.astype(np.int64),

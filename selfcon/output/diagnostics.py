@@ -54,6 +54,23 @@ Thresholds (our own choices, stated here and in README.md, "Design recipes"):
   conduction-band non-parabolicity that a small gap brings.  Subband energies, masses and
   the charge transferred across a broken gap are therefore only rough.
 
+* critical thickness of wurtzite layers: the same warning names the channel-cracking
+  criterion (selfcon.model.strain: tensile nitride layers crack rather than form misfit
+  dislocations; h_c = K_Ic^2/(Z sigma^2), Hutchinson and Suo 1992), per layer and for runs
+  of tensile layers (their elastic energies summed).
+* polarization-fed parasitic channel: a parasitic electron channel within
+  ``POLARIZATION_DISTANCE_NM`` = 5 nm of a positive polarization sheet of at least
+  ``POLARIZATION_MIN_CM2`` = 1e10 cm^-2 (``Result.interfaces``) is named with that
+  interface (a back barrier grown on GaN); hole channels at a negative sheet are left to
+  the next check.
+* holes at a negative polarization sheet (``polarization_holes``): holes within
+  ``HOLE_WINDOW_NM`` = 5 nm of a sheet below -1e10 cm^-2 exceed 1 % of the main channel
+  and 1e8 cm^-2 and are not the main or a named channel (a GaN cap on AlGaN, the bottom of
+  an N-face barrier); in a deck that counts no holes, the valence edge there within
+  ``VALLEY_KT`` = 10 kT of EF.
+* type-II interfaces with an interface gap of at least ``TYPE_II_GAP_EV`` = 1 eV are not
+  flagged (wide-gap nitride pairs staggered by strain).
+
 How to add a design warning
 ---------------------------
 1. Write ``check_<name>(result, structure, deck=None) -> list[str]`` in this module (or
@@ -99,7 +116,7 @@ __all__ = ["design_warnings", "register_check", "unregister_check", "deck_of",
            "check_dx_centres", "check_region_cut", "check_buffer_carriers",
            "check_uncounted_valleys", "doping_layers", "doping_layer_electrons",
            "CHECKS", "check_critical_thickness", "check_band_alignment",
-           "interface_alignments"]
+           "interface_alignments", "check_polarization_holes", "polarization_sheet_near"]
 
 #: name -> check, in the order warnings are listed (filled by register_check)
 CHECKS: dict[str, Callable] = {}
@@ -290,8 +307,16 @@ def check_parasitic_channels(result, structure, deck=None) -> list[str]:
         kind = "electrons" if c["carrier"] == "electron" else "holes"
         doped = (_doped_layer_in(structure, c["top_nm"], c["bottom_nm"], c["carrier"])
                  if structure is not None else None)
+        sheet = polarization_sheet_near(result, c["top_nm"], c["bottom_nm"], c["carrier"])
+        if sheet is not None and c["carrier"] == "hole":
+            continue            # holes at a negative polarization sheet: check_polarization_holes
         if doped is not None:
             advice = f"parallel conduction through the doped layer {doped!r}: lower the doping or thin the spacer"
+        elif sheet is not None:
+            advice = (f"fed by the polarization sheet {sheet['sigma_cm2']:+.3g} cm^-2 at the {sheet['upper']!r}/"
+                      f"{sheet['lower']!r} interface (z = {sheet['depth_nm']:g} nm): grade that interface or "
+                      "lower its composition step (a back barrier: grow the buffer itself as relaxed AlGaN, or "
+                      "grade the back barrier's bottom)")
         else:
             advice = (f"a second conducting sheet in {c['layer']!r}: thicken the barrier between it and the doping "
                       "that feeds it, or lower that doping")
@@ -299,6 +324,31 @@ def check_parasitic_channels(result, structure, deck=None) -> list[str]:
                    f"{c['bottom_nm']:.0f} nm (centroid {c['centroid_nm']:.0f} nm), "
                    f"{_relative(n, main, PARALLEL_FRACTION)}; {advice}")
     return out
+
+
+#: nm: a channel within this distance of a polarization sheet is fed by it
+POLARIZATION_DISTANCE_NM = 5.0
+#: cm^-2: polarization sheets smaller than this feed no channel worth naming
+POLARIZATION_MIN_CM2 = 1e10
+
+
+def polarization_sheet_near(result, top: float, bottom: float, carrier: str) -> dict | None:
+    """The strongest polarization sheet (a row of ``result.interfaces`` as a dict) of the sign
+    that attracts ``carrier`` (positive for electrons, negative for holes) at most
+    POLARIZATION_DISTANCE_NM outside the interval [top, bottom] nm; None without one."""
+    t = result.interfaces or {}
+    depth = np.asarray(t.get("depth_nm", []), dtype=float)
+    if depth.size == 0:
+        return None
+    sigma = np.asarray(t["sigma_cm2"], dtype=float)
+    sign = 1.0 if carrier == "electron" else -1.0
+    near = ((depth >= top - POLARIZATION_DISTANCE_NM) & (depth <= bottom + POLARIZATION_DISTANCE_NM)
+            & (sign * sigma > POLARIZATION_MIN_CM2))
+    if not near.any():
+        return None
+    k = int(np.flatnonzero(near)[np.argmax(sign * sigma[near])])
+    return {"depth_nm": float(depth[k]), "sigma_cm2": float(sigma[k]),
+            "upper": str(t["upper"][k]), "lower": str(t["lower"][k])}
 
 
 #: the earlier name of the parasitic-channel check (it covered doping layers only)
@@ -494,8 +544,17 @@ def check_critical_thickness(result, structure, deck=None) -> list[str]:
     rows = _layer_rows(result)
     name = (lambda k: repr(rows[k]["name"])) if rows else (lambda k: f"layer {k}")
     out = []
+    wurtzite = getattr(sm, "crystal", "zincblende") == "wurtzite"
     for L in sm.layers:
         if L.strained and abs(L.eps_xx) >= CRITICAL_MIN_STRAIN and L.thickness > L.critical_thickness:
+            if wurtzite:
+                out.append(f"strained layer {name(L.index)} ({100 * L.eps_xx:+.2f} % in-plane strain, "
+                           f"{L.stress:.1f} GPa tension) is {L.thickness:g} nm thick, beyond its critical "
+                           f"thickness for channel cracking {L.critical_thickness:.1f} nm (Hutchinson-Suo "
+                           "energy balance with the fracture toughness of GaN): expect cracks and "
+                           "relaxation, which lower the piezoelectric sheet and the 2DEG; thin it or "
+                           "lower the composition")
+                continue
             out.append(f"strained layer {name(L.index)} ({100 * L.eps_xx:+.2f} % in-plane strain) is "
                        f"{L.thickness:g} nm thick, beyond its Matthews-Blakeslee critical thickness "
                        f"{L.critical_thickness:.1f} nm: expect misfit dislocations (relaxation); thin it "
@@ -506,12 +565,69 @@ def check_critical_thickness(result, structure, deck=None) -> list[str]:
         if first in strained and last in strained and h > hc:
             if worst is None or h / hc > worst[2] / worst[3]:
                 worst = (first, last, h, hc, eps)
-    if worst is not None:
+    if worst is not None and wurtzite:
+        first, last, h, hc, eps = worst
+        out.append(f"layers {name(first)} to {name(last)} together: {h:g} nm of mean strain "
+                   f"{100 * eps:+.2f} %, beyond their critical thickness for channel cracking {hc:.1f} nm "
+                   "(the elastic energy of the tensile layers summed, moduli taken equal): the stack may "
+                   "crack; thin the tensile layers or lower their composition")
+    elif worst is not None:
         first, last, h, hc, eps = worst
         out.append(f"strained layers {name(first)} to {name(last)} together: {h:g} nm with mean strain "
                    f"{100 * eps:+.2f} %, beyond the Matthews-Blakeslee critical thickness {hc:.1f} nm of "
                    "that mean strain (average-strain approximation for a stack under one cap): the "
                    "stack may relax; add strain-compensating layers or thin it")
+    return out
+
+
+#: nm: holes this close to a negative polarization sheet belong to it
+HOLE_WINDOW_NM = 5.0
+
+
+@register_check("polarization_holes")
+def check_polarization_holes(result, structure, deck=None) -> list[str]:
+    """Holes accumulating at a negative polarization sheet (an N-face channel interface, a
+    GaN cap on AlGaN): more than 1 % of the main channel and 1e8 cm^-2 within 5 nm of it,
+    unless they are the main or a named channel; or, where holes are not counted
+    (physics.carriers), the valence edge there within 10 kT of EF."""
+    t = result.interfaces or {}
+    depth = np.asarray(t.get("depth_nm", []), dtype=float)
+    if depth.size == 0:
+        return []
+    sigma = np.asarray(t["sigma_cm2"], dtype=float)
+    z = np.asarray(result.z)
+    w = structure.mesh.w if structure is not None else Mesh.from_nodes(z).w
+    p = np.asarray(result.profile["hole_density"])
+    ev = np.asarray(result.profile["valence_band"])
+    main = result.main_channel if result.channels else None
+    ns = float(main["sheet_density"]) if main is not None else 0.0
+    limit = max(PARALLEL_FRACTION * ns, FLOOR_CM2)
+    counted = structure is None or any(b in structure.carriers for b in ("heavy_hole", "light_hole"))
+    kT = KB_EV * float(result.temperature)
+    out = []
+    for k in np.flatnonzero(sigma < -POLARIZATION_MIN_CM2):
+        sel = np.abs(z - depth[k]) <= HOLE_WINDOW_NM
+        where = (f"the {str(t['upper'][k])!r}/{str(t['lower'][k])!r} interface (z = {depth[k]:g} nm, "
+                 f"polarization sheet {sigma[k]:+.3g} cm^-2)")
+        if not counted:
+            top = float(np.max(ev[sel])) if sel.any() else -np.inf
+            if top > -VALLEY_KT * kT:
+                out.append(f"holes would accumulate at {where}: the valence edge lies {1e3 * top:+.0f} meV "
+                           f"from EF there, but physics.carriers counts no holes; add \"heavy_hole\" and "
+                           "\"light_hole\"")
+            continue
+        holes = float(np.sum(p[sel] * w[sel])) / NM_PER_CM
+        if holes <= limit:
+            continue
+        own = [c for c in (result.channels or []) if c["carrier"] == "hole"
+               and c["top_nm"] - HOLE_WINDOW_NM <= depth[k] <= c["bottom_nm"] + HOLE_WINDOW_NM]
+        if any(c.get("main") or c.get("named") for c in own):
+            continue            # an intended hole channel
+        share = f", {100 * holes / ns:.1f} % of the main channel {main['name']!r}" if ns > 0 else ""
+        out.append(f"holes accumulate at {where}: {_fmt_cm2(holes)} within {HOLE_WINDOW_NM:g} nm{share} "
+                   f"(limit {_fmt_cm2(limit)}); a two-dimensional hole gas there screens the gate and "
+                   "conducts in parallel: thin the layer above the sheet (a cap), dope it n-type to "
+                   "compensate the sheet, grade the interface or lower its composition step")
     return out
 
 
@@ -544,6 +660,13 @@ def interface_alignments(structure) -> list[dict]:
     return out
 
 
+#: eV: a type-II interface whose interface gap is at least this wide is not flagged: the
+#: coupling across it that the single-band model leaves out falls with the inverse interface
+#: gap, and wide-gap pairs (a nitride alloy on a strained AlN interlayer) are staggered by
+#: strain without any small gap (our own choice)
+TYPE_II_GAP_EV = 1.0
+
+
 @register_check("band_alignment")
 def check_band_alignment(result, structure, deck=None) -> list[str]:
     """Type-II and broken-gap interfaces inside a quantum region that hold carriers."""
@@ -552,7 +675,7 @@ def check_band_alignment(result, structure, deck=None) -> list[str]:
     rows = _layer_rows(result)
     out = []
     for it in interface_alignments(structure):
-        if it["kind"] == "type I":
+        if it["kind"] == "type I" or (it["kind"] == "type II" and it["gap_eV"] >= TYPE_II_GAP_EV):
             continue
         if not any(a - 1e-9 <= it["z_nm"] <= b + 1e-9 for a, b in structure.regions_nm):
             continue

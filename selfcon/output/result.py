@@ -13,6 +13,7 @@ every variable with its units, long_name, description and dimensions, is declare
 
 Each group holds its own coordinate variables (``/mesh/z``, ``/profile/z``,
 ``/subbands/<band>/z`` and ``state``, ``/channels/channel``, ``/transitions/transition``,
+``/interfaces/interface``,
 ``/convergence/iteration``, ``/layer``, ...), as
 netCDF-4 dimension scales.  Writing is atomic: a temporary file in the target folder,
 flushed and fsync'ed, then ``os.replace``.  Any failure removes the temporary file and
@@ -29,8 +30,8 @@ import numpy as np
 from selfcon.errors import ResultFileError
 from selfcon.output.files import atomic_write as _atomic_write
 from selfcon.output.netcdf import Group, set_attrs
-from selfcon.output.schema import (CHANNEL_FIELDS, DIMS, RESULT, ROOT_ATTRS, SCHEMA, SCHEMA_VERSION,
-                                   SUBBAND_FIELDS, TRANSITION_FIELDS)
+from selfcon.output.schema import (CHANNEL_FIELDS, DIMS, INTERFACE_FIELDS, RESULT, ROOT_ATTRS, SCHEMA,
+                                   SCHEMA_VERSION, SUBBAND_FIELDS, TRANSITION_FIELDS)
 from dataclasses import dataclass, field
 from typing import Any
 
@@ -103,6 +104,7 @@ class Result:
     regions_nm: list[tuple[float, float]] = field(default_factory=list)
     channels: list[dict[str, Any]] = field(default_factory=list)   # rows of /channels, top first
     transitions: dict[str, np.ndarray] = field(default_factory=dict)  # /transitions columns
+    interfaces: dict[str, np.ndarray] = field(default_factory=dict)   # /interfaces columns
 
     @property
     def main_channel(self) -> dict | None:
@@ -422,10 +424,11 @@ def _write_subbands(f, result: Result) -> None:
 
 
 def _column(name, values):
-    """A /channels or /transitions column as an array (text as str, flags and counts as int)."""
+    """A /channels, /transitions or /interfaces column as an array (text as str, flags and counts
+    as int)."""
     v = RESULT.require(name)
     values = list(values)
-    if v.name in ("name", "carrier", "layer", "hole_band"):
+    if v.name in ("name", "carrier", "layer", "hole_band", "upper", "lower"):
         return np.array([str(x) for x in values], dtype=object)
     if v.name in ("occupied_subbands", "main", "named", "electron_state", "hole_state"):
         return np.asarray([int(x) for x in values], dtype=np.int64)
@@ -444,6 +447,14 @@ def _write_transitions(f, result: Result) -> None:
     t = result.transitions or {}
     g.coord("transition", len(t.get("energy", [])))
     for v in RESULT.in_group("transitions"):
+        g.var(v.name, _column(v.path, t.get(v.name, [])))
+
+
+def _write_interfaces(f, result: Result) -> None:
+    g = Group.create(f, "interfaces", RESULT)
+    t = result.interfaces or {}
+    g.coord("interface", len(t.get("depth_nm", [])))
+    for v in RESULT.in_group("interfaces"):
         g.var(v.name, _column(v.path, t.get(v.name, [])))
 
 
@@ -471,7 +482,7 @@ def _write_summary(f, result: Result) -> None:
 
 
 _WRITERS = (_write_root, _write_mesh, _write_profile, _write_layers, _write_subbands,
-            _write_channels, _write_transitions, _write_convergence, _write_summary)
+            _write_channels, _write_transitions, _write_interfaces, _write_convergence, _write_summary)
 
 
 def _write_file(path: str, result: Result) -> None:
@@ -639,6 +650,15 @@ def _read_result(path: Path) -> Result:
                     v = gt[name][()]
                     transitions[name] = (np.array([x.decode("utf-8") if isinstance(x, bytes) else str(x)
                                                    for x in v], dtype=object) if name == "hole_band" else v)
+        interfaces = {}
+        if "interfaces" in f:              # files before the nitrides have none
+            gi = f["interfaces"]
+            for name in INTERFACE_FIELDS:
+                if name in gi:
+                    v = gi[name][()]
+                    interfaces[name] = (np.array([x.decode("utf-8") if isinstance(x, bytes) else str(x)
+                                                  for x in v], dtype=object)
+                                        if name in ("upper", "lower") else v)
         gc = _need(f, "convergence", path)
         history = gc["residual"][()]
         record = {}
@@ -656,5 +676,5 @@ def _read_result(path: Path) -> Result:
             subbands=subbands, residual_history=history, summary=summary, warnings=warnings,
             provenance=provenance, record=record,
             regions_nm=[(float(t), float(b)) for t, b in np.asarray(regions).reshape(-1, 2)],
-            channels=channels, transitions=transitions,
+            channels=channels, transitions=transitions, interfaces=interfaces,
         )

@@ -186,6 +186,7 @@ declare_dim("end", "1", "window end", "low and high end of a bias window", label
 declare_dim("job", "1", "job id", "job id (jobs/<id>.h5)")
 declare_dim("channel", "1", "channel index", "row of /channels: a channel, top first", start=0)
 declare_dim("transition", "1", "transition index", "row of /transitions", start=0)
+declare_dim("interface", "1", "interface index", "row of /interfaces: a layer interface, top first", start=0)
 
 
 # --------------------------------------------------------------------------- the result file
@@ -234,13 +235,19 @@ _r("profile/strain_xx", "1", "in-plane strain",
    "in-plane strain eps_xx = (a_par - a)/a of the cell to the right of each node (0 in an unstrained stack)",
    dims=("z",))
 _r("profile/strain_zz", "1", "growth-axis strain",
-   "strain along the growth axis, eps_zz = -2 (C12/C11) eps_xx", dims=("z",))
+   "strain along the growth axis, eps_zz = -2 (C12/C11) eps_xx (wurtzite: -2 (C13/C33) eps_xx)", dims=("z",))
 _r("profile/x_electron_density", "cm-3", "X-valley electron density",
    "X-valley electrons (classical; part of electron_density)", dims=("z",),
    when="physics.carriers has x_electron")
 _r("profile/l_electron_density", "cm-3", "L-valley electron density",
    "L-valley electrons (classical; part of electron_density)", dims=("z",),
    when="physics.carriers has l_electron")
+_r("profile/polarization", "C/m^2", "polarization along z",
+   "polarization P_z along +z (into the wafer) of the cell to the right of each node: spontaneous plus "
+   "piezoelectric, wurtzite layers only (0 in zincblende stacks)", dims=("z",))
+_r("profile/bound_charge", "cm-3", "bound polarization charge",
+   "bound polarization sheets spread over their dual cells (as ionized_donors spreads delta sheets): the net "
+   "charge is p - n + Nd+ - Na- + bound_charge", dims=("z",))
 _r("profile/layer_index", "1", "layer index", "index into /layers of the layer holding each node", dims=("z",))
 
 #: material parameters written as /profile/<key>: Structure.cell[key] of the cell to the right
@@ -285,8 +292,9 @@ _LAYER_COLUMNS = (
     ("lattice_own_nm", "nm", "own lattice constant",
      "the layer's own (relaxed) lattice constant at the temperature, mean", ""),
     ("critical_thickness_nm", "nm", "critical thickness",
-     "Matthews-Blakeslee critical thickness of the layer on its own (inf: unstrained or relaxed); see the "
-     "design warnings for runs of strained layers", ""),
+     "critical thickness of the layer on its own (inf: unstrained or relaxed): Matthews-Blakeslee for "
+     "zincblende layers, channel cracking under tension for wurtzite layers; see the design warnings for "
+     "runs of strained layers", ""),
 )
 for _name, _units, _long, _desc, _when in _LAYER_COLUMNS:
     _r(f"layer_table/{_name}", _units, _long, _desc, dims=("layer",), when=_when)
@@ -353,6 +361,20 @@ _x = (
 for _name, _units, _long, _desc in _x:
     _r(f"transitions/{_name}", _units, _long, _desc, dims=("transition",))
 
+RESULT.group("interfaces", "layer interfaces, top first, along the 'interface' dimension: depth and the "
+                           "bound polarization sheet of wurtzite stacks (zero in zincblende stacks)")
+_i = (
+    ("depth_nm", "nm", "interface depth", "depth of the interface (the node between the two layers)"),
+    ("sigma_cm2", "cm-2", "bound sheet charge",
+     "bound polarization sheet sigma = P_z(above) - P_z(below) in elementary charges per area (positive: "
+     "positive charge; P_z along +z, into the wafer)"),
+    ("sigma_C_m2", "C/m^2", "bound sheet charge (SI)", "the same sheet in C/m^2"),
+    ("upper", "1", "layer above", "name of the layer above the interface"),
+    ("lower", "1", "layer below", "name of the layer below the interface"),
+)
+for _name, _units, _long, _desc in _i:
+    _r(f"interfaces/{_name}", _units, _long, _desc, dims=("interface",))
+
 RESULT.group("convergence", "history of the self-consistent loop, one entry per iteration")
 _r("convergence/residual", "V", "potential residual", "max |delta phi| between successive iterations",
    dims=("iteration",))
@@ -380,6 +402,7 @@ PROFILE_FIELDS = {k: v for k, v in _fields(RESULT, "profile").items()
 SUBBAND_FIELDS = _fields(RESULT, "subbands/<band>")
 CHANNEL_FIELDS = _fields(RESULT, "channels")
 TRANSITION_FIELDS = _fields(RESULT, "transitions")
+INTERFACE_FIELDS = _fields(RESULT, "interfaces")
 RECORD_FIELDS = {k: v for k, v in _fields(RESULT, "convergence").items() if k != "record_residual"}
 
 
@@ -425,7 +448,8 @@ _s("subbands/<band>/occupation", "cm-2", "subband sheet density",
    flat="subband_occupation")
 SWEEP.group("mesh", "mesh nodes of the profiles", coords=("z",))
 _s("gate_charge", "C/cm2", "gate charge",
-   "Q = -q * integral (p - n + Nd+ - Na-) dz over the semiconductor (gate side of the balance)",
+   "Q = -q * integral (p - n + Nd+ - Na- + bound polarization charge) dz over the semiconductor (gate "
+   "side of the balance)",
    dims=("bias",), flat="gate_charge")
 _s("capacitance", "F/cm2", "capacitance",
    "C = dQ/dV by numpy.gradient of the converged gate charge over the bias points", dims=("bias",),

@@ -30,7 +30,8 @@ class PoissonProblem:
     Cells: eps, ec0, ev0 (eV), nc, nv (nm^-3, effective DOS; 0 switches a carrier off),
     nd, na (nm^-3), ed, ea (binding energies, eV).  Nodes: sheet_nd, sheet_na (nm^-2) with
     their binding energies sheet_ed, sheet_ea (eV; default: those of the cell right of the
-    node, the left one at the last node).  efn, efp (eV, electron energy scale): the Fermi
+    node, the left one at the last node); sheet_fixed (nm^-2, fixed charge in units of q: bound
+    polarization sheets).  efn, efp (eV, electron energy scale): the Fermi
     levels of electrons and holes (default 0; the dopant levels are always occupied with 0).
     Quantum part (predictor-corrector): cls_e, cls_h (N,) masks (1 classical, 0 quantum),
     psi2 (N, Ke) |psi|^2 (nm^-1), ek (Ke,) eV, dos_e (Ke,) nm^-2 eV^-1; psi2h, ekh, dos_h
@@ -53,6 +54,7 @@ class PoissonProblem:
     temperature: float
     sheet_nd: np.ndarray = None
     sheet_na: np.ndarray = None
+    sheet_fixed: np.ndarray = None
     full_ionization: bool = False
     top: tuple = (ZERO_FIELD, 0.0)
     bottom: tuple = (ZERO_FIELD, 0.0)
@@ -91,13 +93,13 @@ class PoissonProblem:
             if a.shape != (N - 1,):
                 raise ValueError(f"PoissonProblem: {k} must be per cell, shape ({N - 1},)")
             set_(k, a)
-        for k in ("sheet_nd", "sheet_na", "phi_ref"):
+        for k in ("sheet_nd", "sheet_na", "sheet_fixed", "phi_ref"):
             a = getattr(self, k)
             set_(k, np.zeros(N) if a is None else _f(a))
         for k, cell in (("sheet_ed", self.ed), ("sheet_ea", self.ea)):
             a = getattr(self, k)
             set_(k, np.append(cell, cell[-1]) if a is None else _f(a))
-        for k in ("sheet_nd", "sheet_na", "phi_ref", "sheet_ed", "sheet_ea"):
+        for k in ("sheet_nd", "sheet_na", "sheet_fixed", "phi_ref", "sheet_ed", "sheet_ea"):
             if getattr(self, k).shape != (N,):
                 raise ValueError(f"PoissonProblem: {k} must be per node, shape ({N},)")
         set_("efn", float(self.efn))
@@ -173,8 +175,8 @@ class PoissonProblem:
         return (Grid(self.h, self.wl, self.wr),
                 Material(self.eps, self.ec0, self.ev0, self.nc, self.nv, self.nd, self.ed,
                          self.na, self.ea, self.sheet_nd, self.sheet_na, self.sheet_ed,
-                         self.sheet_ea, self.ec0_v, self.nc_v, self.ev0_v, self.nv_v,
-                         float(self.kT), bool(self.full_ionization), self.efn, self.efp),
+                         self.sheet_ea, self.sheet_fixed, self.ec0_v, self.nc_v, self.ev0_v,
+                         self.nv_v, float(self.kT), bool(self.full_ionization), self.efn, self.efp),
                 Quantum(self.cls_e, self.cls_h, self.psi2, self.ek, self.dos_e, self.psi2h,
                         self.ekh, self.dos_h, self.phi_ref, float(self.qshift)))
 
@@ -209,21 +211,24 @@ def solve_poisson(problem, phi0, *, tol=1e-9, max_iter=200, max_step=0.3, backtr
 
 @dataclass
 class Densities:
-    """Node densities in nm^-3 (sheets spread as s/w), charge rho = p - n + nd_plus - na_minus."""
+    """Node densities in nm^-3 (sheets spread as s/w), charge
+    rho = p - n + nd_plus - na_minus + fixed (``fixed``: the fixed sheets, bound polarization
+    charge, spread as s/w; 0 without)."""
     n: np.ndarray
     p: np.ndarray
     nd_plus: np.ndarray
     na_minus: np.ndarray
+    fixed: np.ndarray = 0.0
 
     @property
     def rho(self):
-        return self.p - self.n + self.nd_plus - self.na_minus
+        return self.p - self.n + self.nd_plus - self.na_minus + self.fixed
 
 
 def densities(problem, phi):
     from selfcon.solver.kernels.poisson import node_densities
     n, p, ndp, nam, _ = node_densities(_f(phi), *problem.kernel_args())
-    return Densities(n, p, ndp, nam)
+    return Densities(n, p, ndp, nam, problem.sheet_fixed / problem.w)
 
 
 def total_charge(problem, phi):

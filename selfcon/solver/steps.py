@@ -38,7 +38,7 @@ from selfcon.solver.statistics import subband_density
 
 #: band name -> (edge key, mass along z, in-plane mass, sign: +1 electrons, -1 holes, valley degeneracy)
 BAND_SPECS = {
-    "electron": ("ec_gamma", "m_e", "m_e", +1, 1),
+    "electron": ("ec_gamma", "m_e", "m_e_par", +1, 1),     # in-plane mass: m_e but in wurtzite
     "heavy_hole": ("ev_hh", "m_hh_z", "m_hh_par", -1, 1),
     "light_hole": ("ev_lh", "m_lh_z", "m_lh_par", -1, 1),
 }
@@ -109,7 +109,8 @@ class Workspace:
         self._classical = None           # (phi, Densities) with every carrier classical
         m = structure.mesh
         fixed = (np.sum((structure.cell["donors"] + structure.cell["acceptors"]) * m.h)
-                 + np.sum(structure.sheet_donors + structure.sheet_acceptors))
+                 + np.sum(structure.sheet_donors + structure.sheet_acceptors)
+                 + (np.sum(np.abs(structure.sheet_fixed)) if structure.sheet_fixed is not None else 0.0))
         #: classical sheet density (nm^-2) below which a band is not worth an eigensolve
         self.negligible_sheet = max(NEGLIGIBLE_SHEET, NEGLIGIBLE_FRACTION * float(fixed))
 
@@ -146,6 +147,7 @@ def classical_problem(st: Structure, bc=None) -> P.PoissonProblem:
                             sheet_nd=st.sheet_donors, sheet_na=st.sheet_acceptors,
                             sheet_ed=statistics_binding(st.sheet_ed),
                             sheet_ea=statistics_binding(st.sheet_ea),
+                            sheet_fixed=st.sheet_fixed,
                             full_ionization=st.full_ionization, top=top, bottom=bottom,
                             ec0_v=ec_v, nc_v=nc_v, ev0_v=ev_v, nv_v=nv_v, efn=efn, efp=efp)
 
@@ -176,7 +178,8 @@ def hole_arrays(st: Structure):
     combined valence DOS mass, no further band.  Strained (the structure carries nv_hh,
     nv_lh): the heavy hole at ev_hh with nv_hh and the light hole as a further band at ev_lh
     with nv_lh, so each sits at its own edge.  Both bands count whenever the deck's carriers
-    include a hole band (as the combined DOS does)."""
+    include a hole band (as the combined DOS does).  Wurtzite (the structure carries nv_ch):
+    the crystal-field split-off hole at ev_ch is a second further band."""
     c = st.cell
     n = st.n_nodes - 1
     on = any(b in st.carriers for b in HOLE_BANDS)
@@ -185,6 +188,9 @@ def hole_arrays(st: Structure):
         return c["ev0"], nv, np.zeros((0, n)), np.zeros((0, n))
     if not on:
         return c["ev0"], np.zeros(n), np.zeros((0, n)), np.zeros((0, n))
+    if "nv_ch" in c:        # wurtzite: the crystal-field split-off hole as a third band
+        return (c["ev_hh"], c["nv_hh"], np.stack([c["ev_lh"], c["ev_ch"]]),
+                np.stack([c["nv_lh"], c["nv_ch"]]))
     return c["ev_hh"], c["nv_hh"], c["ev_lh"][None, :], c["nv_lh"][None, :]
 
 

@@ -4,6 +4,8 @@
     is_alloy(name)               True for a library alloy (ternary or quaternary)
     kind(name, local_defs=())    "binary" | "ternary" | "quaternary" | "standalone" (a deck-local
                                  material without base), following base chains
+    crystal(name, local_defs=()) "zincblende" | "wurtzite" (GaN, AlN, InN and their alloys), following
+                                 base chains; a deck-local material without base is zincblende
     lattice_matched(name, target, x=None, y=None, ...)
                                  the composition of ``name`` lattice-matched to ``target``
     describe(name, x=None, temperature=None, local_defs=())
@@ -52,10 +54,11 @@ import numpy as np
 from selfcon.errors import MaterialError
 from selfcon.input.materials import alloys as _rules
 from selfcon.input.materials.library import (ALLOY_RULES, ALLOYS, BINARIES, CRYSTAL,  # noqa: F401
-                                             PARAMETERS, QUATERNARIES, Bowing, Value)
+                                             PARAMETERS, QUATERNARIES, WURTZITE_ONLY,
+                                             ZINCBLENDE_ONLY, Bowing, Value)
 from selfcon.input.materials.alloys import OUTPUT_UNITS, FILL_MASS, FILL_VALLEY_OFFSET  # noqa: F401
 
-__all__ = ["names", "is_alloy", "kind", "describe", "cell_parameters", "lattice_matched",
+__all__ = ["names", "is_alloy", "kind", "crystal", "describe", "cell_parameters", "lattice_matched",
            "PARAMETERS", "OUTPUT_UNITS", "NEEDS", "Value", "Bowing"]
 
 #: the words ``needs`` understands
@@ -95,6 +98,22 @@ def kind(name, local_defs=()):
     if name in QUATERNARIES:
         return "quaternary"
     return None
+
+
+def crystal(name, local_defs=()):
+    """"zincblende" or "wurtzite": the crystal of ``name``, following deck-local base chains
+    (a deck-local material without base, an unknown name or a cycle: "zincblende")."""
+    local = _local_map(local_defs)
+    seen = set()
+    while name in local and name not in seen:
+        seen.add(name)
+        name = getattr(local[name], "base", None)
+    return CRYSTAL.get(name, "zincblende")
+
+
+def _not_applicable(key, crystal_name):
+    """True for a parameter the crystal's model does not use (hidden by `selfcon materials`)."""
+    return key in (ZINCBLENDE_ONLY if crystal_name == "wurtzite" else WURTZITE_ONLY)
 
 
 def _local_map(local_defs):
@@ -221,8 +240,9 @@ def _row(parameter, value, unit, source):
     return {"parameter": parameter, "value": value, "unit": unit, "source": source}
 
 
-def _value_rows(table, prefix=""):
-    return [_row(prefix + k, v.value, v.unit, v.source) for k, v in table.items()]
+def _value_rows(table, prefix="", crystal_name="zincblende"):
+    return [_row(prefix + k, v.value, v.unit, v.source) for k, v in table.items()
+            if not _not_applicable(k, crystal_name)]
 
 
 def _alloy_rows(name):
@@ -232,12 +252,17 @@ def _alloy_rows(name):
             _row("end_x0", a.end0, "", f"binary at x = 0; its values: selfcon materials {a.end0}"),
             _row("end_x1", a.end1, "", f"binary at x = 1; its values: selfcon materials {a.end1}")]
     rule = "P(x) = (1-x) P(x=0) + x P(x=1) - x(1-x) C(x)"
+    cr = CRYSTAL.get(name, "zincblende")
     for key, b in a.bowing.items():
+        if _not_applicable(key, cr):
+            continue
         rows.append(_row(f"bowing.{key}", b.c0, b.unit, b.source + "; " + rule))
         if b.c1:
             rows.append(_row(f"bowing.{key}.per_x", b.c1, b.unit,
                              b.source + "; C(x) = c0 + c1 x, this is c1"))
     for key, src in ALLOY_RULES.items():
+        if _not_applicable(key, cr):
+            continue
         how = "per end binary, then bowed" if "varshni" in key else "linear"
         rows.append(_row(f"rule.{key}", how, "", src))
     return rows
@@ -276,7 +301,17 @@ def _computed_rows(name, x, temperature, local_defs, y=None):
     where = (f"T = {t:g} K" + ("" if x is None else f", x = {float(x):g}")
              + ("" if y is None else f", y = {float(y):g}"))
     src = f"computed at {where} from the values above (selfcon.input.materials.alloys rules)"
-    return [_row(k, float(v[0]), OUTPUT_UNITS[k], src) for k, v in vals.items()]
+    hide = _WURTZITE_DERIVED if crystal(name, local_defs) != "wurtzite" else _ZINCBLENDE_DERIVED
+    return [_row(k, float(v[0]), OUTPUT_UNITS[k], src) for k, v in vals.items() if k not in hide]
+
+
+#: computed keys that only one crystal's model uses (hidden for the other by `selfcon materials`)
+_WURTZITE_DERIVED = ("lattice_c", "c13", "c33", "e31", "e33", "psp", "delta_cr", "va1", "va2",
+                     "va3", "va4", "da1", "da2", "dd1", "dd2", "dd3", "dd4", "m_ch_z",
+                     "m_ch_par", "m_ch_dos")
+_ZINCBLENDE_DERIVED = ("eg_x", "eg_l", "ec_x", "ec_l", "m_x_l", "m_x_t", "m_l_l", "m_l_t",
+                       "gamma1", "gamma2", "gamma3", "ac", "av", "b_dp", "d_dp", "xi_x_gap",
+                       "xi_x_u", "xi_l_gap", "xi_l_u")
 
 
 def describe(name, x=None, temperature=None, local_defs=(), y=None):
@@ -317,7 +352,7 @@ def describe(name, x=None, temperature=None, local_defs=(), y=None):
                 and current not in QUATERNARIES):
             _rules.resolve(name, np.array([np.nan]), 0.0, local, frozenset())  # raises
     if current in BINARIES:
-        rows += _value_rows(BINARIES[current])
+        rows += _value_rows(BINARIES[current], crystal_name=CRYSTAL.get(current, "zincblende"))
     elif current in ALLOYS:
         rows += _alloy_rows(current)
     elif current in QUATERNARIES:

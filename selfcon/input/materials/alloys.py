@@ -14,7 +14,10 @@ import difflib
 import numpy as np
 
 from selfcon.errors import MaterialError
-from selfcon.input.materials.library import ALLOYS, BINARIES, BOWED, PARAMETERS, QUATERNARIES, hole_dos_masses
+from selfcon.input.materials.library import (ALLOYS, BINARIES, BOWED, CRYSTAL, PARAMETERS,
+                                             QUATERNARIES, WURTZITE_ONLY, anisotropic_dos_mass,
+                                             hole_dos_masses, wurtzite_hole_masses,
+                                             wurtzite_valence_edges)
 
 #: (valley suffix, gap key, alpha key, beta key)
 VALLEYS = (
@@ -36,6 +39,13 @@ OUTPUT_UNITS = {
     "lattice": "nm", "c11": "GPa", "c12": "GPa", "c44": "GPa",
     "ac": "eV", "av": "eV", "b_dp": "eV", "d_dp": "eV",
     "xi_x_gap": "eV", "xi_x_u": "eV", "xi_l_gap": "eV", "xi_l_u": "eV",
+    # wurtzite: in-plane electron mass (zincblende: m_e), the crystal-field split-off hole,
+    # and the constants of the c-plane strain and polarization (selfcon.model.strain,
+    # selfcon.model.polarization); ev_ch of a zincblende cell is its split-off edge
+    "m_e_par": "m0", "ev_ch": "eV", "m_ch_z": "m0", "m_ch_par": "m0", "m_ch_dos": "m0",
+    "wurtzite": "1", "lattice_c": "nm", "c13": "GPa", "c33": "GPa", "e31": "C/m^2",
+    "e33": "C/m^2", "psp": "C/m^2", "delta_cr": "eV", "va1": "1", "va2": "1", "va3": "1",
+    "va4": "1", "da1": "eV", "da2": "eV", "dd1": "eV", "dd2": "eV", "dd3": "eV", "dd4": "eV",
 }
 
 #: the temperature of the tabulated lattice constants (a(T) = a(T_LATTICE) + da/dT (T - T_LATTICE))
@@ -93,6 +103,8 @@ def lattice_at(prim, temperature):
 
 def binary_primitives(name, shape, temperature):
     prim = {k: np.full(shape, v.value, dtype=float) for k, v in BINARIES[name].items()}
+    # 1 for a wurtzite crystal (the alloy rules keep it: both ends of an alloy share it)
+    prim["wurtzite"] = np.full(shape, 1.0 if CRYSTAL.get(name) == "wurtzite" else 0.0)
     for suffix, gap, alpha, beta in VALLEYS:
         prim["eg_" + suffix] = varshni(prim[gap], prim[alpha], prim[beta], temperature)
     prim["lattice_t"] = lattice_at(prim, temperature)
@@ -316,7 +328,14 @@ def standalone_primitives(d, params, shape, temperature, needs):
                 "deformation_d", "x_deformation_gap", "x_deformation_u", "l_deformation_gap",
                 "l_deformation_u"):
         p.setdefault(key, 0.0)
+    # the wurtzite-only parameters: a standalone material is zincblende (no polarization)
+    for key, same in (("lattice_constant_c", "lattice_constant"), ("elastic_c13", "elastic_c12"),
+                      ("elastic_c33", "elastic_c11"), ("electron_mass_perp", "electron_mass")):
+        p.setdefault(key, p[same])          # a cubic crystal's values for the [001] axis
+    for key in WURTZITE_ONLY:
+        p.setdefault(key, 0.0)
     prim = {k: np.full(shape, float(p[k])) for k in PARAMETERS}
+    prim["wurtzite"] = np.zeros(shape)
     prim["lattice_t"] = lattice_at(prim, temperature)
     for suffix, gap, alpha, beta in VALLEYS:
         prim["eg_" + suffix] = varshni(prim[gap], prim[alpha], prim[beta], temperature)
@@ -416,6 +435,20 @@ def validate(name, prim):
         if (np.isfinite(v) & ~(v > 0.0)).any():          # NaN: not given (unstrained use only)
             raise MaterialError(f"{key} of {name} must be positive, got {float(np.nanmin(v)):g}",
                                 key=f"material.{name}.{key}")
+    wz = prim.get("wurtzite", np.zeros(1)) > 0.5
+    if wz.any():
+        for key in ("electron_mass_perp", "elastic_c13", "elastic_c33", "lattice_constant_c"):
+            v = prim[key][wz]
+            if not (v > 0.0).all():
+                raise MaterialError(f"{key} of {name} must be positive, got {float(np.min(v)):g}",
+                                    key=f"material.{name}.{key}")
+        masses = wurtzite_hole_masses(prim["valence_a1"], prim["valence_a2"], prim["valence_a3"],
+                                      prim["valence_a4"], prim["crystal_field"], prim["spin_orbit"])
+        for label, m in masses.items():
+            if not (m[wz] > 0.0).all() or not np.isfinite(m[wz]).all():
+                raise MaterialError(f"valence_a1..valence_a4 of {name} give the hole mass {label} = "
+                                    f"{float(np.min(m[wz])):g} m0 (not positive)",
+                                    key=f"material.{name}.valence_a1")
     if (np.isfinite(prim["lattice_t"]) & ~(prim["lattice_t"] > 0.0)).any():
         raise MaterialError(f"lattice_expansion of {name} makes the lattice constant negative at "
                             "this temperature", key=f"material.{name}.lattice_expansion")
@@ -452,4 +485,50 @@ def derived(prim):
         "xi_x_gap": prim["x_deformation_gap"], "xi_x_u": prim["x_deformation_u"],
         "xi_l_gap": prim["l_deformation_gap"], "xi_l_u": prim["l_deformation_u"],
     }
+    out.update(_wurtzite_derived(prim, out))
     return {k: np.array(v, dtype=float) for k, v in out.items()}
+
+
+def _wurtzite_derived(prim, out):
+    """The keys of the wurtzite model, and the wurtzite cells' own values of the shared keys
+    (band edges split by the crystal field, anisotropic masses, DOS masses); zincblende
+    cells keep theirs, with ev_ch their split-off edge vbo - Δso and m_ch = 1/γ1 (the
+    simplest split-off mass, common practice)."""
+    wz = prim.get("wurtzite", np.zeros_like(prim["band_gap"])) > 0.5
+    vbo = prim["valence_band_offset"]
+    g1 = prim["luttinger_gamma1"]
+    new = {"m_e_par": prim["electron_mass"].copy(), "ev_ch": vbo - prim["spin_orbit"],
+           "m_ch_z": 1.0 / g1, "m_ch_par": 1.0 / g1, "m_ch_dos": 1.0 / g1,
+           "wurtzite": np.where(wz, 1.0, 0.0), "lattice_c": prim["lattice_constant_c"],
+           "c13": prim["elastic_c13"], "c33": prim["elastic_c33"], "e31": prim["piezo_e31"],
+           "e33": prim["piezo_e33"], "psp": prim["spontaneous_polarization"],
+           "delta_cr": prim["crystal_field"], "va1": prim["valence_a1"],
+           "va2": prim["valence_a2"], "va3": prim["valence_a3"], "va4": prim["valence_a4"],
+           "da1": prim["deformation_a1"], "da2": prim["deformation_a2"],
+           "dd1": prim["deformation_d1"], "dd2": prim["deformation_d2"],
+           "dd3": prim["deformation_d3"], "dd4": prim["deformation_d4"]}
+    if not wz.any():
+        return new
+    with np.errstate(invalid="ignore", divide="ignore"):
+        e_hh, e_lh, e_ch = wurtzite_valence_edges(prim["crystal_field"], prim["spin_orbit"])
+        top = np.maximum(e_hh, e_lh)
+        m = wurtzite_hole_masses(prim["valence_a1"], prim["valence_a2"], prim["valence_a3"],
+                                 prim["valence_a4"], prim["crystal_field"], prim["spin_orbit"])
+        me_z, me_p = prim["electron_mass"], prim["electron_mass_perp"]
+        dos = {b: anisotropic_dos_mass(m[f"m_{b}_par"], m[f"m_{b}_perp"]) for b in ("hh", "lh", "ch")}
+        wz_vals = {
+            # the valence edges relative to the top of the valence band (vbo) at k = 0
+            "ev_hh": vbo + e_hh - top, "ev_lh": vbo + e_lh - top, "ev_ch": vbo + e_ch - top,
+            # along c = along z (c-plane growth); perpendicular to c = in the growth plane
+            "m_hh_z": m["m_hh_par"], "m_hh_par": m["m_hh_perp"],
+            "m_lh_z": m["m_lh_par"], "m_lh_par": m["m_lh_perp"],
+            "m_ch_z": m["m_ch_par"], "m_ch_par": m["m_ch_perp"],
+            "m_e_par": me_p, "m_c_dos": anisotropic_dos_mass(me_z, me_p),
+            "m_hh_dos": dos["hh"], "m_lh_dos": dos["lh"], "m_ch_dos": dos["ch"],
+            "m_v_dos": (dos["hh"] ** 1.5 + dos["lh"] ** 1.5 + dos["ch"] ** 1.5) ** (2.0 / 3.0),
+        }
+    wz_vals["ec_gamma"] = vbo + prim["eg_gamma"]
+    for k, v in wz_vals.items():
+        base = new[k] if k in new else out[k]
+        new[k] = np.where(wz, v, base)
+    return new

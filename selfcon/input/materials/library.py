@@ -26,6 +26,15 @@ indirect gaps and their shear parts are typical values, each source string says 
 Static permittivities are not in that paper; they come from S. M. Sze and
 K. K. Ng, Physics of Semiconductor Devices, 3rd ed. (Wiley 2007), Appendix.
 
+Wurtzite nitrides (GaN, AlN, InN; AlGaN, InGaN, InAlN; ``CRYSTAL[name] == "wurtzite"``):
+band parameters, a and c, C11-C44, e31, e33 and the deformation potentials a1, a2, D1-D4
+from I. Vurgaftman and J. R. Meyer, J. Appl. Phys. 94, 3675 (2003), the spontaneous
+polarization with its nonlinear alloy bowing from O. Ambacher et al., J. Phys.: Condens.
+Matter 14, 3399 (2002), both recalled from memory; the hole masses follow from A1..A4 by
+:func:`wurtzite_hole_masses`.  Every binary carries every key of ``PARAMETERS``: the keys
+of the other crystal's model (``WURTZITE_ONLY``, ``ZINCBLENDE_ONLY``) hold finite "not
+applicable" fillers (their sources say so) that the model of the crystal never reads.
+
 Adding a binary: add a dict to ``BINARIES`` with every key of ``PARAMETERS``;
 adding an alloy: an ``Alloy`` with its two ends and a ``Bowing`` for each of
 ``BOWED`` (zero where linear).  ``tests/test_materials.py`` checks that every
@@ -101,11 +110,47 @@ PARAMETERS = {
                                 "Ξ_d + Ξ_u/3 - a_v"),
     "l_deformation_u": ("eV", "L-valley uniaxial deformation potential Ξ_u (no shift under "
                               "(001) biaxial strain; kept for other orientations)"),
+    # wurtzite (hexagonal) crystals grown along c: selfcon.model.strain, selfcon.model.polarization
+    "lattice_constant_c": ("nm", "wurtzite: lattice constant c at 300 K (lattice_constant is a)"),
+    "elastic_c13": ("GPa", "wurtzite: elastic stiffness C13"),
+    "elastic_c33": ("GPa", "wurtzite: elastic stiffness C33"),
+    "piezo_e31": ("C/m^2", "wurtzite: piezoelectric constant e31"),
+    "piezo_e33": ("C/m^2", "wurtzite: piezoelectric constant e33"),
+    "spontaneous_polarization": ("C/m^2", "wurtzite: spontaneous polarization along [0001] "
+                                          "(negative in the nitrides)"),
+    "crystal_field": ("eV", "wurtzite: crystal-field splitting Δcr of the valence band"),
+    "electron_mass_perp": ("m0", "wurtzite: electron mass perpendicular to c, in the growth "
+                                 "plane (electron_mass is the mass along c)"),
+    "valence_a1": ("1", "wurtzite: valence-band parameter A1 (units of ħ²/2m0)"),
+    "valence_a2": ("1", "wurtzite: valence-band parameter A2 (units of ħ²/2m0)"),
+    "valence_a3": ("1", "wurtzite: valence-band parameter A3 (units of ħ²/2m0)"),
+    "valence_a4": ("1", "wurtzite: valence-band parameter A4 (units of ħ²/2m0)"),
+    "deformation_a1": ("eV", "wurtzite: interband deformation potential a1 = a_cz - D1 "
+                             "(strain along c)"),
+    "deformation_a2": ("eV", "wurtzite: interband deformation potential a2 = a_ct - D2 "
+                             "(strain in the c plane)"),
+    "deformation_d1": ("eV", "wurtzite: valence-band deformation potential D1"),
+    "deformation_d2": ("eV", "wurtzite: valence-band deformation potential D2"),
+    "deformation_d3": ("eV", "wurtzite: valence-band deformation potential D3"),
+    "deformation_d4": ("eV", "wurtzite: valence-band deformation potential D4"),
 }
+
+#: parameters that only wurtzite crystals use, and those only zincblende crystals use (the
+#: other crystal's table fills them with a "not applicable" value; `selfcon materials` hides them)
+WURTZITE_ONLY = ("lattice_constant_c", "elastic_c13", "elastic_c33", "piezo_e31", "piezo_e33",
+                 "spontaneous_polarization", "crystal_field", "electron_mass_perp",
+                 "valence_a1", "valence_a2", "valence_a3", "valence_a4", "deformation_a1",
+                 "deformation_a2", "deformation_d1", "deformation_d2", "deformation_d3",
+                 "deformation_d4")
+ZINCBLENDE_ONLY = ("x_gap", "x_varshni_alpha", "x_varshni_beta", "l_gap", "l_varshni_alpha",
+                   "l_varshni_beta", "luttinger_gamma1", "luttinger_gamma2", "luttinger_gamma3",
+                   "x_mass_long", "x_mass_trans", "l_mass_long", "l_mass_trans",
+                   "deformation_ac", "deformation_av", "deformation_b", "deformation_d",
+                   "x_deformation_gap", "x_deformation_u", "l_deformation_gap", "l_deformation_u")
 
 #: parameters that carry a bowing parameter in alloys (the rest interpolate linearly)
 BOWED = ("band_gap", "x_gap", "l_gap", "valence_band_offset", "electron_mass", "spin_orbit",
-         "deformation_ac")
+         "deformation_ac", "spontaneous_polarization")
 
 _V = "Vurgaftman, Meyer and Ram-Mohan, J. Appl. Phys. 89, 5815 (2001)"
 _MEM = ", from memory"
@@ -413,8 +458,30 @@ def _add_hydrogenic(d):
     return {k: d[k] for k in PARAMETERS}   # fixed order
 
 
+#: "not applicable" fillers of the wurtzite-only parameters in a zincblende table, finite and
+#: harmless: (001) growth of a cubic crystal has no spontaneous polarization and no
+#: piezoelectric polarization along z (its only constant e14 couples to shear strain), no
+#: crystal field, an isotropic electron mass, and C13 = C12, C33 = C11, c = a for the [001]
+#: axis; the rest 0 (the zincblende model never reads them)
+_NA_ZB = "not applicable: zincblende (this parameter belongs to the wurtzite model)"
+
+
+def _zincblende_fill(table):
+    same = {"lattice_constant_c": "lattice_constant", "elastic_c13": "elastic_c12",
+            "elastic_c33": "elastic_c11", "electron_mass_perp": "electron_mass"}
+    out = {}
+    for key in WURTZITE_ONLY:
+        if key in same:
+            value, why = table[same[key]].value, f"; equal to {same[key]} for a cubic crystal"
+        else:
+            value, why = 0.0, ""
+        out[key] = Value(value, PARAMETERS[key][0], _NA_ZB + why)
+    return out
+
+
 def _binary(name, table):
     table.update(_strain_values(name))
+    table.update(_zincblende_fill(table))
     return _add_hydrogenic(table)
 
 
@@ -430,9 +497,191 @@ BINARIES = {
     "AlP": _binary("AlP", _alp()),
 }
 
+
+# --------------------------------------------------------------------- wurtzite nitrides
+#: the wurtzite band parameters: I. Vurgaftman and J. R. Meyer, J. Appl. Phys. 94, 3675 (2003),
+#: recalled from memory (no copy of the paper was consulted while writing this file)
+_VM = "Vurgaftman and Meyer, J. Appl. Phys. 94, 3675 (2003)"
+#: spontaneous polarization: the binaries of Bernardini and Fiorentini as used, with the
+#: nonlinear (bowed) alloy dependence, by Ambacher et al. 2002
+_AMB02 = "Ambacher et al., J. Phys.: Condens. Matter 14, 3399 (2002)"
+_CC96 = "Chuang and Chang, Phys. Rev. B 54, 2491 (1996)"
+
+
+def wurtzite_valence_edges(delta_cr, delta_so, lam=0.0, theta=0.0):
+    """Valence-band edges (eV) at k = 0 of a wurtzite crystal, heavy hole (A, Γ9), light hole
+    (B, upper Γ7) and crystal-field split-off hole (C, lower Γ7), on the scale of
+    S. L. Chuang and C. S. Chang, Phys. Rev. B 54, 2491 (1996):
+        E_hh = Δ1 + Δ2 + θ + λ,
+        E_lh = (Δ1 - Δ2 + θ)/2 + λ + sqrt(((Δ1 - Δ2 + θ)/2)^2 + 2 Δ3^2),
+        E_ch = (Δ1 - Δ2 + θ)/2 + λ - sqrt(((Δ1 - Δ2 + θ)/2)^2 + 2 Δ3^2),
+    with Δ1 = Δcr and the quasi-cubic Δ2 = Δ3 = Δso/3; λ = D1 ε_zz + D2 (ε_xx + ε_yy) and
+    θ = D3 ε_zz + D4 (ε_xx + ε_yy) are the strain terms (0: unstrained).  Scalars or arrays.
+    A negative crystal field (AlN) puts the light hole (the Z-like Γ7 state) on top."""
+    import numpy as np
+    d1 = np.asarray(delta_cr, float)
+    d2 = np.asarray(delta_so, float) / 3.0
+    half = 0.5 * (d1 - d2 + theta)
+    root = np.sqrt(half * half + 2.0 * d2 * d2)
+    return d1 + d2 + theta + lam, half + lam + root, half + lam - root
+
+
+def wurtzite_hole_masses(a1, a2, a3, a4, delta_cr, delta_so, lam=0.0, theta=0.0):
+    """Band-edge hole masses (m0) of a wurtzite crystal, along c (``_par``) and in the c
+    plane (``_perp``), from the valence-band parameters A1..A4 (units of ħ²/2m0) by the k = 0
+    expressions of Chuang and Chang, Phys. Rev. B 54, 2491 (1996):
+        m_hh_par = -1/(A1 + A3),             m_hh_perp = -1/(A2 + A4),
+        m_lh_par = -1/(A1 + f_lh A3),        m_lh_perp = -1/(A2 + f_lh A4),
+        m_ch_par = -1/(A1 + f_ch A3),        m_ch_perp = -1/(A2 + f_ch A4),
+    f_lh = (E_lh - λ)/(E_lh - E_ch), f_ch = 1 - f_lh = (λ - E_ch)/(E_lh - E_ch), the edges of
+    :func:`wurtzite_valence_edges` (f: the X,Y-like share of the state; the crystal field
+    and the strain change it).  Returns a dict of arrays; a non-positive mass comes back as
+    it is (the caller refuses it)."""
+    import numpy as np
+    e_hh, e_lh, e_ch = wurtzite_valence_edges(delta_cr, delta_so, lam, theta)
+    den = e_lh - e_ch
+    safe = np.where(den > 0.0, den, 1.0)
+    f_lh = np.where(den > 0.0, (e_lh - lam) / safe, 1.0)
+    f_ch = 1.0 - f_lh
+    a1, a2, a3, a4 = (np.asarray(v, float) for v in (a1, a2, a3, a4))
+    with np.errstate(divide="ignore"):
+        return {"m_hh_par": -1.0 / (a1 + a3), "m_hh_perp": -1.0 / (a2 + a4),
+                "m_lh_par": -1.0 / (a1 + f_lh * a3), "m_lh_perp": -1.0 / (a2 + f_lh * a4),
+                "m_ch_par": -1.0 / (a1 + f_ch * a3), "m_ch_perp": -1.0 / (a2 + f_ch * a4)}
+
+
+def anisotropic_dos_mass(m_par, m_perp):
+    """Density-of-states mass (m_perp^2 m_par)^(1/3) of an ellipsoidal band (common practice)."""
+    return (m_perp * m_perp * m_par) ** (1.0 / 3.0)
+
+
+#: "not applicable" fillers of the zincblende-only parameters in a wurtzite table
+_NA_WZ = "not applicable: wurtzite (this parameter belongs to the zincblende model)"
+
+
+def _wurtzite_fill(eg, alpha, beta):
+    """The zincblende-only parameters of a wurtzite table: X and L valleys placed
+    FILL_VALLEY_OFFSET = 10 eV above the Γ gap with its Varshni terms (they hold no electrons:
+    the wurtzite model has no X/L valleys; selfcon convention, as for deck-local materials),
+    masses 1 m0, Luttinger γ1 = 1, γ2 = γ3 = 0 (unused: the hole masses come from
+    valence_a1..a4), zincblende deformation potentials 0 (unused)."""
+    fill = {"x_gap": eg + 10.0, "l_gap": eg + 10.0, "x_varshni_alpha": alpha,
+            "l_varshni_alpha": alpha, "x_varshni_beta": beta, "l_varshni_beta": beta,
+            "luttinger_gamma1": 1.0, "luttinger_gamma2": 0.0, "luttinger_gamma3": 0.0,
+            "x_mass_long": 1.0, "x_mass_trans": 1.0, "l_mass_long": 1.0, "l_mass_trans": 1.0}
+    out = {}
+    for key in ZINCBLENDE_ONLY:
+        out[key] = Value(float(fill.get(key, 0.0)), PARAMETERS[key][0], _NA_WZ)
+    return out
+
+
+#: name -> (a [Å], c [Å], da/dT relative [1/K], Eg(0) [eV], alpha [meV/K], beta [K], VBO [eV],
+#:          Δcr, Δso [eV], me_par, me_perp [m0], A1..A4, a1, a2, D1..D4 [eV],
+#:          C11, C12, C13, C33, C44 [GPa], e31, e33, Psp [C/m^2], eps33)
+_NITRIDE = {
+    "GaN": (3.189, 5.185, 5.59e-6, 3.510, 0.909, 830, -2.64, 0.010, 0.017, 0.20, 0.20,
+            -7.21, -0.44, 6.68, -3.46, -4.9, -11.3, -3.7, 4.5, 8.2, -4.1,
+            390, 145, 106, 398, 105, -0.35, 1.27, -0.034, 10.4),
+    "AlN": (3.112, 4.982, 4.2e-6, 6.25, 1.799, 1462, -3.44, -0.169, 0.019, 0.32, 0.30,
+            -3.86, -0.25, 3.58, -1.32, -3.4, -11.8, -17.1, 7.9, 8.8, -3.9,
+            396, 137, 108, 373, 116, -0.50, 1.79, -0.090, 9.14),
+    "InN": (3.545, 5.703, 3.8e-6, 0.78, 0.245, 624, -2.14, 0.040, 0.005, 0.07, 0.07,
+            -8.21, -0.68, 7.57, -5.23, -3.5, -3.5, -3.7, 4.5, 8.2, -4.1,
+            223, 115, 92, 224, 48, -0.57, 0.97, -0.042, 15.3),
+}
+
+#: static permittivity along c (ε33): the review gives none (as its 2001 predecessor)
+_EPS33 = {
+    "GaN": "Barker and Ilegems, Phys. Rev. B 7, 743 (1973), static ε along c (ε33; 9.5 in the "
+           "c plane), from memory",
+    "AlN": "Akasaki and Hashimoto, Solid State Commun. 5, 851 (1967), static ε along c, from "
+           "memory, uncertain (values from 8.5 to 10 are quoted)",
+    "InN": "Zubrilov, in Levinshtein, Rumyantsev and Shur (eds.), Properties of Advanced "
+           "Semiconductor Materials (Wiley 2001), static ε, from memory, uncertain",
+}
+
+#: dopant binding energies where a common-practice value is known (else hydrogenic)
+_NITRIDE_DOPANTS = {
+    "GaN": {"donor_binding": (0.017, "common practice: Si donor in GaN, 12-17 meV (Götz et al., "
+                                     "Appl. Phys. Lett. 68, 3144 (1996)), from memory"),
+            "acceptor_binding": (0.20, "common practice: Mg acceptor in GaN, about 0.16-0.21 eV, "
+                                       "from memory")},
+    "AlN": {"acceptor_binding": (0.51, "Mg acceptor in AlN, Nam et al., Appl. Phys. Lett. 83, "
+                                       "878 (2003), from memory")},
+}
+
+
+def _nitride(name):
+    (a, c, alpha_a, eg, alpha, beta, vbo, dcr, dso, me_par, me_perp, A1, A2, A3, A4,
+     da1, da2, d1, d2, d3, d4, c11, c12, c13, c33, c44, e31, e33, psp, eps) = _NITRIDE[name]
+    t = f"{_VM}, {name} (wurtzite) table" + _MEM
+    elastic = t + " (elastic constants printed in GPa)"
+    d = {
+        "band_gap": Value(eg, "eV", t),
+        "varshni_alpha": Value(alpha * _MEV, "eV/K", t),
+        "varshni_beta": Value(float(beta), "K", t),
+        "valence_band_offset": Value(vbo, "eV", f"{_VM}: the top of the valence band on the "
+                                     "common scale; the review's recommended offsets (AlN 0.8 eV "
+                                     "below GaN, InN 0.5 eV above GaN) placed at GaN = -2.64 eV"
+                                     + _MEM),
+        "spin_orbit": Value(dso, "eV", t),
+        "crystal_field": Value(dcr, "eV", t),
+        "electron_mass": Value(me_par, "m0", t + " (mass along c)"),
+        "electron_mass_perp": Value(me_perp, "m0", t + " (mass perpendicular to c)"),
+        "valence_a1": Value(A1, "1", t),
+        "valence_a2": Value(A2, "1", t),
+        "valence_a3": Value(A3, "1", t),
+        "valence_a4": Value(A4, "1", t),
+        "permittivity": Value(eps, "1", _EPS33[name]),
+        "lattice_constant": Value(round(a * _ANG, 8), "nm", t + f" (a = {a} Å at 300 K)"),
+        "lattice_constant_c": Value(round(c * _ANG, 8), "nm", t + f" (c = {c} Å at 300 K)"),
+        "lattice_expansion": Value(round(a * _ANG * alpha_a, 12), "nm/K",
+                                   f"a times the thermal expansion coefficient of a, "
+                                   f"{alpha_a:g} 1/K (common practice for wurtzite {name}), "
+                                   "from memory, uncertain"),
+        "elastic_c11": Value(float(c11), "GPa", elastic),
+        "elastic_c12": Value(float(c12), "GPa", elastic),
+        "elastic_c13": Value(float(c13), "GPa", elastic),
+        "elastic_c33": Value(float(c33), "GPa", elastic),
+        "elastic_c44": Value(float(c44), "GPa", elastic),
+        "piezo_e31": Value(e31, "C/m^2", t),
+        "piezo_e33": Value(e33, "C/m^2", t),
+        "spontaneous_polarization": Value(psp, "C/m^2", f"{_AMB02} (the binaries of Bernardini "
+                                          f"and Fiorentini, also recommended by {_VM})" + _MEM),
+        "deformation_a1": Value(da1, "eV", t),
+        "deformation_a2": Value(da2, "eV", t),
+        "deformation_d1": Value(d1, "eV", t),
+        "deformation_d2": Value(d2, "eV", t),
+        "deformation_d3": Value(d3, "eV", t),
+        "deformation_d4": Value(d4, "eV", t),
+    }
+    if name == "InN":
+        same = (f"; the review gives no InN values and recommends those of GaN" + _MEM)
+        for k in ("deformation_d1", "deformation_d2", "deformation_d3", "deformation_d4"):
+            d[k] = Value(d[k].value, "eV", t + same)
+    d.update(_wurtzite_fill(eg, alpha * _MEV, float(beta)))
+    for key, (v, src) in _NITRIDE_DOPANTS.get(name, {}).items():
+        d[key] = Value(v, "eV", src)
+    if "donor_binding" not in d:
+        d["donor_binding"] = Value(round(_RYD * anisotropic_dos_mass(me_par, me_perp) / eps ** 2, 6),
+                                   "eV", "hydrogenic estimate 13.6 eV m_e/eps^2 from the masses "
+                                   "and permittivity above")
+    if "acceptor_binding" not in d:
+        m = wurtzite_hole_masses(A1, A2, A3, A4, dcr, dso)
+        mh = float(anisotropic_dos_mass(m["m_hh_par"], m["m_hh_perp"]))
+        d["acceptor_binding"] = Value(round(_RYD * mh / eps ** 2, 6), "eV",
+                                      "hydrogenic estimate 13.6 eV m_hh_dos/eps^2 from A1..A4 "
+                                      "and the permittivity above (rough: acceptors are not "
+                                      "hydrogenic)")
+    return {k: d[k] for k in PARAMETERS}
+
+
+BINARIES.update({"GaN": _nitride("GaN"), "AlN": _nitride("AlN"), "InN": _nitride("InN")})
+
 #: crystal structure of each library material (selfcon.model.strain picks its strain model
-#: by it; the wurtzite nitrides will add "wurtzite")
+#: by it)
 CRYSTAL = {name: "zincblende" for name in BINARIES}
+CRYSTAL.update({"GaN": "wurtzite", "AlN": "wurtzite", "InN": "wurtzite"})
 
 
 def _bowings(name, **given):
@@ -537,6 +786,36 @@ ALLOYS = {
 }
 
 
+def _nitride_ternary(name, end0, end1, meaning, gap_bowing, psp_bowing):
+    """A wurtzite nitride ternary: the gap bowing of the 2003 review and the nonlinear
+    spontaneous polarization of Ambacher et al. 2002, P_sp(x) = (1-x) P0 + x P1 + b x(1-x),
+    stored as the bowing C = -b of the rule P(x) = (1-x) P0 + x P1 - x(1-x) C."""
+    alloy = _ternary(name, end0, end1, meaning, band_gap=(gap_bowing, 0.0, _MEM))
+    bow = dict(alloy.bowing)
+    src = f"{_VM}, {name} gap bowing" + _MEM
+    bow["band_gap"] = Bowing(gap_bowing, 0.0, "eV", src)
+    for key in bow:
+        if key not in ("band_gap", "spontaneous_polarization"):
+            bow[key] = Bowing(0.0, 0.0, bow[key].unit, f"{_VM}: none given (linear)" + _MEM)
+    bow["spontaneous_polarization"] = Bowing(
+        -psp_bowing, 0.0, "C/m^2",
+        f"{_AMB02}: P_sp = (1-x) P0 + x P1 + {psp_bowing:g} x(1-x) C/m^2 (nonlinear alloy "
+        "dependence, from the calculations of Bernardini and Fiorentini, Phys. Rev. B 64, "
+        "085207 (2001))" + _MEM)
+    return alloy._replace(bowing=bow)
+
+
+ALLOYS.update({
+    "AlGaN": _nitride_ternary("AlGaN", "GaN", "AlN", "x = Al fraction: Al_x Ga_(1-x) N",
+                              0.7, 0.019),
+    "InGaN": _nitride_ternary("InGaN", "GaN", "InN", "x = In fraction: In_x Ga_(1-x) N",
+                              1.4, 0.038),
+    "InAlN": _nitride_ternary("InAlN", "AlN", "InN", "x = In fraction: In_x Al_(1-x) N",
+                              2.5, 0.071),
+})
+CRYSTAL.update({name: CRYSTAL[a.end0] for name, a in ALLOYS.items()})
+
+
 class Quaternary(NamedTuple):
     """A quaternary interpolated from its four (or three) ternaries.
 
@@ -586,6 +865,8 @@ QUATERNARIES = {
         _QUAT_RULE),
 }
 
+CRYSTAL.update({name: "zincblende" for name in QUATERNARIES})
+
 #: how alloys treat each parameter without a bowing parameter: key -> source of the rule
 _VARSHNI_RULE = ("the Varshni shift is applied to each end binary and the gaps at T are then "
                  "bowed (Vurgaftman 2001 practice, from memory); the alloy's own α, β are the "
@@ -607,4 +888,10 @@ ALLOY_RULES = {
     "deformation_av": _LIN, "deformation_b": _LIN, "deformation_d": _LIN,
     "x_deformation_gap": _LIN, "x_deformation_u": _LIN,
     "l_deformation_gap": _LIN, "l_deformation_u": _LIN,
+    "lattice_constant_c": "Vegard's law (linear in x), common practice",
+    "elastic_c13": _LIN, "elastic_c33": _LIN, "piezo_e31": _LIN, "piezo_e33": _LIN,
+    "crystal_field": _LIN, "electron_mass_perp": _LIN,
+    "valence_a1": _LIN, "valence_a2": _LIN, "valence_a3": _LIN, "valence_a4": _LIN,
+    "deformation_a1": _LIN, "deformation_a2": _LIN, "deformation_d1": _LIN,
+    "deformation_d2": _LIN, "deformation_d3": _LIN, "deformation_d4": _LIN,
 }

@@ -40,7 +40,9 @@ class Material(NamedTuple):
     electrostatics (eV); ``nc``, ``nv`` effective densities of states (nm^-3, 0 switches the
     carrier off); ``nd``, ``na`` dopants (nm^-3); ``ed``, ``ea`` their binding energies (eV).
     Nodes (N,): ``sheet_nd``, ``sheet_na`` (nm^-2) and their binding energies ``sheet_ed``,
-    ``sheet_ea`` (eV; -inf: no bound state, fully ionised).  ``ec0_v``, ``nc_v`` (V, N-1): further
+    ``sheet_ea`` (eV; -inf: no bound state, fully ionised); ``sheet_fixed`` (nm^-2, fixed charge
+    in units of q: the bound polarization sheets of wurtzite interfaces,
+    selfcon.model.polarization).  ``ec0_v``, ``nc_v`` (V, N-1): further
     classical conduction valleys (X, L; V may be 0).  ``ev0_v``, ``nv_v`` (W, N-1): further
     classical valence bands (the light hole of a strained layer, at its own edge; W may be 0).
     ``kT`` (eV); ``full``: full ionisation; ``efn``, ``efp`` (eV, electron energy scale): the
@@ -61,6 +63,7 @@ class Material(NamedTuple):
     sheet_na: np.ndarray
     sheet_ed: np.ndarray
     sheet_ea: np.ndarray
+    sheet_fixed: np.ndarray
     ec0_v: np.ndarray
     nc_v: np.ndarray
     ev0_v: np.ndarray

@@ -38,7 +38,8 @@ levels are occupied with EF = 0, the contacted carrier's level:
   Further valence bands w (rows of ev0_v, nv_v, shape (W, N-1), W may be 0: the light hole of
   a strained layer at its own edge, the heavy hole being ev0, nv) are part of the classical
   hole density, p_w = nv_v F_{1/2}((ev0_v - phi - efp)/kT), and so take the hole mask cls_h.
-  rho_i = p_i - n_i + Nd+_i - Na-_i.
+  rho_i = p_i - n_i + Nd+_i - Na-_i + sheet_fixed_i / w_i, the last term the fixed sheets
+  (bound polarization charge, nm^-2 at the node; it does not depend on phi).
 
 Equation at node i (V nm^-1 x eps_r, integrated over the dual cell):
   R_i = eps[i](phi_{i+1}-phi_i)/h[i] - eps[i-1](phi_i-phi_{i-1})/h[i-1] + Q_EPS0 rho_i w_i = 0.
@@ -260,7 +261,8 @@ def _node(i, phi_i, grid, mat, q):
 @njit(cache=True)
 def node_densities(phi, grid, mat, q):
     """Node densities at phi: (n, p, nd_plus, na_minus, drho_dphi), each (N,), nm^-3
-    (sheets included as s/w).  rho = p - n + nd_plus - na_minus.
+    (dopant sheets included as s/w).  rho = p - n + nd_plus - na_minus + sheet_fixed / w (the
+    fixed sheets are not among the returned densities: the caller adds them).
     grid, mat, q: the Grid, Material and Quantum bundles (selfcon.solver.kernels.bundles)."""
     N = phi.shape[0]
     n = np.empty(N)
@@ -320,7 +322,7 @@ def _assemble(phi, g, grid, mat, q, bounds, a, b, c, r):
     for i in range(N):
         nn, pp, ndp, nam, drho = _node(i, phi[i], grid, mat, q)
         w = grid.wl[i] + grid.wr[i]
-        res = Q_EPS0 * (pp - nn + ndp - nam) * w
+        res = Q_EPS0 * ((pp - nn + ndp - nam) * w + mat.sheet_fixed[i])
         diag = Q_EPS0 * drho * w
         if i < N - 1:
             res += g[i] * (phi[i + 1] - phi[i])
