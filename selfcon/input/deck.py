@@ -270,7 +270,8 @@ _PHYSICS = {
         "string", "-", "auto", "the carrier the channel's ohmic contacts reach: it keeps the "
         "channel's Fermi level (0 eV); under a schottky surface the other carrier takes the gate "
         "metal's level, -surface.bias (eV), so a reverse-biased gate does not invert.  auto: "
-        "electron when the stack's donors (sheets included) outnumber its acceptors, else hole; "
+        "electron when the stack's donors (sheets included) outnumber its acceptors, else hole "
+        "(a wurtzite stack: electron unless its acceptors outnumber its donors); "
         "both: one Fermi level for both carriers", choices=CONTACTED),
     "polarity": KeySpec("string", "-", "metal", "growth polarity of wurtzite layers along c: "
                         "metal (Ga/Al/In-face, [0001] points to the surface, the usual HEMT) | "

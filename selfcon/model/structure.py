@@ -444,16 +444,20 @@ def build_structure(deck: Deck, *, mesh: Mesh | None = None) -> Structure:
                      states=int(deck.quantum.states), surface=_contact(deck.surface),
                      substrate=_contact(deck.substrate), strain=summary, sheet_fixed=sheet_fixed,
                      polarity=polarity, polarization_factor=factor, crystal=crystal,
-                     contacted=contacted_carrier(deck.physics.contacted_carrier, layers))
+                     contacted=contacted_carrier(deck.physics.contacted_carrier, layers, crystal))
 
 
-def contacted_carrier(choice: str, layers) -> str:
+def contacted_carrier(choice: str, layers, crystal: str = "zincblende") -> str:
     """The deck's physics.contacted_carrier with "auto" resolved: "electron" when the stack's
-    donors (volume density x thickness, plus sheets) outnumber its acceptors, else "hole"."""
+    donors (volume density x thickness, plus sheets) outnumber its acceptors, else "hole".
+    A wurtzite stack is an electron device unless its acceptors outnumber its donors: an
+    undoped nitride HEMT's channel is the 2DEG its polarization sheets induce."""
     if choice != "auto":
         return choice
     donors = sum(L.donors * (L.bottom - L.top) / NM_PER_CM + L.sheet_donors for L in layers)
     acceptors = sum(L.acceptors * (L.bottom - L.top) / NM_PER_CM + L.sheet_acceptors for L in layers)
+    if crystal == "wurtzite":
+        return "hole" if acceptors > donors else "electron"
     return "electron" if donors > acceptors else "hole"
 
 
