@@ -202,6 +202,7 @@ def solve(deck: Deck | str | os.PathLike, *, initial_potential: Any = None,
     if not isinstance(deck, Deck):
         deck = load_deck(deck)
     st = structure if structure is not None else build_structure(deck)
+    st, cooldown = _dark_cooldown(deck, st)
     spec = deck.solver
     tol = float(tolerance if tolerance is not None else spec.tolerance)
     max_it = int(max_iterations if max_iterations is not None else spec.max_iterations)
@@ -211,7 +212,57 @@ def solve(deck: Deck | str | os.PathLike, *, initial_potential: Any = None,
     outcome = run_loop(st, boundary_conditions(st), mixer, phi0=phi0, tol=tol, charge_tol=ctol,
                        max_iter=max_it, progress=progress)
     from selfcon.output.assemble import build_result
-    return build_result(deck, st, outcome, wall_time=time.perf_counter() - t0)
+    result = build_result(deck, st, outcome, wall_time=time.perf_counter() - t0)
+    failed = [(tf, msg) for tf, ok, msg in cooldown if not ok]
+    if failed and result.converged:
+        tf, msg = failed[0]
+        result.converged = False
+        result.summary["converged"] = False
+        result.message = (f"the dark cool-down solve at {tf:g} K (layer.dx_freeze_temperature) did "
+                          f"not converge, so the frozen DX charge is not trusted: {msg}")
+    return result
+
+
+#: potentials of dark cool-down solves, (deck hash, mesh) -> (phi, converged, message): a bias
+#: sweep cools the wafer once (the cool-down deck does not depend on the bias)
+_COOLDOWNS: dict = {}
+
+
+def _dark_cooldown(deck: Deck, st: Structure):
+    """``st`` with the occupation of its Si-DX layers frozen at their
+    ``layer.dx_freeze_temperature`` (selfcon.solver.dx), and [(T_f, converged, message)] of
+    the solves at the freeze temperatures.  The wafer is cooled with the gate unbiased
+    (common practice); a layer whose freeze temperature is not above the run temperature
+    stays in equilibrium."""
+    temps = st.dx_freeze_temperatures
+    if not temps or st.dx_frozen is not None:
+        return st, []
+    import numpy as np
+    from selfcon.solver.dx import frozen_fractions, frozen_structure
+    cell_f = np.full(st.n_nodes - 1, np.nan)
+    sheet_f = np.full(st.n_nodes, np.nan)
+    report = []
+    for tf in temps:
+        over = {"temperature": tf}
+        if deck.surface.kind == "schottky":
+            over["surface.bias"] = 0.0
+        dk = deck.with_overrides(over)
+        key = (dk.hash(), hash(st.z.tobytes()))
+        if key not in _COOLDOWNS:
+            stf = build_structure(dk, mesh=st.mesh)
+            out = run_loop(stf, boundary_conditions(stf), make_mixer(dk.solver.method, dk.solver),
+                           tol=float(dk.solver.tolerance), max_iter=int(dk.solver.max_iterations))
+            if len(_COOLDOWNS) > 16:
+                _COOLDOWNS.clear()
+            _COOLDOWNS[key] = (frozen_fractions(stf, out.phi), out.converged, out.message)
+        (cf, sf), ok, msg = _COOLDOWNS[key]
+        report.append((tf, ok, msg))
+        layers = [L.index for L in st.layers if L.dx_freeze_temperature == tf]
+        cells = np.isin(st.cell_layer, layers)
+        nodes = np.isin(st.layer_index, layers)
+        cell_f[cells] = cf[cells]
+        sheet_f[nodes] = sf[nodes]
+    return frozen_structure(st, (cell_f, sheet_f), max(temps)), report
 
 
 def solve_warm(deck: Deck, initial_potential: Any, *,

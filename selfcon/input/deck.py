@@ -117,6 +117,14 @@ ALL_CARRIERS = CARRIERS + ("x_electron", "l_electron")
 IONIZATION = ("thermal", "full")
 CONTACTED = ("auto", "electron", "hole", "both")
 POLARITIES = ("metal", "nitrogen")
+#: physics.exchange_correlation: none (Hartree), lda (Hedin-Lundqvist local density, as used by
+#: Stern and Das Sarma 1984), lda-gl (Gunnarsson-Lundqvist 1976 parametrization)
+EXCHANGE_CORRELATION = ("none", "lda", "lda-gl")
+#: layer.donor_species: shallow (hydrogenic level, Pearson-Bardeen at high density) or Si-DX
+DONOR_SPECIES = ("shallow", "Si-DX")
+DX_STATES = ("equilibrium", "ionized")
+#: library materials the Si-DX level is given for (selfcon.model.dopants.dx_binding)
+DX_HOSTS = ("AlGaAs", "GaAs")
 SOLVER_METHODS = ("predictor-corrector", "anderson", "linear")
 #: nm, the thinnest layer accepted: about half a monolayer (a GaAs monolayer is a/2 = 0.283 nm,
 #: common practice); anything thinner is a unit mistake (a thickness typed in metres or cm)
@@ -162,6 +170,18 @@ _LAYER = {
     "relaxed": KeySpec("boolean", "-", False, "true: a relaxed (metamorphic) buffer or virtual "
                        "substrate at its own lattice; the layers above grow on its lattice "
                        "(a graded one passes on the lattice at its top)"),
+    "donor_species": KeySpec("string", "-", "shallow", "species of the layer's donors and "
+                             "sheet_donors: shallow (hydrogenic level) or Si-DX (the deep DX level "
+                             "of Si in AlGaAs, 0.15 eV below the L minimum after Chand et al. 1984; "
+                             "a one-electron level; AlGaAs and GaAs only; needs physics.ionization "
+                             "= thermal)", choices=DONOR_SPECIES),
+    "dx_freeze_temperature": KeySpec("number", "K", None, "Si-DX only: dark cool-down; the DX "
+                                     "occupation is that of equilibrium at this temperature (gate "
+                                     "unbiased) and kept at the run temperature (no effect when the "
+                                     "run is not colder)", lo=0.0, lo_open=True, hi=1000.0),
+    "dx_state": KeySpec("string", "-", "equilibrium", "Si-DX only: equilibrium (dark) or ionized "
+                        "(illuminated: every DX centre ionised, persistent photoconductivity)",
+                        choices=DX_STATES),
 }
 
 #: [substrate]: the bottom contact and the lattice the stack grows on
@@ -428,6 +448,9 @@ class Layer:
     y_bottom: float | None = None
     lattice_matched: str | None = None   # binary the composition is matched to (300 K)
     relaxed: bool = False         # a relaxed (metamorphic) buffer: the layers above take its lattice
+    donor_species: str = "shallow"   # shallow | Si-DX (donors and sheet_donors)
+    dx_freeze_temperature: float | None = None   # K, dark cool-down (Si-DX)
+    dx_state: str = "equilibrium"    # equilibrium | ionized (Si-DX)
     line: int | None = field(default=None, compare=False)   # [[layer]] line in the deck file
 
     @property
@@ -467,6 +490,8 @@ class Physics:
     contacted_carrier: str = "auto"   # auto | electron | hole | both
     polarity: str = "metal"         # wurtzite growth polarity: metal | nitrogen
     polarization: float = 1.0       # factor on the wurtzite polarization
+    exchange_correlation: str = "none"
+    nonparabolicity: bool = False
 
 
 @dataclass(frozen=True)
@@ -652,6 +677,12 @@ class Deck:
                 d["lattice_matched"] = l.lattice_matched
             if l.relaxed:
                 d["relaxed"] = True
+            if l.donor_species != "shallow":
+                d["donor_species"] = l.donor_species
+            if l.dx_freeze_temperature is not None:
+                d["dx_freeze_temperature"] = l.dx_freeze_temperature
+            if l.dx_state != "equilibrium":
+                d["dx_state"] = l.dx_state
             return d
 
         def table(obj):
@@ -688,6 +719,11 @@ class Deck:
             out["physics"]["polarity"] = self.physics.polarity
         if self.physics.polarization != 1.0:
             out["physics"]["polarization"] = self.physics.polarization
+        # written only when set, so the text (and hash) of a deck without them is unchanged
+        if self.physics.exchange_correlation != "none":
+            out["physics"]["exchange_correlation"] = self.physics.exchange_correlation
+        if self.physics.nonparabolicity:
+            out["physics"]["nonparabolicity"] = True
         q = {}
         if self.quantum.regions is not None:
             q["regions"] = [list(r) for r in self.quantum.regions]
@@ -1128,6 +1164,12 @@ def _build(raw, text, path, overrides):
     total = math.fsum(l.thickness for l in layers)
 
     physics = _physics(ctx, _table(ctx, raw, "physics"))
+    if physics.ionization != "thermal":
+        for l in layers:
+            if l.donor_species == "Si-DX":
+                raise ctx.error(f"layer[{l.index}].donor_species", "Si-DX donors need "
+                                "physics.ionization = \"thermal\" (the DX level is occupied by "
+                                "Fermi-Dirac statistics); with full ionisation use shallow")
     quantum = _quantum(ctx, _table(ctx, raw, "quantum"), total)
     mesh = _mesh(ctx, _table(ctx, raw, "mesh"))
     solver = _solver(ctx, _table(ctx, raw, "solver"))
@@ -1347,11 +1389,33 @@ def _layers(ctx, raw, materials):
         thickness = ctx.get(t, "thickness", _LAYER["thickness"], p)
         dens = {k: ctx.get(t, k, _LAYER[k], p)
                 for k in ("donors", "acceptors", "sheet_donors", "sheet_acceptors")}
+        dx = _donor_species(ctx, t, p, material, materials)
         out.append(Layer(index=i, name=name, material=material, x_top=x_top, x_bottom=x_bottom,
                          thickness=thickness, y_top=y_top, y_bottom=y_bottom,
                          lattice_matched=matched, relaxed=relaxed,
-                         line=_locate(ctx.text, f"layer[{i}]"), **dens))
+                         line=_locate(ctx.text, f"layer[{i}]"), **dens, **dx))
     return tuple(out)
+
+
+def _donor_species(ctx, t, p, material, materials):
+    """layer.donor_species, dx_freeze_temperature, dx_state (checked together)."""
+    species = ctx.get(t, "donor_species", _LAYER["donor_species"], p)
+    freeze = ctx.get(t, "dx_freeze_temperature", _LAYER["dx_freeze_temperature"], p)
+    state = ctx.get(t, "dx_state", _LAYER["dx_state"], p)
+    if species != "Si-DX":
+        for k in ("dx_freeze_temperature", "dx_state"):
+            if k in t:
+                raise ctx.error(f"{p}{k}", f"applies to Si-DX donors only; set {p}donor_species "
+                                "= \"Si-DX\" or remove it")
+    else:
+        root, _ = _alloy_root(material, materials)
+        if root not in DX_HOSTS:
+            raise ctx.error(f"{p}donor_species", f"the Si-DX level is given for AlGaAs and GaAs "
+                            f"only, not for {material!r}", allowed=DONOR_SPECIES)
+        if freeze is not None and state == "ionized":
+            raise ctx.error(f"{p}dx_freeze_temperature", "a dark cool-down and dx_state = "
+                            "\"ionized\" (illuminated) exclude each other; give one")
+    return {"donor_species": species, "dx_freeze_temperature": freeze, "dx_state": state}
 
 
 def _alloy_root(name, materials):

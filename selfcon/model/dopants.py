@@ -69,3 +69,29 @@ def statistics_binding(binding):
     level is exactly 0; positive values pass unchanged."""
     b = np.asarray(binding, dtype=float)
     return np.where(b > 0.0, b, -np.inf)
+
+
+# --------------------------------------------------------------------------- Si DX centres
+
+#: depth of the Si DX level below the L conduction-band minimum (eV).  Chand, Henderson,
+#: Klem, Masselink, Fischer, Chang and Morkoc, Phys. Rev. B 30, 4481 (1984) found the deep
+#: donor of Si in Al_xGa_{1-x}As (x = 0 to 1) to follow the L minimum at a fixed depth of
+#: about 0.15 eV (from memory).  It lies in the gap, below the Gamma edge, from x ~ 0.2 on
+#: (the DX onset of Mooney, J. Appl. Phys. 67, R1 (1990)) and is resonant with the band,
+#: above the Gamma edge, in GaAs.
+DX_BELOW_L = 0.15
+
+#: the statistics of the DX level: a one-electron deep level of spin degeneracy 2 (the
+#: positive-U picture), occupied by Fermi-Dirac statistics like the shallow level,
+#: N_DX+ = N_D / (1 + 2 exp((EF - E_DX)/kT)).  The negative-U picture (Chadi and Chang,
+#: Phys. Rev. Lett. 61, 873 (1988)) is not modelled.
+DX_MODEL = ("one-electron deep level (spin degeneracy 2) at E_L - 0.15 eV, after Chand et al., "
+            "Phys. Rev. B 30, 4481 (1984)")
+
+
+def dx_binding(ec_gamma, ec_l):
+    """Binding energy (eV) of the Si DX level below the Gamma edge: Ec - E_DX with
+    E_DX = E_L - DX_BELOW_L.  Negative where the level is resonant with the band (GaAs,
+    AlGaAs below x ~ 0.2).  A deep level does not merge with the band at high density (the
+    Mott criterion is for hydrogenic states), so no Pearson-Bardeen reduction applies."""
+    return np.asarray(ec_gamma, dtype=float) - (np.asarray(ec_l, dtype=float) - DX_BELOW_L)

@@ -72,6 +72,9 @@ class LayerInfo:
     y_bottom: float | None = None
     relaxed: bool = False
     lattice_matched: str | None = None
+    donor_species: str = "shallow"              # shallow | Si-DX
+    dx_freeze_temperature: float | None = None  # K (Si-DX dark cool-down)
+    dx_state: str = "equilibrium"               # equilibrium | ionized (Si-DX)
 
 
 @dataclass(frozen=True)
@@ -108,6 +111,25 @@ class Structure:
     polarization_factor: float = 1.0
     #: "zincblende" or "wurtzite": the crystal of every layer (a stack is one or the other)
     crystal: str = "zincblende"
+    #: physics.exchange_correlation: none | lda | lda-gl (selfcon.solver.exchange)
+    exchange_correlation: str = "none"
+    #: physics.nonparabolicity: energy-dependent Gamma mass (selfcon.solver.nonparabolic)
+    nonparabolicity: bool = False
+    #: (N,) bool: sheet nodes whose donors are Si-DX in equilibrium (cell["dx"] marks the cells)
+    sheet_dx: Any = None
+    #: a dark cool-down applied (selfcon.solver.dx.freeze): (ionised fraction per cell (N-1,),
+    #: per node for the sheets (N,), freeze temperature K) of the cells / sheet nodes marked
+    #: dx; None: the DX levels follow the Fermi level at the run temperature
+    dx_frozen: Any = None
+
+    @property
+    def dx_freeze_temperatures(self) -> tuple:
+        """Freeze temperatures (K) of the Si-DX layers cooled in the dark below them, i.e.
+        whose occupation is set above the run temperature and must be frozen; () if none."""
+        return tuple(sorted({float(L.dx_freeze_temperature) for L in self.layers
+                             if L.donor_species == "Si-DX" and L.dx_state == "equilibrium"
+                             and L.dx_freeze_temperature is not None
+                             and L.dx_freeze_temperature > self.temperature}))
 
     @property
     def z(self) -> np.ndarray:
@@ -296,7 +318,10 @@ def build_structure(deck: Deck, *, mesh: Mesh | None = None) -> Structure:
                                 sheet_acceptors=float(L.sheet_acceptors),
                                 y_top=getattr(L, "y_top", None), y_bottom=getattr(L, "y_bottom", None),
                                 relaxed=bool(getattr(L, "relaxed", False)),
-                                lattice_matched=getattr(L, "lattice_matched", None)))
+                                lattice_matched=getattr(L, "lattice_matched", None),
+                                donor_species=getattr(L, "donor_species", "shallow"),
+                                dx_freeze_temperature=getattr(L, "dx_freeze_temperature", None),
+                                dx_state=getattr(L, "dx_state", "equilibrium")))
         top = bottom
     total = top
 
@@ -383,6 +408,16 @@ def build_structure(deck: Deck, *, mesh: Mesh | None = None) -> Structure:
     n_mott_a = dopants.mott_density(cell["eps"], cell["m_v_dos"])
     cell["donor_binding"] = dopants.binding_energy(cell["donor_binding"], n_imp, n_mott_d)
     cell["acceptor_binding"] = dopants.binding_energy(cell["acceptor_binding"], n_imp, n_mott_a)
+    # Si-DX layers: the deep level (selfcon.model.dopants.dx_binding) replaces the shallow
+    # one; illuminated (dx_state = ionized) DX centres are all ionised (binding 0)
+    dx_layer = np.array([Li.donor_species == "Si-DX" for Li in layers], dtype=bool)
+    dx_lit = np.array([Li.donor_species == "Si-DX" and Li.dx_state == "ionized" for Li in layers],
+                      dtype=bool)
+    dx_cells = dx_layer[cell_layer]
+    dx_deep = dopants.dx_binding(cell["ec_gamma"], cell["ec_l"])
+    cell["donor_binding"] = np.where(dx_cells, np.where(dx_lit[cell_layer], 0.0, dx_deep),
+                                     cell["donor_binding"])
+    cell["dx"] = (dx_cells & ~dx_lit[cell_layer]).astype(float)
     cell["nc"] = NC_PER_M0_K * (cell["m_c_dos"] * T) ** 1.5
     # X and L valleys: 3 and 4 equivalent valleys of DOS mass (m_l m_t^2)^(1/3) each
     # (common practice for the cubic III-V's); used only when physics.carriers asks for them
@@ -420,6 +455,7 @@ def build_structure(deck: Deck, *, mesh: Mesh | None = None) -> Structure:
     sheet_a = np.zeros(n)
     sheet_ed = np.zeros(n)
     sheet_ea = np.zeros(n)
+    sheet_dx = np.zeros(n, dtype=bool)
     for Li in layers:
         if Li.sheet_donors or Li.sheet_acceptors:
             i = mesh.index_of(0.5 * (Li.top + Li.bottom))
@@ -431,10 +467,13 @@ def build_structure(deck: Deck, *, mesh: Mesh | None = None) -> Structure:
             n_sheet = n_imp[c] + dopants.sheet_equivalent_density(sheet_d[i] + sheet_a[i])
             sheet_ed[i] = dopants.binding_energy(dilute_ed[c], n_sheet, n_mott_d[c])
             sheet_ea[i] = dopants.binding_energy(dilute_ea[c], n_sheet, n_mott_a[c])
+            if Li.donor_species == "Si-DX" and Li.sheet_donors:
+                sheet_ed[i] = 0.0 if Li.dx_state == "ionized" else dx_deep[c]
+                sheet_dx[i] = Li.dx_state != "ionized"
 
     regions = tuple((mesh.index_of(a), mesh.index_of(b)) for a, b in regions_nm)
     for arr in list(cell.values()) + [x_cell, cell_layer, layer_index, sheet_d, sheet_a, sheet_ed,
-                                      sheet_ea, sheet_fixed]:
+                                      sheet_ea, sheet_fixed, sheet_dx]:
         arr.flags.writeable = False
     return Structure(mesh=mesh, temperature=T, layers=tuple(layers), cell_layer=cell_layer,
                      layer_index=layer_index, x_cell=x_cell, cell=cell, sheet_donors=sheet_d,
@@ -444,7 +483,10 @@ def build_structure(deck: Deck, *, mesh: Mesh | None = None) -> Structure:
                      states=int(deck.quantum.states), surface=_contact(deck.surface),
                      substrate=_contact(deck.substrate), strain=summary, sheet_fixed=sheet_fixed,
                      polarity=polarity, polarization_factor=factor, crystal=crystal,
-                     contacted=contacted_carrier(deck.physics.contacted_carrier, layers, crystal))
+                     contacted=contacted_carrier(deck.physics.contacted_carrier, layers, crystal),
+                     exchange_correlation=getattr(deck.physics, "exchange_correlation", "none"),
+                     nonparabolicity=bool(getattr(deck.physics, "nonparabolicity", False)),
+                     sheet_dx=sheet_dx)
 
 
 def contacted_carrier(choice: str, layers, crystal: str = "zincblende") -> str:
@@ -644,13 +686,16 @@ def coarsened(st: Structure, factor: int = 4) -> tuple[Structure, np.ndarray]:
     picked = dict(cell_layer=st.cell_layer[mid], layer_index=st.layer_index[nodes],
                   x_cell=st.x_cell[mid], sheet_donors=st.sheet_donors[nodes],
                   sheet_acceptors=st.sheet_acceptors[nodes], sheet_ed=st.sheet_ed[nodes],
-                  sheet_ea=st.sheet_ea[nodes])
+                  sheet_ea=st.sheet_ea[nodes],
+                  sheet_dx=None if st.sheet_dx is None else st.sheet_dx[nodes])
     if "polarization" in cell:
         # the bound sheets of the coarse cells' polarization: exact at the interfaces (kept
         # nodes), a graded layer's bulk bound charge on the coarse nodes
         picked["sheet_fixed"] = sheets_nm2(cell["polarization"])
-    for arr in [z, h, wl, wr, w, *cell.values(), *picked.values()]:
+    for arr in [z, h, wl, wr, w, *cell.values(), *[a for a in picked.values() if a is not None]]:
         arr.flags.writeable = False     # read-only like every structure array (one numba signature)
+    if st.dx_frozen is not None:
+        picked["dx_frozen"] = (st.dx_frozen[0][mid], st.dx_frozen[1][nodes], st.dx_frozen[2])
     coarse = replace(st, mesh=Mesh(z=z, h=h, wl=wl, wr=wr, w=w), cell=cell, regions=regions,
                      **picked)
     return coarse, nodes

@@ -27,7 +27,10 @@ Thresholds (our own choices, stated here and in README.md, "Design recipes"):
 * DX-centre regime: a donor-doped AlGaAs layer with Al fraction above ``DX_MIN_X`` = 0.2
   (Si donors form DX centres there; common practice) where the Fermi level lies less
   than ``max(DX_WINDOW_KT * kT, DX_WINDOW_EV)`` = max(3 kT, 50 meV) below the donor
-  level Ec - E_bind, or above it.  50 meV applies below about 190 K, 3 kT above.
+  level Ec - E_bind, or above it.  50 meV applies below about 190 K, 3 kT above.  A layer
+  whose donors are modelled as Si-DX (``layer.donor_species``) gets instead one line naming
+  the model, the state at the run temperature (equilibrium, dark cool-down or illuminated;
+  below ``DX_FREEZE_HINT_K`` = 150 K a real wafer is not in equilibrium) and the ionised share.
 * quantum region cut: at a region end that is not a contact, the electron (or hole)
   density within ``CUT_DISTANCE_NM`` = 2 nm of the end node, on either side, exceeds
   ``CUT_FRACTION`` = 1e-3 of that carrier's peak density.
@@ -113,7 +116,7 @@ BUFFER_FRACTION = 0.01
 __all__ = ["design_warnings", "register_check", "unregister_check", "deck_of",
            "check_not_converged", "check_second_subband", "check_parasitic_channels",
            "check_parallel_conduction", "check_carriers_outside", "channel_subbands",
-           "check_dx_centres", "check_region_cut", "check_buffer_carriers",
+           "check_dx_centres", "dx_model_note", "check_region_cut", "check_buffer_carriers",
            "check_uncounted_valleys", "doping_layers", "doping_layer_electrons",
            "CHECKS", "check_critical_thickness", "check_band_alignment",
            "interface_alignments", "check_polarization_holes", "polarization_sheet_near"]
@@ -416,6 +419,9 @@ def check_dx_centres(result, structure, deck=None) -> list[str]:
     for Li in structure.layers:
         if not (Li.donors > 0 or Li.sheet_donors > 0):
             continue
+        if getattr(Li, "donor_species", "shallow") == "Si-DX":
+            out.append(dx_model_note(result, structure, Li))
+            continue
         is_algaas, x = _algaas_x(result, deck, structure, Li)
         if not is_algaas or x.size == 0 or not np.any(x > DX_MIN_X):
             continue
@@ -438,8 +444,41 @@ def check_dx_centres(result, structure, deck=None) -> list[str]:
                    f"{-1e3 * ed:.0f} meV above the donor level")
             out.append(f"DX-centre regime: in {Li.name!r} (AlGaAs, x = {float(np.nanmax(x)):.2f} > {DX_MIN_X}) "
                        f"EF lies {pos} (window {1e3 * window:.0f} meV = max(3 kT, 50 meV)); Si donors "
-                       "there trap electrons (persistent photoconductivity, freeze-out)")
+                       "there trap electrons (persistent photoconductivity, freeze-out); the donors are "
+                       "modelled as shallow: set layer.donor_species = \"Si-DX\" to model the DX level")
     return out
+
+
+#: below about this temperature (K) DX capture and emission stop within a measurement's time
+#: (Mooney, J. Appl. Phys. 67, R1 (1990): the persistent photoconductivity survives below
+#: ~100-150 K; from memory)
+DX_FREEZE_HINT_K = 150.0
+
+
+def dx_model_note(result, structure, layer) -> str:
+    """The DX line of a Si-DX layer: the model used, the state at the run temperature and the
+    ionised share of the layer's donors."""
+    from selfcon.model.dopants import DX_MODEL
+    row = result.layers[layer.index]
+    total = layer.donors * (layer.bottom - layer.top) / NM_PER_CM + layer.sheet_donors
+    share = row["ionized_donor_sheet_density_cm2"] / total if total > 0 else float("nan")
+    T = structure.temperature
+    frozen = getattr(structure, "dx_frozen", None)
+    tf = getattr(layer, "dx_freeze_temperature", None)
+    if getattr(layer, "dx_state", "equilibrium") == "ionized":
+        state = ("illuminated: every DX centre ionised (persistent photoconductivity; in the dark "
+                 "fewer are, and n_s is lower)")
+    elif frozen is not None and tf is not None and tf > T:
+        state = (f"dark cool-down: the DX occupation of equilibrium at {tf:g} K (gate unbiased), kept "
+                 f"at {T:g} K; illumination would ionise them (layer.dx_state = \"ionized\")")
+    elif T < DX_FREEZE_HINT_K:
+        state = (f"in equilibrium at {T:g} K, which a real wafer does not reach below about "
+                 f"{DX_FREEZE_HINT_K:g} K: set layer.dx_freeze_temperature for a dark cool-down, or "
+                 "layer.dx_state = \"ionized\" after illumination")
+    else:
+        state = f"in equilibrium at {T:g} K (DX capture and emission are fast at this temperature)"
+    return (f"Si-DX donors in {layer.name!r}: {DX_MODEL}; {state}; {100 * share:.0f} % of the layer's "
+            "donors are ionised")
 
 
 @register_check("region_cut")

@@ -140,16 +140,49 @@ def classical_problem(st: Structure, bc=None) -> P.PoissonProblem:
     top, bottom = bc if bc is not None else ((P.ZERO_FIELD, 0.0), (P.ZERO_FIELD, 0.0))
     ec_v, nc_v = valley_arrays(st)
     efn, efp = st.fermi_levels
+    nd, ed, sheet_nd, sheet_ed = donor_arrays(st)
     return P.PoissonProblem(z=st.z, eps=c["eps"], ec0=c["ec_gamma"], ev0=ev0, nc=nc, nv=nv,
-                            nd=c["donors"], ed=statistics_binding(c["donor_binding"]),
+                            nd=nd, ed=ed,
                             na=c["acceptors"], ea=statistics_binding(c["acceptor_binding"]),
                             temperature=st.temperature,
-                            sheet_nd=st.sheet_donors, sheet_na=st.sheet_acceptors,
-                            sheet_ed=statistics_binding(st.sheet_ed),
+                            sheet_nd=sheet_nd, sheet_na=st.sheet_acceptors,
+                            sheet_ed=sheet_ed,
                             sheet_ea=statistics_binding(st.sheet_ea),
                             sheet_fixed=st.sheet_fixed,
                             full_ionization=st.full_ionization, top=top, bottom=bottom,
                             ec0_v=ec_v, nc_v=nc_v, ev0_v=ev_v, nv_v=nv_v, efn=efn, efp=efp)
+
+
+def donor_arrays(st: Structure):
+    """(nd per cell, donor binding per cell as the statistics take it, donor sheets per node,
+    their binding per node as the statistics take it).
+
+    Shallow donors: binding 0 (no bound state) is -inf (fully ionised,
+    selfcon.model.dopants.statistics_binding).  Si-DX cells (cell["dx"]) keep their deep
+    binding as it is, negative where the level is resonant with the band.  After a dark
+    cool-down (``st.dx_frozen``) the DX centres no longer follow the Fermi level: their
+    ionised part is a fixed charge (density times the frozen ionised fraction, binding
+    -inf) and the rest is neutral."""
+    c = st.cell
+    ed = statistics_binding(c["donor_binding"])
+    nd = c["donors"]
+    sheet = st.sheet_donors
+    sheet_ed = statistics_binding(st.sheet_ed)
+    dx = c.get("dx")
+    if dx is None or not np.any(dx > 0):
+        return nd, ed, sheet, sheet_ed
+    deep = dx > 0
+    ed = np.where(deep, c["donor_binding"], ed)
+    sheet_ed = np.where(st.sheet_dx, st.sheet_ed, sheet_ed)
+    if st.dx_frozen is not None:
+        cell_f, sheet_f, _ = st.dx_frozen
+        frozen = deep & np.isfinite(cell_f)            # NaN: this layer stays in equilibrium
+        nd = np.where(frozen, nd * np.nan_to_num(cell_f), nd)
+        ed = np.where(frozen, -np.inf, ed)
+        sheet_frozen = st.sheet_dx & np.isfinite(sheet_f)
+        sheet = np.where(sheet_frozen, sheet * np.nan_to_num(sheet_f), sheet)
+        sheet_ed = np.where(sheet_frozen, -np.inf, sheet_ed)
+    return nd, ed, sheet, sheet_ed
 
 
 def valley_rows(st: Structure, name):
