@@ -161,12 +161,12 @@ def cmd_run(args) -> int:
 
 
 def _fmt(v, unit=""):
-    from selfcon.output.report import sci
+    from selfcon.output.numbers import fmt
     if v is None:
         return "–"
     if isinstance(v, float) and (abs(v) >= 1e5 or (0 < abs(v) < 1e-3)):
-        return sci(v) + unit
-    return f"{v:g}{unit}" if isinstance(v, (int, float)) else str(v)
+        return fmt(v, "volume" if unit == "" else "plain") + unit
+    return fmt(v, "plain") + unit if isinstance(v, (int, float)) else str(v)
 
 
 def check_figures(deck, structure) -> dict:
@@ -339,8 +339,9 @@ def cmd_check(args) -> int:
             extra += f", bias {c['bias_V']:g} V"
         console.print(f"{side}: {c['contact']}{extra}")
     m = fig["mesh"]
-    console.print(f"mesh: {m['nodes']} nodes over {m['thickness_nm']:g} nm, step {_fmt(m['min_step_nm'])}"
-                  f" to {_fmt(m['max_step_nm'])} nm")
+    from selfcon.output.numbers import fmt
+    console.print(f"mesh: {m['nodes']} nodes over {fmt(m['thickness_nm'], 'nm')} nm, step "
+                  f"{fmt(m['min_step_nm'], 'nm')} to {fmt(m['max_step_nm'], 'nm')} nm")
     if fig["quantum_regions"]:
         for r in fig["quantum_regions"]:
             console.print(f"quantum region {r['top_nm']:g}–{r['bottom_nm']:g} nm: {r['nodes']} nodes")
@@ -359,6 +360,9 @@ def cmd_show(args) -> int:
     fig["file"] = str(path)
     if args.json:
         print(report.to_json(fig))
+        return EXIT_OK
+    if args.quiet:
+        print("\n".join(report.plain_summary(fig)))
         return EXIT_OK
     console = _console()
     prov = result.provenance
@@ -429,8 +433,9 @@ def cmd_export(args) -> int:
                   inputs=[(args.result, "the result file")], force=args.force)
     result = load_result(args.result)
     paths = export_csv(result, args.csv, force=args.force)
-    for p in paths:
-        print(f"wrote {p}")
+    if not args.quiet:
+        for p in paths:
+            print(f"wrote {p}")
     return EXIT_OK
 
 
@@ -653,7 +658,7 @@ def build_parser() -> argparse.ArgumentParser:
                 formatter_class=argparse.RawDescriptionHelpFormatter,
                 epilog="exit codes:\n" + "\n".join(f"  {c:>3}  {m}" for c, m in EXIT_CODES))
     p.add_argument("--version", action="version", version=f"selfcon {__version__}")
-    sub = p.add_subparsers(dest="command", metavar="COMMAND", parser_class=_Parser)
+    sub = p.add_subparsers(dest="command", metavar="COMMAND", parser_class=_Parser, help="what to do")
     sub.required = True
 
     r = sub.add_parser("run", help="solve one deck and write the result file",
@@ -674,18 +679,19 @@ def build_parser() -> argparse.ArgumentParser:
     r.set_defaults(func=cmd_run)
 
     c = sub.add_parser("check", help="validate a deck and show the stack and mesh without solving")
-    c.add_argument("deck", metavar="DECK")
+    c.add_argument("deck", metavar="DECK", help="deck file (TOML)")
     c.add_argument("--set", action="append", metavar="PATH=VALUE", default=[], help="as for run")
     c.add_argument("--json", action="store_true", help="print the stack and mesh as JSON")
     c.set_defaults(func=cmd_check)
 
     s = sub.add_parser("show", help="summarise a result file")
-    s.add_argument("result", metavar="RESULT.h5")
+    s.add_argument("result", metavar="RESULT.h5", help="result file written by selfcon run")
     s.add_argument("--json", action="store_true", help="print the summary as one JSON object")
+    s.add_argument("--quiet", action="store_true", help="a few plain summary lines instead of tables")
     s.set_defaults(func=cmd_show)
 
     pl = sub.add_parser("plot", help="draw the band diagram of a result file")
-    pl.add_argument("result", metavar="RESULT.h5")
+    pl.add_argument("result", metavar="RESULT.h5", help="result file written by selfcon run")
     pl.add_argument("-o", "--output", metavar="FIG", required=True, help="figure file: .png, .svg or .pdf")
     pl.add_argument("--size", metavar="WxH", help="figure size in pixels (default 1200x900)")
     pl.add_argument("--width-px", type=int, metavar="W", help="figure width in pixels")
@@ -698,14 +704,16 @@ def build_parser() -> argparse.ArgumentParser:
     pl.set_defaults(func=cmd_plot)
 
     e = sub.add_parser("export", help="write a result's profiles and subbands as CSV tables")
-    e.add_argument("result", metavar="RESULT.h5")
+    e.add_argument("result", metavar="RESULT.h5", help="result file written by selfcon run")
     e.add_argument("--csv", metavar="DIR", required=True,
                    help="folder for profile.csv, subbands.csv, channels.csv and transitions.csv (created if missing)")
     e.add_argument("--force", action="store_true", help="overwrite existing CSV files")
+    e.add_argument("--quiet", action="store_true", help="print nothing (errors still go to stderr)")
     e.set_defaults(func=cmd_export)
 
     m = sub.add_parser("materials", help="list the material library, or one material with every source")
-    m.add_argument("name", metavar="NAME", nargs="?")
+    m.add_argument("name", metavar="NAME", nargs="?",
+                   help="a library material (without it: the list of materials)")
     m.add_argument("--x", type=float, help="alloy fraction (alloys): show the interpolated values")
     m.add_argument("--y", type=float, help="second composition (quaternaries InGaAsP, AlGaInAs)")
     m.add_argument("--on", metavar="SUBSTRATE",
@@ -717,7 +725,36 @@ def build_parser() -> argparse.ArgumentParser:
 
     for modname in EXTRA_COMMANDS:
         importlib.import_module(modname).register(sub)
+    for parser in _all_parsers(p):
+        _short_quiet(parser)
     return p
+
+
+#: ``--quiet`` of a command that has no progress or messages to hide
+_NOTHING_TO_HIDE = "accepted for uniformity: this command prints only what was asked for"
+
+
+def _all_parsers(parser) -> list:
+    """``parser`` and every subcommand parser below it (``queue verify`` included)."""
+    out = [parser]
+    for action in parser._actions:
+        if isinstance(action, argparse._SubParsersAction):
+            for child in dict.fromkeys(action.choices.values()):
+                out += _all_parsers(child)
+    return out
+
+
+def _short_quiet(parser) -> None:
+    """Every command accepts ``-q`` for ``--quiet`` (README.md, "Command line")."""
+    if any(isinstance(a, argparse._SubParsersAction) for a in parser._actions) or parser.prog == "selfcon":
+        return
+    table = parser._option_string_actions
+    if "--quiet" not in table:
+        parser.add_argument("-q", "--quiet", action="store_true", help=_NOTHING_TO_HIDE)
+    elif "-q" not in table:
+        action = table["--quiet"]
+        action.option_strings.insert(0, "-q")
+        table["-q"] = action
 
 
 def _one_line(text: str) -> str:

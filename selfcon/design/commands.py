@@ -17,6 +17,7 @@ import sys
 from pathlib import Path
 
 from selfcon.errors import EXIT_INPUT, EXIT_NOT_CONVERGED, EXIT_OK, SelfconInputError  # noqa: F401
+from selfcon.output.numbers import fmt
 from selfcon.output.report import jsonable
 
 
@@ -29,7 +30,7 @@ def register(subparsers):
                               description="Solve the deck at every gate bias from --from to --to (continuation "
                               "from the previous point); report threshold voltages, parallel-conduction onset "
                               "and capacitance; write one HDF5 file.")
-    s.add_argument("deck")
+    s.add_argument("deck", metavar="DECK", help="deck file (TOML); its surface contact takes the bias")
     s.add_argument("--from", dest="v_from", type=float, required=True, metavar="V1", help="first bias (V)")
     s.add_argument("--to", dest="v_to", type=float, required=True, metavar="V2", help="last bias (V)")
     s.add_argument("--step", type=float, required=True, metavar="DV", help="bias step (V, > 0)")
@@ -48,7 +49,7 @@ def register(subparsers):
     t = subparsers.add_parser("tune", help="find the deck value that makes a quantity hit a target",
                               description="Bracketing root finder (brentq) over full solves with warm starts. "
                               "Quantities: ns, ns_total, e10, e0f, doping_charge, doping_free, or any summary key.")
-    t.add_argument("deck")
+    t.add_argument("deck", metavar="DECK", help="deck file (TOML) whose value is tuned")
     t.add_argument("--vary", required=True, metavar="PATH", help="deck path, e.g. layer.spacer.thickness")
     t.add_argument("--target", required=True, metavar="QUANTITY=VALUE", help="e.g. ns=3e11 (cm^-2)")
     t.add_argument("--bracket", type=float, nargs=2, metavar=("A", "B"), default=None,
@@ -57,7 +58,7 @@ def register(subparsers):
     t.add_argument("-o", "--output", default=None, metavar="OUT.h5", help="write the solution's result file")
     t.add_argument("--set", action="append", default=[], metavar="PATH=VALUE", help="deck override")
     t.add_argument("--force", action="store_true", help="overwrite an existing output file")
-    t.add_argument("--json", action="store_true")
+    t.add_argument("--json", action="store_true", help="print the answer as one JSON object and nothing else")
     t.add_argument("--quiet", action="store_true", help="no per-solve lines")
     t.set_defaults(func=cmd_tune)
 
@@ -71,7 +72,7 @@ def register(subparsers):
     u.add_argument("--plot", default=None, metavar="FIG", help="histograms and sensitivity bars")
     u.add_argument("--table-only", action="store_true", help="do not read the job result files")
     u.add_argument("--force", action="store_true", help="overwrite an existing figure")
-    u.add_argument("--json", action="store_true")
+    u.add_argument("--json", action="store_true", help="print the statistics as one JSON object and nothing else")
     u.set_defaults(func=cmd_study_summary)
 
 
@@ -111,7 +112,7 @@ def cmd_sweep_bias(args) -> int:
         if loud:
             ns = r.summary.get("channel_electron_sheet_density_cm2", float("nan"))
             flag = "" if r.converged else "  NOT CONVERGED"
-            print(f"[{k + 1}/{biases.size}] V = {v:+.4f} V  n_s(channel) = {ns:.4g} cm^-2  "
+            print(f"[{k + 1}/{biases.size}] V = {fmt(v, 'V', sign=True)} V  n_s(channel) = {fmt(ns, 'sheet')} cm^-2  "
                   f"{r.iterations} it{flag}", file=sys.stderr, flush=True)
 
     sw = sweep_bias(deck, biases, progress=progress, threshold_cm2=args.threshold, fraction=args.fraction)
@@ -127,8 +128,9 @@ def cmd_sweep_bias(args) -> int:
     else:
         print(f"{'bias V':>8} {'n_s channel':>12} {'n doping':>10} {'Q C/cm2':>10} {'C F/cm2':>10} {'it':>3}")
         for i in range(sw.bias.size):
-            print(f"{sw.bias[i]:>+8.3f} {sw.channel_density[i]:>12.4g} {sw.doping_electrons[i]:>10.3g} "
-                  f"{sw.gate_charge[i]:>10.4g} {sw.capacitance[i]:>10.4g} {sw.iterations[i]:>3}"
+            print(f"{fmt(sw.bias[i], 'V', sign=True):>8} {fmt(sw.channel_density[i], 'sheet'):>12} "
+                  f"{fmt(sw.doping_electrons[i], 'sheet'):>10} {fmt(sw.gate_charge[i], 'capacitance'):>10} "
+                  f"{fmt(sw.capacitance[i], 'capacitance'):>10} {sw.iterations[i]:>3}"
                   + ("" if sw.converged[i] else "  not converged"))
         for line in sw.lines():
             print(line)

@@ -27,6 +27,7 @@ from pathlib import Path
 import numpy as np
 
 from selfcon.errors import StudyError
+from selfcon.output.numbers import fmt, quantity_of
 
 #: table columns that are bookkeeping, not figures
 BOOKKEEPING = ("job", "status", "attempts", "converged", "iterations", "seconds", "warm_start", "result",
@@ -52,22 +53,46 @@ class ToleranceSummary:
 
     def lines(self) -> list[str]:
         out = [f"{self.folder}: {self.n_done} of {self.n_total} jobs done; varied: "
-               + ", ".join(f"{p} (mean {self.parameter_stats[p]['mean']:.4g}, std {self.parameter_stats[p]['std']:.3g})"
+               + ", ".join(f"{p} (mean {fmt(self.parameter_stats[p]['mean'])}, std {fmt(self.parameter_stats[p]['std'])})"
                            for p in self.paths)]
-        w = max(len(q) for q in self.quantities) if self.quantities else 8
+        shown = self.table_quantities()
+        w = max(len(q) for q in shown) if shown else 8
         out.append(f"{'quantity':<{w}}  {'mean':>11} {'std':>10} {'p5':>11} {'p50':>11} {'p95':>11}  {'R^2':>5}")
-        for q in self.quantities:
-            s = self.stats[q]
+        for q in shown:
+            s, kind = self.stats[q], quantity_of(q)
             r2 = self.r_squared[q]
-            out.append(f"{q:<{w}}  {s['mean']:>11.5g} {s['std']:>10.4g} {s['p5']:>11.5g} {s['p50']:>11.5g} "
-                       f"{s['p95']:>11.5g}  {r2:>5.3f}" if math.isfinite(r2) else
-                       f"{q:<{w}}  {s['mean']:>11.5g} {s['std']:>10.4g} {s['p5']:>11.5g} {s['p50']:>11.5g} "
-                       f"{s['p95']:>11.5g}  {'-':>5}")
+            cells = [fmt(s[k], kind) for k in ("mean", "std", "p5", "p50", "p95")]
+            out.append(f"{q:<{w}}  {cells[0]:>11} {cells[1]:>10} {cells[2]:>11} {cells[3]:>11} {cells[4]:>11}  "
+                       f"{fmt(r2, 'fraction') if math.isfinite(r2) else '-':>5}")
+        left = [q for q in self.quantities if q not in shown]
+        if left:
+            out.append(f"({len(left)} more without spread or equal to a row above: " + ", ".join(left) + ")")
         out.append("sensitivity d(quantity)/d(parameter) per deck unit [standardised: b * std(x) / std(y)]")
-        for q in self.quantities:
-            parts = [f"{p}: {self.sensitivity[q][p]:+.4g} [{self.standardized[q][p]:+.3f}]" for p in self.paths]
+        for q in shown:
+            if not self.r_squared[q] == self.r_squared[q]:          # NaN: nothing to regress
+                continue
+            parts = [f"{p}: {fmt(self.sensitivity[q][p], sign=True)} [{fmt(self.standardized[q][p], 'fraction', sign=True)}]"
+                     for p in self.paths]
             out.append(f"  {q}: " + "; ".join(parts))
         return out
+
+    def table_quantities(self) -> list[str]:
+        """The quantities the table lists: those with spread, a column equal to an earlier one
+        (``E0_eV`` = ``electron_E0_eV`` = ``E0_minus_EF_eV``) listed once, counts of warnings
+        left out (they are no design figure)."""
+        shown, seen = [], []
+        for q in self.quantities:
+            y = np.asarray(self.columns.get(q, []), float)
+            st = self.stats[q]
+            if not st.get("n") or not st["std"] > 0 or not np.any(np.isfinite(y)):
+                continue
+            if q.endswith("warnings") or q.startswith("warning"):
+                continue
+            if any(y.shape == z.shape and np.array_equal(y, z, equal_nan=True) for z in seen):
+                continue
+            shown.append(q)
+            seen.append(y)
+        return shown
 
     def as_dict(self) -> dict:
         return {"folder": self.folder, "paths": self.paths, "quantities": self.quantities, "n_done": self.n_done,

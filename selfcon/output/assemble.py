@@ -17,6 +17,7 @@ from selfcon.constants import C_M2_PER_NM2, CM2_PER_NM2, CM3_PER_NM3, NM_PER_CM
 from selfcon.output import channels as chx
 from selfcon.output.channels import OCCUPIED_CM2, OCCUPIED_FRACTION  # noqa: F401  (the one rule)
 from selfcon.output.diagnostics import design_warnings
+from selfcon.output.heading import OVERRIDES_KEY, override_notes
 from selfcon.output.result import Result, Subbands, utc_now
 from selfcon.output import schema
 from selfcon.output.schema import BANDS
@@ -268,6 +269,9 @@ def build_result(deck, st, loop, *, wall_time: float) -> Result:
     provenance["deck_hash"] = hashlib.sha256(text.encode()).hexdigest()
     provenance["wall_time_s"] = float(wall_time)
     provenance["created"] = utc_now()
+    notes = override_notes(deck)
+    if notes:                      # what --set (or a study) changed, for every heading
+        provenance[OVERRIDES_KEY] = notes
 
     result = Result(
         interfaces=interface_columns(st),

@@ -125,12 +125,14 @@ def _layer_patches(ax, result, x0, x1, with_labels, fontsize):
     return bounds
 
 
-def _tex_sci(v: float) -> str:
-    """4.11e11 -> '$4.11\\times10^{11}$' (mathtext)."""
-    if v == 0 or not np.isfinite(v):
-        return f"{v:g}"
-    exp = int(np.floor(np.log10(abs(v))))
-    return f"${v / 10 ** exp:.3g}\\times10^{{{exp}}}$"
+def _tex_sci(v: float, quantity: str = "sheet") -> str:
+    """4.11e11 -> '$4.11\\times10^{11}$' (mathtext), digits and floor of selfcon.output.numbers."""
+    from selfcon.output.numbers import fmt
+    text = fmt(v, quantity)
+    if "e" not in text:
+        return text
+    mant, exp = text.split("e")
+    return f"${mant}\\times10^{{{int(exp)}}}$"
 
 
 def _state_support(z, psi2, region, frac=1e-3):
@@ -190,28 +192,36 @@ def _draw_states(ax, result, z, ec, ev, span, regions, fs, labels=False, only=No
     return handles, drawn
 
 
+#: occupied states listed on the figures card
+CARD_STATES = 5
+
+
 def _figures_card(ax, result, fs):
     """Bottom-right panel: the headline figures as a small text card."""
     from selfcon.output.report import sci, summary_figures
     fig = summary_figures(result)
     ax.set_axis_off()
+    from selfcon.output.numbers import fmt
+    from selfcon.output.report import occupied_text, state_label
     lines = [("converged" if fig["converged"] else "NOT CONVERGED") + f" · {fig['iterations']} iterations",
-             f"residual {sci(fig['residual_V'])} V"]
+             f"residual {fmt(fig['residual_V'], 'residual')} V"]
     lines.append(f"n total  {sci(fig['total']['electron_sheet_density_cm2'])} cm⁻²")
-    if fig["total"]["hole_sheet_density_cm2"]:
+    if sci(fig["total"]["hole_sheet_density_cm2"]) != "0":
         lines.append(f"p total  {sci(fig['total']['hole_sheet_density_cm2'])} cm⁻²")
     ch = fig.get("channel")
     if ch:
-        lines.append(f"channel  {ch['layer']}  {sci(ch['sheet_density_cm2'])} cm⁻²")
+        lines.append(f"channel  {ch.get('name', ch['layer'])}  {sci(ch['sheet_density_cm2'])} cm⁻²")
         v = ch.get("ef_minus_ec_meV", ch.get("ev_minus_ef_meV"))
         if v is not None:
-            lines.append(("E_F − Ec,min" if ch["carrier"] == "electron" else "Ev,max − E_F") + f"  {v:+.1f} meV")
+            lines.append(("E_F − Ec,min" if ch["carrier"] == "electron" else "Ev,max − E_F")
+                         + f"  {fmt(v, 'meV', sign=True)} meV")
     occ = [r for r in fig["subbands"] if r["occupied"]]
-    for r in occ[:6]:
-        tag = "E" if r["band"] == "electron" else ("HH" if r["band"] == "heavy_hole" else "LH")
-        lines.append(f"{tag}{r['index']}  {r['energy_meV']:+.1f} meV  {sci(r['occupation_cm2'])} cm⁻²")
-    if len(occ) > 6:
-        lines.append(f"… {len(occ) - 6} more occupied")
+    lines.append(occupied_text(fig))
+    for r in occ[:CARD_STATES]:
+        lines.append(f"{state_label(r['band'], r['index'])}  {fmt(r['energy_meV'], 'meV', sign=True)} meV  "
+                     f"{sci(r['occupation_cm2'])} cm⁻²")
+    if len(occ) > CARD_STATES:
+        lines.append(f"… {len(occ) - CARD_STATES} more occupied")
     if fig["warnings"]:
         lines.append(f"{len(fig['warnings'])} warning(s): see selfcon show")
     ax.text(0.04, 0.96, "\n".join(lines), transform=ax.transAxes, va="top", ha="left", fontsize=fs * 0.8,
@@ -347,12 +357,20 @@ def draw_band_diagram(fig, result, depth=None):
         ax.grid(True, which="major", color="#ffffff", linewidth=0.8, alpha=0.7, zorder=1)
     _figures_card(card, result, fs)
 
-    ns = result.summary.get("electron_sheet_density_cm2")
-    bits = [f"T = {result.temperature:g} K"]
-    if isinstance(ns, (int, float)):
-        bits.append(f"n$_s$ = {_tex_sci(ns)} cm$^{{-2}}$")
+    from selfcon.output.heading import heading_lines
+    head = heading_lines(result)
+    bits = [head[1]]
+    main = result.main_channel if result.channels else None
+    if main is not None:
+        sym = "n$_s$" if main.get("carrier") == "electron" else "p$_s$"
+        bits.append(f"{sym} = {_tex_sci(float(main.get('sheet_density', 0.0)))} cm$^{{-2}}$ in '{main.get('name')}'")
+    else:
+        ns = result.summary.get("electron_sheet_density_cm2")
+        if isinstance(ns, (int, float)):
+            bits.append(f"n$_s$ = {_tex_sci(ns)} cm$^{{-2}}$")
     bits.append(f"{result.iterations} iterations" + ("" if result.converged else " — NOT CONVERGED"))
-    fig.suptitle(f"{result.title}\n" + "   ·   ".join(bits), fontsize=fs * 1.05,
+    lines = [head[0], "   ·   ".join(bits)] + head[2:]
+    fig.suptitle("\n".join(lines), fontsize=fs * 1.05,
                  color="#222222" if result.converged else "#a01010")
     return top, bottom, zoom, card
 

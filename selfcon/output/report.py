@@ -15,7 +15,9 @@ from typing import Any
 import numpy as np
 
 # "occupied": the one rule of selfcon.output.channels (>= 1 % of its channel and >= 1e8 cm^-2)
-from selfcon.output.channels import OCCUPIED_CM2, occupied_states  # noqa: E402
+from selfcon.output.channels import OCCUPIED_CM2, OCCUPIED_FRACTION, occupied_states  # noqa: E402
+from selfcon.output.heading import heading_lines, override_list
+from selfcon.output.numbers import fmt
 
 BAND_LABELS = {"electron": "electron", "heavy_hole": "heavy hole", "light_hole": "light hole"}
 
@@ -124,8 +126,12 @@ def channel_figures(result) -> dict | None:
 def subband_rows(result) -> list[dict]:
     """Every bound state: band, index (0 = lowest), energy relative to EF (meV), population (cm^-2)."""
     rows = []
+    fermi = {"electron": float(result.summary.get("electron_fermi_level_eV", 0.0) or 0.0),
+             "hole": float(result.summary.get("hole_fermi_level_eV", 0.0) or 0.0)}
     for band, sb in result.subbands.items():
         occupied = occupied_states(band, result.subbands, result.channels)
+        hole = band != "electron"
+        ef = fermi["hole" if hole else "electron"]
         names = [str(c.get("name", "")) for c in result.channels]
         for k in range(np.asarray(sb.energy).size):
             ch = int(sb.channel[k])
@@ -133,7 +139,9 @@ def subband_rows(result) -> list[dict]:
                          "occupation_cm2": float(sb.occupation[k]),
                          "in_plane_mass_m0": float(sb.in_plane_mass[k]), "region": int(sb.region[k]),
                          "channel": names[ch] if 0 <= ch < len(names) else None,
-                         "bound": bool(sb.bound[k]), "occupied": bool(occupied[k])})
+                         "bound": bool(sb.bound[k]), "occupied": bool(occupied[k]),
+                         # below E_F in the carrier's own sense (a hole level above the holes' E_F)
+                         "below_fermi": bool(float(sb.energy[k]) > ef if hole else float(sb.energy[k]) < ef)})
     return rows
 
 
@@ -188,6 +196,8 @@ def summary_figures(result, output: str | None = None) -> dict[str, Any]:
     subbands = subband_rows(result)
     figures = {
         "title": result.title,
+        "heading": heading_lines(result),
+        "overrides": override_list(result),
         "converged": bool(result.converged),
         "message": result.message,
         "iterations": int(result.iterations),
@@ -198,6 +208,7 @@ def summary_figures(result, output: str | None = None) -> dict[str, Any]:
         "total": {"electron_sheet_density_cm2": total_n, "hole_sheet_density_cm2": total_p},
         "layers": layers,
         "occupied_subbands": sum(1 for r in subbands if r["occupied"]),
+        "below_fermi_subbands": sum(1 for r in subbands if r["below_fermi"]),
         "subbands": subbands,
         "channel": channel_figures(result),
         "channels": channel_rows(result),
@@ -215,27 +226,15 @@ def to_json(figures: dict) -> str:
 # --------------------------------------------------------------------------- formatting
 
 def sci(value, digits=3) -> str:
-    """4.12e+11 -> '4.12e11'; 0 -> '0'; None -> '–'."""
-    if value is None:
-        return "–"
-    v = float(value)
-    if v == 0.0:
-        return "0"
-    if not math.isfinite(v):
-        return str(v)
-    mant, exp = f"{v:.{digits - 1}e}".split("e")
-    return f"{mant}e{int(exp)}"
-
-
-def _num(value, fmt) -> str:
-    return "–" if value is None or (isinstance(value, float) and not math.isfinite(value)) else format(value, fmt)
+    """A sheet density in cm^-2 by the one rule of selfcon.output.numbers (below 1e3 -> '0')."""
+    return fmt(value, "sheet")
 
 
 def _status_line(fig) -> str:
     wall = fig.get("wall_time_s")
-    wall_s = f", {wall:.2f} s" if isinstance(wall, (int, float)) else ""
+    wall_s = f", {fmt(wall, 's')} s" if isinstance(wall, (int, float)) else ""
     state = "converged" if fig["converged"] else "NOT converged"
-    return (f"{state}: {fig['iterations']} iterations, final residual {sci(fig['residual_V'])} V"
+    return (f"{state}: {fig['iterations']} iterations, final residual {fmt(fig['residual_V'], 'residual')} V"
             f"{wall_s}")
 
 
@@ -251,25 +250,32 @@ def _channel_line(fig) -> str | None:
     if ch["carrier"] == "electron":
         v = ch.get("ef_minus_ec_meV")
         head = f"main channel '{name}' {where}: n_s = {sci(ch['sheet_density_cm2'])} cm-2"
-        edge = f", E_F - Ec,min = {v:+.1f} meV" if v is not None else ""
+        edge = f", E_F - Ec,min = {fmt(v, 'meV', sign=True)} meV" if v is not None else ""
     else:
         v = ch.get("ev_minus_ef_meV")
         head = f"main channel '{name}' {where} (holes): p_s = {sci(ch['sheet_density_cm2'])} cm-2"
-        edge = f", Ev,max - E_F = {v:+.1f} meV" if v is not None else ""
+        edge = f", Ev,max - E_F = {fmt(v, 'meV', sign=True)} meV" if v is not None else ""
     sub = ""
     if ch.get("ground_energy_meV") is not None:
-        sub = f", E0 - E_F = {ch['ground_energy_meV']:+.1f} meV"
+        sub = f", E0 - E_F = {fmt(ch['ground_energy_meV'], 'meV', sign=True)} meV"
         if ch.get("spacing_meV") is not None:
-            sub += f", E1 - E0 = {ch['spacing_meV']:.1f} meV"
+            sub += f", E1 - E0 = {fmt(ch['spacing_meV'], 'meV')} meV"
     return " ".join((head + edge + sub).split())
 
 
+def occupied_text(fig) -> str:
+    """``2 occupied subbands (1 below E_F)``: the one "occupied" rule of selfcon.output.channels
+    (>= 1 % of its channel and >= 1e8 cm-2) and how many levels lie below the Fermi level."""
+    n, below = fig["occupied_subbands"], fig.get("below_fermi_subbands", 0)
+    return f"{n} occupied subband{'' if n == 1 else 's'} ({below} below E_F)"
+
+
 def plain_summary(fig) -> list[str]:
-    """A few plain lines (for --quiet): status, total densities, channel, warnings."""
-    lines = [_status_line(fig),
-             f"total sheet density: electrons {sci(fig['total']['electron_sheet_density_cm2'])} cm-2, "
-             f"holes {sci(fig['total']['hole_sheet_density_cm2'])} cm-2, "
-             f"{fig['occupied_subbands']} occupied subband(s)"]
+    """A few plain lines (for --quiet): heading, status, total densities, channel, warnings."""
+    lines = list(fig.get("heading") or [fig["title"]])
+    lines += [_status_line(fig),
+              f"total sheet density: electrons {sci(fig['total']['electron_sheet_density_cm2'])} cm-2, "
+              f"holes {sci(fig['total']['hole_sheet_density_cm2'])} cm-2, {occupied_text(fig)}"]
     ch = _channel_line(fig)
     if ch:
         lines.append(ch)
@@ -284,7 +290,10 @@ def print_summary(fig, console) -> None:
     from rich.table import Table
     from rich.text import Text
 
-    console.print(Text(fig["title"], style="bold"))
+    head = list(fig.get("heading") or [fig["title"]])
+    console.print(Text(head[0], style="bold"))
+    for line in head[1:]:
+        console.print(line)
     console.print(Text(_status_line(fig), style="green" if fig["converged"] else "bold red"))
     if not fig["converged"] and fig.get("message"):
         console.print(Text(fig["message"], style="red"))
@@ -316,9 +325,9 @@ def print_summary(fig, console) -> None:
         c.add_column("m∥ (m0)", justify="right")
         for r in fig["channels"]:
             c.add_row(r["name"] + (" *" if r["main"] else ""), r["carrier"],
-                      f"{r['top_nm']:.1f}–{r['bottom_nm']:.1f}", sci(r["sheet_density_cm2"]),
-                      _num(r["ground_energy_meV"], "+.1f"), _num(r["spacing_meV"], ".1f"),
-                      str(r["occupied_subbands"]), _num(r["in_plane_mass_m0"], ".4g"),
+                      f"{fmt(r['top_nm'], 'nm')}–{fmt(r['bottom_nm'], 'nm')}", sci(r["sheet_density_cm2"]),
+                      fmt(r["ground_energy_meV"], "meV", sign=True), fmt(r["spacing_meV"], "meV"),
+                      str(r["occupied_subbands"]), fmt(r["in_plane_mass_m0"], "mass"),
                       style="bold" if r["main"] else None)
         console.print(c)
 
@@ -335,10 +344,12 @@ def print_summary(fig, console) -> None:
         if not rows:
             s.add_row("–", BAND_LABELS[band], "none bound", "", "", "")
         for r in rows:
-            s.add_row(state_label(band, r["index"]), BAND_LABELS[band], f"{r['energy_meV']:+.2f}",
-                      sci(r["occupation_cm2"]), r.get("channel") or "–", f"{r['in_plane_mass_m0']:.4g}",
+            s.add_row(state_label(band, r["index"]), BAND_LABELS[band], fmt(r["energy_meV"], "meV", sign=True),
+                      sci(r["occupation_cm2"]), r.get("channel") or "–", fmt(r["in_plane_mass_m0"], "mass"),
                       style="bold" if r["occupied"] else None)
     console.print(s)
+    console.print(f"{occupied_text(fig)}; occupied: at least {OCCUPIED_FRACTION:.0%} of its channel's "
+                  f"carriers and at least {OCCUPIED_CM2:.0e} cm-2".replace("e+0", "e"))
 
     if fig.get("transitions"):
         t = Table(title="Interband transitions (overlap ≥ 0.001; all pairs in /transitions)",
@@ -348,7 +359,8 @@ def print_summary(fig, console) -> None:
         t.add_column("wavelength (nm)", justify="right")
         t.add_column("overlap |⟨e|h⟩|²", justify="right")
         for r in fig["transitions"]:
-            t.add_row(r["label"], f"{r['energy_eV']:.4f}", _num(r["wavelength_nm"], ".1f"), f"{r['overlap']:.3f}")
+            t.add_row(r["label"], fmt(r["energy_eV"], "eV"), fmt(r["wavelength_nm"], "nm"),
+                      fmt(r["overlap"], "fraction"))
         console.print(t)
     line = _channel_line(fig)
     if line:

@@ -1,0 +1,143 @@
+"""What a designer reads: the one number formatter, headings that state the run, the
+command line's help and ``-q`` (README.md, "Numbers in the output" and "Command line")."""
+import argparse
+import json
+import re
+
+import pytest
+
+from selfcon.output.numbers import SHEET_FLOOR_CM2, fmt, quantity_of
+
+
+@pytest.mark.parametrize("value, quantity, expected", [
+    (4.9412e11, "sheet", "4.94e11"),           # 3 significant digits (README, "Numbers in the output")
+    (1.1e-138, "sheet", "0"),                  # below the 1e3 cm^-2 floor: noise, shown as 0
+    (999.0, "sheet", "0"),                     # just below the floor
+    (1000.0, "sheet", "1.00e3"),               # the floor itself is shown
+    (0.1, "volume", "0"),                      # below 1 cm^-3
+    (-17.84, "meV", "-17.8"),                  # one decimal in meV
+    (0.100706, "nm", "0.101"),                 # 3 significant digits in nm (issue's mesh line)
+    (9.77861, "nm", "9.78"),
+    (3.17e-7, "residual", "3.2e-7"),           # 2 significant digits
+    (-0.852, "V", "-0.852"),                   # three decimals in V
+    (None, "sheet", "–"), (float("nan"), "meV", "–"),
+])
+def test_formatter_rules(value, quantity, expected):
+    # expected strings: the rules stated in selfcon/output/numbers.py, worked by hand
+    assert fmt(value, quantity) == expected
+
+
+def test_sign_and_rounded_zero():
+    assert fmt(8.06, "meV", sign=True) == "+8.1"                  # by hand
+    assert fmt(-0.04, "meV", sign=True) == "+0.0"                 # rounds to zero: no "-0.0"
+
+
+@pytest.mark.parametrize("name, quantity", [
+    ("channel_density_cm2", "sheet"), ("E0_minus_EF_eV", "eV"), ("ground_energy_meV", "meV"),
+    ("threshold_V", "V"), ("centroid_nm", "nm"), ("donors_cm3", "volume"), ("title", "plain")])
+def test_quantity_from_the_unit_suffix(name, quantity):
+    assert quantity_of(name) == quantity                          # the SUFFIXES table
+
+
+def _numbers(text):
+    return [float(m) for m in re.findall(r"(?<![\w.])[-+]?\d+(?:\.\d+)?(?:e[-+]?\d+)(?![\w.])", text)]
+
+
+def test_quiet_summary_has_no_number_below_meaning(hemt4_result, tmp_path, run_cli):
+    """No sheet density below the floor in any printed line (the issue saw 1.03e-38 cm-2)."""
+    path = tmp_path / "r.h5"
+    hemt4_result.save(path)
+    for argv in (("show", path, "-q"), ("show", path)):
+        code, out, _ = run_cli(*argv)
+        assert code == 0
+        tiny = [v for v in _numbers(out) if 0 < abs(v) < SHEET_FLOOR_CM2]
+        # the residual (V) is the one small number allowed: 'final residual X V'
+        residual = float(re.search(r"final residual (\S+) V", out).group(1))
+        assert all(v == residual for v in tiny), tiny
+
+
+def test_occupied_rule_and_below_fermi(hemt4_result, tmp_path, run_cli):
+    from selfcon.output.report import summary_figures
+    fig = summary_figures(hemt4_result)
+    # hemt_4K: one subband below E_F (E0 = -17.8 meV) and E1 (+2.8 meV, 2.5e6 cm^-2) under the 1e8 floor
+    assert fig["below_fermi_subbands"] == 1
+    assert fig["occupied_subbands"] == 1
+    path = tmp_path / "r.h5"
+    hemt4_result.save(path)
+    out = run_cli("show", path, "-q").out
+    assert "1 occupied subband (1 below E_F)" in out
+
+
+def test_heading_names_every_override(tmp_path, run_cli, inputs_dir):
+    out_h5 = tmp_path / "r.h5"
+    code, out, _ = run_cli("run", inputs_dir / "hemt_4K.toml", "-o", out_h5, "-q",
+                           "--set", "temperature=77", "--set", "layer.spacer.thickness=15",
+                           "--set", "surface.bias=-0.1")
+    assert code == 0
+    lines = out.splitlines()
+    # the deck's title says "20 nm spacer, 4 K": it is shown as the deck's, followed by what changed
+    assert lines[0].startswith("deck title: ") and "4 K" in lines[0]
+    assert lines[1] == "T = 77 K, gate bias -0.100 V"
+    assert lines[2] == ("set: temperature = 77 K (deck: 4); spacer.thickness = 15 nm (deck: 20); "
+                        "surface.bias = -0.1 V (deck: 0)")
+    # the same heading from the file, and in the JSON
+    assert run_cli("show", out_h5, "-q").out.splitlines()[:3] == lines[:3]
+    fig = json.loads(run_cli("show", out_h5, "--json").out)
+    assert fig["heading"] == lines[:3] and len(fig["overrides"]) == 3
+
+
+def test_heading_without_overrides(hemt4_result):
+    from selfcon.output.heading import heading_lines
+    assert heading_lines(hemt4_result) == [hemt4_result.title, "T = 4 K, gate bias 0 V"]   # the deck
+
+
+def test_figure_title_states_the_run(tmp_path, run_cli, inputs_dir):
+    from matplotlib.figure import Figure
+
+    import selfcon
+    from selfcon.output.plot import draw_band_diagram
+    deck = selfcon.load_deck(inputs_dir / "hemt_4K.toml", overrides=["temperature=77"])
+    r = selfcon.solve(deck)
+    fig = Figure(figsize=(12, 9), dpi=100, layout="constrained")
+    draw_band_diagram(fig, r)
+    title = fig._suptitle.get_text()
+    assert title.startswith("deck title: ")
+    assert "T = 77 K" in title and "set: temperature = 77 K (deck: 4)" in title
+    assert "4 K" not in title.split("\n", 1)[1]          # only the deck's own title says 4 K
+
+
+def _parsers():
+    from selfcon.cli import _all_parsers, build_parser
+    return _all_parsers(build_parser())
+
+
+def test_every_option_and_positional_has_help():
+    missing = [f"{p.prog} {a.option_strings or a.dest}" for p in _parsers() for a in p._actions
+               if not a.help]
+    assert missing == []
+
+
+def test_every_command_takes_short_quiet():
+    commands = [p for p in _parsers()
+                if not any(isinstance(a, argparse._SubParsersAction) for a in p._actions)]
+    assert len(commands) >= 10
+    for p in commands:
+        action = p._option_string_actions.get("-q")
+        assert action is not None and "--quiet" in action.option_strings, p.prog
+
+
+def test_study_table_drops_duplicates_constants_and_warning_counts():
+    import numpy as np
+
+    from selfcon.design.tolerance import summarize_table
+    t = np.array([18.0, 19.0, 20.0, 21.0, 22.0])
+    e0 = -0.01 + 0.001 * (t - 20)                                   # analytic, a linear table
+    q = {"E0_eV": e0, "electron_E0_eV": e0.copy(), "E0_minus_EF_eV": e0.copy(),   # one figure, three names
+         "hole_sheet_density_cm2": np.full(5, 1e-294),             # no spread
+         "warnings": np.array([0, 1, 0, 1, 1.0]),                  # a count of warnings
+         "channel_density_cm2": 3e11 - 1e10 * (t - 20)}
+    s = summarize_table(["layer.spacer.thickness"], q, {"layer.spacer.thickness": t})
+    assert s.table_quantities() == ["E0_eV", "channel_density_cm2"]
+    text = "\n".join(s.lines())
+    assert "1.2586e-294" not in text and "e-294" not in text
+    assert "3.00e11" in text                                       # the sheet-density rule: 3 digits
