@@ -2,7 +2,7 @@
 
     python tools/bench.py [NAMES...] [--json PATH] [--strict]
 
-NAMES (default: all but compare): floor scaling mesh iterations startup batch coordinator compare
+NAMES (default: all but compare): floor scaling mesh iterations xc startup batch coordinator compare
 
   floor       warm solve time of each example deck (hemt_4K, hemt_300K, the strained
               pHEMT phemt_double_delta and the nitride HEMT algan_aln_gan_hemt) / kernel
@@ -19,6 +19,10 @@ NAMES (default: all but compare): floor scaling mesh iterations startup batch co
               factor from a small scan) on the two HEMT decks and the nitride HEMT;
               targets PC <= 15 iterations,
               linear/PC >= 5.
+  xc          Hartree vs local-density exchange-correlation (physics.exchange_correlation =
+              "lda") on the two HEMT decks and the nitride HEMT: LDA iterations (target
+              <= 15; the predictor's Jacobian has no dV_xc/dn), LDA warm solve / kernel
+              floor (target <= 2.5), E1-E0 LDA/Hartree.
   startup     new-process wall time of `import selfcon` and of `selfcon run` with the numba
               cache warm and cold; targets 0.5 s and 1.5 s (warm).
   batch       runs tools/bench_batch.py if it exists.
@@ -117,56 +121,65 @@ def fit_exponent(nodes, times):
 
 # --------------------------------------------------------------------------- floor
 
-def bench_floor():
+def floor_per_iteration(d, r):
+    """(eigensolve time, Newton-step time) in s of one iteration of the converged solve ``r``
+    of deck ``d``: one eigensolve of every band and region the loop treats quantum-mechanically
+    with the converged number of states, and one Newton step of the Poisson kernel (one
+    Jacobian assembly with the same charge model and one tridiagonal solve)."""
     import selfcon
     from selfcon.solver import schrodinger as quantum, steps
     from selfcon.solver.kernels import poisson as KP
     from selfcon.solver.kernels.bundles import NewtonOptions
+    st = selfcon.build_structure(d)
+    ws = steps.Workspace(st, steps.boundary_conditions(st))
+    phi = np.asarray(r.profile["potential"], float)
+    # the converged number of states per band (the loop's adaptive count)
+    n_states = {b: st.states for b in steps.BAND_SPECS}
+    for b, sb in r.subbands.items():
+        n_states[b] = max(int(np.max(np.bincount(sb.region))), 1)
+    ws.n_states = dict(n_states)
+    states = steps.solve_states(ws, phi)
+    # one eigensolve of every band/region that the loop treats quantum-mechanically
+    t_eig = 0.0
+    for band, bs in states.items():
+        edge_key, mass_key, _, sign, _ = steps.BAND_SPECS[band]
+        edge = st.node_average(st.cell[edge_key]) - phi
+        for r_idx in np.unique(bs.region):
+            i0, i1 = st.regions[int(r_idx)]
+            sl = slice(i0, i1 + 1)
+            part = st.mesh.part(i0, i1)
+            args = (part.h, part.w, sign * edge[sl], 1.0 / st.cell[mass_key][i0:i1],
+                    int(np.sum(bs.region == r_idx)))
+            ews = quantum.EigenWorkspace(i1 - i0 + 1)   # not `ws`: the loop workspace is used below
+            quantum.solve_region(*args, workspace=ews)
+            t, _ = best_time(lambda: quantum.solve_region(*args, workspace=ews), 5)
+            t_eig += t
+    # one Newton step: poisson_newton(max_iter=1) minus its initial assembly (max_iter=0)
+    prob = ws.problem(phi, states, shift=1.0)
+    margs = prob.kernel_args()
+    bounds = prob.boundaries()
+    hist = np.zeros(4)
+    run = lambda k: KP.poisson_newton(phi, *margs, bounds,  # noqa: E731
+                                      NewtonOptions(np.inf, k, 0.3, True), hist)
+    run(1)
+    t1, _ = best_time(lambda: run(1), 20)
+    t0, _ = best_time(lambda: run(0), 20)
+    return t_eig, max(t1 - t0, 0.0)
+
+
+def bench_floor():
+    import selfcon
     for case, path in FLOOR_DECKS.items():
         name = case
         d = deck(path)
         selfcon.solve(d)                                   # warm (JIT cache, imports)
         t_solve, r = solve_timed(d, repeat=10)     # best of 10, like the floor parts (5 and 20)
         check(r.converged, f"floor {name}: converged")
-        st = selfcon.build_structure(d)
-        ws = steps.Workspace(st, steps.boundary_conditions(st))
-        phi = np.asarray(r.profile["potential"], float)
-        # the converged number of states per band (the loop's adaptive count)
-        n_states = {b: st.states for b in steps.BAND_SPECS}
-        for b, sb in r.subbands.items():
-            n_states[b] = max(int(np.max(np.bincount(sb.region))), 1)
-        ws.n_states = dict(n_states)
-        states = steps.solve_states(ws, phi)
-        # one eigensolve of every band/region that the loop treats quantum-mechanically
-        t_eig = 0.0
-        for band, bs in states.items():
-            edge_key, mass_key, _, sign, _ = steps.BAND_SPECS[band]
-            edge = st.node_average(st.cell[edge_key]) - phi
-            for r_idx in np.unique(bs.region):
-                i0, i1 = st.regions[int(r_idx)]
-                sl = slice(i0, i1 + 1)
-                part = st.mesh.part(i0, i1)
-                args = (part.h, part.w, sign * edge[sl], 1.0 / st.cell[mass_key][i0:i1],
-                        int(np.sum(bs.region == r_idx)))
-                ews = quantum.EigenWorkspace(i1 - i0 + 1)   # not `ws`: the loop workspace is used below
-                quantum.solve_region(*args, workspace=ews)
-                t, _ = best_time(lambda: quantum.solve_region(*args, workspace=ews), 5)
-                t_eig += t
-        # one Newton step: poisson_newton(max_iter=1) minus its initial assembly (max_iter=0)
-        prob = ws.problem(phi, states, shift=1.0)
-        margs = prob.kernel_args()
-        bounds = prob.boundaries()
-        hist = np.zeros(4)
-        run = lambda k: KP.poisson_newton(phi, *margs, bounds,  # noqa: E731
-                                          NewtonOptions(np.inf, k, 0.3, True), hist)
-        run(1)
-        t1, _ = best_time(lambda: run(1), 20)
-        t0, _ = best_time(lambda: run(0), 20)
-        t_newton = max(t1 - t0, 0.0)
+        t_eig, t_newton = floor_per_iteration(d, r)
         floor = r.iterations * (t_eig + t_newton)
         ratio = t_solve / floor
         row("floor", case, "warm solve", t_solve * 1e3, "ms",
-            note=f"{r.iterations} it, {st.n_nodes} nodes, states "
+            note=f"{r.iterations} it, {r.summary['nodes']} nodes, states "
                  + ",".join(f"{b[:2]}{v.energy.size}" for b, v in r.subbands.items()))
         row("floor", case, "eigensolves / it", t_eig * 1e3, "ms")
         row("floor", case, "Newton step", t_newton * 1e3, "ms")
@@ -175,6 +188,36 @@ def bench_floor():
         # Gauss's law holds to the loop's own charge criterion (tests/test_shipped_inputs.py)
         gauss_tol = max(d.solver.charge_tolerance, 10 * d.solver.tolerance)
         check(r.summary["gauss_residual"] < gauss_tol, f"floor {name}: Gauss residual {r.summary['gauss_residual']:.1e}")
+
+
+# --------------------------------------------------------------------------- exchange-correlation
+
+def bench_xc():
+    """Hartree vs local-density exchange-correlation on the HEMT decks: iterations (the
+    predictor's Poisson Jacobian carries no dV_xc/dn; target <= 15 with LDA) and the warm
+    LDA solve against the kernel floor (target <= 2.5x)."""
+    import selfcon
+    for name in ("4K", "300K", "nitride"):
+        out = {}
+        for xc in ("none", "lda"):
+            d = deck(name, f'physics.exchange_correlation="{xc}"')
+            selfcon.solve(d)                               # warm
+            t, r = solve_timed(d, repeat=10)
+            check(r.converged, f"xc {name} {xc}: converged ({r.message})")
+            out[xc] = (d, r, t)
+        (_, hr, ht), (d, r, t) = out["none"], out["lda"]
+        row("xc", f"hemt_{name}", "LDA iterations", r.iterations, "it", "<= 15", r.iterations <= 15,
+            note=f"Hartree {hr.iterations} it")
+        per_it = sum(floor_per_iteration(d, r))
+        ratio = t / (r.iterations * per_it)
+        row("xc", f"hemt_{name}", "LDA solve / floor", ratio, "x", "<= 2.5", ratio <= 2.5,
+            note=f"LDA {t * 1e3:.0f} ms; Hartree {ht * 1e3:.0f} ms = "
+                 f"{ht / (hr.iterations * per_it):.2f}x the same floor")
+        e_h, e_x = hr.summary["E1_minus_E0_eV"], r.summary["E1_minus_E0_eV"]
+        row("xc", f"hemt_{name}", "E1-E0 LDA/Hartree", e_x / e_h, "x",
+            note=f"{e_h * 1e3:.2f} -> {e_x * 1e3:.2f} meV, n_s {ns(hr):.3e} -> {ns(r):.3e} cm^-2")
+        # exchange-correlation attracts the electrons: the spacing and n_s grow (never shrink)
+        check(e_x > e_h and ns(r) >= ns(hr), f"xc {name}: LDA raises E1-E0 and n_s")
 
 
 # --------------------------------------------------------------------------- scaling
@@ -560,9 +603,10 @@ def bench_compare(base="main", rounds=7, repeat=15):
 
 # --------------------------------------------------------------------------- main
 
-BENCHES = ("floor", "scaling", "mesh", "iterations", "startup", "batch", "coordinator", "compare")
+BENCHES = ("floor", "scaling", "mesh", "iterations", "xc", "startup", "batch", "coordinator",
+           "compare")
 #: run when no name is given (compare needs a base commit and a few minutes: by name only)
-DEFAULT_BENCHES = ("floor", "scaling", "mesh", "iterations", "startup", "batch", "coordinator")
+DEFAULT_BENCHES = ("floor", "scaling", "mesh", "iterations", "xc", "startup", "batch", "coordinator")
 
 
 def machine():
@@ -627,6 +671,8 @@ def main(argv=None):
             bench_mesh()
         elif n == "iterations":
             bench_iterations(a.quick)
+        elif n == "xc":
+            bench_xc()
         elif n == "startup":
             bench_startup()
         elif n == "batch":

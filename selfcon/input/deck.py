@@ -299,6 +299,13 @@ _PHYSICS = {
     "polarization": KeySpec("number", "-", 1.0, "factor on the spontaneous and piezoelectric "
                             "polarization of wurtzite layers (0 switches the interface sheets "
                             "off)", lo=0.0),
+    "exchange_correlation": KeySpec(
+        "string", "-", "none", "none (Hartree) | lda (local-density exchange-correlation "
+        "potential in each carrier's Schrödinger equation, Hedin-Lundqvist 1971 as used by "
+        "Stern and Das Sarma 1984) | lda-gl (the Gunnarsson-Lundqvist 1976 parametrization)",
+        choices=EXCHANGE_CORRELATION),
+    "nonparabolicity": KeySpec("boolean", "-", False, "energy-dependent Gamma electron mass "
+                               "(not implemented in this version: only false is accepted)"),
 }
 _QUANTUM = {
     "regions": KeySpec("regions", "nm", None, "quantum regions [[top, bottom], ...], sorted, "
@@ -1483,8 +1490,14 @@ def _physics(ctx, t):
     contacted = ctx.get(t, "contacted_carrier", _PHYSICS["contacted_carrier"], p)
     polarity = ctx.get(t, "polarity", _PHYSICS["polarity"], p)
     polarization = ctx.get(t, "polarization", _PHYSICS["polarization"], p)
+    xc = ctx.get(t, "exchange_correlation", _PHYSICS["exchange_correlation"], p)
+    nonparabolic = ctx.get(t, "nonparabolicity", _PHYSICS["nonparabolicity"], p)
+    if nonparabolic:
+        raise ctx.error("physics.nonparabolicity", "true is not implemented in this version",
+                        allowed=(False,))
     return Physics(carriers=carriers, ionization=ionization, contacted_carrier=contacted,
-                   polarity=polarity, polarization=float(polarization))
+                   polarity=polarity, polarization=float(polarization), exchange_correlation=xc,
+                   nonparabolicity=bool(nonparabolic))
 
 
 def _quantum(ctx, t, total):

@@ -165,6 +165,10 @@ def build_result(deck, st, loop, *, wall_time: float) -> Result:
         "polarization": right_cell_values(st.cell["polarization"]),
         "bound_charge": st.fixed_charge * CM3_PER_NM3,
     }
+    if st.exchange_correlation != "none":       # the V_xc the final states saw (selfcon.solver.exchange)
+        profile["exchange_correlation"] = np.array(ws.vxc.get("electron", np.zeros(st.n_nodes)))
+        if "heavy_hole" in ws.vxc:
+            profile["exchange_correlation_hole"] = np.array(ws.vxc["heavy_hole"])
     for key in schema.MATERIAL_PROFILES:        # material parameters the schema asks to report
         profile[key] = right_cell_values(st.cell[key])
 

@@ -242,6 +242,14 @@ _r("profile/x_electron_density", "cm-3", "X-valley electron density",
 _r("profile/l_electron_density", "cm-3", "L-valley electron density",
    "L-valley electrons (classical; part of electron_density)", dims=("z",),
    when="physics.carriers has l_electron")
+_r("profile/exchange_correlation", "eV", "electron exchange-correlation potential",
+   "local-density exchange-correlation potential energy V_xc (<= 0) of the Gamma electrons, added to "
+   "conduction_band in their Schrodinger equation only (Poisson keeps the Hartree potential); "
+   "selfcon/solver/exchange.py", dims=("z",), when="physics.exchange_correlation is not none")
+_r("profile/exchange_correlation_hole", "eV", "heavy-hole exchange-correlation potential",
+   "local-density exchange-correlation potential energy V_xc (<= 0) of the heavy holes on their own energy "
+   "scale: the edge their Schrodinger equation sees is heavy_hole_band - V_xc", dims=("z",),
+   when="physics.exchange_correlation is not none and physics.carriers has heavy_hole")
 _r("profile/polarization", "C/m^2", "polarization along z",
    "polarization P_z along +z (into the wafer) of the cell to the right of each node: spontaneous plus "
    "piezoelectric, wurtzite layers only (0 in zincblende stacks)", dims=("z",))

@@ -26,7 +26,7 @@ import numpy as np
 from selfcon.model.structure import Structure
 from selfcon.solver.control import Control, Status
 from selfcon.solver.steps import (Workspace, charge_residual, initial_guess, poisson_pass,
-                                  solve_states)
+                                  solve_states, update_exchange)
 
 
 @dataclass(frozen=True)
@@ -79,11 +79,14 @@ def run_loop(st: Structure, bc, mixer, *, phi0=None, tol=1e-6, charge_tol=1e-6, 
     states, states_phi = {}, None
     while control.running:
         started = time.perf_counter()
+        xc_change = update_exchange(ws, phi, states, states_phi)   # 0 for a Hartree solve
         states, states_phi = solve_states(ws, phi), phi
         phi_out, newton_steps = poisson_pass(ws, phi, states, predictor=mixer.predictor,
                                              **control.poisson_settings())
         r = phi_out - phi
         res = float(np.max(np.abs(r))) if r.size else 0.0
+        if xc_change > res and len(control.history) > 0:
+            res = xc_change          # exchange-correlation still moving: not converged yet
         cres = charge_residual(ws, phi, phi_out, states) if control.needs_charge_check(res) else float("nan")
         record = IterationRecord(len(control.history) + 1, res, cres, newton_steps, mixer.factor,
                                  time.perf_counter() - started, control.tol, control.max_iter)

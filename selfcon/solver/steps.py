@@ -107,6 +107,9 @@ class Workspace:
         self.eigen: dict = {}            # (band, region) -> EigenWorkspace
         self._last = None                # (phi, states, (n, p, nd+, na-))
         self._classical = None           # (phi, Densities) with every carrier classical
+        #: band -> (N,) eV exchange-correlation potential energy on the band's kinetic scale
+        #: (selfcon.solver.exchange; set by update_exchange, empty for a Hartree solve)
+        self.vxc: dict = {}
         m = structure.mesh
         fixed = (np.sum((structure.cell["donors"] + structure.cell["acceptors"]) * m.h)
                  + np.sum(structure.sheet_donors + structure.sheet_acceptors)
@@ -369,7 +372,8 @@ def solve_states(ws: Workspace, phi) -> dict:
                 eig = ws.eigen[key] = schrodinger.EigenWorkspace(i1 - i0 + 1)
             k = ws.n_states[band]
             while True:
-                e, psi = region_eigenstates(st, phi, band, r_idx, k, workspace=eig)
+                e, psi = region_eigenstates(st, phi, band, r_idx, k, workspace=eig,
+                                            vxc=ws.vxc.get(band))
                 occ = subband_density(e, np.ones(e.size), st.temperature, sign, fermi)
                 if (e.size < k or k >= MAX_STATES or occ.sum() <= 0
                         or occ[-1] < TOP_STATE_FRACTION * occ.sum()):
@@ -396,8 +400,57 @@ def solve_states(ws: Workspace, phi) -> dict:
     return out
 
 
+def subband_profile(st: Structure, bs: BandStates, shift) -> np.ndarray:
+    """(N,) nm^-3: the density of one band's subbands with every level moved by the local
+    potential change ``shift`` (V), E_k - shift(z) (the predictor's density, Trellakis et al.
+    1997); zero where the band is classical."""
+    fermi = st.fermi_levels[0 if bs.sign > 0 else 1]
+    kT = st.kT
+    x = bs.sign * (fermi - bs.energy[None, :] + np.asarray(shift)[:, None]) / kT
+    occ = kT * np.logaddexp(0.0, x) * bs.dos[None, :]          # (N, k) nm^-2 per state
+    return np.where(bs.quantum_nodes, np.sum(bs.weight * occ, axis=1), 0.0)
+
+
+def update_exchange(ws: Workspace, phi, states=None, states_phi=None) -> float:
+    """Set ``ws.vxc`` (the exchange-correlation potential of every quantum band,
+    selfcon.solver.exchange) from the carrier densities at ``phi``; returns its largest
+    change in eV (inf the first time).  Nothing to do for a Hartree solve (returns 0).
+
+    The density is the predictor density (:func:`subband_profile`): the subbands of
+    ``states`` (solved at ``states_phi``) shifted by the local potential change to ``phi``,
+    which is what the last Poisson pass made consistent with the potential; before any
+    states, the classical (Thomas–Fermi) density at ``phi``.  Electrons see the electron density, each hole band
+    the hole density, each in its own effective mass and the local permittivity."""
+    st = ws.structure
+    form = st.exchange_correlation
+    if form == "none":
+        return 0.0
+    from selfcon.solver.exchange import xc_potential
+    if states:
+        shift = np.asarray(phi) - np.asarray(states_phi)
+        n, p = np.zeros(st.n_nodes), np.zeros(st.n_nodes)
+        for bs in states.values():
+            if bs.sign > 0:
+                n += subband_profile(st, bs, shift)
+            else:
+                p += subband_profile(st, bs, shift)
+    else:
+        d = ws.classical_densities(phi)
+        n, p = d.n, d.p
+    eps = st.node_average(st.cell["eps"])
+    change = 0.0
+    for band, (_, mass_key, _, sign, _) in BAND_SPECS.items():
+        if band not in st.carriers:
+            continue
+        v = xc_potential(n if sign > 0 else p, st.node_average(st.cell[mass_key]), eps, form)
+        old = ws.vxc.get(band)
+        change = max(change, float("inf") if old is None else float(np.max(np.abs(v - old))))
+        ws.vxc[band] = v
+    return change
+
+
 def region_eigenstates(st: Structure, phi, band: str, r_idx: int, n_states: int, workspace=None,
-                       below=None):
+                       below=None, vxc=None):
     """Lowest ``n_states`` eigenstates of the z problem of ``band`` in quantum region
     ``r_idx`` at potential ``phi``.
 
@@ -405,7 +458,8 @@ def region_eigenstates(st: Structure, phi, band: str, r_idx: int, n_states: int,
     psi = 0 at both end nodes; the band edge with electrostatics is the dual-cell average
     of the cells' edges minus phi.  Returns (energy (k,) eV on the electron scale, psi
     (N, k) on the full mesh, zero outside the region), lowest kinetic energy first.
-    ``below``: only the states of kinetic energy (sign * E) below it."""
+    ``below``: only the states of kinetic energy (sign * E) below it.  ``vxc``: (N,) eV, the
+    exchange-correlation potential energy on the band's kinetic scale (Workspace.vxc)."""
     from selfcon.solver import schrodinger
     edge_key, mass_key, _, sign, _ = BAND_SPECS[band]
     i0, i1 = st.regions[r_idx]
@@ -415,7 +469,10 @@ def region_eigenstates(st: Structure, phi, band: str, r_idx: int, n_states: int,
     sl = slice(i0, i1 + 1)
     edge_node = st.node_average(st.cell[edge_key]) - phi      # band edge with electrostatics
     part = st.mesh.part(i0, i1)
-    e, p = schrodinger.solve_region(part.h, part.w, sign * edge_node[sl],      # holes: kinetic up = -Ev
+    kinetic = sign * edge_node[sl]                                 # holes: kinetic up = -Ev
+    if vxc is not None:
+        kinetic = kinetic + vxc[sl]
+    e, p = schrodinger.solve_region(part.h, part.w, kinetic,
                                     1.0 / st.cell[mass_key][i0:i1], n_states, workspace=workspace,
                                     below=below)
     full = np.zeros((n, e.size))
@@ -504,6 +561,7 @@ def gauss_residual(ws: Workspace, phi, states, rho=None) -> float:
 
 __all__ = ["BAND_SPECS", "VALLEYS", "BandStates", "Workspace", "boundary_conditions",
            "initial_guess", "start_levels", "linear_start", "interpolate_guess", "solve_states",
+           "update_exchange", "subband_profile",
            "region_states", "region_eigenstates", "in_plane_motion",
            "poisson_pass", "charge_residual", "densities", "mobile_sheets", "gauss_residual",
            "classical_problem", "valley_arrays", "with_states"]
