@@ -130,7 +130,32 @@ def test_no_import_cycles():
     assert cycles == []
 
 
-@pytest.mark.parametrize("stage", ["input", "model", "solver", "output", "design", "batch"])
+#: every subpackage (a folder with an __init__.py), stages and the folders inside them alike
+SUBPACKAGES = sorted(str(p.parent.relative_to(PACKAGE)) for p in PACKAGE.rglob("__init__.py")
+                     if p.parent != PACKAGE)
+
+
+def test_the_stages_are_subpackages():
+    assert {"input", "model", "solver", "output", "design", "batch", "solver/kernels"} <= set(SUBPACKAGES)
+
+
+@pytest.mark.parametrize("stage", SUBPACKAGES)
 def test_each_stage_says_what_it_owns(stage):
     doc = ast.get_docstring(ast.parse((PACKAGE / stage / "__init__.py").read_text()))
     assert doc and "import" in doc, f"selfcon/{stage}/__init__.py needs a docstring naming what it may import"
+
+
+def test_kernels_import_only_numpy_numba_and_constants():
+    # what selfcon/solver/kernels/__init__.py says they may import: arrays in, arrays out
+    allowed = ("numpy", "numba", "math", "typing", "__future__", "selfcon.constants", "selfcon.solver.kernels")
+    bad = []
+    for path in sorted((PACKAGE / "solver" / "kernels").glob("*.py")):
+        for node in ast.walk(ast.parse(path.read_text())):
+            if isinstance(node, ast.Import):
+                names = [a.name for a in node.names]
+            elif isinstance(node, ast.ImportFrom):
+                names = [node.module or ""]
+            else:
+                continue
+            bad += [(path.name, n) for n in names if not any(n == a or n.startswith(a + ".") for a in allowed)]
+    assert bad == []

@@ -14,7 +14,9 @@
                                  per-cell arrays (keys: OUTPUT_UNITS)
 
 Data with sources: :mod:`selfcon.input.materials.library`.  Rules (Varshni, bowing,
-deck-local materials): :mod:`selfcon.input.materials.alloys`.  Imports numpy only.
+deck-local materials): :mod:`selfcon.input.materials.alloys`.  May import: numpy, the
+foundation modules (``selfcon.errors``) and its own modules; never ``selfcon.model`` or a
+later stage.
 
 How to add a material parameter
 -------------------------------

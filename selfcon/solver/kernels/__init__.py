@@ -1,0 +1,13 @@
+"""The solver's numba kernels: arrays in, arrays out (DEVELOPERS.md, "Conventions").
+
+Owns the compiled inner loops of stage 3: the finite-volume BenDaniel–Duke eigenproblem
+(:mod:`~selfcon.solver.kernels.schrodinger`), the Fermi-Dirac integrals, subband
+occupation and dopant ionisation (:mod:`~selfcon.solver.kernels.statistics`, with the
+generated table :mod:`~selfcon.solver.kernels._fermi_table`) and the Newton solve of
+nonlinear Poisson (:mod:`~selfcon.solver.kernels.poisson`), whose arrays travel in the
+``typing.NamedTuple`` bundles of :mod:`~selfcon.solver.kernels.bundles`.  Every kernel is
+``@numba.njit(cache=True)``; importing a kernel module compiles nothing.
+
+May import: numpy, numba, ``selfcon.constants`` and each other.  No objects, no files, no
+other selfcon module: the Python glue of :mod:`selfcon.solver` calls the kernels.
+"""
