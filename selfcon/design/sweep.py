@@ -43,7 +43,7 @@ import numpy as np
 
 from selfcon.constants import CM2_PER_NM2, EPS0, NM_PER_CM, Q, Q_EPS0
 from selfcon.errors import DeckError, SelfconInputError
-from selfcon.model.mesh import Mesh
+from selfcon.model.mesh import Mesh, half_widths
 from selfcon.output.schema import SWEEP
 
 if TYPE_CHECKING:
@@ -478,10 +478,7 @@ def followed_density(result, ref: dict) -> float:
         return float(best["sheet_density"])
     z = np.asarray(result.z)
     dens = np.asarray(result.profile["electron_density" if ref["carrier"] == "electron" else "hole_density"])
-    h = np.diff(z)
-    w = np.zeros(z.size)
-    w[:-1] += 0.5 * h
-    w[1:] += 0.5 * h
+    w = half_widths(z)[3]                   # the one dual-cell rule (selfcon/model/mesh.py)
     inside = (z >= ref["top_nm"] - 1e-9) & (z <= ref["bottom_nm"] + 1e-9)
     return float(np.dot(w[inside], dens[inside])) / NM_PER_CM
 

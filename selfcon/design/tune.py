@@ -24,7 +24,6 @@ from __future__ import annotations
 
 import math
 import os
-import tomllib
 from collections.abc import Callable
 from dataclasses import dataclass, field
 from typing import TYPE_CHECKING, Any
