@@ -325,6 +325,33 @@ def test_dns_dx_against_ambacher_2000_slope():
     assert ours > 0 and ours == pytest.approx(formula, rel=0.20)
 
 
+def test_threshold_voltage_by_sweep_bias_against_ambacher_2000():
+    # the gate bias V lowers the barrier term of Ambacher et al. (2000): q phi_b -> q (phi_b - V)
+    # in n_s = sigma/q - eps0 eps_b/(d q^2) (q phi_b + E_F - dEc) (ambacher_ns above); the
+    # sweep's n_s(V), its charge-control slope and its linearly extrapolated threshold follow it
+    # (the formula's degenerate E_F does not hold near pinch-off: n_s >= 1e12 cm^-2 only)
+    from selfcon.design.sweep import sweep_bias
+    x, d = 0.3, 20.0
+    phib = 0.84 + 1.3 * x       # Ambacher et al. 2000: Ni barrier on AlGaN, (0.84 + 1.3 x) eV
+    deck = hemt(x, d, barrier=phib)
+    st = build_structure(deck)
+    sw = sweep_bias(deck, np.arange(0.0, -5.01, -1.0))
+    assert np.all(sw.converged)
+    formula = np.array([ambacher_ns(st, phib - v) if v > -4.5 else np.nan for v in sw.bias])
+    dense = formula >= 1e12
+    assert dense.sum() >= 4
+    assert sw.channel_density[dense] == pytest.approx(formula[dense], rel=0.10)
+    a = sw.analysis
+    lo, hi = a["linear_window_V"]
+    inside = (sw.bias >= lo - 1e-9) & (sw.bias <= hi + 1e-9) & dense
+    slope, intercept = np.polyfit(sw.bias[inside], formula[inside], 1)     # the formula's line
+    assert a["linear_slope_cm2_per_V"] == pytest.approx(slope, rel=0.10)
+    # 0.1 V: 4 % of the ~4.5 V swing from 0 V to the formula's threshold -intercept/slope
+    assert abs(a["threshold_extrapolated_V"] - (-intercept / slope)) < 0.1
+    # the 1e10 cm^-2 crossing lies between the last bias with a dense channel and the next one
+    assert -5.0 < a["threshold_crossing_V"] < -4.0 and sw.channel_density[-1] < 1e10
+
+
 def test_critical_barrier_thickness_ibbetson():
     # Ibbetson et al., Appl. Phys. Lett. 77, 250 (2000): Al0.34Ga0.66N on GaN, the 2DEG appears
     # at a barrier of about 3.5 nm, with the surface donor level 1.65 eV below Ec (from memory);
