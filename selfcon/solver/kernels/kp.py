@@ -1,0 +1,70 @@
+"""Numba kernels of the multiband hole eigensolve (selfcon.solver.kp): Sturm counts and
+bisection on a Hermitian band matrix.
+
+The matrix is given in upper band storage ``ab`` (u + 1, m): ``ab[u + i - j, j] = a[i, j]``
+for ``max(0, j - u) <= i <= j`` (scipy.linalg.eig_banded's ``lower=False`` layout).
+
+**Sturm count** (:func:`sturm_count`): the number of eigenvalues below x is the number of
+negative pivots of the factorisation A - x I = L D L^H (Sylvester's law of inertia; the
+band version of the count of Golub and Van Loan, Matrix Computations, section 8.4).  L is
+unit lower triangular with the band's width, so one count costs O(m u^2) and no pivoting
+is done; a zero pivot is replaced by a tiny negative one, as LAPACK's dstebz does.
+
+**Bisection** (:func:`lowest_eigenvalues`): the k lowest eigenvalues to an absolute
+tolerance, every count narrowing the brackets of all k (eigenvalues of any multiplicity
+come out once per copy).  Linear in m.
+
+Arrays in, arrays out; nothing here is compiled at import time.
+"""
+import numba
+import numpy as np
+
+
+@numba.njit(cache=True)
+def sturm_count(ab, x):
+    """Number of eigenvalues below ``x`` of the Hermitian band matrix ``ab`` (upper storage)."""
+    u = ab.shape[0] - 1
+    m = ab.shape[1]
+    lw = np.zeros((m, max(u, 1)), dtype=np.complex128)   # lw[j, i - (j - u)] = l_ji
+    d = np.zeros(m)
+    tiny = 1e-300
+    count = 0
+    for j in range(m):
+        oj = j - u
+        i0 = max(0, oj)
+        for i in range(i0, j):
+            s = np.conj(ab[u + i - j, j])                   # a_ji
+            oi = i - u
+            for k in range(max(i0, oi), i):
+                s -= lw[j, k - oj] * d[k] * np.conj(lw[i, k - oi])
+            lw[j, i - oj] = s / d[i]
+        s = ab[u, j].real - x
+        for i in range(i0, j):
+            v = lw[j, i - oj]
+            s -= (v.real * v.real + v.imag * v.imag) * d[i]
+        if s == 0.0:
+            s = -tiny
+        d[j] = s
+        if s < 0.0:
+            count += 1
+    return count
+
+
+@numba.njit(cache=True)
+def lowest_eigenvalues(ab, k, lo, hi, tol):
+    """The ``k`` lowest eigenvalues of the Hermitian band matrix ``ab`` by bisection, each to
+    ``tol``; ``lo`` must lie below the spectrum and at least k eigenvalues below ``hi``.
+    Returns (centres (k,), half widths (k,)) of the final brackets, ascending."""
+    lower = np.full(k, lo)
+    upper = np.full(k, hi)
+    for i in range(k):
+        while upper[i] - lower[i] > tol:
+            x = 0.5 * (lower[i] + upper[i])
+            c = sturm_count(ab, x)
+            for t in range(k):
+                if t < c:
+                    if x < upper[t]:
+                        upper[t] = x
+                elif x > lower[t]:
+                    lower[t] = x
+    return 0.5 * (lower + upper), 0.5 * (upper - lower)
