@@ -123,6 +123,20 @@ def _default_result_path(deck_path: Path) -> Path:
     return deck_path.with_suffix(".h5")
 
 
+def _max_nodes(args) -> float:
+    """``--max-nodes``, checked (exit 2 below 2)."""
+    if not (args.max_nodes >= 2):
+        raise SelfconInputError(f"must be >= 2, got {args.max_nodes:g}", key="--max-nodes")
+    return args.max_nodes
+
+
+def _add_max_nodes(p) -> None:
+    from selfcon.model.mesh import MAX_NODES
+    p.add_argument("--max-nodes", type=float, default=float(MAX_NODES), metavar="N",
+                   help=f"refuse a mesh of more nodes, counted before any work (default {MAX_NODES:.0e}); "
+                        "the message gives the count and the memory it would take")
+
+
 def cmd_run(args) -> int:
     from selfcon import api
     from selfcon.output import report
@@ -136,8 +150,9 @@ def cmd_run(args) -> int:
                    output(args.plot, "figure", "--plot") if args.plot else None],
                   inputs=[(deck_path, "the deck")], force=args.force, error=ResultFileError)
     deck = api.load_deck(deck_path, overrides=tuple(args.set or ()))
+    structure = api.build_structure(deck, max_nodes=_max_nodes(args))     # the mesh guard, before any work
     with SolveProgress(quiet=args.quiet) as progress:
-        result = api.solve(deck, progress=progress)
+        result = api.solve(deck, progress=progress, structure=structure)
     result.save(out, force=args.force)
     if args.plot:
         from selfcon.output.plot import plot_result
@@ -247,7 +262,7 @@ def cmd_check(args) -> int:
     deck_path = Path(args.deck)
     _require_file(deck_path, "deck file")
     deck = api.load_deck(deck_path, overrides=tuple(args.set or ()))
-    structure = api.build_structure(deck)
+    structure = api.build_structure(deck, max_nodes=_max_nodes(args))
     fig = check_figures(deck, structure)
     if args.json:
         print(json.dumps(fig, indent=2, ensure_ascii=False))
@@ -676,12 +691,14 @@ def build_parser() -> argparse.ArgumentParser:
     r.add_argument("--quiet", action="store_true", help="no progress display; a few plain summary lines")
     r.add_argument("--force", action="store_true",
                    help="overwrite an existing result file and figure (never the deck itself)")
+    _add_max_nodes(r)
     r.set_defaults(func=cmd_run)
 
     c = sub.add_parser("check", help="validate a deck and show the stack and mesh without solving")
     c.add_argument("deck", metavar="DECK", help="deck file (TOML)")
     c.add_argument("--set", action="append", metavar="PATH=VALUE", default=[], help="as for run")
     c.add_argument("--json", action="store_true", help="print the stack and mesh as JSON")
+    _add_max_nodes(c)
     c.set_defaults(func=cmd_check)
 
     s = sub.add_parser("show", help="summarise a result file")

@@ -601,12 +601,49 @@ def bench_compare(base="main", rounds=7, repeat=15):
         shutil.rmtree(tmp, ignore_errors=True)
 
 
+# --------------------------------------------------------------------------- large decks
+
+def many_layer_deck(n):
+    """A deck of ``n`` 1 nm GaAs layers (the large-deck benchmark and tests/test_bounded_input.py)."""
+    lines = ['title = "many layers"', "temperature = 300", "[surface]", 'contact = "schottky"', "barrier = 0.8"]
+    for i in range(n):
+        lines += ["[[layer]]", f'name = "l{i}"', 'material = "GaAs"', "thickness = 1.0", "donors = 1e16"]
+    return "\n".join(lines) + "\n"
+
+
+def bench_decks():
+    """Large decks: the line locator (every layer's line, fresh cache) and load + mesh + material
+    arrays of 1 000 and 10 000 layers; linear work grows 10x, the target allows 15x."""
+    from selfcon.input import deck as dk
+    from selfcon.model.structure import build_structure
+    times = {}
+    for n in (1000, 10000):
+        text = many_layer_deck(n)
+
+        def locate_all():
+            dk._line_index.cache_clear()
+            dk._locate.cache_clear()
+            return [dk._locate(text, f"layer[{i}]") for i in range(n)]
+        lines = locate_all()
+        check(lines == [6 + 5 * i for i in range(n)], f"decks: layer lines of a {n}-layer deck")
+        times[("locate", n)] = best_time(locate_all)[0]
+        d = dk.load_deck(text)
+        t0 = time.perf_counter()
+        st = build_structure(dk.load_deck(text))
+        times[("check", n)] = time.perf_counter() - t0
+        check(len(st.layers) == n and len(d.layers) == n, f"decks: {n} layers built")
+    for what, label in (("locate", "line of every layer"), ("check", "load_deck + build_structure")):
+        ratio = times[(what, 10000)] / times[(what, 1000)]
+        row("decks", f"{label}, 10 000 layers", "wall", times[(what, 10000)], "s")
+        row("decks", f"{label}, 10 000 / 1 000 layers", "ratio", ratio, "", "<= 15", ratio <= 15)
+
+
 # --------------------------------------------------------------------------- main
 
-BENCHES = ("floor", "scaling", "mesh", "iterations", "xc", "startup", "batch", "coordinator",
+BENCHES = ("floor", "scaling", "mesh", "iterations", "xc", "startup", "batch", "coordinator", "decks",
            "compare")
 #: run when no name is given (compare needs a base commit and a few minutes: by name only)
-DEFAULT_BENCHES = ("floor", "scaling", "mesh", "iterations", "xc", "startup", "batch", "coordinator")
+DEFAULT_BENCHES = ("floor", "scaling", "mesh", "iterations", "xc", "startup", "batch", "coordinator", "decks")
 
 
 def machine():
@@ -679,6 +716,8 @@ def main(argv=None):
             bench_batch(Path(a.json).parent)
         elif n == "coordinator":
             bench_coordinator(Path(a.json).parent, a.quick)
+        elif n == "decks":
+            bench_decks()
         elif n == "compare":
             bench_compare(a.base, a.rounds)
         print(f"[{n}: {time.perf_counter() - t:.1f} s]", file=sys.stderr)

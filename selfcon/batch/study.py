@@ -118,16 +118,10 @@ def _number(study_file, key, value, *, positive=False):
 
 def load_study(path) -> Study:
     """Read and check a study file (without touching the base deck)."""
+    from selfcon.input.deck import parse_input, read_input
     path = Path(path)
-    try:
-        text = path.read_text(encoding="utf-8")
-    except OSError as exc:
-        raise StudyError(f"cannot read study file ({exc.strerror})", file=str(path)) from None
-    try:
-        data = tomllib.loads(text)
-    except tomllib.TOMLDecodeError as exc:
-        raise StudyError(f"not valid TOML: {exc}", file=str(path)) from None
-    return parse_study(data, path)
+    text = read_input(path, what="study", error=StudyError)
+    return parse_study(parse_input(text, str(path), what="study", error=StudyError), path)
 
 
 def _close(word, choices):

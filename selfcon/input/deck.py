@@ -759,19 +759,7 @@ def load_deck(path_or_text, overrides=()):
     if isinstance(path_or_text, os.PathLike) or (
             isinstance(path_or_text, str) and "\n" not in path_or_text and "=" not in path_or_text):
         path = os.fspath(path_or_text)
-        try:
-            with open(path, "rb") as fh:
-                data = fh.read()
-        except FileNotFoundError:
-            raise DeckError("deck file not found", file=path) from None
-        except IsADirectoryError:
-            raise DeckError("is a directory, not a deck file", file=path) from None
-        except OSError as exc:
-            raise DeckError(f"cannot read deck: {exc.strerror or exc}", file=path) from None
-        try:
-            text = data.decode("utf-8")
-        except UnicodeDecodeError as exc:
-            raise DeckError(f"not UTF-8 text (byte {exc.start})", file=path) from None
+        text = read_input(path, what="deck")
     elif isinstance(path_or_text, str):
         path, text = None, path_or_text
     else:
@@ -811,9 +799,71 @@ def get_path(deck_data: dict, path: str):
     return node
 
 
-def _parse_toml(text, file):
+#: the largest deck or study file read, in bytes (a deck is a few kB, a 10 000-layer deck under
+#: 1 MB): a device or a wrong file given as a deck must not fill the memory
+MAX_INPUT_BYTES = 16 * 2 ** 20
+#: the deepest nesting of arrays and tables accepted in a deck or study file (a deck needs 4:
+#: the document, [quantum], regions, one [top, bottom])
+MAX_NESTING = 32
+
+
+def _size_text(n):
+    return f"{n / 2 ** 20:g} MiB"
+
+
+def read_input(path, *, what="deck", error=DeckError) -> str:
+    """The text of a deck or study file, refused (``error``, exit 2) when it is missing, not a
+    file, not UTF-8, or larger than :data:`MAX_INPUT_BYTES` (only that many bytes are ever
+    read: the zero device is refused at once)."""
     try:
-        return tomllib.loads(text)
+        with open(path, "rb") as fh:
+            data = fh.read(MAX_INPUT_BYTES + 1)
+    except FileNotFoundError:
+        raise error(f"{what} file not found", file=str(path)) from None
+    except IsADirectoryError:
+        raise error(f"is a directory, not a {what} file", file=str(path)) from None
+    except OSError as exc:
+        raise error(f"cannot read the {what} file: {exc.strerror or exc}", file=str(path)) from None
+    if len(data) > MAX_INPUT_BYTES:
+        raise error(f"larger than {_size_text(MAX_INPUT_BYTES)}: not a {what} file (a {what} is "
+                    f"a few kB of TOML text)", file=str(path))
+    try:
+        return data.decode("utf-8")
+    except UnicodeDecodeError as exc:
+        raise error(f"not UTF-8 text (byte {exc.start})", file=str(path)) from None
+
+
+def _depth(data) -> int:
+    """Nesting depth of parsed TOML (a scalar 0, a table or array of scalars 1), without recursion."""
+    deepest = 0
+    stack = [(data, 0)]
+    while stack:
+        node, d = stack.pop()
+        if isinstance(node, dict):
+            node = node.values()
+        elif not isinstance(node, list):
+            continue
+        d += 1
+        deepest = max(deepest, d)
+        if d > MAX_NESTING:
+            break
+        stack.extend((v, d) for v in node if isinstance(v, (dict, list)))
+    return deepest
+
+
+def parse_input(text, file, *, what="deck", error=DeckError) -> dict:
+    """TOML text of a deck or study -> dict, with the limits of :data:`MAX_INPUT_BYTES` and
+    :data:`MAX_NESTING` (too deep is refused, never a RecursionError); a syntax error is
+    ``error`` located at its line."""
+    if len(text) > MAX_INPUT_BYTES:
+        raise error(f"larger than {_size_text(MAX_INPUT_BYTES)}: not a {what} (a {what} is a few "
+                    "kB of TOML text)", file=file)
+    too_deep = (f"nested deeper than {MAX_NESTING} levels of arrays and tables (a {what} needs "
+                "at most 4)")
+    try:
+        data = tomllib.loads(text)
+    except RecursionError:
+        raise error(too_deep, file=file) from None
     except tomllib.TOMLDecodeError as exc:
         msg = str(exc)
         line = None
@@ -824,7 +874,14 @@ def _parse_toml(text, file):
         elif msg.endswith("(at end of document)"):
             line = text.count("\n") + (0 if text.endswith("\n") else 1) or 1
             msg = msg[:-len("(at end of document)")].rstrip() + " (at end of file)"
-        raise DeckError(_one_line(f"TOML syntax: {msg}"), file=file, line=line) from None
+        raise error(_one_line(f"TOML syntax: {msg}"), file=file, line=line) from None
+    if _depth(data) > MAX_NESTING:
+        raise error(too_deep, file=file)
+    return data
+
+
+def _parse_toml(text, file):
+    return parse_input(text, file)
 
 
 # ---------------------------------------------------------------------------
@@ -1676,43 +1733,93 @@ def _clone(obj):
     return copy.deepcopy(obj)
 
 
+_KEY_LINE = re.compile(r"^\s*([\"']?)(.*?)\1\s*=")
+_TOP_HEAD = re.compile(r"^\s*([A-Za-z0-9_-]+)\s*[.=]")
+
+
+class _LineIndex:
+    """Where every key and table header of one deck text is: built in one pass over the
+    text, so that locating all the keys of a deck of N layers costs O(N), not O(N^2).
+
+    ``header[name]`` first header line of a table (any ``[name]`` or ``[[name]]``);
+    ``prefix[name]`` first header line whose name is ``name`` or starts with ``name.``;
+    ``array[(name, k)]`` the k-th ``[[name]]`` header (0-based);
+    ``first_key[(name, key)]`` first ``key =`` line inside any section called ``name``
+    (``""``: the top level, before the first header);
+    ``array_key[(name, k, key)]`` the same inside the k-th ``[[name]]`` only;
+    ``top_dotted[head]`` first top-level line ``head.x = ...`` or ``head = {...}``."""
+
+    __slots__ = ("header", "prefix", "array", "first_key", "array_key", "top_dotted", "lines")
+
+    def __init__(self, text):
+        self.header, self.prefix, self.array = {}, {}, {}
+        self.first_key, self.array_key, self.top_dotted = {}, {}, {}
+        count = {}
+        current, k = "", None
+        n = 0
+        for n, line in enumerate(text.splitlines(), 1):
+            m = _HEADER.match(line)
+            if m and "=" not in line:
+                name = _norm(m.group(2))
+                if m.group(1) == "[[":
+                    k = count[name] = count.get(name, -1) + 1
+                    self.array.setdefault((name, k), n)
+                else:
+                    k = None
+                current = name
+                self.header.setdefault(name, n)
+                parts = name.split(".")
+                for j in range(1, len(parts) + 1):
+                    self.prefix.setdefault(".".join(parts[:j]), n)
+                continue
+            km = _KEY_LINE.match(line)
+            if km:
+                key = km.group(2)
+                self.first_key.setdefault((current, key), n)
+                if k is not None:
+                    self.array_key.setdefault((current, k, key), n)
+            if current == "":
+                tm = _TOP_HEAD.match(line)
+                if tm:
+                    self.top_dotted.setdefault(tm.group(1), n)
+        self.lines = n
+
+
+@functools.lru_cache(maxsize=16)
+def _line_index(text):
+    """The :class:`_LineIndex` of a deck text (cached: every deck of a study shares the base
+    deck's text)."""
+    return _LineIndex(text)
+
+
+def _first(*lines):
+    found = [n for n in lines if n is not None]
+    return min(found) if found else None
+
+
 @functools.lru_cache(maxsize=4096)
 def _locate(text, key):
     """1-based line of ``key`` in ``text`` (its ``key =`` line, else its table header), or None.
 
-    Cached: every deck of a study shares the base deck's text and asks for the same keys."""
+    Linear in the deck's size: one pass builds the text's :class:`_LineIndex`, then each
+    key is a few dictionary look-ups (a 10 000-layer deck locates its layers in one pass)."""
     if not text or not key:
         return None
     table, index, leaf = _split_key(key)
-    leaf_re = re.compile(r"^\s*([\"']?)" + re.escape(leaf) + r"\1\s*=") if leaf else None
-    current, count, inside, header_line = "", {}, table == "", None
-    for n, line in enumerate(text.splitlines(), 1):
-        m = _HEADER.match(line)
-        if m and "=" not in line:
-            name = _norm(m.group(2))
-            is_array = m.group(1) == "[["
-            if is_array:
-                count[name] = count.get(name, -1) + 1
-            current = name
-            inside = (name == table) and (index is None or (is_array and count[name] == index))
-            if table == "" and leaf and header_line is None and (
-                    name == leaf or name.startswith(leaf + ".")):
-                header_line = n                        # an unknown [table] at the top level
-            if inside and header_line is None and table:
-                header_line = n
-                if leaf_re is None:
-                    return n
-            elif not inside and header_line is not None and index is not None:
-                break
-            continue
-        if inside and leaf_re is not None and leaf_re.match(line):
-            return n
-        if current == "" and table and index is None:
-            # dotted keys or inline tables at the top level: surface.bias = ... / surface = {...}
-            head = re.escape(table.split(".")[0])
-            if re.match(r"^\s*" + head + r"\s*[.=]", line) and header_line is None:
-                header_line = n
-    return header_line
+    ix = _line_index(text)
+    if table == "":
+        return _first(ix.first_key.get(("", leaf))) or ix.prefix.get(leaf)
+    if index is not None:
+        if leaf is not None:
+            found = ix.array_key.get((table, index, leaf))
+            if found is not None:
+                return found
+        return ix.array.get((table, index))
+    if leaf is not None:
+        found = ix.first_key.get((table, leaf))
+        if found is not None:
+            return found
+    return _first(ix.header.get(table), ix.top_dotted.get(table.split(".")[0]))
 
 
 # ---------------------------------------------------------------------------

@@ -23,6 +23,12 @@ import numpy as np
 FINE_FRACTION = 0.25
 BULK_FACTOR = 20.0
 GROWTH = 1.2
+#: the most nodes a deck's mesh may have unless the caller (``--max-nodes``) allows more: a
+#: 10 µm stack at the default steps has a few thousand, and 2e6 already takes gigabytes
+MAX_NODES = 2_000_000
+#: memory a solve takes per mesh node, bytes: measured with tracemalloc, the peak of a solve of
+#: inputs/hemt_4K.toml is 884 B per node at 1305 nodes and 852 B at 2367 (812 B per added node)
+BYTES_PER_NODE = 900
 
 
 @dataclass(frozen=True)
@@ -99,6 +105,67 @@ def graded_steps(length: float, fine: float, cap: float, growth: float) -> np.nd
     full = np.concatenate([steps, steps[::-1]])
     full[-1] = length - full[:-1].sum()
     return full
+
+
+def graded_count(length: float, fine: float, cap: float, growth: float) -> int:
+    """The number of cells :func:`graded_steps` puts in ``length``, without building them
+    (the same arithmetic; a closed form where the geometric part would be long)."""
+    if length <= 0:
+        raise ValueError("segment length must be positive")
+    fine = min(fine, cap)
+    if length <= 2.0 * fine:
+        return 1 if length <= 1.25 * fine else 2
+    half = 0.5 * length
+    ratio = np.log(cap / fine) / np.log(growth) if cap > fine else 0.0
+    if ratio < 1e5:
+        n_grow = int(np.ceil(ratio)) + 1 if cap > fine else 1
+        csum = np.cumsum(np.minimum(fine * growth ** np.arange(n_grow), cap))
+        if csum[-1] >= half:
+            return 2 * (int(np.searchsorted(csum, half)) + 1)
+        return 2 * (n_grow + int(np.ceil((half - csum[-1]) / cap)))
+    # growth so close to 1 that the steps never reach the cap within a realistic mesh:
+    # k steps fine * (g^k - 1) / (g - 1) reach half the segment
+    g = float(growth)
+    k = np.log1p(half * (g - 1.0) / fine) / np.log(g)
+    return 2 * int(np.ceil(min(k, 1e18)))
+
+
+def count_nodes(key_points, quantum_intervals, *, step: float, fine: float | None = None,
+                bulk_step: float | None = None, growth: float | None = None) -> int:
+    """The number of nodes :func:`build_mesh` would make for these arguments, computed without
+    making them: the guard against a mesh that would not fit in memory asks first."""
+    fine = step * FINE_FRACTION if fine is None else float(fine)
+    bulk_step = max(step, step * BULK_FACTOR) if bulk_step is None else float(bulk_step)
+    growth = GROWTH if growth is None else float(growth)
+    kp = np.unique(np.asarray(key_points, dtype=float))
+    n = 1
+    for a, b in zip(kp[:-1], kp[1:]):
+        mid = 0.5 * (a + b)
+        inside = any(lo - 1e-12 <= mid <= hi + 1e-12 for lo, hi in quantum_intervals)
+        n += graded_count(b - a, fine, step if inside else bulk_step, growth)
+    return n
+
+
+def _bytes_text(n):
+    for unit, size in (("GB", 1e9), ("MB", 1e6), ("kB", 1e3)):
+        if n >= size:
+            return f"{n / size:.3g} {unit}"
+    return f"{n:.0f} B"
+
+
+def check_node_count(deck, key_points, quantum_intervals, max_nodes) -> int:
+    """The node count of ``deck``'s mesh (:func:`count_nodes`); a DeckError at ``mesh.step``
+    (exit 2) naming the count and the memory it would take when it exceeds ``max_nodes``."""
+    from selfcon.errors import DeckError
+    ms = deck.mesh
+    n = count_nodes(key_points, quantum_intervals, step=ms.step, fine=ms.fine, bulk_step=ms.bulk_step,
+                    growth=ms.growth)
+    if n > max_nodes:
+        err = deck.error if hasattr(deck, "error") else (lambda key, msg: DeckError(msg, key=key))
+        raise err("mesh.step", f"the mesh would have {n:,} nodes, about {_bytes_text(n * BYTES_PER_NODE)} "
+                  f"of memory, above the limit of {int(max_nodes):,} nodes; make mesh.step (now "
+                  f"{ms.step:g} nm) or mesh.bulk_step larger, or allow more with --max-nodes")
+    return n
 
 
 def build_mesh(key_points, quantum_intervals, *, step: float, fine: float | None = None,

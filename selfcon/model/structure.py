@@ -16,7 +16,7 @@ import numpy as np
 from selfcon.constants import CM2_PER_NM2, CM3_PER_NM3, KB_EV, NC_PER_M0_K, NM_PER_CM
 from selfcon.errors import DeckError, MaterialError
 from selfcon.model import dopants
-from selfcon.model.mesh import Mesh, build_mesh
+from selfcon.model.mesh import MAX_NODES, Mesh, build_mesh, check_node_count
 from selfcon.model.polarization import polarization_z, sheets_nm2
 from selfcon.model.strain import (X_VALLEY_SETS, LayerStrain, StrainSummary,
                                   biaxial_stress_c_plane, bulk_strained_edges, in_plane_lattice,
@@ -270,7 +270,7 @@ def _needs(carriers, ionization) -> frozenset:
     return frozenset(needs)
 
 
-def build_structure(deck: Deck, *, mesh: Mesh | None = None) -> Structure:
+def build_structure(deck: Deck, *, mesh: Mesh | None = None, max_nodes: float | None = None) -> Structure:
     """Mesh the deck's stack and fill every array from the material library.
 
     Parameters
@@ -281,6 +281,9 @@ def build_structure(deck: Deck, *, mesh: Mesh | None = None) -> Structure:
         Use this mesh instead of the deck's graded one (benchmarks compare a uniform mesh,
         :func:`selfcon.model.mesh.uniform_mesh`); it must span the stack and carry every
         interface, sheet and region end as a node.
+    max_nodes : float, optional
+        Refuse a deck whose mesh would have more nodes (default
+        :data:`selfcon.model.mesh.MAX_NODES`, 2e6): counted before any array is made.
 
     Returns
     -------
@@ -293,6 +296,9 @@ def build_structure(deck: Deck, *, mesh: Mesh | None = None) -> Structure:
     ------
     selfcon.errors.MaterialError
         A material or composition the library cannot evaluate, located at its deck key.
+    selfcon.errors.DeckError
+        A mesh above ``max_nodes`` nodes, located at ``mesh.step``, with the node count and
+        the memory it would take.
 
     Examples
     --------
@@ -344,6 +350,7 @@ def build_structure(deck: Deck, *, mesh: Mesh | None = None) -> Structure:
         key_points.update((a, min(b, total)))
     if mesh is None:
         ms = deck.mesh
+        check_node_count(deck, sorted(key_points), regions_nm, MAX_NODES if max_nodes is None else max_nodes)
         mesh = build_mesh(sorted(key_points), regions_nm, step=ms.step, fine=ms.fine,
                           bulk_step=ms.bulk_step, growth=ms.growth)
     else:
@@ -372,9 +379,10 @@ def build_structure(deck: Deck, *, mesh: Mesh | None = None) -> Structure:
     cell = {k: np.empty(n - 1) for k in MATERIAL_KEYS}
     cell["donors"] = np.zeros(n - 1)
     cell["acceptors"] = np.zeros(n - 1)
+    spans = layer_cells(cell_layer, len(layers))
     for Li in layers:
-        sel = cell_layer == Li.index
-        if not np.any(sel):
+        sel = spans[Li.index]
+        if sel.start == sel.stop:
             continue
         xc, yc, xt, xb, yt, yb = _compositions(deck, Li, zc[sel], Li.top, Li.bottom)
         if (xt, xb, yt, yb) != (Li.x_top, Li.x_bottom, Li.y_top, Li.y_bottom):
@@ -503,6 +511,15 @@ def contacted_carrier(choice: str, layers, crystal: str = "zincblende") -> str:
     return "electron" if donors > acceptors else "hole"
 
 
+def layer_cells(cell_layer, n_layers) -> list:
+    """The cells of each layer as a slice (``cell_layer`` is sorted: the layers are stacked),
+    found by bisection so that a deck of many layers costs O(N log N), not O(N^2)."""
+    idx = np.arange(n_layers)
+    lo = np.searchsorted(cell_layer, idx, side="left")
+    hi = np.searchsorted(cell_layer, idx, side="right")
+    return [slice(int(a), int(b)) for a, b in zip(lo, hi)]
+
+
 def _layer_means(layers, cell_layer, w, values):
     """Width-weighted mean of a per-cell array over each layer."""
     tot = np.bincount(cell_layer, weights=w, minlength=len(layers))
@@ -516,8 +533,9 @@ def _unstrained(layers, cell, cell_layer) -> StrainSummary:
     cell["eps_zz"] = zero.copy()
     cell["a_par"] = cell["lattice"].copy()
     per = []
+    spans = layer_cells(cell_layer, len(layers))
     for Li in layers:
-        own = cell["lattice"][cell_layer == Li.index]
+        own = cell["lattice"][spans[Li.index]]
         a = float(own[0]) if own.size else float("nan")
         per.append(LayerStrain(index=Li.index, strained=False, relaxed=Li.relaxed, eps_xx=0.0,
                                eps_zz=0.0, lattice_inplane=a, lattice_own=float(np.mean(own)) if own.size else a,
@@ -626,8 +644,9 @@ def _apply_strain(deck, layers, cell, cell_layer, T, needs, h) -> StrainSummary:
     ex_mean = _layer_means(layers, cell_layer, h, exx)
     ez_mean = _layer_means(layers, cell_layer, h, ezz)
     per = []
+    spans = layer_cells(cell_layer, len(layers))
     for Li in layers:
-        sel = cell_layer == Li.index
+        sel = spans[Li.index]
         per.append(LayerStrain(index=Li.index, strained=bool(not Li.relaxed and np.any(exx[sel] != 0.0)),
                                relaxed=Li.relaxed, eps_xx=float(ex_mean[Li.index]),
                                eps_zz=float(ez_mean[Li.index]),
