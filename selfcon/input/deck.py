@@ -140,8 +140,9 @@ _CONTACT = {
                        "boundary kind: schottky (metal; Ec - EF = barrier - bias), ohmic (local "
                        "neutrality), pinned (Fermi level pinned, Ec - EF = barrier), free (zero field)",
                        choices=CONTACT_KINDS),
-    "barrier": KeySpec("number", "eV", None, "Ec - EF at the contact; required for schottky and "
-                       "pinned, refused for ohmic and free"),
+    "barrier": KeySpec("number", "eV", None, "Ec - EF at the contact (Ec: the conduction minimum "
+                       "of the end layer, Gamma or the X/Delta or L valley where lower, as in Si "
+                       "and AlAs); required for schottky and pinned, refused for ohmic and free"),
     "bias": KeySpec("number", "V", 0.0, "voltage on a schottky gate; positive bias lowers Ec at "
                     "the contact (schottky only)"),
 }
@@ -225,7 +226,10 @@ MATERIAL_PARAMS = {
     "x_mass_trans": _p("m0", "X-valley transverse mass", **_POS),
     "l_mass_long": _p("m0", "L-valley longitudinal mass", **_POS),
     "l_mass_trans": _p("m0", "L-valley transverse mass", **_POS),
-    "donor_binding": _p("eV", "donor binding energy below Ec", **_NONNEG),
+    "x_valleys": _p("-", "number of equivalent X/Delta valleys (3 zincblende X, 6 Si/Ge Delta); "
+                    "a third of them has its axis along z", **_POS),
+    "donor_binding": _p("eV", "donor binding energy below Ec (the conduction minimum: Gamma, "
+                        "or the X/Delta or L valley where lower)", **_NONNEG),
     "acceptor_binding": _p("eV", "acceptor binding energy above Ev", **_NONNEG),
     "spin_orbit": _p("eV", "spin-orbit split-off energy", **_NONNEG),
     "x_varshni_alpha": _p("eV/K", "Varshni alpha of the X gap"),
@@ -306,6 +310,12 @@ _PHYSICS = {
         choices=EXCHANGE_CORRELATION),
     "nonparabolicity": KeySpec("boolean", "-", False, "energy-dependent Gamma electron mass "
                                "(not implemented in this version: only false is accepted)"),
+    "quantum_valleys": KeySpec(
+        "boolean", "-", False, "true: the X/Delta and L electrons that physics.carriers counts "
+        "(x_electron, l_electron) are subbands in the quantum regions, per valley set of the "
+        "(001) growth axis: x2 (the X/Delta valleys along z, mass m_l along z), x4 (those in the "
+        "plane, m_t along z) and l (the four L valleys, the mass projected on [001]); false: "
+        "classical everywhere"),
 }
 _QUANTUM = {
     "regions": KeySpec("regions", "nm", None, "quantum regions [[top, bottom], ...], sorted, "
@@ -499,6 +509,7 @@ class Physics:
     polarization: float = 1.0       # factor on the wurtzite polarization
     exchange_correlation: str = "none"
     nonparabolicity: bool = False
+    quantum_valleys: bool = False   # X/Delta and L electrons as subbands in quantum regions
 
 
 @dataclass(frozen=True)
@@ -731,6 +742,8 @@ class Deck:
             out["physics"]["exchange_correlation"] = self.physics.exchange_correlation
         if self.physics.nonparabolicity:
             out["physics"]["nonparabolicity"] = True
+        if self.physics.quantum_valleys:
+            out["physics"]["quantum_valleys"] = True
         q = {}
         if self.quantum.regions is not None:
             q["regions"] = [list(r) for r in self.quantum.regions]
@@ -1552,9 +1565,11 @@ def _physics(ctx, t):
     if nonparabolic:
         raise ctx.error("physics.nonparabolicity", "true is not implemented in this version",
                         allowed=(False,))
+    quantum_valleys = ctx.get(t, "quantum_valleys", _PHYSICS["quantum_valleys"], p)
     return Physics(carriers=carriers, ionization=ionization, contacted_carrier=contacted,
                    polarity=polarity, polarization=float(polarization), exchange_correlation=xc,
-                   nonparabolicity=bool(nonparabolic))
+                   nonparabolicity=bool(nonparabolic),
+                   quantum_valleys=bool(quantum_valleys))
 
 
 def _quantum(ctx, t, total):

@@ -29,7 +29,7 @@ if TYPE_CHECKING:
 #: per-cell arrays taken from the material library (selfcon.input.materials.cell_parameters
 #: keys; "How to add a material parameter" in selfcon/input/materials/__init__.py)
 MATERIAL_KEYS = ("eps", "ec_gamma", "ec_x", "ec_l", "ev_hh", "ev_lh", "m_e", "m_hh_z", "m_lh_z",
-                 "m_hh_par", "m_lh_par", "m_x_l", "m_x_t", "m_l_l", "m_l_t", "m_c_dos", "m_v_dos",
+                 "m_hh_par", "m_lh_par", "m_x_l", "m_x_t", "g_x", "m_l_l", "m_l_t", "m_c_dos", "m_v_dos",
                  "donor_binding", "acceptor_binding", "eg_gamma",
                  # heavy- and light-hole DOS masses (the valence DOS mass rule combines them)
                  "m_hh_dos", "m_lh_dos",
@@ -43,8 +43,8 @@ MATERIAL_KEYS = ("eps", "ec_gamma", "ec_x", "ec_l", "ev_hh", "ev_lh", "m_e", "m_
                  "da1", "da2", "dd1", "dd2", "dd3", "dd4")
 
 
-#: equivalent conduction valleys in bulk zinc-blende (common practice)
-X_VALLEYS = 3
+#: equivalent L valleys (eight half valleys at the zone-boundary L points; common practice);
+#: the X/Delta count is the material's x_valleys (cell["g_x"]: 3 zincblende X, 6 Si/Ge Delta)
 L_VALLEYS = 4
 
 
@@ -115,6 +115,9 @@ class Structure:
     exchange_correlation: str = "none"
     #: physics.nonparabolicity: energy-dependent Gamma mass (selfcon.solver.nonparabolic)
     nonparabolicity: bool = False
+    #: physics.quantum_valleys: the counted X/Delta and L electrons are subbands in the
+    #: quantum regions, per valley set (cell["ec_x2"], ["m_x2_z"], ... : valley_sets)
+    quantum_valleys: bool = False
     #: (N,) bool: sheet nodes whose donors are Si-DX in equilibrium (cell["dx"] marks the cells)
     sheet_dx: Any = None
     #: a dark cool-down applied (selfcon.solver.dx.freeze): (ionised fraction per cell (N-1,),
@@ -427,9 +430,9 @@ def build_structure(deck: Deck, *, mesh: Mesh | None = None, max_nodes: float | 
                                      cell["donor_binding"])
     cell["dx"] = (dx_cells & ~dx_lit[cell_layer]).astype(float)
     cell["nc"] = NC_PER_M0_K * (cell["m_c_dos"] * T) ** 1.5
-    # X and L valleys: 3 and 4 equivalent valleys of DOS mass (m_l m_t^2)^(1/3) each
-    # (common practice for the cubic III-V's); used only when physics.carriers asks for them
-    for v, g in (("x", X_VALLEYS), ("l", L_VALLEYS)):
+    # X/Delta and L valleys: g_x (3 zincblende X, 6 Si/Ge Delta) and 4 equivalent valleys of
+    # DOS mass (m_l m_t^2)^(1/3) each (common practice); used only when physics.carriers asks
+    for v, g in (("x", cell["g_x"]), ("l", L_VALLEYS)):
         m_dos = (cell[f"m_{v}_l"] * cell[f"m_{v}_t"] ** 2) ** (1.0 / 3.0)
         cell[f"nc_{v}"] = g * NC_PER_M0_K * (m_dos * T) ** 1.5
     cell["nv"] = NC_PER_M0_K * (cell["m_v_dos"] * T) ** 1.5
@@ -440,7 +443,7 @@ def build_structure(deck: Deck, *, mesh: Mesh | None = None, max_nodes: float | 
         # its share of the valley DOS (selfcon.model.strain.X_VALLEY_SETS)
         m_dos = (cell["m_x_l"] * cell["m_x_t"] ** 2) ** (1.0 / 3.0)
         for name, (g, _) in X_VALLEY_SETS.items():
-            cell[f"nc_{name}"] = g * NC_PER_M0_K * (m_dos * T) ** 1.5
+            cell[f"nc_{name}"] = (g / 3.0) * cell["g_x"] * NC_PER_M0_K * (m_dos * T) ** 1.5
         # classical holes: heavy and light hole each at its own edge, with its own DOS mass
         cell["nv_hh"] = NC_PER_M0_K * (cell["m_hh_dos"] * T) ** 1.5
         cell["nv_lh"] = NC_PER_M0_K * (cell["m_lh_dos"] * T) ** 1.5
@@ -450,6 +453,11 @@ def build_structure(deck: Deck, *, mesh: Mesh | None = None, max_nodes: float | 
     else:
         summary = _unstrained(layers, cell, cell_layer)
     cell["ev0"] = np.maximum(cell["ev_hh"], cell["ev_lh"])
+    cell.update(valley_sets(cell, T))
+    # the conduction band minimum of each cell (Gamma, X/Delta or L, strain-split): Schottky
+    # barriers and shallow donor levels are measured from it (in Si the Delta valleys lie
+    # 2 eV below Gamma; in AlAs the X valleys 0.8 eV)
+    cell["ec_min"] = np.minimum(cell["ec_gamma"], np.minimum(cell["ec_x"], cell["ec_l"]))
     # polarization along +z and its bound sheets (selfcon.model.polarization)
     physics = deck.physics
     polarity = getattr(physics, "polarity", "metal")
@@ -494,7 +502,38 @@ def build_structure(deck: Deck, *, mesh: Mesh | None = None, max_nodes: float | 
                      contacted=contacted_carrier(deck.physics.contacted_carrier, layers, crystal),
                      exchange_correlation=getattr(deck.physics, "exchange_correlation", "none"),
                      nonparabolicity=bool(getattr(deck.physics, "nonparabolicity", False)),
+                     quantum_valleys=bool(getattr(deck.physics, "quantum_valleys", False)),
                      sheet_dx=sheet_dx)
+
+
+def valley_sets(cell, T) -> dict:
+    """Per-cell arrays of the conduction valley sets of (001) growth, for quantum valleys.
+
+    ``x2``: the X/Delta valleys whose axis is z, a third of ``g_x`` (2 Delta valleys in Si and
+    Ge, 1 X valley in a zincblende crystal), mass m_l along z and m_t in the plane; ``x4``:
+    the other two thirds (4 in Si and Ge, 2 in zincblende), mass m_t along z and the in-plane
+    DOS mass sqrt(m_l m_t); ``l``: the four L valleys, whose <111> axes make the angle
+    arccos(1/sqrt 3) with z: mass along z 3 m_l m_t / (m_t + 2 m_l) and in-plane DOS mass
+    sqrt(m_t (m_t + 2 m_l) / 3) (F. Stern and W. E. Howard, Phys. Rev. 163, 816 (1967); the
+    product m_z m_par^2 = m_l m_t^2 keeps the bulk DOS).  The edges are the strain-split ones
+    (ec_x_z, ec_x_xy: selfcon.model.strain) or ec_x unstrained.  Keys: ec_x2, ec_x4, m_x2_z,
+    m_x2_par, m_x4_z, m_x4_par, m_l_z, m_l_par, g_x2, g_x4, g_l and the effective DOS nc_x2,
+    nc_x4 (nm^-3) of the classical valley sets."""
+    ml, mt = cell["m_x_l"], cell["m_x_t"]
+    lz, lt = cell["m_l_l"], cell["m_l_t"]
+    out = {
+        "ec_x2": cell.get("ec_x_z", cell["ec_x"]).copy(),
+        "ec_x4": cell.get("ec_x_xy", cell["ec_x"]).copy(),
+        "m_x2_z": ml.copy(), "m_x2_par": mt.copy(),
+        "m_x4_z": mt.copy(), "m_x4_par": np.sqrt(ml * mt),
+        "m_l_z": 3.0 * lz * lt / (lt + 2.0 * lz), "m_l_par": np.sqrt(lt * (lt + 2.0 * lz) / 3.0),
+        "g_x2": cell["g_x"] / 3.0, "g_x4": 2.0 * cell["g_x"] / 3.0,
+        "g_l": np.full_like(ml, float(L_VALLEYS)),
+    }
+    m_dos = (ml * mt ** 2) ** (1.0 / 3.0)
+    for s in ("x2", "x4"):
+        out[f"nc_{s}"] = out[f"g_{s}"] * NC_PER_M0_K * (m_dos * T) ** 1.5
+    return out
 
 
 def contacted_carrier(choice: str, layers, crystal: str = "zincblende") -> str:

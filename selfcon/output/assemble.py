@@ -55,6 +55,35 @@ def valley_density(st, phi, edge_cell, nc_cell) -> np.ndarray:
     return (m.wl * left + m.wr * right) / m.w
 
 
+def valley_parts(st, phi, states) -> dict:
+    """carrier name (x_electron, l_electron) -> (classical density, subband density) at the
+    nodes (nm^-3) of each counted X/L carrier: the classical rows with the cells of its
+    quantum valley sets emptied (selfcon.solver.steps.masked_valley_dos, the Poisson model)
+    and the population of those sets' states (physics.quantum_valleys)."""
+    from selfcon.solver import steps
+    from selfcon.solver.statistics import subband_density
+    out = {}
+    rows = steps.valley_row_bands(st)
+    r = 0
+    for name in steps.VALLEYS:
+        if name not in st.carriers:
+            continue
+        pairs = steps.valley_rows(st, name)
+        nv = np.zeros(st.n_nodes)
+        nq = np.zeros(st.n_nodes)
+        for edge, dos in pairs:
+            band = rows[r]
+            bs = states.get(band) if band is not None else None
+            if bs is not None:
+                dos = np.where(steps.quantum_cells(bs.quantum_nodes), 0.0, dos)
+                occ = subband_density(bs.energy, bs.dos, st.temperature, +1, st.fermi_levels[0])
+                nq += np.asarray(bs.weight) @ occ
+            nv += valley_density(st, phi, edge, dos)
+            r += 1
+        out[name] = (nv, nq)
+    return out
+
+
 @lru_cache(maxsize=1)
 def _package_versions() -> tuple:
     # importlib.metadata reads distribution files (~10 ms): once per process is enough
@@ -173,13 +202,11 @@ def build_result(deck, st, loop, *, wall_time: float) -> Result:
         profile[key] = right_cell_values(st.cell[key])
 
     valley_sheets = {}
-    n_valleys = np.zeros(st.n_nodes)
-    for name in steps.VALLEYS:
-        if name in st.carriers:
-            nv = sum(valley_density(st, phi, edge, dos) for edge, dos in steps.valley_rows(st, name))
-            n_valleys += nv
-            profile[name + "_density"] = nv * CM3_PER_NM3
-            valley_sheets[name] = float(np.sum(nv * st.mesh.w)) * CM2_PER_NM2
+    n_valleys = np.zeros(st.n_nodes)          # the classical part of the X/L electrons
+    for name, (nv, nq) in valley_parts(st, phi, loop.states).items():
+        n_valleys += nv
+        profile[name + "_density"] = (nv + nq) * CM3_PER_NM3
+        valley_sheets[name] = float(np.sum((nv + nq) * st.mesh.w)) * CM2_PER_NM2
 
     # every band in every quantum region, and the channels (selfcon.output.channels); the
     # classical carriers are those at nodes the loop kept classical, plus the X/L valleys
@@ -252,6 +279,8 @@ def build_result(deck, st, loop, *, wall_time: float) -> Result:
     rows = [dict(c.as_row(), main=(j == an.main)) for j, c in enumerate(an.channels)]
     for band in BANDS:
         sb = subbands.get(band)
+        if sb is None and band in schema.VALLEY_BANDS:
+            continue                 # written only with physics.quantum_valleys
         for k in range(3):
             summary[f"{band}_E{k}_eV"] = float(sb.energy[k]) if sb is not None and sb.energy.size > k else float("nan")
         summary[f"{band}_occupied_subbands"] = (int(np.sum(chx.occupied_states(band, subbands, rows)))

@@ -64,7 +64,7 @@ import numpy as np
 
 from selfcon.constants import NM_PER_CM
 
-__all__ = ["CARRIERS", "BAND_CARRIER", "Levels", "CarrierProfile", "LayerSpan", "Request", "Channel",
+__all__ = ["CARRIERS", "BAND_CARRIER", "STATE_LABEL", "Levels", "CarrierProfile", "LayerSpan", "Request", "Channel",
            "ChannelAnalysis", "occupied", "occupied_states", "basins", "candidate_runs", "merge_runs",
            "drop_tails", "merge_coupled", "detect", "analyse", "transitions",
            "PEAK_FRACTION", "MERGE_KT", "CHANNEL_FLOOR_CM2", "FALLBACK_FLOOR_CM2", "ATTRIBUTION_SHARE", "LAYER_SHARE",
@@ -72,7 +72,12 @@ __all__ = ["CARRIERS", "BAND_CARRIER", "Levels", "CarrierProfile", "LayerSpan", 
 
 CARRIERS = ("electron", "hole")
 #: band -> the carrier kind of its states
-BAND_CARRIER = {"electron": "electron", "heavy_hole": "hole", "light_hole": "hole"}
+BAND_CARRIER = {"electron": "electron", "heavy_hole": "hole", "light_hole": "hole",
+                # the conduction valley sets of physics.quantum_valleys
+                "x2_electron": "electron", "x4_electron": "electron", "l_electron": "electron"}
+#: short state labels of each band (E0, HH1, X2_0, ...: the tables and warnings)
+STATE_LABEL = {"electron": "E", "heavy_hole": "HH", "light_hole": "LH", "x2_electron": "X2_",
+               "x4_electron": "X4_", "l_electron": "L"}
 #: +1: the carrier's kinetic energy grows with the electron energy; -1: it falls (holes)
 CARRIER_SIGN = {"electron": +1, "hole": -1}
 

@@ -71,6 +71,13 @@ Thresholds (our own choices, stated here and in README.md, "Design recipes"):
   and 1e8 cm^-2 and are not the main or a named channel (a GaN cap on AlGaN, the bottom of
   an N-face barrier); in a deck that counts no holes, the valence edge there within
   ``VALLEY_KT`` = 10 kT of EF.
+* valley splitting (``valley_splitting``): with physics.quantum_valleys, occupied subbands
+  of the X/Delta valleys along z (``x2_electron``) whose valley degeneracy is 2 (Si and Ge;
+  a zincblende crystal has one such X valley) hold at least ``VALLEY_SPLIT_FRACTION`` = 1 %
+  of the electrons in subbands and ``FLOOR_CM2``: the model counts the two valleys as
+  degenerate, while interfaces split them (by tenths of a meV or less in Si/SiGe, from
+  memory), depending on the interface sharpness and steps, the vertical field and the
+  alloy disorder.
 * type-II interfaces with an interface gap of at least ``TYPE_II_GAP_EV`` = 1 eV are not
   flagged (wide-gap nitride pairs staggered by strain).
 
@@ -100,6 +107,7 @@ import numpy as np
 
 from selfcon.constants import KB_EV, NM_PER_CM
 from selfcon.model.mesh import Mesh
+from selfcon.output.channels import BAND_CARRIER, STATE_LABEL
 
 SECOND_SUBBAND_FRACTION = 0.01      # the occupied rule of selfcon.output.channels
 PARALLEL_FRACTION = 0.01
@@ -243,7 +251,7 @@ def channel_subbands(result, structure=None, channel: int | None = None) -> list
     return [(band, k) for _, band, k in sorted(own)]
 
 
-_LABEL = {"electron": "E", "heavy_hole": "HH", "light_hole": "LH"}
+_LABEL = STATE_LABEL
 
 
 @register_check("second_subband")
@@ -525,7 +533,7 @@ def check_buffer_carriers(result, structure, deck=None) -> list[str]:
         kind = result.channels[j]["carrier"]
         for band, sb in (result.subbands or {}).items():
             mine = np.asarray(sb.channel) == j
-            if np.any(mine) and (band == "electron") == (kind == "electron"):
+            if np.any(mine) and BAND_CARRIER.get(band) == kind:
                 own[kind] += (np.asarray(sb.wavefunction)[:, mine] ** 2) @ np.asarray(sb.occupation)[mine] * NM_PER_CM
     n = float(np.sum((np.asarray(result.profile["electron_density"]) - own["electron"])[sel] * w[sel])) / NM_PER_CM
     p = float(np.sum((np.asarray(result.profile["hole_density"]) - own["hole"])[sel] * w[sel])) / NM_PER_CM
@@ -569,6 +577,36 @@ def check_uncounted_valleys(result, structure, deck=None) -> list[str]:
                    f"are not counted: add \"{carrier}\" to physics.carriers")
     return out
 
+
+@register_check("valley_splitting")
+def check_valley_splitting(result, structure=None, deck=None) -> list[str]:
+    """Occupied subbands of a valley set holding two or more equivalent valleys (the Delta2
+    valleys of Si and Ge) are counted as degenerate: the model has no valley splitting."""
+    out = []
+    subs = result.subbands or {}
+    total = sum(float(np.sum(sb.occupation)) for b, sb in subs.items()
+                if BAND_CARRIER.get(b) == "electron")
+    for band in ("x2_electron",):
+        sb = subs.get(band)
+        if sb is None:
+            continue
+        occ = np.asarray(sb.occupation, dtype=float)
+        deg = np.asarray(sb.degeneracy, dtype=float)
+        hit = (occ >= FLOOR_CM2) & (occ >= VALLEY_SPLIT_FRACTION * total) & (deg > 1.5)
+        if not np.any(hit):
+            continue
+        k = int(np.flatnonzero(hit)[0])
+        out.append(f"{int(hit.sum())} occupied {STATE_LABEL[band]} subband(s) (the X/Delta valleys along z, "
+                   f"{float(occ[hit].sum()):.3g} cm^-2) are counted {deg[k]:.0f}-fold degenerate: "
+                   "this model has no valley splitting; the real splitting (tenths of a meV or less "
+                   "in Si/SiGe) depends on the interface sharpness and steps, the vertical field "
+                   "and the alloy disorder at the interface")
+    return out
+
+
+#: the valley-splitting note is given when the Delta2 subbands hold this share of the
+#: electrons in subbands (and at least FLOOR_CM2)
+VALLEY_SPLIT_FRACTION = 0.01
 
 #: below this |eps_xx| no critical-thickness warning (see the module docstring)
 CRITICAL_MIN_STRAIN = 1e-3

@@ -36,7 +36,8 @@ LAYER_TINTS = (
 )
 EDGE_COLOURS = {"conduction_band": "#17365d", "valence_band": "#8a3b12"}
 FERMI_COLOUR = "#2e7d4f"
-BAND_COLOURS = {"electron": "#2f6fb8", "heavy_hole": "#c4572a", "light_hole": "#b88a10"}
+BAND_COLOURS = {"electron": "#2f6fb8", "heavy_hole": "#c4572a", "light_hole": "#b88a10",
+                "x2_electron": "#1d8a7a", "x4_electron": "#6a9c3c", "l_electron": "#7a4fa0"}
 DENSITY_STYLE = {
     "electron_density": ("#17365d", "-", "electrons n"),
     "hole_density": ("#8a3b12", "-", "holes p"),
@@ -49,7 +50,9 @@ VALLEY_STYLE = {
     "conduction_band_x": ("#4f7fb0", (0, (5, 2)), "X-valley edge"),
     "conduction_band_l": ("#7aa3c8", (0, (1.5, 1.5)), "L-valley edge"),
 }
-BAND_NAMES = {"electron": "electron states", "heavy_hole": "heavy-hole states", "light_hole": "light-hole states"}
+BAND_NAMES = {"electron": "electron states", "heavy_hole": "heavy-hole states", "light_hole": "light-hole states",
+              "x2_electron": "X/Δ states (axis along z)", "x4_electron": "X/Δ states (axis in plane)",
+              "l_electron": "L-valley states"}
 
 #: per band: occupied states plus this many empty ones above them are drawn, at most MAX_STATES_DRAWN
 EMPTY_STATES_DRAWN = 2
@@ -155,7 +158,7 @@ def _draw_states(ax, result, z, ec, ev, span, regions, fs, labels=False, only=No
         idx, n_occ = _states_to_draw(sb, band, result)
         if not idx:
             continue
-        sign = +1 if band == "electron" else -1
+        sign = +1 if band.endswith("electron") else -1
         edge = ec if sign > 0 else ev
         colour = BAND_COLOURS.get(band, "#555555")
         e = np.asarray(sb.energy)[idx]
@@ -299,7 +302,7 @@ def draw_band_diagram(fig, result, depth=None):
         c1 = max(d[4] for d in shown)
         pad = 0.15 * max(c1 - c0, 1.0)
         c0, c1 = max(c0 - pad, float(z[0])), min(c1 + pad, float(z[-1]))
-        sign = +1 if focus == "electron" else -1
+        sign = +1 if focus.endswith("electron") else -1
         edge = ec if sign > 0 else ev
         inwin = (z >= c0) & (z <= c1)
         energies = [d[2] for d in mine]

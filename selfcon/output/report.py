@@ -15,11 +15,14 @@ from typing import Any
 import numpy as np
 
 # "occupied": the one rule of selfcon.output.channels (>= 1 % of its channel and >= 1e8 cm^-2)
-from selfcon.output.channels import OCCUPIED_CM2, OCCUPIED_FRACTION, occupied_states  # noqa: E402
+from selfcon.output.channels import OCCUPIED_CM2, OCCUPIED_FRACTION, STATE_LABEL, occupied_states  # noqa: E402
 from selfcon.output.heading import heading_lines, override_list
 from selfcon.output.numbers import fmt
 
-BAND_LABELS = {"electron": "electron", "heavy_hole": "heavy hole", "light_hole": "light hole"}
+BAND_LABELS = {"electron": "electron", "heavy_hole": "heavy hole", "light_hole": "light hole",
+               "x2_electron": "X/Δ along z", "x4_electron": "X/Δ in plane", "l_electron": "L valleys"}
+#: bands listed only when a result has them (physics.quantum_valleys)
+OPTIONAL_BANDS = ("x2_electron", "x4_electron", "l_electron")
 
 
 def jsonable(value):
@@ -155,7 +158,7 @@ SUMMARY_TRANSITIONS = 6
 
 def state_label(band: str, index: int) -> str:
     """E0, HH1, LH0, ...: the label of a state in tables (0-based, as /subbands)."""
-    return {"electron": "E", "heavy_hole": "HH", "light_hole": "LH"}.get(band, band) + str(index)
+    return STATE_LABEL.get(band, band) + str(index)
 
 
 def listed_states(rows) -> list[dict]:
@@ -341,6 +344,8 @@ def print_summary(fig, console) -> None:
     listed = listed_states(fig["subbands"])
     for band in BAND_LABELS:
         rows = [r for r in listed if r["band"] == band]
+        if not rows and band in OPTIONAL_BANDS:
+            continue
         if not rows:
             s.add_row("–", BAND_LABELS[band], "none bound", "", "", "")
         for r in rows:

@@ -191,8 +191,11 @@ declare_dim("interface", "1", "interface index", "row of /interfaces: a layer in
 
 # --------------------------------------------------------------------------- the result file
 
-#: band names used under /subbands
-BANDS = ("electron", "heavy_hole", "light_hole")
+#: band names used under /subbands: the quantum bands, then the conduction valley sets of
+#: physics.quantum_valleys (x2: X/Delta valleys along z; x4: those in the plane; l: L valleys)
+BANDS = ("electron", "heavy_hole", "light_hole", "x2_electron", "x4_electron", "l_electron")
+#: the bands written only with physics.quantum_valleys
+VALLEY_BANDS = ("x2_electron", "x4_electron", "l_electron")
 
 ROOT_ATTRS = ("schema", "schema_version", "selfcon_version", "created", "title", "temperature_K",
               "converged", "iterations", "residual_V", "message", "deck")
@@ -237,10 +240,12 @@ _r("profile/strain_xx", "1", "in-plane strain",
 _r("profile/strain_zz", "1", "growth-axis strain",
    "strain along the growth axis, eps_zz = -2 (C12/C11) eps_xx (wurtzite: -2 (C13/C33) eps_xx)", dims=("z",))
 _r("profile/x_electron_density", "cm-3", "X-valley electron density",
-   "X-valley electrons (classical; part of electron_density)", dims=("z",),
+   "X/Delta-valley electrons (classical; with physics.quantum_valleys the x2 and x4 subbands in quantum "
+   "regions; part of electron_density)", dims=("z",),
    when="physics.carriers has x_electron")
 _r("profile/l_electron_density", "cm-3", "L-valley electron density",
-   "L-valley electrons (classical; part of electron_density)", dims=("z",),
+   "L-valley electrons (classical; with physics.quantum_valleys the l subbands in quantum regions; part of "
+   "electron_density)", dims=("z",),
    when="physics.carriers has l_electron")
 _r("profile/exchange_correlation", "eV", "electron exchange-correlation potential",
    "local-density exchange-correlation potential energy V_xc (<= 0) of the Gamma electrons, added to "
@@ -309,7 +314,10 @@ for _name, _units, _long, _desc, _when in _LAYER_COLUMNS:
 
 RESULT.group("subbands", "bound states per band, ordered by energy")
 RESULT.group("subbands/<band>", "one group per band of physics.carriers with states: electron, heavy_hole, "
-                                "light_hole")
+                                "light_hole; with physics.quantum_valleys also x2_electron (the X/Delta valleys "
+                                "whose axis is z: 2 Delta valleys in Si and Ge, 1 X valley in zincblende; mass m_l "
+                                "along z), x4_electron (the X/Delta valleys in the plane: 4 in Si and Ge, 2 in "
+                                "zincblende; m_t along z) and l_electron (the 4 L valleys, mass projected on [001])")
 _r("subbands/<band>/energy", "eV", "subband energy",
    "subband edge energy relative to EF (hole states in electron energy)", dims=("state",))
 _r("subbands/<band>/occupation", "cm-2", "subband sheet density", "sheet density held by the subband",

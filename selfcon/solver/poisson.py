@@ -162,6 +162,16 @@ class PoissonProblem:
             raise ValueError("PoissonProblem: phi_ref, cls_e and cls_h must be per node")
         return new
 
+    def with_valley_dos(self, nc_v):
+        """Copy with the effective DOS rows of the further conduction valleys replaced (the
+        same shape: quantum valley sets empty their cells inside quantum regions)."""
+        nc_v = _f(nc_v)
+        if nc_v.shape != self.nc_v.shape:
+            raise ValueError("PoissonProblem: nc_v must keep its shape (valleys, N-1)")
+        new = copy.copy(self)
+        object.__setattr__(new, "nc_v", nc_v)
+        return new
+
     def with_shift(self, qshift):
         """Copy with the predictor shift factor: 1 subbands follow dphi, 0 frozen density."""
         return replace(self, qshift=float(qshift))

@@ -47,8 +47,8 @@ class BandSpectrum:
 
 
 def _specs():
-    from selfcon.solver.steps import BAND_SPECS
-    return BAND_SPECS
+    from selfcon.solver.steps import ALL_BANDS
+    return ALL_BANDS
 
 
 def region_edges(st, phi, band: str, r_idx: int) -> tuple[float, float]:
@@ -71,7 +71,9 @@ def bound_mask(st, phi, band: str, energy, region) -> np.ndarray:
 
 
 def full_spectrum(st, phi, loop_states: dict, n_states: int | None = None) -> dict[str, BandSpectrum]:
-    """Every band of the loop's BAND_SPECS in every quantum region (see the module docstring).
+    """Every band the structure solves (selfcon.solver.steps.bands_of: BAND_SPECS, and the
+    quantum valley sets of the counted X/L carriers) in every quantum region (see the module
+    docstring).
 
     ``loop_states``: the loop's ``{band: BandStates}`` at ``phi``; ``n_states``: states per
     band and region for the pairs the loop did not solve (default ``st.states``).
@@ -79,7 +81,8 @@ def full_spectrum(st, phi, loop_states: dict, n_states: int | None = None) -> di
     """
     k_extra = int(st.states if n_states is None else n_states)
     out = {}
-    for band, (_, _, _, sign, gval) in _specs().items():
+    from selfcon.solver.steps import bands_of, state_degeneracy
+    for band, (_, _, _, sign, _) in bands_of(st).items():
         bs = loop_states.get(band)
         solved = set() if bs is None else {int(r) for r in np.asarray(bs.region)}
         parts = []          # (energy, psi, m_par, region, populated)
@@ -109,7 +112,7 @@ def full_spectrum(st, phi, loop_states: dict, n_states: int | None = None) -> di
         m_par = np.concatenate([p[2] for p in parts])[order]
         region = np.concatenate([p[3] for p in parts])[order]
         populated = np.concatenate([p[4] for p in parts])[order]
-        deg = np.full(energy.size, float(gval))
+        deg = state_degeneracy(st, band, psi)
         out[band] = BandSpectrum(band=band, energy=energy, psi=psi, m_par=m_par,
                                  dos=deg * DOS2D_PER_M0 * m_par, region=region, degeneracy=deg,
                                  sign=sign, populated=populated,

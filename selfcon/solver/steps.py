@@ -44,11 +44,59 @@ BAND_SPECS = {
 }
 HOLE_BANDS = ("heavy_hole", "light_hole")
 
+#: the conduction valley sets of physics.quantum_valleys (selfcon.model.structure.valley_sets):
+#: band name -> (edge key, mass along z, in-plane mass, sign, degeneracy key: a per-cell count)
+VALLEY_BANDS = {
+    "x2_electron": ("ec_x2", "m_x2_z", "m_x2_par", +1, "g_x2"),
+    "x4_electron": ("ec_x4", "m_x4_z", "m_x4_par", +1, "g_x4"),
+    "l_electron": ("ec_l", "m_l_z", "m_l_par", +1, "g_l"),
+}
+#: the deck carrier (physics.carriers) of each valley band, and its classical rows
+VALLEY_CARRIER = {"x2_electron": "x_electron", "x4_electron": "x_electron",
+                  "l_electron": "l_electron"}
+QUANTUM_VALLEY_ROWS = {"x_electron": (("x2_electron", "ec_x2", "nc_x2"),
+                                      ("x4_electron", "ec_x4", "nc_x4")),
+                       "l_electron": (("l_electron", "ec_l", "nc_l"),)}
+#: every band any structure may solve (lookups by name)
+ALL_BANDS = {**BAND_SPECS, **VALLEY_BANDS}
+#: the bands whose states are electrons (their charge shares the electron mask)
+ELECTRON_BANDS = ("electron",) + tuple(VALLEY_BANDS)
+
 #: carrier name -> (band-edge key, effective-DOS key) of the classical conduction valleys
 VALLEYS = {"x_electron": ("ec_x", "nc_x"), "l_electron": ("ec_l", "nc_l")}
 #: the same valleys in a strained structure, split into sets of different edges
 #: (selfcon.model.strain.X_VALLEY_SETS: the X valley along z and the two in the plane)
 SPLIT_VALLEYS = {"x_electron": (("ec_x_z", "nc_x_z"), ("ec_x_xy", "nc_x_xy"))}
+
+
+def bands_of(st: Structure) -> dict:
+    """The bands a structure solves: BAND_SPECS, and with ``st.quantum_valleys`` the valley
+    sets of the X/L carriers that ``st.carriers`` counts."""
+    out = dict(BAND_SPECS)
+    if getattr(st, "quantum_valleys", False):
+        out.update({b: s for b, s in VALLEY_BANDS.items() if VALLEY_CARRIER[b] in st.carriers})
+    return out
+
+
+def carrier_of(band: str) -> str:
+    """The physics.carriers name that switches a band on."""
+    return VALLEY_CARRIER.get(band, band)
+
+
+def state_degeneracy(st: Structure, band: str, psi) -> np.ndarray:
+    """Valley degeneracy (spin excluded) of each state of ``band``: the band's number, or
+    for a valley set its per-cell count averaged with the state's |psi|^2 (exact in a region
+    of one crystal: 2 Delta valleys of Si and Ge along z, 1 zincblende X valley)."""
+    g = ALL_BANDS[band][4]
+    psi = np.asarray(psi, dtype=float)
+    if not isinstance(g, str):
+        return np.full(psi.shape[1], float(g))
+    gn = st.node_average(st.cell[g])
+    w = st.mesh.w[:, None] * psi ** 2
+    tot = w.sum(axis=0)
+    return np.where(tot > 0, (gn[:, None] * w).sum(axis=0) / np.where(tot > 0, tot, 1.0),
+                    float(np.max(st.cell[g])))
+
 
 #: a band whose classical sheet density in a region is below this (nm^-2), and below
 #: NEGLIGIBLE_FRACTION of the structure's fixed sheet charge, is left classical there
@@ -102,7 +150,7 @@ class Workspace:
         self.problem_classical = classical_problem(structure, self.bc)
         self.problem_free = self.problem_classical.with_boundaries(
             (P.ZERO_FIELD, 0.0), (P.ZERO_FIELD, 0.0))
-        self.n_states = {band: structure.states for band in BAND_SPECS}
+        self.n_states = {band: structure.states for band in bands_of(structure)}
         self.negligible: dict = {}       # (band, region) -> bool
         self.eigen: dict = {}            # (band, region) -> EigenWorkspace
         self._last = None                # (phi, states, (n, p, nd+, na-))
@@ -125,7 +173,8 @@ class Workspace:
         solve's boundary conditions (True) or free ends (False: density evaluations).
         """
         base = self.problem_classical if boundaries else self.problem_free
-        return with_states(base, self.structure.n_nodes, phi_ref, states, shift)
+        return with_states(base, self.structure.n_nodes, phi_ref, states, shift,
+                           structure=self.structure)
 
     def classical_densities(self, phi) -> P.Densities:
         """Densities with every carrier classical at ``phi`` (the last one is remembered)."""
@@ -167,10 +216,13 @@ def donor_arrays(st: Structure):
     ionised part is a fixed charge (density times the frozen ionised fraction, binding
     -inf) and the rest is neutral."""
     c = st.cell
-    ed = statistics_binding(c["donor_binding"])
+    # shallow levels lie their binding below the conduction minimum: as the statistics take
+    # the Gamma edge, the binding grows by Gamma minus that minimum (0 where Gamma is lowest)
+    below = c["ec_gamma"] - c.get("ec_min", c["ec_gamma"])
+    ed = statistics_binding(c["donor_binding"]) + below
     nd = c["donors"]
     sheet = st.sheet_donors
-    sheet_ed = statistics_binding(st.sheet_ed)
+    sheet_ed = statistics_binding(st.sheet_ed) + np.append(below, below[-1])
     dx = c.get("dx")
     if dx is None or not np.any(dx > 0):
         return nd, ed, sheet, sheet_ed
@@ -190,12 +242,49 @@ def donor_arrays(st: Structure):
 
 def valley_rows(st: Structure, name):
     """[(edge, effective DOS), ...] per cell of one classical conduction valley carrier: one
-    row, or one per valley set where strain splits them."""
+    row, or one per valley set where strain splits them or quantum valleys solve them
+    (QUANTUM_VALLEY_ROWS: x2, x4 and l, whose cells inside quantum regions with_states
+    empties)."""
+    if getattr(st, "quantum_valleys", False):
+        return [(st.cell[e], st.cell[d]) for _, e, d in QUANTUM_VALLEY_ROWS[name]]
     split = SPLIT_VALLEYS.get(name)
     if split is not None and split[0][0] in st.cell:
         return [(st.cell[e], st.cell[d]) for e, d in split]
     e, d = VALLEYS[name]
     return [(st.cell[e], st.cell[d])]
+
+
+def valley_row_bands(st: Structure) -> list:
+    """The valley band of each row of :func:`valley_arrays` (None: a row no band solves)."""
+    out = []
+    for name in VALLEYS:
+        if name not in st.carriers:
+            continue
+        if getattr(st, "quantum_valleys", False):
+            out += [b for b, _, _ in QUANTUM_VALLEY_ROWS[name]]
+        else:
+            out += [None] * len(valley_rows(st, name))
+    return out
+
+
+def quantum_cells(quantum_nodes) -> np.ndarray:
+    """(N-1,) True for the cells whose two nodes are both quantum nodes of a band."""
+    q = np.asarray(quantum_nodes, dtype=bool)
+    return q[:-1] & q[1:]
+
+
+def masked_valley_dos(st: Structure, nc_v, states) -> np.ndarray:
+    """The rows of effective DOS ``nc_v`` (V, N-1) with the cells where a quantum valley band
+    holds the charge emptied: there its subbands carry the density (the Gamma electrons' mask
+    does the same at the quantum nodes)."""
+    rows = valley_row_bands(st)
+    if not any(b is not None and b in states for b in rows):
+        return nc_v
+    out = np.array(nc_v, dtype=float, copy=True)
+    for r, b in enumerate(rows):
+        if b is not None and b in states:
+            out[r, quantum_cells(states[b].quantum_nodes)] = 0.0
+    return out
 
 
 def valley_arrays(st: Structure):
@@ -230,23 +319,33 @@ def hole_arrays(st: Structure):
     return c["ev_hh"], c["nv_hh"], c["ev_lh"][None, :], c["nv_lh"][None, :]
 
 
-def with_states(base: P.PoissonProblem, n_nodes: int, phi_ref, states, shift=1.0):
-    """``base`` with the quantum part of ``states`` (the masks, |psi|^2, levels and DOS)."""
+def _stacked(bands, n_nodes: int):
+    """(classical mask, |psi|^2 weights, levels, DOS) of one carrier's bands stacked: the mask
+    is 0 at the nodes any of them holds quantum."""
+    qn = np.zeros(n_nodes, dtype=bool)
+    for b in bands:
+        qn |= b.quantum_nodes
+    return (np.where(qn, 0.0, 1.0),
+            np.ascontiguousarray(np.concatenate([b.weight for b in bands], axis=1)),
+            np.concatenate([b.energy for b in bands]), np.concatenate([b.dos for b in bands]))
+
+
+def with_states(base: P.PoissonProblem, n_nodes: int, phi_ref, states, shift=1.0, structure=None):
+    """``base`` with the quantum part of ``states`` (the masks, |psi|^2, levels and DOS).
+
+    Every electron band (Gamma and the quantum valley sets) shares the electron mask and
+    adds its states to the electron subbands; a quantum valley set also empties its
+    classical row inside its quantum cells (:func:`masked_valley_dos`, needs ``structure``)."""
     kw = {}
-    e = states.get("electron")
-    if e is not None:
-        kw.update(cls_e=np.where(e.quantum_nodes, 0.0, 1.0), psi2=np.ascontiguousarray(e.weight),
-                  ek=e.energy, dos_e=e.dos)
+    elec = [states[b] for b in ELECTRON_BANDS if b in states]
+    if elec:
+        kw.update(zip(("cls_e", "psi2", "ek", "dos_e"), _stacked(elec, n_nodes)))
     holes = [states[b] for b in HOLE_BANDS if b in states]
     if holes:
-        qn = np.zeros(n_nodes, dtype=bool)
-        for hb in holes:
-            qn |= hb.quantum_nodes
-        kw.update(cls_h=np.where(qn, 0.0, 1.0),
-                  psi2h=np.ascontiguousarray(np.concatenate([hb.weight for hb in holes], axis=1)),
-                  ekh=np.concatenate([hb.energy for hb in holes]),
-                  dos_h=np.concatenate([hb.dos for hb in holes]))
+        kw.update(zip(("cls_h", "psi2h", "ekh", "dos_h"), _stacked(holes, n_nodes)))
     prob = base.with_quantum(phi_ref=np.asarray(phi_ref, dtype=float), **kw)
+    if structure is not None and any(eb.band in VALLEY_BANDS for eb in elec):
+        prob = prob.with_valley_dos(masked_valley_dos(structure, base.nc_v, states))
     if shift != 1.0:
         prob = prob.with_shift(shift)
     return prob
@@ -255,11 +354,14 @@ def with_states(base: P.PoissonProblem, n_nodes: int, phi_ref, states, shift=1.0
 # --------------------------------------------------------------------------- the steps
 
 def boundary_conditions(st: Structure):
-    """Per side (kind, value): kind 0 Dirichlet phi = value (V), kind 1 zero field."""
+    """Per side (kind, value): kind 0 Dirichlet phi = value (V), kind 1 zero field.  A
+    barrier is measured from the conduction minimum of the end cell (cell["ec_min"]: Gamma,
+    or the X/Delta or L valley where lower)."""
     out = []
     free = None
+    ecm = st.cell.get("ec_min", st.cell["ec_gamma"])
     for contact, c in ((st.surface, 0), (st.substrate, st.n_nodes - 2)):
-        ec0 = st.cell["ec_gamma"][c]
+        ec0 = ecm[c]
         if contact.kind == "schottky":
             out.append((P.DIRICHLET, ec0 - (contact.barrier - contact.bias)))
         elif contact.kind == "pinned":
@@ -352,8 +454,8 @@ def solve_states(ws: Workspace, phi) -> dict:
     from selfcon.solver import schrodinger
     st = ws.structure
     out = {}
-    for band, (_, _, _, sign, gval) in BAND_SPECS.items():
-        if band not in st.carriers or not st.regions:
+    for band, (_, _, _, sign, _) in bands_of(st).items():
+        if carrier_of(band) not in st.carriers or not st.regions:
             continue
         fermi = st.fermi_levels[0 if sign > 0 else 1]             # the carrier's own level
         energies, psis, mpar, regs, weights = [], [], [], [], []
@@ -393,7 +495,7 @@ def solve_states(ws: Workspace, phi) -> dict:
         psi = np.concatenate(psis, axis=1)[:, order]
         weight = np.concatenate(weights, axis=1)[:, order]
         m_par = np.concatenate(mpar)[order]
-        deg = np.full(E.size, float(gval))
+        deg = state_degeneracy(st, band, psi)
         out[band] = BandStates(band=band, energy=E[order], psi=psi, m_par=m_par,
                                dos=deg * DOS2D_PER_M0 * m_par, region=np.concatenate(regs)[order],
                                degeneracy=deg, sign=sign, quantum_nodes=qnodes, weight=weight)
@@ -461,7 +563,7 @@ def region_eigenstates(st: Structure, phi, band: str, r_idx: int, n_states: int,
     ``below``: only the states of kinetic energy (sign * E) below it.  ``vxc``: (N,) eV, the
     exchange-correlation potential energy on the band's kinetic scale (Workspace.vxc)."""
     from selfcon.solver import schrodinger
-    edge_key, mass_key, _, sign, _ = BAND_SPECS[band]
+    edge_key, mass_key, _, sign, _ = ALL_BANDS[band]
     i0, i1 = st.regions[r_idx]
     n = st.n_nodes
     if i1 - i0 < 3:
@@ -486,7 +588,7 @@ def in_plane_motion(st: Structure, band: str, energy, psi):
     the charge of nearly degenerate states does not depend on their mixture.  ``energy``
     on the electron scale; the carrier's own Fermi level."""
     from selfcon.solver import schrodinger
-    par_key, sign = BAND_SPECS[band][2], BAND_SPECS[band][3]
+    par_key, sign = ALL_BANDS[band][2], ALL_BANDS[band][3]
     fermi = st.fermi_levels[0 if sign > 0 else 1]
     return schrodinger.in_plane_weights(sign * np.asarray(energy), psi, st.mesh.w,
                                         st.node_average(st.cell[par_key]), st.kT, sign * fermi)
@@ -505,7 +607,7 @@ def region_states(st: Structure, phi, band: str, r_idx: int, n_states: int, work
 def classical_sheet(ws: Workspace, phi, band, i0, i1) -> float:
     """Classical sheet density (nm^-2) of a carrier over nodes i0..i1 at potential phi."""
     dens = ws.classical_densities(phi)
-    arr = dens.n if band == "electron" else dens.p
+    arr = dens.n if ALL_BANDS[band][3] > 0 else dens.p
     return float(np.sum(arr[i0:i1 + 1] * ws.structure.mesh.w[i0:i1 + 1]))
 
 
@@ -559,7 +661,8 @@ def gauss_residual(ws: Workspace, phi, states, rho=None) -> float:
     return P.gauss_residual(ws.problem(phi, states), phi, rho)
 
 
-__all__ = ["BAND_SPECS", "VALLEYS", "BandStates", "Workspace", "boundary_conditions",
+__all__ = ["BAND_SPECS", "VALLEY_BANDS", "ALL_BANDS", "bands_of", "carrier_of", "state_degeneracy",
+           "masked_valley_dos", "valley_row_bands", "VALLEYS", "BandStates", "Workspace", "boundary_conditions",
            "initial_guess", "start_levels", "linear_start", "interpolate_guess", "solve_states",
            "update_exchange", "subband_profile",
            "region_states", "region_eigenstates", "in_plane_motion",

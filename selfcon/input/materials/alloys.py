@@ -30,7 +30,7 @@ VALLEYS = (
 OUTPUT_UNITS = {
     "eg_gamma": "eV", "eg_x": "eV", "eg_l": "eV", "vbo": "eV",
     "ec_gamma": "eV", "ec_x": "eV", "ec_l": "eV", "ev_hh": "eV", "ev_lh": "eV",
-    "m_e": "m0", "m_x_l": "m0", "m_x_t": "m0", "m_l_l": "m0", "m_l_t": "m0",
+    "m_e": "m0", "g_x": "1", "m_x_l": "m0", "m_x_t": "m0", "m_l_l": "m0", "m_l_t": "m0",
     "gamma1": "1", "gamma2": "1", "gamma3": "1",
     "m_hh_z": "m0", "m_lh_z": "m0", "m_hh_par": "m0", "m_lh_par": "m0",
     "m_c_dos": "m0", "m_v_dos": "m0",
@@ -310,6 +310,7 @@ def standalone_primitives(d, params, shape, temperature, needs):
         p.setdefault(f"{pre}_varshni_beta", 0.0)
         for key in mass_keys:
             p.setdefault(key, FILL_MASS)
+    p.setdefault("x_valleys", 3.0)      # a zincblende crystal's three X valleys
     # dopant levels
     for key in ("donor_binding", "acceptor_binding"):
         if "thermal_ionization" in needs and key not in p:
@@ -403,6 +404,7 @@ _CHECK_POSITIVE = (
     ("electron_mass", "electron_mass"), ("x_mass_long", "x_mass_long"),
     ("x_mass_trans", "x_mass_trans"), ("l_mass_long", "l_mass_long"),
     ("l_mass_trans", "l_mass_trans"), ("permittivity", "permittivity"),
+    ("x_valleys", "x_valleys"),
 )
 
 
@@ -469,7 +471,7 @@ def derived(prim):
         "ec_gamma": vbo + prim["eg_gamma"], "ec_x": vbo + prim["eg_x"], "ec_l": vbo + prim["eg_l"],
         "ev_hh": vbo.copy(), "ev_lh": vbo.copy(),
         "m_e": prim["electron_mass"],
-        "m_x_l": prim["x_mass_long"], "m_x_t": prim["x_mass_trans"],
+        "m_x_l": prim["x_mass_long"], "m_x_t": prim["x_mass_trans"], "g_x": prim["x_valleys"],
         "m_l_l": prim["l_mass_long"], "m_l_t": prim["l_mass_trans"],
         "gamma1": g1, "gamma2": g2, "gamma3": g3,
         "m_hh_z": m_hh_z, "m_lh_z": m_lh_z, "m_hh_par": m_hh_par, "m_lh_par": m_lh_par,

@@ -88,8 +88,11 @@ PARAMETERS = {
     "x_mass_trans": ("m0", "X-valley transverse mass"),
     "l_mass_long": ("m0", "L-valley longitudinal mass"),
     "l_mass_trans": ("m0", "L-valley transverse mass"),
+    "x_valleys": ("1", "number of equivalent X/Δ conduction valleys: 3 at the X points of a "
+                       "zincblende crystal, 6 Δ valleys in Si and Ge"),
     "permittivity": ("1", "static relative permittivity"),
-    "donor_binding": ("eV", "donor binding energy (below the Γ edge)"),
+    "donor_binding": ("eV", "donor binding energy (below the conduction minimum: Γ, or the X/Δ "
+                            "or L valley where lower)"),
     "acceptor_binding": ("eV", "acceptor binding energy (above the valence edge)"),
     # lattice, elasticity and deformation potentials (strained layers, selfcon.model.strain)
     "lattice_constant": ("nm", "lattice constant a at 300 K"),
@@ -144,7 +147,7 @@ WURTZITE_ONLY = ("lattice_constant_c", "elastic_c13", "elastic_c33", "piezo_e31"
                  "deformation_d4")
 ZINCBLENDE_ONLY = ("x_gap", "x_varshni_alpha", "x_varshni_beta", "l_gap", "l_varshni_alpha",
                    "l_varshni_beta", "luttinger_gamma1", "luttinger_gamma2", "luttinger_gamma3",
-                   "x_mass_long", "x_mass_trans", "l_mass_long", "l_mass_trans",
+                   "x_mass_long", "x_mass_trans", "l_mass_long", "l_mass_trans", "x_valleys",
                    "deformation_ac", "deformation_av", "deformation_b", "deformation_d",
                    "x_deformation_gap", "x_deformation_u", "l_deformation_gap", "l_deformation_u")
 
@@ -479,7 +482,14 @@ def _zincblende_fill(table):
     return out
 
 
+#: equivalent X valleys of a zincblende crystal: six half valleys at the zone-boundary X
+#: points, three full ones (common practice)
+_X_VALLEYS_ZB = Value(3.0, "1", "common practice: six half valleys at the X points of the "
+                                "zincblende Brillouin zone, three full valleys")
+
+
 def _binary(name, table):
+    table.setdefault("x_valleys", _X_VALLEYS_ZB)
     table.update(_strain_values(name))
     table.update(_zincblende_fill(table))
     return _add_hydrogenic(table)
@@ -496,6 +506,155 @@ BINARIES = {
     "GaP": _binary("GaP", _gap()),
     "AlP": _binary("AlP", _alp()),
 }
+
+
+# --------------------------------------------------------------------- group IV: Si, Ge
+#: Si and Ge (diamond lattice).  Their (001) strain follows the cubic model of
+#: selfcon.model.strain like the zincblende binaries (CRYSTAL says "zincblende": the strain,
+#: valley and hole models only need the cubic symmetry).  The conduction minima are the six
+#: Δ valleys of Si (``x_*`` keys: the X/Δ valley set) and the four L valleys of Ge.  Every
+#: value was recalled from memory (no copy of a paper was consulted while writing this file);
+#: each source says so.
+_VDWM = "Van de Walle and Martin, Phys. Rev. B 34, 5621 (1986)"
+_THURMOND = "Thurmond, J. Electrochem. Soc. 122, 1133 (1975)"
+_WA = "Weber and Alonso, Phys. Rev. B 40, 5683 (1989)"
+_LAWAETZ = "Lawaetz, Phys. Rev. B 4, 3460 (1971)"
+_RV = "Rieger and Vogl, Phys. Rev. B 48, 14276 (1993)"
+_SCH = "Schäffler, Semicond. Sci. Technol. 12, 1515 (1997)"
+#: valence-band top of Ge on the common scale: 0.56 eV above that of GaAs (-0.80 eV), the
+#: Ge/GaAs (110) valence offset (common practice, from memory); Si from Van de Walle and Martin
+_GE_VBO = -0.24
+#: Ge minus Si average valence energy E_v,av (Van de Walle and Martin 1986, model-solid theory)
+_DEV_AV_GE_SI = 0.54
+#: shallow dopants (eV): name -> {species: (binding, source)}, the first donor and acceptor
+#: listed are the materials' donor_binding and acceptor_binding
+_RR = "Ramdas and Rodriguez, Rep. Prog. Phys. 44, 1297 (1981)"
+GROUP_IV_DOPANTS = {
+    "Si": {"P": (0.0456, f"{_RR}, P donor in Si, 45.6 meV" + _MEM),
+           "As": (0.0537, f"{_RR}, As donor in Si, 53.7 meV" + _MEM),
+           "B": (0.0450, f"{_RR}, B acceptor in Si, 45 meV" + _MEM)},
+    "Ge": {"P": (0.0120, f"{_RR}, P donor in Ge, 12.0 meV" + _MEM),
+           "As": (0.0127, f"{_RR}, As donor in Ge, 12.7 meV" + _MEM),
+           "B": (0.0104, f"{_RR}, B acceptor in Ge, 10.4 meV" + _MEM)},
+}
+#: the species of each kind (donors, acceptors) with binding energies in GROUP_IV_DOPANTS
+DONOR_SPECIES = ("P", "As")
+ACCEPTOR_SPECIES = ("B",)
+
+
+def _cubic_lattice(name, a, expansion, c11, c12, c44):
+    """Lattice constant (nm at 300 K), its temperature coefficient (a times the linear
+    expansion coefficient ``expansion``, 1/K) and elastic constants (GPa) of Si or Ge."""
+    hb = f"Madelung (ed.), Semiconductors: Data Handbook (Springer 2004), {name}" + _MEM
+    return {
+        "lattice_constant": Value(a, "nm", f"{hb} ({a * 10:.4f} Å at 300 K)"),
+        "lattice_expansion": Value(round(a * expansion, 14), "nm/K",
+                                   f"a times the thermal expansion coefficient {expansion:g} 1/K "
+                                   "at 300 K (common practice)" + _MEM),
+        "elastic_c11": Value(c11, "GPa", f"{_VDW}, Table" + _MEM),
+        "elastic_c12": Value(c12, "GPa", f"{_VDW}, Table" + _MEM),
+        "elastic_c44": Value(c44, "GPa", hb),
+    }
+
+
+def _group_iv(name):
+    m = _MEM
+    u = ", from memory, uncertain"
+    if name == "Si":
+        vbo_src = (f"{_VDWM}: E_v,av of Ge lies {_DEV_AV_GE_SI} eV above that of Si; the top "
+                   "of each lies Δso/3 above its E_v,av, so the Si top lies 0.54 + (0.296 - "
+                   "0.044)/3 = 0.624 eV below that of Ge" + m)
+        gap_g = "the Γ15 conduction state of Si (E0' about 3.4 eV); a stand-in: the Γ minimum " \
+                "lies 2 eV above the Δ valleys and holds no electrons" + u
+        d = {
+            "band_gap": Value(3.40, "eV", gap_g),
+            "varshni_alpha": Value(4.73e-4, "eV/K", "the Δ gap's Varshni α standing in" + u),
+            "varshni_beta": Value(636.0, "K", "the Δ gap's Varshni β standing in" + u),
+            "x_gap": Value(1.170, "eV", f"{_THURMOND}, indirect (Δ) gap at 0 K" + m),
+            "x_varshni_alpha": Value(4.73e-4, "eV/K", f"{_THURMOND}" + m),
+            "x_varshni_beta": Value(636.0, "K", f"{_THURMOND}" + m),
+            "l_gap": Value(2.010, "eV", f"{_WA}: the L branch of the SiGe gap, 2.010 - 1.27 x eV, "
+                                        "at x = 0" + m),
+            "l_varshni_alpha": Value(4.73e-4, "eV/K", "the Δ gap's Varshni α standing in" + u),
+            "l_varshni_beta": Value(636.0, "K", "the Δ gap's Varshni β standing in" + u),
+            "valence_band_offset": Value(round(_GE_VBO - _DEV_AV_GE_SI - (0.296 - 0.044) / 3.0, 6),
+                                         "eV", vbo_src),
+            "spin_orbit": Value(0.044, "eV", "Madelung (ed.), Semiconductors: Data Handbook "
+                                              "(Springer 2004), Si" + m),
+            "electron_mass": Value(0.30, "m0", "stand-in for the Γ15 conduction mass (never "
+                                               "populated: 2 eV above Δ)" + u),
+            "luttinger_gamma1": Value(4.285, "1", _LAWAETZ + m),
+            "luttinger_gamma2": Value(0.339, "1", _LAWAETZ + m),
+            "luttinger_gamma3": Value(1.446, "1", _LAWAETZ + m),
+            "x_mass_long": Value(0.916, "m0", "Hensel, Hasegawa and Nakayama, Phys. Rev. 138, "
+                                              "A225 (1965), Δ valley" + m),
+            "x_mass_trans": Value(0.190, "m0", "Hensel, Hasegawa and Nakayama, Phys. Rev. 138, "
+                                               "A225 (1965), Δ valley" + m),
+            "l_mass_long": Value(1.70, "m0", f"{_RV}, Si L valley" + u),
+            "l_mass_trans": Value(0.12, "m0", f"{_RV}, Si L valley" + u),
+            "x_valleys": Value(6.0, "1", "six Δ valleys along <100>, inside the zone (common "
+                                         "practice)"),
+            "permittivity": Value(11.9, "1", _SZE),
+            **_cubic_lattice("Si", 0.54310, 2.6e-6, 165.8, 63.9, 79.6),
+            "deformation_ac": Value(-10.06, "eV", "Γ15 conduction potential; a stand-in (the Γ "
+                                                  "minimum is never populated)" + u),
+            "deformation_av": Value(2.46, "eV", f"{_VDW}, Si (ΔEv,av = +a_v Tr ε)" + m),
+            "deformation_b": Value(-2.35, "eV", f"{_VDW}, Si" + m),
+            "deformation_d": Value(-5.32, "eV", f"{_VDW}, Si" + u),
+            "x_deformation_gap": Value(1.72, "eV", f"{_VDW}, Si Δ valleys: Ξ_d + Ξ_u/3 - a_v" + m),
+            "x_deformation_u": Value(9.16, "eV", f"{_VDW}, Si Δ valleys: Ξ_u" + m),
+            "l_deformation_gap": Value(-3.12, "eV", f"{_VDW}, Si L valleys: Ξ_d + Ξ_u/3 - a_v" + u),
+            "l_deformation_u": Value(16.14, "eV", f"{_VDW}, Si L valleys: Ξ_u" + u),
+        }
+    else:
+        d = {
+            "band_gap": Value(0.8893, "eV", "direct (Γ) gap of Ge at 0 K, 0.80 eV at 300 K (common "
+                                            "practice)" + m),
+            "varshni_alpha": Value(6.842e-4, "eV/K", "Varshni α of the Ge direct gap (common "
+                                                     "practice)" + u),
+            "varshni_beta": Value(398.0, "K", "Varshni β of the Ge direct gap (common practice)" + u),
+            "x_gap": Value(0.85, "eV", "Ge Δ minimum, about 0.85 eV above the valence top (common "
+                                       "practice)" + u),
+            "x_varshni_alpha": Value(4.73e-4, "eV/K", "the Si Δ gap's α standing in" + u),
+            "x_varshni_beta": Value(636.0, "K", "the Si Δ gap's β standing in" + u),
+            "l_gap": Value(0.744, "eV", f"{_THURMOND}, indirect (L) gap of Ge at 0 K" + m),
+            "l_varshni_alpha": Value(4.774e-4, "eV/K", f"{_THURMOND}" + m),
+            "l_varshni_beta": Value(235.0, "K", f"{_THURMOND}" + m),
+            "valence_band_offset": Value(_GE_VBO, "eV", "0.56 eV above GaAs (-0.80 eV on the "
+                                         "common scale), the Ge/GaAs valence offset (common "
+                                         "practice)" + u),
+            "spin_orbit": Value(0.296, "eV", "Madelung (ed.), Semiconductors: Data Handbook "
+                                             "(Springer 2004), Ge" + m),
+            "electron_mass": Value(0.038, "m0", "Γ mass of Ge (common practice)" + m),
+            "luttinger_gamma1": Value(13.38, "1", _LAWAETZ + m),
+            "luttinger_gamma2": Value(4.24, "1", _LAWAETZ + m),
+            "luttinger_gamma3": Value(5.69, "1", _LAWAETZ + m),
+            "x_mass_long": Value(1.353, "m0", f"{_RV}, Ge Δ valley" + u),
+            "x_mass_trans": Value(0.288, "m0", f"{_RV}, Ge Δ valley" + u),
+            "l_mass_long": Value(1.588, "m0", "Levinger and Frankl, J. Phys. Chem. Solids 20, 281 "
+                                              "(1961), Ge L valley" + m),
+            "l_mass_trans": Value(0.0815, "m0", "Levinger and Frankl, J. Phys. Chem. Solids 20, 281 "
+                                                "(1961), Ge L valley" + m),
+            "x_valleys": Value(6.0, "1", "six Δ valleys along <100> (common practice)"),
+            "permittivity": Value(16.0, "1", _SZE),
+            **_cubic_lattice("Ge", 0.56579, 5.9e-6, 128.5, 48.3, 66.8),
+            "deformation_ac": Value(-8.24, "eV", "Γ conduction potential of Ge (common practice)" + u),
+            "deformation_av": Value(1.24, "eV", f"{_VDW}, Ge (ΔEv,av = +a_v Tr ε)" + m),
+            "deformation_b": Value(-2.86, "eV", f"{_VDW}, Ge" + m),
+            "deformation_d": Value(-5.28, "eV", f"{_VDW}, Ge" + u),
+            "x_deformation_gap": Value(1.31, "eV", f"{_VDW}, Ge Δ valleys: Ξ_d + Ξ_u/3 - a_v" + u),
+            "x_deformation_u": Value(9.42, "eV", f"{_VDW}, Ge Δ valleys: Ξ_u" + u),
+            "l_deformation_gap": Value(-2.78, "eV", f"{_VDW}, Ge L valleys: Ξ_d + Ξ_u/3 - a_v" + m),
+            "l_deformation_u": Value(16.23, "eV", f"{_VDW}, Ge L valleys: Ξ_u" + m),
+        }
+    dop = GROUP_IV_DOPANTS[name]
+    d["donor_binding"] = Value(dop["P"][0], "eV", dop["P"][1] + " (P is the library's donor)")
+    d["acceptor_binding"] = Value(dop["B"][0], "eV", dop["B"][1] + " (B is the library's acceptor)")
+    d.update(_zincblende_fill(d))
+    return _add_hydrogenic(d)
+
+
+BINARIES.update({"Si": _group_iv("Si"), "Ge": _group_iv("Ge")})
 
 
 # --------------------------------------------------------------------- wurtzite nitrides
@@ -568,7 +727,8 @@ def _wurtzite_fill(eg, alpha, beta):
     fill = {"x_gap": eg + 10.0, "l_gap": eg + 10.0, "x_varshni_alpha": alpha,
             "l_varshni_alpha": alpha, "x_varshni_beta": beta, "l_varshni_beta": beta,
             "luttinger_gamma1": 1.0, "luttinger_gamma2": 0.0, "luttinger_gamma3": 0.0,
-            "x_mass_long": 1.0, "x_mass_trans": 1.0, "l_mass_long": 1.0, "l_mass_trans": 1.0}
+            "x_mass_long": 1.0, "x_mass_trans": 1.0, "l_mass_long": 1.0, "l_mass_trans": 1.0,
+            "x_valleys": 3.0}
     out = {}
     for key in ZINCBLENDE_ONLY:
         out[key] = Value(float(fill.get(key, 0.0)), PARAMETERS[key][0], _NA_WZ)
@@ -813,6 +973,18 @@ ALLOYS.update({
     "InAlN": _nitride_ternary("InAlN", "AlN", "InN", "x = In fraction: In_x Al_(1-x) N",
                               2.5, 0.071),
 })
+ALLOYS["SiGe"] = Alloy(
+    "SiGe", "Si", "Ge", "x = Ge fraction: Si_(1-x) Ge_x (the one alloy whose x counts the "
+    "second-named element, as Si1-xGex is written)",
+    {key: Bowing(0.0, 0.0, PARAMETERS[key][0], "SiGe: linear interpolation between Si and Ge "
+                 "(common practice; for the valence band the linear E_v,av of " + _VDWM + ")")
+     for key in BOWED})
+ALLOYS["SiGe"].bowing["x_gap"] = Bowing(
+    -0.006, 0.474, "eV", "SiGe Δ gap: C = -0.006 + 0.474 x fitted by us (least squares over "
+    f"0 <= x <= 0.85, within 28 meV) to the Δ branch of the gap, 1.155 - 0.43 x + 0.0206 x^2 eV "
+    f"at 4.2 K, of {_WA}, moved to the Si gap above" + _MEM)
+ALLOYS["SiGe"].bowing["l_gap"] = Bowing(
+    0.0, 0.0, "eV", f"SiGe L gap: linear, as the L branch 2.010 - 1.27 x eV of {_WA}" + _MEM)
 CRYSTAL.update({name: CRYSTAL[a.end0] for name, a in ALLOYS.items()})
 
 
@@ -881,6 +1053,7 @@ ALLOY_RULES = {
     "luttinger_gamma1": _LUTT_RULE, "luttinger_gamma2": _LUTT_RULE,
     "luttinger_gamma3": _LUTT_RULE,
     "x_mass_long": _LIN, "x_mass_trans": _LIN, "l_mass_long": _LIN, "l_mass_trans": _LIN,
+    "x_valleys": "the count of the end binaries (both ends of every library alloy share it)",
     "permittivity": _LIN, "donor_binding": _LIN, "acceptor_binding": _LIN,
     "lattice_constant": "Vegard's law (linear in x), as the review recommends, common practice",
     "lattice_expansion": _LIN,
