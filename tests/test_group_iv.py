@@ -104,6 +104,21 @@ def test_group_iv_library_values():
             assert v.source and v.unit, (name, key)
 
 
+def test_arsenic_donors_in_si_and_sige():
+    # As 53.7 meV in Si, 12.7 meV in Ge (Ramdas and Rodriguez 1981, from memory); SiGe linear
+    # in the Ge fraction (the library's stated rule); thermal ionisation keeps the levels
+    deck = selfcon.load_deck(SI_2DEG.replace('ionization = "full"', 'ionization = "thermal"'))
+    deck = deck.with_overrides({"layer.doping.donor_species": "As", "layer.channel.donor_species": "As"})
+    st = selfcon.build_structure(deck)
+    c = np.flatnonzero(st.cell_layer == 1)[0]
+    s = np.flatnonzero(st.cell_layer == 3)[0]
+    assert st.cell["donor_binding"][s] == pytest.approx(0.0537)
+    assert st.cell["donor_binding"][c] == pytest.approx(0.7 * 0.0537 + 0.3 * 0.0127)
+    p = selfcon.build_structure(selfcon.load_deck(SI_2DEG.replace('ionization = "full"',
+                                                                  'ionization = "thermal"')))
+    assert p.cell["donor_binding"][s] == pytest.approx(0.0456)       # P, the library's donor
+
+
 def test_sige_delta_gap_follows_weber_alonso():
     # Weber and Alonso, Phys. Rev. B 40, 5683 (1989), from memory: the Delta branch of the
     # relaxed-alloy gap 1.155 - 0.43 x + 0.0206 x^2 eV at 4.2 K (moved to the Si gap 1.170 at

@@ -121,7 +121,10 @@ POLARITIES = ("metal", "nitrogen")
 #: Stern and Das Sarma 1984), lda-gl (Gunnarsson-Lundqvist 1976 parametrization)
 EXCHANGE_CORRELATION = ("none", "lda", "lda-gl")
 #: layer.donor_species: shallow (hydrogenic level, Pearson-Bardeen at high density) or Si-DX
-DONOR_SPECIES = ("shallow", "Si-DX")
+DONOR_SPECIES = ("shallow", "Si-DX", "P", "As")
+#: the hosts of the group-IV donor species P and As (their levels: selfcon.input.materials.
+#: library.GROUP_IV_DOPANTS; SiGe interpolates linearly in the Ge fraction)
+GROUP_IV_HOSTS = ("Si", "Ge", "SiGe")
 DX_STATES = ("equilibrium", "ionized")
 #: library materials the Si-DX level is given for (selfcon.model.dopants.dx_binding)
 DX_HOSTS = ("AlGaAs", "GaAs")
@@ -172,10 +175,12 @@ _LAYER = {
                        "substrate at its own lattice; the layers above grow on its lattice "
                        "(a graded one passes on the lattice at its top)"),
     "donor_species": KeySpec("string", "-", "shallow", "species of the layer's donors and "
-                             "sheet_donors: shallow (hydrogenic level) or Si-DX (the deep DX level "
+                             "sheet_donors: shallow (the material's level), Si-DX (the deep DX level "
                              "of Si in AlGaAs, 0.15 eV below the L minimum after Chand et al. 1984; "
                              "a one-electron level; AlGaAs and GaAs only; needs physics.ionization "
-                             "= thermal)", choices=DONOR_SPECIES),
+                             "= thermal), or P or As in Si, Ge and SiGe (their binding energies, "
+                             "Ramdas and Rodriguez 1981; P is the library's shallow donor there)",
+                             choices=DONOR_SPECIES),
     "dx_freeze_temperature": KeySpec("number", "K", None, "Si-DX only: dark cool-down; the DX "
                                      "occupation is that of equilibrium at this temperature (gate "
                                      "unbiased) and kept at the run temperature (no effect when the "
@@ -1484,6 +1489,9 @@ def _donor_species(ctx, t, p, material, materials):
             if k in t:
                 raise ctx.error(f"{p}{k}", f"applies to Si-DX donors only; set {p}donor_species "
                                 "= \"Si-DX\" or remove it")
+        if species in ("P", "As") and _alloy_root(material, materials)[0] not in GROUP_IV_HOSTS:
+            raise ctx.error(f"{p}donor_species", f"{species} donor levels are given for Si, Ge and "
+                            f"SiGe only, not for {material!r}", allowed=DONOR_SPECIES)
     else:
         root, _ = _alloy_root(material, materials)
         if root not in DX_HOSTS:

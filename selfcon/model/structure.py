@@ -406,6 +406,8 @@ def build_structure(deck: Deck, *, mesh: Mesh | None = None, max_nodes: float | 
                               needs, y0)
         for k in MATERIAL_KEYS:
             cell[k][sel] = params[k]
+        if Li.donor_species in ("P", "As"):
+            cell["donor_binding"][sel] = group_iv_donor(deck, Li, x_cell[sel])
         cell["donors"][sel] = Li.donors / CM3_PER_NM3
         cell["acceptors"][sel] = Li.acceptors / CM3_PER_NM3
     if deck.physics.ionization != "thermal":
@@ -504,6 +506,20 @@ def build_structure(deck: Deck, *, mesh: Mesh | None = None, max_nodes: float | 
                      nonparabolicity=bool(getattr(deck.physics, "nonparabolicity", False)),
                      quantum_valleys=bool(getattr(deck.physics, "quantum_valleys", False)),
                      sheet_dx=sheet_dx)
+
+
+def group_iv_donor(deck, layer, x) -> np.ndarray:
+    """Binding energy (eV) of the layer's P or As donors in Si, Ge or Si_(1-x) Ge_x (``x`` the
+    Ge fraction per cell), linear in x between the two ends (selfcon.input.materials.library.
+    GROUP_IV_DOPANTS; a stated approximation)."""
+    from selfcon.input.deck import _alloy_root
+    from selfcon.input.materials.library import GROUP_IV_DOPANTS
+    root, _ = _alloy_root(layer.material, deck.materials)
+    ge = {"Si": 0.0, "Ge": 1.0}.get(root)
+    xg = np.full(np.shape(x), ge) if ge is not None else np.asarray(x, dtype=float)
+    si_b = GROUP_IV_DOPANTS["Si"][layer.donor_species][0]
+    ge_b = GROUP_IV_DOPANTS["Ge"][layer.donor_species][0]
+    return (1.0 - xg) * si_b + xg * ge_b
 
 
 def valley_sets(cell, T) -> dict:
