@@ -441,13 +441,13 @@ def cmd_plot(args) -> int:
 
 
 def cmd_export(args) -> int:
-    from selfcon.output.export import TABLES, export_csv
+    from selfcon.output.export import export_csv, tables
     from selfcon.output.files import check_outputs, output
     from selfcon.output.result import load_result
-    check_outputs([output(args.csv, "folder", "--csv", files=TABLES)],
+    check_outputs([output(args.csv, "folder", "--csv", files=tables(args.wavefunctions))],
                   inputs=[(args.result, "the result file")], force=args.force)
     result = load_result(args.result)
-    paths = export_csv(result, args.csv, force=args.force)
+    paths = export_csv(result, args.csv, force=args.force, wavefunctions=args.wavefunctions)
     if not args.quiet:
         for p in paths:
             print(f"wrote {p}")
@@ -488,19 +488,54 @@ def cmd_materials(args) -> int:
         print(json.dumps(jsonable({"name": args.name, **kw, "parameters": list(rows)}), indent=2,
                          ensure_ascii=False))
         return EXIT_OK
-    from rich.table import Table
     title = args.name + "".join(f", {k} = {v:g}" for k, v in kw.items())
+    console = _console()
+    for line in material_table(title, rows, console):
+        console.print(line)
+    return EXIT_OK
+
+
+def material_rows(rows) -> tuple[list[tuple[str, str, str, int]], list[str]]:
+    """The compact view of ``materials NAME``: (parameter, value, unit, footnote) rows and the
+    footnotes (each distinct source once). The values computed at the chosen composition and
+    temperature come first; interpolation rules that share a value and a source are one row."""
+    from selfcon.output.numbers import fmt
+    notes: list[str] = []
+
+    def note(source) -> int:
+        text = " ".join(str(source or "").split())
+        if text not in notes:
+            notes.append(text)
+        return notes.index(text) + 1
+
+    computed = [r for r in rows if str(r.get("source", "")).startswith("computed")]
+    rest = [r for r in rows if r not in computed]
+    out, rules = [], {}
+    for r in computed + rest:
+        name, v = str(r["parameter"]), r["value"]
+        if name.startswith("rule."):
+            rules.setdefault((str(v), str(r.get("source") or "")), []).append(name[5:])
+            continue
+        value = fmt(v, "plain") if isinstance(v, (int, float)) and not isinstance(v, bool) else str(v)
+        out.append((name, value, str(r.get("unit") or "").replace("1", "") if r.get("unit") == "1" else
+                    str(r.get("unit") or ""), note(r.get("source"))))
+    for (value, source), names in rules.items():
+        out.append(("rule: " + ", ".join(names), value, "", note(source)))
+    return out, notes
+
+
+def material_table(title, rows, console=None) -> list:
+    """``materials NAME`` as one rich table (value, unit, footnote) and its numbered sources."""
+    from rich.table import Table
+    table_rows, notes = material_rows(rows)
     t = Table(title=title, title_justify="left")
     t.add_column("parameter")
     t.add_column("value", justify="right")
     t.add_column("unit")
-    t.add_column("source")
-    for r in rows:
-        v = r["value"]
-        t.add_row(str(r["parameter"]), f"{v:.6g}" if isinstance(v, (int, float)) else str(v),
-                  str(r.get("unit") or ""), str(r.get("source") or ""))
-    _console().print(t)
-    return EXIT_OK
+    t.add_column("src", justify="right")
+    for name, value, unit, n in table_rows:
+        t.add_row(name, value, unit, f"[{n}]")
+    return [t, "sources:"] + [f"[{i}] {text}" for i, text in enumerate(notes, 1)]
 
 
 def _parse_on(text):
@@ -724,6 +759,8 @@ def build_parser() -> argparse.ArgumentParser:
     e.add_argument("result", metavar="RESULT.h5", help="result file written by selfcon run")
     e.add_argument("--csv", metavar="DIR", required=True,
                    help="folder for profile.csv, subbands.csv, channels.csv and transitions.csv (created if missing)")
+    e.add_argument("--wavefunctions", action="store_true",
+                   help="also write wavefunctions.csv: z and the envelope psi (nm^-1/2) of every state")
     e.add_argument("--force", action="store_true", help="overwrite existing CSV files")
     e.add_argument("--quiet", action="store_true", help="print nothing (errors still go to stderr)")
     e.set_defaults(func=cmd_export)

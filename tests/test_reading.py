@@ -141,3 +141,82 @@ def test_study_table_drops_duplicates_constants_and_warning_counts():
     text = "\n".join(s.lines())
     assert "1.2586e-294" not in text and "e-294" not in text
     assert "3.00e11" in text                                       # the sheet-density rule: 3 digits
+
+
+def test_materials_is_one_compact_table_with_footnotes(run_cli):
+    code, out, _ = run_cli("materials", "AlGaAs", "--x", "0.3")
+    assert code == 0
+    lines = out.splitlines()
+    assert len(lines) < 120                          # the issue counted 202 lines before (328 with --x 0.3)
+    head = "\n".join(lines[:20])
+    for name in ("eg_gamma", "m_e", "ec_gamma"):      # the values a designer looks for come first
+        assert re.search(rf"│ {name}\s", head), name
+    rows = [l for l in lines if l.startswith("│") and "[" in l]
+    cited = {int(n) for l in rows for n in re.findall(r"\[(\d+)\] │$", l)}
+    notes = [l for l in lines if re.match(r"^\[\d+\] ", l)]
+    assert cited == set(range(1, len(notes) + 1))    # every footnote cited
+    from selfcon.cli import material_rows
+    from selfcon.input import materials
+    _, texts = material_rows(materials.describe("AlGaAs", x=0.3))
+    assert len(texts) == len(notes) == len(set(texts))  # every source once
+    assert sum("Vurgaftman, Meyer and Ram-Mohan" in l for l in lines) < 10   # not on every row
+
+
+@pytest.mark.parametrize("temperature, says, never", [
+    (4.0, "persistent photoconductivity", "no persistent photoconductivity"),
+    (300.0, "no persistent photoconductivity at this temperature", "keep the occupation of the cool-down")])
+def test_dx_warning_speaks_of_its_temperature(temperature, says, never):
+    # DX capture/emission freeze below about 150 K (Mooney, J. Appl. Phys. 67, R1, 1990)
+    from selfcon.output.diagnostics import dx_regime_text
+    text = dx_regime_text(temperature)
+    assert says in text and never not in text and f"{temperature:g} K" in text
+
+
+def test_export_wavefunctions(hemt4_result, tmp_path, run_cli):
+    import numpy as np
+    path = tmp_path / "r.h5"
+    hemt4_result.save(path)
+    code, _, _ = run_cli("export", path, "--csv", tmp_path / "csv", "--wavefunctions", "-q")
+    assert code == 0
+    data = np.genfromtxt(tmp_path / "csv" / "wavefunctions.csv", delimiter=",", names=True)
+    sb = hemt4_result.subbands["electron"]
+    names = data.dtype.names
+    assert names[0].startswith("z") and len(names) == 1 + sum(
+        np.asarray(s.energy).size for s in hemt4_result.subbands.values())
+    z, psi0 = data[names[0]], data[names[1]]
+    assert np.allclose(psi0, np.asarray(sb.wavefunction)[:, 0])         # the file's own psi, E0
+    assert np.trapezoid(psi0 ** 2, z) == pytest.approx(1.0, abs=2e-3)   # normalised (analytic norm 1)
+    run_cli("export", path, "--csv", tmp_path / "csv2")                 # only on request
+    assert not (tmp_path / "csv2" / "wavefunctions.csv").exists()
+
+
+def test_first_readme_command_writes_into_an_ignored_folder_and_runs_twice(tmp_path, run_sub):
+    import shutil
+    from pathlib import Path
+    root = Path(__file__).resolve().parents[1]
+    line = next(l for l in (root / "README.md").read_text(encoding="utf-8").splitlines()
+                if "pip install -e . &&" in l and "selfcon run" in l)
+    command = line.split("pip install -e . && ", 1)[1]
+    assert "/runs/" in (root / ".gitignore").read_text().splitlines()
+    mkdir, run = command.split(" && ")
+    assert mkdir == "mkdir -p runs"
+    argv = run.split()[1:]
+    assert all(a.startswith("runs/") for a in argv if a.endswith((".h5", ".png")))
+    shutil.copytree(root / "inputs", tmp_path / "inputs")
+    (tmp_path / "runs").mkdir()
+    for _ in range(2):                                                  # twice: --force replaces
+        r = run_sub(*argv, "-q", cwd=tmp_path)
+        assert r.returncode == 0, r.stderr
+    assert (tmp_path / "runs" / "hemt_4K.png").is_file()
+
+
+def test_batch_json(tmp_path, run_cli, inputs_dir):
+    import shutil
+    shutil.copy(inputs_dir / "hemt_4K.toml", tmp_path / "base.toml")
+    (tmp_path / "s.toml").write_text('title = "two spacers"\ndeck = "base.toml"\nmode = "grid"\n'
+                                     '[[vary]]\npath = "layer.spacer.thickness"\nvalues = [20.0, 25.0]\n')
+    code, out, _ = run_cli("batch", tmp_path / "s.toml", "--workers", "1", "--out", tmp_path / "o", "--json")
+    assert code == 0
+    d = json.loads(out)                                  # one JSON object and nothing else on stdout
+    assert d["exit_code"] == 0 and d["counts"]["done"] == 2
+    assert d["folder"] == str(tmp_path / "o") and str(tmp_path / "o" / "table.csv") in d["tables"]

@@ -60,6 +60,8 @@ def register(subparsers):
                    help="attempts beyond the first for a job that failed or lost its worker (default 2)")
     b.add_argument("--memory-limit", default="4GiB", help="memory per Dask worker of --scheduler local")
     b.add_argument("--quiet", "-q", action="store_true", help="only the final summary line")
+    b.add_argument("--json", action="store_true",
+                   help="no progress; print one JSON object (folder, exit code, job counts, tables) and nothing else")
     b.set_defaults(func=batch_command)
 
     qp = subparsers.add_parser("queue", help="inspect or requeue the jobs of a study folder")
@@ -104,8 +106,14 @@ def batch_command(args) -> int:
     code, counts, out_dir = run_study(args.study, workers=args.workers, out=args.out, scheduler=args.scheduler,
                                       scheduler_file=args.scheduler_file, cluster=args.cluster,
                                       min_workers=args.min_workers, max_workers=args.max_workers,
-                                      backlog=args.backlog, retries=args.retries, quiet=args.quiet,
+                                      backlog=args.backlog, retries=args.retries,
+                                      quiet=args.quiet or args.json,
                                       memory_limit=args.memory_limit, log_file=args.log, numba_cache=numba_cache)
+    if args.json:
+        folder = Path(out_dir)
+        print(json.dumps({"folder": str(folder), "exit_code": int(code), "counts": dict(counts),
+                          "tables": [str(folder / t) for t in ("table.csv", "table.h5") if (folder / t).is_file()]}))
+        return code
     from selfcon.batch.runner import format_counts
     tail = {0: "", 3: "  (see table.csv)", 130: "  (interrupted: rerun to continue)"}.get(code, "")
     print(f"{out_dir}: {format_counts(counts)}{tail}")

@@ -417,6 +417,20 @@ def dx_window(temperature: float) -> float:
     return max(DX_WINDOW_KT * KB_EV * temperature, DX_WINDOW_EV)
 
 
+def dx_regime_text(temperature: float) -> str:
+    """What Si DX centres do at ``temperature``: below ``DX_FREEZE_HINT_K`` their occupation
+    freezes (a dark cool-down keeps it, light ionises it for good: persistent
+    photoconductivity); above it capture and emission are fast and they hold their
+    equilibrium share of electrons (Mooney, J. Appl. Phys. 67, R1, 1990)."""
+    if temperature < DX_FREEZE_HINT_K:
+        return (f"at {temperature:g} K (below about {DX_FREEZE_HINT_K:g} K) Si DX centres there keep the "
+                "occupation of the cool-down: in the dark they hold electrons the shallow model puts in "
+                "the channel, after illumination they stay ionised (persistent photoconductivity)")
+    return (f"at {temperature:g} K Si DX centres there trap and release electrons fast, so in equilibrium "
+            "they hold electrons the shallow model puts in the channel (no persistent photoconductivity "
+            "at this temperature)")
+
+
 @register_check("dx_centres")
 def check_dx_centres(result, structure, deck=None) -> list[str]:
     window = dx_window(structure.temperature)
@@ -451,9 +465,9 @@ def check_dx_centres(result, structure, deck=None) -> list[str]:
             pos = (f"{1e3 * ed:.0f} meV below the donor level" if ed >= 0 else
                    f"{-1e3 * ed:.0f} meV above the donor level")
             out.append(f"DX-centre regime: in {Li.name!r} (AlGaAs, x = {float(np.nanmax(x)):.2f} > {DX_MIN_X}) "
-                       f"EF lies {pos} (window {1e3 * window:.0f} meV = max(3 kT, 50 meV)); Si donors "
-                       "there trap electrons (persistent photoconductivity, freeze-out); the donors are "
-                       "modelled as shallow: set layer.donor_species = \"Si-DX\" to model the DX level")
+                       f"EF lies {pos} (window {1e3 * window:.0f} meV = max(3 kT, 50 meV)); "
+                       f"{dx_regime_text(structure.temperature)}; the donors are modelled as shallow: "
+                       "set layer.donor_species = \"Si-DX\" to model the DX level")
     return out
 
 

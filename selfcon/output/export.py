@@ -1,5 +1,7 @@
 """CSV tables of a Result: profile.csv (one row per node), subbands.csv (one row per state),
-channels.csv (one row per channel) and transitions.csv (one row per e_n - hh_m / e_n - lh_m pair).
+channels.csv (one row per channel) and transitions.csv (one row per e_n - hh_m / e_n - lh_m pair);
+on request wavefunctions.csv (one row per node: z and psi of every state, columns named as in
+the summary's tables, E0, HH0, LH1, ...).
 
 Headers carry the units, ``z [nm]``, ``conduction_band [eV]``, ``electron_density [cm-3]``,
 so a spreadsheet or ``numpy.genfromtxt(..., names=True)`` needs nothing else.
@@ -22,6 +24,7 @@ CHANNELS_CSV = "channels.csv"
 TRANSITIONS_CSV = "transitions.csv"
 #: every table ``export_csv`` writes, in order
 TABLES = (PROFILE_CSV, SUBBANDS_CSV, CHANNELS_CSV, TRANSITIONS_CSV)
+WAVEFUNCTIONS_CSV = "wavefunctions.csv"
 
 
 def _num(v) -> str:
@@ -35,15 +38,23 @@ def _units(path):
     return RESULT.require(path).units
 
 
-def export_csv(result, dirpath, *, force: bool = True) -> list[Path]:
+def tables(wavefunctions: bool = False) -> tuple[str, ...]:
+    """The file names :func:`export_csv` writes."""
+    return TABLES + ((WAVEFUNCTIONS_CSV,) if wavefunctions else ())
+
+
+def export_csv(result, dirpath, *, force: bool = True, wavefunctions: bool = False) -> list[Path]:
     """Write the tables of :data:`TABLES` into ``dirpath`` (created if missing); returns their paths.
 
     With ``force=False`` existing tables are not overwritten (SelfconInputError).
+    ``wavefunctions``: also write ``wavefunctions.csv``, ``z [nm]`` and the normalised
+    envelope psi [nm-1/2] of every state (columns ``E0``, ``HH0``, ``LH0``, ...; a state
+    is zero outside its quantum region).
     """
     folder = Path(dirpath)
     if folder.exists() and not folder.is_dir():
         raise SelfconInputError("is a file, expected a folder for the CSV tables", file=str(folder))
-    targets = [folder / name for name in TABLES]
+    targets = [folder / name for name in tables(wavefunctions)]
     if not force:
         existing = [str(p) for p in targets if p.exists()]
         if existing:
@@ -104,8 +115,23 @@ def export_csv(result, dirpath, *, force: bool = True) -> list[Path]:
                                                     "overlap"))):
                 w.writerow([int(row[0]), str(row[1]), int(row[2]), _num(row[3]), _num(row[4])])
 
+    def waves(tmp):
+        from selfcon.output.report import state_label
+        unit = _units("subbands/<band>/wavefunction")
+        cols, head = [], [f"z [{DIMS['z'].units}]"]
+        for band, sb in result.subbands.items():
+            psi = np.asarray(sb.wavefunction, dtype=float).reshape(np.asarray(result.z).size, -1)
+            for k in range(psi.shape[1]):
+                head.append(f"{state_label(band, k)} [{unit}]")
+                cols.append(psi[:, k])
+        with open(tmp, "w", newline="", encoding="utf-8") as fh:
+            w = csv.writer(fh)
+            w.writerow(head)
+            for i, z in enumerate(np.asarray(result.z)):
+                w.writerow([_num(z)] + [_num(c[i]) for c in cols])
+
     # each table atomically (temporary file, fsync, rename): an interrupted or failed export
     # leaves an existing table as it was
-    for target, fill in zip(targets, (profile, subbands, channels, transitions)):
+    for target, fill in zip(targets, (profile, subbands, channels, transitions, waves)):
         atomic_write(target, fill, force=force)
     return targets
