@@ -55,6 +55,21 @@ def valley_density(st, phi, edge_cell, nc_cell) -> np.ndarray:
     return (m.wl * left + m.wr * right) / m.w
 
 
+def electron_edge(st, phi, ec) -> np.ndarray:
+    """The band edge of the electrons at the nodes (eV) for the channels and their figures:
+    the Gamma edge ``ec``, or with physics.quantum_valleys the lowest edge of the counted
+    electron bands (Gamma, X/Delta, L): the electrons of a Si well sit in its Delta valleys,
+    2 eV below Gamma."""
+    if not getattr(st, "quantum_valleys", False):
+        return ec
+    edges = [ec] if "electron" in st.carriers else []
+    if "x_electron" in st.carriers:
+        edges.append(right_cell_values(np.minimum(st.cell["ec_x2"], st.cell["ec_x4"])) - phi)
+    if "l_electron" in st.carriers:
+        edges.append(right_cell_values(st.cell["ec_l"]) - phi)
+    return np.minimum.reduce(edges) if edges else ec
+
+
 def valley_parts(st, phi, states) -> dict:
     """carrier name (x_electron, l_electron) -> (classical density, subband density) at the
     nodes (nm^-3) of each counted X/L carrier: the classical rows with the cells of its
@@ -175,6 +190,7 @@ def build_result(deck, st, loop, *, wall_time: float) -> Result:
     n, p, ndp, nam = steps.densities(ws, phi, loop.states)
     ec = right_cell_values(st.cell["ec_gamma"]) - phi
     ev = right_cell_values(st.cell["ev0"]) - phi
+    ec_ch = electron_edge(st, phi, ec)          # the edge the channels of electrons follow
     profile = {
         "conduction_band": ec,
         "conduction_band_x": right_cell_values(st.cell["ec_x"]) - phi,
@@ -210,7 +226,7 @@ def build_result(deck, st, loop, *, wall_time: float) -> Result:
 
     # every band in every quantum region, and the channels (selfcon.output.channels); the
     # classical carriers are those at nodes the loop kept classical, plus the X/L valleys
-    solved = solve_channels(deck, st, loop, n, p, n_valleys, ec, ev)
+    solved = solve_channels(deck, st, loop, n, p, n_valleys, ec_ch, ev)
     an = solved.analysis
     subbands = {}
     for band in BANDS:
@@ -266,7 +282,7 @@ def build_result(deck, st, loop, *, wall_time: float) -> Result:
         "electron_fermi_level_eV": float(st.fermi_levels[0]),
         "hole_fermi_level_eV": float(st.fermi_levels[1]),
         "contacted_carrier": st.contacted,
-        **main_channel_summary(an, st, n, p, ec, ev),
+        **main_channel_summary(an, st, n, p, ec_ch, ev),
         "converged": bool(loop.converged),
         "status": int(loop.status),
         "iterations": len(loop.iterations),

@@ -610,8 +610,9 @@ def check_valley_splitting(result, structure=None, deck=None) -> list[str]:
         if not np.any(hit):
             continue
         k = int(np.flatnonzero(hit)[0])
-        out.append(f"{int(hit.sum())} occupied {STATE_LABEL[band]} subband(s) (the X/Delta valleys along z, "
-                   f"{float(occ[hit].sum()):.3g} cm^-2) are counted {deg[k]:.0f}-fold degenerate: "
+        out.append(f"{int(hit.sum())} occupied subband(s) of the X/Delta valleys along z ({band}, "
+                   f"{STATE_LABEL[band]}0 ..., {float(occ[hit].sum()):.3g} cm^-2) are counted "
+                   f"{deg[k]:.0f}-fold degenerate: "
                    "this model has no valley splitting; the real splitting (tenths of a meV or less "
                    "in Si/SiGe) depends on the interface sharpness and steps, the vertical field "
                    "and the alloy disorder at the interface")
