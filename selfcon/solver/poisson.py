@@ -283,14 +283,26 @@ def neutral_potential(ec0, ev0, nc, nv, nd, ed, na, ea, kT, full_ionization=Fals
             break
         hi += 1.0 + (hi - lo)
     r_lo, r_hi = rho(lo), rho(hi)
-    if r_lo == 0.0:
-        return lo
-    if r_hi == 0.0:
-        return hi
     if not (r_lo > 0 > r_hi):
+        # an end where rho is exactly 0 lies so far out that every density underflowed: the
+        # carriers present cannot neutralise this material (an undoped layer with electrons
+        # only); a far end would be a band edge ~1e18 eV from the Fermi level
         raise ValueError("neutral_potential: no carriers can neutralise this material "
-                         "(nc and nv both zero with net doping?)")
+                         "(an undoped or compensated layer without the carrier of the other "
+                         "sign, or nc and nv both zero with net doping)")
     return brentq(rho, lo, hi, xtol=1e-13, rtol=4 * np.finfo(float).eps, maxiter=500)
+
+
+def can_neutralise(problem, c) -> bool:
+    """Whether the mobile carriers of ``problem`` can make cell c neutral: electrons need
+    net donors (Nd > Na), holes net acceptors, an undoped or exactly compensated cell both.
+    (At a potential far from the gap every dopant is ionised and the carriers of one sign
+    vanish, so rho tends to Nd - Na plus the carriers of the other sign.)"""
+    p = problem
+    electrons = p.nc[c] > 0 or bool(np.any(p.nc_v[:, c] > 0))
+    holes = p.nv[c] > 0 or bool(np.any(p.nv_v[:, c] > 0))
+    net = p.nd[c] - p.na[c]
+    return (electrons and net > 0) or (holes and net < 0) or (electrons and holes)
 
 
 def cell_neutral_potential(problem, c):

@@ -368,7 +368,7 @@ def boundary_conditions(st: Structure):
             out.append((P.DIRICHLET, ec0 - contact.barrier))
         elif contact.kind == "ohmic":
             free = free or classical_problem(st)
-            out.append((P.DIRICHLET, P.cell_neutral_potential(free, c)))
+            out.append((P.DIRICHLET, contact_neutral_potential(st, free, c)))
         else:  # free
             out.append((P.ZERO_FIELD, 0.0))
     return tuple(out)
@@ -431,7 +431,30 @@ def linear_start(st: Structure, bc):
     if k1 == P.DIRICHLET:
         return np.full(z.size, v1)
     mid = st.n_nodes // 2 - 1 if st.n_nodes > 2 else 0
-    return np.full(z.size, P.cell_neutral_potential(classical_problem(st), mid))
+    return np.full(z.size, contact_neutral_potential(st, classical_problem(st), mid))
+
+
+def contact_neutral_potential(st: Structure, problem: P.PoissonProblem, c: int) -> float:
+    """phi (V) of the neutral level of cell c: with the deck's carriers where they can
+    neutralise the cell; otherwise (an undoped layer with ``carriers = ["electron"]``, an
+    n-type one without electrons) the level at which the material itself is neutral, with
+    both bands' density of states (the intrinsic level of an undoped layer), although the
+    carriers of one band are not computed.  Without that fallback no finite level exists:
+    the band edges would land ~1e18 eV from the Fermi level."""
+    if P.can_neutralise(problem, c):
+        return P.cell_neutral_potential(problem, c)
+    cell = st.cell
+    efn, efp = st.fermi_levels
+    nc, nv, kT = cell["nc"][c], cell["nv"][c], problem.kT
+    if problem.nd[c] == problem.na[c]:
+        # undoped (or exactly compensated): n = p, nondegenerate, in closed form:
+        # Nc exp((efn - Ec0 + phi)/kT) = Nv exp((Ev0 - phi - efp)/kT); the root search would
+        # find only underflowed densities at low temperature (exp(-Eg/2kT) = 0 below ~30 K)
+        return float(0.5 * (problem.ec0[c] + cell["ev0"][c] - efn - efp)
+                     + 0.5 * kT * np.log(nv / nc))
+    return P.neutral_potential(problem.ec0[c], cell["ev0"][c], cell["nc"][c], cell["nv"][c],
+                               problem.nd[c], problem.ed[c], problem.na[c], problem.ea[c],
+                               kT, problem.full_ionization, efn=efn, efp=efp)
 
 
 def interpolate_guess(st: Structure, guess):
