@@ -122,6 +122,9 @@ BAD_DECKS = [
           "temperature = 0"),
     _case("temperature_negative", _swap("temperature = 4.2", "temperature = -4.2"), "temperature",
           "temperature = -4.2"),
+    # below the 0.01 K the statistics support (README.md, "Sanity checks")
+    _case("temperature_ultra_low", _swap("temperature = 4.2", "temperature = 1e-4"), "temperature",
+          "temperature = 1e-4"),
     _case("temperature_missing", _swap("temperature = 4.2\n", ""), "temperature"),
     _case("overlapping_regions", _swap("regions = [[10.0, 150.0]]",
                                        "regions = [[10.0, 60.0], [50.0, 150.0]]"),

@@ -196,7 +196,7 @@ def test_top_level_key_after_a_table_gets_a_hint(good_deck_text):
 
 def test_error_messages_carry_units(good_deck_text):
     cases = {"thickness = 10.0": ("thickness = -1", ">= 0.1 nm"),   # half a monolayer, issue 12
-             "temperature = 4.2": ("temperature = 2000", "(0, 1000] K"),
+             "temperature = 4.2": ("temperature = 2000", "[0.01, 1000] K"),
              "sheet_donors = 4e12": ("sheet_donors = -1", "cm^-2"),
              'thickness = 40.0': ('thickness = "x"', "number (nm)")}
     for old, (new, unit) in cases.items():

@@ -133,10 +133,20 @@ SOLVER_METHODS = ("predictor-corrector", "anderson", "linear")
 #: common practice); anything thinner is a unit mistake (a thickness typed in metres or cm)
 MIN_THICKNESS = 0.1
 
+#: K, the temperature range the carrier statistics support (README.md, "Sanity checks").
+#: Below 0.01 K kT (< 1e-6 eV) is so far below every level spacing that the occupancies
+#: are steps the Newton solves of the loop no longer resolve (inputs/design/2dhg_4K.toml
+#: stops unconverged at 1e-6 K; every shipped deck converges to its 4 K answer at 0.01 K).
+#: Above 1000 K the models stop making sense: the band gaps' Varshni fits are made below
+#: about 900 K and the III-V's decompose or melt near 1000-1500 K (from memory).
+MIN_TEMPERATURE = 0.01
+MAX_TEMPERATURE = 1000.0
+
 _TOP = {
     "title": KeySpec("string", "-", "", "free text, shown in reports and stored in results"),
     "temperature": KeySpec("number", "K", REQUIRED, "lattice and carrier temperature",
-                           lo=0.0, lo_open=True, hi=1000.0),
+                           lo=MIN_TEMPERATURE, hi=MAX_TEMPERATURE,
+                           below="the carrier statistics are not resolved below 0.01 K"),
 }
 _CONTACT = {
     "contact": KeySpec("string", "-", REQUIRED,
@@ -184,7 +194,8 @@ _LAYER = {
     "dx_freeze_temperature": KeySpec("number", "K", None, "Si-DX only: dark cool-down; the DX "
                                      "occupation is that of equilibrium at this temperature (gate "
                                      "unbiased) and kept at the run temperature (no effect when the "
-                                     "run is not colder)", lo=0.0, lo_open=True, hi=1000.0),
+                                     "run is not colder)", lo=MIN_TEMPERATURE,
+                                     hi=MAX_TEMPERATURE),
     "dx_state": KeySpec("string", "-", "equilibrium", "Si-DX only: equilibrium (dark) or ionized "
                         "(illuminated: every DX centre ionised, persistent photoconductivity)",
                         choices=DX_STATES),

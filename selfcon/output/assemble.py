@@ -19,6 +19,8 @@ from selfcon.output.channels import OCCUPIED_CM2, OCCUPIED_FRACTION  # noqa: F40
 from selfcon.output.diagnostics import design_warnings
 from selfcon.output.heading import OVERRIDES_KEY, override_notes
 from selfcon.output.result import Result, Subbands, utc_now
+from selfcon.output.sanity import sanity_failures
+from selfcon.solver.control import MESSAGES, Status
 from selfcon.output import schema
 from selfcon.output.schema import BANDS
 from selfcon.solver.poisson import electric_field
@@ -333,4 +335,12 @@ def build_result(deck, st, loop, *, wall_time: float) -> Result:
         transitions=solved.transitions)
     result.warnings = list(design_warnings(result, st, deck))
     result.summary["warnings"] = list(result.warnings)
+    if result.converged:
+        failures = sanity_failures(result, st, deck)
+        if failures:        # never call garbage converged (selfcon/output/sanity.py)
+            result.converged = False
+            result.summary["converged"] = False
+            result.summary["status"] = int(Status.UNPHYSICAL)
+            result.message = MESSAGES[Status.UNPHYSICAL].format(
+                iterations=len(loop.iterations), detail="; ".join(failures))
     return result

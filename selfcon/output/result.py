@@ -166,7 +166,8 @@ class Result:
     def status(self) -> int:
         """How the solve ended, a :class:`selfcon.solver.control.Status` (an int): 0
         ``CONVERGED``, 1 ``MAX_ITERATIONS``, 2 ``DIVERGED``, 3 ``OSCILLATING``, 4
-        ``NO_PROGRESS``, 5 ``STOPPED`` (by the progress callback).  Stored as the summary
+        ``NO_PROGRESS``, 5 ``STOPPED`` (by the progress callback), 6 ``UNPHYSICAL`` (converged,
+        but a sanity check of selfcon/output/sanity.py failed).  Stored as the summary
         attribute ``status``; a file without it gives 0 or 1 from ``converged``.
 
         Examples

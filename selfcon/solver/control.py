@@ -62,6 +62,8 @@ class Status(enum.IntEnum):
     ``OSCILLATING`` 3: the residual oscillates without decreasing, even damped.
     ``NO_PROGRESS`` 4: the residual keeps growing at the smallest mixing factor.
     ``STOPPED`` 5: the progress callback raised ``StopIteration``.
+    ``UNPHYSICAL`` 6: the loop converged but the result failed a physical sanity check
+    (``selfcon/output/sanity.py``): Gauss's law, band edges, densities or field.
     """
 
     CONVERGED = 0
@@ -70,6 +72,7 @@ class Status(enum.IntEnum):
     OSCILLATING = 3
     NO_PROGRESS = 4
     STOPPED = 5
+    UNPHYSICAL = 6
 
 
 #: status -> message template; fields: iterations, residual (V), tolerance (V), detail, advice
@@ -85,6 +88,8 @@ MESSAGES = {
                         "here; {advice}",
     Status.STOPPED: "stopped by the progress callback after {iterations} iterations "
                     "(max |dphi| = {residual:.2e} V){detail}",
+    Status.UNPHYSICAL: "converged in {iterations} iterations, but the result is not physical: "
+                       "{detail}",
 }
 
 _PC = 'solver.method = "predictor-corrector"'
