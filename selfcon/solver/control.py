@@ -88,8 +88,8 @@ MESSAGES = {
                         "here; {advice}",
     Status.STOPPED: "stopped by the progress callback after {iterations} iterations "
                     "(max |dphi| = {residual:.2e} V){detail}",
-    Status.UNPHYSICAL: "converged in {iterations} iterations, but the result is not physical: "
-                       "{detail}",
+    Status.UNPHYSICAL: "the loop settled in {iterations} iterations, but the result is "
+                       "unphysical: {detail}",
 }
 
 _PC = 'solver.method = "predictor-corrector"'
