@@ -11,7 +11,7 @@ and the numbers (the command line exits 3, the file is still written).  The limi
 ``gauss``
     Gauss's law of the final potential and charge, ``summary["gauss_residual"]``: the
     violation relative to the larger of the two boundary displacement fluxes and the
-    stack's net charge (the fixed charge the contacts balance; a floor of 1e6 cm^-2, see
+    stack's charge counted without sign, fixed and mobile (a floor of 1e6 cm^-2, see
     ``selfcon/solver/poisson.py::gauss_residual``), at most :data:`GAUSS_LIMIT`.
 ``band_edges``
     Every conduction- and valence-band edge within +-(largest gap of the stack + |bias| +

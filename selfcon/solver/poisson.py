@@ -356,14 +356,18 @@ def gauss_residual(problem, phi, rho=None):
 
     With E = -dphi/dz, d(eps E)/dz = Q_EPS0 rho, so
         eps E|_bottom - eps E|_top = Q_EPS0 * int rho dz      (sheets included).
-    Returns |lhs - rhs| / max(|eps E_top|, |eps E_bottom|, |rhs|, floor), the floor being the
-    flux of GAUSS_FLOOR_CM2 of charge: in an uncharged stack (an undoped well between
-    neutral contacts) the fluxes are round-off of phi, and their ratio would measure nothing.
-    ``rho``: the node charge at ``phi`` if the caller has it already."""
+    Returns |lhs - rhs| / max(|eps E_top|, |eps E_bottom|, Q_EPS0 int |rho| dz, floor): the
+    violation relative to the boundary fluxes or the charge of the stack counted without
+    sign, whichever is larger (a stack between two zero-field ends, whose charge is all
+    carriers moved across a broken gap, has no boundary flux to compare with), the floor
+    being the flux of GAUSS_FLOOR_CM2 of charge: in an uncharged stack (an undoped well
+    between neutral contacts) the fluxes are round-off of phi, and their ratio would
+    measure nothing.  ``rho``: the node charge at ``phi`` if the caller has it already."""
     if rho is None:
         rho = densities(problem, phi).rho
     d0, dl = boundary_flux(problem, phi, rho)
     lhs = (-dl) - (-d0)
     rhs = Q_EPS0 * float(np.sum(rho * problem.w))
-    scale = max(abs(d0), abs(dl), abs(rhs), Q_EPS0 * GAUSS_FLOOR_CM2 / CM2_PER_NM2)
+    total = Q_EPS0 * float(np.sum(np.abs(rho) * problem.w))
+    scale = max(abs(d0), abs(dl), total, Q_EPS0 * GAUSS_FLOOR_CM2 / CM2_PER_NM2)
     return abs(lhs - rhs) / scale
