@@ -2,7 +2,7 @@
 
     python tools/bench.py [NAMES...] [--json PATH] [--strict]
 
-NAMES (default: all but compare): floor scaling mesh iterations xc startup batch coordinator compare
+NAMES (default: all but compare): floor scaling mesh iterations xc nonparabolic startup batch coordinator compare
 
   floor       warm solve time of each example deck (hemt_4K, hemt_300K, the strained
               pHEMT phemt_double_delta and the nitride HEMT algan_aln_gan_hemt) / kernel
@@ -23,6 +23,8 @@ NAMES (default: all but compare): floor scaling mesh iterations xc startup batch
               "lda") on the two HEMT decks and the nitride HEMT: LDA iterations (target
               <= 15; the predictor's Jacobian has no dV_xc/dn), LDA warm solve / kernel
               floor (target <= 2.5), E1-E0 LDA/Hartree.
+  nonparabolic parabolic vs nonparabolic Gamma electrons (physics.nonparabolicity) on the
+              two HEMT decks: iterations (<= 15), solve-time ratio, ground in-plane mass.
   startup     new-process wall time of `import selfcon` and of `selfcon run` with the numba
               cache warm and cold; targets 0.5 s and 1.5 s (warm).
   batch       runs tools/bench_batch.py if it exists.
@@ -218,6 +220,31 @@ def bench_xc():
             note=f"{e_h * 1e3:.2f} -> {e_x * 1e3:.2f} meV, n_s {ns(hr):.3e} -> {ns(r):.3e} cm^-2")
         # exchange-correlation attracts the electrons: the spacing and n_s grow (never shrink)
         check(e_x > e_h and ns(r) >= ns(hr), f"xc {name}: LDA raises E1-E0 and n_s")
+
+
+def bench_nonparabolic():
+    """Parabolic vs nonparabolic Gamma electrons (physics.nonparabolicity) on the two HEMT
+    decks: iterations, warm solve time (each state's energy iteration costs extra
+    single-state eigensolves) and what it changes."""
+    import selfcon
+    for name in ("4K", "300K"):
+        out = {}
+        for flag in ("false", "true"):
+            d = deck(name, f"physics.nonparabolicity={flag}")
+            selfcon.solve(d)                               # warm
+            t, r = solve_timed(d, repeat=5)
+            check(r.converged, f"nonparabolic {name} {flag}: converged ({r.message})")
+            out[flag] = (r, t)
+        (pr, pt), (r, t) = out["false"], out["true"]
+        row("nonparabolic", f"hemt_{name}", "iterations", r.iterations, "it", "<= 15",
+            r.iterations <= 15, note=f"parabolic {pr.iterations} it")
+        row("nonparabolic", f"hemt_{name}", "solve time ratio", t / pt, "x",
+            note=f"{t * 1e3:.0f} ms vs parabolic {pt * 1e3:.0f} ms")
+        m0, m1 = pr.subbands["electron"].in_plane_mass[0], r.subbands["electron"].in_plane_mass[0]
+        row("nonparabolic", f"hemt_{name}", "ground in-plane mass", m1, "m0",
+            note=f"parabolic {m0:.4f}; E1-E0 {pr.summary['E1_minus_E0_eV'] * 1e3:.2f} -> "
+                 f"{r.summary['E1_minus_E0_eV'] * 1e3:.2f} meV, n_s {ns(pr):.4e} -> {ns(r):.4e}")
+        check(m1 > m0, f"nonparabolic {name}: the in-plane mass grows")
 
 
 # --------------------------------------------------------------------------- scaling
@@ -640,10 +667,11 @@ def bench_decks():
 
 # --------------------------------------------------------------------------- main
 
-BENCHES = ("floor", "scaling", "mesh", "iterations", "xc", "startup", "batch", "coordinator", "decks",
-           "compare")
+BENCHES = ("floor", "scaling", "mesh", "iterations", "xc", "nonparabolic", "startup", "batch",
+           "coordinator", "decks", "compare")
 #: run when no name is given (compare needs a base commit and a few minutes: by name only)
-DEFAULT_BENCHES = ("floor", "scaling", "mesh", "iterations", "xc", "startup", "batch", "coordinator", "decks")
+DEFAULT_BENCHES = ("floor", "scaling", "mesh", "iterations", "xc", "nonparabolic", "startup", "batch",
+                   "coordinator", "decks")
 
 
 def machine():
@@ -710,6 +738,8 @@ def main(argv=None):
             bench_iterations(a.quick)
         elif n == "xc":
             bench_xc()
+        elif n == "nonparabolic":
+            bench_nonparabolic()
         elif n == "startup":
             bench_startup()
         elif n == "batch":

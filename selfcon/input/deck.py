@@ -324,8 +324,10 @@ _PHYSICS = {
         "potential in each carrier's Schrödinger equation, Hedin-Lundqvist 1971 as used by "
         "Stern and Das Sarma 1984) | lda-gl (the Gunnarsson-Lundqvist 1976 parametrization)",
         choices=EXCHANGE_CORRELATION),
-    "nonparabolicity": KeySpec("boolean", "-", False, "energy-dependent Gamma electron mass "
-                               "(not implemented in this version: only false is accepted)"),
+    "nonparabolicity": KeySpec("boolean", "-", False, "true: Gamma electrons with the "
+                               "energy-dependent mass m*(E) = m*_edge (1 + (E - Ec(z))/Eg_eff) "
+                               "(Nelson, Miller and Kleinman 1987), in the subband energies, "
+                               "in-plane masses and 2D density of states"),
     "quantum_valleys": KeySpec(
         "boolean", "-", False, "true: the X/Delta and L electrons that physics.carriers counts "
         "(x_electron, l_electron) are subbands in the quantum regions, per valley set of the "
@@ -1581,9 +1583,6 @@ def _physics(ctx, t):
     polarization = ctx.get(t, "polarization", _PHYSICS["polarization"], p)
     xc = ctx.get(t, "exchange_correlation", _PHYSICS["exchange_correlation"], p)
     nonparabolic = ctx.get(t, "nonparabolicity", _PHYSICS["nonparabolicity"], p)
-    if nonparabolic:
-        raise ctx.error("physics.nonparabolicity", "true is not implemented in this version",
-                        allowed=(False,))
     quantum_valleys = ctx.get(t, "quantum_valleys", _PHYSICS["quantum_valleys"], p)
     return Physics(carriers=carriers, ionization=ionization, contacted_carrier=contacted,
                    polarity=polarity, polarization=float(polarization), exchange_correlation=xc,

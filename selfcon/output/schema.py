@@ -326,7 +326,9 @@ _r("subbands/<band>/wavefunction", "nm-1/2", "envelope function",
    "envelope function psi(z) per state (columns), integral of |psi|^2 dz = 1, zero outside its quantum region",
    dims=("z", "state"))
 _r("subbands/<band>/in_plane_mass", "m0", "in-plane effective mass",
-   "in-plane effective mass used for the 2D density of states", dims=("state",))
+   "in-plane effective mass used for the 2D density of states (with physics.nonparabolicity, for Gamma "
+   "electrons: the subband-bottom mass times the density-of-states rise over its carriers' mean in-plane "
+   "energy, selfcon/solver/nonparabolic.py)", dims=("state",))
 _r("subbands/<band>/region", "1", "quantum region",
    "index of the quantum region (/mesh/quantum_regions) holding the state", dims=("state",))
 _r("subbands/<band>/degeneracy", "1", "valley degeneracy",

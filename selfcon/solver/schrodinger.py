@@ -19,7 +19,7 @@ import numpy as np
 from selfcon.constants import HBAR2_2M0  # noqa: F401  (documented unit of the operator)
 from selfcon.model.mesh import half_widths
 
-__all__ = ["EigenWorkspace", "solve_region", "count_below", "bound_states", "bound_states_cells",
+__all__ = ["EigenWorkspace", "solve_region", "solve_region_state", "count_below", "bound_states", "bound_states_cells",
            "in_plane_mass", "in_plane_weights", "thermal_in_plane_energy"]
 
 
@@ -53,14 +53,15 @@ class EigenWorkspace:
         self.d = np.empty(m)
         self.e = np.empty(max(m - 1, 0))
 
-    def eigh(self, k):
-        """Lowest k eigenpairs of the tridiagonal (self.d, self.e): (values (k,), vectors (m, k))."""
+    def eigh(self, k, first=1):
+        """Eigenpairs ``first``..``k`` (1-based, lowest first) of the tridiagonal (self.d,
+        self.e), by default the lowest k: (values, vectors (m, k - first + 1))."""
         m = self.d.size
         if m == 1:
             return self.d.copy(), np.ones((1, 1))
         # range=2 (by index), il..iu 1-based; abstol 0 -> LAPACK default eps*|B|;
         # order 'B' (by block) is what dstein expects.
-        nfound, w, iblock, isplit, info = self._stebz(self.d, self.e, 2, 0.0, 1.0, 1, k, 0.0, "B")
+        nfound, w, iblock, isplit, info = self._stebz(self.d, self.e, 2, 0.0, 1.0, first, k, 0.0, "B")
         if info != 0:
             raise RuntimeError(f"tridiagonal bisection (LAPACK dstebz) failed, info={info}")
         w = w[:nfound]  # dstein takes m = len(w); iblock/isplit stay full length
@@ -69,6 +70,26 @@ class EigenWorkspace:
             raise RuntimeError(f"inverse iteration (LAPACK dstein) failed to converge, info={info}")
         order = np.argsort(w, kind="stable")
         return w[order], v[:, order]
+
+
+def solve_region_state(h_cell, w, v_node, inv_mass_cell, index: int, workspace=None):
+    """The single state number ``index`` (0 = lowest) of :func:`solve_region`'s problem:
+    (energy eV, psi (n,)), by bisection for that one eigenvalue and inverse iteration
+    (O(n); the energy iteration of selfcon.solver.nonparabolic calls it per state)."""
+    n = w.size
+    if workspace is None:
+        workspace = EigenWorkspace(n)
+    else:
+        workspace.resize(n)
+    kern = _kernels()
+    kern.assemble_tridiagonal(np.ascontiguousarray(h_cell, dtype=float), w,
+                              np.ascontiguousarray(v_node, dtype=float),
+                              np.ascontiguousarray(inv_mass_cell, dtype=float),
+                              workspace.d, workspace.e)
+    energies, u = workspace.eigh(index + 1, first=index + 1)
+    psi = np.empty((n, 1))
+    kern.vectors_to_wavefunctions(np.ascontiguousarray(u), w, psi)
+    return float(energies[0]), psi[:, 0]
 
 
 def count_below(d, e, x) -> int:

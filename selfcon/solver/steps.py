@@ -505,7 +505,7 @@ def solve_states(ws: Workspace, phi) -> dict:
                     break
                 k = min(2 * k, MAX_STATES)
                 ws.n_states[band] = k
-            m_par, weight = in_plane_motion(st, band, e, psi)
+            m_par, weight = in_plane_motion(st, band, e, psi, phi, ws.vxc.get(band))
             energies.append(e)
             psis.append(psi)
             mpar.append(m_par)
@@ -555,6 +555,8 @@ def update_exchange(ws: Workspace, phi, states=None, states_phi=None) -> float:
         shift = np.asarray(phi) - np.asarray(states_phi)
         n, p = np.zeros(st.n_nodes), np.zeros(st.n_nodes)
         for bs in states.values():
+            if bs.band not in BAND_SPECS:       # X/L valley subbands: a gas of their own
+                continue
             if bs.sign > 0:
                 n += subband_profile(st, bs, shift)
             else:
@@ -600,21 +602,66 @@ def region_eigenstates(st: Structure, phi, band: str, r_idx: int, n_states: int,
     e, p = schrodinger.solve_region(part.h, part.w, kinetic,
                                     1.0 / st.cell[mass_key][i0:i1], n_states, workspace=workspace,
                                     below=below)
+    if e.size and nonparabolic_band(st, band):     # energy-dependent mass: iterate each state
+        from selfcon.solver import nonparabolic
+        e, p, _ = nonparabolic.refine_states(part.h, part.w, kinetic, st.cell[mass_key][i0:i1],
+                                             cell_edge(st, band, phi, vxc)[i0:i1],
+                                             effective_gap(st)[i0:i1], e, workspace)
     full = np.zeros((n, e.size))
     full[sl, :] = p
     return sign * e, full
 
 
-def in_plane_motion(st: Structure, band: str, energy, psi):
+def in_plane_motion(st: Structure, band: str, energy, psi, phi=None, vxc=None):
     """The in-plane motion of the states of one region (selfcon.solver.schrodinger.
     in_plane_weights): the in-plane masses (k,) m0 and the density weights (N, k), such that
     the charge of nearly degenerate states does not depend on their mixture.  ``energy``
-    on the electron scale; the carrier's own Fermi level."""
+    on the electron scale; the carrier's own Fermi level.  A nonparabolic band
+    (selfcon.solver.nonparabolic) takes its density-of-states masses at the potential
+    ``phi`` (and ``vxc``) its states were solved at."""
     from selfcon.solver import schrodinger
-    par_key, sign = ALL_BANDS[band][2], ALL_BANDS[band][3]
+    _, mass_key, par_key, sign, _ = ALL_BANDS[band]
     fermi = st.fermi_levels[0 if sign > 0 else 1]
-    return schrodinger.in_plane_weights(sign * np.asarray(energy), psi, st.mesh.w,
-                                        st.node_average(st.cell[par_key]), st.kT, sign * fermi)
+    m_node = st.node_average(st.cell[par_key])
+    mass, weight = schrodinger.in_plane_weights(sign * np.asarray(energy), psi, st.mesh.w,
+                                                m_node, st.kT, sign * fermi)
+    if nonparabolic_band(st, band) and len(mass):
+        from selfcon.solver import nonparabolic
+        if phi is None:
+            raise ValueError("in_plane_motion of a nonparabolic band needs the potential phi")
+        edge, eg, m_edge = cell_edge(st, band, phi, vxc), effective_gap(st), st.cell[mass_key]
+        slopes = [nonparabolic.energy_slope(st.mesh.h, psi[:, k], energy[k], m_edge, edge, eg)
+                  for k in range(len(mass))]
+        dos_mass, _ = nonparabolic.in_plane_masses(psi, st.mesh.w, energy, slopes, m_node,
+                                                   st.node_average(edge), st.node_average(eg),
+                                                   st.kT, fermi)
+        # the nonparabolic/parabolic ratio of each state's mass, on the blend of nearly
+        # degenerate states that in_plane_weights made
+        mass = mass * dos_mass / schrodinger.in_plane_mass(psi, st.mesh.w, m_node)
+    return mass, weight
+
+
+def nonparabolic_band(st: Structure, band: str) -> bool:
+    """True for the band the energy-dependent mass applies to: Γ electrons, when the deck
+    asks for physics.nonparabolicity."""
+    return band == "electron" and bool(st.nonparabolicity)
+
+
+def cell_edge(st: Structure, band: str, phi, vxc=None) -> np.ndarray:
+    """(N-1,) eV: the band edge each cell's carriers see on their kinetic scale (the cell's
+    edge minus its mean potential, plus the exchange-correlation potential if given)."""
+    edge_key, _, _, sign, _ = ALL_BANDS[band]
+    phi = np.asarray(phi, dtype=float)
+    out = sign * (st.cell[edge_key] - 0.5 * (phi[:-1] + phi[1:]))
+    if vxc is not None:
+        out = out + 0.5 * (vxc[:-1] + vxc[1:])
+    return out
+
+
+def effective_gap(st: Structure) -> np.ndarray:
+    """(N-1,) eV: E_g,eff of the nonparabolic mass per cell (selfcon.solver.nonparabolic)."""
+    from selfcon.solver.nonparabolic import effective_gap as gap
+    return gap(st.cell["eg_gamma"], st.cell["delta_so"])
 
 
 def region_states(st: Structure, phi, band: str, r_idx: int, n_states: int, workspace=None, below=None):
@@ -624,7 +671,7 @@ def region_states(st: Structure, phi, band: str, r_idx: int, n_states: int, work
     e, psi = region_eigenstates(st, phi, band, r_idx, n_states, workspace, below=below)
     if e.size == 0:
         return e, psi, np.empty(0)
-    return e, psi, in_plane_motion(st, band, e, psi)[0]
+    return e, psi, in_plane_motion(st, band, e, psi, phi)[0]
 
 
 def classical_sheet(ws: Workspace, phi, band, i0, i1) -> float:
@@ -687,7 +734,7 @@ def gauss_residual(ws: Workspace, phi, states, rho=None) -> float:
 __all__ = ["BAND_SPECS", "VALLEY_BANDS", "ALL_BANDS", "bands_of", "carrier_of", "state_degeneracy",
            "masked_valley_dos", "valley_row_bands", "VALLEYS", "BandStates", "Workspace", "boundary_conditions",
            "initial_guess", "start_levels", "linear_start", "interpolate_guess", "solve_states",
-           "update_exchange", "subband_profile",
+           "update_exchange", "subband_profile", "nonparabolic_band", "cell_edge",
            "region_states", "region_eigenstates", "in_plane_motion",
            "poisson_pass", "charge_residual", "densities", "mobile_sheets", "gauss_residual",
            "classical_problem", "valley_arrays", "with_states"]
