@@ -2,15 +2,20 @@
 
     -d/dz( hbar^2 / (2 m(z)) dpsi/dz ) + V(z) psi = E psi,   psi = 0 at both ends.
 
-Discretisation (see selfcon/kernels/schrodinger.py): one mass per cell, potential
+Discretisation (see selfcon/solver/kernels/schrodinger.py): one mass per cell, potential
 at nodes (dual-cell averages), lumped mass matrix W = diag(w), symmetrised into a
 real symmetric tridiagonal matrix B = W^{-1/2} A W^{-1/2}.  The lowest k eigenpairs
-of B come from LAPACK bisection (dstebz) plus inverse iteration (dstein): both
-are O(N) per eigenpair, dstein re-orthogonalises eigenvectors whose eigenvalues
-are close (tunnel-split doublets), and no N x N array is ever formed.  Measured
-with tools/bench_eigen.py.  (The multiple-relatively-robust-representations
-driver dstemr is *not* used: scipy allocates an N x N eigenvector array for it,
-which makes it quadratic in N.)
+of B come from selfcon/solver/kernels/eigen.py: bisection on Sturm counts at several
+shifts per pass, inverse iteration, and a symmetric orthogonalisation inside clusters of
+close eigenvalues (superlattice minibands, tunnel-split doublets).  Its cost is O(N k) for
+separated states and O(N c^2) for a cluster of c; no N x N array is ever formed.
+``EigenWorkspace(method="lapack")`` keeps LAPACK bisection (dstebz) plus inverse
+iteration (dstein), whose re-orthogonalisation spans every state within 1e-3 ||B|| and
+so grows as N k^2 once states cluster: the baseline of ``tools/bench.py eigen``.  LAPACK's
+dstemr (multiple relatively robust representations) is not used: scipy's wrapper
+allocates an N x N eigenvector array, and called directly on the 100-period
+superlattice it stops with an internal error (INFO = 22) for k >= 100.  DEVELOPERS.md,
+"The eigen-solve", has the measurements.
 
 Units: nm, eV, masses in m0.
 """
@@ -19,7 +24,8 @@ import numpy as np
 from selfcon.constants import HBAR2_2M0  # noqa: F401  (documented unit of the operator)
 from selfcon.model.mesh import half_widths
 
-__all__ = ["EigenWorkspace", "solve_region", "solve_region_state", "count_below", "bound_states", "bound_states_cells",
+__all__ = ["EIGEN_METHODS", "EigenWorkspace", "solve_region", "solve_region_state", "count_below",
+           "bound_states", "bound_states_cells",
            "in_plane_mass", "in_plane_weights", "thermal_in_plane_energy"]
 
 
@@ -29,18 +35,26 @@ def _kernels():
     return schrodinger
 
 
+#: the eigen-solvers of :class:`EigenWorkspace`
+EIGEN_METHODS = ("clustered", "lapack")
+
+
 class EigenWorkspace:
     """Reusable buffers for repeated solves on the same sub-mesh size.
 
     The self-consistent loop solves the same region ~20 times per run; passing one
-    workspace avoids re-allocating the tridiagonal arrays and re-looking-up the
-    LAPACK routines.  A workspace silently resizes itself if the mesh size changes.
+    workspace avoids re-allocating the tridiagonal arrays.  A workspace silently resizes
+    itself if the mesh size changes.  ``method``: ``"clustered"`` (the default:
+    selfcon/solver/kernels/eigen.py) or ``"lapack"`` (dstebz + dstein, the baseline the
+    benchmark compares against).  Workspaces are not shared between threads: each
+    (band, region) of a solve owns one.
     """
 
-    def __init__(self, n_nodes=0):
-        from scipy.linalg import get_lapack_funcs
-        probe = np.zeros(1)
-        self._stebz, self._stein = get_lapack_funcs(("stebz", "stein"), (probe, probe))
+    def __init__(self, n_nodes=0, method="clustered"):
+        if method not in EIGEN_METHODS:
+            raise ValueError(f"EigenWorkspace: method must be one of {EIGEN_METHODS}, got {method!r}")
+        self.method = method
+        self._stebz = self._stein = None
         self.n = -1
         self.resize(n_nodes)
 
@@ -55,10 +69,22 @@ class EigenWorkspace:
 
     def eigh(self, k, first=1):
         """Eigenpairs ``first``..``k`` (1-based, lowest first) of the tridiagonal (self.d,
-        self.e), by default the lowest k: (values, vectors (m, k - first + 1))."""
+        self.e), by default the lowest k: (values, vectors (m, k - first + 1)).  The
+        clustered solver takes the lowest k; a window above them (one state of the
+        non-parabolic iteration, selfcon/solver/nonparabolic.py) is LAPACK's."""
         m = self.d.size
         if m == 1:
             return self.d.copy(), np.ones((1, 1))
+        if self.method == "clustered" and first == 1:
+            from selfcon.solver.kernels.eigen import lowest_eigenpairs
+            w = np.empty(k)
+            z = np.empty((k, m))
+            lowest_eigenpairs(self.d, self.e, k, w, z)
+            return w, z.T
+        if self._stebz is None:
+            from scipy.linalg import get_lapack_funcs
+            probe = np.zeros(1)
+            self._stebz, self._stein = get_lapack_funcs(("stebz", "stein"), (probe, probe))
         # range=2 (by index), il..iu 1-based; abstol 0 -> LAPACK default eps*|B|;
         # order 'B' (by block) is what dstein expects.
         nfound, w, iblock, isplit, info = self._stebz(self.d, self.e, 2, 0.0, 1.0, first, k, 0.0, "B")

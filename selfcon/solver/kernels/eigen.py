@@ -1,0 +1,354 @@
+"""Numba kernels: the k lowest eigenpairs of a real symmetric tridiagonal matrix in O(m k)
+work for well separated eigenvalues, with orthogonal vectors inside clusters.
+
+    T = tridiag(e, d, e),  d (m,), e (m-1,);  the k lowest (lambda_j, u_j), u_j^T u_i = delta_ij.
+
+Three stages, all arrays in and arrays out (``nogil``: regions and bands run in parallel
+threads, selfcon/solver/steps.py::solve_states):
+
+1. **Eigenvalues by bisection on Sturm counts** (Golub and Van Loan, Matrix Computations,
+   4th ed. 2013, section 8.4.1; the safeguarded count of Kahan, with the tiny-pivot
+   replacement of LAPACK's dlaebz).  A count costs one division per node on a dependency
+   chain, so counts at ``LANES`` different shifts are evaluated in one pass over the
+   matrix: the lanes are independent chains the processor overlaps.  Every count narrows
+   the brackets of *all* wanted eigenvalues (the count is the number of eigenvalues below
+   the shift), so the coarse separation is shared.  A bracket stops shrinking once its
+   width is below ``GAP_FRACTION`` times the distance to its neighbours' brackets (inverse
+   iteration from its midpoint then converges by that factor per step) or below the
+   absolute floor ``2 eps ||T||`` (degenerate pairs).
+2. **Vectors by inverse iteration** from the bracket midpoint: Gaussian elimination with
+   partial pivoting of T - sigma I (tiny pivots replaced by eps ||T||, as LAPACK's dlagtf
+   and dstein do), ``INVERSE_STEPS`` solves from a fixed pseudo-random start.
+3. **Orthogonality inside clusters.**  Eigenvalues closer than ``CLUSTER_GAP`` ||T||
+   (the absolute error eps ||T|| of a backward-stable solve over such a gap would exceed
+   1e-12 in the vectors' overlap) form a cluster; its vectors, each computed on its own,
+   are symmetrically orthogonalised (Loewdin, J. Chem. Phys. 18, 365, 1950: V <- G^{-1/2} V
+   with the Gram matrix G), which changes each vector least and does not depend on an
+   order.  If G is far from the identity (eigenvalues tunnel-split below the solver's
+   resolution, so two solves return the same vector), that cluster is redone as LAPACK's
+   dstein does: each iterate is orthogonalised against the cluster's earlier vectors
+   before every solve (modified Gram-Schmidt, twice at the end).
+
+Without a representation tree the cost of a cluster of c vectors is O(m c^2) (the Gram
+matrix and its application); superlattice minibands are such clusters.  Eigenvalues are
+finally the Rayleigh quotients of the vectors, kept inside their brackets.
+
+The choice of this method over LAPACK's dstemr (multiple relatively robust
+representations) and dstebz + dstein is measured in ``tools/bench.py eigen`` and recorded
+in DEVELOPERS.md, "The eigen-solve".
+"""
+import numba
+import numpy as np
+
+#: shifts whose Sturm counts are evaluated together in one pass over the matrix
+LANES = 8
+#: a bracket is fine enough once narrower than this fraction of the gap to its neighbours
+GAP_FRACTION = 1e-4
+#: solves of inverse iteration per vector (the error falls by GAP_FRACTION per solve)
+INVERSE_STEPS = 3
+#: eigenvalues closer than CLUSTER_GAP * ||T|| have their vectors orthogonalised together
+#: (eps ||T|| / gap <= 1e-12 for a backward-stable solve: 2.2e-16 / 2.2e-4)
+CLUSTER_GAP = 2.2e-4
+#: smallest eigenvalue of a cluster's Gram matrix for the symmetric orthogonalisation;
+#: below it the cluster is recomputed with Gram-Schmidt between the solves
+GRAM_MIN = 0.5
+
+_EPS = np.finfo(np.float64).eps
+_SAFMIN = np.finfo(np.float64).tiny
+
+
+@numba.njit(cache=True, nogil=True)
+def sturm_counts(d, e2, pivmin, x, counts):
+    """counts[l] = number of eigenvalues of T below x[l], for LANES shifts in one pass.
+
+    The pivots q_i = d_i - x - e_{i-1}^2 / q_{i-1} of the LDL^T factorisation of T - x I;
+    a pivot of magnitude below pivmin is replaced by -pivmin (LAPACK dlaebz)."""
+    m = d.shape[0]
+    q = np.empty(LANES)
+    c = np.zeros(LANES, dtype=np.int64)
+    for lane in range(LANES):
+        t = d[0] - x[lane]
+        if abs(t) < pivmin:
+            t = -pivmin
+        q[lane] = t
+        if t <= 0.0:
+            c[lane] += 1
+    for i in range(1, m):
+        di = d[i]
+        ei = e2[i - 1]
+        for lane in range(LANES):
+            t = (di - x[lane]) - ei / q[lane]
+            if abs(t) < pivmin:
+                t = -pivmin
+            q[lane] = t
+            c[lane] += t <= 0.0
+    for lane in range(LANES):
+        counts[lane] = c[lane]
+
+
+@numba.njit(cache=True, nogil=True)
+def _norm_and_pivmin(d, e):
+    m = d.shape[0]
+    gl = d[0]
+    gu = d[0]
+    emax = 0.0
+    for i in range(m):
+        r = 0.0
+        if i > 0:
+            r += abs(e[i - 1])
+        if i < m - 1:
+            r += abs(e[i])
+            emax = max(emax, e[i] * e[i])
+        gl = min(gl, d[i] - r)
+        gu = max(gu, d[i] + r)
+    tnorm = max(abs(gl), abs(gu))
+    pivmin = _SAFMIN * max(1.0, emax)
+    return gl, gu, tnorm, pivmin
+
+
+@numba.njit(cache=True, nogil=True)
+def _converged(lo, hi, j, nb, k, atol):
+    width = hi[j] - lo[j]
+    if width <= atol:
+        return True
+    gap = np.inf
+    if j > 0:
+        gap = lo[j] - hi[j - 1]
+    if j + 1 < nb:
+        gap = min(gap, lo[j + 1] - hi[j])
+    return gap > 0.0 and width <= GAP_FRACTION * gap
+
+
+@numba.njit(cache=True, nogil=True)
+def lowest_brackets(d, e, k, lo, hi):
+    """Brackets [lo_j, hi_j] of the k lowest eigenvalues (lo, hi of size >= min(k + 1, m)).
+
+    Returns (||T|| as the Gershgorin bound, the absolute floor of the bracket widths).
+    Brackets are refined until :func:`_converged`; bracket k (when it exists) is kept as
+    a lower bound of the first unwanted eigenvalue, for the gap of the top wanted one."""
+    m = d.shape[0]
+    e2 = np.empty(max(m - 1, 0))
+    for i in range(m - 1):
+        e2[i] = e[i] * e[i]
+    gl, gu, tnorm, pivmin = _norm_and_pivmin(d, e)
+    atol = 2.0 * _EPS * max(tnorm, _SAFMIN)
+    fudge = 2.1 * _EPS * tnorm + 2.0 * pivmin
+    nb = min(k + 1, m)
+    for j in range(nb):
+        lo[j] = gl - fudge
+        hi[j] = gu + fudge
+    x = np.empty(LANES)
+    counts = np.empty(LANES, dtype=np.int64)
+    first = 0
+    while True:
+        while first < k and _converged(lo, hi, first, nb, k, atol):
+            first += 1
+        if first >= k:
+            break
+        # up to LANES unconverged brackets with distinct midpoints, lowest first
+        n = 0
+        last_lo = np.nan
+        last_hi = np.nan
+        j = first
+        while j < k and n < LANES:
+            if not _converged(lo, hi, j, nb, k, atol) and not (lo[j] == last_lo and hi[j] == last_hi):
+                x[n] = 0.5 * (lo[j] + hi[j])
+                last_lo = lo[j]
+                last_hi = hi[j]
+                n += 1
+            j += 1
+        for lane in range(n, LANES):
+            x[lane] = x[0]
+        sturm_counts(d, e2, pivmin, x, counts)
+        for lane in range(n):
+            c = counts[lane]
+            xv = x[lane]
+            # c eigenvalues lie below xv: lambda_j < xv for j < c, lambda_j >= xv otherwise
+            jj = c
+            while jj < nb and lo[jj] < xv:
+                lo[jj] = xv
+                jj += 1
+            jj = min(c, nb) - 1
+            while jj >= 0 and hi[jj] > xv:
+                hi[jj] = xv
+                jj -= 1
+    return tnorm, atol
+
+
+@numba.njit(cache=True, nogil=True)
+def _factor(d, e, sigma, pert, u0, u1, u2, mult, swap):
+    """T - sigma I = P L U with partial pivoting; U has two superdiagonals (u1, u2) and
+    u0 holds the reciprocals of its diagonal."""
+    m = d.shape[0]
+    cd = d[0] - sigma
+    cs = e[0] if m > 1 else 0.0
+    for i in range(m - 1):
+        sub = e[i]
+        nd = d[i + 1] - sigma
+        ns = e[i + 1] if i + 1 < m - 1 else 0.0
+        if abs(cd) >= abs(sub):
+            if abs(cd) < pert:
+                cd = pert if cd >= 0.0 else -pert
+            lm = sub / cd
+            u0[i] = cd
+            u1[i] = cs
+            u2[i] = 0.0
+            swap[i] = False
+            mult[i] = lm
+            cd = nd - lm * cs
+            cs = ns
+        else:
+            lm = cd / sub
+            u0[i] = sub
+            u1[i] = nd
+            u2[i] = ns
+            swap[i] = True
+            mult[i] = lm
+            cd = cs - lm * nd
+            cs = -lm * ns
+    if abs(cd) < pert:
+        cd = pert if cd >= 0.0 else -pert
+    u0[m - 1] = cd
+    for i in range(m):
+        u0[i] = 1.0 / u0[i]          # the solves multiply by the reciprocal pivots
+
+
+@numba.njit(cache=True, nogil=True)
+def _solve(u0, u1, u2, mult, swap, b):
+    """Overwrite b with (P L U)^{-1} b."""
+    m = b.shape[0]
+    for i in range(m - 1):
+        if swap[i]:
+            t = b[i]
+            b[i] = b[i + 1]
+            b[i + 1] = t
+        b[i + 1] -= mult[i] * b[i]
+    b[m - 1] = b[m - 1] * u0[m - 1]
+    if m > 1:
+        b[m - 2] = (b[m - 2] - u1[m - 2] * b[m - 1]) * u0[m - 2]
+    for i in range(m - 3, -1, -1):
+        b[i] = (b[i] - u1[i] * b[i + 1] - u2[i] * b[i + 2]) * u0[i]
+
+
+@numba.njit(cache=True, nogil=True)
+def _start(v, seed):
+    """A fixed pseudo-random start vector in [-1, 1) (a 64-bit linear congruential
+    generator, Knuth's MMIX constants): the same for every run and thread count."""
+    s = np.uint64(seed) * np.uint64(2862933555777941757) + np.uint64(3037000493)
+    for i in range(v.shape[0]):
+        s = s * np.uint64(6364136223846793005) + np.uint64(1442695040888963407)
+        v[i] = (np.float64(s >> np.uint64(11)) * (1.0 / 9007199254740992.0)) * 2.0 - 1.0
+
+
+@numba.njit(cache=True, nogil=True)
+def _normalise(v):
+    s = 0.0
+    for i in range(v.shape[0]):
+        s += v[i] * v[i]
+    s = np.sqrt(s)
+    if s > 0.0:
+        for i in range(v.shape[0]):
+            v[i] /= s
+
+
+@numba.njit(cache=True, nogil=True)
+def _project_out(v, z, j0, j1):
+    """v <- v - sum_{j0 <= j < j1} (z_j . v) z_j (modified Gram-Schmidt)."""
+    m = v.shape[0]
+    for j in range(j0, j1):
+        s = 0.0
+        for i in range(m):
+            s += z[j, i] * v[i]
+        for i in range(m):
+            v[i] -= s * z[j, i]
+
+
+@numba.njit(cache=True, nogil=True)
+def _vector(d, e, sigma, pert, j, z, j0, work):
+    """Inverse iteration for row j of z at shift sigma; with j0 < j the iterate is kept
+    orthogonal to rows j0..j-1 of z (the cluster's earlier vectors)."""
+    u0, u1, u2, mult, v = work[0], work[1], work[2], work[3], work[4]
+    m = d.shape[0]
+    swap = np.empty(m, dtype=np.bool_)
+    _factor(d, e, sigma, pert, u0, u1, u2, mult, swap)
+    _start(v, j + 1)
+    for _ in range(INVERSE_STEPS):
+        if j0 < j:
+            _project_out(v, z, j0, j)
+            _normalise(v)
+        # each solve grows v by at most 1 / (eps ||T||) ~ 1e16: three stay far from overflow
+        _solve(u0, u1, u2, mult, swap, v)
+    _normalise(v)
+    if j0 < j:
+        _project_out(v, z, j0, j)
+        _normalise(v)
+        _project_out(v, z, j0, j)
+        _normalise(v)
+    for i in range(m):
+        z[j, i] = v[i]
+
+
+@numba.njit(cache=True, nogil=True)
+def _symmetric_orthogonalise(z, j0, j1):
+    """Rows j0..j1-1 of z <- G^{-1/2} rows (Loewdin).  False if G is too far from I."""
+    block = np.ascontiguousarray(z[j0:j1, :])
+    g = np.dot(block, block.T)
+    mu, q = np.linalg.eigh(g)
+    if mu[0] < GRAM_MIN:
+        return False
+    c = j1 - j0
+    qs = np.empty((c, c))
+    for a in range(c):
+        for r in range(c):
+            qs[a, r] = q[a, r] / np.sqrt(mu[r])
+    s = np.dot(qs, q.T)
+    z[j0:j1, :] = np.dot(s, block)
+    return True
+
+
+@numba.njit(cache=True, nogil=True)
+def _rayleigh(d, e, v):
+    m = d.shape[0]
+    s = 0.0
+    for i in range(m):
+        s += d[i] * v[i] * v[i]
+    for i in range(m - 1):
+        s += 2.0 * e[i] * v[i] * v[i + 1]
+    return s
+
+
+@numba.njit(cache=True, nogil=True)
+def lowest_eigenpairs(d, e, k, w, z):
+    """The k lowest eigenpairs of tridiag(e, d, e): w (k,) ascending, z (k, m) one
+    orthonormal eigenvector per row.  Returns the number of clusters that needed the
+    Gram-Schmidt fallback (0 in ordinary cases)."""
+    m = d.shape[0]
+    if m == 1:
+        w[0] = d[0]
+        z[0, 0] = 1.0
+        return 0
+    nb = min(k + 1, m)
+    lo = np.empty(nb)
+    hi = np.empty(nb)
+    tnorm, atol = lowest_brackets(d, e, k, lo, hi)
+    pert = _EPS * max(tnorm, _SAFMIN)
+    work = np.empty((5, m))
+    for j in range(k):
+        _vector(d, e, 0.5 * (lo[j] + hi[j]), pert, j, z, j, work)
+    # clusters: runs of eigenvalues whose brackets are closer than CLUSTER_GAP ||T||
+    fallbacks = 0
+    gap_tol = CLUSTER_GAP * tnorm
+    j0 = 0
+    while j0 < k:
+        j1 = j0 + 1
+        while j1 < k and lo[j1] - hi[j1 - 1] < gap_tol:
+            j1 += 1
+        if j1 - j0 > 1 and not _symmetric_orthogonalise(z, j0, j1):
+            fallbacks += 1
+            for j in range(j0, j1):
+                _vector(d, e, 0.5 * (lo[j] + hi[j]), pert, j, z, j0, work)
+        j0 = j1
+    for j in range(k):
+        r = _rayleigh(d, e, z[j])
+        w[j] = min(max(r, lo[j]), hi[j])
+    return fallbacks
