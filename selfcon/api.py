@@ -150,7 +150,7 @@ def bound_states(z_nm: ArrayLike, band_edge_eV: ArrayLike, mass_m0: ArrayLike,
 def solve(deck: Deck | str | os.PathLike, *, initial_potential: Any = None,
           progress: Callable[..., Any] | None = None, structure: Structure | None = None,
           method: str | type | Any = None, tolerance: float | None = None,
-          max_iterations: int | None = None) -> Result:
+          max_iterations: int | None = None, threads: int | None = None) -> Result:
     """Solve one deck self-consistently: Schrödinger and Poisson iterated to agreement.
 
     Parameters
@@ -174,6 +174,11 @@ def solve(deck: Deck | str | os.PathLike, *, initial_potential: Any = None,
         an instance (used as it is).
     tolerance, max_iterations : optional
         Override the deck's ``solver.tolerance`` (V) and ``solver.max_iterations``.
+    threads : int, optional
+        Threads for the independent eigenproblems of each iteration (quantum bands and
+        regions).  Default: ``--threads`` of the command line, ``$SELFCON_THREADS``,
+        ``$NUMBA_NUM_THREADS``, else every core (1 in a batch worker).  The result does
+        not depend on it, bit for bit.
 
     Returns
     -------
@@ -187,6 +192,8 @@ def solve(deck: Deck | str | os.PathLike, *, initial_potential: Any = None,
     ------
     selfcon.errors.DeckError
         Only for bad input (a deck given as a path or text that does not validate).
+    selfcon.errors.SelfconInputError
+        A thread count below 1 (``threads`` or the environment variables).
 
     Examples
     --------
@@ -199,10 +206,12 @@ def solve(deck: Deck | str | os.PathLike, *, initial_potential: Any = None,
     (False, 1, 'MAX_ITERATIONS')
     """
     t0 = time.perf_counter()
+    from selfcon.solver.threads import thread_count
+    threads = thread_count(threads)          # a bad setting fails before any work
     if not isinstance(deck, Deck):
         deck = load_deck(deck)
     st = structure if structure is not None else build_structure(deck)
-    st, cooldown = _dark_cooldown(deck, st)
+    st, cooldown = _dark_cooldown(deck, st, threads)
     spec = deck.solver
     tol = float(tolerance if tolerance is not None else spec.tolerance)
     max_it = int(max_iterations if max_iterations is not None else spec.max_iterations)
@@ -210,7 +219,7 @@ def solve(deck: Deck | str | os.PathLike, *, initial_potential: Any = None,
     mixer = make_mixer(method if method is not None else spec.method, spec)
     phi0 = interpolate_guess(st, initial_potential) if initial_potential is not None else None
     outcome = run_loop(st, boundary_conditions(st), mixer, phi0=phi0, tol=tol, charge_tol=ctol,
-                       max_iter=max_it, progress=progress)
+                       max_iter=max_it, progress=progress, threads=threads)
     from selfcon.output.assemble import build_result
     result = build_result(deck, st, outcome, wall_time=time.perf_counter() - t0)
     failed = [(tf, msg) for tf, ok, msg in cooldown if not ok]
@@ -228,7 +237,7 @@ def solve(deck: Deck | str | os.PathLike, *, initial_potential: Any = None,
 _COOLDOWNS: dict = {}
 
 
-def _dark_cooldown(deck: Deck, st: Structure):
+def _dark_cooldown(deck: Deck, st: Structure, threads: int | None = None):
     """``st`` with the occupation of its Si-DX layers frozen at their
     ``layer.dx_freeze_temperature`` (selfcon.solver.dx), and [(T_f, converged, message)] of
     the solves at the freeze temperatures.  The wafer is cooled with the gate unbiased
@@ -251,7 +260,8 @@ def _dark_cooldown(deck: Deck, st: Structure):
         if key not in _COOLDOWNS:
             stf = build_structure(dk, mesh=st.mesh)
             out = run_loop(stf, boundary_conditions(stf), make_mixer(dk.solver.method, dk.solver),
-                           tol=float(dk.solver.tolerance), max_iter=int(dk.solver.max_iterations))
+                           tol=float(dk.solver.tolerance), max_iter=int(dk.solver.max_iterations),
+                           threads=threads)
             if len(_COOLDOWNS) > 16:
                 _COOLDOWNS.clear()
             _COOLDOWNS[key] = (frozen_fractions(stf, out.phi), out.converged, out.message)

@@ -149,6 +149,8 @@ def cmd_run(args) -> int:
                           "-o (default: beside the deck)"),
                    output(args.plot, "figure", "--plot") if args.plot else None],
                   inputs=[(deck_path, "the deck")], force=args.force, error=ResultFileError)
+    from selfcon.solver.threads import configure
+    configure(args.threads)
     deck = api.load_deck(deck_path, overrides=tuple(args.set or ()))
     structure = api.build_structure(deck, max_nodes=_max_nodes(args))     # the mesh guard, before any work
     with SolveProgress(quiet=args.quiet) as progress:
@@ -727,6 +729,8 @@ def build_parser() -> argparse.ArgumentParser:
     r.add_argument("--force", action="store_true",
                    help="overwrite an existing result file and figure (never the deck itself)")
     _add_max_nodes(r)
+    from selfcon.solver.threads import add_argument as add_threads
+    add_threads(r)
     r.set_defaults(func=cmd_run)
 
     c = sub.add_parser("check", help="validate a deck and show the stack and mesh without solving")

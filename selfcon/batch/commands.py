@@ -62,6 +62,8 @@ def register(subparsers):
     b.add_argument("--quiet", "-q", action="store_true", help="only the final summary line")
     b.add_argument("--json", action="store_true",
                    help="no progress; print one JSON object (folder, exit code, job counts, tables) and nothing else")
+    from selfcon.solver.threads import add_argument as add_threads
+    add_threads(b, batch=True)
     b.set_defaults(func=batch_command)
 
     qp = subparsers.add_parser("queue", help="inspect or requeue the jobs of a study folder")
@@ -89,6 +91,8 @@ def batch_command(args) -> int:
         raise StudyError("must be >= 1", key="--workers")
     if args.retries < 0:
         raise StudyError("must be >= 0", key="--retries")
+    if args.threads is not None and args.threads < 1:
+        raise StudyError(f"must be >= 1, got {args.threads}", key="--threads")
     if args.min_workers < 0:
         raise StudyError("must be >= 0", key="--min-workers")
     if args.max_workers is not None and args.max_workers < max(1, args.min_workers):
@@ -108,7 +112,8 @@ def batch_command(args) -> int:
                                       min_workers=args.min_workers, max_workers=args.max_workers,
                                       backlog=args.backlog, retries=args.retries,
                                       quiet=args.quiet or args.json,
-                                      memory_limit=args.memory_limit, log_file=args.log, numba_cache=numba_cache)
+                                      memory_limit=args.memory_limit, log_file=args.log, numba_cache=numba_cache,
+                                      threads=args.threads)
     if args.json:
         folder = Path(out_dir)
         print(json.dumps({"folder": str(folder), "exit_code": int(code), "counts": dict(counts),

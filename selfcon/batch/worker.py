@@ -48,9 +48,9 @@ def _watch_parent(parent_pid, period=1.0):
     threading.Thread(target=watch, name="selfcon-parent-watch", daemon=True).start()
 
 
-#: threads of the numerical libraries a selfcon process may use (1 in every batch job that
-#: ``--cluster`` submits: one single-threaded worker per core)
-THREADS_ENV = "SELFCON_THREADS"
+#: threads of the numerical libraries and of the solves of a selfcon process (1 in every batch
+#: job that ``--cluster`` submits: one single-threaded worker per core; selfcon.solver.threads)
+from selfcon.solver.threads import THREADS_ENV  # noqa: E402
 THREAD_LIBRARY_VARIABLES = ("OMP_NUM_THREADS", "OPENBLAS_NUM_THREADS", "MKL_NUM_THREADS", "NUMBA_NUM_THREADS")
 
 
@@ -65,8 +65,11 @@ def limit_threads():
 
 def init_worker(parent_pid=None):
     """Process-pool initializer: apply $SELFCON_THREADS, leave Ctrl-C to the coordinator, preload
-    the solver, and exit when the coordinator ``parent_pid`` disappears."""
+    the solver, and exit when the coordinator ``parent_pid`` disappears.  A worker's solves
+    default to one thread (selfcon.solver.threads)."""
     limit_threads()
+    from selfcon.solver.threads import configure
+    configure(worker=True)
     if parent_pid is not None:
         _watch_parent(int(parent_pid))
     try:
@@ -156,6 +159,8 @@ def run_task(job_spec, expected, jobs):
     bad = mismatch(expected, found)
     if bad:
         return {"environment": f"{_here()} has {bad}"}
+    from selfcon.solver.threads import configure
+    configure(worker=True)               # a Dask worker thread: one thread per solve by default
     fn = resolve(job_spec)
     return {"outcomes": [(job_id, run_one(fn, deck_text, initial)) for job_id, deck_text, initial in jobs]}
 

@@ -26,6 +26,7 @@ class DesignOptionError(SelfconInputError):
 
 
 def register(subparsers):
+    from selfcon.solver.threads import add_argument as add_threads
     s = subparsers.add_parser("sweep-bias", help="solve along the gate bias: n_s(V), C-V, threshold",
                               description="Solve the deck at every gate bias from --from to --to (continuation "
                               "from the previous point); report threshold voltages, parallel-conduction onset "
@@ -44,6 +45,7 @@ def register(subparsers):
     s.add_argument("--force", action="store_true", help="overwrite an existing output file or figure")
     s.add_argument("--json", action="store_true", help="print the analysis as JSON")
     s.add_argument("--quiet", action="store_true", help="no per-point lines")
+    add_threads(s)
     s.set_defaults(func=cmd_sweep_bias)
 
     t = subparsers.add_parser("tune", help="find the deck value that makes a quantity hit a target",
@@ -60,6 +62,7 @@ def register(subparsers):
     t.add_argument("--force", action="store_true", help="overwrite an existing output file")
     t.add_argument("--json", action="store_true", help="print the answer as one JSON object and nothing else")
     t.add_argument("--quiet", action="store_true", help="no per-solve lines")
+    add_threads(t)
     t.set_defaults(func=cmd_tune)
 
     u = subparsers.add_parser("study-summary", help="statistics and sensitivities of a finished study",
@@ -100,6 +103,8 @@ def _load(args):
 
 def cmd_sweep_bias(args) -> int:
     from selfcon.design.sweep import bias_points, sweep_bias
+    from selfcon.solver.threads import configure
+    configure(args.threads)
     deck = _load(args)
     if args.step <= 0:
         raise DesignOptionError(f"must be > 0 (the direction comes from --from and --to), got {args.step:g}",
@@ -149,6 +154,8 @@ def cmd_sweep_bias(args) -> int:
 
 def cmd_tune(args) -> int:
     from selfcon.design.tune import TuneError, parse_target, path_units, path_value, tune
+    from selfcon.solver.threads import configure
+    configure(args.threads)
     deck = _load(args)
     name, value = parse_target(args.target)
     if args.bracket is None:

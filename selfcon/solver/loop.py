@@ -67,11 +67,13 @@ class LoopOutcome:
 
 
 def run_loop(st: Structure, bc, mixer, *, phi0=None, tol=1e-6, charge_tol=1e-6, max_iter=100,
-             progress=None) -> LoopOutcome:
+             progress=None, threads=None) -> LoopOutcome:
     """Iterate Schrödinger and Poisson on ``st`` with boundary conditions ``bc`` until the
     potential and the mobile charge stop moving; ``mixer`` proposes each next potential.
-    ``progress(record)`` is called after every iteration (see :func:`progress_callback`)."""
-    ws = Workspace(st, bc)
+    ``progress(record)`` is called after every iteration (see :func:`progress_callback`).
+    ``threads``: for the eigenproblems of each iteration (selfcon.solver.threads.thread_count;
+    None: the process setting, the environment, the default)."""
+    ws = Workspace(st, bc, threads)
     control = Control(mixer, tol=tol, charge_tol=charge_tol, max_iter=max_iter)
     notify = progress_callback(progress)
     mixer.reset()

@@ -144,8 +144,11 @@ class Workspace:
     * the last density evaluation (by identity of phi and the states).
     """
 
-    def __init__(self, structure: Structure, bc):
+    def __init__(self, structure: Structure, bc, threads: int | None = None):
+        from selfcon.solver.threads import thread_count
         self.structure = structure
+        #: threads for the independent eigenproblems of each iteration (selfcon.solver.threads)
+        self.threads = thread_count(threads)
         self.bc = tuple(bc)
         self.problem_classical = classical_problem(structure, self.bc)
         self.problem_free = self.problem_classical.with_boundaries(
@@ -473,16 +476,20 @@ def interpolate_guess(st: Structure, guess):
 def solve_states(ws: Workspace, phi) -> dict:
     """Schrödinger in every quantum region for every quantum band at potential ``phi``:
     band name -> :class:`BandStates`.  A (band, region) pair whose classical charge is
-    negligible stays classical; the number of states grows while the top one holds charge."""
+    negligible stays classical; the number of states grows while the top one holds charge.
+
+    The (band, region) eigenproblems are independent: they run on ``ws.threads`` threads
+    (selfcon.solver.threads.run_all) and are put together in a fixed order, so the answer
+    does not depend on the thread count.  Each starts from the band's count of states
+    of the previous iteration and grows on its own; the band keeps the largest."""
     from selfcon.solver import schrodinger
+    from selfcon.solver.threads import run_all
     st = ws.structure
-    out = {}
-    for band, (_, _, _, sign, _) in bands_of(st).items():
+    bands = bands_of(st)
+    tasks = []
+    for band in bands:
         if carrier_of(band) not in st.carriers or not st.regions:
             continue
-        fermi = st.fermi_levels[0 if sign > 0 else 1]             # the carrier's own level
-        energies, psis, mpar, regs, weights = [], [], [], [], []
-        qnodes = np.zeros(st.n_nodes, dtype=bool)
         for r_idx, (i0, i1) in enumerate(st.regions):
             if i1 - i0 < 3:
                 continue
@@ -491,36 +498,31 @@ def solve_states(ws: Workspace, phi) -> dict:
                 ws.negligible[key] = classical_sheet(ws, phi, band, i0, i1) < ws.negligible_sheet
             if ws.negligible[key]:
                 continue           # this carrier is absent here: leave it classical (negligible)
-            qnodes[i0:i1 + 1] = True
             eig = ws.eigen.get(key)
             if eig is None:
                 eig = ws.eigen[key] = schrodinger.EigenWorkspace(i1 - i0 + 1)
-            k = ws.n_states[band]
-            while True:
-                e, psi = region_eigenstates(st, phi, band, r_idx, k, workspace=eig,
-                                            vxc=ws.vxc.get(band))
-                occ = subband_density(e, np.ones(e.size), st.temperature, sign, fermi)
-                if (e.size < k or k >= MAX_STATES or occ.sum() <= 0
-                        or occ[-1] < TOP_STATE_FRACTION * occ.sum()):
-                    break
-                k = min(2 * k, MAX_STATES)
-                ws.n_states[band] = k
-            m_par, weight = in_plane_motion(st, band, e, psi, phi, ws.vxc.get(band))
-            energies.append(e)
-            psis.append(psi)
-            mpar.append(m_par)
-            weights.append(weight)
-            regs.append(np.full(e.size, r_idx))
-        if not energies:
+            tasks.append((band, r_idx, eig, ws.n_states[band], ws.vxc.get(band)))
+    solved = run_all(lambda task: band_region_states(st, phi, *task), tasks, ws.threads)
+    out = {}
+    for band, (_, _, _, sign, _) in bands.items():
+        mine = [res for task, res in zip(tasks, solved) if task[0] == band]
+        if not mine:
             continue
-        E = np.concatenate(energies)
+        qnodes = np.zeros(st.n_nodes, dtype=bool)
+        for task in tasks:
+            if task[0] == band:
+                i0, i1 = st.regions[task[1]]
+                qnodes[i0:i1 + 1] = True
+        ws.n_states[band] = max([ws.n_states[band]] + [res[5] for res in mine])
+        E = np.concatenate([res[0] for res in mine])
         order = np.argsort(sign * E, kind="stable")     # lowest kinetic energy first
-        psi = np.concatenate(psis, axis=1)[:, order]
-        weight = np.concatenate(weights, axis=1)[:, order]
-        m_par = np.concatenate(mpar)[order]
+        psi = np.concatenate([res[1] for res in mine], axis=1)[:, order]
+        weight = np.concatenate([res[3] for res in mine], axis=1)[:, order]
+        m_par = np.concatenate([res[2] for res in mine])[order]
         deg = state_degeneracy(st, band, psi)
         out[band] = BandStates(band=band, energy=E[order], psi=psi, m_par=m_par,
-                               dos=deg * DOS2D_PER_M0 * m_par, region=np.concatenate(regs)[order],
+                               dos=deg * DOS2D_PER_M0 * m_par,
+                               region=np.concatenate([res[4] for res in mine])[order],
                                degeneracy=deg, sign=sign, quantum_nodes=qnodes, weight=weight)
     return out
 
@@ -574,6 +576,27 @@ def update_exchange(ws: Workspace, phi, states=None, states_phi=None) -> float:
         change = max(change, float("inf") if old is None else float(np.max(np.abs(v - old))))
         ws.vxc[band] = v
     return change
+
+
+def band_region_states(st: Structure, phi, band: str, r_idx: int, workspace, n_states: int,
+                       vxc=None):
+    """One task of :func:`solve_states`: the states of ``band`` in region ``r_idx``, their
+    number doubled (up to MAX_STATES) while the top state still holds charge (``vxc``: the
+    band's exchange-correlation potential, :func:`update_exchange`).  Returns
+    (energy (k,), psi (N, k), in-plane mass (k,), density weight (N, k), region (k,), the
+    number of states asked for last)."""
+    sign = ALL_BANDS[band][3]
+    fermi = st.fermi_levels[0 if sign > 0 else 1]             # the carrier's own level
+    k = n_states
+    while True:
+        e, psi = region_eigenstates(st, phi, band, r_idx, k, workspace=workspace, vxc=vxc)
+        occ = subband_density(e, np.ones(e.size), st.temperature, sign, fermi)
+        if (e.size < k or k >= MAX_STATES or occ.sum() <= 0
+                or occ[-1] < TOP_STATE_FRACTION * occ.sum()):
+            break
+        k = min(2 * k, MAX_STATES)
+    m_par, weight = in_plane_motion(st, band, e, psi, phi, vxc)
+    return e, psi, m_par, weight, np.full(e.size, r_idx), k
 
 
 def region_eigenstates(st: Structure, phi, band: str, r_idx: int, n_states: int, workspace=None,
@@ -735,6 +758,7 @@ __all__ = ["BAND_SPECS", "VALLEY_BANDS", "ALL_BANDS", "bands_of", "carrier_of", 
            "masked_valley_dos", "valley_row_bands", "VALLEYS", "BandStates", "Workspace", "boundary_conditions",
            "initial_guess", "start_levels", "linear_start", "interpolate_guess", "solve_states",
            "update_exchange", "subband_profile", "nonparabolic_band", "cell_edge",
+           "band_region_states",
            "region_states", "region_eigenstates", "in_plane_motion",
            "poisson_pass", "charge_residual", "densities", "mobile_sheets", "gauss_residual",
            "classical_problem", "valley_arrays", "with_states"]

@@ -21,7 +21,7 @@ import numpy as np
 from selfcon.constants import HBAR2_2M0
 
 
-@numba.njit(cache=True)
+@numba.njit(cache=True, nogil=True)
 def assemble_tridiagonal(h, w, v_node, inv_mass_cell, d, e):
     """Fill d (n-2,) and e (n-3,) of B = W^{-1/2} A W^{-1/2} for the interior nodes.
 
@@ -40,7 +40,7 @@ def assemble_tridiagonal(h, w, v_node, inv_mass_cell, d, e):
         e[j] = -HBAR2_2M0 * inv_mass_cell[i] / h[i] / np.sqrt(w[i] * w[i + 1])
 
 
-@numba.njit(cache=True)
+@numba.njit(cache=True, nogil=True)
 def vectors_to_wavefunctions(u, w, psi):
     """u (n-2, k) eigenvectors of B -> psi (n, k) with psi = W^{-1/2} u.
 
@@ -73,7 +73,7 @@ def vectors_to_wavefunctions(u, w, psi):
             psi[i, s] *= scale
 
 
-@numba.njit(cache=True)
+@numba.njit(cache=True, nogil=True)
 def dual_average(h, f_cell, out):
     """Node values of a per-cell quantity: (h_{i-1} f_{i-1} + h_i f_i)/(h_{i-1} + h_i).
 
