@@ -2,7 +2,8 @@
 
     python tools/bench.py [NAMES...] [--json PATH] [--strict]
 
-NAMES (default: all but compare): floor scaling mesh iterations xc nonparabolic startup batch coordinator compare
+NAMES (default: all but compare): floor scaling mesh iterations xc nonparabolic eigen mqw
+threads startup batch coordinator decks compare
 
   floor       warm solve time of each example deck (hemt_4K, hemt_300K, the strained
               pHEMT phemt_double_delta and the nitride HEMT algan_aln_gan_hemt) / kernel
@@ -25,6 +26,18 @@ NAMES (default: all but compare): floor scaling mesh iterations xc nonparabolic 
               floor (target <= 2.5), E1-E0 LDA/Hartree.
   nonparabolic parabolic vs nonparabolic Gamma electrons (physics.nonparabolicity) on the
               two HEMT decks: iterations (<= 15), solve-time ratio, ground in-plane mass.
+  eigen       the eigen-solve alone on the 100-period superlattice matrix (the converged
+              potential of the `mqw` deck): time against k = 10 .. 400 states with the
+              fitted exponent, beside LAPACK dstebz + dstein (the previous path) in the same
+              run; targets exponent <= 1.2 and t(200) <= 1/4 of dstebz + dstein.
+  mqw         warm solve of the modulation-doped multi-quantum-well stack (8 nm GaAs /
+              12 nm Al0.3GaAs, 6e11 cm^-2 in each barrier, 77 K) at 20, 50, 100 periods with
+              the eigen-solve of selfcon/solver/kernels/eigen.py and with dstebz + dstein;
+              target >= 4x at 100 periods.
+  threads     the 100-period stack as four quantum regions (four independent eigenproblems
+              per iteration): the eigen-solve phase of one iteration and the whole solve on
+              1 .. all cores; target >= 1.6x with 2 threads on the eigen-solve phase; the
+              results are the same bits for every thread count.
   startup     new-process wall time of `import selfcon` and of `selfcon run` with the numba
               cache warm and cold; targets 0.5 s and 1.5 s (warm).
   batch       runs tools/bench_batch.py if it exists.
@@ -665,13 +678,150 @@ def bench_decks():
         row("decks", f"{label}, 10 000 / 1 000 layers", "ratio", ratio, "", "<= 15", ratio <= 15)
 
 
+# --------------------------------------------------------------------------- eigen, mqw, threads
+
+def mqw_deck(periods, regions=1):
+    """The multi-quantum-well stack of issue 21: ``periods`` x (12 nm Al0.3GaAs with a
+    6e11 cm^-2 donor sheet at its centre, 8 nm GaAs) under a 10 nm GaAs cap and a 30 nm
+    Al0.3GaAs barrier (surface pinned 0.7 eV below Ec), over a 30 nm barrier and a GaAs
+    buffer with a free end, 77 K; ``regions`` quantum regions of equal numbers of periods,
+    split at barrier centres, from 10 nm above the first period to 10 nm below the last."""
+    import selfcon
+    lines = [f'title = "{periods}-period MQW, {regions} quantum region(s)"', "temperature = 77.0",
+             '[surface]\ncontact = "pinned"\nbarrier = 0.7', '[substrate]\ncontact = "free"',
+             '[[layer]]\nname = "cap"\nmaterial = "GaAs"\nthickness = 10.0',
+             '[[layer]]\nname = "top"\nmaterial = "AlGaAs"\nx = 0.3\nthickness = 30.0']
+    for p in range(periods):
+        lines.append(f'[[layer]]\nname = "b{p}"\nmaterial = "AlGaAs"\nx = 0.3\nthickness = 12.0\n'
+                     'sheet_donors = 6e11')
+        lines.append(f'[[layer]]\nname = "w{p}"\nmaterial = "GaAs"\nthickness = 8.0')
+    lines.append('[[layer]]\nname = "bottom"\nmaterial = "AlGaAs"\nx = 0.3\nthickness = 30.0')
+    lines.append('[[layer]]\nname = "buffer"\nmaterial = "GaAs"\nthickness = 50.0')
+    lines.append('[physics]\ncarriers = ["electron"]')
+    per = periods // regions
+    cuts = ([30.0] + [40.0 + 20.0 * per * r + 6.0 for r in range(1, regions)]
+            + [40.0 + 20.0 * periods + 10.0])
+    lines.append("[quantum]\nstates = 20\nregions = ["
+                 + ", ".join(f"[{a}, {b}]" for a, b in zip(cuts[:-1], cuts[1:])) + "]")
+    return selfcon.load_deck("\n".join(lines) + "\n")
+
+
+def _eigen_method(method):
+    from selfcon.solver import schrodinger
+    schrodinger.DEFAULT_METHOD = method
+
+
+def bench_eigen(quick=False):
+    import selfcon
+    from selfcon.solver import schrodinger, steps
+    from selfcon.solver.kernels.schrodinger import assemble_tridiagonal
+    d = mqw_deck(100)
+    r = selfcon.solve(d)
+    check(r.converged, "eigen: the 100-period stack converged")
+    st = selfcon.build_structure(d)
+    phi = np.asarray(r.profile["potential"], float)
+    i0, i1 = st.regions[0]
+    edge_key, mass_key = steps.BAND_SPECS["electron"][:2]
+    part = st.mesh.part(i0, i1)
+    edge = st.node_average(st.cell[edge_key]) - phi
+    n = i1 - i0 + 1
+    ws = {m: schrodinger.EigenWorkspace(n, method=m) for m in schrodinger.EIGEN_METHODS}
+    for w in ws.values():
+        assemble_tridiagonal(part.h, part.w, edge[i0:i1 + 1], 1.0 / st.cell[mass_key][i0:i1], w.d, w.e)
+    ks = [10, 25, 50, 100, 200, 400] if not quick else [10, 50, 200]
+    times = {m: [] for m in ws}
+    for k in ks:
+        for m, w in ws.items():
+            w.eigh(k)                                   # compile / warm
+            t, (e, u) = best_time(lambda: w.eigh(k), 3 if m == "clustered" else 2)
+            times[m].append(t)
+            if m == "clustered":
+                ours = e
+                ortho = float(np.max(np.abs(u.T @ u - np.eye(k))))
+            else:
+                base = e
+        dE = float(np.max(np.abs(ours - base)))
+        check(dE < 1e-10, f"eigen k={k}: energies of the two methods differ by {dE:.1e} eV")
+        check(ortho <= 1e-10, f"eigen k={k}: max |U^T U - I| = {ortho:.1e} > 1e-10")
+        ratio = times["lapack"][-1] / times["clustered"][-1]
+        target = "<= 1/4 dstebz+dstein" if k == 200 else None
+        row("eigen", f"100 periods, {n} nodes, k={k}", "eigensolve", times["clustered"][-1] * 1e3, "ms",
+            target, (ratio >= 4.0) if k == 200 else None,
+            note=f"dstebz+dstein {times['lapack'][-1] * 1e3:.1f} ms ({ratio:.1f}x); "
+                 f"max|U^T U - I| {ortho:.1e}; max|dE| {dE:.1e} eV")
+    p_ours = fit_exponent(ks, times["clustered"])
+    p_base = fit_exponent(ks, times["lapack"])
+    row("eigen", f"100 periods, k={ks[0]}..{ks[-1]}", "exponent in k", p_ours, "", "<= 1.2", p_ours <= 1.2,
+        note=f"dstebz+dstein: {p_base:.2f}")
+
+
+def bench_mqw(quick=False):
+    import selfcon
+    for periods in ((20, 50, 100) if not quick else (20,)):
+        d = mqw_deck(periods)
+        got = {}
+        for method in ("clustered", "lapack"):
+            _eigen_method(method)
+            try:
+                selfcon.solve(d)                                    # warm: numba cache, imports
+                t, r = solve_timed(d, repeat=2)
+            finally:
+                _eigen_method("clustered")
+            check(r.converged, f"mqw {periods} periods, {method}: converged")
+            got[method] = (t, r)
+        (t_new, r_new), (t_old, r_old) = got["clustered"], got["lapack"]
+        check(rel(ns(r_new), ns(r_old)) < 1e-6, f"mqw {periods}: n_s {ns(r_new):.6e} vs {ns(r_old):.6e}")
+        ratio = t_old / t_new
+        row("mqw", f"{periods} periods ({r_new.profile['potential'].size} nodes, "
+            f"{r_new.subbands['electron'].energy.size} states, {r_new.iterations} it)", "warm solve",
+            t_new * 1e3, "ms", ">= 4x dstebz+dstein" if periods == 100 else None,
+            (ratio >= 4.0) if periods == 100 else None,
+            note=f"dstebz+dstein {t_old * 1e3:.0f} ms ({ratio:.1f}x)")
+
+
+def bench_threads(quick=False):
+    import selfcon
+    from selfcon.solver import steps, threads as T
+    d = mqw_deck(40 if quick else 100, regions=4)
+    st = selfcon.build_structure(d)
+    counts = list(range(1, T.cores() + 1))
+    if counts == [1]:
+        counts = [1, 2]                     # one core: 2 threads still show the overhead
+    ref = None
+    eig_t, solve_t = {}, {}
+    for n in counts:
+        selfcon.solve(d, threads=n, structure=st)
+        t, r = best_time(lambda: selfcon.solve(d, threads=n, structure=st), 2)
+        check(r.converged, f"threads {n}: converged")
+        if ref is None:
+            ref = r
+        check(np.array_equal(r.potential, ref.potential)
+              and np.array_equal(r.subbands["electron"].energy, ref.subbands["electron"].energy),
+              f"threads {n}: not the same bits as 1 thread")
+        solve_t[n] = t
+        # the eigen-solve phase: every (band, region) of one iteration at the converged potential
+        ws = steps.Workspace(st, steps.boundary_conditions(st), threads=n)
+        ws.n_states = {b: max(int(np.max(np.bincount(sb.region))), 1) for b, sb in r.subbands.items()}
+        phi = np.asarray(r.potential, float)
+        steps.solve_states(ws, phi)
+        eig_t[n], _ = best_time(lambda: steps.solve_states(ws, phi), 5)
+    tasks = len(st.regions)
+    for n in counts:
+        s_eig, s_all = eig_t[1] / eig_t[n], solve_t[1] / solve_t[n]
+        two = n == 2
+        row("threads", f"{d.title}: {tasks} eigenproblems/it, {n} thread(s)", "eigen-solve phase",
+            eig_t[n] * 1e3, "ms", ">= 1.6x at 2" if two else None, (s_eig >= 1.6) if two else None,
+            note=f"speed-up {s_eig:.2f}x; whole solve {solve_t[n] * 1e3:.0f} ms ({s_all:.2f}x, "
+                 f"{ref.iterations} it)")
+
+
 # --------------------------------------------------------------------------- main
 
-BENCHES = ("floor", "scaling", "mesh", "iterations", "xc", "nonparabolic", "startup", "batch",
-           "coordinator", "decks", "compare")
+BENCHES = ("floor", "scaling", "mesh", "iterations", "xc", "nonparabolic", "eigen", "mqw", "threads",
+           "startup", "batch", "coordinator", "decks", "compare")
 #: run when no name is given (compare needs a base commit and a few minutes: by name only)
-DEFAULT_BENCHES = ("floor", "scaling", "mesh", "iterations", "xc", "nonparabolic", "startup", "batch",
-                   "coordinator", "decks")
+DEFAULT_BENCHES = ("floor", "scaling", "mesh", "iterations", "xc", "nonparabolic", "eigen", "mqw",
+                   "threads", "startup", "batch", "coordinator", "decks")
 
 
 def machine():
@@ -740,6 +890,12 @@ def main(argv=None):
             bench_xc()
         elif n == "nonparabolic":
             bench_nonparabolic()
+        elif n == "eigen":
+            bench_eigen(a.quick)
+        elif n == "mqw":
+            bench_mqw(a.quick)
+        elif n == "threads":
+            bench_threads(a.quick)
         elif n == "startup":
             bench_startup()
         elif n == "batch":

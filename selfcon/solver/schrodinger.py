@@ -37,6 +37,9 @@ def _kernels():
 
 #: the eigen-solvers of :class:`EigenWorkspace`
 EIGEN_METHODS = ("clustered", "lapack")
+#: the method of a workspace created without one (tools/bench.py switches it to time the
+#: baseline inside whole solves)
+DEFAULT_METHOD = "clustered"
 
 
 class EigenWorkspace:
@@ -44,13 +47,14 @@ class EigenWorkspace:
 
     The self-consistent loop solves the same region ~20 times per run; passing one
     workspace avoids re-allocating the tridiagonal arrays.  A workspace silently resizes
-    itself if the mesh size changes.  ``method``: ``"clustered"`` (the default:
-    selfcon/solver/kernels/eigen.py) or ``"lapack"`` (dstebz + dstein, the baseline the
-    benchmark compares against).  Workspaces are not shared between threads: each
+    itself if the mesh size changes.  ``method``: ``"clustered"`` (selfcon/solver/kernels/
+    eigen.py) or ``"lapack"`` (dstebz + dstein, the baseline the benchmark compares
+    against); default :data:`DEFAULT_METHOD`.  Workspaces are not shared between threads: each
     (band, region) of a solve owns one.
     """
 
-    def __init__(self, n_nodes=0, method="clustered"):
+    def __init__(self, n_nodes=0, method=None):
+        method = DEFAULT_METHOD if method is None else method
         if method not in EIGEN_METHODS:
             raise ValueError(f"EigenWorkspace: method must be one of {EIGEN_METHODS}, got {method!r}")
         self.method = method
