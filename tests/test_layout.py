@@ -159,3 +159,38 @@ def test_kernels_import_only_numpy_numba_and_constants():
                 continue
             bad += [(path.name, n) for n in names if not any(n == a or n.startswith(a + ".") for a in allowed)]
     assert bad == []
+
+
+def _private_uses(name, path):
+    """Private names (one leading underscore) that module ``name`` takes from another module of
+    the package: ``from selfcon.x import _f`` or ``alias._f`` on an imported selfcon module."""
+    tree = ast.parse(path.read_text(encoding="utf-8"))
+    found, aliases = [], {}
+    for node in ast.walk(tree):
+        if isinstance(node, ast.ImportFrom) and (node.module or "").startswith("selfcon"):
+            for a in node.names:
+                full = f"{node.module}.{a.name}"
+                if full in MODULES:                       # a module imported by name
+                    aliases[a.asname or a.name] = full
+                    private = a.name.startswith("_") and full.rsplit(".", 1)[0] != name.rsplit(".", 1)[0]
+                else:
+                    private = a.name.startswith("_") and not a.name.startswith("__")
+                if private and node.module != name:
+                    found.append(f"{node.module}.{a.name}")
+        elif isinstance(node, ast.Import):
+            for a in node.names:
+                if a.name in MODULES and a.asname:
+                    aliases[a.asname] = a.name
+    for node in ast.walk(tree):
+        if (isinstance(node, ast.Attribute) and isinstance(node.value, ast.Name) and node.value.id in aliases
+                and node.attr.startswith("_") and not node.attr.startswith("__")
+                and aliases[node.value.id] != name):
+            found.append(f"{aliases[node.value.id]}.{node.attr}")
+    return found
+
+
+def test_no_module_uses_another_modules_private_names():
+    # one copy of each rule, imported under its public name (DEVELOPERS.md, "Layer rules");
+    # a package's private module (kernels/_fermi_table) is its own package's business
+    bad = {name: _private_uses(name, path) for name, path in MODULES.items()}
+    assert {k: v for k, v in bad.items() if v} == {}

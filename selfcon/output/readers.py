@@ -17,14 +17,10 @@ from pathlib import Path
 import numpy as np
 
 from selfcon.errors import ResultFileError
+from selfcon.output.result import import_xarray
 from selfcon.output.schema import DIMS, SWEEP, TABLE
 
 _ATTRS = ("units", "long_name", "description")
-
-
-def _xarray():
-    from selfcon.output.result import _xarray as xr
-    return xr()
 
 
 def _text(v):
@@ -98,7 +94,7 @@ def open_sweep(path):
     >>> cv.subband_energy.sel(band="electron", state=0).plot()             # doctest: +SKIP
     >>> cv.layer_electrons.sel(layer="doping")                             # doctest: +SKIP
     """
-    xr = _xarray()
+    xr = import_xarray()
     f = _open(path, SWEEP.schema, "bias-sweep file")
     with f:
         coords = {"bias": ("bias", f["bias"][()], _attrs(f["bias"], DIMS["bias"]))}
@@ -156,7 +152,7 @@ def open_study(folder):
     >>> t.electron_sheet_density_cm2.sel({"layer.spacer.thickness": 20.0})  # doctest: +SKIP
     >>> t.E0_eV.plot(x="layer.doping.sheet_donors", hue="layer.spacer.thickness")  # doctest: +SKIP
     """
-    xr = _xarray()
+    xr = import_xarray()
     folder = Path(folder)
     f = _open(folder / "table.h5", TABLE.schema, "study table")
     with f:

@@ -257,7 +257,7 @@ class Result:
         >>> tree["subbands/electron"].energy.sel(state=0)                                # doctest: +SKIP
         """
         import io
-        xr = _xarray()
+        xr = import_xarray()
         tree = xr.open_datatree(io.BytesIO(result_image(self)), engine="h5netcdf")
         try:
             tree.load()
@@ -275,8 +275,9 @@ class Result:
 _STR = None  # h5py.string_dtype(), set lazily
 
 
-def _xarray():
-    """xarray with its h5netcdf engine, or a clear ImportError naming the extra."""
+def import_xarray():
+    """xarray with its h5netcdf engine, or a clear ImportError naming the extra (the one
+    place the xarray readers, here and in :mod:`selfcon.output.readers`, import it)."""
     try:
         import h5netcdf  # noqa: F401
         import xarray

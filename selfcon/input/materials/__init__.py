@@ -340,7 +340,7 @@ def describe(name, x=None, temperature=None, local_defs=(), y=None):
             rows.append(_row(f"{current}.x", float(d.x), "", src))
             if fixed_x is None:
                 fixed_x = float(d.x)
-        for key, value in _rules._def_params(d).items():
+        for key, value in _rules.local_params(d).items():
             unit = PARAMETERS.get(key, ("?",))[0]
             rows.append(_row(f"{current}.{key}", float(value), unit, src))
         if d.base is None:

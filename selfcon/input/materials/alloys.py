@@ -222,7 +222,8 @@ def _quaternary_gap_bowing(q, prim, w):
 
 
 # ---------------------------------------------------------------- deck-local
-def _def_params(d):
+def local_params(d):
+    """The parameters a deck-local material definition ``d`` sets: name -> value."""
     params = getattr(d, "params", ())
     if isinstance(params, dict):
         return dict(params)
@@ -376,7 +377,7 @@ def resolve(name, x, temperature, local, needs, chain=(), y=None):
         raise MaterialError(f"deck-local material {name!r} has the name of a library material; "
                             "give it its own name and base = " + repr(name),
                             key=f"material.{name}", **_where(d))
-    params = _def_params(d)
+    params = local_params(d)
     _check_keys(d, params)
     base = getattr(d, "base", None)
     if base is None:
