@@ -1502,11 +1502,11 @@ def _donor_species(ctx, t, p, material, materials):
             if k in t:
                 raise ctx.error(f"{p}{k}", f"applies to Si-DX donors only; set {p}donor_species "
                                 "= \"Si-DX\" or remove it")
-        if species in ("P", "As") and _alloy_root(material, materials)[0] not in GROUP_IV_HOSTS:
+        if species in ("P", "As") and alloy_root(material, materials)[0] not in GROUP_IV_HOSTS:
             raise ctx.error(f"{p}donor_species", f"{species} donor levels are given for Si, Ge and "
                             f"SiGe only, not for {material!r}", allowed=DONOR_SPECIES)
     else:
-        root, _ = _alloy_root(material, materials)
+        root, _ = alloy_root(material, materials)
         if root not in DX_HOSTS:
             raise ctx.error(f"{p}donor_species", f"the Si-DX level is given for AlGaAs and GaAs "
                             f"only, not for {material!r}", allowed=DONOR_SPECIES)
@@ -1516,7 +1516,7 @@ def _donor_species(ctx, t, p, material, materials):
     return {"donor_species": species, "dx_freeze_temperature": freeze, "dx_state": state}
 
 
-def _alloy_root(name, materials):
+def alloy_root(name, materials):
     """(root, chain): the library material a deck-local chain ends in (None for a base-less
     material or a cycle, which the material library reports) and the local names passed."""
     local = {m.name: m for m in materials}
@@ -1532,7 +1532,7 @@ def _alloy_root(name, materials):
 def _refuse_x_without_alloy(ctx, key, material, materials):
     """An alloy fraction on a binary (or on a deck-local material built on one) would be
     silently ignored: refuse it, naming the key."""
-    root, chain = _alloy_root(material, materials)
+    root, chain = alloy_root(material, materials)
     if root in _library_alloys():
         return
     if root is None:

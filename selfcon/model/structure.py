@@ -512,9 +512,9 @@ def group_iv_donor(deck, layer, x) -> np.ndarray:
     """Binding energy (eV) of the layer's P or As donors in Si, Ge or Si_(1-x) Ge_x (``x`` the
     Ge fraction per cell), linear in x between the two ends (selfcon.input.materials.library.
     GROUP_IV_DOPANTS; a stated approximation)."""
-    from selfcon.input.deck import _alloy_root
+    from selfcon.input.deck import alloy_root
     from selfcon.input.materials.library import GROUP_IV_DOPANTS
-    root, _ = _alloy_root(layer.material, deck.materials)
+    root, _ = alloy_root(layer.material, deck.materials)
     ge = {"Si": 0.0, "Ge": 1.0}.get(root)
     xg = np.full(np.shape(x), ge) if ge is not None else np.asarray(x, dtype=float)
     si_b = GROUP_IV_DOPANTS["Si"][layer.donor_species][0]
