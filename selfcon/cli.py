@@ -607,8 +607,12 @@ def strained_figures(name, x=None, y=None, temperature=300.0, on="GaAs") -> dict
         add(q, "eV", float(p[key][0]), float(e[key][0]), "common scale (InSb VBM = 0)")
     add("split-off edge", "eV", float(p["vbo"][0] - p["delta_so"][0]), float(e["ev_so"][0]),
         "light hole / split-off coupled by the shear strain")
-    add("X edge, valley along z", "eV", float(p["ec_x"][0]), float(e["ec_x_z"][0]), "1 valley")
-    add("X edge, valleys in plane", "eV", float(p["ec_x"][0]), float(e["ec_x_xy"][0]), "2 valleys")
+    gx = float(p["g_x"][0])                       # 3 zincblende X valleys, 6 Si/Ge Delta valleys
+    name_x = "X/Δ" if gx > 3.5 else "X"
+    add(f"{name_x} edge, valleys along z" if gx > 3.5 else "X edge, valley along z", "eV", float(p["ec_x"][0]), float(e["ec_x_z"][0]),
+        f"{gx / 3:g} valley" + ("s" if gx / 3 != 1 else "") + " (x2_electron)")
+    add(f"{name_x} edge, valleys in plane", "eV", float(p["ec_x"][0]), float(e["ec_x_xy"][0]),
+        f"{2 * gx / 3:g} valleys (x4_electron)")
     add("L edge", "eV", float(p["ec_l"][0]), float(e["ec_l"][0]), "4 valleys, not split on (001)")
     top0, top1 = float(p["vbo"][0]), float(max(e["ev_hh"][0], e["ev_lh"][0]))
     add("Gamma gap", "eV", float(p["ec_gamma"][0]) - top0, float(e["ec_gamma"][0]) - top1,

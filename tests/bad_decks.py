@@ -185,6 +185,8 @@ BAD_DECKS = [
     # P and As levels are given for the group-IV hosts only (Si, Ge, SiGe)
     _case("phosphorus_in_algaas", _swap("sheet_donors = 4e12", 'sheet_donors = 4e12\ndonor_species = "P"'),
           "layer[1].donor_species", 'donor_species = "P"'),
+    _case("quantum_valleys_without_valleys", GOOD_DECK + "\n[physics]\nquantum_valleys = true\n",
+          "physics.quantum_valleys", "quantum_valleys = true"),
     _case("quantum_valleys_not_boolean", GOOD_DECK + "\n[physics]\nquantum_valleys = 1\n",
           "physics.quantum_valleys", "quantum_valleys = 1"),
 ]

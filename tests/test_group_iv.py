@@ -430,3 +430,31 @@ def test_ge_2dhg_mass_rises_with_density(ge2dhg):
     ns = [r.summary["channel_hole_sheet_density_cm2"] for r in ge2dhg]
     assert ns[1] > 2.0 * ns[0]
     assert high > 1.05 * low
+
+
+def test_materials_on_relaxed_sige_counts_the_delta_valleys(run_cli):
+    import json
+    code, out, _ = run_cli("materials", "Si", "--on", "SiGe:0.3", "--temperature", "4", "--json")
+    assert code == 0
+    by = {r["quantity"]: r for r in json.loads(out)["rows"]}
+    along, plane = by["X/Δ edge, valleys along z"], by["X/Δ edge, valleys in plane"]
+    # two Delta valleys along z, four in the plane (common practice), split by Xi_u
+    # (eps_xx - eps_zz) = 0.2 eV on Si0.7Ge0.3 (the splitting test above)
+    assert along["note"].startswith("2 valleys") and plane["note"].startswith("4 valleys")
+    assert plane["strained"] - along["strained"] == pytest.approx(0.198, abs=0.003)
+
+
+def test_valley_subbands_round_trip_through_the_file(si2deg, tmp_path):
+    import h5py
+    r, _ = si2deg
+    path = tmp_path / "si.h5"
+    r.save(path)
+    with h5py.File(path, "r") as f:
+        for band in ("x2_electron", "x4_electron", "l_electron"):
+            g = f[f"subbands/{band}"]
+            # the written values are the result's (round trip, exact)
+            assert np.array_equal(g["energy"][()], r.subbands[band].energy)
+            assert np.array_equal(g["degeneracy"][()], r.subbands[band].degeneracy)
+            assert g["energy"].attrs["units"] in ("eV", b"eV")
+    back = selfcon.load_result(path)
+    assert np.array_equal(back.subbands["x2_electron"].occupation, r.subbands["x2_electron"].occupation)

@@ -1584,6 +1584,10 @@ def _physics(ctx, t):
     xc = ctx.get(t, "exchange_correlation", _PHYSICS["exchange_correlation"], p)
     nonparabolic = ctx.get(t, "nonparabolicity", _PHYSICS["nonparabolicity"], p)
     quantum_valleys = ctx.get(t, "quantum_valleys", _PHYSICS["quantum_valleys"], p)
+    if quantum_valleys and not {"x_electron", "l_electron"} & set(carriers):
+        raise ctx.error("physics.quantum_valleys", "true needs x_electron or l_electron in "
+                        "physics.carriers (the valleys it makes quantum)",
+                        allowed=("x_electron", "l_electron"))
     return Physics(carriers=carriers, ionization=ionization, contacted_carrier=contacted,
                    polarity=polarity, polarization=float(polarization), exchange_correlation=xc,
                    nonparabolicity=bool(nonparabolic),

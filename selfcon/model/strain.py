@@ -83,7 +83,9 @@ __all__ = ["biaxial_001", "biaxial_c_plane", "zincblende_001_shifts", "EDGE_SHIF
            "in_plane_lattice", "matthews_blakeslee", "stack_critical_thickness",
            "LayerStrain", "StrainSummary", "poisson_ratio_001", "X_VALLEY_SETS"]
 
-#: the X valleys of a zincblende crystal under (001) strain: name -> (valleys, whose axis)
+#: the X valleys of a zincblende crystal under (001) strain: name -> (valleys, whose axis);
+#: a material with more X/Delta valleys (x_valleys: the six Delta valleys of Si and Ge) has
+#: the same thirds (2 along z, 4 in the plane)
 X_VALLEY_SETS = {"x_z": (1, "along z"), "x_xy": (2, "in the growth plane")}
 
 
