@@ -220,3 +220,16 @@ def test_field_check_fails_a_potential_that_does_not_belong_to_its_charge(hemt4_
     assert len(msgs) == 1 and "exceeds the bound of Gauss's law" in msgs[0]
     d, bound = sanity.field_bound(hemt4_result, st)
     assert d.max() < bound                          # the real solution keeps it
+
+
+def test_undoped_ohmic_deck_through_the_command_line(run_cli, tmp_path):
+    # the deck: it reported Ec ~ 1e18 eV and "converged in 1 iteration"; now exit 0
+    # with the band edges inside the gap (|Ec - EF| < Eg = 1.42 eV at 300 K, GaAs) and the
+    # deck untouched
+    deck = tmp_path / "undoped.toml"
+    deck.write_text(UNDOPED_OHMIC.format(T=300.0))
+    res, out = _rerun_cli(run_cli, deck, tmp_path)
+    assert res.code == 0, res.err
+    r = selfcon.load_result(out)
+    assert r.converged and np.all(np.abs(r.profile["conduction_band"]) < 1.42)
+    assert np.all(np.abs(r.profile["electric_field"]) < 1e5)   # 0.13 V over 100 nm: 1.3e4 V/cm
