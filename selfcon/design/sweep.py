@@ -44,6 +44,7 @@ import numpy as np
 from selfcon.constants import CM2_PER_NM2, EPS0, NM_PER_CM, Q, Q_EPS0
 from selfcon.errors import DeckError, SelfconInputError
 from selfcon.model.mesh import Mesh, half_widths
+from selfcon.output.numbers import fmt
 from selfcon.output.schema import SWEEP
 
 if TYPE_CHECKING:
@@ -561,41 +562,58 @@ def save_sweep(sw: BiasSweep, path, *, force: bool = True) -> None:
     atomic_write(path, fill, force=force, error=SweepError)
 
 
-def plot_sweep(sw: BiasSweep, path, *, force: bool = True) -> None:
-    """Two panels: sheet density per layer versus bias (log scale) and C-V."""
-    import matplotlib
-    matplotlib.use("Agg", force=False)
-    import matplotlib.pyplot as plt
+#: colours of the sweep figure: one per layer in order, then the marks
+SWEEP_COLOURS = ("#2f6fb8", "#c4572a", "#3f7f3a", "#6b4a9b", "#b88a10", "#17365d", "#8a3b12", "#4f7fb0")
+SWEEP_MARKS = {"doping": "#222222", "threshold": "#7a7a7a", "vt": "#444444", "onset": "#a8322d",
+               "capacitance": "#17365d"}
+
+
+def sweep_figure(sw: BiasSweep):
+    """The sweep as a matplotlib Figure (no pyplot): sheet density per layer versus bias (log
+    scale) and C-V, every line in a legend, the run's heading on top."""
+    from matplotlib.figure import Figure
     order = np.argsort(sw.bias)
     v = sw.bias[order]
-    fig, (ax1, ax2) = plt.subplots(1, 2, figsize=(10, 4), constrained_layout=True)
+    fig = Figure(figsize=(10, 4.6), dpi=120, layout="constrained")
+    ax1, ax2 = fig.subplots(1, 2)
     for j, name in enumerate(sw.layer_names):
         y = sw.layer_electrons[order, j]
         if np.nanmax(y) > FLOOR_CM2:
-            ax1.semilogy(v, np.maximum(y, 1e6), marker="o", ms=3, label=name)
+            ax1.semilogy(v, np.maximum(y, 1e6), marker="o", ms=3, color=SWEEP_COLOURS[j % len(SWEEP_COLOURS)],
+                         label=f"electrons in '{name}'")
     if sw.doping_layers and np.nanmax(sw.doping_electrons) > FLOOR_CM2:
-        ax1.semilogy(v, np.maximum(sw.doping_electrons[order], 1e6), color="k", ls="--", lw=1,
+        ax1.semilogy(v, np.maximum(sw.doping_electrons[order], 1e6), color=SWEEP_MARKS["doping"], ls="--", lw=1,
                      label="doping layers (free + on donors)")
-    ax1.axhline(sw.threshold_cm2, color="0.5", lw=0.8, ls=":")
+    ax1.axhline(sw.threshold_cm2, color=SWEEP_MARKS["threshold"], lw=0.8, ls=":",
+                label=f"threshold n$_s$ = {fmt(sw.threshold_cm2, 'sheet')} cm$^{{-2}}$")
     vt = sw.analysis.get("threshold_extrapolated_V", float("nan"))
     if math.isfinite(vt):
-        ax1.axvline(vt, color="0.3", lw=0.8, ls="--", label=f"V_T (extrap.) {vt:+.2f} V")
+        ax1.axvline(vt, color=SWEEP_MARKS["vt"], lw=0.8, ls="--", label=f"V$_T$ (linear extrapolation) "
+                                                                          f"{fmt(vt, 'V', sign=True)} V")
     po = sw.analysis.get("parallel_onset_V", float("nan"))
     if math.isfinite(po):
-        ax1.axvline(po, color="tab:red", lw=0.8, ls="-.", label=f"parallel onset {po:+.2f} V")
+        ax1.axvline(po, color=SWEEP_MARKS["onset"], lw=0.8, ls="-.",
+                    label=f"parallel-conduction onset {fmt(po, 'V', sign=True)} V")
     ax1.set_xlabel("gate bias (V)")
-    ax1.set_ylabel("electrons per layer (cm$^{-2}$)")
+    ax1.set_ylabel("sheet density (cm$^{-2}$)")
     ax1.set_ylim(bottom=1e8)
-    ax1.legend(fontsize=8)
-    ax2.plot(v, sw.capacitance[order] * 1e9, marker="s", ms=3, color="k")
+    ax1.set_title("carriers per layer", fontsize=10)
+    ax2.plot(v, sw.capacitance[order] * 1e9, marker="s", ms=3, color=SWEEP_MARKS["capacitance"],
+             label="C = dQ/dV (gate charge)")
     ax2.set_xlabel("gate bias (V)")
-    ax2.set_ylabel("C = dQ/dV (nF/cm$^2$)")
-    fig.suptitle(sw.title, fontsize=10)
+    ax2.set_ylabel("capacitance (nF/cm$^2$)")
+    ax2.set_title("C–V", fontsize=10)
+    handles = ax1.get_legend_handles_labels()[0] + ax2.get_legend_handles_labels()[0]
+    fig.legend(handles=handles, loc="outside lower center", ncol=3, fontsize=8, frameon=False)
+    fig.suptitle(f"{sw.title}\nT = {fmt(sw.temperature, 'K')} K, gate bias {fmt(float(v[0]), 'V', sign=True)} "
+                 f"to {fmt(float(v[-1]), 'V', sign=True)} V", fontsize=10)
+    return fig
+
+
+def plot_sweep(sw: BiasSweep, path, *, force: bool = True) -> None:
+    """Write :func:`sweep_figure` to ``path`` (.png, .svg or .pdf), atomically."""
     from selfcon.output.files import save_figure
-    try:
-        save_figure(fig, path, force=force, error=SweepError, dpi=120)
-    finally:
-        plt.close(fig)
+    save_figure(sweep_figure(sw), path, force=force, error=SweepError, dpi=120)
 
 
 def load_sweep_file(path) -> dict:

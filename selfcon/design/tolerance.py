@@ -312,32 +312,166 @@ def summarize_study(folder: str | os.PathLike, *, quantities: Iterable[str] | No
     return summarize_table(paths, figures, params, folder=str(folder), n_total=len(status))
 
 
-def plot_summary(s: ToleranceSummary, path, *, quantities=None, force: bool = True) -> None:
-    """One row per quantity: histogram of its spread and bars of the standardised sensitivities."""
-    import matplotlib
-    matplotlib.use("Agg", force=False)
-    import matplotlib.pyplot as plt
-    qs = list(quantities or [q for q in s.quantities if s.stats[q]["std"] > 0][:6] or s.quantities[:6])
-    fig, axes = plt.subplots(len(qs), 2, figsize=(9, 2.4 * len(qs) + 0.4), squeeze=False, constrained_layout=True)
-    for row, q in zip(axes, qs):
-        y = s.columns[q]
+def quantity_label(name: str) -> tuple[str, str]:
+    """(long name, unit) of a study quantity: the study table's declaration
+    (selfcon/output/schema.py, TABLE) when it has one, else the name without its unit
+    suffix and the unit the suffix names (``_cm2`` -> cm-2, ``_eV`` -> eV, ...)."""
+    from selfcon.output.schema import TABLE
+    key = quantity_key(name)
+    var = TABLE.get(f"table/{key}") if "<" not in key else None
+    if var is not None and var.long_name and "<" not in var.path:
+        return var.long_name, "" if var.units in (None, "", "1") else var.units
+    units = {"_cm2": "cm-2", "_cm3": "cm-3", "_eV": "eV", "_meV": "meV", "_nm": "nm", "_V": "V", "_K": "K"}
+    for suffix, unit in units.items():
+        if key.endswith(suffix):
+            return key[: -len(suffix)].replace("_", " ").replace(" minus ", " - "), unit
+    return key.replace("_", " "), ""
+
+
+def path_label(path: str) -> str:
+    """A varied deck path with its unit from the key table: ``layer.spacer.thickness (nm)``."""
+    from selfcon.input.deck import KEYS
+    parts = path.split(".")
+    table = "" if len(parts) == 1 else parts[0]
+    spec = KEYS.get(table, {}).get(parts[-1])
+    unit = getattr(spec, "unit", "") if spec is not None else ""
+    return f"{path} ({unit})" if unit and unit not in ("-", "1") else path
+
+
+_TEX_UNITS = {"cm-2": "cm$^{-2}$", "cm-3": "cm$^{-3}$", "cm^-2": "cm$^{-2}$", "cm^-3": "cm$^{-3}$"}
+
+
+def _scaled(values, long: str, unit: str):
+    """Values and axis text for a plot: eV shown in meV, densities as multiples of a power of
+    ten written in the label (``10$^{11}$ cm$^{-2}$``), so no axis needs an offset text."""
+    v = np.asarray(values, dtype=float)
+    factor, text = 1.0, (f"{long} ({_TEX_UNITS.get(unit, unit)})" if unit else long)
+    big = float(np.nanmax(np.abs(v))) if v.size and np.any(np.isfinite(v)) else 0.0
+    if unit == "eV":
+        factor, text = 1e3, f"{long} (meV)"
+    elif big >= 1e4 or (0 < big < 1e-2):
+        e = int(np.floor(np.log10(big)))
+        factor = 10.0 ** -e
+        text = f"{long} (10$^{{{e}}}$ {_TEX_UNITS.get(unit, unit)})".replace(" )", ")")
+    return v * factor, text, factor
+
+
+def _quantity_axis(s: ToleranceSummary, name: str):
+    return _scaled(s.columns[name], *quantity_label(name))
+
+
+def _path_axis(s: ToleranceSummary, path: str):
+    text = path_label(path)
+    long, _, unit = text.partition(" (")
+    return _scaled(s.columns[path], long, unit.rstrip(")"))
+
+
+def grid_axes(s: ToleranceSummary) -> list[str]:
+    """The varied paths of a grid study (every combination of their values present once),
+    at most two; [] for a sampled study (then the figure shows spreads)."""
+    varied = [p for p in s.paths if np.unique(s.columns[p]).size > 1]
+    if not varied or len(varied) > 2:
+        return []
+    combos = {tuple(float(s.columns[p][i]) for p in varied) for i in range(s.n_done)}
+    expected = int(np.prod([np.unique(s.columns[p]).size for p in varied]))
+    if len(combos) != s.n_done or expected != s.n_done or s.n_done < 3:
+        return []
+    return varied
+
+
+#: our colours: histogram, percentile lines, sensitivity bars (raises / lowers), map colour ramp
+SUMMARY_COLOURS = {"hist": "#a9bfd6", "hist_edge": "#3d5a80", "median": "#17365d", "band": "#6b4a9b",
+                   "raises": "#3f7f3a", "lowers": "#b5543c", "line": "#2f6fb8"}
+MAP_RAMP = ("#f4ead2", "#9fc2b0", "#4f7fb0", "#2b3f73")
+
+
+def summary_figure(s: ToleranceSummary, quantities=None):
+    """The figure of ``study-summary --plot`` (a matplotlib Figure, no pyplot).
+
+    A grid study over one or two varied paths (:func:`grid_axes`): a line plot or a map of
+    each quantity over them. Any other study: per quantity, the histogram of its spread
+    with its median and 5/95 % percentiles, and the standardised sensitivity to each
+    varied parameter. Axes carry the quantity's own name and unit; every line is in a legend.
+    """
+    from matplotlib.colors import LinearSegmentedColormap
+    from matplotlib.figure import Figure
+    from matplotlib.patches import Patch
+    qs = list(quantities or s.table_quantities()[:4] or s.quantities[:4])
+    grid = grid_axes(s)
+    title = f"{Path(s.folder).name}: {s.n_done} of {s.n_total} jobs done"
+    if len(grid) == 2:
+        ncol = min(2, len(qs))
+        nrow = -(-len(qs) // ncol)
+        fig = Figure(figsize=(5.2 * ncol, 4.0 * nrow + 0.5), dpi=110, layout="constrained")
+        axes = np.atleast_1d(fig.subplots(nrow, ncol, squeeze=False).ravel())
+        px, py = grid
+        (xv, xtext, _), (yv, ytext, _) = _path_axis(s, px), _path_axis(s, py)
+        xs, ys = np.unique(xv), np.unique(yv)
+        ramp = LinearSegmentedColormap.from_list("selfcon_ramp", MAP_RAMP)
+        for ax, q in zip(axes, qs):
+            qv, qtext, _ = _quantity_axis(s, q)
+            Z = np.full((ys.size, xs.size), np.nan)
+            for i in range(s.n_done):
+                Z[np.searchsorted(ys, yv[i]), np.searchsorted(xs, xv[i])] = qv[i]
+            mesh = ax.pcolormesh(xs, ys, Z, shading="nearest", cmap=ramp)
+            fig.colorbar(mesh, ax=ax, label=qtext)
+            ax.set_xlabel(xtext)
+            ax.set_ylabel(ytext)
+            ax.set_title(quantity_label(q)[0], fontsize=10)
+        for ax in axes[len(qs):]:
+            ax.set_axis_off()
+        fig.suptitle(title + f" (grid {xs.size} x {ys.size})", fontsize=10)
+        return fig
+    if len(grid) == 1:
+        fig = Figure(figsize=(5.2 * min(2, len(qs)), 3.4 * (-(-len(qs) // 2)) + 0.5), dpi=110, layout="constrained")
+        axes = np.atleast_1d(fig.subplots(-(-len(qs) // 2), min(2, len(qs)), squeeze=False).ravel())
+        xv, xtext, _ = _path_axis(s, grid[0])
+        order = np.argsort(xv)
+        for ax, q in zip(axes, qs):
+            qv, qtext, _ = _quantity_axis(s, q)
+            ax.plot(xv[order], qv[order], marker="o", ms=4, color=SUMMARY_COLOURS["line"],
+                    label=f"{quantity_label(q)[0]}, one point per job")
+            ax.set_xlabel(xtext)
+            ax.set_ylabel(qtext)
+            ax.set_title(quantity_label(q)[0], fontsize=10)
+            ax.legend(fontsize=8, loc="best")
+        for ax in axes[len(qs):]:
+            ax.set_axis_off()
+        fig.suptitle(title, fontsize=10)
+        return fig
+    fig = Figure(figsize=(10, 2.7 * len(qs) + 0.9), dpi=110, layout="constrained")
+    rows = fig.subplots(len(qs), 2, squeeze=False)
+    for row, q in zip(rows, qs):
+        y, qtext, scale = _quantity_axis(s, q)
         y = y[np.isfinite(y)]
-        row[0].hist(y, bins=max(5, min(30, y.size // 3)), color="0.6", edgecolor="k", lw=0.5)
+        row[0].hist(y, bins=max(5, min(30, y.size // 3)), color=SUMMARY_COLOURS["hist"],
+                    edgecolor=SUMMARY_COLOURS["hist_edge"], lw=0.5, label="jobs")
         st = s.stats[q]
-        for key, ls in (("p5", ":"), ("p50", "-"), ("p95", ":")):
-            row[0].axvline(st[key], color="k", ls=ls, lw=0.8)
-        row[0].set_xlabel(q)
+        row[0].axvline(st["p50"] * scale, color=SUMMARY_COLOURS["median"], lw=1.0, label="median")
+        row[0].axvline(st["p5"] * scale, color=SUMMARY_COLOURS["band"], lw=0.9, ls=":",
+                       label="5 % and 95 % percentiles")
+        row[0].axvline(st["p95"] * scale, color=SUMMARY_COLOURS["band"], lw=0.9, ls=":")
+        row[0].set_xlabel(qtext)
         row[0].set_ylabel("jobs")
+        row[0].set_title(f"spread of {quantity_label(q)[0]}", fontsize=10)
+        row[0].legend(fontsize=7, loc="upper left", bbox_to_anchor=(1.0, 1.0), frameon=False)
         vals = [s.standardized[q][p] for p in s.paths]
-        row[1].barh(range(len(s.paths)), vals, color=["tab:blue" if v >= 0 else "tab:orange" for v in vals])
+        row[1].barh(range(len(s.paths)), vals,
+                    color=[SUMMARY_COLOURS["raises"] if v >= 0 else SUMMARY_COLOURS["lowers"] for v in vals])
         row[1].set_yticks(range(len(s.paths)))
         row[1].set_yticklabels(s.paths, fontsize=7)
-        row[1].axvline(0, color="k", lw=0.5)
+        row[1].axvline(0, color="#444444", lw=0.5)
         row[1].set_xlim(-1.05, 1.05)
-        row[1].set_xlabel("standardised sensitivity")
-    fig.suptitle(f"{Path(s.folder).name}: {s.n_done} samples", fontsize=10)
+        row[1].set_xlabel("standardised sensitivity b·σ(x)/σ(y)")
+        row[1].set_title(f"what moves {quantity_label(q)[0]}", fontsize=10)
+    fig.legend(handles=[Patch(color=SUMMARY_COLOURS["raises"], label="raising the parameter raises it"),
+                        Patch(color=SUMMARY_COLOURS["lowers"], label="raising the parameter lowers it")],
+               loc="outside lower center", ncol=2, fontsize=8, frameon=False)
+    fig.suptitle(title, fontsize=10)
+    return fig
+
+
+def plot_summary(s: ToleranceSummary, path, *, quantities=None, force: bool = True) -> None:
+    """Write :func:`summary_figure` to ``path`` (.png, .svg or .pdf), atomically."""
     from selfcon.output.files import save_figure
-    try:
-        save_figure(fig, path, force=force, dpi=110)
-    finally:
-        plt.close(fig)
+    save_figure(summary_figure(s, quantities), path, force=force, dpi=110)

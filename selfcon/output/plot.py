@@ -94,9 +94,13 @@ def _allowed_span(z, edge, energy, sign, region):
 
 
 def _states_to_draw(sb, band, result):
-    from selfcon.output.channels import occupied_states     # the one rule for "occupied"
-    n_occ = int(np.sum(occupied_states(band, result.subbands, result.channels)))
-    count = min(np.asarray(sb.energy).size, n_occ + EMPTY_STATES_DRAWN, MAX_STATES_DRAWN)
+    """The states of ``band`` drawn: every occupied one (the one rule of selfcon.output.channels)
+    plus EMPTY_STATES_DRAWN above them, at most MAX_STATES_DRAWN; returns (indices, occupied)."""
+    from selfcon.output.channels import occupied_states
+    occ = np.asarray(occupied_states(band, result.subbands, result.channels), dtype=bool)
+    n_occ = int(np.sum(occ))
+    last = int(np.flatnonzero(occ).max()) + 1 if n_occ else 0
+    count = min(np.asarray(sb.energy).size, last + EMPTY_STATES_DRAWN, MAX_STATES_DRAWN)
     return list(range(count)), n_occ
 
 
@@ -148,16 +152,21 @@ def _state_support(z, psi2, region, frac=1e-3):
     return float(zz.min()), float(zz.max())
 
 
-def _draw_states(ax, result, z, ec, ev, span, regions, fs, labels=False, only=None):
-    """Levels and |psi|^2 of every drawn state on ``ax``; returns legend patches and the drawn extents."""
+def _draw_states(ax, result, z, ec, ev, span, regions, bands=None):
+    """Levels and |psi|^2 of the drawn states of ``bands`` (default: all) on ``ax``.
+
+    Returns the legend patches (one per band: how many are occupied, how many more exist than
+    are drawn) and the drawn states as (band, index, energy, z0, z1, amplitude, occupied)."""
+    from selfcon.output.channels import occupied_states
     from matplotlib.patches import Patch
     handles, drawn = [], []
     for band, sb in result.subbands.items():
-        if only is not None and band != only:
+        if bands is not None and band not in bands:
             continue
         idx, n_occ = _states_to_draw(sb, band, result)
         if not idx:
             continue
+        occ = np.asarray(occupied_states(band, result.subbands, result.channels), dtype=bool)
         sign = +1 if band.endswith("electron") else -1
         edge = ec if sign > 0 else ev
         colour = BAND_COLOURS.get(band, "#555555")
@@ -169,13 +178,12 @@ def _draw_states(ax, result, z, ec, ev, span, regions, fs, labels=False, only=No
         peak = float(psi2.max()) if psi2.size else 0.0
         if peak <= 0:
             continue
-        labelled = []
         for j, k in enumerate(idx):
             r = int(sb.region[k]) if k < len(sb.region) else 0
             region = regions[r] if 0 <= r < len(regions) else regions[0]
             a, b = _allowed_span(z, edge, e[j], sign, region)
             c0, c1 = _state_support(z, psi2[:, j], region)
-            occupied = j < n_occ
+            occupied = bool(occ[k])
             ax.hlines(e[j], a, b, colors=colour, linewidth=1.4 if occupied else 0.9,
                       linestyles="-" if occupied else ":", zorder=4)
             mask = (z >= c0) & (z <= c1)
@@ -184,15 +192,66 @@ def _draw_states(ax, result, z, ec, ev, span, regions, fs, labels=False, only=No
                             linewidth=0, zorder=3.5)
             ax.plot(zz, e[j] + sign * w, color=colour, linewidth=0.9, alpha=0.9 if occupied else 0.5, zorder=4)
             drawn.append((band, k, e[j], c0, c1, amp, occupied))
-            if labels and all(abs(e[j] - lab) > 0.025 * span for lab in labelled):   # no overlapping labels
-                labelled.append(e[j])
-                from matplotlib.transforms import blended_transform_factory
-                ax.text(0.98, e[j], f"{'E' if sign > 0 else 'H'}{k}  {e[j] * 1e3:+.1f} meV",
-                        transform=blended_transform_factory(ax.transAxes, ax.transData), fontsize=fs * 0.75,
-                        color=colour, va="bottom", ha="right", zorder=6, clip_on=True)
-        handles.append(Patch(facecolor=colour, alpha=0.5,
-                             label=f"{BAND_NAMES.get(band, band)} ({n_occ} occupied)"))
+        more = int(np.asarray(sb.energy).size) - len(idx)
+        label = f"{BAND_NAMES.get(band, band)}: {n_occ} occupied" + (f", +{more} more not drawn" if more else "")
+        handles.append(Patch(facecolor=colour, alpha=0.5, label=label))
     return handles, drawn
+
+
+#: label column of the close-up: gap between labels in units of the label height
+LABEL_GAP = 1.25
+
+
+def _label_levels(ax, items, fs):
+    """Name each drawn level in a column right of ``ax`` (outside the frame, so a label never
+    covers a band edge, a level or another label), joined to its level by a thin leader line.
+
+    ``items``: (energy, text, colour, z_end) per level; call after the axis limits are final."""
+    if not items:
+        return []
+    fig = ax.figure
+    height_px = ax.get_window_extent().height or 1.0
+    gap = LABEL_GAP * fs * 0.75 * fig.dpi / 72.0 / height_px          # label height in axes fraction
+    to_axes = ax.transAxes.inverted()
+    pos = [(float(to_axes.transform(ax.transData.transform((ze, e)))[1]), i)
+           for i, (e, _, _, ze) in enumerate(items)]
+    pos.sort()
+    ys = [min(max(y, gap / 2), 1 - gap / 2) for y, _ in pos]
+    for k in range(1, len(ys)):                                         # push up to keep a gap
+        ys[k] = max(ys[k], ys[k - 1] + gap)
+    over = ys[-1] - (1 - gap / 2)
+    if over > 0:                                                        # the column fits: shift it down
+        ys = [y - over for y in ys]
+        for k in range(len(ys) - 2, -1, -1):
+            ys[k] = min(ys[k], ys[k + 1] - gap)
+    out = []
+    for (_, i), y in zip(pos, ys):
+        e, text, colour, ze = items[i]
+        out.append(ax.annotate(text, xy=(ze, e), xycoords="data", xytext=(1.04, y), textcoords="axes fraction",
+                               ha="left", va="center", fontsize=fs * 0.75, color=colour, annotation_clip=False,
+                               arrowprops={"arrowstyle": "-", "color": colour, "linewidth": 0.6,
+                                           "alpha": 0.7, "shrinkA": 1, "shrinkB": 0}))
+    return out
+
+
+def _quantum_strip(ax, result, x0, x1):
+    """The quantum regions as a shaded strip along the bottom of ``ax`` (outside them the
+    carriers are classical, which is where a density may step)."""
+    for a, b in result.regions_nm:
+        lo, hi = max(float(a), x0), min(float(b), x1)
+        if hi > lo:
+            ax.axvspan(lo, hi, ymin=0.0, ymax=QUANTUM_STRIP, facecolor=QUANTUM_COLOUR, alpha=0.55,
+                       linewidth=0, zorder=1.5)
+
+
+def _quantum_handle():
+    from matplotlib.patches import Patch
+    return Patch(facecolor=QUANTUM_COLOUR, alpha=0.55, label="quantum region (strip): Schrödinger inside")
+
+
+#: the quantum-region strip: height as a fraction of the panel, colour
+QUANTUM_STRIP = 0.035
+QUANTUM_COLOUR = "#7d6aa8"
 
 
 #: occupied states listed on the figures card
@@ -232,12 +291,34 @@ def _figures_card(ax, result, fs):
             bbox={"boxstyle": "round,pad=0.6", "facecolor": "#f7f7f4", "edgecolor": "#c8c8c0"})
 
 
+WINDOW_COLOUR = "#777777"
+#: columns of the figure's legend
+LEGEND_COLUMNS = 4
+
+
+def _focus_bands(result) -> tuple[str, ...]:
+    """The bands of the close-up: the main channel's carrier (holes: heavy and light hole),
+    else the band holding the most subband carriers."""
+    main = result.main_channel if result.channels else None
+    carrier = main.get("carrier") if main is not None else None
+    if carrier is None:
+        occ = {b: float(np.sum(sb.occupation)) for b, sb in result.subbands.items()}
+        if not occ:
+            return ()
+        carrier = "electron" if max(occ, key=occ.get).endswith("electron") else "hole"
+    bands = tuple(b for b in result.subbands if b.endswith("electron")) if carrier == "electron" \
+        else ("heavy_hole", "light_hole")
+    return tuple(b for b in bands if b in result.subbands)
+
+
 #: eV: heavy- and light-hole edges further apart than this are drawn as two lines
 HOLE_SPLIT_SHOWN = 1e-3
 
 
 def draw_band_diagram(fig, result, depth=None):
     """Draw the band diagram on a matplotlib Figure; returns the axes (bands, densities, close-up, card)."""
+    from selfcon.output.numbers import fmt
+    from selfcon.output.report import state_label
     z = np.asarray(result.z, dtype=float)
     ec = np.asarray(result.profile["conduction_band"], dtype=float)
     ev = np.asarray(result.profile["valence_band"], dtype=float)
@@ -285,50 +366,60 @@ def draw_band_diagram(fig, result, depth=None):
             top.plot(z, np.where(edge - ec < VALLEY_SHOWN + 0.2, edge, np.nan), color=colour,
                      linestyle=style, linewidth=1.1, label=label, zorder=2.5)
     regions = list(result.regions_nm) or [(float(z[0]), float(z[-1]))]
-    handles_extra, drawn = _draw_states(top, result, z, ec, ev, span, regions, fs)
+    handles_extra, drawn = _draw_states(top, result, z, ec, ev, span, regions)
+    _quantum_strip(top, result, x0, x1)
     top.set_ylim(lo - 0.06 * span, hi + 0.14 * span)     # headroom for the layer names
     top.set_ylabel("energy relative to E$_F$ (eV)", fontsize=fs)
-    handles, _ = top.get_legend_handles_labels()
-    top.legend(handles=handles + handles_extra, loc="best", fontsize=fs * 0.75, framealpha=0.92)
     top.tick_params(labelbottom=False)
 
-    # --- close-up of the most populated band's states
-    occ_by_band = {b: float(np.sum(sb.occupation)) for b, sb in result.subbands.items()}
-    focus = max(occ_by_band, key=occ_by_band.get) if occ_by_band else None
-    mine = [d for d in drawn if d[0] == focus]
+    # --- close-up of the main channel's carrier (holes: both hole bands)
+    window_handle = None
+    focus = _focus_bands(result)
+    mine = [d for d in drawn if d[0] in focus]
     if mine:
         shown = [d for d in mine if d[6]] or mine[:1]
         c0 = min(d[3] for d in shown)
         c1 = max(d[4] for d in shown)
         pad = 0.15 * max(c1 - c0, 1.0)
         c0, c1 = max(c0 - pad, float(z[0])), min(c1 + pad, float(z[-1]))
-        sign = +1 if focus.endswith("electron") else -1
+        sign = +1 if any(b.endswith("electron") for b in focus) else -1
         edge = ec if sign > 0 else ev
         inwin = (z >= c0) & (z <= c1)
         energies = [d[2] for d in mine]
+        amp = max(d[5] for d in mine)
         if sign > 0:
             zlo = min(float(edge[inwin].min()), 0.0, min(energies))
-            zhi = max(max(energies) + mine[0][5], 0.0)
+            zhi = max(max(energies) + amp, 0.0)
         else:
             zhi = max(float(edge[inwin].max()), 0.0, max(energies))
-            zlo = min(min(energies) - mine[0][5], 0.0)
+            zlo = min(min(energies) - amp, 0.0)
         zspan = max(zhi - zlo, 1e-3)
         _layer_patches(zoom, result, c0, c1, False, fs)
         zoom.plot(z, edge, color=EDGE_COLOURS["conduction_band" if sign > 0 else "valence_band"], linewidth=2.0,
                   zorder=3)
         zoom.axhline(0.0, color=FERMI_COLOUR, linestyle="-.", linewidth=1.3, zorder=2)
-        _draw_states(zoom, result, z, ec, ev, zspan * 2.0, regions, fs, labels=True, only=focus)
+        _, zdrawn = _draw_states(zoom, result, z, ec, ev, zspan * 2.0, regions, bands=focus)
+        _quantum_strip(zoom, result, c0, c1)
         zoom.set_xlim(c0, c1)
         zoom.set_ylim(zlo - 0.12 * zspan, zhi + 0.12 * zspan)
-        zoom.set_title(f"close-up: {BAND_NAMES.get(focus, focus)}", fontsize=fs * 0.85)
+        names = " and ".join(BAND_NAMES.get(b, b) for b in focus if any(d[0] == b for d in zdrawn))
+        zoom.set_title(f"close-up: {names}", fontsize=fs * 0.85)
         zoom.set_xlabel("depth z (nm)", fontsize=fs * 0.85)
         zoom.tick_params(labelsize=fs * 0.8)
-        top.axvspan(c0, c1, ymin=0, ymax=1, facecolor="none", edgecolor="#777777", linewidth=0.8,
+        zoom_labels = [(d[2], f"{state_label(d[0], d[1])} {fmt(d[2] * 1e3, 'meV', sign=True)} meV",
+                        BAND_COLOURS.get(d[0], "#555555"), min(d[4], c1)) for d in zdrawn]
+        top.axvspan(c0, c1, ymin=0, ymax=1, facecolor="none", edgecolor=WINDOW_COLOUR, linewidth=0.8,
                     linestyle="--", zorder=2.5)
+        from matplotlib.patches import Patch
+        window_handle = Patch(facecolor="none", edgecolor=WINDOW_COLOUR, linestyle="--",
+                              label="close-up window (panel on the right)")
     else:
+        zoom_labels = []
         zoom.set_axis_off()
         zoom.text(0.5, 0.5, "no bound states", ha="center", va="center", transform=zoom.transAxes,
                   fontsize=fs * 0.9, color="#666666")
+    band_handles = top.get_legend_handles_labels()[0] + handles_extra + [_quantum_handle()] + (
+        [window_handle] if window_handle else [])
 
     # --- densities, log scale
     _layer_patches(bottom, result, x0, x1, False, fs)
@@ -350,8 +441,11 @@ def draw_band_diagram(fig, result, depth=None):
     bottom.set_yscale("log")
     bottom.set_ylim(floor, max(vmax, floor * 10) * 3.0)
     bottom.set_ylabel("density (cm$^{-3}$)", fontsize=fs)
-    if bottom.get_legend_handles_labels()[0]:
-        bottom.legend(loc="upper right", fontsize=fs * 0.75, framealpha=0.92)
+    _quantum_strip(bottom, result, x0, x1)
+    # one legend for every line and shading of the figure, below the panels (it covers no data)
+    handles = band_handles + bottom.get_legend_handles_labels()[0]
+    fig.legend(handles=handles, loc="outside lower center", ncol=LEGEND_COLUMNS, fontsize=fs * 0.72,
+               frameon=False, handlelength=2.4, columnspacing=1.6)
     more = f"   (stack continues to {z[-1]:g} nm)" if x1 < z[-1] - 1e-9 else ""
     bottom.set_xlabel(f"depth z (nm){more}", fontsize=fs)
     bottom.set_xlim(x0, x1)
@@ -359,6 +453,9 @@ def draw_band_diagram(fig, result, depth=None):
         ax.tick_params(labelsize=fs * 0.9)
         ax.grid(True, which="major", color="#ffffff", linewidth=0.8, alpha=0.7, zorder=1)
     _figures_card(card, result, fs)
+    if zoom_labels:
+        fig.draw_without_rendering()            # the final layout: the label column needs the panel's height
+        _label_levels(zoom, zoom_labels, fs)
 
     from selfcon.output.heading import heading_lines
     head = heading_lines(result)
@@ -399,3 +496,70 @@ def plot_result(result, path, size=None, depth=None, dpi: int = DPI, *, force: b
                                                metadata=None if fmt != "png" else {"Software": "selfcon"}),
                  force=force)
     return path
+
+
+def _drawn_texts(fig):
+    """Every text artist a drawn figure shows: titles, labels, tick labels of the ticks in
+    view, legend entries, annotations and free texts (visible, non-empty)."""
+    from matplotlib.text import Text
+    hidden = set()
+    for ax in fig.axes:
+        for axis in ax._axis_map.values():
+            shown = set(axis._update_ticks())             # the ticks matplotlib draws (inside the view)
+            for tick in axis.get_major_ticks() + axis.get_minor_ticks():
+                if tick not in shown:
+                    hidden.update((id(tick.label1), id(tick.label2)))
+    return [t for t in fig.findobj(Text)
+            if t.get_visible() and t.get_text().strip() and id(t) not in hidden]
+
+
+def figure_layout(fig) -> dict:
+    """The layout of ``fig`` as drawn by the Agg renderer: pixel size, legend entries, every
+    visible text's string and bounding box, and every framed axes' box (pixels from the
+    bottom-left corner). The layout tests (tests/test_figure_layout.py) compare it with the
+    committed records in tests/layouts/ and check that no two texts overlap and no text
+    crosses an axes frame."""
+    from matplotlib.backends.backend_agg import FigureCanvasAgg
+    from matplotlib.text import Text
+    canvas = FigureCanvasAgg(fig)
+    canvas.draw()
+    renderer = canvas.get_renderer()
+
+    def box(bb):
+        return [round(float(bb.x0), 1), round(float(bb.y0), 1), round(float(bb.x1), 1), round(float(bb.y1), 1)]
+
+    legends = list(fig.legends) + [ax.get_legend() for ax in fig.axes if ax.get_legend() is not None]
+    return {"size_px": [int(round(fig.get_figwidth() * fig.dpi)), int(round(fig.get_figheight() * fig.dpi))],
+            "legend": [t.get_text() for lg in legends for t in lg.get_texts()],
+            "frames": [box(ax.get_window_extent(renderer)) for ax in fig.axes if ax.axison and ax.get_visible()],
+            # Text's own extent: an annotation's leader line is no text
+            "texts": [{"text": t.get_text(), "bbox": box(Text.get_window_extent(t, renderer))}
+                      for t in _drawn_texts(fig)]}
+
+
+def layout_faults(layout: dict, tolerance: float = 0.5) -> list[str]:
+    """What is wrong with a :func:`figure_layout`: texts that run off the figure, pairs of
+    texts whose boxes overlap, texts that cross an axes frame (partly inside, partly
+    outside). [] for a clean figure."""
+    def overlap(a, b):
+        return (min(a[2], b[2]) - max(a[0], b[0]) > tolerance) and (min(a[3], b[3]) - max(a[1], b[1]) > tolerance)
+
+    def inside(a, f):
+        return a[0] >= f[0] - tolerance and a[1] >= f[1] - tolerance and a[2] <= f[2] + tolerance \
+            and a[3] <= f[3] + tolerance
+
+    faults = []
+    texts = layout["texts"]
+    w, h = layout["size_px"]
+    for a in texts:
+        x0, y0, x1, y1 = a["bbox"]
+        if x0 < -tolerance or y0 < -tolerance or x1 > w + tolerance or y1 > h + tolerance:
+            faults.append(f"{a['text']!r} runs off the figure ({w} x {h} px)")
+    for i, a in enumerate(texts):
+        for b in texts[i + 1:]:
+            if overlap(a["bbox"], b["bbox"]):
+                faults.append(f"{a['text']!r} overlaps {b['text']!r}")
+        for f in layout["frames"]:
+            if overlap(a["bbox"], f) and not inside(a["bbox"], f):
+                faults.append(f"{a['text']!r} crosses the axes frame {f}")
+    return faults

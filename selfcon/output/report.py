@@ -15,7 +15,8 @@ from typing import Any
 import numpy as np
 
 # "occupied": the one rule of selfcon.output.channels (>= 1 % of its channel and >= 1e8 cm^-2)
-from selfcon.output.channels import OCCUPIED_CM2, OCCUPIED_FRACTION, STATE_LABEL, occupied_states  # noqa: E402
+from selfcon.output.channels import (BAND_CARRIER, OCCUPIED_CM2, OCCUPIED_FRACTION, STATE_LABEL,  # noqa: E402
+                                     occupied_states)  # noqa: E402
 from selfcon.output.heading import heading_lines, override_list
 from selfcon.output.numbers import fmt
 
@@ -133,7 +134,7 @@ def subband_rows(result) -> list[dict]:
              "hole": float(result.summary.get("hole_fermi_level_eV", 0.0) or 0.0)}
     for band, sb in result.subbands.items():
         occupied = occupied_states(band, result.subbands, result.channels)
-        hole = band != "electron"
+        hole = BAND_CARRIER.get(band, "electron") == "hole"
         ef = fermi["hole" if hole else "electron"]
         names = [str(c.get("name", "")) for c in result.channels]
         for k in range(np.asarray(sb.energy).size):
