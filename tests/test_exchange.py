@@ -237,3 +237,20 @@ def test_profile_is_stored_and_read_back(tmp_path):
     assert "exchange_correlation" in selfcon.load_result(path).profile
     hartree = solve_heterojunction(SHEETS[1], "none")
     assert "exchange_correlation" not in hartree.profile
+
+
+def test_a_study_compares_hartree_and_lda():
+    # the physics options are deck paths like any other: a study varies them (the shipped
+    # study inputs/studies/hartree_vs_lda.toml; tests/test_studies.py runs it)
+    from pathlib import Path
+
+    from selfcon.batch.study import expand, load_study
+    study = Path(__file__).resolve().parents[1] / "inputs" / "studies" / "hartree_vs_lda.toml"
+    got = set()
+    for job in expand(load_study(study)):
+        assert job.error is None
+        st = selfcon.build_structure(selfcon.load_deck(job.deck_text))
+        assert st.exchange_correlation == job.values["physics.exchange_correlation"]
+        assert st.nonparabolicity == job.values["physics.nonparabolicity"]
+        got.add((st.exchange_correlation, st.nonparabolicity))
+    assert got == {("none", False), ("none", True), ("lda", False), ("lda", True)}

@@ -644,6 +644,11 @@ class Deck:
         try:
             return get_path(self._canonical(), path)
         except KeyError:
+            # [physics] keys at their default are left out of the canonical text (so older
+            # decks keep their hash); their value is still the deck's
+            table, _, key = path.partition(".")
+            if table == "physics" and key in _PHYSICS and hasattr(self.physics, key):
+                return getattr(self.physics, key)
             return default
 
     def material(self, name):
