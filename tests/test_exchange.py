@@ -237,6 +237,10 @@ def test_profile_is_stored_and_read_back(tmp_path):
     assert "exchange_correlation" in selfcon.load_result(path).profile
     hartree = solve_heterojunction(SHEETS[1], "none")
     assert "exchange_correlation" not in hartree.profile
+    # every summary and figure heading says which model solved it (and says nothing for Hartree)
+    from selfcon.output.heading import conditions
+    assert "LDA exchange-correlation (Hedin-Lundqvist)" in conditions(r)
+    assert "exchange" not in conditions(hartree)
 
 
 def test_a_study_compares_hartree_and_lda():

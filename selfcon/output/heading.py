@@ -113,7 +113,8 @@ def _contacts(result) -> dict:
 
 
 def conditions(result) -> str:
-    """``T = 77 K, gate bias -0.300 V`` (the bias of each contact that takes one)."""
+    """``T = 77 K, gate bias -0.300 V`` (the bias of each contact that takes one), and the
+    physics beyond Hartree and parabolic bands when the deck asks for it."""
     parts = [f"T = {fmt(result.temperature, 'K')} K"]
     deck = _contacts(result)
     for side, label in (("surface", "gate"), ("substrate", "back gate")):
@@ -121,7 +122,18 @@ def conditions(result) -> str:
         if c.get("contact") == "schottky" or (c.get("bias") not in (None, 0, 0.0)):
             bias = float(c.get("bias", 0.0) or 0.0)
             parts.append(f"{label} bias {fmt(bias, 'V', sign=True)} V")
+    physics = deck.get("physics") or {}
+    xc = physics.get("exchange_correlation", "none")
+    if xc != "none":                        # beyond Hartree and parabolic bands: say so
+        parts.append(XC_NAMES.get(xc, xc))
+    if physics.get("nonparabolicity"):
+        parts.append("nonparabolic Gamma electrons")
     return ", ".join(parts)
+
+
+#: how the heading names physics.exchange_correlation (selfcon/solver/exchange.py)
+XC_NAMES = {"lda": "LDA exchange-correlation (Hedin-Lundqvist)",
+            "lda-gl": "LDA exchange-correlation (Gunnarsson-Lundqvist)"}
 
 
 def heading_lines(result) -> list[str]:
