@@ -143,6 +143,8 @@ BAD_DECKS = [
           "physics.exchange_correlation", 'exchange_correlation = "gga"'),
     _case("nonparabolicity_not_boolean", GOOD_DECK + '\n[physics]\nnonparabolicity = "yes"\n',
           "physics.nonparabolicity", 'nonparabolicity = "yes"'),
+    _case("unknown_hole_model", GOOD_DECK + '\n[physics]\nhole_model = "kp8"\n',
+          "physics.hole_model", 'hole_model = "kp8"'),
     _case("mesh_fine_above_step", GOOD_DECK + "\n[mesh]\nstep = 0.5\nfine = 1.0\n", "mesh.fine",
           "fine = 1.0"),
     _case("negative_doping", _swap("sheet_donors = 4e12", "sheet_donors = -4e12"),

@@ -129,6 +129,9 @@ DX_STATES = ("equilibrium", "ionized")
 #: library materials the Si-DX level is given for (selfcon.model.dopants.dx_binding)
 DX_HOSTS = ("AlGaAs", "GaAs")
 SOLVER_METHODS = ("predictor-corrector", "anderson", "linear")
+#: physics.hole_model: parabolic (heavy and light holes as single bands) or the 4x4 / 6x6
+#: Luttinger-Kohn multiband model of selfcon.solver.kp
+HOLE_MODELS = ("parabolic", "kp4", "kp6")
 #: nm, the thinnest layer accepted: about half a monolayer (a GaAs monolayer is a/2 = 0.283 nm,
 #: common practice); anything thinner is a unit mistake (a thickness typed in metres or cm)
 MIN_THICKNESS = 0.1
@@ -334,6 +337,11 @@ _PHYSICS = {
         "(001) growth axis: x2 (the X/Delta valleys along z, mass m_l along z), x4 (those in the "
         "plane, m_t along z) and l (the four L valleys, the mass projected on [001]); false: "
         "classical everywhere"),
+    "hole_model": KeySpec("string", "-", "parabolic", "valence subbands in quantum regions: "
+                          "parabolic (heavy and light holes as two single bands) | kp4 (4x4 "
+                          "Luttinger-Kohn: heavy and light holes coupled, with their in-plane "
+                          "dispersion) | kp6 (6x6: with the split-off band); zincblende (001) "
+                          "stacks only", choices=HOLE_MODELS),
 }
 _QUANTUM = {
     "regions": KeySpec("regions", "nm", None, "quantum regions [[top, bottom], ...], sorted, "
@@ -528,6 +536,7 @@ class Physics:
     exchange_correlation: str = "none"
     nonparabolicity: bool = False
     quantum_valleys: bool = False   # X/Delta and L electrons as subbands in quantum regions
+    hole_model: str = "parabolic"   # parabolic | kp4 | kp6
 
 
 @dataclass(frozen=True)
@@ -767,6 +776,8 @@ class Deck:
             out["physics"]["nonparabolicity"] = True
         if self.physics.quantum_valleys:
             out["physics"]["quantum_valleys"] = True
+        if self.physics.hole_model != "parabolic":
+            out["physics"]["hole_model"] = self.physics.hole_model
         q = {}
         if self.quantum.regions is not None:
             q["regions"] = [list(r) for r in self.quantum.regions]
@@ -1588,6 +1599,7 @@ def _physics(ctx, t):
     polarization = ctx.get(t, "polarization", _PHYSICS["polarization"], p)
     xc = ctx.get(t, "exchange_correlation", _PHYSICS["exchange_correlation"], p)
     nonparabolic = ctx.get(t, "nonparabolicity", _PHYSICS["nonparabolicity"], p)
+    hole_model = ctx.get(t, "hole_model", _PHYSICS["hole_model"], p)
     quantum_valleys = ctx.get(t, "quantum_valleys", _PHYSICS["quantum_valleys"], p)
     if quantum_valleys and not {"x_electron", "l_electron"} & set(carriers):
         raise ctx.error("physics.quantum_valleys", "true needs x_electron or l_electron in "
@@ -1596,7 +1608,7 @@ def _physics(ctx, t):
     return Physics(carriers=carriers, ionization=ionization, contacted_carrier=contacted,
                    polarity=polarity, polarization=float(polarization), exchange_correlation=xc,
                    nonparabolicity=bool(nonparabolic),
-                   quantum_valleys=bool(quantum_valleys))
+                   quantum_valleys=bool(quantum_valleys), hole_model=hole_model)
 
 
 def _quantum(ctx, t, total):

@@ -34,6 +34,8 @@ MATERIAL_KEYS = ("eps", "ec_gamma", "ec_x", "ec_l", "ev_hh", "ev_lh", "m_e", "m_
                  # heavy- and light-hole DOS masses (the valence DOS mass rule combines them)
                  "m_hh_dos", "m_lh_dos",
                  # lattice, elasticity, deformation potentials (selfcon.model.strain)
+                 # Luttinger parameters (the multiband hole model, selfcon.solver.kp)
+                 "gamma1", "gamma2", "gamma3",
                  "vbo", "delta_so", "lattice", "c11", "c12", "c44", "ac", "av", "b_dp", "d_dp",
                  "xi_x_gap", "xi_x_u", "xi_l_gap", "xi_l_u",
                  # wurtzite: in-plane electron mass, the crystal-field split-off hole, and the
@@ -118,6 +120,8 @@ class Structure:
     #: physics.quantum_valleys: the counted X/Delta and L electrons are subbands in the
     #: quantum regions, per valley set (cell["ec_x2"], ["m_x2_z"], ... : valley_sets)
     quantum_valleys: bool = False
+    #: physics.hole_model: parabolic | kp4 | kp6 (selfcon.solver.kp)
+    hole_model: str = "parabolic"
     #: (N,) bool: sheet nodes whose donors are Si-DX in equilibrium (cell["dx"] marks the cells)
     sheet_dx: Any = None
     #: a dark cool-down applied (selfcon.solver.dx.freeze): (ionised fraction per cell (N-1,),
@@ -505,7 +509,18 @@ def build_structure(deck: Deck, *, mesh: Mesh | None = None, max_nodes: float | 
                      exchange_correlation=getattr(deck.physics, "exchange_correlation", "none"),
                      nonparabolicity=bool(getattr(deck.physics, "nonparabolicity", False)),
                      quantum_valleys=bool(getattr(deck.physics, "quantum_valleys", False)),
-                     sheet_dx=sheet_dx)
+                     hole_model=_hole_model(deck, crystal), sheet_dx=sheet_dx)
+
+
+def _hole_model(deck, crystal: str) -> str:
+    """physics.hole_model, refused for wurtzite stacks (the Luttinger-Kohn Hamiltonian of
+    selfcon.solver.kp is that of a cubic crystal grown on (001))."""
+    model = getattr(deck.physics, "hole_model", "parabolic")
+    if model != "parabolic" and crystal == "wurtzite":
+        raise deck.error("physics.hole_model", f"{model} is the (001) Luttinger-Kohn model of "
+                         "zincblende crystals; this stack is wurtzite (use parabolic)",
+                         allowed=("parabolic",))
+    return model
 
 
 def group_iv_donor(deck, layer, x) -> np.ndarray:

@@ -40,7 +40,7 @@ block-tridiagonal matrix (blocks of 4 or 6), stored as a band of half-width 2 nb
 **Eigensolve** (:func:`lowest_states`): the lowest eigenvalues of the hole kinetic operator
 -B by bisection on Sturm counts of the band matrix (the negative pivots of its L D L^H
 factorisation, selfcon/solver/kernels/kp.py, O(N nb^2) per count), then the eigenvectors by
-inverse iteration with the banded LU (LAPACK zgbtrf/zgbtrs, O(N nb^2)); states closer than
+inverse iteration with the same band factorisation (O(N nb^2)); states closer than
 DEGENERATE (Kramers pairs) are found together, as a block, and separated by Rayleigh-Ritz.
 Linear in the nodes.  (The banded reduction to tridiagonal form of LAPACK's zhbevx, behind
 scipy.linalg.eig_banded, costs O(N^2 nb): measured quadratic, so it is not used.)
@@ -59,14 +59,16 @@ import numpy as np
 
 from selfcon.constants import HBAR2_2M0
 
-__all__ = ["KpMaterial", "MODELS", "basis", "cartesian_blocks", "bulk_matrix",
+__all__ = ["KpMaterial", "KpStates", "MODELS", "basis", "cartesian_blocks", "bulk_matrix",
            "assemble_blocks", "band_matrix", "dense_matrix", "lowest_banded", "lowest_states",
-           "DEGENERATE"]
+           "DEGENERATE", "region_material", "dispersion", "annulus_states", "annulus_sheets",
+           "grid_top", "region_dispersion", "K_POINTS", "fermi_sea_top", "collect_states"]
 
 #: hole model name -> number of bands
 MODELS = {"kp4": 4, "kp6": 6}
-#: eigenvalues closer than this (eV) are found together (Kramers pairs, symmetric wells)
-DEGENERATE = 1e-7
+#: eigenvalues closer than this (eV) are found together (Kramers pairs, symmetric wells,
+#: small spin splittings); the bisection brackets are narrower (lowest_banded's tol)
+DEGENERATE = 3e-5
 
 
 class KpMaterial(NamedTuple):
@@ -266,39 +268,16 @@ def dense_matrix(diag, upper) -> np.ndarray:
     return H
 
 
-def _to_general_band(ab, u):
-    """Upper Hermitian band storage -> LAPACK general band storage (kl = ku = u) with the u
-    extra rows zgbtrf needs for its fill-in."""
-    m = ab.shape[1]
-    g = np.zeros((3 * u + 1, m), dtype=complex)
-    # upper part: a[i, j] (i <= j) at ab[u + i - j, j] -> g[2u + i - j, j]
-    g[u:2 * u + 1, :] = ab
-    # lower part: a[j + r, j] = conj(a[j, j + r]) -> g[2u + r, j]
-    for r in range(1, u + 1):
-        g[2 * u + r, :m - r] = np.conj(ab[u - r, r:])
-    return g
-
-
-def _band_apply(ab, x):
-    """The Hermitian band matrix ``ab`` (upper storage) times the columns of ``x``."""
-    u = ab.shape[0] - 1
-    y = ab[u].real[:, None] * x
-    for off in range(1, u + 1):          # ab[u - off, j] = a[j - off, j]
-        row = ab[u - off, off:][:, None]
-        y[:-off] += row * x[off:]
-        y[off:] += np.conj(row) * x[:-off]
-    return y
-
-
-def lowest_banded(ab, n_states: int, rng_seed: int = 1, tol: float = 1e-8):
+def lowest_banded(ab, n_states: int, rng_seed: int = 1, tol: float = 1e-5, lower=None):
     """Lowest ``n_states`` eigenpairs of the Hermitian band matrix ``ab`` (upper storage):
     (values (k,), vectors (m, k) orthonormal).
 
     Eigenvalues bracketed by bisection on Sturm counts (selfcon/solver/kernels/kp.py) to
-    ``tol``; the vectors of each group of brackets closer than DEGENERATE (Kramers pairs)
-    by block inverse iteration with the banded LU at the group's centre, then
-    Rayleigh-Ritz in the block, whose values are returned.  Linear in m."""
-    from scipy.linalg import get_lapack_funcs
+    ``tol``; the vectors of each group of brackets closer than DEGENERATE (Kramers pairs,
+    small spin splittings) by block inverse iteration with the band L D L^H factorisation
+    at the group's centre (the count's own, kernels/kp.py), then Rayleigh-Ritz in the block, whose values are returned (so they are exact
+    to rounding, not to ``tol``).  ``lower``: a guess of a bound below the spectrum (checked
+    by a count; Gershgorin's bound otherwise).  Linear in m."""
     from selfcon.solver.kernels import kp as kern
     u, m = ab.shape[0] - 1, ab.shape[1]
     k = int(min(n_states, m))
@@ -307,16 +286,21 @@ def lowest_banded(ab, n_states: int, rng_seed: int = 1, tol: float = 1e-8):
     ab = np.ascontiguousarray(ab, dtype=complex)
     # Gershgorin bounds of the spectrum
     radius = np.abs(ab[:u]).sum(axis=0)
-    radius_full = radius.copy()
     for off in range(1, u + 1):
-        radius_full[:-off] += np.abs(ab[u - off, off:])
+        radius[:-off] += np.abs(ab[u - off, off:])
     diag = ab[u].real
-    lo = float(np.min(diag - radius_full)) - 1.0
-    hi = float(np.max(diag + radius_full)) + 1.0
+    lo = float(np.min(diag - radius)) - 1.0
+    hi = float(np.max(diag + radius)) + 1.0
+    if lower is not None and lower > lo and kern.sturm_count(ab, float(lower)) == 0:
+        lo = float(lower)
+        step = 0.1
+        while lo + step < hi:
+            if kern.sturm_count(ab, lo + step) >= k:
+                hi = lo + step
+                break
+            step *= 2.0
     centre, _ = kern.lowest_eigenvalues(ab, k, lo, hi, tol)
     scale = max(1.0, float(np.max(np.abs(diag))))
-    gbtrf, gbtrs = get_lapack_funcs(("gbtrf", "gbtrs"), (ab,))
-    gen = _to_general_band(ab, u)
     rng = np.random.default_rng(rng_seed)
     vals = np.zeros(k)
     vecs = np.zeros((m, k), dtype=complex)
@@ -324,26 +308,17 @@ def lowest_banded(ab, n_states: int, rng_seed: int = 1, tol: float = 1e-8):
     done = 0
     for grp in groups:
         sigma = float(np.mean(centre[grp]))
-        shifted = gen.copy()
-        shifted[2 * u, :] -= sigma
-        for attempt in range(4):
-            lu, piv, info = gbtrf(shifted, u, u)
-            if info == 0:
-                break
-            shifted[2 * u, :] -= 1e-13 * scale * 10 ** attempt
+        lw, dd = kern.ldl_band(ab, sigma)
         x = rng.standard_normal((m, grp.size)) + 1j * rng.standard_normal((m, grp.size))
-        prev = vecs[:, :done]
-        for it in range(8):
-            x, info = gbtrs(lu, u, u, x, piv)
-            if done:
-                x -= prev @ (prev.conj().T @ x)
-            x, _ = np.linalg.qr(x)
-            hx = _band_apply(ab, x)
+        prev = np.ascontiguousarray(vecs[:, :done])
+        for it in range(12):
+            x = kern.orthonormalise(kern.ldl_solve(lw, dd, x), prev)
+            hx = kern.band_apply(ab, x)
             small = x.conj().T @ hx
             theta, c = np.linalg.eigh(0.5 * (small + small.conj().T))
             x, hx = x @ c, hx @ c
             resid = np.abs(hx - x * theta).max()
-            if it >= 1 and resid < 1e-12 * scale:
+            if it >= 1 and resid < 1e-13 * scale:
                 break
         vals[done:done + grp.size] = theta
         vecs[:, done:done + grp.size] = x
@@ -361,9 +336,193 @@ def lowest_states(h, w, mat: KpMaterial, phi_node, kx: float, ky: float, nb: int
     (energy (k,) eV on the electron scale, highest first, i.e. lowest hole energy first;
     psi (n, nb, k) complex in nm^-1/2 with sum_i w_i sum_b |psi_ib|^2 = 1)."""
     d, u = _interior_hole_blocks(h, w, mat, phi_node, kx, ky, nb, axial)
-    vals, vecs = lowest_banded(band_matrix(d, u), n_states)
+    # a guess of a bound below the hole spectrum: the lowest hole edge less a margin for the
+    # strain shifts (checked by a Sturm count in lowest_banded)
+    edge = -np.asarray(mat.ev, float) + 0.5 * (np.asarray(phi_node)[1:] + np.asarray(phi_node)[:-1])
+    vals, vecs = lowest_banded(band_matrix(d, u), n_states, lower=float(np.min(edge)) - 0.3)
     n = np.asarray(w).size
     psi = np.zeros((n, nb, vals.size), dtype=complex)
     s = 1.0 / np.sqrt(np.asarray(w, float)[1:-1])
     psi[1:-1] = vecs.reshape(n - 2, nb, vals.size) * s[:, None, None]
     return -vals, psi
+
+
+# --------------------------------------------------------------------------- regions and the loop
+
+#: k_par points of the dispersion the hole density integrates (axial approximation)
+K_POINTS = 16
+#: eigenstates asked of a region at first (Kramers pairs count twice); grown while the top
+#: state still holds charge, as the single-band states (selfcon.solver.steps)
+FIRST_STATES = 8
+#: the k grid reaches until every state's occupation at its end is below this
+TAIL_OCCUPATION = 1e-7
+#: the grid spans the Fermi sea plus this many kT (and at least MIN_WINDOW eV)
+WINDOW_KT = 16.0
+MIN_WINDOW = 0.01
+#: annuli flatter than this (eV) are given this energy width (their DOS stays finite)
+FLAT = 1e-9
+
+
+class KpStates(NamedTuple):
+    """The multiband hole states of the quantum regions at one potential.
+
+    The charge: the k_par integral as pseudo-states the Poisson kernel sums like subbands
+    (``energy``, ``dos``, ``weight``: see :func:`annulus_states`), ``quantum_nodes``.  The
+    subbands: ``subband_energy`` (n,) at k_par = 0 (electron scale, lowest hole energy
+    first), ``k_parallel`` (m,) nm^-1 per region, ``dispersion`` (n, m) eV (axial),
+    ``psi0`` (N, nb, n) complex at k_par = 0, ``sheet`` (n,) nm^-2 held by each,
+    ``subband_region`` (n,)."""
+
+    band: str
+    model: str
+    energy: np.ndarray
+    dos: np.ndarray
+    weight: np.ndarray
+    region: np.ndarray
+    sign: int
+    quantum_nodes: np.ndarray
+    subband_energy: np.ndarray
+    subband_region: np.ndarray
+    k_parallel: np.ndarray
+    dispersion: np.ndarray
+    psi0: np.ndarray
+    sheet: np.ndarray
+
+
+def region_material(cell: dict, i0: int, i1: int) -> KpMaterial:
+    """The per-cell Luttinger-Kohn parameters of the cells of nodes i0..i1 from a
+    Structure's ``cell`` arrays (unstrained where the structure has no strain)."""
+    sl = slice(i0, i1)
+    zero = np.zeros(i1 - i0)
+
+    def get(key):
+        return np.asarray(cell[key][sl], float) if key in cell else zero
+    return KpMaterial(get("gamma1"), get("gamma2"), get("gamma3"), get("delta_so"), get("vbo"),
+                      get("av"), get("b_dp"), get("d_dp"), get("eps_xx"), get("eps_zz"))
+
+
+def dispersion(h, w, mat: KpMaterial, phi_node, nb: int, n_states: int, k_grid, *,
+               angle: float | None = None):
+    """States of one region along a line of k_par: ``angle`` from [100] (radians), None for
+    the axial approximation.  Returns (energies (n, m) electron scale, lowest hole energy
+    first at each k; density |psi|^2 summed over the components (N_region, n, m);
+    psi at the first k (N_region, nb, n))."""
+    k_grid = np.asarray(k_grid, float)
+    c, s = (1.0, 0.0) if angle is None else (np.cos(angle), np.sin(angle))
+    n_nodes = np.asarray(w).size
+    E = np.full((n_states, k_grid.size), np.nan)
+    dens = np.zeros((n_nodes, n_states, k_grid.size))
+    first = None
+    for j, k in enumerate(k_grid):
+        e, psi = lowest_states(h, w, mat, phi_node, k * c, k * s, nb, n_states, axial=angle is None)
+        got = e.size
+        E[:got, j] = e
+        dens[:, :got, j] = np.sum(np.abs(psi) ** 2, axis=1)
+        if j == 0:
+            first = psi
+    return E, dens, first
+
+
+def annulus_states(k_grid, E, dens):
+    """The k_par integral of the hole density as pseudo-subbands (the stated quadrature).
+
+    Between neighbouring grid points each state's energy is taken linear in k^2 (a
+    parabola per annulus), so its 2D density of states there is constant,
+    D = (k_b^2 - k_a^2) / (4 pi (eps_b - eps_a)) per state (spin is in the basis), and
+    the holes of the annulus are exactly D kT [ln(1 + e^((E_a - EF)/kT)) - ln(1 + e^((E_b -
+    EF)/kT))] (electron-scale energies E, holes fill from the top).  That is two subband
+    terms of the Poisson kernel, one at E_a with +D and one at E_b with -D, each with the
+    annulus-mean |psi|^2 of the state as its weight; the predictor shifts both with the
+    local potential, so the predictor-corrector's density response is the same sum
+    differentiated term by term.  A falling band (eps_b < eps_a) gives D < 0 and the same
+    formula.  Returns (energy (K,), dos (K,) nm^-2 eV^-1, weight (N, K), state (K,))."""
+    k2 = np.asarray(k_grid, float) ** 2
+    n, m = E.shape
+    ea, eb = E[:, :-1], E[:, 1:]
+    de = ea - eb                                   # eps_b - eps_a (hole energies)
+    de = np.where(np.abs(de) < FLAT, np.where(de >= 0, FLAT, -FLAT), de)
+    D = np.diff(k2)[None, :] / (4.0 * np.pi) / de
+    wbar = 0.5 * (dens[:, :, :-1] + dens[:, :, 1:])
+    N = dens.shape[0]
+    energy = np.concatenate([ea.ravel(), (ea - de).ravel()])
+    dos = np.concatenate([D.ravel(), -D.ravel()])
+    weight = np.concatenate([wbar.reshape(N, -1), wbar.reshape(N, -1)], axis=1)
+    state = np.concatenate([np.repeat(np.arange(n), m - 1)] * 2)
+    ok = np.isfinite(energy) & np.isfinite(dos)
+    return energy[ok], dos[ok], weight[:, ok], state[ok]
+
+
+def annulus_sheets(energy, dos, state, n, efp, kT):
+    """Sheet density (nm^-2) of each of ``n`` states from its pseudo-subbands."""
+    x = (np.asarray(energy) - efp) / kT
+    lg = np.logaddexp(0.0, x)
+    out = np.zeros(n)
+    np.add.at(out, state, dos * kT * lg)
+    return out
+
+
+def grid_top(mat: KpMaterial, window: float) -> float:
+    """k_par (nm^-1) where a hole of the heaviest in-plane mass of the region, estimated as
+    1/(g1 - 2 gbar) with gbar = (g2 + g3)/2 and at most 2 m0, has ``window`` eV."""
+    gbar = 0.5 * (np.asarray(mat.g2) + np.asarray(mat.g3))
+    inv = np.asarray(mat.g1) - 2.0 * gbar
+    m_heavy = float(np.max(1.0 / np.clip(inv, 0.5, None)))
+    return float(np.sqrt(window * m_heavy / HBAR2_2M0))
+
+
+def fermi_sea_top(h, w, mat, phi_node, nb, efp, kT) -> float:
+    """The k_par (nm^-1) a grid must reach in one region: the Fermi sea above the first
+    state at k_par = 0 plus WINDOW_KT kT (at least MIN_WINDOW), at the heavy mass of
+    :func:`grid_top`."""
+    e0, _ = lowest_states(h, w, mat, phi_node, 0.0, 0.0, nb, 2)
+    depth = max(0.0, float(e0[0]) - efp) if e0.size else 0.0
+    return grid_top(mat, max(depth + WINDOW_KT * kT, MIN_WINDOW))
+
+
+def region_dispersion(h, w, mat, phi_node, nb, n_states, efp, kT, k_top):
+    """The axial dispersion of one region on K_POINTS k_par values from 0 to ``k_top``,
+    lengthened (x 1.5) until every state's hole occupation at the end is below
+    TAIL_OCCUPATION.  Returns (k_grid, E, dens, psi0) as :func:`dispersion`."""
+    for _ in range(8):
+        k_grid = np.linspace(0.0, k_top, K_POINTS)
+        E, dens, psi0 = dispersion(h, w, mat, phi_node, nb, n_states, k_grid)
+        last = E[:, -1]
+        occ = 1.0 / (1.0 + np.exp(np.clip((efp - last[np.isfinite(last)]) / kT, -700, 700)))
+        if occ.size == 0 or occ.max() < TAIL_OCCUPATION:
+            break
+        k_top *= 1.5
+    return k_grid, E, dens, psi0
+
+
+def collect_states(n_nodes: int, model: str, regions, solved, efp: float, kT: float) -> KpStates:
+    """One :class:`KpStates` from the regions' solves: ``regions`` [(r_idx, i0, i1)],
+    ``solved`` [(k_grid, E, dens, psi0)] on one k grid."""
+    nb = MODELS[model]
+    energy, dos, weight, region, sub_e, sub_r, disp, psis, sheets = ([] for _ in range(9))
+    qnodes = np.zeros(n_nodes, dtype=bool)
+    k_grid = solved[0][0]
+    for (r_idx, i0, i1), (kg, E, dens, psi0) in zip(regions, solved):
+        qnodes[i0:i1 + 1] = True
+        en, d, wt, state = annulus_states(kg, E, dens)
+        full = np.zeros((n_nodes, en.size))
+        full[i0:i1 + 1] = wt
+        energy.append(en)
+        dos.append(d)
+        weight.append(full)
+        region.append(np.full(en.size, r_idx))
+        sub_e.append(E[:, 0])
+        sub_r.append(np.full(E.shape[0], r_idx))
+        disp.append(E)
+        p = np.zeros((n_nodes, nb, E.shape[0]), dtype=complex)
+        p[i0:i1 + 1] = psi0
+        psis.append(p)
+        sheets.append(annulus_sheets(en, d, state, E.shape[0], efp, kT))
+    sub_e = np.concatenate(sub_e)
+    order = np.argsort(-sub_e, kind="stable")          # lowest hole energy first
+    return KpStates(band="hole_kp", model=model, energy=np.concatenate(energy),
+                    dos=np.concatenate(dos), weight=np.ascontiguousarray(np.concatenate(weight, axis=1)),
+                    region=np.concatenate(region), sign=-1, quantum_nodes=qnodes,
+                    subband_energy=sub_e[order], subband_region=np.concatenate(sub_r)[order],
+                    k_parallel=k_grid, dispersion=np.concatenate(disp)[order],
+                    psi0=np.concatenate(psis, axis=2)[:, :, order],
+                    sheet=np.concatenate(sheets)[order])

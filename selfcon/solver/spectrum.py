@@ -83,6 +83,8 @@ def full_spectrum(st, phi, loop_states: dict, n_states: int | None = None) -> di
     out = {}
     from selfcon.solver.steps import bands_of, state_degeneracy
     for band, (_, _, _, sign, _) in bands_of(st).items():
+        if sign < 0 and getattr(st, "hole_model", "parabolic") != "parabolic":
+            continue        # the multiband hole states replace the hole bands (/subbands/hole_kp)
         bs = loop_states.get(band)
         solved = set() if bs is None else {int(r) for r in np.asarray(bs.region)}
         parts = []          # (energy, psi, m_par, region, populated)

@@ -43,6 +43,9 @@ BAND_SPECS = {
     "light_hole": ("ev_lh", "m_lh_z", "m_lh_par", -1, 1),
 }
 HOLE_BANDS = ("heavy_hole", "light_hole")
+#: the states of the multiband hole model (physics.hole_model kp4 / kp6) in place of the
+#: hole bands: selfcon.solver.kp.KpStates under this name
+KP_BAND = "hole_kp"
 
 #: the conduction valley sets of physics.quantum_valleys (selfcon.model.structure.valley_sets):
 #: band name -> (edge key, mass along z, in-plane mass, sign, degeneracy key: a per-cell count)
@@ -154,6 +157,8 @@ class Workspace:
         self.problem_free = self.problem_classical.with_boundaries(
             (P.ZERO_FIELD, 0.0), (P.ZERO_FIELD, 0.0))
         self.n_states = {band: structure.states for band in bands_of(structure)}
+        self.n_states[KP_BAND] = 0             # 0: selfcon.solver.kp.FIRST_STATES
+        self.kp_top = 0.0                      # nm^-1, the end of the multiband holes' k grid
         self.negligible: dict = {}       # (band, region) -> bool
         self.eigen: dict = {}            # (band, region) -> EigenWorkspace
         self._last = None                # (phi, states, (n, p, nd+, na-))
@@ -343,7 +348,7 @@ def with_states(base: P.PoissonProblem, n_nodes: int, phi_ref, states, shift=1.0
     elec = [states[b] for b in ELECTRON_BANDS if b in states]
     if elec:
         kw.update(zip(("cls_e", "psi2", "ek", "dos_e"), _stacked(elec, n_nodes)))
-    holes = [states[b] for b in HOLE_BANDS if b in states]
+    holes = [states[b] for b in HOLE_BANDS + (KP_BAND,) if b in states]
     if holes:
         kw.update(zip(("cls_h", "psi2h", "ekh", "dos_h"), _stacked(holes, n_nodes)))
     prob = base.with_quantum(phi_ref=np.asarray(phi_ref, dtype=float), **kw)
@@ -487,8 +492,10 @@ def solve_states(ws: Workspace, phi) -> dict:
     st = ws.structure
     bands = bands_of(st)
     tasks = []
+    multiband = st.hole_model != "parabolic"
     for band in bands:
-        if carrier_of(band) not in st.carriers or not st.regions:
+        if (carrier_of(band) not in st.carriers or not st.regions
+                or (multiband and band in HOLE_BANDS)):
             continue
         for r_idx, (i0, i1) in enumerate(st.regions):
             if i1 - i0 < 3:
@@ -524,6 +531,10 @@ def solve_states(ws: Workspace, phi) -> dict:
                                dos=deg * DOS2D_PER_M0 * m_par,
                                region=np.concatenate([res[4] for res in mine])[order],
                                degeneracy=deg, sign=sign, quantum_nodes=qnodes, weight=weight)
+    if multiband and st.regions and any(b in st.carriers for b in HOLE_BANDS):
+        hk = kp_states(ws, phi)
+        if hk is not None:
+            out[KP_BAND] = hk
     return out
 
 
@@ -597,6 +608,62 @@ def band_region_states(st: Structure, phi, band: str, r_idx: int, workspace, n_s
         k = min(2 * k, MAX_STATES)
     m_par, weight = in_plane_motion(st, band, e, psi, phi, vxc)
     return e, psi, m_par, weight, np.full(e.size, r_idx), k
+
+
+def kp_states(ws: Workspace, phi):
+    """The multiband hole states (physics.hole_model kp4 / kp6) of every quantum region whose
+    classical hole charge is not negligible, as a selfcon.solver.kp.KpStates, or None.
+
+    Each region: the axial dispersion on K_POINTS k_par values from 0 to a top that covers
+    the Fermi sea (one grid for all regions), the hole density as the annulus pseudo-states
+    of selfcon.solver.kp.annulus_states; the number of states grows while the top one still
+    holds TOP_STATE_FRACTION of the charge, as for the single bands."""
+    from selfcon.solver import kp
+    st = ws.structure
+    nb = kp.MODELS[st.hole_model]
+    efp, kT = st.fermi_levels[1], st.kT
+    todo = []
+    for r_idx, (i0, i1) in enumerate(st.regions):
+        if i1 - i0 < 3:
+            continue
+        key = (KP_BAND, r_idx)
+        if key not in ws.negligible:        # decided once per solve, at the starting potential
+            ws.negligible[key] = classical_sheet(ws, phi, "heavy_hole", i0, i1) < ws.negligible_sheet
+        if not ws.negligible[key]:
+            part = st.mesh.part(i0, i1)
+            todo.append((r_idx, i0, i1, part, kp.region_material(st.cell, i0, i1)))
+    if not todo:
+        return None
+    vxc = ws.vxc.get("heavy_hole")         # the holes' exchange-correlation (hole kinetic scale)
+    if vxc is not None:
+        phi = np.asarray(phi) + vxc        # -H carries +phi on its diagonal: the same shift
+    k_top = max(kp.fermi_sea_top(part.h, part.w, mat, phi[i0:i1 + 1], nb, efp, kT)
+                for _, i0, i1, part, mat in todo)
+    k_top = max(k_top, ws.kp_top)        # the grid only grows during a solve: a steady quadrature
+    n = ws.n_states[KP_BAND] or kp.FIRST_STATES
+    while True:
+        solved = []
+        for r_idx, i0, i1, part, mat in todo:
+            kg, E, dens, psi0 = kp.region_dispersion(part.h, part.w, mat, phi[i0:i1 + 1], nb, n,
+                                                     efp, kT, k_top)
+            solved.append((kg, E, dens, psi0))
+        grown = max(s[0][-1] for s in solved)
+        if grown > k_top * (1 + 1e-12):          # a region needed a longer grid: one grid for all
+            k_top = grown
+            continue
+        sheets = []
+        for kg, E, dens, psi0 in solved:
+            en, dos, _, state = kp.annulus_states(kg, E, dens)
+            sheets.append(kp.annulus_sheets(en, dos, state, E.shape[0], efp, kT))
+        total = sum(float(x.sum()) for x in sheets)
+        full = all(s[1].shape[0] >= n and np.all(np.isfinite(s[1])) for s in solved)
+        top = max(float(x[-1]) for x in sheets)
+        if not full or n >= MAX_STATES or total <= 0 or top < TOP_STATE_FRACTION * total:
+            break
+        n = min(2 * n, MAX_STATES)
+        ws.n_states[KP_BAND] = n
+    ws.kp_top = k_top
+    return kp.collect_states(st.n_nodes, st.hole_model, [t[:3] for t in todo], solved, efp, kT)
 
 
 def region_eigenstates(st: Structure, phi, band: str, r_idx: int, n_states: int, workspace=None,
@@ -754,7 +821,7 @@ def gauss_residual(ws: Workspace, phi, states, rho=None) -> float:
     return P.gauss_residual(ws.problem(phi, states), phi, rho)
 
 
-__all__ = ["BAND_SPECS", "VALLEY_BANDS", "ALL_BANDS", "bands_of", "carrier_of", "state_degeneracy",
+__all__ = ["BAND_SPECS", "KP_BAND", "kp_states", "VALLEY_BANDS", "ALL_BANDS", "bands_of", "carrier_of", "state_degeneracy",
            "masked_valley_dos", "valley_row_bands", "VALLEYS", "BandStates", "Workspace", "boundary_conditions",
            "initial_guess", "start_levels", "linear_start", "interpolate_guess", "solve_states",
            "update_exchange", "subband_profile", "nonparabolic_band", "cell_edge",

@@ -68,3 +68,99 @@ def lowest_eigenvalues(ab, k, lo, hi, tol):
                 elif x > lower[t]:
                     lower[t] = x
     return 0.5 * (lower + upper), 0.5 * (upper - lower)
+
+
+@numba.njit(cache=True)
+def ldl_band(ab, x):
+    """The factorisation A - x I = L D L^H of the Hermitian band matrix ``ab`` without
+    pivoting (as :func:`sturm_count`): (lw (m, u) with lw[j, i - j + u] = L[j, i], d (m,))."""
+    u = ab.shape[0] - 1
+    m = ab.shape[1]
+    lw = np.zeros((m, max(u, 1)), dtype=np.complex128)
+    d = np.zeros(m)
+    tiny = 1e-300
+    for j in range(m):
+        oj = j - u
+        i0 = max(0, oj)
+        for i in range(i0, j):
+            s = np.conj(ab[u + i - j, j])
+            oi = i - u
+            for k in range(max(i0, oi), i):
+                s -= lw[j, k - oj] * d[k] * np.conj(lw[i, k - oi])
+            lw[j, i - oj] = s / d[i]
+        s = ab[u, j].real - x
+        for i in range(i0, j):
+            v = lw[j, i - oj]
+            s -= (v.real * v.real + v.imag * v.imag) * d[i]
+        if s == 0.0:
+            s = -tiny
+        d[j] = s
+    return lw, d
+
+
+@numba.njit(cache=True)
+def ldl_solve(lw, d, b):
+    """x = (L D L^H)^-1 b for the columns of ``b`` (m, r), from :func:`ldl_band`."""
+    m, r = b.shape
+    u = lw.shape[1]
+    x = b.copy()
+    for c in range(r):
+        for j in range(m):                       # L y = b
+            oj = j - u
+            s = x[j, c]
+            for i in range(max(0, oj), j):
+                s -= lw[j, i - oj] * x[i, c]
+            x[j, c] = s
+        for j in range(m):
+            x[j, c] /= d[j]
+        for j in range(m - 1, -1, -1):           # L^H x = y / d
+            s = x[j, c]
+            for i in range(j + 1, min(m, j + u + 1)):
+                s -= np.conj(lw[i, j - (i - u)]) * x[i, c]
+            x[j, c] = s
+    return x
+
+
+@numba.njit(cache=True)
+def band_apply(ab, x):
+    """The Hermitian band matrix ``ab`` (upper storage) times the columns of ``x`` (m, r)."""
+    u = ab.shape[0] - 1
+    m, r = x.shape
+    y = np.zeros((m, r), dtype=np.complex128)
+    for c in range(r):
+        for j in range(m):
+            y[j, c] += ab[u, j].real * x[j, c]
+            for off in range(1, min(u, j) + 1):
+                a = ab[u - off, j]                  # a[j - off, j]
+                y[j - off, c] += a * x[j, c]
+                y[j, c] += np.conj(a) * x[j - off, c]
+    return y
+
+
+@numba.njit(cache=True)
+def orthonormalise(x, prev):
+    """The columns of ``x`` made orthonormal and orthogonal to the (orthonormal) columns of
+    ``prev``, by modified Gram-Schmidt applied twice."""
+    m, r = x.shape
+    q = x.copy()
+    for _ in range(2):
+        for c in range(r):
+            for p in range(prev.shape[1]):
+                s = 0j
+                for i in range(m):
+                    s += np.conj(prev[i, p]) * q[i, c]
+                for i in range(m):
+                    q[i, c] -= s * prev[i, p]
+            for p in range(c):
+                s = 0j
+                for i in range(m):
+                    s += np.conj(q[i, p]) * q[i, c]
+                for i in range(m):
+                    q[i, c] -= s * q[i, p]
+            nrm = 0.0
+            for i in range(m):
+                nrm += q[i, c].real ** 2 + q[i, c].imag ** 2
+            nrm = np.sqrt(nrm)
+            for i in range(m):
+                q[i, c] /= nrm
+    return q
