@@ -22,30 +22,12 @@ import numpy as np
 
 @numba.njit(cache=True)
 def sturm_count(ab, x):
-    """Number of eigenvalues below ``x`` of the Hermitian band matrix ``ab`` (upper storage)."""
-    u = ab.shape[0] - 1
-    m = ab.shape[1]
-    lw = np.zeros((m, max(u, 1)), dtype=np.complex128)   # lw[j, i - (j - u)] = l_ji
-    d = np.zeros(m)
-    tiny = 1e-300
+    """Number of eigenvalues below ``x`` of the Hermitian band matrix ``ab`` (upper storage):
+    the negative pivots of :func:`ldl_band`."""
+    _, d = ldl_band(ab, x)
     count = 0
-    for j in range(m):
-        oj = j - u
-        i0 = max(0, oj)
-        for i in range(i0, j):
-            s = np.conj(ab[u + i - j, j])                   # a_ji
-            oi = i - u
-            for k in range(max(i0, oi), i):
-                s -= lw[j, k - oj] * d[k] * np.conj(lw[i, k - oi])
-            lw[j, i - oj] = s / d[i]
-        s = ab[u, j].real - x
-        for i in range(i0, j):
-            v = lw[j, i - oj]
-            s -= (v.real * v.real + v.imag * v.imag) * d[i]
-        if s == 0.0:
-            s = -tiny
-        d[j] = s
-        if s < 0.0:
+    for j in range(d.size):
+        if d[j] < 0.0:
             count += 1
     return count
 
