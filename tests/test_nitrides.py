@@ -244,6 +244,21 @@ def test_refused_stacks_exit_2(tmp_path, layers, substrate, physics, key, words)
     assert r.returncode == 2 and key in r.stderr and "Traceback" not in r.stderr
 
 
+def test_substrate_lattice_constant_is_a_for_wurtzite():
+    # [substrate] lattice_constant is the in-plane constant a on the c plane: a(GaN) = 0.3189 nm
+    # (VM 2003, the VM table above) builds the same strain and sheets as material = "GaN", and
+    # another a strains every layer to eps_xx = (a_sub - a)/a (biaxial strain, analytic)
+    by_name = build_structure(hemt(0.3, 10.0, regions=False))
+    layers = [("barrier", "AlGaN", 0.3, 10.0), ("channel", "GaN", None, 60.0), ("buffer", "GaN", None, 200.0)]
+    by_a = build_structure(selfcon.load_deck(deck_text(layers, surface='contact = "schottky"\nbarrier = 1.23',
+                                                       substrate="lattice_constant = 0.3189")))
+    assert by_a.cell["eps_xx"] == pytest.approx(by_name.cell["eps_xx"], abs=1e-12)
+    assert by_a.sheet_fixed == pytest.approx(by_name.sheet_fixed, abs=1e-15)
+    wide = build_structure(selfcon.load_deck(deck_text(layers, substrate="lattice_constant = 0.3200")))
+    gan = int(np.flatnonzero(wide.cell_layer == 1)[0])
+    assert wide.cell["eps_xx"][gan] == pytest.approx((0.3200 - 0.3189) / 0.3189, rel=1e-9)
+
+
 def test_relaxed_buffer_is_a_reference():
     # no [substrate] material, but a relaxed AlGaN buffer: the channel above takes its lattice
     text = deck_text([("c", "GaN", None, 20.0), ("buf", "AlGaN", 0.05, 200.0)], substrate="")
