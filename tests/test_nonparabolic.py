@@ -195,3 +195,50 @@ def test_loop_with_nonparabolicity_on_the_hemt():
     # the energy-dependent mass lowers the levels above the edge and raises the in-plane mass
     assert r.summary["E1_minus_E0_eV"] < hartree.summary["E1_minus_E0_eV"]
     assert e_np.in_plane_mass[0] > 1.01 * e_p.in_plane_mass[0]
+
+
+DOUBLE_WELL = """
+title = "two identical GaAs wells 60 nm apart"
+temperature = 4.0
+[surface]
+contact = "free"
+[substrate]
+contact = "free"
+[[layer]]
+material = "AlGaAs"
+x = 0.3
+thickness = 20.0
+[[layer]]
+material = "GaAs"
+thickness = 10.0
+[[layer]]
+material = "AlGaAs"
+x = 0.3
+thickness = {gap}
+{second}
+[physics]
+carriers = ["electron"]
+nonparabolicity = true
+[mesh]
+step = 0.2
+"""
+SECOND = """[[layer]]
+material = "GaAs"
+thickness = 10.0
+[[layer]]
+material = "AlGaAs"
+x = 0.3
+thickness = 20.0"""
+
+
+def test_degenerate_wells_keep_orthogonal_states():
+    # two identical wells 60 nm apart: their levels are degenerate to round-off (tunnelling
+    # through 60 nm of Al0.3GaAs is ~exp(-120)); each level must appear twice, as two
+    # orthogonal states, at the energy of one well alone (analytic: decoupled wells)
+    st = selfcon.build_structure(selfcon.load_deck(DOUBLE_WELL.format(gap=60.0, second=SECOND)))
+    e, psi = steps.region_eigenstates(st, np.zeros(st.n_nodes), "electron", 0, 4)
+    overlap = (psi * st.mesh.w[:, None]).T @ psi
+    np.testing.assert_allclose(overlap, np.eye(4), atol=1e-8)
+    single = selfcon.build_structure(selfcon.load_deck(DOUBLE_WELL.format(gap=20.0, second="")))
+    e1, _ = steps.region_eigenstates(single, np.zeros(single.n_nodes), "electron", 0, 2)
+    np.testing.assert_allclose(e, np.repeat(e1, 2), atol=5e-7)

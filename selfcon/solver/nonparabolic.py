@@ -20,7 +20,10 @@ g(E) = lambda_k(E) - E, with d lambda_k/dE from the state itself (Hellmann–Fey
 :func:`energy_slope`).  As the mass grows with energy, d lambda_k/dE <= 0 (Hellmann–
 Feynman), so |g'| >= 1 and |E - E*| <= |g(E)|: the iteration stops when |g(E)| is below
 ``ENERGY_TOL``, and the energy returned, lambda_k(E) with its eigenvector, is within
-2 ``ENERGY_TOL`` of the exact root of the discrete problem.
+2 ``ENERGY_TOL`` of the exact root of the discrete problem.  States closer than
+``CLUSTER_TOL`` (degenerate wells, tunnel-split doublets) are then solved together at their
+mean energy, so that their eigenvectors are orthogonal (within 2 ``ENERGY_TOL`` +
+``CLUSTER_TOL``).
 
 **In-plane motion.**  The same mass carries the in-plane kinetic energy, hbar^2 k^2 / 2m*(E, z).
 To first order in k^2 at E = E_k (the derivative of E = lambda_k(E) + hbar^2 k^2 <1/m*>/2
@@ -47,13 +50,17 @@ from selfcon.constants import HBAR2_2M0
 
 #: eV: |lambda_k(E) - E| below this ends the energy iteration of a state (error <= 2x this)
 ENERGY_TOL = 5e-8
+#: eV: states whose energies differ by less than this are solved together at their mean
+#: energy (so that degenerate states stay orthogonal); their error bound is 2 ENERGY_TOL +
+#: CLUSTER_TOL
+CLUSTER_TOL = 1e-7
 #: energy iterations of one state before the solve is declared failed
 MAX_ENERGY_ITERATIONS = 60
 #: the factor 1 + (E - E_c)/E_g,eff is kept above this (deep under a high barrier the linear
 #: form would turn the mass negative; a state's own well never gets near it)
 MIN_MASS_FACTOR = 0.05
 
-__all__ = ["ENERGY_TOL", "effective_gap", "mass_factor", "refine_states", "energy_slope",
+__all__ = ["ENERGY_TOL", "CLUSTER_TOL", "effective_gap", "mass_factor", "refine_states", "energy_slope",
            "mean_in_plane_energy", "in_plane_masses"]
 
 
@@ -119,6 +126,25 @@ def refine_states(h_cell, w, v_node, m_edge_cell, edge_cell, eg_eff_cell, energi
         out_e[j] = lam_e
         out_psi[:, j] = psi
         out_slope[j] = slope
+    # states closer than CLUSTER_TOL (degenerate wells far apart, tunnel-split doublets): each
+    # solved alone, inverse iteration may return the same vector twice; solve each cluster
+    # together at its mean energy so that its states come out orthogonal
+    j = 0
+    while j < k:
+        last = j
+        while last + 1 < k and out_e[last + 1] - out_e[last] < CLUSTER_TOL:
+            last += 1
+        if last > j:
+            from selfcon.solver.schrodinger import solve_region_window
+            e_mean = float(np.mean(out_e[j:last + 1]))
+            inv_m = 1.0 / (m_edge_cell * mass_factor(e_mean, edge_cell, eg_eff_cell))
+            e_c, psi_c = solve_region_window(h_cell, w, v_node, inv_m, j, last - j + 1, workspace)
+            out_e[j:last + 1] = e_c
+            out_psi[:, j:last + 1] = psi_c
+            for i in range(j, last + 1):
+                out_slope[i] = energy_slope(h_cell, out_psi[:, i], out_e[i], m_edge_cell,
+                                            edge_cell, eg_eff_cell)
+        j = last + 1
     return out_e, out_psi, out_slope
 
 

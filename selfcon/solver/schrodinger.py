@@ -24,7 +24,7 @@ import numpy as np
 from selfcon.constants import HBAR2_2M0  # noqa: F401  (documented unit of the operator)
 from selfcon.model.mesh import half_widths
 
-__all__ = ["EIGEN_METHODS", "EigenWorkspace", "solve_region", "solve_region_state", "count_below",
+__all__ = ["EIGEN_METHODS", "EigenWorkspace", "solve_region", "solve_region_state", "solve_region_window", "count_below",
            "bound_states", "bound_states_cells",
            "in_plane_mass", "in_plane_weights", "thermal_in_plane_energy"]
 
@@ -106,6 +106,14 @@ def solve_region_state(h_cell, w, v_node, inv_mass_cell, index: int, workspace=N
     """The single state number ``index`` (0 = lowest) of :func:`solve_region`'s problem:
     (energy eV, psi (n,)), by bisection for that one eigenvalue and inverse iteration
     (O(n); the energy iteration of selfcon.solver.nonparabolic calls it per state)."""
+    e, psi = solve_region_window(h_cell, w, v_node, inv_mass_cell, index, 1, workspace)
+    return float(e[0]), psi[:, 0]
+
+
+def solve_region_window(h_cell, w, v_node, inv_mass_cell, first: int, count: int, workspace=None):
+    """States ``first`` .. ``first + count - 1`` (0 = lowest) of :func:`solve_region`'s
+    problem, solved together so that close ones come out orthogonal: (energies (count,) eV,
+    psi (n, count))."""
     n = w.size
     if workspace is None:
         workspace = EigenWorkspace(n)
@@ -116,10 +124,10 @@ def solve_region_state(h_cell, w, v_node, inv_mass_cell, index: int, workspace=N
                               np.ascontiguousarray(v_node, dtype=float),
                               np.ascontiguousarray(inv_mass_cell, dtype=float),
                               workspace.d, workspace.e)
-    energies, u = workspace.eigh(index + 1, first=index + 1)
-    psi = np.empty((n, 1))
+    energies, u = workspace.eigh(first + count, first=first + 1)
+    psi = np.empty((n, energies.size))
     kern.vectors_to_wavefunctions(np.ascontiguousarray(u), w, psi)
-    return float(energies[0]), psi[:, 0]
+    return energies, psi
 
 
 def count_below(d, e, x) -> int:
