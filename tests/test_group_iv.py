@@ -220,10 +220,17 @@ def test_si_2deg_sits_in_delta2_with_two_valleys(si2deg):
     dos = 2 * 0.190 * M0 / (math.pi * HBAR ** 2) * Q * 1e-4        # cm^-2 eV^-1, spin and 2 valleys
     n0 = dos * kT * math.log1p(math.exp(-float(d2.energy[0]) / kT))
     assert d2.occupation[0] == pytest.approx(n0, rel=2e-3)
-    # the valley electrons are the x_electron density: profile and summary agree
+    # the valley electrons are the x_electron density: profile and summary agree, and inside
+    # the quantum region it is the subbands' population (the classical rows are emptied
+    # there; outside it the buffer holds a negligible classical tail)
     w = st.mesh.w
     assert float(np.sum(r.profile["x_electron_density"] * w)) * 1e-7 == pytest.approx(
         r.summary["x_electron_sheet_density_cm2"], rel=1e-9)
+    assert r.summary["x_electron_sheet_density_cm2"] == pytest.approx(
+        float(d2.occupation.sum() + d4.occupation.sum()), rel=1e-3)
+    # and all electrons are valley electrons (sum over the carriers, analytic)
+    assert r.summary["x_electron_sheet_density_cm2"] == pytest.approx(
+        r.summary["electron_sheet_density_cm2"], rel=1e-6)
     # Gamma holds nothing: its edge lies 2 eV above Delta in Si
     assert r.summary["l_electron_sheet_density_cm2"] < 1.0
     # the channel's figures follow the Delta2 edge, not Gamma: E_F - Ec,min in the channel is

@@ -152,6 +152,21 @@ def _state_support(z, psi2, region, frac=1e-3):
     return float(zz.min()), float(zz.max())
 
 
+#: the profile of the band edge each valley set's states are drawn against (the lowest X edge
+#: for both X/Delta sets: the file keeps one X profile)
+VALLEY_EDGE = {"x2_electron": "conduction_band_x", "x4_electron": "conduction_band_x",
+               "l_electron": "conduction_band_l"}
+
+
+def _band_edge(result, band, ec, ev):
+    """(sign, edge at the nodes) of a band's states: Ec for the Gamma electrons, the valley's
+    own edge for the X/Delta and L sets, Ev for holes."""
+    key = VALLEY_EDGE.get(band)
+    if key is not None and key in result.profile:
+        return +1, np.asarray(result.profile[key], dtype=float)
+    return (+1, ec) if band.endswith("electron") else (-1, ev)
+
+
 def _draw_states(ax, result, z, ec, ev, span, regions, bands=None):
     """Levels and |psi|^2 of the drawn states of ``bands`` (default: all) on ``ax``.
 
@@ -167,8 +182,7 @@ def _draw_states(ax, result, z, ec, ev, span, regions, bands=None):
         if not idx:
             continue
         occ = np.asarray(occupied_states(band, result.subbands, result.channels), dtype=bool)
-        sign = +1 if band.endswith("electron") else -1
-        edge = ec if sign > 0 else ev
+        sign, edge = _band_edge(result, band, ec, ev)
         colour = BAND_COLOURS.get(band, "#555555")
         e = np.asarray(sb.energy)[idx]
         gaps = np.diff(np.sort(e))
@@ -308,7 +322,11 @@ def _focus_bands(result) -> tuple[str, ...]:
         carrier = "electron" if max(occ, key=occ.get).endswith("electron") else "hole"
     bands = tuple(b for b in result.subbands if b.endswith("electron")) if carrier == "electron" \
         else ("heavy_hole", "light_hole")
-    return tuple(b for b in bands if b in result.subbands)
+    bands = tuple(b for b in bands if b in result.subbands)
+    # of several electron bands (quantum valleys: Gamma, X/Delta, L) those holding carriers:
+    # the empty Gamma states of a Si well lie 1.6 eV above its Delta2 subbands
+    held = tuple(b for b in bands if float(np.sum(result.subbands[b].occupation)) > 0.0)
+    return held if len(bands) > 2 and held else bands
 
 
 #: eV: heavy- and light-hole edges further apart than this are drawn as two lines
@@ -383,7 +401,9 @@ def draw_band_diagram(fig, result, depth=None):
         pad = 0.15 * max(c1 - c0, 1.0)
         c0, c1 = max(c0 - pad, float(z[0])), min(c1 + pad, float(z[-1]))
         sign = +1 if any(b.endswith("electron") for b in focus) else -1
-        edge = ec if sign > 0 else ev
+        # the edge the focused states sit on: the lowest (electrons) or highest (holes) of theirs
+        edges = [_band_edge(result, b, ec, ev)[1] for b in focus]
+        edge = np.minimum.reduce(edges) if sign > 0 else np.maximum.reduce(edges)
         inwin = (z >= c0) & (z <= c1)
         energies = [d[2] for d in mine]
         amp = max(d[5] for d in mine)
