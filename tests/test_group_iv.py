@@ -465,3 +465,14 @@ def test_valley_subbands_round_trip_through_the_file(si2deg, tmp_path):
             assert g["energy"].attrs["units"] in ("eV", b"eV")
     back = selfcon.load_result(path)
     assert np.array_equal(back.subbands["x2_electron"].occupation, r.subbands["x2_electron"].occupation)
+
+
+def test_band_diagram_close_up_shows_the_valley_states(si2deg):
+    from selfcon.output import plot
+    r, _ = si2deg
+    # the close-up follows the populated valley sets, not the empty Gamma states 1.6 eV higher
+    focus = plot._focus_bands(r)
+    assert "x2_electron" in focus and "electron" not in focus
+    # and draws them against the X edge of the file (the Delta edge of the channel)
+    sign, edge = plot._band_edge(r, "x2_electron", r.profile["conduction_band"], r.profile["valence_band"])
+    assert sign == 1 and np.array_equal(edge, r.profile["conduction_band_x"])
