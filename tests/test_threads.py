@@ -95,3 +95,27 @@ def test_threads_option_of_the_commands(run_cli, tmp_path, inputs_dir):
     assert r.code == 2 and "--threads" in r.err
     r = run_cli("tune", deck, "--vary", "layer.spacer.thickness", "--target", "ns=3e11", "--threads", "0")
     assert r.code == 2 and "--threads" in r.err
+
+
+def threads_job(deck_text, initial=None):
+    """A stand-in batch job (the SELFCON_BATCH_JOB seam) that reports its thread count."""
+    from selfcon.batch.worker import noop_job
+    return dict(noop_job(deck_text, initial), message=f"threads={T.thread_count()}")
+
+
+@pytest.mark.parametrize("threads, expected", [(None, 1), (3, 3)])
+def test_batch_workers_take_threads_per_worker(clean_threads, tmp_path, threads, expected):
+    """`batch --threads N` gives every worker N threads; without it a worker takes 1."""
+    import csv
+
+    from selfcon.batch import run_study
+    (tmp_path / "base.toml").write_text(wells_deck(1))
+    study = tmp_path / "study.toml"
+    study.write_text('deck = "base.toml"\n[[vary]]\npath = "temperature"\nvalues = [77.0, 78.0]\n')
+    code, counts, out = run_study(study, workers=1, threads=threads, job_fn="test_threads:threads_job",
+                                  warm=False)
+    assert code == 0
+    with open(out / "table.csv", newline="") as f:
+        messages = {row["message"] for row in csv.DictReader(f)}
+    assert messages == {f"threads={expected}"}
+    assert T.THREADS_ENV not in __import__("os").environ      # the coordinator's environment is restored

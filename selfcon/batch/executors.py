@@ -74,14 +74,14 @@ def _death_message(exitcode):
 
 # --------------------------------------------------------------------------- local pool
 
-def _pool_main(task_r, result_w, job_spec, parent_pid):
+def _pool_main(task_r, result_w, job_spec, parent_pid, threads=None):
     """A local worker process: run the tasks sent on ``task_r``, send each job's outcome on ``result_w``.
 
     A reader thread takes tasks off the pipe as they come, so the coordinator never blocks
     sending one while this process is busy sending a large result back.  End of file on
     the task pipe (the coordinator is gone) ends the process at once."""
     from selfcon.batch.worker import init_worker, resolve, run_one
-    init_worker(parent_pid)
+    init_worker(parent_pid, threads)
     fn = resolve(job_spec)
     inbox = queue.SimpleQueue()
 
@@ -145,9 +145,10 @@ class LocalPool:
     chunk_target = 0.05
     max_chunk = 64
 
-    def __init__(self, workers, job_spec, *, context=None):
+    def __init__(self, workers, job_spec, *, context=None, threads=None):
         self.workers = max(1, int(workers))
         self.job_spec = job_spec
+        self.solve_threads = threads         # each worker's solves (selfcon.solver.threads); None: its default
         if context is None:
             context = "forkserver" if "forkserver" in multiprocessing.get_all_start_methods() else "spawn"
         self.context = multiprocessing.get_context(context)
@@ -159,7 +160,8 @@ class LocalPool:
     def _spawn(self, index):
         task_r, task_w = self.context.Pipe(duplex=False)
         result_r, result_w = self.context.Pipe(duplex=False)
-        proc = self.context.Process(target=_pool_main, args=(task_r, result_w, self.job_spec, os.getpid()),
+        proc = self.context.Process(target=_pool_main,
+                                    args=(task_r, result_w, self.job_spec, os.getpid(), self.solve_threads),
                                     name=f"selfcon-worker-{index}", daemon=True)
         proc.start()
         task_r.close()
@@ -382,9 +384,10 @@ class DaskPool:
 
     def __init__(self, job_spec, *, address=None, scheduler_file=None, cluster=None, workers=None,
                  memory_limit="4GiB", min_workers=0, max_workers=None, backlog=DEFAULT_BACKLOG,
-                 numba_cache_dir=None, connect_timeout=30):
+                 numba_cache_dir=None, connect_timeout=30, threads=None):
         from selfcon.batch.worker import environment
         self.job_spec = job_spec
+        self.solve_threads = threads        # each job's solves (selfcon.solver.threads); None: the worker's default
         self.backlog = float(backlog)
         self.cluster = None
         self.target_threads = 0
@@ -481,7 +484,8 @@ class DaskPool:
         from selfcon.batch.worker import run_task
         ids = [j[0] for j in jobs]
         key = f"selfcon-job-{ids[0]}{'+' + str(len(ids) - 1) if len(ids) > 1 else ''}-{uuid.uuid4().hex[:12]}"
-        fut = self.client.submit(run_task, self.job_spec, self.expected, list(jobs), key=key, pure=False, retries=0)
+        fut = self.client.submit(run_task, self.job_spec, self.expected, list(jobs), key=key, pure=False, retries=0,
+                                 threads=self.solve_threads)
         self.tasks[fut] = ids
         self._busy += len(ids)
         fut.add_done_callback(self.done.put)
@@ -574,8 +578,9 @@ class DaskPool:
         self._close()
 
 
-def make_executor(job_spec, workers, *, scheduler=None, scheduler_file=None, cluster=None, **dask_options):
+def make_executor(job_spec, workers, *, scheduler=None, scheduler_file=None, cluster=None, threads=None,
+                  **dask_options):
     if scheduler or scheduler_file or cluster:
         return DaskPool(job_spec, address=scheduler, scheduler_file=scheduler_file, cluster=cluster,
-                        workers=workers, **dask_options)
-    return LocalPool(workers, job_spec)
+                        workers=workers, threads=threads, **dask_options)
+    return LocalPool(workers, job_spec, threads=threads)

@@ -30,7 +30,7 @@ from selfcon.batch import queue as q
 from selfcon.batch.executors import DEFAULT_BACKLOG, make_executor
 from selfcon.batch.study import default_out_dir, expand, load_study
 from selfcon.batch.summary import summarize  # noqa: F401  (the table's figures; computed in the workers)
-from selfcon.batch.worker import THREADS_ENV, resolve
+from selfcon.batch.worker import resolve
 from selfcon.errors import SelfconEnvironmentError
 from selfcon.output.schema import TABLE, TABLE_SUMMARY
 
@@ -647,8 +647,8 @@ def run_study(study_file, *, workers=None, out=None, scheduler=None, scheduler_f
     (tcp://HOST:PORT) or ``scheduler_file`` a running Dask scheduler; ``cluster`` ("slurm",
     "pbs", ...) a dask-jobqueue cluster from the Dask configuration, adapting between
     ``min_workers`` and ``max_workers``.  ``log_file``: a line per job event, with times.
-    ``threads``: threads of each worker's solves, handed to the workers as
-    ``$SELFCON_THREADS`` (selfcon.solver.threads; a worker's default is 1).
+    ``threads``: threads of each worker's solves (selfcon.solver.threads; a worker's
+    default is 1).
 
     exit code: 0 every job done, 3 some not converged or failed, 130 interrupted.  An
     environment failure raises :class:`selfcon.errors.SelfconEnvironmentError` (exit 4).
@@ -673,10 +673,9 @@ def run_study(study_file, *, workers=None, out=None, scheduler=None, scheduler_f
         out_dir.mkdir(parents=True, exist_ok=True)
     except OSError as exc:
         raise SelfconEnvironmentError.from_os_error(exc, "cannot create the study folder", out_dir) from None
-    lock = q.CoordinatorLock(out_dir).acquire()
-    saved_threads = os.environ.get(THREADS_ENV)
     if threads is not None:
-        os.environ[THREADS_ENV] = str(int(threads))      # inherited by the workers started below
+        options["threads"] = int(threads)                 # handed to every worker (executors)
+    lock = q.CoordinatorLock(out_dir).acquire()
     try:
         with logs.to_file(log_file):
             return _run_locked(study, study_file, jobs, out_dir, workers=workers, retries=retries, quiet=quiet,
@@ -687,11 +686,6 @@ def run_study(study_file, *, workers=None, out=None, scheduler=None, scheduler_f
             raise q.queue_failure(out_dir, exc) from None
         raise
     finally:
-        if threads is not None:
-            if saved_threads is None:
-                os.environ.pop(THREADS_ENV, None)
-            else:
-                os.environ[THREADS_ENV] = saved_threads
         lock.release()
 
 

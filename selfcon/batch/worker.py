@@ -63,13 +63,16 @@ def limit_threads():
             os.environ.setdefault(var, n)
 
 
-def init_worker(parent_pid=None):
+def init_worker(parent_pid=None, threads=None):
     """Process-pool initializer: apply $SELFCON_THREADS, leave Ctrl-C to the coordinator, preload
     the solver, and exit when the coordinator ``parent_pid`` disappears.  A worker's solves
-    default to one thread (selfcon.solver.threads)."""
+    take ``threads`` (``batch --threads``, also set as $SELFCON_THREADS so the libraries
+    follow), else one thread (selfcon.solver.threads)."""
+    if threads is not None:
+        os.environ[THREADS_ENV] = str(int(threads))
     limit_threads()
     from selfcon.solver.threads import configure
-    configure(worker=True)
+    configure(threads, worker=True)
     if parent_pid is not None:
         _watch_parent(int(parent_pid))
     try:
@@ -148,7 +151,7 @@ def _here():
     return f"{socket.gethostname()} (pid {os.getpid()})"
 
 
-def run_task(job_spec, expected, jobs):
+def run_task(job_spec, expected, jobs, threads=None):
     """A Dask task: run ``jobs`` (a list of ``(job_id, deck_text, initial)``) one after the other.
 
     Returns ``{"environment": message}`` without running anything if this worker's
@@ -160,7 +163,7 @@ def run_task(job_spec, expected, jobs):
     if bad:
         return {"environment": f"{_here()} has {bad}"}
     from selfcon.solver.threads import configure
-    configure(worker=True)               # a Dask worker thread: one thread per solve by default
+    configure(threads, worker=True)      # batch --threads, else one thread per solve (a Dask worker)
     fn = resolve(job_spec)
     return {"outcomes": [(job_id, run_one(fn, deck_text, initial)) for job_id, deck_text, initial in jobs]}
 

@@ -11,7 +11,8 @@ The count, first found first used (README.md, "Threads"):
 
 1. ``threads=`` of :func:`selfcon.solve` (the ``--threads`` option of ``run``,
    ``sweep-bias`` and ``tune`` sets it for the whole process with :func:`configure`);
-2. ``$SELFCON_THREADS`` (``selfcon batch --threads N`` hands it to its workers);
+2. ``$SELFCON_THREADS`` (``selfcon batch --threads N`` hands N to every worker, local or
+   Dask, with the jobs: selfcon/batch/worker.py::init_worker and ``run_task``);
 3. ``$NUMBA_NUM_THREADS``;
 4. 1 in a batch worker (a study already runs one worker per core), else every core
    this process may run on.
@@ -75,8 +76,8 @@ def thread_count(requested: int | None = None) -> int:
 def add_argument(parser, *, batch: bool = False) -> None:
     """The ``--threads N`` option of ``run``, ``sweep-bias``, ``tune`` and ``batch``."""
     if batch:
-        text = ("threads of each worker's solves (sets $SELFCON_THREADS for the local pool and a "
-                "Dask LocalCluster; default: $SELFCON_THREADS, $NUMBA_NUM_THREADS, else 1)")
+        text = ("threads of each worker's solves, for the local pool and Dask workers alike "
+                "(default: $SELFCON_THREADS, $NUMBA_NUM_THREADS, else 1)")
     else:
         text = ("threads for the independent eigenproblems of each iteration (bands, quantum "
                 "regions); the result does not depend on it (default: $SELFCON_THREADS, "
