@@ -23,8 +23,8 @@ threads, selfcon/solver/steps.py::solve_states):
    (the absolute error eps ||T|| of a backward-stable solve over such a gap would exceed
    1e-12 in the vectors' overlap) form a cluster; its vectors, each computed on its own,
    are symmetrically orthogonalised (Loewdin, J. Chem. Phys. 18, 365, 1950: V <- G^{-1/2} V
-   with the Gram matrix G), which changes each vector least and does not depend on an
-   order.  If G is far from the identity (eigenvalues tunnel-split below the solver's
+   with the Gram matrix G, G^{-1/2} by Newton-Schulz), which changes each vector least and
+   does not depend on an order.  If G is far from the identity (eigenvalues tunnel-split below the solver's
    resolution, so two solves return the same vector), that cluster is redone as LAPACK's
    dstein does: each iterate is orthogonalised against the cluster's earlier vectors
    before every solve (modified Gram-Schmidt, twice at the end).
@@ -49,8 +49,9 @@ INVERSE_STEPS = 3
 #: eigenvalues closer than CLUSTER_GAP * ||T|| have their vectors orthogonalised together
 #: (eps ||T|| / gap <= 1e-12 for a backward-stable solve: 2.2e-16 / 2.2e-4)
 CLUSTER_GAP = 2.2e-4
-#: smallest eigenvalue of a cluster's Gram matrix for the symmetric orthogonalisation;
-#: below it the cluster is recomputed with Gram-Schmidt between the solves
+#: largest row sum of |G - I| of a cluster's Gram matrix G for the symmetric
+#: orthogonalisation (its inverse square root converges); above it the cluster is
+#: recomputed with Gram-Schmidt between the solves
 GRAM_MIN = 0.5
 
 _EPS = np.finfo(np.float64).eps
@@ -288,21 +289,135 @@ def _vector(d, e, sigma, pert, j, z, j0, work):
         z[j, i] = v[i]
 
 
+#: columns per block of the cluster products (the block of every cluster row stays in cache)
+BLOCK = 512
+
+
+@numba.njit(cache=True, nogil=True, fastmath={"reassoc", "contract"})
+def _gram(b, g):
+    """g = b b^T for the rows of b (c, m), summed block by block of BLOCK columns."""
+    c, m = b.shape
+    for a in range(c):
+        for q in range(a + 1):
+            g[a, q] = 0.0
+    for i0 in range(0, m, BLOCK):
+        i1 = min(i0 + BLOCK, m)
+        for a in range(c):
+            ra = b[a, i0:i1]
+            for q in range(a + 1):
+                rq = b[q, i0:i1]
+                t = 0.0
+                for i in range(i1 - i0):
+                    t += ra[i] * rq[i]
+                g[a, q] += t
+    for a in range(c):
+        for q in range(a):
+            g[q, a] = g[a, q]
+
+
+@numba.njit(cache=True, nogil=True, fastmath={"contract"})
+def _apply(s, b, out):
+    """out = s b for s (c, c) and b (c, m): four rows of out at a time, block by block."""
+    c, m = b.shape
+    acc = np.empty((4, BLOCK))
+    for i0 in range(0, m, BLOCK):
+        i1 = min(i0 + BLOCK, m)
+        n = i1 - i0
+        for a0 in range(0, c, 4):
+            na = min(4, c - a0)
+            acc[:, :] = 0.0
+            for q in range(c):
+                rq = b[q, i0:i1]
+                if na == 4:
+                    f0, f1, f2, f3 = s[a0, q], s[a0 + 1, q], s[a0 + 2, q], s[a0 + 3, q]
+                    r0, r1, r2, r3 = acc[0], acc[1], acc[2], acc[3]
+                    for i in range(n):
+                        x = rq[i]
+                        r0[i] += f0 * x
+                        r1[i] += f1 * x
+                        r2[i] += f2 * x
+                        r3[i] += f3 * x
+                else:
+                    for r in range(na):
+                        f = s[a0 + r, q]
+                        ar = acc[r]
+                        for i in range(n):
+                            ar[i] += f * rq[i]
+            for r in range(na):
+                o = out[a0 + r, i0:i1]
+                ar = acc[r]
+                for i in range(n):
+                    o[i] = ar[i]
+
+
+@numba.njit(cache=True, nogil=True, fastmath={"contract"})
+def _matmul(a, b, out):
+    """out = a b for square (c, c) matrices."""
+    c = a.shape[0]
+    for i in range(c):
+        row = out[i]
+        for j in range(c):
+            row[j] = 0.0
+        for k in range(c):
+            f = a[i, k]
+            bk = b[k]
+            for j in range(c):
+                row[j] += f * bk[j]
+
+
+@numba.njit(cache=True, nogil=True)
+def _inverse_sqrt(g, z):
+    """z = g^{-1/2} of a symmetric g near the identity, by the coupled Newton-Schulz
+    iteration (Higham, Functions of Matrices, SIAM 2008, section 6.3):
+    T = (3 I - Z Y)/2, Y <- Y T, Z <- T Z from Y = g, Z = I; quadratic once converging.
+    False if g is too far from I (a row of |g - I| summing to GRAM_MIN or more)."""
+    c = g.shape[0]
+    for a in range(c):
+        t = 0.0
+        for b in range(c):
+            t += abs(g[a, b] - (1.0 if a == b else 0.0))
+        if t >= GRAM_MIN:
+            return False
+    y = g.copy()
+    for a in range(c):
+        for b in range(c):
+            z[a, b] = 1.0 if a == b else 0.0
+    t = np.empty((c, c))
+    w = np.empty((c, c))
+    for _ in range(60):
+        _matmul(z, y, w)
+        change = 0.0
+        for a in range(c):
+            for b in range(c):
+                d = (1.0 if a == b else 0.0) - w[a, b]
+                change = max(change, abs(d))
+                t[a, b] = (1.0 if a == b else 0.0) + 0.5 * d
+        if change <= 4.0 * _EPS:
+            return True
+        _matmul(y, t, w)
+        y[:, :] = w
+        _matmul(t, z, w)
+        z[:, :] = w
+    return False
+
+
 @numba.njit(cache=True, nogil=True)
 def _symmetric_orthogonalise(z, j0, j1):
-    """Rows j0..j1-1 of z <- G^{-1/2} rows (Loewdin).  False if G is too far from I."""
-    block = np.ascontiguousarray(z[j0:j1, :])
-    g = np.dot(block, block.T)
-    mu, q = np.linalg.eigh(g)
-    if mu[0] < GRAM_MIN:
-        return False
+    """Rows j0..j1-1 of z <- G^{-1/2} rows (Loewdin).  False if G is too far from I.
+
+    Every product is a loop of our own rather than BLAS or LAPACK: a multithreaded BLAS
+    called from several solver threads at once (or on a busy machine) oversubscribes the
+    cores, and loops of our own give the same bits for any number of threads."""
     c = j1 - j0
-    qs = np.empty((c, c))
-    for a in range(c):
-        for r in range(c):
-            qs[a, r] = q[a, r] / np.sqrt(mu[r])
-    s = np.dot(qs, q.T)
-    z[j0:j1, :] = np.dot(s, block)
+    block = np.ascontiguousarray(z[j0:j1, :])
+    g = np.empty((c, c))
+    _gram(block, g)
+    s = np.empty((c, c))
+    if not _inverse_sqrt(g, s):
+        return False
+    out = np.empty_like(block)
+    _apply(s, block, out)
+    z[j0:j1, :] = out
     return True
 
 
