@@ -88,3 +88,102 @@ def test_2dhg_with_kp4_converges_and_keeps_gauss(kp_solves):
     ps_par = kp_solves["parabolic"].summary["hole_sheet_density_cm2"]
     assert 1e11 < ps_kp < 3e12
     assert ps_kp == pytest.approx(ps_par, rel=0.15)
+
+
+def test_hole_kp_datasets_in_the_file(kp_solves, tmp_path):
+    """/subbands/hole_kp is written as schema.py declares it and read back unchanged."""
+    r = kp_solves["kp4"]
+    h = r.hole_kp
+    n, m = h["dispersion"].shape
+    assert m == kp.K_POINTS and h["k_parallel"][0] == 0.0
+    assert h["wavefunction"].shape == (r.z.size, n, 4)
+    path = tmp_path / "kp.h5"
+    r.save(path)
+    back = selfcon.load_result(path)
+    assert set(back.hole_kp) == set(h)
+    for key, arr in h.items():
+        assert np.array_equal(np.asarray(back.hole_kp[key]), np.asarray(arr), equal_nan=True), key
+    import h5py
+    with h5py.File(path, "r") as f:
+        g = f["subbands/hole_kp"]
+        assert g["dispersion"].attrs["units"] == "eV"
+        assert "axial" in g["dispersion"].attrs["direction"]
+        assert g["dispersion_110"].attrs["direction"] == "[110]"
+        assert g["k_parallel"].attrs["units"] == "nm-1"
+    # a parabolic result has no such group
+    assert kp_solves["parabolic"].hole_kp == {}
+    # netCDF-C and xarray read the group with its named dimensions
+    import netCDF4
+    with netCDF4.Dataset(path) as d:
+        g = d["subbands/hole_kp"]
+        assert g["dispersion"].dimensions == ("kp_state", "k_parallel")
+        assert g["wavefunction"].dimensions == ("z", "kp_state", "component")
+        assert np.allclose(g["k_parallel"][:], h["k_parallel"])
+    tree = back.to_xarray()
+    assert tree["subbands/hole_kp"].to_dataset()["dispersion"].dims == ("kp_state", "k_parallel")
+
+
+def test_each_spin_branch_holds_its_fermi_circle(kp_solves):
+    """Each state's holes against an independent quadrature of its own axial E(k): a cubic
+    spline through the grid (scipy.interpolate.CubicSpline) integrated with the Fermi function
+    on 20001 points, n = int k dk / (2 pi) f (one spin branch; reference scipy), to 1 %; and
+    against its Fermi circle k_F^2 / (4 pi) (analytic at T = 0; 8 %: at 4 K kT is comparable to
+    the energy steps of this flat heavy-hole band near EF).  The asymmetric well splits the
+    two branches of the ground pair (spin_splitting > 0)."""
+    from scipy.interpolate import CubicSpline
+    r = kp_solves["kp4"]
+    h = r.hole_kp
+    occ = np.asarray(h["occupation"]) / 1e14                       # nm^-2
+    k = np.asarray(h["k_parallel"])
+    kk = np.linspace(0.0, k[-1], 20001)
+    kT = 8.617333262e-5 * r.temperature                            # eV (CODATA k_B)
+    for i in np.flatnonzero(occ > 1e-6):
+        e = CubicSpline(k, h["dispersion"][i])(kk)
+        f = 0.5 * (1.0 + np.tanh(0.5 * e / kT))                    # hole occupation, EF = 0
+        assert occ[i] == pytest.approx(np.trapezoid(kk * f, kk) / (2 * np.pi), rel=0.01)
+    kf = np.asarray(h["k_fermi"])
+    for i in np.flatnonzero(np.isfinite(kf)):
+        assert occ[i] == pytest.approx(kf[i] ** 2 / (4 * np.pi), rel=0.08)
+    assert h["spin_splitting"][0] > 1e-4
+
+
+def test_gaas_2dhg_mass_at_the_fermi_level(kp_solves):
+    """The heavy-hole ground pair of a GaAs 2DHG of ~3e11 cm^-2: its density-of-states mass at
+    EF (the mean of the two spin branches) lies in the measured 0.3-0.5 m0 (cyclotron masses of
+    GaAs 2D holes, H. L. Stormer et al., Phys. Rev. Lett. 51, 126 (1983), from memory), some
+    three times the parabolic model's 1/(g1 + g2) = 0.11 m0 (GaAs g1 = 6.98, g2 = 2.06,
+    Vurgaftman et al. 2001)."""
+    h = kp_solves["kp4"].hole_kp
+    p_s = kp_solves["kp4"].summary["hole_sheet_density_cm2"]
+    assert 1e11 < p_s < 4e11
+    m_pair = 0.5 * (h["mass_fermi"][0] + h["mass_fermi"][1])
+    assert 0.3 <= m_pair <= 0.5
+    assert m_pair > 2.5 / (6.98 + 2.06)
+
+
+@pytest.mark.slow
+def test_gaas_2dhg_mass_rises_with_density(inputs_dir, tmp_path):
+    """The pair mass at EF grows with the density (the heavy-hole band flattens away from
+    k = 0 by its coupling to the light hole; the trend of Stormer et al. 1983, from memory)."""
+    masses = []
+    for sheet in ("1.5e12", "3.0e12"):
+        hole_deck(inputs_dir, tmp_path, "kp4")
+        path = tmp_path / "hole_kp4.toml"
+        path.write_text(path.read_text().replace("sheet_acceptors = 3.0e12",
+                                                 f"sheet_acceptors = {sheet}"))
+        r = selfcon.solve(selfcon.load_deck(path))
+        h = r.hole_kp
+        masses.append((r.summary["hole_sheet_density_cm2"],
+                       0.5 * (h["mass_fermi"][0] + h["mass_fermi"][1])))
+    (p1, m1), (p2, m2) = masses
+    assert p1 < p2 and m1 < m2
+
+
+def test_plot_draws_the_hole_dispersion(kp_solves):
+    from matplotlib.figure import Figure
+    from selfcon.output.plot import draw_band_diagram
+    fig = Figure(figsize=(12, 9), dpi=100)
+    _, _, panel, _ = draw_band_diagram(fig, kp_solves["kp4"])
+    assert "hole subbands" in panel.get_title()
+    labels = [ln.get_label() for ln in panel.get_lines()]
+    assert {"axial", "[100]", "[110]"} <= set(labels)

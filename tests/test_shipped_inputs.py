@@ -39,6 +39,8 @@ DECKS = [p for p in FILES if _kind(p) == "deck"]
 #: decks that do not converge as shipped: name -> the cause (the test is xfail(strict=True) and
 #: flips to a failure the day the cause is fixed, so the entry must then be removed)
 NOT_CONVERGING = {}
+#: decks that take long enough to solve to be run only with ``-m slow``: name -> why
+SLOW_DECKS = {"design/2dhg_kp6_4K.toml": "6x6 multiband holes on 16 k_par points, ~30 s"}
 
 
 def _id(path):
@@ -83,6 +85,8 @@ def _deck_params():
         marks = []
         if _id(p) in NOT_CONVERGING:
             marks.append(pytest.mark.xfail(strict=True, reason=NOT_CONVERGING[_id(p)]))
+        if _id(p) in SLOW_DECKS:
+            marks.append(pytest.mark.slow)
         out.append(pytest.param(p, id=_id(p), marks=marks))
     return out
 

@@ -135,6 +135,30 @@ def solve_channels(deck, st, loop, n, p, n_valleys, ec, ev) -> chx.SolvedChannel
                               edges={"electron": ec, "hole": ev}, requests=chx.requests_of(deck, st))
 
 
+def hole_kp_datasets(st, loop) -> dict:
+    """The /subbands/hole_kp variables (selfcon/output/schema.py, KP_GROUP) of a solve with the
+    multiband holes, in output units; {} for the parabolic model.  The loop's axial dispersion
+    and its k grid, each state's masses, Fermi wave vector and spin splitting at EF
+    (selfcon.solver.kp.subband_figures), and the dispersion along [100] and [110] with the
+    warped Hamiltonian at the final potential."""
+    from selfcon.solver import kp, steps
+    hk = loop.states.get(steps.KP_BAND)
+    if hk is None:
+        return {}
+    phi = np.asarray(loop.phi, dtype=float)
+    vxc = loop.workspace.vxc.get("heavy_hole") if loop.workspace is not None else None
+    if vxc is not None:                 # the potential the hole states saw (steps.kp_states)
+        phi = phi + vxc
+    out = {"energy": hk.subband_energy.copy(), "occupation": hk.sheet * CM2_PER_NM2,
+           "region": hk.subband_region.astype(np.int64), "k_parallel": hk.k_parallel.copy(),
+           "dispersion": hk.dispersion.copy(),
+           "dispersion_100": kp.along_direction(st.mesh, st.cell, st.regions, phi, hk, 0.0),
+           "dispersion_110": kp.along_direction(st.mesh, st.cell, st.regions, phi, hk, np.pi / 4),
+           "wavefunction": np.abs(hk.psi0).transpose(0, 2, 1).copy()}
+    out.update(kp.subband_figures(hk.k_parallel, hk.dispersion, st.fermi_levels[1]))
+    return out
+
+
 def main_channel_summary(an, st, n, p, ec, ev) -> dict:
     """The /summary figures of the main channel (kept names of earlier versions)."""
     c = an.main_channel
@@ -332,7 +356,7 @@ def build_result(deck, st, loop, *, wall_time: float) -> Result:
         layers=layers, subbands=subbands, residual_history=record["residual"].copy(),
         summary=summary, warnings=[], provenance=provenance, record=record,
         regions_nm=[tuple(map(float, r)) for r in st.regions_nm], channels=rows,
-        transitions=solved.transitions)
+        transitions=solved.transitions, hole_kp=hole_kp_datasets(st, loop))
     result.warnings = list(design_warnings(result, st, deck))
     result.summary["warnings"] = list(result.warnings)
     if result.converged:

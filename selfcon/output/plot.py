@@ -333,6 +333,38 @@ def _focus_bands(result) -> tuple[str, ...]:
 HOLE_SPLIT_SHOWN = 1e-3
 
 
+#: a multiband hole state is drawn in the dispersion panel when it holds at least this (cm^-2)
+KP_DRAWN_CM2 = 1e8
+
+
+def _draw_hole_dispersion(ax, result, fs):
+    """The in-plane dispersion of the occupied multiband hole states (/subbands/hole_kp) on
+    ``ax``: each state's E(k_par) in the axial approximation (solid) and along [100] and [110]
+    (thin dashed and dotted: the warping), EF as a grey line."""
+    h = result.hole_kp
+    k = np.asarray(h["k_parallel"], dtype=float)
+    occ = np.asarray(h["occupation"], dtype=float)
+    ax.clear()
+    shown = np.flatnonzero(occ >= KP_DRAWN_CM2)
+    if shown.size == 0:
+        shown = np.arange(min(2, occ.size))
+    colour = BAND_COLOURS["heavy_hole"]
+    for j, i in enumerate(shown):
+        alpha = 1.0 if j < 2 else 0.6
+        ax.plot(k, 1e3 * np.asarray(h["dispersion"][i]), color=colour, linewidth=1.4, alpha=alpha,
+                label="axial" if j == 0 else None)
+        ax.plot(k, 1e3 * np.asarray(h["dispersion_100"][i]), color=colour, linewidth=0.8,
+                linestyle="--", alpha=alpha, label="[100]" if j == 0 else None)
+        ax.plot(k, 1e3 * np.asarray(h["dispersion_110"][i]), color=colour, linewidth=0.8,
+                linestyle=":", alpha=alpha, label="[110]" if j == 0 else None)
+    ax.axhline(0.0, color="#888888", linewidth=0.8)
+    ax.set_xlabel("k$_\\parallel$ (nm$^{-1}$)", fontsize=fs * 0.9)
+    ax.set_ylabel("E − E$_F$ (meV)", fontsize=fs * 0.9)
+    ax.set_title(f"hole subbands E(k$_\\parallel$): {shown.size} occupied", fontsize=fs * 0.85)
+    ax.tick_params(labelsize=fs * 0.8)
+    ax.legend(loc="lower left", fontsize=fs * 0.7, framealpha=0.9)
+
+
 def draw_band_diagram(fig, result, depth=None):
     """Draw the band diagram on a matplotlib Figure; returns the axes (bands, densities, close-up, card)."""
     from selfcon.output.numbers import fmt
@@ -473,7 +505,9 @@ def draw_band_diagram(fig, result, depth=None):
         ax.tick_params(labelsize=fs * 0.9)
         ax.grid(True, which="major", color="#ffffff", linewidth=0.8, alpha=0.7, zorder=1)
     _figures_card(card, result, fs)
-    if zoom_labels:
+    if getattr(result, "hole_kp", None):
+        _draw_hole_dispersion(zoom, result, fs)
+    elif zoom_labels:
         fig.draw_without_rendering()            # the final layout: the label column needs the panel's height
         _label_levels(zoom, zoom_labels, fs)
 

@@ -31,7 +31,7 @@ from selfcon.errors import ResultFileError
 from selfcon.output.files import atomic_write as _atomic_write
 from selfcon.output.netcdf import Group, set_attrs
 from selfcon.output.schema import (CHANNEL_FIELDS, DIMS, INTERFACE_FIELDS, RESULT, ROOT_ATTRS, SCHEMA,
-                                   SCHEMA_VERSION, SUBBAND_FIELDS, TRANSITION_FIELDS)
+                                   SCHEMA_VERSION, SUBBAND_FIELDS, TRANSITION_FIELDS, KP_FIELDS)
 from dataclasses import dataclass, field
 from typing import Any
 
@@ -104,6 +104,8 @@ class Result:
     regions_nm: list[tuple[float, float]] = field(default_factory=list)
     channels: list[dict[str, Any]] = field(default_factory=list)   # rows of /channels, top first
     transitions: dict[str, np.ndarray] = field(default_factory=dict)  # /transitions columns
+    #: /subbands/hole_kp variables (physics.hole_model kp4 | kp6), name -> array; {} otherwise
+    hole_kp: dict[str, np.ndarray] = field(default_factory=dict)
     interfaces: dict[str, np.ndarray] = field(default_factory=dict)   # /interfaces columns
 
     @property
@@ -423,6 +425,16 @@ def _write_subbands(f, result: Result) -> None:
         g.coord("z", result.z)
         for v in RESULT.in_group(g.path):
             g.var(v.name, getattr(sb, v.name))
+    if result.hole_kp:
+        g = top.subgroup("hole_kp")
+        g.coord("z", result.z)
+        g.coord("k_parallel", result.hole_kp["k_parallel"])
+        for name in KP_FIELDS:
+            dsid = g.var(name, result.hole_kp[name])
+            if name == "dispersion":
+                set_attrs(dsid, [("direction", "axial approximation (any in-plane direction)")])
+            elif name.startswith("dispersion_"):
+                set_attrs(dsid, [("direction", f"[{name.rpartition('_')[2]}]")])
 
 
 def _column(name, values):
@@ -625,7 +637,11 @@ def _read_result(path: Path) -> Result:
                     rec[key] = _py(v)
             layers.append(rec)
         subbands = {}
+        hole_kp = {}
         for band, gb in _need(f, "subbands", path).items():
+            if band == "hole_kp":       # the multiband holes: a layout of their own
+                hole_kp = {name: gb[name][()] for name in KP_FIELDS + ("k_parallel",) if name in gb}
+                continue
             fields = {name: gb[name][()] for name in SUBBAND_FIELDS if name in gb}   # older files: fewer
             if "bound" in fields:
                 fields["bound"] = fields["bound"].astype(bool)
@@ -675,7 +691,7 @@ def _read_result(path: Path) -> Result:
             title=_py(a["title"]), temperature=_py(a["temperature_K"]), converged=_py(a["converged"]),
             iterations=_py(a["iterations"]), residual=_py(a["residual_V"]), message=_py(a["message"]),
             deck_text=_py(a["deck"]), z=z, profile=profile, layer_index=layer_index, layers=layers,
-            subbands=subbands, residual_history=history, summary=summary, warnings=warnings,
+            subbands=subbands, hole_kp=hole_kp, residual_history=history, summary=summary, warnings=warnings,
             provenance=provenance, record=record,
             regions_nm=[(float(t), float(b)) for t, b in np.asarray(regions).reshape(-1, 2)],
             channels=channels, transitions=transitions, interfaces=interfaces,

@@ -187,6 +187,14 @@ declare_dim("job", "1", "job id", "job id (jobs/<id>.h5)")
 declare_dim("channel", "1", "channel index", "row of /channels: a channel, top first", start=0)
 declare_dim("transition", "1", "transition index", "row of /transitions", start=0)
 declare_dim("interface", "1", "interface index", "row of /interfaces: a layer interface, top first", start=0)
+declare_dim("kp_state", "1", "multiband hole state",
+            "hole state of the Luttinger-Kohn model (one spin branch each), lowest hole energy first",
+            start=0)
+declare_dim("k_parallel", "nm-1", "in-plane wave vector", "magnitude of the in-plane wave vector k_par")
+declare_dim("component", "1", "basis state",
+            "J basis state of the Luttinger-Kohn Hamiltonian (Chuang 1995): 0 |3/2,+3/2>, "
+            "1 |3/2,+1/2>, 2 |3/2,-1/2>, 3 |3/2,-3/2> (heavy, light, light, heavy hole); kp6 also "
+            "4 |1/2,+1/2>, 5 |1/2,-1/2> (split-off)", start=0)
 
 
 # --------------------------------------------------------------------------- the result file
@@ -340,6 +348,45 @@ _r("subbands/<band>/bound", "1", "bound state",
    "1 if the energy lies below the band edge at both ends of the quantum region (holes: above it), "
    "0 for a state of the region's box above a barrier", dims=("state",))
 
+#: the multiband hole states (physics.hole_model kp4 | kp6; selfcon/solver/kp.py): a group of its
+#: own under /subbands, with the in-plane dispersion
+KP_GROUP = "subbands/hole_kp"
+RESULT.group(KP_GROUP, "multiband (Luttinger-Kohn) hole states of the quantum regions, one spin "
+                       "branch each, with their in-plane dispersion (physics.hole_model kp4 | kp6)")
+_r("subbands/hole_kp/energy", "eV", "hole subband energy",
+   "energy of the state at k_par = 0 relative to EF (electron energy scale)", dims=("kp_state",),
+   when="physics.hole_model is kp4 or kp6")
+_r("subbands/hole_kp/occupation", "cm-2", "hole subband sheet density",
+   "holes held by the state, integrated over k_par", dims=("kp_state",), when="physics.hole_model is kp4 or kp6")
+_r("subbands/hole_kp/region", "1", "quantum region",
+   "index of the quantum region (/mesh/quantum_regions) holding the state", dims=("kp_state",),
+   when="physics.hole_model is kp4 or kp6")
+_r("subbands/hole_kp/dispersion", "eV", "hole subband dispersion",
+   "E(k_par) relative to EF of each state, in the axial approximation (attribute direction), on "
+   "the grid the hole density integrates", dims=("kp_state", "k_parallel"), when="physics.hole_model is kp4 or kp6")
+_r("subbands/hole_kp/dispersion_100", "eV", "hole dispersion along [100]",
+   "E(k_par) with k_par along [100], the full (warped) Hamiltonian; states in energy order at "
+   "each k_par", dims=("kp_state", "k_parallel"), when="physics.hole_model is kp4 or kp6")
+_r("subbands/hole_kp/dispersion_110", "eV", "hole dispersion along [110]",
+   "E(k_par) with k_par along [110], the full (warped) Hamiltonian; states in energy order at "
+   "each k_par", dims=("kp_state", "k_parallel"), when="physics.hole_model is kp4 or kp6")
+_r("subbands/hole_kp/wavefunction", "nm-1/2", "envelope function components",
+   "|psi_j(z)| of each basis state j at k_par = 0; sum over j of the integral of |psi_j|^2 dz = 1",
+   dims=("z", "kp_state", "component"), when="physics.hole_model is kp4 or kp6")
+_r("subbands/hole_kp/mass_band_edge", "m0", "in-plane mass at k_par = 0",
+   "hbar^2 k / (dE/dk) over the first k_par step (negative: the hole energy falls as k_par grows)",
+   dims=("kp_state",), when="physics.hole_model is kp4 or kp6")
+_r("subbands/hole_kp/mass_fermi", "m0", "in-plane mass at EF",
+   "hbar^2 k / (dE/dk) where the state crosses EF; NaN for a state that does not", dims=("kp_state",),
+   when="physics.hole_model is kp4 or kp6")
+_r("subbands/hole_kp/k_fermi", "nm-1", "Fermi wave vector",
+   "k_par where the state crosses EF; NaN for a state that does not", dims=("kp_state",),
+   when="physics.hole_model is kp4 or kp6")
+_r("subbands/hole_kp/spin_splitting", "eV", "spin splitting at EF",
+   "|E| difference of the two spin branches of the state's pair at the k_fermi of the pair's "
+   "upper branch (0 in a symmetric well); NaN where the pair does not cross EF", dims=("kp_state",),
+   when="physics.hole_model is kp4 or kp6")
+
 RESULT.group("channels", "channels: depth intervals where one carrier kind is confined, one entry per "
                          "channel along the 'channel' dimension, top first")
 _c = (
@@ -418,6 +465,8 @@ PROFILE_FIELDS = {k: v for k, v in _fields(RESULT, "profile").items()
                   if k not in ("layer_index", "conduction_band_x", "conduction_band_l",
                                "x_electron_density", "l_electron_density")}
 SUBBAND_FIELDS = _fields(RESULT, "subbands/<band>")
+#: the variables of /subbands/hole_kp (exact declarations, not the <band> pattern)
+KP_FIELDS = tuple(v.name for v in RESULT.vars.values() if v.group == KP_GROUP)
 CHANNEL_FIELDS = _fields(RESULT, "channels")
 TRANSITION_FIELDS = _fields(RESULT, "transitions")
 INTERFACE_FIELDS = _fields(RESULT, "interfaces")

@@ -62,7 +62,7 @@ from selfcon.constants import HBAR2_2M0
 __all__ = ["KpMaterial", "KpStates", "MODELS", "basis", "cartesian_blocks", "bulk_matrix",
            "assemble_blocks", "band_matrix", "dense_matrix", "lowest_banded", "lowest_states",
            "DEGENERATE", "region_material", "dispersion", "annulus_states", "annulus_sheets",
-           "grid_top", "region_dispersion", "K_POINTS", "fermi_sea_top", "collect_states"]
+           "grid_top", "region_dispersion", "K_POINTS", "fermi_sea_top", "collect_states", "subband_figures", "along_direction"]
 
 #: hole model name -> number of bands
 MODELS = {"kp4": 4, "kp6": 6}
@@ -526,3 +526,61 @@ def collect_states(n_nodes: int, model: str, regions, solved, efp: float, kT: fl
                     k_parallel=k_grid, dispersion=np.concatenate(disp)[order],
                     psi0=np.concatenate(psis, axis=2)[:, :, order],
                     sheet=np.concatenate(sheets)[order])
+
+
+# --------------------------------------------------------------------------- subband figures
+
+def _crossing(k2, eps, level):
+    """(k^2 where eps(k^2), linear between grid points, first reaches ``level`` from below,
+    index of that annulus); (NaN, -1) if it stays below or starts above."""
+    if not np.isfinite(eps[0]) or eps[0] > level:
+        return np.nan, -1
+    for j in range(eps.size - 1):
+        a, b = eps[j], eps[j + 1]
+        if a <= level < b:
+            return k2[j] + (level - a) / (b - a) * (k2[j + 1] - k2[j]), j
+    return np.nan, -1
+
+
+def subband_figures(k_grid, dispersion, efp: float) -> dict:
+    """Per state of ``dispersion`` (n, m) (electron scale, states in the order of the rows):
+    ``mass_band_edge`` and ``mass_fermi`` (m0: hbar^2 / (2 d eps / d k^2), the cyclotron and
+    density-of-states mass hbar^2 k / (dE/dk) of the piecewise parabolic dispersion; hole
+    energies eps = -E), ``k_fermi`` (nm^-1) and ``spin_splitting`` (eV) at EF of each Kramers
+    pair (rows 2p, 2p+1), NaN where a state does not cross EF."""
+    k2 = np.asarray(k_grid, float) ** 2
+    eps = -np.asarray(dispersion, float)
+    level = -efp
+    n = eps.shape[0]
+    slope0 = (eps[:, 1] - eps[:, 0]) / (k2[1] - k2[0])
+    with np.errstate(divide="ignore", invalid="ignore"):
+        m_edge = HBAR2_2M0 / slope0
+    m_f = np.full(n, np.nan)
+    k_f = np.full(n, np.nan)
+    for i in range(n):
+        kk, j = _crossing(k2, eps[i], level)
+        if j >= 0:
+            k_f[i] = np.sqrt(kk)
+            m_f[i] = HBAR2_2M0 * (k2[j + 1] - k2[j]) / (eps[i, j + 1] - eps[i, j])
+    split = np.full(n, np.nan)
+    for p in range(0, n - 1, 2):
+        kk, _ = _crossing(k2, eps[p], level)
+        if np.isfinite(kk):
+            split[p] = split[p + 1] = abs(float(np.interp(kk, k2, eps[p + 1]) - level))
+    return {"mass_band_edge": m_edge, "mass_fermi": m_f, "k_fermi": k_f, "spin_splitting": split}
+
+
+def along_direction(mesh, cell, regions, phi, hk: KpStates, angle: float):
+    """The dispersion of the states of ``hk`` along the in-plane direction ``angle`` (radians
+    from [100]) with the full, warped Hamiltonian, on ``hk``'s k grid: (n, m) eV, rows in the
+    order of ``hk``'s states (each region's states in energy order at every k)."""
+    nb = MODELS[hk.model]
+    out = np.full(hk.dispersion.shape, np.nan)
+    for r in np.unique(hk.subband_region):
+        rows = np.flatnonzero(hk.subband_region == r)
+        i0, i1 = regions[int(r)]
+        part = mesh.part(i0, i1)
+        E, _, _ = dispersion(part.h, part.w, region_material(cell, i0, i1), phi[i0:i1 + 1], nb,
+                             rows.size, hk.k_parallel, angle=angle)
+        out[rows] = E[:rows.size]
+    return out
