@@ -187,3 +187,9 @@ def test_plot_draws_the_hole_dispersion(kp_solves):
     assert "hole subbands" in panel.get_title()
     labels = [ln.get_label() for ln in panel.get_lines()]
     assert {"axial", "[100]", "[110]"} <= set(labels)
+
+
+def test_headings_name_the_hole_model(kp_solves):
+    from selfcon.output.heading import conditions
+    assert "4x4 Luttinger-Kohn holes" in conditions(kp_solves["kp4"])
+    assert "Luttinger" not in conditions(kp_solves["parabolic"])

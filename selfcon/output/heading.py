@@ -128,7 +128,14 @@ def conditions(result) -> str:
         parts.append(XC_NAMES.get(xc, xc))
     if physics.get("nonparabolicity"):
         parts.append("nonparabolic Gamma electrons")
+    holes = physics.get("hole_model", "parabolic")
+    if holes in HOLE_MODEL_NAMES:
+        parts.append(HOLE_MODEL_NAMES[holes])
     return ", ".join(parts)
+
+
+#: how the heading names physics.hole_model (selfcon/solver/kp.py)
+HOLE_MODEL_NAMES = {"kp4": "4x4 Luttinger-Kohn holes", "kp6": "6x6 Luttinger-Kohn holes"}
 
 
 #: how the heading names physics.exchange_correlation (selfcon/solver/exchange.py)
