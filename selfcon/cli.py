@@ -266,6 +266,7 @@ def cmd_check(args) -> int:
     deck = api.load_deck(deck_path, overrides=tuple(args.set or ()))
     structure = api.build_structure(deck, max_nodes=_max_nodes(args))
     fig = check_figures(deck, structure)
+    from selfcon.output.numbers import fmt
     if args.json:
         print(json.dumps(fig, indent=2, ensure_ascii=False))
         return EXIT_OK
@@ -341,7 +342,7 @@ def cmd_check(args) -> int:
         for col in ("interface", "z (nm)", "σ (cm⁻²)", "σ (C/m²)"):
             pt.add_column(col, justify="left" if col == "interface" else "right")
         for i in pol["interfaces"]:
-            pt.add_row(f"{i['upper']}/{i['lower']}", f"{i['z_nm']:g}", f"{i['sigma_cm2']:+.4g}",
+            pt.add_row(f"{i['upper']}/{i['lower']}", f"{i['z_nm']:g}", fmt(i['sigma_cm2'], 'sheet', sign=True),
                        f"{i['sigma_C_m2']:+.5f}")
         console.print(pt)
         console.print("P_z per layer (C/m²): " + ", ".join(
@@ -356,7 +357,6 @@ def cmd_check(args) -> int:
             extra += f", bias {c['bias_V']:g} V"
         console.print(f"{side}: {c['contact']}{extra}")
     m = fig["mesh"]
-    from selfcon.output.numbers import fmt
     console.print(f"mesh: {m['nodes']} nodes over {fmt(m['thickness_nm'], 'nm')} nm, step "
                   f"{fmt(m['min_step_nm'], 'nm')} to {fmt(m['max_step_nm'], 'nm')} nm")
     if fig["quantum_regions"]:

@@ -20,6 +20,9 @@ from selfcon.output.numbers import SHEET_FLOOR_CM2, fmt, quantity_of
     (9.77861, "nm", "9.78"),
     (3.17e-7, "residual", "3.2e-7"),           # 2 significant digits
     (-0.852, "V", "-0.852"),                   # three decimals in V
+    (6.55e-30, "capacitance", "0"),            # below q x 1e3 cm^-2 = 1.6e-16 C/cm^2: noise
+    (2.62e-7, "capacitance", "2.62e-7"),
+    (1039.0, "nm", "1039"),                    # whole nanometres from 1000 nm up
     (None, "sheet", "–"), (float("nan"), "meV", "–"),
 ])
 def test_formatter_rules(value, quantity, expected):

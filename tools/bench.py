@@ -1,6 +1,10 @@
 """selfcon speed benchmarks (issue 7), one entry point, sub-benchmarks by name.
 
-    python tools/bench.py [NAMES...] [--json PATH] [--strict] [--cpu]
+    python tools/bench.py [NAMES...] [--json PATH] [--strict] [--cpu] [--markdown PATH]
+
+``python tools/bench.py --markdown tools/bench-last.txt`` (all default benchmarks) writes the
+table README.md's "Performance" section quotes; tests/test_readme_outputs.py checks that the
+README holds exactly that file, so the table is always the last full run's output.
 
 NAMES (default: all but compare): floor scaling mesh iterations xc nonparabolic eigen mqw
 threads kp startup batch coordinator decks compare
@@ -939,6 +943,28 @@ def print_table(rows):
     Console(width=160).print(tab)
 
 
+def markdown_table(rows, info, total) -> str:
+    """The rows as the markdown table README.md quotes (tools/bench-last.txt), with the
+    machine, the date and the load it ran under."""
+    import datetime
+    try:
+        load = ", ".join(f"{v:.1f}" for v in os.getloadavg())
+    except OSError:
+        load = "unknown"
+    head = (f"Measured by `python tools/bench.py --markdown tools/bench-last.txt` on "
+            f"{datetime.date.today().isoformat()}: {info.get('nproc')} cores, {info.get('cpu', 'unknown CPU')}, "
+            f"{info.get('ram_GiB', '?')} GiB RAM, Python {info.get('python')}; load average at the end "
+            f"{load}; {total:.0f} s in all.")
+    lines = [head, "", "| bench | case | metric | measured | target | met | note |", "|---|---|---|---|---|---|---|"]
+    for r in rows:
+        v = r["value"]
+        vs = f"{v:.4g} {r['unit']}".strip() if isinstance(v, float) else f"{v} {r['unit']}".strip()
+        met = "" if r["met"] is None else ("yes" if r["met"] else "NO")
+        cells = [r["bench"], r["case"], r["metric"], vs, r["target"] or "", met, r["note"] or ""]
+        lines.append("| " + " | ".join(str(c).replace("|", "\\|").replace("\n", " ") for c in cells) + " |")
+    return "\n".join(lines) + "\n"
+
+
 def main(argv=None):
     ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     ap.add_argument("names", nargs="*", metavar="NAME",
@@ -949,6 +975,8 @@ def main(argv=None):
     ap.add_argument("--cpu", action="store_true",
                     help="time solves and kernels by this process's CPU time instead of the wall clock "
                          "(a shared, loaded machine); compare reports both")
+    ap.add_argument("--markdown", metavar="PATH", default=None,
+                    help="also write the table as markdown (tools/bench-last.txt: README.md quotes it)")
     ap.add_argument("--base", default="main",
                     help="compare: the commit to time against this checkout (default main)")
     ap.add_argument("--rounds", type=int, default=7,
@@ -1003,6 +1031,9 @@ def main(argv=None):
     path.parent.mkdir(parents=True, exist_ok=True)
     path.write_text(json.dumps(out, indent=1, default=float))
     print(f"total {total:.1f} s; JSON -> {path}")
+    if a.markdown:
+        Path(a.markdown).write_text(markdown_table(ROWS, out["machine"], total), encoding="utf-8")
+        print(f"markdown table -> {a.markdown}")
     if FAILURES:
         print(f"{len(FAILURES)} physics check(s) failed:\n  " + "\n  ".join(FAILURES), file=sys.stderr)
         return 1

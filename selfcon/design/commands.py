@@ -186,8 +186,9 @@ def cmd_tune(args) -> int:
                                     "output": str(out) if out else None}), indent=1))
     else:
         qu = f" {tr.units}" if tr.units else ""
-        print(f"{tr.path} = {tr.value:.6g} {unit} gives {tr.quantity} = {tr.achieved:.6g}{qu} "
-              f"(target {tr.target:.6g}) after {tr.solves} solves; {tr.message}")
+        kind = "sheet" if qu.strip() in ("cm^-2", "cm-2") else "plain"
+        print(f"{tr.path} = {fmt(tr.value)} {unit} gives {tr.quantity} = {fmt(tr.achieved, kind)}{qu} "
+              f"(target {fmt(tr.target, kind)}) after {tr.solves} solves; {tr.message}")
         for w in (tr.result.warnings if tr.result is not None else []):
             print(f"warning: {w}")
         if out is not None:

@@ -289,28 +289,30 @@ def analysis_lines(sw: BiasSweep) -> list[str]:
     if math.isfinite(a.get("threshold_extrapolated_V", float("nan"))):
         w0, w1 = a["linear_window_V"]
         cond = "" if a.get("linear_well_conditioned") else " (no window was straight within 2 %: rough)"
-        lines.append(f"threshold (linear extrapolation of channel n_s over {w0:+.3f} .. {w1:+.3f} V): "
-                     f"V_T = {a['threshold_extrapolated_V']:+.3f} V, dn_s/dV = {a['linear_slope_cm2_per_V']:.4g} "
+        lines.append(f"threshold (linear extrapolation of channel n_s over {fmt(w0, 'V', sign=True)} .. {fmt(w1, 'V', sign=True)} V): "
+                     f"V_T = {fmt(a['threshold_extrapolated_V'], 'V', sign=True)} V, "
+                     f"dn_s/dV = {fmt(a['linear_slope_cm2_per_V'], 'sheet')} "
                      f"cm^-2/V{cond}")
-        lines.append(f"charge control: d = {a['gate_channel_distance_nm']:.1f} nm gate to channel, "
-                     f"d + dd = {a['charge_control_thickness_nm']:.1f} nm, dd = {a['delta_d_nm']:.1f} nm, "
-                     f"C = {a['linear_capacitance_F_cm2']:.4g} F/cm^2")
+        lines.append(f"charge control: d = {fmt(a['gate_channel_distance_nm'], 'nm')} nm gate to channel, "
+                     f"d + dd = {fmt(a['charge_control_thickness_nm'], 'nm')} nm, "
+                     f"dd = {fmt(a['delta_d_nm'], 'nm')} nm, C = {fmt(a['linear_capacitance_F_cm2'], 'capacitance')} "
+                     "F/cm^2")
     else:
         lines.append("threshold (linear extrapolation): n_s(V) has no rising straight part in this range")
     if math.isfinite(a.get("threshold_crossing_V", float("nan"))):
-        lines.append(f"threshold (channel n_s falls below {sw.threshold_cm2:.3g} cm^-2): "
-                     f"V = {a['threshold_crossing_V']:+.3f} V")
+        lines.append(f"threshold (channel n_s falls below {fmt(sw.threshold_cm2, 'sheet')} cm^-2): "
+                     f"V = {fmt(a['threshold_crossing_V'], 'V', sign=True)} V")
     else:
         lo, hi = np.nanmin(sw.channel_density), np.nanmax(sw.channel_density)
-        lines.append(f"threshold (n_s below {sw.threshold_cm2:.3g} cm^-2): not crossed in this range "
-                     f"(channel n_s from {lo:.3g} to {hi:.3g} cm^-2)")
+        lines.append(f"threshold (n_s below {fmt(sw.threshold_cm2, 'sheet')} cm^-2): not crossed in this range "
+                     f"(channel n_s from {fmt(lo, 'sheet')} to {fmt(hi, 'sheet')} cm^-2)")
     kind = a.get("parallel_onset_kind")
     if kind == "between":
         lines.append(f"parallel conduction onset (doping-layer electrons above {100 * sw.fraction:g} % of the "
-                     f"channel): V = {a['parallel_onset_V']:+.3f} V")
+                     f"channel): V = {fmt(a['parallel_onset_V'], 'V', sign=True)} V")
     elif kind == "below-range":
         lines.append(f"parallel conduction: the doping layers hold more than {100 * sw.fraction:g} % of the "
-                     f"channel over the whole sweep (onset at or below {a['parallel_onset_V']:+.3f} V)")
+                     f"channel over the whole sweep (onset at or below {fmt(a['parallel_onset_V'], 'V', sign=True)} V)")
     else:
         lines.append("parallel conduction: none in this range (doping layers below "
                      f"{100 * sw.fraction:g} % of the channel at the top bias)")

@@ -31,6 +31,7 @@ from typing import TYPE_CHECKING, Any
 import numpy as np
 
 from selfcon.errors import DeckError, SelfconInputError
+from selfcon.output.numbers import fmt
 
 if TYPE_CHECKING:
     from selfcon.input.deck import Deck
@@ -276,9 +277,11 @@ def tune(deck: Deck | str | os.PathLike, path: str, target_name: str, target_val
         root, ok, msg = x, True, "the target is met at a bracket end"
     elif fa * fb > 0:
         lo, hi = min(qa, qb), max(qa, qb)
-        raise TuneError(f"target {target_name} = {target_value:.6g}{unit} is outside the range reached over "
-                        f"the bracket: {target_name} = {qa:.6g}{unit} at {path} = {a:g} and {qb:.6g}{unit} at "
-                        f"{b:g} (range {lo:.6g} to {hi:.6g}); widen --bracket", key="--target")
+        kind = "sheet" if units in ("cm^-2", "cm-2") else "plain"
+        raise TuneError(f"target {target_name} = {fmt(target_value, kind)}{unit} is outside the range reached "
+                        f"over the bracket: {target_name} = {fmt(qa, kind)}{unit} at {path} = {fmt(a)} and "
+                        f"{fmt(qb, kind)}{unit} at {fmt(b)} (range {fmt(lo, kind)} to {fmt(hi, kind)}); "
+                        "widen --bracket", key="--target")
     else:
         root, info = brentq(evaluate, a, b, xtol=xtol, rtol=rtol, maxiter=maxiter, full_output=True,
                             disp=False)

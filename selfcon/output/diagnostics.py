@@ -108,6 +108,7 @@ import numpy as np
 from selfcon.constants import KB_EV, NM_PER_CM
 from selfcon.model.mesh import Mesh
 from selfcon.output.channels import BAND_CARRIER, STATE_LABEL
+from selfcon.output.numbers import fmt
 
 SECOND_SUBBAND_FRACTION = 0.01      # the occupied rule of selfcon.output.channels
 PARALLEL_FRACTION = 0.01
@@ -222,7 +223,7 @@ def doping_layer_electrons(result, structure, *, bound: bool = False) -> float:
 
 
 def _fmt_cm2(x: float) -> str:
-    return f"{x:.3g} cm^-2"
+    return f"{fmt(x, 'sheet')} cm^-2"
 
 
 # --------------------------------------------------------------------------- the checks
@@ -525,8 +526,8 @@ def check_region_cut(result, structure, deck=None) -> list[str]:
                 if local > CUT_FRACTION * peak:
                     out.append(f"quantum region {k} [{structure.regions_nm[k][0]:g}, "
                                f"{structure.regions_nm[k][1]:g}] nm cuts the {carrier}s at its {label} end "
-                               f"(z = {z[end]:g} nm): {local:.3g} cm^-3 within {CUT_DISTANCE_NM:g} nm, "
-                               f"{local / peak:.2g} of the peak {peak:.3g} cm^-3; widen the region")
+                               f"(z = {z[end]:g} nm): {fmt(local, 'volume')} cm^-3 within {CUT_DISTANCE_NM:g} nm, "
+                               f"{local / peak:.2g} of the peak {fmt(peak, 'volume')} cm^-3; widen the region")
                     break
     return out
 
@@ -611,7 +612,7 @@ def check_valley_splitting(result, structure=None, deck=None) -> list[str]:
             continue
         k = int(np.flatnonzero(hit)[0])
         out.append(f"{int(hit.sum())} occupied subband(s) of the X/Delta valleys along z ({band}, "
-                   f"{STATE_LABEL[band]}0 ..., {float(occ[hit].sum()):.3g} cm^-2) are counted "
+                   f"{STATE_LABEL[band]}0 ..., {fmt(float(occ[hit].sum()), 'sheet')} cm^-2) are counted "
                    f"{deg[k]:.0f}-fold degenerate: "
                    "this model has no valley splitting; the real splitting (tenths of a meV or less "
                    "in Si/SiGe) depends on the interface sharpness and steps, the vertical field "

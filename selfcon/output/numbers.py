@@ -7,9 +7,11 @@ numbers here, so a number means the same wherever it is read:
   one carrier in 1 mm x 0.1 mm, below anything a Hall or C-V measurement resolves, and the
   digits of such a number are solver noise (``1.1e-138``), not physics;
 * a **volume density** (cm^-3) below ``VOLUME_FLOOR_CM3`` = 1 cm^-3 shows as ``0``;
+* a **charge per area** (C/cm^2) or capacitance (F/cm^2) below q x 1e3 cm^-2 = 1.6e-16
+  shows as ``0``;
 * each quantity has fixed significant digits or decimals (``SPECS``): densities 3
   significant digits in the form ``4.94e11``; energies in meV one decimal, in eV four;
-  lengths 3 significant digits; potentials in V three decimals; residuals 2 significant
+  lengths 3 significant digits (whole nanometres from 1000 nm up); potentials in V three decimals; residuals 2 significant
   digits; masses 4 significant digits.
 
 :func:`fmt` formats one value of a named quantity; :func:`quantity_of` picks the quantity
@@ -25,12 +27,16 @@ from typing import NamedTuple
 SHEET_FLOOR_CM2 = 1e3
 #: cm^-3: volume densities below this print as 0
 VOLUME_FLOOR_CM3 = 1.0
+#: C/cm^2 (and F/cm^2 per volt): charges per area below the elementary charge times the
+#: sheet floor, q * 1e3 cm^-2, print as 0
+CHARGE_FLOOR_C_CM2 = 1.602176634e-19 * SHEET_FLOOR_CM2
 
 
 class Spec(NamedTuple):
     """How one quantity prints: ``style`` "sci" (``digits`` significant, ``4.94e11``), "fixed"
-    (``digits`` decimals) or "general" (``digits`` significant, plain when short); values
-    with magnitude below ``floor`` print as ``0``."""
+    (``digits`` decimals), "general" (``digits`` significant, plain when short) or "length"
+    (as general, but whole numbers from 10**digits up: ``1022``); values with magnitude
+    below ``floor`` print as ``0``."""
     style: str
     digits: int
     floor: float = 0.0
@@ -41,14 +47,14 @@ SPECS = {
     "volume": Spec("sci", 3, VOLUME_FLOOR_CM3),       # cm^-3
     "meV": Spec("fixed", 1),
     "eV": Spec("fixed", 4),
-    "nm": Spec("general", 3),
+    "nm": Spec("length", 3),
     "V": Spec("fixed", 3),
     "K": Spec("general", 4),
     "s": Spec("general", 3),                          # wall time
     "residual": Spec("sci", 2),                       # V, a convergence measure
     "mass": Spec("general", 4),                       # m0
     "fraction": Spec("fixed", 3),                     # R^2, standardised coefficients, overlaps
-    "capacitance": Spec("sci", 3),                    # F/cm^2, C/cm^2
+    "capacitance": Spec("sci", 3, CHARGE_FLOOR_C_CM2),  # F/cm^2, C/cm^2
     "plain": Spec("general", 4),                      # anything else
 }
 
@@ -106,6 +112,8 @@ def fmt(value, quantity: str = "plain", *, sign: bool = False) -> str:
             text = text.lstrip("-")
             plus = "+" if sign else ""
         return plus + text
+    if spec.style == "length" and abs(v) >= 10 ** spec.digits:
+        return plus + f"{v:.0f}"                       # 1022 nm, never 1.02e3
     text = f"{v:.{spec.digits}g}"
     if "e" in text:
         return plus + _sci(v, spec.digits)
