@@ -403,7 +403,7 @@ GE_2DHG = Path(__file__).resolve().parent.parent / "inputs" / "design" / "strain
 
 
 def test_ge_2dhg_holes_fill_heavy_hole_subbands():
-    r = selfcon.solve(selfcon.load_deck(GE_2DHG))
+    r = selfcon.solve(selfcon.load_deck(GE_2DHG).with_overrides({"physics.hole_model": "parabolic"}))
     assert r.converged and r.summary["gauss_residual"] < 1e-6       # Gauss's law (FV fluxes)
     assert r.summary["contacted_carrier"] == "hole"
     assert r.summary["main_channel"] == "channel"
@@ -436,7 +436,8 @@ def fermi_mass(deck):
 
 
 def test_ge_2dhg_kp_mass_rises_with_density():
-    base = selfcon.load_deck(GE_2DHG).with_overrides({"physics.hole_model": "kp4"})
+    base = selfcon.load_deck(GE_2DHG)
+    assert base.physics.hole_model == "kp4"                         # the shipped deck's holes
     (m_lo, r_lo, s_lo), (m_hi, r_hi, s_hi) = (
         fermi_mass(base.with_overrides({"layer.doping.sheet_acceptors": a})) for a in (0.8e12, 1.4e12))
     for r, s in ((r_lo, s_lo), (r_hi, s_hi)):
@@ -453,6 +454,9 @@ def test_ge_2dhg_kp_mass_rises_with_density():
     # and above the parabolic model's axial heavy-hole mass 1/(gamma1 + gamma2) = 0.057 m0
     # (analytic): the heavy-light coupling of the multiband model bends the band away from k = 0
     assert m_lo > 1.0 / (13.38 + 4.24)
+    # the result file's own figure (/subbands/hole_kp/mass_fermi) agrees with the one above
+    for m, r in ((m_lo, r_lo), (m_hi, r_hi)):
+        assert float(r.hole_kp["mass_fermi"][0]) == pytest.approx(m, rel=0.03)
 
 
 def test_materials_on_relaxed_sige_counts_the_delta_valleys(run_cli):
