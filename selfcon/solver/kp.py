@@ -66,6 +66,8 @@ __all__ = ["KpMaterial", "KpStates", "MODELS", "basis", "cartesian_blocks", "bul
 
 #: hole model name -> number of bands
 MODELS = {"kp4": 4, "kp6": 6}
+#: the brackets of guessed eigenvalues (lowest_banded's guess): +- this, eV
+GUESS_MARGIN = 2e-3
 #: eigenvalues closer than this (eV) are found together (Kramers pairs, symmetric wells,
 #: small spin splittings); the bisection brackets are narrower (lowest_banded's tol)
 DEGENERATE = 3e-5
@@ -138,6 +140,24 @@ def _to_j(block6, nb):
     return np.einsum("ia,...ij,jb->...ab", u.conj(), block6, u)
 
 
+def _orbital_basis(nb):
+    """(3, 3, nb, nb): U^+ (E_ij x spin identity) U for the orbital unit matrices E_ij."""
+    unit = np.zeros((3, 3, 3, 3))
+    for i in range(3):
+        for j in range(3):
+            unit[i, j, i, j] = 1.0
+    return _to_j(_spin(unit), nb)
+
+
+_ORBITAL = {nb: _orbital_basis(nb) for nb in MODELS.values()}
+
+
+def _orbital_to_j(block3, nb):
+    """Cartesian orbital (..., 3, 3) times the spin identity -> the first ``nb`` J states (the
+    same as _to_j(_spin(block3)), as one sum over the nine orbital entries)."""
+    return np.einsum("...ij,ijab->...ab", np.asarray(block3, dtype=complex), _ORBITAL[nb])
+
+
 def cartesian_blocks(mat: KpMaterial, kx: float, ky: float, *, axial: bool = False):
     """Per-cell (A, G, C) in the cartesian basis, each (cells, 3, 3), in hbar^2/2m0 units
     times nm^-2 for C: H = kz A kz + G kz + kz G^+ + C (module docstring).  C holds the
@@ -179,7 +199,7 @@ def _local_blocks(mat: KpMaterial, nb: int):
     S[:, 0, 0] = lp * exx + mp * (exx + ezz)
     S[:, 1, 1] = lp * exx + mp * (exx + ezz)
     S[:, 2, 2] = lp * ezz + mp * (2.0 * exx)
-    out = _to_j(_spin(S), nb)
+    out = _orbital_to_j(S, nb)
     ev = np.asarray(mat.ev, float)
     for j in range(nb):
         out[:, j, j] += ev - (np.asarray(mat.delta, float) if j >= 4 else 0.0)
@@ -205,9 +225,9 @@ def assemble_blocks(h, w, mat: KpMaterial, phi_node, kx: float, ky: float, nb: i
     h = np.asarray(h, float)
     n = h.size + 1
     A3, G3, C3 = cartesian_blocks(mat, kx, ky, axial=axial)
-    A = HBAR2_2M0 * _to_j(_spin(A3), nb)
-    G = HBAR2_2M0 * _to_j(_spin(G3.astype(complex)), nb)
-    C = HBAR2_2M0 * _to_j(_spin(C3), nb) + _local_blocks(mat, nb)
+    A = HBAR2_2M0 * _orbital_to_j(A3, nb)
+    G = HBAR2_2M0 * _orbital_to_j(G3, nb)
+    C = HBAR2_2M0 * _orbital_to_j(C3, nb) + _local_blocks(mat, nb)
     Gh = np.conj(np.swapaxes(G, -1, -2))
     K, D = G + Gh, Gh - G
     hh = h[:, None, None]
@@ -268,7 +288,8 @@ def dense_matrix(diag, upper) -> np.ndarray:
     return H
 
 
-def lowest_banded(ab, n_states: int, rng_seed: int = 1, tol: float = 1e-5, lower=None):
+def lowest_banded(ab, n_states: int, rng_seed: int = 1, tol: float = 1e-5, lower=None,
+                  guess=None):
     """Lowest ``n_states`` eigenpairs of the Hermitian band matrix ``ab`` (upper storage):
     (values (k,), vectors (m, k) orthonormal).
 
@@ -277,7 +298,8 @@ def lowest_banded(ab, n_states: int, rng_seed: int = 1, tol: float = 1e-5, lower
     small spin splittings) by block inverse iteration with the band L D L^H factorisation
     at the group's centre (the count's own, kernels/kp.py), then Rayleigh-Ritz in the block, whose values are returned (so they are exact
     to rounding, not to ``tol``).  ``lower``: a guess of a bound below the spectrum (checked
-    by a count; Gershgorin's bound otherwise).  Linear in m."""
+    by a count; Gershgorin's bound otherwise).  ``guess``: approximate eigenvalues (those of a
+    nearby k_par), counted at +- GUESS_MARGIN first to narrow the brackets.  Linear in m."""
     from selfcon.solver.kernels import kp as kern
     u, m = ab.shape[0] - 1, ab.shape[1]
     k = int(min(n_states, m))
@@ -299,7 +321,11 @@ def lowest_banded(ab, n_states: int, rng_seed: int = 1, tol: float = 1e-5, lower
                 hi = lo + step
                 break
             step *= 2.0
-    centre, _ = kern.lowest_eigenvalues(ab, k, lo, hi, tol)
+    probes = np.empty(0)
+    if guess is not None:
+        g = np.unique(np.round(np.asarray(guess, float)[np.isfinite(guess)] / tol) * tol)
+        probes = np.sort(np.concatenate([g - GUESS_MARGIN, g + GUESS_MARGIN]))
+    centre, _ = kern.lowest_eigenvalues(ab, k, lo, hi, tol, probes)
     scale = max(1.0, float(np.max(np.abs(diag))))
     rng = np.random.default_rng(rng_seed)
     vals = np.zeros(k)
@@ -328,18 +354,20 @@ def lowest_banded(ab, n_states: int, rng_seed: int = 1, tol: float = 1e-5, lower
 
 
 def lowest_states(h, w, mat: KpMaterial, phi_node, kx: float, ky: float, nb: int,
-                  n_states: int, *, axial: bool = False):
+                  n_states: int, *, axial: bool = False, guess=None):
     """Hole states of a quantum region at the in-plane wave vector (kx, ky) nm^-1.
 
     ``h`` (n-1,) cell widths and ``mat`` per cell, ``w`` (n,) dual widths and ``phi_node``
     (n,) the potential (V) on the region's nodes, psi = 0 at its two end nodes.  Returns
     (energy (k,) eV on the electron scale, highest first, i.e. lowest hole energy first;
-    psi (n, nb, k) complex in nm^-1/2 with sum_i w_i sum_b |psi_ib|^2 = 1)."""
+    psi (n, nb, k) complex in nm^-1/2 with sum_i w_i sum_b |psi_ib|^2 = 1).  ``guess``: the
+    energies (electron scale) of a nearby k_par, to start the bisection from (lowest_banded)."""
     d, u = _interior_hole_blocks(h, w, mat, phi_node, kx, ky, nb, axial)
     # a guess of a bound below the hole spectrum: the lowest hole edge less a margin for the
     # strain shifts (checked by a Sturm count in lowest_banded)
     edge = -np.asarray(mat.ev, float) + 0.5 * (np.asarray(phi_node)[1:] + np.asarray(phi_node)[:-1])
-    vals, vecs = lowest_banded(band_matrix(d, u), n_states, lower=float(np.min(edge)) - 0.3)
+    vals, vecs = lowest_banded(band_matrix(d, u), n_states, lower=float(np.min(edge)) - 0.3,
+                               guess=None if guess is None else -np.asarray(guess, float))
     n = np.asarray(w).size
     psi = np.zeros((n, nb, vals.size), dtype=complex)
     s = 1.0 / np.sqrt(np.asarray(w, float)[1:-1])
@@ -414,7 +442,8 @@ def dispersion(h, w, mat: KpMaterial, phi_node, nb: int, n_states: int, k_grid, 
     dens = np.zeros((n_nodes, n_states, k_grid.size))
     first = None
     for j, k in enumerate(k_grid):
-        e, psi = lowest_states(h, w, mat, phi_node, k * c, k * s, nb, n_states, axial=angle is None)
+        e, psi = lowest_states(h, w, mat, phi_node, k * c, k * s, nb, n_states, axial=angle is None,
+                               guess=E[:, j - 1] if j else None)   # the previous k's levels
         got = e.size
         E[:got, j] = e
         dens[:, :got, j] = np.sum(np.abs(psi) ** 2, axis=1)

@@ -33,12 +33,25 @@ def sturm_count(ab, x):
 
 
 @numba.njit(cache=True)
-def lowest_eigenvalues(ab, k, lo, hi, tol):
+def lowest_eigenvalues(ab, k, lo, hi, tol, probes):
     """The ``k`` lowest eigenvalues of the Hermitian band matrix ``ab`` by bisection, each to
     ``tol``; ``lo`` must lie below the spectrum and at least k eigenvalues below ``hi``.
-    Returns (centres (k,), half widths (k,)) of the final brackets, ascending."""
+    ``probes``: points counted first (guesses of the eigenvalues, e.g. those of a nearby
+    k_par, plus and minus a margin); like every count they only narrow the brackets, so
+    poor guesses cost counts, never correctness.  Returns (centres (k,), half widths (k,))
+    of the final brackets, ascending."""
     lower = np.full(k, lo)
     upper = np.full(k, hi)
+    for x in probes:
+        if x <= lo or x >= hi:
+            continue
+        c = sturm_count(ab, x)
+        for t in range(k):
+            if t < c:
+                if x < upper[t]:
+                    upper[t] = x
+            elif x > lower[t]:
+                lower[t] = x
     for i in range(k):
         while upper[i] - lower[i] > tol:
             x = 0.5 * (lower[i] + upper[i])
