@@ -256,7 +256,9 @@ def check_figures(deck, structure) -> dict:
                             "max_step_nm": float(h.max()) if h.size else None,
                             "thickness_nm": float(z[-1] - z[0]) if z.size else 0.0},
                    "quantum_regions": regions, "strain": strain, "interfaces": interfaces,
-                   "polarization": polarization})
+                   "polarization": polarization,
+                   "exchange_correlation": structure.exchange_correlation,
+                   "nonparabolicity": bool(structure.nonparabolicity)})
 
 
 def cmd_check(args) -> int:
@@ -365,6 +367,9 @@ def cmd_check(args) -> int:
     else:
         console.print("no quantum region: all carriers classical")
     console.print("carriers: " + ", ".join(fig["carriers"]))
+    console.print("model: " + ("Hartree" if fig["exchange_correlation"] == "none" else
+                               f"{fig['exchange_correlation']} exchange-correlation (Schrödinger only)")
+                  + (", nonparabolic Γ electrons" if fig["nonparabolicity"] else ", parabolic bands"))
     return EXIT_OK
 
 

@@ -258,3 +258,15 @@ def test_a_study_compares_hartree_and_lda():
         assert st.nonparabolicity == job.values["physics.nonparabolicity"]
         got.add((st.exchange_correlation, st.nonparabolicity))
     assert got == {("none", False), ("none", True), ("lda", False), ("lda", True)}
+
+
+def test_check_names_the_model(run_cli, tmp_path):
+    deck = tmp_path / "hj.toml"
+    deck.write_text(HETEROJUNCTION, encoding="utf-8")
+    r = run_cli("check", deck)
+    assert r.code == 0 and "model: lda exchange-correlation" in r.out
+    r = run_cli("check", deck, "--set", 'physics.exchange_correlation="none"', "--set",
+                "physics.nonparabolicity=true")
+    assert r.code == 0 and "model: Hartree, nonparabolic" in r.out
+    r = run_cli("check", deck, "--set", 'physics.exchange_correlation="gga"')
+    assert r.code == 2 and "physics.exchange_correlation" in r.err      # one line, exit 2
