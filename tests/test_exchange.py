@@ -270,3 +270,16 @@ def test_check_names_the_model(run_cli, tmp_path):
     assert r.code == 0 and "model: Hartree, nonparabolic" in r.out
     r = run_cli("check", deck, "--set", 'physics.exchange_correlation="gga"')
     assert r.code == 2 and "physics.exchange_correlation" in r.err      # one line, exit 2
+
+
+def test_valley_subbands_are_named_when_lda_leaves_them_out():
+    # a Si 2DEG (the Delta2 valleys along z as subbands, physics.quantum_valleys) with LDA on:
+    # V_xc acts on Gamma electrons and holes only, so the design check says so (its own rule:
+    # >= 1 % of the electrons in subbands); the GaAs HEMT, all Gamma, stays silent
+    from pathlib import Path
+    inputs = Path(__file__).resolve().parents[1] / "inputs"
+    si = selfcon.solve(selfcon.load_deck(str(inputs / "design" / "strained_si_2deg_4K.toml"),
+                                         overrides=['physics.exchange_correlation="lda"']))
+    assert any("Gamma electrons only" in w and "x2_electron" in w for w in si.warnings)
+    gaas = solve_heterojunction(SHEETS[0], "lda")
+    assert not any("Gamma electrons only" in w for w in gaas.warnings)

@@ -71,6 +71,11 @@ Thresholds (our own choices, stated here and in README.md, "Design recipes"):
   and 1e8 cm^-2 and are not the main or a named channel (a GaN cap on AlGaN, the bottom of
   an N-face barrier); in a deck that counts no holes, the valence edge there within
   ``VALLEY_KT`` = 10 kT of EF.
+* beyond Gamma (``beyond_gamma``): with physics.exchange_correlation or
+  physics.nonparabolicity on, X/Delta or L valley subbands (physics.quantum_valleys) hold at
+  least ``BEYOND_GAMMA_FRACTION`` = 1 % of the electrons in subbands and ``FLOOR_CM2``:
+  both corrections act on Gamma electrons (V_xc also on holes) only, so those subbands are
+  solved in the Hartree, parabolic model.
 * valley splitting (``valley_splitting``): with physics.quantum_valleys, occupied subbands
   of the X/Delta valleys along z (``x2_electron``) whose valley degeneracy is 2 (Si and Ge;
   a zincblende crystal has one such X valley) hold at least ``VALLEY_SPLIT_FRACTION`` = 1 %
@@ -618,6 +623,36 @@ def check_valley_splitting(result, structure=None, deck=None) -> list[str]:
                    "in Si/SiGe) depends on the interface sharpness and steps, the vertical field "
                    "and the alloy disorder at the interface")
     return out
+
+
+@register_check("beyond_gamma")
+def check_beyond_gamma(result, structure, deck=None) -> list[str]:
+    """physics.exchange_correlation and physics.nonparabolicity act on Gamma electrons (and
+    V_xc on holes): X/Delta and L valley subbands holding charge are solved without them."""
+    if structure is None:
+        return []
+    xc = getattr(structure, "exchange_correlation", "none") != "none"
+    npb = bool(getattr(structure, "nonparabolicity", False))
+    if not (xc or npb):
+        return []
+    subs = result.subbands or {}
+    total = sum(float(np.sum(sb.occupation)) for b, sb in subs.items()
+                if BAND_CARRIER.get(b) == "electron")
+    held = {b: float(np.sum(sb.occupation)) for b, sb in subs.items()
+            if b != "electron" and BAND_CARRIER.get(b) == "electron"}
+    held = {b: v for b, v in held.items() if v >= FLOOR_CM2 and v >= BEYOND_GAMMA_FRACTION * total}
+    if not held:
+        return []
+    what = " and ".join(w for w, on in (("the exchange-correlation potential", xc),
+                                        ("the nonparabolic mass", npb)) if on)
+    bands = ", ".join(f"{b} {v:.3g} cm^-2" for b, v in held.items())
+    return [f"{what} act(s) on Gamma electrons only: the valley subbands holding charge here "
+            f"({bands}) are solved without it, Hartree and parabolic"]
+
+
+#: the beyond-Gamma note is given when valley subbands hold this share of the electrons in
+#: subbands (and at least FLOOR_CM2)
+BEYOND_GAMMA_FRACTION = 0.01
 
 
 #: the valley-splitting note is given when the Delta2 subbands hold this share of the
