@@ -568,7 +568,7 @@ def update_exchange(ws: Workspace, phi, states=None, states_phi=None) -> float:
         shift = np.asarray(phi) - np.asarray(states_phi)
         n, p = np.zeros(st.n_nodes), np.zeros(st.n_nodes)
         for bs in states.values():
-            if bs.band not in BAND_SPECS:       # X/L valley subbands: a gas of their own
+            if bs.band not in BAND_SPECS and bs.band != KP_BAND:   # X/L valleys: a gas of their own
                 continue
             if bs.sign > 0:
                 n += subband_profile(st, bs, shift)
