@@ -850,8 +850,28 @@ def _error(debug, text) -> None:
         pass
 
 
+def _our_warnings(show):
+    """A ``warnings.showwarning`` that prints selfcon's own warnings as one line
+    ``selfcon: warning: ...`` on stderr and hands any other to ``show``."""
+    from selfcon.errors import UncheckedResultWarning
+
+    def showwarning(message, category, filename, lineno, file=None, line=None):
+        if issubclass(category, UncheckedResultWarning):
+            print(f"selfcon: warning: {message}", file=sys.stderr)
+        else:
+            show(message, category, filename, lineno, file, line)
+    return showwarning
+
+
 def main(argv=None) -> int:
     """Entry point of the ``selfcon`` console script and ``python -m selfcon``; returns the exit code."""
+    import warnings
+    with warnings.catch_warnings():
+        warnings.showwarning = _our_warnings(warnings.showwarning)
+        return _main(argv)
+
+
+def _main(argv=None) -> int:
     debug = os.environ.get("SELFCON_DEBUG", "") not in ("", "0")
     try:
         parser = build_parser()

@@ -96,6 +96,12 @@ class ResultFileError(SelfconInputError):
     """A result file cannot be read (missing, not a selfcon result, newer schema)."""
 
 
+class UncheckedResultWarning(UserWarning):
+    """A result file was read without verifying it: it was written before result files
+    carried a checksum (selfcon/output/checksum.py).  The command line prints it as
+    ``selfcon: warning: ...``."""
+
+
 class SelfconEnvironmentError(RuntimeError):
     """The environment failed, not the input and not the code: disk full, no permission,
     a read-only folder, a corrupt queue database, a lost or unreachable scheduler,

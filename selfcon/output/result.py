@@ -28,6 +28,7 @@ from pathlib import Path
 import numpy as np
 
 from selfcon.errors import ResultFileError
+from selfcon.output import checksum
 from selfcon.output.files import atomic_write as _atomic_write
 from selfcon.output.netcdf import Group, set_attrs
 from selfcon.output.schema import (CHANNEL_FIELDS, DIMS, INTERFACE_FIELDS, RESULT, ROOT_ATTRS, SCHEMA,
@@ -504,6 +505,7 @@ def _write_file(path: str, result: Result) -> None:
     with h5py.File(path, "w", track_order=True) as f:
         for write in _WRITERS:
             write(f, result)
+        checksum.stamp(f)
         f.flush()
 
 
@@ -534,6 +536,7 @@ def result_image(result: Result) -> bytes:
     with h5py.File(buf, "w", track_order=True) as f:
         for write in _WRITERS:
             write(f, result)
+        checksum.stamp(f)
     return buf.getvalue()
 
 
@@ -601,6 +604,41 @@ def load_result(path) -> Result:
                               f"{' '.join(str(exc).split())[:160]})", file=str(path)) from None
 
 
+def _check_sum(f, path) -> None:
+    """Refuse a file whose contents do not match its checksum (selfcon/output/checksum.py);
+    warn about a file written before checksums existed."""
+    state = checksum.verify(f)
+    if state == "mismatch":
+        raise ResultFileError("damaged result file: its contents do not match the checksum written "
+                              "with it (the file changed after it was written); solve the deck again",
+                              file=str(path))
+    if state == "missing":
+        import warnings
+        from selfcon.errors import UncheckedResultWarning
+        warnings.warn(f"{path}: written before result files carried a checksum; read without "
+                      "verifying it", UncheckedResultWarning, stacklevel=4)
+
+
+def verify_result_file(path) -> str:
+    """Check a result file without building a Result: ``"ok"``, ``"unchecked"`` (readable, no
+    checksum: written before checksums existed), or the reason it is damaged or not ours
+    (missing, not HDF5, truncated, checksum mismatch).  Never raises for a bad file."""
+    path = Path(path)
+    if not path.is_file():
+        return "missing" if not path.exists() else "not a file"
+    h5py = _h5py()
+    try:
+        if not h5py.is_hdf5(str(path)):
+            return "not an HDF5 file"
+        with h5py.File(path, "r") as f:
+            if _py(f.attrs.get("schema")) != SCHEMA:
+                return "not a selfcon result file"
+            state = checksum.verify(f)
+    except Exception as exc:           # h5py reports a truncated or scribbled file in many ways
+        return f"unreadable ({type(exc).__name__}: {' '.join(str(exc).split())[:120]})"
+    return {"ok": "ok", "missing": "unchecked", "mismatch": "checksum mismatch"}[state]
+
+
 def _read_result(path: Path) -> Result:
     h5py = _h5py()
     with open(path, "rb"):           # no permission shows here (PermissionError), not as "not HDF5"
@@ -620,6 +658,7 @@ def _read_result(path: Path) -> Result:
             raise ResultFileError(
                 f"result file has schema_version {version}, newer than this selfcon reads "
                 f"({SCHEMA_VERSION}); upgrade selfcon to read it", file=str(path))
+        _check_sum(f, path)
         z = _need(f, "mesh/z", path)[()]
         regions = f["mesh/quantum_regions"][()] if "mesh/quantum_regions" in f else np.zeros((0, 2))
         gp = _need(f, "profile", path)

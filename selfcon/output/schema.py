@@ -206,7 +206,7 @@ BANDS = ("electron", "heavy_hole", "light_hole", "x2_electron", "x4_electron", "
 VALLEY_BANDS = ("x2_electron", "x4_electron", "l_electron")
 
 ROOT_ATTRS = ("schema", "schema_version", "selfcon_version", "created", "title", "temperature_K",
-              "converged", "iterations", "residual_V", "message", "deck")
+              "converged", "iterations", "residual_V", "message", "deck", "checksum")
 
 RESULT = Layout("selfcon.result", 1, "result of one solve")
 SCHEMA = RESULT.schema
