@@ -59,6 +59,12 @@ def register(subparsers):
     b.add_argument("--retries", type=int, default=2,
                    help="attempts beyond the first for a job that failed or lost its worker (default 2)")
     b.add_argument("--memory-limit", default="4GiB", help="memory per Dask worker of --scheduler local")
+    b.add_argument("--job-timeout", type=float, default=None, metavar="SECONDS",
+                   help="wall-clock limit of one job: past it its worker process is stopped and the job "
+                        "requeued, the attempt counted (local pool; default: no limit)")
+    b.add_argument("--scheduler-timeout", type=float, default=None, metavar="SECONDS",
+                   help="Dask: seconds to reach the scheduler and to wait for a lost one, and for a first "
+                        "worker, before stopping with exit 4 (default 60; a first worker of --cluster: 1800)")
     b.add_argument("--quiet", "-q", action="store_true", help="only the final summary line")
     b.add_argument("--json", action="store_true",
                    help="no progress; print one JSON object (folder, exit code, job counts, tables) and nothing else")
@@ -67,7 +73,8 @@ def register(subparsers):
     b.set_defaults(func=batch_command)
 
     qp = subparsers.add_parser("queue", help="inspect or requeue the jobs of a study folder")
-    qs = qp.add_subparsers(dest="queue_command", metavar="status|list|retry", help="what to do with the queue")
+    qs = qp.add_subparsers(dest="queue_command", metavar="status|list|retry|verify",
+                           help="what to do with the queue")
     qs.required = True
     s = qs.add_parser("status", help="counts per status")
     s.add_argument("outdir", metavar="OUTDIR", help="the study's output folder (holding queue.sqlite)")
@@ -83,6 +90,15 @@ def register(subparsers):
     r.add_argument("--status", default="failed", help="statuses to requeue (default: failed)")
     r.add_argument("--id", type=int, action="append", default=[], help="a job id (repeatable)")
     r.set_defaults(func=queue_retry)
+    v = qs.add_parser("verify", help="check every finished job's result file; requeue the missing or damaged",
+                      description="Check the result file of every finished job against the sha256 recorded in "
+                                  "the queue when it was written (or, for older jobs, against its own checksum). "
+                                  "A job whose file is missing, unreadable or changed goes back to the queue "
+                                  "(the reason in its error column); rerun `selfcon batch STUDY.toml` to run it. "
+                                  "The tables are rewritten. `selfcon batch` does the same on every resume.")
+    v.add_argument("outdir", metavar="OUTDIR", help="the study's output folder (holding queue.sqlite)")
+    v.add_argument("--json", action="store_true", help="print {checked, requeued: [{id, reason}]} as JSON")
+    v.set_defaults(func=queue_verify)
 
 
 def batch_command(args) -> int:
@@ -101,6 +117,10 @@ def batch_command(args) -> int:
         raise StudyError("must be >= 0", key="--backlog")
     if (args.min_workers or args.max_workers is not None) and not args.cluster:
         raise StudyError("only with --cluster", key="--min-workers" if args.min_workers else "--max-workers")
+    for opt in ("job_timeout", "scheduler_timeout"):
+        value = getattr(args, opt)
+        if value is not None and not (0 < value < float("inf")):
+            raise StudyError(f"must be a number of seconds > 0, got {value:g}", key="--" + opt.replace("_", "-"))
     if args.scheduler_file and not Path(args.scheduler_file).is_file():
         raise StudyError("no such file (start the scheduler with --scheduler-file first)",
                          key="--scheduler-file", file=args.scheduler_file)
@@ -113,7 +133,8 @@ def batch_command(args) -> int:
                                       backlog=args.backlog, retries=args.retries,
                                       quiet=args.quiet or args.json,
                                       memory_limit=args.memory_limit, log_file=args.log, numba_cache=numba_cache,
-                                      threads=args.threads)
+                                      threads=args.threads, job_timeout=args.job_timeout,
+                                      scheduler_timeout=args.scheduler_timeout)
     if args.json:
         folder = Path(out_dir)
         print(json.dumps({"folder": str(folder), "exit_code": int(code), "counts": dict(counts),
@@ -187,4 +208,30 @@ def queue_retry(args) -> int:
         n = q.retry(con, statuses=statuses, ids=tuple(args.id))
         con.close()
     print(f"{args.outdir}: {n} jobs requeued; run `selfcon batch STUDY.toml` to run them", file=sys.stdout)
+    return 0
+
+
+def queue_verify(args) -> int:
+    from selfcon.batch import queue as q
+    from selfcon.batch import verify
+    from selfcon.batch.runner import write_tables
+    if not (Path(args.outdir) / "queue.sqlite").is_file():
+        raise StudyError("no queue here (queue.sqlite missing)", file=str(args.outdir))
+    with q.CoordinatorLock(args.outdir):
+        con = q.connect(args.outdir)
+        try:
+            removed = verify.clean_temporaries(args.outdir)
+            bad, checked = verify.verify_jobs(con, args.outdir)
+            if bad:
+                write_tables(con, args.outdir)
+        finally:
+            con.close()
+    if args.json:
+        print(json.dumps({"checked": checked, "requeued": [{"id": j, "reason": why} for j, why in bad],
+                          "temporary_files_removed": len(removed)}))
+        return 0
+    print(f"{args.outdir}: " + verify.summary_line(bad, checked)
+          + ("; rerun `selfcon batch STUDY.toml` to run them again" if bad else ""))
+    for j, why in bad:
+        print(f"  job {j}: {why}")
     return 0

@@ -49,7 +49,8 @@ CREATE TABLE IF NOT EXISTS jobs (
     converged    INTEGER,
     warm_start   INTEGER NOT NULL DEFAULT 0,
     prev_status  TEXT,
-    summary      TEXT
+    summary      TEXT,
+    result_sha256 TEXT
 );
 CREATE INDEX IF NOT EXISTS jobs_status ON jobs(status, study_index);
 """
@@ -81,6 +82,7 @@ def connect(out_dir, *, readonly=False) -> sqlite3.Connection:
             con.execute("PRAGMA journal_mode=WAL")
             con.execute("PRAGMA synchronous=NORMAL")
             con.executescript(_SCHEMA)
+            _add_columns(con)
             con.execute("INSERT OR IGNORE INTO meta VALUES ('schema_version', ?)", (str(SCHEMA_VERSION),))
     except (sqlite3.DatabaseError, OSError) as exc:
         if con is not None:
@@ -88,6 +90,23 @@ def connect(out_dir, *, readonly=False) -> sqlite3.Connection:
         raise queue_failure(out_dir, exc) from None
     con.row_factory = sqlite3.Row
     return con
+
+
+#: columns added to the jobs table after its first version: (name, SQL type); a queue written
+#: before gets them on its next writable connection (older rows hold NULL)
+ADDED_COLUMNS = (("result_sha256", "TEXT"),)
+
+
+def _add_columns(con) -> None:
+    have = {r[1] for r in con.execute("PRAGMA table_info(jobs)")}
+    for name, kind in ADDED_COLUMNS:
+        if name not in have:
+            con.execute(f"ALTER TABLE jobs ADD COLUMN {name} {kind}")
+
+
+def has_column(con, name) -> bool:
+    """True if the jobs table has column ``name`` (a read-only look at an older queue may not)."""
+    return any(r[1] == name for r in con.execute("PRAGMA table_info(jobs)"))
 
 
 #: files a study folder holds besides jobs/ and the tables; a folder holding only these is "ours"
@@ -346,11 +365,26 @@ def finish_many(con, items):
     with transaction(con):
         con.executemany(
             "UPDATE jobs SET status = ?, finished_at = ?, seconds = ?, error = ?, message = ?, result_path = ?, "
-            "iterations = ?, converged = ?, summary = ?, warm_start = ? WHERE id = ? AND status = 'running'",
+            "iterations = ?, converged = ?, summary = ?, warm_start = ?, result_sha256 = ? "
+            "WHERE id = ? AND status = 'running'",
             [(it["status"], now, it.get("seconds"), it.get("error"), it.get("message"), it.get("result_path"),
               it.get("iterations"), None if it.get("converged") is None else int(bool(it["converged"])),
               json.dumps(it["summary"]) if it.get("summary") is not None else None,
-              int(bool(it.get("warm_start"))), it["job_id"]) for it in items])
+              int(bool(it.get("warm_start"))), it.get("result_sha256"), it["job_id"]) for it in items])
+
+
+def requeue_damaged(con, bad) -> None:
+    """Put finished jobs whose result file is missing or damaged back in the queue: ``bad`` is
+    ``[(job_id, reason), ...]``; the reason is kept in ``error``, the attempts start again (the
+    loss was not the job's fault) and the figures of the lost file are forgotten."""
+    now = time.time()
+    with transaction(con):
+        con.executemany(
+            "UPDATE jobs SET status = 'queued', attempts = 0, started_at = NULL, finished_at = NULL, "
+            "seconds = NULL, result_path = NULL, result_sha256 = NULL, iterations = NULL, converged = NULL, "
+            "summary = NULL, message = NULL, error = ?, queued_at = ? "
+            "WHERE id = ? AND status IN ('done', 'not_converged')",
+            [(reason, now, job_id) for job_id, reason in bad])
 
 
 def requeue(con, job_id, *, count_attempt=True, error=None):

@@ -50,9 +50,21 @@ class ToleranceSummary:
     r_squared: dict[str, float]
     parameter_stats: dict[str, dict[str, float]] = field(default_factory=dict)   # path -> mean, std
     columns: dict[str, np.ndarray] = field(default_factory=dict, repr=False)
+    #: done jobs left out because their result file cannot be trusted: reason -> count
+    skipped: dict[str, int] = field(default_factory=dict)
+
+    def head(self) -> str:
+        """How many jobs the figures come from: "24 of 24 jobs done", or with skipped jobs
+        "21 of 24 jobs used (24 done; 3 skipped: 2 result file missing, ...)"."""
+        if not self.skipped:
+            return f"{self.n_done} of {self.n_total} jobs done"
+        k = sum(self.skipped.values())
+        why = ", ".join(f"{n} {reason}" for reason, n in self.skipped.items())
+        return (f"{self.n_done} of {self.n_total} jobs used ({self.n_done + k} done; {k} skipped: {why}; "
+                f"`selfcon queue verify {self.folder}` requeues them)")
 
     def lines(self) -> list[str]:
-        out = [f"{self.folder}: {self.n_done} of {self.n_total} jobs done; varied: "
+        out = [f"{self.folder}: {self.head()}; varied: "
                + ", ".join(f"{p} (mean {fmt(self.parameter_stats[p]['mean'])}, std {fmt(self.parameter_stats[p]['std'])})"
                            for p in self.paths)]
         shown = self.table_quantities()
@@ -98,7 +110,7 @@ class ToleranceSummary:
         return {"folder": self.folder, "paths": self.paths, "quantities": self.quantities, "n_done": self.n_done,
                 "n_total": self.n_total, "stats": self.stats, "sensitivity": self.sensitivity,
                 "standardized": self.standardized, "r_squared": self.r_squared,
-                "parameter_stats": self.parameter_stats}
+                "parameter_stats": self.parameter_stats, "skipped": self.skipped}
 
 
 # --------------------------------------------------------------------------- reading
@@ -279,6 +291,13 @@ def summarize_study(folder: str | os.PathLike, *, quantities: Iterable[str] | No
     done = [i for i, s in enumerate(status) if s == "done"]
     if not done:
         raise StudyError(f"no finished (done) jobs among {len(status)}", file=str(folder))
+    skipped: dict[str, int] = {}
+    if from_results and "result" in data:
+        done = _trusted(folder, done, [str(r) for r in data["result"]], skipped)
+        if not done:
+            raise StudyError(f"no usable finished job among {len(status)}: "
+                             + ", ".join(f"{n} {why}" for why, n in skipped.items())
+                             + f"; run `selfcon queue verify {folder}` and `selfcon batch` again", file=str(folder))
     params = {}
     for p in paths:
         vals = np.array([_float(data[p][i]) for i in done])
@@ -309,7 +328,24 @@ def summarize_study(folder: str | os.PathLike, *, quantities: Iterable[str] | No
             raise StudyError(f"no quantity {missing[0]!r} in this study", key="--quantity",
                              allowed=", ".join(figures))
         figures = {q: figures[quantity_key(q)] for q in quantities}
-    return summarize_table(paths, figures, params, folder=str(folder), n_total=len(status))
+    out = summarize_table(paths, figures, params, folder=str(folder), n_total=len(status))
+    out.skipped = skipped
+    return out
+
+
+def _trusted(folder: Path, done: list[int], files: list[str], skipped: dict) -> list[int]:
+    """The done jobs whose result file is there and matches its checksum; the others are counted
+    in ``skipped`` by reason (the statistics of the rest stay over one set of jobs)."""
+    from selfcon.output.result import verify_result_file
+    kept = []
+    for i in done:
+        state = verify_result_file(folder / files[i]) if files[i] else "not recorded"
+        if state in ("ok", "unchecked"):
+            kept.append(i)
+        else:
+            reason = "result file " + state.split(" (")[0]
+            skipped[reason] = skipped.get(reason, 0) + 1
+    return kept
 
 
 def quantity_label(name: str) -> tuple[str, str]:
