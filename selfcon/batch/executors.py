@@ -52,6 +52,13 @@ DIED = "worker process died"
 #: only grows to what it can see
 DEFAULT_BACKLOG = 4.0
 
+#: seconds to reach a Dask scheduler, to wait for a lost one to answer again, and for a first
+#: worker to connect, before the study stops with exit 4 (``--scheduler-timeout``)
+SCHEDULER_TIMEOUT = 60.0
+#: ``--cluster`` without ``--scheduler-timeout``: seconds to wait for the batch system to start a
+#: first worker (a busy queue holds batch jobs for minutes)
+CLUSTER_WORKER_TIMEOUT = 1800.0
+
 #: --cluster names and their dask-jobqueue classes
 JOBQUEUE_CLASSES = {"slurm": "SLURMCluster", "pbs": "PBSCluster", "sge": "SGECluster", "lsf": "LSFCluster",
                     "htcondor": "HTCondorCluster", "oar": "OARCluster", "moab": "MoabCluster"}
@@ -93,6 +100,7 @@ def _pool_main(task_r, result_w, job_spec, parent_pid, threads=None):
             os._exit(0)
 
     threading.Thread(target=reader, name="selfcon-tasks", daemon=True).start()
+    _send(result_w, [])                      # ready: a job's clock (--job-timeout) starts from here
     while True:
         task = inbox.get()
         if task is None:
@@ -125,13 +133,14 @@ def _send(conn, batch):
 
 
 class _Slot:
-    __slots__ = ("proc", "tx", "rx", "tasks", "alone", "started", "index")
+    __slots__ = ("proc", "tx", "rx", "tasks", "alone", "started", "index", "ready")
 
     def __init__(self, index, proc, tx, rx):
         self.index, self.proc, self.tx, self.rx = index, proc, tx, rx
         self.tasks = collections.deque()     # lists of job ids, in the order sent; tasks[0][0] is running
         self.alone = False                   # the task it holds must have the process to itself
         self.started = None                  # when tasks[0][0] started (its predecessor's result came)
+        self.ready = False                   # the process has started and loaded the job function
 
 
 class LocalPool:
@@ -208,7 +217,7 @@ class LocalPool:
             raise RuntimeError("submit without a free slot")
         s = free[0]
         if not s.tasks:
-            s.started = time.time()
+            s.started = time.time() if s.ready else None
         s.tasks.append([j[0] for j in jobs])
         s.alone = alone
         s.tx.send(list(jobs))
@@ -240,7 +249,12 @@ class LocalPool:
         """Read every outcome waiting on ``s``'s pipe; False at end of file (the process is gone)."""
         try:
             while s.rx.poll():
-                for job_id, outcome in s.rx.recv():
+                batch = s.rx.recv()
+                if not s.ready:                 # the process's first message: it is ready
+                    s.ready = True
+                    if s.tasks:
+                        s.started = time.time()
+                for job_id, outcome in batch:
                     task = s.tasks[0]
                     task.remove(job_id)
                     if not task:
@@ -384,7 +398,7 @@ class DaskPool:
 
     def __init__(self, job_spec, *, address=None, scheduler_file=None, cluster=None, workers=None,
                  memory_limit="4GiB", min_workers=0, max_workers=None, backlog=DEFAULT_BACKLOG,
-                 numba_cache_dir=None, connect_timeout=30, threads=None):
+                 numba_cache_dir=None, scheduler_timeout=None, threads=None):
         from selfcon.batch.worker import environment
         self.job_spec = job_spec
         self.solve_threads = threads        # each job's solves (selfcon.solver.threads); None: the worker's default
@@ -392,6 +406,11 @@ class DaskPool:
         self.cluster = None
         self.target_threads = 0
         self.expected = environment()
+        self.timeout = float(scheduler_timeout or SCHEDULER_TIMEOUT)
+        self.worker_timeout = float(scheduler_timeout or (CLUSTER_WORKER_TIMEOUT if cluster else SCHEDULER_TIMEOUT))
+        self._silent_since = None            # time.monotonic() the scheduler stopped answering
+        self._idle_since = None              # since when tasks wait and no worker is connected
+        connect_timeout = self.timeout
         try:
             from distributed import Client, LocalCluster
         except ImportError as exc:
@@ -478,7 +497,49 @@ class DaskPool:
         return {j: None for ids in self.tasks.values() for j in ids}
 
     def slots(self, alone=False):
+        if not self._scheduler_answers():
+            return 0                         # nothing is sent to a scheduler that is gone
         return max(0, self.wanted - len(self.tasks))
+
+    def waiting(self) -> bool:
+        """True while jobs cannot be sent because the scheduler does not answer (the coordinator
+        then waits instead of ending the run); raises once that has lasted ``timeout``."""
+        return not self._scheduler_answers()
+
+    def _scheduler_answers(self) -> bool:
+        """True while the client is connected; a SelfconEnvironmentError (exit 4) once it has not
+        been for ``timeout`` seconds, or has given up (closed)."""
+        status = self.client.status
+        if status == "running":
+            self._silent_since = None
+            return True
+        now = time.monotonic()
+        if self._silent_since is None:
+            self._silent_since = now
+            log.warning("the Dask scheduler at %s does not answer (client %s); waiting up to %g s",
+                        self.where, status, self.timeout)
+        if status in ("closed", "closing") or now - self._silent_since > self.timeout:
+            raise SelfconEnvironmentError(
+                f"lost the Dask scheduler at {self.where}: no answer for {now - self._silent_since:.0f} s "
+                f"(--scheduler-timeout {self.timeout:g} s); the jobs it held go back to the queue, rerun "
+                "`selfcon batch` once a scheduler runs")
+        return False
+
+    def _check_workers(self) -> None:
+        """A SelfconEnvironmentError (exit 4) when tasks have waited ``worker_timeout`` seconds
+        with no worker connected (a cluster whose batch jobs never start, workers that cannot
+        reach the scheduler)."""
+        if not self.tasks or self.threads > 0:
+            self._idle_since = None
+            return
+        now = time.monotonic()
+        if self._idle_since is None:
+            self._idle_since = now
+        elif now - self._idle_since > self.worker_timeout:
+            raise SelfconEnvironmentError(
+                f"no Dask worker connected to {self.where} in {now - self._idle_since:.0f} s "
+                f"(--scheduler-timeout {self.worker_timeout:g} s); check that the workers start (the "
+                "batch system's queue, jobqueue.yaml) and can reach the scheduler")
 
     def submit(self, jobs, alone=False):
         from selfcon.batch.worker import run_task
@@ -495,11 +556,14 @@ class DaskPool:
     def poll(self, timeout):
         if not self.tasks:
             return []
+        if not self._scheduler_answers():
+            time.sleep(timeout)              # wait for it (never spin), up to the scheduler time-out
+            return []
+        self._check_workers()
         try:
             futs = [self.done.get(timeout=timeout)]
         except queue.Empty:
-            if self.client.status in ("closed", "closing"):
-                raise SelfconEnvironmentError(f"lost the Dask scheduler at {self.where}") from None
+            self._scheduler_answers()
             return []
         while True:
             try:
@@ -543,6 +607,9 @@ class DaskPool:
             exc = f.exception()
         except Exception as e:     # cancelled
             exc = e
+        if f.status == "cancelled" and self.client.status != "running":
+            # the scheduler went away: nobody's fault, and the run stops unless it comes back
+            return [(j, "lost", f"{DIED} (the Dask scheduler was lost)") for j in ids]
         if isinstance(exc, KilledWorker) or f.status == "cancelled":
             if len(ids) == 1:
                 return [(ids[0], "died", f"{DIED} (Dask gave up on the task: {type(exc).__name__})")]

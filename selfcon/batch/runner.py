@@ -27,6 +27,7 @@ from pathlib import Path
 
 from selfcon.batch import logs
 from selfcon.batch import queue as q
+from selfcon.batch import verify
 from selfcon.batch.executors import DEFAULT_BACKLOG, make_executor
 from selfcon.batch.study import default_out_dir, expand, load_study
 from selfcon.batch.summary import summarize  # noqa: F401  (the table's figures; computed in the workers)
@@ -140,7 +141,7 @@ class Coordinator:
     """
 
     def __init__(self, out_dir, *, workers, retries=2, job_fn=None, progress=None, warm=True,
-                 table_interval=TABLE_INTERVAL, executor_options=None):
+                 table_interval=TABLE_INTERVAL, executor_options=None, job_timeout=None):
         self.out_dir = Path(out_dir)
         self.jobs_dir = self.out_dir / "jobs"
         self.workers = workers
@@ -151,6 +152,9 @@ class Coordinator:
         self.warm = warm
         self.table_interval = table_interval
         self.executor_options = dict(executor_options or {})
+        self.job_timeout = job_timeout  # seconds of wall clock a job may run (None: no limit)
+        self.timed_out = {}             # job id -> seconds it had run when its worker was stopped
+        self._last_timeout_check = 0.0
         self.along = None             # the continuation axis (a deck path), set by run()
         self.continuation = False
         self.suspects = set()         # jobs whose worker died under them: they run alone
@@ -226,6 +230,9 @@ class Coordinator:
 
     def _handle(self, con, job_id, kind, payload):
         """One executor event; a finished job's file goes to the writer threads."""
+        if kind == "died" and job_id in self.timed_out:
+            payload = (f"ran {self.timed_out.pop(job_id):.0f} s, past --job-timeout "
+                       f"{self.job_timeout:g} s: its worker was stopped")
         if kind in ("died", "suspect", "lost"):
             if kind != "lost":
                 self.suspects.add(job_id)
@@ -262,11 +269,14 @@ class Coordinator:
     def _save(self, job_id, payload, path):
         """Writer thread: the result file, atomically (fsync'ed); packs a bare Result first."""
         try:
+            import hashlib
             from selfcon.output.result import save_image
             if "image" not in payload:          # a seam job function that returned a Result
                 from selfcon.batch.worker import pack
                 secs = payload.get("seconds")
                 payload.update(pack(payload.pop("result")), seconds=secs)
+            # the digest of the bytes on disk goes into the queue: a resume compares it (batch/verify.py)
+            payload["sha256"] = hashlib.sha256(payload["image"]).hexdigest()
             save_image(payload["image"], path, force=True)
         except BaseException as exc:
             self.written.put((job_id, exc))
@@ -315,7 +325,8 @@ class Coordinator:
             status = "done" if payload["converged"] else "not_converged"
             items.append(dict(job_id=job_id, status=status, seconds=payload.get("seconds"),
                               message=payload.get("message"), result_path=rel, iterations=payload["iterations"],
-                              converged=payload["converged"], summary=payload.get("summary"), warm_start=warm))
+                              converged=payload["converged"], summary=payload.get("summary"), warm_start=warm,
+                              result_sha256=payload.get("sha256")))
             secs = payload.get("seconds")
             tail = f" {secs:.2f} s" if secs is not None else ""
             lines.append((f"job {job_id} {status.replace('_', ' ')}: {payload['iterations']} it{tail}",
@@ -461,9 +472,31 @@ class Coordinator:
                 # nothing runs: wait for a file (its job may free a continuation chain, or room
                 # for more results); when stopping, for all of them
                 self._drain_writes(con, timeout=None if sig.stopping else 0.2)
+            elif (self.counts["queued"] and not sig.stopping and self.fatal is None
+                  and getattr(ex, "waiting", lambda: False)()):
+                time.sleep(0.2)     # jobs wait for an executor that cannot take them now (a lost
+                continue            # scheduler): it raises once its time-out has passed
             else:
                 return          # nothing runs, nothing is being written, nothing more to send
             self._tables(con)
+            if self.job_timeout:
+                self._stop_overdue(ex)
+
+    def _stop_overdue(self, ex):
+        """Kill the worker of every job running longer than ``job_timeout`` (a hung or stopped
+        worker holds its job forever otherwise); the executor reports it "died": the attempt
+        counts and the job runs again, alone, until --retries is used up."""
+        now = time.time()
+        if now - self._last_timeout_check < min(1.0, self.job_timeout / 4):
+            return
+        self._last_timeout_check = now
+        for job_id, started in ex.in_flight.items():
+            if started is None or job_id in self.timed_out or now - started <= self.job_timeout:
+                continue
+            if ex.kill_job(job_id):
+                self.timed_out[job_id] = now - started
+                log.warning("job %d ran %.0f s, past --job-timeout %g s: stopping its worker",
+                            job_id, now - started, self.job_timeout)
 
 
 #: above this many jobs the final tables too are written by a process of their own (their
@@ -639,7 +672,7 @@ def _write_table_h5(con, tmp, cols, rows):
 def run_study(study_file, *, workers=None, out=None, scheduler=None, scheduler_file=None, cluster=None,
               min_workers=0, max_workers=None, backlog=DEFAULT_BACKLOG, retries=2, quiet=True, job_fn=None,
               progress=None, memory_limit="4GiB", warm=True, log_file=None, numba_cache=None,
-              table_interval=TABLE_INTERVAL, threads=None):
+              table_interval=TABLE_INTERVAL, threads=None, job_timeout=None, scheduler_timeout=None):
     """Run (or resume) a study.  Returns ``(exit_code, counts, out_dir)``.
 
     Where the jobs run: the local process pool (``workers`` processes, default the CPU
@@ -649,6 +682,10 @@ def run_study(study_file, *, workers=None, out=None, scheduler=None, scheduler_f
     ``min_workers`` and ``max_workers``.  ``log_file``: a line per job event, with times.
     ``threads``: threads of each worker's solves (selfcon.solver.threads; a worker's
     default is 1).
+    ``job_timeout``: seconds a job may run before its worker is stopped and the job requeued
+    (the attempt counts; local pool).  ``scheduler_timeout``: seconds to reach a Dask
+    scheduler, and to wait for a lost one to come back, before exit 4 (default
+    :data:`selfcon.batch.executors.SCHEDULER_TIMEOUT`).
 
     exit code: 0 every job done, 3 some not converged or failed, 130 interrupted.  An
     environment failure raises :class:`selfcon.errors.SelfconEnvironmentError` (exit 4).
@@ -668,6 +705,7 @@ def run_study(study_file, *, workers=None, out=None, scheduler=None, scheduler_f
     if scheduler or scheduler_file or cluster:
         options = dict(scheduler=scheduler, scheduler_file=scheduler_file, cluster=cluster, memory_limit=memory_limit,
                        min_workers=min_workers, max_workers=max_workers, backlog=backlog,
+                       scheduler_timeout=scheduler_timeout,
                        numba_cache_dir=os.environ.get("NUMBA_CACHE_DIR"))
     try:
         out_dir.mkdir(parents=True, exist_ok=True)
@@ -679,6 +717,7 @@ def run_study(study_file, *, workers=None, out=None, scheduler=None, scheduler_f
     try:
         with logs.to_file(log_file):
             return _run_locked(study, study_file, jobs, out_dir, workers=workers, retries=retries, quiet=quiet,
+                               job_timeout=job_timeout,
                                job_fn=job_fn, progress=progress, warm=warm, table_interval=table_interval,
                                options=options)
     except sqlite3.DatabaseError as exc:
@@ -700,7 +739,7 @@ def _check_writable_folder(out_dir):
 
 
 def _run_locked(study, study_file, jobs, out_dir, *, workers, retries, quiet, job_fn, progress, warm,
-                table_interval, options):
+                table_interval, options, job_timeout=None):
     con = q.connect(out_dir)
     try:
         q.set_meta(con, study_file=str(Path(study_file).resolve()), base_deck=str(study.deck_file),
@@ -713,8 +752,17 @@ def _run_locked(study, study_file, jobs, out_dir, *, workers, retries, quiet, jo
                     f"{changes['retired']} retired, {changes['revived']} back in the study")
             prog.note(line)
             log.info(line)
+        # resume verifies: a finished job whose file is gone or changed runs again (batch/verify.py)
+        removed = verify.clean_temporaries(out_dir)
+        if removed:
+            prog.note(f"removed {len(removed)} temporary files left by an interrupted write")
+        bad, checked = verify.verify_jobs(con, out_dir)
+        if bad:
+            line = "verify: " + verify.summary_line(bad, checked)
+            prog.note(line)
+            log.warning(line)
         coord = Coordinator(out_dir, workers=workers, retries=retries, job_fn=job_fn, progress=prog, warm=warm,
-                            table_interval=table_interval, executor_options=options)
+                            table_interval=table_interval, executor_options=options, job_timeout=job_timeout)
         try:
             counts = coord.run(con, continuation=study.continuation, along=study.along)
         finally:

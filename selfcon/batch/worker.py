@@ -212,9 +212,21 @@ def synthetic_result(deck_text, *, iterations=3, converged=True, phi0=0.0):
                   summary={"electron_sheet_density_cm2": 1e11, "hole_sheet_density_cm2": 0.0})
 
 
+def _first_time(marker) -> bool:
+    """True the first time a stand-in job asks with this marker file (it creates it)."""
+    try:
+        fd = os.open(marker, os.O_WRONLY | os.O_CREAT | os.O_EXCL, 0o644)
+    except FileExistsError:
+        return False
+    os.close(fd)
+    return True
+
+
 def sleepy_job(deck_text, initial=None):
     """Stand-in: behaviour from words in the deck title (``sleep=0.2``, ``raise=MSG``, ``die``: the
-    worker process kills itself with SIGKILL); returns an outcome like :func:`run_job`'s.
+    worker process kills itself with SIGKILL; ``stop``: it stops itself with SIGSTOP;
+    ``stop-once=FILE``: the same the first time only, FILE marking that it happened); returns
+    an outcome like :func:`run_job`'s.
 
     Not converged when ``[solver] max_iterations`` is below the 3 "iterations" it
     takes (1 with a warm start); the potential carries the first layer thickness.
@@ -226,6 +238,8 @@ def sleepy_job(deck_text, initial=None):
     time.sleep(float(words.get("sleep", 0.0) or 0.0))
     if "die" in words:
         os.kill(os.getpid(), signal.SIGKILL)
+    if "stop" in words or ("stop-once" in words and _first_time(words["stop-once"])):
+        os.kill(os.getpid(), signal.SIGSTOP)          # a stopped worker: only a time limit frees its job
     if "raise" in words:
         return {"ok": False, "error": f"RuntimeError: {words['raise']}", "seconds": time.perf_counter() - t0,
                 "pid": os.getpid()}
