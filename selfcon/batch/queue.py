@@ -50,7 +50,8 @@ CREATE TABLE IF NOT EXISTS jobs (
     warm_start   INTEGER NOT NULL DEFAULT 0,
     prev_status  TEXT,
     summary      TEXT,
-    result_sha256 TEXT
+    result_sha256 TEXT,
+    start        TEXT
 );
 CREATE INDEX IF NOT EXISTS jobs_status ON jobs(status, study_index);
 """
@@ -94,7 +95,7 @@ def connect(out_dir, *, readonly=False) -> sqlite3.Connection:
 
 #: columns added to the jobs table after its first version: (name, SQL type); a queue written
 #: before gets them on its next writable connection (older rows hold NULL)
-ADDED_COLUMNS = (("result_sha256", "TEXT"),)
+ADDED_COLUMNS = (("result_sha256", "TEXT"), ("start", "TEXT"))
 
 
 def _add_columns(con) -> None:
@@ -365,12 +366,13 @@ def finish_many(con, items):
     with transaction(con):
         con.executemany(
             "UPDATE jobs SET status = ?, finished_at = ?, seconds = ?, error = ?, message = ?, result_path = ?, "
-            "iterations = ?, converged = ?, summary = ?, warm_start = ?, result_sha256 = ? "
+            "iterations = ?, converged = ?, summary = ?, warm_start = ?, result_sha256 = ?, start = ? "
             "WHERE id = ? AND status = 'running'",
             [(it["status"], now, it.get("seconds"), it.get("error"), it.get("message"), it.get("result_path"),
               it.get("iterations"), None if it.get("converged") is None else int(bool(it["converged"])),
               json.dumps(it["summary"]) if it.get("summary") is not None else None,
-              int(bool(it.get("warm_start"))), it.get("result_sha256"), it["job_id"]) for it in items])
+              int(bool(it.get("warm_start"))), it.get("result_sha256"), it.get("start"), it["job_id"])
+             for it in items])
 
 
 def requeue_damaged(con, bad) -> None:

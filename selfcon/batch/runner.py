@@ -204,17 +204,19 @@ class Coordinator:
         first = self._potential(con, neighbour)
         if first is None:
             return None
+        from selfcon.batch.worker import Starts
         from selfcon.solver.loop import extrapolate_potential
-        value = None
-        points = [(first[0], first[1], None)]
+        starts = [("neighbour", first), ("cold", None)]
         if job_id is not None and self.along is not None:
             value, _ = self._along_value(con, job_id)
             v1, nn = self._along_value(con, neighbour)
             second = self._potential(con, nn) if nn is not None else None
             if second is not None and value is not None and v1 is not None:
                 v2, _ = self._along_value(con, nn)
-                points = [(first[0], first[1], v1), (second[0], second[1], v2)]
-        return extrapolate_potential(points, value)
+                guess = extrapolate_potential([(first[0], first[1], v1), (second[0], second[1], v2)], value)
+                starts.insert(0, ("extrapolated", guess))
+        # the job falls back from one start to the next until one converges (worker.run_job)
+        return Starts(starts)
 
     def _varied(self, con, job_id):
         row = con.execute("SELECT varied FROM jobs WHERE id = ?", (job_id,)).fetchone()
@@ -325,7 +327,9 @@ class Coordinator:
             status = "done" if payload["converged"] else "not_converged"
             items.append(dict(job_id=job_id, status=status, seconds=payload.get("seconds"),
                               message=payload.get("message"), result_path=rel, iterations=payload["iterations"],
-                              converged=payload["converged"], summary=payload.get("summary"), warm_start=warm,
+                              converged=payload["converged"], summary=payload.get("summary"),
+                              warm_start=warm and payload.get("start", "neighbour") != "cold",
+                              start=payload.get("start") or ("neighbour" if warm else "cold"),
                               result_sha256=payload.get("sha256")))
             secs = payload.get("seconds")
             tail = f" {secs:.2f} s" if secs is not None else ""
@@ -566,12 +570,12 @@ def _fmt_varied(text):
 
 #: the queue columns a table is made of (never the deck text: the table of 1e5 jobs stays fast)
 TABLE_SOURCE = ("id", "varied", "summary", "status", "attempts", "converged", "iterations", "seconds",
-                "warm_start", "result_path", "error", "message")
+                "warm_start", "start", "result_path", "error", "message")
 
 
 def table_columns(con):
     return ["job"] + q.get_meta(con, "paths", []) + ["status", "attempts", "converged", "iterations"] + \
-        [c[0] for c in SUMMARY_COLUMNS] + ["seconds", "warm_start", "result", "message"]
+        [c[0] for c in SUMMARY_COLUMNS] + ["seconds", "warm_start", "start", "result", "message"]
 
 
 def table_rows(con):
@@ -588,7 +592,8 @@ def table_rows(con):
                    iterations=r["iterations"])
         for name, _, _ in SUMMARY_COLUMNS:
             row[name] = summ.get(name, float("nan"))
-        row.update(seconds=r["seconds"], warm_start=bool(r["warm_start"]), result=r["result_path"] or "",
+        row.update(seconds=r["seconds"], warm_start=bool(r["warm_start"]), start=r["start"] or "",
+                   result=r["result_path"] or "",
                    message=(r["error"] or r["message"] or "").splitlines()[0] if (r["error"] or r["message"]) else "")
         out.append(row)
     return out
@@ -661,7 +666,7 @@ def _write_table_h5(con, tmp, cols, rows):
                 g.var(c, np.array([-1 if v is None else v for v in vals], dtype=np.int64))
             elif c in ("converged", "warm_start"):
                 g.var(c, np.array([-1 if v is None else int(v) for v in vals], dtype=np.int8))
-            elif c in ("status", "result", "message"):
+            elif c in ("status", "start", "result", "message"):
                 g.var(c, np.array(["" if v is None else str(v) for v in vals], dtype=object))
             else:
                 g.var(c, np.array([math.nan if v is None else v for v in vals], dtype=float))

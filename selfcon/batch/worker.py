@@ -93,20 +93,57 @@ def _error_text(exc):
     return f"{type(exc).__name__}: {exc}\n" + "".join(tb[-6:])
 
 
+class Starts(tuple):
+    """The starting potentials of one continuation job, tried in order until one converges:
+    ``(label, initial)`` pairs, ``initial`` a (z_nm, phi_V) pair or None (the classical start).
+
+    The coordinator sends ``Starts((("extrapolated", ...), ("neighbour", ...), ("cold", None)))``:
+    the secant extrapolation through two neighbours, the nearest neighbour's own potential,
+    then a cold start, so that a poor extrapolation never fails a job a plainer start solves."""
+
+
+def starts_of(initial) -> list:
+    """``initial`` as a list of ``(label, initial)``: a :class:`Starts` as it is, a potential as
+    the neighbour's, None as the cold start."""
+    if isinstance(initial, Starts):
+        return list(initial)
+    return [("neighbour" if initial is not None else "cold", initial)]
+
+
 def run_job(deck_text, initial=None):
-    """Solve one deck (TOML text); see the module docstring for the outcome."""
+    """Solve one deck (TOML text); see the module docstring for the outcome.
+
+    ``initial`` may be a :class:`Starts`: each start is tried until one converges (an
+    exception of the solve counts as not converged); the outcome's ``start`` names the one
+    whose result is kept (the last one tried when none converged) and its ``message`` the
+    starts that failed before."""
     t0 = time.perf_counter()
     try:
         from selfcon.input.deck import load_deck
         from selfcon.api import solve
+        from selfcon.errors import SelfconInputError
         deck = load_deck(deck_text)
-        if initial is not None:
-            result = solve(deck, initial_potential=initial)
-        else:
-            result = solve(deck)
+        failed, result, error = [], None, None
+        for label, guess in starts_of(initial):
+            try:
+                result = solve(deck, initial_potential=guess) if guess is not None else solve(deck)
+            except SelfconInputError:
+                raise                                   # bad input fails from any start
+            except Exception as exc:                    # noqa: BLE001 - the next start may do
+                error, result = exc, None
+                failed.append(f"{label} start: {type(exc).__name__}: {exc}")
+                continue
+            if result.converged:
+                break
+            failed.append(f"{label} start: {result.message}")
+        if result is None:
+            raise error
         # the HDF5 file image is built here, in parallel; the coordinator only writes the bytes.
-        # "seconds" is the job's own work: the solve and building its result file.
+        # "seconds" is the job's own work: the solves and building its result file.
         out = pack(result)
+        out["start"] = label
+        if failed and result.converged:
+            out["message"] = f"{out['message']} (from the {label} start; before: {'; '.join(failed)})"
         out["seconds"] = time.perf_counter() - t0
         return out
     except Exception as exc:  # the job failed; the worker lives on
@@ -233,6 +270,8 @@ def sleepy_job(deck_text, initial=None):
     """
     import tomllib
     t0 = time.perf_counter()
+    if isinstance(initial, Starts):
+        initial = initial[0][1]
     data = tomllib.loads(deck_text)
     words = dict(w.partition("=")[::2] for w in str(data.get("title", "")).split())
     time.sleep(float(words.get("sleep", 0.0) or 0.0))

@@ -30,7 +30,7 @@ from selfcon.errors import StudyError
 from selfcon.output.numbers import fmt, quantity_of
 
 #: table columns that are bookkeeping, not figures
-BOOKKEEPING = ("job", "status", "attempts", "converged", "iterations", "seconds", "warm_start", "result",
+BOOKKEEPING = ("job", "status", "attempts", "converged", "iterations", "seconds", "warm_start", "start", "result",
                "message", "residual_V")
 #: /summary attributes of result files that are bookkeeping, not design figures
 SUMMARY_SKIP = ("converged", "iterations", "residual_V", "nodes", "wall_time_s", "gauss_residual")

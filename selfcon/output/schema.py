@@ -585,6 +585,9 @@ for _name, _units, _long, _desc in TABLE_SUMMARY:
 _t("table/seconds", "s", "worker time", "time in the worker: the solve and building its result file",
    dims=("job",))
 _t("table/warm_start", "1", "warm start", "1 if started from a neighbour's potential", dims=("job",))
+_t("table/start", "", "start", "the start the result came from: extrapolated (secant through two neighbours), "
+   "neighbour (the nearest one's potential) or cold; a continuation job falls back in that order "
+   "until one converges", dims=("job",))
 _t("table/result", "", "result file", "result file, relative to the folder", dims=("job",))
 _t("table/message", "", "message", "solver message or error text (first line)", dims=("job",))
 
