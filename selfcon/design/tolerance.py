@@ -335,11 +335,12 @@ def summarize_study(folder: str | os.PathLike, *, quantities: Iterable[str] | No
 
 def _trusted(folder: Path, done: list[int], files: list[str], skipped: dict) -> list[int]:
     """The done jobs whose result file is there and matches its checksum; the others are counted
-    in ``skipped`` by reason (the statistics of the rest stay over one set of jobs)."""
+    in ``skipped`` by reason (the statistics of the rest stay over one set of jobs).  A row that
+    names no result file (a table made by hand) has only its table figures, kept as they are."""
     from selfcon.output.result import verify_result_file
     kept = []
     for i in done:
-        state = verify_result_file(folder / files[i]) if files[i] else "not recorded"
+        state = verify_result_file(folder / files[i]) if files[i] else "ok"
         if state in ("ok", "unchecked"):
             kept.append(i)
         else:
