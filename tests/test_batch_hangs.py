@@ -153,6 +153,9 @@ def test_killed_scheduler_ends_the_run_with_exit_4(tmp_path):
     assert batch.returncode == 4, stderr                      # environment failure (README.md, "Command line")
     lines = [ln for ln in stderr.splitlines() if ln.startswith("selfcon: error:")]
     assert len(lines) == 1 and "lost the Dask scheduler at" in lines[0] and "Traceback" not in stderr
+    # Dask's own complaints come as one formatted line each ("dask error: ..."), never raw
+    assert "distributed.client - ERROR" not in stderr, stderr
+    assert not [ln for ln in stderr.splitlines() if ln[:1].isspace()]       # no traceback lines
     states = [r[1] for r in rows(out)]
     assert "running" not in states and states.count("done") >= 1
     assert all(a <= 1 for _, s, a, _ in rows(out) if s == "queued")     # lost jobs are not charged

@@ -627,12 +627,21 @@ class DaskPool:
         return list(self.client.run(os.getpid).values())
 
     def _close(self):
-        for thing in (getattr(self, "client", None), self.cluster):
-            if thing is not None:
-                try:
-                    thing.close()
-                except Exception:
-                    pass
+        # a client whose scheduler is gone logs its failed reconnection as it closes: that loss
+        # is reported already (one line, exit 4), so Dask's own account of it is not repeated
+        quiet = logging.getLogger("distributed.client")
+        level = quiet.level
+        if getattr(self, "_silent_since", None) is not None:
+            quiet.setLevel(logging.CRITICAL)
+        try:
+            for thing in (getattr(self, "client", None), self.cluster):
+                if thing is not None:
+                    try:
+                        thing.close()
+                    except Exception:
+                        pass
+        finally:
+            quiet.setLevel(level)
 
     def shutdown(self, cancel=False):
         if cancel and self.tasks:

@@ -5,6 +5,9 @@ The batch code logs through the standard :mod:`logging` module, to the logger
 requeued; plus the run's start and end).  :func:`to_file` sends those lines, and
 Dask's own (the ``distributed`` logger), to a file, with timestamps, for as long as
 a run lasts; while it does, Dask's lines go to the file only, not to the terminal.
+Without a log file, :func:`dask_lines` turns Dask's warnings and errors into one line
+each (``dask error: ...``, no traceback) handed to the progress display, which prints
+them above its bar, never into it.
 """
 from __future__ import annotations
 
@@ -17,6 +20,70 @@ DATEFMT = "%Y-%m-%d %H:%M:%S"
 
 #: loggers whose lines go to the study log
 LOGGERS = ("selfcon", "distributed")
+
+
+class OneLine(logging.Handler):
+    """A record as one line ``dask LEVEL: message (Exception: text)``, without its traceback,
+    given to ``emit_line``."""
+
+    def __init__(self, emit_line, level=logging.WARNING):
+        super().__init__(level)
+        self.emit_line = emit_line
+
+    def emit(self, record):
+        try:
+            text = " ".join(record.getMessage().split())
+            exc = record.exc_info[1] if record.exc_info else None
+            if exc is not None:
+                reason = " ".join(str(exc).split()) or type(exc).__name__
+                text = f"{text} ({type(exc).__name__}: {reason})" if text else f"{type(exc).__name__}: {reason}"
+            self.emit_line(f"dask {record.levelname.lower()}: {text[:300]}")
+        except Exception:       # noqa: BLE001 - logging must never raise
+            self.handleError(record)
+
+
+@contextlib.contextmanager
+def dask_lines(emit_line, level=logging.WARNING):
+    """While the block runs, Dask's own lines (``distributed`` logger, ``level`` and above) go
+    to ``emit_line`` as one formatted line each, instead of Dask's handlers on stderr."""
+    lg = logging.getLogger("distributed")
+    saved = _quiet_children("distributed")
+    own = (list(lg.handlers), lg.propagate)
+    for h in own[0]:
+        lg.removeHandler(h)
+    lg.propagate = False
+    handler = OneLine(emit_line, level)
+    lg.addHandler(handler)
+    try:
+        yield handler
+    finally:
+        lg.removeHandler(handler)
+        for h in own[0]:
+            lg.addHandler(h)
+        lg.propagate = own[1]
+        _restore(saved)
+
+
+def _quiet_children(name):
+    """Dask configures handlers of their own on some child loggers (``distributed.client``,
+    ...), which print to stderr and do not propagate: take them away and let the lines
+    propagate to ``name``, where ours waits.  Returns what to restore."""
+    saved = []
+    for child, lg in list(logging.root.manager.loggerDict.items()):
+        if child.startswith(name + ".") and isinstance(lg, logging.Logger):
+            saved.append((lg, list(lg.handlers), lg.propagate))
+            for h in list(lg.handlers):
+                lg.removeHandler(h)
+            lg.propagate = True
+    return saved
+
+
+def _restore(saved):
+    for lg, handlers, propagate in saved:
+        for h in handlers:
+            if h not in lg.handlers:
+                lg.addHandler(h)
+        lg.propagate = propagate
 
 
 @contextlib.contextmanager
@@ -33,6 +100,7 @@ def to_file(path, level=logging.INFO):
     handler.setFormatter(logging.Formatter(FORMAT, DATEFMT))
     handler.setLevel(level)
     saved = []
+    children = _quiet_children("distributed")
     for name in LOGGERS:
         lg = logging.getLogger(name)
         saved.append((lg, lg.level, lg.propagate, list(lg.handlers)))
@@ -54,4 +122,5 @@ def to_file(path, level=logging.INFO):
                     lg.addHandler(h)
             lg.setLevel(lvl)
             lg.propagate = prop
+        _restore(children)
         handler.close()

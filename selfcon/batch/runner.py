@@ -13,6 +13,7 @@ twice (or SIGTERM): requeue the running jobs and stop now.  Exit code 130.
 from __future__ import annotations
 
 import collections
+import contextlib
 import concurrent.futures as cf
 import json
 import logging
@@ -79,6 +80,13 @@ class BatchProgress:
 
     def note(self, line):
         self.display.note(line)
+
+    def warn(self, line):
+        """A line that must be seen even with --quiet (above the bar, or on stderr)."""
+        if self.display.mode == "off":
+            print(line, file=sys.stderr)
+        else:
+            self.display.note(line)
 
     def stop(self):
         self.display.stop()
@@ -722,6 +730,7 @@ def run_study(study_file, *, workers=None, out=None, scheduler=None, scheduler_f
     try:
         with logs.to_file(log_file):
             return _run_locked(study, study_file, jobs, out_dir, workers=workers, retries=retries, quiet=quiet,
+                               dask_to_terminal=log_file is None,
                                job_timeout=job_timeout,
                                job_fn=job_fn, progress=progress, warm=warm, table_interval=table_interval,
                                options=options)
@@ -744,7 +753,7 @@ def _check_writable_folder(out_dir):
 
 
 def _run_locked(study, study_file, jobs, out_dir, *, workers, retries, quiet, job_fn, progress, warm,
-                table_interval, options, job_timeout=None):
+                table_interval, options, job_timeout=None, dask_to_terminal=False):
     con = q.connect(out_dir)
     try:
         q.set_meta(con, study_file=str(Path(study_file).resolve()), base_deck=str(study.deck_file),
@@ -768,8 +777,12 @@ def _run_locked(study, study_file, jobs, out_dir, *, workers, retries, quiet, jo
             log.warning(line)
         coord = Coordinator(out_dir, workers=workers, retries=retries, job_fn=job_fn, progress=prog, warm=warm,
                             table_interval=table_interval, executor_options=options, job_timeout=job_timeout)
+        # without a log file, Dask's own lines reach the terminal as one line each, above the bar
+        dask = (logs.dask_lines(getattr(prog, "warn", prog.note)) if dask_to_terminal and options
+                else contextlib.nullcontext())
         try:
-            counts = coord.run(con, continuation=study.continuation, along=study.along)
+            with dask:
+                counts = coord.run(con, continuation=study.continuation, along=study.along)
         finally:
             try:
                 final_tables(con, out_dir)
