@@ -64,6 +64,15 @@ def dask_lines(emit_line, level=logging.WARNING):
         _restore(saved)
 
 
+def load_dask() -> None:
+    """Import Dask distributed now, if installed: importing it configures its loggers' handlers,
+    which :func:`to_file` and :func:`dask_lines` must find in place to take them away."""
+    try:
+        import distributed  # noqa: F401
+    except ImportError:          # the Dask path then says what to install (exit 2)
+        pass
+
+
 def _quiet_children(name):
     """Dask configures handlers of their own on some child loggers (``distributed.client``,
     ...), which print to stderr and do not propagate: take them away and let the lines

@@ -726,11 +726,14 @@ def run_study(study_file, *, workers=None, out=None, scheduler=None, scheduler_f
         raise SelfconEnvironmentError.from_os_error(exc, "cannot create the study folder", out_dir) from None
     if threads is not None:
         options["threads"] = int(threads)                 # handed to every worker (executors)
+    on_dask = bool(scheduler or scheduler_file or cluster)
+    if on_dask:
+        logs.load_dask()          # its loggers exist before they are redirected (batch/logs.py)
     lock = q.CoordinatorLock(out_dir).acquire()
     try:
         with logs.to_file(log_file):
             return _run_locked(study, study_file, jobs, out_dir, workers=workers, retries=retries, quiet=quiet,
-                               dask_to_terminal=log_file is None,
+                               dask_to_terminal=on_dask and log_file is None,
                                job_timeout=job_timeout,
                                job_fn=job_fn, progress=progress, warm=warm, table_interval=table_interval,
                                options=options)
@@ -778,8 +781,7 @@ def _run_locked(study, study_file, jobs, out_dir, *, workers, retries, quiet, jo
         coord = Coordinator(out_dir, workers=workers, retries=retries, job_fn=job_fn, progress=prog, warm=warm,
                             table_interval=table_interval, executor_options=options, job_timeout=job_timeout)
         # without a log file, Dask's own lines reach the terminal as one line each, above the bar
-        dask = (logs.dask_lines(getattr(prog, "warn", prog.note)) if dask_to_terminal and options
-                else contextlib.nullcontext())
+        dask = logs.dask_lines(getattr(prog, "warn", prog.note)) if dask_to_terminal else contextlib.nullcontext()
         try:
             with dask:
                 counts = coord.run(con, continuation=study.continuation, along=study.along)
