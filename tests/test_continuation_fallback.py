@@ -63,6 +63,14 @@ def test_no_start_converges_keeps_the_last_result(hemt):
     assert not only["ok"] and "RuntimeError" in only["error"]          # nothing else to try: failed
 
 
+def test_nan_potential_fails_fast_instead_of_hanging(hemt):
+    # the bisection eigensolver never narrows an interval around NaN: the solve must raise at
+    # once (as LAPACK's dstebz does), so a broken start falls back instead of hanging a worker
+    deck, _, _, _, broken = hemt
+    with pytest.raises(RuntimeError, match="non-finite entries"):
+        selfcon.solve(deck, initial_potential=broken)
+
+
 def test_plain_initial_potential_is_one_start(hemt):
     deck, _, exact, _, _ = hemt
     out = run_job(deck.to_toml(), exact)

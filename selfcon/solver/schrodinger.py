@@ -77,6 +77,11 @@ class EigenWorkspace:
         clustered solver takes the lowest k; a window above them (one state of the
         non-parabolic iteration, selfcon/solver/nonparabolic.py) is LAPACK's."""
         m = self.d.size
+        if not (np.isfinite(self.d).all() and np.isfinite(self.e).all()):
+            # a NaN or infinite potential (a diverged step, a broken starting potential): the
+            # bisection would never narrow its intervals, so stop here, as LAPACK's dstebz does
+            raise RuntimeError("the Hamiltonian has non-finite entries (the potential holds NaN or "
+                               "inf): no eigenstates")
         if m == 1:
             return self.d.copy(), np.ones((1, 1))
         if self.method == "clustered" and first == 1:
