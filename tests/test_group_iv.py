@@ -421,18 +421,16 @@ def test_ge_2dhg_holes_fill_heavy_hole_subbands():
 
 def fermi_mass(deck):
     """The in-plane mass (m0) at E_F of the ground hole subband of the multiband (4x4) model,
-    and the hole sheet (cm^-2) of the solve: m = hbar^2 k_F / (dE/dk) at k_F = sqrt(4 pi s),
-    s the sheet of one spin branch (a non-degenerate 2D band holds k_F^2 / 4 pi), dE/dk by
-    central differences of the axial dispersion of the converged potential's states."""
+    the result, and the holes the multiband states hold (cm^-2): m = hbar^2 k_F / (dE/dk) at
+    k_F = sqrt(4 pi s), s the sheet of that one spin branch (a non-degenerate 2D band holds
+    k_F^2 / 4 pi), dE/dk by central differences of the result's axial dispersion."""
     r = selfcon.solve(deck)
-    st = selfcon.build_structure(deck)
-    ws = steps.Workspace(st, steps.boundary_conditions(st))
-    ks = steps.solve_states(ws, np.asarray(r.profile["potential"]))["hole_kp"]
-    k = np.asarray(ks.k_parallel, dtype=float).reshape(-1)
-    e = -np.asarray(ks.dispersion, dtype=float)[0]          # hole kinetic energy, eV
-    kf = math.sqrt(4 * math.pi * float(ks.sheet[0]))
+    kp = r.hole_kp
+    k = np.asarray(kp["k_parallel"], dtype=float).reshape(-1)          # nm^-1
+    e = -np.asarray(kp["dispersion"], dtype=float)[0]                   # hole kinetic energy, eV
+    kf = math.sqrt(4 * math.pi * float(kp["occupation"][0]) * 1e-14)   # cm^-2 -> nm^-2
     slope = np.interp(kf, k[1:-1], (e[2:] - e[:-2]) / (k[2:] - k[:-2]))
-    return 2 * H2M * kf / slope, r, float(np.sum(ks.sheet)) * 1e14
+    return 2 * H2M * kf / slope, r, float(np.sum(kp["occupation"]))
 
 
 def test_ge_2dhg_kp_mass_rises_with_density():
