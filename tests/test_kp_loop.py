@@ -193,3 +193,20 @@ def test_headings_name_the_hole_model(kp_solves):
     from selfcon.output.heading import conditions
     assert "4x4 Luttinger-Kohn holes" in conditions(kp_solves["kp4"])
     assert "Luttinger" not in conditions(kp_solves["parabolic"])
+
+
+def test_summaries_list_the_multiband_hole_states(kp_solves):
+    import io
+    from rich.console import Console
+    from selfcon.output.report import plain_summary, print_summary, summary_figures, to_json
+    fig = summary_figures(kp_solves["kp4"])
+    rows = fig["hole_kp"]
+    h = kp_solves["kp4"].hole_kp
+    assert [r["index"] for r in rows][:2] == [0, 1]
+    assert rows[0]["occupation_cm2"] == pytest.approx(float(h["occupation"][0]))
+    assert any(line.startswith("multiband holes: 2 occupied states") for line in plain_summary(fig))
+    out = io.StringIO()
+    print_summary(fig, Console(file=out, width=160))
+    assert "Multiband hole states" in out.getvalue()
+    to_json(fig)                                                   # JSON-ready
+    assert summary_figures(kp_solves["parabolic"])["hole_kp"] == []

@@ -187,6 +187,35 @@ def transition_rows(result) -> list[dict]:
     return out[:SUMMARY_TRANSITIONS]
 
 
+#: the single-band hole rows a multiband result leaves out of the subband table
+HOLE_ROWS = ("heavy_hole", "light_hole")
+#: multiband hole states listed in summaries: the occupied ones (>= this, cm^-2) and at least
+#: the lowest pair
+KP_LISTED_CM2 = 1e8
+
+
+def hole_kp_rows(result) -> list[dict]:
+    """The multiband hole states of a result (/subbands/hole_kp) a summary lists: every state
+    holding at least KP_LISTED_CM2, and at least the lowest pair; [] for parabolic holes."""
+    h = getattr(result, "hole_kp", None) or {}
+    if not h:
+        return []
+    occ = np.asarray(h["occupation"], dtype=float)
+    keep = np.flatnonzero(occ >= KP_LISTED_CM2)
+    if keep.size < 2:
+        keep = np.arange(min(2, occ.size))
+    rows = []
+    for i in keep:
+        i = int(i)
+        rows.append({"index": i, "energy_meV": 1e3 * float(h["energy"][i]),
+                     "occupation_cm2": float(occ[i]),
+                     "mass_band_edge_m0": float(h["mass_band_edge"][i]),
+                     "mass_fermi_m0": float(h["mass_fermi"][i]),
+                     "k_fermi_nm": float(h["k_fermi"][i]),
+                     "spin_splitting_meV": 1e3 * float(h["spin_splitting"][i])})
+    return rows
+
+
 def summary_figures(result, output: str | None = None) -> dict[str, Any]:
     """The headline figures of a result as one plain dict (JSON-ready)."""
     layers = [{"index": i, "name": str(row.get("name", i)), "material": str(row.get("material", "")),
@@ -217,6 +246,7 @@ def summary_figures(result, output: str | None = None) -> dict[str, Any]:
         "channel": channel_figures(result),
         "channels": channel_rows(result),
         "transitions": transition_rows(result),
+        "hole_kp": hole_kp_rows(result),
         "warnings": list(result.warnings),
         "summary": summary,
     }
@@ -283,10 +313,26 @@ def plain_summary(fig) -> list[str]:
     ch = _channel_line(fig)
     if ch:
         lines.append(ch)
+    kp_line = _hole_kp_line(fig)
+    if kp_line:
+        lines.append(kp_line)
     if fig.get("output"):
         lines.append(f"result written to {fig['output']}")
     lines.extend(f"warning: {w}" for w in fig["warnings"])
     return lines
+
+
+def _hole_kp_line(fig) -> str | None:
+    """``multiband holes: 2 occupied states, the first at E - E_F = +2.8 meV with m(E_F) = 0.67
+    m0``, or None for parabolic holes."""
+    rows = fig.get("hole_kp") or []
+    if not rows:
+        return None
+    n = sum(1 for r in rows if r["occupation_cm2"] >= KP_LISTED_CM2)
+    r = rows[0]
+    return (f"multiband holes: {n} occupied state{'' if n == 1 else 's'} (one spin branch each), "
+            f"the first at E - E_F = {fmt(r['energy_meV'], 'meV', sign=True)} meV with in-plane mass "
+            f"{fmt(r['mass_fermi_m0'], 'mass')} m0 at E_F")
 
 
 def print_summary(fig, console) -> None:
@@ -345,8 +391,8 @@ def print_summary(fig, console) -> None:
     listed = listed_states(fig["subbands"])
     for band in BAND_LABELS:
         rows = [r for r in listed if r["band"] == band]
-        if not rows and band in OPTIONAL_BANDS:
-            continue
+        if not rows and (band in OPTIONAL_BANDS or (fig.get("hole_kp") and band in HOLE_ROWS)):
+            continue           # multiband holes: listed in their own table below
         if not rows:
             s.add_row("–", BAND_LABELS[band], "none bound", "", "", "")
         for r in rows:
@@ -356,6 +402,18 @@ def print_summary(fig, console) -> None:
     console.print(s)
     console.print(f"{occupied_text(fig)}; occupied: at least {OCCUPIED_FRACTION:.0%} of its channel's "
                   f"carriers and at least {OCCUPIED_CM2:.0e} cm-2".replace("e+0", "e"))
+
+    if fig.get("hole_kp"):
+        k = Table(title="Multiband hole states (/subbands/hole_kp; one spin branch each)",
+                  title_justify="left")
+        for col in ("state", "E - E_F (meV)", "population (cm⁻²)", "m∥ at k=0 (m0)",
+                    "m∥ at E_F (m0)", "k_F (nm⁻¹)", "spin splitting (meV)"):
+            k.add_column(col, justify="left" if col == "state" else "right")
+        for r in fig["hole_kp"]:
+            k.add_row(f"H{r['index']}", fmt(r["energy_meV"], "meV", sign=True), sci(r["occupation_cm2"]),
+                      fmt(r["mass_band_edge_m0"], "mass"), fmt(r["mass_fermi_m0"], "mass"),
+                      fmt(r["k_fermi_nm"], "plain"), fmt(r["spin_splitting_meV"], "plain"))
+        console.print(k)
 
     if fig.get("transitions"):
         t = Table(title="Interband transitions (overlap ≥ 0.001; all pairs in /transitions)",
