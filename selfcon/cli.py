@@ -274,9 +274,12 @@ def cmd_check(args) -> int:
         return EXIT_OK
     from rich.table import Table
     console = _console()
-    console.print(f"[bold]{fig['title']}[/bold]  T = {fig['temperature_K']:g} K  ({deck_path}: valid)")
-    if fig["overrides"]:
-        console.print("overrides: " + ", ".join(fig["overrides"]))
+    from selfcon.output.heading import override_notes
+    notes = override_notes(deck)
+    title = f"deck title: {fig['title']}" if notes else fig["title"]
+    console.print(f"[bold]{title}[/bold]  T = {fmt(fig['temperature_K'], 'K')} K  ({deck_path}: valid)")
+    if notes:
+        console.print("set: " + "; ".join(notes))
     strained = fig["strain"]["mode"] != "unstrained"
     has_y = any("y_top" in L for L in fig["layers"])
     t = Table(title="Stack (top to bottom)", title_justify="left")

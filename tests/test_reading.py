@@ -223,3 +223,10 @@ def test_batch_json(tmp_path, run_cli, inputs_dir):
     d = json.loads(out)                                  # one JSON object and nothing else on stdout
     assert d["exit_code"] == 0 and d["counts"]["done"] == 2
     assert d["folder"] == str(tmp_path / "o") and str(tmp_path / "o" / "table.csv") in d["tables"]
+
+
+def test_check_heading_names_overrides(run_cli, inputs_dir):
+    code, out, _ = run_cli("check", inputs_dir / "hemt_4K.toml", "--set", "layer.spacer.thickness=15")
+    assert code == 0
+    assert out.startswith("deck title: ")                         # the deck's title may no longer be true
+    assert "set: spacer.thickness = 15 nm (deck: 20)" in out     # the deck file says 20 nm
