@@ -2,7 +2,7 @@
 
     python tools/bench.py [NAMES...] [--json PATH] [--strict] [--cpu] [--markdown PATH]
 
-``python tools/bench.py --markdown tools/bench-last.txt`` (all default benchmarks) writes the
+``python tools/bench.py --cpu --markdown tools/bench-last.txt`` (all default benchmarks) writes the
 table README.md's "Performance" section quotes; tests/test_readme_outputs.py checks that the
 README holds exactly that file, so the table is always the last full run's output.
 
@@ -943,20 +943,17 @@ def print_table(rows):
     Console(width=160).print(tab)
 
 
-def markdown_table(rows, info, total) -> str:
-    """The rows as the markdown table README.md quotes (tools/bench-last.txt), with the
-    machine, the date and the load it ran under."""
-    import datetime
-    try:
-        load = ", ".join(f"{v:.1f}" for v in os.getloadavg())
-    except OSError:
-        load = "unknown"
-    head = (f"Measured by `python tools/bench.py --markdown tools/bench-last.txt` on "
-            f"{datetime.date.today().isoformat()}: {info.get('nproc')} cores, {info.get('cpu', 'unknown CPU')}, "
-            f"{info.get('ram_GiB', '?')} GiB RAM, Python {info.get('python')}; load average at the end "
-            f"{load}; {total:.0f} s in all.")
+def markdown_table(out: dict) -> str:
+    """The rows of a run (the dict written as JSON) as the markdown table README.md quotes
+    (tools/bench-last.txt), headed by the machine, the clock, the date and the load."""
+    info = out.get("machine", {})
+    load = ", ".join(f"{v:.1f}" for v in info.get("load_average_at_end", [])) or "unknown"
+    head = (f"{out.get('date', 'undated')}: {info.get('nproc')} cores, {info.get('cpu', 'unknown CPU')}, "
+            f"{info.get('ram_GiB', '?')} GiB RAM, Python {info.get('python')}; times by the "
+            f"{out.get('clock', 'wall')} clock; load average at the end {load}; "
+            f"{out.get('total_seconds', 0.0):.0f} s in all.")
     lines = [head, "", "| bench | case | metric | measured | target | met | note |", "|---|---|---|---|---|---|---|"]
-    for r in rows:
+    for r in out["rows"]:
         v = r["value"]
         vs = f"{v:.4g} {r['unit']}".strip() if isinstance(v, float) else f"{v} {r['unit']}".strip()
         met = "" if r["met"] is None else ("yes" if r["met"] else "NO")
@@ -1025,14 +1022,16 @@ def main(argv=None):
     total = time.perf_counter() - t0
     print_table(ROWS)
     missed = [r for r in ROWS if r["met"] is False]
-    out = {"machine": machine(), "clock": CLOCK["name"], "total_seconds": total, "rows": ROWS, "check_failures": FAILURES,
+    import datetime
+    out = {"machine": machine(), "date": datetime.date.today().isoformat(), "clock": CLOCK["name"],
+           "total_seconds": total, "rows": ROWS, "check_failures": FAILURES,
            "targets_missed": [f"{r['bench']}/{r['case']}/{r['metric']}" for r in missed]}
     path = Path(a.json)
     path.parent.mkdir(parents=True, exist_ok=True)
     path.write_text(json.dumps(out, indent=1, default=float))
     print(f"total {total:.1f} s; JSON -> {path}")
     if a.markdown:
-        Path(a.markdown).write_text(markdown_table(ROWS, out["machine"], total), encoding="utf-8")
+        Path(a.markdown).write_text(markdown_table(out), encoding="utf-8")
         print(f"markdown table -> {a.markdown}")
     if FAILURES:
         print(f"{len(FAILURES)} physics check(s) failed:\n  " + "\n  ".join(FAILURES), file=sys.stderr)
