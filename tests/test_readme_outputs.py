@@ -43,3 +43,15 @@ def test_masks_only_times_dates_and_versions():
     # and what may not: any number of the physics
     assert mask("n_s = 3.15e12 cm-2") != mask("n_s = 3.16e12 cm-2")
     assert mask("after 7 solves") != mask("after 8 solves")
+
+
+def test_performance_table_is_the_last_benchmark_output():
+    """README.md's Performance table is tools/bench-last.txt verbatim: the file
+    `python tools/bench.py --cpu --markdown tools/bench-last.txt` wrote (no benchmark runs here)."""
+    import re
+    readme = (ROOT / "README.md").read_text(encoding="utf-8")
+    m = re.search(r"<!-- bench-last -->\n(.*?)<!-- /bench-last -->", readme, re.S)
+    assert m, "README.md's Performance section has no <!-- bench-last --> quote"
+    last = (ROOT / "tools" / "bench-last.txt").read_text(encoding="utf-8")
+    assert m.group(1) == last
+    assert "python tools/bench.py --cpu --markdown tools/bench-last.txt" in readme
