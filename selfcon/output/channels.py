@@ -347,20 +347,20 @@ def merge_coupled(runs, w, density, levels) -> list[tuple[int, int]]:
     w = np.asarray(w, dtype=float)
     dens = np.asarray(density, dtype=float)
     runs = [list(r) for r in sorted(runs)]
+    # each band's w |psi|^2 once, not once per pair of runs (a 100-well stack has 100 runs)
+    bands = [(np.asarray(lv.psi, dtype=float) ** 2 * w[:, None], np.asarray(lv.occupation, dtype=float))
+             for lv in levels if np.asarray(lv.energy).size]
     merged = True
     while merged and len(runs) > 1:
         merged = False
         for j in range(len(runs) - 1):
             (a0, a1), (b0, b1) = runs[j], runs[j + 1]
             shared = 0.0
-            for lv in levels:
-                if np.asarray(lv.energy).size == 0:
-                    continue
-                p2 = np.asarray(lv.psi, dtype=float) ** 2 * w[:, None]
+            for p2, occ in bands:
                 sa = p2[a0:a1 + 1].sum(axis=0)
                 sb = p2[b0:b1 + 1].sum(axis=0)
                 both = (sa <= ATTRIBUTION_SHARE) & (sb <= ATTRIBUTION_SHARE) & (sa + sb > ATTRIBUTION_SHARE)
-                shared += float(np.sum(np.asarray(lv.occupation, dtype=float)[both]))
+                shared += float(np.sum(occ[both]))
             if shared > 0.5 * (_sheet(w, dens, a0, a1) + _sheet(w, dens, b0, b1)):
                 runs[j] = [a0, b1]
                 del runs[j + 1]

@@ -523,8 +523,11 @@ def solve_states(ws: Workspace, phi) -> dict:
         ws.n_states[band] = max([ws.n_states[band]] + [res[5] for res in mine])
         E = np.concatenate([res[0] for res in mine])
         order = np.argsort(sign * E, kind="stable")     # lowest kinetic energy first
-        psi = np.concatenate([res[1] for res in mine], axis=1)[:, order]
-        weight = np.concatenate([res[3] for res in mine], axis=1)[:, order]
+        if len(mine) == 1 and np.array_equal(order, np.arange(E.size)):
+            psi, weight = mine[0][1], mine[0][3]         # one region, already in order: no (N, k) copies
+        else:
+            psi = np.concatenate([res[1] for res in mine], axis=1)[:, order]
+            weight = np.concatenate([res[3] for res in mine], axis=1)[:, order]
         m_par = np.concatenate([res[2] for res in mine])[order]
         deg = state_degeneracy(st, band, psi)
         out[band] = BandStates(band=band, energy=E[order], psi=psi, m_par=m_par,
