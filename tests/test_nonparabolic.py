@@ -242,3 +242,24 @@ def test_degenerate_wells_keep_orthogonal_states():
     single = selfcon.build_structure(selfcon.load_deck(DOUBLE_WELL.format(gap=20.0, second="")))
     e1, _ = steps.region_eigenstates(single, np.zeros(single.n_nodes), "electron", 0, 2)
     np.testing.assert_allclose(e, np.repeat(e1, 2), atol=5e-7)
+
+
+def test_rayleigh_start_gives_the_bisection_state_or_refuses():
+    # the energy iteration starts each solve from the state's last wavefunction; the answer must
+    # be the state that bisection gives (scipy-independent reference: LAPACK dstebz/dstein via
+    # solve_region_state), and a start that settles on another state must be refused
+    from selfcon.solver import schrodinger
+    st, _ = well(0.1)
+    i0, i1 = st.regions[0]
+    part = st.mesh.part(i0, i1)
+    v = st.node_average(st.cell["ec_gamma"])[i0:i1 + 1]
+    inv_m = 1.0 / st.cell["m_e"][i0:i1]
+    for j in range(3):
+        _, start = schrodinger.solve_region_state(part.h, part.w, v, inv_m, j)
+        e_ref, psi_ref = schrodinger.solve_region_state(part.h, part.w, v, 0.97 * inv_m, j)
+        got = schrodinger.refine_region_state(part.h, part.w, v, 0.97 * inv_m, j, start)
+        assert got is not None
+        assert got[0] == pytest.approx(e_ref, abs=1e-12)
+        assert abs(np.dot(got[1] * part.w, psi_ref)) == pytest.approx(1.0, abs=1e-10)
+        # the same start asked for the next state: Rayleigh iteration stays on state j -> refused
+        assert schrodinger.refine_region_state(part.h, part.w, v, 0.97 * inv_m, j + 1, start) is None

@@ -91,27 +91,34 @@ def energy_slope(h_cell, psi, energy, m_edge_cell, edge_cell, eg_eff_cell) -> fl
 
 
 def refine_states(h_cell, w, v_node, m_edge_cell, edge_cell, eg_eff_cell, energies, workspace=None,
-                  tol: float = ENERGY_TOL):
+                  tol: float = ENERGY_TOL, psi=None):
     """The nonparabolic states of one region from the parabolic energies ``energies`` (k,):
     (energies (k,) eV, psi (n, k), d lambda/dE (k,)).  Arrays as for
     selfcon.solver.schrodinger.solve_region; ``edge_cell`` the cells' band edge (eV) the
-    electron sees, ``m_edge_cell`` its band-edge mass (m0), ``eg_eff_cell`` E_g,eff (eV)."""
-    from selfcon.solver.schrodinger import solve_region_state
+    electron sees, ``m_edge_cell`` its band-edge mass (m0), ``eg_eff_cell`` E_g,eff (eV);
+    ``psi`` (n, k) the parabolic states, the start of each state's first solve.  Each solve
+    after a state's first starts from that state's last wavefunction (Rayleigh-quotient
+    iteration, selfcon.solver.schrodinger.refine_region_state; bisection if it strays)."""
+    from selfcon.solver.schrodinger import refine_region_state, solve_region_state
     n = w.size
     k = len(energies)
     out_e = np.empty(k)
     out_psi = np.empty((n, k))
     out_slope = np.empty(k)
 
-    def lam(j, e):
+    def lam(j, e, guess=None):
         inv_m = 1.0 / (m_edge_cell * mass_factor(e, edge_cell, eg_eff_cell))
+        if guess is not None:        # the state at the last energy: a few O(n) steps from it
+            got = refine_region_state(h_cell, w, v_node, inv_m, j, guess, workspace)
+            if got is not None:
+                return got
         return solve_region_state(h_cell, w, v_node, inv_m, j, workspace)
 
     for j in range(k):
         e = float(energies[j])
-        lam_e, psi = lam(j, e)
+        lam_e, state = lam(j, e, None if psi is None else psi[:, j])
         g = lam_e - e
-        slope = energy_slope(h_cell, psi, lam_e, m_edge_cell, edge_cell, eg_eff_cell)
+        slope = energy_slope(h_cell, state, lam_e, m_edge_cell, edge_cell, eg_eff_cell)
         it = 0
         while abs(g) >= tol:
             it += 1
@@ -120,11 +127,11 @@ def refine_states(h_cell, w, v_node, m_edge_cell, edge_cell, eg_eff_cell, energi
                                    f"(|lambda(E) - E| = {abs(g):.2e} eV after {it - 1} steps)")
             # Newton on g(E) = lambda(E) - E with g' = d lambda/dE - 1 <= -1 (Hellmann-Feynman)
             e = e - g / (min(slope, 0.0) - 1.0)
-            lam_e, psi = lam(j, e)
+            lam_e, state = lam(j, e, state)
             g = lam_e - e
-            slope = energy_slope(h_cell, psi, lam_e, m_edge_cell, edge_cell, eg_eff_cell)
+            slope = energy_slope(h_cell, state, lam_e, m_edge_cell, edge_cell, eg_eff_cell)
         out_e[j] = lam_e
-        out_psi[:, j] = psi
+        out_psi[:, j] = state
         out_slope[j] = slope
     # states closer than CLUSTER_TOL (degenerate wells far apart, tunnel-split doublets): each
     # solved alone, inverse iteration may return the same vector twice; solve each cluster

@@ -24,7 +24,7 @@ import numpy as np
 from selfcon.constants import HBAR2_2M0  # noqa: F401  (documented unit of the operator)
 from selfcon.model.mesh import half_widths
 
-__all__ = ["EIGEN_METHODS", "EigenWorkspace", "solve_region", "solve_region_state", "solve_region_window", "count_below",
+__all__ = ["EIGEN_METHODS", "EigenWorkspace", "solve_region", "solve_region_state", "solve_region_window", "refine_region_state", "count_below",
            "bound_states", "bound_states_cells",
            "in_plane_mass", "in_plane_weights", "thermal_in_plane_energy"]
 
@@ -113,6 +113,34 @@ def solve_region_state(h_cell, w, v_node, inv_mass_cell, index: int, workspace=N
     (O(n); the energy iteration of selfcon.solver.nonparabolic calls it per state)."""
     e, psi = solve_region_window(h_cell, w, v_node, inv_mass_cell, index, 1, workspace)
     return float(e[0]), psi[:, 0]
+
+
+def refine_region_state(h_cell, w, v_node, inv_mass_cell, index: int, psi_guess, workspace=None):
+    """State number ``index`` of :func:`solve_region`'s problem by Rayleigh-quotient iteration
+    from a nearby wavefunction ``psi_guess`` (n,) (the same state at a slightly different
+    Hamiltonian): (energy eV, psi (n,)), or None when the iteration does not settle on that
+    state (a Sturm count checks the index); O(n), no bisection."""
+    n = w.size
+    if workspace is None:
+        workspace = EigenWorkspace(n)
+    else:
+        workspace.resize(n)
+    kern = _kernels()
+    kern.assemble_tridiagonal(np.ascontiguousarray(h_cell, dtype=float), w,
+                              np.ascontiguousarray(v_node, dtype=float),
+                              np.ascontiguousarray(inv_mass_cell, dtype=float),
+                              workspace.d, workspace.e)
+    u = np.asarray(psi_guess, dtype=float)[1:-1] * np.sqrt(w[1:-1])
+    norm = float(np.sqrt(np.dot(u, u)))
+    if not np.isfinite(norm) or norm == 0.0:
+        return None
+    u = np.ascontiguousarray(u / norm)
+    energy, ok = kern.refine_eigenpair(workspace.d, workspace.e, int(index), u)
+    if not ok:
+        return None
+    psi = np.empty((n, 1))
+    kern.vectors_to_wavefunctions(u[:, None].copy(), w, psi)
+    return float(energy), psi[:, 0]
 
 
 def solve_region_window(h_cell, w, v_node, inv_mass_cell, first: int, count: int, workspace=None):

@@ -699,7 +699,7 @@ def region_eigenstates(st: Structure, phi, band: str, r_idx: int, n_states: int,
         from selfcon.solver import nonparabolic
         e, p, _ = nonparabolic.refine_states(part.h, part.w, kinetic, st.cell[mass_key][i0:i1],
                                              cell_edge(st, band, phi, vxc)[i0:i1],
-                                             effective_gap(st)[i0:i1], e, workspace)
+                                             effective_gap(st)[i0:i1], e, workspace, psi=p)
     full = np.zeros((n, e.size))
     full[sl, :] = p
     return sign * e, full

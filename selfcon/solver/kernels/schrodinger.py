@@ -84,3 +84,122 @@ def dual_average(h, f_cell, out):
     out[n - 1] = f_cell[n - 2]
     for i in range(1, n - 1):
         out[i] = (h[i - 1] * f_cell[i - 1] + h[i] * f_cell[i]) / (h[i - 1] + h[i])
+
+
+@numba.njit(cache=True)
+def _sturm_count(d, e, x):
+    """Number of eigenvalues of the symmetric tridiagonal (d, e) below x (Sturm sequence)."""
+    count = 0
+    q = 1.0
+    for i in range(d.shape[0]):
+        if i == 0:
+            q = d[0] - x
+        else:
+            q = d[i] - x - e[i - 1] * e[i - 1] / q
+        if q == 0.0:
+            q = -1e-300
+        if q < 0.0:
+            count += 1
+    return count
+
+
+@numba.njit(cache=True)
+def _shifted_solve(d, e, mu, b, x):
+    """x = (T - mu I)^-1 b for the symmetric tridiagonal T = (d, e), by Gaussian elimination
+    with partial pivoting (U has two superdiagonals); a zero pivot is replaced by a tiny one
+    (inverse iteration wants the near-singular solve)."""
+    m = d.shape[0]
+    a = np.empty(m)
+    up = np.empty(m)
+    up2 = np.zeros(m)
+    low = np.empty(m)
+    mult = np.empty(m)
+    swap = np.zeros(m, dtype=np.bool_)
+    scale = 0.0
+    for i in range(m):
+        a[i] = d[i] - mu
+        up[i] = e[i] if i < m - 1 else 0.0
+        low[i] = e[i] if i < m - 1 else 0.0
+        scale = max(scale, abs(d[i]) + (abs(e[i]) if i < m - 1 else 0.0))
+    tiny = 1e-16 * max(scale, 1e-300)
+    for i in range(m):
+        x[i] = b[i]
+    for i in range(m - 1):
+        if abs(a[i]) >= abs(low[i]):
+            if a[i] == 0.0:
+                a[i] = tiny
+            f = low[i] / a[i]
+            mult[i] = f
+            a[i + 1] -= f * up[i]
+            x[i + 1] -= f * x[i]
+        else:
+            swap[i] = True
+            f = a[i] / low[i]
+            mult[i] = f
+            a[i] = low[i]
+            t = up[i]
+            up[i] = a[i + 1]
+            a[i + 1] = t - f * a[i + 1]
+            if i < m - 2:
+                up2[i] = up[i + 1]
+                up[i + 1] = -f * up[i + 1]
+            t = x[i]
+            x[i] = x[i + 1]
+            x[i + 1] = t - f * x[i + 1]
+    if a[m - 1] == 0.0:
+        a[m - 1] = tiny
+    x[m - 1] /= a[m - 1]
+    if m > 1:
+        x[m - 2] = (x[m - 2] - up[m - 2] * x[m - 1]) / a[m - 2]
+    for i in range(m - 3, -1, -1):
+        x[i] = (x[i] - up[i] * x[i + 1] - up2[i] * x[i + 2]) / a[i]
+
+
+@numba.njit(cache=True)
+def refine_eigenpair(d, e, index, u):
+    """Rayleigh-quotient iteration on the symmetric tridiagonal (d, e) from the unit vector
+    ``u`` (overwritten with the eigenvector).  Returns (eigenvalue, ok): ok only when the
+    residual |T u - lambda u| fell below 1e-12 of the matrix scale and a Sturm count puts
+    exactly ``index`` eigenvalues below lambda - 10 r and ``index + 1`` below lambda + 10 r
+    (the state is the one asked for); otherwise the caller solves from scratch."""
+    m = d.shape[0]
+    scale = 0.0
+    for i in range(m):
+        scale = max(scale, abs(d[i]) + (abs(e[i]) if i < m - 1 else 0.0) +
+                    (abs(e[i - 1]) if i > 0 else 0.0))
+    y = np.empty(m)
+    tu = np.empty(m)
+    mu = 0.0
+    res = np.inf
+    for it in range(6):
+        # Rayleigh quotient and residual of u
+        mu = 0.0
+        for i in range(m):
+            s = d[i] * u[i]
+            if i > 0:
+                s += e[i - 1] * u[i - 1]
+            if i < m - 1:
+                s += e[i] * u[i + 1]
+            tu[i] = s
+            mu += u[i] * s
+        res = 0.0
+        for i in range(m):
+            r = tu[i] - mu * u[i]
+            res += r * r
+        res = np.sqrt(res)
+        if res <= 1e-12 * scale:
+            break
+        _shifted_solve(d, e, mu, u, y)
+        nrm = 0.0
+        for i in range(m):
+            nrm += y[i] * y[i]
+        nrm = np.sqrt(nrm)
+        if not np.isfinite(nrm) or nrm == 0.0:
+            return mu, False
+        for i in range(m):
+            u[i] = y[i] / nrm
+    if res > 1e-12 * scale:
+        return mu, False
+    margin = 10.0 * res + 1e-14 * scale
+    ok = (_sturm_count(d, e, mu - margin) == index and _sturm_count(d, e, mu + margin) == index + 1)
+    return mu, ok
