@@ -210,3 +210,48 @@ def test_summaries_list_the_multiband_hole_states(kp_solves):
     assert "Multiband hole states" in out.getvalue()
     to_json(fig)                                                   # JSON-ready
     assert summary_figures(kp_solves["parabolic"])["hole_kp"] == []
+
+
+def test_the_hole_channel_holds_the_multiband_states(kp_solves):
+    """With multiband holes the 2DHG's channel is a hole channel fed by the kp states: each state
+    goes to the channel holding most of its k_par = 0 density sum_j |psi_j|^2, so the channel
+    holds both spin branches of the ground pair, and its sheet density is their populations plus
+    the classical holes inside it, the states' tails outside its interval included (the
+    channel rule of selfcon/output/channels.py).  Checks: that sheet equals the integral of
+    the hole density over all depths to 1e-6 relative (the invariant sum of occupations =
+    integral of p dz, analytic; every hole of this deck sits in the one channel), and the
+    integral over the channel's interval plus the tails (1.2 % here, from the k_par = 0
+    shapes) to 1e-3 (the tails at k_par > 0 differ slightly); the main channel is the hole
+    channel and /summary carries its figures; E0 is the ground pair's energy, E1 - E0 the gap
+    to the next pair (both spin branches of a pair are one subband), the in-plane mass the
+    mean of the pair's masses at EF (/subbands/hole_kp/mass_fermi, the pair mass of
+    test_gaas_2dhg_mass_at_the_fermi_level)."""
+    r = kp_solves["kp4"]
+    h = r.hole_kp
+    rows = [c for c in r.channels if c["carrier"] == "hole"]
+    assert len(rows) == 1
+    ch = rows[0]
+    assert ch["main"] and r.summary["main_channel"] == ch["name"]
+    z = np.asarray(r.z)
+    w = Mesh.from_nodes(z).w
+    p = np.asarray(r.profile["hole_density"]) * 1e-7                # cm^-3 * cm/nm -> cm^-2 per nm
+    inside = (z >= ch["top_nm"] - 1e-9) & (z <= ch["bottom_nm"] + 1e-9)
+    # the states' tails outside the interval: their populations times the part of their k_par = 0
+    # density outside (the k_par = 0 shape stands for all k_par: a 1e-3-level correction)
+    dens = np.sum(np.asarray(h["wavefunction"]) ** 2, axis=2)        # (N, k)
+    dens = dens / (w @ dens)
+    tails = float(np.asarray(h["occupation"]) @ (w[~inside] @ dens[~inside]))
+    assert ch["sheet_density"] == pytest.approx(float(w[inside] @ p[inside]) + tails, rel=1e-3)
+    assert ch["sheet_density"] == pytest.approx(float(w @ p), rel=1e-6)
+    assert ch["sheet_density"] == pytest.approx(r.summary["hole_sheet_density_cm2"], rel=1e-6)
+    assert r.summary["channel_hole_sheet_density_cm2"] == pytest.approx(ch["sheet_density"], rel=1e-12)
+    # its subband figures come from the kp states (rows 0, 1 the ground pair, 2, 3 the next)
+    e = np.asarray(h["energy"])
+    assert ch["ground_energy"] == pytest.approx(-(e[0] - r.summary["hole_fermi_level_eV"]), abs=1e-12)
+    assert ch["spacing"] == pytest.approx(e[0] - e[2], abs=1e-12)
+    assert ch["spacing"] > 1e-3                                      # not the 0 of a Kramers pair
+    assert r.summary["E1_minus_E0_eV"] == ch["spacing"]
+    assert r.summary["E0_minus_EF_eV"] == ch["ground_energy"]
+    assert ch["occupied_subbands"] == 1                              # one pair holds the holes
+    assert ch["in_plane_mass"] == pytest.approx(0.5 * (h["mass_fermi"][0] + h["mass_fermi"][1]), rel=1e-12)
+    assert r.summary[f"channel.{ch['name']}.sheet_density_cm2"] == ch["sheet_density"]

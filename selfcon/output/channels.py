@@ -33,7 +33,9 @@ layers and replace the auto-detected channels of the same carrier they overlap.
 Attribution: every subband goes to the channel of its carrier (electron states to
 electron channels, heavy and light holes to hole channels) that holds the largest part
 of its |psi|^2, provided that part exceeds ``ATTRIBUTION_SHARE`` = 1/2; otherwise to no
-channel (index -1).
+channel (index -1).  The multiband hole states (physics.hole_model kp4 / kp6) are
+attributed the same way by their density at k_par = 0, the sum of |psi_j|^2 over the
+basis components (:func:`kp_levels`).
 
 A channel's sheet density is the population of its subbands, their tails outside the
 interval included, plus the classical carriers (the density not held by subbands:
@@ -66,18 +68,20 @@ from selfcon.constants import NM_PER_CM
 
 __all__ = ["CARRIERS", "BAND_CARRIER", "STATE_LABEL", "Levels", "CarrierProfile", "LayerSpan", "Request", "Channel",
            "ChannelAnalysis", "occupied", "occupied_states", "basins", "candidate_runs", "merge_runs",
-           "drop_tails", "merge_coupled", "detect", "analyse", "transitions",
+           "drop_tails", "merge_coupled", "detect", "analyse", "transitions", "kp_levels",
            "PEAK_FRACTION", "MERGE_KT", "CHANNEL_FLOOR_CM2", "FALLBACK_FLOOR_CM2", "ATTRIBUTION_SHARE", "LAYER_SHARE",
            "OCCUPIED_FRACTION", "OCCUPIED_CM2"]
 
 CARRIERS = ("electron", "hole")
 #: band -> the carrier kind of its states
 BAND_CARRIER = {"electron": "electron", "heavy_hole": "hole", "light_hole": "hole",
+                # the multiband hole states of physics.hole_model kp4 / kp6 (/subbands/hole_kp)
+                "hole_kp": "hole",
                 # the conduction valley sets of physics.quantum_valleys
                 "x2_electron": "electron", "x4_electron": "electron", "l_electron": "electron"}
 #: short state labels of each band (E0, HH1, X2_0, ...: the tables and warnings)
 STATE_LABEL = {"electron": "E", "heavy_hole": "HH", "light_hole": "LH", "x2_electron": "X2_",
-               "x4_electron": "X4_", "l_electron": "L"}
+               "x4_electron": "X4_", "l_electron": "L", "hole_kp": "H"}
 #: +1: the carrier's kinetic energy grows with the electron energy; -1: it falls (holes)
 CARRIER_SIGN = {"electron": +1, "hole": -1}
 
@@ -119,13 +123,19 @@ def occupied_states(band: str, subbands: dict, channel_rows) -> np.ndarray:
 @dataclass
 class Levels:
     """One band's states: energies (eV, electron scale), populations (cm^-2),
-    wavefunctions (N, k) with sum_i w_i psi_i^2 = 1, in-plane masses (m0)."""
+    wavefunctions (N, k) with sum_i w_i psi_i^2 = 1, in-plane masses (m0).
+
+    ``pair``: None when each state is a whole (spin-degenerate) subband; else (k,) the
+    subband of each state, whose spin branches share a number (the Kramers pairs of the
+    multiband holes, rows 2p and 2p + 1 of /subbands/hole_kp).  A channel's E1 - E0 and
+    occupied count then go by subbands, not by branches."""
 
     band: str
     energy: np.ndarray
     occupation: np.ndarray
     psi: np.ndarray
     in_plane_mass: np.ndarray
+    pair: np.ndarray | None = None
 
 
 @dataclass
@@ -468,7 +478,7 @@ def analyse(z, w, kT: float, profiles: dict, levels, layers=(), requests=()) -> 
         rho = np.zeros(z.size)
         rho[c.i0:c.i1 + 1] = cl[c.i0:c.i1 + 1]
         c.classical_density = _sheet(w, cl, c.i0, c.i1)
-        mine = []             # (kinetic energy, band, index, energy, population, mass, psi)
+        mine = []             # (kinetic energy, band, index, energy, population, mass, subband)
         sign = CARRIER_SIGN[c.carrier]
         fermi = 0.0 if prof is None else float(prof.fermi)
         for lv in levels:
@@ -476,19 +486,25 @@ def analyse(z, w, kT: float, profiles: dict, levels, layers=(), requests=()) -> 
                 continue
             for k in np.flatnonzero(attribution[lv.band] == j):
                 e = float(lv.energy[k])
+                sub = (lv.band, int(k) if lv.pair is None else int(lv.pair[k]))
                 mine.append((sign * (e - fermi), lv.band, int(k), e, float(lv.occupation[k]),
-                             float(lv.in_plane_mass[k])))
+                             float(lv.in_plane_mass[k]), sub))
                 rho += float(lv.occupation[k]) * NM_PER_CM * np.asarray(lv.psi[:, k], dtype=float) ** 2
         mine.sort(key=lambda t: t[0])
         c.states = [(t[1], t[2]) for t in mine]
         c.subband_density = float(sum(t[4] for t in mine))
         c.sheet_density = c.subband_density + c.classical_density
+        # the figures go by subbands: the spin branches of one (a Kramers pair of the multiband
+        # holes, degenerate at k_par = 0) are one subband with their summed population
+        subs = list(dict.fromkeys(t[6] for t in mine))            # lowest first
         if mine:
             c.ground_energy = mine[0][0]                 # sign * (E0 - EF), the carrier's own EF
-            c.in_plane_mass = mine[0][5]
-            if len(mine) > 1:
-                c.spacing = mine[1][0] - mine[0][0]
-        c.occupied_subbands = int(np.sum(occupied([t[4] for t in mine], c.sheet_density)))
+            masses = [t[5] for t in mine if t[6] == subs[0] and math.isfinite(t[5])]
+            c.in_plane_mass = float(np.mean(masses)) if masses else math.nan   # mean of the branches
+            if len(subs) > 1:
+                c.spacing = next(t[0] for t in mine if t[6] == subs[1]) - mine[0][0]
+        pops = [sum(t[4] for t in mine if t[6] == s) for s in subs]
+        c.occupied_subbands = int(np.sum(occupied(pops, c.sheet_density)))
         norm = float(np.dot(w, rho))
         if norm > 0:
             c.centroid_nm = float(np.dot(w, rho * z)) / norm
@@ -635,6 +651,25 @@ def layer_spans(structure) -> list[LayerSpan]:
             for L in structure.layers]
 
 
+def kp_levels(st, hk) -> Levels:
+    """The multiband hole states of a solve (a selfcon.solver.kp.KpStates) as one band of
+    :class:`Levels`, ``hole_kp``: energies at k_par = 0, populations (the k_par integral),
+    psi the square root of the density at k_par = 0, sum_j |psi_j|^2 (normalised:
+    sum_i w_i psi_i^2 = 1), the in-plane mass at EF (selfcon.solver.kp.subband_figures,
+    NaN for a state that does not cross EF), and the Kramers pairs (rows 2p, 2p + 1, the
+    pairing of /subbands/hole_kp/spin_splitting) as ``pair``."""
+    from selfcon.constants import CM2_PER_NM2
+    from selfcon.solver import kp
+    dens = np.sum(np.abs(np.asarray(hk.psi0)) ** 2, axis=1)          # (N, k)
+    norm = np.asarray(st.mesh.w, dtype=float) @ dens
+    psi = np.sqrt(dens / np.where(norm > 0, norm, 1.0))
+    k = dens.shape[1]
+    mass = kp.subband_figures(hk.k_parallel, hk.dispersion, st.fermi_levels[1])["mass_fermi"]
+    return Levels("hole_kp", np.asarray(hk.subband_energy, dtype=float),
+                  np.asarray(hk.sheet, dtype=float) * CM2_PER_NM2, psi, np.asarray(mass, dtype=float),
+                  pair=np.arange(k) // 2)
+
+
 def from_structure(structure, phi, loop_states, *, n, p, classical_n, classical_p, edges,
                    requests=()) -> SolvedChannels:
     """Channels of a converged solve.
@@ -658,6 +693,10 @@ def from_structure(structure, phi, loop_states, *, n, p, classical_n, classical_
                                        efn if bs.sign > 0 else efp) * CM2_PER_NM2
         occupation[band] = occ
         levels.append(Levels(band, bs.energy, occ, bs.psi, bs.m_par))
+    from selfcon.solver.steps import KP_BAND
+    hk = loop_states.get(KP_BAND)
+    if hk is not None and np.asarray(hk.subband_energy).size:
+        levels.append(kp_levels(st, hk))        # the multiband holes replace the hole bands
     profiles = {"electron": CarrierProfile(edges["electron"], n, classical_n, efn),
                 "hole": CarrierProfile(edges["hole"], p, classical_p, efp)}
     an = analyse(st.z, st.mesh.w, st.kT, profiles, levels, layer_spans(st), requests)

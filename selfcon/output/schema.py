@@ -400,11 +400,14 @@ _c = (
     ("ground_energy", "eV", "ground subband energy",
      "E0 minus the carrier's Fermi level, in the carrier's own sense: positive when the ground subband lies "
      "on the empty side"),
-    ("spacing", "eV", "subband spacing", "E1 - E0 of the channel's own subbands (positive), NaN with one state"),
+    ("spacing", "eV", "subband spacing", "E1 - E0 of the channel's own subbands (positive), NaN with one state; "
+     "multiband holes: the gap from the ground Kramers pair to the next"),
     ("occupied_subbands", "1", "occupied subbands",
-     "subbands holding at least 1 % of the channel's sheet density and at least 1e8 cm-2"),
+     "subbands holding at least 1 % of the channel's sheet density and at least 1e8 cm-2 (multiband holes: "
+     "Kramers pairs, both spin branches together)"),
     ("centroid_nm", "nm", "carrier centroid", "mean depth of the channel's carriers"),
-    ("in_plane_mass", "m0", "in-plane effective mass", "in-plane effective mass of the channel's ground subband"),
+    ("in_plane_mass", "m0", "in-plane effective mass", "in-plane effective mass of the channel's ground subband "
+     "(multiband holes: the mean of the ground pair's masses at EF, /subbands/hole_kp/mass_fermi)"),
     ("layer", "1", "channel layer", "the layer holding most of the channel's carriers"),
     ("named", "1", "named channel",
      "1 for a channel named in a [[channel]] table of the deck, 0 for an auto-detected one"),
