@@ -14,7 +14,7 @@ from collections.abc import Callable, Iterable, Mapping
 from typing import TYPE_CHECKING, Any
 
 from selfcon.input.deck import Deck
-from selfcon.model.structure import Structure, build_structure
+from selfcon.model.structure import Structure, build_structure, deck_structure
 from selfcon.solver.loop import extrapolate_potential, run_loop
 from selfcon.solver.mixers import make_mixer
 from selfcon.solver.steps import boundary_conditions, interpolate_guess
@@ -210,7 +210,7 @@ def solve(deck: Deck | str | os.PathLike, *, initial_potential: Any = None,
     threads = thread_count(threads)          # a bad setting fails before any work
     if not isinstance(deck, Deck):
         deck = load_deck(deck)
-    st = structure if structure is not None else build_structure(deck)
+    st = structure if structure is not None else deck_structure(deck)
     st, cooldown = _dark_cooldown(deck, st, threads)
     spec = deck.solver
     tol = float(tolerance if tolerance is not None else spec.tolerance)

@@ -8,6 +8,7 @@ the Dirichlet condition psi = 0.
 from __future__ import annotations
 
 import functools
+import weakref
 from dataclasses import dataclass, field, replace
 from typing import TYPE_CHECKING, Any
 
@@ -213,6 +214,33 @@ def clear_material_cache() -> None:
     """Forget the material parameters computed so far in this process (after the library
     data changed, e.g. in a test that adds a parameter)."""
     _uniform_parameters.cache_clear()
+    _STRUCTURES.clear()
+    _COARSE.clear()
+
+
+#: structures of recently built decks, Deck -> Structure (STRUCTURE_CACHE entries, the oldest
+#: dropped first).  A Deck is frozen and hashable, its equality covers every value that
+#: reaches the structure (not its file name or text), and a Structure is immutable (read-only
+#: arrays), so a deck solved again -- a repeated solve in a script, the cold retry of
+#: selfcon.api.solve_warm, a repeated study point in one worker -- reuses the one built before.
+_STRUCTURES: dict = {}
+STRUCTURE_CACHE = 4
+#: structures with more nodes are not kept (their memory, not their build time, dominates)
+STRUCTURE_CACHE_NODES = 100_000
+
+
+def deck_structure(deck: Deck) -> Structure:
+    """``build_structure(deck)``, reused when an equal deck was built by this function
+    recently (see :data:`_STRUCTURES`); an error is raised each time, as it is never kept."""
+    st = _STRUCTURES.pop(deck, None)
+    if st is None:
+        st = build_structure(deck)
+        if st.n_nodes > STRUCTURE_CACHE_NODES:
+            return st
+    _STRUCTURES[deck] = st                        # newest last
+    while len(_STRUCTURES) > STRUCTURE_CACHE:
+        del _STRUCTURES[next(iter(_STRUCTURES))]
+    return st
 
 
 def _located(deck, key_prefix, fn, *args, **kw):
@@ -751,13 +779,29 @@ def key_nodes(st: Structure) -> np.ndarray:
     return key
 
 
+#: coarsened copies already made, id(structure) -> (weak reference, {factor: result}); an
+#: entry goes with its structure (Structures are immutable, so a copy never goes stale)
+_COARSE: dict = {}
+
+
 def coarsened(st: Structure, factor: int = 4) -> tuple[Structure, np.ndarray]:
     """The same stack on every ``factor``-th node (key nodes always kept).
 
     Each coarse cell lies inside one layer and takes the properties of its middle fine
     cell (the exact value in uniform layers, the mid-cell value in graded ones).  Used
     for a cheap starting potential; returns (coarse structure, kept fine-node indices).
+    Made once per structure and factor: every solve of a structure starts the same way.
     """
+    entry = _COARSE.get(id(st))
+    if entry is None or entry[0]() is not st:
+        entry = _COARSE[id(st)] = (weakref.ref(st, lambda _, k=id(st): _COARSE.pop(k, None)), {})
+    made = entry[1].get(factor)
+    if made is None:
+        made = entry[1][factor] = _coarsened(st, factor)
+    return made
+
+
+def _coarsened(st: Structure, factor: int) -> tuple[Structure, np.ndarray]:
     from dataclasses import replace
     from selfcon.model.mesh import half_widths
     key = key_nodes(st)
