@@ -215,7 +215,7 @@ def clear_material_cache() -> None:
     data changed, e.g. in a test that adds a parameter)."""
     _uniform_parameters.cache_clear()
     _STRUCTURES.clear()
-    _COARSE.clear()
+    _DERIVED.clear()
 
 
 #: structures of recently built decks, Deck -> Structure (STRUCTURE_CACHE entries, the oldest
@@ -779,9 +779,25 @@ def key_nodes(st: Structure) -> np.ndarray:
     return key
 
 
-#: coarsened copies already made, id(structure) -> (weak reference, {factor: result}); an
-#: entry goes with its structure (Structures are immutable, so a copy never goes stale)
-_COARSE: dict = {}
+#: what was derived from a structure once for all its solves, id(structure) -> (weak
+#: reference, {key: value}); an entry goes with its structure (Structures are immutable, so
+#: nothing derived from one goes stale)
+_DERIVED: dict = {}
+
+
+def derived(st: Structure, key, make):
+    """``make()``, computed once per structure and ``key`` and kept while ``st`` lives: for
+    data every solve of a structure derives alike (its coarse start meshes, its classical
+    Poisson problem).  The value is shared: treat it as read-only (a dict value may be a
+    small cache of its own)."""
+    entry = _DERIVED.get(id(st))
+    if entry is None or entry[0]() is not st:
+        entry = _DERIVED[id(st)] = (weakref.ref(st, lambda _, k=id(st): _DERIVED.pop(k, None)), {})
+    try:
+        return entry[1][key]
+    except KeyError:
+        value = entry[1][key] = make()
+        return value
 
 
 def coarsened(st: Structure, factor: int = 4) -> tuple[Structure, np.ndarray]:
@@ -790,15 +806,9 @@ def coarsened(st: Structure, factor: int = 4) -> tuple[Structure, np.ndarray]:
     Each coarse cell lies inside one layer and takes the properties of its middle fine
     cell (the exact value in uniform layers, the mid-cell value in graded ones).  Used
     for a cheap starting potential; returns (coarse structure, kept fine-node indices).
-    Made once per structure and factor: every solve of a structure starts the same way.
+    Made once per structure and factor (:func:`derived`): every solve starts the same way.
     """
-    entry = _COARSE.get(id(st))
-    if entry is None or entry[0]() is not st:
-        entry = _COARSE[id(st)] = (weakref.ref(st, lambda _, k=id(st): _COARSE.pop(k, None)), {})
-    made = entry[1].get(factor)
-    if made is None:
-        made = entry[1][factor] = _coarsened(st, factor)
-    return made
+    return derived(st, ("coarsened", int(factor)), lambda: _coarsened(st, factor))
 
 
 def _coarsened(st: Structure, factor: int) -> tuple[Structure, np.ndarray]:

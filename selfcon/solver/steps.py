@@ -31,7 +31,7 @@ import numpy as np
 
 from selfcon.constants import CM2_PER_NM2, DOS2D_PER_M0
 from selfcon.model.dopants import statistics_binding
-from selfcon.model.structure import Structure, coarsened
+from selfcon.model.structure import Structure, coarsened, derived
 from selfcon.solver import poisson as P
 from selfcon.solver.control import POISSON_MAX_ITER, POISSON_TOL, START_TOL
 from selfcon.solver.statistics import subband_density
@@ -153,9 +153,7 @@ class Workspace:
         #: threads for the independent eigenproblems of each iteration (selfcon.solver.threads)
         self.threads = thread_count(threads)
         self.bc = tuple(bc)
-        self.problem_classical = classical_problem(structure, self.bc)
-        self.problem_free = self.problem_classical.with_boundaries(
-            (P.ZERO_FIELD, 0.0), (P.ZERO_FIELD, 0.0))
+        self.problem_classical, self.problem_free = classical_problems(structure, self.bc)
         self.n_states = {band: structure.states for band in bands_of(structure)}
         self.n_states[KP_BAND] = 0             # 0: selfcon.solver.kp.FIRST_STATES
         self.kp_top = 0.0                      # nm^-1, the end of the multiband holes' k grid
@@ -189,6 +187,22 @@ class Workspace:
         if self._classical is None or self._classical[0] is not phi:
             self._classical = (phi, P.densities(self.problem_free, phi))
         return self._classical[1]
+
+
+def classical_problems(st: Structure, bc) -> tuple[P.PoissonProblem, P.PoissonProblem]:
+    """(the classical problem with boundary conditions ``bc``, the same with free ends), made
+    once per structure and ``bc`` (selfcon.model.structure.derived): every solve of a
+    structure starts from the same two."""
+    made = derived(st, "classical_problems", dict)        # bc -> the two, the newest last
+    bc = tuple(bc)
+    pair = made.pop(bc, None)
+    if pair is None:
+        base = classical_problem(st, bc)
+        pair = (base, base.with_boundaries((P.ZERO_FIELD, 0.0), (P.ZERO_FIELD, 0.0)))
+    made[bc] = pair
+    while len(made) > 4:                  # a bias sweep on one structure keeps only a few
+        del made[next(iter(made))]
+    return pair
 
 
 def classical_problem(st: Structure, bc=None) -> P.PoissonProblem:
@@ -405,7 +419,7 @@ def initial_guess(ws: Workspace, phi0=None):
             # finishing the classical problem there first would only repeat its work
             return np.interp(st.z, *previous), steps
         level = coarsened(st, factor)[0] if factor > 1 else st
-        prob = classical_problem(level, bc) if factor > 1 else ws.problem_classical
+        prob = classical_problems(level, bc)[0] if factor > 1 else ws.problem_classical
         phi = linear_start(level, bc) if previous is None else np.interp(level.z, *previous)
         sol = P.solve_poisson(prob, phi, tol=START_TOL, max_iter=POISSON_MAX_ITER)
         steps += sol.steps
@@ -831,4 +845,4 @@ __all__ = ["BAND_SPECS", "KP_BAND", "kp_states", "VALLEY_BANDS", "ALL_BANDS", "b
            "band_region_states",
            "region_states", "region_eigenstates", "in_plane_motion",
            "poisson_pass", "charge_residual", "densities", "mobile_sheets", "gauss_residual",
-           "classical_problem", "valley_arrays", "with_states"]
+           "classical_problem", "classical_problems", "valley_arrays", "with_states"]
