@@ -56,7 +56,8 @@ threads kp startup batch coordinator decks compare
               peak coordinator memory; memory of a Dask backlog of 4000 tasks.
   compare     (by name only) warm solve times of this checkout and of --base (default
               main, checked out into a temporary git worktree) side by side: hemt_4K,
-              hemt_300K and a three-well deck, alternating fresh processes; medians and
+              hemt_300K, a three-well deck, the strained pHEMT and the nitride HEMT,
+              alternating fresh processes; medians and
               the run-to-run spread; target: new - old <= the spread.
 
 Each benchmark checks the physics it times (convergence, equal n_s to 1e-4 across
@@ -632,7 +633,10 @@ def bench_compare(base="main", rounds=7, repeat=15):
     _git("worktree", "add", "--detach", str(old_root), base_id)
     try:
         roots = {"old": str(old_root), "new": str(ROOT)}
-        cases = {"hemt_4K": str(DECKS["4K"]), "hemt_300K": str(DECKS["300K"]), "multi_well": "multi_well"}
+        cases = {"hemt_4K": str(DECKS["4K"]), "hemt_300K": str(DECKS["300K"]), "multi_well": "multi_well",
+                 # the strained pHEMT and the nitride HEMT of the floor rows (issues 14, 15)
+                 "phemt_strained": str(FLOOR_DECKS["phemt_strained"]),
+                 "nitride_hemt": str(FLOOR_DECKS["nitride_hemt"])}
 
         def child(which, case):
             p = subprocess.run([PY, "-c", _COMPARE_CHILD, roots[which], cases[case], str(repeat)],
