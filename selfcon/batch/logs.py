@@ -95,6 +95,28 @@ def _restore(saved):
         lg.propagate = propagate
 
 
+class FileLines(logging.Handler):
+    """Appends formatted lines to a file.  Not a :class:`logging.StreamHandler` (as
+    :class:`logging.FileHandler` is): a Dask LocalCluster made with ``silence_logs`` sets the
+    level of every StreamHandler on the ``distributed`` logger to its own while it runs, which
+    silenced the study log (the same handler serves ``selfcon``) for the whole run."""
+
+    def __init__(self, path):
+        super().__init__()
+        self._file = logging.FileHandler(path, mode="a", encoding="utf-8", delay=False)
+
+    def emit(self, record):
+        try:
+            self._file.stream.write(self.format(record) + "\n")
+            self._file.flush()
+        except Exception:       # noqa: BLE001 - logging must never raise
+            self.handleError(record)
+
+    def close(self):
+        self._file.close()
+        super().close()
+
+
 @contextlib.contextmanager
 def to_file(path, level=logging.INFO):
     """Append the lines of :data:`LOGGERS` at ``level`` and above to ``path`` while the block runs."""
@@ -105,7 +127,7 @@ def to_file(path, level=logging.INFO):
     if path.parent and not path.parent.is_dir():
         from selfcon.errors import StudyError
         raise StudyError("folder of the log file does not exist", key="--log", file=str(path))
-    handler = logging.FileHandler(path, mode="a", encoding="utf-8", delay=False)
+    handler = FileLines(path)
     handler.setFormatter(logging.Formatter(FORMAT, DATEFMT))
     handler.setLevel(level)
     saved = []
