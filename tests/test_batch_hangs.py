@@ -1,6 +1,7 @@
-"""Nothing hangs: a stopped worker is freed by --job-timeout, a lost Dask scheduler ends the run
-with exit 4 and a consistent queue, and a scheduler that no worker ever joins (a cluster whose
-batch jobs never start) stops the study instead of waiting forever.
+"""Nothing hangs: a stopped worker is freed by --job-timeout (local pool and Dask), a lost
+Dask scheduler ends the run with exit 4 and a consistent queue, and a scheduler that no
+worker ever joins (a cluster whose batch jobs never start) stops the study instead of
+waiting forever.
 
 Limits are injected small (1 to 3 s) so that each case takes seconds; no assertion is about
 speed: the waits around them are generous time-outs that only keep a broken build from
@@ -54,22 +55,33 @@ def rows(out):
 
 # --------------------------------------------------------------------------- --job-timeout
 
-def test_stopped_worker_is_freed_by_the_job_timeout(tmp_path):
+@pytest.mark.parametrize("where", ["local pool", "dask"])
+def test_stopped_worker_is_freed_by_the_job_timeout(tmp_path, where):
     # job 2 stops its worker (SIGSTOP) on its first attempt: without a time limit it would hold
-    # that worker forever.  The limit (2.5 s) is far above what a stand-in job takes.
+    # that worker forever.  The limit is far above what a stand-in job takes.  Local pool: two
+    # worker processes, the stopped one is killed and replaced.  Dask: a LocalCluster of ONE
+    # worker process (with a nanny): the coordinator sees the task running past the limit,
+    # cancels it, has the scheduler drop the worker, and its nanny kills the stopped process
+    # and starts a new one, which must run the rest (job 1's result, held by the stopped
+    # worker, is recomputed there).
+    if where == "dask":
+        pytest.importorskip("distributed")
+        where_opts, limit = dict(scheduler="local", workers=1, memory_limit="1GiB"), 1.5
+    else:
+        where_opts, limit = dict(workers=2), 2.5
     mark = tmp_path / "stopped-once"
     study = make_study(tmp_path, ["a", f"stop-once={mark}", "b", "c"])
     log = tmp_path / "run.log"
-    code, counts, out = run_study(study, workers=2, retries=1, job_fn=SLEEPY, job_timeout=2.5, log_file=log,
-                                  warm=False)
+    code, counts, out = run_study(study, retries=1, job_fn=SLEEPY, job_timeout=limit, log_file=log, warm=False,
+                                  **where_opts)
     assert code == 0 and counts["done"] == 4                 # README.md, "Command line"
     got = {r[0]: r[1:] for r in rows(out)}
     assert got[2][:2] == ("done", 2)                          # requeued once, the attempt counted
     assert all(got[k][:2] == ("done", 1) for k in (1, 3, 4))  # the others: one attempt each
     assert mark.exists()
     text = log.read_text()
-    assert "past --job-timeout 2.5 s: stopping its worker" in text
-    assert re.search(r"job 2 requeued: ran \d+ s, past --job-timeout 2.5 s: its worker was stopped "
+    assert f"past --job-timeout {limit:g} s: stopping its worker" in text
+    assert re.search(rf"job 2 requeued: ran \d+ s, past --job-timeout {limit:g} s: its worker was stopped "
                      r"\(attempt 1 counted", text)
 
 
@@ -91,6 +103,17 @@ def test_job_timeout_option_is_checked(run_cli, tmp_path):
 
 
 # --------------------------------------------------------------------------- Dask
+
+def test_dask_job_stopping_every_time_fails_and_the_rest_completes(tmp_path):
+    pytest.importorskip("distributed")
+    study = make_study(tmp_path, ["stop", "a", "b"])
+    code, counts, out = run_study(study, scheduler="local", workers=2, retries=0, job_fn=SLEEPY, job_timeout=1.5,
+                                  warm=False, memory_limit="1GiB")
+    assert code == 3 and counts["failed"] == 1 and counts["done"] == 2   # README.md, "Command line"
+    (_, status, attempts, error), *rest = rows(out)
+    assert (status, attempts) == ("failed", 1) and "past --job-timeout 1.5 s: its worker was stopped" in error
+    assert [r[1] for r in rest] == ["done", "done"]
+
 
 def _start(args, env=None):
     return subprocess.Popen([sys.executable, "-m", *args], stdout=subprocess.DEVNULL, stderr=subprocess.DEVNULL,

@@ -61,7 +61,7 @@ def register(subparsers):
     b.add_argument("--memory-limit", default="4GiB", help="memory per Dask worker of --scheduler local")
     b.add_argument("--job-timeout", type=float, default=None, metavar="SECONDS",
                    help="wall-clock limit of one job: past it its worker process is stopped and the job "
-                        "requeued, the attempt counted (local pool; default: no limit)")
+                        "requeued, the attempt counted (local pool and Dask; default: no limit)")
     b.add_argument("--scheduler-timeout", type=float, default=None, metavar="SECONDS",
                    help="Dask: seconds to reach the scheduler and to wait for a lost one, and for a first "
                         "worker, before stopping with exit 4 (default 60; a first worker of --cluster: 1800)")

@@ -12,6 +12,9 @@ Both executors have one small interface, used only by the coordinator::
     ex.busy                     how many jobs are in flight
     ex.in_flight                {job_id: time.time() it started, or None if not known}
     ex.kill_job(job_id)         stop the process running it (reported as "died")
+    ex.watch()                  (DaskPool only) read the clocks of in_flight from the
+                                scheduler; the coordinator calls it about once a second
+                                when --job-timeout is set
     ex.shutdown(cancel=False)
 
 Event kinds:
@@ -382,6 +385,10 @@ def jobqueue_cluster(kind, *, numba_cache_dir=None, **overrides):
     return cluster
 
 
+#: a fetched future whose value was lost
+_NO_VALUE = object()
+
+
 class DaskPool:
     """Dask distributed: a LocalCluster (``address="local"``), a running scheduler (``address``
     or ``scheduler_file``), or a dask-jobqueue cluster (``cluster="slurm"``, ...) that adapts
@@ -440,8 +447,12 @@ class DaskPool:
                                           f"{type(exc).__name__}: {exc}") from None
         self.where = where
         self.tasks = {}                      # future -> [job ids]
+        self._started = {}                   # future -> time.time() its task was seen running (--job-timeout)
+        self._on = {}                        # future -> the worker it was seen running on
+        self._timed_out = set()              # futures cancelled by kill_job
         self._busy = 0
         self.done = queue.SimpleQueue()      # futures, from their done callbacks (Dask's threads)
+        self._fetcher = None                 # finished futures to gather (a thread: _fetch_loop)
         self._threads = (0.0, 0)
         try:
             self.check_versions()
@@ -494,7 +505,42 @@ class DaskPool:
 
     @property
     def in_flight(self):
-        return {j: None for ids in self.tasks.values() for j in ids}
+        """Job ids sent -> when their task began running (a task's first job only, as the local
+        pool's first job of a slot; the clock is read by :meth:`watch`, None before)."""
+        return {j: (self._started.get(f) if i == 0 else None)
+                for f, ids in self.tasks.items() for i, j in enumerate(ids)}
+
+    def watch(self):
+        """Start the clock of every task a worker has begun (for --job-timeout; called at most
+        about once a second).  The scheduler knows which worker holds each task but not when
+        it began, so a task's clock starts when it is first seen among the first ``nthreads``
+        tasks its worker holds (a worker may hold more than it runs: Dask's worker-saturation),
+        a second late at most.  A task that moved to another worker starts again."""
+        if self.client.status != "running" or not self.tasks:
+            return
+        try:
+            held = self.client.processing()
+            nthreads = self.client.nthreads()
+        except Exception:                    # the scheduler went away: _scheduler_answers says so
+            return
+        by_key = {f.key: f for f in self.tasks}
+        order = {f: n for n, f in enumerate(self.tasks)}   # the order sent (the scheduler's, too)
+        now = time.time()
+        seen = set()
+        for worker, keys in held.items():
+            futs = [by_key[k] for k in keys if k in by_key]
+            for f in futs:
+                seen.add(f)
+                if self._on.get(f) != worker:            # new here, or moved: not started yet
+                    self._on[f] = worker
+                    self._started.pop(f, None)
+            futs.sort(key=lambda f: (self._started.get(f, now + 1), order[f]))
+            for f in futs[:max(1, int(nthreads.get(worker, 1)))]:
+                self._started.setdefault(f, now)
+        for f in list(self._on):
+            if f not in seen:                           # done, or back at the scheduler (its worker left)
+                self._started.pop(f, None)
+                self._on.pop(f, None)
 
     def slots(self, alone=False):
         if not self._scheduler_answers():
@@ -570,18 +616,19 @@ class DaskPool:
                 futs.append(self.done.get_nowait())
             except queue.Empty:
                 break
-        futs = [f for f in futs if f in self.tasks]
+        fetched = {}
+        for item in futs:                   # a fetch thread's values, or done futures
+            if isinstance(item, dict):
+                fetched.update(item)
+        futs = [f for f in futs if not isinstance(f, dict) and f in self.tasks]
         finished = [f for f in futs if f.status == "finished"]
-        values = {}
         if finished:
-            try:
-                values = dict(zip(finished, self.client.gather(finished)))
-            except Exception:
-                for f in finished:          # one was lost between done and fetch: fetch one by one
-                    try:
-                        values[f] = f.result()
-                    except Exception:
-                        pass
+            # fetched by a thread of its own: a result held by a worker that has since stopped
+            # (SIGSTOP) waits until that worker is removed and the task recomputed, and the loop
+            # (with its --job-timeout clocks) must not wait with it
+            self._fetch_queue().put(finished)
+        futs = [f for f in futs if f not in finished] + [f for f in fetched if f in self.tasks]
+        values = {f: v for f, v in fetched.items() if v is not _NO_VALUE}
         out = []
         for f in futs:
             ids = self.tasks.pop(f)
@@ -598,8 +645,36 @@ class DaskPool:
                 out.extend((j, "lost", f"{DIED} (result lost)") for j in ids)
             else:
                 out.extend(self._failed(f, ids))
+            for book in (self._started, self._on):
+                book.pop(f, None)
+            self._timed_out.discard(f)
             f.release()
         return out
+
+    def _fetch_queue(self):
+        if self._fetcher is None:
+            self._fetcher = queue.SimpleQueue()
+            threading.Thread(target=self._fetch_loop, args=(self._fetcher,), name="selfcon-dask-fetch",
+                             daemon=True).start()
+        return self._fetcher
+
+    def _fetch_loop(self, todo):
+        """Fetch thread: gather finished futures' values; hand them to :meth:`poll` through the
+        done queue as one dict (future -> value, or _NO_VALUE if it was lost meanwhile)."""
+        while True:
+            finished = todo.get()
+            if finished is None:
+                return
+            values = {}
+            try:
+                values = dict(zip(finished, self.client.gather(finished)))
+            except Exception:
+                for f in finished:          # one was lost between done and fetch: fetch one by one
+                    try:
+                        values[f] = f.result()
+                    except Exception:
+                        pass
+            self.done.put({f: values.get(f, _NO_VALUE) for f in finished})
 
     def _failed(self, f, ids):
         from distributed import KilledWorker
@@ -610,6 +685,9 @@ class DaskPool:
         if f.status == "cancelled" and self.client.status != "running":
             # the scheduler went away: nobody's fault, and the run stops unless it comes back
             return [(j, "lost", f"{DIED} (the Dask scheduler was lost)") for j in ids]
+        if f in self._timed_out:             # kill_job: past --job-timeout, the first job is charged
+            return [(ids[0], "died", f"{DIED} (cancelled past --job-timeout)")] + \
+                [(j, "suspect", f"{DIED} (in a task of {len(ids)} jobs)") for j in ids[1:]]
         if isinstance(exc, KilledWorker) or f.status == "cancelled":
             if len(ids) == 1:
                 return [(ids[0], "died", f"{DIED} (Dask gave up on the task: {type(exc).__name__})")]
@@ -621,7 +699,22 @@ class DaskPool:
         return [(j, "ok", err) for j in ids]
 
     def kill_job(self, job_id):
-        return False
+        """Free the worker of the task whose first job is ``job_id`` (past --job-timeout): the
+        task is cancelled (it comes back from :meth:`poll` as "died"), the scheduler drops the
+        worker at once (nothing more is sent to it), and its nanny, if it has one, kills the
+        process (a stopped one too) and starts a fresh worker in its place."""
+        fut = next((f for f, ids in self.tasks.items() if ids[0] == job_id), None)
+        worker = self._on.get(fut)
+        if fut is None or worker is None or fut in self._timed_out:
+            return False
+        self._timed_out.add(fut)
+        log.warning("job %d: cancelling its Dask task %s and removing worker %s", job_id, fut.key, worker)
+        try:
+            self.client.cancel([fut])
+            self.client.run_on_scheduler(_worker_dropper(), worker, f"selfcon-job-timeout-{job_id}")
+        except Exception as exc:             # the scheduler went away: _scheduler_answers says so
+            log.warning("job %d: could not remove worker %s: %s: %s", job_id, worker, type(exc).__name__, exc)
+        return True
 
     def worker_pids(self):
         return list(self.client.run(os.getpid).values())
@@ -644,6 +737,8 @@ class DaskPool:
             quiet.setLevel(level)
 
     def shutdown(self, cancel=False):
+        if self._fetcher is not None:
+            self._fetcher.put(None)
         if cancel and self.tasks:
             try:
                 self.client.cancel(list(self.tasks))
@@ -652,6 +747,41 @@ class DaskPool:
         self.tasks.clear()
         self._busy = 0
         self._close()
+
+
+def _worker_dropper():
+    """The function kill_job runs on the Dask scheduler, made here so that it travels by value
+    (a scheduler started with ``dask scheduler`` need not have selfcon installed)."""
+
+    async def drop(address, reason, dask_scheduler=None):
+        # forget the worker now, then have its nanny kill the process (a stopped one too: the
+        # nanny's kill waits about 2 s for a clean stop, then SIGKILLs) and start a new one; the
+        # kill runs in the background so that the coordinator does not wait for it
+        import asyncio
+
+        from distributed.core import rpc
+        ws = dask_scheduler.workers.get(address)
+        if ws is None:
+            return "already gone"
+        nanny = ws.nanny
+        await dask_scheduler.remove_worker(address=address, stimulus_id=reason, close=nanny is None)
+        if not nanny:
+            return "removed"
+
+        async def kill():
+            try:
+                async with rpc(nanny, connection_args=dask_scheduler.connection_args) as n:
+                    await n.kill(reason=reason, timeout=2)
+            except Exception:
+                pass
+
+        pending = dask_scheduler.__dict__.setdefault("_selfcon_kills", set())
+        task = asyncio.get_running_loop().create_task(kill())
+        pending.add(task)                  # a reference, until it is done
+        task.add_done_callback(pending.discard)
+        return "removed; its nanny restarts it"
+
+    return drop
 
 
 def make_executor(job_spec, workers, *, scheduler=None, scheduler_file=None, cluster=None, threads=None,

@@ -502,6 +502,9 @@ class Coordinator:
         if now - self._last_timeout_check < min(1.0, self.job_timeout / 4):
             return
         self._last_timeout_check = now
+        watch = getattr(ex, "watch", None)      # Dask: ask the scheduler which tasks run now
+        if watch is not None:
+            watch()
         for job_id, started in ex.in_flight.items():
             if started is None or job_id in self.timed_out or now - started <= self.job_timeout:
                 continue
@@ -696,7 +699,7 @@ def run_study(study_file, *, workers=None, out=None, scheduler=None, scheduler_f
     ``threads``: threads of each worker's solves (selfcon.solver.threads; a worker's
     default is 1).
     ``job_timeout``: seconds a job may run before its worker is stopped and the job requeued
-    (the attempt counts; local pool).  ``scheduler_timeout``: seconds to reach a Dask
+    (the attempt counts; local pool and Dask).  ``scheduler_timeout``: seconds to reach a Dask
     scheduler, and to wait for a lost one to come back, before exit 4 (default
     :data:`selfcon.batch.executors.SCHEDULER_TIMEOUT`).
 
