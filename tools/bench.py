@@ -40,7 +40,7 @@ threads kp startup batch coordinator decks compare
               target >= 4x at 100 periods.
   threads     the 100-period stack as four quantum regions (four independent eigenproblems
               per iteration): the eigen-solve phase of one iteration and the whole solve on
-              1 .. all cores; target >= 1.6x with 2 threads on the eigen-solve phase; the
+              1 .. all cores, by the wall clock even with --cpu; target >= 1.6x with 2 threads on the eigen-solve phase; the
               results are the same bits for every thread count.
   kp          multiband holes (issue 17): the block-tridiagonal Luttinger-Kohn eigensolve
               (6x6, 12 states) vs nodes, fitted exponent (target <= 1.1), checked against a
@@ -770,15 +770,21 @@ def bench_eigen(quick=False):
     ks = [10, 25, 50, 100, 200, 400] if not quick else [10, 50, 200]
     times = {m: [] for m in ws}
     for k in ks:
-        for m, w in ws.items():
-            w.eigh(k)                                   # compile / warm
-            t, (e, u) = best_time(lambda: w.eigh(k), 3 if m == "clustered" else 2)
-            times[m].append(t)
-            if m == "clustered":
-                ours = e
-                ortho = float(np.max(np.abs(u.T @ u - np.eye(k))))
-            else:
-                base = e
+        best = {m: np.inf for m in ws}
+        for rep in range(3):                            # alternating, best of 3: a shared machine
+            for m in (ws if rep % 2 == 0 else reversed(list(ws))):
+                w = ws[m]
+                if rep == 0:
+                    w.eigh(k)                           # compile / warm
+                t, (e, u) = best_time(lambda: w.eigh(k), 1)
+                best[m] = min(best[m], t)
+                if m == "clustered":
+                    ours = e
+                    ortho = float(np.max(np.abs(u.T @ u - np.eye(k))))
+                else:
+                    base = e
+        for m in ws:
+            times[m].append(best[m])
         dE = float(np.max(np.abs(ours - base)))
         check(dE < 1e-10, f"eigen k={k}: energies of the two methods differ by {dE:.1e} eV")
         check(ortho <= 1e-10, f"eigen k={k}: max |U^T U - I| = {ortho:.1e} > 1e-10")
@@ -798,16 +804,17 @@ def bench_mqw(quick=False):
     import selfcon
     for periods in ((20, 50, 100) if not quick else (20,)):
         d = mqw_deck(periods)
-        got = {}
-        for method in ("clustered", "lapack"):
-            _eigen_method(method)
-            try:
-                selfcon.solve(d)                                    # warm: numba cache, imports
-                t, r = solve_timed(d, repeat=2)
-            finally:
-                _eigen_method("clustered")
-            check(r.converged, f"mqw {periods} periods, {method}: converged")
-            got[method] = (t, r)
+        got = {m: (np.inf, None) for m in ("clustered", "lapack")}
+        try:
+            for rep in range(4):              # alternating, best of 3 after a warm-up: a shared machine
+                for method in (("clustered", "lapack") if rep % 2 == 0 else ("lapack", "clustered")):
+                    _eigen_method(method)
+                    t, r = solve_timed(d, repeat=1)
+                    check(r.converged, f"mqw {periods} periods, {method}: converged")
+                    if rep > 0 and t < got[method][0]:
+                        got[method] = (t, r)
+        finally:
+            _eigen_method("clustered")
         (t_new, r_new), (t_old, r_old) = got["clustered"], got["lapack"]
         check(rel(ns(r_new), ns(r_old)) < 1e-6, f"mqw {periods}: n_s {ns(r_new):.6e} vs {ns(r_old):.6e}")
         ratio = t_old / t_new
@@ -818,6 +825,17 @@ def bench_mqw(quick=False):
             note=f"dstebz+dstein {t_old * 1e3:.0f} ms ({ratio:.1f}x)")
 
 
+def _wall_best(fn, repeat):
+    """Best wall time of ``fn()`` over ``repeat`` calls: threads shorten the wall time, not the
+    CPU time (which --cpu would take), so the threads rows always use the wall clock."""
+    best, out = np.inf, None
+    for _ in range(repeat):
+        t = time.perf_counter()
+        out = fn()
+        best = min(best, time.perf_counter() - t)
+    return best, out
+
+
 def bench_threads(quick=False):
     import selfcon
     from selfcon.solver import steps, threads as T
@@ -826,80 +844,33 @@ def bench_threads(quick=False):
     counts = list(range(1, T.cores() + 1))
     if counts == [1]:
         counts = [1, 2]                     # one core: 2 threads still show the overhead
-    ref = None
-    eig_t, solve_t = {}, {}
-    for n in counts:
-        selfcon.solve(d, threads=n, structure=st)
-        t, r = best_time(lambda: selfcon.solve(d, threads=n, structure=st), 2)
-        check(r.converged, f"threads {n}: converged")
-        if ref is None:
-            ref = r
-        check(np.array_equal(r.potential, ref.potential)
-              and np.array_equal(r.subbands["electron"].energy, ref.subbands["electron"].energy),
-              f"threads {n}: not the same bits as 1 thread")
-        solve_t[n] = t
-        # the eigen-solve phase: every (band, region) of one iteration at the converged potential
-        ws = steps.Workspace(st, steps.boundary_conditions(st), threads=n)
-        ws.n_states = {b: max(int(np.max(np.bincount(sb.region))), 1) for b, sb in r.subbands.items()}
-        phi = np.asarray(r.potential, float)
-        steps.solve_states(ws, phi)
-        eig_t[n], _ = best_time(lambda: steps.solve_states(ws, phi), 5)
+    ref = selfcon.solve(d, threads=1, structure=st)
+    check(ref.converged, "threads: converged")
+    phi = np.asarray(ref.potential, float)
+    n_states = {b: max(int(np.max(np.bincount(sb.region))), 1) for b, sb in ref.subbands.items()}
+    eig_t = {n: np.inf for n in counts}
+    solve_t = {n: np.inf for n in counts}
+    for rep in range(3):                    # alternating thread counts, best of 3: a shared machine
+        for n in (counts if rep % 2 == 0 else counts[::-1]):
+            t, r = _wall_best(lambda: selfcon.solve(d, threads=n, structure=st), 1)
+            check(np.array_equal(r.potential, ref.potential)
+                  and np.array_equal(r.subbands["electron"].energy, ref.subbands["electron"].energy),
+                  f"threads {n}: not the same bits as 1 thread")
+            solve_t[n] = min(solve_t[n], t)
+            # the eigen-solve phase: every (band, region) of one iteration at the converged potential
+            ws = steps.Workspace(st, steps.boundary_conditions(st), threads=n)
+            ws.n_states = dict(n_states)
+            steps.solve_states(ws, phi)
+            t, _ = _wall_best(lambda: steps.solve_states(ws, phi), 3)
+            eig_t[n] = min(eig_t[n], t)
     tasks = len(st.regions)
     for n in counts:
         s_eig, s_all = eig_t[1] / eig_t[n], solve_t[1] / solve_t[n]
         two = n == 2
-        row("threads", f"{d.title}: {tasks} eigenproblems/it, {n} thread(s)", "eigen-solve phase",
+        row("threads", f"{d.title}: {tasks} eigenproblems/it, {n} thread(s)", "eigen-solve phase (wall)",
             eig_t[n] * 1e3, "ms", ">= 1.6x at 2" if two else None, (s_eig >= 1.6) if two else None,
             note=f"speed-up {s_eig:.2f}x; whole solve {solve_t[n] * 1e3:.0f} ms ({s_all:.2f}x, "
                  f"{ref.iterations} it)")
-
-
-# --------------------------------------------------------------------------- kp
-
-def bench_kp(quick=False):
-    """The multiband hole model: eigensolve scaling and the kp6 / parabolic solve ratio."""
-    import selfcon
-    from selfcon.model.mesh import Mesh
-    from selfcon.solver import kp
-    sizes = [250, 500, 1000, 2000] if not quick else [250, 1000]
-    times = []
-    for n in sizes:
-        z = np.linspace(0.0, 60.0, n)
-        mesh = Mesh.from_nodes(z)
-        zc = 0.5 * (z[1:] + z[:-1])
-        inside = (zc > 25.0) & (zc < 35.0)
-        mat = kp.KpMaterial(np.where(inside, 6.98, 5.9), np.where(inside, 2.06, 1.6),
-                            np.where(inside, 2.93, 2.3), np.where(inside, 0.341, 0.33),
-                            np.where(inside, 0.0, -0.15), *[np.zeros(n - 1)] * 5)
-        phi = 0.01 * z / z[-1]
-
-        def solve():
-            return kp.lowest_states(mesh.h, mesh.w, mat, phi, 0.1, 0.0, 6, 12)
-        solve()
-        t, (e, _) = best_time(solve)
-        times.append(t)
-        if n == sizes[0]:
-            d, u = kp._interior_hole_blocks(mesh.h, mesh.w, mat, phi, 0.1, 0.0, 6, False)
-            ref = -np.linalg.eigvalsh(kp.dense_matrix(d, u))[:12]
-            check(np.allclose(e, ref, atol=1e-10), "kp: banded eigensolve equals dense eigh")
-        row("kp", f"6x6 eigensolve, {n} nodes", "12 states", t * 1e3, "ms")
-    ex = fit_exponent(sizes, times)
-    row("kp", "6x6 eigensolve vs nodes", "exponent t ~ N^a", ex, "", "<= 1.1", ex <= 1.1)
-    path = ROOT / "inputs" / "design" / "2dhg_4K.toml"
-    base = selfcon.load_deck(str(path), ["mesh.step=0.2"])
-    multi = selfcon.load_deck(str(path), ["mesh.step=0.2", "physics.hole_model=kp6"])
-    solve_timed(base)
-    t_par, r_par = solve_timed(base, repeat=1 if quick else 2)
-    t_kp, r_kp = solve_timed(multi)
-    check(r_par.converged and r_kp.converged, "kp: both 2DHG solves converged")
-    p_par = r_par.summary["hole_sheet_density_cm2"]
-    p_kp = r_kp.summary["hole_sheet_density_cm2"]
-    check(rel(p_kp, p_par) < 0.15, f"kp: p_s kp6 {p_kp:.3e} vs parabolic {p_par:.3e}")
-    nodes = r_kp.summary["nodes"]
-    ratio = t_kp / t_par
-    row("kp", f"2dhg_4K, {nodes} nodes, kp6 on {kp.K_POINTS} k points", "solve", t_kp, "s",
-        note=f"{r_kp.iterations} it (parabolic {r_par.iterations} it, {t_par:.2f} s)")
-    row("kp", "kp6 / parabolic solve", "ratio", ratio, "", "<= 10", ratio <= 10)
 
 
 # --------------------------------------------------------------------------- main
