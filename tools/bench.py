@@ -873,6 +873,54 @@ def bench_threads(quick=False):
                  f"{ref.iterations} it)")
 
 
+# --------------------------------------------------------------------------- kp
+
+def bench_kp(quick=False):
+    """The multiband hole model: eigensolve scaling and the kp6 / parabolic solve ratio."""
+    import selfcon
+    from selfcon.model.mesh import Mesh
+    from selfcon.solver import kp
+    sizes = [250, 500, 1000, 2000] if not quick else [250, 1000]
+    times = []
+    for n in sizes:
+        z = np.linspace(0.0, 60.0, n)
+        mesh = Mesh.from_nodes(z)
+        zc = 0.5 * (z[1:] + z[:-1])
+        inside = (zc > 25.0) & (zc < 35.0)
+        mat = kp.KpMaterial(np.where(inside, 6.98, 5.9), np.where(inside, 2.06, 1.6),
+                            np.where(inside, 2.93, 2.3), np.where(inside, 0.341, 0.33),
+                            np.where(inside, 0.0, -0.15), *[np.zeros(n - 1)] * 5)
+        phi = 0.01 * z / z[-1]
+
+        def solve():
+            return kp.lowest_states(mesh.h, mesh.w, mat, phi, 0.1, 0.0, 6, 12)
+        solve()
+        t, (e, _) = best_time(solve)
+        times.append(t)
+        if n == sizes[0]:
+            d, u = kp._interior_hole_blocks(mesh.h, mesh.w, mat, phi, 0.1, 0.0, 6, False)
+            ref = -np.linalg.eigvalsh(kp.dense_matrix(d, u))[:12]
+            check(np.allclose(e, ref, atol=1e-10), "kp: banded eigensolve equals dense eigh")
+        row("kp", f"6x6 eigensolve, {n} nodes", "12 states", t * 1e3, "ms")
+    ex = fit_exponent(sizes, times)
+    row("kp", "6x6 eigensolve vs nodes", "exponent t ~ N^a", ex, "", "<= 1.1", ex <= 1.1)
+    path = ROOT / "inputs" / "design" / "2dhg_4K.toml"
+    base = selfcon.load_deck(str(path), ["mesh.step=0.2"])
+    multi = selfcon.load_deck(str(path), ["mesh.step=0.2", "physics.hole_model=kp6"])
+    solve_timed(base)
+    t_par, r_par = solve_timed(base, repeat=1 if quick else 2)
+    t_kp, r_kp = solve_timed(multi)
+    check(r_par.converged and r_kp.converged, "kp: both 2DHG solves converged")
+    p_par = r_par.summary["hole_sheet_density_cm2"]
+    p_kp = r_kp.summary["hole_sheet_density_cm2"]
+    check(rel(p_kp, p_par) < 0.15, f"kp: p_s kp6 {p_kp:.3e} vs parabolic {p_par:.3e}")
+    nodes = r_kp.summary["nodes"]
+    ratio = t_kp / t_par
+    row("kp", f"2dhg_4K, {nodes} nodes, kp6 on {kp.K_POINTS} k points", "solve", t_kp, "s",
+        note=f"{r_kp.iterations} it (parabolic {r_par.iterations} it, {t_par:.2f} s)")
+    row("kp", "kp6 / parabolic solve", "ratio", ratio, "", "<= 10", ratio <= 10)
+
+
 # --------------------------------------------------------------------------- main
 
 BENCHES = ("floor", "scaling", "mesh", "iterations", "xc", "nonparabolic", "eigen", "mqw", "threads",
