@@ -255,3 +255,8 @@ def test_the_hole_channel_holds_the_multiband_states(kp_solves):
     assert ch["occupied_subbands"] == 1                              # one pair holds the holes
     assert ch["in_plane_mass"] == pytest.approx(0.5 * (h["mass_fermi"][0] + h["mass_fermi"][1]), rel=1e-12)
     assert r.summary[f"channel.{ch['name']}.sheet_density_cm2"] == ch["sheet_density"]
+    # /subbands/hole_kp/channel: the ground pair is the hole channel's (its index in /channels)
+    j = [c["name"] for c in r.channels].index(ch["name"])
+    assert list(np.asarray(h["channel"])[:2]) == [j, j]
+    from selfcon.output.report import summary_figures
+    assert summary_figures(r)["hole_kp"][0]["channel"] == ch["name"]

@@ -357,6 +357,9 @@ def build_result(deck, st, loop, *, wall_time: float) -> Result:
         summary=summary, warnings=[], provenance=provenance, record=record,
         regions_nm=[tuple(map(float, r)) for r in st.regions_nm], channels=rows,
         transitions=solved.transitions, hole_kp=hole_kp_datasets(st, loop))
+    if result.hole_kp:             # each multiband state's channel, as /subbands/<band>/channel
+        result.hole_kp["channel"] = np.asarray(an.attribution.get(
+            "hole_kp", np.full(result.hole_kp["energy"].size, -1)), dtype=np.int64).copy()
     result.warnings = list(design_warnings(result, st, deck))
     result.summary["warnings"] = list(result.warnings)
     if result.converged:

@@ -201,13 +201,16 @@ def hole_kp_rows(result) -> list[dict]:
     if not h:
         return []
     occ = np.asarray(h["occupation"], dtype=float)
+    names = [str(c.get("name", "")) for c in result.channels]
     keep = np.flatnonzero(occ >= KP_LISTED_CM2)
     if keep.size < 2:
         keep = np.arange(min(2, occ.size))
     rows = []
     for i in keep:
         i = int(i)
+        ch = int(h["channel"][i]) if "channel" in h else -1
         rows.append({"index": i, "energy_meV": 1e3 * float(h["energy"][i]),
+                     "channel": names[ch] if 0 <= ch < len(names) else None,
                      "occupation_cm2": float(occ[i]),
                      "mass_band_edge_m0": float(h["mass_band_edge"][i]),
                      "mass_fermi_m0": float(h["mass_fermi"][i]),
@@ -406,11 +409,12 @@ def print_summary(fig, console) -> None:
     if fig.get("hole_kp"):
         k = Table(title="Multiband hole states (/subbands/hole_kp; one spin branch each)",
                   title_justify="left")
-        for col in ("state", "E - E_F (meV)", "population (cm⁻²)", "m∥ at k=0 (m0)",
+        for col in ("state", "E - E_F (meV)", "population (cm⁻²)", "channel", "m∥ at k=0 (m0)",
                     "m∥ at E_F (m0)", "k_F (nm⁻¹)", "spin splitting (meV)"):
             k.add_column(col, justify="left" if col == "state" else "right")
         for r in fig["hole_kp"]:
             k.add_row(f"H{r['index']}", fmt(r["energy_meV"], "meV", sign=True), sci(r["occupation_cm2"]),
+                      r.get("channel") or "–",
                       fmt(r["mass_band_edge_m0"], "mass"), fmt(r["mass_fermi_m0"], "mass"),
                       fmt(r["k_fermi_nm"], "plain"), fmt(r["spin_splitting_meV"], "plain"))
         console.print(k)

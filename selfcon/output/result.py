@@ -431,6 +431,8 @@ def _write_subbands(f, result: Result) -> None:
         g.coord("z", result.z)
         g.coord("k_parallel", result.hole_kp["k_parallel"])
         for name in KP_FIELDS:
+            if name not in result.hole_kp:     # a result read from a file written before the field
+                continue
             dsid = g.var(name, result.hole_kp[name])
             if name == "dispersion":
                 set_attrs(dsid, [("direction", "axial approximation (any in-plane direction)")])

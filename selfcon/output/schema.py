@@ -373,6 +373,9 @@ _r("subbands/hole_kp/dispersion_110", "eV", "hole dispersion along [110]",
 _r("subbands/hole_kp/wavefunction", "nm-1/2", "envelope function components",
    "|psi_j(z)| of each basis state j at k_par = 0; sum over j of the integral of |psi_j|^2 dz = 1",
    dims=("z", "kp_state", "component"), when="physics.hole_model is kp4 or kp6")
+_r("subbands/hole_kp/channel", "1", "channel of the state",
+   "index into /channels of the channel holding most of the state's density at k_par = 0 (sum over j "
+   "of |psi_j|^2; more than half of it), -1 for none", dims=("kp_state",), when="physics.hole_model is kp4 or kp6")
 _r("subbands/hole_kp/mass_band_edge", "m0", "in-plane mass at k_par = 0",
    "hbar^2 k / (dE/dk) over the first k_par step (negative: the hole energy falls as k_par grows)",
    dims=("kp_state",), when="physics.hole_model is kp4 or kp6")
