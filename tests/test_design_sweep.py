@@ -140,3 +140,16 @@ def test_cli_json(capsys):
     assert data["channel_layer"] == "channel"
     assert len(data["bias_V"]) == 2 and all(c > 0 for c in data["capacitance_F_cm2"])
     _ = math
+
+
+def test_sweep_table_states_what_was_run(capsys):
+    # issue 13: a sweep's text output, like the run summary, says the temperature and each
+    # --set override with the deck's own value, and titles an overridden deck "deck title: ..."
+    from selfcon.cli import main
+    deck = selfcon.load_deck(DECK)
+    assert main(["sweep-bias", str(DECK), "--from", "-0.6", "--to", "-0.6", "--step", "0.1",
+                 "--set", "temperature=12"]) == 0
+    out = capsys.readouterr().out.splitlines()
+    assert out[0] == f"deck title: {deck.title}"
+    assert out[1].startswith("T = 12 K")
+    assert out[2] == f"set: temperature = 12 K (deck: {deck.temperature:g})"

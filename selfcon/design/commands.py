@@ -101,6 +101,18 @@ def _load(args):
 
 # --------------------------------------------------------------------------- sweep-bias
 
+def _sweep_heading(deck) -> list[str]:
+    """What the sweep table was run on, as the run summary states it (output/heading.py): the
+    title (``deck title: ...`` when overridden), the temperature and each ``--set`` override."""
+    from selfcon.output.heading import override_notes
+    notes = override_notes(deck)
+    lines = [f"deck title: {deck.title}" if notes else deck.title,
+             f"T = {fmt(deck.temperature, 'K')} K, gate bias swept"]
+    if notes:
+        lines.append("set: " + "; ".join(notes))
+    return [line for line in lines if line]
+
+
 def cmd_sweep_bias(args) -> int:
     from selfcon.design.sweep import bias_points, sweep_bias
     from selfcon.solver.threads import configure
@@ -131,6 +143,8 @@ def cmd_sweep_bias(args) -> int:
                                     "converged": sw.converged.tolist(), "channel": sw.channel, "channel_layer": sw.channel_layer,
                                     "analysis": sw.analysis, "output": str(out) if out else None}), indent=1))
     else:
+        for line in _sweep_heading(deck):
+            print(line)
         print(f"{'bias V':>8} {'n_s channel':>12} {'n doping':>10} {'Q C/cm2':>10} {'C F/cm2':>10} {'it':>3}")
         for i in range(sw.bias.size):
             print(f"{fmt(sw.bias[i], 'V', sign=True):>8} {fmt(sw.channel_density[i], 'sheet'):>12} "
