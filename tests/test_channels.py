@@ -225,3 +225,18 @@ def test_transitions_box_states_orthonormal():
         # same box sines: <n|m> = delta_nm (discrete sine orthogonality, exact up to rounding)
         assert ov == pytest.approx(1.0 if ei == hi else 0.0, abs=1e-12)
     assert set(t["hole_band"]) == {"heavy_hole", "light_hole"}
+
+
+def test_a_negligible_peak_in_a_tail_claims_no_flank():
+    """A channel's density decaying into a barrier with a spurious bump of 1e-24 of its peak far
+    down the tail (the noise of a multiband hole tail): the bump's run stops where the density
+    rises again, so it holds nothing, and the channel's interval ends where its tail falls below
+    1e-3 of its peak (analytic: exp(-2 (z - 10)) < 1e-3 beyond z = 10 + ln(1000) / 2 = 13.5 nm)."""
+    z = np.linspace(0.0, 60.0, 601)
+    _, _, _, w = half_widths(z)
+    dens = 1e18 * np.where(z < 10.0, np.exp(-(z - 10.0) ** 2), np.exp(-2.0 * (z - 10.0)))
+    dens += 1e-6 * np.exp(-((z - 50.0) / 10.0) ** 2)       # the bump at 50 nm
+    u = np.zeros(z.size)                                   # one flat basin, no barrier top
+    runs = chx.candidate_runs(w, u, dens)
+    assert len(runs) == 1
+    assert z[runs[0][1]] == pytest.approx(10.0 + 0.5 * np.log(1000.0), abs=0.1)

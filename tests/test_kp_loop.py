@@ -232,6 +232,7 @@ def test_the_hole_channel_holds_the_multiband_states(kp_solves):
     assert len(rows) == 1
     ch = rows[0]
     assert ch["main"] and r.summary["main_channel"] == ch["name"]
+    assert 66.0 < ch["top_nm"] and ch["bottom_nm"] < 85.0          # the deck's well: 67-82 nm
     z = np.asarray(r.z)
     w = Mesh.from_nodes(z).w
     p = np.asarray(r.profile["hole_density"]) * 1e-7                # cm^-3 * cm/nm -> cm^-2 per nm

@@ -12,8 +12,8 @@ electrons, -Ev for holes, so that carriers sit in the minima of U) and density d
 1. the nodes are split into *basins* at the local maxima of U (a flat top is split at
    its middle);
 2. in each basin, every local density peak, highest first, makes a candidate: the run of
-   nodes around it where d exceeds ``PEAK_FRACTION`` = 1e-3 of that peak (not entering an
-   earlier run); candidates holding less than ``FALLBACK_FLOOR_CM2`` = 1e3 cm^-2 are dropped;
+   nodes around it where d exceeds ``PEAK_FRACTION`` = 1e-3 of that peak and falls away
+   from it (not entering an earlier run); candidates holding less than ``FALLBACK_FLOOR_CM2`` = 1e3 cm^-2 are dropped;
 3. a candidate whose density is mostly held by subbands belonging to other candidates (the
    tail of a neighbour's subbands beyond a barrier top) is dropped;
 4. neighbouring candidates are merged (across layer boundaries) while the barrier between
@@ -262,8 +262,8 @@ def candidate_runs(w, u, density, *, floor_cm2: float = FALLBACK_FLOOR_CM2,
     """Runs of nodes around the local density peaks, inside the basins of ``u``, top to bottom.
 
     Peaks are taken from the highest down; each run spans the nodes around its peak where
-    the density exceeds ``peak_fraction`` of that peak, without leaving its basin or entering
-    an earlier run.  Runs holding less than ``floor_cm2`` are left out.
+    the density exceeds ``peak_fraction`` of that peak and does not rise again, without
+    leaving its basin or entering an earlier run.  Runs holding less than ``floor_cm2`` are left out.
     """
     w = np.asarray(w, dtype=float)
     dens = np.asarray(density, dtype=float)
@@ -280,9 +280,12 @@ def candidate_runs(w, u, density, *, floor_cm2: float = FALLBACK_FLOOR_CM2,
                 continue
             thr = peak_fraction * dens[p]
             i0 = i1 = int(p)
-            while i0 > a and dens[i0 - 1] > thr and not taken[i0 - 1]:
+            # downhill only: a run stops where the density rises again (past it lies another
+            # peak's run), so a negligible peak (the noise of a multiband tail deep in a
+            # barrier) cannot claim the flank of a larger peak's tail and merge it away
+            while i0 > a and thr < dens[i0 - 1] <= dens[i0] and not taken[i0 - 1]:
                 i0 -= 1
-            while i1 < b and dens[i1 + 1] > thr and not taken[i1 + 1]:
+            while i1 < b and thr < dens[i1 + 1] <= dens[i1] and not taken[i1 + 1]:
                 i1 += 1
             taken[i0:i1 + 1] = True
             if _sheet(w, dens, i0, i1) >= floor_cm2:
