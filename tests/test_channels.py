@@ -240,3 +240,33 @@ def test_a_negligible_peak_in_a_tail_claims_no_flank():
     runs = chx.candidate_runs(w, u, dens)
     assert len(runs) == 1
     assert z[runs[0][1]] == pytest.approx(10.0 + 0.5 * np.log(1000.0), abs=0.1)
+
+
+def test_merge_runs_one_pass_equals_the_restarting_scan():
+    # the docstring's definition, written out as the scan that restarts after every merge
+    # (the reference), against the one-pass merge on random edges and runs
+    from selfcon.output.channels import merge_runs
+
+    def restarting(runs, u, kT, merge_kt):
+        runs = [list(r) for r in sorted(runs)]
+        merged = True
+        while merged and len(runs) > 1:
+            merged = False
+            for j in range(len(runs) - 1):
+                (a0, a1), (b0, b1) = runs[j], runs[j + 1]
+                top = float(np.max(u[a1:b0 + 1]))
+                floor = max(float(np.min(u[a0:a1 + 1])), float(np.min(u[b0:b1 + 1])))
+                if top - floor < merge_kt * kT:
+                    runs[j] = [a0, b1]
+                    del runs[j + 1]
+                    merged = True
+                    break
+        return [(int(a), int(b)) for a, b in runs]
+
+    rng = np.random.default_rng(7)
+    for _ in range(300):
+        u = np.cumsum(rng.normal(0.0, 0.004, 400))
+        cuts = np.sort(rng.choice(np.arange(1, 399), size=2 * int(rng.integers(1, 12)), replace=False))
+        runs = [(int(a), int(b)) for a, b in zip(cuts[::2], cuts[1::2])]
+        kT = float(rng.uniform(0.0003, 0.03))
+        assert merge_runs(runs, u, kT, 2.0) == restarting(runs, u, kT, 2.0)

@@ -297,19 +297,26 @@ def merge_runs(runs, u, kT: float, merge_kt: float = MERGE_KT) -> list[tuple[int
     """Merge neighbouring runs while the barrier between them (max u between them minus the
     higher of their two minima) is below ``merge_kt`` kT."""
     u = np.asarray(u, dtype=float)
+    # One pass, left to right: merging a pair only lowers the merged run's minimum, so a pair
+    # to its left that did not merge never will (the barrier between them is unchanged and
+    # the higher minimum can only drop); the pairs are merged in the same order as by
+    # restarting the scan after each merge, without its quadratic count of array scans.
     runs = [list(r) for r in sorted(runs)]
-    merged = True
-    while merged and len(runs) > 1:
-        merged = False
-        for j in range(len(runs) - 1):
-            (a0, a1), (b0, b1) = runs[j], runs[j + 1]
-            top = float(np.max(u[a1:b0 + 1]))
-            floor = max(float(np.min(u[a0:a1 + 1])), float(np.min(u[b0:b1 + 1])))
-            if top - floor < merge_kt * kT:
-                runs[j] = [a0, b1]
-                del runs[j + 1]
-                merged = True
-                break
+    if len(runs) < 2:
+        return [(int(a), int(b)) for a, b in runs]
+    out = [runs[0]]
+    low = float(np.min(u[runs[0][0]:runs[0][1] + 1]))
+    for b0, b1 in runs[1:]:
+        a0, a1 = out[-1]
+        top = float(np.max(u[a1:b0 + 1]))
+        low_b = float(np.min(u[b0:b1 + 1]))
+        if top - max(low, low_b) < merge_kt * kT:
+            out[-1] = [a0, b1]
+            low = float(np.min(u[a0:b1 + 1]))
+        else:
+            out.append([b0, b1])
+            low = low_b
+    runs = out
     return [(int(a), int(b)) for a, b in runs]
 
 

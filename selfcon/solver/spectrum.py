@@ -110,7 +110,7 @@ def full_spectrum(st, phi, loop_states: dict, n_states: int | None = None) -> di
         energy = np.concatenate([p[0] for p in parts])
         order = np.argsort(sign * energy, kind="stable")
         energy = energy[order]
-        psi = np.concatenate([p[1] for p in parts], axis=1)[:, order]
+        psi = np.take(np.concatenate([p[1] for p in parts], axis=1), order, axis=1)
         m_par = np.concatenate([p[2] for p in parts])[order]
         region = np.concatenate([p[3] for p in parts])[order]
         populated = np.concatenate([p[4] for p in parts])[order]
