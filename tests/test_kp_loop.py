@@ -205,6 +205,10 @@ def test_summaries_list_the_multiband_hole_states(kp_solves):
     assert [r["index"] for r in rows][:2] == [0, 1]
     assert rows[0]["occupation_cm2"] == pytest.approx(float(h["occupation"][0]))
     assert any(line.startswith("multiband holes: 2 occupied states") for line in plain_summary(fig))
+    # the headline count includes the multiband subbands (Kramers pairs): the 2DHG's one
+    # populated pair, below the holes' E_F at 4 K (a degenerate gas: common practice)
+    assert fig["occupied_subbands"] == 1 and fig["below_fermi_subbands"] >= 1
+    assert any("1 occupied subband (1 below E_F)" in line for line in plain_summary(fig))
     out = io.StringIO()
     print_summary(fig, Console(file=out, width=160))
     assert "Multiband hole states" in out.getvalue()

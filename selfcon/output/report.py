@@ -230,6 +230,14 @@ def summary_figures(result, output: str | None = None) -> dict[str, Any]:
     total_n = summary.get("electron_sheet_density_cm2", sum(r["electron_sheet_density_cm2"] for r in layers))
     total_p = summary.get("hole_sheet_density_cm2", sum(r["hole_sheet_density_cm2"] for r in layers))
     subbands = subband_rows(result)
+    occupied = sum(1 for r in subbands if r["occupied"])
+    below = sum(1 for r in subbands if r["below_fermi"])
+    kp = getattr(result, "hole_kp", None) or {}
+    if kp:             # multiband holes: their subbands are Kramers pairs (rows 2p, 2p + 1)
+        occupied += sum(int(c.get("occupied_subbands", 0)) for c in result.channels
+                        if c.get("carrier") == "hole")
+        ef_h = float(summary.get("hole_fermi_level_eV", 0.0))
+        below += int(np.sum(np.asarray(kp["energy"], dtype=float)[0::2] > ef_h))
     figures = {
         "title": result.title,
         "heading": heading_lines(result),
@@ -243,8 +251,8 @@ def summary_figures(result, output: str | None = None) -> dict[str, Any]:
         "output": output,
         "total": {"electron_sheet_density_cm2": total_n, "hole_sheet_density_cm2": total_p},
         "layers": layers,
-        "occupied_subbands": sum(1 for r in subbands if r["occupied"]),
-        "below_fermi_subbands": sum(1 for r in subbands if r["below_fermi"]),
+        "occupied_subbands": occupied,
+        "below_fermi_subbands": below,
         "subbands": subbands,
         "channel": channel_figures(result),
         "channels": channel_rows(result),
