@@ -123,8 +123,9 @@ def solve_channels(deck, st, loop, n, p, n_valleys, ec, ev) -> chx.SolvedChannel
     n, p, n_valleys: node densities (nm^-3); ec, ev: band edges at the nodes (eV)."""
     qn_e = np.zeros(st.n_nodes, dtype=bool)
     qn_h = np.zeros(st.n_nodes, dtype=bool)
+    from selfcon.solver.steps import VALLEY_CARRIER
     for band, bs in loop.states.items():
-        if band == "electron":
+        if band == "electron" or band in VALLEY_CARRIER:     # Gamma and the X/L valley sets
             qn_e |= bs.quantum_nodes
         else:
             qn_h |= bs.quantum_nodes
