@@ -115,11 +115,10 @@ def solve_region_state(h_cell, w, v_node, inv_mass_cell, index: int, workspace=N
     return float(e[0]), psi[:, 0]
 
 
-def refine_region_state(h_cell, w, v_node, inv_mass_cell, index: int, psi_guess, workspace=None):
-    """State number ``index`` of :func:`solve_region`'s problem by Rayleigh-quotient iteration
-    from a nearby wavefunction ``psi_guess`` (n,) (the same state at a slightly different
-    Hamiltonian): (energy eV, psi (n,)), or None when the iteration does not settle on that
-    state (a Sturm count checks the index); O(n), no bisection."""
+def assembled(h_cell, w, v_node, inv_mass_cell, workspace=None):
+    """The symmetric tridiagonal form of :func:`solve_region`'s problem, written into
+    ``workspace`` (an :class:`EigenWorkspace`, made or resized to the n = w.size nodes):
+    (workspace, the kernels module)."""
     n = w.size
     if workspace is None:
         workspace = EigenWorkspace(n)
@@ -130,6 +129,16 @@ def refine_region_state(h_cell, w, v_node, inv_mass_cell, index: int, psi_guess,
                               np.ascontiguousarray(v_node, dtype=float),
                               np.ascontiguousarray(inv_mass_cell, dtype=float),
                               workspace.d, workspace.e)
+    return workspace, kern
+
+
+def refine_region_state(h_cell, w, v_node, inv_mass_cell, index: int, psi_guess, workspace=None):
+    """State number ``index`` of :func:`solve_region`'s problem by Rayleigh-quotient iteration
+    from a nearby wavefunction ``psi_guess`` (n,) (the same state at a slightly different
+    Hamiltonian): (energy eV, psi (n,)), or None when the iteration does not settle on that
+    state (a Sturm count checks the index); O(n), no bisection."""
+    n = w.size
+    workspace, kern = assembled(h_cell, w, v_node, inv_mass_cell, workspace)
     u = np.asarray(psi_guess, dtype=float)[1:-1] * np.sqrt(w[1:-1])
     norm = float(np.sqrt(np.dot(u, u)))
     if not np.isfinite(norm) or norm == 0.0:
@@ -148,15 +157,7 @@ def solve_region_window(h_cell, w, v_node, inv_mass_cell, first: int, count: int
     problem, solved together so that close ones come out orthogonal: (energies (count,) eV,
     psi (n, count))."""
     n = w.size
-    if workspace is None:
-        workspace = EigenWorkspace(n)
-    else:
-        workspace.resize(n)
-    kern = _kernels()
-    kern.assemble_tridiagonal(np.ascontiguousarray(h_cell, dtype=float), w,
-                              np.ascontiguousarray(v_node, dtype=float),
-                              np.ascontiguousarray(inv_mass_cell, dtype=float),
-                              workspace.d, workspace.e)
+    workspace, kern = assembled(h_cell, w, v_node, inv_mass_cell, workspace)
     energies, u = workspace.eigh(first + count, first=first + 1)
     psi = np.empty((n, energies.size))
     kern.vectors_to_wavefunctions(np.ascontiguousarray(u), w, psi)
@@ -203,12 +204,7 @@ def solve_region(h_cell, w, v_node, inv_mass_cell, n_states, workspace=None, bel
     k = min(int(n_states), m)
     if k <= 0:
         return np.empty(0), np.zeros((n, 0))
-    if workspace is None:
-        workspace = EigenWorkspace(n)
-    else:
-        workspace.resize(n)
-    kern = _kernels()
-    kern.assemble_tridiagonal(h_cell, w, v_node, inv_mass_cell, workspace.d, workspace.e)
+    workspace, kern = assembled(h_cell, w, v_node, inv_mass_cell, workspace)
     if below is not None:
         k = min(k, count_below(workspace.d, workspace.e, float(below)))
         if k <= 0:
