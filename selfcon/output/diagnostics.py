@@ -83,6 +83,15 @@ Thresholds (our own choices, stated here and in README.md, "Design recipes"):
   degenerate, while interfaces split them (by tenths of a meV or less in Si/SiGe, from
   memory), depending on the interface sharpness and steps, the vertical field and the
   alloy disorder.
+* strained-offset model (``strained_offset``): a layer of the library alloy InGaAs (or a
+  deck material based on it that does not set ``valence_band_offset``) under compressive
+  strain of at least ``CRITICAL_MIN_STRAIN`` (pseudomorphic on GaAs, the pHEMT channel) takes
+  its valence offset from the 2001 review's InGaAs bowing (-0.38 eV), which is fitted to
+  InP-matched layers.  Strained In_xGa_(1-x)As/GaAs wells measure a deeper conduction offset
+  (Qc = 0.65-0.70, Huang et al., Appl. Phys. Lett. 55, 2026 (1989); dEc = 0.814 x - 0.21 x^2
+  eV from C-V profiling, Zubkov et al., arXiv cond-mat/0307107 (2003)), which the review's
+  binary offsets interpolated linearly reproduce (tests/test_strain.py).  The line names the
+  shift x(1-x)*0.38 eV and the linear valence offset to set in a ``[material.NAME]``.
 * type-II interfaces with an interface gap of at least ``TYPE_II_GAP_EV`` = 1 eV are not
   flagged (wide-gap nitride pairs staggered by strain).
 
@@ -111,6 +120,8 @@ from typing import Callable
 import numpy as np
 
 from selfcon.constants import KB_EV, NM_PER_CM
+from selfcon.input.materials import ALLOYS, BINARIES
+from selfcon.input.materials.alloys import bowing_value
 from selfcon.model.mesh import Mesh
 from selfcon.output.channels import BAND_CARRIER, STATE_LABEL
 from selfcon.output.numbers import fmt
@@ -705,6 +716,54 @@ def check_critical_thickness(result, structure, deck=None) -> list[str]:
                    f"{100 * eps:+.2f} %, beyond the Matthews-Blakeslee critical thickness {hc:.1f} nm of "
                    "that mean strain (average-strain approximation for a stack under one cap): the "
                    "stack may relax; add strain-compensating layers or thin it")
+    return out
+
+
+#: library alloys whose review valence-offset bowing is fitted to lattice-matched layers and
+#: misses their strained offsets on the lattice of the first binary (see the module docstring)
+STRAINED_OFFSET_ALLOYS = ("InGaAs",)
+
+
+@register_check("strained_offset")
+def check_strained_offset(result, structure, deck=None) -> list[str]:
+    """Compressively strained InGaAs whose conduction offset comes from the review's
+    InP-fitted valence-offset bowing (the measured strained offsets are deeper)."""
+    sm = getattr(structure, "strain", None)
+    if sm is None or not sm.strained or getattr(sm, "crystal", "zincblende") != "zincblende":
+        return []
+    deck = deck_of(result, deck)
+    out = []
+    for L in sm.layers:
+        if not L.strained or L.eps_xx > -CRITICAL_MIN_STRAIN:
+            continue
+        info = structure.layers[L.index]
+        local = deck.material(info.material)
+        alloy, x = info.material, None
+        if local is not None:
+            if local.params.get("valence_band_offset") is not None:
+                continue                    # the deck chose its own offset
+            alloy, x = local.base, local.x
+        if alloy not in STRAINED_OFFSET_ALLOYS:
+            continue
+        if x is None:
+            xs = [v for v in (info.x_top, info.x_bottom) if v is not None]
+            if not xs:
+                continue
+            x = 0.5 * (min(xs) + max(xs))
+        a = ALLOYS[alloy]
+        bow = bowing_value(a.bowing["valence_band_offset"], x)
+        shift = -x * (1.0 - x) * bow                # eV the bowing raises the valence edge
+        if shift <= 0.0:
+            continue
+        linear = ((1.0 - x) * BINARIES[a.end0]["valence_band_offset"].value
+                  + x * BINARIES[a.end1]["valence_band_offset"].value)
+        out.append(f"band offset of strained layer {info.name!r} ({alloy} x = {x:.3g}, {100 * L.eps_xx:+.2f} % in-plane "
+                   f"strain): its valence offset carries the 2001 review's {alloy} bowing ({bow:+.2f} eV, "
+                   f"fitted to InP-matched layers), which lifts the valence edge by {1e3 * shift:.0f} meV and "
+                   f"makes the conduction well that much shallower than measured strained wells on GaAs "
+                   f"(Qc about 0.65); for the measured offsets give the layer a [material.NAME] with base = "
+                   f"\"{alloy}\", x = {x:.3g} and valence_band_offset = {linear:.4g} (the binaries' offsets "
+                   "interpolated linearly)")
     return out
 
 
