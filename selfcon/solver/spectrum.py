@@ -63,11 +63,17 @@ def bound_mask(st, phi, band: str, energy, region) -> np.ndarray:
     """True for the states below the band edge at both ends of their region (holes: above Ev)."""
     sign = _specs()[band][3]
     energy = np.asarray(energy, dtype=float)
-    out = np.zeros(energy.size, dtype=bool)
-    for k, (e, r) in enumerate(zip(energy, np.asarray(region))):
-        top, bottom = region_edges(st, phi, band, int(r))
-        out[k] = sign * e < sign * top and sign * e < sign * bottom
-    return out
+    region = np.asarray(region, dtype=np.int64)
+    if energy.size == 0:
+        return np.zeros(0, dtype=bool)
+    # region_edges of every region at once (the same differences, one array operation)
+    ends = np.asarray(st.regions, dtype=np.int64).reshape(-1, 2)
+    cell = st.cell[_specs()[band][0]]
+    phi = np.asarray(phi, dtype=float)
+    top = cell[ends[:, 0]] - phi[ends[:, 0]]
+    bottom = cell[ends[:, 1] - 1] - phi[ends[:, 1]]
+    e = sign * energy
+    return (e < sign * top[region]) & (e < sign * bottom[region])
 
 
 def full_spectrum(st, phi, loop_states: dict, n_states: int | None = None) -> dict[str, BandSpectrum]:
