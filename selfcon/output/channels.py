@@ -137,6 +137,16 @@ class Levels:
     in_plane_mass: np.ndarray
     pair: np.ndarray | None = None
 
+    def weighted(self, w) -> np.ndarray:
+        """(N, k) w_i |psi_i,k|^2: each state's share of |psi|^2 per node, for the dual widths
+        ``w`` (nm).  Computed once per ``w`` array (the attribution, the tail and coupling
+        tests of one analysis all use it); the states must not change after the first call."""
+        cached = self.__dict__.get("_weighted")
+        if cached is None or cached[0] is not w:
+            cached = (w, np.asarray(self.psi, dtype=float) ** 2 * np.asarray(w, dtype=float)[:, None])
+            self.__dict__["_weighted"] = cached
+        return cached[1]
+
 
 @dataclass
 class CarrierProfile:
@@ -245,16 +255,11 @@ def basins(u) -> list[tuple[int, int]]:
     scale = max(float(np.max(np.abs(u))), 1.0)
     s = np.sign(np.where(np.abs(d) > 1e-12 * scale, d, 0.0))
     nz = np.flatnonzero(s)
-    cuts = []
-    for a, b in zip(nz[:-1], nz[1:]):
-        if s[a] > 0 and s[b] < 0:                # rising cell a, then flat, then falling cell b
-            cuts.append((a + 1 + b) // 2)        # nodes a+1..b are the top
-    out, start = [], 0
-    for c in cuts:
-        out.append((start, c))
-        start = c + 1
-    out.append((start, n - 1))
-    return out
+    a, b = nz[:-1], nz[1:]
+    # rising cell a, then flat, then falling cell b: nodes a+1..b are the top
+    cuts = ((a + 1 + b)[(s[a] > 0) & (s[b] < 0)] // 2).tolist()
+    starts = [0] + [c + 1 for c in cuts]
+    return list(zip(starts, cuts + [n - 1]))
 
 
 def candidate_runs(w, u, density, *, floor_cm2: float = FALLBACK_FLOOR_CM2,
@@ -270,23 +275,28 @@ def candidate_runs(w, u, density, *, floor_cm2: float = FALLBACK_FLOOR_CM2,
     n = dens.size
     runs = []
     taken = np.zeros(n, dtype=bool)
+    up = dens[:-1] <= dens[1:]          # up[j]: dens[j] <= dens[j + 1]
+    down = dens[1:] <= dens[:-1]        # down[j]: dens[j + 1] <= dens[j]
+    is_peak = dens > 0                  # >= both neighbours (the mesh ends have one)
+    is_peak[1:] &= up
+    is_peak[:-1] &= down
     for a, b in basins(u):
-        seg = np.arange(a, b + 1)
-        left = np.r_[-np.inf, dens[:-1]][seg]
-        right = np.r_[dens[1:], -np.inf][seg]
-        peaks = seg[(dens[seg] > 0) & (dens[seg] >= left) & (dens[seg] >= right)]
-        for p in peaks[np.argsort(-dens[peaks], kind="stable")]:
+        peaks = a + np.flatnonzero(is_peak[a:b + 1])
+        for p in peaks[np.argsort(-dens[peaks], kind="stable")].tolist():
             if taken[p]:
                 continue
             thr = peak_fraction * dens[p]
-            i0 = i1 = int(p)
             # downhill only: a run stops where the density rises again (past it lies another
             # peak's run), so a negligible peak (the noise of a multiband tail deep in a
-            # barrier) cannot claim the flank of a larger peak's tail and merge it away
-            while i0 > a and thr < dens[i0 - 1] <= dens[i0] and not taken[i0 - 1]:
-                i0 -= 1
-            while i1 < b and thr < dens[i1 + 1] <= dens[i1] and not taken[i1 + 1]:
-                i1 += 1
+            # barrier) cannot claim the flank of a larger peak's tail and merge it away.
+            # Left: nodes j = p-1, p-2, ... >= a while thr < dens[j] <= dens[j+1], j not taken
+            ok = (dens[a:p] > thr) & up[a:p] & ~taken[a:p]
+            stop = np.flatnonzero(~ok)
+            i0 = a + int(stop[-1]) + 1 if stop.size else a
+            # right: nodes j = p+1, p+2, ... <= b while thr < dens[j] <= dens[j-1], j not taken
+            ok = (dens[p + 1:b + 1] > thr) & down[p:b] & ~taken[p + 1:b + 1]
+            stop = np.flatnonzero(~ok)
+            i1 = p + int(stop[0]) if stop.size else b
             taken[i0:i1 + 1] = True
             if _sheet(w, dens, i0, i1) >= floor_cm2:
                 runs.append((i0, i1))
@@ -346,7 +356,7 @@ def drop_tails(runs, w, density, levels) -> list[tuple[int, int]]:
         k = np.asarray(lv.energy).size
         if k == 0:
             continue
-        p2 = np.asarray(lv.psi, dtype=float) ** 2 * w[:, None]
+        p2 = lv.weighted(w)
         shares = np.array([p2[a:b + 1].sum(axis=0) for a, b in runs])          # (R, k)
         best = np.argmax(shares, axis=0)
         owned = shares[best, np.arange(k)] > ATTRIBUTION_SHARE
@@ -368,7 +378,7 @@ def merge_coupled(runs, w, density, levels) -> list[tuple[int, int]]:
     dens = np.asarray(density, dtype=float)
     runs = [list(r) for r in sorted(runs)]
     # each band's w |psi|^2 once, not once per pair of runs (a 100-well stack has 100 runs)
-    bands = [(np.asarray(lv.psi, dtype=float) ** 2 * w[:, None], np.asarray(lv.occupation, dtype=float))
+    bands = [(lv.weighted(w), np.asarray(lv.occupation, dtype=float))
              for lv in levels if np.asarray(lv.energy).size]
     merged = True
     while merged and len(runs) > 1:
@@ -491,15 +501,25 @@ def analyse(z, w, kT: float, profiles: dict, levels, layers=(), requests=()) -> 
         mine = []             # (kinetic energy, band, index, energy, population, mass, subband)
         sign = CARRIER_SIGN[c.carrier]
         fermi = 0.0 if prof is None else float(prof.fermi)
+        terms = [rho[:, None]]            # rho, then each state's population density, in order
         for lv in levels:
             if BAND_CARRIER[lv.band] != c.carrier:
                 continue
-            for k in np.flatnonzero(attribution[lv.band] == j):
-                e = float(lv.energy[k])
-                sub = (lv.band, int(k) if lv.pair is None else int(lv.pair[k]))
-                mine.append((sign * (e - fermi), lv.band, int(k), e, float(lv.occupation[k]),
-                             float(lv.in_plane_mass[k]), sub))
-                rho += float(lv.occupation[k]) * NM_PER_CM * np.asarray(lv.psi[:, k], dtype=float) ** 2
+            ks = np.flatnonzero(attribution[lv.band] == j)
+            if ks.size == 0:
+                continue
+            energy, occ = np.asarray(lv.energy, dtype=float), np.asarray(lv.occupation, dtype=float)
+            mass = np.asarray(lv.in_plane_mass, dtype=float)
+            for k in ks.tolist():
+                e = float(energy[k])
+                sub = (lv.band, k if lv.pair is None else int(lv.pair[k]))
+                mine.append((sign * (e - fermi), lv.band, k, e, float(occ[k]), float(mass[k]), sub))
+            terms.append(np.asarray(lv.psi, dtype=float)[:, ks] ** 2 * (occ[ks] * NM_PER_CM))
+        if len(terms) > 1:
+            # rho + n_0 |psi_0|^2 + n_1 |psi_1|^2 + ..., added one state after the other
+            # (a cumulative sum runs left to right: the same sums as a loop over the states)
+            # (contiguous: np.dot of a strided column sums in another order)
+            rho = np.ascontiguousarray(np.cumsum(np.concatenate(terms, axis=1), axis=1)[:, -1])
         mine.sort(key=lambda t: t[0])
         c.states = [(t[1], t[2]) for t in mine]
         c.subband_density = float(sum(t[4] for t in mine))
@@ -513,7 +533,10 @@ def analyse(z, w, kT: float, profiles: dict, levels, layers=(), requests=()) -> 
             c.in_plane_mass = float(np.mean(masses)) if masses else math.nan   # mean of the branches
             if len(subs) > 1:
                 c.spacing = next(t[0] for t in mine if t[6] == subs[1]) - mine[0][0]
-        pops = [sum(t[4] for t in mine if t[6] == s) for s in subs]
+        pop_of = {}
+        for t in mine:                  # each subband's population, its branches in order
+            pop_of[t[6]] = pop_of.get(t[6], 0) + t[4]
+        pops = [pop_of[s] for s in subs]
         c.occupied_subbands = int(np.sum(occupied(pops, c.sheet_density)))
         norm = float(np.dot(w, rho))
         if norm > 0:
@@ -559,7 +582,7 @@ def _attribute(chans, levels, w) -> dict:
         idx = [j for j, c in enumerate(chans) if c.carrier == carrier]
         att = np.full(k, -1, dtype=np.int64)
         if idx and k:
-            p2 = np.asarray(lv.psi, dtype=float) ** 2 * w[:, None]
+            p2 = lv.weighted(w)
             shares = np.array([p2[chans[j].i0:chans[j].i1 + 1].sum(axis=0) for j in idx])   # (C, k)
             best = np.argmax(shares, axis=0)
             ok = shares[best, np.arange(k)] > ATTRIBUTION_SHARE
