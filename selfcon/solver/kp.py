@@ -45,6 +45,18 @@ DEGENERATE (Kramers pairs) are found together, as a block, and separated by Rayl
 Linear in the nodes.  (The banded reduction to tridiagonal form of LAPACK's zhbevx, behind
 scipy.linalg.eig_banded, costs O(N^2 nb): measured quadratic, so it is not used.)
 
+**Symmetry splits** (used by :func:`lowest_states`, same eigenvalues to rounding).  At
+k_par = 0 the matrix decouples exactly (:func:`zone_centre`): heavy holes alone, a scalar
+tridiagonal problem for the electron eigensolver (selfcon/solver/kernels/eigen.py), and
+light holes with the split-off holes of the same J_z sign, a two-component band problem;
+each level is a Kramers pair of equal energy.  At k_par != 0, in the axial approximation
+and along [100] and [110] with warping, a unitary T (:func:`split_transform`, the split of
+Broido and Sham, Phys. Rev. B 31, 888 (1985), found numerically as the symmetry commuting
+with every term) turns the matrix into two decoupled halves of 2 or 3 components, real in
+the phases chosen; each half has half the size and about half the band width, so a Sturm
+count costs about a tenth.  Where a check finds the blocks not decoupled (to SPLIT_TOL of
+their largest entry) the whole matrix is solved.
+
 **In-plane directions.**  ``direction`` is an angle from [100] in the (001) plane, or
 ``"axial"``: the axial approximation (the warping term of R averaged, g2, g3 -> (g2 + g3)/2
 in R only; Chuang 1995), under which E(k) does not depend on the direction.
@@ -62,7 +74,8 @@ from selfcon.constants import HBAR2_2M0
 __all__ = ["KpMaterial", "KpStates", "MODELS", "basis", "cartesian_blocks", "bulk_matrix",
            "assemble_blocks", "band_matrix", "dense_matrix", "lowest_banded", "lowest_states",
            "DEGENERATE", "region_material", "dispersion", "annulus_states", "annulus_sheets",
-           "grid_top", "region_dispersion", "K_POINTS", "fermi_sea_top", "collect_states", "subband_figures", "along_direction"]
+           "grid_top", "region_dispersion", "K_POINTS", "fermi_sea_top", "collect_states", "subband_figures", "along_direction",
+           "split_transform", "split_blocks", "zone_centre", "ZONE_CENTRE_GROUPS", "SPLIT_TOL"]
 
 #: hole model name -> number of bands
 MODELS = {"kp4": 4, "kp6": 6}
@@ -353,6 +366,208 @@ def lowest_banded(ab, n_states: int, rng_seed: int = 1, tol: float = 1e-5, lower
     return vals[order], vecs[:, order]
 
 
+# --------------------------------------------------------------------------- symmetry splits
+
+#: picks of the J states whose projections span each half of a Broido-Sham split (heavy,
+#: light, split-off first); the first pick that makes the halves real is kept
+_PICKS = {6: (((0, 2, 5), (3, 1, 4)), ((0, 1, 4), (3, 2, 5))),
+          4: (((0, 2), (3, 1)), ((0, 1), (3, 2)))}
+#: off-block and imaginary parts below this fraction of the largest entry count as zero
+SPLIT_TOL = 1e-12
+_SPLITS: dict = {}
+
+
+def _generic_blocks(nb, c, s, axial):
+    """Blocks of a well of four cells with random parameters at three k_par along (c, s): the
+    matrices every symmetry of the model along that direction must commute with."""
+    rng = np.random.default_rng(20260)
+    cells = 4
+    mat = KpMaterial(*(rng.uniform(0.5, 3.0, cells) for _ in range(4)), rng.uniform(-0.3, 0.3, cells),
+                     *(rng.uniform(-3.0, 3.0, cells) for _ in range(3)),
+                     rng.uniform(-0.02, 0.02, cells), rng.uniform(-0.02, 0.02, cells))
+    h = rng.uniform(0.2, 0.5, cells)
+    w = np.r_[h[0] / 2, (h[1:] + h[:-1]) / 2, h[-1] / 2]
+    phi = rng.uniform(-0.1, 0.1, cells + 1)
+    out = []
+    for k in (0.0, 0.37, 1.3):
+        d, u = assemble_blocks(h, w, mat, phi, k * c, k * s, nb, axial=axial)
+        out += list(d) + list(u) + [x.conj().T for x in u]
+    return out
+
+
+def split_transform(nb: int, c: float, s: float, axial: bool):
+    """The unitary (nb, nb) T that splits the Hamiltonian along the in-plane direction (c, s)
+    = (cos, sin) of the angle from [100] into two decoupled halves, or None: (T, real).
+
+    In the axial approximation (any direction), and along [100] and [110] with the warped
+    Hamiltonian, the model has a symmetry that commutes with every term at every k_par along
+    the direction (the split of D. A. Broido and L. J. Sham, Phys. Rev. B 31, 888 (1985),
+    there for the 4x4 model): its two eigenspaces, each half of the J states, are the
+    halves (2 + 2 for kp4, 3 + 3 for kp6).  It is found, not written out: the matrices that
+    commute with the blocks of a well with random parameters at three k_par (the nullspace
+    of a linear map, by SVD) are the identity and the symmetry; the eigenvectors of the
+    symmetry, inside each half projected from the J states of ``_PICKS`` (heavy, light,
+    split-off) and phased on a Hermitian combination, make the columns of T.  ``real``:
+    with these phases every block of both halves is real (so are the halves' eigenvectors).
+    Cached per (nb, direction, axial)."""
+    key = (nb, round(float(c), 14), round(float(s), 14), bool(axial))
+    if key in _SPLITS:
+        return _SPLITS[key]
+    mats = _generic_blocks(nb, c, s, axial)
+    eye = np.eye(nb)
+    lin = np.vstack([np.kron(eye, m.T) - np.kron(m, eye) for m in mats])
+    _, sv, vh = np.linalg.svd(lin)
+    null = vh[np.sum(sv > 1e-9 * sv[0]):].conj()
+    result = None
+    if null.shape[0] == 2:
+        sym = [x.reshape(nb, nb) - np.trace(x.reshape(nb, nb)) / nb * eye for x in null]
+        S = max(sym, key=lambda x: np.abs(x).max())
+        Hs = S + S.conj().T
+        if np.abs(Hs).max() < 1e-6 * np.abs(S).max():
+            Hs = 1j * (S - S.conj().T)
+        ev, vec = np.linalg.eigh(Hs)
+        half = nb // 2
+        herm = sum((j + 1.0) * m for j, m in enumerate(mats) if np.allclose(m, m.conj().T))
+        scale = max(np.abs(m).max() for m in mats)
+        if ev[half] - ev[half - 1] > 1e-6 * max(1.0, abs(ev).max()):
+            best = None
+            for picks in _PICKS[nb]:
+                T = np.zeros((nb, nb), dtype=complex)
+                for b, pick in enumerate(picks):
+                    part = vec[:, b * half:(b + 1) * half]
+                    proj = part @ part.conj().T
+                    cols = np.stack([proj[:, j] / np.linalg.norm(proj[:, j]) for j in pick], axis=1)
+                    sub = cols.conj().T @ herm @ cols
+                    for j in range(1, half):
+                        if abs(sub[0, j]) > 0:
+                            cols[:, j] *= sub[0, j] / abs(sub[0, j])
+                    T[:, b * half:(b + 1) * half] = cols
+                if np.abs(T.conj().T @ T - eye).max() > 1e-10:
+                    continue
+                tr = [T.conj().T @ m @ T for m in mats]
+                off = max(max(np.abs(x[:half, half:]).max(), np.abs(x[half:, :half]).max()) for x in tr)
+                imag = max(np.abs(x.imag).max() for x in tr)
+                if off > SPLIT_TOL * scale:
+                    continue
+                cand = (imag > SPLIT_TOL * scale, imag, T)
+                if best is None or cand[:2] < best[:2]:
+                    best = cand
+            if best is not None:
+                result = (best[2], not best[0])
+    _SPLITS[key] = result
+    return result
+
+
+def split_blocks(d, u, T, real: bool):
+    """The two decoupled halves of the blocks ``d`` (m, nb, nb), ``u`` (m-1, nb, nb) under
+    :func:`split_transform`'s T: [(d_a, u_a), (d_b, u_b)] (real arrays when ``real``), or None
+    when the blocks do not split (a material or term the symmetry does not hold for)."""
+    nb = d.shape[1]
+    half = nb // 2
+    Th = T.conj().T
+    dt = Th @ d @ T
+    ut = Th @ u @ T
+    scale = max(float(np.abs(d).max()), float(np.abs(u).max()) if u.size else 0.0, 1e-300)
+    for x in (dt, ut):
+        if x.size and max(np.abs(x[:, :half, half:]).max(), np.abs(x[:, half:, :half]).max()) > SPLIT_TOL * scale:
+            return None
+    if real:
+        if max(np.abs(dt.imag).max(), np.abs(ut.imag).max() if ut.size else 0.0) > SPLIT_TOL * scale:
+            return None
+        dt, ut = dt.real, ut.real
+    return [(np.ascontiguousarray(dt[:, sl, sl]), np.ascontiguousarray(ut[:, sl, sl]))
+            for sl in (slice(0, half), slice(half, nb))]
+
+
+#: the groups of J states the k_par = 0 matrix decouples into: heavy holes alone, and light
+#: holes with the split-off holes of the same J_z sign (each with its Kramers partner)
+ZONE_CENTRE_GROUPS = {4: (((0,), (3,)), ((1,), (2,))), 6: (((0,), (3,)), ((1, 4), (2, 5)))}
+
+
+def _group_lowest(d, u, grp, k, lower):
+    """Lowest ``k`` eigenpairs of the J states ``grp`` of the blocks: (values, vectors (m, g, k))."""
+    from selfcon.solver.kernels.eigen import lowest_eigenpairs
+    g = np.asarray(grp)
+    dg = d[:, g][:, :, g]
+    ug = u[:, g][:, :, g]
+    m = dg.shape[0]
+    k = min(k, m * g.size)
+    if g.size == 1:
+        w = np.empty(k)
+        z = np.empty((k, m))
+        lowest_eigenpairs(np.ascontiguousarray(dg[:, 0, 0].real), np.ascontiguousarray(ug[:, 0, 0].real),
+                          k, w, z)
+        return w, z.T.reshape(m, 1, k).astype(complex)
+    vals, vecs = lowest_banded(band_matrix(dg, ug), k, lower=lower)
+    return vals, vecs.reshape(m, g.size, vals.size)
+
+
+def zone_centre(d, u, nb: int, n_states: int, lower=None):
+    """The lowest ``n_states`` eigenpairs of the k_par = 0 blocks ``d``, ``u`` (hole kinetic
+    operator, interior nodes) from the problems they decouple into (ZONE_CENTRE_GROUPS:
+    heavy holes a scalar tridiagonal problem for selfcon/solver/kernels/eigen.py, light and
+    split-off holes a two-component band problem): (values (k,), vectors (m nb, k)) as
+    :func:`lowest_banded`, Kramers partners next to each other with equal values, or None if
+    the blocks are not decoupled (then solve them whole)."""
+    groups = ZONE_CENTRE_GROUPS[nb]
+    scale = max(float(np.abs(d).max()), 1e-300)
+    inside = np.zeros((nb, nb), dtype=bool)
+    for pair in groups:
+        for grp in pair:
+            inside[np.ix_(grp, grp)] = True
+    if max(np.abs(d[:, ~inside]).max(), np.abs(u[:, ~inside]).max() if u.size else 0.0) > SPLIT_TOL * scale:
+        return None
+    m = d.shape[0]
+    levels = (n_states + 1) // 2
+    vals, cols = [], []
+    for first, partner in groups:
+        e, v = _group_lowest(d, u, first, levels, lower)
+        g, gp = np.asarray(first), np.asarray(partner)
+        # the partner group is the first one up to the signs of its states (time reversal):
+        # reuse its states where that holds to rounding, else solve it too
+        sign = np.ones(g.size)
+        for a in range(1, g.size):
+            if np.vdot(d[:, g[0], g[a]], d[:, gp[0], gp[a]]).real < 0:
+                sign[a] = -1.0
+        same = all(np.abs(x[:, gp][:, :, gp] - sign[:, None] * x[:, g][:, :, g] * sign[None, :]).max()
+                   <= SPLIT_TOL * scale for x in (d, u) if x.size)
+        if same:
+            ep, vp = e, v * sign[None, :, None]
+        else:
+            ep, vp = _group_lowest(d, u, partner, levels, lower)
+        for j in range(min(e.size, ep.size)):
+            for grp, vv, val in ((g, v[:, :, j], e[j]), (gp, vp[:, :, j], ep[j])):
+                col = np.zeros((m, nb), dtype=complex)
+                col[:, grp] = vv
+                cols.append(col.reshape(-1))
+                vals.append(val)
+    vals = np.asarray(vals)
+    order = np.argsort(vals, kind="stable")[:n_states]
+    return vals[order], np.stack(cols, axis=1)[:, order]
+
+
+def _split_lowest(halves, n_states, lower, guess):
+    """Lowest ``n_states`` eigenpairs of a matrix given as its two decoupled halves (blocks of
+    each), by :func:`lowest_banded` on each: (values (k,), [(half index, vectors (m h, k_h))])."""
+    per = [min(n_states, (n_states + 1) // 2 + 1)] * 2
+    while True:
+        res = [lowest_banded(band_matrix(dh.astype(complex), uh.astype(complex)), per[b],
+                             lower=lower, guess=guess) for b, (dh, uh) in enumerate(halves)]
+        vals = np.concatenate([r[0] for r in res])
+        src = np.concatenate([np.full(r[0].size, b) for b, r in enumerate(res)])
+        idx = np.concatenate([np.arange(r[0].size) for r in res])
+        order = np.argsort(vals, kind="stable")[:n_states]
+        again = False
+        for b, r in enumerate(res):
+            taken = int(np.sum(src[order] == b))
+            size = halves[b][0].shape[0] * halves[b][0].shape[1]
+            if taken == r[0].size and r[0].size < min(n_states, size):   # it may hold more below
+                per[b] = min(n_states, size)
+                again = True
+        if not again:
+            return vals[order], src[order], idx[order], res
+
+
 def lowest_states(h, w, mat: KpMaterial, phi_node, kx: float, ky: float, nb: int,
                   n_states: int, *, axial: bool = False, guess=None):
     """Hole states of a quantum region at the in-plane wave vector (kx, ky) nm^-1.
@@ -366,8 +581,31 @@ def lowest_states(h, w, mat: KpMaterial, phi_node, kx: float, ky: float, nb: int
     # a guess of a bound below the hole spectrum: the lowest hole edge less a margin for the
     # strain shifts (checked by a Sturm count in lowest_banded)
     edge = -np.asarray(mat.ev, float) + 0.5 * (np.asarray(phi_node)[1:] + np.asarray(phi_node)[:-1])
-    vals, vecs = lowest_banded(band_matrix(d, u), n_states, lower=float(np.min(edge)) - 0.3,
-                               guess=None if guess is None else -np.asarray(guess, float))
+    lower = float(np.min(edge)) - 0.3
+    probes = None if guess is None else -np.asarray(guess, float)
+    vals = None
+    if kx == 0.0 and ky == 0.0:
+        got = zone_centre(d, u, nb, n_states, lower=lower)
+        if got is not None:
+            vals, vecs = got
+    if vals is None:
+        norm = np.hypot(kx, ky)
+        sp = split_transform(nb, kx / norm, ky / norm, axial) if norm > 0 else None
+        halves = None if sp is None else split_blocks(d, u, *sp)
+        if halves is None:
+            vals, vecs = lowest_banded(band_matrix(d, u), n_states, lower=lower, guess=probes)
+        else:
+            vals, src, idx, res = _split_lowest(halves, n_states, lower, probes)
+            T = sp[0]
+            half = nb // 2
+            m = d.shape[0]
+            vecs = np.zeros((m, nb, vals.size), dtype=complex)
+            for b in (0, 1):
+                sel = np.flatnonzero(src == b)
+                if sel.size:
+                    vb = res[b][1][:, idx[sel]].reshape(m, half, sel.size)
+                    vecs[:, :, sel] = np.einsum("ij,mjk->mik", T[:, b * half:(b + 1) * half], vb)
+            vecs = vecs.reshape(m * nb, vals.size)
     n = np.asarray(w).size
     psi = np.zeros((n, nb, vals.size), dtype=complex)
     s = 1.0 / np.sqrt(np.asarray(w, float)[1:-1])
