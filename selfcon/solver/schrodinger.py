@@ -160,7 +160,7 @@ def solve_region_window(h_cell, w, v_node, inv_mass_cell, first: int, count: int
     workspace, kern = assembled(h_cell, w, v_node, inv_mass_cell, workspace)
     energies, u = workspace.eigh(first + count, first=first + 1)
     psi = np.empty((n, energies.size))
-    kern.vectors_to_wavefunctions(np.ascontiguousarray(u), w, psi)
+    wavefunctions(kern, u, w, psi)
     return energies, psi
 
 
@@ -205,8 +205,18 @@ def solve_region(h_cell, w, v_node, inv_mass_cell, n_states, workspace=None, bel
             return np.empty(0), np.zeros((n, 0))
     energies, u = workspace.eigh(k)
     psi = np.empty((n, k))
-    kern.vectors_to_wavefunctions(np.ascontiguousarray(u), w, psi)
+    wavefunctions(kern, u, w, psi)
     return energies, psi
+
+
+def wavefunctions(kern, u, w, psi):
+    """psi (n, k) from the eigenvectors u (n-2, k) of B: the rows of the eigen kernel's
+    (k, n-2) array are read as they are (kernels/schrodinger.py::rows_to_wavefunctions), any
+    other layout through a contiguous copy; the same values either way."""
+    if u.T.flags.c_contiguous:
+        kern.rows_to_wavefunctions(u.T, w, psi)
+    else:
+        kern.vectors_to_wavefunctions(np.ascontiguousarray(u), w, psi)
 
 
 def _check_mesh(z):
@@ -346,20 +356,25 @@ def in_plane_weights(energies, psi, w, mass_node, kT, fermi=0.0):
     the carrier's Fermi level on the same scale.  Returns (masses (k,) m0, weights (n, k)).
     """
     e = np.asarray(energies, dtype=float)
-    psi = np.asarray(psi, dtype=float)
-    w = np.asarray(w, dtype=float)
-    m = np.asarray(mass_node, dtype=float)
-    p2 = psi * psi
-    norm = w @ p2
-    harmonic = norm / ((w / m) @ p2)
-    arithmetic = ((w * m) @ p2) / norm
-    if e.size < 2:
-        return harmonic, p2.copy()
-    spread = kT * thermal_in_plane_energy((fermi - e.min()) / kT) / IN_PLANE_TAPER
-    d = (e[:, None] - e[None, :]) / spread
-    s = np.exp(-d * d)
-    np.fill_diagonal(s, 0.0)
-    c = 1.0 - np.prod(1.0 - s, axis=1)
+    psi = np.ascontiguousarray(psi, dtype=float)
+    if psi.ndim == 1:
+        psi = psi[:, None]
+    w = np.ascontiguousarray(w, dtype=float)
+    m = np.ascontiguousarray(mass_node, dtype=float)
+    kern = _kernels()
+    k = psi.shape[1]
+    norm, harmonic, arithmetic = np.empty(k), np.empty(k), np.empty(k)
+    # one pass over the rows of psi (numba, no GIL): the thread of each (band, region) task
+    # does this part of its work alongside the others (selfcon/solver/threads.py)
+    kern.in_plane_sums(psi, w, m, norm, harmonic, arithmetic)
+    c = np.zeros(k)
+    if e.size >= 2:
+        spread = kT * thermal_in_plane_energy((fermi - e.min()) / kT) / IN_PLANE_TAPER
+        d = (e[:, None] - e[None, :]) / spread
+        s = np.exp(-d * d)
+        np.fill_diagonal(s, 0.0)
+        c = 1.0 - np.prod(1.0 - s, axis=1)
     mass = (1.0 - c) * harmonic + c * arithmetic
-    weight = p2 * ((1.0 - c)[None, :] + c[None, :] * m[:, None] / arithmetic[None, :])
+    weight = np.empty_like(psi)
+    kern.blended_weights(psi, m, c, arithmetic, weight)
     return mass, weight

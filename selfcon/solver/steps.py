@@ -524,36 +524,51 @@ def solve_states(ws: Workspace, phi) -> dict:
                 eig = ws.eigen[key] = schrodinger.EigenWorkspace(i1 - i0 + 1)
             tasks.append((band, r_idx, eig, ws.n_states[band], ws.vxc.get(band)))
     solved = run_all(lambda task: band_region_states(st, phi, *task), tasks, ws.threads)
-    out = {}
+    # the full-mesh (N, K) arrays of each band, states in energy order: each task's region
+    # part goes into its rows and its states' columns, on the same threads (nogil kernel;
+    # rows of different regions do not overlap)
+    out, places = {}, []
     for band, (_, _, _, sign, _) in bands.items():
-        mine = [res for task, res in zip(tasks, solved) if task[0] == band]
+        mine = [(task, res) for task, res in zip(tasks, solved) if task[0] == band]
         if not mine:
             continue
         qnodes = np.zeros(st.n_nodes, dtype=bool)
-        for task in tasks:
-            if task[0] == band:
-                i0, i1 = st.regions[task[1]]
-                qnodes[i0:i1 + 1] = True
-        ws.n_states[band] = max([ws.n_states[band]] + [res[5] for res in mine])
-        E = np.concatenate([res[0] for res in mine])
+        for task, _ in mine:
+            i0, i1 = st.regions[task[1]]
+            qnodes[i0:i1 + 1] = True
+        ws.n_states[band] = max([ws.n_states[band]] + [res[5] for _, res in mine])
+        E = np.concatenate([res[0] for _, res in mine])
         order = np.argsort(sign * E, kind="stable")     # lowest kinetic energy first
-        if len(mine) == 1 and np.array_equal(order, np.arange(E.size)):
-            psi, weight = mine[0][1], mine[0][3]         # one region, already in order: no (N, k) copies
-        else:
-            # np.take gathers whole columns about 4x faster than [:, order] on (N, k) arrays
-            psi = np.take(np.concatenate([res[1] for res in mine], axis=1), order, axis=1)
-            weight = np.take(np.concatenate([res[3] for res in mine], axis=1), order, axis=1)
-        m_par = np.concatenate([res[2] for res in mine])[order]
-        deg = state_degeneracy(st, band, psi)
-        out[band] = BandStates(band=band, energy=E[order], psi=psi, m_par=m_par,
-                               dos=deg * DOS2D_PER_M0 * m_par,
-                               region=np.concatenate([res[4] for res in mine])[order],
-                               degeneracy=deg, sign=sign, quantum_nodes=qnodes, weight=weight)
+        column = np.empty(E.size, dtype=np.int64)
+        column[order] = np.arange(E.size)
+        psi, weight = np.zeros((st.n_nodes, E.size)), np.zeros((st.n_nodes, E.size))
+        start = 0
+        for task, res in mine:
+            count = res[0].size
+            places.append((res, st.regions[task[1]][0], column[start:start + count], psi, weight))
+            start += count
+        m_par = np.concatenate([res[2] for _, res in mine])[order]
+        out[band] = BandStates(band=band, energy=E[order], psi=psi, m_par=m_par, dos=None,
+                               region=np.concatenate([res[4] for _, res in mine])[order],
+                               degeneracy=None, sign=sign, quantum_nodes=qnodes, weight=weight)
+    run_all(_place, places, ws.threads)
+    for band, bs in out.items():
+        bs.degeneracy = state_degeneracy(st, band, bs.psi)
+        bs.dos = bs.degeneracy * DOS2D_PER_M0 * bs.m_par
     if multiband and st.regions and any(b in st.carriers for b in HOLE_BANDS):
         hk = kp_states(ws, phi)
         if hk is not None:
             out[KP_BAND] = hk
     return out
+
+
+def _place(item):
+    """One region's states into its band's full-mesh arrays (a task of solve_states)."""
+    from selfcon.solver.kernels.schrodinger import place_columns
+    res, row0, cols, psi, weight = item
+    if cols.size:
+        place_columns(np.ascontiguousarray(res[1]), psi, row0, cols)
+        place_columns(np.ascontiguousarray(res[3]), weight, row0, cols)
 
 
 def subband_profile(st: Structure, bs: BandStates, shift) -> np.ndarray:
@@ -612,19 +627,21 @@ def band_region_states(st: Structure, phi, band: str, r_idx: int, workspace, n_s
     """One task of :func:`solve_states`: the states of ``band`` in region ``r_idx``, their
     number doubled (up to MAX_STATES) while the top state still holds charge (``vxc``: the
     band's exchange-correlation potential, :func:`update_exchange`).  Returns
-    (energy (k,), psi (N, k), in-plane mass (k,), density weight (N, k), region (k,), the
-    number of states asked for last)."""
+    (energy (k,), psi (n_r, k) on the region's nodes, in-plane mass (k,), density weight
+    (n_r, k) on the region's nodes, region (k,), the number of states asked for last): the
+    region's part only, the full-mesh arrays are made once per band (:func:`solve_states`)."""
     sign = ALL_BANDS[band][3]
     fermi = st.fermi_levels[0 if sign > 0 else 1]             # the carrier's own level
     k = n_states
     while True:
-        e, psi = region_eigenstates(st, phi, band, r_idx, k, workspace=workspace, vxc=vxc)
+        e, psi = region_eigenstates(st, phi, band, r_idx, k, workspace=workspace, vxc=vxc,
+                                    full=False)
         occ = subband_density(e, np.ones(e.size), st.temperature, sign, fermi)
         if (e.size < k or k >= MAX_STATES or occ.sum() <= 0
                 or occ[-1] < TOP_STATE_FRACTION * occ.sum()):
             break
         k = min(2 * k, MAX_STATES)
-    m_par, weight = in_plane_motion(st, band, e, psi, phi, vxc)
+    m_par, weight = in_plane_motion(st, band, e, psi, phi, vxc, region=r_idx)
     return e, psi, m_par, weight, np.full(e.size, r_idx), k
 
 
@@ -685,7 +702,7 @@ def kp_states(ws: Workspace, phi):
 
 
 def region_eigenstates(st: Structure, phi, band: str, r_idx: int, n_states: int, workspace=None,
-                       below=None, vxc=None):
+                       below=None, vxc=None, full=True):
     """Lowest ``n_states`` eigenstates of the z problem of ``band`` in quantum region
     ``r_idx`` at potential ``phi``.
 
@@ -694,13 +711,14 @@ def region_eigenstates(st: Structure, phi, band: str, r_idx: int, n_states: int,
     of the cells' edges minus phi.  Returns (energy (k,) eV on the electron scale, psi
     (N, k) on the full mesh, zero outside the region), lowest kinetic energy first.
     ``below``: only the states of kinetic energy (sign * E) below it.  ``vxc``: (N,) eV, the
-    exchange-correlation potential energy on the band's kinetic scale (Workspace.vxc)."""
+    exchange-correlation potential energy on the band's kinetic scale (Workspace.vxc).
+    ``full=False``: psi (n_r, k) on the region's nodes i0..i1 only."""
     from selfcon.solver import schrodinger
     edge_key, mass_key, _, sign, _ = ALL_BANDS[band]
     i0, i1 = st.regions[r_idx]
     n = st.n_nodes
     if i1 - i0 < 3:
-        return np.empty(0), np.zeros((n, 0))
+        return np.empty(0), np.zeros((n if full else i1 - i0 + 1, 0))
     sl = slice(i0, i1 + 1)
     edge_node = st.node_average(st.cell[edge_key]) - phi      # band edge with electrostatics
     part = st.mesh.part(i0, i1)
@@ -715,37 +733,46 @@ def region_eigenstates(st: Structure, phi, band: str, r_idx: int, n_states: int,
         e, p, _ = nonparabolic.refine_states(part.h, part.w, kinetic, st.cell[mass_key][i0:i1],
                                              cell_edge(st, band, phi, vxc)[i0:i1],
                                              effective_gap(st)[i0:i1], e, workspace, psi=p)
-    full = np.zeros((n, e.size))
-    full[sl, :] = p
-    return sign * e, full
+    if not full:
+        return sign * e, p
+    out = np.zeros((n, e.size))
+    out[sl, :] = p
+    return sign * e, out
 
 
-def in_plane_motion(st: Structure, band: str, energy, psi, phi=None, vxc=None):
+def in_plane_motion(st: Structure, band: str, energy, psi, phi=None, vxc=None, region=None):
     """The in-plane motion of the states of one region (selfcon.solver.schrodinger.
     in_plane_weights): the in-plane masses (k,) m0 and the density weights (N, k), such that
     the charge of nearly degenerate states does not depend on their mixture.  ``energy``
     on the electron scale; the carrier's own Fermi level.  A nonparabolic band
     (selfcon.solver.nonparabolic) takes its density-of-states masses at the potential
-    ``phi`` (and ``vxc``) its states were solved at."""
+    ``phi`` (and ``vxc``) its states were solved at.  ``region``: psi is (n_r, k) on the
+    nodes of that quantum region only (the weights then too), else on the full mesh."""
     from selfcon.solver import schrodinger
     _, mass_key, par_key, sign, _ = ALL_BANDS[band]
     fermi = st.fermi_levels[0 if sign > 0 else 1]
-    m_node = st.node_average(st.cell[par_key])
-    mass, weight = schrodinger.in_plane_weights(sign * np.asarray(energy), psi, st.mesh.w,
+    nodes, cells = slice(None), slice(None)
+    if region is not None:
+        i0, i1 = st.regions[region]
+        nodes, cells = slice(i0, i1 + 1), slice(i0, i1)
+    w = st.mesh.w[nodes]
+    m_node = st.node_average(st.cell[par_key])[nodes]
+    mass, weight = schrodinger.in_plane_weights(sign * np.asarray(energy), psi, w,
                                                 m_node, st.kT, sign * fermi)
     if nonparabolic_band(st, band) and len(mass):
         from selfcon.solver import nonparabolic
         if phi is None:
             raise ValueError("in_plane_motion of a nonparabolic band needs the potential phi")
         edge, eg, m_edge = cell_edge(st, band, phi, vxc), effective_gap(st), st.cell[mass_key]
-        slopes = [nonparabolic.energy_slope(st.mesh.h, psi[:, k], energy[k], m_edge, edge, eg)
+        slopes = [nonparabolic.energy_slope(st.mesh.h[cells], psi[:, k], energy[k], m_edge[cells],
+                                            edge[cells], eg[cells])
                   for k in range(len(mass))]
-        dos_mass, _ = nonparabolic.in_plane_masses(psi, st.mesh.w, energy, slopes, m_node,
-                                                   st.node_average(edge), st.node_average(eg),
-                                                   st.kT, fermi)
+        dos_mass, _ = nonparabolic.in_plane_masses(psi, w, energy, slopes, m_node,
+                                                   st.node_average(edge)[nodes],
+                                                   st.node_average(eg)[nodes], st.kT, fermi)
         # the nonparabolic/parabolic ratio of each state's mass, on the blend of nearly
         # degenerate states that in_plane_weights made
-        mass = mass * dos_mass / schrodinger.in_plane_mass(psi, st.mesh.w, m_node)
+        mass = mass * dos_mass / schrodinger.in_plane_mass(psi, w, m_node)
     return mass, weight
 
 

@@ -74,6 +74,95 @@ def vectors_to_wavefunctions(u, w, psi):
 
 
 @numba.njit(cache=True, nogil=True)
+def rows_to_wavefunctions(z, w, psi):
+    """As :func:`vectors_to_wavefunctions` with the eigenvectors as the rows of z (k, n-2)
+    (the layout of selfcon/solver/kernels/eigen.py): the same values, bit for bit, without
+    first copying z into columns."""
+    n = w.shape[0]
+    k = z.shape[0]
+    root = np.empty(n)
+    for i in range(n):
+        root[i] = np.sqrt(w[i])
+    scale = np.empty(k)
+    for s in range(k):
+        norm2 = 0.0
+        big = 0.0
+        for j in range(n - 2):
+            val = z[s, j] / root[j + 1]
+            norm2 += w[j + 1] * val * val
+            a = abs(val)
+            if a > big:
+                big = a
+        sign = 1.0
+        thresh = 1e-3 * big
+        for j in range(n - 2):
+            val = z[s, j] / root[j + 1]
+            if abs(val) > thresh:
+                if val < 0.0:
+                    sign = -1.0
+                break
+        scale[s] = sign / np.sqrt(norm2) if norm2 > 0.0 else 0.0
+    for s in range(k):
+        psi[0, s] = 0.0
+        psi[n - 1, s] = 0.0
+    for j in range(n - 2):
+        r = root[j + 1]
+        row = psi[j + 1]
+        for s in range(k):
+            row[s] = (z[s, j] / r) * scale[s]
+
+
+@numba.njit(cache=True, nogil=True)
+def in_plane_sums(psi, w, mass_node, norm, harmonic, arithmetic):
+    """Per state s of psi (n, k): norm_s = sum_i w_i psi_is^2, the harmonic in-plane mass
+    norm_s / sum_i (w_i / m_i) psi_is^2 and the arithmetic one sum_i w_i m_i psi_is^2 / norm_s
+    (selfcon.solver.schrodinger.in_plane_weights), in one pass over the rows of psi."""
+    n, k = psi.shape
+    inv = np.zeros(k)
+    arith = np.zeros(k)
+    for s in range(k):
+        norm[s] = 0.0
+    for i in range(n):
+        wi = w[i]
+        wm = wi / mass_node[i]
+        ww = wi * mass_node[i]
+        row = psi[i]
+        for s in range(k):
+            p2 = row[s] * row[s]
+            norm[s] += wi * p2
+            inv[s] += wm * p2
+            arith[s] += ww * p2
+    for s in range(k):
+        harmonic[s] = norm[s] / inv[s]
+        arithmetic[s] = arith[s] / norm[s]
+
+
+@numba.njit(cache=True, nogil=True)
+def blended_weights(psi, mass_node, c, arithmetic, weight):
+    """weight_is = psi_is^2 ((1 - c_s) + c_s m_i / arithmetic_s): the density weights of
+    selfcon.solver.schrodinger.in_plane_weights (psi^2 itself where c_s = 0)."""
+    n, k = psi.shape
+    for i in range(n):
+        row = psi[i]
+        out = weight[i]
+        mi = mass_node[i]
+        for s in range(k):
+            out[s] = row[s] * row[s] * ((1.0 - c[s]) + c[s] * mi / arithmetic[s])
+
+
+@numba.njit(cache=True, nogil=True)
+def place_columns(src, dst, row0, cols):
+    """dst[row0 + i, cols[s]] = src[i, s]: one region's states (n_r, k_r) into the full-mesh
+    array of its band (N, K), each state in its column of the band's energy order."""
+    n, k = src.shape
+    for i in range(n):
+        a = src[i]
+        b = dst[row0 + i]
+        for s in range(k):
+            b[cols[s]] = a[s]
+
+
+@numba.njit(cache=True, nogil=True)
 def dual_average(h, f_cell, out):
     """Node values of a per-cell quantity: (h_{i-1} f_{i-1} + h_i f_i)/(h_{i-1} + h_i).
 
