@@ -75,7 +75,8 @@ __all__ = ["KpMaterial", "KpStates", "MODELS", "basis", "cartesian_blocks", "bul
            "assemble_blocks", "band_matrix", "dense_matrix", "lowest_banded", "lowest_states",
            "DEGENERATE", "region_material", "dispersion", "annulus_states", "annulus_sheets",
            "grid_top", "region_dispersion", "K_POINTS", "fermi_sea_top", "collect_states", "subband_figures", "along_direction",
-           "split_transform", "split_blocks", "zone_centre", "ZONE_CENTRE_GROUPS", "SPLIT_TOL"]
+           "split_transform", "split_blocks", "zone_centre", "ZONE_CENTRE_GROUPS", "SPLIT_TOL",
+           "reduced_dispersion", "BASIS_LEVELS", "BASIS_SHIFT", "BASIS_TOL"]
 
 #: hole model name -> number of bands
 MODELS = {"kp4": 4, "kp6": 6}
@@ -413,10 +414,12 @@ def split_transform(nb: int, c: float, s: float, axial: bool):
     key = (nb, round(float(c), 14), round(float(s), 14), bool(axial))
     if key in _SPLITS:
         return _SPLITS[key]
+    from selfcon.solver.threads import one_blas_thread
     mats = _generic_blocks(nb, c, s, axial)
     eye = np.eye(nb)
     lin = np.vstack([np.kron(eye, m.T) - np.kron(m, eye) for m in mats])
-    _, sv, vh = np.linalg.svd(lin)
+    with one_blas_thread():
+        _, sv, vh = np.linalg.svd(lin)
     null = vh[np.sum(sv > 1e-9 * sv[0]):].conj()
     result = None
     if null.shape[0] == 2:
@@ -613,6 +616,174 @@ def lowest_states(h, w, mat: KpMaterial, phi_node, kx: float, ky: float, nb: int
     return -vals, psi
 
 
+
+# --------------------------------------------------------------------------- reduced basis
+
+#: zone-centre levels per decoupled group (heavy; light with split-off) of each half taken
+#: into the reduced basis: this many, and at least the number of states wanted
+BASIS_LEVELS = 8
+#: the shift of the basis' resolvent below the lowest zone-centre hole level, eV
+BASIS_SHIFT = 0.05
+#: accepted estimate of a reduced-basis energy's error, eV (the k_par points above it are
+#: solved whole); the estimate is r^T (B_0 - sigma)^-1 r of the state's residual r
+BASIS_TOL = 5e-5
+
+
+def _band_lower(d, u):
+    """Lower band storage (scipy.linalg.solveh_banded) of the real symmetric
+    block-tridiagonal matrix with blocks ``d`` (m, q, q), ``u`` (m-1, q, q)."""
+    m, q = d.shape[0], d.shape[1]
+    ab = np.zeros((2 * q, m * q))
+    for a in range(q):
+        for b in range(a + 1):
+            ab[a - b, b::q] = d[:, a, b]
+    for a in range(q):
+        for b in range(q):
+            ab[q + a - b, b:(m - 1) * q:q] = u[:, b, a]
+    return ab
+
+
+def _apply(d, u, x):
+    """The real symmetric block-tridiagonal (d, u) times x (m, q, r)."""
+    y = d @ x
+    y[:-1] += u @ x[1:]
+    y[1:] += np.swapaxes(u, -1, -2) @ x[:-1]
+    return y
+
+
+def reduced_dispersion(h, w, mat: KpMaterial, phi_node, nb: int, n_states: int, k_grid, *,
+                       angle: float | None = None):
+    """:func:`dispersion` from a reduced basis, or None where the model does not split into
+    real halves (then use :func:`dispersion`): the axial approximation (``angle`` None), or
+    the warped Hamiltonian along [100] and [110].
+
+    Along such a line the matrix is two real halves (:func:`split_transform`), each
+    H(k) = B0 + k B1 + k^2 B2 with B1, B2 fixed.  Each half is expanded in a basis made of
+    (a) its zone-centre states, BASIS_LEVELS levels (at least ``n_states``) of each group
+    that decouples at k = 0 (heavy; light with split-off), and (b) the first and second
+    order corrections of perturbation theory with the resolvent taken at a shift sigma
+    below the spectrum, (B0 - sigma)^-1 B1 V, (B0 - sigma)^-1 B2 V and (B0 - sigma)^-1 B1
+    (B0 - sigma)^-1 B1 V (they carry the kinks the k-linear terms put at the interfaces,
+    which zone-centre states alone converge to only slowly), orthonormalised.  B0, B1,
+    B2 are projected once; every k is then a small dense symmetric eigenproblem.  Each
+    state's residual r = H(k) psi - E psi is checked: r^T (B0 - sigma)^-1 r estimates the
+    error of its energy (second order in r; r is orthogonal to the basis, which holds the
+    low states), and every k where one exceeds BASIS_TOL is solved whole
+    (:func:`lowest_states`), so the result is never the basis' alone when it is poor.
+    k = 0 is :func:`zone_centre` (exact).  Same return as :func:`dispersion`."""
+    from selfcon.solver.threads import one_blas_thread
+    with one_blas_thread():
+        return _reduced_dispersion(h, w, mat, phi_node, nb, n_states, k_grid, angle)
+
+
+def _reduced_dispersion(h, w, mat, phi_node, nb, n_states, k_grid, angle):
+    import scipy.linalg as sla
+    from selfcon.solver.kernels.eigen import lowest_eigenpairs
+    k_grid = np.asarray(k_grid, float)
+    axial = angle is None
+    cx, sy = (1.0, 0.0) if axial else (float(np.cos(angle)), float(np.sin(angle)))
+    sp = split_transform(nb, cx, sy, axial)
+    if sp is None or not sp[1] or k_grid.size < 2 or k_grid[0] != 0.0:
+        return None
+    T = sp[0]
+    zero = np.zeros_like(np.asarray(phi_node, float))
+    parts = []
+    for kk, ph in ((0.0, phi_node), (1.0, zero), (-1.0, zero), (0.0, zero)):
+        d, u = _interior_hole_blocks(h, w, mat, ph, kk * cx, kk * sy, nb, axial)
+        got = split_blocks(d, u, T, True)
+        if got is None:
+            return None
+        parts.append(got)
+    e0, psi0 = lowest_states(h, w, mat, phi_node, 0.0, 0.0, nb, n_states)
+    half = nb // 2
+    n_nodes = np.asarray(w).size
+    m = n_nodes - 2
+    s = 1.0 / np.sqrt(np.asarray(w, float)[1:-1])
+    levels = max(BASIS_LEVELS, n_states)
+    res_E, res_d, bad = [], [], np.zeros(k_grid.size, dtype=bool)
+    for b in range(2):
+        (d0, u0), (dp, up), (dm, um), (dz, uz) = (p[b] for p in parts)
+        d1, u1 = 0.5 * (dp - dm), 0.5 * (up - um)
+        d2, u2 = 0.5 * (dp + dm) - dz, 0.5 * (up + um) - uz
+        # zone-centre states of the half: component 0 (heavy) alone, the others together
+        cols, vals = [], []
+        ev = np.empty(min(levels, m))
+        zv = np.empty((ev.size, m))
+        lowest_eigenpairs(np.ascontiguousarray(d0[:, 0, 0]), np.ascontiguousarray(u0[:, 0, 0]),
+                          ev.size, ev, zv)
+        x = np.zeros((m, half, ev.size))
+        x[:, 0, :] = zv.T
+        cols.append(x)
+        vals.append(ev)
+        if half > 1:
+            if max(np.abs(d0[:, 0, 1:]).max(), np.abs(u0[:, 0, 1:]).max(), np.abs(u0[:, 1:, 0]).max()) \
+                    > SPLIT_TOL * np.abs(d0).max():
+                return None
+            el, vl = lowest_banded(band_matrix(d0[:, 1:, 1:].astype(complex), u0[:, 1:, 1:].astype(complex)),
+                                   min(levels, m * (half - 1)))
+            vl = vl.reshape(m, half - 1, el.size)
+            # real eigenvectors of a real matrix, up to a phase per vector
+            ph = np.take_along_axis(vl.reshape(-1, el.size),
+                                    np.argmax(np.abs(vl.reshape(-1, el.size)), axis=0)[None], 0)[0]
+            x = np.zeros((m, half, el.size))
+            x[:, 1:, :] = (vl * (np.abs(ph) / ph)[None, None, :]).real
+            cols.append(x)
+            vals.append(el)
+        V = np.concatenate(cols, axis=2)
+        sigma = float(np.min(np.concatenate(vals))) - BASIS_SHIFT
+        chol = sla.cholesky_banded(_band_lower(d0 - sigma * np.eye(half)[None], u0), lower=True)
+
+        def resolve(y):
+            return sla.cho_solve_banded((chol, True), y.reshape(m * half, -1)).reshape(m, half, -1)
+        y1 = resolve(_apply(d1, u1, V))
+        y2 = resolve(_apply(d2, u2, V))
+        y3 = resolve(_apply(d1, u1, y1))
+        basis = np.concatenate([V, y1, y2, y3], axis=2).reshape(m * half, -1)
+        q, r = np.linalg.qr(basis)
+        diag = np.abs(np.diag(r))
+        q = np.ascontiguousarray(q[:, diag > 1e-10 * diag.max()])
+        K = q.shape[1]
+        qv = q.reshape(m, half, K)
+        P = [q.T @ _apply(dd, uu, qv).reshape(m * half, K) for dd, uu in ((d0, u0), (d1, u1), (d2, u2))]
+        want = min(n_states, K)
+        E = np.full((want, k_grid.size), np.nan)
+        dens = np.zeros((n_nodes, want, k_grid.size))
+        for j, k in enumerate(k_grid):
+            if j == 0:
+                continue
+            Pk = P[0] + k * P[1] + (k * k) * P[2]
+            th, c = sla.eigh(0.5 * (Pk + Pk.T), subset_by_index=(0, want - 1))
+            psi = (q @ c).reshape(m, half, want)
+            res = _apply(d0 + k * d1 + (k * k) * d2, u0 + k * u1 + (k * k) * u2, psi) - psi * th
+            est = np.einsum("ij,ij->j", res.reshape(-1, want), resolve(res).reshape(-1, want))
+            if not np.all(est <= BASIS_TOL):
+                bad[j] = True
+            E[:, j] = -th
+            dens[1:-1, :, j] = np.sum(psi * psi, axis=1) * (s * s)[:, None]
+        res_E.append(E)
+        res_d.append(dens)
+    E = np.concatenate(res_E)
+    dens = np.concatenate(res_d, axis=1)
+    order = np.argsort(-E, axis=0, kind="stable")[:n_states]      # lowest hole energy first
+    out_E = np.full((n_states, k_grid.size), np.nan)
+    out_d = np.zeros((n_nodes, n_states, k_grid.size))
+    got = order.shape[0]
+    out_E[:got] = np.take_along_axis(E, order, 0)
+    out_d[:, :got] = np.take_along_axis(dens, order[None], 1)
+    out_E[:e0.size, 0] = e0
+    out_E[e0.size:, 0] = np.nan
+    out_d[:, :, 0] = 0.0
+    out_d[:, :e0.size, 0] = np.sum(np.abs(psi0) ** 2, axis=1)
+    for j in np.flatnonzero(bad):
+        e, psi = lowest_states(h, w, mat, phi_node, k_grid[j] * cx, k_grid[j] * sy, nb, n_states,
+                               axial=axial, guess=out_E[:, j])
+        out_E[:, j] = np.nan
+        out_E[:e.size, j] = e
+        out_d[:, :, j] = 0.0
+        out_d[:, :e.size, j] = np.sum(np.abs(psi) ** 2, axis=1)
+    return out_E, out_d, psi0
+
+
 # --------------------------------------------------------------------------- regions and the loop
 
 #: k_par points of the dispersion the hole density integrates (axial approximation)
@@ -752,7 +923,8 @@ def region_dispersion(h, w, mat, phi_node, nb, n_states, efp, kT, k_top):
     TAIL_OCCUPATION.  Returns (k_grid, E, dens, psi0) as :func:`dispersion`."""
     for _ in range(8):
         k_grid = np.linspace(0.0, k_top, K_POINTS)
-        E, dens, psi0 = dispersion(h, w, mat, phi_node, nb, n_states, k_grid)
+        got = reduced_dispersion(h, w, mat, phi_node, nb, n_states, k_grid)
+        E, dens, psi0 = got if got is not None else dispersion(h, w, mat, phi_node, nb, n_states, k_grid)
         last = E[:, -1]
         occ = 1.0 / (1.0 + np.exp(np.clip((efp - last[np.isfinite(last)]) / kT, -700, 700)))
         if occ.size == 0 or occ.max() < TAIL_OCCUPATION:
@@ -847,7 +1019,9 @@ def along_direction(mesh, cell, regions, phi, hk: KpStates, angle: float):
         rows = np.flatnonzero(hk.subband_region == r)
         i0, i1 = regions[int(r)]
         part = mesh.part(i0, i1)
-        E, _, _ = dispersion(part.h, part.w, region_material(cell, i0, i1), phi[i0:i1 + 1], nb,
-                             rows.size, hk.k_parallel, angle=angle)
+        args = (part.h, part.w, region_material(cell, i0, i1), phi[i0:i1 + 1], nb, rows.size,
+                hk.k_parallel)
+        got = reduced_dispersion(*args, angle=angle)
+        E = (got if got is not None else dispersion(*args, angle=angle))[0]
         out[rows] = E[:rows.size]
     return out

@@ -19,6 +19,7 @@ The count, first found first used (README.md, "Threads"):
 """
 from __future__ import annotations
 
+import contextlib
 import os
 import threading
 
@@ -103,4 +104,48 @@ def run_all(fn, tasks, threads: int = 1) -> list:
     return list(_pool(n).map(fn, tasks))
 
 
-__all__ = ["THREADS_ENV", "NUMBA_ENV", "configure", "cores", "thread_count", "run_all", "add_argument"]
+_blas_setters: list | None = None
+
+
+def _local_blas_setters() -> list:
+    """``openblas_set_num_threads_local`` of the OpenBLAS builds numpy and scipy ship (OpenBLAS
+    0.3.27 and later: the thread count of the calling thread only); [] where there is none."""
+    global _blas_setters
+    if _blas_setters is None:
+        found = []
+        try:
+            import ctypes
+            import glob
+
+            import numpy
+            import scipy
+            for pkg in (numpy, scipy):
+                libs = os.path.join(os.path.dirname(pkg.__file__), "..", pkg.__name__ + ".libs")
+                for path in sorted(glob.glob(os.path.join(libs, "*openblas*"))):
+                    fn = getattr(ctypes.CDLL(path), "openblas_set_num_threads_local", None)
+                    if fn is not None:
+                        fn.restype, fn.argtypes = ctypes.c_int, [ctypes.c_int]
+                        found.append(fn)
+        except (ImportError, OSError, AttributeError):
+            found = []
+        _blas_setters = found
+    return _blas_setters
+
+
+@contextlib.contextmanager
+def one_blas_thread():
+    """Dense linear algebra of the calling thread on one BLAS thread inside the block.  The
+    small dense problems of the solver (selfcon/solver/kp.py's reduced basis) are far too
+    small for BLAS's own threads: on a busy machine they spin and cost 10-40x the CPU time
+    of the work.  A no-op where the BLAS has no thread-local setting."""
+    setters = _local_blas_setters()
+    old = [fn(1) for fn in setters]
+    try:
+        yield
+    finally:
+        for fn, value in zip(setters, old):
+            fn(value)
+
+
+__all__ = ["THREADS_ENV", "NUMBA_ENV", "configure", "cores", "thread_count", "run_all", "add_argument",
+           "one_blas_thread"]
