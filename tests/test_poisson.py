@@ -258,6 +258,21 @@ def test_predictor_newton_converges():
     assert P.gauss_residual(pr, sol.phi) < 1e-8
 
 
+def test_newton_start_densities_are_the_node_densities():
+    # the densities the first Jacobian assembly hands back are those of node_densities at the
+    # starting point, bit for bit (the loop's charge check and the result assembly take them)
+    pr = predictor_problem()[0].with_boundaries(top=(P.ZERO_FIELD, 0.0))
+    phi0 = pr.phi_ref + 0.01
+    sol = P.solve_poisson(pr, phi0, tol=1e-11, max_iter=300, start_densities=True)
+    d = P.densities(pr, phi0)
+    for got, want in ((sol.start.n, d.n), (sol.start.p, d.p), (sol.start.nd_plus, d.nd_plus),
+                      (sol.start.na_minus, d.na_minus)):
+        assert np.array_equal(got, want)
+    assert np.array_equal(sol.start.rho, d.rho)
+    plain = P.solve_poisson(pr, phi0, tol=1e-11, max_iter=300)
+    assert plain.start is None and np.array_equal(plain.phi, sol.phi) and plain.steps == sol.steps
+
+
 def test_electric_field_linear_and_quadratic():
     # analytic: phi = a z^2 + b z on a nonuniform mesh -> E = -(2 a z + b) exactly inside
     z = np.cumsum(np.r_[0.0, np.linspace(0.5, 2.0, 20)])

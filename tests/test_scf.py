@@ -253,6 +253,22 @@ def test_warm_start_converges_at_once(hemt4, hemt4_result):
     assert r2.converged and r2.iterations <= 2
 
 
+def test_a_structure_solved_again_starts_from_its_kept_classical_start(hemt4):
+    # the classical start is kept with the structure (steps.initial_guess): a second solve of
+    # the same structure skips the nested Newton solves and gives the same bits as a solve of
+    # a freshly built one
+    st = selfcon.build_structure(hemt4)
+    first = selfcon.solve(hemt4, structure=st)
+    again = selfcon.solve(hemt4, structure=st)
+    fresh = selfcon.solve(hemt4, structure=selfcon.build_structure(hemt4))
+    for r in (again, fresh):
+        assert np.array_equal(r.potential, first.potential)
+        assert np.array_equal(r.subbands["electron"].energy, first.subbands["electron"].energy)
+        assert r.iterations == first.iterations
+    from selfcon.model.structure import derived
+    assert len(derived(st, "classical_start", dict)) == 1
+
+
 def test_two_quantum_regions():
     deck = selfcon.load_deck(DOUBLE_WELL).with_overrides({"quantum.regions": [[45.0, 64.0], [64.5, 83.5]]})
     r = selfcon.solve(deck)

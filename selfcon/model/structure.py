@@ -788,7 +788,7 @@ _DERIVED: dict = {}
 def derived(st: Structure, key, make):
     """``make()``, computed once per structure and ``key`` and kept while ``st`` lives: for
     data every solve of a structure derives alike (its coarse start meshes, its classical
-    Poisson problem).  The value is shared: treat it as read-only (a dict value may be a
+    Poisson problem, its classical starting potential).  The value is shared: treat it as read-only (a dict value may be a
     small cache of its own)."""
     entry = _DERIVED.get(id(st))
     if entry is None or entry[0]() is not st:

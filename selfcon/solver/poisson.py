@@ -203,20 +203,30 @@ class PoissonSolution:
     converged: bool
     update: float                      # last max |step| (V)
     history: np.ndarray = None         # max |step| of each Newton step (V)
+    start: "Densities" = None          # densities at the starting point (start_densities=True)
 
 
-def solve_poisson(problem, phi0, *, tol=1e-9, max_iter=200, max_step=0.3, backtrack=True):
+def solve_poisson(problem, phi0, *, tol=1e-9, max_iter=200, max_step=0.3, backtrack=True,
+                  start_densities=False):
     """Newton solve; returns PoissonSolution (never raises on non-convergence).
 
     tol: V on max |Newton step|; max_step: V, the step is scaled so that no node moves
     more than this in one step (direction kept); backtrack=False: no residual check of
-    the step (see selfcon.solver.kernels.poisson.poisson_newton)."""
+    the step (see selfcon.solver.kernels.poisson.poisson_newton).  start_densities=True:
+    ``solution.start`` holds the :class:`Densities` at ``phi0`` (with the Dirichlet values
+    imposed), the same as :func:`densities` gives, from the first Jacobian assembly."""
     from selfcon.solver.kernels.poisson import poisson_newton
     hist = np.zeros(max_iter)
     opts = NewtonOptions(float(tol), int(max_iter), float(max_step), bool(backtrack))
-    phi, steps, conv, upd = poisson_newton(_f(phi0), *problem.kernel_args(),
-                                           problem.boundaries(), opts, hist)
-    return PoissonSolution(phi, int(steps), bool(conv), float(upd), hist[:steps].copy())
+    args = (_f(phi0), *problem.kernel_args(), problem.boundaries(), opts, hist)
+    if start_densities:
+        out = np.empty((4, problem.z.shape[0]))
+        phi, steps, conv, upd = poisson_newton(*args, out)
+        start = Densities(out[0], out[1], out[2], out[3], problem.sheet_fixed / problem.w)
+    else:
+        phi, steps, conv, upd = poisson_newton(*args)
+        start = None
+    return PoissonSolution(phi, int(steps), bool(conv), float(upd), hist[:steps].copy(), start)
 
 
 @dataclass

@@ -399,7 +399,14 @@ def boundary_conditions(st: Structure):
 def initial_guess(ws: Workspace, phi0=None):
     """Starting potential and its Newton step count: the classical nonlinear Poisson
     solution (every carrier classical) on coarsened meshes, interpolated to the full
-    mesh; or ``phi0`` (a warm start) with the Dirichlet values imposed."""
+    mesh; or ``phi0`` (a warm start) with the Dirichlet values imposed.
+
+    The classical start depends only on the structure and the boundary conditions, so it
+    is made once per structure and ``bc`` (selfcon.model.structure.derived, like
+    :func:`classical_problems`), together with the classical densities at it that decide
+    which (band, region) pairs stay classical: a structure solved again (a repeated solve,
+    a study point, the cold retry of solve_warm) starts from the same bits without redoing
+    the nested Newton solves."""
     st, bc = ws.structure, ws.bc
     if phi0 is not None:
         phi = np.array(phi0, dtype=float)
@@ -407,6 +414,29 @@ def initial_guess(ws: Workspace, phi0=None):
             if bc[side][0] == P.DIRICHLET:
                 phi[idx] = bc[side][1]
         return phi, 0
+    made = derived(st, "classical_start", dict)       # bc -> (phi, steps, densities), newest last
+    start = made.pop(bc, None)
+    if start is None:
+        phi, steps = nested_start(ws)
+        phi.setflags(write=False)
+        dens = None
+        if st.regions:            # solve_states decides its negligible pairs at these densities
+            dens = P.densities(ws.problem_free, phi)
+            for a in (dens.n, dens.p, dens.nd_plus, dens.na_minus):
+                a.setflags(write=False)
+        start = (phi, steps, dens)
+    made[bc] = start
+    while len(made) > 4:                  # a bias sweep on one structure keeps only a few
+        del made[next(iter(made))]
+    phi = start[0].copy()
+    if start[2] is not None:
+        ws._classical = (phi, start[2])
+    return phi, start[1]
+
+
+def nested_start(ws: Workspace):
+    """The classical start of :func:`initial_guess` computed: (phi, Newton steps)."""
+    st, bc = ws.structure, ws.bc
     # nested start: solve the classical problem on coarsened copies of the mesh (every
     # interface, sheet and region end kept), coarsest first, each level starting from the
     # one before; the damped, expensive Newton phase then happens on a few dozen nodes.
@@ -823,7 +853,16 @@ def poisson_pass(ws: Workspace, phi, states, *, predictor: bool, tol: float = PO
     else their density is frozen.  Newton to ``tol`` (V) or at most ``max_newton`` steps;
     returns (phi_out, Newton steps)."""
     prob = ws.problem(phi, states, shift=1.0 if predictor else 0.0)
-    sol = P.solve_poisson(prob, phi, tol=tol, max_iter=max_newton, backtrack=backtrack)
+    # the first assembly's densities at phi are those of densities(ws, phi, states) (at the
+    # reference potential the predictor's shift is zero): the charge check and the result
+    # assembly take them from there when the Dirichlet values are phi's own
+    fixed = all(kind != P.DIRICHLET or phi[idx] == value
+                for (kind, value), idx in zip(ws.bc, (0, -1)))
+    sol = P.solve_poisson(prob, phi, tol=tol, max_iter=max_newton, backtrack=backtrack,
+                          start_densities=fixed)
+    if sol.start is not None:
+        d = sol.start
+        ws._last = (phi, states, (d.n, d.p, d.nd_plus, d.na_minus))
     return sol.phi, sol.steps
 
 

@@ -315,12 +315,19 @@ def thomas(a, b, c, d, cp, x):
 
 
 @njit(cache=True)
-def _assemble(phi, g, grid, mat, q, bounds, a, b, c, r):
+def _assemble(phi, g, grid, mat, q, bounds, a, b, c, r, dens):
     """Fill the tridiagonal Jacobian (a, b, c) and r = -R at phi; return ||R||_2.
-    g (N-1,): eps/h of every cell."""
+    g (N-1,): eps/h of every cell.  dens (4, N) receives the node densities n, p, Nd+,
+    Na- of node_densities (a (4, 0) array: not wanted)."""
     N = phi.shape[0]
+    keep = dens.shape[1] == N
     for i in range(N):
         nn, pp, ndp, nam, drho = _node(i, phi[i], grid, mat, q)
+        if keep:
+            dens[0, i] = nn
+            dens[1, i] = pp
+            dens[2, i] = ndp
+            dens[3, i] = nam
         w = grid.wl[i] + grid.wr[i]
         res = Q_EPS0 * ((pp - nn + ndp - nam) * w + mat.sheet_fixed[i])
         diag = Q_EPS0 * drho * w
@@ -355,13 +362,16 @@ def _assemble(phi, g, grid, mat, q, bounds, a, b, c, r):
 
 
 @njit(cache=True)
-def poisson_newton(phi0, grid, mat, q, bounds, opts, history):
+def poisson_newton(phi0, grid, mat, q, bounds, opts, history, densities=None):
     """Newton solve of the nonlinear FV Poisson equation (see module docstring).
 
     phi0 (N,) initial guess (not modified); grid, mat, q, bounds, opts: the Grid,
     Material, Quantum, Boundaries and NewtonOptions bundles
     (selfcon.solver.kernels.bundles); history (>= opts.max_iter,) receives max |step| of
-    each Newton step.  Returns (phi, newton_steps, converged, max_update).
+    each Newton step; ``densities`` (4, N), if given, receives the node densities n, p,
+    Nd+, Na- at the starting point (phi0 with the Dirichlet values), exactly those of
+    node_densities, which the first assembly computes anyway.
+    Returns (phi, newton_steps, converged, max_update).
     Damping: step scaled to max |dphi| <= opts.max_step, then halved (up to 50 times)
     until ||R||_2 decreases (backtracking); a step already below opts.tol is taken as is.
     opts.backtrack = False takes each (clamped) step without evaluating the residual at
@@ -392,10 +402,14 @@ def poisson_newton(phi0, grid, mat, q, bounds, opts, history):
     g = np.empty(N - 1)            # eps/h per cell
     for k in range(N - 1):
         g[k] = mat.eps[k] / grid.h[k]
+    none = np.empty((4, 0))        # the trial assemblies keep no densities
     steps = 0
     converged = False
     upd = np.inf
-    norm = _assemble(phi, g, grid, mat, q, bounds, a, b, c, r)
+    if densities is None:
+        norm = _assemble(phi, g, grid, mat, q, bounds, a, b, c, r, none)
+    else:
+        norm = _assemble(phi, g, grid, mat, q, bounds, a, b, c, r, densities)
     for it in range(max_iter):
         if not math.isfinite(norm):
             upd = np.nan
@@ -422,12 +436,12 @@ def poisson_newton(phi0, grid, mat, q, bounds, opts, history):
                 converged = True
                 break
             if it + 1 < max_iter:
-                norm = _assemble(phi, g, grid, mat, q, bounds, a, b, c, r)
+                norm = _assemble(phi, g, grid, mat, q, bounds, a, b, c, r, none)
             continue
         for _ in range(50):
             for i in range(N):
                 trial[i] = phi[i] + scale * dx[i]
-            new = _assemble(trial, g, grid, mat, q, bounds, a2, b2, c2, r2)
+            new = _assemble(trial, g, grid, mat, q, bounds, a2, b2, c2, r2, none)
             if new < norm or scale * big < tol:
                 break
             scale *= 0.5
