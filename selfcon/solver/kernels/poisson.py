@@ -68,6 +68,27 @@ from selfcon.solver.kernels.statistics import acceptor_ionized, donor_ionized, f
 _BOLTZMANN_ETA = -40.0
 #: a subband more than 45 kT above the local Fermi level adds ln(1 + e^x) < 3e-20 of its DOS
 _NEGLIGIBLE_X = -45.0
+_NEGLIGIBLE_T = math.exp(_NEGLIGIBLE_X)
+#: the factored occupancy (see _levels) is used while both factors lie within these bounds
+#: (their product then neither overflows nor underflows); outside, the direct formula
+_FACTOR_MAX = 1e150
+_FACTOR_MIN = 1e-150
+
+
+@njit(cache=True)
+def _levels(q, mat):
+    """exp((efn - E_k)/kT) of every electron subband and exp((E_k - efp)/kT) of every hole
+    subband, once per kernel call: a node's occupancies are then these times the node's own
+    exp(+-dphi/kT), ln(1 + e^x) = log1p(t) and 1/(1 + e^-x) = t/(1 + t) with t = e^x, one
+    logarithm per state and node instead of an exponential and a logarithm (the many-state
+    stacks spend most of a Poisson evaluation here)."""
+    te = np.empty(q.ek.shape[0])
+    for k in range(te.shape[0]):
+        te[k] = math.exp((mat.efn - q.ek[k]) / mat.kT)
+    th = np.empty(q.ekh.shape[0])
+    for k in range(th.shape[0]):
+        th[k] = math.exp((q.ekh[k] - mat.efp) / mat.kT)
+    return te, th
 
 
 @njit(cache=True, inline='always')
@@ -139,8 +160,8 @@ def _log1pexp_expit(x):
 
 
 @njit(cache=True, inline='always')
-def _node(i, phi_i, grid, mat, q):
-    """Node densities n, p, Nd+, Na- (nm^-3) at phi_i and d rho/d phi."""
+def _node(i, phi_i, grid, mat, q, te, th):
+    """Node densities n, p, Nd+, Na- (nm^-3) at phi_i and d rho/d phi (te, th: _levels)."""
     wl = grid.wl[i]
     wr = grid.wr[i]
     w = wl + wr
@@ -225,13 +246,23 @@ def _node(i, phi_i, grid, mat, q):
         nq = 0.0
         dnq = 0.0
         ek = q.ek
+        dn_node = math.exp(dphi / kT)
+        node_ok = _FACTOR_MIN < dn_node < _FACTOR_MAX
         for k in range(ek.shape[0]):
             a = q.psi2[i, k] * q.dos_e[k]
             if a != 0.0:
-                x = (efn + dphi - ek[k]) / kT
-                if x < _NEGLIGIBLE_X:       # ln(1 + e^x) < 3e-20: the subband is empty here
-                    continue
-                lg, sg = _log1pexp_expit(x)
+                f = te[k]
+                if node_ok and _FACTOR_MIN < f < _FACTOR_MAX:
+                    t = f * dn_node              # e^x, x = (efn + dphi - E_k)/kT
+                    if t < _NEGLIGIBLE_T:        # ln(1 + e^x) < 3e-20: the subband is empty here
+                        continue
+                    lg = math.log1p(t)
+                    sg = t / (1.0 + t)
+                else:
+                    x = (efn + dphi - ek[k]) / kT
+                    if x < _NEGLIGIBLE_X:
+                        continue
+                    lg, sg = _log1pexp_expit(x)
                 nq += a * kT * lg
                 dnq += qshift * a * sg
         n = ce * n + (1.0 - ce) * nq
@@ -241,13 +272,23 @@ def _node(i, phi_i, grid, mat, q):
         pq = 0.0
         dpq = 0.0
         ekh = q.ekh
+        dp_node = math.exp(-dphi / kT)
+        node_ok = _FACTOR_MIN < dp_node < _FACTOR_MAX
         for k in range(ekh.shape[0]):
             a = q.psi2h[i, k] * q.dos_h[k]
             if a != 0.0:
-                x = (ekh[k] - dphi - efp) / kT
-                if x < _NEGLIGIBLE_X:
-                    continue
-                lg, sg = _log1pexp_expit(x)
+                f = th[k]
+                if node_ok and _FACTOR_MIN < f < _FACTOR_MAX:
+                    t = f * dp_node              # e^x, x = (E_k - dphi - efp)/kT
+                    if t < _NEGLIGIBLE_T:
+                        continue
+                    lg = math.log1p(t)
+                    sg = t / (1.0 + t)
+                else:
+                    x = (ekh[k] - dphi - efp) / kT
+                    if x < _NEGLIGIBLE_X:
+                        continue
+                    lg, sg = _log1pexp_expit(x)
                 pq += a * kT * lg
                 dpq -= qshift * a * sg
         p = ch * p + (1.0 - ch) * pq
@@ -270,8 +311,9 @@ def node_densities(phi, grid, mat, q):
     ndp = np.empty(N)
     nam = np.empty(N)
     drho = np.empty(N)
+    te, th = _levels(q, mat)
     for i in range(N):
-        n[i], p[i], ndp[i], nam[i], drho[i] = _node(i, phi[i], grid, mat, q)
+        n[i], p[i], ndp[i], nam[i], drho[i] = _node(i, phi[i], grid, mat, q, te, th)
     return n, p, ndp, nam, drho
 
 
@@ -315,14 +357,14 @@ def thomas(a, b, c, d, cp, x):
 
 
 @njit(cache=True)
-def _assemble(phi, g, grid, mat, q, bounds, a, b, c, r, dens):
+def _assemble(phi, g, grid, mat, q, bounds, a, b, c, r, dens, te, th):
     """Fill the tridiagonal Jacobian (a, b, c) and r = -R at phi; return ||R||_2.
     g (N-1,): eps/h of every cell.  dens (4, N) receives the node densities n, p, Nd+,
-    Na- of node_densities (a (4, 0) array: not wanted)."""
+    Na- of node_densities (a (4, 0) array: not wanted); te, th: _levels."""
     N = phi.shape[0]
     keep = dens.shape[1] == N
     for i in range(N):
-        nn, pp, ndp, nam, drho = _node(i, phi[i], grid, mat, q)
+        nn, pp, ndp, nam, drho = _node(i, phi[i], grid, mat, q, te, th)
         if keep:
             dens[0, i] = nn
             dens[1, i] = pp
@@ -406,10 +448,11 @@ def poisson_newton(phi0, grid, mat, q, bounds, opts, history, densities=None):
     steps = 0
     converged = False
     upd = np.inf
+    te, th = _levels(q, mat)
     if densities is None:
-        norm = _assemble(phi, g, grid, mat, q, bounds, a, b, c, r, none)
+        norm = _assemble(phi, g, grid, mat, q, bounds, a, b, c, r, none, te, th)
     else:
-        norm = _assemble(phi, g, grid, mat, q, bounds, a, b, c, r, densities)
+        norm = _assemble(phi, g, grid, mat, q, bounds, a, b, c, r, densities, te, th)
     for it in range(max_iter):
         if not math.isfinite(norm):
             upd = np.nan
@@ -436,12 +479,12 @@ def poisson_newton(phi0, grid, mat, q, bounds, opts, history, densities=None):
                 converged = True
                 break
             if it + 1 < max_iter:
-                norm = _assemble(phi, g, grid, mat, q, bounds, a, b, c, r, none)
+                norm = _assemble(phi, g, grid, mat, q, bounds, a, b, c, r, none, te, th)
             continue
         for _ in range(50):
             for i in range(N):
                 trial[i] = phi[i] + scale * dx[i]
-            new = _assemble(trial, g, grid, mat, q, bounds, a2, b2, c2, r2, none)
+            new = _assemble(trial, g, grid, mat, q, bounds, a2, b2, c2, r2, none, te, th)
             if new < norm or scale * big < tol:
                 break
             scale *= 0.5
