@@ -279,14 +279,12 @@ def band_matrix(diag, upper) -> np.ndarray:
     u = 2 * nb - 1
     ab = np.zeros((u + 1, m * nb), dtype=complex)
     a, b = np.triu_indices(nb)
-    for p in range(m):
-        ab[u + a - b, p * nb + b] = diag[p, a, b]
+    ab[(u + a - b)[None, :], np.arange(m)[:, None] * nb + b[None, :]] = diag[:, a, b]
     if m > 1:
         aa, bb = np.meshgrid(np.arange(nb), np.arange(nb), indexing="ij")
         aa, bb = aa.ravel(), bb.ravel()
         rows = u + aa - nb - bb
-        for p in range(m - 1):
-            ab[rows, (p + 1) * nb + bb] = upper[p, aa, bb]
+        ab[rows[None, :], np.arange(1, m)[:, None] * nb + bb[None, :]] = upper[:, aa, bb]
     return ab
 
 
@@ -419,7 +417,7 @@ def split_transform(nb: int, c: float, s: float, axial: bool):
     eye = np.eye(nb)
     lin = np.vstack([np.kron(eye, m.T) - np.kron(m, eye) for m in mats])
     with one_blas_thread():
-        _, sv, vh = np.linalg.svd(lin)
+        _, sv, vh = np.linalg.svd(lin, full_matrices=False)
     null = vh[np.sum(sv > 1e-9 * sv[0]):].conj()
     result = None
     if null.shape[0] == 2:
@@ -627,10 +625,13 @@ BASIS_SHIFT = 0.05
 #: accepted estimate of a reduced-basis energy's error, eV (the k_par points above it are
 #: solved whole); the estimate is r^T (B_0 - sigma)^-1 r of the state's residual r
 BASIS_TOL = 5e-5
+#: the k_par-independent operators of this many (mesh, material, direction) are kept
+LINE_CACHE_SIZE = 8
+_LINE_CACHE: dict = {}
 
 
 def _band_lower(d, u):
-    """Lower band storage (scipy.linalg.solveh_banded) of the real symmetric
+    """Lower band storage (scipy.linalg.cholesky_banded) of the real symmetric
     block-tridiagonal matrix with blocks ``d`` (m, q, q), ``u`` (m-1, q, q)."""
     m, q = d.shape[0], d.shape[1]
     ab = np.zeros((2 * q, m * q))
@@ -651,6 +652,39 @@ def _apply(d, u, x):
     return y
 
 
+def _line_operators(h, w, mat, nb, cx, sy, axial):
+    """The real halves of the hole operator along the in-plane direction (cx, sy), split as
+    H(k) = Z + phi + k B1 + k^2 B2 (Z at k = 0 and phi = 0; the potential only adds phi to
+    the diagonal): (T, [(Z, B1, B2) per half, each a (d, u) pair]), or None where the
+    model does not split into real halves.  Kept for the last LINE_CACHE_SIZE meshes and
+    materials (the loop asks for the same ones every iteration)."""
+    sp = split_transform(nb, cx, sy, axial)
+    if sp is None or not sp[1]:
+        return None
+    key = (nb, cx, sy, axial, np.asarray(h, float).tobytes(), np.asarray(w, float).tobytes(),
+           b"".join(np.asarray(a, float).tobytes() for a in mat))
+    hit = _LINE_CACHE.get(key)
+    if hit is not None:
+        return hit
+    zero = np.zeros(np.asarray(w).size)
+    parts = []
+    for kk in (0.0, 1.0, -1.0):
+        d, u = _interior_hole_blocks(h, w, mat, zero, kk * cx, kk * sy, nb, axial)
+        got = split_blocks(d, u, sp[0], True)
+        if got is None:
+            return None
+        parts.append(got)
+    halves = []
+    for (dz, uz), (dp, up), (dm, um) in zip(*parts):
+        halves.append(((dz, uz), (0.5 * (dp - dm), 0.5 * (up - um)),
+                       (0.5 * (dp + dm) - dz, 0.5 * (up + um) - uz)))
+    out = (sp[0], halves)
+    if len(_LINE_CACHE) >= LINE_CACHE_SIZE:
+        _LINE_CACHE.pop(next(iter(_LINE_CACHE)))
+    _LINE_CACHE[key] = out
+    return out
+
+
 def reduced_dispersion(h, w, mat: KpMaterial, phi_node, nb: int, n_states: int, k_grid, *,
                        angle: float | None = None):
     """:func:`dispersion` from a reduced basis, or None where the model does not split into
@@ -660,127 +694,142 @@ def reduced_dispersion(h, w, mat: KpMaterial, phi_node, nb: int, n_states: int, 
     Along such a line the matrix is two real halves (:func:`split_transform`), each
     H(k) = B0 + k B1 + k^2 B2 with B1, B2 fixed.  Each half is expanded in a basis made of
     (a) its zone-centre states, BASIS_LEVELS levels (at least ``n_states``) of each group
-    that decouples at k = 0 (heavy; light with split-off), and (b) the first and second
-    order corrections of perturbation theory with the resolvent taken at a shift sigma
-    below the spectrum, (B0 - sigma)^-1 B1 V, (B0 - sigma)^-1 B2 V and (B0 - sigma)^-1 B1
-    (B0 - sigma)^-1 B1 V (they carry the kinks the k-linear terms put at the interfaces,
-    which zone-centre states alone converge to only slowly), orthonormalised.  B0, B1,
-    B2 are projected once; every k is then a small dense symmetric eigenproblem.  Each
-    state's residual r = H(k) psi - E psi is checked: r^T (B0 - sigma)^-1 r estimates the
-    error of its energy (second order in r; r is orthogonal to the basis, which holds the
-    low states), and every k where one exceeds BASIS_TOL is solved whole
-    (:func:`lowest_states`), so the result is never the basis' alone when it is poor.
-    k = 0 is :func:`zone_centre` (exact).  Same return as :func:`dispersion`."""
+    that decouples at k = 0 (heavy; light with split-off; the two halves are the same
+    matrix there, Kramers partners), and (b) the first and second order corrections of
+    perturbation theory with the resolvent taken at a shift sigma below the spectrum,
+    (B0 - sigma)^-1 B1 V, (B0 - sigma)^-1 B2 V and (B0 - sigma)^-1 B1 (B0 - sigma)^-1 B1 V
+    (they carry the kinks the k-linear terms put at the interfaces, which zone-centre
+    states alone converge to only slowly), orthonormalised.  B0, B1, B2 are projected
+    once; every k is then a small dense symmetric eigenproblem.  Each state's residual
+    r = H(k) psi - E psi is checked: r^T (B0 - sigma)^-1 r estimates the error of its energy
+    (second order in r; r is orthogonal to the basis, which holds the low states), and
+    every k where one exceeds BASIS_TOL is solved whole (:func:`lowest_states`), so the
+    result is never the basis' alone when it is poor.  k = 0 is the zone-centre solve
+    (exact).  Same return as :func:`dispersion` (the states at k = 0 are those of the
+    halves: each Kramers pair as the halves' two states)."""
     from selfcon.solver.threads import one_blas_thread
-    with one_blas_thread():
-        return _reduced_dispersion(h, w, mat, phi_node, nb, n_states, k_grid, angle)
-
-
-def _reduced_dispersion(h, w, mat, phi_node, nb, n_states, k_grid, angle):
-    import scipy.linalg as sla
-    from selfcon.solver.kernels.eigen import lowest_eigenpairs
     k_grid = np.asarray(k_grid, float)
+    if k_grid.size < 2 or k_grid[0] != 0.0:
+        return None
     axial = angle is None
     cx, sy = (1.0, 0.0) if axial else (float(np.cos(angle)), float(np.sin(angle)))
-    sp = split_transform(nb, cx, sy, axial)
-    if sp is None or not sp[1] or k_grid.size < 2 or k_grid[0] != 0.0:
+    ops = _line_operators(h, w, mat, nb, cx, sy, axial)
+    if ops is None:
         return None
-    T = sp[0]
-    zero = np.zeros_like(np.asarray(phi_node, float))
-    parts = []
-    for kk, ph in ((0.0, phi_node), (1.0, zero), (-1.0, zero), (0.0, zero)):
-        d, u = _interior_hole_blocks(h, w, mat, ph, kk * cx, kk * sy, nb, axial)
-        got = split_blocks(d, u, T, True)
-        if got is None:
-            return None
-        parts.append(got)
-    e0, psi0 = lowest_states(h, w, mat, phi_node, 0.0, 0.0, nb, n_states)
+    with one_blas_thread():
+        return _reduced_dispersion(h, w, mat, phi_node, nb, n_states, k_grid, cx, sy, axial, ops)
+
+
+def _zone_centre_half(d0, u0, levels):
+    """Zone-centre states of one real half (component 0 heavy holes alone, the others
+    together): (values, vectors (m, q, n)) or None if they are not decoupled."""
+    from selfcon.solver.kernels.eigen import lowest_eigenpairs
+    m, q = d0.shape[0], d0.shape[1]
+    ev = np.empty(min(levels, m))
+    zv = np.empty((ev.size, m))
+    lowest_eigenpairs(np.ascontiguousarray(d0[:, 0, 0]), np.ascontiguousarray(u0[:, 0, 0]), ev.size, ev, zv)
+    x = np.zeros((m, q, ev.size))
+    x[:, 0, :] = zv.T
+    if q == 1:
+        return ev, x
+    if max(np.abs(d0[:, 0, 1:]).max(), np.abs(u0[:, 0, 1:]).max(), np.abs(u0[:, 1:, 0]).max()) \
+            > SPLIT_TOL * np.abs(d0).max():
+        return None
+    el, vl = lowest_banded(band_matrix(d0[:, 1:, 1:].astype(complex), u0[:, 1:, 1:].astype(complex)),
+                           min(levels, m * (q - 1)))
+    flat = vl.reshape(-1, el.size)
+    ph = flat[np.argmax(np.abs(flat), axis=0), np.arange(el.size)]       # real vectors up to a phase
+    y = np.zeros((m, q, el.size))
+    y[:, 1:, :] = (vl.reshape(m, q - 1, el.size) * (np.abs(ph) / ph)[None, None, :]).real
+    return np.concatenate([ev, el]), np.concatenate([x, y], axis=2)
+
+
+def _reduced_dispersion(h, w, mat, phi_node, nb, n_states, k_grid, cx, sy, axial, ops):
+    import scipy.linalg as sla
+    tbtrs = sla.get_lapack_funcs("tbtrs", dtype=float)
+    T, halves = ops
     half = nb // 2
     n_nodes = np.asarray(w).size
     m = n_nodes - 2
-    s = 1.0 / np.sqrt(np.asarray(w, float)[1:-1])
+    nk = k_grid.size
+    s2 = 1.0 / np.asarray(w, float)[1:-1]
+    phin = np.asarray(phi_node, float)[1:-1]
+    eye = np.eye(half)
     levels = max(BASIS_LEVELS, n_states)
-    res_E, res_d, bad = [], [], np.zeros(k_grid.size, dtype=bool)
-    for b in range(2):
-        (d0, u0), (dp, up), (dm, um), (dz, uz) = (p[b] for p in parts)
-        d1, u1 = 0.5 * (dp - dm), 0.5 * (up - um)
-        d2, u2 = 0.5 * (dp + dm) - dz, 0.5 * (up + um) - uz
-        # zone-centre states of the half: component 0 (heavy) alone, the others together
-        cols, vals = [], []
-        ev = np.empty(min(levels, m))
-        zv = np.empty((ev.size, m))
-        lowest_eigenpairs(np.ascontiguousarray(d0[:, 0, 0]), np.ascontiguousarray(u0[:, 0, 0]),
-                          ev.size, ev, zv)
-        x = np.zeros((m, half, ev.size))
-        x[:, 0, :] = zv.T
-        cols.append(x)
-        vals.append(ev)
-        if half > 1:
-            if max(np.abs(d0[:, 0, 1:]).max(), np.abs(u0[:, 0, 1:]).max(), np.abs(u0[:, 1:, 0]).max()) \
-                    > SPLIT_TOL * np.abs(d0).max():
-                return None
-            el, vl = lowest_banded(band_matrix(d0[:, 1:, 1:].astype(complex), u0[:, 1:, 1:].astype(complex)),
-                                   min(levels, m * (half - 1)))
-            vl = vl.reshape(m, half - 1, el.size)
-            # real eigenvectors of a real matrix, up to a phase per vector
-            ph = np.take_along_axis(vl.reshape(-1, el.size),
-                                    np.argmax(np.abs(vl.reshape(-1, el.size)), axis=0)[None], 0)[0]
-            x = np.zeros((m, half, el.size))
-            x[:, 1:, :] = (vl * (np.abs(ph) / ph)[None, None, :]).real
-            cols.append(x)
-            vals.append(el)
-        V = np.concatenate(cols, axis=2)
-        sigma = float(np.min(np.concatenate(vals))) - BASIS_SHIFT
-        chol = sla.cholesky_banded(_band_lower(d0 - sigma * np.eye(half)[None], u0), lower=True)
+    (dz, uz), _, _ = halves[0]
+    zc = _zone_centre_half(dz + phin[:, None, None] * eye, uz, levels)   # the same in both halves
+    if zc is None:
+        return None
+    e_zc, V = zc
+    sigma = float(e_zc.min()) - BASIS_SHIFT
+    Es, Ds, zero_vals, zero_vecs = [], [], [], []
+    bad = np.zeros(nk, dtype=bool)
+    for b, ((dz, uz), (d1, u1), (d2, u2)) in enumerate(halves):
+        d0 = dz + phin[:, None, None] * eye
+        chol = sla.cholesky_banded(_band_lower(d0 - sigma * eye, uz), lower=True, check_finite=False)
 
         def resolve(y):
-            return sla.cho_solve_banded((chol, True), y.reshape(m * half, -1)).reshape(m, half, -1)
+            return sla.cho_solve_banded((chol, True), y.reshape(m * half, -1),
+                                        check_finite=False).reshape(m, half, -1)
         y1 = resolve(_apply(d1, u1, V))
         y2 = resolve(_apply(d2, u2, V))
         y3 = resolve(_apply(d1, u1, y1))
-        basis = np.concatenate([V, y1, y2, y3], axis=2).reshape(m * half, -1)
-        q, r = np.linalg.qr(basis)
+        q, r = np.linalg.qr(np.concatenate([V, y1, y2, y3], axis=2).reshape(m * half, -1))
         diag = np.abs(np.diag(r))
         q = np.ascontiguousarray(q[:, diag > 1e-10 * diag.max()])
         K = q.shape[1]
         qv = q.reshape(m, half, K)
-        P = [q.T @ _apply(dd, uu, qv).reshape(m * half, K) for dd, uu in ((d0, u0), (d1, u1), (d2, u2))]
+        P = []
+        for dd, uu in ((d0, uz), (d1, u1), (d2, u2)):
+            x = q.T @ _apply(dd, uu, qv).reshape(m * half, K)
+            P.append(0.5 * (x + x.T))
         want = min(n_states, K)
-        E = np.full((want, k_grid.size), np.nan)
-        dens = np.zeros((n_nodes, want, k_grid.size))
-        for j, k in enumerate(k_grid):
-            if j == 0:
-                continue
-            Pk = P[0] + k * P[1] + (k * k) * P[2]
-            th, c = sla.eigh(0.5 * (Pk + Pk.T), subset_by_index=(0, want - 1))
-            psi = (q @ c).reshape(m, half, want)
-            res = _apply(d0 + k * d1 + (k * k) * d2, u0 + k * u1 + (k * k) * u2, psi) - psi * th
-            est = np.einsum("ij,ij->j", res.reshape(-1, want), resolve(res).reshape(-1, want))
-            if not np.all(est <= BASIS_TOL):
-                bad[j] = True
+        E = np.full((want, nk), np.nan)
+        psi = np.zeros((m, half, want, nk))
+        res = np.zeros((m, half, want, nk))
+        for j in range(1, nk):
+            k = k_grid[j]
+            th, c = sla.eigh(P[0] + k * P[1] + (k * k) * P[2], subset_by_index=(0, want - 1),
+                             driver="evx", check_finite=False)
+            p = (q @ c).reshape(m, half, want)
+            res[:, :, :, j] = _apply(d0 + k * d1 + (k * k) * d2, uz + k * u1 + (k * k) * u2, p) - p * th
+            psi[:, :, :, j] = p
             E[:, j] = -th
-            dens[1:-1, :, j] = np.sum(psi * psi, axis=1) * (s * s)[:, None]
-        res_E.append(E)
-        res_d.append(dens)
-    E = np.concatenate(res_E)
-    dens = np.concatenate(res_d, axis=1)
+        lx, _ = tbtrs(chol, res.reshape(m * half, -1), uplo="L")            # L^-1 r
+        est = np.sum((lx * lx).reshape(res.shape), axis=(0, 1))                # (want, nk)
+        bad |= np.any(est > BASIS_TOL, axis=0)
+        dens = np.zeros((n_nodes, want, nk))
+        dens[1:-1] = np.sum(psi * psi, axis=1) * s2[:, None, None]
+        # k = 0: the zone-centre states, in the J basis
+        E[:, 0] = np.nan
+        nz = min(want, e_zc.size)
+        order0 = np.argsort(e_zc, kind="stable")[:nz]
+        E[:nz, 0] = -e_zc[order0]
+        v0 = V[:, :, order0]
+        dens[1:-1, :nz, 0] = np.sum(v0 * v0, axis=1) * s2[:, None]
+        zero_vals.append(e_zc[order0])
+        zero_vecs.append(np.einsum("ij,mjk->mik", T[:, b * half:(b + 1) * half], v0))
+        Es.append(E)
+        Ds.append(dens)
+    E = np.concatenate(Es)
+    dens = np.concatenate(Ds, axis=1)
     order = np.argsort(-E, axis=0, kind="stable")[:n_states]      # lowest hole energy first
-    out_E = np.full((n_states, k_grid.size), np.nan)
-    out_d = np.zeros((n_nodes, n_states, k_grid.size))
     got = order.shape[0]
+    out_E = np.full((n_states, nk), np.nan)
+    out_d = np.zeros((n_nodes, n_states, nk))
     out_E[:got] = np.take_along_axis(E, order, 0)
     out_d[:, :got] = np.take_along_axis(dens, order[None], 1)
-    out_E[:e0.size, 0] = e0
-    out_E[e0.size:, 0] = np.nan
-    out_d[:, :, 0] = 0.0
-    out_d[:, :e0.size, 0] = np.sum(np.abs(psi0) ** 2, axis=1)
+    vals0 = np.concatenate(zero_vals)
+    o0 = np.argsort(vals0, kind="stable")[:n_states]
+    psi0 = np.zeros((n_nodes, nb, o0.size), dtype=complex)
+    psi0[1:-1] = np.concatenate(zero_vecs, axis=2)[:, :, o0] * np.sqrt(s2)[:, None, None]
     for j in np.flatnonzero(bad):
-        e, psi = lowest_states(h, w, mat, phi_node, k_grid[j] * cx, k_grid[j] * sy, nb, n_states,
-                               axial=axial, guess=out_E[:, j])
+        e, ps = lowest_states(h, w, mat, phi_node, k_grid[j] * cx, k_grid[j] * sy, nb, n_states,
+                              axial=axial, guess=out_E[:, j])
         out_E[:, j] = np.nan
         out_E[:e.size, j] = e
         out_d[:, :, j] = 0.0
-        out_d[:, :e.size, j] = np.sum(np.abs(psi) ** 2, axis=1)
+        out_d[:, :e.size, j] = np.sum(np.abs(ps) ** 2, axis=1)
     return out_E, out_d, psi0
 
 
@@ -912,9 +961,42 @@ def fermi_sea_top(h, w, mat, phi_node, nb, efp, kT) -> float:
     """The k_par (nm^-1) a grid must reach in one region: the Fermi sea above the first
     state at k_par = 0 plus WINDOW_KT kT (at least MIN_WINDOW), at the heavy mass of
     :func:`grid_top`."""
-    e0, _ = lowest_states(h, w, mat, phi_node, 0.0, 0.0, nb, 2)
-    depth = max(0.0, float(e0[0]) - efp) if e0.size else 0.0
+    top = _zone_centre_top(h, w, mat, phi_node, nb)
+    if top is None:
+        e0, _ = lowest_states(h, w, mat, phi_node, 0.0, 0.0, nb, 2)
+        top = float(e0[0]) if e0.size else None
+    depth = max(0.0, top - efp) if top is not None else 0.0
     return grid_top(mat, max(depth + WINDOW_KT * kT, MIN_WINDOW))
+
+
+def _zone_centre_top(h, w, mat, phi_node, nb):
+    """The first hole level at k_par = 0 (electron scale, eV) from the zone-centre groups of
+    a real half (values only: a Sturm-count bisection to 1e-9 eV), or None."""
+    from selfcon.solver.kernels import kp as kern
+    from selfcon.solver.kernels.eigen import lowest_eigenpairs
+    ops = _line_operators(h, w, mat, nb, 1.0, 0.0, True)
+    if ops is None or np.asarray(w).size < 3:
+        return None
+    (dz, uz), _, _ = ops[1][0]
+    q = dz.shape[1]
+    d0 = dz + np.asarray(phi_node, float)[1:-1, None, None] * np.eye(q)
+    ev, zv = np.empty(1), np.empty((1, d0.shape[0]))
+    lowest_eigenpairs(np.ascontiguousarray(d0[:, 0, 0]), np.ascontiguousarray(uz[:, 0, 0]), 1, ev, zv)
+    low = float(ev[0])
+    if q > 1:
+        if max(np.abs(d0[:, 0, 1:]).max(), np.abs(uz[:, 0, 1:]).max(), np.abs(uz[:, 1:, 0]).max()) \
+                > SPLIT_TOL * np.abs(d0).max():
+            return None
+        ab = band_matrix(d0[:, 1:, 1:].astype(complex), uz[:, 1:, 1:].astype(complex))
+        u = ab.shape[0] - 1
+        radius = np.abs(ab[:u]).sum(axis=0)
+        for off in range(1, u + 1):
+            radius[:-off] += np.abs(ab[u - off, off:])
+        lo = float(np.min(ab[u].real - radius)) - 1.0
+        hi = float(np.max(ab[u].real + radius)) + 1.0
+        centre, _ = kern.lowest_eigenvalues(np.ascontiguousarray(ab), 1, lo, hi, 1e-9, np.empty(0))
+        low = min(low, float(centre[0]))
+    return -low
 
 
 def region_dispersion(h, w, mat, phi_node, nb, n_states, efp, kT, k_top):
