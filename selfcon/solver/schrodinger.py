@@ -170,7 +170,7 @@ def count_below(d, e, x) -> int:
     factorisation of T - x I; Golub and Van Loan, Matrix Computations, section 8.4).
     The count is the kernel's (selfcon/solver/kernels/schrodinger.py, the check of the
     nonparabolic refinement): a pass over the matrix in Python took 0.1-0.25 ms a call."""
-    return int(_kernels()._sturm_count(np.ascontiguousarray(d, dtype=float),
+    return int(_kernels().sturm_count(np.ascontiguousarray(d, dtype=float),
                                        np.ascontiguousarray(e, dtype=float), float(x)))
 
 

@@ -83,7 +83,8 @@ def full_spectrum(st, phi, loop_states: dict, n_states: int | None = None) -> di
 
     ``loop_states``: the loop's ``{band: BandStates}`` at ``phi``; ``n_states``: states per
     band and region for the pairs the loop did not solve (default ``st.states``).
-    Bands with no state anywhere are left out.
+    Bands with no state anywhere are left out.  A band of the loop's states alone keeps the
+    loop's wavefunction array (no copy): read-only, like the loop's states.
     """
     k_extra = int(st.states if n_states is None else n_states)
     out = {}
@@ -115,11 +116,16 @@ def full_spectrum(st, phi, loop_states: dict, n_states: int | None = None) -> di
             continue
         energy = np.concatenate([p[0] for p in parts])
         order = np.argsort(sign * energy, kind="stable")
-        energy = energy[order]
-        psi = np.take(np.concatenate([p[1] for p in parts], axis=1), order, axis=1)
-        m_par = np.concatenate([p[2] for p in parts])[order]
-        region = np.concatenate([p[3] for p in parts])[order]
-        populated = np.concatenate([p[4] for p in parts])[order]
+        if len(parts) == 1 and np.array_equal(order, np.arange(energy.size)):
+            # the loop's states alone, already in order: no (N, k) copies (the result copies
+            # the wavefunctions once, into its Subbands)
+            psi, m_par, region, populated = parts[0][1], parts[0][2].copy(), parts[0][3].copy(), parts[0][4]
+        else:
+            energy = energy[order]
+            psi = np.take(np.concatenate([p[1] for p in parts], axis=1), order, axis=1)
+            m_par = np.concatenate([p[2] for p in parts])[order]
+            region = np.concatenate([p[3] for p in parts])[order]
+            populated = np.concatenate([p[4] for p in parts])[order]
         deg = state_degeneracy(st, band, psi)
         out[band] = BandSpectrum(band=band, energy=energy, psi=psi, m_par=m_par,
                                  dos=deg * DOS2D_PER_M0 * m_par, region=region, degeneracy=deg,

@@ -176,7 +176,7 @@ def dual_average(h, f_cell, out):
 
 
 @numba.njit(cache=True)
-def _sturm_count(d, e, x):
+def sturm_count(d, e, x):
     """Number of eigenvalues of the symmetric tridiagonal (d, e) below x (Sturm sequence)."""
     count = 0
     q = 1.0
@@ -290,5 +290,5 @@ def refine_eigenpair(d, e, index, u):
     if res > 1e-12 * scale:
         return mu, False
     margin = 10.0 * res + 1e-14 * scale
-    ok = (_sturm_count(d, e, mu - margin) == index and _sturm_count(d, e, mu + margin) == index + 1)
+    ok = (sturm_count(d, e, mu - margin) == index and sturm_count(d, e, mu + margin) == index + 1)
     return mu, ok
