@@ -252,12 +252,12 @@ def basins(u) -> list[tuple[int, int]]:
     if n < 3:
         return [(0, n - 1)] if n else []
     d = np.diff(u)
-    scale = max(float(np.max(np.abs(u))), 1.0)
-    s = np.sign(np.where(np.abs(d) > 1e-12 * scale, d, 0.0))
-    nz = np.flatnonzero(s)
+    tol = 1e-12 * max(float(np.max(np.abs(u))), 1.0)
+    rising, falling = d > tol, d < -tol          # the cells that are not flat
+    nz = np.flatnonzero(rising | falling)
     a, b = nz[:-1], nz[1:]
     # rising cell a, then flat, then falling cell b: nodes a+1..b are the top
-    cuts = ((a + 1 + b)[(s[a] > 0) & (s[b] < 0)] // 2).tolist()
+    cuts = ((a + 1 + b)[rising[a] & falling[b]] // 2).tolist()
     starts = [0] + [c + 1 for c in cuts]
     return list(zip(starts, cuts + [n - 1]))
 
@@ -290,13 +290,13 @@ def candidate_runs(w, u, density, *, floor_cm2: float = FALLBACK_FLOOR_CM2,
             # peak's run), so a negligible peak (the noise of a multiband tail deep in a
             # barrier) cannot claim the flank of a larger peak's tail and merge it away.
             # Left: nodes j = p-1, p-2, ... >= a while thr < dens[j] <= dens[j+1], j not taken
-            ok = (dens[a:p] > thr) & up[a:p] & ~taken[a:p]
-            stop = np.flatnonzero(~ok)
-            i0 = a + int(stop[-1]) + 1 if stop.size else a
+            stop = (dens[a:p] <= thr) | ~up[a:p] | taken[a:p]
+            last = p - a - 1 - int(np.argmax(stop[::-1])) if p > a else -1    # -1: none stops
+            i0 = a + last + 1 if last >= 0 and stop[last] else a
             # right: nodes j = p+1, p+2, ... <= b while thr < dens[j] <= dens[j-1], j not taken
-            ok = (dens[p + 1:b + 1] > thr) & down[p:b] & ~taken[p + 1:b + 1]
-            stop = np.flatnonzero(~ok)
-            i1 = p + int(stop[0]) if stop.size else b
+            stop = (dens[p + 1:b + 1] <= thr) | ~down[p:b] | taken[p + 1:b + 1]
+            first = int(np.argmax(stop)) if p < b else 0
+            i1 = p + first if p < b and stop[first] else b
             taken[i0:i1 + 1] = True
             if _sheet(w, dens, i0, i1) >= floor_cm2:
                 runs.append((i0, i1))
@@ -408,14 +408,19 @@ def _node_range(z, top_nm, bottom_nm) -> tuple[int, int]:
 
 # --------------------------------------------------------------------------- analysis
 
-def _layer_shares(z, rho, layers) -> np.ndarray:
-    """Part of the integral of rho (trapezoid per cell) in each layer."""
+def _layer_cells(z, layers) -> tuple[np.ndarray, np.ndarray]:
+    """(cell widths (N-1,), the layer of each cell) of :func:`_layer_shares`."""
     z = np.asarray(z, dtype=float)
-    h = np.diff(z)
-    cell = 0.5 * h * (rho[:-1] + rho[1:])
     zc = 0.5 * (z[:-1] + z[1:])
     bottoms = np.array([L.bottom_nm for L in layers])
-    idx = np.minimum(np.searchsorted(bottoms, zc), len(layers) - 1)
+    return np.diff(z), np.minimum(np.searchsorted(bottoms, zc), len(layers) - 1)
+
+
+def _layer_shares(z, rho, layers, cells=None) -> np.ndarray:
+    """Part of the integral of rho (trapezoid per cell) in each layer (``cells``: the
+    :func:`_layer_cells` of z and layers, if computed already)."""
+    h, idx = _layer_cells(z, layers) if cells is None else cells
+    cell = 0.5 * h * (rho[:-1] + rho[1:])
     per = np.bincount(idx, weights=cell, minlength=len(layers))
     tot = float(per.sum())
     return per / tot if tot > 0 else per
@@ -492,6 +497,7 @@ def analyse(z, w, kT: float, profiles: dict, levels, layers=(), requests=()) -> 
             occ = np.asarray(lv.occupation, dtype=float)
             unattributed[carrier] += float(occ[attribution[lv.band] < 0].sum())
     layer_share = []                 # part of each channel's carriers in its layer c.layer
+    cells = _layer_cells(z, layers) if layers else None
     for j, c in enumerate(chans):
         prof = profiles.get(c.carrier)
         cl = np.zeros(z.size) if prof is None else np.asarray(prof.classical, dtype=float)
@@ -530,7 +536,9 @@ def analyse(z, w, kT: float, profiles: dict, levels, layers=(), requests=()) -> 
         if mine:
             c.ground_energy = mine[0][0]                 # sign * (E0 - EF), the carrier's own EF
             masses = [t[5] for t in mine if t[6] == subs[0] and math.isfinite(t[5])]
-            c.in_plane_mass = float(np.mean(masses)) if masses else math.nan   # mean of the branches
+            # the mean of the branches (np.mean adds a short list one by one, as sum does)
+            c.in_plane_mass = (sum(masses) / len(masses) if len(masses) < 8 else float(np.mean(masses))) \
+                if masses else math.nan
             if len(subs) > 1:
                 c.spacing = next(t[0] for t in mine if t[6] == subs[1]) - mine[0][0]
         pop_of = {}
@@ -546,7 +554,7 @@ def analyse(z, w, kT: float, profiles: dict, levels, layers=(), requests=()) -> 
             lv = next(v for v in levels if v.band == band)
             p2 = np.asarray(lv.psi[:, k], dtype=float) ** 2 * w
             c.centroid_nm = float(np.dot(p2, z) / max(float(p2.sum()), 1e-300))
-        shares = _layer_shares(z, rho, layers) if layers and norm > 0 else None
+        shares = _layer_shares(z, rho, layers, cells) if layers and norm > 0 else None
         if shares is not None:
             c.layer = layers[int(np.argmax(shares))].name
             layer_share.append(float(np.max(shares)))
