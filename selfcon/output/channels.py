@@ -59,6 +59,7 @@ channel is measured against all subband carriers of its kind).
 """
 from __future__ import annotations
 
+import bisect
 import math
 from dataclasses import dataclass, field
 
@@ -143,9 +144,29 @@ class Levels:
         tests of one analysis all use it); the states must not change after the first call."""
         cached = self.__dict__.get("_weighted")
         if cached is None or cached[0] is not w:
-            cached = (w, np.asarray(self.psi, dtype=float) ** 2 * np.asarray(w, dtype=float)[:, None])
+            cached = (w, np.asarray(self.psi, dtype=float) ** 2 * np.asarray(w, dtype=float)[:, None], {})
             self.__dict__["_weighted"] = cached
         return cached[1]
+
+    def squares(self) -> np.ndarray:
+        """(k, N) |psi|^2 of each state as a contiguous row (computed once; the states must not
+        change after the first call)."""
+        out = self.__dict__.get("_squares")
+        if out is None:
+            out = self.__dict__["_squares"] = np.square(np.asarray(self.psi, dtype=float).T, order="C")
+        return out
+
+    def share(self, w, i0: int, i1: int) -> np.ndarray:
+        """(k,) each state's part of its |psi|^2 on nodes i0..i1, sum_i w_i |psi_i,k|^2: the
+        sums of :meth:`weighted`, each interval summed once (the tail test, the coupling
+        test and the attribution of one analysis ask for the same intervals)."""
+        p2 = self.weighted(w)
+        sums = self.__dict__["_weighted"][2]
+        key = (int(i0), int(i1))
+        out = sums.get(key)
+        if out is None:
+            out = sums[key] = p2[key[0]:key[1] + 1].sum(axis=0)
+        return out
 
 
 @dataclass
@@ -274,30 +295,40 @@ def candidate_runs(w, u, density, *, floor_cm2: float = FALLBACK_FLOOR_CM2,
     dens = np.asarray(density, dtype=float)
     n = dens.size
     runs = []
-    taken = np.zeros(n, dtype=bool)
     up = dens[:-1] <= dens[1:]          # up[j]: dens[j] <= dens[j + 1]
     down = dens[1:] <= dens[:-1]        # down[j]: dens[j + 1] <= dens[j]
     is_peak = dens > 0                  # >= both neighbours (the mesh ends have one)
     is_peak[1:] &= up
     is_peak[:-1] &= down
+    # A run grows from its peak p while the density falls away from it and stays above
+    # thr = peak_fraction * dens[p], inside its basin, without entering an earlier run.  So
+    # its left end lies past the last j < p where the density does not rise towards p
+    # (not up[j]) and past the last earlier run, and on the stretch between, where the
+    # density rises monotonically towards p, past the last node at or below thr: a binary
+    # search.  Likewise on the right.  (The node-by-node walk, in the same order, gave
+    # the same runs; the walk was the cost of the result's channel analysis.)
+    no_up = np.flatnonzero(~up).tolist()
+    no_down = np.flatnonzero(~down).tolist()
+    starts, ends = [], []               # the runs claimed so far (sorted, disjoint)
+    peaks = np.flatnonzero(is_peak).tolist()
+    height = dict(zip(peaks, dens[peaks].tolist()))
     for a, b in basins(u):
-        peaks = a + np.flatnonzero(is_peak[a:b + 1])
-        for p in peaks[np.argsort(-dens[peaks], kind="stable")].tolist():
-            if taken[p]:
-                continue
+        mine = peaks[bisect.bisect_left(peaks, a):bisect.bisect_right(peaks, b)]
+        for p in sorted(mine, key=lambda q: -height[q]):        # highest first (stable on ties)
+            k = bisect.bisect_right(starts, p)
+            if k > 0 and ends[k - 1] >= p:
+                continue                # inside an earlier run
             thr = peak_fraction * dens[p]
-            # downhill only: a run stops where the density rises again (past it lies another
-            # peak's run), so a negligible peak (the noise of a multiband tail deep in a
-            # barrier) cannot claim the flank of a larger peak's tail and merge it away.
-            # Left: nodes j = p-1, p-2, ... >= a while thr < dens[j] <= dens[j+1], j not taken
-            stop = (dens[a:p] <= thr) | ~up[a:p] | taken[a:p]
-            last = p - a - 1 - int(np.argmax(stop[::-1])) if p > a else -1    # -1: none stops
-            i0 = a + last + 1 if last >= 0 and stop[last] else a
-            # right: nodes j = p+1, p+2, ... <= b while thr < dens[j] <= dens[j-1], j not taken
-            stop = (dens[p + 1:b + 1] <= thr) | ~down[p:b] | taken[p + 1:b + 1]
-            first = int(np.argmax(stop)) if p < b else 0
-            i1 = p + first if p < b and stop[first] else b
-            taken[i0:i1 + 1] = True
+            j = bisect.bisect_left(no_up, p)
+            lo = max(a, no_up[j - 1] + 1 if j else 0, ends[k - 1] + 1 if k else 0)
+            # dens[lo:p] rises: the nodes at or below thr come first
+            i0 = lo + int(np.searchsorted(dens[lo:p], thr, side="right"))
+            j = bisect.bisect_left(no_down, p)
+            hi = min(b, no_down[j] if j < len(no_down) else n - 1, starts[k] - 1 if k < len(starts) else n - 1)
+            # dens[p+1:hi+1] falls: the first node at or below thr ends the run before it
+            i1 = p + int(np.searchsorted(-dens[p + 1:hi + 1], -thr, side="left"))
+            starts.insert(k, i0)
+            ends.insert(k, i1)
             if _sheet(w, dens, i0, i1) >= floor_cm2:
                 runs.append((i0, i1))
     return sorted(runs)
@@ -356,8 +387,7 @@ def drop_tails(runs, w, density, levels) -> list[tuple[int, int]]:
         k = np.asarray(lv.energy).size
         if k == 0:
             continue
-        p2 = lv.weighted(w)
-        shares = np.array([p2[a:b + 1].sum(axis=0) for a, b in runs])          # (R, k)
+        shares = np.array([lv.share(w, a, b) for a, b in runs])          # (R, k)
         best = np.argmax(shares, axis=0)
         owned = shares[best, np.arange(k)] > ATTRIBUTION_SHARE
         occ = np.asarray(lv.occupation, dtype=float)
@@ -377,18 +407,17 @@ def merge_coupled(runs, w, density, levels) -> list[tuple[int, int]]:
     w = np.asarray(w, dtype=float)
     dens = np.asarray(density, dtype=float)
     runs = [list(r) for r in sorted(runs)]
-    # each band's w |psi|^2 once, not once per pair of runs (a 100-well stack has 100 runs)
-    bands = [(lv.weighted(w), np.asarray(lv.occupation, dtype=float))
-             for lv in levels if np.asarray(lv.energy).size]
+    # each band's sums over a run once (Levels.share), not once per pair of runs (a 100-well stack has 100 runs)
+    bands = [(lv, np.asarray(lv.occupation, dtype=float)) for lv in levels if np.asarray(lv.energy).size]
     merged = True
     while merged and len(runs) > 1:
         merged = False
         for j in range(len(runs) - 1):
             (a0, a1), (b0, b1) = runs[j], runs[j + 1]
             shared = 0.0
-            for p2, occ in bands:
-                sa = p2[a0:a1 + 1].sum(axis=0)
-                sb = p2[b0:b1 + 1].sum(axis=0)
+            for lv, occ in bands:
+                sa = lv.share(w, a0, a1)
+                sb = lv.share(w, b0, b1)
                 both = (sa <= ATTRIBUTION_SHARE) & (sb <= ATTRIBUTION_SHARE) & (sa + sb > ATTRIBUTION_SHARE)
                 shared += float(np.sum(occ[both]))
             if shared > 0.5 * (_sheet(w, dens, a0, a1) + _sheet(w, dens, b0, b1)):
@@ -507,7 +536,7 @@ def analyse(z, w, kT: float, profiles: dict, levels, layers=(), requests=()) -> 
         mine = []             # (kinetic energy, band, index, energy, population, mass, subband)
         sign = CARRIER_SIGN[c.carrier]
         fermi = 0.0 if prof is None else float(prof.fermi)
-        terms = [rho[:, None]]            # rho, then each state's population density, in order
+        terms = [rho[None, :]]            # rho, then each state's population density, in order
         for lv in levels:
             if BAND_CARRIER[lv.band] != c.carrier:
                 continue
@@ -520,12 +549,12 @@ def analyse(z, w, kT: float, profiles: dict, levels, layers=(), requests=()) -> 
                 e = float(energy[k])
                 sub = (lv.band, k if lv.pair is None else int(lv.pair[k]))
                 mine.append((sign * (e - fermi), lv.band, k, e, float(occ[k]), float(mass[k]), sub))
-            terms.append(np.asarray(lv.psi, dtype=float)[:, ks] ** 2 * (occ[ks] * NM_PER_CM))
+            terms.append(lv.squares()[ks] * (occ[ks] * NM_PER_CM)[:, None])
         if len(terms) > 1:
-            # rho + n_0 |psi_0|^2 + n_1 |psi_1|^2 + ..., added one state after the other
-            # (a cumulative sum runs left to right: the same sums as a loop over the states)
-            # (contiguous: np.dot of a strided column sums in another order)
-            rho = np.ascontiguousarray(np.cumsum(np.concatenate(terms, axis=1), axis=1)[:, -1])
+            # rho + n_0 |psi_0|^2 + n_1 |psi_1|^2 + ..., added one state after the other: a
+            # reduction over the rows (the outer axis) adds whole rows in order, the same sums as
+            # a loop over the states (numpy sums pairwise only along the contiguous axis)
+            rho = np.add.reduce(np.concatenate(terms, axis=0), axis=0)
         mine.sort(key=lambda t: t[0])
         c.states = [(t[1], t[2]) for t in mine]
         c.subband_density = float(sum(t[4] for t in mine))
@@ -590,8 +619,7 @@ def _attribute(chans, levels, w) -> dict:
         idx = [j for j, c in enumerate(chans) if c.carrier == carrier]
         att = np.full(k, -1, dtype=np.int64)
         if idx and k:
-            p2 = lv.weighted(w)
-            shares = np.array([p2[chans[j].i0:chans[j].i1 + 1].sum(axis=0) for j in idx])   # (C, k)
+            shares = np.array([lv.share(w, chans[j].i0, chans[j].i1) for j in idx])   # (C, k)
             best = np.argmax(shares, axis=0)
             ok = shares[best, np.arange(k)] > ATTRIBUTION_SHARE
             att[ok] = np.asarray(idx)[best[ok]]
