@@ -273,6 +273,21 @@ def test_newton_start_densities_are_the_node_densities():
     assert plain.start is None and np.array_equal(plain.phi, sol.phi) and plain.steps == sol.steps
 
 
+def test_last_newton_step_needs_no_residual_evaluation():
+    # a step below tol ends the solve and is accepted whatever the residual does, so skipping
+    # its trial evaluation (check_last=False, what solve_poisson asks) gives the same bits
+    from selfcon.solver.kernels.bundles import NewtonOptions
+    pr = predictor_problem()[0].with_boundaries(bottom=(P.ZERO_FIELD, 0.0))
+    out = []
+    for check_last in (True, False):
+        hist = np.zeros(300)
+        out.append(kp.poisson_newton(pr.phi_ref.copy(), *pr.kernel_args(), pr.boundaries(),
+                                     NewtonOptions(1e-11, 300, 0.3, True, check_last), hist))
+    (phi_a, n_a, ok_a, up_a), (phi_b, n_b, ok_b, up_b) = out
+    assert ok_a and ok_b and n_a == n_b > 1 and up_a == up_b
+    assert np.array_equal(phi_a, phi_b)
+
+
 def test_electric_field_linear_and_quadratic():
     # analytic: phi = a z^2 + b z on a nonuniform mesh -> E = -(2 a z + b) exactly inside
     z = np.cumsum(np.r_[0.0, np.linspace(0.5, 2.0, 20)])

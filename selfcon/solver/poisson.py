@@ -217,7 +217,7 @@ def solve_poisson(problem, phi0, *, tol=1e-9, max_iter=200, max_step=0.3, backtr
     imposed), the same as :func:`densities` gives, from the first Jacobian assembly."""
     from selfcon.solver.kernels.poisson import poisson_newton
     hist = np.zeros(max_iter)
-    opts = NewtonOptions(float(tol), int(max_iter), float(max_step), bool(backtrack))
+    opts = NewtonOptions(float(tol), int(max_iter), float(max_step), bool(backtrack), False)
     args = (_f(phi0), *problem.kernel_args(), problem.boundaries(), opts, hist)
     if start_densities:
         out = np.empty((4, problem.z.shape[0]))

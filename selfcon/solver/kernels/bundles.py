@@ -110,9 +110,13 @@ class Boundaries(NamedTuple):
 class NewtonOptions(NamedTuple):
     """Newton settings: ``tol`` (V) on max |step|; at most ``max_iter`` steps; each step
     scaled so that no node moves more than ``max_step`` (V); ``backtrack``: halve the step
-    until the residual norm decreases (False: take the clamped step unchecked)."""
+    until the residual norm decreases (False: take the clamped step unchecked);
+    ``check_last``: with backtracking, evaluate the residual also at a step already below
+    ``tol`` (False: that step, which is accepted anyway and ends the solve, is taken
+    without the evaluation)."""
 
     tol: float
     max_iter: int
     max_step: float
     backtrack: bool
+    check_last: bool = True

@@ -415,7 +415,8 @@ def poisson_newton(phi0, grid, mat, q, bounds, opts, history, densities=None):
     node_densities, which the first assembly computes anyway.
     Returns (phi, newton_steps, converged, max_update).
     Damping: step scaled to max |dphi| <= opts.max_step, then halved (up to 50 times)
-    until ||R||_2 decreases (backtracking); a step already below opts.tol is taken as is.
+    until ||R||_2 decreases (backtracking); a step already below opts.tol is taken as is
+    (with opts.check_last False without evaluating the residual there: it ends the solve).
     opts.backtrack = False takes each (clamped) step without evaluating the residual at
     the new point: for callers with their own safeguard (the predictor passes of the outer
     loop, one step each, damped by the loop when its residual grows).
@@ -470,7 +471,9 @@ def poisson_newton(phi0, grid, mat, q, bounds, opts, history, densities=None):
         scale = 1.0
         if big > max_step:
             scale = max_step / big
-        if not opts.backtrack:
+        if not opts.backtrack or (scale * big < tol and not opts.check_last):
+            # a step below tol is accepted whatever the residual does (see below) and ends
+            # the solve: unless asked, no trial assembly evaluates it
             for i in range(N):
                 phi[i] += scale * dx[i]
             upd = scale * big
