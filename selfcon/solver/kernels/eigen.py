@@ -18,7 +18,9 @@ threads, selfcon/solver/steps.py::solve_states):
    absolute floor ``2 eps ||T||`` (degenerate pairs).
 2. **Vectors by inverse iteration** from the bracket midpoint: Gaussian elimination with
    partial pivoting of T - sigma I (tiny pivots replaced by eps ||T||, as LAPACK's dlagtf
-   and dstein do), ``INVERSE_STEPS`` solves from a fixed pseudo-random start.
+   and dstein do), ``INVERSE_STEPS`` solves from a fixed pseudo-random start.  ``VLANES``
+   vectors are computed together, their elimination chains interleaved node by node
+   (each vector's arithmetic is the same as alone).
 3. **Orthogonality inside clusters.**  Eigenvalues closer than ``CLUSTER_GAP`` ||T||
    (the absolute error eps ||T|| of a backward-stable solve over such a gap would exceed
    1e-12 in the vectors' overlap) form a cluster; its vectors, each computed on its own,
@@ -289,6 +291,125 @@ def _vector(d, e, sigma, pert, j, z, j0, work):
         z[j, i] = v[i]
 
 
+#: vectors computed together by inverse iteration (_vectors_together): their factorisations
+#: and solves are independent dependency chains that the processor overlaps, as the lanes of
+#: the Sturm counts are
+VLANES = 4
+
+
+@numba.njit(cache=True, nogil=True)
+def _factor_lanes(d, e, sigma, pert, u0, u1, u2, mult, swap):
+    """_factor for the VLANES shifts sigma at once, lane l in column l of the (m, VLANES)
+    arrays; the same values as _factor lane by lane (the pivot choice as a select, and u0
+    already the reciprocal pivots)."""
+    m = d.shape[0]
+    cd = np.empty(VLANES)
+    cs = np.empty(VLANES)
+    for lane in range(VLANES):
+        cd[lane] = d[0] - sigma[lane]
+        cs[lane] = e[0] if m > 1 else 0.0
+    for i in range(m - 1):
+        sub = e[i]
+        ns = e[i + 1] if i + 1 < m - 1 else 0.0
+        di = d[i + 1]
+        for lane in range(VLANES):
+            c = cd[lane]
+            nd = di - sigma[lane]
+            keep = abs(c) >= abs(sub)          # no row interchange
+            if abs(c) < pert:
+                cp = pert if c >= 0.0 else -pert
+            else:
+                cp = c
+            piv = cp if keep else sub
+            lm = (sub if keep else c) / piv
+            u0[i, lane] = 1.0 / piv
+            u1[i, lane] = cs[lane] if keep else nd
+            u2[i, lane] = 0.0 if keep else ns
+            swap[i, lane] = not keep
+            mult[i, lane] = lm
+            ncd = (nd - lm * cs[lane]) if keep else (cs[lane] - lm * nd)
+            cs[lane] = ns if keep else -lm * ns
+            cd[lane] = ncd
+    for lane in range(VLANES):
+        c = cd[lane]
+        if abs(c) < pert:
+            c = pert if c >= 0.0 else -pert
+        u0[m - 1, lane] = 1.0 / c
+
+
+@numba.njit(cache=True, nogil=True)
+def _solve_lanes(u0, u1, u2, mult, swap, b):
+    """_solve for the VLANES right-hand sides in the columns of b (m, VLANES)."""
+    m = b.shape[0]
+    for i in range(m - 1):
+        for lane in range(VLANES):
+            s = swap[i, lane]
+            x = b[i, lane]
+            y = b[i + 1, lane]
+            top = y if s else x
+            bot = x if s else y
+            b[i, lane] = top
+            b[i + 1, lane] = bot - mult[i, lane] * top
+    for lane in range(VLANES):
+        b[m - 1, lane] = b[m - 1, lane] * u0[m - 1, lane]
+        if m > 1:
+            b[m - 2, lane] = (b[m - 2, lane] - u1[m - 2, lane] * b[m - 1, lane]) * u0[m - 2, lane]
+    for i in range(m - 3, -1, -1):
+        for lane in range(VLANES):
+            b[i, lane] = (b[i, lane] - u1[i, lane] * b[i + 1, lane]
+                          - u2[i, lane] * b[i + 2, lane]) * u0[i, lane]
+
+
+@numba.njit(cache=True, nogil=True)
+def _start_lanes(v, j0):
+    """Column l of v (m, VLANES) <- _start's vector of row j0 + l (seed j0 + l + 1)."""
+    m = v.shape[0]
+    s = np.empty(VLANES, dtype=np.uint64)
+    for lane in range(VLANES):
+        s[lane] = np.uint64(j0 + lane + 1) * np.uint64(2862933555777941757) + np.uint64(3037000493)
+    for i in range(m):
+        for lane in range(VLANES):
+            x = s[lane] * np.uint64(6364136223846793005) + np.uint64(1442695040888963407)
+            s[lane] = x
+            v[i, lane] = (np.float64(x >> np.uint64(11)) * (1.0 / 9007199254740992.0)) * 2.0 - 1.0
+
+
+@numba.njit(cache=True, nogil=True)
+def _vectors_together(d, e, lo, hi, pert, k, z):
+    """Rows 0..k-1 of z by inverse iteration from their bracket midpoints, VLANES at a time:
+    for each row the same values as _vector without a cluster (the lanes past k repeat the
+    last shift and are dropped)."""
+    m = d.shape[0]
+    u0 = np.empty((m, VLANES))
+    u1 = np.empty((m, VLANES))
+    u2 = np.empty((m, VLANES))
+    mult = np.empty((m, VLANES))
+    swap = np.empty((m, VLANES), dtype=np.bool_)
+    v = np.empty((m, VLANES))
+    sigma = np.empty(VLANES)
+    for j0 in range(0, k, VLANES):
+        nl = min(VLANES, k - j0)
+        for lane in range(VLANES):
+            j = j0 + min(lane, nl - 1)
+            sigma[lane] = 0.5 * (lo[j] + hi[j])
+        _factor_lanes(d, e, sigma, pert, u0, u1, u2, mult, swap)
+        _start_lanes(v, j0)
+        for _ in range(INVERSE_STEPS):
+            _solve_lanes(u0, u1, u2, mult, swap, v)
+        for lane in range(nl):
+            t = 0.0
+            for i in range(m):
+                t += v[i, lane] * v[i, lane]
+            t = np.sqrt(t)
+            row = z[j0 + lane]
+            if t > 0.0:
+                for i in range(m):
+                    row[i] = v[i, lane] / t
+            else:
+                for i in range(m):
+                    row[i] = v[i, lane]
+
+
 #: columns per block of the cluster products (the block of every cluster row stays in cache)
 BLOCK = 512
 
@@ -448,8 +569,7 @@ def lowest_eigenpairs(d, e, k, w, z):
     tnorm, atol = lowest_brackets(d, e, k, lo, hi)
     pert = _EPS * max(tnorm, _SAFMIN)
     work = np.empty((5, m))
-    for j in range(k):
-        _vector(d, e, 0.5 * (lo[j] + hi[j]), pert, j, z, j, work)
+    _vectors_together(d, e, lo, hi, pert, k, z)
     # clusters: runs of eigenvalues whose brackets are closer than CLUSTER_GAP ||T||
     fallbacks = 0
     gap_tol = CLUSTER_GAP * tnorm
