@@ -625,6 +625,8 @@ BASIS_SHIFT = 0.05
 #: accepted estimate of a reduced-basis energy's error, eV (the k_par points above it are
 #: solved whole); the estimate is r^T (B_0 - sigma)^-1 r of the state's residual r
 BASIS_TOL = 5e-5
+#: a kept basis is reused while the potential is within this of the one it was built at, V
+BASIS_REUSE = 1e-3
 #: the k_par-independent operators of this many (mesh, material, direction) are kept
 LINE_CACHE_SIZE = 8
 _LINE_CACHE: dict = {}
@@ -686,7 +688,7 @@ def _line_operators(h, w, mat, nb, cx, sy, axial):
 
 
 def reduced_dispersion(h, w, mat: KpMaterial, phi_node, nb: int, n_states: int, k_grid, *,
-                       angle: float | None = None):
+                       angle: float | None = None, cache: dict | None = None):
     """:func:`dispersion` from a reduced basis, or None where the model does not split into
     real halves (then use :func:`dispersion`): the axial approximation (``angle`` None), or
     the warped Hamiltonian along [100] and [110].
@@ -704,9 +706,14 @@ def reduced_dispersion(h, w, mat: KpMaterial, phi_node, nb: int, n_states: int, 
     r = H(k) psi - E psi is checked: r^T (B0 - sigma)^-1 r estimates the error of its energy
     (second order in r; r is orthogonal to the basis, which holds the low states), and
     every k where one exceeds BASIS_TOL is solved whole (:func:`lowest_states`), so the
-    result is never the basis' alone when it is poor.  k = 0 is the zone-centre solve
-    (exact).  Same return as :func:`dispersion` (the states at k = 0 are those of the
-    halves: each Kramers pair as the halves' two states)."""
+    result is never the basis' alone when it is poor.  k = 0 is solved in the same basis,
+    which holds the zone-centre states (exact to rounding in a basis built at this
+    potential).  ``cache``: a dict the caller keeps for one region during one solve (the
+    loop's Workspace); the basis is kept there and reused at the next potential, and built
+    anew when a reused basis fails the check (the potential moves little from one
+    iteration to the next, so the basis of the last one usually still fits).  Same return
+    as :func:`dispersion` (the states at k = 0 are those of the halves: each Kramers pair as
+    the halves' two states)."""
     from selfcon.solver.threads import one_blas_thread
     k_grid = np.asarray(k_grid, float)
     if k_grid.size < 2 or k_grid[0] != 0.0:
@@ -717,7 +724,8 @@ def reduced_dispersion(h, w, mat: KpMaterial, phi_node, nb: int, n_states: int, 
     if ops is None:
         return None
     with one_blas_thread():
-        return _reduced_dispersion(h, w, mat, phi_node, nb, n_states, k_grid, cx, sy, axial, ops)
+        return _reduced_dispersion(h, w, mat, phi_node, nb, n_states, k_grid, cx, sy, axial, ops,
+                                   cache)
 
 
 def _zone_centre_half(d0, u0, levels):
@@ -744,27 +752,54 @@ def _zone_centre_half(d0, u0, levels):
     return np.concatenate([ev, el]), np.concatenate([x, y], axis=2)
 
 
-def _reduced_dispersion(h, w, mat, phi_node, nb, n_states, k_grid, cx, sy, axial, ops):
+def _reduced_dispersion(h, w, mat, phi_node, nb, n_states, k_grid, cx, sy, axial, ops, cache):
+    key = ("basis", nb, cx, sy, axial, n_states)
+    kept = cache.get(key) if cache is not None else None
+    phi_node = np.asarray(phi_node, float)
+    fresh = kept is None or np.max(np.abs(phi_node - kept[0])) > BASIS_REUSE
+    if fresh:
+        basis = _build_basis(ops, phi_node, n_states)
+        if basis is None:
+            return None
+    else:
+        basis = kept[1]
+    out = _in_basis(basis, ops, w, phi_node, nb, n_states, k_grid)
+    if not fresh and out[3].any():           # the kept basis no longer fits: build it anew
+        basis = _build_basis(ops, phi_node, n_states)
+        if basis is None:
+            return None
+        out = _in_basis(basis, ops, w, phi_node, nb, n_states, k_grid)
+    if cache is not None and (fresh or kept[1] is not basis):
+        cache[key] = (phi_node.copy(), basis)
+    out_E, out_d, psi0, bad = out
+    for j in np.flatnonzero(bad):
+        e, ps = lowest_states(h, w, mat, phi_node, k_grid[j] * cx, k_grid[j] * sy, nb, n_states,
+                              axial=axial, guess=out_E[:, j])
+        out_E[:, j] = np.nan
+        out_E[:e.size, j] = e
+        out_d[:, :, j] = 0.0
+        out_d[:, :e.size, j] = np.sum(np.abs(ps) ** 2, axis=1)
+        if j == 0:
+            psi0 = ps
+    return out_E, out_d, psi0
+
+
+def _build_basis(ops, phi_node, n_states):
+    """The reduced basis of each half at the potential ``phi_node`` (reduced_dispersion):
+    [(q (m q, K) orthonormal, q^T Z q, q^T B1 q, q^T B2 q)], or None."""
     import scipy.linalg as sla
-    tbtrs = sla.get_lapack_funcs("tbtrs", dtype=float)
-    T, halves = ops
-    half = nb // 2
-    n_nodes = np.asarray(w).size
-    m = n_nodes - 2
-    nk = k_grid.size
-    s2 = 1.0 / np.asarray(w, float)[1:-1]
+    _, halves = ops
+    (dz, uz), _, _ = halves[0]
+    m, half = dz.shape[0], dz.shape[1]
     phin = np.asarray(phi_node, float)[1:-1]
     eye = np.eye(half)
-    levels = max(BASIS_LEVELS, n_states)
-    (dz, uz), _, _ = halves[0]
-    zc = _zone_centre_half(dz + phin[:, None, None] * eye, uz, levels)   # the same in both halves
-    if zc is None:
+    zc = _zone_centre_half(dz + phin[:, None, None] * eye, uz, max(BASIS_LEVELS, n_states))
+    if zc is None:                                      # (the same in both halves)
         return None
     e_zc, V = zc
     sigma = float(e_zc.min()) - BASIS_SHIFT
-    Es, Ds, zero_vals, zero_vecs = [], [], [], []
-    bad = np.zeros(nk, dtype=bool)
-    for b, ((dz, uz), (d1, u1), (d2, u2)) in enumerate(halves):
+    out = []
+    for (dz, uz), (d1, u1), (d2, u2) in halves:
         d0 = dz + phin[:, None, None] * eye
         chol = sla.cholesky_banded(_band_lower(d0 - sigma * eye, uz), lower=True, check_finite=False)
 
@@ -780,37 +815,58 @@ def _reduced_dispersion(h, w, mat, phi_node, nb, n_states, k_grid, cx, sy, axial
         K = q.shape[1]
         qv = q.reshape(m, half, K)
         P = []
-        for dd, uu in ((d0, uz), (d1, u1), (d2, u2)):
+        for dd, uu in ((dz, uz), (d1, u1), (d2, u2)):
             x = q.T @ _apply(dd, uu, qv).reshape(m * half, K)
             P.append(0.5 * (x + x.T))
+        out.append((q, *P))
+    return out
+
+
+def _in_basis(basis, ops, w, phi_node, nb, n_states, k_grid):
+    """The states of every k of ``k_grid`` in ``basis`` (:func:`_build_basis`): (E (n, m), dens
+    (N, n, m), psi0 (N, nb, n), bad (m,) where an error estimate exceeds BASIS_TOL), as
+    :func:`reduced_dispersion` returns them before the whole solves."""
+    import scipy.linalg as sla
+    tbtrs = sla.get_lapack_funcs("tbtrs", dtype=float)
+    T, halves = ops
+    half = nb // 2
+    m = halves[0][0][0].shape[0]
+    n_nodes = m + 2
+    nk = k_grid.size
+    s2 = 1.0 / np.asarray(w, float)[1:-1]
+    phin = np.asarray(phi_node, float)[1:-1]
+    eye = np.eye(half)
+    ritz = []
+    for (q, Pz, P1, P2), ((dz, uz), (d1, u1), (d2, u2)) in zip(basis, halves):
+        K = q.shape[1]
+        qp = q * np.repeat(phin, half)[:, None]
+        x = q.T @ qp
+        P0 = Pz + 0.5 * (x + x.T)
+        d0 = dz + phin[:, None, None] * eye
         want = min(n_states, K)
         E = np.full((want, nk), np.nan)
         psi = np.zeros((m, half, want, nk))
         res = np.zeros((m, half, want, nk))
-        for j in range(1, nk):
+        for j in range(nk):
             k = k_grid[j]
-            th, c = sla.eigh(P[0] + k * P[1] + (k * k) * P[2], subset_by_index=(0, want - 1),
+            th, c = sla.eigh(P0 + k * P1 + (k * k) * P2, subset_by_index=(0, want - 1),
                              driver="evx", check_finite=False)
             p = (q @ c).reshape(m, half, want)
             res[:, :, :, j] = _apply(d0 + k * d1 + (k * k) * d2, uz + k * u1 + (k * k) * u2, p) - p * th
             psi[:, :, :, j] = p
             E[:, j] = -th
+        ritz.append((E, psi, res, d0, uz))
+    sigma = min(float(-np.max(r[0][:, 0])) for r in ritz) - BASIS_SHIFT
+    bad = np.zeros(nk, dtype=bool)
+    Es, Ds, zero = [], [], []
+    for b, (E, psi, res, d0, uz) in enumerate(ritz):
+        chol = sla.cholesky_banded(_band_lower(d0 - sigma * eye, uz), lower=True, check_finite=False)
         lx, _ = tbtrs(chol, res.reshape(m * half, -1), uplo="L")            # L^-1 r
         est = np.sum((lx * lx).reshape(res.shape), axis=(0, 1))                # (want, nk)
         bad |= np.any(est > BASIS_TOL, axis=0)
-        dens = np.zeros((n_nodes, want, nk))
-        dens[1:-1] = np.sum(psi * psi, axis=1) * s2[:, None, None]
-        # k = 0: the zone-centre states, in the J basis
-        E[:, 0] = np.nan
-        nz = min(want, e_zc.size)
-        order0 = np.argsort(e_zc, kind="stable")[:nz]
-        E[:nz, 0] = -e_zc[order0]
-        v0 = V[:, :, order0]
-        dens[1:-1, :nz, 0] = np.sum(v0 * v0, axis=1) * s2[:, None]
-        zero_vals.append(e_zc[order0])
-        zero_vecs.append(np.einsum("ij,mjk->mik", T[:, b * half:(b + 1) * half], v0))
         Es.append(E)
-        Ds.append(dens)
+        Ds.append(np.sum(psi * psi, axis=1) * s2[:, None, None])
+        zero.append(np.einsum("ij,mjk->mik", T[:, b * half:(b + 1) * half], psi[:, :, :, 0]))
     E = np.concatenate(Es)
     dens = np.concatenate(Ds, axis=1)
     order = np.argsort(-E, axis=0, kind="stable")[:n_states]      # lowest hole energy first
@@ -818,19 +874,10 @@ def _reduced_dispersion(h, w, mat, phi_node, nb, n_states, k_grid, cx, sy, axial
     out_E = np.full((n_states, nk), np.nan)
     out_d = np.zeros((n_nodes, n_states, nk))
     out_E[:got] = np.take_along_axis(E, order, 0)
-    out_d[:, :got] = np.take_along_axis(dens, order[None], 1)
-    vals0 = np.concatenate(zero_vals)
-    o0 = np.argsort(vals0, kind="stable")[:n_states]
-    psi0 = np.zeros((n_nodes, nb, o0.size), dtype=complex)
-    psi0[1:-1] = np.concatenate(zero_vecs, axis=2)[:, :, o0] * np.sqrt(s2)[:, None, None]
-    for j in np.flatnonzero(bad):
-        e, ps = lowest_states(h, w, mat, phi_node, k_grid[j] * cx, k_grid[j] * sy, nb, n_states,
-                              axial=axial, guess=out_E[:, j])
-        out_E[:, j] = np.nan
-        out_E[:e.size, j] = e
-        out_d[:, :, j] = 0.0
-        out_d[:, :e.size, j] = np.sum(np.abs(ps) ** 2, axis=1)
-    return out_E, out_d, psi0
+    out_d[1:-1, :got] = np.take_along_axis(dens, order[None], 1)
+    psi0 = np.zeros((n_nodes, nb, got), dtype=complex)
+    psi0[1:-1] = np.concatenate(zero, axis=2)[:, :, order[:, 0]] * np.sqrt(s2)[:, None, None]
+    return out_E, out_d, psi0, bad
 
 
 # --------------------------------------------------------------------------- regions and the loop
@@ -999,13 +1046,14 @@ def _zone_centre_top(h, w, mat, phi_node, nb):
     return -low
 
 
-def region_dispersion(h, w, mat, phi_node, nb, n_states, efp, kT, k_top):
+def region_dispersion(h, w, mat, phi_node, nb, n_states, efp, kT, k_top, cache=None):
     """The axial dispersion of one region on K_POINTS k_par values from 0 to ``k_top``,
     lengthened (x 1.5) until every state's hole occupation at the end is below
-    TAIL_OCCUPATION.  Returns (k_grid, E, dens, psi0) as :func:`dispersion`."""
+    TAIL_OCCUPATION.  Returns (k_grid, E, dens, psi0) as :func:`dispersion`, from
+    :func:`reduced_dispersion` (``cache``: its kept basis) where the model splits."""
     for _ in range(8):
         k_grid = np.linspace(0.0, k_top, K_POINTS)
-        got = reduced_dispersion(h, w, mat, phi_node, nb, n_states, k_grid)
+        got = reduced_dispersion(h, w, mat, phi_node, nb, n_states, k_grid, cache=cache)
         E, dens, psi0 = got if got is not None else dispersion(h, w, mat, phi_node, nb, n_states, k_grid)
         last = E[:, -1]
         occ = 1.0 / (1.0 + np.exp(np.clip((efp - last[np.isfinite(last)]) / kT, -700, 700)))

@@ -157,6 +157,7 @@ class Workspace:
         self.n_states = {band: structure.states for band in bands_of(structure)}
         self.n_states[KP_BAND] = 0             # 0: selfcon.solver.kp.FIRST_STATES
         self.kp_top = 0.0                      # nm^-1, the end of the multiband holes' k grid
+        self.kp_basis: dict = {}               # region -> the kept reduced basis (kp.reduced_dispersion)
         self.negligible: dict = {}       # (band, region) -> bool
         self.eigen: dict = {}            # (band, region) -> EigenWorkspace
         self._last = None                # (phi, states, (n, p, nd+, na-))
@@ -710,7 +711,8 @@ def kp_states(ws: Workspace, phi):
         solved = []
         for r_idx, i0, i1, part, mat in todo:
             kg, E, dens, psi0 = kp.region_dispersion(part.h, part.w, mat, phi[i0:i1 + 1], nb, n,
-                                                     efp, kT, k_top)
+                                                     efp, kT, k_top,
+                                                     cache=ws.kp_basis.setdefault(r_idx, {}))
             solved.append((kg, E, dens, psi0))
         grown = max(s[0][-1] for s in solved)
         if grown > k_top * (1 + 1e-12):          # a region needed a longer grid: one grid for all
