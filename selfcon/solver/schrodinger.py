@@ -59,6 +59,7 @@ class EigenWorkspace:
             raise ValueError(f"EigenWorkspace: method must be one of {EIGEN_METHODS}, got {method!r}")
         self.method = method
         self._stebz = self._stein = None
+        self._kept = None          # (k, d, e, lo, hi, ||T||) of the last levels() call
         self.n = -1
         self.resize(n_nodes)
 
@@ -85,10 +86,15 @@ class EigenWorkspace:
         if m == 1:
             return self.d.copy(), np.ones((1, 1))
         if self.method == "clustered" and first == 1:
-            from selfcon.solver.kernels.eigen import lowest_eigenpairs
+            from selfcon.solver.kernels.eigen import eigenpairs_in_brackets, lowest_eigenpairs
             w = np.empty(k)
             z = np.empty((k, m))
-            lowest_eigenpairs(self.d, self.e, k, w, z)
+            kept, self._kept = self._kept, None
+            if (kept is not None and kept[0] == k and np.array_equal(kept[1], self.d)
+                    and np.array_equal(kept[2], self.e)):
+                eigenpairs_in_brackets(self.d, self.e, k, kept[3], kept[4], kept[5], w, z)
+            else:
+                lowest_eigenpairs(self.d, self.e, k, w, z)
             return w, z.T
         if self._stebz is None:
             from scipy.linalg import get_lapack_funcs
@@ -105,6 +111,25 @@ class EigenWorkspace:
             raise RuntimeError(f"inverse iteration (LAPACK dstein) failed to converge, info={info}")
         order = np.argsort(w, kind="stable")
         return w[order], v[:, order]
+
+
+    def levels(self, k):
+        """The k lowest eigenvalues of the tridiagonal (self.d, self.e), lowest first, without
+        vectors.  The clustered solver returns its bisection brackets' midpoints (within
+        1e-4 of the gap to the neighbours of the final energies) and keeps the brackets, so
+        that eigh(k) of the same matrix continues from them: the same states as eigh(k)
+        alone, without bisecting twice.  LAPACK's path solves in full (the baseline)."""
+        m = self.d.size
+        if self.method != "clustered" or m < 2:
+            return self.eigh(k)[0]
+        if not (np.isfinite(self.d).all() and np.isfinite(self.e).all()):
+            return self.eigh(k)[0]          # raises, as eigh does
+        from selfcon.solver.kernels.eigen import lowest_brackets
+        nb = min(k + 1, m)
+        lo, hi = np.empty(nb), np.empty(nb)
+        tnorm, _ = lowest_brackets(self.d, self.e, k, lo, hi)
+        self._kept = (k, self.d.copy(), self.e.copy(), lo, hi, tnorm)
+        return 0.5 * (lo[:k] + hi[:k])
 
 
 def solve_region_state(h_cell, w, v_node, inv_mass_cell, index: int, workspace=None):
@@ -174,14 +199,17 @@ def count_below(d, e, x) -> int:
                                        np.ascontiguousarray(e, dtype=float), float(x)))
 
 
-def solve_region(h_cell, w, v_node, inv_mass_cell, n_states, workspace=None, below=None):
+def solve_region(h_cell, w, v_node, inv_mass_cell, n_states, workspace=None, below=None,
+                 levels_only=False):
     """Lowest ``n_states`` states on a sub-mesh with psi = 0 at its two end nodes.
 
     h_cell, inv_mass_cell: (n-1,) cell widths (nm) and inverse masses (1/m0);
     w, v_node: (n,) dual widths (nm) and node potential (eV, already dual-averaged).
     Returns (energies (k,) eV ascending, psi (n, k) in nm^-1/2 with
     sum_i w_i psi_i^2 = 1); k = min(n_states, n-2).  ``below``: only the states with an
-    energy below it (a Sturm count decides how many; none costs no eigensolve).  No input
+    energy below it (a Sturm count decides how many; none costs no eigensolve).
+    ``levels_only``: (energies, None) without vectors (:meth:`EigenWorkspace.levels`; a
+    following full solve of the same k continues from its brackets).  No input
     checking here beyond shapes: this is the inner-loop call; use :func:`bound_states`
     for checked input.
     """
@@ -203,6 +231,8 @@ def solve_region(h_cell, w, v_node, inv_mass_cell, n_states, workspace=None, bel
         k = min(k, count_below(workspace.d, workspace.e, float(below)))
         if k <= 0:
             return np.empty(0), np.zeros((n, 0))
+    if levels_only:
+        return workspace.levels(k), None
     energies, u = workspace.eigh(k)
     psi = np.empty((n, k))
     wavefunctions(kern, u, w, psi)

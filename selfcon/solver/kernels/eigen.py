@@ -567,6 +567,15 @@ def lowest_eigenpairs(d, e, k, w, z):
     lo = np.empty(nb)
     hi = np.empty(nb)
     tnorm, atol = lowest_brackets(d, e, k, lo, hi)
+    return eigenpairs_in_brackets(d, e, k, lo, hi, tnorm, w, z)
+
+
+@numba.njit(cache=True, nogil=True)
+def eigenpairs_in_brackets(d, e, k, lo, hi, tnorm, w, z):
+    """The second half of :func:`lowest_eigenpairs` (m >= 2): the vectors and energies of
+    the k lowest eigenvalues from their brackets lo, hi and ||T|| as :func:`lowest_brackets`
+    left them (a caller that needed the eigenvalues first, to decide k, keeps them)."""
+    m = d.shape[0]
     pert = _EPS * max(tnorm, _SAFMIN)
     work = np.empty((5, m))
     _vectors_together(d, e, lo, hi, pert, k, z)
