@@ -348,8 +348,10 @@ def _stacked(bands, n_nodes: int):
     qn = np.zeros(n_nodes, dtype=bool)
     for b in bands:
         qn |= b.quantum_nodes
-    return (np.where(qn, 0.0, 1.0),
-            np.ascontiguousarray(np.concatenate([b.weight for b in bands], axis=1)),
+    # one band's own (N, K) weights as they are (read only): a copy per Poisson problem cost
+    # ~1 ms on a 160-state stack, several problems per iteration
+    weights = bands[0].weight if len(bands) == 1 else np.concatenate([b.weight for b in bands], axis=1)
+    return (np.where(qn, 0.0, 1.0), np.ascontiguousarray(weights),
             np.concatenate([b.energy for b in bands]), np.concatenate([b.dos for b in bands]))
 
 
@@ -663,15 +665,23 @@ def band_region_states(st: Structure, phi, band: str, r_idx: int, workspace, n_s
     region's part only, the full-mesh arrays are made once per band (:func:`solve_states`)."""
     sign = ALL_BANDS[band][3]
     fermi = st.fermi_levels[0 if sign > 0 else 1]             # the carrier's own level
+    # the count is decided on the energies alone: the clustered solver's bisection, whose
+    # brackets the final solve continues from (parabolic bands; a nonparabolic state's
+    # energy needs its wavefunction)
+    probe = (workspace is not None and workspace.method == "clustered"
+             and not nonparabolic_band(st, band))
     k = n_states
     while True:
         e, psi = region_eigenstates(st, phi, band, r_idx, k, workspace=workspace, vxc=vxc,
-                                    full=False)
+                                    full=False, levels_only=probe)
         occ = subband_density(e, np.ones(e.size), st.temperature, sign, fermi)
         if (e.size < k or k >= MAX_STATES or occ.sum() <= 0
                 or occ[-1] < TOP_STATE_FRACTION * occ.sum()):
             break
         k = min(2 * k, MAX_STATES)
+    if probe:
+        e, psi = region_eigenstates(st, phi, band, r_idx, k, workspace=workspace, vxc=vxc,
+                                    full=False)
     m_par, weight = in_plane_motion(st, band, e, psi, phi, vxc, region=r_idx)
     return e, psi, m_par, weight, np.full(e.size, r_idx), k
 
@@ -734,7 +744,7 @@ def kp_states(ws: Workspace, phi):
 
 
 def region_eigenstates(st: Structure, phi, band: str, r_idx: int, n_states: int, workspace=None,
-                       below=None, vxc=None, full=True):
+                       below=None, vxc=None, full=True, levels_only=False):
     """Lowest ``n_states`` eigenstates of the z problem of ``band`` in quantum region
     ``r_idx`` at potential ``phi``.
 
@@ -744,7 +754,8 @@ def region_eigenstates(st: Structure, phi, band: str, r_idx: int, n_states: int,
     (N, k) on the full mesh, zero outside the region), lowest kinetic energy first.
     ``below``: only the states of kinetic energy (sign * E) below it.  ``vxc``: (N,) eV, the
     exchange-correlation potential energy on the band's kinetic scale (Workspace.vxc).
-    ``full=False``: psi (n_r, k) on the region's nodes i0..i1 only."""
+    ``full=False``: psi (n_r, k) on the region's nodes i0..i1 only.  ``levels_only``: the
+    energies without wavefunctions (psi None; parabolic bands: EigenWorkspace.levels)."""
     from selfcon.solver import schrodinger
     edge_key, mass_key, _, sign, _ = ALL_BANDS[band]
     i0, i1 = st.regions[r_idx]
@@ -759,7 +770,9 @@ def region_eigenstates(st: Structure, phi, band: str, r_idx: int, n_states: int,
         kinetic = kinetic + vxc[sl]
     e, p = schrodinger.solve_region(part.h, part.w, kinetic,
                                     1.0 / st.cell[mass_key][i0:i1], n_states, workspace=workspace,
-                                    below=below)
+                                    below=below, levels_only=levels_only)
+    if levels_only:
+        return sign * e, None
     if e.size and nonparabolic_band(st, band):     # energy-dependent mass: iterate each state
         from selfcon.solver import nonparabolic
         e, p, _ = nonparabolic.refine_states(part.h, part.w, kinetic, st.cell[mass_key][i0:i1],
