@@ -117,3 +117,23 @@ def test_ionisation_derivative():
         num = (ks.acceptor_ionized(2.0, x + h, 0.01, kT, False)[0]
                - ks.acceptor_ionized(2.0, x - h, 0.01, kT, False)[0]) / (2 * h)
         assert ks.acceptor_ionized(2.0, x, 0.01, kT, False)[1] == pytest.approx(num, rel=1e-6)
+
+
+@pytest.mark.parametrize("sign", [1, -1])
+def test_shifted_subband_profile(sign):
+    # the predictor density of the exchange-correlation update: sum_k w_ik D_k kT ln(1 +
+    # exp(sign (EF - E_k + shift_i)/kT)) on the listed nodes, zero elsewhere (definition,
+    # against numpy's logaddexp)
+    rng = np.random.default_rng(3)
+    n, k, kT, fermi = 40, 6, 0.0259, 0.013
+    weight = rng.random((n, k))
+    weight[:5] = 0.0
+    energy = sign * rng.uniform(-0.1, 0.2, k) - 1.5 * (sign < 0)
+    dos = rng.uniform(1.0, 3.0, k)
+    shift = rng.uniform(-0.02, 0.02, n)
+    rows = np.arange(3, 35)
+    got = ks.subband_profile(weight, energy, dos, shift, rows, sign, fermi, kT)
+    x = sign * (fermi - energy[None, :] + shift[:, None]) / kT
+    want = np.sum(weight * kT * np.logaddexp(0.0, x) * dos[None, :], axis=1)
+    assert np.allclose(got[rows], want[rows], rtol=1e-14, atol=0.0)
+    assert np.all(np.delete(got, rows) == 0.0)

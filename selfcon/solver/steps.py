@@ -25,6 +25,7 @@ its :class:`Workspace`, created by the loop and handed on in the loop's outcome.
 """
 from __future__ import annotations
 
+import functools
 from dataclasses import dataclass
 
 import numpy as np
@@ -608,11 +609,11 @@ def subband_profile(st: Structure, bs: BandStates, shift) -> np.ndarray:
     """(N,) nm^-3: the density of one band's subbands with every level moved by the local
     potential change ``shift`` (V), E_k - shift(z) (the predictor's density, Trellakis et al.
     1997); zero where the band is classical."""
+    from selfcon.solver.kernels.statistics import subband_profile as kernel
     fermi = st.fermi_levels[0 if bs.sign > 0 else 1]
-    kT = st.kT
-    x = bs.sign * (fermi - bs.energy[None, :] + np.asarray(shift)[:, None]) / kT
-    occ = kT * np.logaddexp(0.0, x) * bs.dos[None, :]          # (N, k) nm^-2 per state
-    return np.where(bs.quantum_nodes, np.sum(bs.weight * occ, axis=1), 0.0)
+    f = lambda a: np.ascontiguousarray(a, dtype=float)     # noqa: E731
+    return kernel(f(bs.weight), f(bs.energy), f(bs.dos), f(shift),
+                  np.flatnonzero(bs.quantum_nodes), int(bs.sign), float(fermi), float(st.kT))
 
 
 def update_exchange(ws: Workspace, phi, states=None, states_phi=None) -> float:
@@ -648,11 +649,26 @@ def update_exchange(ws: Workspace, phi, states=None, states_phi=None) -> float:
     for band, (_, mass_key, _, sign, _) in BAND_SPECS.items():
         if band not in st.carriers:
             continue
-        v = xc_potential(n if sign > 0 else p, st.node_average(st.cell[mass_key]), eps, form)
+        dens = n if sign > 0 else p
+        # the potential of an empty node is the formula's value at n = 0 (a signed zero):
+        # evaluate the formula only where there are carriers (the subband density is zero
+        # outside the quantum nodes, and a band with no states at all is zero everywhere)
+        v = np.full(st.n_nodes, _xc_at_zero(form))
+        there = dens > 0.0
+        if np.any(there):
+            v[there] = xc_potential(dens[there], st.node_average(st.cell[mass_key])[there],
+                                    eps[there], form)
         old = ws.vxc.get(band)
         change = max(change, float("inf") if old is None else float(np.max(np.abs(v - old))))
         ws.vxc[band] = v
     return change
+
+
+@functools.lru_cache(maxsize=None)
+def _xc_at_zero(form: str) -> float:
+    """The exchange-correlation potential of no carriers (a signed zero)."""
+    from selfcon.solver.exchange import xc_potential
+    return float(xc_potential(0.0, 1.0, 1.0, form))
 
 
 def band_region_states(st: Structure, phi, band: str, r_idx: int, workspace, n_states: int,

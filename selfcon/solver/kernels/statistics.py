@@ -156,6 +156,25 @@ def subband_density(e_k, dos_k, kT, sign):
 
 
 @njit(cache=True)
+def subband_profile(weight, e_k, dos_k, shift, rows, sign, fermi, kT):
+    """(N,) density of 2D subbands moved by a local potential change: at each node i of
+    ``rows`` (int indices; 0 elsewhere) sum_k weight[i, k] dos_k kT ln(1 + exp(sign (fermi
+    - E_k + shift_i)/kT)) -- the predictor density (selfcon.solver.steps.subband_profile).
+    weight (N, K) density weights (nm^-1), e_k (K,) eV on the electron scale, dos_k (K,)
+    nm^-2 eV^-1, shift (N,) V, sign +1 electrons, -1 holes, fermi the carrier's level (eV)."""
+    out = np.zeros(weight.shape[0])
+    for r in range(rows.shape[0]):
+        i = rows[r]
+        s = 0.0
+        for k in range(e_k.shape[0]):
+            a = weight[i, k]
+            if a != 0.0:
+                s += a * (kT * log1pexp(sign * (fermi - e_k[k] + shift[i]) / kT) * dos_k[k])
+        out[i] = s
+    return out
+
+
+@njit(cache=True)
 def occupied_fraction(x, g):
     """f = 1/(1 + g e^x) and 1 - f, safe for all x (g > 0).
 
