@@ -123,6 +123,7 @@ from selfcon.constants import KB_EV, NM_PER_CM
 from selfcon.input.materials import ALLOYS, BINARIES
 from selfcon.input.materials.alloys import bowing_value
 from selfcon.model.mesh import Mesh
+from selfcon.model.structure import derived
 from selfcon.output.channels import BAND_CARRIER, STATE_LABEL
 from selfcon.output.numbers import fmt
 
@@ -263,8 +264,11 @@ def channel_subbands(result, structure=None, channel: int | None = None) -> list
     if not 0 <= channel < len(rows):
         return []
     sign = 1.0 if rows[channel]["carrier"] == "electron" else -1.0
-    own = [(sign * float(sb.energy[k]), band, int(k)) for band, sb in (result.subbands or {}).items()
-           for k in np.flatnonzero(np.asarray(sb.channel) == channel)]
+    own = []
+    for band, sb in (result.subbands or {}).items():
+        ks = np.flatnonzero(np.asarray(sb.channel) == channel)
+        if ks.size:
+            own += zip((sign * np.asarray(sb.energy, dtype=float)[ks]).tolist(), [band] * ks.size, ks.tolist())
     return [(band, k) for _, band, k in sorted(own)]
 
 
@@ -525,17 +529,20 @@ def check_region_cut(result, structure, deck=None) -> list[str]:
     z = np.asarray(result.z)
     n_nodes = z.size
     out = []
+    if not structure.regions:
+        return out
+    # the nodes near each region end depend on the mesh alone: once per structure
+    ends = (derived(structure, "region_cut_nodes", lambda: _region_end_nodes(z, structure.regions))
+            if np.array_equal(z, structure.z) else _region_end_nodes(z, structure.regions))
+    peaks = {key: float(np.max(np.asarray(result.profile[key]))) for key in ("electron_density", "hole_density")}
     for k, (i0, i1) in enumerate(structure.regions):
         for end, label in ((i0, "top"), (i1, "bottom")):
             if end == 0 or end == n_nodes - 1:
                 continue            # a contact: nothing is cut
-            near = np.flatnonzero(np.abs(z - z[end]) <= CUT_DISTANCE_NM)
-            near = near[near != end]
-            if near.size == 0:
-                near = np.array([end - 1, end + 1])
+            near = ends[(k, end)]
             for carrier, key in (("electron", "electron_density"), ("hole", "hole_density")):
                 dens = np.asarray(result.profile[key])
-                peak = float(np.max(dens))
+                peak = peaks[key]
                 if peak <= 0:
                     continue
                 local = float(np.max(dens[near]))
@@ -545,6 +552,23 @@ def check_region_cut(result, structure, deck=None) -> list[str]:
                                f"(z = {z[end]:g} nm): {fmt(local, 'volume')} cm^-3 within {CUT_DISTANCE_NM:g} nm, "
                                f"{local / peak:.2g} of the peak {fmt(peak, 'volume')} cm^-3; widen the region")
                     break
+    return out
+
+
+def _region_end_nodes(z, regions) -> dict:
+    """(region index, end node) -> the other nodes within CUT_DISTANCE_NM of that end (its
+    two neighbours if none), for :func:`check_region_cut`."""
+    out = {}
+    for k, (i0, i1) in enumerate(regions):
+        for end in (i0, i1):
+            if end == 0 or end == z.size - 1:
+                continue
+            near = np.flatnonzero(np.abs(z - z[end]) <= CUT_DISTANCE_NM)
+            near = near[near != end]
+            if near.size == 0:
+                near = np.array([end - 1, end + 1])
+            near.setflags(write=False)
+            out[(k, end)] = near
     return out
 
 
@@ -861,7 +885,8 @@ def check_band_alignment(result, structure, deck=None) -> list[str]:
         return []
     rows = _layer_rows(result)
     out = []
-    for it in interface_alignments(structure):
+    # a property of the structure: once per structure (read-only here)
+    for it in derived(structure, "interface_alignments", lambda: interface_alignments(structure)):
         if it["kind"] == "type I" or (it["kind"] == "type II" and it["gap_eV"] >= TYPE_II_GAP_EV):
             continue
         if not any(a - 1e-9 <= it["z_nm"] <= b + 1e-9 for a, b in structure.regions_nm):

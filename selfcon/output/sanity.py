@@ -44,6 +44,7 @@ import numpy as np
 
 from selfcon.constants import CM3_PER_NM3, NM_PER_CM, Q_EPS0
 from selfcon.model.mesh import half_widths
+from selfcon.model.structure import derived
 
 #: largest relative violation of Gauss's law a converged result may have (issue contract;
 #: shipped decks reach below 1e-6, tests/test_shipped_inputs.py)
@@ -90,9 +91,15 @@ def check_gauss(result, st, deck):
     return None
 
 
-def check_band_edges(result, st, deck):
+def _largest_gap(st) -> float:
+    """The largest gap of the stack (eV): its Gamma gaps and conduction-valence edge distances."""
     cell = st.cell
-    gap = float(np.nanmax(np.concatenate([cell["ec_gamma"] - cell["ev0"], cell["eg_gamma"]])))
+    return float(np.nanmax(np.concatenate([cell["ec_gamma"] - cell["ev0"], cell["eg_gamma"]])))
+
+
+def check_band_edges(result, st, deck):
+    # a property of the structure: computed once per structure (model.structure.derived)
+    gap = derived(st, "sanity_largest_gap", lambda: _largest_gap(st))
     bias = _bias(deck)
     limit = gap + bias + EDGE_MARGIN_EV
     worst = None
@@ -118,6 +125,7 @@ def _node_atom_density(st) -> np.ndarray:
     node[:-1] = per_cell
     node[-1] = per_cell[-1]
     node[1:-1] = np.maximum(per_cell[:-1], per_cell[1:])
+    node.setflags(write=False)          # kept with the structure (check_density): shared
     return node
 
 
@@ -130,7 +138,7 @@ def _electrons(result) -> np.ndarray:
 
 
 def check_density(result, st, deck):
-    limit = _node_atom_density(st)
+    limit = derived(st, "sanity_node_atom_density", lambda: _node_atom_density(st))
     for carriers, dens in (("electrons", _electrons(result)),
                            ("holes", np.asarray(result.profile["hole_density"], dtype=float))):
         ratio = dens / limit
@@ -147,7 +155,11 @@ def field_bound(result, st):
     """(|eps_r E| per cell in V/nm, its bound in V/nm) of a result (see the module docstring)."""
     z = np.asarray(result.z, dtype=float)
     phi = np.asarray(result.profile["potential"], dtype=float)
-    h, _, _, w = half_widths(z)
+    m = st.mesh
+    if z.shape == m.z.shape and np.array_equal(z, m.z):
+        h, w = m.h, m.w                 # the structure's widths (the same half_widths of z)
+    else:
+        h, _, _, w = half_widths(z)
     eps = np.asarray(st.cell["eps"], dtype=float)
     d = eps * np.abs(np.diff(phi) / h)
     p = result.profile
