@@ -575,7 +575,11 @@ def solve_states(ws: Workspace, phi) -> dict:
         order = np.argsort(sign * E, kind="stable")     # lowest kinetic energy first
         column = np.empty(E.size, dtype=np.int64)
         column[order] = np.arange(E.size)
-        psi, weight = np.zeros((st.n_nodes, E.size)), np.zeros((st.n_nodes, E.size))
+        # rows of the band's regions are written whole by their own task (_place), the others
+        # zeroed here: no serial pass over the whole (N, K) arrays
+        psi, weight = np.empty((st.n_nodes, E.size)), np.empty((st.n_nodes, E.size))
+        psi[~qnodes] = 0.0
+        weight[~qnodes] = 0.0
         start = 0
         for task, res in mine:
             count = res[0].size
@@ -600,7 +604,7 @@ def _place(item):
     """One region's states into its band's full-mesh arrays (a task of solve_states)."""
     from selfcon.solver.kernels.schrodinger import place_columns
     res, row0, cols, psi, weight = item
-    if cols.size:
+    if res[1].shape[0]:
         place_columns(np.ascontiguousarray(res[1]), psi, row0, cols)
         place_columns(np.ascontiguousarray(res[3]), weight, row0, cols)
 

@@ -152,12 +152,14 @@ def blended_weights(psi, mass_node, c, arithmetic, weight):
 
 @numba.njit(cache=True, nogil=True)
 def place_columns(src, dst, row0, cols):
-    """dst[row0 + i, cols[s]] = src[i, s]: one region's states (n_r, k_r) into the full-mesh
-    array of its band (N, K), each state in its column of the band's energy order."""
+    """Rows row0 .. row0 + n_r - 1 of dst (N, K) <- one region's states src (n_r, k_r), each
+    state in its column cols[s] of the band's energy order, zeros in the other columns (the
+    states of other regions vanish on these rows): the caller need not zero dst first."""
     n, k = src.shape
     for i in range(n):
         a = src[i]
         b = dst[row0 + i]
+        b[:] = 0.0
         for s in range(k):
             b[cols[s]] = a[s]
 
