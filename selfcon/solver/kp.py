@@ -57,6 +57,15 @@ the phases chosen; each half has half the size and about half the band width, so
 count costs about a tenth.  Where a check finds the blocks not decoupled (to SPLIT_TOL of
 their largest entry) the whole matrix is solved.
 
+**Reduced basis** (:func:`reduced_dispersion`: the loop's k_par grid, and the [100] and
+[110] lines of the result).  Each half is H(k) = B0 + k B1 + k^2 B2 along the line; it is
+expanded in its zone-centre states plus their first- and second-order corrections through
+the resolvent (B0 - sigma)^-1, so every k_par is a dense eigenproblem of ~64 instead of a
+band problem of 3 N.  Every state's residual is checked (its energy error estimated as
+r^T (B0 - sigma)^-1 r) and a k_par above BASIS_TOL (0.05 meV) is solved whole; the block
+solver stays the reference and the fallback.  DEVELOPERS.md, "How to use the multiband hole
+model", has the measured errors.
+
 **In-plane directions.**  ``direction`` is an angle from [100] in the (001) plane, or
 ``"axial"``: the axial approximation (the warping term of R averaged, g2, g3 -> (g2 + g3)/2
 in R only; Chuang 1995), under which E(k) does not depend on the direction.
@@ -647,11 +656,10 @@ def _band_lower(d, u):
 
 
 def _apply(d, u, x):
-    """The real symmetric block-tridiagonal (d, u) times x (m, q, r)."""
-    y = d @ x
-    y[:-1] += u @ x[1:]
-    y[1:] += np.swapaxes(u, -1, -2) @ x[:-1]
-    return y
+    """The real symmetric block-tridiagonal (d, u) times x (m, q, r) (kernels/kp.py)."""
+    from selfcon.solver.kernels.kp import block_apply
+    return block_apply(np.ascontiguousarray(d, dtype=float), np.ascontiguousarray(u, dtype=float),
+                       np.ascontiguousarray(x, dtype=float))
 
 
 def _line_operators(h, w, mat, nb, cx, sy, axial):
@@ -825,7 +833,9 @@ def _build_basis(ops, phi_node, n_states):
 def _in_basis(basis, ops, w, phi_node, nb, n_states, k_grid):
     """The states of every k of ``k_grid`` in ``basis`` (:func:`_build_basis`): (E (n, m), dens
     (N, n, m), psi0 (N, nb, n), bad (m,) where an error estimate exceeds BASIS_TOL), as
-    :func:`reduced_dispersion` returns them before the whole solves."""
+    :func:`reduced_dispersion` returns them before the whole solves.  The eigenvalues of both
+    halves decide which states are among the lowest n at some k; only those are formed and
+    checked (about half of each half's)."""
     import scipy.linalg as sla
     tbtrs = sla.get_lapack_funcs("tbtrs", dtype=float)
     T, halves = ops
@@ -837,36 +847,45 @@ def _in_basis(basis, ops, w, phi_node, nb, n_states, k_grid):
     phin = np.asarray(phi_node, float)[1:-1]
     eye = np.eye(half)
     ritz = []
-    for (q, Pz, P1, P2), ((dz, uz), (d1, u1), (d2, u2)) in zip(basis, halves):
+    for q, Pz, P1, P2 in basis:
         K = q.shape[1]
-        qp = q * np.repeat(phin, half)[:, None]
-        x = q.T @ qp
+        x = q.T @ (q * np.repeat(phin, half)[:, None])
         P0 = Pz + 0.5 * (x + x.T)
-        d0 = dz + phin[:, None, None] * eye
         want = min(n_states, K)
-        E = np.full((want, nk), np.nan)
-        psi = np.zeros((m, half, want, nk))
-        res = np.zeros((m, half, want, nk))
+        th = np.empty((nk, want))
+        cs = np.empty((nk, K, want))
         for j in range(nk):
             k = k_grid[j]
-            th, c = sla.eigh(P0 + k * P1 + (k * k) * P2, subset_by_index=(0, want - 1),
-                             driver="evx", check_finite=False)
-            p = (q @ c).reshape(m, half, want)
-            res[:, :, :, j] = _apply(d0 + k * d1 + (k * k) * d2, uz + k * u1 + (k * k) * u2, p) - p * th
-            psi[:, :, :, j] = p
-            E[:, j] = -th
-        ritz.append((E, psi, res, d0, uz))
-    sigma = min(float(-np.max(r[0][:, 0])) for r in ritz) - BASIS_SHIFT
+            th[j], cs[j] = sla.eigh(P0 + k * P1 + (k * k) * P2, subset_by_index=(0, want - 1),
+                                    driver="evx", check_finite=False)
+        ritz.append((th, cs))
+    # the lowest n of both halves at each k (hole kinetic scale): how many of each half
+    vals = np.concatenate([t for t, _ in ritz], axis=1)                     # (nk, w0 + w1)
+    src = np.concatenate([np.full(t.shape[1], b) for b, (t, _) in enumerate(ritz)])
+    order = np.argsort(vals, axis=1, kind="stable")[:, :n_states]
+    need = [int(np.max(np.sum(src[order] == b, axis=1))) for b in range(2)]
+    sigma = float(vals[0].min()) - BASIS_SHIFT
     bad = np.zeros(nk, dtype=bool)
     Es, Ds, zero = [], [], []
-    for b, (E, psi, res, d0, uz) in enumerate(ritz):
+    for b, ((q, _, _, _), ((dz, uz), (d1, u1), (d2, u2)), (th, cs)) in enumerate(zip(basis, halves, ritz)):
+        nb_ = need[b]
+        d0 = dz + phin[:, None, None] * eye
+        psi = np.empty((nk, m, half, nb_))
+        res = np.empty((m * half, nk, nb_))
+        for j in range(nk):
+            k = k_grid[j]
+            p = (q @ cs[j, :, :nb_]).reshape(m, half, nb_)
+            r = _apply(d0 + k * d1 + (k * k) * d2, uz + k * u1 + (k * k) * u2, p)
+            r -= p * th[j, :nb_]
+            res[:, j, :] = r.reshape(m * half, nb_)
+            psi[j] = p
         chol = sla.cholesky_banded(_band_lower(d0 - sigma * eye, uz), lower=True, check_finite=False)
         lx, _ = tbtrs(chol, res.reshape(m * half, -1), uplo="L")            # L^-1 r
-        est = np.sum((lx * lx).reshape(res.shape), axis=(0, 1))                # (want, nk)
-        bad |= np.any(est > BASIS_TOL, axis=0)
-        Es.append(E)
-        Ds.append(np.sum(psi * psi, axis=1) * s2[:, None, None])
-        zero.append(np.einsum("ij,mjk->mik", T[:, b * half:(b + 1) * half], psi[:, :, :, 0]))
+        est = np.einsum("ij,ij->j", lx, lx).reshape(nk, -1)                  # (nk, need)
+        bad |= np.any(est > BASIS_TOL, axis=1)
+        Es.append(-th[:, :nb_].T)
+        Ds.append(np.einsum("jiaw,jiaw->iwj", psi, psi) * s2[:, None, None])
+        zero.append(np.einsum("ij,mjk->mik", T[:, b * half:(b + 1) * half], psi[0]))
     E = np.concatenate(Es)
     dens = np.concatenate(Ds, axis=1)
     order = np.argsort(-E, axis=0, kind="stable")[:n_states]      # lowest hole energy first

@@ -14,6 +14,9 @@ is done; a zero pivot is replaced by a tiny negative one, as LAPACK's dstebz doe
 tolerance, every count narrowing the brackets of all k (eigenvalues of any multiplicity
 come out once per copy).  Linear in m.
 
+**Block products** (:func:`block_apply`): a real symmetric block-tridiagonal matrix times a
+block of vectors, the products of the reduced basis (selfcon.solver.kp.reduced_dispersion).
+
 Arrays in, arrays out; nothing here is compiled at import time.
 """
 import numba
@@ -159,3 +162,26 @@ def orthonormalise(x, prev):
             for i in range(m):
                 q[i, c] /= nrm
     return q
+
+
+@numba.njit(cache=True, nogil=True)
+def block_apply(d, u, x):
+    """The real symmetric block-tridiagonal matrix with diagonal blocks ``d`` (m, q, q) and
+    upper blocks ``u`` (m-1, q, q) times the columns of ``x`` (m, q, r): y (m, q, r)."""
+    m, q, r = x.shape
+    y = np.zeros((m, q, r))
+    for i in range(m):
+        for a in range(q):
+            for b in range(q):
+                c = d[i, a, b]
+                for s in range(r):
+                    y[i, a, s] += c * x[i, b, s]
+                if i + 1 < m:
+                    c = u[i, a, b]
+                    for s in range(r):
+                        y[i, a, s] += c * x[i + 1, b, s]
+                if i > 0:
+                    c = u[i - 1, b, a]
+                    for s in range(r):
+                        y[i, a, s] += c * x[i - 1, b, s]
+    return y
