@@ -200,7 +200,7 @@ def count_below(d, e, x) -> int:
 
 
 def solve_region(h_cell, w, v_node, inv_mass_cell, n_states, workspace=None, below=None,
-                 levels_only=False):
+                 levels_only=False, embed=None):
     """Lowest ``n_states`` states on a sub-mesh with psi = 0 at its two end nodes.
 
     h_cell, inv_mass_cell: (n-1,) cell widths (nm) and inverse masses (1/m0);
@@ -209,7 +209,9 @@ def solve_region(h_cell, w, v_node, inv_mass_cell, n_states, workspace=None, bel
     sum_i w_i psi_i^2 = 1); k = min(n_states, n-2).  ``below``: only the states with an
     energy below it (a Sturm count decides how many; none costs no eigensolve).
     ``levels_only``: (energies, None) without vectors (:meth:`EigenWorkspace.levels`; a
-    following full solve of the same k continues from its brackets).  No input
+    following full solve of the same k continues from its brackets).  ``embed`` = (N, row0):
+    psi is (N, k), the sub-mesh's rows row0 .. row0 + n - 1 written in place and zeros
+    elsewhere (the full-mesh array of a region, without a copy).  No input
     checking here beyond shapes: this is the inner-loop call; use :func:`bound_states`
     for checked input.
     """
@@ -234,9 +236,16 @@ def solve_region(h_cell, w, v_node, inv_mass_cell, n_states, workspace=None, bel
     if levels_only:
         return workspace.levels(k), None
     energies, u = workspace.eigh(k)
-    psi = np.empty((n, k))
-    wavefunctions(kern, u, w, psi)
-    return energies, psi
+    if embed is None:
+        psi = np.empty((n, k))
+        wavefunctions(kern, u, w, psi)
+        return energies, psi
+    total, row0 = embed
+    full = np.empty((total, k))
+    full[:row0] = 0.0
+    full[row0 + n:] = 0.0
+    wavefunctions(kern, u, w, full[row0:row0 + n])
+    return energies, full
 
 
 def wavefunctions(kern, u, w, psi):
@@ -356,7 +365,7 @@ def thermal_in_plane_energy(x):
 IN_PLANE_TAPER = 10.0
 
 
-def in_plane_weights(energies, psi, w, mass_node, kT, fermi=0.0):
+def in_plane_weights(energies, psi, w, mass_node, kT, fermi=0.0, out=None):
     """In-plane (2D density-of-states) masses and density weights of subbands, such that the
     charge does not depend on how the eigensolver mixes nearly degenerate states.
 
@@ -383,7 +392,8 @@ def in_plane_weights(energies, psi, w, mass_node, kT, fermi=0.0):
 
     energies (k,) eV on the carrier's kinetic scale (up = more energy), psi (n, k) with
     sum_z w psi^2 = 1, mass_node (n,) in-plane mass at the nodes (m0), kT (eV), fermi (eV)
-    the carrier's Fermi level on the same scale.  Returns (masses (k,) m0, weights (n, k)).
+    the carrier's Fermi level on the same scale.  Returns (masses (k,) m0, weights (n, k));
+    ``out``: a C-contiguous (n, k) array the weights are written into (and returned).
     """
     e = np.asarray(energies, dtype=float)
     psi = np.ascontiguousarray(psi, dtype=float)
@@ -405,6 +415,6 @@ def in_plane_weights(energies, psi, w, mass_node, kT, fermi=0.0):
         np.fill_diagonal(s, 0.0)
         c = 1.0 - np.prod(1.0 - s, axis=1)
     mass = (1.0 - c) * harmonic + c * arithmetic
-    weight = np.empty_like(psi)
+    weight = np.empty_like(psi) if out is None else out
     kern.blended_weights(psi, m, c, arithmetic, weight)
     return mass, weight

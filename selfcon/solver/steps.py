@@ -556,7 +556,11 @@ def solve_states(ws: Workspace, phi) -> dict:
             eig = ws.eigen.get(key)
             if eig is None:
                 eig = ws.eigen[key] = schrodinger.EigenWorkspace(i1 - i0 + 1)
-            tasks.append((band, r_idx, eig, ws.n_states[band], ws.vxc.get(band)))
+            tasks.append([band, r_idx, eig, ws.n_states[band], ws.vxc.get(band), False])
+    for band in bands:                  # a band's only region writes its full-mesh arrays itself
+        mine = [t for t in tasks if t[0] == band]
+        if len(mine) == 1:
+            mine[0][5] = True
     solved = run_all(lambda task: band_region_states(st, phi, *task), tasks, ws.threads)
     # the full-mesh (N, K) arrays of each band, states in energy order: each task's region
     # part goes into its rows and its states' columns, on the same threads (nogil kernel;
@@ -573,6 +577,17 @@ def solve_states(ws: Workspace, phi) -> dict:
         ws.n_states[band] = max([ws.n_states[band]] + [res[5] for _, res in mine])
         E = np.concatenate([res[0] for _, res in mine])
         order = np.argsort(sign * E, kind="stable")     # lowest kinetic energy first
+        m_par = np.concatenate([res[2] for _, res in mine])[order]
+        region = np.concatenate([res[4] for _, res in mine])[order]
+        if mine[0][0][5]:                  # alone: the task's (N, k) arrays
+            res = mine[0][1]
+            psi, weight = res[1], res[3]
+            if not np.array_equal(order, np.arange(E.size)):
+                psi, weight = np.take(psi, order, axis=1), np.take(weight, order, axis=1)
+            out[band] = BandStates(band=band, energy=E[order], psi=psi, m_par=m_par, dos=None,
+                                   region=region, degeneracy=None, sign=sign,
+                                   quantum_nodes=qnodes, weight=weight)
+            continue
         column = np.empty(E.size, dtype=np.int64)
         column[order] = np.arange(E.size)
         # rows of the band's regions are written whole by their own task (_place), the others
@@ -585,10 +600,9 @@ def solve_states(ws: Workspace, phi) -> dict:
             count = res[0].size
             places.append((res, st.regions[task[1]][0], column[start:start + count], psi, weight))
             start += count
-        m_par = np.concatenate([res[2] for _, res in mine])[order]
         out[band] = BandStates(band=band, energy=E[order], psi=psi, m_par=m_par, dos=None,
-                               region=np.concatenate([res[4] for _, res in mine])[order],
-                               degeneracy=None, sign=sign, quantum_nodes=qnodes, weight=weight)
+                               region=region, degeneracy=None, sign=sign, quantum_nodes=qnodes,
+                               weight=weight)
     run_all(_place, places, ws.threads)
     for band, bs in out.items():
         bs.degeneracy = state_degeneracy(st, band, bs.psi)
@@ -676,13 +690,15 @@ def _xc_at_zero(form: str) -> float:
 
 
 def band_region_states(st: Structure, phi, band: str, r_idx: int, workspace, n_states: int,
-                       vxc=None):
+                       vxc=None, alone=False):
     """One task of :func:`solve_states`: the states of ``band`` in region ``r_idx``, their
     number doubled (up to MAX_STATES) while the top state still holds charge (``vxc``: the
     band's exchange-correlation potential, :func:`update_exchange`).  Returns
     (energy (k,), psi (n_r, k) on the region's nodes, in-plane mass (k,), density weight
     (n_r, k) on the region's nodes, region (k,), the number of states asked for last): the
-    region's part only, the full-mesh arrays are made once per band (:func:`solve_states`)."""
+    region's part only, the full-mesh arrays are made once per band (:func:`solve_states`).
+    ``alone``: the band's only region: psi and the weights (N, k) on the full mesh, written
+    in place (no copy into the band's arrays)."""
     sign = ALL_BANDS[band][3]
     fermi = st.fermi_levels[0 if sign > 0 else 1]             # the carrier's own level
     # the count is decided on the energies alone: the clustered solver's bisection, whose
@@ -693,7 +709,7 @@ def band_region_states(st: Structure, phi, band: str, r_idx: int, workspace, n_s
     k = n_states
     while True:
         e, psi = region_eigenstates(st, phi, band, r_idx, k, workspace=workspace, vxc=vxc,
-                                    full=False, levels_only=probe)
+                                    full=alone, levels_only=probe)
         occ = subband_density(e, np.ones(e.size), st.temperature, sign, fermi)
         if (e.size < k or k >= MAX_STATES or occ.sum() <= 0
                 or occ[-1] < TOP_STATE_FRACTION * occ.sum()):
@@ -701,8 +717,16 @@ def band_region_states(st: Structure, phi, band: str, r_idx: int, workspace, n_s
         k = min(2 * k, MAX_STATES)
     if probe:
         e, psi = region_eigenstates(st, phi, band, r_idx, k, workspace=workspace, vxc=vxc,
-                                    full=False)
-    m_par, weight = in_plane_motion(st, band, e, psi, phi, vxc, region=r_idx)
+                                    full=alone)
+    if not alone:
+        m_par, weight = in_plane_motion(st, band, e, psi, phi, vxc, region=r_idx)
+        return e, psi, m_par, weight, np.full(e.size, r_idx), k
+    i0, i1 = st.regions[r_idx]
+    weight = np.empty_like(psi)
+    weight[:i0] = 0.0
+    weight[i1 + 1:] = 0.0
+    m_par, _ = in_plane_motion(st, band, e, psi[i0:i1 + 1], phi, vxc, region=r_idx,
+                               weight_out=weight[i0:i1 + 1])
     return e, psi, m_par, weight, np.full(e.size, r_idx), k
 
 
@@ -788,12 +812,16 @@ def region_eigenstates(st: Structure, phi, band: str, r_idx: int, n_states: int,
     kinetic = sign * edge_node[sl]                                 # holes: kinetic up = -Ev
     if vxc is not None:
         kinetic = kinetic + vxc[sl]
+    nonparabolic = nonparabolic_band(st, band)
+    embed = (n, i0) if full and not nonparabolic else None    # written in place, no copy
     e, p = schrodinger.solve_region(part.h, part.w, kinetic,
                                     1.0 / st.cell[mass_key][i0:i1], n_states, workspace=workspace,
-                                    below=below, levels_only=levels_only)
+                                    below=below, levels_only=levels_only, embed=embed)
     if levels_only:
         return sign * e, None
-    if e.size and nonparabolic_band(st, band):     # energy-dependent mass: iterate each state
+    if embed is not None:
+        return sign * e, p
+    if e.size and nonparabolic:                    # energy-dependent mass: iterate each state
         from selfcon.solver import nonparabolic
         e, p, _ = nonparabolic.refine_states(part.h, part.w, kinetic, st.cell[mass_key][i0:i1],
                                              cell_edge(st, band, phi, vxc)[i0:i1],
@@ -805,14 +833,16 @@ def region_eigenstates(st: Structure, phi, band: str, r_idx: int, n_states: int,
     return sign * e, out
 
 
-def in_plane_motion(st: Structure, band: str, energy, psi, phi=None, vxc=None, region=None):
+def in_plane_motion(st: Structure, band: str, energy, psi, phi=None, vxc=None, region=None,
+                    weight_out=None):
     """The in-plane motion of the states of one region (selfcon.solver.schrodinger.
     in_plane_weights): the in-plane masses (k,) m0 and the density weights (N, k), such that
     the charge of nearly degenerate states does not depend on their mixture.  ``energy``
     on the electron scale; the carrier's own Fermi level.  A nonparabolic band
     (selfcon.solver.nonparabolic) takes its density-of-states masses at the potential
     ``phi`` (and ``vxc``) its states were solved at.  ``region``: psi is (n_r, k) on the
-    nodes of that quantum region only (the weights then too), else on the full mesh."""
+    nodes of that quantum region only (the weights then too), else on the full mesh.
+    ``weight_out``: a C-contiguous array of the weights' shape to write them into."""
     from selfcon.solver import schrodinger
     _, mass_key, par_key, sign, _ = ALL_BANDS[band]
     fermi = st.fermi_levels[0 if sign > 0 else 1]
@@ -823,7 +853,7 @@ def in_plane_motion(st: Structure, band: str, energy, psi, phi=None, vxc=None, r
     w = st.mesh.w[nodes]
     m_node = st.node_average(st.cell[par_key])[nodes]
     mass, weight = schrodinger.in_plane_weights(sign * np.asarray(energy), psi, w,
-                                                m_node, st.kT, sign * fermi)
+                                                m_node, st.kT, sign * fermi, out=weight_out)
     if nonparabolic_band(st, band) and len(mass):
         from selfcon.solver import nonparabolic
         if phi is None:
