@@ -315,3 +315,15 @@ def test_a_kept_basis_reused_at_a_nearby_potential_gives_the_same_states():
     assert next(iter(cache.values()))[1] is kept                 # reused, not rebuilt
     ref = kp.dispersion(mesh.h, mesh.w, mat, moved, 6, 8, k_grid)
     assert np.abs(got[0] - ref[0]).max() <= 5e-5
+
+
+def test_reduced_basis_gives_the_same_bits_on_two_threads():
+    """The two halves on two threads: the same arrays, bit for bit (each half is solved by
+    the same code whatever thread runs it)."""
+    mesh, mat = well(cells=(30, 60, 30), jitter=0.3)
+    phi = 0.04 * mesh.z / mesh.z[-1]
+    k_grid = np.linspace(0.0, 0.35, 12)
+    one = kp.reduced_dispersion(mesh.h, mesh.w, mat, phi, 6, 8, k_grid, threads=1)
+    two = kp.reduced_dispersion(mesh.h, mesh.w, mat, phi, 6, 8, k_grid, threads=2)
+    for a, b in zip(one, two):
+        assert np.array_equal(a, b)

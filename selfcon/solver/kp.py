@@ -696,7 +696,7 @@ def _line_operators(h, w, mat, nb, cx, sy, axial):
 
 
 def reduced_dispersion(h, w, mat: KpMaterial, phi_node, nb: int, n_states: int, k_grid, *,
-                       angle: float | None = None, cache: dict | None = None):
+                       angle: float | None = None, cache: dict | None = None, threads: int = 1):
     """:func:`dispersion` from a reduced basis, or None where the model does not split into
     real halves (then use :func:`dispersion`): the axial approximation (``angle`` None), or
     the warped Hamiltonian along [100] and [110].
@@ -719,7 +719,8 @@ def reduced_dispersion(h, w, mat: KpMaterial, phi_node, nb: int, n_states: int, 
     potential).  ``cache``: a dict the caller keeps for one region during one solve (the
     loop's Workspace); the basis is kept there and reused at the next potential, and built
     anew when a reused basis fails the check (the potential moves little from one
-    iteration to the next, so the basis of the last one usually still fits).  Same return
+    iteration to the next, so the basis of the last one usually still fits).  ``threads``:
+    the two halves side by side (the same bits for any count).  Same return
     as :func:`dispersion` (the states at k = 0 are those of the halves: each Kramers pair as
     the halves' two states)."""
     from selfcon.solver.threads import one_blas_thread
@@ -733,7 +734,7 @@ def reduced_dispersion(h, w, mat: KpMaterial, phi_node, nb: int, n_states: int, 
         return None
     with one_blas_thread():
         return _reduced_dispersion(h, w, mat, phi_node, nb, n_states, k_grid, cx, sy, axial, ops,
-                                   cache)
+                                   cache, threads)
 
 
 def _zone_centre_half(d0, u0, levels):
@@ -760,23 +761,24 @@ def _zone_centre_half(d0, u0, levels):
     return np.concatenate([ev, el]), np.concatenate([x, y], axis=2)
 
 
-def _reduced_dispersion(h, w, mat, phi_node, nb, n_states, k_grid, cx, sy, axial, ops, cache):
+def _reduced_dispersion(h, w, mat, phi_node, nb, n_states, k_grid, cx, sy, axial, ops, cache,
+                        threads):
     key = ("basis", nb, cx, sy, axial, n_states)
     kept = cache.get(key) if cache is not None else None
     phi_node = np.asarray(phi_node, float)
     fresh = kept is None or np.max(np.abs(phi_node - kept[0])) > BASIS_REUSE
     if fresh:
-        basis = _build_basis(ops, phi_node, n_states)
+        basis = _build_basis(ops, phi_node, n_states, threads)
         if basis is None:
             return None
     else:
         basis = kept[1]
-    out = _in_basis(basis, ops, w, phi_node, nb, n_states, k_grid)
+    out = _in_basis(basis, ops, w, phi_node, nb, n_states, k_grid, threads)
     if not fresh and out[3].any():           # the kept basis no longer fits: build it anew
-        basis = _build_basis(ops, phi_node, n_states)
+        basis = _build_basis(ops, phi_node, n_states, threads)
         if basis is None:
             return None
-        out = _in_basis(basis, ops, w, phi_node, nb, n_states, k_grid)
+        out = _in_basis(basis, ops, w, phi_node, nb, n_states, k_grid, threads)
     if cache is not None and (fresh or kept[1] is not basis):
         cache[key] = (phi_node.copy(), basis)
     out_E, out_d, psi0, bad = out
@@ -792,7 +794,7 @@ def _reduced_dispersion(h, w, mat, phi_node, nb, n_states, k_grid, cx, sy, axial
     return out_E, out_d, psi0
 
 
-def _build_basis(ops, phi_node, n_states):
+def _build_basis(ops, phi_node, n_states, threads=1):
     """The reduced basis of each half at the potential ``phi_node`` (reduced_dispersion):
     [(q (m q, K) orthonormal, q^T Z q, q^T B1 q, q^T B2 q)], or None."""
     import scipy.linalg as sla
@@ -806,8 +808,9 @@ def _build_basis(ops, phi_node, n_states):
         return None
     e_zc, V = zc
     sigma = float(e_zc.min()) - BASIS_SHIFT
-    out = []
-    for (dz, uz), (d1, u1), (d2, u2) in halves:
+
+    def build(b):
+        (dz, uz), (d1, u1), (d2, u2) = halves[b]
         d0 = dz + phin[:, None, None] * eye
         chol = sla.cholesky_banded(_band_lower(d0 - sigma * eye, uz), lower=True, check_finite=False)
 
@@ -826,11 +829,22 @@ def _build_basis(ops, phi_node, n_states):
         for dd, uu in ((dz, uz), (d1, u1), (d2, u2)):
             x = q.T @ _apply(dd, uu, qv).reshape(m * half, K)
             P.append(0.5 * (x + x.T))
-        out.append((q, *P))
-    return out
+        return (q, *P)
+    return _per_half(build, threads)
 
 
-def _in_basis(basis, ops, w, phi_node, nb, n_states, k_grid):
+def _per_half(fn, threads):
+    """[fn(0), fn(1)] for the two halves, on up to ``threads`` threads (selfcon.solver.threads;
+    each on one BLAS thread): the same code whatever thread runs a half, so the same bits."""
+    from selfcon.solver.threads import one_blas_thread, run_all
+
+    def task(b):
+        with one_blas_thread():
+            return fn(b)
+    return run_all(task, [0, 1], threads)
+
+
+def _in_basis(basis, ops, w, phi_node, nb, n_states, k_grid, threads=1):
     """The states of every k of ``k_grid`` in ``basis`` (:func:`_build_basis`): (E (n, m), dens
     (N, n, m), psi0 (N, nb, n), bad (m,) where an error estimate exceeds BASIS_TOL), as
     :func:`reduced_dispersion` returns them before the whole solves.  The eigenvalues of both
@@ -846,8 +860,9 @@ def _in_basis(basis, ops, w, phi_node, nb, n_states, k_grid):
     s2 = 1.0 / np.asarray(w, float)[1:-1]
     phin = np.asarray(phi_node, float)[1:-1]
     eye = np.eye(half)
-    ritz = []
-    for q, Pz, P1, P2 in basis:
+
+    def ritz_of(b):
+        q, Pz, P1, P2 = basis[b]
         K = q.shape[1]
         x = q.T @ (q * np.repeat(phin, half)[:, None])
         P0 = Pz + 0.5 * (x + x.T)
@@ -858,16 +873,19 @@ def _in_basis(basis, ops, w, phi_node, nb, n_states, k_grid):
             k = k_grid[j]
             th[j], cs[j] = sla.eigh(P0 + k * P1 + (k * k) * P2, subset_by_index=(0, want - 1),
                                     driver="evx", check_finite=False)
-        ritz.append((th, cs))
+        return th, cs
+    ritz = _per_half(ritz_of, threads)
     # the lowest n of both halves at each k (hole kinetic scale): how many of each half
     vals = np.concatenate([t for t, _ in ritz], axis=1)                     # (nk, w0 + w1)
     src = np.concatenate([np.full(t.shape[1], b) for b, (t, _) in enumerate(ritz)])
     order = np.argsort(vals, axis=1, kind="stable")[:, :n_states]
     need = [int(np.max(np.sum(src[order] == b, axis=1))) for b in range(2)]
     sigma = float(vals[0].min()) - BASIS_SHIFT
-    bad = np.zeros(nk, dtype=bool)
-    Es, Ds, zero = [], [], []
-    for b, ((q, _, _, _), ((dz, uz), (d1, u1), (d2, u2)), (th, cs)) in enumerate(zip(basis, halves, ritz)):
+
+    def states_of(b):
+        q = basis[b][0]
+        (dz, uz), (d1, u1), (d2, u2) = halves[b]
+        th, cs = ritz[b]
         nb_ = need[b]
         d0 = dz + phin[:, None, None] * eye
         psi = np.empty((nk, m, half, nb_))
@@ -882,10 +900,12 @@ def _in_basis(basis, ops, w, phi_node, nb, n_states, k_grid):
         chol = sla.cholesky_banded(_band_lower(d0 - sigma * eye, uz), lower=True, check_finite=False)
         lx, _ = tbtrs(chol, res.reshape(m * half, -1), uplo="L")            # L^-1 r
         est = np.einsum("ij,ij->j", lx, lx).reshape(nk, -1)                  # (nk, need)
-        bad |= np.any(est > BASIS_TOL, axis=1)
-        Es.append(-th[:, :nb_].T)
-        Ds.append(np.einsum("jiaw,jiaw->iwj", psi, psi) * s2[:, None, None])
-        zero.append(np.einsum("ij,mjk->mik", T[:, b * half:(b + 1) * half], psi[0]))
+        return (np.any(est > BASIS_TOL, axis=1), -th[:, :nb_].T,
+                np.einsum("jiaw,jiaw->iwj", psi, psi) * s2[:, None, None],
+                np.einsum("ij,mjk->mik", T[:, b * half:(b + 1) * half], psi[0]))
+    parts = _per_half(states_of, threads)
+    bad = parts[0][0] | parts[1][0]
+    Es, Ds, zero = ([x[i] for x in parts] for i in (1, 2, 3))
     E = np.concatenate(Es)
     dens = np.concatenate(Ds, axis=1)
     order = np.argsort(-E, axis=0, kind="stable")[:n_states]      # lowest hole energy first
@@ -1065,14 +1085,16 @@ def _zone_centre_top(h, w, mat, phi_node, nb):
     return -low
 
 
-def region_dispersion(h, w, mat, phi_node, nb, n_states, efp, kT, k_top, cache=None):
+def region_dispersion(h, w, mat, phi_node, nb, n_states, efp, kT, k_top, cache=None, threads=1):
     """The axial dispersion of one region on K_POINTS k_par values from 0 to ``k_top``,
     lengthened (x 1.5) until every state's hole occupation at the end is below
     TAIL_OCCUPATION.  Returns (k_grid, E, dens, psi0) as :func:`dispersion`, from
-    :func:`reduced_dispersion` (``cache``: its kept basis) where the model splits."""
+    :func:`reduced_dispersion` (``cache``: its kept basis; ``threads``: for its halves) where
+    the model splits."""
     for _ in range(8):
         k_grid = np.linspace(0.0, k_top, K_POINTS)
-        got = reduced_dispersion(h, w, mat, phi_node, nb, n_states, k_grid, cache=cache)
+        got = reduced_dispersion(h, w, mat, phi_node, nb, n_states, k_grid, cache=cache,
+                                 threads=threads)
         E, dens, psi0 = got if got is not None else dispersion(h, w, mat, phi_node, nb, n_states, k_grid)
         last = E[:, -1]
         occ = 1.0 / (1.0 + np.exp(np.clip((efp - last[np.isfinite(last)]) / kT, -700, 700)))

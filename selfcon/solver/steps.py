@@ -766,7 +766,8 @@ def kp_states(ws: Workspace, phi):
         for r_idx, i0, i1, part, mat in todo:
             kg, E, dens, psi0 = kp.region_dispersion(part.h, part.w, mat, phi[i0:i1 + 1], nb, n,
                                                      efp, kT, k_top,
-                                                     cache=ws.kp_basis.setdefault(r_idx, {}))
+                                                     cache=ws.kp_basis.setdefault(r_idx, {}),
+                                                     threads=ws.threads)
             solved.append((kg, E, dens, psi0))
         grown = max(s[0][-1] for s in solved)
         if grown > k_top * (1 + 1e-12):          # a region needed a longer grid: one grid for all
