@@ -197,7 +197,14 @@ def channel_summary(an) -> dict:
 
 def interface_columns(st) -> dict:
     """The /interfaces columns of a structure: every layer interface, top first, with its
-    depth and bound polarization sheet (cm^-2 and C/m^2) and the two layers' names."""
+    depth and bound polarization sheet (cm^-2 and C/m^2) and the two layers' names.  Made
+    once per structure (model.structure.derived); each call returns its own copies."""
+    from selfcon.model.structure import derived
+    made = derived(st, "interface_columns", lambda: _interface_columns(st))
+    return {k: v.copy() for k, v in made.items()}
+
+
+def _interface_columns(st) -> dict:
     rows = st.interfaces()
     sigma = np.array([r["sigma_nm2"] for r in rows], dtype=float)
     return {"depth_nm": np.array([r["z_nm"] for r in rows], dtype=float),

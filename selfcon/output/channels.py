@@ -115,7 +115,9 @@ def occupied_states(band: str, subbands: dict, channel_rows) -> np.ndarray:
     ch = np.asarray(getattr(sb, "channel", None) if getattr(sb, "channel", None) is not None
                     else np.full(np.asarray(sb.energy).size, -1))
     rows = list(channel_rows or [])
-    ref = np.array([float(rows[c]["sheet_density"]) if 0 <= c < len(rows) else kind_total for c in ch])
+    sheets = np.array([float(r["sheet_density"]) for r in rows] + [kind_total])
+    ch = ch.astype(np.int64, copy=False)
+    ref = sheets[np.where((ch >= 0) & (ch < len(rows)), ch, len(rows))]     # the last: no channel
     return occupied(sb.occupation, ref)
 
 
@@ -475,6 +477,11 @@ def analyse(z, w, kT: float, profiles: dict, levels, layers=(), requests=()) -> 
     for carrier in CARRIERS:
         prof = profiles.get(carrier)
         if prof is None:
+            continue
+        dens = np.asarray(prof.density, dtype=float)
+        if float(np.dot(w, dens)) / NM_PER_CM < 0.5 * FALLBACK_FLOOR_CM2 and not dens.min() < 0:
+            # no run can hold FALLBACK_FLOOR_CM2 when the whole profile holds less (the
+            # holes of an n-type stack): candidate_runs would find none
             continue
         taken = [(c.i0, c.i1) for c in chans if c.named and c.carrier == carrier]
         u = CARRIER_SIGN[carrier] * np.asarray(prof.edge, dtype=float)

@@ -967,8 +967,9 @@ def charge_residual(ws: Workspace, phi, phi_out, states) -> float:
 
 
 def gauss_residual(ws: Workspace, phi, states, rho=None) -> float:
-    """Gauss's law check of the solution (rho: its node charge, if already computed)."""
-    return P.gauss_residual(ws.problem(phi, states), phi, rho)
+    """Gauss's law check of the solution (rho: its node charge, if already computed: then the
+    check needs only the mesh and permittivities, the same in every problem of the solve)."""
+    return P.gauss_residual(ws.problem_classical if rho is not None else ws.problem(phi, states), phi, rho)
 
 
 __all__ = ["BAND_SPECS", "KP_BAND", "kp_states", "VALLEY_BANDS", "ALL_BANDS", "bands_of", "carrier_of", "state_degeneracy",
