@@ -269,6 +269,21 @@ def test_a_structure_solved_again_starts_from_its_kept_classical_start(hemt4):
     assert len(derived(st, "classical_start", dict)) == 1
 
 
+@pytest.mark.parametrize("start, grown", [(2, 64), (10, 40), (40, 40)])
+def test_a_settled_count_is_solved_outright_with_the_same_states(hemt300, start, grown):
+    # once a region's count of states settled, band_region_states solves that count at once
+    # instead of probing it on the energies first; the states are the same bits, whether the
+    # count then grows (start 2 -> 64 and 10 -> 40 states at 300 K) or stays (40)
+    from selfcon.solver import schrodinger, steps
+    st = selfcon.build_structure(hemt300)
+    phi = np.asarray(selfcon.solve(hemt300, structure=st).potential, dtype=float)
+    got = [steps.band_region_states(st, phi, "electron", 0, schrodinger.EigenWorkspace(), start,
+                                    probe_first=probe_first) for probe_first in (True, False)]
+    assert got[0][5] == got[1][5] == grown
+    for a, b in zip(*got):
+        assert np.array_equal(a, b)
+
+
 def test_two_quantum_regions():
     deck = selfcon.load_deck(DOUBLE_WELL).with_overrides({"quantum.regions": [[45.0, 64.0], [64.5, 83.5]]})
     r = selfcon.solve(deck)

@@ -161,6 +161,9 @@ class Workspace:
         self.kp_basis: dict = {}               # region -> the kept reduced basis (kp.reduced_dispersion)
         self.negligible: dict = {}       # (band, region) -> bool
         self.eigen: dict = {}            # (band, region) -> EigenWorkspace
+        #: (band, region) pairs whose count of states did not grow at the last solve
+        #: (band_region_states solves them without probing the count first)
+        self.settled: set = set()
         self._last = None                # (phi, states, (n, p, nd+, na-))
         self._classical = None           # (phi, Densities) with every carrier classical
         #: band -> (N,) eV exchange-correlation potential energy on the band's kinetic scale
@@ -556,12 +559,15 @@ def solve_states(ws: Workspace, phi) -> dict:
             eig = ws.eigen.get(key)
             if eig is None:
                 eig = ws.eigen[key] = schrodinger.EigenWorkspace(i1 - i0 + 1)
-            tasks.append([band, r_idx, eig, ws.n_states[band], ws.vxc.get(band), False])
+            tasks.append([band, r_idx, eig, ws.n_states[band], ws.vxc.get(band), False,
+                          key not in ws.settled])
     for band in bands:                  # a band's only region writes its full-mesh arrays itself
         mine = [t for t in tasks if t[0] == band]
         if len(mine) == 1:
             mine[0][5] = True
     solved = run_all(lambda task: band_region_states(st, phi, *task), tasks, ws.threads)
+    for task, res in zip(tasks, solved):      # a count that did not grow: no probe next time
+        (ws.settled.add if res[5] == task[3] else ws.settled.discard)((task[0], task[1]))
     # the full-mesh (N, K) arrays of each band, states in energy order: each task's region
     # part goes into its rows and its states' columns, on the same threads (nogil kernel;
     # rows of different regions do not overlap)
@@ -690,10 +696,13 @@ def _xc_at_zero(form: str) -> float:
 
 
 def band_region_states(st: Structure, phi, band: str, r_idx: int, workspace, n_states: int,
-                       vxc=None, alone=False):
+                       vxc=None, alone=False, probe_first: bool = True):
     """One task of :func:`solve_states`: the states of ``band`` in region ``r_idx``, their
     number doubled (up to MAX_STATES) while the top state still holds charge (``vxc``: the
-    band's exchange-correlation potential, :func:`update_exchange`).  Returns
+    band's exchange-correlation potential, :func:`update_exchange`).  ``probe_first``: decide
+    the count on the energies alone before solving for vectors (worth it while the count
+    may still grow; False once a count settled: the states at ``n_states`` are solved
+    outright, and a count that grows after all goes on probing).  Returns
     (energy (k,), psi (n_r, k) on the region's nodes, in-plane mass (k,), density weight
     (n_r, k) on the region's nodes, region (k,), the number of states asked for last): the
     region's part only, the full-mesh arrays are made once per band (:func:`solve_states`).
@@ -704,8 +713,9 @@ def band_region_states(st: Structure, phi, band: str, r_idx: int, workspace, n_s
     # the count is decided on the energies alone: the clustered solver's bisection, whose
     # brackets the final solve continues from (parabolic bands; a nonparabolic state's
     # energy needs its wavefunction)
-    probe = (workspace is not None and workspace.method == "clustered"
-             and not nonparabolic_band(st, band))
+    can_probe = (workspace is not None and workspace.method == "clustered"
+                 and not nonparabolic_band(st, band))
+    probe = can_probe and probe_first
     k = n_states
     while True:
         e, psi = region_eigenstates(st, phi, band, r_idx, k, workspace=workspace, vxc=vxc,
@@ -715,6 +725,7 @@ def band_region_states(st: Structure, phi, band: str, r_idx: int, workspace, n_s
                 or occ[-1] < TOP_STATE_FRACTION * occ.sum()):
             break
         k = min(2 * k, MAX_STATES)
+        probe = can_probe
     if probe:
         e, psi = region_eigenstates(st, phi, band, r_idx, k, workspace=workspace, vxc=vxc,
                                     full=alone)
