@@ -294,3 +294,31 @@ def test_electric_field_linear_and_quadratic():
     a, b = 0.003, -0.02
     E = P.electric_field(z, a * z * z + b * z)
     assert np.allclose(E[1:-1], -(2 * a * z[1:-1] + b) * 1e7, rtol=1e-12)
+
+
+@pytest.mark.parametrize("shift", [0.0, 0.003, -0.004, 0.25, -0.15])
+def test_predictor_density_far_from_the_fermi_level(shift):
+    """Occupancies are evaluated as exp((EF - E_k)/kT) times the node's exp(dphi/kT) (the
+    kernel's _levels) while both factors stay within 1e+-150, by the direct formula outside:
+    a level 0.2 eV below EF at 4.2 K (x ~ 550), one far above, and rigid shifts of +0.25 V
+    and -0.15 V (+690 kT, -410 kT) give the definition n_q = sum_k |psi_k|^2 D_k kT ln(1 + e^((EF - E_k + dphi)/kT))
+    (statistics.subband_density, the same formula in numpy), and d n / d phi its derivative
+    (central differences)."""
+    pr, psi2, psi2h, ek, ekh, dos_e, dos_h, cls, phi_ref = predictor_problem()
+    ek = np.array([-0.2, -0.005, 0.3])
+    pr = pr.with_quantum(phi_ref=phi_ref, psi2=psi2, ek=ek, dos_e=dos_e)
+    kT = pr.kT
+    q = cls == 0.0
+    d = P.densities(pr, phi_ref + shift)
+    want = psi2 @ ks.subband_density(ek - shift, dos_e, kT, 1)
+    # a level more than 45 kT above the local EF is left out (kp._NEGLIGIBLE_X): < e^-45 of
+    # its DOS x kT
+    cut = math.exp(kp._NEGLIGIBLE_X) * kT * np.max(dos_e) * np.max(psi2) * ek.size
+    assert np.allclose(d.n[q], want[q], rtol=1e-13, atol=cut)
+    assert np.max(want[q]) > 1e6 * cut                # a state is occupied at every shift
+    if abs(shift) < 0.01:
+        args = pr.kernel_args()
+        h = 1e-7
+        drho = kp.node_densities(phi_ref + shift, *args)[4]
+        num = (P.densities(pr, phi_ref + shift + h).rho - P.densities(pr, phi_ref + shift - h).rho) / (2 * h)
+        assert np.allclose(drho[q], num[q], rtol=1e-5, atol=1e-8 * np.max(np.abs(num)))

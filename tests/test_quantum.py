@@ -511,3 +511,32 @@ def test_states_below_a_limit_by_sturm_count():
     ev = np.linalg.eigvalsh(np.diag(d) + np.diag(off, 1) + np.diag(off, -1))
     for x in (-3.0, -0.5, 0.0, 0.7, 4.0):
         assert count_below(d, off, x) == int(np.sum(ev < x))
+
+
+def test_in_plane_weights_blend_as_the_docstring_says():
+    # partly degenerate states (splittings of the order of the taper scale D): the masses and
+    # weights of the numba kernels against the formula of in_plane_weights' docstring written
+    # out in numpy (c_k = 1 - prod_j (1 - exp(-((E_k - E_j)/D)^2)), mass (1 - c) m_h + c <m>,
+    # weight |psi|^2 ((1 - c) + c m(z)/<m>)), and on a row slice given as `out`
+    from selfcon.solver.schrodinger import IN_PLANE_TAPER
+    rng = np.random.default_rng(3)
+    n, k = 40, 4
+    psi = rng.normal(size=(n, k))
+    w = rng.random(n) + 0.5
+    m_node = 0.06 + 0.04 * rng.random(n)
+    kT, fermi = 0.0066, 0.0
+    e = np.array([-0.030, -0.028, -0.0255, -0.010])
+    mass, weight = in_plane_weights(e, psi, w, m_node, kT, fermi)
+    p2 = psi ** 2
+    norm = w @ p2
+    harmonic, arithmetic = norm / ((w / m_node) @ p2), ((w * m_node) @ p2) / norm
+    spread = kT * thermal_in_plane_energy((fermi - e.min()) / kT) / IN_PLANE_TAPER
+    s = np.exp(-((e[:, None] - e[None, :]) / spread) ** 2)
+    np.fill_diagonal(s, 0.0)
+    c = 1.0 - np.prod(1.0 - s, axis=1)
+    assert 0.01 < c[0] < 0.99 and c[3] < 1e-12          # a real blend, and an isolated state
+    np.testing.assert_allclose(mass, (1 - c) * harmonic + c * arithmetic, rtol=1e-13)
+    np.testing.assert_allclose(weight, p2 * ((1 - c) + c * m_node[:, None] / arithmetic), rtol=1e-13)
+    out = np.full((n + 6, k), np.nan)
+    _, got = in_plane_weights(e, psi, w, m_node, kT, fermi, out=out[3:n + 3])
+    assert got.base is out and np.array_equal(out[3:n + 3], weight) and np.isnan(out[:3]).all()
