@@ -52,8 +52,17 @@ def valley_density(st, phi, edge_cell, nc_cell) -> np.ndarray:
     efn = st.fermi_levels[0]
     left = np.zeros(m.n)
     right = np.zeros(m.n)
-    left[1:] = nc_cell * fermi_half((phi[1:] - edge_cell + efn) / st.kT)
-    right[:-1] = nc_cell * fermi_half((phi[:-1] - edge_cell + efn) / st.kT)
+    f_left = fermi_half((phi[1:] - edge_cell + efn) / st.kT)       # cell i at node i + 1
+    # cell i at node i: where cell i has the edge of cell i - 1 (inside a uniform layer) its
+    # argument is the one of cell i - 1 at node i, so is its value; F_1/2 is evaluated anew
+    # only where the edge changes (half the evaluations, the same numbers)
+    f_right = np.empty(edge_cell.size)
+    new = np.ones(edge_cell.size, dtype=bool)
+    new[1:] = edge_cell[1:] != edge_cell[:-1]
+    f_right[1:] = f_left[:-1]
+    f_right[new] = fermi_half((phi[:-1][new] - edge_cell[new] + efn) / st.kT)
+    left[1:] = nc_cell * f_left
+    right[:-1] = nc_cell * f_right
     return (m.wl * left + m.wr * right) / m.w
 
 
