@@ -173,7 +173,7 @@ def refine_region_state(h_cell, w, v_node, inv_mass_cell, index: int, psi_guess,
     if not ok:
         return None
     psi = np.empty((n, 1))
-    kern.vectors_to_wavefunctions(u[:, None].copy(), w, psi)
+    kern.rows_to_wavefunctions(u[None, :], w, psi)
     return float(energy), psi[:, 0]
 
 
@@ -249,13 +249,10 @@ def solve_region(h_cell, w, v_node, inv_mass_cell, n_states, workspace=None, bel
 
 
 def wavefunctions(kern, u, w, psi):
-    """psi (n, k) from the eigenvectors u (n-2, k) of B: the rows of the eigen kernel's
-    (k, n-2) array are read as they are (kernels/schrodinger.py::rows_to_wavefunctions), any
-    other layout through a contiguous copy; the same values either way."""
-    if u.T.flags.c_contiguous:
-        kern.rows_to_wavefunctions(u.T, w, psi)
-    else:
-        kern.vectors_to_wavefunctions(np.ascontiguousarray(u), w, psi)
+    """psi (n, k) from the eigenvectors u (n-2, k) of B (kernels/schrodinger.py::
+    rows_to_wavefunctions): the rows of the eigen kernel's (k, n-2) array are read as they
+    are, any other layout through a contiguous copy of u.T."""
+    kern.rows_to_wavefunctions(np.ascontiguousarray(u.T), w, psi)
 
 
 def _check_mesh(z):

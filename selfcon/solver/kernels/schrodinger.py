@@ -41,43 +41,12 @@ def assemble_tridiagonal(h, w, v_node, inv_mass_cell, d, e):
 
 
 @numba.njit(cache=True, nogil=True)
-def vectors_to_wavefunctions(u, w, psi):
-    """u (n-2, k) eigenvectors of B -> psi (n, k) with psi = W^{-1/2} u.
+def rows_to_wavefunctions(z, w, psi):
+    """Eigenvectors of B as the rows of z (k, n-2) (the layout of
+    selfcon/solver/kernels/eigen.py) -> psi (n, k) with psi = W^{-1/2} u.
 
     Ends are zero; each column is normalised to sum_i w_i psi_i^2 = 1 and its sign
-    fixed so that the first node with |psi| > 1e-3 max|psi| is positive.
-    """
-    n = w.shape[0]
-    k = u.shape[1]
-    for s in range(k):
-        psi[0, s] = 0.0
-        psi[n - 1, s] = 0.0
-        norm2 = 0.0
-        big = 0.0
-        for j in range(n - 2):
-            val = u[j, s] / np.sqrt(w[j + 1])
-            psi[j + 1, s] = val
-            norm2 += w[j + 1] * val * val
-            a = abs(val)
-            if a > big:
-                big = a
-        sign = 1.0
-        thresh = 1e-3 * big
-        for i in range(1, n - 1):
-            if abs(psi[i, s]) > thresh:
-                if psi[i, s] < 0.0:
-                    sign = -1.0
-                break
-        scale = sign / np.sqrt(norm2) if norm2 > 0.0 else 0.0
-        for i in range(1, n - 1):
-            psi[i, s] *= scale
-
-
-@numba.njit(cache=True, nogil=True)
-def rows_to_wavefunctions(z, w, psi):
-    """As :func:`vectors_to_wavefunctions` with the eigenvectors as the rows of z (k, n-2)
-    (the layout of selfcon/solver/kernels/eigen.py): the same values, bit for bit, without
-    first copying z into columns."""
+    fixed so that the first node with |psi| > 1e-3 max|psi| is positive."""
     n = w.shape[0]
     k = z.shape[0]
     root = np.empty(n)
