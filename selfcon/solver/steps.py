@@ -799,6 +799,14 @@ def kp_states(ws: Workspace, phi):
     return kp.collect_states(st.n_nodes, st.hole_model, [t[:3] for t in todo], solved, efp, kT)
 
 
+def region_parts(st: Structure, edge_key: str, i0: int, i1: int):
+    """(the band edge ``edge_key`` without electrostatics at the nodes, the mesh of nodes
+    i0..i1): made once per structure (selfcon.model.structure.derived; read-only), since
+    every eigensolve of a region asks for them."""
+    return (derived(st, ("node_edge", edge_key), lambda: st.node_average(st.cell[edge_key])),
+            derived(st, ("region_mesh", i0, i1), lambda: st.mesh.part(i0, i1)))
+
+
 def region_eigenstates(st: Structure, phi, band: str, r_idx: int, n_states: int, workspace=None,
                        below=None, vxc=None, full=True, levels_only=False):
     """Lowest ``n_states`` eigenstates of the z problem of ``band`` in quantum region
@@ -819,8 +827,8 @@ def region_eigenstates(st: Structure, phi, band: str, r_idx: int, n_states: int,
     if i1 - i0 < 3:
         return np.empty(0), np.zeros((n if full else i1 - i0 + 1, 0))
     sl = slice(i0, i1 + 1)
-    edge_node = st.node_average(st.cell[edge_key]) - phi      # band edge with electrostatics
-    part = st.mesh.part(i0, i1)
+    edge0, part = region_parts(st, edge_key, i0, i1)
+    edge_node = edge0 - phi                                    # band edge with electrostatics
     kinetic = sign * edge_node[sl]                                 # holes: kinetic up = -Ev
     if vxc is not None:
         kinetic = kinetic + vxc[sl]
