@@ -270,3 +270,58 @@ def test_merge_runs_one_pass_equals_the_restarting_scan():
         runs = [(int(a), int(b)) for a, b in zip(cuts[::2], cuts[1::2])]
         kT = float(rng.uniform(0.0003, 0.03))
         assert merge_runs(runs, u, kT, 2.0) == restarting(runs, u, kT, 2.0)
+
+
+def test_basins_and_runs_equal_the_node_by_node_walk():
+    # the docstrings' definitions written out node by node (the reference): basins cut at
+    # each maximum (a flat top at its middle node), each run walked from its peak, highest
+    # peak first, while the density stays above peak_fraction of the peak, does not rise
+    # and enters no earlier run; against the array forms on random profiles with plateaus,
+    # ties and empty stretches
+    def walk_basins(u):
+        n = u.size
+        if n < 3:
+            return [(0, n - 1)] if n else []
+        d = np.diff(u)
+        scale = max(float(np.max(np.abs(u))), 1.0)
+        s = np.sign(np.where(np.abs(d) > 1e-12 * scale, d, 0.0))
+        nz = np.flatnonzero(s)
+        cuts = [(a + 1 + b) // 2 for a, b in zip(nz[:-1], nz[1:]) if s[a] > 0 and s[b] < 0]
+        starts = [0] + [c + 1 for c in cuts]
+        return [(int(a), int(b)) for a, b in zip(starts, cuts + [n - 1])]
+
+    def walk_runs(w, u, dens, floor_cm2, peak_fraction):
+        runs, taken = [], np.zeros(dens.size, dtype=bool)
+        for a, b in walk_basins(u):
+            seg = np.arange(a, b + 1)
+            left = np.r_[-np.inf, dens[:-1]][seg]
+            right = np.r_[dens[1:], -np.inf][seg]
+            peaks = seg[(dens[seg] > 0) & (dens[seg] >= left) & (dens[seg] >= right)]
+            for p in peaks[np.argsort(-dens[peaks], kind="stable")]:
+                if taken[p]:
+                    continue
+                thr = peak_fraction * dens[p]
+                i0 = i1 = int(p)
+                while i0 > a and thr < dens[i0 - 1] <= dens[i0] and not taken[i0 - 1]:
+                    i0 -= 1
+                while i1 < b and thr < dens[i1 + 1] <= dens[i1] and not taken[i1 + 1]:
+                    i1 += 1
+                taken[i0:i1 + 1] = True
+                if float(np.dot(w[i0:i1 + 1], dens[i0:i1 + 1])) / 1e7 >= floor_cm2:
+                    runs.append((i0, i1))
+        return sorted(runs)
+
+    rng = np.random.default_rng(11)
+    for trial in range(2000):
+        n = int(rng.integers(1, 60))
+        u = [rng.normal(size=n), np.round(rng.normal(size=n), 1),
+             np.cumsum(rng.choice([-1.0, 0.0, 0.0, 1.0], size=n))][trial % 3]
+        dens = np.abs(rng.normal(size=n)) * 10 ** rng.uniform(10, 18)
+        if trial % 2:
+            dens = np.round(dens / 1e16) * 1e16                      # ties and zeros
+        dens[rng.random(n) < 0.2] = 0.0
+        w = rng.uniform(0.1, 1.0, size=n)
+        pf, floor = [1e-3, 0.1, 0.5][trial % 3], [0.0, 1e3, 1e8, 1e10][trial % 4]
+        assert chx.basins(u) == walk_basins(u)
+        assert chx.candidate_runs(w, u, dens, floor_cm2=floor, peak_fraction=pf) == \
+            walk_runs(w, u, dens, floor, pf)

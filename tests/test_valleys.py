@@ -94,3 +94,25 @@ def test_gauss_law_holds_with_valleys():
     r = selfcon.solve(deck)
     assert r.converged
     assert r.summary["gauss_residual"] < 1e-8         # invariant (Gauss's law, FV fluxes)
+
+
+def test_valley_density_is_the_dual_cell_average_of_both_half_cells():
+    # the assembly's classical valley density (selfcon.output.assemble.valley_density) against
+    # its definition evaluated directly: each half cell with its own edge and its node's
+    # potential, F_1/2 of both halves, averaged with the dual widths -- on uniform layers,
+    # where a node's two halves share their argument, and on a graded stretch, where not
+    from selfcon.output.assemble import valley_density
+    from selfcon.solver.statistics import fermi_half
+    st = selfcon.build_structure(selfcon.load_deck("inputs/hemt_300K.toml"))
+    m = st.mesh
+    rng = np.random.default_rng(5)
+    phi = np.linspace(-0.3, 0.4, st.n_nodes) + 0.01 * rng.normal(size=st.n_nodes)
+    for edge in (np.asarray(st.cell["ec_x"], dtype=float),
+                 np.asarray(st.cell["ec_x"], dtype=float) + np.where(rng.random(st.n_nodes - 1) < 0.2,
+                                                                    rng.normal(0, 0.02, st.n_nodes - 1), 0.0)):
+        nc = np.asarray(st.cell["nc_x"], dtype=float)
+        efn = st.fermi_levels[0]
+        left, right = np.zeros(m.n), np.zeros(m.n)
+        left[1:] = nc * fermi_half((phi[1:] - edge + efn) / st.kT)
+        right[:-1] = nc * fermi_half((phi[:-1] - edge + efn) / st.kT)
+        assert np.array_equal(valley_density(st, phi, edge, nc), (m.wl * left + m.wr * right) / m.w)
