@@ -76,3 +76,46 @@ def test_damp_reduces_the_step():
         f0 = m.factor
         assert m.damp()
         assert m.factor < f0
+
+
+def test_predictor_corrector_extrapolates_when_the_loop_asks():
+    """With a history the predictor-corrector step is Anderson's (the same formula): on a
+    slow linear problem (contraction 0.95) it reaches numpy.linalg.solve's answer in far
+    fewer steps than the plain step; a history given to the constructor wins over the
+    loop's suggestion, and suggesting 0 restores the plain step."""
+    from selfcon.solver.mixers import PredictorCorrector
+    A, b, x_ref = toy_problem(n=20, contraction=0.95)
+    _, k_plain = iterate(PredictorCorrector(), A, b, n_iter=5000)
+    acc = PredictorCorrector()
+    acc.suggest_history(8)
+    x, k_acc = iterate(acc, A, b, n_iter=5000)
+    np.testing.assert_allclose(x, x_ref, atol=1e-8)
+    assert k_acc * 5 < k_plain
+    # the same steps as the Anderson mixer of the same history and factor
+    and8 = get_mixer("anderson", mixing=1.0, history=8)
+    acc.reset()
+    x1, x2 = np.zeros(b.size), np.zeros(b.size)
+    for _ in range(6):
+        x1 = acc.update(x1, A @ x1 + b - x1)
+        x2 = and8.update(x2, A @ x2 + b - x2)
+    assert np.array_equal(x1, x2)
+    acc.suggest_history(0)
+    assert acc.update(np.zeros(3), np.ones(3)).tolist() == [1.0, 1.0, 1.0]   # x + r
+    fixed = PredictorCorrector(history=2)
+    fixed.suggest_history(0)
+    assert fixed.history == 2
+
+
+def test_the_loop_accelerates_the_multiband_holes_only(inputs_dir):
+    """The loop asks the predictor-corrector for its extrapolation (loop.ACCELERATED_HISTORY)
+    when physics.hole_model is kp4 / kp6, and for the plain step otherwise (so the quoted
+    results of the other decks keep their bits)."""
+    import selfcon
+    from selfcon.solver.loop import ACCELERATED_HISTORY
+    from selfcon.solver.mixers import PredictorCorrector
+    deck = selfcon.load_deck(inputs_dir / "hemt_4K.toml")
+    mixer = PredictorCorrector()
+    mixer.suggest_history(5)
+    assert selfcon.solve(deck, method=mixer, max_iterations=1) is not None
+    assert mixer.history == 0
+    assert ACCELERATED_HISTORY > 0

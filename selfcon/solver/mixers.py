@@ -198,13 +198,45 @@ class PredictorCorrector(_Damped):
 
     Because the Poisson pass already contains the linearised carrier response,
     the plain step ``x + r`` is the right one; ``mixing`` (default 1) is the
-    starting factor and ``damp()`` halves it down to 1/64.
+    starting factor and ``damp()`` halves it down to 1/64.  ``history`` > 0
+    extrapolates the steps as :class:`Anderson` does (:func:`anderson_step`, over the
+    last ``history`` steps; ``damp()`` forgets them): for a mode the predictor's
+    response leaves out, which the plain step damps only slowly.  Unset, the loop
+    chooses it per solve (:meth:`suggest_history`; selfcon.solver.loop.ACCELERATED_HISTORY
+    for the multiband holes, else 0).
     """
 
     name = "predictor-corrector"
     predictor = True
     default_mixing = 1.0
     smallest = 1.0 / 64
+
+    def __init__(self, mixing: float | None = None, history: int | None = None):
+        super().__init__(mixing)
+        self._history0 = None if history is None else int(history)
+        self.history = self._history0 or 0
+        self._xs: list[np.ndarray] = []
+        self._rs: list[np.ndarray] = []
+
+    def suggest_history(self, depth: int) -> None:
+        """The loop's depth of the extrapolation for the coming solve (``history``: the
+        number of earlier steps :func:`anderson_step` combines; 0 the plain step); a
+        ``history`` given to the constructor wins."""
+        self.history = int(depth) if self._history0 is None else self._history0
+
+    def reset(self):
+        super().reset()
+        self._xs, self._rs = [], []
+
+    def damp(self):
+        self._xs.clear()
+        self._rs.clear()
+        return super().damp()
+
+    def update(self, x, r):
+        if self.history <= 0:
+            return x + self._factor * r
+        return anderson_step(self._xs, self._rs, x, r, self._factor, self.history)
 
     def relax(self):
         """Grow the factor back towards its start after a run of good steps."""
@@ -255,21 +287,27 @@ class Anderson(Mixer):
         return True
 
     def update(self, x, r):
-        x = np.asarray(x, dtype=float)
-        r = np.asarray(r, dtype=float)
-        self._xs.append(x.copy())
-        self._rs.append(r.copy())
-        if len(self._xs) > self.history + 1:
-            self._xs.pop(0)
-            self._rs.pop(0)
-        a = self._factor
-        if len(self._xs) == 1:
-            return x + a * r
-        dX = np.stack([self._xs[j] - self._xs[j - 1] for j in range(1, len(self._xs))], axis=1)
-        dR = np.stack([self._rs[j] - self._rs[j - 1] for j in range(1, len(self._rs))], axis=1)
-        # scale columns for conditioning, then least squares
-        norms = np.linalg.norm(dR, axis=0)
-        norms[norms == 0] = 1.0
-        g, *_ = np.linalg.lstsq(dR / norms, r, rcond=1e-12)
-        g = g / norms
-        return x + a * r - (dX + a * dR) @ g
+        return anderson_step(self._xs, self._rs, x, r, self._factor, self.history)
+
+
+def anderson_step(xs: list, rs: list, x, r, a: float, history: int) -> np.ndarray:
+    """One step of Anderson's extrapolation (:class:`Anderson`): appends ``x`` and ``r`` to
+    the lists ``xs``, ``rs`` (kept to ``history`` + 1 entries) and returns
+    x + a r - (dX + a dR) g, g the least-squares fit of r by the residual differences."""
+    x = np.asarray(x, dtype=float)
+    r = np.asarray(r, dtype=float)
+    xs.append(x.copy())
+    rs.append(r.copy())
+    if len(xs) > history + 1:
+        xs.pop(0)
+        rs.pop(0)
+    if len(xs) == 1:
+        return x + a * r
+    dX = np.stack([xs[j] - xs[j - 1] for j in range(1, len(xs))], axis=1)
+    dR = np.stack([rs[j] - rs[j - 1] for j in range(1, len(rs))], axis=1)
+    # scale columns for conditioning, then least squares
+    norms = np.linalg.norm(dR, axis=0)
+    norms[norms == 0] = 1.0
+    g, *_ = np.linalg.lstsq(dR / norms, r, rcond=1e-12)
+    g = g / norms
+    return x + a * r - (dX + a * dR) @ g
