@@ -83,8 +83,9 @@ def full_spectrum(st, phi, loop_states: dict, n_states: int | None = None) -> di
 
     ``loop_states``: the loop's ``{band: BandStates}`` at ``phi``; ``n_states``: states per
     band and region for the pairs the loop did not solve (default ``st.states``).
-    Bands with no state anywhere are left out.  A band of the loop's states alone keeps the
-    loop's wavefunction array (no copy): read-only, like the loop's states.
+    Bands with no state anywhere are left out.  Each band's wavefunctions are a fresh
+    C-ordered (N, k) array, never the loop's own: the overlaps of /transitions (a BLAS
+    product) round alike only on arrays laid out alike.
     """
     k_extra = int(st.states if n_states is None else n_states)
     out = {}
@@ -117,9 +118,9 @@ def full_spectrum(st, phi, loop_states: dict, n_states: int | None = None) -> di
         energy = np.concatenate([p[0] for p in parts])
         order = np.argsort(sign * energy, kind="stable")
         if len(parts) == 1 and np.array_equal(order, np.arange(energy.size)):
-            # the loop's states alone, already in order: no (N, k) copies (the result copies
-            # the wavefunctions once, into its Subbands)
-            psi, m_par, region, populated = parts[0][1], parts[0][2].copy(), parts[0][3].copy(), parts[0][4]
+            # one part, already in order: one (N, k) copy instead of two (concatenate, take)
+            psi = np.take(parts[0][1], order, axis=1)
+            m_par, region, populated = parts[0][2].copy(), parts[0][3].copy(), parts[0][4]
         else:
             energy = energy[order]
             psi = np.take(np.concatenate([p[1] for p in parts], axis=1), order, axis=1)
