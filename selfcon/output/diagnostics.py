@@ -396,9 +396,16 @@ def check_carriers_outside(result, structure, deck=None) -> list[str]:
         return []
     z = np.asarray(result.z)
     w = structure.mesh.w if structure is not None else Mesh.from_nodes(z).w
-    outside = np.ones(z.size, dtype=bool)
-    for a, b in regions:
-        outside &= ~((z >= a - 1e-9) & (z <= b + 1e-9))
+
+    def mask():
+        out = np.ones(z.size, dtype=bool)
+        for a, b in regions:
+            out &= ~((z >= a - 1e-9) & (z <= b + 1e-9))
+        out.setflags(write=False)
+        return out
+    # the nodes outside the quantum regions: a property of the mesh, once per structure
+    outside = (derived(structure, ("outside_regions", tuple(map(tuple, regions))), mask)
+               if structure is not None and np.array_equal(z, structure.z) else mask())
     ns = float(main["sheet_density"])
     limit = max(OUTSIDE_FRACTION * ns, FLOOR_CM2)
     li = np.asarray(result.layer_index)
@@ -420,8 +427,7 @@ def check_carriers_outside(result, structure, deck=None) -> list[str]:
 def _algaas_x(result, deck, structure, layer) -> tuple[bool, np.ndarray]:
     """(is AlGaAs, alloy fraction of its cells) for one layer; a deck-local material
     counts when its base is AlGaAs."""
-    sel = np.asarray(structure.cell_layer) == layer.index
-    x = np.asarray(structure.x_cell)[sel]
+    x = _dx_cells(structure)[layer.index][0]
     name = layer.material
     if name == "AlGaAs":
         return True, x
@@ -431,6 +437,26 @@ def _algaas_x(result, deck, structure, layer) -> tuple[bool, np.ndarray]:
             x = np.full(x.size, float(mat.x))
         return True, x
     return False, x
+
+
+def _dx_cells(structure) -> dict:
+    """layer index -> (alloy fraction of its cells, its cells with x > DX_MIN_X, its nodes with
+    sheet donors): what the DX check reads of the structure, made once per structure
+    (model.structure.derived; read-only)."""
+    def make():
+        cl = np.asarray(structure.cell_layer)
+        xc = np.asarray(structure.x_cell)
+        sheet_nodes = np.flatnonzero(np.asarray(structure.sheet_donors) > 0)
+        node_layer = np.asarray(structure.layer_index)[sheet_nodes]
+        out = {}
+        for Li in structure.layers:
+            parts = (xc[cl == Li.index], np.flatnonzero((cl == Li.index) & (xc > DX_MIN_X)),
+                     sheet_nodes[node_layer == Li.index])
+            for a in parts:
+                a.setflags(write=False)
+            out[Li.index] = parts
+        return out
+    return derived(structure, "dx_cells", make)
 
 
 def dx_window(temperature: float) -> float:
@@ -457,7 +483,6 @@ def check_dx_centres(result, structure, deck=None) -> list[str]:
     window = dx_window(structure.temperature)
     ec = np.asarray(result.profile["conduction_band"])
     bind = np.asarray(structure.cell["donor_binding"])
-    cl = np.asarray(structure.cell_layer)
     out = []
     for Li in structure.layers:
         if not (Li.donors > 0 or Li.sheet_donors > 0):
@@ -470,13 +495,11 @@ def check_dx_centres(result, structure, deck=None) -> list[str]:
             continue
         # donor level Ed = Ec - E_bind at every doped node of the layer; EF = 0
         levels = []
-        cells = np.flatnonzero((cl == Li.index) & (np.asarray(structure.x_cell) > DX_MIN_X))
+        _, cells, nodes = _dx_cells(structure)[Li.index]
         if Li.donors > 0 and cells.size:
             # node c (left end of each cell) carries the cell's band edge in the profile
             levels.append(np.min(ec[cells] - bind[cells]))
         if Li.sheet_donors > 0:
-            nodes = np.flatnonzero(np.asarray(structure.sheet_donors) > 0)
-            nodes = nodes[np.asarray(structure.layer_index)[nodes] == Li.index]
             if nodes.size:
                 levels.append(np.min(ec[nodes] - np.asarray(structure.sheet_ed)[nodes]))
         if not levels:
