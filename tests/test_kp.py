@@ -315,6 +315,13 @@ def test_a_kept_basis_reused_at_a_nearby_potential_gives_the_same_states():
     assert next(iter(cache.values()))[1] is kept                 # reused, not rebuilt
     ref = kp.dispersion(mesh.h, mesh.w, mat, moved, 6, 8, k_grid)
     assert np.abs(got[0] - ref[0]).max() <= 5e-5
+    # 4 mV away, near the edge of BASIS_REUSE: reused if it passes the check, else rebuilt;
+    # either way the whole solve's energies to 0.05 meV
+    far = phi + 4e-3 * np.sin(mesh.z / 7.0)
+    assert np.abs(far - phi).max() <= kp.BASIS_REUSE
+    got = kp.reduced_dispersion(mesh.h, mesh.w, mat, far, 6, 8, k_grid, cache=cache)
+    ref = kp.dispersion(mesh.h, mesh.w, mat, far, 6, 8, k_grid)
+    assert np.abs(got[0] - ref[0]).max() <= 5e-5
 
 
 def test_reduced_basis_gives_the_same_bits_on_two_threads():
