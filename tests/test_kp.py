@@ -334,3 +334,25 @@ def test_reduced_basis_gives_the_same_bits_on_two_threads():
     two = kp.reduced_dispersion(mesh.h, mesh.w, mat, phi, 6, 8, k_grid, threads=2)
     for a, b in zip(one, two):
         assert np.array_equal(a, b)
+
+
+def test_line_residuals_kernel_is_the_block_product_at_each_k():
+    """Internal consistency check: kernels/kp.py::line_residuals (every k of a line in one
+    call) gives the bits of block_apply of H(k) = (Z + phi) + k B1 + k^2 B2 at each k less
+    psi theta, the products it replaced."""
+    from selfcon.solver.kernels.kp import block_apply, line_residuals
+    rng = np.random.default_rng(7)
+    m, q, nk, r = 9, 3, 4, 2
+    sym = lambda x: 0.5 * (x + np.swapaxes(x, 1, 2))
+    dz, d1, d2 = (sym(rng.normal(size=(m, q, q))) for _ in range(3))
+    uz, u1, u2 = (rng.normal(size=(m - 1, q, q)) for _ in range(3))
+    phi = rng.normal(size=m)
+    k_grid = np.array([0.0, 0.1, 0.25, 0.4])
+    psi = rng.normal(size=(m, q, nk, r))
+    theta = rng.normal(size=(nk, r))
+    got = line_residuals(dz, uz, d1, u1, d2, u2, phi, k_grid, psi, theta)
+    d0 = dz + phi[:, None, None] * np.eye(q)
+    for j, k in enumerate(k_grid):
+        p = np.ascontiguousarray(psi[:, :, j, :])
+        ref = block_apply(d0 + k * d1 + (k * k) * d2, uz + k * u1 + (k * k) * u2, p) - p * theta[j]
+        assert np.array_equal(got[:, j, :], ref.reshape(m * q, r))

@@ -864,6 +864,7 @@ def _in_basis(basis, ops, w, phi_node, nb, n_states, k_grid, threads=1):
     halves decide which states are among the lowest n at some k; only those are formed and
     checked (about half of each half's)."""
     import scipy.linalg as sla
+    from selfcon.solver.kernels import kp as kern
     tbtrs = sla.get_lapack_funcs("tbtrs", dtype=float)
     T, halves = ops
     half = nb // 2
@@ -901,21 +902,18 @@ def _in_basis(basis, ops, w, phi_node, nb, n_states, k_grid, threads=1):
         th, cs = ritz[b]
         nb_ = need[b]
         d0 = dz + phin[:, None, None] * eye
-        psi = np.empty((nk, m, half, nb_))
-        res = np.empty((m * half, nk, nb_))
-        for j in range(nk):
-            k = k_grid[j]
-            p = (q @ cs[j, :, :nb_]).reshape(m, half, nb_)
-            r = _apply(d0 + k * d1 + (k * k) * d2, uz + k * u1 + (k * k) * u2, p)
-            r -= p * th[j, :nb_]
-            res[:, j, :] = r.reshape(m * half, nb_)
-            psi[j] = p
+        # the states of every k in one product, (m, half, nk, need), and their residuals in
+        # one kernel call (kernels/kp.py)
+        coef = np.ascontiguousarray(np.transpose(cs[:, :, :nb_], (1, 0, 2))).reshape(q.shape[1], -1)
+        psi = (q @ coef).reshape(m, half, nk, nb_)
+        res = kern.line_residuals(dz, uz, d1, u1, d2, u2, phin, k_grid, psi,
+                                  np.ascontiguousarray(th[:, :nb_]))
         chol = sla.cholesky_banded(_band_lower(d0 - sigma * eye, uz), lower=True, check_finite=False)
         lx, _ = tbtrs(chol, res.reshape(m * half, -1), uplo="L")            # L^-1 r
         est = np.einsum("ij,ij->j", lx, lx).reshape(nk, -1)                  # (nk, need)
         return (np.any(est > BASIS_TOL, axis=1), -th[:, :nb_].T,
-                np.einsum("jiaw,jiaw->iwj", psi, psi) * s2[:, None, None],
-                np.einsum("ij,mjk->mik", T[:, b * half:(b + 1) * half], psi[0]))
+                np.einsum("iajw,iajw->iwj", psi, psi) * s2[:, None, None],
+                np.einsum("ij,mjk->mik", T[:, b * half:(b + 1) * half], psi[:, :, 0, :]))
     parts = _per_half(states_of, threads)
     bad = parts[0][0] | parts[1][0]
     Es, Ds, zero = ([x[i] for x in parts] for i in (1, 2, 3))

@@ -15,7 +15,8 @@ tolerance, every count narrowing the brackets of all k (eigenvalues of any multi
 come out once per copy).  Linear in m.
 
 **Block products** (:func:`block_apply`): a real symmetric block-tridiagonal matrix times a
-block of vectors, the products of the reduced basis (selfcon.solver.kp.reduced_dispersion).
+block of vectors, the products of the reduced basis (selfcon.solver.kp.reduced_dispersion);
+:func:`line_residuals` the residuals of its states at every k_par of a line in one call.
 
 Arrays in, arrays out; nothing here is compiled at import time.
 """
@@ -185,3 +186,36 @@ def block_apply(d, u, x):
                     for s in range(r):
                         y[i, a, s] += c * x[i - 1, b, s]
     return y
+
+
+@numba.njit(cache=True, nogil=True)
+def line_residuals(dz, uz, d1, u1, d2, u2, phi, k_grid, psi, theta):
+    """Residuals H(k) psi - psi theta of states along a line of k_par, every k in one call:
+    H(k) the real symmetric block-tridiagonal matrix with diagonal blocks (dz + phi) + k d1 +
+    k^2 d2 (``phi`` (m,) on the diagonal) and upper blocks uz + k u1 + k^2 u2 (each (m, q, q)
+    and (m-1, q, q)); ``psi`` (m, q, nk, r) the states of each k, ``theta`` (nk, r) their
+    values.  Returns (m q, nk, r), the products summed in :func:`block_apply`'s order."""
+    m, q, nk, r = psi.shape
+    out = np.zeros((m * q, nk, r))
+    for j in range(nk):
+        k = k_grid[j]
+        kk = k * k
+        for i in range(m):
+            for a in range(q):
+                row = i * q + a
+                for b in range(q):
+                    c = dz[i, a, b] + (phi[i] if a == b else 0.0)
+                    c = (c + k * d1[i, a, b]) + kk * d2[i, a, b]
+                    for s in range(r):
+                        out[row, j, s] += c * psi[i, b, j, s]
+                    if i + 1 < m:
+                        c = (uz[i, a, b] + k * u1[i, a, b]) + kk * u2[i, a, b]
+                        for s in range(r):
+                            out[row, j, s] += c * psi[i + 1, b, j, s]
+                    if i > 0:
+                        c = (uz[i - 1, b, a] + k * u1[i - 1, b, a]) + kk * u2[i - 1, b, a]
+                        for s in range(r):
+                            out[row, j, s] += c * psi[i - 1, b, j, s]
+                for s in range(r):
+                    out[row, j, s] -= psi[i, a, j, s] * theta[j, s]
+    return out
