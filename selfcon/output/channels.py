@@ -61,6 +61,7 @@ from __future__ import annotations
 
 import bisect
 import math
+import operator
 from dataclasses import dataclass, field
 
 import numpy as np
@@ -313,22 +314,23 @@ def candidate_runs(w, u, density, *, floor_cm2: float = FALLBACK_FLOOR_CM2,
     no_down = np.flatnonzero(~down).tolist()
     starts, ends = [], []               # the runs claimed so far (sorted, disjoint)
     peaks = np.flatnonzero(is_peak).tolist()
-    height = dict(zip(peaks, dens[peaks].tolist()))
+    values = dens.tolist()              # the binary searches on a list: no array slices
+    height = {q: values[q] for q in peaks}
     for a, b in basins(u):
         mine = peaks[bisect.bisect_left(peaks, a):bisect.bisect_right(peaks, b)]
         for p in sorted(mine, key=lambda q: -height[q]):        # highest first (stable on ties)
             k = bisect.bisect_right(starts, p)
             if k > 0 and ends[k - 1] >= p:
                 continue                # inside an earlier run
-            thr = peak_fraction * dens[p]
+            thr = peak_fraction * values[p]
             j = bisect.bisect_left(no_up, p)
             lo = max(a, no_up[j - 1] + 1 if j else 0, ends[k - 1] + 1 if k else 0)
             # dens[lo:p] rises: the nodes at or below thr come first
-            i0 = lo + int(np.searchsorted(dens[lo:p], thr, side="right"))
+            i0 = bisect.bisect_right(values, thr, lo, p)
             j = bisect.bisect_left(no_down, p)
             hi = min(b, no_down[j] if j < len(no_down) else n - 1, starts[k] - 1 if k < len(starts) else n - 1)
             # dens[p+1:hi+1] falls: the first node at or below thr ends the run before it
-            i1 = p + int(np.searchsorted(-dens[p + 1:hi + 1], -thr, side="left"))
+            i1 = bisect.bisect_left(values, -thr, p + 1, hi + 1, key=operator.neg) - 1
             starts.insert(k, i0)
             ends.insert(k, i1)
             if _sheet(w, dens, i0, i1) >= floor_cm2:
