@@ -194,28 +194,33 @@ def line_residuals(dz, uz, d1, u1, d2, u2, phi, k_grid, psi, theta):
     H(k) the real symmetric block-tridiagonal matrix with diagonal blocks (dz + phi) + k d1 +
     k^2 d2 (``phi`` (m,) on the diagonal) and upper blocks uz + k u1 + k^2 u2 (each (m, q, q)
     and (m-1, q, q)); ``psi`` (m, q, nk, r) the states of each k, ``theta`` (nk, r) their
-    values.  Returns (m q, nk, r), the products summed in :func:`block_apply`'s order."""
+    values.  Returns (m q, nk, r), each entry summed in :func:`block_apply`'s order (the
+    loops run over the contiguous (k, state) pairs innermost)."""
     m, q, nk, r = psi.shape
     out = np.zeros((m * q, nk, r))
-    for j in range(nk):
-        k = k_grid[j]
-        kk = k * k
-        for i in range(m):
-            for a in range(q):
-                row = i * q + a
-                for b in range(q):
-                    c = dz[i, a, b] + (phi[i] if a == b else 0.0)
-                    c = (c + k * d1[i, a, b]) + kk * d2[i, a, b]
+    for i in range(m):
+        for a in range(q):
+            row = i * q + a
+            for b in range(q):
+                c0 = dz[i, a, b] + (phi[i] if a == b else 0.0)
+                for j in range(nk):
+                    k = k_grid[j]
+                    c = (c0 + k * d1[i, a, b]) + (k * k) * d2[i, a, b]
                     for s in range(r):
                         out[row, j, s] += c * psi[i, b, j, s]
-                    if i + 1 < m:
-                        c = (uz[i, a, b] + k * u1[i, a, b]) + kk * u2[i, a, b]
+                if i + 1 < m:
+                    for j in range(nk):
+                        k = k_grid[j]
+                        c = (uz[i, a, b] + k * u1[i, a, b]) + (k * k) * u2[i, a, b]
                         for s in range(r):
                             out[row, j, s] += c * psi[i + 1, b, j, s]
-                    if i > 0:
-                        c = (uz[i - 1, b, a] + k * u1[i - 1, b, a]) + kk * u2[i - 1, b, a]
+                if i > 0:
+                    for j in range(nk):
+                        k = k_grid[j]
+                        c = (uz[i - 1, b, a] + k * u1[i - 1, b, a]) + (k * k) * u2[i - 1, b, a]
                         for s in range(r):
                             out[row, j, s] += c * psi[i - 1, b, j, s]
+            for j in range(nk):
                 for s in range(r):
                     out[row, j, s] -= psi[i, a, j, s] * theta[j, s]
     return out
