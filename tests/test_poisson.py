@@ -273,6 +273,23 @@ def test_newton_start_densities_are_the_node_densities():
     assert plain.start is None and np.array_equal(plain.phi, sol.phi) and plain.steps == sol.steps
 
 
+def test_newton_start_slope_is_the_mobile_density_derivative():
+    # the slope d(n + p)/d phi the first assembly hands back (the loop's charge check takes the
+    # change of the mobile charge to first order from it) against a central difference of
+    # node_densities: error O(dphi^2) (analytic Taylor bound), far below the 1e-6 asked here
+    pr = predictor_problem()[0].with_boundaries(top=(P.ZERO_FIELD, 0.0))
+    phi0 = pr.phi_ref + 0.01
+    sol = P.solve_poisson(pr, phi0, tol=1e-11, max_iter=300, start_densities=True)
+    slope = sol.start.mobile_slope
+    assert slope is not None and slope.shape == phi0.shape
+    dphi = 1e-6
+    hi, lo = P.densities(pr, phi0 + dphi), P.densities(pr, phi0 - dphi)
+    fd = ((hi.n + hi.p) - (lo.n + lo.p)) / (2 * dphi)
+    assert np.max(np.abs(fd)) > 0.0
+    assert np.allclose(slope, fd, rtol=1e-6, atol=1e-9 * np.max(np.abs(fd)))
+    assert P.densities(pr, phi0).mobile_slope is None
+
+
 def test_last_newton_step_needs_no_residual_evaluation():
     # a step below tol ends the solve and is accepted whatever the residual does, so skipping
     # its trial evaluation (check_last=False, what solve_poisson asks) gives the same bits

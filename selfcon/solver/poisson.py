@@ -214,15 +214,17 @@ def solve_poisson(problem, phi0, *, tol=1e-9, max_iter=200, max_step=0.3, backtr
     more than this in one step (direction kept); backtrack=False: no residual check of
     the step (see selfcon.solver.kernels.poisson.poisson_newton).  start_densities=True:
     ``solution.start`` holds the :class:`Densities` at ``phi0`` (with the Dirichlet values
-    imposed), the same as :func:`densities` gives, from the first Jacobian assembly."""
+    imposed), the same as :func:`densities` gives, from the first Jacobian assembly, with
+    ``start.mobile_slope`` d(n + p)/d phi there (the charge check's linear estimate,
+    selfcon.solver.steps.charge_residual)."""
     from selfcon.solver.kernels.poisson import poisson_newton
     hist = np.zeros(max_iter)
     opts = NewtonOptions(float(tol), int(max_iter), float(max_step), bool(backtrack), False)
     args = (_f(phi0), *problem.kernel_args(), problem.boundaries(), opts, hist)
     if start_densities:
-        out = np.empty((4, problem.z.shape[0]))
+        out = np.empty((5, problem.z.shape[0]))
         phi, steps, conv, upd = poisson_newton(*args, out)
-        start = Densities(out[0], out[1], out[2], out[3], problem.sheet_fixed / problem.w)
+        start = Densities(out[0], out[1], out[2], out[3], problem.sheet_fixed / problem.w, out[4])
     else:
         phi, steps, conv, upd = poisson_newton(*args)
         start = None
@@ -233,12 +235,14 @@ def solve_poisson(problem, phi0, *, tol=1e-9, max_iter=200, max_step=0.3, backtr
 class Densities:
     """Node densities in nm^-3 (sheets spread as s/w), charge
     rho = p - n + nd_plus - na_minus + fixed (``fixed``: the fixed sheets, bound polarization
-    charge, spread as s/w; 0 without)."""
+    charge, spread as s/w; 0 without).  ``mobile_slope``: d(n + p)/d phi in nm^-3 V^-1, where
+    the evaluation gave it (None otherwise)."""
     n: np.ndarray
     p: np.ndarray
     nd_plus: np.ndarray
     na_minus: np.ndarray
     fixed: np.ndarray = 0.0
+    mobile_slope: np.ndarray = None
 
     @property
     def rho(self):

@@ -161,7 +161,8 @@ def _log1pexp_expit(x):
 
 @njit(cache=True, inline='always')
 def _node(i, phi_i, grid, mat, q, te, th):
-    """Node densities n, p, Nd+, Na- (nm^-3) at phi_i and d rho/d phi (te, th: _levels)."""
+    """Node densities n, p, Nd+, Na- (nm^-3) at phi_i, d rho/d phi and d(n + p)/d phi, the
+    slope of the mobile density (te, th: _levels)."""
     wl = grid.wl[i]
     wr = grid.wr[i]
     w = wl + wr
@@ -296,7 +297,7 @@ def _node(i, phi_i, grid, mat, q, te, th):
     n += nvl / w               # the X/L valleys, after the quantum/classical blend of Gamma
     dn += dnvl / w
     drho = dp - dn + dndp - dnam
-    return n, p, ndp, nam, drho
+    return n, p, ndp, nam, drho, dn + dp
 
 
 @njit(cache=True)
@@ -313,7 +314,7 @@ def node_densities(phi, grid, mat, q):
     drho = np.empty(N)
     te, th = _levels(q, mat)
     for i in range(N):
-        n[i], p[i], ndp[i], nam[i], drho[i] = _node(i, phi[i], grid, mat, q, te, th)
+        n[i], p[i], ndp[i], nam[i], drho[i], _ = _node(i, phi[i], grid, mat, q, te, th)
     return n, p, ndp, nam, drho
 
 
@@ -360,16 +361,20 @@ def thomas(a, b, c, d, cp, x):
 def _assemble(phi, g, grid, mat, q, bounds, a, b, c, r, dens, te, th):
     """Fill the tridiagonal Jacobian (a, b, c) and r = -R at phi; return ||R||_2.
     g (N-1,): eps/h of every cell.  dens (4, N) receives the node densities n, p, Nd+,
-    Na- of node_densities (a (4, 0) array: not wanted); te, th: _levels."""
+    Na- of node_densities (a (4, 0) array: not wanted), a fifth row (5, N) also the slope
+    d(n + p)/d phi of the mobile density; te, th: _levels."""
     N = phi.shape[0]
     keep = dens.shape[1] == N
+    slope = keep and dens.shape[0] > 4
     for i in range(N):
-        nn, pp, ndp, nam, drho = _node(i, phi[i], grid, mat, q, te, th)
+        nn, pp, ndp, nam, drho, dmob = _node(i, phi[i], grid, mat, q, te, th)
         if keep:
             dens[0, i] = nn
             dens[1, i] = pp
             dens[2, i] = ndp
             dens[3, i] = nam
+            if slope:
+                dens[4, i] = dmob
         w = grid.wl[i] + grid.wr[i]
         res = Q_EPS0 * ((pp - nn + ndp - nam) * w + mat.sheet_fixed[i])
         diag = Q_EPS0 * drho * w
@@ -412,7 +417,8 @@ def poisson_newton(phi0, grid, mat, q, bounds, opts, history, densities=None):
     (selfcon.solver.kernels.bundles); history (>= opts.max_iter,) receives max |step| of
     each Newton step; ``densities`` (4, N), if given, receives the node densities n, p,
     Nd+, Na- at the starting point (phi0 with the Dirichlet values), exactly those of
-    node_densities, which the first assembly computes anyway.
+    node_densities, which the first assembly computes anyway; a (5, N) array also the
+    slope d(n + p)/d phi there (nm^-3 V^-1, the mobile part of the Jacobian's diagonal).
     Returns (phi, newton_steps, converged, max_update).
     Damping: step scaled to max |dphi| <= opts.max_step, then halved (up to 50 times)
     until ||R||_2 decreases (backtracking); a step already below opts.tol is taken as is
