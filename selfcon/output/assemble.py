@@ -223,6 +223,41 @@ def _interface_columns(st) -> dict:
             "lower": np.array([st.layers[r["lower"]].name for r in rows], dtype=object)}
 
 
+def _static_layer_rows(st) -> tuple:
+    """The /layers columns of each layer that depend on the structure alone, in the column
+    order of the rows (the sheet densities are placeholders the solve fills in); made once
+    per structure (model.structure.derived) and copied for each result."""
+    from selfcon.model.structure import derived
+
+    def make():
+        strain_rows = {L.index: L for L in st.strain.layers} if st.strain is not None else {}
+        rows = []
+        for Li in st.layers:
+            ls = strain_rows.get(Li.index)
+            rows.append({
+                "name": Li.name, "material": Li.material,
+                "x_top": float("nan") if Li.x_top is None else float(Li.x_top),
+                "x_bottom": float("nan") if Li.x_top is None else
+                float(Li.x_bottom if Li.x_bottom is not None else Li.x_top),
+                "top_nm": Li.top, "bottom_nm": Li.bottom,
+                "electron_sheet_density_cm2": 0.0,
+                "hole_sheet_density_cm2": 0.0,
+                "ionized_donor_sheet_density_cm2": 0.0,
+                "ionized_acceptor_sheet_density_cm2": 0.0,
+                "y_top": float("nan") if Li.y_top is None else float(Li.y_top),
+                "y_bottom": float("nan") if Li.y_top is None else
+                float(Li.y_bottom if Li.y_bottom is not None else Li.y_top),
+                "relaxed": bool(Li.relaxed),
+                "strain_xx": float("nan") if ls is None else ls.eps_xx,
+                "strain_zz": float("nan") if ls is None else ls.eps_zz,
+                "lattice_inplane_nm": float("nan") if ls is None else ls.lattice_inplane,
+                "lattice_own_nm": float("nan") if ls is None else ls.lattice_own,
+                "critical_thickness_nm": float("nan") if ls is None else ls.critical_thickness,
+            })
+        return tuple(rows)
+    return derived(st, "layer_rows", make)
+
+
 def build_result(deck, st, loop, *, wall_time: float) -> Result:
     """The Result of one solve: ``deck`` (the Deck solved), ``st`` (its Structure), ``loop``
     (the :class:`selfcon.solver.loop.LoopOutcome`, whose workspace holds the densities of
@@ -286,29 +321,13 @@ def build_result(deck, st, loop, *, wall_time: float) -> Result:
     d_layer = per_layer(st, ndp) * CM2_PER_NM2
     a_layer = per_layer(st, nam) * CM2_PER_NM2
     layers = []
-    strain_rows = {L.index: L for L in st.strain.layers} if st.strain is not None else {}
-    for Li in st.layers:
-        ls = strain_rows.get(Li.index)
-        layers.append({
-            "name": Li.name, "material": Li.material,
-            "x_top": float("nan") if Li.x_top is None else float(Li.x_top),
-            "x_bottom": float("nan") if Li.x_top is None else
-            float(Li.x_bottom if Li.x_bottom is not None else Li.x_top),
-            "top_nm": Li.top, "bottom_nm": Li.bottom,
-            "electron_sheet_density_cm2": float(e_layer[Li.index]),
-            "hole_sheet_density_cm2": float(h_layer[Li.index]),
-            "ionized_donor_sheet_density_cm2": float(d_layer[Li.index]),
-            "ionized_acceptor_sheet_density_cm2": float(a_layer[Li.index]),
-            "y_top": float("nan") if Li.y_top is None else float(Li.y_top),
-            "y_bottom": float("nan") if Li.y_top is None else
-            float(Li.y_bottom if Li.y_bottom is not None else Li.y_top),
-            "relaxed": bool(Li.relaxed),
-            "strain_xx": float("nan") if ls is None else ls.eps_xx,
-            "strain_zz": float("nan") if ls is None else ls.eps_zz,
-            "lattice_inplane_nm": float("nan") if ls is None else ls.lattice_inplane,
-            "lattice_own_nm": float("nan") if ls is None else ls.lattice_own,
-            "critical_thickness_nm": float("nan") if ls is None else ls.critical_thickness,
-        })
+    for Li, static in zip(st.layers, _static_layer_rows(st)):     # the structure's columns, made once
+        row = dict(static)
+        row["electron_sheet_density_cm2"] = float(e_layer[Li.index])
+        row["hole_sheet_density_cm2"] = float(h_layer[Li.index])
+        row["ionized_donor_sheet_density_cm2"] = float(d_layer[Li.index])
+        row["ionized_acceptor_sheet_density_cm2"] = float(a_layer[Li.index])
+        layers.append(row)
 
     w = st.mesh.w
     ns = float(np.sum(n * w)) * CM2_PER_NM2

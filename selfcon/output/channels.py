@@ -70,7 +70,7 @@ from selfcon.constants import NM_PER_CM
 
 __all__ = ["CARRIERS", "BAND_CARRIER", "STATE_LABEL", "Levels", "CarrierProfile", "LayerSpan", "Request", "Channel",
            "ChannelAnalysis", "occupied", "occupied_states", "basins", "candidate_runs", "merge_runs",
-           "drop_tails", "merge_coupled", "detect", "analyse", "transitions", "kp_levels",
+           "drop_tails", "merge_coupled", "detect", "analyse", "layer_cells", "transitions", "kp_levels",
            "PEAK_FRACTION", "MERGE_KT", "CHANNEL_FLOOR_CM2", "FALLBACK_FLOOR_CM2", "ATTRIBUTION_SHARE", "LAYER_SHARE",
            "OCCUPIED_FRACTION", "OCCUPIED_CM2"]
 
@@ -441,6 +441,13 @@ def _node_range(z, top_nm, bottom_nm) -> tuple[int, int]:
 
 # --------------------------------------------------------------------------- analysis
 
+def layer_cells(z, layers) -> tuple[np.ndarray, np.ndarray]:
+    """(cell widths (N-1,), the index into ``layers`` of each cell) of the nodes ``z`` (nm)
+    and the :class:`LayerSpan` rows ``layers``: how :func:`analyse` finds the layer holding a
+    channel's carriers."""
+    return _layer_cells(z, layers)
+
+
 def _layer_cells(z, layers) -> tuple[np.ndarray, np.ndarray]:
     """(cell widths (N-1,), the layer of each cell) of :func:`_layer_shares`."""
     z = np.asarray(z, dtype=float)
@@ -459,12 +466,15 @@ def _layer_shares(z, rho, layers, cells=None) -> np.ndarray:
     return per / tot if tot > 0 else per
 
 
-def analyse(z, w, kT: float, profiles: dict, levels, layers=(), requests=()) -> ChannelAnalysis:
+def analyse(z, w, kT: float, profiles: dict, levels, layers=(), requests=(), *,
+            layer_cells=None) -> ChannelAnalysis:
     """Channels of a converged solution.
 
     ``profiles``: carrier -> :class:`CarrierProfile` (carriers left out have no channels);
     ``levels``: the bands' :class:`Levels`; ``layers``: :class:`LayerSpan` rows top to bottom
-    (for names); ``requests``: the deck's named channels in deck order (:class:`Request`).
+    (for names); ``requests``: the deck's named channels in deck order (:class:`Request`);
+    ``layer_cells``: the cell widths and the layer of each cell of ``z`` and ``layers``
+    (:func:`layer_cells`), if made already.
     """
     z = np.asarray(z, dtype=float)
     w = np.asarray(w, dtype=float)
@@ -535,7 +545,7 @@ def analyse(z, w, kT: float, profiles: dict, levels, layers=(), requests=()) -> 
             occ = np.asarray(lv.occupation, dtype=float)
             unattributed[carrier] += float(occ[attribution[lv.band] < 0].sum())
     layer_share = []                 # part of each channel's carriers in its layer c.layer
-    cells = _layer_cells(z, layers) if layers else None
+    cells = (layer_cells if layer_cells is not None else _layer_cells(z, layers)) if layers else None
     for j, c in enumerate(chans):
         prof = profiles.get(c.carrier)
         cl = np.zeros(z.size) if prof is None else np.asarray(prof.classical, dtype=float)
@@ -729,6 +739,15 @@ def layer_spans(structure) -> list[LayerSpan]:
             for L in structure.layers]
 
 
+def _spans_and_cells(structure) -> tuple:
+    spans = tuple(layer_spans(structure))
+    cells = _layer_cells(structure.z, spans) if spans else None
+    if cells is not None:
+        for a in cells:
+            a.setflags(write=False)
+    return spans, cells
+
+
 def kp_levels(st, hk) -> Levels:
     """The multiband hole states of a solve (a selfcon.solver.kp.KpStates) as one band of
     :class:`Levels`, ``hole_kp``: energies at k_par = 0, populations (the k_par integral),
@@ -777,6 +796,9 @@ def from_structure(structure, phi, loop_states, *, n, p, classical_n, classical_
         levels.append(kp_levels(st, hk))        # the multiband holes replace the hole bands
     profiles = {"electron": CarrierProfile(edges["electron"], n, classical_n, efn),
                 "hole": CarrierProfile(edges["hole"], p, classical_p, efp)}
-    an = analyse(st.z, st.mesh.w, st.kT, profiles, levels, layer_spans(st), requests)
+    # the layers' spans and the layer of every cell: once per structure (read-only)
+    from selfcon.model.structure import derived
+    spans, cells = derived(st, "channel_layers", lambda: _spans_and_cells(st))
+    an = analyse(st.z, st.mesh.w, st.kT, profiles, levels, spans, requests, layer_cells=cells)
     return SolvedChannels(spectrum=spectrum, occupation=occupation, analysis=an,
                           transitions=transitions(levels, st.mesh.w))
