@@ -305,6 +305,28 @@ def test_last_newton_step_needs_no_residual_evaluation():
     assert np.array_equal(phi_a, phi_b)
 
 
+def test_newton_settle_ends_in_the_quadratic_phase():
+    # NewtonOptions.settle: a full step after a full one and below settle times it is taken
+    # without a trial evaluation and ends the solve (the loop's first predictor pass); the
+    # same steps as the plain solve up to there, bit for bit, and what is left to the fully
+    # converged answer is below the last step (quadratic convergence, analytic)
+    from selfcon.solver.kernels.bundles import NewtonOptions
+    pr = predictor_problem()[0].with_boundaries(bottom=(P.ZERO_FIELD, 0.0))
+    phi0 = pr.phi_ref + 0.05
+    runs = []
+    for settle in (0.0, 0.1):
+        hist = np.zeros(300)
+        out = kp.poisson_newton(phi0, *pr.kernel_args(), pr.boundaries(),
+                                NewtonOptions(1e-12, 300, 0.3, True, False, settle), hist)
+        runs.append((out, hist[:out[1]].copy()))
+    (phi_a, n_a, ok_a, _), hist_a = runs[0]
+    (phi_b, n_b, ok_b, up_b), hist_b = runs[1]
+    assert ok_a and ok_b and 2 <= n_b < n_a
+    assert np.array_equal(hist_b, hist_a[:n_b])
+    assert hist_b[-1] < 0.1 * hist_b[-2]
+    assert 0.0 < np.max(np.abs(phi_b - phi_a)) < up_b
+
+
 def test_electric_field_linear_and_quadratic():
     # analytic: phi = a z^2 + b z on a nonuniform mesh -> E = -(2 a z + b) exactly inside
     z = np.cumsum(np.r_[0.0, np.linspace(0.5, 2.0, 20)])

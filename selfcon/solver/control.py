@@ -49,6 +49,14 @@ POISSON_MAX_ITER = 200
 #: the first pass, whose residual is not known yet, solves to FIRST_PASS_TOL
 INNER_FACTOR = 0.1
 FIRST_PASS_TOL = 1e-3
+#: the first predictor pass from the classical start also ends on a full Newton step right
+#: after a full one and below this fraction of it (selfcon.solver.kernels.poisson.
+#: poisson_newton, opts.settle): the quadratic phase, where a further step would be smaller
+#: by this fraction again, well inside the inexact-Newton margin of INNER_FACTOR times the
+#: first outer residual; saves the trial assembly (and the further step) at the pass's end.
+#: Not from a given potential (continuation, warm start): its first pass starts close, and
+#: one point of the gate sweep of README.md then took an iteration more (3 -> 4)
+FIRST_PASS_SETTLE = INNER_FACTOR
 
 
 class Status(enum.IntEnum):
@@ -127,8 +135,12 @@ class Control:
     and :attr:`message` says what happened.
     """
 
-    def __init__(self, mixer, *, tol: float, charge_tol: float, max_iter: int):
+    def __init__(self, mixer, *, tol: float, charge_tol: float, max_iter: int,
+                 cold_start: bool = True):
         self.mixer = mixer
+        #: the loop starts from the classical solution (not a given potential): the first
+        #: predictor pass may end on the quadratic phase (FIRST_PASS_SETTLE)
+        self.cold_start = bool(cold_start)
         self.tol = float(tol)
         self.charge_tol = float(charge_tol)
         self.max_iter = int(max_iter)
@@ -167,7 +179,10 @@ class Control:
         h = self.history
         tol = FIRST_PASS_TOL if not h else min(max(INNER_FACTOR * h[-1].residual, POISSON_TOL), START_TOL)
         one_step = bool(self.mixer.predictor) and bool(h)
-        return {"tol": tol, "max_newton": 1 if one_step else POISSON_MAX_ITER, "backtrack": not one_step}
+        out = {"tol": tol, "max_newton": 1 if one_step else POISSON_MAX_ITER, "backtrack": not one_step}
+        if self.mixer.predictor and not h and self.cold_start:
+            out["settle"] = FIRST_PASS_SETTLE
+        return out
 
     def needs_charge_check(self, residual: float) -> bool:
         """The charge check only decides convergence: evaluate it once the potential is close."""

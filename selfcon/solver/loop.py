@@ -86,7 +86,8 @@ def run_loop(st: Structure, bc, mixer, *, phi0=None, tol=1e-6, charge_tol=1e-6, 
     ``threads``: for the eigenproblems of each iteration (selfcon.solver.threads.thread_count;
     None: the process setting, the environment, the default)."""
     ws = Workspace(st, bc, threads)
-    control = Control(mixer, tol=tol, charge_tol=charge_tol, max_iter=max_iter)
+    control = Control(mixer, tol=tol, charge_tol=charge_tol, max_iter=max_iter,
+                      cold_start=phi0 is None)
     notify = progress_callback(progress)
     suggest = getattr(mixer, "suggest_history", None)
     if suggest is not None:

@@ -207,7 +207,7 @@ class PoissonSolution:
 
 
 def solve_poisson(problem, phi0, *, tol=1e-9, max_iter=200, max_step=0.3, backtrack=True,
-                  start_densities=False):
+                  start_densities=False, settle=0.0):
     """Newton solve; returns PoissonSolution (never raises on non-convergence).
 
     tol: V on max |Newton step|; max_step: V, the step is scaled so that no node moves
@@ -216,10 +216,13 @@ def solve_poisson(problem, phi0, *, tol=1e-9, max_iter=200, max_step=0.3, backtr
     ``solution.start`` holds the :class:`Densities` at ``phi0`` (with the Dirichlet values
     imposed), the same as :func:`densities` gives, from the first Jacobian assembly, with
     ``start.mobile_slope`` d(n + p)/d phi there (the charge check's linear estimate,
-    selfcon.solver.steps.charge_residual)."""
+    selfcon.solver.steps.charge_residual).  settle > 0: the solve also ends, converged,
+    on a full Newton step right after a full one and below settle times it
+    (NewtonOptions.settle; the quadratic phase reached)."""
     from selfcon.solver.kernels.poisson import poisson_newton
     hist = np.zeros(max_iter)
-    opts = NewtonOptions(float(tol), int(max_iter), float(max_step), bool(backtrack), False)
+    opts = NewtonOptions(float(tol), int(max_iter), float(max_step), bool(backtrack), False,
+                         float(settle))
     args = (_f(phi0), *problem.kernel_args(), problem.boundaries(), opts, hist)
     if start_densities:
         out = np.empty((5, problem.z.shape[0]))

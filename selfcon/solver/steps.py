@@ -933,10 +933,11 @@ def classical_sheet(ws: Workspace, phi, band, i0, i1) -> float:
 
 
 def poisson_pass(ws: Workspace, phi, states, *, predictor: bool, tol: float = POISSON_TOL,
-                 max_newton: int = POISSON_MAX_ITER, backtrack: bool = True):
+                 max_newton: int = POISSON_MAX_ITER, backtrack: bool = True, settle: float = 0.0):
     """Nonlinear Poisson with the quantum density of ``states``: with ``predictor`` the
     subbands follow the potential change (Trellakis et al., J. Appl. Phys. 81, 7880 (1997)),
-    else their density is frozen.  Newton to ``tol`` (V) or at most ``max_newton`` steps;
+    else their density is frozen.  Newton to ``tol`` (V) or at most ``max_newton`` steps
+    (``settle``: or until the quadratic phase shows, selfcon.solver.poisson.solve_poisson);
     returns (phi_out, Newton steps)."""
     prob = ws.problem(phi, states, shift=1.0 if predictor else 0.0)
     # the first assembly's densities at phi are those of densities(ws, phi, states) (at the
@@ -945,7 +946,7 @@ def poisson_pass(ws: Workspace, phi, states, *, predictor: bool, tol: float = PO
     fixed = all(kind != P.DIRICHLET or phi[idx] == value
                 for (kind, value), idx in zip(ws.bc, (0, -1)))
     sol = P.solve_poisson(prob, phi, tol=tol, max_iter=max_newton, backtrack=backtrack,
-                          start_densities=fixed)
+                          start_densities=fixed, settle=settle)
     if sol.start is not None:
         d = sol.start
         ws._last = (phi, states, (d.n, d.p, d.nd_plus, d.na_minus))

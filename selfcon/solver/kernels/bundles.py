@@ -113,10 +113,13 @@ class NewtonOptions(NamedTuple):
     until the residual norm decreases (False: take the clamped step unchecked);
     ``check_last``: with backtracking, evaluate the residual also at a step already below
     ``tol`` (False: that step, which is accepted anyway and ends the solve, is taken
-    without the evaluation)."""
+    without the evaluation); ``settle`` > 0: a full step right after a full accepted one and
+    below ``settle`` times it ends the solve without the evaluation
+    (selfcon.solver.kernels.poisson.poisson_newton; 0: off)."""
 
     tol: float
     max_iter: int
     max_step: float
     backtrack: bool
     check_last: bool = True
+    settle: float = 0.0

@@ -425,7 +425,10 @@ def poisson_newton(phi0, grid, mat, q, bounds, opts, history, densities=None):
     (with opts.check_last False without evaluating the residual there: it ends the solve).
     opts.backtrack = False takes each (clamped) step without evaluating the residual at
     the new point: for callers with their own safeguard (the predictor passes of the outer
-    loop, one step each, damped by the loop when its residual grows).
+    loop, one step each, damped by the loop when its residual grows).  opts.settle > 0 (with
+    backtracking): a full Newton step right after a full accepted one, smaller than
+    opts.settle times that one, is taken without a trial evaluation and ends the solve as
+    converged (the quadratic phase: the first predictor pass of the loop).
     Work arrays are allocated once per call, none inside the loop.
     """
     tol = opts.tol
@@ -455,6 +458,7 @@ def poisson_newton(phi0, grid, mat, q, bounds, opts, history, densities=None):
     steps = 0
     converged = False
     upd = np.inf
+    full = False               # the last step was a full Newton step, accepted (opts.settle)
     te, th = _levels(q, mat)
     if densities is None:
         norm = _assemble(phi, g, grid, mat, q, bounds, a, b, c, r, none, te, th)
@@ -477,14 +481,19 @@ def poisson_newton(phi0, grid, mat, q, bounds, opts, history, densities=None):
         scale = 1.0
         if big > max_step:
             scale = max_step / big
-        if not opts.backtrack or (scale * big < tol and not opts.check_last):
+        # opts.settle: right after a full Newton step (neither clamped nor halved) that was
+        # accepted, a full step below settle times that one shows the quadratic phase (the
+        # next would be ~ settle times smaller again): taken without a trial assembly, it
+        # ends the solve
+        settled = opts.settle > 0.0 and full and scale == 1.0 and big < opts.settle * upd
+        if not opts.backtrack or (scale * big < tol and not opts.check_last) or settled:
             # a step below tol is accepted whatever the residual does (see below) and ends
             # the solve: unless asked, no trial assembly evaluates it
             for i in range(N):
                 phi[i] += scale * dx[i]
             upd = scale * big
             history[it] = upd
-            if upd < tol:
+            if upd < tol or settled:
                 converged = True
                 break
             if it + 1 < max_iter:
@@ -509,4 +518,5 @@ def poisson_newton(phi0, grid, mat, q, bounds, opts, history, densities=None):
         if upd < tol:
             converged = True
             break
+        full = scale == 1.0
     return phi, steps, converged, upd
