@@ -29,10 +29,17 @@ __all__ = ["EIGEN_METHODS", "EigenWorkspace", "solve_region", "solve_region_stat
            "in_plane_mass", "in_plane_weights", "thermal_in_plane_energy"]
 
 
+_KERNELS = []
+
+
 def _kernels():
-    # imported lazily so that `import selfcon.solver.schrodinger` compiles nothing
-    from selfcon.solver.kernels import schrodinger
-    return schrodinger
+    # imported lazily so that `import selfcon.solver.schrodinger` compiles nothing; kept
+    # after the first call (every eigensolve of a loop asks for it: the import statement's
+    # machinery cost a few microseconds each time)
+    if not _KERNELS:
+        from selfcon.solver.kernels import schrodinger
+        _KERNELS.append(schrodinger)
+    return _KERNELS[0]
 
 
 #: the eigen-solvers of :class:`EigenWorkspace`
@@ -409,7 +416,7 @@ def in_plane_weights(energies, psi, w, mass_node, kT, fermi=0.0, out=None):
         spread = kT * thermal_in_plane_energy((fermi - e.min()) / kT) / IN_PLANE_TAPER
         d = (e[:, None] - e[None, :]) / spread
         s = np.exp(-d * d)
-        np.fill_diagonal(s, 0.0)
+        s.flat[::s.shape[1] + 1] = 0.0            # the diagonal (np.fill_diagonal's own form, without its checks)
         c = 1.0 - np.prod(1.0 - s, axis=1)
     mass = (1.0 - c) * harmonic + c * arithmetic
     weight = np.empty_like(psi) if out is None else out

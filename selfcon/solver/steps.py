@@ -872,7 +872,8 @@ def in_plane_motion(st: Structure, band: str, energy, psi, phi=None, vxc=None, r
         i0, i1 = st.regions[region]
         nodes, cells = slice(i0, i1 + 1), slice(i0, i1)
     w = st.mesh.w[nodes]
-    m_node = st.node_average(st.cell[par_key])[nodes]
+    # the in-plane mass at the nodes, made once per structure (read-only, like region_parts)
+    m_node = derived(st, ("node_average", par_key), lambda: st.node_average(st.cell[par_key]))[nodes]
     mass, weight = schrodinger.in_plane_weights(sign * np.asarray(energy), psi, w,
                                                 m_node, st.kT, sign * fermi, out=weight_out)
     if nonparabolic_band(st, band) and len(mass):
