@@ -294,6 +294,25 @@ def test_charge_check_takes_the_change_to_first_order(hemt4):
     assert abs(linear - exact) <= 1e-2 * exact
 
 
+@pytest.mark.parametrize("name", ["hemt_300K.toml", "phemt_double_delta.toml"])
+def test_a_structure_solved_again_asks_its_first_count_at_once(name):
+    # the count of states the first iteration settles on from the classical start is kept
+    # with the structure (steps.first_counts): a second solve asks for it at once instead of
+    # probing it up from quantum.states, with the same bits as the first solve
+    from selfcon.model.structure import derived
+    deck = selfcon.load_deck(INPUTS / name)
+    st = selfcon.build_structure(deck)
+    first = selfcon.solve(deck, structure=st)
+    kept = derived(st, "first_counts", dict)
+    assert len(kept) == 1
+    counts = next(iter(kept.values()))
+    assert counts and all(n > st.states for n in counts.values())      # grew in iteration 1
+    again = selfcon.solve(deck, structure=st)
+    assert np.array_equal(again.potential, first.potential) and again.iterations == first.iterations
+    for band, sb in first.subbands.items():
+        assert np.array_equal(again.subbands[band].energy, sb.energy)
+
+
 @pytest.mark.parametrize("start, grown", [(2, 64), (10, 40), (40, 40)])
 def test_a_settled_count_is_solved_outright_with_the_same_states(hemt300, start, grown):
     # once a region's count of states settled, band_region_states solves that count at once

@@ -26,8 +26,8 @@ import numpy as np
 from selfcon.model.structure import Structure
 from selfcon.solver.control import Control, Status
 from selfcon.solver.kp import MODELS
-from selfcon.solver.steps import (Workspace, charge_residual, initial_guess, poisson_pass,
-                                  solve_states, update_exchange)
+from selfcon.solver.steps import (Workspace, charge_residual, first_counts, initial_guess,
+                                  poisson_pass, solve_states, update_exchange)
 
 #: the depth of the predictor-corrector's extrapolation (selfcon.solver.mixers.anderson_step)
 #: with the multiband holes (physics.hole_model kp4 / kp6): the rigid-shift predictor leaves
@@ -95,11 +95,15 @@ def run_loop(st: Structure, bc, mixer, *, phi0=None, tol=1e-6, charge_tol=1e-6, 
                 else 0)
     mixer.reset()
     phi, classical_steps = initial_guess(ws, phi0)
+    if phi0 is None:
+        first_counts(ws)           # the counts an earlier solve's first iteration settled on
     states, states_phi = {}, None
     while control.running:
         started = time.perf_counter()
         xc_change = update_exchange(ws, phi, states, states_phi)   # 0 for a Hartree solve
         states, states_phi = solve_states(ws, phi), phi
+        if phi0 is None and not control.history:
+            first_counts(ws, keep=True)
         phi_out, newton_steps = poisson_pass(ws, phi, states, predictor=mixer.predictor,
                                              **control.poisson_settings())
         r = phi_out - phi

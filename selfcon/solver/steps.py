@@ -442,6 +442,38 @@ def initial_guess(ws: Workspace, phi0=None):
     return phi, start[1]
 
 
+def first_counts(ws: Workspace, keep: bool = False) -> None:
+    """The counts of states the first iteration from the classical start settles on, kept
+    with the structure and ``bc`` (selfcon.model.structure.derived, like the start itself).
+
+    ``keep=False`` (before the first iteration): a count kept by an earlier solve is taken
+    as the band's count and its (band, region) as settled, so the eigensolve asks for it
+    at once instead of probing it up from ``structure.states`` (the same phi, so the same
+    count; a settled count is solved with the same bits, band_region_states).  ``keep=True``
+    (after the first iteration): keep them.  Only bands of one quantum region with a
+    parabolic clustered eigensolve take part: a band's count is the largest of its regions',
+    and the other solvers' states may depend on the counts asked for before."""
+    from selfcon.solver import schrodinger
+    made = derived(ws.structure, "first_counts", dict)      # bc -> {(band, region): count}
+    if not keep:
+        if schrodinger.DEFAULT_METHOD != "clustered":         # (tools/bench.py's baseline)
+            return
+        for (band, r_idx), count in made.get(ws.bc, {}).items():
+            ws.n_states[band] = count
+            ws.settled.add((band, r_idx))
+        return
+    keys = [key for key in ws.eigen if not ws.negligible.get(key, False)]
+    out = {}
+    for band, r_idx in keys:
+        eig = ws.eigen[(band, r_idx)]
+        if (sum(1 for b, _ in keys if b == band) == 1 and eig.method == "clustered"
+                and not nonparabolic_band(ws.structure, band)):
+            out[(band, r_idx)] = ws.n_states[band]
+    made[ws.bc] = out
+    while len(made) > 4:                  # a bias sweep on one structure keeps only a few
+        del made[next(iter(made))]
+
+
 def nested_start(ws: Workspace):
     """The classical start of :func:`initial_guess` computed: (phi, Newton steps)."""
     st, bc = ws.structure, ws.bc
@@ -1010,7 +1042,7 @@ def gauss_residual(ws: Workspace, phi, states, rho=None) -> float:
 
 __all__ = ["BAND_SPECS", "KP_BAND", "kp_states", "VALLEY_BANDS", "ALL_BANDS", "bands_of", "carrier_of", "state_degeneracy",
            "masked_valley_dos", "valley_row_bands", "VALLEYS", "BandStates", "Workspace", "boundary_conditions",
-           "initial_guess", "start_levels", "linear_start", "interpolate_guess", "solve_states",
+           "initial_guess", "first_counts", "start_levels", "linear_start", "interpolate_guess", "solve_states",
            "update_exchange", "subband_profile", "nonparabolic_band", "cell_edge",
            "band_region_states",
            "region_states", "region_eigenstates", "in_plane_motion",
