@@ -862,7 +862,7 @@ def bench_threads(quick=False):
             ws = steps.Workspace(st, steps.boundary_conditions(st), threads=n)
             ws.n_states = dict(n_states)
             steps.solve_states(ws, phi)
-            t, _ = _wall_best(lambda: steps.solve_states(ws, phi), 3)
+            t, _ = _wall_best(lambda: steps.solve_states(ws, phi), 10)   # 2 threads vary more
             eig_t[n] = min(eig_t[n], t)
     tasks = len(st.regions)
     for n in counts:
