@@ -49,24 +49,24 @@ def lowest_eigenvalues(ab, k, lo, hi, tol, probes):
     for x in probes:
         if x <= lo or x >= hi:
             continue
-        c = sturm_count(ab, x)
-        for t in range(k):
-            if t < c:
-                if x < upper[t]:
-                    upper[t] = x
-            elif x > lower[t]:
-                lower[t] = x
+        _narrow(lower, upper, x, sturm_count(ab, x))
     for i in range(k):
         while upper[i] - lower[i] > tol:
             x = 0.5 * (lower[i] + upper[i])
-            c = sturm_count(ab, x)
-            for t in range(k):
-                if t < c:
-                    if x < upper[t]:
-                        upper[t] = x
-                elif x > lower[t]:
-                    lower[t] = x
+            _narrow(lower, upper, x, sturm_count(ab, x))
     return 0.5 * (lower + upper), 0.5 * (upper - lower)
+
+
+@numba.njit(cache=True)
+def _narrow(lower, upper, x, c):
+    """Narrow every bracket by one count: ``c`` eigenvalues lie below ``x``, so the c lowest
+    brackets end at or below x and the others start at or above it (in place)."""
+    for t in range(lower.size):
+        if t < c:
+            if x < upper[t]:
+                upper[t] = x
+        elif x > lower[t]:
+            lower[t] = x
 
 
 @numba.njit(cache=True)
