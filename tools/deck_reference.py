@@ -5,6 +5,7 @@
 
 tests/test_docs.py runs the check, so the README cannot drift from the deck reader.
 """
+import argparse
 import sys
 from pathlib import Path
 
@@ -56,10 +57,19 @@ def render(text: str) -> str:
     return text[:a] + "\n" + table() + "\n" + compositions() + "\n" + text[b:]
 
 
+def parse_args(argv):
+    """``--check``: compare only, write nothing (exit 1 on a difference); ``--help`` prints this
+    and writes nothing either."""
+    ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
+    ap.add_argument("--check", action="store_true",
+                    help="compare with what is committed and write nothing; exit 1 on a difference")
+    return ap.parse_args(argv)
+
+
 def main(argv):
     text = README.read_text()
     new = render(text)
-    if "--check" in argv:
+    if parse_args(argv).check:
         if new != text:
             print("README.md deck reference is out of date: run python tools/deck_reference.py")
             return 1

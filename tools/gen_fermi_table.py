@@ -1,8 +1,9 @@
-"""Generate selfcon/kernels/_fermi_table.py: coefficients for F_{1/2} and F_{-1/2}.
+"""Generate selfcon/solver/kernels/_fermi_table.py: coefficients for F_{1/2} and F_{-1/2}.
 
 Run:  python tools/gen_fermi_table.py      (needs mpmath; rewrites the data module)
+      python tools/gen_fermi_table.py --check   (writes nothing; exit 1 if the module differs)
 
-Method (three published pieces, see selfcon/kernels/statistics.py):
+Method (three published pieces, see selfcon/solver/kernels/statistics.py):
   * eta <= SERIES_ETA : the alternating power series in e^eta,
         F_j(eta) = sum_{k>=1} (-1)^(k+1) e^(k eta) / k^(j+1)      (no table needed)
   * SERIES_ETA < eta < SOMMERFELD_ETA : piecewise Chebyshev expansions, one per
@@ -21,7 +22,9 @@ The script also checks the assembled approximation against mpmath on a dense
 grid and prints the maximum relative error; it refuses to write the table if it
 exceeds 1e-15 (the kernels then reach ~1e-15 in double precision).
 """
+import argparse
 import pathlib
+import sys
 
 import mpmath as mp
 
@@ -34,7 +37,7 @@ DEGREE = 16          # Chebyshev degree per unit piece
 N_SAMPLE = 32        # Chebyshev-Gauss points used for the fit (> DEGREE: near-minimax)
 N_SOMMERFELD = 16    # Sommerfeld terms kept (optimal truncation near eta = 32)
 
-OUT = pathlib.Path(__file__).resolve().parents[1] / "selfcon" / "kernels" / "_fermi_table.py"
+OUT = pathlib.Path(__file__).resolve().parents[1] / "selfcon" / "solver" / "kernels" / "_fermi_table.py"
 
 
 def fd_exact(j, eta):
@@ -79,7 +82,11 @@ def eval_sommerfeld(coef, j, eta):
     return eta ** (j + 1) / mp.gamma(j + 2) * mp.fsum(c * eta ** (-2 * k) for k, c in enumerate(coef))
 
 
-def main():
+def main(argv=None) -> int:
+    ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
+    ap.add_argument("--check", action="store_true",
+                    help="regenerate in memory and compare with the committed module; write nothing")
+    check = ap.parse_args(argv).check
     npiece = int(round((SOMMERFELD_ETA - SERIES_ETA) / WIDTH))
     tables = {}
     for name, j in (("F12", mp.mpf(1) / 2), ("FM12", -mp.mpf(1) / 2)):
@@ -135,9 +142,15 @@ def main():
         lines.append("")
         lines.append(f"SOMM_{name} = np.array({fmt(tables[name + '_SOMM'])})")
         lines.append("")
-    OUT.write_text("\n".join(lines))
+    text = "\n".join(lines)
+    if check:
+        same = OUT.is_file() and OUT.read_text() == text
+        print(f"{OUT.name}: {'current' if same else 'differs from what this script generates'}")
+        return 0 if same else 1
+    OUT.write_text(text)
     print(f"wrote {OUT}")
+    return 0
 
 
 if __name__ == "__main__":
-    main()
+    sys.exit(main())
