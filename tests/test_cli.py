@@ -91,6 +91,21 @@ def test_missing_deck_file_exit_2(run_cli, tmp_path):
     assert "no such deck file" in err
 
 
+def test_study_and_deck_swapped_name_the_right_command(run_cli, tmp_path):
+    # a study handed to `run`/`check`, or a deck handed to `batch`: exit 2, one line naming
+    # the command the file is for, and nothing written
+    root = Path(__file__).resolve().parent.parent
+    study = root / "inputs" / "design" / "tolerance_hall.toml"
+    for cmd in ("run", "check"):
+        code, _, err = run_cli(cmd, study, *(("-o", tmp_path / "r.h5") if cmd == "run" else ()))
+        _assert_one_line_error(code, err, None, None)
+        assert "this file is a study" in err and "selfcon batch FILE" in err
+    code, _, err = run_cli("batch", root / "inputs" / "hemt_4K.toml", "-o", tmp_path / "st")
+    _assert_one_line_error(code, err, None, None)
+    assert "this file is a deck" in err and "selfcon run FILE" in err
+    assert not any(tmp_path.iterdir())
+
+
 def test_usage_errors_exit_2(run_cli):
     assert run_cli("run")[0] == 2                     # missing DECK
     assert run_cli("frobnicate")[0] == 2              # unknown command

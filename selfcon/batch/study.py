@@ -133,7 +133,12 @@ def _close(word, choices):
 def parse_study(data: dict, path: Path) -> Study:
     for key in data:
         if key not in TOP_KEYS:
-            raise _err(path, key, f"unknown key{_close(key, TOP_KEYS)}", ", ".join(TOP_KEYS))
+            hint = _close(key, TOP_KEYS)
+            from selfcon.input.deck import TOP_KEYS as DECK_KEYS
+            if not hint and key in DECK_KEYS:
+                hint = ("; this file is a deck (a study names its deck with 'deck = \"FILE\"'): "
+                        "solve it with `selfcon run FILE`")
+            raise _err(path, key, f"unknown key{hint}", ", ".join(TOP_KEYS))
     if "deck" not in data:
         raise _err(path, "deck", "missing: the base deck file, relative to the study file")
     if not isinstance(data["deck"], str) or not data["deck"]:

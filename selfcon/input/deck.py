@@ -384,6 +384,8 @@ KEYS = {"": _TOP, "surface": _CONTACT, "substrate": _SUBSTRATE, "layer": _LAYER,
 TABLES = ("surface", "substrate", "layer", "material", "physics", "quantum", "mesh", "solver",
           "channel")
 TOP_KEYS = tuple(_TOP) + TABLES
+#: top-level keys of a study file (selfcon/batch/study.py), named when one is read as a deck
+STUDY_MARKS = ("deck", "mode", "vary", "fixed", "samples", "along", "continuation")
 _SIMPLE_TABLES = ("surface", "substrate", "physics", "quantum", "mesh", "solver")
 
 _TYPE_NAMES = {"number": "number", "integer": "integer", "string": "string", "boolean": "boolean",
@@ -1158,6 +1160,9 @@ class _Ctx:
                 hint = _did_you_mean(k, spec)
                 if not hint and k in TOP_KEYS and prefix:
                     hint = f" ({k!r} is a top-level key: put it before the first [table] header)"
+                if not prefix and k in STUDY_MARKS and "deck" in table:
+                    hint = (" (this file is a study: it names its deck with 'deck = ...'; "
+                            "run it with `selfcon batch FILE`)")
                 raise self.error(f"{prefix}{k}" if prefix else k,
                                  f"unknown key {k!r} in {label}{hint}", allowed=list(spec))
 
