@@ -356,3 +356,35 @@ def test_line_residuals_kernel_is_the_block_product_at_each_k():
         p = np.ascontiguousarray(psi[:, :, j, :])
         ref = block_apply(d0 + k * d1 + (k * k) * d2, uz + k * u1 + (k * k) * u2, p) - p * theta[j]
         assert np.array_equal(got[:, j, :], ref.reshape(m * q, r))
+
+
+def test_tridiagonal_lowest_gives_the_lowest_eigenpairs():
+    """kernels/kp.py::tridiagonal_lowest (LAPACK's dsytrd, then the tridiagonal eigensolver
+    and the back-transformation) against numpy.linalg.eigh (LAPACK): the lowest values to
+    1e-12 and the vectors as the same invariant subspaces, on random symmetric matrices and
+    on one with a doubly degenerate lowest value."""
+    from scipy.linalg import lapack
+    from selfcon.solver.kernels.kp import tridiagonal_lowest
+    rng = np.random.default_rng(11)
+    K, want = 24, 6
+    mats = [rng.normal(size=(K, K)) for _ in range(3)]
+    mats = [0.5 * (a + a.T) for a in mats]
+    q, _ = np.linalg.qr(rng.normal(size=(K, K)))
+    vals = np.r_[-2.0, -2.0, np.linspace(-1.0, 3.0, K - 2)]
+    mats.append((q * vals) @ q.T)
+    d, e, tau = np.empty((4, K)), np.empty((4, K - 1)), np.empty((4, K - 1))
+    refl = np.empty((4, K, K))
+    for j, a in enumerate(mats):
+        c, d[j], e[j], tau[j], info = lapack.dsytrd(a, lower=1)
+        assert info == 0
+        refl[j] = c.T
+    theta, coef = np.empty((4, want)), np.empty((4, K, want))
+    tridiagonal_lowest(d, e, refl, tau, want, theta, coef)
+    for j, a in enumerate(mats):
+        w, v = np.linalg.eigh(a)
+        assert np.allclose(theta[j], w[:want], atol=1e-12, rtol=0)
+        assert np.allclose(coef[j].T @ coef[j], np.eye(want), atol=1e-12)
+        assert np.abs(a @ coef[j] - coef[j] * theta[j]).max() < 1e-11
+        # the same subspace as numpy's vectors (the first want values are apart from the next)
+        proj = v[:, :want] @ v[:, :want].T
+        assert np.abs(proj @ coef[j] - coef[j]).max() < 1e-10

@@ -857,6 +857,17 @@ def _per_half(fn, threads):
     return run_all(task, [0, 1], threads)
 
 
+_SYTRD_WORK: dict = {}
+
+
+def _sytrd_work(K):
+    """LAPACK dsytrd's optimal work size for order K (asked once per K)."""
+    if K not in _SYTRD_WORK:
+        from scipy.linalg import lapack
+        _SYTRD_WORK[K] = max(1, int(lapack.dsytrd_lwork(K, lower=1)[0]))
+    return _SYTRD_WORK[K]
+
+
 def _in_basis(basis, ops, w, phi_node, nb, n_states, k_grid, threads=1):
     """The states of every k of ``k_grid`` in ``basis`` (:func:`_build_basis`): (E (n, m), dens
     (N, n, m), psi0 (N, nb, n), bad (m,) where an error estimate exceeds BASIS_TOL), as
@@ -866,6 +877,7 @@ def _in_basis(basis, ops, w, phi_node, nb, n_states, k_grid, threads=1):
     import scipy.linalg as sla
     from selfcon.solver.kernels import kp as kern
     tbtrs = sla.get_lapack_funcs("tbtrs", dtype=float)
+    sytrd = sla.get_lapack_funcs("sytrd", dtype=float)
     T, halves = ops
     half = nb // 2
     m = halves[0][0][0].shape[0]
@@ -883,10 +895,23 @@ def _in_basis(basis, ops, w, phi_node, nb, n_states, k_grid, threads=1):
         want = min(n_states, K)
         th = np.empty((nk, want))
         cs = np.empty((nk, K, want))
+        if K < 2:
+            for j in range(nk):
+                th[j], cs[j] = np.linalg.eigh(P0 + k_grid[j] * P1 + k_grid[j] ** 2 * P2)
+            return th, cs
+        # every k: LAPACK's reduction to tridiagonal form, then the lowest pairs and their
+        # back-transformation in one kernel call (kernels/kp.py::tridiagonal_lowest)
+        dd, ee, tau = np.empty((nk, K)), np.empty((nk, K - 1)), np.empty((nk, K - 1))
+        refl = np.empty((nk, K, K))
+        lwork = _sytrd_work(K)
         for j in range(nk):
             k = k_grid[j]
-            th[j], cs[j] = sla.eigh(P0 + k * P1 + (k * k) * P2, subset_by_index=(0, want - 1),
-                                    driver="evx", check_finite=False)
+            a = P0 + k * P1 + (k * k) * P2
+            c, dd[j], ee[j], tau[j], info = sytrd(a.T, lower=1, lwork=lwork, overwrite_a=1)
+            if info != 0:
+                raise np.linalg.LinAlgError(f"dsytrd failed (info {info})")
+            refl[j] = c.T
+        kern.tridiagonal_lowest(dd, ee, refl, tau, want, th, cs)
         return th, cs
     ritz = _per_half(ritz_of, threads)
     # the lowest n of both halves at each k (hole kinetic scale): how many of each half

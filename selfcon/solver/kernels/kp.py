@@ -18,10 +18,18 @@ come out once per copy).  Linear in m.
 block of vectors, the products of the reduced basis (selfcon.solver.kp.reduced_dispersion);
 :func:`line_residuals` the residuals of its states at every k_par of a line in one call.
 
+**Small dense eigenproblems** (:func:`tridiagonal_lowest`): the lowest pairs of the reduced
+basis' matrices of every k_par of a line from their tridiagonal forms (LAPACK's dsytrd), by
+the tridiagonal eigensolver of selfcon/solver/kernels/eigen.py and the back-transformation,
+in one call (scipy.linalg.eigh's bisection and inverse iteration took 3x longer per matrix
+of 64).
+
 Arrays in, arrays out; nothing here is compiled at import time.
 """
 import numba
 import numpy as np
+
+from selfcon.solver.kernels.eigen import lowest_eigenpairs
 
 
 @numba.njit(cache=True)
@@ -224,3 +232,36 @@ def line_residuals(dz, uz, d1, u1, d2, u2, phi, k_grid, psi, theta):
                 for s in range(r):
                     out[row, j, s] -= psi[i, a, j, s] * theta[j, s]
     return out
+
+
+@numba.njit(cache=True, nogil=True)
+def tridiagonal_lowest(d, e, refl, tau, want, theta, coef):
+    """The lowest ``want`` eigenpairs of symmetric matrices given by their reduction to
+    tridiagonal form T = Q^T A Q (LAPACK dsytrd with the lower triangle, one per row of the
+    inputs): ``d`` (nk, K) and ``e`` (nk, K-1) the diagonal and subdiagonal of T, ``refl``
+    (nk, K, K) the reflectors (row i holds v(i+2:) of H(i) = I - tau_i v v^T, v(i+1) = 1 and
+    v(:i+1) = 0: dsytrd's output array transposed), ``tau`` (nk, K-1).  The pairs of T from
+    the tridiagonal eigensolver (selfcon/solver/kernels/eigen.py::lowest_eigenpairs), its
+    vectors turned back by Q = H(0) H(1) ... H(K-2).  Fills ``theta`` (nk, want) ascending and
+    ``coef`` (nk, K, want), one orthonormal eigenvector per column."""
+    nk, K = d.shape
+    w = np.empty(want)
+    z = np.empty((want, K))
+    for j in range(nk):
+        lowest_eigenpairs(d[j], e[j], want, w, z)
+        for i in range(K - 2, -1, -1):
+            t = tau[j, i]
+            if t == 0.0:
+                continue
+            for r in range(want):
+                s = z[r, i + 1]
+                for p in range(i + 2, K):
+                    s += refl[j, i, p] * z[r, p]
+                s *= t
+                z[r, i + 1] -= s
+                for p in range(i + 2, K):
+                    z[r, p] -= s * refl[j, i, p]
+        for r in range(want):
+            theta[j, r] = w[r]
+            for p in range(K):
+                coef[j, p, r] = z[r, p]
