@@ -388,3 +388,25 @@ def test_tridiagonal_lowest_gives_the_lowest_eigenpairs():
         # the same subspace as numpy's vectors (the first want values are apart from the next)
         proj = v[:, :want] @ v[:, :want].T
         assert np.abs(proj @ coef[j] - coef[j]).max() < 1e-10
+
+
+def test_forward_norms_is_the_banded_triangular_solve():
+    """kernels/kp.py::forward_norms against scipy.linalg.solve_triangular on the dense factor
+    of scipy.linalg.cholesky_banded: |L^-1 r|^2 of every column to 1e-12 relative."""
+    import scipy.linalg as sla
+    from selfcon.solver.kernels.kp import forward_norms
+    rng = np.random.default_rng(5)
+    n, u, c = 40, 5, 7
+    a = rng.normal(size=(n, n))
+    a = (a + a.T) * (np.abs(np.subtract.outer(np.arange(n), np.arange(n))) <= u)
+    a += 4.0 * (2 * u + 1) * np.eye(n)       # diagonally dominant: positive definite
+    ab = np.zeros((u + 1, n))
+    for off in range(u + 1):
+        ab[off, :n - off] = np.diagonal(a, -off)
+    chol = sla.cholesky_banded(ab, lower=True)
+    L = np.zeros((n, n))
+    for off in range(u + 1):
+        L += np.diag(chol[off, :n - off], -off)
+    r = rng.normal(size=(n, c))
+    ref = np.sum(sla.solve_triangular(L, r, lower=True) ** 2, axis=0)
+    assert np.allclose(forward_norms(chol, r), ref, rtol=1e-12, atol=0)

@@ -876,7 +876,6 @@ def _in_basis(basis, ops, w, phi_node, nb, n_states, k_grid, threads=1):
     checked (about half of each half's)."""
     import scipy.linalg as sla
     from selfcon.solver.kernels import kp as kern
-    tbtrs = sla.get_lapack_funcs("tbtrs", dtype=float)
     sytrd = sla.get_lapack_funcs("sytrd", dtype=float)
     T, halves = ops
     half = nb // 2
@@ -934,8 +933,7 @@ def _in_basis(basis, ops, w, phi_node, nb, n_states, k_grid, threads=1):
         res = kern.line_residuals(dz, uz, d1, u1, d2, u2, phin, k_grid, psi,
                                   np.ascontiguousarray(th[:, :nb_]))
         chol = sla.cholesky_banded(_band_lower(d0 - sigma * eye, uz), lower=True, check_finite=False)
-        lx, _ = tbtrs(chol, res.reshape(m * half, -1), uplo="L")            # L^-1 r
-        est = np.einsum("ij,ij->j", lx, lx).reshape(nk, -1)                  # (nk, need)
+        est = kern.forward_norms(chol, res.reshape(m * half, -1)).reshape(nk, -1)   # |L^-1 r|^2
         return (np.any(est > BASIS_TOL, axis=1), -th[:, :nb_].T,
                 np.einsum("iajw,iajw->iwj", psi, psi) * s2[:, None, None],
                 np.einsum("ij,mjk->mik", T[:, b * half:(b + 1) * half], psi[:, :, 0, :]))

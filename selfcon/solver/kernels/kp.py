@@ -16,7 +16,8 @@ come out once per copy).  Linear in m.
 
 **Block products** (:func:`block_apply`): a real symmetric block-tridiagonal matrix times a
 block of vectors, the products of the reduced basis (selfcon.solver.kp.reduced_dispersion);
-:func:`line_residuals` the residuals of its states at every k_par of a line in one call.
+:func:`line_residuals` the residuals of its states at every k_par of a line in one call,
+:func:`forward_norms` their norms through the banded Cholesky factor of the resolvent.
 
 **Small dense eigenproblems** (:func:`tridiagonal_lowest`): the lowest pairs of the reduced
 basis' matrices of every k_par of a line from their tridiagonal forms (LAPACK's dsytrd), by
@@ -265,3 +266,27 @@ def tridiagonal_lowest(d, e, refl, tau, want, theta, coef):
             theta[j, r] = w[r]
             for p in range(K):
                 coef[j, p, r] = z[r, p]
+
+
+@numba.njit(cache=True, nogil=True)
+def forward_norms(ab, r):
+    """Squared norms of the columns of L^-1 r: ``ab`` (u + 1, n) a banded lower triangular L
+    in lower band storage (``ab[i - j, j] = L[i, j]``, scipy.linalg.cholesky_banded's
+    ``lower=True`` layout), ``r`` (n, c).  Forward substitution row by row over all c columns
+    at once (LAPACK's dtbtrs took them one by one)."""
+    u = ab.shape[0] - 1
+    n, c = r.shape
+    x = np.empty((n, c))
+    out = np.zeros(c)
+    for i in range(n):
+        for s in range(c):
+            x[i, s] = r[i, s]
+        for j in range(max(0, i - u), i):
+            lij = ab[i - j, j]
+            for s in range(c):
+                x[i, s] -= lij * x[j, s]
+        piv = ab[0, i]
+        for s in range(c):
+            x[i, s] /= piv
+            out[s] += x[i, s] * x[i, s]
+    return out
