@@ -6,7 +6,6 @@ Units: nm, eV, V, K, nm^-3, nm^-2 (DEVELOPERS.md, "Conventions").  EF = 0, Ec = 
 Boundary kinds: DIRICHLET (phi fixed; schottky, pinned and ohmic contacts) and
 ZERO_FIELD (free surface: no outer flux).
 """
-import copy
 from dataclasses import dataclass, field, replace
 
 import numpy as np
@@ -136,12 +135,19 @@ class PoissonProblem:
     def kT(self):
         return KB_EV * self.temperature
 
+    def _copy(self):
+        """A shallow copy, as copy.copy makes it, without its reduce protocol (every
+        iteration makes one): the same fields, the arrays shared."""
+        new = object.__new__(type(self))
+        new.__dict__.update(self.__dict__)
+        return new
+
     def with_quantum(self, *, phi_ref, cls_e=None, psi2=None, ek=None, dos_e=None,
                      cls_h=None, psi2h=None, ekh=None, dos_h=None):
         """Copy with the quantum (predictor) part replaced; omitted parts are kept."""
         # called every iteration: copy without re-running the validation of the
         # unchanged material arrays; check only the shapes of what is replaced
-        new = copy.copy(self)
+        new = self._copy()
         N = self.z.shape[0]
         set_ = lambda k, v: object.__setattr__(new, k, v)
         set_("phi_ref", _f(phi_ref))
@@ -168,7 +174,7 @@ class PoissonProblem:
         nc_v = _f(nc_v)
         if nc_v.shape != self.nc_v.shape:
             raise ValueError("PoissonProblem: nc_v must keep its shape (valleys, N-1)")
-        new = copy.copy(self)
+        new = self._copy()
         object.__setattr__(new, "nc_v", nc_v)
         return new
 

@@ -19,6 +19,8 @@ superlattice it stops with an internal error (INFO = 22) for k >= 100.  DEVELOPE
 
 Units: nm, eV, masses in m0.
 """
+import math
+
 import numpy as np
 
 from selfcon.constants import HBAR2_2M0  # noqa: F401  (documented unit of the operator)
@@ -364,6 +366,17 @@ def thermal_in_plane_energy(x):
     return 1.0 + 0.5 * np.logaddexp(0.0, x)
 
 
+def _thermal_scalar(x: float) -> float:
+    """:func:`thermal_in_plane_energy` of one float, with the formula of numpy's logaddexp
+    (ln 2 at 0, else the larger argument plus log1p(exp(-|x|)), libm's exp and log1p as
+    numpy's scalar loop takes them): the same bits without a ufunc call."""
+    if x == 0.0:
+        return 1.0 + 0.5 * math.log(2.0)
+    if x < 0.0:
+        return 1.0 + 0.5 * math.log1p(math.exp(x))
+    return 1.0 + 0.5 * (x + math.log1p(math.exp(-x)))
+
+
 #: subbands closer than the thermal in-plane energy / IN_PLANE_TAPER count as degenerate
 #: (a Gaussian weight in their splitting, see in_plane_weights)
 IN_PLANE_TAPER = 10.0
@@ -399,7 +412,7 @@ def in_plane_weights(energies, psi, w, mass_node, kT, fermi=0.0, out=None):
     the carrier's Fermi level on the same scale.  Returns (masses (k,) m0, weights (n, k));
     ``out``: a C-contiguous (n, k) array the weights are written into (and returned).
     """
-    e = np.asarray(energies, dtype=float)
+    e = np.ascontiguousarray(energies, dtype=float)
     psi = np.ascontiguousarray(psi, dtype=float)
     if psi.ndim == 1:
         psi = psi[:, None]
@@ -411,14 +424,15 @@ def in_plane_weights(energies, psi, w, mass_node, kT, fermi=0.0, out=None):
     # one pass over the rows of psi (numba, no GIL): the thread of each (band, region) task
     # does this part of its work alongside the others (selfcon/solver/threads.py)
     kern.in_plane_sums(psi, w, m, norm, harmonic, arithmetic)
-    c = np.zeros(k)
     if e.size >= 2:
-        spread = kT * thermal_in_plane_energy((fermi - e.min()) / kT) / IN_PLANE_TAPER
-        d = (e[:, None] - e[None, :]) / spread
-        s = np.exp(-d * d)
-        s.flat[::s.shape[1] + 1] = 0.0            # the diagonal (np.fill_diagonal's own form, without its checks)
-        c = 1.0 - np.prod(1.0 - s, axis=1)
-    mass = (1.0 - c) * harmonic + c * arithmetic
+        spread = kT * _thermal_scalar((fermi - float(e.min())) / kT) / IN_PLANE_TAPER
+        s = np.empty((k, k))
+        kern.splitting_exponents(e, spread, s)
+        np.exp(s, out=s)              # numpy's exp, as the formula always took it
+    else:
+        s = np.zeros((k, k))          # one state: nothing to be degenerate with (c = 0)
+    mass = np.empty(k)
     weight = np.empty_like(psi) if out is None else out
-    kern.blended_weights(psi, m, c, arithmetic, weight)
+    # c, the masses and the weights in one pass (kernels/schrodinger.py::blended_states)
+    kern.blended_states(psi, m, s, harmonic, arithmetic, mass, weight)
     return mass, weight

@@ -34,6 +34,7 @@ from selfcon.constants import CM2_PER_NM2, DOS2D_PER_M0
 from selfcon.model.dopants import statistics_binding
 from selfcon.model.structure import Structure, coarsened, derived
 from selfcon.solver import poisson as P
+from selfcon.solver import schrodinger
 from selfcon.solver.control import POISSON_MAX_ITER, POISSON_TOL, START_TOL
 from selfcon.solver.statistics import subband_density
 
@@ -160,6 +161,8 @@ class Workspace:
         self.kp_top = 0.0                      # nm^-1, the end of the multiband holes' k grid
         self.kp_basis: dict = {}               # region -> the kept reduced basis (kp.reduced_dispersion)
         self.negligible: dict = {}       # (band, region) -> bool
+        #: the (band, region) eigenproblems of every iteration (solve_states, _state_plan)
+        self.plan = None
         self.eigen: dict = {}            # (band, region) -> EigenWorkspace
         #: (band, region) pairs whose count of states did not grow at the last solve
         #: (band_region_states solves them without probing the count first)
@@ -453,7 +456,6 @@ def first_counts(ws: Workspace, keep: bool = False) -> None:
     (after the first iteration): keep them.  Only bands of one quantum region with a
     parabolic clustered eigensolve take part: a band's count is the largest of its regions',
     and the other solvers' states may depend on the counts asked for before."""
-    from selfcon.solver import schrodinger
     made = derived(ws.structure, "first_counts", dict)      # bc -> {(band, region): count}
     if not keep:
         if schrodinger.DEFAULT_METHOD != "clustered":         # (tools/bench.py's baseline)
@@ -571,42 +573,26 @@ def solve_states(ws: Workspace, phi) -> dict:
     (selfcon.solver.threads.run_all) and are put together in a fixed order, so the answer
     does not depend on the thread count.  Each starts from the band's count of states
     of the previous iteration and grows on its own; the band keeps the largest."""
-    from selfcon.solver import schrodinger
     from selfcon.solver.threads import run_all
     st = ws.structure
     bands = bands_of(st)
-    tasks = []
     multiband = st.hole_model != "parabolic"
-    for band in bands:
-        if (carrier_of(band) not in st.carriers or not st.regions
-                or (multiband and band in HOLE_BANDS)):
-            continue
-        for r_idx, (i0, i1) in enumerate(st.regions):
-            if i1 - i0 < 3:
-                continue
-            key = (band, r_idx)
-            if key not in ws.negligible:        # decided once per solve, at the starting potential
-                ws.negligible[key] = classical_sheet(ws, phi, band, i0, i1) < ws.negligible_sheet
-            if ws.negligible[key]:
-                continue           # this carrier is absent here: leave it classical (negligible)
-            eig = ws.eigen.get(key)
-            if eig is None:
-                eig = ws.eigen[key] = schrodinger.EigenWorkspace(i1 - i0 + 1)
-            tasks.append([band, r_idx, eig, ws.n_states[band], ws.vxc.get(band), False,
-                          key not in ws.settled])
-    for band in bands:                  # a band's only region writes its full-mesh arrays itself
-        mine = [t for t in tasks if t[0] == band]
-        if len(mine) == 1:
-            mine[0][5] = True
+    plan = ws.plan
+    if plan is None:          # the (band, region) pairs to solve: the same every iteration
+        plan = ws.plan = _state_plan(ws, phi, bands)
+    tasks = [[band, r_idx, eig, ws.n_states[band], ws.vxc.get(band), alone, (band, r_idx) not in ws.settled]
+             for band, r_idx, eig, alone in plan]
     solved = run_all(lambda task: band_region_states(st, phi, *task), tasks, ws.threads)
+    mine_of = {}
     for task, res in zip(tasks, solved):      # a count that did not grow: no probe next time
         (ws.settled.add if res[5] == task[3] else ws.settled.discard)((task[0], task[1]))
+        mine_of.setdefault(task[0], []).append((task, res))
     # the full-mesh (N, K) arrays of each band, states in energy order: each task's region
     # part goes into its rows and its states' columns, on the same threads (nogil kernel;
     # rows of different regions do not overlap)
     out, places = {}, []
     for band, (_, _, _, sign, _) in bands.items():
-        mine = [(task, res) for task, res in zip(tasks, solved) if task[0] == band]
+        mine = mine_of.get(band)
         if not mine:
             continue
         qnodes = np.zeros(st.n_nodes, dtype=bool)
@@ -614,19 +600,27 @@ def solve_states(ws: Workspace, phi) -> dict:
             i0, i1 = st.regions[task[1]]
             qnodes[i0:i1 + 1] = True
         ws.n_states[band] = max([ws.n_states[band]] + [res[5] for _, res in mine])
+        if mine[0][0][5]:                  # alone: the task's (N, k) arrays
+            res = mine[0][1]
+            E = res[0]
+            kinetic = E if sign > 0 else -E
+            if E.size < 2 or bool((kinetic[1:] >= kinetic[:-1]).all()):
+                # already lowest kinetic energy first (the eigensolver's order): the stable
+                # argsort would be the identity, so the task's own fresh arrays are the band's
+                out[band] = BandStates(band=band, energy=E, psi=res[1], m_par=res[2], dos=None,
+                                       region=res[4], degeneracy=None, sign=sign,
+                                       quantum_nodes=qnodes, weight=res[3])
+                continue
+            order = np.argsort(sign * E, kind="stable")
+            out[band] = BandStates(band=band, energy=E[order], psi=np.take(res[1], order, axis=1),
+                                   m_par=res[2][order], dos=None, region=res[4][order],
+                                   degeneracy=None, sign=sign, quantum_nodes=qnodes,
+                                   weight=np.take(res[3], order, axis=1))
+            continue
         E = np.concatenate([res[0] for _, res in mine])
         order = np.argsort(sign * E, kind="stable")     # lowest kinetic energy first
         m_par = np.concatenate([res[2] for _, res in mine])[order]
         region = np.concatenate([res[4] for _, res in mine])[order]
-        if mine[0][0][5]:                  # alone: the task's (N, k) arrays
-            res = mine[0][1]
-            psi, weight = res[1], res[3]
-            if not np.array_equal(order, np.arange(E.size)):
-                psi, weight = np.take(psi, order, axis=1), np.take(weight, order, axis=1)
-            out[band] = BandStates(band=band, energy=E[order], psi=psi, m_par=m_par, dos=None,
-                                   region=region, degeneracy=None, sign=sign,
-                                   quantum_nodes=qnodes, weight=weight)
-            continue
         column = np.empty(E.size, dtype=np.int64)
         column[order] = np.arange(E.size)
         # rows of the band's regions are written whole by their own task (_place), the others
@@ -642,7 +636,8 @@ def solve_states(ws: Workspace, phi) -> dict:
         out[band] = BandStates(band=band, energy=E[order], psi=psi, m_par=m_par, dos=None,
                                region=region, degeneracy=None, sign=sign, quantum_nodes=qnodes,
                                weight=weight)
-    run_all(_place, places, ws.threads)
+    if places:
+        run_all(_place, places, ws.threads)
     for band, bs in out.items():
         bs.degeneracy = state_degeneracy(st, band, bs.psi)
         bs.dos = bs.degeneracy * DOS2D_PER_M0 * bs.m_par
@@ -651,6 +646,37 @@ def solve_states(ws: Workspace, phi) -> dict:
         if hk is not None:
             out[KP_BAND] = hk
     return out
+
+
+def _state_plan(ws: Workspace, phi, bands) -> list:
+    """[(band, region, EigenWorkspace, alone)] of :func:`solve_states`: every (band, quantum
+    region) pair of a counted carrier whose classical charge at ``phi`` (the solve's first
+    potential) is not negligible, in band and region order; ``alone``: the band's only
+    region, which writes the band's full-mesh arrays itself.  Decided once per solve."""
+    st = ws.structure
+    multiband = st.hole_model != "parabolic"
+    plan = []
+    for band in bands:
+        if (carrier_of(band) not in st.carriers or not st.regions
+                or (multiband and band in HOLE_BANDS)):
+            continue
+        for r_idx, (i0, i1) in enumerate(st.regions):
+            if i1 - i0 < 3:
+                continue
+            key = (band, r_idx)
+            if key not in ws.negligible:        # decided once per solve, at the starting potential
+                ws.negligible[key] = classical_sheet(ws, phi, band, i0, i1) < ws.negligible_sheet
+            if ws.negligible[key]:
+                continue           # this carrier is absent here: leave it classical (negligible)
+            eig = ws.eigen.get(key)
+            if eig is None:
+                eig = ws.eigen[key] = schrodinger.EigenWorkspace(i1 - i0 + 1)
+            plan.append([band, r_idx, eig, False])
+    for band in bands:
+        mine = [t for t in plan if t[0] == band]
+        if len(mine) == 1:
+            mine[0][3] = True
+    return [tuple(t) for t in plan]
 
 
 def _place(item):
@@ -753,9 +779,11 @@ def band_region_states(st: Structure, phi, band: str, r_idx: int, workspace, n_s
     while True:
         e, psi = region_eigenstates(st, phi, band, r_idx, k, workspace=workspace, vxc=vxc,
                                     full=alone, levels_only=probe)
+        if e.size < k or k >= MAX_STATES:
+            break
         occ = subband_density(e, np.ones(e.size), st.temperature, sign, fermi)
-        if (e.size < k or k >= MAX_STATES or occ.sum() <= 0
-                or occ[-1] < TOP_STATE_FRACTION * occ.sum()):
+        total = occ.sum()
+        if total <= 0 or occ[-1] < TOP_STATE_FRACTION * total:
             break
         k = min(2 * k, MAX_STATES)
         probe = can_probe
@@ -832,12 +860,21 @@ def kp_states(ws: Workspace, phi):
     return kp.collect_states(st.n_nodes, st.hole_model, [t[:3] for t in todo], solved, efp, kT)
 
 
-def region_parts(st: Structure, edge_key: str, i0: int, i1: int):
-    """(the band edge ``edge_key`` without electrostatics at the nodes, the mesh of nodes
-    i0..i1): made once per structure (selfcon.model.structure.derived; read-only), since
-    every eigensolve of a region asks for them."""
-    return (derived(st, ("node_edge", edge_key), lambda: st.node_average(st.cell[edge_key])),
-            derived(st, ("region_mesh", i0, i1), lambda: st.mesh.part(i0, i1)))
+def region_parts(st: Structure, band: str, r_idx: int):
+    """(the band edge of ``band`` without electrostatics at the nodes i0..i1 of quantum region
+    ``r_idx``, the mesh of those nodes, the inverse mass along z of its cells): made once per
+    structure (selfcon.model.structure.derived; read-only), since every eigensolve of a
+    region asks for them."""
+    def make():
+        edge_key, mass_key = ALL_BANDS[band][:2]
+        i0, i1 = st.regions[r_idx]
+        edge = derived(st, ("node_edge", edge_key), lambda: st.node_average(st.cell[edge_key]))
+        parts = (np.ascontiguousarray(edge[i0:i1 + 1]), st.mesh.part(i0, i1),
+                 np.ascontiguousarray(1.0 / st.cell[mass_key][i0:i1]))
+        for a in (parts[0], parts[2]):
+            a.setflags(write=False)
+        return parts
+    return derived(st, ("region_parts", band, r_idx), make)
 
 
 def region_eigenstates(st: Structure, phi, band: str, r_idx: int, n_states: int, workspace=None,
@@ -853,27 +890,27 @@ def region_eigenstates(st: Structure, phi, band: str, r_idx: int, n_states: int,
     exchange-correlation potential energy on the band's kinetic scale (Workspace.vxc).
     ``full=False``: psi (n_r, k) on the region's nodes i0..i1 only.  ``levels_only``: the
     energies without wavefunctions (psi None; parabolic bands: EigenWorkspace.levels)."""
-    from selfcon.solver import schrodinger
     edge_key, mass_key, _, sign, _ = ALL_BANDS[band]
     i0, i1 = st.regions[r_idx]
     n = st.n_nodes
     if i1 - i0 < 3:
         return np.empty(0), np.zeros((n if full else i1 - i0 + 1, 0))
     sl = slice(i0, i1 + 1)
-    edge0, part = region_parts(st, edge_key, i0, i1)
-    edge_node = edge0 - phi                                    # band edge with electrostatics
-    kinetic = sign * edge_node[sl]                                 # holes: kinetic up = -Ev
+    edge_r, part, inv_mass = region_parts(st, band, r_idx)
+    kinetic = edge_r - phi[sl]                                # band edge with electrostatics
+    if sign < 0:
+        kinetic = -kinetic                                    # holes: kinetic up = -Ev
     if vxc is not None:
         kinetic = kinetic + vxc[sl]
     nonparabolic = nonparabolic_band(st, band)
     embed = (n, i0) if full and not nonparabolic else None    # written in place, no copy
-    e, p = schrodinger.solve_region(part.h, part.w, kinetic,
-                                    1.0 / st.cell[mass_key][i0:i1], n_states, workspace=workspace,
-                                    below=below, levels_only=levels_only, embed=embed)
+    e, p = schrodinger.solve_region(part.h, part.w, kinetic, inv_mass, n_states,
+                                    workspace=workspace, below=below,
+                                    levels_only=levels_only, embed=embed)
     if levels_only:
-        return sign * e, None
+        return (e if sign > 0 else -e), None
     if embed is not None:
-        return sign * e, p
+        return (e if sign > 0 else -e), p
     if e.size and nonparabolic:                    # energy-dependent mass: iterate each state
         from selfcon.solver import nonparabolic
         e, p, _ = nonparabolic.refine_states(part.h, part.w, kinetic, st.cell[mass_key][i0:i1],
@@ -896,7 +933,6 @@ def in_plane_motion(st: Structure, band: str, energy, psi, phi=None, vxc=None, r
     ``phi`` (and ``vxc``) its states were solved at.  ``region``: psi is (n_r, k) on the
     nodes of that quantum region only (the weights then too), else on the full mesh.
     ``weight_out``: a C-contiguous array of the weights' shape to write them into."""
-    from selfcon.solver import schrodinger
     _, mass_key, par_key, sign, _ = ALL_BANDS[band]
     fermi = st.fermi_levels[0 if sign > 0 else 1]
     nodes, cells = slice(None), slice(None)

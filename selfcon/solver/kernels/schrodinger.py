@@ -107,16 +107,39 @@ def in_plane_sums(psi, w, mass_node, norm, harmonic, arithmetic):
 
 
 @numba.njit(cache=True, nogil=True)
-def blended_weights(psi, mass_node, c, arithmetic, weight):
-    """weight_is = psi_is^2 ((1 - c_s) + c_s m_i / arithmetic_s): the density weights of
-    selfcon.solver.schrodinger.in_plane_weights (psi^2 itself where c_s = 0)."""
+def splitting_exponents(e, spread, out):
+    """out[i, j] = -((e_i - e_j) / spread)^2 (k, k): the exponents of the degeneracy weights
+    exp(-((E_i - E_j)/D)^2) of selfcon.solver.schrodinger.in_plane_weights, whose exp numpy
+    takes (numpy's own exp, as before: the same bits)."""
+    k = e.shape[0]
+    for i in range(k):
+        for j in range(k):
+            d = (e[i] - e[j]) / spread
+            out[i, j] = -d * d
+
+
+@numba.njit(cache=True, nogil=True)
+def blended_states(psi, mass_node, s, harmonic, arithmetic, mass, weight):
+    """The blend of selfcon.solver.schrodinger.in_plane_weights from the degeneracy weights
+    s (k, k) (its diagonal is not read): c_s = 1 - prod_{j != s} (1 - s_sj), the product
+    taken in the order of j (numpy.prod's order along a row; the diagonal's factor 1 is
+    exact), mass_s = (1 - c_s) harmonic_s + c_s arithmetic_s and the density weights
+    weight_is = psi_is^2 ((1 - c_s) + c_s m_i / arithmetic_s) (psi^2 itself where c_s = 0)."""
     n, k = psi.shape
+    c = np.empty(k)
+    for i in range(k):
+        q = 1.0
+        for j in range(k):
+            if j != i:
+                q *= 1.0 - s[i, j]
+        c[i] = 1.0 - q
+        mass[i] = (1.0 - c[i]) * harmonic[i] + c[i] * arithmetic[i]
     for i in range(n):
         row = psi[i]
         out = weight[i]
         mi = mass_node[i]
-        for s in range(k):
-            out[s] = row[s] * row[s] * ((1.0 - c[s]) + c[s] * mi / arithmetic[s])
+        for t in range(k):
+            out[t] = row[t] * row[t] * ((1.0 - c[t]) + c[t] * mi / arithmetic[t])
 
 
 @numba.njit(cache=True, nogil=True)
