@@ -84,7 +84,7 @@ def ldl_band(ab, x):
     pivoting (as :func:`sturm_count`): (lw (m, u) with lw[j, i - j + u] = L[j, i], d (m,))."""
     u = ab.shape[0] - 1
     m = ab.shape[1]
-    lw = np.zeros((m, max(u, 1)), dtype=np.complex128)
+    lw = np.zeros((m, max(u, 1)), dtype=ab.dtype)
     d = np.zeros(m)
     tiny = 1e-300
     for j in range(m):
@@ -134,7 +134,7 @@ def band_apply(ab, x):
     """The Hermitian band matrix ``ab`` (upper storage) times the columns of ``x`` (m, r)."""
     u = ab.shape[0] - 1
     m, r = x.shape
-    y = np.zeros((m, r), dtype=np.complex128)
+    y = np.zeros((m, r), dtype=x.dtype)
     for c in range(r):
         for j in range(m):
             y[j, c] += ab[u, j].real * x[j, c]
@@ -151,16 +151,19 @@ def orthonormalise(x, prev):
     ``prev``, by modified Gram-Schmidt applied twice."""
     m, r = x.shape
     q = x.copy()
+    if m == 0 or r == 0:
+        return q
+    zero = q[0, 0] * 0.0                     # 0 of the arrays' type (real or complex)
     for _ in range(2):
         for c in range(r):
             for p in range(prev.shape[1]):
-                s = 0j
+                s = zero
                 for i in range(m):
                     s += np.conj(prev[i, p]) * q[i, c]
                 for i in range(m):
                     q[i, c] -= s * prev[i, p]
             for p in range(c):
-                s = 0j
+                s = zero
                 for i in range(m):
                     s += np.conj(q[i, p]) * q[i, c]
                 for i in range(m):
