@@ -60,3 +60,15 @@ def test_field_in_the_result_is_the_depletion_field(tmp_path):
         ds = f["profile/electric_field"]
         assert ds.attrs["units"] == "V/cm"
         np.testing.assert_allclose(ds[()], expected, rtol=1e-6, atol=1e-6 * abs(expected[0]))
+
+
+def test_field_gradient_is_numpys():
+    """The field's derivative (selfcon.solver.poisson._gradient2) takes numpy.gradient's
+    edge_order=2 formulas term by term: the same bits on nonuniform and uniform meshes
+    (numpy itself is the reference)."""
+    from selfcon.solver.poisson import _gradient2
+    rng = np.random.default_rng(3)
+    for n in (3, 4, 7, 300):
+        for x in (np.cumsum(rng.uniform(0.05, 2.0, n)), np.arange(n) * 0.25, np.linspace(0.0, 37.0, n)):
+            f = rng.normal(size=n) * 10.0 ** rng.integers(-4, 4)
+            assert np.array_equal(_gradient2(f, x), np.gradient(f, x, edge_order=2))

@@ -90,46 +90,60 @@ def full_spectrum(st, phi, loop_states: dict, n_states: int | None = None) -> di
     k_extra = int(st.states if n_states is None else n_states)
     out = {}
     from selfcon.solver.steps import bands_of, state_degeneracy
+    phi = np.asarray(phi, dtype=float)
+    multiband = getattr(st, "hole_model", "parabolic") != "parabolic"
     for band, (_, _, _, sign, _) in bands_of(st).items():
-        if sign < 0 and getattr(st, "hole_model", "parabolic") != "parabolic":
+        if sign < 0 and multiband:
             continue        # the multiband hole states replace the hole bands (/subbands/hole_kp)
         bs = loop_states.get(band)
-        solved = set() if bs is None else {int(r) for r in np.asarray(bs.region)}
-        parts = []          # (energy, psi, m_par, region, populated)
+        solved = set() if bs is None else set(np.asarray(bs.region).tolist())
+        parts = []          # (energy, psi, m_par, region, populated, bound)
         if bs is not None and bs.energy.size:
-            parts.append((np.asarray(bs.energy, float), np.asarray(bs.psi, float),
-                          np.asarray(bs.m_par, float), np.asarray(bs.region, np.int64),
-                          np.ones(bs.energy.size, dtype=bool)))
+            energy, region = np.asarray(bs.energy, float), np.asarray(bs.region, np.int64)
+            parts.append((energy, np.asarray(bs.psi, float), np.asarray(bs.m_par, float), region,
+                          np.ones(energy.size, dtype=bool), bound_mask(st, phi, band, energy, region)))
         for r_idx in range(len(st.regions)):
             if r_idx in solved:
                 continue
             # bound states only: none below the lower region-end edge costs no eigensolve
-            below = min(sign * edge for edge in region_edges(st, phi, band, r_idx))
+            top, bottom = region_edges(st, phi, band, r_idx)
+            below = min(sign * top, sign * bottom)
             e, psi, m_par = region_states(st, phi, band, r_idx, k_extra, below=below)
             if e.size == 0:
                 continue
-            keep = bound_mask(st, phi, band, e, np.full(e.size, r_idx))
-            if not np.any(keep):
+            # bound_mask of these states (their region's two end edges, as scalars)
+            kinetic = sign * e
+            keep = (kinetic < sign * top) & (kinetic < sign * bottom)
+            count = int(keep.sum())
+            if count == 0:
                 continue
-            parts.append((e[keep], psi[:, keep], m_par[keep], np.full(int(keep.sum()), r_idx, np.int64),
-                          np.zeros(int(keep.sum()), dtype=bool)))
+            if count < e.size:
+                e, psi, m_par = e[keep], psi[:, keep], m_par[keep]
+            parts.append((e, psi, m_par, np.full(count, r_idx, np.int64),
+                          np.zeros(count, dtype=bool), np.ones(count, dtype=bool)))
         if not parts:
             continue
-        energy = np.concatenate([p[0] for p in parts])
-        order = np.argsort(sign * energy, kind="stable")
-        if len(parts) == 1 and np.array_equal(order, np.arange(energy.size)):
-            # one part, already in order: one (N, k) copy instead of two (concatenate, take)
-            psi = np.take(parts[0][1], order, axis=1)
-            m_par, region, populated = parts[0][2].copy(), parts[0][3].copy(), parts[0][4]
+        if len(parts) == 1:
+            energy, psi, m_par, region, populated, bound = parts[0]
+            kinetic = energy if sign > 0 else -energy
+            if energy.size < 2 or bool((kinetic[1:] >= kinetic[:-1]).all()):
+                # one part, already in order (the stable argsort would be the identity): one
+                # fresh C-ordered (N, k) copy of the wavefunctions
+                psi = np.array(psi, dtype=float, order="C")
+                energy, m_par, region, bound = energy.copy(), m_par.copy(), region.copy(), bound.copy()
+            else:
+                order = np.argsort(sign * energy, kind="stable")
+                energy, psi, m_par = energy[order], np.take(psi, order, axis=1), m_par[order]
+                region, populated, bound = region[order], populated[order], bound[order]
         else:
+            energy = np.concatenate([p[0] for p in parts])
+            order = np.argsort(sign * energy, kind="stable")
             energy = energy[order]
             psi = np.take(np.concatenate([p[1] for p in parts], axis=1), order, axis=1)
-            m_par = np.concatenate([p[2] for p in parts])[order]
-            region = np.concatenate([p[3] for p in parts])[order]
-            populated = np.concatenate([p[4] for p in parts])[order]
+            m_par, region, populated, bound = (np.concatenate([p[j] for p in parts])[order]
+                                               for j in (2, 3, 4, 5))
         deg = state_degeneracy(st, band, psi)
         out[band] = BandSpectrum(band=band, energy=energy, psi=psi, m_par=m_par,
                                  dos=deg * DOS2D_PER_M0 * m_par, region=region, degeneracy=deg,
-                                 sign=sign, populated=populated,
-                                 bound=bound_mask(st, phi, band, energy, region))
+                                 sign=sign, populated=populated, bound=bound)
     return out
