@@ -201,3 +201,30 @@ def test_levels_then_vectors_are_the_bits_of_one_solve():
     tilted = v_node + 0.01 * z / z[-1]
     e3, _ = solve_region(h, w, tilted, inv_m, 9, workspace=ws)
     assert np.array_equal(e3, solve_region(h, w, tilted, inv_m, 9)[0])
+
+
+def test_a_warm_solve_finds_the_states_of_a_cold_one():
+    """A solve guided by the states of a nearby potential (solve_region(..., warm=
+    workspace.last), the loop's next iteration: kernels/eigen.py::guided_brackets) gives the
+    cold solve's states: energies within 1e-12 eV (scipy's eigh_tridiagonal is the reference
+    of both), wavefunctions within 1e-9, orthonormal; and guesses that are wrong (a far
+    potential, a shorter or longer list) only cost time: the brackets stay valid."""
+    z, h, w, v_node, inv_m = _tilted_wells()
+    ws = EigenWorkspace(z.size)
+    solve_region(h, w, v_node, inv_m, 9, workspace=ws)
+    for shift in (1e-6, 3e-3, 0.2):           # a small, a large and a far potential change
+        moved = v_node + shift * np.sin(z / 7.0)
+        last = ws.last
+        warm_e, warm_psi = solve_region(h, w, moved, inv_m, 9, workspace=ws, warm=last)
+        cold_e, cold_psi = solve_region(h, w, moved, inv_m, 9)
+        d, e = np.empty(z.size - 2), np.empty(z.size - 3)
+        assemble_tridiagonal(h, w, moved, inv_m, d, e)
+        ref = eigh_tridiagonal(d, e, eigvals_only=True, select="i", select_range=(0, 8))
+        assert np.max(np.abs(warm_e - ref)) < 1e-11 and np.max(np.abs(cold_e - ref)) < 1e-11
+        assert np.max(np.abs(warm_e - cold_e)) < 1e-12
+        assert np.max(np.abs(warm_psi - cold_psi)) < 1e-9
+        assert orthogonality(z, warm_psi) < ORTHO_TOL
+    for k in (4, 12):                          # fewer and more states than the guesses
+        last = ws.last
+        got, _ = solve_region(h, w, v_node, inv_m, k, workspace=ws, warm=last)
+        assert np.max(np.abs(got - solve_region(h, w, v_node, inv_m, k)[0])) < 1e-12

@@ -69,6 +69,9 @@ class EigenWorkspace:
         self.method = method
         self._stebz = self._stein = None
         self._kept = None          # (k, d, e, lo, hi, ||T||) of the last levels() call
+        #: (d, eigenvalues) of the last clustered eigh: the guesses of a warm solve
+        #: (solve_region(..., warm=True), the next iteration of the loop)
+        self.last = None
         self.n = -1
         self.resize(n_nodes)
 
@@ -81,11 +84,14 @@ class EigenWorkspace:
         self.d = np.empty(m)
         self.e = np.empty(max(m - 1, 0))
 
-    def eigh(self, k, first=1):
+    def eigh(self, k, first=1, guess=None, delta=0.0):
         """Eigenpairs ``first``..``k`` (1-based, lowest first) of the tridiagonal (self.d,
         self.e), by default the lowest k: (values, vectors (m, k - first + 1)).  The
         clustered solver takes the lowest k; a window above them (one state of the
-        non-parabolic iteration, selfcon/solver/nonparabolic.py) is LAPACK's."""
+        non-parabolic iteration, selfcon/solver/nonparabolic.py) is LAPACK's.  ``guess``
+        (ascending) and ``delta``: the clustered bisection starts with Sturm counts at
+        guess_j -+ delta (kernels/eigen.py::guided_brackets), the same states by the same
+        convergence criterion from narrower brackets."""
         m = self.d.size
         if not (np.isfinite(self.d).all() and np.isfinite(self.e).all()):
             # a NaN or infinite potential (a diverged step, a broken starting potential): the
@@ -95,15 +101,23 @@ class EigenWorkspace:
         if m == 1:
             return self.d.copy(), np.ones((1, 1))
         if self.method == "clustered" and first == 1:
-            from selfcon.solver.kernels.eigen import eigenpairs_in_brackets, lowest_eigenpairs
+            from selfcon.solver.kernels.eigen import (eigenpairs_in_brackets, guided_brackets,
+                                                      lowest_eigenpairs)
             w = np.empty(k)
             z = np.empty((k, m))
             kept, self._kept = self._kept, None
             if (kept is not None and kept[0] == k and np.array_equal(kept[1], self.d)
                     and np.array_equal(kept[2], self.e)):
                 eigenpairs_in_brackets(self.d, self.e, k, kept[3], kept[4], kept[5], w, z)
+            elif guess is not None:
+                nb = min(k + 1, m)
+                lo, hi = np.empty(nb), np.empty(nb)
+                tnorm, _ = guided_brackets(self.d, self.e, k, np.ascontiguousarray(guess, dtype=float),
+                                           float(delta), lo, hi)
+                eigenpairs_in_brackets(self.d, self.e, k, lo, hi, tnorm, w, z)
             else:
                 lowest_eigenpairs(self.d, self.e, k, w, z)
+            self.last = (self.d.copy(), w)
             return w, z.T
         if self._stebz is None:
             from scipy.linalg import get_lapack_funcs
@@ -122,21 +136,26 @@ class EigenWorkspace:
         return w[order], v[:, order]
 
 
-    def levels(self, k):
+    def levels(self, k, guess=None, delta=0.0):
         """The k lowest eigenvalues of the tridiagonal (self.d, self.e), lowest first, without
         vectors.  The clustered solver returns its bisection brackets' midpoints (within
         1e-4 of the gap to the neighbours of the final energies) and keeps the brackets, so
         that eigh(k) of the same matrix continues from them: the same states as eigh(k)
-        alone, without bisecting twice.  LAPACK's path solves in full (the baseline)."""
+        alone (with the same ``guess`` and ``delta``), without bisecting twice.  LAPACK's
+        path solves in full (the baseline)."""
         m = self.d.size
         if self.method != "clustered" or m < 2:
             return self.eigh(k)[0]
         if not (np.isfinite(self.d).all() and np.isfinite(self.e).all()):
             return self.eigh(k)[0]          # raises, as eigh does
-        from selfcon.solver.kernels.eigen import lowest_brackets
+        from selfcon.solver.kernels.eigen import guided_brackets, lowest_brackets
         nb = min(k + 1, m)
         lo, hi = np.empty(nb), np.empty(nb)
-        tnorm, _ = lowest_brackets(self.d, self.e, k, lo, hi)
+        if guess is None:
+            tnorm, _ = lowest_brackets(self.d, self.e, k, lo, hi)
+        else:
+            tnorm, _ = guided_brackets(self.d, self.e, k, np.ascontiguousarray(guess, dtype=float),
+                                       float(delta), lo, hi)
         self._kept = (k, self.d.copy(), self.e.copy(), lo, hi, tnorm)
         return 0.5 * (lo[:k] + hi[:k])
 
@@ -209,7 +228,7 @@ def count_below(d, e, x) -> int:
 
 
 def solve_region(h_cell, w, v_node, inv_mass_cell, n_states, workspace=None, below=None,
-                 levels_only=False, embed=None):
+                 levels_only=False, embed=None, warm=None):
     """Lowest ``n_states`` states on a sub-mesh with psi = 0 at its two end nodes.
 
     h_cell, inv_mass_cell: (n-1,) cell widths (nm) and inverse masses (1/m0);
@@ -220,9 +239,11 @@ def solve_region(h_cell, w, v_node, inv_mass_cell, n_states, workspace=None, bel
     ``levels_only``: (energies, None) without vectors (:meth:`EigenWorkspace.levels`; a
     following full solve of the same k continues from its brackets).  ``embed`` = (N, row0):
     psi is (N, k), the sub-mesh's rows row0 .. row0 + n - 1 written in place and zeros
-    elsewhere (the full-mesh array of a region, without a copy).  No input
-    checking here beyond shapes: this is the inner-loop call; use :func:`bound_states`
-    for checked input.
+    elsewhere (the full-mesh array of a region, without a copy).  ``warm``: the
+    ``workspace.last`` of a clustered solve of the same problem at a nearby potential (the
+    previous iteration of the loop), whose eigenvalues guide the bisection
+    (:func:`warm_guess`).  No input checking here beyond shapes: this is the inner-loop
+    call; use :func:`bound_states` for checked input.
     """
     h_cell = np.ascontiguousarray(h_cell, dtype=float)
     w = np.ascontiguousarray(w, dtype=float)
@@ -242,9 +263,10 @@ def solve_region(h_cell, w, v_node, inv_mass_cell, n_states, workspace=None, bel
         k = min(k, count_below(workspace.d, workspace.e, float(below)))
         if k <= 0:
             return np.empty(0), np.zeros((n, 0))
+    guess, delta = warm_guess(workspace, warm) if warm is not None else (None, 0.0)
     if levels_only:
-        return workspace.levels(k), None
-    energies, u = workspace.eigh(k)
+        return workspace.levels(k, guess=guess, delta=delta), None
+    energies, u = workspace.eigh(k, guess=guess, delta=delta)
     if embed is None:
         psi = np.empty((n, k))
         wavefunctions(kern, u, w, psi)
@@ -255,6 +277,29 @@ def solve_region(h_cell, w, v_node, inv_mass_cell, n_states, workspace=None, bel
     full[row0 + n:] = 0.0
     wavefunctions(kern, u, w, full[row0:row0 + n])
     return energies, full
+
+
+#: relative and absolute (eV) margins of the bracket half-width of a warm solve over the
+#: largest change of the diagonal: the eigenvalues kept are Rayleigh quotients, within a few
+#: eps ||B|| (~1e-14 eV) of the old matrix's own
+WARM_MARGIN = (1e-6, 1e-10)
+
+
+def warm_guess(workspace, last) -> tuple:
+    """(guesses, delta) of a warm solve of the matrix in ``workspace`` from ``last``, the
+    (diagonal, eigenvalues) of an earlier clustered solve (EigenWorkspace.last): its
+    eigenvalues, and the largest change of the diagonal since plus WARM_MARGIN, which bounds
+    how far each eigenvalue moved (Weyl's inequality; the off-diagonal depends on the mesh
+    and the masses alone, so between iterations only the diagonal changes).  (None, 0.0)
+    when ``last`` is of a matrix of another size."""
+    if workspace.method != "clustered" or last[0].shape != workspace.d.shape:
+        return None, 0.0
+    d_old, w_old = last
+    change = float(np.max(np.abs(workspace.d - d_old))) if d_old.size else 0.0
+    if not math.isfinite(change):
+        return None, 0.0
+    rel, floor = WARM_MARGIN
+    return w_old, change * (1.0 + rel) + floor
 
 
 def wavefunctions(kern, u, w, psi):

@@ -776,9 +776,12 @@ def band_region_states(st: Structure, phi, band: str, r_idx: int, workspace, n_s
                  and not nonparabolic_band(st, band))
     probe = can_probe and probe_first
     k = n_states
+    # the region's last solve (the previous iteration's) guides every bisection of this one,
+    # whichever count they ask for (a count probed first or solved outright: the same states)
+    previous = workspace.last if workspace is not None else None
     while True:
         e, psi = region_eigenstates(st, phi, band, r_idx, k, workspace=workspace, vxc=vxc,
-                                    full=alone, levels_only=probe)
+                                    full=alone, levels_only=probe, warm=previous)
         if e.size < k or k >= MAX_STATES:
             break
         occ = subband_density(e, np.ones(e.size), st.temperature, sign, fermi)
@@ -789,7 +792,7 @@ def band_region_states(st: Structure, phi, band: str, r_idx: int, workspace, n_s
         probe = can_probe
     if probe:
         e, psi = region_eigenstates(st, phi, band, r_idx, k, workspace=workspace, vxc=vxc,
-                                    full=alone)
+                                    full=alone, warm=previous)
     if not alone:
         m_par, weight = in_plane_motion(st, band, e, psi, phi, vxc, region=r_idx)
         return e, psi, m_par, weight, np.full(e.size, r_idx), k
@@ -878,7 +881,7 @@ def region_parts(st: Structure, band: str, r_idx: int):
 
 
 def region_eigenstates(st: Structure, phi, band: str, r_idx: int, n_states: int, workspace=None,
-                       below=None, vxc=None, full=True, levels_only=False):
+                       below=None, vxc=None, full=True, levels_only=False, warm=None):
     """Lowest ``n_states`` eigenstates of the z problem of ``band`` in quantum region
     ``r_idx`` at potential ``phi``.
 
@@ -889,7 +892,10 @@ def region_eigenstates(st: Structure, phi, band: str, r_idx: int, n_states: int,
     ``below``: only the states of kinetic energy (sign * E) below it.  ``vxc``: (N,) eV, the
     exchange-correlation potential energy on the band's kinetic scale (Workspace.vxc).
     ``full=False``: psi (n_r, k) on the region's nodes i0..i1 only.  ``levels_only``: the
-    energies without wavefunctions (psi None; parabolic bands: EigenWorkspace.levels)."""
+    energies without wavefunctions (psi None; parabolic bands: EigenWorkspace.levels).
+    ``warm``: the ``workspace.last`` of this region's solve at a nearby potential (the loop's
+    previous iteration), whose energies guide the bisection
+    (selfcon.solver.schrodinger.warm_guess)."""
     edge_key, mass_key, _, sign, _ = ALL_BANDS[band]
     i0, i1 = st.regions[r_idx]
     n = st.n_nodes
@@ -906,7 +912,7 @@ def region_eigenstates(st: Structure, phi, band: str, r_idx: int, n_states: int,
     embed = (n, i0) if full and not nonparabolic else None    # written in place, no copy
     e, p = schrodinger.solve_region(part.h, part.w, kinetic, inv_mass, n_states,
                                     workspace=workspace, below=below,
-                                    levels_only=levels_only, embed=embed)
+                                    levels_only=levels_only, embed=embed, warm=warm)
     if levels_only:
         return (e if sign > 0 else -e), None
     if embed is not None:

@@ -129,6 +129,45 @@ def lowest_brackets(d, e, k, lo, hi):
     Returns (||T|| as the Gershgorin bound, the absolute floor of the bracket widths).
     Brackets are refined until :func:`_converged`; bracket k (when it exists) is kept as
     a lower bound of the first unwanted eigenvalue, for the gap of the top wanted one."""
+    e2, pivmin, tnorm, atol, nb = _start_brackets(d, e, k, lo, hi)
+    _refine_brackets(d, e2, pivmin, k, nb, lo, hi, atol)
+    return tnorm, atol
+
+
+@numba.njit(cache=True, nogil=True)
+def guided_brackets(d, e, k, guess, delta, lo, hi):
+    """:func:`lowest_brackets` of a matrix whose eigenvalues are known to lie near ``guess``
+    (ascending, any length): the Sturm counts at guess_j - delta and guess_j + delta come
+    first, LANES at a time, then the bisection goes on as there.  Every count narrows the
+    brackets by the same rule, whatever the guesses, so the brackets are as valid as
+    lowest_brackets' and converge by the same criterion; with delta at least the change of
+    every eigenvalue since the guesses (by Weyl's inequality, max |d_new - d_old| for a
+    change of the diagonal alone) each wanted eigenvalue starts in a bracket of width
+    2 delta instead of the Gershgorin interval.  Returns (||T||, the width floor)."""
+    e2, pivmin, tnorm, atol, nb = _start_brackets(d, e, k, lo, hi)
+    x = np.empty(LANES)
+    counts = np.empty(LANES, dtype=np.int64)
+    g = min(guess.shape[0], k)
+    total = 2 * g
+    start = 0
+    while start < total:
+        n = min(LANES, total - start)
+        for lane in range(n):
+            p = start + lane
+            x[lane] = guess[p // 2] - delta if p % 2 == 0 else guess[p // 2] + delta
+        for lane in range(n, LANES):
+            x[lane] = x[0]
+        sturm_counts(d, e2, pivmin, x, counts)
+        _narrow(lo, hi, nb, x, counts, n)
+        start += n
+    _refine_brackets(d, e2, pivmin, k, nb, lo, hi, atol)
+    return tnorm, atol
+
+
+@numba.njit(cache=True, nogil=True)
+def _start_brackets(d, e, k, lo, hi):
+    """Every bracket the Gershgorin interval (widened by LAPACK's fudge): (e^2, pivmin,
+    ||T||, the width floor, the number of brackets nb = min(k + 1, m))."""
     m = d.shape[0]
     e2 = np.empty(max(m - 1, 0))
     for i in range(m - 1):
@@ -140,6 +179,30 @@ def lowest_brackets(d, e, k, lo, hi):
     for j in range(nb):
         lo[j] = gl - fudge
         hi[j] = gu + fudge
+    return e2, pivmin, tnorm, atol, nb
+
+
+@numba.njit(cache=True, nogil=True)
+def _narrow(lo, hi, nb, x, counts, n):
+    """The brackets after the Sturm counts of the first n lanes: c = counts[l] eigenvalues
+    lie below x[l], lambda_j < x[l] for j < c, lambda_j >= x[l] otherwise."""
+    for lane in range(n):
+        c = counts[lane]
+        xv = x[lane]
+        jj = c
+        while jj < nb and lo[jj] < xv:
+            lo[jj] = xv
+            jj += 1
+        jj = min(c, nb) - 1
+        while jj >= 0 and hi[jj] > xv:
+            hi[jj] = xv
+            jj -= 1
+
+
+@numba.njit(cache=True, nogil=True)
+def _refine_brackets(d, e2, pivmin, k, nb, lo, hi, atol):
+    """Bisection of the k lowest brackets until :func:`_converged`: each pass counts at
+    the midpoints of up to LANES unconverged brackets (distinct ones, lowest first)."""
     x = np.empty(LANES)
     counts = np.empty(LANES, dtype=np.int64)
     first = 0
@@ -163,19 +226,7 @@ def lowest_brackets(d, e, k, lo, hi):
         for lane in range(n, LANES):
             x[lane] = x[0]
         sturm_counts(d, e2, pivmin, x, counts)
-        for lane in range(n):
-            c = counts[lane]
-            xv = x[lane]
-            # c eigenvalues lie below xv: lambda_j < xv for j < c, lambda_j >= xv otherwise
-            jj = c
-            while jj < nb and lo[jj] < xv:
-                lo[jj] = xv
-                jj += 1
-            jj = min(c, nb) - 1
-            while jj >= 0 and hi[jj] > xv:
-                hi[jj] = xv
-                jj -= 1
-    return tnorm, atol
+        _narrow(lo, hi, nb, x, counts, n)
 
 
 @numba.njit(cache=True, nogil=True)
