@@ -392,9 +392,10 @@ def test_tridiagonal_lowest_gives_the_lowest_eigenpairs():
 
 def test_forward_norms_is_the_banded_triangular_solve():
     """kernels/kp.py::forward_norms against scipy.linalg.solve_triangular on the dense factor
-    of scipy.linalg.cholesky_banded: |L^-1 r|^2 of every column to 1e-12 relative."""
+    of scipy.linalg.cholesky_banded: |L^-1 r|^2 of every column to 1e-12 relative; and
+    kernels/kp.py::cholesky_solve against scipy.linalg.cho_solve_banded."""
     import scipy.linalg as sla
-    from selfcon.solver.kernels.kp import forward_norms
+    from selfcon.solver.kernels.kp import cholesky_solve, forward_norms
     rng = np.random.default_rng(5)
     n, u, c = 40, 5, 7
     a = rng.normal(size=(n, n))
@@ -410,6 +411,9 @@ def test_forward_norms_is_the_banded_triangular_solve():
     r = rng.normal(size=(n, c))
     ref = np.sum(sla.solve_triangular(L, r, lower=True) ** 2, axis=0)
     assert np.allclose(forward_norms(chol, r), ref, rtol=1e-12, atol=0)
+    # and the whole solve (L L^T)^-1 r against LAPACK's dpbtrs (scipy.linalg.cho_solve_banded)
+    assert np.allclose(cholesky_solve(chol, r), sla.cho_solve_banded((chol, True), r),
+                       rtol=1e-12, atol=1e-14)
 
 
 def test_lowest_banded_real_band_equals_the_complex_solve():
@@ -427,3 +431,20 @@ def test_lowest_banded_real_band_equals_the_complex_solve():
     assert np.allclose(e_r, e_c, atol=1e-12, rtol=0)
     overlap = np.abs(v_c.conj().T @ v_r)          # the same states (distinct values), any phase
     assert np.allclose(overlap, np.eye(6), atol=1e-8)
+
+
+def test_warped_lines_share_their_zone_centre_states():
+    """The [100] and [110] lines at one potential with a shared ``zone`` dict solve the
+    zone-centre states once (the k_par = 0 operator of every half is the same matrix in every
+    direction) and give the energies of separate solves to 1e-12 eV."""
+    mesh, mat = well(cells=(30, 60, 30), jitter=0.3)
+    phi = 0.04 * mesh.z / mesh.z[-1]
+    k_grid = np.linspace(0.0, 0.35, 12)
+    zone, first = {}, None
+    for angle in (0.0, np.pi / 4):
+        alone = kp.reduced_dispersion(mesh.h, mesh.w, mat, phi, 6, 8, k_grid, angle=angle)
+        shared = kp.reduced_dispersion(mesh.h, mesh.w, mat, phi, 6, 8, k_grid, angle=angle, zone=zone)
+        assert np.abs(shared[0] - alone[0]).max() <= 1e-12
+        assert len(zone) == 1
+        first = first or next(iter(zone.values()))
+        assert next(iter(zone.values())) is first            # solved once, taken again

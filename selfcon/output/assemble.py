@@ -159,11 +159,13 @@ def hole_kp_datasets(st, loop) -> dict:
     vxc = loop.workspace.vxc.get("heavy_hole") if loop.workspace is not None else None
     if vxc is not None:                 # the potential the hole states saw (steps.kp_states)
         phi = phi + vxc
+    shared: dict = {}                   # the two lines share their zone-centre states
     out = {"energy": hk.subband_energy.copy(), "occupation": hk.sheet * CM2_PER_NM2,
            "region": hk.subband_region.astype(np.int64), "k_parallel": hk.k_parallel.copy(),
            "dispersion": hk.dispersion.copy(),
-           "dispersion_100": kp.along_direction(st.mesh, st.cell, st.regions, phi, hk, 0.0),
-           "dispersion_110": kp.along_direction(st.mesh, st.cell, st.regions, phi, hk, np.pi / 4),
+           "dispersion_100": kp.along_direction(st.mesh, st.cell, st.regions, phi, hk, 0.0, shared),
+           "dispersion_110": kp.along_direction(st.mesh, st.cell, st.regions, phi, hk, np.pi / 4,
+                                                shared),
            "wavefunction": np.abs(hk.psi0).transpose(0, 2, 1).copy()}
     out.update(kp.subband_figures(hk.k_parallel, hk.dispersion, st.fermi_levels[1]))
     return out

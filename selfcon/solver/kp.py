@@ -712,7 +712,8 @@ def _line_operators(h, w, mat, nb, cx, sy, axial):
 
 
 def reduced_dispersion(h, w, mat: KpMaterial, phi_node, nb: int, n_states: int, k_grid, *,
-                       angle: float | None = None, cache: dict | None = None, threads: int = 1):
+                       angle: float | None = None, cache: dict | None = None, threads: int = 1,
+                       zone: dict | None = None):
     """:func:`dispersion` from a reduced basis, or None where the model does not split into
     real halves (then use :func:`dispersion`): the axial approximation (``angle`` None), or
     the warped Hamiltonian along [100] and [110].
@@ -735,7 +736,9 @@ def reduced_dispersion(h, w, mat: KpMaterial, phi_node, nb: int, n_states: int, 
     potential).  ``cache``: a dict the caller keeps for one region during one solve (the
     loop's Workspace); the basis is kept there and reused at the next potential, and built
     anew when a reused basis fails the check (the potential moves little from one
-    iteration to the next, so the basis of the last one usually still fits).  ``threads``:
+    iteration to the next, so the basis of the last one usually still fits).  ``zone``: a
+    dict that calls at one potential share, its zone-centre states solved once (the
+    k_par = 0 operator is the same in every direction).  ``threads``:
     the two halves side by side (the same bits for any count).  Same return
     as :func:`dispersion` (the states at k = 0 are those of the halves: each Kramers pair as
     the halves' two states)."""
@@ -750,7 +753,7 @@ def reduced_dispersion(h, w, mat: KpMaterial, phi_node, nb: int, n_states: int, 
         return None
     with one_blas_thread():
         return _reduced_dispersion(h, w, mat, phi_node, nb, n_states, k_grid, cx, sy, axial, ops,
-                                   cache, threads)
+                                   cache, threads, zone)
 
 
 def _zone_centre_half(d0, u0, levels):
@@ -780,20 +783,20 @@ def _zone_centre_half(d0, u0, levels):
 
 
 def _reduced_dispersion(h, w, mat, phi_node, nb, n_states, k_grid, cx, sy, axial, ops, cache,
-                        threads):
+                        threads, zone=None):
     key = ("basis", nb, cx, sy, axial, n_states)
     kept = cache.get(key) if cache is not None else None
     phi_node = np.asarray(phi_node, float)
     fresh = kept is None or np.max(np.abs(phi_node - kept[0])) > BASIS_REUSE
     if fresh:
-        basis = _build_basis(ops, phi_node, n_states, threads)
+        basis = _build_basis(ops, phi_node, n_states, threads, zone)
         if basis is None:
             return None
     else:
         basis = kept[1]
     out = _in_basis(basis, ops, w, phi_node, nb, n_states, k_grid, threads)
     if not fresh and out[3].any():           # the kept basis no longer fits: build it anew
-        basis = _build_basis(ops, phi_node, n_states, threads)
+        basis = _build_basis(ops, phi_node, n_states, threads, zone)
         if basis is None:
             return None
         out = _in_basis(basis, ops, w, phi_node, nb, n_states, k_grid, threads)
@@ -812,18 +815,29 @@ def _reduced_dispersion(h, w, mat, phi_node, nb, n_states, k_grid, cx, sy, axial
     return out_E, out_d, psi0
 
 
-def _build_basis(ops, phi_node, n_states, threads=1):
+def _build_basis(ops, phi_node, n_states, threads=1, zone=None):
     """The reduced basis of each half at the potential ``phi_node`` (reduced_dispersion):
-    [(q (m q, K) orthonormal, q^T Z q, q^T B1 q, q^T B2 q)], or None."""
+    [(q (m q, K) orthonormal, q^T Z q, q^T B1 q, q^T B2 q)], or None.  ``zone``: a dict
+    the zone-centre states are kept in with their potential, and taken from at the same
+    potential (the k_par = 0 operator of every half is the same matrix, in every direction
+    to rounding: the [100] and [110] lines of a result share one solve)."""
     import scipy.linalg as sla
+    from selfcon.solver.kernels import kp as kern
     _, halves = ops
     (dz, uz), _, _ = halves[0]
     m, half = dz.shape[0], dz.shape[1]
     phin = np.asarray(phi_node, float)[1:-1]
     eye = np.eye(half)
-    zc = _zone_centre_half(dz + phin[:, None, None] * eye, uz, max(BASIS_LEVELS, n_states))
-    if zc is None:                                      # (the same in both halves)
-        return None
+    levels = max(BASIS_LEVELS, n_states)
+    kept = None if zone is None else zone.get((half, levels))
+    if kept is not None and np.array_equal(kept[0], phi_node):
+        zc = kept[1]
+    else:
+        zc = _zone_centre_half(dz + phin[:, None, None] * eye, uz, levels)
+        if zc is None:                                  # (the same in both halves)
+            return None
+        if zone is not None:
+            zone[(half, levels)] = (np.array(phi_node, float), zc)
     e_zc, V = zc
     sigma = float(e_zc.min()) - BASIS_SHIFT
 
@@ -833,8 +847,7 @@ def _build_basis(ops, phi_node, n_states, threads=1):
         chol = sla.cholesky_banded(_band_lower(d0 - sigma * eye, uz), lower=True, check_finite=False)
 
         def resolve(y):
-            return sla.cho_solve_banded((chol, True), y.reshape(m * half, -1),
-                                        check_finite=False).reshape(m, half, -1)
+            return kern.cholesky_solve(chol, y.reshape(m * half, -1)).reshape(m, half, -1)
         y1 = resolve(_apply(d1, u1, V))
         y2 = resolve(_apply(d2, u2, V))
         y3 = resolve(_apply(d1, u1, y1))
@@ -1218,10 +1231,11 @@ def subband_figures(k_grid, dispersion, efp: float) -> dict:
     return {"mass_band_edge": m_edge, "mass_fermi": m_f, "k_fermi": k_f, "spin_splitting": split}
 
 
-def along_direction(mesh, cell, regions, phi, hk: KpStates, angle: float):
+def along_direction(mesh, cell, regions, phi, hk: KpStates, angle: float, zone=None):
     """The dispersion of the states of ``hk`` along the in-plane direction ``angle`` (radians
     from [100]) with the full, warped Hamiltonian, on ``hk``'s k grid: (n, m) eV, rows in the
-    order of ``hk``'s states (each region's states in energy order at every k)."""
+    order of ``hk``'s states (each region's states in energy order at every k).  ``zone``: a
+    dict the calls of one result share (their zone-centre states, :func:`reduced_dispersion`)."""
     nb = MODELS[hk.model]
     out = np.full(hk.dispersion.shape, np.nan)
     for r in np.unique(hk.subband_region):
@@ -1230,7 +1244,8 @@ def along_direction(mesh, cell, regions, phi, hk: KpStates, angle: float):
         part = mesh.part(i0, i1)
         args = (part.h, part.w, region_material(cell, i0, i1), phi[i0:i1 + 1], nb, rows.size,
                 hk.k_parallel)
-        got = reduced_dispersion(*args, angle=angle)
+        got = reduced_dispersion(*args, angle=angle,
+                                 zone=None if zone is None else zone.setdefault(int(r), {}))
         E = (got if got is not None else dispersion(*args, angle=angle))[0]
         out[rows] = E[:rows.size]
     return out

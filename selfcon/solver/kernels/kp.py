@@ -17,7 +17,8 @@ come out once per copy).  Linear in m.
 **Block products** (:func:`block_apply`): a real symmetric block-tridiagonal matrix times a
 block of vectors, the products of the reduced basis (selfcon.solver.kp.reduced_dispersion);
 :func:`line_residuals` the residuals of its states at every k_par of a line in one call,
-:func:`forward_norms` their norms through the banded Cholesky factor of the resolvent.
+:func:`forward_norms` their norms through the banded Cholesky factor of the resolvent,
+:func:`cholesky_solve` the resolvent applied to a block of vectors (the basis' corrections).
 
 **Small dense eigenproblems** (:func:`tridiagonal_lowest`): the lowest pairs of the reduced
 basis' matrices of every k_par of a line from their tridiagonal forms (LAPACK's dsytrd), by
@@ -272,18 +273,13 @@ def tridiagonal_lowest(d, e, refl, tau, want, theta, coef):
 
 
 @numba.njit(cache=True, nogil=True)
-def forward_norms(ab, r):
-    """Squared norms of the columns of L^-1 r: ``ab`` (u + 1, n) a banded lower triangular L
-    in lower band storage (``ab[i - j, j] = L[i, j]``, scipy.linalg.cholesky_banded's
-    ``lower=True`` layout), ``r`` (n, c).  Forward substitution row by row over all c columns
-    at once (LAPACK's dtbtrs took them one by one)."""
+def _forward(ab, x):
+    """x <- L^-1 x in place, row by row over all columns of ``x`` (n, c) at once; ``ab``
+    (u + 1, n) a banded lower triangular L in lower band storage (``ab[i - j, j] = L[i, j]``,
+    scipy.linalg.cholesky_banded's ``lower=True`` layout)."""
     u = ab.shape[0] - 1
-    n, c = r.shape
-    x = np.empty((n, c))
-    out = np.zeros(c)
+    n, c = x.shape
     for i in range(n):
-        for s in range(c):
-            x[i, s] = r[i, s]
         for j in range(max(0, i - u), i):
             lij = ab[i - j, j]
             for s in range(c):
@@ -291,5 +287,37 @@ def forward_norms(ab, r):
         piv = ab[0, i]
         for s in range(c):
             x[i, s] /= piv
+
+
+@numba.njit(cache=True, nogil=True)
+def forward_norms(ab, r):
+    """Squared norms of the columns of L^-1 r (``ab`` as :func:`_forward`, ``r`` (n, c)),
+    all columns in one pass (LAPACK's dtbtrs solved them one by one)."""
+    n, c = r.shape
+    x = r.copy()
+    _forward(ab, x)
+    out = np.zeros(c)
+    for i in range(n):
+        for s in range(c):
             out[s] += x[i, s] * x[i, s]
     return out
+
+
+@numba.njit(cache=True, nogil=True)
+def cholesky_solve(ab, y):
+    """(L L^T)^-1 y for the columns of ``y`` (n, c), ``ab`` the banded Cholesky factor L as
+    :func:`_forward` takes it: forward and back substitution over all columns at once
+    (LAPACK's dpbtrs behind scipy.linalg.cho_solve_banded solves them one by one)."""
+    u = ab.shape[0] - 1
+    n, c = y.shape
+    x = y.copy()
+    _forward(ab, x)
+    for i in range(n - 1, -1, -1):
+        for j in range(i + 1, min(n, i + u + 1)):
+            lji = ab[j - i, i]
+            for s in range(c):
+                x[i, s] -= lji * x[j, s]
+        piv = ab[0, i]
+        for s in range(c):
+            x[i, s] /= piv
+    return x
