@@ -1074,6 +1074,8 @@ def annulus_states(k_grid, E, dens):
     weight = np.concatenate([wbar.reshape(N, -1), wbar.reshape(N, -1)], axis=1)
     state = np.concatenate([np.repeat(np.arange(n), m - 1)] * 2)
     ok = np.isfinite(energy) & np.isfinite(dos)
+    if ok.all():                                   # (no copies where every term is finite)
+        return energy, dos, weight, state
     return energy[ok], dos[ok], weight[:, ok], state[ok]
 
 
@@ -1155,21 +1157,26 @@ def region_dispersion(h, w, mat, phi_node, nb, n_states, efp, kT, k_top, cache=N
     return k_grid, E, dens, psi0
 
 
-def collect_states(n_nodes: int, model: str, regions, solved, efp: float, kT: float) -> KpStates:
+def collect_states(n_nodes: int, model: str, regions, solved, efp: float, kT: float,
+                   annuli=None) -> KpStates:
     """One :class:`KpStates` from the regions' solves: ``regions`` [(r_idx, i0, i1)],
-    ``solved`` [(k_grid, E, dens, psi0)] on one k grid."""
+    ``solved`` [(k_grid, E, dens, psi0)] on one k grid; ``annuli``: each region's
+    :func:`annulus_states` of them where the caller has them already."""
     nb = MODELS[model]
-    energy, dos, weight, region, sub_e, sub_r, disp, psis, sheets = ([] for _ in range(9))
+    energy, dos, region, sub_e, sub_r, disp, psis, sheets = ([] for _ in range(8))
     qnodes = np.zeros(n_nodes, dtype=bool)
     k_grid = solved[0][0]
-    for (r_idx, i0, i1), (kg, E, dens, psi0) in zip(regions, solved):
+    if annuli is None:
+        annuli = [annulus_states(kg, E, dens) for kg, E, dens, _ in solved]
+    # the weights of every region in one (N, K) array, each region's block written once
+    weight = np.zeros((n_nodes, sum(a[0].size for a in annuli)))
+    col = 0
+    for (r_idx, i0, i1), (kg, E, dens, psi0), (en, d, wt, state) in zip(regions, solved, annuli):
         qnodes[i0:i1 + 1] = True
-        en, d, wt, state = annulus_states(kg, E, dens)
-        full = np.zeros((n_nodes, en.size))
-        full[i0:i1 + 1] = wt
+        weight[i0:i1 + 1, col:col + en.size] = wt
+        col += en.size
         energy.append(en)
         dos.append(d)
-        weight.append(full)
         region.append(np.full(en.size, r_idx))
         sub_e.append(E[:, 0])
         sub_r.append(np.full(E.shape[0], r_idx))
@@ -1181,7 +1188,7 @@ def collect_states(n_nodes: int, model: str, regions, solved, efp: float, kT: fl
     sub_e = np.concatenate(sub_e)
     order = np.argsort(-sub_e, kind="stable")          # lowest hole energy first
     return KpStates(band="hole_kp", model=model, energy=np.concatenate(energy),
-                    dos=np.concatenate(dos), weight=np.ascontiguousarray(np.concatenate(weight, axis=1)),
+                    dos=np.concatenate(dos), weight=weight,
                     region=np.concatenate(region), sign=-1, quantum_nodes=qnodes,
                     subband_energy=sub_e[order], subband_region=np.concatenate(sub_r)[order],
                     k_parallel=k_grid, dispersion=np.concatenate(disp)[order],

@@ -848,9 +848,10 @@ def kp_states(ws: Workspace, phi):
         if grown > k_top * (1 + 1e-12):          # a region needed a longer grid: one grid for all
             k_top = grown
             continue
-        sheets = []
+        sheets, annuli = [], []
         for kg, E, dens, psi0 in solved:
-            en, dos, _, state = kp.annulus_states(kg, E, dens)
+            annuli.append(kp.annulus_states(kg, E, dens))
+            en, dos, _, state = annuli[-1]
             sheets.append(kp.annulus_sheets(en, dos, state, E.shape[0], efp, kT))
         total = sum(float(x.sum()) for x in sheets)
         full = all(s[1].shape[0] >= n and np.all(np.isfinite(s[1])) for s in solved)
@@ -860,7 +861,8 @@ def kp_states(ws: Workspace, phi):
         n = min(2 * n, MAX_STATES)
         ws.n_states[KP_BAND] = n
     ws.kp_top = k_top
-    return kp.collect_states(st.n_nodes, st.hole_model, [t[:3] for t in todo], solved, efp, kT)
+    return kp.collect_states(st.n_nodes, st.hole_model, [t[:3] for t in todo], solved, efp, kT,
+                             annuli=annuli)
 
 
 def region_parts(st: Structure, band: str, r_idx: int):
