@@ -176,6 +176,7 @@ class PoissonProblem:
             raise ValueError("PoissonProblem: nc_v must keep its shape (valleys, N-1)")
         new = self._copy()
         object.__setattr__(new, "nc_v", nc_v)
+        new.__dict__.pop("_fixed_bundles", None)      # its Material bundle holds nc_v
         return new
 
     def with_shift(self, qshift):
@@ -187,14 +188,29 @@ class PoissonProblem:
                        bottom=self.bottom if bottom is None else bottom)
 
     def kernel_args(self):
-        """The (Grid, Material, Quantum) bundles of the kernels (selfcon.solver.kernels.bundles)."""
-        return (Grid(self.h, self.wl, self.wr),
+        """The (Grid, Material, Quantum) bundles of the kernels (selfcon.solver.kernels.bundles).
+        The Grid and Material bundles are made once and kept with the problem: the copies of
+        :meth:`with_quantum` (one per iteration) share them, as they share their arrays."""
+        fixed = self.__dict__.get("_fixed_bundles")
+        if fixed is None:
+            fixed = self.__dict__["_fixed_bundles"] = (
+                Grid(self.h, self.wl, self.wr),
                 Material(self.eps, self.ec0, self.ev0, self.nc, self.nv, self.nd, self.ed,
                          self.na, self.ea, self.sheet_nd, self.sheet_na, self.sheet_ed,
                          self.sheet_ea, self.sheet_fixed, self.ec0_v, self.nc_v, self.ev0_v,
-                         self.nv_v, float(self.kT), bool(self.full_ionization), self.efn, self.efp),
+                         self.nv_v, float(self.kT), bool(self.full_ionization), self.efn, self.efp))
+        return (fixed[0], fixed[1],
                 Quantum(self.cls_e, self.cls_h, self.psi2, self.ek, self.dos_e, self.psi2h,
                         self.ekh, self.dos_h, self.phi_ref, float(self.qshift)))
+
+    def fixed_density(self) -> np.ndarray:
+        """The fixed sheets spread over their dual cells, sheet_fixed / w (nm^-3; read-only,
+        made once and shared like the bundles)."""
+        out = self.__dict__.get("_fixed_density")
+        if out is None:
+            out = self.__dict__["_fixed_density"] = self.sheet_fixed / self.w
+            out.setflags(write=False)
+        return out
 
     def boundaries(self):
         """The Boundaries bundle of the kernels."""
@@ -212,6 +228,18 @@ class PoissonSolution:
     start: "Densities" = None          # densities at the starting point (start_densities=True)
 
 
+_NEWTON = []
+
+
+def _newton():
+    """kernels/poisson.py::poisson_newton, imported on first use (importing this module loads
+    no numba) and kept: every pass of the loop asks for it."""
+    if not _NEWTON:
+        from selfcon.solver.kernels.poisson import poisson_newton
+        _NEWTON.append(poisson_newton)
+    return _NEWTON[0]
+
+
 def solve_poisson(problem, phi0, *, tol=1e-9, max_iter=200, max_step=0.3, backtrack=True,
                   start_densities=False, settle=0.0):
     """Newton solve; returns PoissonSolution (never raises on non-convergence).
@@ -225,7 +253,7 @@ def solve_poisson(problem, phi0, *, tol=1e-9, max_iter=200, max_step=0.3, backtr
     selfcon.solver.steps.charge_residual).  settle > 0: the solve also ends, converged,
     on a full Newton step right after a full one and below settle times it
     (NewtonOptions.settle; the quadratic phase reached)."""
-    from selfcon.solver.kernels.poisson import poisson_newton
+    poisson_newton = _newton()
     hist = np.zeros(max_iter)
     opts = NewtonOptions(float(tol), int(max_iter), float(max_step), bool(backtrack), False,
                          float(settle))
@@ -233,7 +261,7 @@ def solve_poisson(problem, phi0, *, tol=1e-9, max_iter=200, max_step=0.3, backtr
     if start_densities:
         out = np.empty((5, problem.z.shape[0]))
         phi, steps, conv, upd = poisson_newton(*args, out)
-        start = Densities(out[0], out[1], out[2], out[3], problem.sheet_fixed / problem.w, out[4])
+        start = Densities(out[0], out[1], out[2], out[3], problem.fixed_density(), out[4])
     else:
         phi, steps, conv, upd = poisson_newton(*args)
         start = None
@@ -261,7 +289,7 @@ class Densities:
 def densities(problem, phi):
     from selfcon.solver.kernels.poisson import node_densities
     n, p, ndp, nam, _ = node_densities(_f(phi), *problem.kernel_args())
-    return Densities(n, p, ndp, nam, problem.sheet_fixed / problem.w)
+    return Densities(n, p, ndp, nam, problem.fixed_density())
 
 
 def total_charge(problem, phi):

@@ -69,8 +69,8 @@ class EigenWorkspace:
         self.method = method
         self._stebz = self._stein = None
         self._kept = None          # (k, d, e, lo, hi, ||T||) of the last levels() call
-        #: (d, eigenvalues) of the last clustered eigh: the guesses of a warm solve
-        #: (solve_region(..., warm=True), the next iteration of the loop)
+        #: (d, eigenvalues and the lower bound of the next one) of the last clustered eigh:
+        #: the guesses of a warm solve (solve_region(..., warm=last), the loop's next iteration)
         self.last = None
         self.n = -1
         self.resize(n_nodes)
@@ -102,22 +102,27 @@ class EigenWorkspace:
             return self.d.copy(), np.ones((1, 1))
         if self.method == "clustered" and first == 1:
             from selfcon.solver.kernels.eigen import (eigenpairs_in_brackets, guided_brackets,
-                                                      lowest_eigenpairs)
+                                                      lowest_brackets)
             w = np.empty(k)
             z = np.empty((k, m))
             kept, self._kept = self._kept, None
             if (kept is not None and kept[0] == k and np.array_equal(kept[1], self.d)
                     and np.array_equal(kept[2], self.e)):
-                eigenpairs_in_brackets(self.d, self.e, k, kept[3], kept[4], kept[5], w, z)
-            elif guess is not None:
+                lo, hi, tnorm = kept[3], kept[4], kept[5]
+            else:
+                # lowest_eigenpairs in its two halves (the same bits), keeping the brackets
                 nb = min(k + 1, m)
                 lo, hi = np.empty(nb), np.empty(nb)
-                tnorm, _ = guided_brackets(self.d, self.e, k, np.ascontiguousarray(guess, dtype=float),
-                                           float(delta), lo, hi)
-                eigenpairs_in_brackets(self.d, self.e, k, lo, hi, tnorm, w, z)
-            else:
-                lowest_eigenpairs(self.d, self.e, k, w, z)
-            self.last = (self.d.copy(), w)
+                if guess is not None:
+                    tnorm, _ = guided_brackets(self.d, self.e, k, np.ascontiguousarray(guess, dtype=float),
+                                               float(delta), lo, hi)
+                else:
+                    tnorm, _ = lowest_brackets(self.d, self.e, k, lo, hi)
+            eigenpairs_in_brackets(self.d, self.e, k, lo, hi, tnorm, w, z)
+            # the energies and, when there is one, the lower bound of the first state not
+            # asked for: the guesses of a warm solve (warm_guess) bracket it too, so that the
+            # top state's gap to it is known at once
+            self.last = (self.d.copy(), np.append(w, lo[k]) if lo.size > k else w)
             return w, z.T
         if self._stebz is None:
             from scipy.linalg import get_lapack_funcs
@@ -235,7 +240,8 @@ def solve_region(h_cell, w, v_node, inv_mass_cell, n_states, workspace=None, bel
     w, v_node: (n,) dual widths (nm) and node potential (eV, already dual-averaged).
     Returns (energies (k,) eV ascending, psi (n, k) in nm^-1/2 with
     sum_i w_i psi_i^2 = 1); k = min(n_states, n-2).  ``below``: only the states with an
-    energy below it (a Sturm count decides how many; none costs no eigensolve).
+    energy below it (a Sturm count decides how many; none costs no eigensolve; the bisection
+    starts from that count).
     ``levels_only``: (energies, None) without vectors (:meth:`EigenWorkspace.levels`; a
     following full solve of the same k continues from its brackets).  ``embed`` = (N, row0):
     psi is (N, k), the sub-mesh's rows row0 .. row0 + n - 1 written in place and zeros
@@ -264,6 +270,10 @@ def solve_region(h_cell, w, v_node, inv_mass_cell, n_states, workspace=None, bel
         if k <= 0:
             return np.empty(0), np.zeros((n, 0))
     guess, delta = warm_guess(workspace, warm) if warm is not None else (None, 0.0)
+    if guess is None and below is not None:
+        # the k states asked for all lie below ``below``: the bisection starts with that count
+        # (every bracket's top at ``below``), not with the whole Gershgorin interval
+        guess = np.array([float(below)])
     if levels_only:
         return workspace.levels(k, guess=guess, delta=delta), None
     energies, u = workspace.eigh(k, guess=guess, delta=delta)
@@ -287,9 +297,10 @@ WARM_MARGIN = (1e-6, 1e-10)
 
 def warm_guess(workspace, last) -> tuple:
     """(guesses, delta) of a warm solve of the matrix in ``workspace`` from ``last``, the
-    (diagonal, eigenvalues) of an earlier clustered solve (EigenWorkspace.last): its
-    eigenvalues, and the largest change of the diagonal since plus WARM_MARGIN, which bounds
-    how far each eigenvalue moved (Weyl's inequality; the off-diagonal depends on the mesh
+    (diagonal, eigenvalues) of an earlier clustered solve (EigenWorkspace.last; after the
+    eigenvalues the lower bound of the first one not asked for, when it had one): those
+    values, and the largest change of the diagonal since plus WARM_MARGIN, which bounds
+    how far each eigenvalue (and so each bound) moved (Weyl's inequality; the off-diagonal depends on the mesh
     and the masses alone, so between iterations only the diagonal changes).  (None, 0.0)
     when ``last`` is of a matrix of another size."""
     if workspace.method != "clustered" or last[0].shape != workspace.d.shape:

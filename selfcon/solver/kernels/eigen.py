@@ -137,8 +137,9 @@ def lowest_brackets(d, e, k, lo, hi):
 @numba.njit(cache=True, nogil=True)
 def guided_brackets(d, e, k, guess, delta, lo, hi):
     """:func:`lowest_brackets` of a matrix whose eigenvalues are known to lie near ``guess``
-    (ascending, any length): the Sturm counts at guess_j - delta and guess_j + delta come
-    first, LANES at a time, then the bisection goes on as there.  Every count narrows the
+    (any length; the first k + 1 are used, the last of them may be a lower bound of the
+    first eigenvalue not asked for): the Sturm counts at guess_j - delta and guess_j + delta
+    come first, LANES at a time, then the bisection goes on as there.  Every count narrows the
     brackets by the same rule, whatever the guesses, so the brackets are as valid as
     lowest_brackets' and converge by the same criterion; with delta at least the change of
     every eigenvalue since the guesses (by Weyl's inequality, max |d_new - d_old| for a
@@ -147,7 +148,7 @@ def guided_brackets(d, e, k, guess, delta, lo, hi):
     e2, pivmin, tnorm, atol, nb = _start_brackets(d, e, k, lo, hi)
     x = np.empty(LANES)
     counts = np.empty(LANES, dtype=np.int64)
-    g = min(guess.shape[0], k)
+    g = min(guess.shape[0], nb)
     total = 2 * g
     start = 0
     while start < total:
