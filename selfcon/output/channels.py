@@ -697,8 +697,9 @@ def transitions(levels, w) -> dict:
                 continue
             ov = (pe.T @ np.asarray(h.psi, dtype=float)) ** 2          # (ke, kh)
             ke, kh = ov.shape
-            cols["electron_state"].append(np.repeat(np.arange(ke), kh))
-            cols["hole_state"].append(np.tile(np.arange(kh), ke))
+            pairs = np.arange(ke * kh)
+            cols["electron_state"].append(pairs // kh)          # np.repeat(arange(ke), kh)
+            cols["hole_state"].append(pairs % kh)               # np.tile(arange(kh), ke)
             cols["hole_band"].extend([band] * (ke * kh))
             cols["energy"].append((np.asarray(e.energy, float)[:, None]
                                    - np.asarray(h.energy, float)[None, :]).ravel())

@@ -122,7 +122,13 @@ class EigenWorkspace:
             # the energies and, when there is one, the lower bound of the first state not
             # asked for: the guesses of a warm solve (warm_guess) bracket it too, so that the
             # top state's gap to it is known at once
-            self.last = (self.d.copy(), np.append(w, lo[k]) if lo.size > k else w)
+            if lo.size > k:
+                ext = np.empty(k + 1)
+                ext[:k] = w
+                ext[k] = lo[k]
+            else:
+                ext = w.copy()
+            self.last = (self.d.copy(), ext)
             return w, z.T
         if self._stebz is None:
             from scipy.linalg import get_lapack_funcs

@@ -353,13 +353,16 @@ def hole_arrays(st: Structure):
 def _stacked(bands, n_nodes: int):
     """(classical mask, |psi|^2 weights, levels, DOS) of one carrier's bands stacked: the mask
     is 0 at the nodes any of them holds quantum."""
+    if len(bands) == 1:
+        # one band's own arrays as they are (read only): a copy of its (N, K) weights per
+        # Poisson problem cost ~1 ms on a 160-state stack, several problems per iteration
+        b = bands[0]
+        return (np.where(b.quantum_nodes, 0.0, 1.0), np.ascontiguousarray(b.weight),
+                np.ascontiguousarray(b.energy, dtype=float), np.ascontiguousarray(b.dos, dtype=float))
     qn = np.zeros(n_nodes, dtype=bool)
     for b in bands:
         qn |= b.quantum_nodes
-    # one band's own (N, K) weights as they are (read only): a copy per Poisson problem cost
-    # ~1 ms on a 160-state stack, several problems per iteration
-    weights = bands[0].weight if len(bands) == 1 else np.concatenate([b.weight for b in bands], axis=1)
-    return (np.where(qn, 0.0, 1.0), np.ascontiguousarray(weights),
+    return (np.where(qn, 0.0, 1.0), np.ascontiguousarray(np.concatenate([b.weight for b in bands], axis=1)),
             np.concatenate([b.energy for b in bands]), np.concatenate([b.dos for b in bands]))
 
 
