@@ -607,7 +607,12 @@ def check_buffer_carriers(result, structure, deck=None) -> list[str]:
     # the main channel's own subbands near the contact (a short stack) are no buffer carriers
     own = {"electron": np.zeros(z.size), "hole": np.zeros(z.size)}
     j = next((k for k, c in enumerate(result.channels or []) if c.get("main")), -1)
-    if j >= 0:
+    # the subbands vanish outside their quantum regions: when none reaches the last
+    # BUFFER_DEPTH_NM (the usual buffer), their part there is exactly 0 without summing it
+    first = int(np.argmax(sel))
+    reach = (structure is None or not np.array_equal(z, structure.z)
+             or any(i1 >= first for _, i1 in structure.regions))
+    if j >= 0 and reach:
         kind = result.channels[j]["carrier"]
         for band, sb in (result.subbands or {}).items():
             mine = np.asarray(sb.channel) == j

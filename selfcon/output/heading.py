@@ -11,6 +11,7 @@ deck) and travel in the result's provenance as ``overrides`` (a root attribute o
 """
 from __future__ import annotations
 
+import functools
 import re
 
 from selfcon.output.numbers import fmt
@@ -61,16 +62,24 @@ def _spec(key: str):
     return KEYS.get(parts[0], {}).get(parts[-1])
 
 
+@functools.lru_cache(maxsize=8)
+def _deck_as_written(source: str) -> dict:
+    """The TOML tables of a deck's text as written ({} if it does not parse), parsed once per
+    text: every solve of an overridden deck (a study's points, a --set run) asks for its
+    notes.  Shared: read only."""
+    import tomllib
+    try:
+        return tomllib.loads(source) if source else {}
+    except tomllib.TOMLDecodeError:
+        return {}
+
+
 def override_notes(deck) -> list[str]:
     """One note per override of ``deck`` (``--set`` or a study's varied value):
     ``spacer.thickness = 15 nm (deck: 20)``, layers by name; [] for a deck as written."""
     if not getattr(deck, "overrides", ()):
         return []
-    import tomllib
-    try:
-        raw = tomllib.loads(deck._source) if deck._source else {}
-    except (tomllib.TOMLDecodeError, TypeError):
-        raw = {}
+    raw = _deck_as_written(deck._source) if isinstance(deck._source, str) else {}
     notes = []
     for key, _ in deck.overrides:
         spec = _spec(key)

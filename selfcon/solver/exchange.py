@@ -69,7 +69,12 @@ def density_parameter(n, mass, eps):
 
 def exchange_potential(n, mass, eps):
     """Exchange part alone, -(2 / (pi alpha r_s)) Ry*, in eV (<= 0)."""
-    return -2.0 / (math.pi * ALPHA) * density_parameter(n, mass, eps) * effective_rydberg(mass, eps)
+    return _exchange(density_parameter(n, mass, eps), mass, eps)
+
+
+def _exchange(inv_rs, mass, eps):
+    """:func:`exchange_potential` from 1 / r_s (:func:`density_parameter`) already made."""
+    return -2.0 / (math.pi * ALPHA) * inv_rs * effective_rydberg(mass, eps)
 
 
 def xc_potential(n, mass, eps, form: str = "lda"):
@@ -96,4 +101,4 @@ def xc_potential(n, mass, eps, form: str = "lda"):
     y = a_const * inv_rs
     with np.errstate(divide="ignore", invalid="ignore"):
         corr = np.where(y > 0.0, b_const * np.log1p(y) / np.where(y > 0.0, y, 1.0), b_const)
-    return exchange_potential(n, mass, eps) * (1.0 + corr)
+    return _exchange(inv_rs, mass, eps) * (1.0 + corr)        # 1 / r_s made once

@@ -730,7 +730,8 @@ def update_exchange(ws: Workspace, phi, states=None, states_phi=None) -> float:
     else:
         d = ws.classical_densities(phi)
         n, p = d.n, d.p
-    eps = st.node_average(st.cell["eps"])
+    # the node averages of the permittivity and the masses: once per structure (read-only)
+    eps = derived(st, ("node_average", "eps"), lambda: st.node_average(st.cell["eps"]))
     change = 0.0
     for band, (_, mass_key, _, sign, _) in BAND_SPECS.items():
         if band not in st.carriers:
@@ -741,9 +742,9 @@ def update_exchange(ws: Workspace, phi, states=None, states_phi=None) -> float:
         # outside the quantum nodes, and a band with no states at all is zero everywhere)
         v = np.full(st.n_nodes, _xc_at_zero(form))
         there = dens > 0.0
-        if np.any(there):
-            v[there] = xc_potential(dens[there], st.node_average(st.cell[mass_key])[there],
-                                    eps[there], form)
+        if there.any():
+            mass = derived(st, ("node_average", mass_key), lambda: st.node_average(st.cell[mass_key]))
+            v[there] = xc_potential(dens[there], mass[there], eps[there], form)
         old = ws.vxc.get(band)
         change = max(change, float("inf") if old is None else float(np.max(np.abs(v - old))))
         ws.vxc[band] = v
