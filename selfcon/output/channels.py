@@ -112,7 +112,9 @@ def occupied_states(band: str, subbands: dict, channel_rows) -> np.ndarray:
     or heavy plus light holes)."""
     sb = subbands[band]
     kind = BAND_CARRIER[band]
-    kind_total = sum(float(np.sum(v.occupation)) for b, v in subbands.items() if BAND_CARRIER.get(b) == kind)
+    # (np.add.reduce: numpy.sum's own sum of a 1-D array, without its wrapper)
+    kind_total = sum(float(np.add.reduce(np.asarray(v.occupation, dtype=float).ravel()))
+                     for b, v in subbands.items() if BAND_CARRIER.get(b) == kind)
     ch = np.asarray(getattr(sb, "channel", None) if getattr(sb, "channel", None) is not None
                     else np.full(np.asarray(sb.energy).size, -1))
     rows = list(channel_rows or [])

@@ -44,6 +44,18 @@ def _kernels():
     return _KERNELS[0]
 
 
+_EIGEN = []
+
+
+def _eigen_kernels():
+    """(eigenpairs_in_brackets, guided_brackets, lowest_brackets) of kernels/eigen.py,
+    imported on first use and kept, like :func:`_kernels`."""
+    if not _EIGEN:
+        from selfcon.solver.kernels.eigen import eigenpairs_in_brackets, guided_brackets, lowest_brackets
+        _EIGEN.append((eigenpairs_in_brackets, guided_brackets, lowest_brackets))
+    return _EIGEN[0]
+
+
 #: the eigen-solvers of :class:`EigenWorkspace`
 EIGEN_METHODS = ("clustered", "lapack")
 #: the method of a workspace created without one (tools/bench.py switches it to time the
@@ -101,8 +113,7 @@ class EigenWorkspace:
         if m == 1:
             return self.d.copy(), np.ones((1, 1))
         if self.method == "clustered" and first == 1:
-            from selfcon.solver.kernels.eigen import (eigenpairs_in_brackets, guided_brackets,
-                                                      lowest_brackets)
+            eigenpairs_in_brackets, guided_brackets, lowest_brackets = _eigen_kernels()
             w = np.empty(k)
             z = np.empty((k, m))
             kept, self._kept = self._kept, None
@@ -159,7 +170,7 @@ class EigenWorkspace:
             return self.eigh(k)[0]
         if not (np.isfinite(self.d).all() and np.isfinite(self.e).all()):
             return self.eigh(k)[0]          # raises, as eigh does
-        from selfcon.solver.kernels.eigen import guided_brackets, lowest_brackets
+        _, guided_brackets, lowest_brackets = _eigen_kernels()
         nb = min(k + 1, m)
         lo, hi = np.empty(nb), np.empty(nb)
         if guess is None:
