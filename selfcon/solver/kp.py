@@ -919,15 +919,17 @@ def _in_basis(basis, ops, w, phi_node, nb, n_states, k_grid, threads=1):
         # every k: LAPACK's reduction to tridiagonal form, then the lowest pairs and their
         # back-transformation in one kernel call (kernels/kp.py::tridiagonal_lowest)
         dd, ee, tau = np.empty((nk, K)), np.empty((nk, K - 1)), np.empty((nk, K - 1))
-        refl = np.empty((nk, K, K))
+        kk = k_grid[:, None, None]
+        refl = P0 + kk * P1 + (kk * kk) * P2          # (nk, K, K), each symmetric
         lwork = _sytrd_work(K)
         for j in range(nk):
-            k = k_grid[j]
-            a = P0 + k * P1 + (k * k) * P2
-            c, dd[j], ee[j], tau[j], info = sytrd(a.T, lower=1, lwork=lwork, overwrite_a=1)
+            # refl[j].T is Fortran-ordered: dsytrd overwrites it in place with the reflectors,
+            # so refl[j] then holds its output transposed, as tridiagonal_lowest takes it
+            c, dd[j], ee[j], tau[j], info = sytrd(refl[j].T, lower=1, lwork=lwork, overwrite_a=1)
             if info != 0:
                 raise np.linalg.LinAlgError(f"dsytrd failed (info {info})")
-            refl[j] = c.T
+            if not np.shares_memory(c, refl[j]):
+                refl[j] = c.T
         kern.tridiagonal_lowest(dd, ee, refl, tau, want, th, cs)
         return th, cs
     ritz = _per_half(ritz_of, threads)
