@@ -207,36 +207,48 @@ def line_residuals(dz, uz, d1, u1, d2, u2, phi, k_grid, psi, theta):
     H(k) the real symmetric block-tridiagonal matrix with diagonal blocks (dz + phi) + k d1 +
     k^2 d2 (``phi`` (m,) on the diagonal) and upper blocks uz + k u1 + k^2 u2 (each (m, q, q)
     and (m-1, q, q)); ``psi`` (m, q, nk, r) the states of each k, ``theta`` (nk, r) their
-    values.  Returns (m q, nk, r), each entry summed in :func:`block_apply`'s order (the
-    loops run over the contiguous (k, state) pairs innermost)."""
+    values.  Returns (m q, nk, r), each entry summed in :func:`block_apply`'s order; the
+    (k, state) pairs, contiguous in psi and in the result, run as one innermost loop (the
+    matrix entry of each pair's k formed there), which the compiler vectorises."""
     m, q, nk, r = psi.shape
-    out = np.zeros((m * q, nk, r))
+    L = nk * r
+    out = np.zeros((m * q, L))
+    pf = psi.reshape(m, q, L)
+    kk = np.empty(L)
+    k2 = np.empty(L)
+    for j in range(nk):
+        for s in range(r):
+            kk[j * r + s] = k_grid[j]
+            k2[j * r + s] = k_grid[j] * k_grid[j]
+    th = theta.reshape(L)
     for i in range(m):
         for a in range(q):
-            row = i * q + a
+            o = out[i * q + a]
             for b in range(q):
                 c0 = dz[i, a, b] + (phi[i] if a == b else 0.0)
-                for j in range(nk):
-                    k = k_grid[j]
-                    c = (c0 + k * d1[i, a, b]) + (k * k) * d2[i, a, b]
-                    for s in range(r):
-                        out[row, j, s] += c * psi[i, b, j, s]
+                e1 = d1[i, a, b]
+                e2 = d2[i, a, b]
+                x = pf[i, b]
+                for t in range(L):
+                    o[t] += ((c0 + kk[t] * e1) + k2[t] * e2) * x[t]
                 if i + 1 < m:
-                    for j in range(nk):
-                        k = k_grid[j]
-                        c = (uz[i, a, b] + k * u1[i, a, b]) + (k * k) * u2[i, a, b]
-                        for s in range(r):
-                            out[row, j, s] += c * psi[i + 1, b, j, s]
+                    c0 = uz[i, a, b]
+                    e1 = u1[i, a, b]
+                    e2 = u2[i, a, b]
+                    x = pf[i + 1, b]
+                    for t in range(L):
+                        o[t] += ((c0 + kk[t] * e1) + k2[t] * e2) * x[t]
                 if i > 0:
-                    for j in range(nk):
-                        k = k_grid[j]
-                        c = (uz[i - 1, b, a] + k * u1[i - 1, b, a]) + (k * k) * u2[i - 1, b, a]
-                        for s in range(r):
-                            out[row, j, s] += c * psi[i - 1, b, j, s]
-            for j in range(nk):
-                for s in range(r):
-                    out[row, j, s] -= psi[i, a, j, s] * theta[j, s]
-    return out
+                    c0 = uz[i - 1, b, a]
+                    e1 = u1[i - 1, b, a]
+                    e2 = u2[i - 1, b, a]
+                    x = pf[i - 1, b]
+                    for t in range(L):
+                        o[t] += ((c0 + kk[t] * e1) + k2[t] * e2) * x[t]
+            x = pf[i, a]
+            for t in range(L):
+                o[t] -= x[t] * th[t]
+    return out.reshape(m * q, nk, r)
 
 
 @numba.njit(cache=True, nogil=True)
