@@ -448,3 +448,22 @@ def test_warped_lines_share_their_zone_centre_states():
         assert len(zone) == 1
         first = first or next(iter(zone.values()))
         assert next(iter(zone.values())) is first            # solved once, taken again
+
+
+def test_orthonormal_columns_cholesky_qr_and_its_fallback():
+    """kp._orthonormal_columns: on a tall block of columns of very different sizes (as the
+    reduced basis' corrections, condition number ~1e5) Cholesky QR twice gives orthonormal
+    columns (to 1e-14) spanning the block's columns as Householder QR's (numpy.linalg.qr);
+    with a column that repeats another (rank deficient) the Householder path drops it."""
+    rng = np.random.default_rng(4)
+    n, K = 600, 24
+    X = rng.standard_normal((n, K)) * np.logspace(0, 4, K)[None, :]
+    q = kp._orthonormal_columns(X)
+    assert q.shape == (n, K)
+    assert np.abs(q.T @ q - np.eye(K)).max() < 1e-14
+    ref, _ = np.linalg.qr(X)
+    assert np.abs(ref @ (ref.T @ q) - q).max() < 1e-10         # the same column space
+    Y = np.concatenate([X, X[:, :1]], axis=1)                    # one column twice
+    q = kp._orthonormal_columns(Y)
+    assert q.shape == (n, K)
+    assert np.abs(q.T @ q - np.eye(K)).max() < 1e-14
