@@ -467,3 +467,17 @@ def test_orthonormal_columns_cholesky_qr_and_its_fallback():
     q = kp._orthonormal_columns(Y)
     assert q.shape == (n, K)
     assert np.abs(q.T @ q - np.eye(K)).max() < 1e-14
+
+
+def test_ritz_pairs_found_again_where_a_half_needs_them_all(monkeypatch):
+    """With no margin (RITZ_MARGIN = 0: n/2 Ritz pairs per half) a half whose every pair is
+    among the lowest n at some k_par is solved again for all n: the dispersion and densities
+    equal the default's (n/2 + 2 pairs) to 1e-12."""
+    mesh, mat = well(cells=(30, 60, 30), jitter=0.3)
+    phi = 0.04 * mesh.z / mesh.z[-1]
+    k_grid = np.linspace(0.0, 0.35, 12)
+    ref = kp.reduced_dispersion(mesh.h, mesh.w, mat, phi, 6, 8, k_grid)
+    monkeypatch.setattr(kp, "RITZ_MARGIN", 0)
+    got = kp.reduced_dispersion(mesh.h, mesh.w, mat, phi, 6, 8, k_grid)
+    assert np.allclose(got[0], ref[0], rtol=0, atol=1e-12)
+    assert np.allclose(got[1], ref[1], rtol=0, atol=1e-12 * np.abs(ref[1]).max())

@@ -891,6 +891,13 @@ def _orthonormal_columns(X):
     return np.ascontiguousarray(q[:, diag > 1e-10 * diag.max()])
 
 
+def _times_real(T, x):
+    """The complex (p, q) matrix T times the real (m, q, r) stack x: (m, p, r) complex, as
+    its real and imaginary parts (two real products instead of one complex one)."""
+    x = np.ascontiguousarray(x)
+    return np.matmul(T.real, x) + 1j * np.matmul(T.imag, x)
+
+
 def _per_half(fn, threads):
     """[fn(0), fn(1)] for the two halves, on up to ``threads`` threads (selfcon.solver.threads;
     each on one BLAS thread): the same code whatever thread runs a half, so the same bits."""
@@ -902,6 +909,10 @@ def _per_half(fn, threads):
     return run_all(task, [0, 1], threads)
 
 
+#: Ritz pairs of each half found per k_par: half the states asked for and this many more
+#: (each Kramers pair has one state in each half; the spin splitting moves the lowest n of
+#: the two halves apart by one or two), all of them where a half needs every one found
+RITZ_MARGIN = 2
 _SYTRD_WORK: dict = {}
 
 
@@ -931,12 +942,12 @@ def _in_basis(basis, ops, w, phi_node, nb, n_states, k_grid, threads=1):
     phin = np.asarray(phi_node, float)[1:-1]
     eye = np.eye(half)
 
-    def ritz_of(b):
+    def ritz_of(b, want=None):
         q, Pz, P1, P2 = basis[b]
         K = q.shape[1]
         x = q.T @ (q * np.repeat(phin, half)[:, None])
         P0 = Pz + 0.5 * (x + x.T)
-        want = min(n_states, K)
+        want = min(n_states // 2 + RITZ_MARGIN if want is None else want, n_states, K)
         th = np.empty((nk, want))
         cs = np.empty((nk, K, want))
         if K < 2:
@@ -960,11 +971,19 @@ def _in_basis(basis, ops, w, phi_node, nb, n_states, k_grid, threads=1):
         kern.tridiagonal_lowest(dd, ee, refl, tau, want, th, cs)
         return th, cs
     ritz = _per_half(ritz_of, threads)
-    # the lowest n of both halves at each k (hole kinetic scale): how many of each half
-    vals = np.concatenate([t for t, _ in ritz], axis=1)                     # (nk, w0 + w1)
-    src = np.concatenate([np.full(t.shape[1], b) for b, (t, _) in enumerate(ritz)])
-    order = np.argsort(vals, axis=1, kind="stable")[:, :n_states]
-    need = [int(np.max(np.sum(src[order] == b, axis=1))) for b in range(2)]
+    while True:
+        # the lowest n of both halves at each k (hole kinetic scale): how many of each half
+        vals = np.concatenate([t for t, _ in ritz], axis=1)                 # (nk, w0 + w1)
+        src = np.concatenate([np.full(t.shape[1], b) for b, (t, _) in enumerate(ritz)])
+        order = np.argsort(vals, axis=1, kind="stable")[:, :n_states]
+        need = [int(np.max(np.sum(src[order] == b, axis=1))) for b in range(2)]
+        # a half all of whose states are among the lowest n somewhere may hold more below
+        short = [b for b in range(2) if need[b] == ritz[b][0].shape[1]
+                 and need[b] < min(n_states, basis[b][0].shape[1])]
+        if not short:
+            break
+        for b in short:
+            ritz[b] = ritz_of(b, n_states)
     sigma = float(vals[0].min()) - BASIS_SHIFT
 
     def states_of(b):
@@ -983,7 +1002,7 @@ def _in_basis(basis, ops, w, phi_node, nb, n_states, k_grid, threads=1):
         est = kern.forward_norms(chol, res.reshape(m * half, -1)).reshape(nk, -1)   # |L^-1 r|^2
         return (np.any(est > BASIS_TOL, axis=1), -th[:, :nb_].T,
                 np.einsum("iajw,iajw->iwj", psi, psi) * s2[:, None, None],
-                np.einsum("ij,mjk->mik", T[:, b * half:(b + 1) * half], psi[:, :, 0, :]))
+                _times_real(T[:, b * half:(b + 1) * half], psi[:, :, 0, :]))
     parts = _per_half(states_of, threads)
     bad = parts[0][0] | parts[1][0]
     Es, Ds, zero = ([x[i] for x in parts] for i in (1, 2, 3))
