@@ -146,7 +146,11 @@ class PoissonProblem:
                      cls_h=None, psi2h=None, ekh=None, dos_h=None):
         """Copy with the quantum (predictor) part replaced; omitted parts are kept."""
         # called every iteration: copy without re-running the validation of the
-        # unchanged material arrays; check only the shapes of what is replaced
+        # unchanged material arrays; check only the shapes of what is replaced.  The Grid,
+        # Material and Boundaries bundles are made on this problem first, so that every copy
+        # shares them (the loop's base problems are copied once per iteration)
+        self._grid_material()
+        self.boundaries()
         new = self._copy()
         N = self.z.shape[0]
         set_ = lambda k, v: object.__setattr__(new, k, v)
@@ -191,6 +195,13 @@ class PoissonProblem:
         """The (Grid, Material, Quantum) bundles of the kernels (selfcon.solver.kernels.bundles).
         The Grid and Material bundles are made once and kept with the problem: the copies of
         :meth:`with_quantum` (one per iteration) share them, as they share their arrays."""
+        fixed = self._grid_material()
+        return (fixed[0], fixed[1],
+                Quantum(self.cls_e, self.cls_h, self.psi2, self.ek, self.dos_e, self.psi2h,
+                        self.ekh, self.dos_h, self.phi_ref, float(self.qshift)))
+
+    def _grid_material(self):
+        """(Grid, Material) of :meth:`kernel_args`, made once and kept in the problem."""
         fixed = self.__dict__.get("_fixed_bundles")
         if fixed is None:
             fixed = self.__dict__["_fixed_bundles"] = (
@@ -199,9 +210,7 @@ class PoissonProblem:
                          self.na, self.ea, self.sheet_nd, self.sheet_na, self.sheet_ed,
                          self.sheet_ea, self.sheet_fixed, self.ec0_v, self.nc_v, self.ev0_v,
                          self.nv_v, float(self.kT), bool(self.full_ionization), self.efn, self.efp))
-        return (fixed[0], fixed[1],
-                Quantum(self.cls_e, self.cls_h, self.psi2, self.ek, self.dos_e, self.psi2h,
-                        self.ekh, self.dos_h, self.phi_ref, float(self.qshift)))
+        return fixed
 
     def fixed_density(self) -> np.ndarray:
         """The fixed sheets spread over their dual cells, sheet_fixed / w (nm^-3; read-only,
@@ -213,9 +222,13 @@ class PoissonProblem:
         return out
 
     def boundaries(self):
-        """The Boundaries bundle of the kernels."""
-        return Boundaries(int(self.top[0]), float(self.top[1]), int(self.bottom[0]),
-                          float(self.bottom[1]))
+        """The Boundaries bundle of the kernels (made once and kept, like the Grid and
+        Material bundles: the boundaries of a problem and of its quantum copies never change)."""
+        out = self.__dict__.get("_boundaries")
+        if out is None:
+            out = self.__dict__["_boundaries"] = Boundaries(int(self.top[0]), float(self.top[1]),
+                                                             int(self.bottom[0]), float(self.bottom[1]))
+        return out
 
 
 @dataclass

@@ -173,12 +173,8 @@ class Workspace:
         #: band -> (N,) eV exchange-correlation potential energy on the band's kinetic scale
         #: (selfcon.solver.exchange; set by update_exchange, empty for a Hartree solve)
         self.vxc: dict = {}
-        m = structure.mesh
-        fixed = (np.sum((structure.cell["donors"] + structure.cell["acceptors"]) * m.h)
-                 + np.sum(structure.sheet_donors + structure.sheet_acceptors)
-                 + (np.sum(np.abs(structure.sheet_fixed)) if structure.sheet_fixed is not None else 0.0))
         #: classical sheet density (nm^-2) below which a band is not worth an eigensolve
-        self.negligible_sheet = max(NEGLIGIBLE_SHEET, NEGLIGIBLE_FRACTION * float(fixed))
+        self.negligible_sheet = derived(structure, "negligible_sheet", lambda: _negligible_sheet(structure))
 
     def problem(self, phi_ref, states, *, shift=1.0, boundaries=True):
         """Poisson problem whose quantum nodes take their density from ``states``.
@@ -196,6 +192,16 @@ class Workspace:
         if self._classical is None or self._classical[0] is not phi:
             self._classical = (phi, P.densities(self.problem_free, phi))
         return self._classical[1]
+
+
+def _negligible_sheet(structure: Structure) -> float:
+    """Workspace.negligible_sheet of a structure (its doping and fixed sheets alone: made once
+    per structure)."""
+    m = structure.mesh
+    fixed = (np.sum((structure.cell["donors"] + structure.cell["acceptors"]) * m.h)
+             + np.sum(structure.sheet_donors + structure.sheet_acceptors)
+             + (np.sum(np.abs(structure.sheet_fixed)) if structure.sheet_fixed is not None else 0.0))
+    return max(NEGLIGIBLE_SHEET, NEGLIGIBLE_FRACTION * float(fixed))
 
 
 def classical_problems(st: Structure, bc) -> tuple[P.PoissonProblem, P.PoissonProblem]:
