@@ -31,7 +31,7 @@ Arrays in, arrays out; nothing here is compiled at import time.
 import numba
 import numpy as np
 
-from selfcon.solver.kernels.eigen import lowest_eigenpairs
+from selfcon.solver.kernels.eigen import eigenpairs_in_brackets, guided_brackets, lowest_brackets
 
 
 @numba.njit(cache=True)
@@ -258,14 +258,28 @@ def tridiagonal_lowest(d, e, refl, tau, want, theta, coef):
     inputs): ``d`` (nk, K) and ``e`` (nk, K-1) the diagonal and subdiagonal of T, ``refl``
     (nk, K, K) the reflectors (row i holds v(i+2:) of H(i) = I - tau_i v v^T, v(i+1) = 1 and
     v(:i+1) = 0: dsytrd's output array transposed), ``tau`` (nk, K-1).  The pairs of T from
-    the tridiagonal eigensolver (selfcon/solver/kernels/eigen.py::lowest_eigenpairs), its
-    vectors turned back by Q = H(0) H(1) ... H(K-2).  Fills ``theta`` (nk, want) ascending and
-    ``coef`` (nk, K, want), one orthonormal eigenvector per column."""
+    the tridiagonal eigensolver of selfcon/solver/kernels/eigen.py (its bisection brackets,
+    then eigenpairs_in_brackets, as its lowest_eigenpairs), the vectors turned back by
+    Q = H(0) H(1) ... H(K-2).  Fills ``theta`` (nk, want) ascending and
+    ``coef`` (nk, K, want), one orthonormal eigenvector per column.  From the third matrix on
+    (the k_par of a line, in order) the bisection starts with Sturm counts at the previous
+    matrix's values -+ twice the largest step of the last two (eigen.py::guided_brackets: a
+    guess only narrows brackets, a poor one costs counts, never correctness)."""
     nk, K = d.shape
     w = np.empty(want)
     z = np.empty((want, K))
+    nbk = min(want + 1, K)
+    lo = np.empty(nbk)
+    hi = np.empty(nbk)
     for j in range(nk):
-        lowest_eigenpairs(d[j], e[j], want, w, z)
+        if j < 2:
+            tnorm, _ = lowest_brackets(d[j], e[j], want, lo, hi)
+        else:
+            step = 0.0
+            for r in range(want):
+                step = max(step, abs(theta[j - 1, r] - theta[j - 2, r]))
+            tnorm, _ = guided_brackets(d[j], e[j], want, theta[j - 1], 2.0 * step + 1e-9, lo, hi)
+        eigenpairs_in_brackets(d[j], e[j], want, lo, hi, tnorm, w, z)
         for i in range(K - 2, -1, -1):
             t = tau[j, i]
             if t == 0.0:
