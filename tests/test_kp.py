@@ -481,3 +481,33 @@ def test_ritz_pairs_found_again_where_a_half_needs_them_all(monkeypatch):
     got = kp.reduced_dispersion(mesh.h, mesh.w, mat, phi, 6, 8, k_grid)
     assert np.allclose(got[0], ref[0], rtol=0, atol=1e-12)
     assert np.allclose(got[1], ref[1], rtol=0, atol=1e-12 * np.abs(ref[1]).max())
+
+
+def test_collected_states_sum_the_annulus_terms_at_one_energy():
+    """kp.collect_states hands the Poisson kernel one pseudo-subband per state and grid
+    energy (the end of one annulus and the start of the next summed, kernels/kp.py::
+    merge_annuli) where every end term lies at the next grid energy: the hole density with
+    every level moved by a local potential change (the predictor's sum) equals that of
+    annulus_states' terms to rounding of the terms' sizes, with about half the terms; with a
+    flat annulus (narrower than FLAT) the annulus terms are kept as they are."""
+    rng = np.random.default_rng(9)
+    n, m, N = 4, 7, 30
+    k_grid = np.linspace(0.0, 0.4, m)
+    efp, kT = -0.012, 0.002
+    dphi = 0.003 * rng.standard_normal(N)
+
+    def density(en, dos, wt, size=False):
+        x = (en[None, :] - dphi[:, None] - efp) / kT
+        terms = wt * dos[None, :] * kT * np.logaddexp(0.0, x)
+        return np.sum(np.abs(terms) if size else terms, axis=1)
+    for flat in (False, True):
+        E = -0.01 * rng.random((n, 1)) - np.cumsum(0.004 * rng.random((n, m)), axis=1)
+        if flat:
+            E[1, 3] = E[1, 2]
+        dens = rng.random((N, n, m))
+        solved = [(k_grid, E, dens, np.zeros((N, 6, n), dtype=complex))]
+        hk = kp.collect_states(N, "kp6", [(0, 0, N - 1)], solved, efp, kT)
+        en, dos, wt, _ = kp.annulus_states(k_grid, E, dens)
+        scale = density(en, dos, wt, size=True)
+        assert np.all(np.abs(density(hk.energy, hk.dos, hk.weight) - density(en, dos, wt)) <= 1e-14 * scale)
+        assert hk.energy.size == (en.size if flat else n * m)

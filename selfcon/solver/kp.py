@@ -1039,7 +1039,8 @@ class KpStates(NamedTuple):
     """The multiband hole states of the quantum regions at one potential.
 
     The charge: the k_par integral as pseudo-states the Poisson kernel sums like subbands
-    (``energy``, ``dos``, ``weight``: see :func:`annulus_states`), ``quantum_nodes``.  The
+    (``energy``, ``dos``, ``weight``: see :func:`annulus_states`; :func:`collect_states` sums
+    the two terms at each grid energy into one), ``quantum_nodes``.  The
     subbands: ``subband_energy`` (n,) at k_par = 0 (electron scale, lowest hole energy
     first), ``k_parallel`` (m,) nm^-1 per region, ``dispersion`` (n, m) eV (axial),
     ``psi0`` (N, nb, n) complex at k_par = 0, ``sheet`` (n,) nm^-2 held by each,
@@ -1210,22 +1211,39 @@ def collect_states(n_nodes: int, model: str, regions, solved, efp: float, kT: fl
     """One :class:`KpStates` from the regions' solves: ``regions`` [(r_idx, i0, i1)],
     ``solved`` [(k_grid, E, dens, psi0)] on one k grid; ``annuli``: each region's
     :func:`annulus_states` of them where the caller has them already."""
+    from selfcon.solver.kernels import kp as kern
     nb = MODELS[model]
     energy, dos, region, sub_e, sub_r, disp, psis, sheets = ([] for _ in range(8))
     qnodes = np.zeros(n_nodes, dtype=bool)
     k_grid = solved[0][0]
     if annuli is None:
         annuli = [annulus_states(kg, E, dens) for kg, E, dens, _ in solved]
-    # the weights of every region in one (N, K) array, each region's block written once
-    weight = np.zeros((n_nodes, sum(a[0].size for a in annuli)))
+    # the pseudo-subbands the Poisson kernel sums: where every annulus' end term lies at the
+    # next grid energy (no flat annulus, every state at every k_par), the two terms at each
+    # grid energy summed into one (kernels/kp.py::merge_annuli: the kernels sum weight * dos
+    # * F(E - dphi), the same for both, so one term of weight w1 d1 + w2 d2 and dos 1 is the
+    # same sum), about half the terms; else the annulus terms as they are
+    merged = []
+    for (kg, E, dens, psi0), (en, d, wt, state) in zip(solved, annuli):
+        n, m = E.shape
+        a = n * (m - 1)
+        merged.append(m > 1 and en.size == 2 * a and np.array_equal(en[a:], E[:, 1:].ravel()))
+    sizes = [E.size if mg else a[0].size for (_, E, _, _), a, mg in zip(solved, annuli, merged)]
+    weight = np.zeros((n_nodes, sum(sizes)))     # every region's block written once
     col = 0
-    for (r_idx, i0, i1), (kg, E, dens, psi0), (en, d, wt, state) in zip(regions, solved, annuli):
+    for (r_idx, i0, i1), (kg, E, dens, psi0), (en, d, wt, state), mg, size in zip(
+            regions, solved, annuli, merged, sizes):
         qnodes[i0:i1 + 1] = True
-        weight[i0:i1 + 1, col:col + en.size] = wt
-        col += en.size
-        energy.append(en)
-        dos.append(d)
-        region.append(np.full(en.size, r_idx))
+        if mg:
+            kern.merge_annuli(d, wt, E.shape[0], E.shape[1], weight, i0, col)
+            energy.append(E.ravel())
+            dos.append(np.ones(size))
+        else:
+            weight[i0:i1 + 1, col:col + size] = wt
+            energy.append(en)
+            dos.append(d)
+        col += size
+        region.append(np.full(size, r_idx))
         sub_e.append(E[:, 0])
         sub_r.append(np.full(E.shape[0], r_idx))
         disp.append(E)

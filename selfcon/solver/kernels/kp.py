@@ -347,3 +347,27 @@ def cholesky_solve(ab, y):
         for s in range(c):
             x[i, s] /= piv
     return x
+
+
+@numba.njit(cache=True, nogil=True)
+def merge_annuli(dos, weight, n, m, out, row0, col0):
+    """The annulus pseudo-subbands of selfcon.solver.kp.annulus_states (n states on m k_par
+    points: the start terms of every (state, annulus) first, then their end terms, in the
+    same order) with the two terms at each grid energy summed: column col0 + s m + j of
+    ``out`` (from row row0) gets weight * dos of the start term of annulus j (j < m - 1) plus
+    that of the end term of annulus j - 1 (j > 0), for the caller that has checked that each
+    end term lies at the next grid energy."""
+    N = weight.shape[0]
+    a = m - 1
+    half = n * a
+    for i in range(N):
+        for s in range(n):
+            for j in range(m):
+                v = 0.0
+                if j < a:
+                    t = s * a + j
+                    v += weight[i, t] * dos[t]
+                if j > 0:
+                    t = half + s * a + j - 1
+                    v += weight[i, t] * dos[t]
+                out[row0 + i, col0 + s * m + j] = v
