@@ -232,6 +232,8 @@ STRUCTURE_CACHE_NODES = 100_000
 def deck_structure(deck: Deck) -> Structure:
     """``build_structure(deck)``, reused when an equal deck was built by this function
     recently (see :data:`_STRUCTURES`); an error is raised each time, as it is never kept."""
+    if _STRUCTURES and next(reversed(_STRUCTURES)) is deck:
+        return _STRUCTURES[deck]                  # this very deck is the newest already
     st = _STRUCTURES.pop(deck, None)
     if st is None:
         st = build_structure(deck)

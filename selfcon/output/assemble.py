@@ -357,13 +357,14 @@ def build_result(deck, st, loop, *, wall_time: float) -> Result:
         "wall_time_s": float(wall_time),
     }
     rows = [dict(c.as_row(), main=(j == an.main)) for j, c in enumerate(an.channels)]
+    references: dict = {}            # occupied_states' references of each carrier kind, made once
     for band in BANDS:
         sb = subbands.get(band)
         if sb is None and band in schema.VALLEY_BANDS:
             continue                 # written only with physics.quantum_valleys
         for k in range(3):
             summary[f"{band}_E{k}_eV"] = float(sb.energy[k]) if sb is not None and sb.energy.size > k else float("nan")
-        summary[f"{band}_occupied_subbands"] = (int(np.sum(chx.occupied_states(band, subbands, rows)))
+        summary[f"{band}_occupied_subbands"] = (int(np.sum(chx.occupied_states(band, subbands, rows, references)))
                                                 if sb is not None else 0)
     for name in steps.VALLEYS:
         if name in valley_sheets:

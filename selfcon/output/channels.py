@@ -105,20 +105,25 @@ def occupied(population, reference):
     return (pop >= OCCUPIED_CM2) & (pop >= OCCUPIED_FRACTION * ref)
 
 
-def occupied_states(band: str, subbands: dict, channel_rows) -> np.ndarray:
+def occupied_states(band: str, subbands: dict, channel_rows, shared: dict | None = None) -> np.ndarray:
     """:func:`occupied` for the states of one band of a result: each state against its
     channel's sheet density (``subbands[band].channel`` indexes ``channel_rows``, the rows of
     /channels); a state in no channel against all subband carriers of its kind (electrons,
-    or heavy plus light holes)."""
+    or heavy plus light holes).  ``shared``: a dict the calls for the bands of one result
+    may share (the references of each carrier kind are then made once)."""
     sb = subbands[band]
     kind = BAND_CARRIER[band]
-    # (np.add.reduce: numpy.sum's own sum of a 1-D array, without its wrapper)
-    kind_total = sum(float(np.add.reduce(np.asarray(v.occupation, dtype=float).ravel()))
-                     for b, v in subbands.items() if BAND_CARRIER.get(b) == kind)
+    rows = list(channel_rows or [])
+    sheets = None if shared is None else shared.get(kind)
+    if sheets is None:
+        # (np.add.reduce: numpy.sum's own sum of a 1-D array, without its wrapper)
+        kind_total = sum(float(np.add.reduce(np.asarray(v.occupation, dtype=float).ravel()))
+                         for b, v in subbands.items() if BAND_CARRIER.get(b) == kind)
+        sheets = np.array([float(r["sheet_density"]) for r in rows] + [kind_total])
+        if shared is not None:
+            shared[kind] = sheets
     ch = np.asarray(getattr(sb, "channel", None) if getattr(sb, "channel", None) is not None
                     else np.full(np.asarray(sb.energy).size, -1))
-    rows = list(channel_rows or [])
-    sheets = np.array([float(r["sheet_density"]) for r in rows] + [kind_total])
     ch = ch.astype(np.int64, copy=False)
     ref = sheets[np.where((ch >= 0) & (ch < len(rows)), ch, len(rows))]     # the last: no channel
     return occupied(sb.occupation, ref)
@@ -689,7 +694,8 @@ def transitions(levels, w) -> dict:
     """
     by = {lv.band: lv for lv in levels}
     w = np.asarray(w, dtype=float)
-    cols = {"electron_state": [], "hole_band": [], "hole_state": [], "energy": [], "overlap": []}
+    cols = {"electron_state": [], "hole_state": [], "energy": [], "overlap": []}
+    bands = []                      # (hole band, number of pairs) in order
     e = by.get("electron")
     if e is not None and np.asarray(e.energy).size:
         pe = np.asarray(e.psi, dtype=float) * w[:, None]
@@ -702,7 +708,7 @@ def transitions(levels, w) -> dict:
             pairs = np.arange(ke * kh)
             cols["electron_state"].append(pairs // kh)          # np.repeat(arange(ke), kh)
             cols["hole_state"].append(pairs % kh)               # np.tile(arange(kh), ke)
-            cols["hole_band"].extend([band] * (ke * kh))
+            bands.append((band, ke * kh))
             cols["energy"].append((np.asarray(e.energy, float)[:, None]
                                    - np.asarray(h.energy, float)[None, :]).ravel())
             cols["overlap"].append(ov.ravel())
@@ -711,7 +717,13 @@ def transitions(levels, w) -> dict:
         out[key] = np.concatenate(cols[key]).astype(np.int64) if cols[key] else np.zeros(0, np.int64)
     for key in ("energy", "overlap"):
         out[key] = np.concatenate(cols[key]) if cols[key] else np.zeros(0)
-    out["hole_band"] = np.array(cols["hole_band"], dtype=object)
+    # the band of every pair as object array slices (numpy's array() of the list of strings
+    # took as long as the overlaps)
+    out["hole_band"] = np.empty(sum(count for _, count in bands), dtype=object)
+    start = 0
+    for band, count in bands:
+        out["hole_band"][start:start + count] = band
+        start += count
     return out
 
 

@@ -604,22 +604,31 @@ def check_buffer_carriers(result, structure, deck=None) -> list[str]:
         return []
     w = structure.mesh.w
     sel = z >= z[-1] - BUFFER_DEPTH_NM
+    first = int(np.argmax(sel))
+    if sel[first:].all():
+        sel = slice(first, None)        # the nodes increase: those within reach are a tail
     # the main channel's own subbands near the contact (a short stack) are no buffer carriers
-    own = {"electron": np.zeros(z.size), "hole": np.zeros(z.size)}
+    own = {"electron": None, "hole": None}
     j = next((k for k, c in enumerate(result.channels or []) if c.get("main")), -1)
     # the subbands vanish outside their quantum regions: when none reaches the last
     # BUFFER_DEPTH_NM (the usual buffer), their part there is exactly 0 without summing it
-    first = int(np.argmax(sel))
     reach = (structure is None or not np.array_equal(z, structure.z)
              or any(i1 >= first for _, i1 in structure.regions))
     if j >= 0 and reach:
         kind = result.channels[j]["carrier"]
+        own[kind] = np.zeros(z.size)
         for band, sb in (result.subbands or {}).items():
             mine = np.asarray(sb.channel) == j
             if np.any(mine) and BAND_CARRIER.get(band) == kind:
                 own[kind] += (np.asarray(sb.wavefunction)[:, mine] ** 2) @ np.asarray(sb.occupation)[mine] * NM_PER_CM
-    n = float(np.sum((np.asarray(result.profile["electron_density"]) - own["electron"])[sel] * w[sel])) / NM_PER_CM
-    p = float(np.sum((np.asarray(result.profile["hole_density"]) - own["hole"])[sel] * w[sel])) / NM_PER_CM
+
+    def free(key, carrier):
+        """The carriers of ``key`` at the selected nodes less the channel's own (none: x - 0
+        is x, so the density as it is)."""
+        dens = np.asarray(result.profile[key])
+        return dens[sel] if own[carrier] is None else (dens - own[carrier])[sel]
+    n = float(np.sum(free("electron_density", "electron") * w[sel])) / NM_PER_CM
+    p = float(np.sum(free("hole_density", "hole") * w[sel])) / NM_PER_CM
     ns = channel_density(result)
     limit = max(BUFFER_FRACTION * ns, FLOOR_CM2)
     if n + p <= limit:
@@ -823,6 +832,13 @@ def check_strained_offset(result, structure, deck=None) -> list[str]:
 HOLE_WINDOW_NM = 5.0
 
 
+def _sheet_place(t, k, depth, sigma):
+    """The text naming interface ``k`` of the /interfaces columns ``t``, made only when a
+    warning uses it (most interfaces pass the check)."""
+    return lambda: (f"the {str(t['upper'][k])!r}/{str(t['lower'][k])!r} interface (z = {depth[k]:g} nm, "
+                    f"polarization sheet {sigma[k]:+.3g} cm^-2)")
+
+
 @register_check("polarization_holes")
 def check_polarization_holes(result, structure, deck=None) -> list[str]:
     """Holes accumulating at a negative polarization sheet (an N-face channel interface, a
@@ -846,12 +862,11 @@ def check_polarization_holes(result, structure, deck=None) -> list[str]:
     out = []
     for k in np.flatnonzero(sigma < -POLARIZATION_MIN_CM2):
         sel = np.abs(z - depth[k]) <= HOLE_WINDOW_NM
-        where = (f"the {str(t['upper'][k])!r}/{str(t['lower'][k])!r} interface (z = {depth[k]:g} nm, "
-                 f"polarization sheet {sigma[k]:+.3g} cm^-2)")
+        where = _sheet_place(t, k, depth, sigma)
         if not counted:
             top = float(np.max(ev[sel])) if sel.any() else -np.inf
             if top > -VALLEY_KT * kT:
-                out.append(f"holes would accumulate at {where}: the valence edge lies {1e3 * top:+.0f} meV "
+                out.append(f"holes would accumulate at {where()}: the valence edge lies {1e3 * top:+.0f} meV "
                            f"from EF there, but physics.carriers counts no holes; add \"heavy_hole\" and "
                            "\"light_hole\"")
             continue
@@ -863,7 +878,7 @@ def check_polarization_holes(result, structure, deck=None) -> list[str]:
         if any(c.get("main") or c.get("named") for c in own):
             continue            # an intended hole channel
         share = f", {100 * holes / ns:.1f} % of the main channel {main['name']!r}" if ns > 0 else ""
-        out.append(f"holes accumulate at {where}: {_fmt_cm2(holes)} within {HOLE_WINDOW_NM:g} nm{share} "
+        out.append(f"holes accumulate at {where()}: {_fmt_cm2(holes)} within {HOLE_WINDOW_NM:g} nm{share} "
                    f"(limit {_fmt_cm2(limit)}); a two-dimensional hole gas there screens the gate and "
                    "conducts in parallel: thin the layer above the sheet (a cap), dope it n-type to "
                    "compensate the sheet, grade the interface or lower its composition step")

@@ -147,10 +147,12 @@ class PoissonProblem:
         """Copy with the quantum (predictor) part replaced; omitted parts are kept."""
         # called every iteration: copy without re-running the validation of the
         # unchanged material arrays; check only the shapes of what is replaced.  The Grid,
-        # Material and Boundaries bundles are made on this problem first, so that every copy
-        # shares them (the loop's base problems are copied once per iteration)
+        # Material and Boundaries bundles and the fixed-sheet density are made on this
+        # problem first, so that every copy shares them (the loop's base problems are
+        # copied once per iteration)
         self._grid_material()
         self.boundaries()
+        self.fixed_density()
         new = self._copy()
         N = self.z.shape[0]
         set_ = lambda k, v: object.__setattr__(new, k, v)

@@ -105,7 +105,7 @@ class EigenWorkspace:
         guess_j -+ delta (kernels/eigen.py::guided_brackets), the same states by the same
         convergence criterion from narrower brackets."""
         m = self.d.size
-        if not (np.isfinite(self.d).all() and np.isfinite(self.e).all()):
+        if not _kernels().all_finite(self.d, self.e):
             # a NaN or infinite potential (a diverged step, a broken starting potential): the
             # bisection would never narrow its intervals, so stop here, as LAPACK's dstebz does
             raise RuntimeError("the Hamiltonian has non-finite entries (the potential holds NaN or "
@@ -168,7 +168,7 @@ class EigenWorkspace:
         m = self.d.size
         if self.method != "clustered" or m < 2:
             return self.eigh(k)[0]
-        if not (np.isfinite(self.d).all() and np.isfinite(self.e).all()):
+        if not _kernels().all_finite(self.d, self.e):
             return self.eigh(k)[0]          # raises, as eigh does
         _, guided_brackets, lowest_brackets = _eigen_kernels()
         nb = min(k + 1, m)
@@ -323,7 +323,7 @@ def warm_guess(workspace, last) -> tuple:
     if workspace.method != "clustered" or last[0].shape != workspace.d.shape:
         return None, 0.0
     d_old, w_old = last
-    change = float(np.max(np.abs(workspace.d - d_old))) if d_old.size else 0.0
+    change = float(_kernels().largest_change(workspace.d, d_old)) if d_old.size else 0.0
     if not math.isfinite(change):
         return None, 0.0
     rel, floor = WARM_MARGIN

@@ -9,9 +9,16 @@ import numpy as np
 from selfcon.constants import DOS2D_PER_M0, KB_EV, NC_PER_M0_K
 
 
+_KERNELS = []
+
+
 def _k():
-    from selfcon.solver.kernels import statistics as ks
-    return ks
+    """selfcon.solver.kernels.statistics, imported on first use (importing this module loads
+    no numba) and kept: the loop asks for it several times per iteration."""
+    if not _KERNELS:
+        from selfcon.solver.kernels import statistics as ks
+        _KERNELS.append(ks)
+    return _KERNELS[0]
 
 
 def fermi_half(eta):

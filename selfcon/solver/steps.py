@@ -1009,6 +1009,11 @@ def region_states(st: Structure, phi, band: str, r_idx: int, n_states: int, work
     e, psi = region_eigenstates(st, phi, band, r_idx, n_states, workspace, below=below)
     if e.size == 0:
         return e, psi, np.empty(0)
+    if not nonparabolic_band(st, band):
+        # the masses from the region's rows (psi is zero outside them: the sums over the whole
+        # mesh only add zeros, the same bits), as the loop's own solves take them
+        i0, i1 = st.regions[r_idx]
+        return e, psi, in_plane_motion(st, band, e, psi[i0:i1 + 1], phi, region=r_idx)[0]
     return e, psi, in_plane_motion(st, band, e, psi, phi)[0]
 
 
@@ -1030,8 +1035,9 @@ def poisson_pass(ws: Workspace, phi, states, *, predictor: bool, tol: float = PO
     # the first assembly's densities at phi are those of densities(ws, phi, states) (at the
     # reference potential the predictor's shift is zero): the charge check and the result
     # assembly take them from there when the Dirichlet values are phi's own
-    fixed = all(kind != P.DIRICHLET or phi[idx] == value
-                for (kind, value), idx in zip(ws.bc, (0, -1)))
+    (kind0, value0), (kind1, value1) = ws.bc
+    fixed = ((kind0 != P.DIRICHLET or phi[0] == value0)
+             and (kind1 != P.DIRICHLET or phi[-1] == value1))
     sol = P.solve_poisson(prob, phi, tol=tol, max_iter=max_newton, backtrack=backtrack,
                           start_densities=fixed, settle=settle)
     if sol.start is not None:

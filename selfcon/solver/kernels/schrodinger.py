@@ -41,6 +41,34 @@ def assemble_tridiagonal(h, w, v_node, inv_mass_cell, d, e):
 
 
 @numba.njit(cache=True, nogil=True)
+def all_finite(d, e):
+    """True when every entry of d and e is finite (numpy's isfinite(d).all() and
+    isfinite(e).all() in one call: every eigensolve checks its matrix)."""
+    for i in range(d.shape[0]):
+        if not np.isfinite(d[i]):
+            return False
+    for i in range(e.shape[0]):
+        if not np.isfinite(e[i]):
+            return False
+    return True
+
+
+@numba.njit(cache=True, nogil=True)
+def largest_change(a, b):
+    """max_i |a_i - b_i| of two arrays of one length >= 1, NaN when a difference is NaN: the
+    value of numpy's max(abs(a - b)) (a maximum is exact) without its temporaries (every warm
+    eigensolve asks for the change of its diagonal)."""
+    m = 0.0
+    for i in range(a.shape[0]):
+        v = abs(a[i] - b[i])
+        if v != v:
+            return v
+        if v > m:
+            m = v
+    return m
+
+
+@numba.njit(cache=True, nogil=True)
 def rows_to_wavefunctions(z, w, psi):
     """Eigenvectors of B as the rows of z (k, n-2) (the layout of
     selfcon/solver/kernels/eigen.py) -> psi (n, k) with psi = W^{-1/2} u.
