@@ -511,3 +511,20 @@ def test_collected_states_sum_the_annulus_terms_at_one_energy():
         scale = density(en, dos, wt, size=True)
         assert np.all(np.abs(density(hk.energy, hk.dos, hk.weight) - density(en, dos, wt)) <= 1e-14 * scale)
         assert hk.energy.size == (en.size if flat else n * m)
+
+
+def test_reduced_basis_same_bits_with_the_halves_on_two_threads(monkeypatch):
+    """The halves on two threads from HALF_THREADS_NODES region nodes on (lowered here to
+    the test's small well): the same arrays, bit for bit, as one after the other."""
+    mesh, mat = well(cells=(30, 60, 30), jitter=0.3)
+    phi = 0.04 * mesh.z / mesh.z[-1]
+    k_grid = np.linspace(0.0, 0.35, 12)
+    one = kp.reduced_dispersion(mesh.h, mesh.w, mat, phi, 6, 8, k_grid, threads=1)
+    monkeypatch.setattr(kp, "HALF_THREADS_NODES", 0)
+    calls = []
+    real = kp._per_half
+    monkeypatch.setattr(kp, "_per_half", lambda fn, threads: calls.append(threads) or real(fn, threads))
+    two = kp.reduced_dispersion(mesh.h, mesh.w, mat, phi, 6, 8, k_grid, threads=2)
+    assert calls and all(t == 2 for t in calls)
+    for a, b in zip(one, two):
+        assert np.array_equal(a, b)

@@ -654,6 +654,12 @@ BASIS_TOL = 5e-5
 BASIS_REUSE = 5e-3
 #: the k_par-independent operators of this many (mesh, material, direction) are kept
 LINE_CACHE_SIZE = 8
+#: the two halves run on the solve's threads from this many region nodes on, one after the
+#: other below: a half's share of a line is ~1 ms at 430 nodes, where the pool's hand-over
+#: and the two threads' contention cost more than they save (kp6 2dhg_4K, 430 nodes, on the
+#: shared 2-core machine: 2 threads wall +8 %, CPU +8 %; 1700 nodes wall -10 %, CPU +2..+7 %;
+#: 3400 nodes wall -11 %, CPU +8 %)
+HALF_THREADS_NODES = 1000
 _LINE_CACHE: dict = {}
 
 
@@ -739,7 +745,8 @@ def reduced_dispersion(h, w, mat: KpMaterial, phi_node, nb: int, n_states: int, 
     iteration to the next, so the basis of the last one usually still fits).  ``zone``: a
     dict that calls at one potential share, its zone-centre states solved once (the
     k_par = 0 operator is the same in every direction).  ``threads``:
-    the two halves side by side (the same bits for any count).  Same return
+    the two halves side by side where the region has HALF_THREADS_NODES nodes or more (the
+    same bits for any count).  Same return
     as :func:`dispersion` (the states at k = 0 are those of the halves: each Kramers pair as
     the halves' two states)."""
     from selfcon.solver.threads import one_blas_thread
@@ -751,6 +758,8 @@ def reduced_dispersion(h, w, mat: KpMaterial, phi_node, nb: int, n_states: int, 
     ops = _line_operators(h, w, mat, nb, cx, sy, axial)
     if ops is None:
         return None
+    if np.asarray(w).size < HALF_THREADS_NODES:
+        threads = 1
     with one_blas_thread():
         return _reduced_dispersion(h, w, mat, phi_node, nb, n_states, k_grid, cx, sy, axial, ops,
                                    cache, threads, zone)
