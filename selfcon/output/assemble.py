@@ -23,7 +23,7 @@ from selfcon.output.sanity import sanity_failures
 from selfcon.solver.control import MESSAGES, Status
 from selfcon.output import schema
 from selfcon.output.schema import BANDS
-from selfcon.solver.poisson import electric_field
+from selfcon.solver.poisson import electric_field, gradient_coefficients
 
 
 def right_cell_values(cell_values: np.ndarray) -> np.ndarray:
@@ -260,6 +260,19 @@ def _static_layer_rows(st) -> tuple:
     return derived(st, "layer_rows", make)
 
 
+def _field_coefficients(st):
+    """selfcon.solver.poisson.gradient_coefficients of the structure's nodes, made once per
+    structure (model.structure.derived; read-only)."""
+    from selfcon.model.structure import derived
+
+    def make():
+        coef = gradient_coefficients(st.z)
+        for a in (coef[0] if len(coef) > 1 else ()):
+            a.setflags(write=False)
+        return coef
+    return derived(st, "field_coefficients", make)
+
+
 def build_result(deck, st, loop, *, wall_time: float) -> Result:
     """The Result of one solve: ``deck`` (the Deck solved), ``st`` (its Structure), ``loop``
     (the :class:`selfcon.solver.loop.LoopOutcome`, whose workspace holds the densities of
@@ -281,7 +294,8 @@ def build_result(deck, st, loop, *, wall_time: float) -> Result:
         "strain_xx": right_cell_values(st.cell["eps_xx"]),
         "strain_zz": right_cell_values(st.cell["eps_zz"]),
         "potential": phi.copy(),
-        "electric_field": electric_field(st.z, phi),     # the one field rule (selfcon.solver.poisson)
+        # the one field rule (selfcon.solver.poisson), its weights once per structure
+        "electric_field": electric_field(st.z, phi, _field_coefficients(st)),
         "electron_density": n * CM3_PER_NM3,
         "hole_density": p * CM3_PER_NM3,
         "ionized_donors": ndp * CM3_PER_NM3,

@@ -107,7 +107,7 @@ def run_loop(st: Structure, bc, mixer, *, phi0=None, tol=1e-6, charge_tol=1e-6, 
         phi_out, newton_steps = poisson_pass(ws, phi, states, predictor=mixer.predictor,
                                              **control.poisson_settings())
         r = phi_out - phi
-        res = float(np.max(np.abs(r))) if r.size else 0.0
+        res = float(np.abs(r).max()) if r.size else 0.0
         if xc_change > res and len(control.history) > 0:
             res = xc_change          # exchange-correlation still moving: not converged yet
         cres = charge_residual(ws, phi, phi_out, states) if control.needs_charge_check(res) else float("nan")

@@ -380,49 +380,61 @@ def cell_neutral_potential(problem, c):
                              p.ea[c], p.kT, p.full_ionization, valleys, holes, p.efn, p.efp)
 
 
-def electric_field(z, phi):
+def electric_field(z, phi, coefficients=None):
     """E = -dphi/dz at the nodes in V/cm (z in nm, phi in V), the field a result reports.
 
     Second-order differences on the nonuniform mesh: inside, the three-point formula
     (hr s_left + hl s_right)/(hl + hr) of the two neighbouring cell slopes; at the two
     ends the one-sided three-point formula (numpy.gradient, edge_order=2); exact for a
-    quadratic potential, i.e. a uniform charge (two nodes: the one slope)."""
+    quadratic potential, i.e. a uniform charge (two nodes: the one slope).
+    ``coefficients``: :func:`gradient_coefficients` of ``z`` if made already (they depend
+    on the mesh alone; the result assembly keeps them with the structure)."""
     z = _f(z)
     phi = _f(phi)
     if z.size < 3:
         g = np.gradient(phi, z)
     else:
-        g = _gradient2(phi, z)
+        g = _gradient2(phi, z, coefficients)
     return -g * NM_PER_CM
 
 
-def _gradient2(f, x):
+def gradient_coefficients(x):
+    """The weights of :func:`_gradient2` on the nodes ``x`` (>= 3): ``(h,)`` for a uniform
+    spacing, else the (a, b, c) arrays of the inside nodes and the (a, b, c) of each end,
+    numpy.gradient's expressions of the steps."""
+    dx = np.diff(x)
+    if (dx == dx[0]).all():
+        return (dx[0],)
+    dx1, dx2 = dx[:-1], dx[1:]
+    inside = (-(dx2) / (dx1 * (dx1 + dx2)), (dx2 - dx1) / (dx1 * dx2), dx1 / (dx2 * (dx1 + dx2)))
+    dx1, dx2 = dx[0], dx[1]
+    top = (-(2. * dx1 + dx2) / (dx1 * (dx1 + dx2)), (dx1 + dx2) / (dx1 * dx2),
+           - dx1 / (dx2 * (dx1 + dx2)))
+    dx1, dx2 = dx[-2], dx[-1]
+    bottom = ((dx2) / (dx1 * (dx1 + dx2)), - (dx2 + dx1) / (dx1 * dx2),
+              (2. * dx2 + dx1) / (dx2 * (dx1 + dx2)))
+    return inside, top, bottom
+
+
+def _gradient2(f, x, coefficients=None):
     """numpy.gradient(f, x, edge_order=2) of 1-D float arrays of >= 3 values, by its own
     formulas term by term (so with its bits; a uniform spacing, all steps equal, takes its
     uniform ones), without its any-axis machinery: the result assembly asks for it once per
-    solve (tests/test_field.py compares the two)."""
-    dx = np.diff(x)
+    solve (tests/test_field.py compares the two).  ``coefficients``: those of
+    :func:`gradient_coefficients` for ``x``."""
+    coef = gradient_coefficients(x) if coefficients is None else coefficients
     out = np.empty_like(f)
-    if (dx == dx[0]).all():
-        h = dx[0]
+    if len(coef) == 1:
+        h = coef[0]
         out[1:-1] = (f[2:] - f[:-2]) / (2. * h)
         out[0] = (-1.5 / h) * f[0] + (2. / h) * f[1] + (-0.5 / h) * f[2]
         out[-1] = (0.5 / h) * f[-3] + (-2. / h) * f[-2] + (1.5 / h) * f[-1]
         return out
-    dx1, dx2 = dx[:-1], dx[1:]
-    a = -(dx2) / (dx1 * (dx1 + dx2))
-    b = (dx2 - dx1) / (dx1 * dx2)
-    c = dx1 / (dx2 * (dx1 + dx2))
+    (a, b, c), top, bottom = coef
     out[1:-1] = a * f[:-2] + b * f[1:-1] + c * f[2:]
-    dx1, dx2 = dx[0], dx[1]
-    a = -(2. * dx1 + dx2) / (dx1 * (dx1 + dx2))
-    b = (dx1 + dx2) / (dx1 * dx2)
-    c = - dx1 / (dx2 * (dx1 + dx2))
+    a, b, c = top
     out[0] = a * f[0] + b * f[1] + c * f[2]
-    dx1, dx2 = dx[-2], dx[-1]
-    a = (dx2) / (dx1 * (dx1 + dx2))
-    b = - (dx2 + dx1) / (dx1 * dx2)
-    c = (2. * dx2 + dx1) / (dx2 * (dx1 + dx2))
+    a, b, c = bottom
     out[-1] = a * f[-3] + b * f[-2] + c * f[-1]
     return out
 

@@ -129,6 +129,9 @@ class BandStates:
     quantum_nodes: np.ndarray  # (N,) bool: nodes whose density of this carrier comes from these states
     weight: np.ndarray = None  # (N, k) density weight per state (|psi|^2 but for nearly degenerate
                                # states, schrodinger.in_plane_weights), sum_z w weight = 1
+    #: (N,) 0.0 at the quantum nodes, 1.0 elsewhere (the Poisson problem's classical mask of
+    #: a band alone; None: made from quantum_nodes when asked)
+    classical: np.ndarray = None
 
 
 # --------------------------------------------------------------------------- the workspace
@@ -163,6 +166,8 @@ class Workspace:
         self.negligible: dict = {}       # (band, region) -> bool
         #: the (band, region) eigenproblems of every iteration (solve_states, _state_plan)
         self.plan = None
+        #: band -> (its quantum nodes, its classical mask) under the plan (solve_states)
+        self.band_nodes: dict = {}
         self.eigen: dict = {}            # (band, region) -> EigenWorkspace
         #: (band, region) pairs whose count of states did not grow at the last solve
         #: (band_region_states solves them without probing the count first)
@@ -363,7 +368,8 @@ def _stacked(bands, n_nodes: int):
         # one band's own arrays as they are (read only): a copy of its (N, K) weights per
         # Poisson problem cost ~1 ms on a 160-state stack, several problems per iteration
         b = bands[0]
-        return (np.where(b.quantum_nodes, 0.0, 1.0), np.ascontiguousarray(b.weight),
+        cls = getattr(b, "classical", None)
+        return (np.where(b.quantum_nodes, 0.0, 1.0) if cls is None else cls, np.ascontiguousarray(b.weight),
                 np.ascontiguousarray(b.energy, dtype=float), np.ascontiguousarray(b.dos, dtype=float))
     qn = np.zeros(n_nodes, dtype=bool)
     for b in bands:
@@ -604,10 +610,14 @@ def solve_states(ws: Workspace, phi) -> dict:
         mine = mine_of.get(band)
         if not mine:
             continue
-        qnodes = np.zeros(st.n_nodes, dtype=bool)
-        for task, _ in mine:
-            i0, i1 = st.regions[task[1]]
-            qnodes[i0:i1 + 1] = True
+        nodes = ws.band_nodes.get(band)
+        if nodes is None:         # the band's regions are the plan's: the same every iteration
+            qnodes = np.zeros(st.n_nodes, dtype=bool)
+            for task, _ in mine:
+                i0, i1 = st.regions[task[1]]
+                qnodes[i0:i1 + 1] = True
+            nodes = ws.band_nodes[band] = (qnodes, np.where(qnodes, 0.0, 1.0))
+        qnodes, classical = nodes
         ws.n_states[band] = max([ws.n_states[band]] + [res[5] for _, res in mine])
         if mine[0][0][5]:                  # alone: the task's (N, k) arrays
             res = mine[0][1]
@@ -618,13 +628,13 @@ def solve_states(ws: Workspace, phi) -> dict:
                 # argsort would be the identity, so the task's own fresh arrays are the band's
                 out[band] = BandStates(band=band, energy=E, psi=res[1], m_par=res[2], dos=None,
                                        region=res[4], degeneracy=None, sign=sign,
-                                       quantum_nodes=qnodes, weight=res[3])
+                                       quantum_nodes=qnodes, weight=res[3], classical=classical)
                 continue
             order = np.argsort(sign * E, kind="stable")
             out[band] = BandStates(band=band, energy=E[order], psi=np.take(res[1], order, axis=1),
                                    m_par=res[2][order], dos=None, region=res[4][order],
                                    degeneracy=None, sign=sign, quantum_nodes=qnodes,
-                                   weight=np.take(res[3], order, axis=1))
+                                   weight=np.take(res[3], order, axis=1), classical=classical)
             continue
         E = np.concatenate([res[0] for _, res in mine])
         order = np.argsort(sign * E, kind="stable")     # lowest kinetic energy first
@@ -644,7 +654,7 @@ def solve_states(ws: Workspace, phi) -> dict:
             start += count
         out[band] = BandStates(band=band, energy=E[order], psi=psi, m_par=m_par, dos=None,
                                region=region, degeneracy=None, sign=sign, quantum_nodes=qnodes,
-                               weight=weight)
+                               weight=weight, classical=classical)
     if places:
         run_all(_place, places, ws.threads)
     for band, bs in out.items():
