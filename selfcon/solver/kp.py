@@ -1022,7 +1022,9 @@ def _in_basis(basis, ops, w, phi_node, nb, n_states, k_grid, threads=1):
     out_E = np.full((n_states, nk), np.nan)
     out_d = np.zeros((n_nodes, n_states, nk))
     out_E[:got] = np.take_along_axis(E, order, 0)
-    out_d[1:-1, :got] = np.take_along_axis(dens, order[None], 1)
+    # each k_par's chosen states by one gather of (state, k) columns (flat indices)
+    flat = order * nk + np.arange(nk)[None, :]
+    out_d[1:-1, :got] = dens.reshape(m, -1)[:, flat]
     psi0 = np.zeros((n_nodes, nb, got), dtype=complex)
     psi0[1:-1] = np.concatenate(zero, axis=2)[:, :, order[:, 0]] * np.sqrt(s2)[:, None, None]
     return out_E, out_d, psi0, bad
