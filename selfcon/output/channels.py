@@ -59,9 +59,7 @@ channel is measured against all subband carriers of its kind).
 """
 from __future__ import annotations
 
-import bisect
 import math
-import operator
 from dataclasses import dataclass, field
 
 import numpy as np
@@ -300,49 +298,26 @@ def candidate_runs(w, u, density, *, floor_cm2: float = FALLBACK_FLOOR_CM2,
     Peaks are taken from the highest down; each run spans the nodes around its peak where
     the density exceeds ``peak_fraction`` of that peak and does not rise again, without
     leaving its basin or entering an earlier run.  Runs holding less than ``floor_cm2`` are left out.
+    The nodes are walked by a kernel (selfcon/solver/kernels/runs.py::density_runs, the basins
+    of :func:`basins` and this definition node by node; it was the largest part of the result's
+    channel analysis in numpy), the sheet densities summed here as :func:`_sheet` sums them.
     """
     w = np.asarray(w, dtype=float)
-    dens = np.asarray(density, dtype=float)
-    n = dens.size
-    runs = []
-    up = dens[:-1] <= dens[1:]          # up[j]: dens[j] <= dens[j + 1]
-    down = dens[1:] <= dens[:-1]        # down[j]: dens[j + 1] <= dens[j]
-    is_peak = dens > 0                  # >= both neighbours (the mesh ends have one)
-    is_peak[1:] &= up
-    is_peak[:-1] &= down
-    # A run grows from its peak p while the density falls away from it and stays above
-    # thr = peak_fraction * dens[p], inside its basin, without entering an earlier run.  So
-    # its left end lies past the last j < p where the density does not rise towards p
-    # (not up[j]) and past the last earlier run, and on the stretch between, where the
-    # density rises monotonically towards p, past the last node at or below thr: a binary
-    # search.  Likewise on the right.  (The node-by-node walk, in the same order, gave
-    # the same runs; the walk was the cost of the result's channel analysis.)
-    no_up = np.flatnonzero(~up).tolist()
-    no_down = np.flatnonzero(~down).tolist()
-    starts, ends = [], []               # the runs claimed so far (sorted, disjoint)
-    peaks = np.flatnonzero(is_peak).tolist()
-    values = dens.tolist()              # the binary searches on a list: no array slices
-    height = {q: values[q] for q in peaks}
-    for a, b in basins(u):
-        mine = peaks[bisect.bisect_left(peaks, a):bisect.bisect_right(peaks, b)]
-        for p in sorted(mine, key=lambda q: -height[q]):        # highest first (stable on ties)
-            k = bisect.bisect_right(starts, p)
-            if k > 0 and ends[k - 1] >= p:
-                continue                # inside an earlier run
-            thr = peak_fraction * values[p]
-            j = bisect.bisect_left(no_up, p)
-            lo = max(a, no_up[j - 1] + 1 if j else 0, ends[k - 1] + 1 if k else 0)
-            # dens[lo:p] rises: the nodes at or below thr come first
-            i0 = bisect.bisect_right(values, thr, lo, p)
-            j = bisect.bisect_left(no_down, p)
-            hi = min(b, no_down[j] if j < len(no_down) else n - 1, starts[k] - 1 if k < len(starts) else n - 1)
-            # dens[p+1:hi+1] falls: the first node at or below thr ends the run before it
-            i1 = bisect.bisect_left(values, -thr, p + 1, hi + 1, key=operator.neg) - 1
-            starts.insert(k, i0)
-            ends.insert(k, i1)
-            if _sheet(w, dens, i0, i1) >= floor_cm2:
-                runs.append((i0, i1))
-    return sorted(runs)
+    dens = np.ascontiguousarray(density, dtype=float)
+    claimed = _runs_kernel()(np.ascontiguousarray(u, dtype=float), dens, float(peak_fraction))
+    return sorted((i0, i1) for i0, i1 in claimed.tolist() if _sheet(w, dens, i0, i1) >= floor_cm2)
+
+
+_RUNS = []
+
+
+def _runs_kernel():
+    """kernels/runs.py::density_runs, imported on first use (importing this module loads no
+    numba) and kept."""
+    if not _RUNS:
+        from selfcon.solver.kernels.runs import density_runs
+        _RUNS.append(density_runs)
+    return _RUNS[0]
 
 
 def merge_runs(runs, u, kT: float, merge_kt: float = MERGE_KT) -> list[tuple[int, int]]:

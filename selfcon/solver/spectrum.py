@@ -128,9 +128,11 @@ def full_spectrum(st, phi, loop_states: dict, n_states: int | None = None) -> di
             kinetic = energy if sign > 0 else -energy
             if energy.size < 2 or bool((kinetic[1:] >= kinetic[:-1]).all()):
                 # one part, already in order (the stable argsort would be the identity): one
-                # fresh C-ordered (N, k) copy of the wavefunctions
-                psi = np.array(psi, dtype=float, order="C")
-                energy, m_par, region, bound = energy.copy(), m_par.copy(), region.copy(), bound.copy()
+                # fresh C-ordered (N, k) copy of the wavefunctions; a part of extra states is
+                # fresh already (region_states made its arrays for this call alone)
+                if bool(populated[0]) or not psi.flags.c_contiguous:
+                    psi = np.array(psi, dtype=float, order="C")
+                    energy, m_par, region, bound = energy.copy(), m_par.copy(), region.copy(), bound.copy()
             else:
                 order = np.argsort(sign * energy, kind="stable")
                 energy, psi, m_par = energy[order], np.take(psi, order, axis=1), m_par[order]

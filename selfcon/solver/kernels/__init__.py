@@ -5,9 +5,11 @@ Owns the compiled inner loops of stage 3: the finite-volume BenDaniel–Duke eig
 occupation and dopant ionisation (:mod:`~selfcon.solver.kernels.statistics`, with the
 generated table :mod:`~selfcon.solver.kernels._fermi_table`) and the Newton solve of
 nonlinear Poisson (:mod:`~selfcon.solver.kernels.poisson`), whose arrays travel in the
-``typing.NamedTuple`` bundles of :mod:`~selfcon.solver.kernels.bundles`.  Every kernel is
+``typing.NamedTuple`` bundles of :mod:`~selfcon.solver.kernels.bundles`, and the node walk
+of the result's channel detection (:mod:`~selfcon.solver.kernels.runs`).  Every kernel is
 ``@numba.njit(cache=True)``; importing a kernel module compiles nothing.
 
 May import: numpy, numba, ``selfcon.constants`` and each other.  No objects, no files, no
-other selfcon module: the Python glue of :mod:`selfcon.solver` calls the kernels.
+other selfcon module: the Python glue of :mod:`selfcon.solver` (and the channel detection of
+:mod:`selfcon.output.channels`) calls the kernels.
 """
