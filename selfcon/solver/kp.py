@@ -826,7 +826,8 @@ def _reduced_dispersion(h, w, mat, phi_node, nb, n_states, k_grid, cx, sy, axial
 
 def _build_basis(ops, phi_node, n_states, threads=1, zone=None):
     """The reduced basis of each half at the potential ``phi_node`` (reduced_dispersion):
-    [(q (m q, K) orthonormal, q^T Z q, q^T B1 q, q^T B2 q)], or None.  ``zone``: a dict
+    [(q (m q, K) orthonormal, q^T (Z + phi) q, q^T B1 q, q^T B2 q, phi at the interior
+    nodes)], or None.  ``zone``: a dict
     the zone-centre states are kept in with their potential, and taken from at the same
     potential (the k_par = 0 operator of every half is the same matrix, in every direction
     to rounding: the [100] and [110] lines of a result share one solve)."""
@@ -864,10 +865,10 @@ def _build_basis(ops, phi_node, n_states, threads=1, zone=None):
         K = q.shape[1]
         qv = q.reshape(m, half, K)
         P = []
-        for dd, uu in ((dz, uz), (d1, u1), (d2, u2)):
+        for dd, uu in ((d0, uz), (d1, u1), (d2, u2)):      # Z + phi at the build's potential
             x = q.T @ _apply(dd, uu, qv).reshape(m * half, K)
             P.append(0.5 * (x + x.T))
-        return (q, *P)
+        return (q, *P, phin)
     return _per_half(build, threads)
 
 
@@ -952,10 +953,13 @@ def _in_basis(basis, ops, w, phi_node, nb, n_states, k_grid, threads=1):
     eye = np.eye(half)
 
     def ritz_of(b, want=None):
-        q, Pz, P1, P2 = basis[b]
+        q, Pb, P1, P2, phib = basis[b]
         K = q.shape[1]
-        x = q.T @ (q * np.repeat(phin, half)[:, None])
-        P0 = Pz + 0.5 * (x + x.T)
+        if np.array_equal(phin, phib):                     # at the build's potential
+            P0 = Pb
+        else:                                              # Pb + q^T (phi - phi_build) q
+            x = q.T @ (q * np.repeat(phin - phib, half)[:, None])
+            P0 = Pb + 0.5 * (x + x.T)
         want = min(n_states // 2 + RITZ_MARGIN if want is None else want, n_states, K)
         th = np.empty((nk, want))
         cs = np.empty((nk, K, want))
