@@ -676,6 +676,8 @@ def check_valley_splitting(result, structure=None, deck=None) -> list[str]:
     valleys of Si and Ge) are counted as degenerate: the model has no valley splitting."""
     out = []
     subs = result.subbands or {}
+    if "x2_electron" not in subs:
+        return out                   # no valley set along z: nothing to split
     total = sum(float(np.sum(sb.occupation)) for b, sb in subs.items()
                 if BAND_CARRIER.get(b) == "electron")
     for band in ("x2_electron",):

@@ -300,8 +300,10 @@ def solve_region(h_cell, w, v_node, inv_mass_cell, n_states, workspace=None, bel
         return energies, psi
     total, row0 = embed
     full = np.empty((total, k))
-    full[:row0] = 0.0
-    full[row0 + n:] = 0.0
+    if row0:
+        full[:row0] = 0.0
+    if row0 + n < total:
+        full[row0 + n:] = 0.0
     wavefunctions(kern, u, w, full[row0:row0 + n])
     return energies, full
 

@@ -37,6 +37,7 @@ from selfcon.solver import poisson as P
 from selfcon.solver import schrodinger
 from selfcon.solver.control import POISSON_MAX_ITER, POISSON_TOL, START_TOL
 from selfcon.solver.statistics import subband_density
+from selfcon.solver.threads import run_all, thread_count
 
 #: band name -> (edge key, mass along z, in-plane mass, sign: +1 electrons, -1 holes, valley degeneracy)
 BAND_SPECS = {
@@ -153,7 +154,6 @@ class Workspace:
     """
 
     def __init__(self, structure: Structure, bc, threads: int | None = None):
-        from selfcon.solver.threads import thread_count
         self.structure = structure
         #: threads for the independent eigenproblems of each iteration (selfcon.solver.threads)
         self.threads = thread_count(threads)
@@ -588,7 +588,6 @@ def solve_states(ws: Workspace, phi) -> dict:
     (selfcon.solver.threads.run_all) and are put together in a fixed order, so the answer
     does not depend on the thread count.  Each starts from the band's count of states
     of the previous iteration and grows on its own; the band keeps the largest."""
-    from selfcon.solver.threads import run_all
     st = ws.structure
     bands = bands_of(st)
     multiband = st.hole_model != "parabolic"
@@ -818,8 +817,10 @@ def band_region_states(st: Structure, phi, band: str, r_idx: int, workspace, n_s
         return e, psi, m_par, weight, np.full(e.size, r_idx), k
     i0, i1 = st.regions[r_idx]
     weight = np.empty_like(psi)
-    weight[:i0] = 0.0
-    weight[i1 + 1:] = 0.0
+    if i0:
+        weight[:i0] = 0.0
+    if i1 + 1 < weight.shape[0]:
+        weight[i1 + 1:] = 0.0
     m_par, _ = in_plane_motion(st, band, e, psi[i0:i1 + 1], phi, vxc, region=r_idx,
                                weight_out=weight[i0:i1 + 1])
     return e, psi, m_par, weight, np.full(e.size, r_idx), k
