@@ -358,6 +358,31 @@ def test_line_residuals_kernel_is_the_block_product_at_each_k():
         assert np.array_equal(got[:, j, :], ref.reshape(m * q, r))
 
 
+def test_block_apply_into_is_the_dense_product_in_its_columns():
+    """kernels/kp.py::block_apply_into (several block products written into one array, which
+    the basis build projects by one matrix product) against the dense block-tridiagonal
+    matrix times x (numpy), in its columns only, and block_apply's bits there."""
+    from selfcon.solver.kernels.kp import block_apply, block_apply_into
+    rng = np.random.default_rng(5)
+    m, q, r = 7, 3, 4
+    d = rng.normal(size=(m, q, q))
+    d = 0.5 * (d + np.swapaxes(d, 1, 2))
+    u = rng.normal(size=(m - 1, q, q))
+    x = rng.normal(size=(m, q, r))
+    dense = np.zeros((m * q, m * q))
+    for i in range(m):
+        dense[i * q:(i + 1) * q, i * q:(i + 1) * q] = d[i]
+        if i + 1 < m:
+            dense[i * q:(i + 1) * q, (i + 1) * q:(i + 2) * q] = u[i]
+            dense[(i + 1) * q:(i + 2) * q, i * q:(i + 1) * q] = u[i].T
+    y = np.full((m, q, 3 * r), 7.0)
+    block_apply_into(d, u, x, y, r)
+    assert np.allclose(y[:, :, r:2 * r].reshape(m * q, r), dense @ x.reshape(m * q, r),
+                       rtol=0, atol=1e-12)
+    assert np.all(y[:, :, :r] == 7.0) and np.all(y[:, :, 2 * r:] == 7.0)
+    assert np.array_equal(y[:, :, r:2 * r], block_apply(d, u, x))
+
+
 def test_tridiagonal_lowest_gives_the_lowest_eigenpairs():
     """kernels/kp.py::tridiagonal_lowest (LAPACK's dsytrd, then the tridiagonal eigensolver
     and the back-transformation) against numpy.linalg.eigh (LAPACK): the lowest values to

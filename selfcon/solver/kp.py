@@ -864,10 +864,15 @@ def _build_basis(ops, phi_node, n_states, threads=1, zone=None):
         q = _orthonormal_columns(np.concatenate([V, y1, y2, y3], axis=2).reshape(m * half, -1))
         K = q.shape[1]
         qv = q.reshape(m, half, K)
-        P = []
-        for dd, uu in ((d0, uz), (d1, u1), (d2, u2)):      # Z + phi at the build's potential
-            x = q.T @ _apply(dd, uu, qv).reshape(m * half, K)
-            P.append(0.5 * (x + x.T))
+        # Z + phi at the build's potential, B1 and B2 applied into one array and projected
+        # by one matrix product (about 0.6 of three products' time, the same bits)
+        ops3 = ((d0, uz), (d1, u1), (d2, u2))
+        y = np.empty((m, half, 3 * K))
+        for s, (dd, uu) in enumerate(ops3):
+            kern.block_apply_into(np.ascontiguousarray(dd, dtype=float),
+                                  np.ascontiguousarray(uu, dtype=float), qv, y, s * K)
+        x = q.T @ y.reshape(m * half, 3 * K)
+        P = [0.5 * (x[:, s * K:(s + 1) * K] + x[:, s * K:(s + 1) * K].T) for s in range(3)]
         return (q, *P, phin)
     return _per_half(build, threads)
 
@@ -886,16 +891,22 @@ def _orthonormal_columns(X):
     1e-10 of the largest: linearly dependent corrections) where the first factor shows
     poorer conditioning than CHOLQR_RATIO or the factorisation fails."""
     from scipy.linalg import blas, lapack
-    Q = X
+    Q = np.ascontiguousarray(X)
     for rnd in range(2):
         G = blas.dsyrk(1.0, Q.T)                  # the upper triangle of Q^T Q
         R, info = lapack.dpotrf(G, lower=0, clean=1)
         d = np.abs(np.diag(R))
         if info != 0 or not np.all(np.isfinite(d)) or (rnd == 0 and d.min() < CHOLQR_RATIO * d.max()):
             break
-        Q = blas.dtrsm(1.0, R, Q, side=1, lower=0)   # Q R^-1
+        # Q R^-1 as a product with the triangular inverse (K^3/3, small): the tall product
+        # takes about half the time of the triangular solve on the C-ordered block, which
+        # LAPACK's wrapper copied to Fortran order and back
+        Rinv, info = lapack.dtrtri(R, lower=0)
+        if info != 0:
+            break
+        Q = Q @ Rinv
     else:
-        return np.ascontiguousarray(Q)
+        return Q
     q, r = np.linalg.qr(X)
     diag = np.abs(np.diag(r))
     return np.ascontiguousarray(q[:, diag > 1e-10 * diag.max()])

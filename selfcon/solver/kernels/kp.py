@@ -183,22 +183,37 @@ def block_apply(d, u, x):
     """The real symmetric block-tridiagonal matrix with diagonal blocks ``d`` (m, q, q) and
     upper blocks ``u`` (m-1, q, q) times the columns of ``x`` (m, q, r): y (m, q, r)."""
     m, q, r = x.shape
-    y = np.zeros((m, q, r))
+    y = np.empty((m, q, r))
+    block_apply_into(d, u, x, y, 0)
+    return y
+
+
+@numba.njit(cache=True, nogil=True)
+def block_apply_into(d, u, x, y, col):
+    """:func:`block_apply` of ``x`` (m, q, r) written into the columns ``col .. col + r`` of
+    ``y`` (m, q, R), so that several products share one array (one matrix product projects
+    them all).  Each entry summed in a local row from zero, in the same order (the same
+    bits); the local row keeps the innermost loop free of possible aliasing, so the compiler
+    vectorises it."""
+    m, q, r = x.shape
+    row = np.empty(r)
     for i in range(m):
         for a in range(q):
+            row[:] = 0.0
             for b in range(q):
                 c = d[i, a, b]
                 for s in range(r):
-                    y[i, a, s] += c * x[i, b, s]
+                    row[s] += c * x[i, b, s]
                 if i + 1 < m:
                     c = u[i, a, b]
                     for s in range(r):
-                        y[i, a, s] += c * x[i + 1, b, s]
+                        row[s] += c * x[i + 1, b, s]
                 if i > 0:
                     c = u[i - 1, b, a]
                     for s in range(r):
-                        y[i, a, s] += c * x[i - 1, b, s]
-    return y
+                        row[s] += c * x[i - 1, b, s]
+            for s in range(r):
+                y[i, a, col + s] = row[s]
 
 
 @numba.njit(cache=True, nogil=True)
