@@ -383,6 +383,38 @@ def test_block_apply_into_is_the_dense_product_in_its_columns():
     assert np.array_equal(y[:, :, r:2 * r], block_apply(d, u, x))
 
 
+def test_side_by_side_sturm_counts_and_the_bisection():
+    """kernels/kp.py::sturm_counts (several factorisations side by side) gives sturm_count's
+    counts at every point, on real and complex band matrices of several bandwidths; and
+    lowest_eigenvalues (every open bracket halved in one pass of them) brackets the lowest
+    eigenvalues of numpy.linalg.eigvalsh (LAPACK) to its tolerance, a degenerate pair too."""
+    from selfcon.solver.kernels.kp import lowest_eigenvalues, sturm_count, sturm_counts
+    rng = np.random.default_rng(3)
+    for dtype in (float, complex):
+        for u in (0, 1, 3):
+            m = 40
+            ab = rng.normal(size=(u + 1, m)).astype(dtype)
+            if dtype is complex:
+                ab = ab + 1j * rng.normal(size=(u + 1, m))
+            ab[u] = ab[u].real
+            xs = rng.uniform(-4.0, 4.0, 7)
+            got = np.empty(7, dtype=np.int64)
+            sturm_counts(ab, xs, got)
+            assert [int(c) for c in got] == [sturm_count(ab, x) for x in xs]
+            dense = np.zeros((m, m), dtype=dtype)
+            for off in range(u + 1):
+                for j in range(off, m):
+                    dense[j - off, j] = ab[u - off, j]
+            dense = np.triu(dense) + np.triu(dense, 1).conj().T
+            ref = np.linalg.eigvalsh(dense)[:6]
+            centre, half = lowest_eigenvalues(ab, 6, -50.0, 50.0, 1e-9, np.empty(0))
+            assert np.all(half <= 1e-9) and np.all(np.abs(centre - ref) <= 1e-9)
+    ab = np.zeros((2, 10))                  # diagonal 1, 1, 2, 3, ...: a degenerate lowest pair
+    ab[1] = [1.0, 1.0] + list(range(2, 10))
+    centre, _ = lowest_eigenvalues(ab, 3, -1.0, 20.0, 1e-10, np.empty(0))
+    assert np.allclose(centre, [1.0, 1.0, 2.0], atol=1e-10, rtol=0)
+
+
 def test_tridiagonal_lowest_gives_the_lowest_eigenpairs():
     """kernels/kp.py::tridiagonal_lowest (LAPACK's dsytrd, then the tridiagonal eigensolver
     and the back-transformation) against numpy.linalg.eigh (LAPACK): the lowest values to

@@ -60,11 +60,68 @@ def lowest_eigenvalues(ab, k, lo, hi, tol, probes):
         if x <= lo or x >= hi:
             continue
         _narrow(lower, upper, x, sturm_count(ab, x))
-    for i in range(k):
-        while upper[i] - lower[i] > tol:
-            x = 0.5 * (lower[i] + upper[i])
-            _narrow(lower, upper, x, sturm_count(ab, x))
+    # each pass halves every open bracket at once: the midpoints of the distinct brackets
+    # wider than tol counted side by side (sturm_counts: independent factorisations, a few
+    # times the throughput of one), as many passes as the widest bracket needs halvings
+    xs = np.empty(k)
+    counts = np.empty(k, dtype=np.int64)
+    while True:
+        n = 0
+        for i in range(k):
+            if upper[i] - lower[i] > tol and (n == 0 or lower[i] != lower[i - 1]
+                                                or upper[i] != upper[i - 1]):
+                xs[n] = 0.5 * (lower[i] + upper[i])
+                n += 1
+        if n == 0:
+            break
+        sturm_counts(ab, xs[:n], counts[:n])
+        for p in range(n):
+            _narrow(lower, upper, xs[p], counts[p])
     return 0.5 * (lower + upper), 0.5 * (upper - lower)
+
+
+@numba.njit(cache=True)
+def sturm_counts(ab, xs, counts):
+    """:func:`sturm_count` at every point of ``xs`` into ``counts``: the factorisations of
+    :func:`ldl_band`, by its arithmetic in the same order (the same pivots, the same counts),
+    run side by side (the innermost loop over the points: each factorisation is a chain of
+    dependent steps, and independent chains fill the processor's pipelines)."""
+    u = ab.shape[0] - 1
+    m = ab.shape[1]
+    n = xs.size
+    lw = np.empty((m, max(u, 1), n), dtype=ab.dtype)
+    d = np.empty((m, n))
+    s = np.empty(n, dtype=ab.dtype)
+    sr = np.empty(n)
+    tiny = 1e-300
+    for p in range(n):
+        counts[p] = 0
+    for j in range(m):
+        oj = j - u
+        i0 = max(0, oj)
+        for i in range(i0, j):
+            a = np.conj(ab[u + i - j, j])
+            oi = i - u
+            for p in range(n):
+                s[p] = a
+            for kk in range(max(i0, oi), i):
+                for p in range(n):
+                    s[p] -= lw[j, kk - oj, p] * d[kk, p] * np.conj(lw[i, kk - oi, p])
+            for p in range(n):
+                lw[j, i - oj, p] = s[p] / d[i, p]
+        for p in range(n):
+            sr[p] = ab[u, j].real - xs[p]
+        for i in range(i0, j):
+            for p in range(n):
+                v = lw[j, i - oj, p]
+                sr[p] -= (v.real * v.real + v.imag * v.imag) * d[i, p]
+        for p in range(n):
+            x = sr[p]
+            if x == 0.0:
+                x = -tiny
+            d[j, p] = x
+            if x < 0.0:
+                counts[p] += 1
 
 
 @numba.njit(cache=True)
