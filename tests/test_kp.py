@@ -493,7 +493,8 @@ def test_lowest_banded_real_band_equals_the_complex_solve():
 def test_warped_lines_share_their_zone_centre_states():
     """The [100] and [110] lines at one potential with a shared ``zone`` dict solve the
     zone-centre states once (the k_par = 0 operator of every half is the same matrix in every
-    direction) and give the energies of separate solves to 1e-12 eV."""
+    direction) and give the energies of separate solves to 1e-12 eV; asked for the energies
+    alone, the same energies."""
     mesh, mat = well(cells=(30, 60, 30), jitter=0.3)
     phi = 0.04 * mesh.z / mesh.z[-1]
     k_grid = np.linspace(0.0, 0.35, 12)
@@ -505,6 +506,10 @@ def test_warped_lines_share_their_zone_centre_states():
         assert len(zone) == 1
         first = first or next(iter(zone.values()))
         assert next(iter(zone.values())) is first            # solved once, taken again
+        # the energies alone (energies=True, the warped lines of a result): the same bits
+        only = kp.reduced_dispersion(mesh.h, mesh.w, mat, phi, 6, 8, k_grid, angle=angle,
+                                     energies=True)
+        assert np.array_equal(only[0], alone[0]) and only[1] is None and only[2] is None
 
 
 def test_orthonormal_columns_cholesky_qr_and_its_fallback():

@@ -719,7 +719,7 @@ def _line_operators(h, w, mat, nb, cx, sy, axial):
 
 def reduced_dispersion(h, w, mat: KpMaterial, phi_node, nb: int, n_states: int, k_grid, *,
                        angle: float | None = None, cache: dict | None = None, threads: int = 1,
-                       zone: dict | None = None):
+                       zone: dict | None = None, energies: bool = False):
     """:func:`dispersion` from a reduced basis, or None where the model does not split into
     real halves (then use :func:`dispersion`): the axial approximation (``angle`` None), or
     the warped Hamiltonian along [100] and [110].
@@ -744,7 +744,9 @@ def reduced_dispersion(h, w, mat: KpMaterial, phi_node, nb: int, n_states: int, 
     anew when a reused basis fails the check (the potential moves little from one
     iteration to the next, so the basis of the last one usually still fits).  ``zone``: a
     dict that calls at one potential share, its zone-centre states solved once (the
-    k_par = 0 operator is the same in every direction).  ``threads``:
+    k_par = 0 operator is the same in every direction).  ``energies``: the energies alone
+    (densities and zone-centre states None: the warped lines of a result; the states are
+    still formed and checked).  ``threads``:
     the two halves side by side where the region has HALF_THREADS_NODES nodes or more (the
     same bits for any count).  Same return
     as :func:`dispersion` (the states at k = 0 are those of the halves: each Kramers pair as
@@ -762,7 +764,7 @@ def reduced_dispersion(h, w, mat: KpMaterial, phi_node, nb: int, n_states: int, 
         threads = 1
     with one_blas_thread():
         return _reduced_dispersion(h, w, mat, phi_node, nb, n_states, k_grid, cx, sy, axial, ops,
-                                   cache, threads, zone)
+                                   cache, threads, zone, energies)
 
 
 def _zone_centre_half(d0, u0, levels):
@@ -792,7 +794,7 @@ def _zone_centre_half(d0, u0, levels):
 
 
 def _reduced_dispersion(h, w, mat, phi_node, nb, n_states, k_grid, cx, sy, axial, ops, cache,
-                        threads, zone=None):
+                        threads, zone=None, energies=False):
     key = ("basis", nb, cx, sy, axial, n_states)
     kept = cache.get(key) if cache is not None else None
     phi_node = np.asarray(phi_node, float)
@@ -803,12 +805,12 @@ def _reduced_dispersion(h, w, mat, phi_node, nb, n_states, k_grid, cx, sy, axial
             return None
     else:
         basis = kept[1]
-    out = _in_basis(basis, ops, w, phi_node, nb, n_states, k_grid, threads)
+    out = _in_basis(basis, ops, w, phi_node, nb, n_states, k_grid, threads, energies)
     if not fresh and out[3].any():           # the kept basis no longer fits: build it anew
         basis = _build_basis(ops, phi_node, n_states, threads, zone)
         if basis is None:
             return None
-        out = _in_basis(basis, ops, w, phi_node, nb, n_states, k_grid, threads)
+        out = _in_basis(basis, ops, w, phi_node, nb, n_states, k_grid, threads, energies)
     if cache is not None and (fresh or kept[1] is not basis):
         cache[key] = (phi_node.copy(), basis)
     out_E, out_d, psi0, bad = out
@@ -817,6 +819,8 @@ def _reduced_dispersion(h, w, mat, phi_node, nb, n_states, k_grid, cx, sy, axial
                               axial=axial, guess=out_E[:, j])
         out_E[:, j] = np.nan
         out_E[:e.size, j] = e
+        if energies:
+            continue
         out_d[:, :, j] = 0.0
         out_d[:, :e.size, j] = np.sum(np.abs(ps) ** 2, axis=1)
         if j == 0:
@@ -945,12 +949,12 @@ def _sytrd_work(K):
     return _SYTRD_WORK[K]
 
 
-def _in_basis(basis, ops, w, phi_node, nb, n_states, k_grid, threads=1):
+def _in_basis(basis, ops, w, phi_node, nb, n_states, k_grid, threads=1, energies=False):
     """The states of every k of ``k_grid`` in ``basis`` (:func:`_build_basis`): (E (n, m), dens
     (N, n, m), psi0 (N, nb, n), bad (m,) where an error estimate exceeds BASIS_TOL), as
     :func:`reduced_dispersion` returns them before the whole solves.  The eigenvalues of both
     halves decide which states are among the lowest n at some k; only those are formed and
-    checked (about half of each half's)."""
+    checked (about half of each half's).  ``energies``: dens and psi0 None (not formed)."""
     import scipy.linalg as sla
     from selfcon.solver.kernels import kp as kern
     sytrd = sla.get_lapack_funcs("sytrd", dtype=float)
@@ -1024,19 +1028,23 @@ def _in_basis(basis, ops, w, phi_node, nb, n_states, k_grid, threads=1):
                                   np.ascontiguousarray(th[:, :nb_]))
         chol = sla.cholesky_banded(_band_lower(d0 - sigma * eye, uz), lower=True, check_finite=False)
         est = kern.forward_norms(chol, res.reshape(m * half, -1)).reshape(nk, -1)   # |L^-1 r|^2
+        if energies:
+            return np.any(est > BASIS_TOL, axis=1), -th[:, :nb_].T
         return (np.any(est > BASIS_TOL, axis=1), -th[:, :nb_].T,
                 np.einsum("iajw,iajw->iwj", psi, psi) * s2[:, None, None],
                 _times_real(T[:, b * half:(b + 1) * half], psi[:, :, 0, :]))
     parts = _per_half(states_of, threads)
     bad = parts[0][0] | parts[1][0]
-    Es, Ds, zero = ([x[i] for x in parts] for i in (1, 2, 3))
-    E = np.concatenate(Es)
-    dens = np.concatenate(Ds, axis=1)
+    E = np.concatenate([x[1] for x in parts])
     order = np.argsort(-E, axis=0, kind="stable")[:n_states]      # lowest hole energy first
     got = order.shape[0]
     out_E = np.full((n_states, nk), np.nan)
-    out_d = np.zeros((n_nodes, n_states, nk))
     out_E[:got] = np.take_along_axis(E, order, 0)
+    if energies:
+        return out_E, None, None, bad
+    dens = np.concatenate([x[2] for x in parts], axis=1)
+    zero = [x[3] for x in parts]
+    out_d = np.zeros((n_nodes, n_states, nk))
     # each k_par's chosen states by one gather of (state, k) columns (flat indices)
     flat = order * nk + np.arange(nk)[None, :]
     out_d[1:-1, :got] = dens.reshape(m, -1)[:, flat]
@@ -1343,7 +1351,7 @@ def along_direction(mesh, cell, regions, phi, hk: KpStates, angle: float, zone=N
         part = mesh.part(i0, i1)
         args = (part.h, part.w, region_material(cell, i0, i1), phi[i0:i1 + 1], nb, rows.size,
                 hk.k_parallel)
-        got = reduced_dispersion(*args, angle=angle,
+        got = reduced_dispersion(*args, angle=angle, energies=True,
                                  zone=None if zone is None else zone.setdefault(int(r), {}))
         E = (got if got is not None else dispersion(*args, angle=angle))[0]
         out[rows] = E[:rows.size]
