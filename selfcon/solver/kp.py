@@ -956,6 +956,7 @@ def _in_basis(basis, ops, w, phi_node, nb, n_states, k_grid, threads=1, energies
     halves decide which states are among the lowest n at some k; only those are formed and
     checked (about half of each half's).  ``energies``: dens and psi0 None (not formed)."""
     import scipy.linalg as sla
+    from scipy.linalg import blas
     from selfcon.solver.kernels import kp as kern
     sytrd = sla.get_lapack_funcs("sytrd", dtype=float)
     T, halves = ops
@@ -973,8 +974,14 @@ def _in_basis(basis, ops, w, phi_node, nb, n_states, k_grid, threads=1, energies
         if np.array_equal(phin, phib):                     # at the build's potential
             P0 = Pb
         else:                                              # Pb + q^T (phi - phi_build) q
-            x = q.T @ (q * np.repeat(phin - phib, half)[:, None])
-            P0 = Pb + 0.5 * (x + x.T)
+            # = q^T diag(dphi - c) q + c I with c the least change (q^T q = I to rounding:
+            # an error of c * 1e-15 eV): a weight >= 0, so one symmetric rank-K update of
+            # sqrt(weight) q (dsyrk, half the product's work) gives it
+            dphi = phin - phib
+            c = float(dphi.min())
+            x = blas.dsyrk(1.0, (q * np.repeat(np.sqrt(dphi - c), half)[:, None]).T)
+            P0 = Pb + (np.triu(x) + np.triu(x, 1).T)
+            P0[np.diag_indices(K)] += c
         want = min(n_states // 2 + RITZ_MARGIN if want is None else want, n_states, K)
         th = np.empty((nk, want))
         cs = np.empty((nk, K, want))
