@@ -5,7 +5,6 @@
 
 tests/test_docs.py runs the check, so the README cannot drift from the deck reader.
 """
-import argparse
 import sys
 from pathlib import Path
 
@@ -57,19 +56,11 @@ def render(text: str) -> str:
     return text[:a] + "\n" + table() + "\n" + compositions() + "\n" + text[b:]
 
 
-def parse_args(argv):
-    """``--check``: compare only, write nothing (exit 1 on a difference); ``--help`` prints this
-    and writes nothing either."""
-    ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
-    ap.add_argument("--check", action="store_true",
-                    help="compare with what is committed and write nothing; exit 1 on a difference")
-    return ap.parse_args(argv)
-
-
 def main(argv):
+    from regen_options import parse_args    # tools/regen_options.py (run as a script: tools/ is on sys.path)
     text = README.read_text()
     new = render(text)
-    if parse_args(argv).check:
+    if parse_args(argv, __doc__).check:
         if new != text:
             print("README.md deck reference is out of date: run python tools/deck_reference.py")
             return 1

@@ -15,7 +15,6 @@ from analytic tables (no solve).
 """
 from __future__ import annotations
 
-import argparse
 import json
 import sys
 from pathlib import Path
@@ -102,18 +101,10 @@ def differences(record: dict, layout: dict, tolerance: float = TOLERANCE_PX) -> 
     return out
 
 
-def parse_args(argv):
-    """``--check``: compare only, write nothing (exit 1 on a difference); ``--help`` prints this
-    and writes nothing either."""
-    ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
-    ap.add_argument("--check", action="store_true",
-                    help="compare with what is committed and write nothing; exit 1 on a difference")
-    return ap.parse_args(argv)
-
-
 def main(argv) -> int:
+    from regen_options import parse_args    # tools/regen_options.py (run as a script: tools/ is on sys.path)
     from selfcon.output.plot import figure_layout
-    check = parse_args(argv).check
+    check = parse_args(argv, __doc__).check
     RECORDS.mkdir(parents=True, exist_ok=True)
     bad = 0
     for name, build in figures():

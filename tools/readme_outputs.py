@@ -12,7 +12,6 @@ versions) and nothing else; tests/test_readme_outputs.py runs the same compariso
 """
 from __future__ import annotations
 
-import argparse
 import contextlib
 import io
 import os
@@ -87,17 +86,9 @@ def workspace() -> Path:
     return folder
 
 
-def parse_args(argv):
-    """``--check``: compare only, write nothing (exit 1 on a difference); ``--help`` prints this
-    and writes nothing either."""
-    ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
-    ap.add_argument("--check", action="store_true",
-                    help="compare with what is committed and write nothing; exit 1 on a difference")
-    return ap.parse_args(argv)
-
-
 def main(argv) -> int:
-    check = parse_args(argv).check
+    from regen_options import parse_args    # tools/regen_options.py (run as a script: tools/ is on sys.path)
+    check = parse_args(argv, __doc__).check
     text = README.read_text(encoding="utf-8")
     folder = workspace()
     bad, new = 0, text
