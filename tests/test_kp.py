@@ -415,6 +415,41 @@ def test_side_by_side_sturm_counts_and_the_bisection():
     assert np.allclose(centre, [1.0, 1.0, 2.0], atol=1e-10, rtol=0)
 
 
+def test_line_matrices_and_shifted_cholesky_give_the_numpy_bits():
+    """kernels/kp.py::line_matrices is numpy's P0 + k P1 + k^2 P2 at every k, and
+    kp._shifted_cholesky (the kept band of Z with its diagonal shifted) is
+    scipy.linalg.cholesky_banded of the band of Z + phi - sigma, both bit for bit (the
+    expressions they replaced); and the factor is that of the dense matrix (numpy)."""
+    import scipy.linalg as sla
+    from selfcon.solver.kernels.kp import line_matrices
+    rng = np.random.default_rng(9)
+    K, nk = 10, 5
+    P0, P1, P2 = (0.5 * (x + x.T) for x in rng.normal(size=(3, K, K)))
+    k_grid = np.linspace(0.0, 0.4, nk)
+    out = np.empty((nk, K, K))
+    line_matrices(P0, P1, P2, k_grid, out)
+    kk = k_grid[:, None, None]
+    assert np.array_equal(out, P0 + kk * P1 + (kk * kk) * P2)
+    m, q = 12, 3
+    dz = rng.normal(size=(m, q, q))
+    dz = 0.5 * (dz + np.swapaxes(dz, 1, 2)) + 8.0 * np.eye(q)
+    uz = 0.3 * rng.normal(size=(m - 1, q, q))
+    phin = rng.normal(scale=0.1, size=m)
+    sigma = -0.7
+    for _ in range(2):                                  # built, then taken from the cache
+        got = kp._shifted_cholesky(dz, uz, phin, sigma)
+        d0 = dz + phin[:, None, None] * np.eye(q)
+        ref = sla.cholesky_banded(kp._band_lower(d0 - sigma * np.eye(q), uz), lower=True,
+                                  check_finite=False)
+        assert np.array_equal(got, ref)
+    dense = kp.dense_matrix(d0 - sigma * np.eye(q), uz).real
+    L = np.linalg.cholesky(dense)
+    band = np.zeros_like(got)
+    for r in range(got.shape[0]):
+        band[r, :m * q - r] = np.diag(L, -r)
+    assert np.allclose(got, band, atol=1e-12, rtol=0)
+
+
 def test_tridiagonal_lowest_gives_the_lowest_eigenpairs():
     """kernels/kp.py::tridiagonal_lowest (LAPACK's dsytrd, then the tridiagonal eigensolver
     and the back-transformation) against numpy.linalg.eigh (LAPACK): the lowest values to

@@ -663,6 +663,32 @@ HALF_THREADS_NODES = 1000
 _LINE_CACHE: dict = {}
 
 
+_BAND_CACHE: dict = {}
+
+
+def _shifted_cholesky(dz, uz, phin, sigma):
+    """The banded Cholesky factor (LAPACK dpbtrf, lower band storage) of dz + phi - sigma
+    (the block-tridiagonal (dz, uz) with phi on its diagonal, less sigma), as
+    scipy.linalg.cholesky_banded(_band_lower(dz + phi I - sigma I, uz)) gives it, the same
+    bits: the band of (dz, uz) is kept per operator (the last LINE_CACHE_SIZE) and only its
+    diagonal row is shifted, (dz_aa + phi) - sigma as the blocks' own sums."""
+    from scipy.linalg import lapack
+    hit = _BAND_CACHE.get(id(dz))
+    if hit is None or hit[0] is not dz or hit[1] is not uz:
+        if len(_BAND_CACHE) >= 2 * LINE_CACHE_SIZE:
+            _BAND_CACHE.pop(next(iter(_BAND_CACHE)))
+        hit = (dz, uz, _band_lower(dz, uz))
+        _BAND_CACHE[id(dz)] = hit
+    ab = hit[2].copy()
+    ab[0] = (ab[0] + np.repeat(phin, dz.shape[1])) - sigma
+    c, info = lapack.dpbtrf(ab, lower=1, overwrite_ab=1)
+    if info > 0:
+        raise np.linalg.LinAlgError(f"{info}-th leading minor not positive definite")
+    if info < 0:
+        raise ValueError(f"illegal value in {-info}-th argument of dpbtrf")
+    return c
+
+
 def _band_lower(d, u):
     """Lower band storage (scipy.linalg.cholesky_banded) of the real symmetric
     block-tridiagonal matrix with blocks ``d`` (m, q, q), ``u`` (m-1, q, q)."""
@@ -858,7 +884,7 @@ def _build_basis(ops, phi_node, n_states, threads=1, zone=None):
     def build(b):
         (dz, uz), (d1, u1), (d2, u2) = halves[b]
         d0 = dz + phin[:, None, None] * eye
-        chol = sla.cholesky_banded(_band_lower(d0 - sigma * eye, uz), lower=True, check_finite=False)
+        chol = _shifted_cholesky(dz, uz, phin, sigma)
 
         def resolve(y):
             return kern.cholesky_solve(chol, y.reshape(m * half, -1)).reshape(m, half, -1)
@@ -966,7 +992,6 @@ def _in_basis(basis, ops, w, phi_node, nb, n_states, k_grid, threads=1, energies
     nk = k_grid.size
     s2 = 1.0 / np.asarray(w, float)[1:-1]
     phin = np.asarray(phi_node, float)[1:-1]
-    eye = np.eye(half)
 
     def ritz_of(b, want=None):
         q, Pb, P1, P2, phib = basis[b]
@@ -992,8 +1017,8 @@ def _in_basis(basis, ops, w, phi_node, nb, n_states, k_grid, threads=1, energies
         # every k: LAPACK's reduction to tridiagonal form, then the lowest pairs and their
         # back-transformation in one kernel call (kernels/kp.py::tridiagonal_lowest)
         dd, ee, tau = np.empty((nk, K)), np.empty((nk, K - 1)), np.empty((nk, K - 1))
-        kk = k_grid[:, None, None]
-        refl = P0 + kk * P1 + (kk * kk) * P2          # (nk, K, K), each symmetric
+        refl = np.empty((nk, K, K))                   # P0 + k P1 + k^2 P2, each symmetric
+        kern.line_matrices(P0, P1, P2, k_grid, refl)
         lwork = _sytrd_work(K)
         for j in range(nk):
             # refl[j].T is Fortran-ordered: dsytrd overwrites it in place with the reflectors,
@@ -1026,14 +1051,13 @@ def _in_basis(basis, ops, w, phi_node, nb, n_states, k_grid, threads=1, energies
         (dz, uz), (d1, u1), (d2, u2) = halves[b]
         th, cs = ritz[b]
         nb_ = need[b]
-        d0 = dz + phin[:, None, None] * eye
         # the states of every k in one product, (m, half, nk, need), and their residuals in
         # one kernel call (kernels/kp.py)
         coef = np.ascontiguousarray(np.transpose(cs[:, :, :nb_], (1, 0, 2))).reshape(q.shape[1], -1)
         psi = (q @ coef).reshape(m, half, nk, nb_)
         res = kern.line_residuals(dz, uz, d1, u1, d2, u2, phin, k_grid, psi,
                                   np.ascontiguousarray(th[:, :nb_]))
-        chol = sla.cholesky_banded(_band_lower(d0 - sigma * eye, uz), lower=True, check_finite=False)
+        chol = _shifted_cholesky(dz, uz, phin, sigma)
         est = kern.forward_norms(chol, res.reshape(m * half, -1)).reshape(nk, -1)   # |L^-1 r|^2
         if energies:
             return np.any(est > BASIS_TOL, axis=1), -th[:, :nb_].T

@@ -324,6 +324,20 @@ def line_residuals(dz, uz, d1, u1, d2, u2, phi, k_grid, psi, theta):
 
 
 @numba.njit(cache=True, nogil=True)
+def line_matrices(P0, P1, P2, k_grid, out):
+    """out[j] = P0 + k_j P1 + k_j^2 P2 for every k_j of ``k_grid`` (nk, K, K): numpy's
+    broadcast expression with the same operations in the same order (the same bits) in one
+    pass, without its three temporaries."""
+    K = P0.shape[0]
+    for j in range(k_grid.size):
+        k = k_grid[j]
+        k2 = k * k
+        for a in range(K):
+            for b in range(K):
+                out[j, a, b] = P0[a, b] + k * P1[a, b] + k2 * P2[a, b]
+
+
+@numba.njit(cache=True, nogil=True)
 def tridiagonal_lowest(d, e, refl, tau, want, theta, coef):
     """The lowest ``want`` eigenpairs of symmetric matrices given by their reduction to
     tridiagonal form T = Q^T A Q (LAPACK dsytrd with the lower triangle, one per row of the
