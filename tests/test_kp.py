@@ -450,6 +450,21 @@ def test_line_matrices_and_shifted_cholesky_give_the_numpy_bits():
     assert np.allclose(got, band, atol=1e-12, rtol=0)
 
 
+def test_light_band_is_the_band_of_the_shifted_blocks():
+    """kp._light_band (the kept band of the light and split-off blocks with the potential
+    added to its diagonal row) is band_matrix of the blocks of Z + phi, bit for bit, when
+    built and when taken from its cache."""
+    rng = np.random.default_rng(4)
+    m, q = 9, 3
+    dz = rng.normal(size=(m, q, q))
+    dz = 0.5 * (dz + np.swapaxes(dz, 1, 2))
+    uz = rng.normal(size=(m - 1, q, q))
+    for scale in (0.1, 0.2):
+        phin = rng.normal(scale=scale, size=m)
+        d0 = dz + phin[:, None, None] * np.eye(q)
+        assert np.array_equal(kp._light_band(dz, uz, phin), kp.band_matrix(d0[:, 1:, 1:], uz[:, 1:, 1:]))
+
+
 def test_tridiagonal_lowest_gives_the_lowest_eigenpairs():
     """kernels/kp.py::tridiagonal_lowest (LAPACK's dsytrd, then the tridiagonal eigensolver
     and the back-transformation) against numpy.linalg.eigh (LAPACK): the lowest values to

@@ -666,6 +666,23 @@ _LINE_CACHE: dict = {}
 _BAND_CACHE: dict = {}
 
 
+def _light_band(dz, uz, phin):
+    """band_matrix of the light and split-off group (components 1..) of dz + phi, the zone-
+    centre blocks of a half with the potential on their diagonal: the band of (dz, uz) kept
+    per operator (the last LINE_CACHE_SIZE) and its diagonal row shifted, dz_aa + phi as the
+    blocks' own sums (the same bits)."""
+    key = ("light", id(dz))
+    hit = _BAND_CACHE.get(key)
+    if hit is None or hit[0] is not dz or hit[1] is not uz:
+        if len(_BAND_CACHE) >= 2 * LINE_CACHE_SIZE:
+            _BAND_CACHE.pop(next(iter(_BAND_CACHE)))
+        hit = (dz, uz, np.ascontiguousarray(band_matrix(dz[:, 1:, 1:], uz[:, 1:, 1:])))
+        _BAND_CACHE[key] = hit
+    ab = hit[2].copy()
+    ab[-1] += np.repeat(np.asarray(phin, float), dz.shape[1] - 1)
+    return ab
+
+
 def _shifted_cholesky(dz, uz, phin, sigma):
     """The banded Cholesky factor (LAPACK dpbtrf, lower band storage) of dz + phi - sigma
     (the block-tridiagonal (dz, uz) with phi on its diagonal, less sigma), as
@@ -793,9 +810,10 @@ def reduced_dispersion(h, w, mat: KpMaterial, phi_node, nb: int, n_states: int, 
                                    cache, threads, zone, energies)
 
 
-def _zone_centre_half(d0, u0, levels):
+def _zone_centre_half(d0, u0, levels, light=None):
     """Zone-centre states of one real half (component 0 heavy holes alone, the others
-    together): (values, vectors (m, q, n)) or None if they are not decoupled."""
+    together): (values, vectors (m, q, n)) or None if they are not decoupled.  ``light``:
+    the band of the others (:func:`_light_band`), made here if None."""
     from selfcon.solver.kernels.eigen import lowest_eigenpairs
     m, q = d0.shape[0], d0.shape[1]
     ev = np.empty(min(levels, m))
@@ -810,7 +828,9 @@ def _zone_centre_half(d0, u0, levels):
         return None
     # a bound below the light and split-off holes for the bisection: the first heavy hole less
     # 0.5 eV (strain moves them apart by far less; checked by a Sturm count in lowest_banded)
-    el, vl = lowest_banded(band_matrix(d0[:, 1:, 1:], u0[:, 1:, 1:]), min(levels, m * (q - 1)),
+    if light is None:
+        light = band_matrix(d0[:, 1:, 1:], u0[:, 1:, 1:])
+    el, vl = lowest_banded(light, min(levels, m * (q - 1)),
                            lower=float(ev[0]) - 0.5)
     flat = vl.reshape(-1, el.size)
     ph = flat[np.argmax(np.abs(flat), axis=0), np.arange(el.size)]       # real vectors up to a phase
@@ -873,7 +893,8 @@ def _build_basis(ops, phi_node, n_states, threads=1, zone=None):
     if kept is not None and np.array_equal(kept[0], phi_node):
         zc = kept[1]
     else:
-        zc = _zone_centre_half(dz + phin[:, None, None] * eye, uz, levels)
+        zc = _zone_centre_half(dz + phin[:, None, None] * eye, uz, levels,
+                               light=_light_band(dz, uz, phin))
         if zc is None:                                  # (the same in both halves)
             return None
         if zone is not None:
@@ -1242,7 +1263,7 @@ def _zone_centre_top(h, w, mat, phi_node, nb):
         if max(np.abs(d0[:, 0, 1:]).max(), np.abs(uz[:, 0, 1:]).max(), np.abs(uz[:, 1:, 0]).max()) \
                 > SPLIT_TOL * np.abs(d0).max():
             return None
-        ab = np.ascontiguousarray(band_matrix(d0[:, 1:, 1:], uz[:, 1:, 1:]))
+        ab = _light_band(dz, uz, np.asarray(phi_node, float)[1:-1])
         # a light or split-off level above the first heavy hole (one Sturm count says whether;
         # usually not, and then the heavy hole is the answer without a bisection)
         if kern.sturm_count(ab, low) > 0:
