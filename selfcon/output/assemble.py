@@ -188,8 +188,8 @@ def main_channel_summary(an, st, n, p, ec, ev) -> dict:
         "channel_layer": c.layer,
         "channel_electron_sheet_density_cm2": c.sheet_density if c.carrier == "electron" else inside_n,
         "channel_hole_sheet_density_cm2": c.sheet_density if c.carrier == "hole" else inside_p,
-        "ef_minus_ec_channel_eV": float(st.fermi_levels[0] - np.min(ec[sl])),
-        "ev_minus_ef_channel_eV": float(np.max(ev[sl]) - st.fermi_levels[1]),
+        "ef_minus_ec_channel_eV": float(st.fermi_levels[0] - ec[sl].min()),
+        "ev_minus_ef_channel_eV": float(ev[sl].max() - st.fermi_levels[1]),
         "E1_minus_E0_eV": float(c.spacing),
         "E0_minus_EF_eV": float(c.ground_energy),
     }
@@ -316,7 +316,7 @@ def build_result(deck, st, loop, *, wall_time: float) -> Result:
     for name, (nv, nq) in valley_parts(st, phi, loop.states).items():
         n_valleys += nv
         profile[name + "_density"] = (nv + nq) * CM3_PER_NM3
-        valley_sheets[name] = float(np.sum((nv + nq) * st.mesh.w)) * CM2_PER_NM2
+        valley_sheets[name] = float(((nv + nq) * st.mesh.w).sum()) * CM2_PER_NM2
 
     # every band in every quantum region, and the channels (selfcon.output.channels); the
     # classical carriers are those at nodes the loop kept classical, plus the X/L valleys
@@ -346,13 +346,13 @@ def build_result(deck, st, loop, *, wall_time: float) -> Result:
         layers.append(row)
 
     w = st.mesh.w
-    ns = float(np.sum(n * w)) * CM2_PER_NM2
-    ps = float(np.sum(p * w)) * CM2_PER_NM2
+    ns = float((n * w).sum()) * CM2_PER_NM2
+    ps = float((p * w).sum()) * CM2_PER_NM2
     summary = {
         "electron_sheet_density_cm2": ns,
         "hole_sheet_density_cm2": ps,
-        "donor_sheet_density_cm2": float(np.sum(ndp * w)) * CM2_PER_NM2,
-        "acceptor_sheet_density_cm2": float(np.sum(nam * w)) * CM2_PER_NM2,
+        "donor_sheet_density_cm2": float((ndp * w).sum()) * CM2_PER_NM2,
+        "acceptor_sheet_density_cm2": float((nam * w).sum()) * CM2_PER_NM2,
         "gauss_residual": float(steps.gauss_residual(ws, phi, loop.states,
                                                      rho=p - n + ndp - nam + st.fixed_charge)),
         # each carrier's own Fermi level (the gate's for the minority carrier under a schottky
@@ -378,7 +378,7 @@ def build_result(deck, st, loop, *, wall_time: float) -> Result:
             continue                 # written only with physics.quantum_valleys
         for k in range(3):
             summary[f"{band}_E{k}_eV"] = float(sb.energy[k]) if sb is not None and sb.energy.size > k else float("nan")
-        summary[f"{band}_occupied_subbands"] = (int(np.sum(chx.occupied_states(band, subbands, rows, references)))
+        summary[f"{band}_occupied_subbands"] = (int(chx.occupied_states(band, subbands, rows, references).sum())
                                                 if sb is not None else 0)
     for name in steps.VALLEYS:
         if name in valley_sheets:

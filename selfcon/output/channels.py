@@ -332,14 +332,14 @@ def merge_runs(runs, u, kT: float, merge_kt: float = MERGE_KT) -> list[tuple[int
     if len(runs) < 2:
         return [(int(a), int(b)) for a, b in runs]
     out = [runs[0]]
-    low = float(np.min(u[runs[0][0]:runs[0][1] + 1]))
+    low = float(u[runs[0][0]:runs[0][1] + 1].min())
     for b0, b1 in runs[1:]:
         a0, a1 = out[-1]
-        top = float(np.max(u[a1:b0 + 1]))
-        low_b = float(np.min(u[b0:b1 + 1]))
+        top = float(u[a1:b0 + 1].max())
+        low_b = float(u[b0:b1 + 1].min())
         if top - max(low, low_b) < merge_kt * kT:
             out[-1] = [a0, b1]
-            low = float(np.min(u[a0:b1 + 1]))
+            low = float(u[a0:b1 + 1].min())
         else:
             out.append([b0, b1])
             low = low_b
@@ -374,12 +374,12 @@ def drop_tails(runs, w, density, levels) -> list[tuple[int, int]]:
         if k == 0:
             continue
         shares = np.array([lv.share(w, a, b) for a, b in runs])          # (R, k)
-        best = np.argmax(shares, axis=0)
+        best = shares.argmax(axis=0)
         owned = shares[best, np.arange(k)] > ATTRIBUTION_SHARE
         occ = np.asarray(lv.occupation, dtype=float)
         for j in range(len(runs)):
             other = owned & (best != j)
-            foreign[j] += float(np.sum(occ[other] * shares[j, other]))
+            foreign[j] += float((occ[other] * shares[j, other]).sum())
     raw = np.array([_sheet(w, dens, a, b) for a, b in runs])
     return [r for r, f, t in zip(runs, foreign, raw) if not f > 0.5 * t]
 
@@ -575,7 +575,7 @@ def analyse(z, w, kT: float, profiles: dict, levels, layers=(), requests=(), *,
         for t in mine:                  # each subband's population, its branches in order
             pop_of[t[6]] = pop_of.get(t[6], 0) + t[4]
         pops = [pop_of[s] for s in subs]
-        c.occupied_subbands = int(np.sum(occupied(pops, c.sheet_density)))
+        c.occupied_subbands = int(occupied(pops, c.sheet_density).sum())
         norm = float(np.dot(w, rho))
         if norm > 0:
             c.centroid_nm = float(np.dot(w, rho * z)) / norm
@@ -586,8 +586,8 @@ def analyse(z, w, kT: float, profiles: dict, levels, layers=(), requests=(), *,
             c.centroid_nm = float(np.dot(p2, z) / max(float(p2.sum()), 1e-300))
         shares = _layer_shares(z, rho, layers, cells) if layers and norm > 0 else None
         if shares is not None:
-            c.layer = layers[int(np.argmax(shares))].name
-            layer_share.append(float(np.max(shares)))
+            c.layer = layers[int(shares.argmax())].name
+            layer_share.append(float(shares.max()))
         else:
             layer_share.append(0.0)
             if layers:
@@ -774,7 +774,7 @@ def from_structure(structure, phi, loop_states, *, n, p, classical_n, classical_
     occupation, levels = {}, []
     for band, bs in spectrum.items():
         occ = np.zeros(bs.energy.size)
-        if np.any(bs.populated):
+        if bs.populated.any():
             sel = bs.populated
             occ[sel] = subband_density(bs.energy[sel], bs.dos[sel], st.temperature, bs.sign,
                                        efn if bs.sign > 0 else efp) * CM2_PER_NM2

@@ -627,8 +627,8 @@ def check_buffer_carriers(result, structure, deck=None) -> list[str]:
         is x, so the density as it is)."""
         dens = np.asarray(result.profile[key])
         return dens[sel] if own[carrier] is None else (dens - own[carrier])[sel]
-    n = float(np.sum(free("electron_density", "electron") * w[sel])) / NM_PER_CM
-    p = float(np.sum(free("hole_density", "hole") * w[sel])) / NM_PER_CM
+    n = float((free("electron_density", "electron") * w[sel]).sum()) / NM_PER_CM
+    p = float((free("hole_density", "hole") * w[sel]).sum()) / NM_PER_CM
     ns = channel_density(result)
     limit = max(BUFFER_FRACTION * ns, FLOOR_CM2)
     if n + p <= limit:
@@ -866,13 +866,13 @@ def check_polarization_holes(result, structure, deck=None) -> list[str]:
         sel = np.abs(z - depth[k]) <= HOLE_WINDOW_NM
         where = _sheet_place(t, k, depth, sigma)
         if not counted:
-            top = float(np.max(ev[sel])) if sel.any() else -np.inf
+            top = float(ev[sel].max()) if sel.any() else -np.inf
             if top > -VALLEY_KT * kT:
                 out.append(f"holes would accumulate at {where()}: the valence edge lies {1e3 * top:+.0f} meV "
                            f"from EF there, but physics.carriers counts no holes; add \"heavy_hole\" and "
                            "\"light_hole\"")
             continue
-        holes = float(np.sum(p[sel] * w[sel])) / NM_PER_CM
+        holes = float((p[sel] * w[sel]).sum()) / NM_PER_CM
         if holes <= limit:
             continue
         own = [c for c in (result.channels or []) if c["carrier"] == "hole"

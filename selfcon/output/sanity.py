@@ -106,7 +106,7 @@ def check_band_edges(result, st, deck):
     for key, name in (("conduction_band", "Ec"), ("valence_band", "Ev")):
         e = np.asarray(result.profile[key], dtype=float)
         bad = ~(np.abs(e) <= limit)
-        if np.any(bad):
+        if bad.any():
             i = int(np.argmax(np.where(np.isfinite(e), np.abs(e), np.inf)))
             if worst is None or not abs(e[i]) <= abs(worst[1]):
                 worst = (name, float(e[i]), i)
@@ -143,7 +143,7 @@ def check_density(result, st, deck):
                            ("holes", np.asarray(result.profile["hole_density"], dtype=float))):
         ratio = dens / limit
         bad = ~(ratio < 1.0)
-        if np.any(bad):
+        if bad.any():
             i = int(np.argmax(np.where(np.isfinite(ratio), ratio, np.inf)))
             return (f"sanity check 'density': {carriers} reach {dens[i]:.3g} cm^-3 at z = {result.z[i]:.1f} nm "
                     f"in layer '{_layer_at(result, i)}', above the atom density of the material "
@@ -167,10 +167,10 @@ def field_bound(result, st):
               + np.abs(np.asarray(p["ionized_donors"], dtype=float))
               + np.abs(np.asarray(p["ionized_acceptors"], dtype=float))
               + np.abs(np.asarray(p.get("bound_charge", np.zeros_like(z)), dtype=float)))
-    q = Q_EPS0 * float(np.sum(charge / CM3_PER_NM3 * w))
+    q = Q_EPS0 * float((charge / CM3_PER_NM3 * w).sum())
     fixed_ends = st.surface.kind != "free" and st.substrate.kind != "free"
     if fixed_ends:
-        bound = 2.0 * q + float(np.max(eps)) * abs(phi[-1] - phi[0]) / (z[-1] - z[0])
+        bound = 2.0 * q + float(eps.max()) * abs(phi[-1] - phi[0]) / (z[-1] - z[0])
     else:
         bound = q
     return d, bound
@@ -179,7 +179,7 @@ def field_bound(result, st):
 def check_field(result, st, deck):
     d, bound = field_bound(result, st)
     limit = bound * (1.0 + FIELD_SLACK) + 1e-12
-    if np.all(d <= limit):
+    if (d <= limit).all():
         return None
     c = int(np.argmax(np.where(np.isfinite(d), d, np.inf)))
     eps = float(st.cell["eps"][c])

@@ -1032,7 +1032,7 @@ def classical_sheet(ws: Workspace, phi, band, i0, i1) -> float:
     """Classical sheet density (nm^-2) of a carrier over nodes i0..i1 at potential phi."""
     dens = ws.classical_densities(phi)
     arr = dens.n if ALL_BANDS[band][3] > 0 else dens.p
-    return float(np.sum(arr[i0:i1 + 1] * ws.structure.mesh.w[i0:i1 + 1]))
+    return float((arr[i0:i1 + 1] * ws.structure.mesh.w[i0:i1 + 1]).sum())
 
 
 def poisson_pass(ws: Workspace, phi, states, *, predictor: bool, tol: float = POISSON_TOL,
