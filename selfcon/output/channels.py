@@ -541,7 +541,7 @@ def analyse(z, w, kT: float, profiles: dict, levels, layers=(), requests=(), *,
         for lv in levels:
             if BAND_CARRIER[lv.band] != c.carrier:
                 continue
-            ks = np.flatnonzero(attribution[lv.band] == j)
+            ks = (attribution[lv.band] == j).nonzero()[0]
             if ks.size == 0:
                 continue
             energy, occ = np.asarray(lv.energy, dtype=float), np.asarray(lv.occupation, dtype=float)
@@ -621,7 +621,7 @@ def _attribute(chans, levels, w) -> dict:
         att = np.full(k, -1, dtype=np.int64)
         if idx and k:
             shares = np.array([lv.share(w, chans[j].i0, chans[j].i1) for j in idx])   # (C, k)
-            best = np.argmax(shares, axis=0)
+            best = shares.argmax(axis=0)
             ok = shares[best, np.arange(k)] > ATTRIBUTION_SHARE
             att[ok] = np.asarray(idx)[best[ok]]
         attribution[lv.band] = att

@@ -266,7 +266,7 @@ def channel_subbands(result, structure=None, channel: int | None = None) -> list
     sign = 1.0 if rows[channel]["carrier"] == "electron" else -1.0
     own = []
     for band, sb in (result.subbands or {}).items():
-        ks = np.flatnonzero(np.asarray(sb.channel) == channel)
+        ks = (np.asarray(sb.channel) == channel).nonzero()[0]
         if ks.size:
             own += zip((sign * np.asarray(sb.energy, dtype=float)[ks]).tolist(), [band] * ks.size, ks.tolist())
     return [(band, k) for _, band, k in sorted(own)]
@@ -557,7 +557,7 @@ def check_region_cut(result, structure, deck=None) -> list[str]:
     # the nodes near each region end depend on the mesh alone: once per structure
     ends = (derived(structure, "region_cut_nodes", lambda: _region_end_nodes(z, structure.regions))
             if np.array_equal(z, structure.z) else _region_end_nodes(z, structure.regions))
-    peaks = {key: float(np.max(np.asarray(result.profile[key]))) for key in ("electron_density", "hole_density")}
+    peaks = {key: float(np.asarray(result.profile[key]).max()) for key in ("electron_density", "hole_density")}
     for k, (i0, i1) in enumerate(structure.regions):
         for end, label in ((i0, "top"), (i1, "bottom")):
             if end == 0 or end == n_nodes - 1:
@@ -568,7 +568,7 @@ def check_region_cut(result, structure, deck=None) -> list[str]:
                 peak = peaks[key]
                 if peak <= 0:
                     continue
-                local = float(np.max(dens[near]))
+                local = float(dens[near].max())
                 if local > CUT_FRACTION * peak:
                     out.append(f"quantum region {k} [{structure.regions_nm[k][0]:g}, "
                                f"{structure.regions_nm[k][1]:g}] nm cuts the {carrier}s at its {label} end "
@@ -604,7 +604,7 @@ def check_buffer_carriers(result, structure, deck=None) -> list[str]:
         return []
     w = structure.mesh.w
     sel = z >= z[-1] - BUFFER_DEPTH_NM
-    first = int(np.argmax(sel))
+    first = int(sel.argmax())
     if sel[first:].all():
         sel = slice(first, None)        # the nodes increase: those within reach are a tail
     # the main channel's own subbands near the contact (a short stack) are no buffer carriers

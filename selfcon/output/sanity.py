@@ -161,12 +161,12 @@ def field_bound(result, st):
     else:
         h, _, _, w = half_widths(z)
     eps = np.asarray(st.cell["eps"], dtype=float)
-    d = eps * np.abs(np.diff(phi) / h)
+    d = eps * np.abs((phi[1:] - phi[:-1]) / h)       # np.diff(phi)
     p = result.profile
     charge = (np.abs(_electrons(result)) + np.abs(np.asarray(p["hole_density"], dtype=float))
               + np.abs(np.asarray(p["ionized_donors"], dtype=float))
               + np.abs(np.asarray(p["ionized_acceptors"], dtype=float))
-              + np.abs(np.asarray(p.get("bound_charge", np.zeros_like(z)), dtype=float)))
+              + np.abs(np.asarray(p["bound_charge"] if "bound_charge" in p else np.zeros_like(z), dtype=float)))
     q = Q_EPS0 * float((charge / CM3_PER_NM3 * w).sum())
     fixed_ends = st.surface.kind != "free" and st.substrate.kind != "free"
     if fixed_ends:

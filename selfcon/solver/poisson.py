@@ -476,7 +476,7 @@ def gauss_residual(problem, phi, rho=None):
         rho = densities(problem, phi).rho
     d0, dl = boundary_flux(problem, phi, rho)
     lhs = (-dl) - (-d0)
-    rhs = Q_EPS0 * float(np.sum(rho * problem.w))
-    total = Q_EPS0 * float(np.sum(np.abs(rho) * problem.w))
+    rhs = Q_EPS0 * float((rho * problem.w).sum())
+    total = Q_EPS0 * float((np.abs(rho) * problem.w).sum())
     scale = max(abs(d0), abs(dl), total, Q_EPS0 * GAUSS_FLOOR_CM2 / CM2_PER_NM2)
     return abs(lhs - rhs) / scale
