@@ -65,6 +65,7 @@ from dataclasses import dataclass, field
 import numpy as np
 
 from selfcon.constants import NM_PER_CM
+from selfcon.solver.kernels import load
 
 __all__ = ["CARRIERS", "BAND_CARRIER", "STATE_LABEL", "Levels", "CarrierProfile", "LayerSpan", "Request", "Channel",
            "ChannelAnalysis", "occupied", "occupied_states", "basins", "candidate_runs", "merge_runs",
@@ -304,20 +305,8 @@ def candidate_runs(w, u, density, *, floor_cm2: float = FALLBACK_FLOOR_CM2,
     """
     w = np.asarray(w, dtype=float)
     dens = np.ascontiguousarray(density, dtype=float)
-    claimed = _runs_kernel()(np.ascontiguousarray(u, dtype=float), dens, float(peak_fraction))
+    claimed = load("runs").density_runs(np.ascontiguousarray(u, dtype=float), dens, float(peak_fraction))
     return sorted((i0, i1) for i0, i1 in claimed.tolist() if _sheet(w, dens, i0, i1) >= floor_cm2)
-
-
-_RUNS = []
-
-
-def _runs_kernel():
-    """kernels/runs.py::density_runs, imported on first use (importing this module loads no
-    numba) and kept."""
-    if not _RUNS:
-        from selfcon.solver.kernels.runs import density_runs
-        _RUNS.append(density_runs)
-    return _RUNS[0]
 
 
 def merge_runs(runs, u, kT: float, merge_kt: float = MERGE_KT) -> list[tuple[int, int]]:

@@ -12,6 +12,7 @@ import numpy as np
 
 from selfcon.constants import CM2_PER_NM2, KB_EV, Q_EPS0, NM_PER_CM
 from selfcon.model.mesh import half_widths
+from selfcon.solver.kernels import load
 from selfcon.solver.kernels.bundles import Boundaries, Grid, Material, NewtonOptions, Quantum
 
 DIRICHLET = 0
@@ -243,18 +244,6 @@ class PoissonSolution:
     start: "Densities" = None          # densities at the starting point (start_densities=True)
 
 
-_NEWTON = []
-
-
-def _newton():
-    """kernels/poisson.py::poisson_newton, imported on first use (importing this module loads
-    no numba) and kept: every pass of the loop asks for it."""
-    if not _NEWTON:
-        from selfcon.solver.kernels.poisson import poisson_newton
-        _NEWTON.append(poisson_newton)
-    return _NEWTON[0]
-
-
 def solve_poisson(problem, phi0, *, tol=1e-9, max_iter=200, max_step=0.3, backtrack=True,
                   start_densities=False, settle=0.0):
     """Newton solve; returns PoissonSolution (never raises on non-convergence).
@@ -268,7 +257,7 @@ def solve_poisson(problem, phi0, *, tol=1e-9, max_iter=200, max_step=0.3, backtr
     selfcon.solver.steps.charge_residual).  settle > 0: the solve also ends, converged,
     on a full Newton step right after a full one and below settle times it
     (NewtonOptions.settle; the quadratic phase reached)."""
-    poisson_newton = _newton()
+    poisson_newton = load("poisson").poisson_newton     # imported on first use
     hist = np.zeros(max_iter)
     opts = NewtonOptions(float(tol), int(max_iter), float(max_step), bool(backtrack), False,
                          float(settle))

@@ -25,35 +25,22 @@ import numpy as np
 
 from selfcon.constants import HBAR2_2M0  # noqa: F401  (documented unit of the operator)
 from selfcon.model.mesh import half_widths
+from selfcon.solver.kernels import load
 
 __all__ = ["EIGEN_METHODS", "EigenWorkspace", "solve_region", "solve_region_state", "solve_region_window", "refine_region_state", "count_below",
            "bound_states", "bound_states_cells",
            "in_plane_mass", "in_plane_weights", "thermal_in_plane_energy"]
 
 
-_KERNELS = []
-
-
 def _kernels():
-    # imported lazily so that `import selfcon.solver.schrodinger` compiles nothing; kept
-    # after the first call (every eigensolve of a loop asks for it: the import statement's
-    # machinery cost a few microseconds each time)
-    if not _KERNELS:
-        from selfcon.solver.kernels import schrodinger
-        _KERNELS.append(schrodinger)
-    return _KERNELS[0]
-
-
-_EIGEN = []
+    """kernels/schrodinger.py, imported on first use (selfcon.solver.kernels.load)."""
+    return load("schrodinger")
 
 
 def _eigen_kernels():
-    """(eigenpairs_in_brackets, guided_brackets, lowest_brackets) of kernels/eigen.py,
-    imported on first use and kept, like :func:`_kernels`."""
-    if not _EIGEN:
-        from selfcon.solver.kernels.eigen import eigenpairs_in_brackets, guided_brackets, lowest_brackets
-        _EIGEN.append((eigenpairs_in_brackets, guided_brackets, lowest_brackets))
-    return _EIGEN[0]
+    """(eigenpairs_in_brackets, guided_brackets, lowest_brackets) of kernels/eigen.py."""
+    eig = load("eigen")
+    return eig.eigenpairs_in_brackets, eig.guided_brackets, eig.lowest_brackets
 
 
 #: the eigen-solvers of :class:`EigenWorkspace`

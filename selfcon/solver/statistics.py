@@ -7,18 +7,12 @@ only when one of these functions is first called.
 import numpy as np
 
 from selfcon.constants import DOS2D_PER_M0, KB_EV, NC_PER_M0_K
-
-
-_KERNELS = []
+from selfcon.solver.kernels import load
 
 
 def _k():
-    """selfcon.solver.kernels.statistics, imported on first use (importing this module loads
-    no numba) and kept: the loop asks for it several times per iteration."""
-    if not _KERNELS:
-        from selfcon.solver.kernels import statistics as ks
-        _KERNELS.append(ks)
-    return _KERNELS[0]
+    """selfcon.solver.kernels.statistics, imported on first use (selfcon.solver.kernels.load)."""
+    return load("statistics")
 
 
 def fermi_half(eta):
