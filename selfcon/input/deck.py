@@ -239,6 +239,14 @@ MATERIAL_PARAMS = {
     "luttinger_gamma1": _p("-", "Luttinger gamma1 (hole masses along [001])", **_POS),
     "luttinger_gamma2": _p("-", "Luttinger gamma2"),
     "luttinger_gamma3": _p("-", "Luttinger gamma3"),
+    "hole_dos_mass_hh": _p("m0", "heavy-hole density-of-states mass of the bulk valence band "
+                           "(classical holes, N_v); 0 or absent: the spherical estimate "
+                           "1/(gamma1 - 2 gamma_bar), gamma_bar = (2 gamma2 + 3 gamma3)/5, "
+                           "refused above 2 m0; new Luttinger parameters drop the base's value",
+                           **_NONNEG),
+    "hole_dos_mass_lh": _p("m0", "light-hole density-of-states mass of the bulk valence band; "
+                           "0 or absent: the spherical estimate 1/(gamma1 + 2 gamma_bar)",
+                           **_NONNEG),
     "x_gap": _p("eV", "X-valley gap at 0 K", **_POS),
     "l_gap": _p("eV", "L-valley gap at 0 K", **_POS),
     "x_mass_long": _p("m0", "X-valley longitudinal mass", **_POS),

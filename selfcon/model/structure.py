@@ -247,13 +247,21 @@ def deck_structure(deck: Deck) -> Structure:
 
 def _located(deck, key_prefix, fn, *args, **kw):
     """Run fn; a MaterialError about a bare composition key ("x", "y", "lattice_matched",
-    "material") is re-raised at ``key_prefix + key`` in the deck (file and line)."""
+    "material") is re-raised at ``key_prefix + key`` in the deck (file and line), one about a
+    parameter of a deck-local material (``material.NAME.key``) at that key (its line, else
+    the line of its ``[material.NAME]`` table)."""
     try:
         return fn(*args, **kw)
     except MaterialError as err:
-        if err.key in ("x", "y", "lattice_matched", "material", "temperature") and hasattr(deck, "error"):
+        if not hasattr(deck, "error"):
+            raise
+        if err.key in ("x", "y", "lattice_matched", "material", "temperature"):
             raise deck.error(key_prefix + err.key, err.message, allowed=err.allowed,
                              cls=MaterialError) from None
+        parts = (err.key or "").split(".")
+        if (err.line is None and len(parts) > 2 and parts[0] == "material"
+                and any(getattr(d, "name", None) == parts[1] for d in deck.materials)):
+            raise deck.error(err.key, err.message, allowed=err.allowed, cls=MaterialError) from None
         raise
 
 

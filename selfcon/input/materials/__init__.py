@@ -145,7 +145,8 @@ def cell_parameters(name, x, temperature, local_defs=(), needs=frozenset(), y=No
     spin-orbit 0, dopant binding energies 0, lattice and elastic constants unknown (NaN),
     deformation potentials 0 (the word "strain" in ``needs`` makes lattice_constant,
     elastic_c11, elastic_c12, deformation_ac, deformation_av and deformation_b required).
-    γ3 defaults to γ2.  ``y``: second composition of a quaternary (NaN or None: not given).
+    γ3 defaults to γ2; the hole DOS masses default to 0 (not stored: the spherical estimate
+    from the Luttinger parameters, refused above 2 m0).  ``y``: second composition of a quaternary (NaN or None: not given).
 
     Returns a dict of float arrays shaped like ``x`` (keys and units: OUTPUT_UNITS; a
     library parameter listed there under its own name is handed through as it is).  Gaps at T: Varshni per binary, then alloy bowing

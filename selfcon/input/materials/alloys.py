@@ -16,8 +16,8 @@ import numpy as np
 from selfcon.errors import MaterialError
 from selfcon.input.materials.library import (ALLOYS, BINARIES, BOWED, CRYSTAL, PARAMETERS,
                                              QUATERNARIES, WURTZITE_ONLY, anisotropic_dos_mass,
-                                             hole_dos_masses, wurtzite_hole_masses,
-                                             wurtzite_valence_edges)
+                                             material_hole_dos_masses, spherical_hh_mass_error,
+                                             wurtzite_hole_masses, wurtzite_valence_edges)
 
 #: (valley suffix, gap key, alpha key, beta key)
 VALLEYS = (
@@ -61,6 +61,9 @@ _REQUIRED_NO_BASE = ("band_gap", "valence_band_offset", "electron_mass", "permit
 _REQUIRED_STRAIN = ("lattice_constant", "elastic_c11", "elastic_c12", "deformation_ac",
                     "deformation_av", "deformation_b")
 _LUTTINGER = ("luttinger_gamma1", "luttinger_gamma2", "luttinger_gamma3")
+#: the stored hole DOS masses (0: not stored) and the sign of 2 gamma_bar in the inverse of
+#: each one's spherical estimate, gamma1 -/+ 2 gamma_bar
+HOLE_DOS_KEYS = (("hole_dos_mass_hh", -1.0), ("hole_dos_mass_lh", +1.0))
 
 
 def varshni(eg0, alpha, beta, temperature):
@@ -123,6 +126,7 @@ def alloy_primitives(name, x, temperature):
     p0 = binary_primitives(alloy.end0, x.shape, temperature)
     p1 = binary_primitives(alloy.end1, x.shape, temperature)
     prim = {k: (1.0 - x) * p0[k] + x * p1[k] for k in p0}
+    blend_hole_dos_masses(prim, [p0, p1], [1.0 - x, x], 1.0)
     bowed_keys = {key: key for key in BOWED}
     for suffix, gap, _, _ in VALLEYS:      # the gap at T bows like the gap at 0 K
         bowed_keys["eg_" + suffix] = gap
@@ -155,14 +159,44 @@ def check_xy(name, x, y):
 
 
 def _blend(parts, weights, den):
-    """sum_k w_k P_k / den over every primitive key."""
+    """sum_k w_k P_k / den over every primitive key (the hole DOS masses by
+    :func:`blend_hole_dos_masses`)."""
     out = {}
     for key in parts[0]:
         acc = 0.0
         for p, w in zip(parts, weights):
             acc = acc + w * p[key]
         out[key] = acc / den
+    blend_hole_dos_masses(out, parts, weights, den)
     return out
+
+
+def blend_hole_dos_masses(out, parts, weights, den):
+    """The stored hole DOS masses of a mixture of ``parts`` (primitives) with ``weights``
+    (sum: ``den``), into ``out``.  Where a part that stores a mass (> 0) has a weight, the
+    inverse masses are interpolated, 1/m = sum_k w_k / m_k / den, each part without a stored
+    mass taking its spherical estimate 1/m_k = gamma1 -/+ 2 gamma_bar.  The Luttinger
+    parameters are inverse masses that the alloys interpolate linearly (ALLOY_RULES), so
+    this is the same rule: it equals the spherical estimate of the interpolated Luttinger
+    parameters where no part stores a mass, and a heavy stored mass cannot dominate the way
+    it would if the masses were interpolated.  Elsewhere the mass stays 0 (not stored), and
+    derived() takes the spherical estimate from the interpolated Luttinger parameters, the
+    bits of an alloy of ends that store none."""
+    shape = np.shape(out["luttinger_gamma1"])
+    for key, sign in HOLE_DOS_KEYS:
+        stored = np.zeros(shape, dtype=bool)
+        inv = 0.0
+        for p, w in zip(parts, weights):
+            has = p[key] > 0.0
+            stored = stored | (has & (np.asarray(w) > 0.0))
+            gbar = (2.0 * p["luttinger_gamma2"] + 3.0 * p["luttinger_gamma3"]) / 5.0
+            safe = np.where(has, p[key], 1.0)
+            inv = inv + w * np.where(has, 1.0 / safe, p["luttinger_gamma1"] + sign * 2.0 * gbar)
+        if stored.any():
+            with np.errstate(divide="ignore", invalid="ignore"):
+                out[key] = np.where(stored, den / inv, 0.0)
+        else:
+            out[key] = np.zeros(shape)
 
 
 def quaternary_primitives(name, x, y, temperature):
@@ -266,6 +300,12 @@ def apply_overrides(prim, params, temperature):
     for key, value in params.items():
         if key not in skip:
             prim[key] = np.full(shape, float(value))
+    if any(k in params for k in _LUTTINGER):
+        # the base's stored hole DOS masses belong to the base's Luttinger parameters: with
+        # new ones and no new mass, the spherical estimate of the new ones (checked by validate)
+        for key, _ in HOLE_DOS_KEYS:
+            if key not in params:
+                prim[key] = np.zeros(shape)
     if "lattice_constant" in params or "lattice_expansion" in params:
         prim["lattice_t"] = lattice_at(prim, temperature)
     return prim
@@ -294,6 +334,8 @@ def standalone_primitives(d, params, shape, temperature, needs):
         p.setdefault("luttinger_gamma1", 1.0)
         p.setdefault("luttinger_gamma2", 0.0)
     p.setdefault("luttinger_gamma3", p["luttinger_gamma2"])   # spherical approximation
+    for key, _ in HOLE_DOS_KEYS:
+        p.setdefault(key, 0.0)          # not stored: the spherical estimate (checked by validate)
     # X and L valleys
     for valley, gap, mass_keys in (("x_valley", "x_gap", ("x_mass_long", "x_mass_trans")),
                                    ("l_valley", "l_gap", ("l_mass_long", "l_mass_trans"))):
@@ -429,7 +471,11 @@ def validate(name, prim):
             raise MaterialError(f"Luttinger parameters of {name} give {text} = "
                                 f"{float(den.min()):g} <= 0 (a negative or infinite hole mass)",
                                 key=f"material.{name}.{key}")
-    for key in ("donor_binding", "acceptor_binding", "spin_orbit"):
+    err = spherical_hh_mass_error(name, g1, g2, g3, prim["hole_dos_mass_hh"])
+    if err is not None:
+        raise err
+    for key in ("donor_binding", "acceptor_binding", "spin_orbit", "hole_dos_mass_hh",
+                "hole_dos_mass_lh"):
         if (prim[key] < 0.0).any():
             raise MaterialError(f"{key} of {name} must not be negative",
                                 key=f"material.{name}.{key}")
@@ -464,9 +510,11 @@ def derived(prim):
     vbo = prim["valence_band_offset"]
     m_hh_z, m_lh_z = 1.0 / (g1 - 2 * g2), 1.0 / (g1 + 2 * g2)
     m_hh_par, m_lh_par = 1.0 / (g1 + g2), 1.0 / (g1 - g2)   # axial approximation
-    # bulk DOS masses: spherical average of the warped bands (Lipari and Baldereschi 1970),
-    # not the axial subband masses (those give 0.25 m0 for GaAs, half the handbook value)
-    m_hh, m_lh = hole_dos_masses(g1, g2, g3)
+    # bulk DOS masses: the material's stored ones (GaP and its alloys), else the spherical
+    # average of the warped bands (Lipari and Baldereschi 1970), not the axial subband masses
+    # (those give 0.25 m0 for GaAs, half the handbook value)
+    m_hh, m_lh = material_hole_dos_masses(g1, g2, g3, prim["hole_dos_mass_hh"],
+                                          prim["hole_dos_mass_lh"])
     out = {
         "eg_gamma": prim["eg_gamma"], "eg_x": prim["eg_x"], "eg_l": prim["eg_l"], "vbo": vbo,
         "ec_gamma": vbo + prim["eg_gamma"], "ec_x": vbo + prim["eg_x"], "ec_l": vbo + prim["eg_l"],

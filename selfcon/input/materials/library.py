@@ -23,6 +23,13 @@ magnitudes are the review's.  The X- and L-valley deformation potentials are not
 review: their hydrostatic parts are derived here from typical pressure coefficients of the
 indirect gaps and their shear parts are typical values, each source string says how.
 
+Hole density-of-states masses (``hole_dos_mass_hh``, ``hole_dos_mass_lh``): a cubic binary
+either stores measured ones (GaP: Levinshtein, Rumyantsev and Shur 1996), which take
+precedence, or stores 0 and uses the spherical estimate of Lipari and Baldereschi from its
+Luttinger parameters (:func:`hole_dos_masses`), allowed only up to MAX_SPHERICAL_HH_MASS
+(building the library fails otherwise: :func:`spherical_hh_mass_error`).  Alloys with an end
+that stores them interpolate the inverse masses (``alloys.blend_hole_dos_masses``).
+
 Static permittivities are not in that paper; they come from S. M. Sze and
 K. K. Ng, Physics of Semiconductor Devices, 3rd ed. (Wiley 2007), Appendix.
 
@@ -84,6 +91,11 @@ PARAMETERS = {
     "luttinger_gamma1": ("1", "Luttinger γ1"),
     "luttinger_gamma2": ("1", "Luttinger γ2"),
     "luttinger_gamma3": ("1", "Luttinger γ3"),
+    "hole_dos_mass_hh": ("m0", "heavy-hole density-of-states mass of the bulk valence band; 0: "
+                               "not stored, the spherical estimate 1/(γ1 - 2γ̄) of Lipari and "
+                               "Baldereschi from the Luttinger parameters is used"),
+    "hole_dos_mass_lh": ("m0", "light-hole density-of-states mass of the bulk valence band; 0: "
+                               "not stored, the spherical estimate 1/(γ1 + 2γ̄) is used"),
     "x_mass_long": ("m0", "X-valley longitudinal mass"),
     "x_mass_trans": ("m0", "X-valley transverse mass"),
     "l_mass_long": ("m0", "L-valley longitudinal mass"),
@@ -147,6 +159,7 @@ WURTZITE_ONLY = ("lattice_constant_c", "elastic_c13", "elastic_c33", "piezo_e31"
                  "deformation_d4")
 ZINCBLENDE_ONLY = ("x_gap", "x_varshni_alpha", "x_varshni_beta", "l_gap", "l_varshni_alpha",
                    "l_varshni_beta", "luttinger_gamma1", "luttinger_gamma2", "luttinger_gamma3",
+                   "hole_dos_mass_hh", "hole_dos_mass_lh",
                    "x_mass_long", "x_mass_trans", "l_mass_long", "l_mass_trans", "x_valleys",
                    "deformation_ac", "deformation_av", "deformation_b", "deformation_d",
                    "x_deformation_gap", "x_deformation_u", "l_deformation_gap", "l_deformation_u")
@@ -339,6 +352,15 @@ def _insb():
     return d
 
 
+#: measured hole masses where the Luttinger parameters of the review fail in the spherical
+#: average (GaP): the handbook's values, with the check we could make
+_LRS = ("Levinshtein, Rumyantsev and Shur (eds.), Handbook Series on Semiconductor Parameters, "
+        "Vol. 1 (World Scientific 1996)")
+_LRS_GAP = (_LRS + ", GaP, {band}: {m} m0, from memory; checked against the handbook's data "
+            "as the Ioffe NSM archive serves them, Ga_x In_(1-x) P basic parameters, "
+            "{rule} m0 (x = 1: GaP)")
+
+
 def _gap():
     fit = (f"least-squares Varshni fit by us (within 8 meV over 10-600 K) to the form "
            f"Eg(T) = 2.886 + 0.1081 [1 - coth(164 K / T)] eV of {_table('GaP')}" + _MEM)
@@ -351,7 +373,13 @@ def _gap():
                         # a nearly flat heavy-hole band in the spherical average (gamma1 -
                         # 2 gamma_bar = 0.14, m_hh = 7 m0), hence an absurd 0.78 eV estimate
                         "acceptor_binding": Value(48e-3, "eV", "common practice: C acceptor in "
-                                                  "GaP, about 48 meV" + _MEM)})
+                                                  "GaP, about 48 meV" + _MEM),
+                        # stored for the same reason: the spherical estimate 1/(gamma1 -
+                        # 2 gamma_bar) = 7.04 m0 would put N_v 25 times too high
+                        "hole_dos_mass_hh": Value(0.79, "m0", _LRS_GAP.format(
+                            band="heavy holes", m="0.79", rule="m_h = 0.6 + 0.19 x")),
+                        "hole_dos_mass_lh": Value(0.14, "m0", _LRS_GAP.format(
+                            band="light holes", m="0.14", rule="m_lp = 0.09 + 0.05 x"))})
 
 
 def _alp():
@@ -428,16 +456,80 @@ def hole_dos_masses(g1, g2, g3):
     spherical approximation of Lipari and Baldereschi, Phys. Rev. Lett. 25, 1660 (1970):
     gamma_bar = (2 gamma2 + 3 gamma3)/5, m_hh = 1/(gamma1 - 2 gamma_bar),
     m_lh = 1/(gamma1 + 2 gamma_bar).  Scalars or arrays.  The bulk valence DOS mass is
-    m_v = (m_hh^(3/2) + m_lh^(3/2))^(2/3) (:func:`valence_dos_mass`)."""
+    m_v = (m_hh^(3/2) + m_lh^(3/2))^(2/3) (:func:`valence_dos_mass`).  A material that
+    stores its own masses (``hole_dos_mass_hh``, ``hole_dos_mass_lh``) uses those instead:
+    :func:`material_hole_dos_masses`."""
     gbar = (2.0 * g2 + 3.0 * g3) / 5.0
     return 1.0 / (g1 - 2.0 * gbar), 1.0 / (g1 + 2.0 * gbar)
 
 
-def valence_dos_mass(g1, g2, g3):
+#: m0: the largest heavy-hole DOS mass the spherical estimate may give.  Measured heavy-hole
+#: masses of the cubic III-V and group-IV crystals lie between about 0.3 and 1 m0
+#: (Levinshtein, Rumyantsev and Shur 1996, from memory); an estimate above twice the
+#: heaviest comes from a nearly cancelling gamma1 - 2 gamma_bar (gamma3 near gamma1/2, GaP:
+#: 7 m0), which measures the warping of the band, not its density of states.  Such a
+#: material must store its measured masses (selfcon rule, DEVELOPERS.md, "How to add a
+#: material")
+MAX_SPHERICAL_HH_MASS = 2.0
+
+
+def material_hole_dos_masses(g1, g2, g3, stored_hh, stored_lh):
+    """The heavy- and light-hole DOS masses (m0) a material uses: its stored value where it
+    stores one (> 0), else the spherical estimate of :func:`hole_dos_masses` (the very same
+    bits as before stored masses existed).  Scalars or arrays."""
+    import numpy as np
+    m_hh, m_lh = hole_dos_masses(g1, g2, g3)
+    return np.where(stored_hh > 0.0, stored_hh, m_hh), np.where(stored_lh > 0.0, stored_lh, m_lh)
+
+
+def spherical_hh_mass_error(name, g1, g2, g3, stored_hh, key=None):
+    """A MaterialError if ``name`` stores no heavy-hole DOS mass (``stored_hh`` = 0) where
+    the spherical estimate exceeds MAX_SPHERICAL_HH_MASS, else None.  Scalars or arrays
+    (the first offending cell is reported)."""
+    import numpy as np
+    from selfcon.errors import MaterialError
+    m_hh = np.atleast_1d(hole_dos_masses(g1, g2, g3)[0])
+    gbar = (2.0 * np.asarray(g2, float) + 3.0 * np.asarray(g3, float)) / 5.0
+    den = np.atleast_1d(np.asarray(g1, float) - 2.0 * gbar) * np.ones_like(m_hh)
+    bad = (np.atleast_1d(stored_hh) <= 0.0) & (m_hh > MAX_SPHERICAL_HH_MASS)
+    if not bad.any():
+        return None
+    i = int(np.flatnonzero(bad)[0])
+    return MaterialError(
+        f"{name} stores no heavy-hole density-of-states mass and its Luttinger parameters give "
+        f"the spherical estimate 1/(gamma1 - 2 gamma_bar) = {float(m_hh[i]):.3g} m0 "
+        f"(gamma1 - 2 gamma_bar = {float(den[i]):.3g}, gamma_bar = (2 gamma2 + 3 gamma3)/5), "
+        f"above the {MAX_SPHERICAL_HH_MASS:g} m0 this estimate may give: give a measured "
+        "hole_dos_mass_hh (and hole_dos_mass_lh; a deck-local material that sets Luttinger "
+        "parameters does not keep its base's stored masses)",
+        key=key or f"material.{name}.hole_dos_mass_hh", allowed="hole_dos_mass_hh > 0 (m0)")
+
+
+def valence_dos_mass(g1, g2, g3, stored_hh=0.0, stored_lh=0.0):
     """Combined hh + lh DOS mass (m0): m_v^(3/2) = m_hh^(3/2) + m_lh^(3/2), both from
-    :func:`hole_dos_masses` (the one rule, used by alloys.derived too)."""
-    mhh, mlh = hole_dos_masses(g1, g2, g3)
+    :func:`material_hole_dos_masses` (the one rule, used by alloys.derived too)."""
+    mhh, mlh = material_hole_dos_masses(g1, g2, g3, stored_hh, stored_lh)
     return (mhh ** 1.5 + mlh ** 1.5) ** (2.0 / 3.0)
+
+
+#: the hole DOS masses of a cubic binary that stores none: the spherical estimate is used
+_NOT_STORED = ("not stored: the spherical estimate of Lipari and Baldereschi, Phys. Rev. Lett. "
+               "25, 1660 (1970), from the Luttinger parameters above is used")
+
+
+def finish_cubic_table(name, d):
+    """The last step of building a cubic binary's table ``d`` (key -> Value): the hole DOS
+    masses it does not store get 0 with the rule as source, the spherical estimate of an
+    entry that stores none is checked (MaterialError above MAX_SPHERICAL_HH_MASS: the
+    library does not build), the dopant levels it does not store get their hydrogenic
+    estimates.  Returns the table in the order of PARAMETERS."""
+    for key in ("hole_dos_mass_hh", "hole_dos_mass_lh"):
+        d.setdefault(key, Value(0.0, "m0", _NOT_STORED))
+    err = spherical_hh_mass_error(name, d["luttinger_gamma1"].value, d["luttinger_gamma2"].value,
+                                  d["luttinger_gamma3"].value, d["hole_dos_mass_hh"].value)
+    if err is not None:
+        raise err
+    return _add_hydrogenic(d)
 
 
 def _add_hydrogenic(d):
@@ -452,8 +544,9 @@ def _add_hydrogenic(d):
             round(_RYD * me / eps ** 2, 6), "eV",
             "hydrogenic estimate 13.6 eV m_e/eps^2 from the mass and permittivity above")
     if "acceptor_binding" not in d:
-        mv = valence_dos_mass(d["luttinger_gamma1"].value, d["luttinger_gamma2"].value,
-                              d["luttinger_gamma3"].value)
+        mv = float(valence_dos_mass(d["luttinger_gamma1"].value, d["luttinger_gamma2"].value,
+                                    d["luttinger_gamma3"].value, d["hole_dos_mass_hh"].value,
+                                    d["hole_dos_mass_lh"].value))
         d["acceptor_binding"] = Value(
             round(_RYD * mv / eps ** 2, 6), "eV",
             "hydrogenic estimate 13.6 eV m_v_dos/eps^2 from the Luttinger parameters and "
@@ -492,7 +585,7 @@ def _binary(name, table):
     table.setdefault("x_valleys", _X_VALLEYS_ZB)
     table.update(_strain_values(name))
     table.update(_zincblende_fill(table))
-    return _add_hydrogenic(table)
+    return finish_cubic_table(name, table)
 
 
 BINARIES = {
@@ -651,7 +744,7 @@ def _group_iv(name):
     d["donor_binding"] = Value(dop["P"][0], "eV", dop["P"][1] + " (P is the library's donor)")
     d["acceptor_binding"] = Value(dop["B"][0], "eV", dop["B"][1] + " (B is the library's acceptor)")
     d.update(_zincblende_fill(d))
-    return _add_hydrogenic(d)
+    return finish_cubic_table(name, d)
 
 
 BINARIES.update({"Si": _group_iv("Si"), "Ge": _group_iv("Ge")})
@@ -1046,12 +1139,18 @@ _VARSHNI_RULE = ("the Varshni shift is applied to each end binary and the gaps a
 _LUTT_RULE = ("linear interpolation (Vurgaftman 2001 recommend linear interpolation of the "
               "Luttinger parameters for these alloys, from memory)")
 _LIN = "linear interpolation, common practice"
+_HOLE_DOS_RULE = ("where an end binary stores its hole DOS mass: the inverse masses interpolated "
+                  "linearly, the other end taking its spherical estimate (linear in its Luttinger "
+                  "parameters, so this is the rule of the Luttinger parameters themselves); where "
+                  "neither end stores one: not stored, the spherical estimate from the "
+                  "interpolated Luttinger parameters (selfcon rule)")
 ALLOY_RULES = {
     "varshni_alpha": _VARSHNI_RULE, "varshni_beta": _VARSHNI_RULE,
     "x_varshni_alpha": _VARSHNI_RULE, "x_varshni_beta": _VARSHNI_RULE,
     "l_varshni_alpha": _VARSHNI_RULE, "l_varshni_beta": _VARSHNI_RULE,
     "luttinger_gamma1": _LUTT_RULE, "luttinger_gamma2": _LUTT_RULE,
     "luttinger_gamma3": _LUTT_RULE,
+    "hole_dos_mass_hh": _HOLE_DOS_RULE, "hole_dos_mass_lh": _HOLE_DOS_RULE,
     "x_mass_long": _LIN, "x_mass_trans": _LIN, "l_mass_long": _LIN, "l_mass_trans": _LIN,
     "x_valleys": "the count of the end binaries (both ends of every library alloy share it)",
     "permittivity": _LIN, "donor_binding": _LIN, "acceptor_binding": _LIN,
