@@ -75,6 +75,9 @@ def test_mid_ingap_interpolates_the_inverse_masses():
     assert abs(p["m_hh_dos"] / (0.6 + 0.19 * (1 - x)) - 1.0) < 0.15
     g = [(1 - x) * a + x * b for a, b in zip(gammas("GaP"), gammas("InP"))]
     assert 1.0 / lb_inverse(*g)[0] == pytest.approx(1.4293, abs=1e-4)
+    # `selfcon materials InGaP` names the rule (ALLOY_RULES, this repository's own rule)
+    rule = {r["parameter"]: r for r in M.describe("InGaP")}["rule.hole_dos_mass_hh"]
+    assert rule["value"] == "1/m linear" and "inverse masses" in rule["source"]
 
 
 def test_alloy_ends_and_the_quaternary_corner_are_the_binaries():
@@ -141,6 +144,11 @@ def test_the_library_refuses_a_flat_heavy_hole_without_a_stored_mass():
         L.finish_cubic_table("Madeup", _made_up_table())
     assert err.value.key == "material.Madeup.hole_dos_mass_hh"
     assert "8.33 m0" in err.value.message                        # 1/0.12 (analytic)
+    # gamma1 = 2 gamma_bar exactly (gamma3 = 3.0: gamma_bar = (1.0 + 9.0)/5 = 2.0, analytic):
+    # no mass at all, refused the same way (no division by zero)
+    with pytest.raises(MaterialError, match="no positive mass"):
+        L.finish_cubic_table("Madeup", {**_made_up_table(),
+                                        "luttinger_gamma3": L.Value(3.0, "1", "made up")})
     # storing a measured mass builds the entry, which then uses it
     t = L.finish_cubic_table("Madeup", _made_up_table(hole_dos_mass_hh=0.8, hole_dos_mass_lh=0.15))
     assert t["hole_dos_mass_hh"].value == 0.8

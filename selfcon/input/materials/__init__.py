@@ -266,7 +266,8 @@ def _alloy_rows(name):
     for key, src in ALLOY_RULES.items():
         if _not_applicable(key, cr):
             continue
-        how = "per end binary, then bowed" if "varshni" in key else "linear"
+        how = ("per end binary, then bowed" if "varshni" in key
+               else "1/m linear" if key.startswith("hole_dos_mass") else "linear")
         rows.append(_row(f"rule.{key}", how, "", src))
     return rows
 

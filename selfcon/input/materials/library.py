@@ -482,27 +482,28 @@ def material_hole_dos_masses(g1, g2, g3, stored_hh, stored_lh):
     return np.where(stored_hh > 0.0, stored_hh, m_hh), np.where(stored_lh > 0.0, stored_lh, m_lh)
 
 
-def spherical_hh_mass_error(name, g1, g2, g3, stored_hh, key=None):
+def spherical_hh_mass_error(name, g1, g2, g3, stored_hh):
     """A MaterialError if ``name`` stores no heavy-hole DOS mass (``stored_hh`` = 0) where
-    the spherical estimate exceeds MAX_SPHERICAL_HH_MASS, else None.  Scalars or arrays
-    (the first offending cell is reported)."""
+    the spherical estimate is not a mass between 0 and MAX_SPHERICAL_HH_MASS (gamma1 -
+    2 gamma_bar below 1/MAX_SPHERICAL_HH_MASS), else None.  Scalars or arrays (the first
+    offending cell is reported)."""
     import numpy as np
     from selfcon.errors import MaterialError
-    m_hh = np.atleast_1d(hole_dos_masses(g1, g2, g3)[0])
     gbar = (2.0 * np.asarray(g2, float) + 3.0 * np.asarray(g3, float)) / 5.0
-    den = np.atleast_1d(np.asarray(g1, float) - 2.0 * gbar) * np.ones_like(m_hh)
-    bad = (np.atleast_1d(stored_hh) <= 0.0) & (m_hh > MAX_SPHERICAL_HH_MASS)
+    den = np.atleast_1d(np.asarray(g1, float) - 2.0 * gbar)
+    bad = (np.atleast_1d(stored_hh) <= 0.0) & ~(den >= 1.0 / MAX_SPHERICAL_HH_MASS)
     if not bad.any():
         return None
-    i = int(np.flatnonzero(bad)[0])
+    d = float(np.broadcast_to(den, bad.shape)[np.flatnonzero(bad)[0]])
+    estimate = f"{1.0 / d:.3g} m0" if d > 0.0 else "no positive mass"
     return MaterialError(
         f"{name} stores no heavy-hole density-of-states mass and its Luttinger parameters give "
-        f"the spherical estimate 1/(gamma1 - 2 gamma_bar) = {float(m_hh[i]):.3g} m0 "
-        f"(gamma1 - 2 gamma_bar = {float(den[i]):.3g}, gamma_bar = (2 gamma2 + 3 gamma3)/5), "
+        f"the spherical estimate 1/(gamma1 - 2 gamma_bar) = {estimate} "
+        f"(gamma1 - 2 gamma_bar = {d:.3g}, gamma_bar = (2 gamma2 + 3 gamma3)/5), "
         f"above the {MAX_SPHERICAL_HH_MASS:g} m0 this estimate may give: give a measured "
         "hole_dos_mass_hh (and hole_dos_mass_lh; a deck-local material that sets Luttinger "
         "parameters does not keep its base's stored masses)",
-        key=key or f"material.{name}.hole_dos_mass_hh", allowed="hole_dos_mass_hh > 0 (m0)")
+        key=f"material.{name}.hole_dos_mass_hh", allowed="hole_dos_mass_hh > 0 (m0)")
 
 
 def valence_dos_mass(g1, g2, g3, stored_hh=0.0, stored_lh=0.0):
