@@ -126,6 +126,13 @@ def _versions() -> dict:
     return dict(_package_versions())
 
 
+@lru_cache(maxsize=256)
+def deck_hash(text: str) -> str:
+    """SHA-256 of a deck's text (hex), the provenance's ``deck_hash``: kept per text, since
+    the solves of a sweep or a study point's retries hash the same text again."""
+    return hashlib.sha256(text.encode()).hexdigest()
+
+
 def solve_channels(deck, st, loop, n, p, n_valleys, ec, ev) -> chx.SolvedChannels:
     """Every band's states in every quantum region and the channels of a converged loop.
 
@@ -327,10 +334,13 @@ def build_result(deck, st, loop, *, wall_time: float) -> Result:
         bs = solved.spectrum.get(band)
         if bs is None:
             continue
-        subbands[band] = Subbands(energy=bs.energy.copy(), occupation=solved.occupation[band].copy(),
-                                  wavefunction=bs.psi.copy(), in_plane_mass=bs.m_par.copy(),
-                                  region=bs.region.astype(np.int64), degeneracy=bs.degeneracy.copy(),
-                                  channel=an.attribution[band].copy(), bound=bs.bound.copy())
+        # the spectrum's, the occupations' and the attribution's arrays are made for this
+        # result alone (selfcon.solver.spectrum.full_spectrum: fresh arrays, never the loop's
+        # own; chx.from_structure and analyse likewise): the result takes them as they are
+        subbands[band] = Subbands(energy=bs.energy, occupation=solved.occupation[band],
+                                  wavefunction=bs.psi, in_plane_mass=bs.m_par,
+                                  region=bs.region.astype(np.int64), degeneracy=bs.degeneracy,
+                                  channel=an.attribution[band], bound=bs.bound)
 
     e_layer = per_layer(st, n) * CM2_PER_NM2
     h_layer = per_layer(st, p) * CM2_PER_NM2
@@ -394,7 +404,7 @@ def build_result(deck, st, loop, *, wall_time: float) -> Result:
     }
     text = deck.text
     provenance = dict(_versions())
-    provenance["deck_hash"] = hashlib.sha256(text.encode()).hexdigest()
+    provenance["deck_hash"] = deck_hash(text)
     provenance["wall_time_s"] = float(wall_time)
     provenance["created"] = utc_now()
     notes = override_notes(deck)
