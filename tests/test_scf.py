@@ -356,3 +356,76 @@ def test_adaptive_damping_when_the_residual_grows(hemt4):
     assert r2.converged
     assert r2.summary["electron_sheet_density_cm2"] == pytest.approx(
         selfcon.solve(hemt4).summary["electron_sheet_density_cm2"], rel=1e-4)
+
+
+# ------------------------------------------------------------------ two free contacts
+# Both ends free (zero field): Gauss's law (analytic) leaves the stack neutral as a whole,
+# the electrons of the channel exactly the ionised donors of the sheet.  A 4 K
+# modulation-doped stack used to start from one cell's neutral level, charged by the whole
+# sheet, and the loop walked the band gap in clamped steps without converging.
+FREE_4K = """
+title = "modulation-doped stack, both ends free, 4 K"
+temperature = 4.0
+[surface]
+contact = "free"
+[substrate]
+contact = "free"
+[[layer]]
+name = "cap"
+material = "GaAs"
+thickness = 10.0
+[[layer]]
+name = "barrier"
+material = "AlGaAs"
+x = 0.3
+thickness = 30.0
+[[layer]]
+name = "doping"
+material = "AlGaAs"
+x = 0.3
+thickness = 2.0
+sheet_donors = 5e11
+[[layer]]
+name = "spacer"
+material = "AlGaAs"
+x = 0.3
+thickness = 20.0
+[[layer]]
+name = "channel"
+material = "GaAs"
+thickness = 300.0
+[quantum]
+regions = [[62.0, 160.0]]
+"""
+
+
+def test_two_free_contacts_give_a_neutral_stack_at_low_temperature():
+    deck = selfcon.load_deck(FREE_4K)
+    r = selfcon.solve(deck)
+    assert r.converged, r.message
+    s = r.summary
+    donors = s["donor_sheet_density_cm2"]
+    assert donors > 0.99 * 5e11                # the sheet is ionised: the electrons left it
+    # neutral as a whole (analytic: zero field at both ends); the holes are negligible at 4 K
+    net = donors + s["hole_sheet_density_cm2"] - s["electron_sheet_density_cm2"]
+    assert abs(net) < 1e-6 * donors
+    field = r.profile["electric_field"]
+    assert abs(field[0]) < 1e-4 * np.abs(field).max() and abs(field[-1]) < 1e-4 * np.abs(field).max()
+    assert r.main_channel["layer"] == "channel"
+
+
+def test_neutral_flat_start_of_two_free_contacts():
+    from selfcon.solver import poisson as P, steps
+    st = selfcon.build_structure(selfcon.load_deck(FREE_4K))
+    problem = steps.classical_problem(st)
+    phi = steps.linear_start(st, steps.boundary_conditions(st))
+    assert np.ptp(phi) == 0.0
+    sheet = 5e11 * 1e-14                           # nm^-2
+    assert abs(P.total_charge(problem, phi)) < 1e-9 * sheet
+    # where no carrier the deck counts can balance the doping (acceptors, electrons only), the
+    # first guess stays: there is no neutral flat potential to find
+    p_only = selfcon.load_deck(FREE_4K.replace("sheet_donors = 5e11", "acceptors = 1e17")
+                               + '[physics]\ncarriers = ["electron"]\n')
+    st_p = selfcon.build_structure(p_only)
+    prob_p = steps.classical_problem(st_p)
+    assert steps.neutral_shift(prob_p, 0.123) == 0.123

@@ -516,6 +516,10 @@ def nested_start(ws: Workspace):
     return sol.phi, steps
 
 
+#: farthest (V) the neutral flat start of a stack with two free ends is sought from its first guess
+NEUTRAL_SPAN = 16.0
+
+
 def start_levels(n_nodes: int) -> list[int]:
     """Coarsening factors of the nested classical start, coarsest first, ending with 1:
     the largest power of 4 leaving >= COARSE_START_NODES nodes, then 16x finer each level."""
@@ -539,8 +543,45 @@ def linear_start(st: Structure, bc):
         return np.full(z.size, v0)
     if k1 == P.DIRICHLET:
         return np.full(z.size, v1)
+    # both ends free (zero field): Gauss's law leaves the stack neutral as a whole, so the
+    # start is the one flat potential at which it is (:func:`neutral_shift`), not the
+    # neutral level of one cell, which left a stack of doped and undoped layers charged:
+    # at low temperature its carriers then sat ~exp(-1 eV/kT) below anything Newton could
+    # move, and the loop walked the whole band gap in clamped steps
     mid = st.n_nodes // 2 - 1 if st.n_nodes > 2 else 0
-    return np.full(z.size, contact_neutral_potential(st, classical_problem(st), mid))
+    problem = classical_problem(st)
+    level = contact_neutral_potential(st, problem, mid)
+    return np.full(z.size, neutral_shift(problem, level))
+
+
+def neutral_shift(problem: P.PoissonProblem, guess: float) -> float:
+    """The flat potential (V) at which the whole stack of ``problem`` is neutral, the FV
+    integral of rho zero (selfcon.solver.poisson.total_charge).  rho falls with phi at every
+    node, so the total does too: a bracket around ``guess`` is widened until the total
+    changes sign, then brentq.  Without a sign change within NEUTRAL_SPAN V (no carrier can
+    balance the doping and the sheets: the deck's carriers leave one sign out) ``guess``."""
+    from scipy.optimize import brentq
+    flat = np.empty(problem.z.size)
+
+    def total(phi):
+        flat.fill(phi)
+        return P.total_charge(problem, flat)
+
+    a = float(guess)
+    fa = total(a)
+    if fa == 0.0:
+        return a
+    up = 1.0 if fa > 0 else -1.0          # positive: more electrons, fewer holes (a higher phi)
+    step, travelled = 0.25, 0.0
+    while travelled + step <= NEUTRAL_SPAN:
+        b = a + up * step
+        fb = total(b)
+        if (fb < 0) if up > 0 else (fb > 0):
+            return float(brentq(total, min(a, b), max(a, b), xtol=1e-12))
+        a, fa = b, fb
+        travelled += step
+        step *= 2.0
+    return float(guess)
 
 
 def contact_neutral_potential(st: Structure, problem: P.PoissonProblem, c: int) -> float:
