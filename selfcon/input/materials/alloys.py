@@ -184,6 +184,9 @@ def blend_hole_dos_masses(out, parts, weights, den):
     bits of an alloy of ends that store none."""
     shape = np.shape(out["luttinger_gamma1"])
     for key, sign in HOLE_DOS_KEYS:
+        if not any(p[key].any() for p in parts):     # the common case: nothing stored
+            out[key] = np.zeros(shape)
+            continue
         stored = np.zeros(shape, dtype=bool)
         inv = 0.0
         for p, w in zip(parts, weights):
@@ -192,11 +195,8 @@ def blend_hole_dos_masses(out, parts, weights, den):
             gbar = (2.0 * p["luttinger_gamma2"] + 3.0 * p["luttinger_gamma3"]) / 5.0
             safe = np.where(has, p[key], 1.0)
             inv = inv + w * np.where(has, 1.0 / safe, p["luttinger_gamma1"] + sign * 2.0 * gbar)
-        if stored.any():
-            with np.errstate(divide="ignore", invalid="ignore"):
-                out[key] = np.where(stored, den / inv, 0.0)
-        else:
-            out[key] = np.zeros(shape)
+        with np.errstate(divide="ignore", invalid="ignore"):
+            out[key] = np.where(stored, den / inv, 0.0)
 
 
 def quaternary_primitives(name, x, y, temperature):
