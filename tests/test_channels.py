@@ -208,6 +208,28 @@ def test_main_channel_is_the_largest_of_the_majority_kind():
     assert sorted(c.name for c in an.channels) == ["electron1", "electron2", "hole1"]
 
 
+def test_main_channel_is_not_the_doping_layer_while_another_exists():
+    # the upper well's layer holds donors (a modulation-doping layer that kept its electrons):
+    # its 3e11 cm^-2 outnumber the undoped lower well's 1e11, yet the lower well is the main
+    # channel and the upper one the parallel channel (the design rule of the main channel)
+    lv = well_levels([3e11, 1e11, 0, 0])
+    prof = {"electron": electron_profile(lv, np.zeros(Z.size))}
+    plain = chx.analyse(Z, W, KT, prof, [lv], layers())
+    assert plain.main_channel.name == "well"                       # the most electrons, no doping
+    doped = [chx.LayerSpan(L.name, L.top_nm, L.bottom_nm, L.named,
+                           feeds=("electron",) if L.name == "well" else ()) for L in layers()]
+    an = chx.analyse(Z, W, KT, prof, [lv], doped)
+    assert an.main_channel.top_nm > 50 and an.main_channel.sheet_density == pytest.approx(1e11)
+    # acceptors feed holes, not electrons: the electron channel in that layer stays the main one
+    p_doped = [chx.LayerSpan(L.name, L.top_nm, L.bottom_nm, L.named,
+                             feeds=("hole",) if L.name == "well" else ()) for L in layers()]
+    assert chx.analyse(Z, W, KT, prof, [lv], p_doped).main_channel.name == "well"
+    # a doped channel that is the only one is the main channel
+    lone = well_levels([3e11, 0, 0, 0])
+    an = chx.analyse(Z, W, KT, {"electron": electron_profile(lone, np.zeros(Z.size))}, [lone], doped)
+    assert [c.name for c in an.channels] == ["well"] and an.main_channel.name == "well"
+
+
 # --------------------------------------------------------------------------- transitions
 
 def test_transitions_box_states_orthonormal():

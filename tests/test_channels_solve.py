@@ -446,3 +446,33 @@ def test_study_summary_addresses_channels_like_tune(tmp_path):
             got.append((float(a["channel_electron_sheet_density_cm2"]), float(a["channel.buffer.sheet_density_cm2"]),
                         float(a["channel.channel.E1_minus_E0_eV"])))
     assert sorted(zip(s.columns["ns"], s.columns["ns:buffer"], s.columns["e10:channel"])) == sorted(got)
+
+
+# --------------------------------------------------------------------------- over-doped stacks
+
+def test_overdoped_stack_reports_the_doping_layer_as_the_parallel_channel():
+    # inputs/design/overdoped_300K.toml: its doping layer keeps more electrons than the GaAs
+    # channel; the channel is still the main one and the doping layer the parallel channel
+    r = selfcon.solve(selfcon.load_deck(str(DESIGN / "overdoped_300K.toml")))
+    assert r.converged, r.message
+    by = {c["name"]: c for c in r.channels}
+    assert r.summary["main_channel"] == "channel" and by["channel"]["main"]
+    parallel = [c for c in r.channels if c["layer"] == "doping"]
+    assert len(parallel) == 1 and parallel[0]["sheet_density"] > by["channel"]["sheet_density"]
+    assert any(w.startswith(f"parasitic channel {parallel[0]['name']!r}")
+               and "parallel conduction through the doped layer 'doping'" in w for w in r.warnings)
+
+
+def test_channel_density_falls_with_the_spacer_even_with_parallel_conduction():
+    # common practice: a thicker spacer transfers fewer electrons into the channel.  At
+    # 4e12 cm^-2 in the sheet the doping layer keeps more electrons than the channel from a
+    # 20 nm spacer on; the main channel's n_s used to follow the doping layer's and rise
+    ns = []
+    for spacer in (10.0, 20.0, 30.0, 40.0):
+        d = selfcon.load_deck(str(DESIGN.parent / "hemt_4K.toml"),
+                              [f"layer.spacer.thickness={spacer}", "layer.doping.sheet_donors=4e12"])
+        r = selfcon.solve(d)
+        assert r.converged, r.message
+        assert r.summary["channel_layer"] == "channel"
+        ns.append(r.summary["channel_electron_sheet_density_cm2"])
+    assert all(a > b for a, b in zip(ns, ns[1:])), ns

@@ -50,7 +50,13 @@ the default ``layer<index>``) takes that layer's name, unless another channel wo
 take the same name.
 
 The main channel: the first ``[[channel]]`` of the deck; without named channels, the
-channel with the most carriers of the majority kind (the kind whose channels hold more).
+channel with the most carriers of the majority kind (the kind whose channels hold more),
+leaving out a channel whose carriers sit mostly in a layer doped for them (donors for
+electrons, acceptors for holes: :attr:`LayerSpan.feeds`) while another channel of that
+kind exists.  The electrons an over-doped modulation-doping layer keeps are the parallel
+channel of the design even where they outnumber the undoped channel's, and are reported
+as such; a doped channel (a delta-doped or uniformly doped channel layer) is still the
+main one when it is the only kind there is.
 
 Occupied subbands (:func:`occupied`, the one definition every output uses): a subband
 is occupied when its population is at least ``OCCUPIED_FRACTION`` = 1 % of its
@@ -196,6 +202,19 @@ class LayerSpan:
     top_nm: float
     bottom_nm: float
     named: bool = True        # False: the default name layer<index>, never given to a channel
+    feeds: tuple = ()         # the carriers its dopants supply (dopant_carriers)
+
+
+def dopant_carriers(layer) -> tuple:
+    """The carriers a layer's dopants supply: ``"electron"`` with donors (bulk or sheet),
+    ``"hole"`` with acceptors (the one rule of the main channel and the parallel-conduction
+    advice, selfcon.output.diagnostics).  ``layer``: a structure's layer."""
+    out = []
+    if layer.donors > 0 or layer.sheet_donors > 0:
+        out.append("electron")
+    if layer.acceptors > 0 or layer.sheet_acceptors > 0:
+        out.append("hole")
+    return tuple(out)
 
 
 @dataclass(frozen=True)
@@ -594,6 +613,9 @@ def analyse(z, w, kT: float, profiles: dict, levels, layers=(), requests=(), *,
         kind_total = {k: sum(c.sheet_density for c in chans if c.carrier == k) for k in CARRIERS}
         kind = max(CARRIERS, key=lambda k: kind_total[k])
         cand = [j for j, c in enumerate(chans) if c.carrier == kind]
+        # not the carriers a doped layer keeps while another channel of the kind exists
+        doped = {L.name for L in layers if kind in L.feeds}
+        cand = [j for j in cand if chans[j].layer not in doped] or cand
         main = max(cand, key=lambda j: chans[j].sheet_density)
     return ChannelAnalysis(channels=chans, main=main, attribution=attribution, unattributed=unattributed,
                            classical_outside=outside, total=total)
@@ -714,7 +736,8 @@ def requests_of(deck, structure) -> list[Request]:
 
 
 def layer_spans(structure) -> list[LayerSpan]:
-    return [LayerSpan(L.name, float(L.top), float(L.bottom), named=L.name != f"layer{L.index}")
+    return [LayerSpan(L.name, float(L.top), float(L.bottom), named=L.name != f"layer{L.index}",
+                      feeds=dopant_carriers(L))
             for L in structure.layers]
 
 

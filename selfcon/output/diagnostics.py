@@ -124,7 +124,7 @@ from selfcon.input.materials import ALLOYS, BINARIES
 from selfcon.input.materials.alloys import bowing_value
 from selfcon.model.mesh import Mesh
 from selfcon.model.structure import derived
-from selfcon.output.channels import BAND_CARRIER, STATE_LABEL
+from selfcon.output.channels import BAND_CARRIER, STATE_LABEL, dopant_carriers
 from selfcon.output.numbers import fmt
 
 SECOND_SUBBAND_FRACTION = 0.01      # the occupied rule of selfcon.output.channels
@@ -314,9 +314,7 @@ def _doped_layer_in(structure, top: float, bottom: float, carrier: str) -> str |
     """Name of a layer overlapping [top, bottom] nm doped with the dopant that supplies
     ``carrier`` (donors for electrons, acceptors for holes; bulk or sheet), or None."""
     for Li in structure.layers:
-        supplies = (Li.donors > 0 or Li.sheet_donors > 0) if carrier == "electron" else \
-            (Li.acceptors > 0 or Li.sheet_acceptors > 0)
-        if supplies and Li.top < bottom and top < Li.bottom:
+        if carrier in dopant_carriers(Li) and Li.top < bottom and top < Li.bottom:
             return Li.name
     return None
 

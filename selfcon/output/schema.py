@@ -415,7 +415,8 @@ _c = (
     ("named", "1", "named channel",
      "1 for a channel named in a [[channel]] table of the deck, 0 for an auto-detected one"),
     ("main", "1", "main channel", "1 for the main channel (the first [[channel]] of the deck, else the one "
-                                  "with most carriers of the majority kind), 0 otherwise"),
+                                  "with most carriers of the majority kind outside the layers doped for "
+                                  "them, when there is one), 0 otherwise"),
 )
 for _name, _units, _long, _desc in _c:
     _r(f"channels/{_name}", _units, _long, _desc, dims=("channel",))
@@ -576,7 +577,7 @@ TABLE_SUMMARY = (
     ("hole_sheet_density_cm2", "cm-2", "hole sheet density", "holes per area in the whole stack"),
     ("channel_density_cm2", "cm-2", "main-channel sheet density",
      "sheet density of the main channel (the first [[channel]] of the deck, else the channel holding most "
-     "carriers of the majority kind)"),
+     "carriers of the majority kind, outside the layers doped for them when there is one)"),
     ("E0_eV", "eV", "E0", "ground subband energy of the main channel, relative to EF (electron energy scale)"),
     ("E1_eV", "eV", "E1", "second subband energy of the main channel, relative to EF (electron energy scale)"),
     ("E1_minus_E0_eV", "eV", "E1 - E0", "subband spacing E1 - E0 of the main channel's own subbands"),
