@@ -13,7 +13,7 @@ from importlib import metadata
 
 import numpy as np
 
-from selfcon.constants import C_M2_PER_NM2, CM2_PER_NM2, CM3_PER_NM3, NM_PER_CM
+from selfcon.constants import C_M2_PER_NM2, CM2_PER_NM2, CM3_PER_NM3, NM_PER_CM, Q_EPS0
 from selfcon.output import channels as chx
 from selfcon.output.channels import OCCUPIED_CM2, OCCUPIED_FRACTION  # noqa: F401  (the one rule)
 from selfcon.output.diagnostics import design_warnings
@@ -357,14 +357,17 @@ def build_result(deck, st, loop, *, wall_time: float) -> Result:
 
     w = st.mesh.w
     ns = float((n * w).sum()) * CM2_PER_NM2
+    violation, scale = steps.gauss_balance(ws, phi, loop.states, rho=p - n + ndp - nam + st.fixed_charge)
     ps = float((p * w).sum()) * CM2_PER_NM2
     summary = {
         "electron_sheet_density_cm2": ns,
         "hole_sheet_density_cm2": ps,
         "donor_sheet_density_cm2": float((ndp * w).sum()) * CM2_PER_NM2,
         "acceptor_sheet_density_cm2": float((nam * w).sum()) * CM2_PER_NM2,
-        "gauss_residual": float(steps.gauss_residual(ws, phi, loop.states,
-                                                     rho=p - n + ndp - nam + st.fixed_charge)),
+        "gauss_residual": float(violation / scale),
+        # the violation itself, as a sheet charge (the sanity check weighs it against the
+        # potential's precision, selfcon/output/sanity.py)
+        "gauss_violation_cm2": float(violation / Q_EPS0 * CM2_PER_NM2),
         # each carrier's own Fermi level (the gate's for the minority carrier under a schottky
         # surface); every energy in the file is relative to the contacted carrier's, 0 eV
         "electron_fermi_level_eV": float(st.fermi_levels[0]),

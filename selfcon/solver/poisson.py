@@ -460,7 +460,16 @@ def gauss_residual(problem, phi, rho=None):
     carriers moved across a broken gap, has no boundary flux to compare with), the floor
     being the flux of GAUSS_FLOOR_CM2 of charge: in an uncharged stack (an undoped well
     between neutral contacts) the fluxes are round-off of phi, and their ratio would
-    measure nothing.  ``rho``: the node charge at ``phi`` if the caller has it already."""
+    measure nothing.  ``rho``: the node charge at ``phi`` if the caller has it already.
+    :func:`gauss_balance` gives the violation and the scale."""
+    violation, scale = gauss_balance(problem, phi, rho)
+    return violation / scale
+
+
+def gauss_balance(problem, phi, rho=None) -> tuple[float, float]:
+    """(|lhs - rhs|, the scale) of :func:`gauss_residual`, both fluxes eps_r E in V/nm (a
+    sheet of s nm^-2 carries Q_EPS0 s): the violation itself, which the result reports in
+    cm^-2 and the sanity check weighs against the precision of the potential."""
     if rho is None:
         rho = densities(problem, phi).rho
     d0, dl = boundary_flux(problem, phi, rho)
@@ -468,4 +477,4 @@ def gauss_residual(problem, phi, rho=None):
     rhs = Q_EPS0 * float((rho * problem.w).sum())
     total = Q_EPS0 * float((np.abs(rho) * problem.w).sum())
     scale = max(abs(d0), abs(dl), total, Q_EPS0 * GAUSS_FLOOR_CM2 / CM2_PER_NM2)
-    return abs(lhs - rhs) / scale
+    return abs(lhs - rhs), scale

@@ -1149,7 +1149,13 @@ def charge_residual(ws: Workspace, phi, phi_out, states) -> float:
 def gauss_residual(ws: Workspace, phi, states, rho=None) -> float:
     """Gauss's law check of the solution (rho: its node charge, if already computed: then the
     check needs only the mesh and permittivities, the same in every problem of the solve)."""
-    return P.gauss_residual(ws.problem_classical if rho is not None else ws.problem(phi, states), phi, rho)
+    violation, scale = gauss_balance(ws, phi, states, rho)
+    return violation / scale
+
+
+def gauss_balance(ws: Workspace, phi, states, rho=None) -> tuple[float, float]:
+    """(violation, scale) of :func:`gauss_residual` (selfcon.solver.poisson.gauss_balance)."""
+    return P.gauss_balance(ws.problem_classical if rho is not None else ws.problem(phi, states), phi, rho)
 
 
 __all__ = ["BAND_SPECS", "KP_BAND", "kp_states", "VALLEY_BANDS", "ALL_BANDS", "bands_of", "carrier_of", "state_degeneracy",
@@ -1158,5 +1164,5 @@ __all__ = ["BAND_SPECS", "KP_BAND", "kp_states", "VALLEY_BANDS", "ALL_BANDS", "b
            "update_exchange", "subband_profile", "nonparabolic_band", "cell_edge",
            "band_region_states",
            "region_states", "region_eigenstates", "in_plane_motion",
-           "poisson_pass", "charge_residual", "densities", "mobile_sheets", "gauss_residual",
+           "poisson_pass", "charge_residual", "densities", "mobile_sheets", "gauss_residual", "gauss_balance",
            "classical_problem", "classical_problems", "valley_arrays", "with_states"]
