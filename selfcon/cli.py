@@ -188,9 +188,11 @@ def _fmt(v, unit=""):
 
 def check_figures(deck, structure) -> dict:
     """What `selfcon check` reports: stack, contacts, mesh statistics, quantum regions, strain
-    (each layer's strain and critical-thickness margin) and non-type-I interfaces."""
+    (each layer's strain and critical-thickness margin), non-type-I interfaces and, with
+    multiband holes, the layers of the quantum regions whose bulk hole band curves the wrong
+    way (selfcon.output.diagnostics.kp_curvature_findings)."""
     import numpy as np
-    from selfcon.output.diagnostics import interface_alignments
+    from selfcon.output.diagnostics import interface_alignments, kp_curvature_findings, kp_curvature_text
     sm = structure.strain
     per = {L.index: L for L in sm.layers} if sm is not None else {}
     layers = []
@@ -248,6 +250,12 @@ def check_figures(deck, structure) -> dict:
     for side in ("surface", "substrate"):
         c = getattr(structure, side)
         contacts[side] = {"contact": c.kind, "barrier_eV": c.barrier, "bias_V": c.bias}
+    holes = (any(b in structure.carriers for b in ("heavy_hole", "light_hole"))
+             and structure.hole_model != "parabolic")
+    kp_bands = [{"layers": f["layers"], "material": f["material"], "gammas": list(f["gammas"]),
+                 "model": f["model"], "curvatures": [c._asdict() for c in f["bad"]],
+                 "text": kp_curvature_text(f, before_solve=True)}
+                for f in (kp_curvature_findings(structure) if holes else [])]
     from selfcon.output.report import jsonable
     return jsonable({"title": deck.title, "temperature_K": deck.temperature, "file": deck.path,
                    "overrides": [f"{k}={v}" for k, v in getattr(deck, "overrides", ())],
@@ -256,7 +264,8 @@ def check_figures(deck, structure) -> dict:
                             "max_step_nm": float(h.max()) if h.size else None,
                             "thickness_nm": float(z[-1] - z[0]) if z.size else 0.0},
                    "quantum_regions": regions, "strain": strain, "interfaces": interfaces,
-                   "polarization": polarization,
+                   "polarization": polarization, "hole_model": structure.hole_model,
+                   "kp_hole_bands": kp_bands,
                    "exchange_correlation": structure.exchange_correlation,
                    "nonparabolicity": bool(structure.nonparabolicity)})
 
@@ -356,6 +365,10 @@ def cmd_check(args) -> int:
         console.print(f"interface {it['upper']}/{it['lower']} at {it['z_nm']:g} nm: {it['kind']} "
                       f"(interface gap {1e3 * it['gap_eV']:.0f} meV; electrons in {it['electrons']}, "
                       f"holes in {it['holes']}): single-band model only rough here")
+    if fig["kp_hole_bands"]:
+        from rich.markup import escape
+        for f in fig["kp_hole_bands"]:
+            console.print("⚠ " + escape(f["text"]))
     for side, c in fig["contacts"].items():
         extra = "" if c["barrier_eV"] is None else f", barrier {c['barrier_eV']:g} eV"
         if c["contact"] == "schottky":
@@ -372,7 +385,9 @@ def cmd_check(args) -> int:
     console.print("carriers: " + ", ".join(fig["carriers"]))
     console.print("model: " + ("Hartree" if fig["exchange_correlation"] == "none" else
                                f"{fig['exchange_correlation']} exchange-correlation (Schrödinger only)")
-                  + (", nonparabolic Γ electrons" if fig["nonparabolicity"] else ", parabolic bands"))
+                  + (", nonparabolic Γ electrons" if fig["nonparabolicity"] else
+                     ", parabolic bands" if fig["hole_model"] == "parabolic" else ", parabolic Γ electrons")
+                  + (f", {fig['hole_model']} multiband holes" if fig["hole_model"] != "parabolic" else ""))
     return EXIT_OK
 
 

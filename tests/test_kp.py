@@ -120,6 +120,126 @@ def test_bulk_kp6_matches_chuangs_matrix(direction):
         assert np.allclose(ours, ref, rtol=1e-6, atol=1e-12)
 
 
+# GaP Luttinger parameters of the 2001 review (Vurgaftman, Meyer and Ram-Mohan, J. Appl. Phys.
+# 89, 5815 (2001)): gamma1 - 2 gamma3 < 0, a bulk heavy hole curving the wrong way along [111]
+GAP = dict(g1=4.05, g2=0.49, g3=2.93, delta=0.08)
+
+
+def _plane(use, theta):
+    """Unit wave vector at the polar angle ``theta`` from [001] in ``use``'s plane."""
+    (cx, sy), _ = kp.CURVATURE_USES[use]
+    return np.array([np.sin(theta) * cx, np.sin(theta) * sy, np.cos(theta)])
+
+
+def _hole_curvatures(mat, d, nb, axial=False, k=1e-3):
+    """Hole-wise inverse masses (1/m0) of the bulk matrix's bands at small k along d: the
+    Gamma8 (top four) eigenvalues, -E / (hbar^2 k^2 / 2m0), ascending, one per Kramers pair."""
+    e = np.sort(np.linalg.eigvalsh(kp.bulk_matrix(mat, k * d, nb, axial=axial)))[::-1][:4]
+    return np.sort(-e / (HBAR2_2M0 * k * k))[::2]
+
+
+@pytest.mark.parametrize("nb", [4, 6])
+@pytest.mark.parametrize("gam", [GAAS, GAP], ids=["GaAs", "GaP"])
+def test_zone_centre_masses_along_001_110_111_against_the_bulk_matrix(nb, gam):
+    """Heavy- and light-hole inverse masses g1 -+ 2 g2 [001], g1 -+ sqrt(g2^2 + 3 g3^2) [110],
+    g1 -+ 2 g3 [111] (Dresselhaus, Kip and Kittel, Phys. Rev. 98, 368 (1955), in Luttinger's
+    parameters) against the dense diagonalisation of the model's own bulk 4x4 / 6x6 at
+    k = 1e-3 nm^-1 (kp6: the split-off coupling changes them by O(k^2 hbar^2/2m0 / Delta))."""
+    g1, g2, g3 = gam["g1"], gam["g2"], gam["g3"]
+    m = kp.KpMaterial.uniform(**gam)
+    closed = {(0, 0, 1): (g1 - 2 * g2, g1 + 2 * g2),
+              (1, 1, 0): (g1 - np.sqrt(g2 ** 2 + 3 * g3 ** 2), g1 + np.sqrt(g2 ** 2 + 3 * g3 ** 2)),
+              (1, 1, 1): (g1 - 2 * g3, g1 + 2 * g3)}
+    for d, (hh, lh) in closed.items():
+        d = np.array(d, float) / np.linalg.norm(d)
+        assert np.allclose(_hole_curvatures(m, d, nb), [hh, lh], rtol=1e-5, atol=1e-6)
+    # the function the warning takes, at the named directions of its planes
+    for use, theta, d in (("line_100", 0.0, (0, 0, 1)), ("line_100", np.pi / 4, (1, 1, 0)),
+                          ("line_110", np.arctan(np.sqrt(2.0)), (1, 1, 1)),
+                          ("line_110", np.pi / 2, (1, 1, 0))):
+        hh, lh = kp.zone_centre_inverse_masses(g1, g2, g3, use, np.array([theta]))
+        assert np.allclose([hh[0], lh[0]], closed[d], rtol=1e-12)
+
+
+def test_gap_heavy_hole_masses_and_the_linearised_110_form():
+    """GaP (2001 review): m_hh = +0.326 m0 along [001] (1/(g1 - 2 g2) = 1/3.07), -0.954 m0
+    along [110] (1/(g1 - sqrt(g2^2 + 3 g3^2)) = 1/-1.0485), -0.552 m0 along [111]
+    (1/(g1 - 2 g3) = 1/-1.81): arithmetic on the closed forms, checked on the bulk 4x4.  The
+    linearised [110] form 1/(g1 - (g2 + 3 g3)/2) = -1.69 m0 is not the bulk band's mass (it
+    equals the exact one only for g2 = g3)."""
+    m = kp.KpMaterial.uniform(**GAP)
+    hh = {d: 1.0 / _hole_curvatures(m, np.array(d, float) / np.linalg.norm(d), 4)[0]
+          for d in ((0, 0, 1), (1, 1, 0), (1, 1, 1))}
+    assert hh[(0, 0, 1)] == pytest.approx(1 / 3.07, rel=1e-5)            # arithmetic
+    assert hh[(1, 1, 0)] == pytest.approx(1 / -1.0485096, rel=1e-5)      # arithmetic
+    assert hh[(1, 1, 1)] == pytest.approx(1 / -1.81, rel=1e-5)           # arithmetic
+    linear = 1 / (GAP["g1"] - 0.5 * (GAP["g2"] + 3 * GAP["g3"]))         # -1.69 m0
+    assert abs(hh[(1, 1, 0)] - linear) > 0.5
+
+
+@pytest.mark.parametrize("use", list(kp.CURVATURE_USES))
+def test_zone_centre_masses_of_every_plane_against_the_bulk_matrix(use):
+    """At any polar angle of each use's plane (the axial model: any azimuth too, it is
+    isotropic in the plane) the closed forms of zone_centre_inverse_masses equal the model's
+    own bulk 4x4 at small k (analytic: the eigenvalues P -+ sqrt(Q^2 + |R|^2 + |S|^2))."""
+    axial = kp.CURVATURE_USES[use][1]
+    thetas = np.linspace(0.0, np.pi / 2, 13)
+    for gam in (GAAS, GAP):
+        m = kp.KpMaterial.uniform(**gam)
+        hh, lh = kp.zone_centre_inverse_masses(gam["g1"], gam["g2"], gam["g3"], use, thetas)
+        for t, a, b in zip(thetas, hh, lh):
+            d = _plane(use, t)
+            if axial:                          # any azimuth: rotate the in-plane part by 0.4 rad
+                d = np.array([d[0] * np.cos(0.4), d[0] * np.sin(0.4), d[2]])
+            assert np.allclose(_hole_curvatures(m, d, 4, axial=axial), [a, b], rtol=1e-5, atol=1e-6)
+
+
+@pytest.mark.parametrize("use", list(kp.CURVATURE_USES))
+def test_large_k_curvatures_are_the_6x6_far_beyond_the_split_off_gap(use):
+    """At k = 100 nm^-1 (hbar^2 k^2 / 2m0 = 381 eV >> Delta) the 6x6 bands' -E / (hbar^2 k^2/2m0)
+    are the spin-free kinetic eigenvalues of large_k_inverse_masses (each twice: spin) to
+    Delta / 381 eV; along [110] GaP's lowest is g1 + g2 - 3 g3 = -4.25 and along [111]
+    g1 - 2 g3 = -1.81 (analytic: L k_i^2 + M (k^2 - k_i^2), N k_i k_j)."""
+    axial = kp.CURVATURE_USES[use][1]
+    k = 100.0
+    m = kp.KpMaterial.uniform(**GAP)
+    thetas = np.linspace(0.0, np.pi / 2, 7)
+    far = kp.large_k_inverse_masses(GAP["g1"], GAP["g2"], GAP["g3"], use, thetas)
+    for t, ref in zip(thetas, far):
+        e = np.sort(-np.linalg.eigvalsh(kp.bulk_matrix(m, k * _plane(use, t), 6, axial=axial))
+                    / (HBAR2_2M0 * k * k))
+        assert np.allclose(e[::2], np.sort(ref), atol=1e-3)
+    d110 = kp.large_k_inverse_masses(4.05, 0.49, 2.93, "line_110", np.array([np.pi / 2]))[0]
+    assert d110.min() == pytest.approx(4.05 + 0.49 - 3 * 2.93, abs=1e-12)             # -4.25
+    d111 = kp.large_k_inverse_masses(4.05, 0.49, 2.93, "line_110", np.array([np.arctan(np.sqrt(2.0))]))[0]
+    assert d111.min() == pytest.approx(4.05 - 2 * 2.93, abs=1e-12)                     # -1.81
+
+
+def test_bulk_curvatures_name_the_worst_direction_of_each_use():
+    """GaP (2001 review): the [100] line reaches [101], g1 - sqrt(g2^2 + 3 g3^2) = -1.05; the
+    [110] line reaches [111], g1 - 2 g3 = -1.81; the loop's axial model is worst off the axes,
+    at the vertex of its quadratic in sin^2 theta (a dense scan of angles finds the same value);
+    kp6 adds g1 + g2 - 3 g3 = -4.25 far from the zone centre (arithmetic).  GaAs: all positive,
+    its smallest the kp6 far value g1 + g2 - 3 g3 = +0.25 (arithmetic)."""
+    got = {(c.use, c.regime): c for c in kp.bulk_curvatures(4.05, 0.49, 2.93, 6)}
+    c = got["line_100", "zone centre"]
+    assert (c.direction, c.combination, c.band) == ("[101]", "gamma1 - sqrt(gamma2^2 + 3 gamma3^2)", "heavy hole")
+    assert c.inverse_mass == pytest.approx(4.05 - np.sqrt(0.49 ** 2 + 3 * 2.93 ** 2), abs=1e-12)
+    c = got["line_110", "zone centre"]
+    assert (c.direction, c.combination) == ("[111]", "gamma1 - 2 gamma3")
+    assert c.inverse_mass == pytest.approx(-1.81, abs=1e-12)
+    dense = kp.zone_centre_inverse_masses(4.05, 0.49, 2.93, "loop", np.linspace(0, np.pi / 2, 200001))[0]
+    assert got["loop", "zone centre"].inverse_mass == pytest.approx(dense.min(), abs=1e-9)
+    assert got["loop", "zone centre"].inverse_mass < -1.2                                # -1.26
+    for use in ("line_100", "line_110"):
+        assert got[use, "large k"].combination == "gamma1 + gamma2 - 3 gamma3"
+        assert got[use, "large k"].inverse_mass == pytest.approx(-4.25, abs=1e-12)
+    assert {(c.use, c.regime) for c in kp.bulk_curvatures(4.05, 0.49, 2.93, 4)} == {
+        (u, "zone centre") for u in kp.CURVATURE_USES}                                 # kp4: no far regime
+    gaas = kp.bulk_curvatures(6.98, 2.06, 2.93, 6)
+    assert min(c.inverse_mass for c in gaas) == pytest.approx(6.98 + 2.06 - 3 * 2.93, abs=1e-12)
+
+
 def test_bulk_k0_edges_follow_the_strain_module():
     """At k = 0 a strained crystal's heavy, light and split-off edges are those of
     selfcon.model.strain.zincblende_001_shifts (the closed form of Chuang 1995)."""

@@ -275,3 +275,110 @@ def test_the_hole_channel_holds_the_multiband_states(kp_solves):
     assert list(np.asarray(h["channel"])[:2]) == [j, j]
     from selfcon.output.report import summary_figures
     assert summary_figures(r)["hole_kp"][0]["channel"] == ch["name"]
+
+
+# ------------------------------------------------------------------ wrong-curving bulk holes
+
+def barrier_deck(inputs_dir, tmp_path, model="kp4", composition='lattice_matched = "GaAs"'):
+    """hole_deck with InGaP (lattice-matched to GaAs unless ``composition`` says otherwise) as
+    spacer and lower barrier: both inside the quantum region."""
+    text = (inputs_dir / "design" / "2dhg_4K.toml").read_text()
+    text = text.replace('carriers = ["electron", "heavy_hole", "light_hole"]',
+                        f'carriers = ["electron", "heavy_hole", "light_hole"]\nhole_model = "{model}"')
+    text = text.replace("regions = [[45.0, 120.0]]", "regions = [[55.0, 100.0]]").replace("states = 8", "states = 4")
+    parts = text.split("[[layer]]")
+    for i, part in enumerate(parts):
+        if 'name = "spacer"' in part or 'name = "lower_barrier"' in part:
+            parts[i] = part.replace('material = "AlGaAs"\nx = 0.30', f'material = "InGaP"\n{composition}')
+    p = tmp_path / f"ingap_{model}.toml"
+    p.write_text("[[layer]]".join(parts))
+    return p
+
+
+def test_shipped_kp_decks_have_no_wrong_curving_layer(inputs_dir, kp_solves):
+    """GaAs, Al0.3GaAs, In0.2GaAs, Ge and Si0.2Ge0.8 (2001 review's Luttinger parameters;
+    Si/Ge from the library) curve the right way in every direction the models use: the
+    smallest inverse mass of the layers of the three shipped multiband decks is positive, and
+    the AlGaAs 2DHG solve with kp4 gets no such warning."""
+    from selfcon.output import diagnostics as dg
+    for name in ("2dhg_kp6_4K", "ingaas_hole_well_kp", "strained_ge_2dhg_4K"):
+        st = selfcon.build_structure(selfcon.load_deck(inputs_dir / "design" / f"{name}.toml"))
+        assert st.hole_model in ("kp4", "kp6")
+        assert dg.kp_curvature_findings(st) == []
+        nb = kp.MODELS[st.hole_model]
+        for r in st.regions:
+            g = np.stack([st.cell[k][r[0]:r[1]] for k in ("gamma1", "gamma2", "gamma3")], axis=1)
+            low = min(c.inverse_mass for t in np.unique(g, axis=0) for c in kp.bulk_curvatures(*t, nb))
+            assert low > 0.2               # GaAs far from the zone centre, g1 + g2 - 3 g3 = +0.25
+    r = kp_solves["kp4"]                   # design_warnings ran on it with its structure
+    assert r.hole_kp and not any("curves the wrong way" in w for w in r.warnings)
+
+
+def test_ingap_barrier_in_the_hole_region_is_named(inputs_dir, tmp_path):
+    """Lattice-matched InGaP (x = 0.485, the 2001 review's gammas interpolated linearly:
+    g1 4.549, g2 1.028, g3 2.528) has g1 - 2 g3 = -0.506 (arithmetic): the solve names both
+    barrier layers, the closed form, the direction and what is unreliable; the line reaches
+    the result file's warnings.  A result whose holes were solved in no region gets none."""
+    import dataclasses
+    from selfcon.output import diagnostics as dg
+    deck = selfcon.load_deck(barrier_deck(inputs_dir, tmp_path))
+    st = selfcon.build_structure(deck)
+    r = selfcon.solve(deck, structure=st)
+    assert r.converged
+    lines = [w for w in r.warnings if "curves the wrong way" in w]
+    assert len(lines) == 1
+    line = lines[0]
+    for part in ("layers 'spacer', 'lower_barrier'", "InGaP x = 0.485", "kp4 model",
+                 "gamma1 - 2 gamma3 = -0.506 along [111]", "the [110] line",
+                 "the loop's axial model", "are unreliable", "[material.NAME]"):
+        assert part in line, part
+    assert "gamma1 - sqrt(gamma2^2 + 3 gamma3^2)" not in line       # +0.054 along [101]: fine
+    path = tmp_path / "ingap.h5"
+    r.save(path)
+    assert line in selfcon.load_result(path).warnings
+    assert dg.check_kp_hole_bands(dataclasses.replace(r, hole_kp={}), st) == []
+    assert dg.check_kp_hole_bands(r, st) == [line]
+
+
+def test_warped_line_alone_and_the_far_regime_of_kp6(inputs_dir, tmp_path):
+    """In0.6Ga0.4P (g1 4.668, g2 1.156, g3 2.432, linear in x): g1 - 2 g3 = -0.196 along [111]
+    but the axial model's smallest zone-centre 1/m is +0.123 (arithmetic on the closed forms):
+    with kp4 the line says the loop is unaffected and names the [110] line only.  With kp6 the
+    6x6 far from the zone centre adds g1 + g2 - 3 g3 = -1.47 (arithmetic), which reaches the
+    loop too.  In0.75Ga0.25P: kp4 is clean, kp6 is named for the far regime alone."""
+    from selfcon.output import diagnostics as dg
+    path = barrier_deck(inputs_dir, tmp_path, "kp4", "x = 0.6")
+    found = dg.kp_curvature_findings(selfcon.build_structure(selfcon.load_deck(path)))
+    assert len(found) == 1
+    text = dg.kp_curvature_text(found[0])
+    assert "gamma1 - 2 gamma3 = -0.196 along [111]" in text
+    assert "the loop's axial model is unaffected (its smallest 1/m there is +0.123)" in text
+    assert "warped [110] output line (/subbands/hole_kp/dispersion_110)" in text and "[100]" not in text
+    kp6 = dg.kp_curvature_findings(selfcon.build_structure(
+        selfcon.load_deck(path).with_overrides({"physics.hole_model": "kp6"})))
+    text = dg.kp_curvature_text(kp6[0])
+    assert "gamma1 + gamma2 - 3 gamma3 = -1.47 along [101] / [110]" in text
+    assert "unaffected" not in text
+    path = barrier_deck(inputs_dir, tmp_path, "kp4", "x = 0.75")
+    assert dg.kp_curvature_findings(selfcon.build_structure(selfcon.load_deck(path))) == []
+    kp6 = dg.kp_curvature_findings(selfcon.build_structure(
+        selfcon.load_deck(path).with_overrides({"physics.hole_model": "kp6"})))
+    assert {c.regime for c in kp6[0]["bad"]} == {"large k"}
+    assert 'hole_model = "kp4"' in dg.kp_curvature_text(kp6[0])
+
+
+def test_check_command_lists_wrong_curving_layers(inputs_dir, tmp_path, run_cli):
+    """`selfcon check` shows the finding before any solve, and --json carries it."""
+    import json
+    path = barrier_deck(inputs_dir, tmp_path)
+    code, out, _ = run_cli("check", path)
+    assert code == 0 and "curves the wrong way" in " ".join(out.split())
+    assert "kp4 multiband holes" in out
+    code, out, _ = run_cli("check", "--json", path)
+    fig = json.loads(out)
+    (f,) = fig["kp_hole_bands"]
+    assert f["layers"] == ["spacer", "lower_barrier"] and f["model"] == "kp4"
+    assert any(c["combination"] == "gamma1 - 2 gamma3" and c["inverse_mass"] == pytest.approx(-0.506, abs=1e-3)
+               for c in f["curvatures"])
+    code, out, _ = run_cli("check", "--json", inputs_dir / "design" / "2dhg_kp6_4K.toml")
+    assert json.loads(out)["kp_hole_bands"] == []

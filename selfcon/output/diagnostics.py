@@ -94,6 +94,19 @@ Thresholds (our own choices, stated here and in README.md, "Design recipes"):
   shift x(1-x)*0.38 eV and the linear valence offset to set in a ``[material.NAME]``.
 * type-II interfaces with an interface gap of at least ``TYPE_II_GAP_EV`` = 1 eV are not
   flagged (wide-gap nitride pairs staggered by strain).
+* multiband holes curving the wrong way (``kp_hole_bands``): with physics.hole_model kp4 /
+  kp6, a layer inside a quantum region whose holes were solved has Luttinger parameters that
+  give a bulk hole band with an inverse mass <= 0 (a negative or infinite mass) along a
+  direction the model uses (selfcon.solver.kp.bulk_curvatures): the loop's axial model
+  (every polar angle from [001]), the warped [100] line (the (010) plane: [001], [101]) and the
+  [110] line (the (1-10) plane: [001], [111], [110]); the Gamma8 masses at the zone centre
+  (g1 -+ 2 g2 [001], g1 -+ sqrt(g2^2 + 3 g3^2) <110>, g1 -+ 2 g3 [111]) and, with kp6, the
+  curvatures far beyond the split-off gap (g1 + g2 - 3 g3 along <110>).  GaP of the 2001
+  review (g1 - 2 g3 = -1.81) and InGaP up to x ~ 0.67 trip it; no threshold but the sign (the
+  band turns over).  The line names the layers, their composition and parameters, each closed
+  form with its value and direction, and what is unreliable: the loop's states (charge,
+  subbands, masses) and both lines, or, where the axial model is unaffected, the warped line
+  alone.  `selfcon check` lists the same for every quantum region before the solve.
 
 How to add a design warning
 ---------------------------
@@ -145,7 +158,8 @@ __all__ = ["design_warnings", "register_check", "unregister_check", "deck_of",
            "check_dx_centres", "dx_model_note", "check_region_cut", "check_buffer_carriers",
            "check_uncounted_valleys", "doping_layers", "doping_layer_electrons",
            "CHECKS", "check_critical_thickness", "check_band_alignment",
-           "interface_alignments", "check_polarization_holes", "polarization_sheet_near"]
+           "interface_alignments", "check_polarization_holes", "polarization_sheet_near",
+           "check_kp_hole_bands", "kp_curvature_findings", "kp_curvature_text"]
 
 #: name -> check, in the order warnings are listed (filled by register_check)
 CHECKS: dict[str, Callable] = {}
@@ -954,6 +968,146 @@ def check_band_alignment(result, structure, deck=None) -> list[str]:
                     "small gap: subband energies and masses there are only rough")
         out.append(f"{what}; {miss} (a multiband k.p model is needed for accurate numbers)")
     return out
+
+
+#: at most this many distinct parameter sets of one layer are checked (a graded layer: its
+#: cells evenly spaced, both ends included; with Luttinger parameters linear in the
+#: composition every curvature bulk_curvatures takes is concave in it, so its ends hold the
+#: smallest)
+KP_CURVATURE_SAMPLES = 16
+#: words of each use of the model (selfcon.solver.kp.CURVATURE_USES)
+_KP_USE_TEXT = {"loop": "the loop's axial model", "line_100": "the [100] line",
+                "line_110": "the [110] line"}
+
+
+def _layer_composition(L) -> str:
+    if L.x_top is None:
+        return L.material
+    xb = L.x_bottom if L.x_bottom is not None else L.x_top
+    x = f"x = {L.x_top:.3g}" if xb == L.x_top else f"x = {L.x_top:.3g} to {xb:.3g}"
+    return f"{L.material} {x}"
+
+
+def kp_curvature_findings(structure, regions=None) -> list[dict]:
+    """Layers inside the quantum regions ``regions`` (indices into ``structure.regions``; all
+    when None) of a kp4 / kp6 structure whose bulk hole bands curve the wrong way along a
+    direction the model uses (selfcon.solver.kp.bulk_curvatures: an inverse mass <= 0), grouped
+    by material and parameters: dicts with ``layers`` (names), ``material`` (with its
+    composition), ``gammas`` (g1, g2, g3 of the worst cell), ``bad`` (the Curvatures <= 0) and
+    ``curvatures`` (all of that cell's).  [] for the parabolic model.  A property of the
+    structure: what `selfcon check` lists and the kp_hole_bands warning repeats."""
+    model = getattr(structure, "hole_model", "parabolic")
+    if model == "parabolic" or not structure.regions:
+        return []
+    from selfcon.solver import kp
+    nb = kp.MODELS[model]
+    cl = np.asarray(structure.cell_layer)
+    g = np.stack([np.asarray(structure.cell[k], float) for k in ("gamma1", "gamma2", "gamma3")], axis=1)
+    chosen = range(len(structure.regions)) if regions is None else sorted(set(int(r) for r in regions))
+    cells: dict = {}
+    for r in chosen:
+        i0, i1 = structure.regions[r]
+        for c in range(i0, i1):
+            cells.setdefault(int(cl[c]), []).append(c)
+    groups: dict = {}
+    for layer, idx in sorted(cells.items()):
+        triples = np.unique(g[idx], axis=0)
+        if len(triples) > KP_CURVATURE_SAMPLES:
+            triples = triples[np.unique(np.linspace(0, len(triples) - 1, KP_CURVATURE_SAMPLES).round().astype(int))]
+        worst = None
+        for t in triples:
+            curv = kp.bulk_curvatures(*t, nb)
+            low = min(c.inverse_mass for c in curv)
+            if worst is None or low < worst[0]:
+                worst = (low, tuple(float(v) for v in t), curv)
+        low, gammas, curv = worst
+        if low > 0.0:
+            continue
+        L = structure.layers[layer]
+        key = (_layer_composition(L), gammas)
+        if key not in groups:
+            groups[key] = {"layers": [], "material": key[0], "gammas": gammas, "model": model,
+                           "bad": [c for c in curv if c.inverse_mass <= 0.0], "curvatures": curv}
+        groups[key]["layers"].append(L.name)
+    return list(groups.values())
+
+
+def _mass_text(inv: float) -> str:
+    return "infinite mass" if inv == 0.0 else f"m = {1.0 / inv:+.3g} m0"
+
+
+def _curvature_items(bad, regime: str) -> list[str]:
+    """The findings of one regime, one item per closed form and value (the uses sharing it
+    named together)."""
+    items: dict = {}
+    for c in bad:
+        if c.regime != regime:
+            continue
+        key = (c.combination or c.use, round(c.inverse_mass, 9))
+        items.setdefault(key, []).append(c)
+    out = []
+    for (_, value), cs in items.items():
+        c = cs[0]
+        form = f"{c.combination} = {value:+.3g}" if c.combination else f"1/m = {value:+.3g}"
+        dirs = " / ".join(dict.fromkeys(x.direction for x in cs))
+        where = f"at {dirs}" if dirs[0].isdigit() else f"along {dirs}"
+        mass = f"{_mass_text(value)}, " if regime == "zone centre" else ""
+        out.append(f"{form} {where} ({mass}{' and '.join(_KP_USE_TEXT[x.use] for x in cs)})")
+    return out
+
+
+def kp_curvature_text(f: dict, *, before_solve: bool = False) -> str:
+    """The one line of a finding of :func:`kp_curvature_findings`: the layers, their
+    parameters, every curvature <= 0 (its closed form where the direction has one, and the
+    uses of the model it reaches) and what it makes unreliable."""
+    several = len(f["layers"]) > 1
+    names = ", ".join(repr(n) for n in f["layers"])
+    g1, g2, g3 = f["gammas"]
+    parts = []
+    near = _curvature_items(f["bad"], "zone centre")
+    if near:
+        parts.append("zone-centre heavy hole " + ", ".join(near))
+    far = _curvature_items(f["bad"], "large k")
+    if far:
+        parts.append("beyond the split-off gap (kp6) " + ", ".join(far))
+    bad_uses = {c.use for c in f["bad"]}
+    reach = "that would reach" if before_solve else "reaching"
+    there = "those layers" if several else "that layer"
+    if "loop" in bad_uses:
+        effect = (f"the multiband hole states {reach} {there} (the loop's subbands, hole charge and "
+                  "masses) and the [100]/[110] output lines there are unreliable")
+    else:
+        loop = min(c.inverse_mass for c in f["curvatures"] if c.use == "loop")
+        lines = [u[5:] for u in ("line_100", "line_110") if u in bad_uses]
+        effect = (f"the loop's axial model is unaffected (its smallest 1/m there is {loop:+.3g}), but the "
+                  f"warped [{']/['.join(lines)}] output line{'s' if len(lines) > 1 else ''} "
+                  f"(/subbands/hole_kp/dispersion_{'/'.join(lines)}) of the states {reach} {there} "
+                  f"{'are' if len(lines) > 1 else 'is'} unreliable")
+    only_far = not near
+    fix = (f"give {there} Luttinger parameters that make these positive (luttinger_gamma1..3 of a "
+           "[material.NAME]), or use "
+           + ("hole_model = \"kp4\" (no split-off band)" if only_far else
+              "hole_model = \"parabolic\" (masses from gamma1 -+ 2 gamma2 and gamma1 +- gamma2)"))
+    return (f"bulk hole band of {'layers' if several else 'layer'} {names} ({f['material']}; gamma1 {g1:.4g}, "
+            f"gamma2 {g2:.4g}, gamma3 {g3:.4g}) curves the wrong way in the {f['model']} model (its "
+            "valence band top is not at Gamma): " + "; ".join(parts) + f"; {effect}: {fix}")
+
+
+@register_check("kp_hole_bands")
+def check_kp_hole_bands(result, structure, deck=None) -> list[str]:
+    """Layers inside a quantum region whose multiband holes were solved (kp4 / kp6) whose
+    Luttinger parameters give a bulk hole band curving the wrong way along a direction the
+    model uses (kp_curvature_findings)."""
+    if structure is None or getattr(structure, "hole_model", "parabolic") == "parabolic":
+        return []
+    hk = result.hole_kp or {}
+    solved = np.unique(np.asarray(hk.get("region", []), dtype=np.int64))
+    if solved.size == 0:
+        return []
+    # a property of the structure and the regions solved (read-only here)
+    found = derived(structure, ("kp_curvatures", tuple(solved.tolist())),
+                    lambda: kp_curvature_findings(structure, solved))
+    return [kp_curvature_text(f) for f in found]
 
 
 def design_warnings(result, structure, deck=None) -> list[str]:

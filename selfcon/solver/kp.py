@@ -70,6 +70,16 @@ model", has the measured errors.
 ``"axial"``: the axial approximation (the warping term of R averaged, g2, g3 -> (g2 + g3)/2
 in R only; Chuang 1995), under which E(k) does not depend on the direction.
 
+**Bulk curvature** (:func:`bulk_curvatures`).  Which Luttinger parameters enter where: along
+k_z the operator takes g1 and g2 (A: L = -(g1 + 4 g2), M = -(g1 - 2 g2)); the k_z k_par
+coupling takes g3 (N = -6 g3, Chuang's S); the in-plane terms take g1, g2 (Q) and, in R, g2 and
+g3 along [100] and [110] (warped) or gbar = (g2 + g3)/2 in the axial approximation.  The states
+of a well mix every k_z with their k_par, so the loop (axial) reaches every polar angle from
+[001], the [100] line the (010) plane ([001], [101]) and the [110] line the (1-10) plane
+([001], [111], [110]).  A layer whose bulk hole band has an inverse mass <= 0 somewhere there
+(GaP: g1 - 2 g3 = -1.81, m_hh[111] = -0.55 m0) has its valence band top away from Gamma in
+the model: selfcon.output.diagnostics names it (design warning ``kp_hole_bands``).
+
 Units: nm, nm^-1, eV.  Energies on the electron scale (holes: higher is lower kinetic energy).
 """
 from __future__ import annotations
@@ -85,7 +95,8 @@ __all__ = ["KpMaterial", "KpStates", "MODELS", "basis", "cartesian_blocks", "bul
            "DEGENERATE", "region_material", "dispersion", "annulus_states", "annulus_sheets",
            "grid_top", "region_dispersion", "K_POINTS", "fermi_sea_top", "collect_states", "subband_figures", "along_direction",
            "split_transform", "split_blocks", "zone_centre", "ZONE_CENTRE_GROUPS", "SPLIT_TOL",
-           "reduced_dispersion", "BASIS_LEVELS", "BASIS_SHIFT", "BASIS_TOL"]
+           "reduced_dispersion", "BASIS_LEVELS", "BASIS_SHIFT", "BASIS_TOL", "CURVATURE_USES",
+           "Curvature", "bulk_curvatures", "zone_centre_inverse_masses", "large_k_inverse_masses"]
 
 #: hole model name -> number of bands
 MODELS = {"kp4": 4, "kp6": 6}
@@ -1408,3 +1419,159 @@ def along_direction(mesh, cell, regions, phi, hk: KpStates, angle: float, zone=N
         E = (got if got is not None else dispersion(*args, angle=angle))[0]
         out[rows] = E[:rows.size]
     return out
+
+
+# --------------------------------------------------------------------------- bulk curvature
+
+#: the bulk wave-vector directions each use of the model reaches, as a plane through [001]
+#: (the states of a (001) well mix every k_z with their k_par): the loop's axial Hamiltonian
+#: (any in-plane direction: the model is isotropic in the plane), and the warped output lines
+#: along [100] (the (010) plane: [001], [101], [100]) and [110] (the (1-10) plane: [001],
+#: [111], [110]).  Name -> (in-plane unit vector, axial).
+CURVATURE_USES = {"loop": ((1.0, 0.0), True),
+                  "line_100": ((1.0, 0.0), False),
+                  "line_110": ((np.sqrt(0.5), np.sqrt(0.5)), False)}
+#: the named directions of each use's plane: polar angle from [001] (radians) -> name
+_NAMED = {"loop": {0.0: "[001]", np.pi / 2: "the (001) plane"},
+          "line_100": {0.0: "[001]", np.pi / 4: "[101]", np.pi / 2: "[100]"},
+          "line_110": {0.0: "[001]", float(np.arctan(np.sqrt(2.0))): "[111]", np.pi / 2: "[110]"}}
+#: polar angles searched in each plane (plus the named ones and the axial model's extremum)
+CURVATURE_ANGLES = 721
+
+
+class Curvature(NamedTuple):
+    """The smallest hole-wise band curvature of a bulk layer over the directions one use of
+    the model reaches: ``inverse_mass`` (1/m0; the hole mass is its inverse: <= 0 means a band
+    curving the wrong way, a valence band whose top is not at Gamma), ``band`` ("heavy hole",
+    "light hole"; "top" far from the zone centre), ``direction`` (a name, or degrees from
+    [001]), ``combination`` (its closed form in Luttinger's parameters, or "" off the named
+    directions), ``regime``: "zone centre" (the Gamma8 masses, kp4 and kp6 alike) or "large k"
+    (kp6 only: hole energies well beyond the split-off gap, where the 6x6 kinetic matrix is the
+    spin-free 3x3 one of Dresselhaus, Kip and Kittel)."""
+
+    use: str
+    regime: str
+    band: str
+    inverse_mass: float
+    direction: str
+    combination: str
+
+
+def _direction_name(use: str, theta: float) -> str:
+    for t, name in _NAMED[use].items():
+        if abs(theta - t) < 1e-9:
+            return name
+    return f"{np.degrees(theta):.0f} deg from [001]"
+
+
+def zone_centre_inverse_masses(g1: float, g2: float, g3: float, use: str, theta):
+    """Heavy- and light-hole inverse masses (1/m0, hole-wise) of the bulk 4x4 Luttinger
+    Hamiltonian at small k along the polar angle ``theta`` (radians from [001]) of ``use``'s
+    plane: (hh, lh) arrays.  The warped Hamiltonian (Dresselhaus, Kip and Kittel, Phys. Rev. 98,
+    368 (1955), in Luttinger's parameters, Phys. Rev. 102, 1030 (1956)):
+    1/m = g1 -+ sqrt(4 g2^2 + 12 (g3^2 - g2^2) u), u = (kx^2 ky^2 + ky^2 kz^2 + kz^2 kx^2)/k^4,
+    so [001] g1 -+ 2 g2, [110] g1 -+ sqrt(g2^2 + 3 g3^2), [111] g1 -+ 2 g3.  The axial one
+    (cartesian_blocks: g2 in Q, (g2 + g3)/2 in R, g3 in S): with t = sin^2 theta,
+    1/m = g1 -+ sqrt(g2^2 (3 t - 2)^2 + 3 gbar^2 t^2 + 12 g3^2 t (1 - t)) (Q^2 + |R|^2 + |S|^2
+    of the same eigenvalues P -+ sqrt(Q^2 + |R|^2 + |S|^2)).  tests/test_kp.py checks both
+    against bulk_matrix."""
+    s2 = np.sin(np.asarray(theta, float)) ** 2
+    c2 = 1.0 - s2
+    if CURVATURE_USES[use][1]:
+        gbar = 0.5 * (g2 + g3)
+        f = g2 * g2 * (3.0 * s2 - 2.0) ** 2 + 3.0 * gbar * gbar * s2 * s2 + 12.0 * g3 * g3 * s2 * c2
+    else:
+        (cx, sy), _ = CURVATURE_USES[use]
+        kx2, ky2 = s2 * cx * cx, s2 * sy * sy
+        u = kx2 * ky2 + (kx2 + ky2) * c2
+        f = 4.0 * g2 * g2 + 12.0 * (g3 * g3 - g2 * g2) * u
+    root = np.sqrt(np.maximum(f, 0.0))
+    return g1 - root, g1 + root
+
+
+def _axial_extremum(g1: float, g2: float, g3: float) -> float:
+    """The polar angle (radians) where the axial f(t) of zone_centre_inverse_masses has its
+    vertex (a quadratic in t = sin^2 theta), clipped to the plane."""
+    gbar = 0.5 * (g2 + g3)
+    a = 9.0 * g2 * g2 + 3.0 * gbar * gbar - 12.0 * g3 * g3
+    b = 12.0 * (g3 * g3 - g2 * g2)
+    t = 0.0 if a == 0.0 else min(max(-b / (2.0 * a), 0.0), 1.0)
+    return float(np.arcsin(np.sqrt(t)))
+
+
+def large_k_inverse_masses(g1: float, g2: float, g3: float, use: str, theta) -> np.ndarray:
+    """(n, 3) hole-wise eigenvalues (1/m0) of the spin-free kinetic matrix of the model
+    (cartesian_blocks: H = kz A kz + G kz + kz G^+ + C, the bulk k^2 part) along the polar
+    angles ``theta`` of ``use``'s plane: the curvatures of the 6x6 bands at hole energies well
+    beyond the split-off gap (the spin-orbit term is then negligible and spin only doubles
+    them).  Warped: [001] g1 - 2 g2 (twice), g1 + 4 g2; [110] g1 + g2 -+ 3 g3, g1 - 2 g2;
+    [111] g1 - 2 g3 (twice), g1 + 4 g3 (analytic: the eigenvalues of L k_i^2 + M (k^2 - k_i^2)
+    on the diagonal and N k_i k_j off it)."""
+    (cx, sy), axial = CURVATURE_USES[use]
+    one = KpMaterial.uniform(g1, g2, g3)
+    A = cartesian_blocks(one, 0.0, 0.0, axial=axial)[0][0]
+    G1 = cartesian_blocks(one, cx, sy, axial=axial)[1][0]
+    C1 = cartesian_blocks(one, cx, sy, axial=axial)[2][0]        # quadratic in k_par: C(s) = s^2 C1
+    theta = np.asarray(theta, float)
+    s, c = np.sin(theta)[:, None, None], np.cos(theta)[:, None, None]
+    kin = A * c * c + (G1 + G1.T) * s * c + C1 * s * s
+    return np.linalg.eigvalsh(-kin)
+
+
+def _combination(values: dict, name: str, value: float) -> str:
+    for text, v in values.get(name, ()):
+        if abs(v - value) <= 1e-9 * max(1.0, abs(value)):
+            return text
+    return ""
+
+
+def bulk_curvatures(g1: float, g2: float, g3: float, nb: int) -> list[Curvature]:
+    """For each use of the model (CURVATURE_USES) and regime, the smallest hole-wise bulk
+    band curvature (:class:`Curvature`) over the directions that use reaches: the Gamma8 heavy-
+    and light-hole masses at the zone centre, and with ``nb`` = 6 the curvatures far from it.
+    A layer whose Luttinger parameters give one <= 0 has a bulk valence band that curves the
+    wrong way there (GaP of the 2001 review: g1 - 2 g3 = -1.81, a heavy-hole mass of -0.55 m0
+    along [111]); selfcon.output.diagnostics names it."""
+    g1, g2, g3 = float(g1), float(g2), float(g3)
+    key = (g1, g2, g3, int(nb))
+    if key in _CURVATURES:
+        return _CURVATURES[key]
+    s110, gbar = np.sqrt(g2 * g2 + 3.0 * g3 * g3), 0.5 * (g2 + g3)
+    zone = {"[001]": [("gamma1 - 2 gamma2", g1 - 2 * g2), ("gamma1 + 2 gamma2", g1 + 2 * g2)],
+            "[101]": [("gamma1 - sqrt(gamma2^2 + 3 gamma3^2)", g1 - s110),
+                      ("gamma1 + sqrt(gamma2^2 + 3 gamma3^2)", g1 + s110)],
+            "[110]": [("gamma1 - sqrt(gamma2^2 + 3 gamma3^2)", g1 - s110),
+                      ("gamma1 + sqrt(gamma2^2 + 3 gamma3^2)", g1 + s110)],
+            "[111]": [("gamma1 - 2 gamma3", g1 - 2 * g3), ("gamma1 + 2 gamma3", g1 + 2 * g3)],
+            "the (001) plane": [("gamma1 - sqrt(gamma2^2 + 3 gammabar^2)",
+                                 g1 - np.sqrt(g2 * g2 + 3 * gbar * gbar)),
+                                ("gamma1 + sqrt(gamma2^2 + 3 gammabar^2)",
+                                 g1 + np.sqrt(g2 * g2 + 3 * gbar * gbar))]}
+    far = {"[001]": [("gamma1 - 2 gamma2", g1 - 2 * g2), ("gamma1 + 4 gamma2", g1 + 4 * g2)],
+           "[101]": [("gamma1 + gamma2 - 3 gamma3", g1 + g2 - 3 * g3), ("gamma1 - 2 gamma2", g1 - 2 * g2)],
+           "[110]": [("gamma1 + gamma2 - 3 gamma3", g1 + g2 - 3 * g3), ("gamma1 - 2 gamma2", g1 - 2 * g2)],
+           "[111]": [("gamma1 - 2 gamma3", g1 - 2 * g3), ("gamma1 + 4 gamma3", g1 + 4 * g3)],
+           "the (001) plane": [("gamma1 - (gamma2 + 3 gamma3)/2", g1 - 0.5 * (g2 + 3 * g3)),
+                               ("gamma1 - 2 gamma2", g1 - 2 * g2)]}
+    out = []
+    for use in CURVATURE_USES:
+        angles = np.linspace(0.0, np.pi / 2, CURVATURE_ANGLES)
+        extra = list(_NAMED[use]) + ([_axial_extremum(g1, g2, g3)] if use == "loop" else [])
+        angles = np.unique(np.concatenate([angles, extra]))
+        hh, lh = zone_centre_inverse_masses(g1, g2, g3, use, angles)
+        rows = [("zone centre", "heavy hole", hh), ("zone centre", "light hole", lh)]
+        if nb == 6:
+            rows.append(("large k", "top", large_k_inverse_masses(g1, g2, g3, use, angles).min(axis=1)))
+        for regime in ("zone centre", "large k"):
+            mine = [(float(v.min()), band, int(v.argmin())) for r, band, v in rows if r == regime]
+            if not mine:
+                continue
+            value, band, i = min(mine)
+            name = _direction_name(use, float(angles[i]))
+            table = zone if regime == "zone centre" else far
+            out.append(Curvature(use, regime, band, value, name, _combination(table, name, value)))
+    _CURVATURES[key] = out
+    return out
+
+
+_CURVATURES: dict = {}
