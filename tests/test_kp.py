@@ -760,3 +760,15 @@ def test_reduced_basis_same_bits_with_the_halves_on_two_threads(monkeypatch):
     assert calls and all(t == 2 for t in calls)
     for a, b in zip(one, two):
         assert np.array_equal(a, b)
+
+
+def test_bulk_curvature_cache_stays_bounded(monkeypatch):
+    """A study sweeping compositions keeps at most CURVATURE_CACHE_SIZE parameter sets, and a
+    value computed again equals the kept one (the same arithmetic)."""
+    monkeypatch.setattr(kp, "_CURVATURES", {})
+    monkeypatch.setattr(kp, "CURVATURE_CACHE_SIZE", 2)
+    first = kp.bulk_curvatures(4.05, 0.49, 2.93, 4)
+    for g1 in (5.0, 6.0, 7.0):
+        kp.bulk_curvatures(g1, 0.49, 2.93, 4)
+        assert len(kp._CURVATURES) <= 2
+    assert kp.bulk_curvatures(4.05, 0.49, 2.93, 4) == first

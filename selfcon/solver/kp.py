@@ -1570,8 +1570,12 @@ def bulk_curvatures(g1: float, g2: float, g3: float, nb: int) -> list[Curvature]
             name = _direction_name(use, float(angles[i]))
             table = zone if regime == "zone centre" else far
             out.append(Curvature(use, regime, band, value, name, _combination(table, name, value)))
+    if len(_CURVATURES) >= CURVATURE_CACHE_SIZE:       # a study sweeping compositions: stay small
+        _CURVATURES.clear()
     _CURVATURES[key] = out
     return out
 
 
+#: (g1, g2, g3, nb) -> bulk_curvatures; cleared when it holds this many
+CURVATURE_CACHE_SIZE = 1024
 _CURVATURES: dict = {}
