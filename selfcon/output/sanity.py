@@ -32,9 +32,10 @@ and the numbers (the command line exits 3, the file is still written).  The limi
     the stack counted without sign (carriers, ionised dopants, sheets, polarization bound
     charge; in units of q/eps0) and dphi the potential step between the two ends,
     |eps_r E| <= 2 Q + eps_r,max |dphi| / L  (both ends fixed), <= Q (an end at zero
-    field), plus the field the precision of the potential allows (:func:`precision_flux`).  Real polarization and delta-doped stacks respect it by construction (it
-    follows from Gauss's law and the two end conditions); it fails when the charge and the
-    field of a result do not belong together.  A relative slack of :data:`FIELD_SLACK`
+    field), plus the field the precision of the potential allows (:func:`precision_flux`).
+    Real polarization and delta-doped stacks respect it by construction (it follows from
+    Gauss's law and the two end conditions); it fails when the charge and the field of a
+    result do not belong together.  A relative slack of :data:`FIELD_SLACK`
     covers round-off.
 
 Each check is a function ``check_<name>(result, structure, deck) -> str | None`` listed in

@@ -578,7 +578,7 @@ def neutral_shift(problem: P.PoissonProblem, guess: float) -> float:
         fb = total(b)
         if (fb < 0) if up > 0 else (fb > 0):
             return float(brentq(total, min(a, b), max(a, b), xtol=1e-12))
-        a, fa = b, fb
+        a = b
         travelled += step
         step *= 2.0
     return float(guess)
