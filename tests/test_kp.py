@@ -745,6 +745,72 @@ def test_collected_states_sum_the_annulus_terms_at_one_energy():
         assert hk.energy.size == (en.size if flat else n * m)
 
 
+def _kernel_density(en, dos, wt, efp, kT):
+    """The hole density the Poisson kernel sums from pseudo-subbands (no potential change)."""
+    x = (en[None, :] - efp) / kT
+    return np.sum(wt * dos[None, :] * kT * np.logaddexp(0.0, x), axis=1)
+
+
+def test_linked_states_with_unit_links_are_the_annulus_terms():
+    """With every state linked to the state of its own rank (the identity), linked_states is
+    annulus_states summed at the grid energies: the same density to rounding and the same
+    sheet per state (analytic: the same annuli)."""
+    rng = np.random.default_rng(4)
+    n, m, N = 4, 7, 30
+    k_grid = np.linspace(0.0, 0.4, m)
+    efp, kT = -0.012, 0.002
+    E = -0.01 * rng.random((n, 1)) - np.cumsum(0.004 * rng.random((n, m)), axis=1)
+    dens = rng.random((N, n, m))
+    links = np.broadcast_to(np.eye(n), (m - 1, n, n))
+    en, dos, wt, sheet = kp.linked_states(k_grid, E, dens, links, efp, kT)
+    ea, da, wa, state = kp.annulus_states(k_grid, E, dens)
+    ref = _kernel_density(ea, da, wa, efp, kT)
+    assert en.size == n * m and np.array_equal(en, E.ravel())
+    assert np.allclose(_kernel_density(en, dos, wt, efp, kT), ref, rtol=1e-12, atol=0)
+    assert np.allclose(sheet, kp.annulus_sheets(ea, da, state, n, efp, kT), rtol=1e-12, atol=0)
+
+
+def test_linked_states_follow_two_crossing_wells():
+    """Two uncoupled wells (one node each) with a band linear in k^2 each, crossing between
+    grid points: the i-th lowest state changes well at the crossing.  Linked by their
+    overlap (1 within a well, 0 across), each well holds its own band's holes exactly
+    (analytic: a band linear in k^2 has the constant DOS (k_b^2 - k_a^2) / (4 pi (eps_b -
+    eps_a)), so its holes up to the grid end are D kT [ln(1 + e^(E(0)-EF)/kT) - ln(1 +
+    e^(E(k_top)-EF)/kT)]), whichever grid point the crossing passes; joining the states
+    by their rank (annulus_states) gives each well part of the other's band, and the
+    well's density jumps as the crossing moves past a grid point."""
+    m, kT, efp = 9, 3.4e-4, 0.0
+    k_grid = np.linspace(0.0, 0.36, m)
+    k2 = k_grid ** 2
+
+    def wells(shift):
+        bands = np.array([0.0052 - 0.15 * k2, 0.003 + shift - 0.06 * k2])    # eV, well 0 / 1
+        order = np.argsort(-bands, axis=0, kind="stable")                   # rank -> well
+        E = np.take_along_axis(bands, order, 0)
+        dens = np.zeros((2, 2, m))
+        dens[order, np.arange(2)[:, None], np.arange(m)[None, :]] = 1.0   # node = well
+        links = np.array([(order[:, j][:, None] == order[:, j + 1][None, :]).astype(float)
+                          for j in range(m - 1)])
+        exact = []
+        for b in bands:
+            D = (k2[-1] - k2[0]) / (4.0 * np.pi * (b[0] - b[-1]))
+            exact.append(D * kT * (np.logaddexp(0.0, (b[0] - efp) / kT)
+                                   - np.logaddexp(0.0, (b[-1] - efp) / kT)))
+        en, dos, wt, _ = kp.linked_states(k_grid, E, dens, links, efp, kT)
+        ea, da, wa, _ = kp.annulus_states(k_grid, E, dens)
+        return (_kernel_density(en, dos, wt, efp, kT), _kernel_density(ea, da, wa, efp, kT),
+                np.array(exact))
+    # the crossing at the grid point k_4 (0.3 meV above EF): 0.0052 - 0.15 k^2 = 0.003 + s - 0.06 k^2
+    s4 = 0.0022 - 0.09 * k2[4]
+    near = [wells(s4 + d) for d in (-1e-7, 1e-7)]
+    for linked, _, exact in near + [wells(s4 + 2e-3), wells(s4 - 2e-3)]:
+        assert np.allclose(linked, exact, rtol=1e-9, atol=0)
+    # linked: each side equals its closed form (above), which moves by ~1e-4 of itself over
+    # the 2e-7 eV step; ranked: a jump of several per cent of the well's density
+    assert np.abs(near[0][0] - near[1][0]).max() < 2e-4 * near[0][2].max()
+    assert np.abs(near[0][1] - near[1][1]).max() > 0.02 * near[0][2].max()
+
+
 def test_reduced_basis_same_bits_with_the_halves_on_two_threads(monkeypatch):
     """The halves on two threads from HALF_THREADS_NODES region nodes on (lowered here to
     the test's small well): the same arrays, bit for bit, as one after the other."""

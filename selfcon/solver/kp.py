@@ -93,7 +93,7 @@ from selfcon.constants import HBAR2_2M0
 __all__ = ["KpMaterial", "KpStates", "MODELS", "basis", "cartesian_blocks", "bulk_matrix",
            "assemble_blocks", "band_matrix", "dense_matrix", "lowest_banded", "lowest_states",
            "DEGENERATE", "region_material", "dispersion", "annulus_states", "annulus_sheets",
-           "grid_top", "region_dispersion", "K_POINTS", "fermi_sea_top", "collect_states", "subband_figures", "along_direction",
+           "grid_top", "region_dispersion", "linked_states", "LINK_POWER", "K_POINTS", "fermi_sea_top", "collect_states", "subband_figures", "along_direction",
            "split_transform", "split_blocks", "zone_centre", "ZONE_CENTRE_GROUPS", "SPLIT_TOL",
            "reduced_dispersion", "BASIS_LEVELS", "BASIS_SHIFT", "BASIS_TOL", "CURVATURE_USES",
            "Curvature", "bulk_curvatures", "zone_centre_inverse_masses", "large_k_inverse_masses"]
@@ -773,7 +773,7 @@ def _line_operators(h, w, mat, nb, cx, sy, axial):
 
 def reduced_dispersion(h, w, mat: KpMaterial, phi_node, nb: int, n_states: int, k_grid, *,
                        angle: float | None = None, cache: dict | None = None, threads: int = 1,
-                       zone: dict | None = None, energies: bool = False):
+                       zone: dict | None = None, energies: bool = False, links: bool = False):
     """:func:`dispersion` from a reduced basis, or None where the model does not split into
     real halves (then use :func:`dispersion`): the axial approximation (``angle`` None), or
     the warped Hamiltonian along [100] and [110].
@@ -818,7 +818,7 @@ def reduced_dispersion(h, w, mat: KpMaterial, phi_node, nb: int, n_states: int, 
         threads = 1
     with one_blas_thread():
         return _reduced_dispersion(h, w, mat, phi_node, nb, n_states, k_grid, cx, sy, axial, ops,
-                                   cache, threads, zone, energies)
+                                   cache, threads, zone, energies, links)
 
 
 def _zone_centre_half(d0, u0, levels, light=None):
@@ -851,7 +851,7 @@ def _zone_centre_half(d0, u0, levels, light=None):
 
 
 def _reduced_dispersion(h, w, mat, phi_node, nb, n_states, k_grid, cx, sy, axial, ops, cache,
-                        threads, zone=None, energies=False):
+                        threads, zone=None, energies=False, links=False):
     key = ("basis", nb, cx, sy, axial, n_states)
     kept = cache.get(key) if cache is not None else None
     phi_node = np.asarray(phi_node, float)
@@ -862,15 +862,15 @@ def _reduced_dispersion(h, w, mat, phi_node, nb, n_states, k_grid, cx, sy, axial
             return None
     else:
         basis = kept[1]
-    out = _in_basis(basis, ops, w, phi_node, nb, n_states, k_grid, threads, energies)
+    out = _in_basis(basis, ops, w, phi_node, nb, n_states, k_grid, threads, energies, links)
     if not fresh and out[3].any():           # the kept basis no longer fits: build it anew
         basis = _build_basis(ops, phi_node, n_states, threads, zone)
         if basis is None:
             return None
-        out = _in_basis(basis, ops, w, phi_node, nb, n_states, k_grid, threads, energies)
+        out = _in_basis(basis, ops, w, phi_node, nb, n_states, k_grid, threads, energies, links)
     if cache is not None and (fresh or kept[1] is not basis):
         cache[key] = (phi_node.copy(), basis)
-    out_E, out_d, psi0, bad = out
+    out_E, out_d, psi0, bad = out[:4]
     for j in np.flatnonzero(bad):
         e, ps = lowest_states(h, w, mat, phi_node, k_grid[j] * cx, k_grid[j] * sy, nb, n_states,
                               axial=axial, guess=out_E[:, j])
@@ -882,6 +882,12 @@ def _reduced_dispersion(h, w, mat, phi_node, nb, n_states, k_grid, cx, sy, axial
         out_d[:, :e.size, j] = np.sum(np.abs(ps) ** 2, axis=1)
         if j == 0:
             psi0 = ps
+    if links:
+        ln = out[4]
+        eye = np.eye(n_states)
+        for j in np.flatnonzero(bad):            # a whole solve's states: linked by their ranks
+            ln[max(j - 1, 0):j + 1] = eye
+        return out_E, out_d, psi0, ln
     return out_E, out_d, psi0
 
 
@@ -1007,12 +1013,14 @@ def _sytrd_work(K):
     return _SYTRD_WORK[K]
 
 
-def _in_basis(basis, ops, w, phi_node, nb, n_states, k_grid, threads=1, energies=False):
+def _in_basis(basis, ops, w, phi_node, nb, n_states, k_grid, threads=1, energies=False,
+              links=False):
     """The states of every k of ``k_grid`` in ``basis`` (:func:`_build_basis`): (E (n, m), dens
     (N, n, m), psi0 (N, nb, n), bad (m,) where an error estimate exceeds BASIS_TOL), as
     :func:`reduced_dispersion` returns them before the whole solves.  The eigenvalues of both
     halves decide which states are among the lowest n at some k; only those are formed and
-    checked (about half of each half's).  ``energies``: dens and psi0 None (not formed)."""
+    checked (about half of each half's).  ``energies``: dens and psi0 None (not formed).
+    ``links``: a fifth item, :func:`_rank_links` of the states."""
     import scipy.linalg as sla
     from scipy.linalg import blas
     from selfcon.solver.kernels import kp as kern
@@ -1113,7 +1121,31 @@ def _in_basis(basis, ops, w, phi_node, nb, n_states, k_grid, threads=1, energies
     out_d[1:-1, :got] = dens.reshape(m, -1)[:, flat]
     psi0 = np.zeros((n_nodes, nb, got), dtype=complex)
     psi0[1:-1] = np.concatenate(zero, axis=2)[:, :, order[:, 0]] * np.sqrt(s2)[:, None, None]
+    if links:
+        return out_E, out_d, psi0, bad, _rank_links(ritz, [x[1].shape[0] for x in parts], order,
+                                                    n_states)
     return out_E, out_d, psi0, bad
+
+
+def _rank_links(ritz, need, order, n_states):
+    """(m - 1, n, n): |<i at k_j | l at k_j+1>|^2 of the states of energy ranks i and l at
+    neighbouring k_par (``order``: the rank's row of the halves' states stacked, need[b] of
+    half b).  The halves are orthogonal (0 across them); within a half the Ritz vectors of
+    every k_par share one orthonormal basis, so the overlap is that of their coefficients."""
+    nk = order.shape[1]
+    got = order.shape[0]
+    G = int(sum(need))
+    ov = np.zeros((nk - 1, G, G))
+    start = 0
+    for b in range(2):
+        cs = ritz[b][1][:, :, :need[b]]
+        sl = slice(start, start + need[b])
+        ov[:, sl, sl] = np.einsum("jkw,jkv->jwv", cs[:-1], cs[1:]) ** 2
+        start += need[b]
+    out = np.zeros((nk - 1, n_states, n_states))
+    for j in range(nk - 1):
+        out[j, :got, :got] = ov[j][np.ix_(order[:, j], order[:, j + 1])]
+    return out
 
 
 # --------------------------------------------------------------------------- regions and the loop
@@ -1284,61 +1316,139 @@ def _zone_centre_top(h, w, mat, phi_node, nb):
     return -low
 
 
-def region_dispersion(h, w, mat, phi_node, nb, n_states, efp, kT, k_top, cache=None, threads=1):
+def region_dispersion(h, w, mat, phi_node, nb, n_states, efp, kT, k_top, cache=None, threads=1,
+                      links=False):
     """The axial dispersion of one region on K_POINTS k_par values from 0 to ``k_top``,
     lengthened (x 1.5) until every state's hole occupation at the end is below
     TAIL_OCCUPATION.  Returns (k_grid, E, dens, psi0) as :func:`dispersion`, from
     :func:`reduced_dispersion` (``cache``: its kept basis; ``threads``: for its halves) where
-    the model splits."""
+    the model splits.  ``links``: a fifth item, the overlaps of the states at neighbouring
+    k_par (m - 1, n, n) that :func:`linked_states` takes, or None (the whole solve's states:
+    linked by their energy ranks)."""
     for _ in range(8):
         k_grid = np.linspace(0.0, k_top, K_POINTS)
         got = reduced_dispersion(h, w, mat, phi_node, nb, n_states, k_grid, cache=cache,
-                                 threads=threads)
-        E, dens, psi0 = got if got is not None else dispersion(h, w, mat, phi_node, nb, n_states, k_grid)
+                                 threads=threads, links=links)
+        if got is None:
+            got = dispersion(h, w, mat, phi_node, nb, n_states, k_grid) + ((None,) if links else ())
+        E = got[0]
         last = E[:, -1]
         occ = 1.0 / (1.0 + np.exp(np.clip((efp - last[np.isfinite(last)]) / kT, -700, 700)))
         if occ.size == 0 or occ.max() < TAIL_OCCUPATION:
             break
         k_top *= 1.5
-    return k_grid, E, dens, psi0
+    return (k_grid,) + tuple(got)
+
+
+#: the pairing of the states at neighbouring k_par in :func:`linked_states`: the overlaps
+#: raised to this power, normalised per state (a higher power follows the dominant partner
+#: more closely; the pairing stays a continuous function of the potential)
+LINK_POWER = 4
+
+
+def linked_states(k_grid, E, dens, links, efp, kT):
+    """The k_par integral of the hole density as pseudo-subbands at the grid energies, the
+    states of neighbouring k_par paired by their overlap rather than by their energy rank.
+
+    :func:`annulus_states` joins the i-th lowest state of k_a to the i-th lowest of k_b.
+    Where two states of little overlap cross between them (a state of the channel and one
+    of a second well, coupled only by tunnelling) that joins the states of two different
+    wells, and when the crossing moves past a grid point as the potential changes, the
+    annulus' weight |psi|^2 jumps from one well to the other: the hole density is not a
+    continuous function of the potential and the self-consistent loop stalls.  Here the
+    state i of k_a is joined to every state l of k_b with the share p_il = T_il^P / sum_l
+    T_il^P of the overlaps T = ``links`` (:func:`region_dispersion`; P = LINK_POWER), each
+    pair an annulus of :func:`annulus_states`' form (energy linear in k^2 from E_i(k_a) to
+    E_l(k_b), the mean of the two |psi|^2 as weight): where the ranks keep their states
+    (T the identity) it is :func:`annulus_states` exactly; at a crossing it follows each
+    state; at a degeneracy the two pairings give the same energies.  The two terms at each
+    grid energy are summed into one (as :func:`collect_states` does).  Returns (energy
+    (K,), dos (K,) ones, weight (N, K), sheet (n,) nm^-2 by the rank at k_a), K the finite
+    grid energies in state-major order."""
+    k2 = np.asarray(k_grid, float) ** 2
+    n, m = E.shape
+    N = dens.shape[0]
+    fin = np.isfinite(E)
+    T = np.where(fin[:, :-1].T[:, :, None] & fin[:, 1:].T[:, None, :], links, 0.0) ** LINK_POWER
+    rows = T.sum(axis=2, keepdims=True)
+    T = np.divide(T, rows, out=np.zeros_like(T), where=rows > 0)
+    Ez = np.where(fin, E, 0.0)
+    ea = Ez[:, :-1].T[:, :, None]                       # (m - 1, n, 1): state i at k_a
+    eb = Ez[:, 1:].T[:, None, :]                        # (m - 1, 1, n): state l at k_b
+    de = ea - eb
+    de = np.where(np.abs(de) < FLAT, np.where(de >= 0, FLAT, -FLAT), de)
+    C = T * (np.diff(k2)[:, None, None] / (4.0 * np.pi) / de)          # share x DOS
+    x = np.logaddexp(0.0, (ea - efp) / kT) - np.logaddexp(0.0, (eb - efp) / kT)
+    sheet = kT * np.sum(C * x, axis=(0, 2))
+    A, B = dens[:, :, :-1], dens[:, :, 1:]
+    weight = np.zeros((N, n, m))
+    weight[:, :, :-1] += 0.5 * (A * C.sum(axis=2).T + np.einsum("Nlj,jil->Nij", B, C))
+    weight[:, :, 1:] -= 0.5 * (np.einsum("Nij,jil->Nlj", A, C) + B * C.sum(axis=1).T)
+    ok = fin.ravel()
+    weight = weight.reshape(N, n * m)
+    if ok.all():
+        return E.ravel(), np.ones(n * m), weight, sheet
+    return E.ravel()[ok], np.ones(int(ok.sum())), weight[:, ok], sheet
 
 
 def collect_states(n_nodes: int, model: str, regions, solved, efp: float, kT: float,
-                   annuli=None) -> KpStates:
+                   annuli=None, linked=None) -> KpStates:
     """One :class:`KpStates` from the regions' solves: ``regions`` [(r_idx, i0, i1)],
-    ``solved`` [(k_grid, E, dens, psi0)] on one k grid; ``annuli``: each region's
-    :func:`annulus_states` of them where the caller has them already."""
+    ``solved`` [(k_grid, E, dens, psi0[, links])] on one k grid; ``annuli``: each region's
+    :func:`annulus_states` of them where the caller has them already.  A region whose solve
+    carries its links (not None) takes :func:`linked_states` instead (``linked``: those the
+    caller has already, None for the others)."""
     from selfcon.solver.kernels import kp as kern
     nb = MODELS[model]
     energy, dos, region, sub_e, sub_r, disp, psis, sheets = ([] for _ in range(8))
     qnodes = np.zeros(n_nodes, dtype=bool)
     k_grid = solved[0][0]
+    if linked is None:
+        linked = [linked_states(sol[0], sol[1], sol[2], sol[4], efp, kT)
+                  if len(sol) > 4 and sol[4] is not None else None for sol in solved]
     if annuli is None:
-        annuli = [annulus_states(kg, E, dens) for kg, E, dens, _ in solved]
+        annuli = [annulus_states(*sol[:3]) if lk is None else None
+                  for sol, lk in zip(solved, linked)]
     # the pseudo-subbands the Poisson kernel sums: where every annulus' end term lies at the
     # next grid energy (no flat annulus, every state at every k_par), the two terms at each
     # grid energy summed into one (kernels/kp.py::merge_annuli: the kernels sum weight * dos
     # * F(E - dphi), the same for both, so one term of weight w1 d1 + w2 d2 and dos 1 is the
-    # same sum), about half the terms; else the annulus terms as they are
-    merged = []
-    for (kg, E, dens, psi0), (en, d, wt, state) in zip(solved, annuli):
+    # same sum), about half the terms; else the annulus terms as they are (linked_states
+    # gives the summed form itself)
+    merged, sizes = [], []
+    for sol, an, lk in zip(solved, annuli, linked):
+        E = sol[1]
         n, m = E.shape
         a = n * (m - 1)
+        if lk is not None:
+            merged.append(False)
+            sizes.append(lk[0].size)
+            continue
+        en = an[0]
         merged.append(m > 1 and en.size == 2 * a and np.array_equal(en[a:], E[:, 1:].ravel()))
-    sizes = [E.size if mg else a[0].size for (_, E, _, _), a, mg in zip(solved, annuli, merged)]
+        sizes.append(E.size if merged[-1] else en.size)
     weight = np.zeros((n_nodes, sum(sizes)))     # every region's block written once
     col = 0
-    for (r_idx, i0, i1), (kg, E, dens, psi0), (en, d, wt, state), mg, size in zip(
-            regions, solved, annuli, merged, sizes):
+    for (r_idx, i0, i1), sol, an, lk, mg, size in zip(regions, solved, annuli, linked, merged,
+                                                      sizes):
+        kg, E, dens, psi0 = sol[:4]
         qnodes[i0:i1 + 1] = True
-        if mg:
-            kern.merge_annuli(d, wt, E.shape[0], E.shape[1], weight, i0, col)
-            energy.append(E.ravel())
-            dos.append(np.ones(size))
+        if lk is not None:
+            weight[i0:i1 + 1, col:col + size] = lk[2]
+            energy.append(lk[0])
+            dos.append(lk[1])
+            sheets.append(lk[3])
         else:
-            weight[i0:i1 + 1, col:col + size] = wt
-            energy.append(en)
-            dos.append(d)
+            en, d, wt, state = an
+            if mg:
+                kern.merge_annuli(d, wt, E.shape[0], E.shape[1], weight, i0, col)
+                energy.append(E.ravel())
+                dos.append(np.ones(size))
+            else:
+                weight[i0:i1 + 1, col:col + size] = wt
+                energy.append(en)
+                dos.append(d)
+            sheets.append(annulus_sheets(en, d, state, E.shape[0], efp, kT))
         col += size
         region.append(np.full(size, r_idx))
         sub_e.append(E[:, 0])
@@ -1347,7 +1457,6 @@ def collect_states(n_nodes: int, model: str, regions, solved, efp: float, kT: fl
         p = np.zeros((n_nodes, nb, E.shape[0]), dtype=complex)
         p[i0:i1 + 1] = psi0
         psis.append(p)
-        sheets.append(annulus_sheets(en, d, state, E.shape[0], efp, kT))
     sub_e = np.concatenate(sub_e)
     order = np.argsort(-sub_e, kind="stable")          # lowest hole energy first
     return KpStates(band="hole_kp", model=model, energy=np.concatenate(energy),

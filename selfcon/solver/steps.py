@@ -901,20 +901,28 @@ def kp_states(ws: Workspace, phi):
     while True:
         solved = []
         for r_idx, i0, i1, part, mat in todo:
-            kg, E, dens, psi0 = kp.region_dispersion(part.h, part.w, mat, phi[i0:i1 + 1], nb, n,
-                                                     efp, kT, k_top,
-                                                     cache=ws.kp_basis.setdefault(r_idx, {}),
-                                                     threads=ws.threads)
-            solved.append((kg, E, dens, psi0))
+            solved.append(kp.region_dispersion(part.h, part.w, mat, phi[i0:i1 + 1], nb, n,
+                                               efp, kT, k_top,
+                                               cache=ws.kp_basis.setdefault(r_idx, {}),
+                                               threads=ws.threads, links=True))
         grown = max(s[0][-1] for s in solved)
         if grown > k_top * (1 + 1e-12):          # a region needed a longer grid: one grid for all
             k_top = grown
             continue
-        sheets, annuli = [], []
-        for kg, E, dens, psi0 in solved:
-            annuli.append(kp.annulus_states(kg, E, dens))
-            en, dos, _, state = annuli[-1]
-            sheets.append(kp.annulus_sheets(en, dos, state, E.shape[0], efp, kT))
+        # each region's states of neighbouring k_par paired by their overlap (continuous in
+        # the potential where states of two wells cross), by their energy rank where the
+        # whole solve gave them
+        sheets, annuli, linked = [], [], []
+        for kg, E, dens, psi0, links in solved:
+            if links is not None:
+                linked.append(kp.linked_states(kg, E, dens, links, efp, kT))
+                annuli.append(None)
+                sheets.append(linked[-1][3])
+            else:
+                linked.append(None)
+                annuli.append(kp.annulus_states(kg, E, dens))
+                en, dos, _, state = annuli[-1]
+                sheets.append(kp.annulus_sheets(en, dos, state, E.shape[0], efp, kT))
         total = sum(float(x.sum()) for x in sheets)
         full = all(s[1].shape[0] >= n and np.all(np.isfinite(s[1])) for s in solved)
         top = max(float(x[-1]) for x in sheets)
@@ -924,7 +932,7 @@ def kp_states(ws: Workspace, phi):
         ws.n_states[KP_BAND] = n
     ws.kp_top = k_top
     return kp.collect_states(st.n_nodes, st.hole_model, [t[:3] for t in todo], solved, efp, kT,
-                             annuli=annuli)
+                             annuli=annuli, linked=linked)
 
 
 def region_parts(st: Structure, band: str, r_idx: int):
