@@ -93,7 +93,7 @@ from selfcon.constants import HBAR2_2M0
 __all__ = ["KpMaterial", "KpStates", "MODELS", "basis", "cartesian_blocks", "bulk_matrix",
            "assemble_blocks", "band_matrix", "dense_matrix", "lowest_banded", "lowest_states",
            "DEGENERATE", "region_material", "dispersion", "annulus_states", "annulus_sheets",
-           "grid_top", "region_dispersion", "linked_states", "LINK_POWER", "K_POINTS", "fermi_sea_top", "collect_states", "subband_figures", "along_direction",
+           "grid_top", "region_dispersion", "linked_states", "link_pairs", "LINK_POWER", "K_POINTS", "fermi_sea_top", "collect_states", "subband_figures", "along_direction",
            "split_transform", "split_blocks", "zone_centre", "ZONE_CENTRE_GROUPS", "SPLIT_TOL",
            "reduced_dispersion", "BASIS_LEVELS", "BASIS_SHIFT", "BASIS_TOL", "CURVATURE_USES",
            "Curvature", "bulk_curvatures", "zone_centre_inverse_masses", "large_k_inverse_masses"]
@@ -1346,7 +1346,27 @@ def region_dispersion(h, w, mat, phi_node, nb, n_states, efp, kT, k_top, cache=N
 LINK_POWER = 4
 
 
-def linked_states(k_grid, E, dens, links, efp, kT):
+def link_pairs(k_grid, E, links, efp, kT):
+    """The pairs of :func:`linked_states`: (js, si, sl, coef, sheet): annulus, state at its
+    start, state at its end, share x DOS (nm^-2 eV^-1) of every pair of non-zero share, and
+    the sheet (nm^-2) by the state at the start."""
+    k2 = np.asarray(k_grid, float) ** 2
+    fin = np.isfinite(E)
+    T = np.where(fin[:, :-1].T[:, :, None] & fin[:, 1:].T[:, None, :], links, 0.0) ** LINK_POWER
+    rows = T.sum(axis=2, keepdims=True)
+    T = np.divide(T, rows, out=np.zeros_like(T), where=rows > 0)
+    js, si, sl = np.nonzero(T)
+    ea, eb = E[si, js], E[sl, js + 1]
+    de = ea - eb
+    de = np.where(np.abs(de) < FLAT, np.where(de >= 0, FLAT, -FLAT), de)
+    coef = T[js, si, sl] * (k2[js + 1] - k2[js]) / (4.0 * np.pi) / de
+    x = np.logaddexp(0.0, (ea - efp) / kT) - np.logaddexp(0.0, (eb - efp) / kT)
+    sheet = np.zeros(E.shape[0])
+    np.add.at(sheet, si, kT * coef * x)
+    return js, si, sl, coef, sheet
+
+
+def linked_states(k_grid, E, dens, links, efp, kT, pairs=None):
     """The k_par integral of the hole density as pseudo-subbands at the grid energies, the
     states of neighbouring k_par paired by their overlap rather than by their energy rank.
 
@@ -1362,30 +1382,17 @@ def linked_states(k_grid, E, dens, links, efp, kT):
     E_l(k_b), the mean of the two |psi|^2 as weight): where the ranks keep their states
     (T the identity) it is :func:`annulus_states` exactly; at a crossing it follows each
     state; at a degeneracy the two pairings give the same energies.  The two terms at each
-    grid energy are summed into one (as :func:`collect_states` does).  Returns (energy
-    (K,), dos (K,) ones, weight (N, K), sheet (n,) nm^-2 by the rank at k_a), K the finite
-    grid energies in state-major order."""
-    k2 = np.asarray(k_grid, float) ** 2
+    grid energy are summed into one (as :func:`collect_states` does;
+    kernels/kp.py::link_annuli).  ``pairs``: :func:`link_pairs` of them, if the caller has
+    it.  Returns (energy (K,), dos (K,) ones, weight (N, K), sheet (n,) nm^-2 by the state
+    at the start of each pair), K the finite grid energies in state-major order."""
+    from selfcon.solver.kernels import kp as kern
     n, m = E.shape
     N = dens.shape[0]
-    fin = np.isfinite(E)
-    T = np.where(fin[:, :-1].T[:, :, None] & fin[:, 1:].T[:, None, :], links, 0.0) ** LINK_POWER
-    rows = T.sum(axis=2, keepdims=True)
-    T = np.divide(T, rows, out=np.zeros_like(T), where=rows > 0)
-    Ez = np.where(fin, E, 0.0)
-    ea = Ez[:, :-1].T[:, :, None]                       # (m - 1, n, 1): state i at k_a
-    eb = Ez[:, 1:].T[:, None, :]                        # (m - 1, 1, n): state l at k_b
-    de = ea - eb
-    de = np.where(np.abs(de) < FLAT, np.where(de >= 0, FLAT, -FLAT), de)
-    C = T * (np.diff(k2)[:, None, None] / (4.0 * np.pi) / de)          # share x DOS
-    x = np.logaddexp(0.0, (ea - efp) / kT) - np.logaddexp(0.0, (eb - efp) / kT)
-    sheet = kT * np.sum(C * x, axis=(0, 2))
-    A, B = dens[:, :, :-1], dens[:, :, 1:]
-    weight = np.zeros((N, n, m))
-    weight[:, :, :-1] += 0.5 * (A * C.sum(axis=2).T + np.einsum("Nlj,jil->Nij", B, C))
-    weight[:, :, 1:] -= 0.5 * (np.einsum("Nij,jil->Nlj", A, C) + B * C.sum(axis=1).T)
-    ok = fin.ravel()
-    weight = weight.reshape(N, n * m)
+    js, si, sl, coef, sheet = pairs if pairs is not None else link_pairs(k_grid, E, links, efp, kT)
+    weight = np.zeros((N, n * m))
+    kern.link_annuli(np.ascontiguousarray(dens, dtype=float), js, si, sl, coef, m, weight, 0, 0)
+    ok = np.isfinite(E).ravel()
     if ok.all():
         return E.ravel(), np.ones(n * m), weight, sheet
     return E.ravel()[ok], np.ones(int(ok.sum())), weight[:, ok], sheet
@@ -1396,15 +1403,15 @@ def collect_states(n_nodes: int, model: str, regions, solved, efp: float, kT: fl
     """One :class:`KpStates` from the regions' solves: ``regions`` [(r_idx, i0, i1)],
     ``solved`` [(k_grid, E, dens, psi0[, links])] on one k grid; ``annuli``: each region's
     :func:`annulus_states` of them where the caller has them already.  A region whose solve
-    carries its links (not None) takes :func:`linked_states` instead (``linked``: those the
-    caller has already, None for the others)."""
+    carries its links (not None) takes :func:`linked_states` instead (``linked``: their
+    :func:`link_pairs` where the caller has them, None for the others)."""
     from selfcon.solver.kernels import kp as kern
     nb = MODELS[model]
     energy, dos, region, sub_e, sub_r, disp, psis, sheets = ([] for _ in range(8))
     qnodes = np.zeros(n_nodes, dtype=bool)
     k_grid = solved[0][0]
     if linked is None:
-        linked = [linked_states(sol[0], sol[1], sol[2], sol[4], efp, kT)
+        linked = [link_pairs(sol[0], sol[1], sol[4], efp, kT)
                   if len(sol) > 4 and sol[4] is not None else None for sol in solved]
     if annuli is None:
         annuli = [annulus_states(*sol[:3]) if lk is None else None
@@ -1413,16 +1420,16 @@ def collect_states(n_nodes: int, model: str, regions, solved, efp: float, kT: fl
     # next grid energy (no flat annulus, every state at every k_par), the two terms at each
     # grid energy summed into one (kernels/kp.py::merge_annuli: the kernels sum weight * dos
     # * F(E - dphi), the same for both, so one term of weight w1 d1 + w2 d2 and dos 1 is the
-    # same sum), about half the terms; else the annulus terms as they are (linked_states
-    # gives the summed form itself)
+    # same sum), about half the terms; else the annulus terms as they are (linked regions:
+    # always summed, kernels/kp.py::link_annuli)
     merged, sizes = [], []
     for sol, an, lk in zip(solved, annuli, linked):
         E = sol[1]
         n, m = E.shape
         a = n * (m - 1)
         if lk is not None:
-            merged.append(False)
-            sizes.append(lk[0].size)
+            merged.append(bool(np.all(np.isfinite(E))))
+            sizes.append(int(np.isfinite(E).sum()))
             continue
         en = an[0]
         merged.append(m > 1 and en.size == 2 * a and np.array_equal(en[a:], E[:, 1:].ravel()))
@@ -1434,10 +1441,17 @@ def collect_states(n_nodes: int, model: str, regions, solved, efp: float, kT: fl
         kg, E, dens, psi0 = sol[:4]
         qnodes[i0:i1 + 1] = True
         if lk is not None:
-            weight[i0:i1 + 1, col:col + size] = lk[2]
-            energy.append(lk[0])
-            dos.append(lk[1])
-            sheets.append(lk[3])
+            if mg:                                   # straight into the columns
+                kern.link_annuli(np.ascontiguousarray(dens, dtype=float), *lk[:4], E.shape[1],
+                                 weight, i0, col)
+                energy.append(E.ravel())
+                dos.append(np.ones(size))
+            else:
+                en, d, wt, _ = linked_states(kg, E, dens, None, efp, kT, pairs=lk)
+                weight[i0:i1 + 1, col:col + size] = wt
+                energy.append(en)
+                dos.append(d)
+            sheets.append(lk[4])
         else:
             en, d, wt, state = an
             if mg:

@@ -915,9 +915,9 @@ def kp_states(ws: Workspace, phi):
         sheets, annuli, linked = [], [], []
         for kg, E, dens, psi0, links in solved:
             if links is not None:
-                linked.append(kp.linked_states(kg, E, dens, links, efp, kT))
+                linked.append(kp.link_pairs(kg, E, links, efp, kT))
                 annuli.append(None)
-                sheets.append(linked[-1][3])
+                sheets.append(linked[-1][4])
             else:
                 linked.append(None)
                 annuli.append(kp.annulus_states(kg, E, dens))

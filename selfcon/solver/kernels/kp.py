@@ -436,6 +436,23 @@ def cholesky_solve(ab, y):
 
 
 @numba.njit(cache=True, nogil=True)
+def link_annuli(dens, js, si, sl, coef, m, out, row0, col0):
+    """The linked annulus pseudo-subbands of selfcon.solver.kp.linked_states summed at the grid
+    energies: for every pair p (state si[p] at k_js[p], state sl[p] at the next k_par, share
+    x DOS coef[p]) the pair's mean |psi|^2 (``dens`` (N, n, m)) times coef[p] / 2 is added to
+    column col0 + si m + js of ``out`` (from row row0) and taken from column
+    col0 + sl m + js + 1.  The columns must be zero or hold earlier terms."""
+    N = dens.shape[0]
+    P = js.size
+    for z in range(N):
+        for p in range(P):
+            j = js[p]
+            v = 0.5 * coef[p] * (dens[z, si[p], j] + dens[z, sl[p], j + 1])
+            out[row0 + z, col0 + si[p] * m + j] += v
+            out[row0 + z, col0 + sl[p] * m + j + 1] -= v
+
+
+@numba.njit(cache=True, nogil=True)
 def merge_annuli(dos, weight, n, m, out, row0, col0):
     """The annulus pseudo-subbands of selfcon.solver.kp.annulus_states (n states on m k_par
     points: the start terms of every (state, annulus) first, then their end terms, in the
