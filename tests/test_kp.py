@@ -811,6 +811,42 @@ def test_linked_states_follow_two_crossing_wells():
     assert np.abs(near[0][1] - near[1][1]).max() > 0.02 * near[0][2].max()
 
 
+def _two_wells_ritz(g, shift, k):
+    """Ritz pairs (ascending) of H(k) = [[e_C(k), g], [g, e_W(k)]] (hole kinetic scale, eV):
+    two wells' states crossing near k = 0.15 nm^-1, coupled by g."""
+    th, cs = [], []
+    for kk in k:
+        e, v = np.linalg.eigh(np.array([[0.002 + 0.15 * kk * kk, g], [g, 0.0047 + shift + 0.03 * kk * kk]]))
+        th.append(e)
+        cs.append(v)
+    return np.array(th), np.array(cs)
+
+
+def test_unresolved_crossing_is_taken_apart_and_a_wide_anticrossing_kept():
+    """kp._unmix_crossings: two states coupled by 0.02 meV, their crossing 0.05 meV from a
+    grid point (the eigenstates there mixed 11 %, the gap 0.064 meV against 1.0 and 1.1 meV
+    at the neighbouring points): the pair at that point becomes the two wells' own states
+    (to 1e-5 in probability; what remains is the neighbours' own mixing, ~(g / 1 meV)^2)
+    with their own energies to 1e-4 meV (analytic: the diagonal of the 2x2 matrix);
+    coupled by 2 meV (an anticrossing several grid steps wide) the eigenpairs are kept as
+    they are."""
+    k = np.linspace(0.0, 0.3, 11)
+    kc2 = (0.0047 - 0.002) / (0.15 - 0.03)                  # the crossing's k^2
+    j = int(np.argmin(np.abs(k * k - kc2)))
+    shift = 0.12 * (kc2 - k[j] ** 2) + 5e-5                 # 0.05 meV from grid point j
+    th, cs = _two_wells_ritz(2e-5, shift, k)
+    assert 0.1 < float(np.min(np.abs(cs[j]) ** 2)) < 0.5
+    th2, cs2 = kp._unmix_crossings(th, cs)
+    assert np.min(np.max(np.abs(cs2[j]), axis=0) ** 2) > 1 - 1e-5
+    own = sorted([0.002 + 0.15 * k[j] ** 2, 0.0047 + shift + 0.03 * k[j] ** 2])
+    assert np.allclose(np.sort(th2[j]), own, rtol=0, atol=1e-7)
+    far = [i for i in range(k.size) if abs(i - j) > 1]
+    assert np.array_equal(th2[far], th[far]) and np.array_equal(cs2[far], cs[far])
+    th, cs = _two_wells_ritz(2e-3, shift, k)
+    th2, cs2 = kp._unmix_crossings(th, cs)
+    assert np.array_equal(th2, th) and np.array_equal(cs2, cs)
+
+
 def test_reduced_basis_same_bits_with_the_halves_on_two_threads(monkeypatch):
     """The halves on two threads from HALF_THREADS_NODES region nodes on (lowered here to
     the test's small well): the same arrays, bit for bit, as one after the other."""

@@ -406,7 +406,7 @@ def test_two_wells_of_multiband_holes_converge(inputs_dir):
     deck = selfcon.load_deck(dumps_toml(data), ["mesh.step=0.5"])
     assert deck.physics.hole_model == "kp4" and deck.temperature == 4.0
     r = selfcon.solve(deck)
-    assert r.converged and r.iterations <= 20
+    assert r.converged
     ps = r.summary["hole_sheet_density_cm2"]
     assert r.summary["electron_sheet_density_cm2"] < 1e-6 * ps
     eps_end = float(selfcon.build_structure(deck).cell["eps"][-1])
@@ -415,4 +415,5 @@ def test_two_wells_of_multiband_holes_converge(inputs_dir):
     assert -0.2e12 < leak < 0.0                        # the substrate takes a few per cent
     plain = selfcon.solve(deck.with_overrides({"physics.hole_model": "parabolic"}))
     assert plain.converged
+    assert r.iterations <= plain.iterations + 2          # 7 and 7 measured
     assert ps == pytest.approx(plain.summary["hole_sheet_density_cm2"], rel=0.01)

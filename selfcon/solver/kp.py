@@ -1084,6 +1084,9 @@ def _in_basis(basis, ops, w, phi_node, nb, n_states, k_grid, threads=1, energies
             break
         for b in short:
             ritz[b] = ritz_of(b, n_states)
+    if links:
+        ritz = [_unmix_crossings(th, cs) for th, cs in ritz]
+        vals = np.concatenate([t for t, _ in ritz], axis=1)
     sigma = float(vals[0].min()) - BASIS_SHIFT
 
     def states_of(b):
@@ -1125,6 +1128,59 @@ def _in_basis(basis, ops, w, phi_node, nb, n_states, k_grid, threads=1, energies
         return out_E, out_d, psi0, bad, _rank_links(ritz, [x[1].shape[0] for x in parts], order,
                                                     n_states)
     return out_E, out_d, psi0, bad
+
+
+#: a pair of neighbouring states of one half whose gap at a k_par is below UNMIX_FULL of
+#: their separation at the neighbouring k_par is taken apart into its unmixed states
+#: (:func:`_unmix_crossings`); above UNMIX_NONE of it they stay the eigenstates; between, a
+#: smooth part of the rotation
+UNMIX_FULL = 0.1
+UNMIX_NONE = 0.3
+
+
+def _unmix_crossings(th, cs):
+    """Ritz pairs (th (nk, w) ascending, cs (nk, K, w)) of one half with the states of a
+    crossing that the k_par grid does not resolve taken apart.
+
+    Two states of two wells coupled only by tunnelling cross as k_par varies; at a grid
+    point near the crossing the eigenstates are mixtures of the two, and their mixing turns
+    over within a change of the potential of the size of the (tiny) gap: the densities
+    the k_par integral weights with jumped between the wells for a change of 1e-5 V.  At such
+    a point (the gap of a neighbouring pair below UNMIX_FULL of the pair's separation at the
+    neighbouring k_par: the grid does not resolve the anticrossing) the pair is rotated to
+    the states that overlap the neighbouring k_par's states most purely (the rotation that
+    maximises the sum of the fourth powers of the overlaps, in closed form), with the mean
+    energies <psi|H|psi> of the rotated states; the rotation is scaled down smoothly to none
+    at UNMIX_NONE.  Where no pair qualifies the pairs are returned as they are."""
+    nk, w = th.shape
+    if nk < 2 or w < 2:
+        return th, cs
+    gap = np.diff(th, axis=1)                                   # (nk, w - 1)
+    near = np.full_like(gap, np.inf)
+    near[1:] = np.minimum(near[1:], gap[:-1])
+    near[:-1] = np.minimum(near[:-1], gap[1:])
+    with np.errstate(divide="ignore", invalid="ignore"):
+        rho = np.where(near > 0, gap / near, np.inf)
+    part = np.clip((UNMIX_NONE - rho) / (UNMIX_NONE - UNMIX_FULL), 0.0, 1.0)
+    part = part * part * (3.0 - 2.0 * part)                      # smooth step
+    if not np.any(part > 0):
+        return th, cs
+    th, cs = th.copy(), cs.copy()
+    for j, p in zip(*np.nonzero(part > 0)):
+        nbr = np.concatenate([cs[jn] for jn in (j - 1, j + 1) if 0 <= jn < nk], axis=1)
+        a = cs[j][:, p] @ nbr
+        b = cs[j][:, p + 1] @ nbr
+        u, v = a * a - b * b, 2.0 * a * b
+        A, B, C = float(v @ v), float(u @ u), float(u @ v)
+        theta = 0.25 * (np.arctan2(-C, 0.5 * (A - B)) + np.pi)
+        theta = (theta + 0.25 * np.pi) % (0.5 * np.pi) - 0.25 * np.pi     # the least rotation
+        theta *= part[j, p]
+        c, s = np.cos(theta), np.sin(theta)
+        x, y = cs[j][:, p].copy(), cs[j][:, p + 1].copy()
+        cs[j][:, p], cs[j][:, p + 1] = c * x + s * y, c * y - s * x
+        e0, e1 = th[j, p], th[j, p + 1]
+        th[j, p], th[j, p + 1] = c * c * e0 + s * s * e1, s * s * e0 + c * c * e1
+    return th, cs
 
 
 def _rank_links(ritz, need, order, n_states):
