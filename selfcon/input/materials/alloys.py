@@ -17,6 +17,7 @@ from selfcon.errors import MaterialError
 from selfcon.input.materials.library import (ALLOYS, BINARIES, BOWED, CRYSTAL, PARAMETERS,
                                              QUATERNARIES, WURTZITE_ONLY, anisotropic_dos_mass,
                                              material_hole_dos_masses, spherical_hh_mass_error,
+                                             spherical_inverse_masses,
                                              wurtzite_hole_masses, wurtzite_valence_edges)
 
 #: (valley suffix, gap key, alpha key, beta key)
@@ -192,9 +193,10 @@ def blend_hole_dos_masses(out, parts, weights, den):
         for p, w in zip(parts, weights):
             has = p[key] > 0.0
             stored = stored | (has & (np.asarray(w) > 0.0))
-            gbar = (2.0 * p["luttinger_gamma2"] + 3.0 * p["luttinger_gamma3"]) / 5.0
+            spherical = spherical_inverse_masses(p["luttinger_gamma1"], p["luttinger_gamma2"],
+                                                 p["luttinger_gamma3"])[0 if sign < 0 else 1]
             safe = np.where(has, p[key], 1.0)
-            inv = inv + w * np.where(has, 1.0 / safe, p["luttinger_gamma1"] + sign * 2.0 * gbar)
+            inv = inv + w * np.where(has, 1.0 / safe, spherical)
         with np.errstate(divide="ignore", invalid="ignore"):
             out[key] = np.where(stored, den / inv, 0.0)
 
@@ -457,15 +459,15 @@ def validate(name, prim):
             raise MaterialError(f"{label} of {name} must be positive, got {float(prim[key].min()):g}",
                                 key=f"material.{name}.{key}")
     g1, g2, g3 = prim["luttinger_gamma1"], prim["luttinger_gamma2"], prim["luttinger_gamma3"]
-    gbar = (2 * g2 + 3 * g3) / 5
+    inv_hh, inv_lh = spherical_inverse_masses(g1, g2, g3)
     for den, text, key in (
             (g1 - 2 * g2, "gamma1 - 2 gamma2 (1/m_hh along z)", "luttinger_gamma2"),
             (g1 + 2 * g2, "gamma1 + 2 gamma2 (1/m_lh along z)", "luttinger_gamma2"),
             (g1 + g2, "gamma1 + gamma2 (1/m_hh in plane)", "luttinger_gamma2"),
             (g1 - g2, "gamma1 - gamma2 (1/m_lh in plane)", "luttinger_gamma2"),
-            (g1 - 2 * gbar, "gamma1 - 2 (2 gamma2 + 3 gamma3)/5 (1/m_hh, density of states)",
+            (inv_hh, "gamma1 - 2 (2 gamma2 + 3 gamma3)/5 (1/m_hh, density of states)",
              "luttinger_gamma3"),
-            (g1 + 2 * gbar, "gamma1 + 2 (2 gamma2 + 3 gamma3)/5 (1/m_lh, density of states)",
+            (inv_lh, "gamma1 + 2 (2 gamma2 + 3 gamma3)/5 (1/m_lh, density of states)",
              "luttinger_gamma3")):
         if not (den > 0.0).all():
             raise MaterialError(f"Luttinger parameters of {name} give {text} = "

@@ -459,8 +459,17 @@ def hole_dos_masses(g1, g2, g3):
     m_v = (m_hh^(3/2) + m_lh^(3/2))^(2/3) (:func:`valence_dos_mass`).  A material that
     stores its own masses (``hole_dos_mass_hh``, ``hole_dos_mass_lh``) uses those instead:
     :func:`material_hole_dos_masses`."""
+    inv_hh, inv_lh = spherical_inverse_masses(g1, g2, g3)
+    return 1.0 / inv_hh, 1.0 / inv_lh
+
+
+def spherical_inverse_masses(g1, g2, g3):
+    """(gamma1 - 2 gamma_bar, gamma1 + 2 gamma_bar), gamma_bar = (2 gamma2 + 3 gamma3)/5: the
+    inverse heavy- and light-hole DOS masses (1/m0) of :func:`hole_dos_masses` (the one place
+    the spherical average is written; the alloys' mass blend and the library checks take it
+    from here).  Scalars or arrays."""
     gbar = (2.0 * g2 + 3.0 * g3) / 5.0
-    return 1.0 / (g1 - 2.0 * gbar), 1.0 / (g1 + 2.0 * gbar)
+    return g1 - 2.0 * gbar, g1 + 2.0 * gbar
 
 
 #: m0: the largest heavy-hole DOS mass the spherical estimate may give.  Measured heavy-hole
@@ -489,8 +498,8 @@ def spherical_hh_mass_error(name, g1, g2, g3, stored_hh):
     offending cell is reported)."""
     import numpy as np
     from selfcon.errors import MaterialError
-    gbar = (2.0 * np.asarray(g2, float) + 3.0 * np.asarray(g3, float)) / 5.0
-    den = np.atleast_1d(np.asarray(g1, float) - 2.0 * gbar)
+    den = np.atleast_1d(spherical_inverse_masses(np.asarray(g1, float), np.asarray(g2, float),
+                                                 np.asarray(g3, float))[0])
     bad = (np.atleast_1d(stored_hh) <= 0.0) & ~(den >= 1.0 / MAX_SPHERICAL_HH_MASS)
     if not bad.any():
         return None
