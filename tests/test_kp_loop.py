@@ -3,6 +3,8 @@ the deck key, the k_par integral of the hole density, and solves of a GaAs 2DHG.
 
 Every reference value names its source beside it.  Meshes are small.
 """
+from pathlib import Path
+
 import numpy as np
 import pytest
 
@@ -417,3 +419,18 @@ def test_two_wells_of_multiband_holes_converge(inputs_dir):
     assert plain.converged
     assert r.iterations <= plain.iterations + 2          # 7 and 7 measured
     assert ps == pytest.approx(plain.summary["hole_sheet_density_cm2"], rel=0.01)
+
+
+def test_whole_solve_fallback_links_by_rank_and_gives_the_same_answer(monkeypatch):
+    # where the reduced basis is not used (kp.reduced_dispersion gives None) the region's
+    # states come from the whole block solve, linked at neighbouring k_par by their energy
+    # rank (identity links); both paths solve one model, the reduced one checked state by
+    # state against 0.05 meV (kp.BASIS_TOL), so p_s agrees to ~1e-6 (measured 5e-7)
+    path = Path(__file__).resolve().parents[1] / "inputs" / "design" / "2dhg_kp6_4K.toml"
+    reduced = selfcon.solve(selfcon.load_deck(str(path), ["mesh.step=0.5"]))
+    monkeypatch.setattr(kp, "reduced_dispersion", lambda *a, **k: None)
+    whole = selfcon.solve(selfcon.load_deck(str(path), ["mesh.step=0.5"]))
+    assert reduced.converged and whole.converged, whole.message
+    assert whole.iterations <= reduced.iterations + 1
+    ps = reduced.summary["hole_sheet_density_cm2"]
+    assert abs(whole.summary["hole_sheet_density_cm2"] - ps) < 1e-5 * ps

@@ -1379,14 +1379,17 @@ def region_dispersion(h, w, mat, phi_node, nb, n_states, efp, kT, k_top, cache=N
     TAIL_OCCUPATION.  Returns (k_grid, E, dens, psi0) as :func:`dispersion`, from
     :func:`reduced_dispersion` (``cache``: its kept basis; ``threads``: for its halves) where
     the model splits.  ``links``: a fifth item, the overlaps of the states at neighbouring
-    k_par (m - 1, n, n) that :func:`linked_states` takes, or None (the whole solve's states:
-    linked by their energy ranks)."""
+    k_par (m - 1, n, n) that :func:`linked_states` takes (the identity, linking by energy
+    rank, where the whole solve gave the states: they carry no shared basis to overlap in)."""
     for _ in range(8):
         k_grid = np.linspace(0.0, k_top, K_POINTS)
         got = reduced_dispersion(h, w, mat, phi_node, nb, n_states, k_grid, cache=cache,
                                  threads=threads, links=links)
         if got is None:
-            got = dispersion(h, w, mat, phi_node, nb, n_states, k_grid) + ((None,) if links else ())
+            got = dispersion(h, w, mat, phi_node, nb, n_states, k_grid)
+            if links:
+                n = got[0].shape[0]
+                got = got + (np.broadcast_to(np.eye(n), (k_grid.size - 1, n, n)).copy(),)
         E = got[0]
         last = E[:, -1]
         occ = 1.0 / (1.0 + np.exp(np.clip((efp - last[np.isfinite(last)]) / kT, -700, 700)))

@@ -873,8 +873,9 @@ def kp_states(ws: Workspace, phi):
 
     Each region: the axial dispersion on K_POINTS k_par values from 0 to a top that covers
     the Fermi sea (one grid for all regions), the hole density as the annulus pseudo-states
-    of selfcon.solver.kp.annulus_states; the number of states grows while the top one still
-    holds TOP_STATE_FRACTION of the charge, as for the single bands."""
+    of selfcon.solver.kp.linked_states (the states of neighbouring k_par joined by their
+    overlap); the number of states grows while the top one still holds TOP_STATE_FRACTION of
+    the charge, as for the single bands."""
     from selfcon.solver import kp
     st = ws.structure
     nb = kp.MODELS[st.hole_model]
@@ -910,19 +911,10 @@ def kp_states(ws: Workspace, phi):
             k_top = grown
             continue
         # each region's states of neighbouring k_par paired by their overlap (continuous in
-        # the potential where states of two wells cross), by their energy rank where the
-        # whole solve gave them
-        sheets, annuli, linked = [], [], []
-        for kg, E, dens, psi0, links in solved:
-            if links is not None:
-                linked.append(kp.link_pairs(kg, E, links, efp, kT))
-                annuli.append(None)
-                sheets.append(linked[-1][4])
-            else:
-                linked.append(None)
-                annuli.append(kp.annulus_states(kg, E, dens))
-                en, dos, _, state = annuli[-1]
-                sheets.append(kp.annulus_sheets(en, dos, state, E.shape[0], efp, kT))
+        # the potential where states of two wells cross; by their energy rank where the
+        # whole solve gave them)
+        linked = [kp.link_pairs(kg, E, links, efp, kT) for kg, E, dens, psi0, links in solved]
+        sheets = [lk[4] for lk in linked]
         total = sum(float(x.sum()) for x in sheets)
         full = all(s[1].shape[0] >= n and np.all(np.isfinite(s[1])) for s in solved)
         top = max(float(x[-1]) for x in sheets)
@@ -932,7 +924,7 @@ def kp_states(ws: Workspace, phi):
         ws.n_states[KP_BAND] = n
     ws.kp_top = k_top
     return kp.collect_states(st.n_nodes, st.hole_model, [t[:3] for t in todo], solved, efp, kT,
-                             annuli=annuli, linked=linked)
+                             linked=linked)
 
 
 def region_parts(st: Structure, band: str, r_idx: int):
